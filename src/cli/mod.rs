@@ -1,0 +1,27 @@
+//! Command-line front end: one file per subcommand, each parsing its flags into
+//! library calls. No science happens here.
+
+mod inspect;
+
+use clap::{Parser, Subcommand};
+
+/// Find dispersed radio bursts, catalogue them, and time them.
+#[derive(Parser, Debug)]
+#[command(name = "burstbook", version, about, long_about = None)]
+pub struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand, Debug)]
+enum Command {
+    /// Summarise an observation: header, duration, statistics, suspicious channels.
+    Inspect(inspect::Args),
+}
+
+/// Runs the chosen subcommand.
+pub fn run(cli: Cli) -> anyhow::Result<()> {
+    match cli.command {
+        Command::Inspect(a) => inspect::run(a),
+    }
+}

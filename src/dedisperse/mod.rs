@@ -1,0 +1,47 @@
+//! Dedispersion: the DM plan (plain data) and the kernels that execute it.
+//!
+//! Conventions shared by every kernel:
+//! - input is `[channel, time]`, channels in header (data) order, already normalised
+//!   and with masked channels set to zero;
+//! - delays are measured from the highest-frequency channel, in input samples,
+//!   rounded to the nearest sample;
+//! - for each [`DmStep`] the output row `d` at time `t` is the sum over channels of the
+//!   input at `t * downsample + delay_c(dm_d)` after summing `downsample` adjacent
+//!   samples, i.e. time is the arrival at the top channel, in downsampled samples
+//!   from the block start;
+//! - every step yields `(n_time - plan.max_delay_samples()) / downsample` valid samples.
+
+mod plan;
+pub mod reference;
+
+pub use plan::{DmPlan, DmStep};
+
+/// Output of one [`DmStep`]: one dedispersed time series per trial DM.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Dedispersed {
+    /// Trial DMs in pc cm⁻³, one per row.
+    pub dms: Vec<f64>,
+    /// Input samples summed into each output sample.
+    pub downsample: usize,
+    /// Samples per row.
+    pub n_time: usize,
+    /// Series, `[dm, time]` row-major.
+    pub data: Vec<f32>,
+}
+
+impl Dedispersed {
+    /// Row `d` (the series at `dms[d]`).
+    pub fn row(&self, d: usize) -> &[f32] {
+        &self.data[d * self.n_time..(d + 1) * self.n_time]
+    }
+}
+
+/// Delay in input samples (nearest integer) of each channel, relative to the highest
+/// frequency in `freqs_mhz`, for `dm` in pc cm⁻³ and sample time `tsamp_s`.
+pub fn channel_delays(freqs_mhz: &[f64], dm: f64, tsamp_s: f64) -> Vec<usize> {
+    let f_hi = freqs_mhz.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    freqs_mhz
+        .iter()
+        .map(|&f| (crate::units::delay_between_s(dm, f, f_hi) / tsamp_s).round() as usize)
+        .collect()
+}

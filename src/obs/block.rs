@@ -1,0 +1,249 @@
+//! Streaming access to samples: a [`SampleSource`] yields rows in order and a
+//! [`BlockReader`] cuts them into overlapping [`Block`]s of bounded size.
+
+use ndarray::ArrayView2;
+
+use super::Header;
+use crate::error::{Error, Result};
+
+/// A contiguous run of samples, `[time, channel]` row-major, channels in data order.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Block {
+    /// Index in the file of this block's first row.
+    pub start_sample: u64,
+    /// Number of leading rows repeated from the end of the previous block.
+    pub overlap: usize,
+    /// Number of channels (row length).
+    pub n_chan: usize,
+    /// The samples, `n_time() * n_chan` values.
+    pub data: Vec<f32>,
+}
+
+impl Block {
+    /// Number of time samples in the block.
+    pub fn n_time(&self) -> usize {
+        self.data.len().checked_div(self.n_chan).unwrap_or(0)
+    }
+
+    /// The samples as a `[time, channel]` view.
+    pub fn view(&self) -> ArrayView2<'_, f32> {
+        ArrayView2::from_shape((self.n_time(), self.n_chan), &self.data)
+            .expect("block data length is a multiple of n_chan")
+    }
+
+    /// Row `t` (all channels of one time sample).
+    pub fn row(&self, t: usize) -> &[f32] {
+        &self.data[t * self.n_chan..(t + 1) * self.n_chan]
+    }
+}
+
+/// Something that yields an observation's rows in time order.
+pub trait SampleSource: Send {
+    /// The observation's header.
+    fn header(&self) -> &Header;
+
+    /// Fills the start of `out` with the next whole rows (each `n_chan` values) and
+    /// returns how many rows were written; 0 means the end of the data.
+    ///
+    /// `out.len()` must be a multiple of `n_chan`.
+    ///
+    /// # Errors
+    /// Truncated or corrupt data, or an I/O failure, naming the file.
+    fn read_rows(&mut self, out: &mut [f32]) -> Result<usize>;
+}
+
+impl<S: SampleSource + ?Sized> SampleSource for Box<S> {
+    fn header(&self) -> &Header {
+        (**self).header()
+    }
+    fn read_rows(&mut self, out: &mut [f32]) -> Result<usize> {
+        (**self).read_rows(out)
+    }
+}
+
+/// Cuts a [`SampleSource`] into blocks of at most `block_len` rows where each block
+/// after the first starts with the last `overlap` rows of the one before.
+///
+/// Memory is `O(block_len * n_chan)` whatever the file length.
+pub struct BlockReader<S> {
+    source: S,
+    block_len: usize,
+    overlap: usize,
+    next_start: u64,
+    carry: Vec<f32>,
+    finished: bool,
+}
+
+impl<S: SampleSource> BlockReader<S> {
+    /// Wraps `source`.
+    ///
+    /// # Errors
+    /// [`Error::Config`] unless `overlap < block_len`.
+    pub fn new(source: S, block_len: usize, overlap: usize) -> Result<Self> {
+        if block_len == 0 || overlap >= block_len {
+            return Err(Error::Config(format!(
+                "block length {block_len} must exceed the overlap {overlap}"
+            )));
+        }
+        Ok(BlockReader {
+            source,
+            block_len,
+            overlap,
+            next_start: 0,
+            carry: Vec::new(),
+            finished: false,
+        })
+    }
+
+    /// The wrapped source's header.
+    pub fn header(&self) -> &Header {
+        self.source.header()
+    }
+
+    /// Reads the next block, or `None` after the last one.
+    ///
+    /// # Errors
+    /// Whatever the source reports.
+    pub fn next_block(&mut self) -> Result<Option<Block>> {
+        if self.finished {
+            return Ok(None);
+        }
+        let n_chan = self.source.header().n_chan();
+        let carried_rows = self.carry.len() / n_chan;
+        let mut data = std::mem::take(&mut self.carry);
+        data.resize(self.block_len * n_chan, 0.0);
+        let mut filled = carried_rows;
+        while filled < self.block_len {
+            let got = self.source.read_rows(&mut data[filled * n_chan..])?;
+            if got == 0 {
+                self.finished = true;
+                break;
+            }
+            filled += got;
+        }
+        data.truncate(filled * n_chan);
+        if filled == carried_rows {
+            // Nothing new arrived: the carried rows were already delivered.
+            return Ok(None);
+        }
+        let start_sample = self.next_start;
+        let keep = self.overlap.min(filled);
+        self.carry = data[(filled - keep) * n_chan..].to_vec();
+        self.next_start = start_sample + (filled - keep) as u64;
+        Ok(Some(Block {
+            start_sample,
+            overlap: carried_rows,
+            n_chan,
+            data,
+        }))
+    }
+}
+
+impl<S: SampleSource> Iterator for BlockReader<S> {
+    type Item = Result<Block>;
+    fn next(&mut self) -> Option<Self::Item> {
+        self.next_block().transpose()
+    }
+}
+
+/// An in-memory source, for tests and for data produced on the fly.
+pub struct MemorySource {
+    header: Header,
+    data: Vec<f32>,
+    pos_rows: usize,
+}
+
+impl MemorySource {
+    /// Wraps `data` (`[time, channel]`, `header.n_samples * n_chan` values).
+    ///
+    /// # Panics
+    /// If the data length disagrees with the header (a bug in the caller).
+    pub fn new(header: Header, data: Vec<f32>) -> Self {
+        assert_eq!(data.len() as u64, header.n_samples * header.n_chan() as u64);
+        MemorySource {
+            header,
+            data,
+            pos_rows: 0,
+        }
+    }
+}
+
+impl SampleSource for MemorySource {
+    fn header(&self) -> &Header {
+        &self.header
+    }
+    fn read_rows(&mut self, out: &mut [f32]) -> Result<usize> {
+        let n_chan = self.header.n_chan();
+        let total_rows = self.data.len() / n_chan;
+        let rows = (out.len() / n_chan).min(total_rows - self.pos_rows);
+        let src = &self.data[self.pos_rows * n_chan..(self.pos_rows + rows) * n_chan];
+        out[..src.len()].copy_from_slice(src);
+        self.pos_rows += rows;
+        Ok(rows)
+    }
+}
+
+/// Something that accepts an observation's rows in time order and writes them out.
+pub trait SampleSink {
+    /// Appends whole rows (`rows.len()` a multiple of `n_chan`).
+    ///
+    /// # Errors
+    /// I/O failure or a value the format cannot hold (NaN, out of range).
+    fn write_rows(&mut self, rows: &[f32]) -> Result<()>;
+
+    /// Flushes and closes the output, fixing up any size fields.
+    ///
+    /// # Errors
+    /// I/O failure, or a row count different from the header's `n_samples`.
+    fn finish(self: Box<Self>) -> Result<()>;
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::obs::header::tests::test_header;
+
+    fn ramp_source(n_chan: usize, n_time: u64) -> MemorySource {
+        let h = test_header(n_chan, n_time);
+        let data = (0..n_time as usize * n_chan).map(|i| i as f32).collect();
+        MemorySource::new(h, data)
+    }
+
+    #[test]
+    fn blocks_cover_every_row_once_plus_overlap() {
+        for &(n_time, block, overlap) in &[(100u64, 30, 7), (30, 30, 0), (1, 8, 3), (31, 10, 9)] {
+            let mut reader = BlockReader::new(ramp_source(3, n_time), block, overlap).unwrap();
+            let mut seen = Vec::new();
+            let mut expected_start = 0u64;
+            while let Some(b) = reader.next_block().unwrap() {
+                assert_eq!(b.start_sample, expected_start);
+                assert!(b.n_time() <= block);
+                for t in 0..b.n_time() {
+                    let abs = b.start_sample as usize + t;
+                    assert_eq!(
+                        b.row(t)[0],
+                        (abs * 3) as f32,
+                        "row content matches its index"
+                    );
+                    if t >= b.overlap {
+                        seen.push(abs);
+                    }
+                }
+                expected_start = b.start_sample + (b.n_time() - overlap.min(b.n_time())) as u64;
+            }
+            assert_eq!(seen, (0..n_time as usize).collect::<Vec<_>>());
+        }
+    }
+
+    #[test]
+    fn rejects_overlap_not_below_block() {
+        assert!(BlockReader::new(ramp_source(2, 10), 5, 5).is_err());
+        assert!(BlockReader::new(ramp_source(2, 10), 0, 0).is_err());
+    }
+
+    #[test]
+    fn empty_source_yields_nothing() {
+        let mut r = BlockReader::new(ramp_source(4, 0), 16, 4).unwrap();
+        assert!(r.next_block().unwrap().is_none());
+    }
+}

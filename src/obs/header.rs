@@ -1,0 +1,248 @@
+//! The observation header: everything about a recording except its samples.
+
+use serde::{Deserialize, Serialize};
+
+use crate::units::SECONDS_PER_DAY;
+
+/// An observing site on the WGS84 ellipsoid.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Site {
+    /// Free-form site or telescope name.
+    pub name: String,
+    /// Geodetic longitude in degrees, east positive.
+    pub lon_deg: f64,
+    /// Geodetic latitude in degrees.
+    pub lat_deg: f64,
+    /// Height above the ellipsoid in metres.
+    pub height_m: f64,
+}
+
+/// A UTC instant kept as an integer MJD plus seconds into that UTC day, so no
+/// precision is lost to a floating-point MJD (1 µs is 1.2e-11 of a day).
+#[derive(Debug, Clone, Copy, PartialEq, PartialOrd, Serialize, Deserialize)]
+pub struct UtcEpoch {
+    /// Integer modified Julian date of the UTC day.
+    pub mjd: i64,
+    /// Seconds since the start of that UTC day, in `[0, 86400)` (86401 on a leap-second day).
+    pub sec: f64,
+}
+
+impl UtcEpoch {
+    /// Builds an epoch, normalising `sec` into `[0, 86400)` by moving whole days.
+    ///
+    /// Days are treated as 86400 s long; leap seconds inside an observation are
+    /// ignored here and handled by the timing stage.
+    pub fn new(mjd: i64, sec: f64) -> Self {
+        let days = (sec / SECONDS_PER_DAY).floor();
+        UtcEpoch {
+            mjd: mjd + days as i64,
+            sec: sec - days * SECONDS_PER_DAY,
+        }
+    }
+
+    /// The epoch `offset_s` seconds later (86400-s days).
+    pub fn plus_seconds(self, offset_s: f64) -> Self {
+        UtcEpoch::new(self.mjd, self.sec + offset_s)
+    }
+
+    /// The epoch as a floating-point MJD (about 1 µs resolution near MJD 60000).
+    pub fn to_mjd_f64(self) -> f64 {
+        self.mjd as f64 + self.sec / SECONDS_PER_DAY
+    }
+
+    /// Splits a floating-point MJD into integer day and seconds.
+    pub fn from_mjd_f64(mjd: f64) -> Self {
+        let day = mjd.floor();
+        UtcEpoch::new(day as i64, (mjd - day) * SECONDS_PER_DAY)
+    }
+}
+
+/// Everything known about an observation apart from its samples.
+///
+/// Samples are laid out `[time, channel]`, channels in the order of `freqs_mhz`
+/// (ascending or descending, as recorded).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Header {
+    /// Name of the source observed.
+    pub source: String,
+    /// Telescope name as recorded (may equal `site.name`).
+    pub telescope: String,
+    /// ICRS right ascension in degrees.
+    pub ra_deg: f64,
+    /// ICRS declination in degrees.
+    pub dec_deg: f64,
+    /// Where the telescope is.
+    pub site: Site,
+    /// UTC time of the first sample.
+    pub start: UtcEpoch,
+    /// Sample time in seconds.
+    pub tsamp_s: f64,
+    /// Centre frequency of each channel in MHz, in data order.
+    pub freqs_mhz: Vec<f64>,
+    /// Width of one channel in MHz (positive).
+    pub chan_bw_mhz: f64,
+    /// Per-channel weight; 0 masks a channel.
+    pub weights: Vec<f32>,
+    /// Total number of time samples in the file.
+    pub n_samples: u64,
+    /// Bits per stored sample (1, 2, 4, 8, 16 or 32).
+    pub nbits: u32,
+    /// System-equivalent flux density in Jy, if known; turns S/N into fluence.
+    pub sefd_jy: Option<f64>,
+    /// Optional beam identifier.
+    pub beam: Option<String>,
+}
+
+impl Header {
+    /// Number of channels.
+    pub fn n_chan(&self) -> usize {
+        self.freqs_mhz.len()
+    }
+
+    /// Duration of the recording in seconds.
+    pub fn duration_s(&self) -> f64 {
+        self.n_samples as f64 * self.tsamp_s
+    }
+
+    /// Lowest channel centre frequency in MHz.
+    pub fn freq_lo_mhz(&self) -> f64 {
+        self.freqs_mhz.iter().copied().fold(f64::INFINITY, f64::min)
+    }
+
+    /// Highest channel centre frequency in MHz.
+    pub fn freq_hi_mhz(&self) -> f64 {
+        self.freqs_mhz
+            .iter()
+            .copied()
+            .fold(f64::NEG_INFINITY, f64::max)
+    }
+
+    /// Total bandwidth in MHz, edge to edge.
+    pub fn bandwidth_mhz(&self) -> f64 {
+        self.freq_hi_mhz() - self.freq_lo_mhz() + self.chan_bw_mhz
+    }
+
+    /// Whether the first channel has the highest frequency.
+    pub fn is_descending(&self) -> bool {
+        self.freqs_mhz.len() > 1 && self.freqs_mhz[0] > self.freqs_mhz[1]
+    }
+
+    /// UTC epoch of sample `index` (its leading edge).
+    pub fn epoch_of_sample(&self, index: f64) -> UtcEpoch {
+        self.start.plus_seconds(index * self.tsamp_s)
+    }
+
+    /// Checks the invariants every reader and writer relies on.
+    ///
+    /// # Errors
+    /// A message describing the first violated invariant.
+    pub fn validate(&self) -> Result<(), String> {
+        if self.freqs_mhz.is_empty() {
+            return Err("zero channels".into());
+        }
+        if !(self.tsamp_s.is_finite() && self.tsamp_s > 0.0) {
+            return Err(format!(
+                "sample time must be positive, got {}",
+                self.tsamp_s
+            ));
+        }
+        if let Some(f) = self
+            .freqs_mhz
+            .iter()
+            .find(|f| !(f.is_finite() && **f > 0.0))
+        {
+            return Err(format!("channel frequency must be positive, got {f}"));
+        }
+        if !(self.chan_bw_mhz.is_finite() && self.chan_bw_mhz > 0.0) {
+            return Err(format!(
+                "channel width must be positive, got {}",
+                self.chan_bw_mhz
+            ));
+        }
+        if self.weights.len() != self.freqs_mhz.len() {
+            return Err(format!(
+                "{} channel weights for {} channels",
+                self.weights.len(),
+                self.freqs_mhz.len()
+            ));
+        }
+        if !(self.ra_deg.is_finite() && self.dec_deg.is_finite() && self.dec_deg.abs() <= 90.0) {
+            return Err(format!(
+                "bad sky position ra={} dec={}",
+                self.ra_deg, self.dec_deg
+            ));
+        }
+        if !self.start.sec.is_finite() {
+            return Err("start time is not finite".into());
+        }
+        if let Some(s) = self.sefd_jy
+            && !(s.is_finite() && s > 0.0)
+        {
+            return Err(format!("SEFD must be positive, got {s}"));
+        }
+        Ok(())
+    }
+}
+
+#[cfg(test)]
+pub(crate) mod tests {
+    use super::*;
+
+    /// A small valid header for tests: `n_chan` channels descending from 1600 MHz.
+    pub(crate) fn test_header(n_chan: usize, n_samples: u64) -> Header {
+        let bw = 400.0 / n_chan as f64;
+        Header {
+            source: "TEST".into(),
+            telescope: "Test Dish".into(),
+            ra_deg: 10.0,
+            dec_deg: 20.0,
+            site: Site {
+                name: "Test Dish".into(),
+                lon_deg: 10.0,
+                lat_deg: 45.0,
+                height_m: 100.0,
+            },
+            start: UtcEpoch::new(60000, 0.0),
+            tsamp_s: 64e-6,
+            freqs_mhz: (0..n_chan)
+                .map(|i| 1600.0 - bw * (i as f64 + 0.5))
+                .collect(),
+            chan_bw_mhz: bw,
+            weights: vec![1.0; n_chan],
+            n_samples,
+            nbits: 32,
+            sefd_jy: None,
+            beam: None,
+        }
+    }
+
+    #[test]
+    fn epoch_normalises_days() {
+        let e = UtcEpoch::new(60000, 86_400.5);
+        assert_eq!(e.mjd, 60001);
+        assert!((e.sec - 0.5).abs() < 1e-12);
+        let e = UtcEpoch::new(60000, -1.0);
+        assert_eq!(e.mjd, 59999);
+        assert!((e.sec - 86_399.0).abs() < 1e-12);
+        let back = UtcEpoch::from_mjd_f64(e.to_mjd_f64());
+        assert_eq!(back.mjd, 59999);
+        assert!((back.sec - 86_399.0).abs() < 1e-5);
+    }
+
+    #[test]
+    fn validate_rejects_bad_headers() {
+        let h = test_header(8, 100);
+        assert!(h.validate().is_ok());
+        assert!(h.is_descending());
+        let mut bad = h.clone();
+        bad.tsamp_s = -1.0;
+        assert!(bad.validate().unwrap_err().contains("sample time"));
+        let mut bad = h.clone();
+        bad.freqs_mhz.clear();
+        bad.weights.clear();
+        assert!(bad.validate().unwrap_err().contains("zero channels"));
+        let mut bad = h;
+        bad.weights.pop();
+        assert!(bad.validate().unwrap_err().contains("weights"));
+    }
+}

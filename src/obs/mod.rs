@@ -1,0 +1,87 @@
+//! Observations: the header model, streaming block access, and one reader/writer
+//! file per on-disk format.
+//!
+//! Add a format by writing a [`SampleSource`] (and optionally a [`SampleSink`]) in its
+//! own file and teaching [`open`] / [`create`] to recognise it.
+
+mod block;
+pub mod fits;
+mod header;
+pub mod native;
+
+pub use block::{Block, BlockReader, MemorySource, SampleSink, SampleSource};
+pub use header::{Header, Site, UtcEpoch};
+
+use std::path::Path;
+
+use crate::error::{Error, Result};
+
+/// On-disk container formats burstbook reads and writes.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Container {
+    /// `NAME.json` header plus `NAME.npy` samples.
+    Native,
+    /// FITS search-mode file with a `SUBINT` binary table.
+    Fits,
+}
+
+impl Container {
+    /// Guesses the container from a file name, then from its first bytes.
+    ///
+    /// # Errors
+    /// The file cannot be read or is neither format.
+    pub fn detect(path: &Path) -> Result<Container> {
+        match path
+            .extension()
+            .and_then(|e| e.to_str())
+            .map(str::to_ascii_lowercase)
+        {
+            Some(e) if e == "json" => return Ok(Container::Native),
+            Some(e) if e == "fits" || e == "sf" || e == "fit" => return Ok(Container::Fits),
+            _ => {}
+        }
+        let mut head = [0u8; 9];
+        let n = {
+            use std::io::Read;
+            let mut f = std::fs::File::open(path).map_err(|e| Error::io(path, e))?;
+            f.read(&mut head).map_err(|e| Error::io(path, e))?
+        };
+        if head[..n].starts_with(b"SIMPLE  =") {
+            Ok(Container::Fits)
+        } else if head[..n].first() == Some(&b'{') {
+            Ok(Container::Native)
+        } else {
+            Err(Error::bad_input(
+                path,
+                "not a recognised observation (expected a burstbook .json header or a FITS file)",
+            ))
+        }
+    }
+}
+
+/// Opens an observation for streaming, whatever its container.
+///
+/// # Errors
+/// Missing file, unknown format, or a header that fails validation.
+pub fn open(path: &Path) -> Result<Box<dyn SampleSource>> {
+    match Container::detect(path)? {
+        Container::Native => Ok(Box::new(native::NativeReader::open(path)?)),
+        Container::Fits => Ok(Box::new(fits::FitsReader::open(path)?)),
+    }
+}
+
+/// Creates an observation file that accepts rows in time order.
+///
+/// `header.nbits` selects the stored sample type (see each format's writer);
+/// `header.n_samples` is the number of rows that will be written.
+///
+/// # Errors
+/// An unsupported bit depth for the container, or an I/O failure.
+pub fn create(path: &Path, header: &Header, container: Container) -> Result<Box<dyn SampleSink>> {
+    header.validate().map_err(|m| Error::bad_input(path, m))?;
+    match container {
+        Container::Native => Ok(Box::new(native::NativeWriter::create(path, header)?)),
+        Container::Fits => Ok(Box::new(fits::FitsWriter::create(path, header)?)),
+    }
+}
