@@ -14,7 +14,7 @@
 mod plan;
 pub mod reference;
 
-pub use plan::{DmPlan, DmStep};
+pub use plan::{DmPlan, DmStep, PlanRequest};
 
 /// Output of one [`DmStep`]: one dedispersed time series per trial DM.
 #[derive(Debug, Clone, PartialEq)]

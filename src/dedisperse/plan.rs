@@ -4,6 +4,35 @@ use serde::{Deserialize, Serialize};
 
 use super::channel_delays;
 
+/// What the user asks of a DM plan; [`DmPlan`] is what the planner makes of it.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct PlanRequest {
+    /// Lowest trial DM in pc cm⁻³.
+    pub dm_min: f64,
+    /// Highest trial DM in pc cm⁻³.
+    pub dm_max: f64,
+    /// Narrowest intrinsic pulse width searched, in seconds.
+    pub min_width_s: f64,
+    /// Allowed smearing growth between neighbouring trials (e.g. 1.25: the effective
+    /// width grows by at most 25 % half-way between trials).
+    pub tolerance: f64,
+    /// Largest time-resolution reduction factor (a power of two).
+    pub max_downsample: usize,
+}
+
+impl Default for PlanRequest {
+    fn default() -> Self {
+        PlanRequest {
+            dm_min: 0.0,
+            dm_max: 1000.0,
+            min_width_s: 0.0,
+            tolerance: 1.25,
+            max_downsample: 64,
+        }
+    }
+}
+
 /// A run of trial DMs searched at one time resolution.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct DmStep {
