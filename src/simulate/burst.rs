@@ -49,15 +49,17 @@ impl Spectrum {
         }
     }
 
-    /// A short human-readable description, e.g. `power_law(-1.5)`.
+    /// A short description without commas (for CSV), e.g. `power_law(index=-1.5)`.
     pub fn describe(&self) -> String {
         match *self {
-            Spectrum::PowerLaw { index } => format!("power_law({index})"),
+            Spectrum::PowerLaw { index } => format!("power_law(index={index})"),
             Spectrum::Gaussian {
                 centre_mhz,
                 fwhm_mhz,
-            } => format!("gaussian({centre_mhz} MHz, fwhm {fwhm_mhz} MHz)"),
-            Spectrum::TopHat { lo_mhz, hi_mhz } => format!("top_hat({lo_mhz}-{hi_mhz} MHz)"),
+            } => format!("gaussian(centre_mhz={centre_mhz};fwhm_mhz={fwhm_mhz})"),
+            Spectrum::TopHat { lo_mhz, hi_mhz } => {
+                format!("top_hat(lo_mhz={lo_mhz};hi_mhz={hi_mhz})")
+            }
         }
     }
 }
