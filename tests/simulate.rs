@@ -126,6 +126,19 @@ fn same_seed_gives_identical_data_and_other_seeds_differ() {
     assert!((mean - 96.0).abs() < 0.5, "{mean}");
 }
 
+// Bursts come from their own random stream: adding them leaves the noise untouched,
+// so samples away from every burst are identical with and without them.
+#[test]
+fn bursts_do_not_change_the_noise() {
+    let quiet = scenario(3.0, 32, true, "");
+    let busy = scenario(3.0, 32, true, BURSTS.split("[[rfi").next().unwrap());
+    let a = all_rows(&Simulation::new(&quiet, 4).unwrap());
+    let b = all_rows(&Simulation::new(&busy, 4).unwrap());
+    // All bursts arrive after 0.2 s; the first 100 ms are untouched.
+    assert!(a[..100 * 64] == b[..100 * 64]);
+    assert!(a != b);
+}
+
 #[test]
 fn truth_table_lists_bursts_and_interference() {
     let s = scenario(3.0, 32, true, BURSTS);

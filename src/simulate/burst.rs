@@ -196,9 +196,17 @@ impl ChannelModel {
         }
         let n = out.len().div_ceil(stride);
         let mut acc = vec![0.0f64; n];
+        let (lo, hi) = self.shape.support_s();
         for &a in &self.arrivals_s {
-            let mut prev = self.shape.cdf(first_sample as f64 * tsamp_s - a);
-            for (i, v) in acc.iter_mut().enumerate() {
+            // Outside its support this sub-frequency adds (almost exactly) nothing.
+            let i0 =
+                (((a + lo) / tsamp_s).floor() as i64 - first_sample).clamp(0, n as i64) as usize;
+            let i1 =
+                (((a + hi) / tsamp_s).ceil() as i64 + 1 - first_sample).clamp(0, n as i64) as usize;
+            let mut prev = self
+                .shape
+                .cdf((first_sample + i0 as i64) as f64 * tsamp_s - a);
+            for (i, v) in acc.iter_mut().enumerate().take(i1).skip(i0) {
                 let next = self
                     .shape
                     .cdf((first_sample + i as i64 + 1) as f64 * tsamp_s - a);
