@@ -128,6 +128,32 @@ mod tests {
         assert!((q.pdf(0.0) * 2e-3 - 0.261_578).abs() < 5e-7);
     }
 
+    // scipy.stats.exponnorm (scipy 1.17.1, numpy 2.4.6) density and distribution
+    // function; fixture and its generating script in tests/fixtures/simulate/.
+    #[test]
+    fn matches_scipy_exponnorm() {
+        let text = include_str!("../../tests/fixtures/simulate/emg.csv");
+        let mut n = 0;
+        for line in text.lines().skip(1) {
+            let v: Vec<f64> = line.split(',').map(|f| f.parse().unwrap()).collect();
+            let p = Emg {
+                sigma_s: v[0],
+                tau_s: v[1],
+            };
+            let (pdf, cdf) = (p.pdf(v[2]), p.cdf(v[2]));
+            assert!(
+                (pdf - v[3]).abs() <= 1e-9 * v[3].abs() + 1e-12 / v[0],
+                "{line}: pdf {pdf}"
+            );
+            assert!(
+                (cdf - v[4]).abs() <= 1e-9 * v[4] + 1e-13,
+                "{line}: cdf {cdf}"
+            );
+            n += 1;
+        }
+        assert_eq!(n, 65);
+    }
+
     #[test]
     fn cdf_is_the_integral_of_pdf() {
         for &(s, t) in &[(1.0, 1.0), (1.0, 0.05), (0.2, 3.0), (1.0, 0.0), (0.0, 2.0)] {
