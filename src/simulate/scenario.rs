@@ -411,3 +411,20 @@ fn check_burst_like(what: &str, t_s: f64, width_ms: f64, length_s: f64) -> Resul
     }
     Ok(())
 }
+
+#[cfg(test)]
+mod tests {
+    use crate::simulate::test_header;
+
+    #[test]
+    fn header_follows_the_band_table() {
+        let h = test_header(8, 1000);
+        assert_eq!(h.n_chan(), 8);
+        assert!(h.is_descending());
+        assert!((h.freqs_mhz[0] - 1575.0).abs() < 1e-9 && (h.freqs_mhz[7] - 1225.0).abs() < 1e-9);
+        assert!((h.chan_bw_mhz - 50.0).abs() < 1e-12);
+        assert_eq!(h.start.mjd, 61000);
+        assert_eq!(h.nbits, 32);
+        assert!((h.bandwidth_mhz() - 400.0).abs() < 1e-9);
+    }
+}

@@ -227,8 +227,9 @@ mod tests {
     }
 
     // A well-resolved Gaussian: the best boxcar reaches 0.94345 of the matched-filter
-    // S/N √(Σs²) at 1.189 FWHM (re-derived from the boxcar/Gaussian overlap integral,
-    // cf. Keane & Petroff 2015, MNRAS 447, 2852 on boxcar matched filtering).
+    // S/N √(Σs²) at 1.189 FWHM: maximise erf(W/(2√2σ))/√W against the matched
+    // filter's (2√π σ)^(-1/2) (re-derived with scipy.special.erf; boxcar matched
+    // filtering as discussed by Keane & Petroff 2015, MNRAS 447, 2852).
     #[test]
     fn resolved_gaussian_reaches_boxcar_efficiency() {
         let h = test_header(1, 4000);
