@@ -2,6 +2,7 @@
 //! library calls. No science happens here.
 
 mod inspect;
+mod simulate;
 
 use clap::{Parser, Subcommand};
 
@@ -17,11 +18,14 @@ pub struct Cli {
 enum Command {
     /// Summarise an observation: header, duration, statistics, suspicious channels.
     Inspect(inspect::Args),
+    /// Write a synthetic observation with known bursts and interference from a scenario file.
+    Simulate(simulate::Args),
 }
 
 /// Runs the chosen subcommand.
 pub fn run(cli: Cli) -> anyhow::Result<()> {
     match cli.command {
         Command::Inspect(a) => inspect::run(a),
+        Command::Simulate(a) => simulate::run(a),
     }
 }
