@@ -13,6 +13,7 @@ pub mod dedisperse;
 pub mod error;
 pub mod obs;
 pub mod progress;
+pub mod timing;
 pub mod units;
 
 pub use candidate::{Candidate, TriageFeatures, Verdict};
