@@ -55,15 +55,15 @@ pub fn barycentre_csv(bary: &Barycentrer, input: &Path, output: &Path) -> Result
     writer.write_record(&out_headers).map_err(write_err)?;
 
     let mut summary = CsvSummary::default();
-    for (i, record) in reader.records().enumerate() {
-        let line = i + 2;
-        let mut record = record.map_err(|e| bad(format!("row {line}: {e}")))?;
+    for record in reader.records() {
+        let mut record = record.map_err(|e| bad(e.to_string()))?;
+        let line = record.position().map_or(0, |p| p.line());
         let text = record.get(column).unwrap_or("").trim();
         let utc =
-            parse_mjd(text).ok_or_else(|| bad(format!("row {line}: `{text}` is not an MJD")))?;
+            parse_mjd(text).ok_or_else(|| bad(format!("line {line}: `{text}` is not an MJD")))?;
         let result = bary
             .convert(utc)
-            .map_err(|e| bad(format!("row {line}: {e}")))?;
+            .map_err(|e| bad(format!("line {line}: {e}")))?;
         for w in result.warnings {
             let seen = summary
                 .warnings
