@@ -45,8 +45,10 @@ KERNEL = SPK.open(BSP)
 
 def earth_km(mjd):
     """Geocentre relative to the SSB: (SSB->EMB) + (EMB->Earth), km."""
-    jd = MJD_ZERO_JD + np.asarray(mjd)
-    return KERNEL[0, 3].compute(jd) + KERNEL[3, 399].compute(jd)
+    # Two-part Julian dates: a single f64 JD near 2.46e6 resolves only ~40 us (~1 m).
+    mjd = np.asarray(mjd, dtype=float)
+    jd1, jd2 = MJD_ZERO_JD + np.floor(mjd), mjd - np.floor(mjd)
+    return KERNEL[0, 3].compute(jd1, jd2) + KERNEL[3, 399].compute(jd1, jd2)
 
 
 def tdb_minus_tt_s(mjd):
@@ -97,7 +99,7 @@ def main():
                 " and ERFA dtdb (pyerfa 2.0.1.5)\n")
         f.write("mjd_tdb,earth_x_km,earth_y_km,earth_z_km,tdb_minus_tt_s\n")
         for i, m in enumerate(mjd):
-            f.write(f"{m:.10f},{pos[0, i]:.6f},{pos[1, i]:.6f},{pos[2, i]:.6f},{dt[i]:.12e}\n")
+            f.write(f"{m!r},{pos[0, i]:.6f},{pos[1, i]:.6f},{pos[2, i]:.6f},{dt[i]:.12e}\n")
 
 
 if __name__ == "__main__":

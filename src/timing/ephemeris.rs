@@ -11,6 +11,7 @@ use std::sync::OnceLock;
 
 use super::TimingWarning;
 use super::chebyshev::ChebTable;
+use super::spk::SpkEphemeris;
 
 /// Astronomical unit in km (IAU 2012 Resolution B2).
 const AU_KM: f64 = 149_597_870.700;
@@ -41,6 +42,9 @@ pub enum Ephemeris {
     /// The embedded DE421 table, with the `epv00` fallback outside it.
     #[default]
     Embedded,
+    /// A JPL SPK (.bsp) file read at run time (e.g. de421.bsp, de440.bsp), with the
+    /// `epv00` fallback outside its coverage.
+    Spk(SpkEphemeris),
 }
 
 /// The geocentre and Sun relative to the solar-system barycentre (ICRS axes).
@@ -63,6 +67,7 @@ impl Ephemeris {
             Ephemeris::Embedded => earth_table()
                 .eval(mjd_day, day_frac)
                 .map(|(p, v)| ([p[0], p[1], p[2]], [v[0], v[1], v[2]].map(|x| x / 86_400.0))),
+            Ephemeris::Spk(spk) => spk.earth_km(mjd_day, day_frac),
         };
         let warning = found
             .is_none()

@@ -20,11 +20,13 @@ mod csv_table;
 pub mod ephemeris;
 pub mod geometry;
 pub mod leap;
+mod spk;
 
 use std::fmt;
 
 pub use csv_table::{CsvSummary, barycentre_csv};
 pub use ephemeris::Ephemeris;
+pub use spk::SpkEphemeris;
 
 use crate::error::{Error, Result};
 use crate::obs::{Site, UtcEpoch};
