@@ -99,7 +99,7 @@ def main():
                 " and ERFA dtdb (pyerfa 2.0.1.5)\n")
         f.write("mjd_tdb,earth_x_km,earth_y_km,earth_z_km,tdb_minus_tt_s\n")
         for i, m in enumerate(mjd):
-            f.write(f"{m!r},{pos[0, i]:.6f},{pos[1, i]:.6f},{pos[2, i]:.6f},{dt[i]:.12e}\n")
+            f.write(f"{float(m)!r},{pos[0, i]:.6f},{pos[1, i]:.6f},{pos[2, i]:.6f},{dt[i]:.12e}\n")
 
 
 if __name__ == "__main__":
