@@ -76,21 +76,25 @@ fn barycentric_correction_within_30_us_of_astropy_de421() {
 
 #[test]
 fn embedded_tables_match_de421_and_dtdb() {
-    let (mut pos, mut dt) = (0f64, 0f64);
+    let (mut pos, mut dt, mut sun) = (0f64, 0f64, 0f64);
     for r in rows(EPHEMERIS_CHECK) {
         let day = r[0].floor();
         let (state, warn) = Ephemeris::Embedded.earth_sun(day as i64, r[0] - day);
         assert!(warn.is_none());
         let d2: f64 = (0..3).map(|i| (state.earth_km[i] - r[1 + i]).powi(2)).sum();
         pos = pos.max(d2.sqrt());
+        let s2: f64 = (0..3).map(|i| (state.sun_km[i] - r[5 + i]).powi(2)).sum();
+        sun = sun.max(s2.sqrt());
         let (tdb_tt, _) = ephemeris::tdb_minus_tt_geocentric_s(day as i64, r[0] - day);
         dt = dt.max((tdb_tt - r[4]).abs());
     }
     println!(
-        "embedded tables: Earth max {:.1} m, TDB-TT max {:.2} ns",
+        "embedded tables: Earth max {:.1} m, Sun max {:.1} m, TDB-TT max {:.2} ns",
         pos * 1e3,
+        sun * 1e3,
         dt * 1e9
     );
     assert!(pos < 0.05); // km; the fit's own worst case is 28 m
     assert!(dt < 10e-9);
+    assert!(sun < 0.1); // km; fit worst case 89 m
 }

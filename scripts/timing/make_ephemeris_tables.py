@@ -6,6 +6,8 @@ Writes, under src/timing/data/:
                        solar-system barycentre (ICRS axes, km) from JPL DE421,
                        16-day granules x 12 coefficients, MJD(TDB) 51536 .. 69840
                        (late 1999 .. early 2050).
+  sun_ssb_de421.bin    the Sun relative to the barycentre (km) from DE421, 64-day
+                       granules x 8 coefficients (for the Shapiro delay).
   tdb_minus_tt.bin     Chebyshev fits of the geocentric TDB - TT (seconds) from
                        ERFA dtdb (Fairhead & Bretagnon 1990 series), 32-day
                        granules x 10 coefficients, same span.
@@ -51,6 +53,11 @@ def earth_km(mjd):
     return KERNEL[0, 3].compute(jd1, jd2) + KERNEL[3, 399].compute(jd1, jd2)
 
 
+def sun_km(mjd):
+    mjd = np.asarray(mjd, dtype=float)
+    return KERNEL[0, 10].compute(MJD_ZERO_JD + np.floor(mjd), mjd - np.floor(mjd))
+
+
 def tdb_minus_tt_s(mjd):
     """Geocentric TDB - TT in seconds (observer at the geocentre)."""
     mjd = np.asarray(mjd, dtype=float)
@@ -85,6 +92,9 @@ def main():
     earth, ng, worst = fit(earth_km, 16.0, 12)
     write(os.path.join(data, "earth_ssb_de421.bin"), 16.0, 12, earth, ng)
     print(f"earth: {ng} granules, worst fit error {worst * 1e3:.1f} m")
+    sun, ng, worst = fit(sun_km, 64.0, 8)
+    write(os.path.join(data, "sun_ssb_de421.bin"), 64.0, 8, sun, ng)
+    print(f"sun: {ng} granules, worst fit error {worst * 1e3:.1f} m")
     tdb, ng, worst = fit(tdb_minus_tt_s, 32.0, 10)
     write(os.path.join(data, "tdb_minus_tt.bin"), 32.0, 10, tdb, ng)
     print(f"tdb-tt: {ng} granules, worst fit error {worst * 1e9:.2f} ns")
@@ -93,13 +103,15 @@ def main():
     mjd = np.sort(rng.uniform(START_MJD, END_MJD, 200))
     pos = earth_km(mjd)
     dt = tdb_minus_tt_s(mjd)[0]
+    sun = sun_km(mjd)
     check = os.path.join(ROOT, "tests", "fixtures", "timing", "ephemeris_check.csv")
     with open(check, "w") as f:
         f.write("# made by scripts/timing/make_ephemeris_tables.py from DE421 (jplephem 2.24)"
                 " and ERFA dtdb (pyerfa 2.0.1.5)\n")
-        f.write("mjd_tdb,earth_x_km,earth_y_km,earth_z_km,tdb_minus_tt_s\n")
+        f.write("mjd_tdb,earth_x_km,earth_y_km,earth_z_km,tdb_minus_tt_s,sun_x_km,sun_y_km,sun_z_km\n")
         for i, m in enumerate(mjd):
-            f.write(f"{float(m)!r},{pos[0, i]:.6f},{pos[1, i]:.6f},{pos[2, i]:.6f},{dt[i]:.12e}\n")
+            f.write(f"{float(m)!r},{pos[0, i]:.6f},{pos[1, i]:.6f},{pos[2, i]:.6f},{dt[i]:.12e},"
+                    f"{sun[0, i]:.6f},{sun[1, i]:.6f},{sun[2, i]:.6f}\n")
 
 
 if __name__ == "__main__":

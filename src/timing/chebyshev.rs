@@ -78,7 +78,7 @@ impl ChebTable {
 
 /// Chebyshev polynomials T_k(x) and their derivatives for k < n, by the three-term
 /// recurrences T_{k+1} = 2x T_k − T_{k−1} and T'_{k+1} = 2 T_k + 2x T'_k − T'_{k−1}.
-fn chebyshev_basis(x: f64, n: usize) -> (Vec<f64>, Vec<f64>) {
+pub(super) fn chebyshev_basis(x: f64, n: usize) -> (Vec<f64>, Vec<f64>) {
     let (mut t, mut dt) = (vec![0.0; n], vec![0.0; n]);
     t[0] = 1.0;
     if n > 1 {

@@ -36,14 +36,18 @@ pub fn site_itrs_km(site: &Site) -> Result<[f64; 3]> {
     Ok(xyz_m.map(|m| m / 1000.0))
 }
 
+/// Bias–precession–nutation matrix (GCRS → true equator and equinox of date) at TT
+/// given as MJD day and fraction, IAU 2006/2000A (ERFA `pnm06a`).
+pub fn npb_matrix(tt: (i64, f64)) -> [[f64; 3]; 3] {
+    erfa::prenut::pn_matrix_06a(2_400_000.5 + tt.0 as f64, tt.1)
+}
+
 /// Rotates a terrestrial vector into the GCRS at the given UT1 and TT (each an MJD
-/// split into day and fraction): r_GCRS = NPBᵀ · R₃(−GAST) · r_ITRS with IAU 2006/2000A
-/// precession–nutation (ERFA `pnm06a`, `gst06`). Polar motion (≤ 15 m) is ignored.
-pub fn itrs_to_gcrs(r: [f64; 3], ut1: (i64, f64), tt: (i64, f64)) -> [f64; 3] {
+/// split into day and fraction): r_GCRS = NPBᵀ · R₃(−GAST) · r_ITRS, with `npb` from
+/// [`npb_matrix`] and GAST from ERFA `gst06`. Polar motion (≤ 15 m) is ignored.
+pub fn itrs_to_gcrs(r: [f64; 3], ut1: (i64, f64), tt: (i64, f64), npb: [[f64; 3]; 3]) -> [f64; 3] {
     let mjd0 = 2_400_000.5;
-    let (tta, ttb) = (mjd0 + tt.0 as f64, tt.1);
-    let npb = erfa::prenut::pn_matrix_06a(tta, ttb);
-    let gast = erfa::time::gst06(mjd0 + ut1.0 as f64, ut1.1, tta, ttb, npb);
+    let gast = erfa::time::gst06(mjd0 + ut1.0 as f64, ut1.1, mjd0 + tt.0 as f64, tt.1, npb);
     let (s, c) = gast.sin_cos();
     let true_of_date = [c * r[0] - s * r[1], s * r[0] + c * r[1], r[2]];
     [0, 1, 2].map(|j| (0..3).map(|i| npb[i][j] * true_of_date[i]).sum())
@@ -115,9 +119,10 @@ mod tests {
         let r = site_itrs_km(&site).unwrap();
         assert!((r[0] - 6378.137).abs() < 1e-9 && r[1].abs() < 1e-9);
         // Rotation preserves length and a pole stays near the celestial pole.
-        let g = itrs_to_gcrs(r, (60_000, 0.3), (60_000, 0.3008));
+        let npb = npb_matrix((60_000, 0.3008));
+        let g = itrs_to_gcrs(r, (60_000, 0.3), (60_000, 0.3008), npb);
         assert!((dot(g, g).sqrt() - 6378.137).abs() < 1e-9);
-        let pole = itrs_to_gcrs([0.0, 0.0, 1.0], (60_000, 0.3), (60_000, 0.3008));
+        let pole = itrs_to_gcrs([0.0, 0.0, 1.0], (60_000, 0.3), (60_000, 0.3008), npb);
         assert!(pole[2] > 0.9999 && pole[2] < 1.0); // precession since J2000 ≈ 0.2°
         let bad = Site {
             lat_deg: 91.0,

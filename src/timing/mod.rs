@@ -23,6 +23,7 @@ pub mod leap;
 mod spk;
 
 use std::fmt;
+use std::sync::Mutex;
 
 pub use csv_table::{CsvSummary, barycentre_csv};
 pub use ephemeris::Ephemeris;
@@ -31,7 +32,9 @@ pub use spk::SpkEphemeris;
 use crate::error::{Error, Result};
 use crate::obs::{Site, UtcEpoch};
 use crate::units::{SECONDS_PER_DAY, delay_to_infinity_s};
-use geometry::{C_KM_S, dot, itrs_to_gcrs, roemer_delay_s, shapiro_delay_s, source_direction};
+use geometry::{
+    C_KM_S, dot, itrs_to_gcrs, npb_matrix, roemer_delay_s, shapiro_delay_s, source_direction,
+};
 
 /// A TDB instant as an integer MJD plus seconds in `[0, 86400)` of that TDB day.
 #[derive(Debug, Clone, Copy, PartialEq, PartialOrd)]
@@ -114,13 +117,30 @@ pub struct BaryResult {
     pub warnings: Vec<TimingWarning>,
 }
 
+/// Precession–nutation is evaluated on a grid of 1/64 day: at most 11 min off, which
+/// moves the site vector by < 0.1 m (precession 50″/yr; the fastest nutation terms
+/// change by ~0.1″/day), and lets bursts of one observation share one matrix.
+const NPB_STEPS_PER_DAY: i64 = 64;
+
 /// Converts many times for one source and site: the site and source direction are
-/// prepared once.
-#[derive(Debug, Clone)]
+/// prepared once, and the last precession–nutation matrix is reused.
+#[derive(Debug)]
 pub struct Barycentrer {
     site_itrs_km: [f64; 3],
     direction: [f64; 3],
     ephemeris: Ephemeris,
+    npb_cache: Mutex<Option<(i64, [[f64; 3]; 3])>>,
+}
+
+impl Clone for Barycentrer {
+    fn clone(&self) -> Self {
+        Barycentrer {
+            site_itrs_km: self.site_itrs_km,
+            direction: self.direction,
+            ephemeris: self.ephemeris.clone(),
+            npb_cache: Mutex::new(None),
+        }
+    }
 }
 
 impl Barycentrer {
@@ -138,7 +158,23 @@ impl Barycentrer {
             site_itrs_km: geometry::site_itrs_km(site)?,
             direction: source_direction(ra_deg, dec_deg),
             ephemeris,
+            npb_cache: Mutex::new(None),
         })
+    }
+
+    /// The precession–nutation matrix at the grid point nearest TT `mjd + frac`.
+    fn npb_near(&self, mjd: i64, frac: f64) -> [[f64; 3]; 3] {
+        let key = mjd * NPB_STEPS_PER_DAY + (frac * NPB_STEPS_PER_DAY as f64).round() as i64;
+        let mut cache = self.npb_cache.lock().unwrap_or_else(|e| e.into_inner());
+        match *cache {
+            Some((k, npb)) if k == key => npb,
+            _ => {
+                let grid_frac = key.rem_euclid(NPB_STEPS_PER_DAY) as f64 / NPB_STEPS_PER_DAY as f64;
+                let npb = npb_matrix((key.div_euclid(NPB_STEPS_PER_DAY), grid_frac));
+                *cache = Some((key, npb));
+                npb
+            }
+        }
     }
 
     /// Converts one topocentric UTC arrival time.
@@ -171,7 +207,13 @@ impl Barycentrer {
 
         // UT1 ≈ UTC; a leap second's extra second is folded into the last day fraction.
         let ut1_frac = (utc.sec / SECONDS_PER_DAY).min(1.0);
-        let site_km = itrs_to_gcrs(self.site_itrs_km, (utc.mjd, ut1_frac), (tt.mjd, tt_frac));
+        let npb = self.npb_near(tt.mjd, tt_frac);
+        let site_km = itrs_to_gcrs(
+            self.site_itrs_km,
+            (utc.mjd, ut1_frac),
+            (tt.mjd, tt_frac),
+            npb,
+        );
         // Site term of TDB − TT (IERS Conventions 2010 eq. 10.6 leading term).
         let tdb_tt_site = dot(state.earth_vel_km_s, site_km) / (C_KM_S * C_KM_S);
         let tdb_minus_utc_s = tt_minus_utc + tdb_tt_geo + tdb_tt_site;

@@ -11,6 +11,7 @@
 
 use std::path::Path;
 
+use super::chebyshev::chebyshev_basis;
 use crate::error::{Error, Result};
 
 const RECORD_BYTES: usize = 1024;
@@ -43,16 +44,7 @@ impl Segment {
         let (mid, radius) = (rec[0], rec[1]);
         let n = (self.record_len - 2) / 3;
         let x = (et - mid) / radius;
-        let (mut t, mut dt) = (vec![0.0; n], vec![0.0; n]);
-        t[0] = 1.0;
-        if n > 1 {
-            t[1] = x;
-            dt[1] = 1.0;
-        }
-        for k in 2..n {
-            t[k] = 2.0 * x * t[k - 1] - t[k - 2];
-            dt[k] = 2.0 * t[k - 1] + 2.0 * x * dt[k - 1] - dt[k - 2];
-        }
+        let (t, dt) = chebyshev_basis(x, n);
         let series = |c: &[f64], b: &[f64]| c.iter().zip(b).map(|(a, b)| a * b).sum::<f64>();
         let pos = [0, 1, 2].map(|i| series(&rec[2 + i * n..2 + (i + 1) * n], &t));
         let vel = [0, 1, 2].map(|i| series(&rec[2 + i * n..2 + (i + 1) * n], &dt) / radius);
