@@ -63,6 +63,66 @@ fn excerpt_matches_jplephem_on_the_full_file() {
     ));
 }
 
+/// Rewrites a little-endian DAF as a big-endian one (as older JPL files are): 4-byte
+/// integers swapped in the file record and in segment summaries, every other 8-byte
+/// word swapped as a double. Text records are swapped too; they are never read.
+fn to_big_endian(mut daf: Vec<u8>) -> Vec<u8> {
+    let int_at = |d: &[u8], o: usize| i32::from_le_bytes(d[o..o + 4].try_into().unwrap());
+    let first_summary = int_at(&daf, 76) as usize;
+    assert_eq!(
+        int_at(&daf, 80) as usize,
+        first_summary,
+        "one summary record expected"
+    );
+    let n_summaries = f64::from_le_bytes(
+        daf[(first_summary - 1) * 1024 + 16..][..8]
+            .try_into()
+            .unwrap(),
+    ) as usize;
+    for o in [8, 12, 76, 80, 84] {
+        daf[o..o + 4].reverse();
+    }
+    daf[88..96].copy_from_slice(b"BIG-IEEE");
+    for record in 1..daf.len().div_ceil(1024) {
+        let base = record * 1024;
+        if record + 1 == first_summary {
+            for w in 0..3 + 2 * n_summaries {
+                let o = base
+                    + if w < 3 {
+                        8 * w
+                    } else {
+                        24 + 40 * ((w - 3) / 2) + 8 * ((w - 3) % 2)
+                    };
+                daf[o..o + 8].reverse();
+            }
+            for k in 0..6 * n_summaries {
+                let o = base + 24 + 40 * (k / 6) + 16 + 4 * (k % 6);
+                daf[o..o + 4].reverse();
+            }
+        } else {
+            let words = (daf.len() - base).min(1024) / 8; // the last record may be short
+            for w in 0..words {
+                daf[base + 8 * w..base + 8 * w + 8].reverse();
+            }
+        }
+    }
+    daf
+}
+
+#[test]
+fn big_endian_files_read_the_same() {
+    let path = "tests/fixtures/timing/de421_earth_2024jan_feb.bsp";
+    let little = SpkEphemeris::open(Path::new(path)).unwrap();
+    let dir = tempfile::tempdir().unwrap();
+    let big_path = dir.path().join("big.bsp");
+    std::fs::write(&big_path, to_big_endian(std::fs::read(path).unwrap())).unwrap();
+    let big = SpkEphemeris::open(&big_path).unwrap();
+    for day in [60_311, 60_330, 60_365] {
+        assert_eq!(little.earth_km(day, 0.37), big.earth_km(day, 0.37));
+        assert!(big.earth_km(day, 0.37).is_some());
+    }
+}
+
 #[test]
 fn not_an_spk_file_is_a_clear_error() {
     let dir = tempfile::tempdir().unwrap();

@@ -46,13 +46,11 @@ pub struct TdbEpoch {
 }
 
 impl TdbEpoch {
-    /// Builds an epoch, moving whole days out of `sec`.
+    /// Builds an epoch, moving whole days out of `sec` (TDB days are all 86400 s; the
+    /// normalisation is [`UtcEpoch::new`]'s).
     pub fn new(mjd: i64, sec: f64) -> Self {
-        let days = (sec / SECONDS_PER_DAY).floor();
-        TdbEpoch {
-            mjd: mjd + days as i64,
-            sec: sec - days * SECONDS_PER_DAY,
-        }
+        let UtcEpoch { mjd, sec } = UtcEpoch::new(mjd, sec);
+        TdbEpoch { mjd, sec }
     }
 
     /// Floating-point MJD (about 1 µs resolution near MJD 60000).

@@ -145,32 +145,26 @@ impl<'a> Daf<'a> {
         Ok(daf)
     }
 
-    fn int_at(&self, offset: usize) -> Result<i32, String> {
-        let b: [u8; 4] = self
+    /// `N` bytes at `offset`, in little-endian order whatever the file's order.
+    fn le_bytes<const N: usize>(&self, offset: usize) -> Result<[u8; N], String> {
+        let mut b: [u8; N] = self
             .bytes
-            .get(offset..offset + 4)
+            .get(offset..offset + N)
             .ok_or("file is truncated")?
             .try_into()
-            .expect("4 bytes");
-        Ok(if self.little {
-            i32::from_le_bytes(b)
-        } else {
-            i32::from_be_bytes(b)
-        })
+            .expect("N bytes");
+        if !self.little {
+            b.reverse();
+        }
+        Ok(b)
+    }
+
+    fn int_at(&self, offset: usize) -> Result<i32, String> {
+        self.le_bytes(offset).map(i32::from_le_bytes)
     }
 
     fn f64_at(&self, offset: usize) -> Result<f64, String> {
-        let b: [u8; 8] = self
-            .bytes
-            .get(offset..offset + 8)
-            .ok_or("file is truncated")?
-            .try_into()
-            .expect("8 bytes");
-        Ok(if self.little {
-            f64::from_le_bytes(b)
-        } else {
-            f64::from_be_bytes(b)
-        })
+        self.le_bytes(offset).map(f64::from_le_bytes)
     }
 
     /// Doubles at 1-based DAF word addresses `first..=last`.
