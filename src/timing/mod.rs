@@ -212,7 +212,7 @@ impl Barycentrer {
             (tt.mjd, tt_frac),
             npb,
         );
-        // Site term of TDB − TT (IERS Conventions 2010 eq. 10.6 leading term).
+        // Site term of TDB − TT, v⊕·(x − x⊕)/c² (IERS Conventions 2010 ch. 10).
         let tdb_tt_site = dot(state.earth_vel_km_s, site_km) / (C_KM_S * C_KM_S);
         let tdb_minus_utc_s = tt_minus_utc + tdb_tt_geo + tdb_tt_site;
 
