@@ -1,6 +1,7 @@
 //! Command-line front end: one file per subcommand, each parsing its flags into
 //! library calls. No science happens here.
 
+mod barycentre;
 mod inspect;
 mod simulate;
 
@@ -20,6 +21,8 @@ enum Command {
     Inspect(inspect::Args),
     /// Write a synthetic observation with known bursts and interference from a scenario file.
     Simulate(simulate::Args),
+    /// Convert topocentric UTC arrival times (CSV column mjd_utc) to barycentric TDB.
+    Barycentre(barycentre::Args),
 }
 
 /// Runs the chosen subcommand.
@@ -27,5 +30,6 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
     match cli.command {
         Command::Inspect(a) => inspect::run(a),
         Command::Simulate(a) => simulate::run(a),
+        Command::Barycentre(a) => barycentre::run(a),
     }
 }
