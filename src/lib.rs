@@ -9,10 +9,15 @@
 //! synthetic recordings for tests and demos.
 
 pub mod candidate;
+pub mod clean;
+pub mod cluster;
 pub mod dedisperse;
 pub mod error;
 pub mod obs;
 pub mod progress;
+pub mod robust;
+pub mod search;
+pub mod triage;
 pub mod units;
 
 pub use candidate::{Candidate, TriageFeatures, Verdict};
