@@ -2,6 +2,7 @@
 //! library calls. No science happens here.
 
 mod inspect;
+mod search;
 
 use clap::{Parser, Subcommand};
 
@@ -17,11 +18,14 @@ pub struct Cli {
 enum Command {
     /// Summarise an observation: header, duration, statistics, suspicious channels.
     Inspect(inspect::Args),
+    /// Search observations for dispersed pulses; write candidates.csv and candidates.json.
+    Search(search::Args),
 }
 
 /// Runs the chosen subcommand.
 pub fn run(cli: Cli) -> anyhow::Result<()> {
     match cli.command {
         Command::Inspect(a) => inspect::run(a),
+        Command::Search(a) => search::run(a),
     }
 }

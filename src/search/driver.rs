@@ -55,6 +55,8 @@ pub struct FileResult {
     pub n_detections: usize,
     /// Trial accounting and expected false alarms.
     pub trials: TrialCount,
+    /// How the recording was cut into blocks.
+    pub layout: BlockLayout,
 }
 
 /// Searches the recording at `path` (any format [`crate::obs::open`] reads).
@@ -85,7 +87,7 @@ pub fn search_source(
     let header = source.header().clone();
     header.validate().map_err(|m| Error::bad_input(label, m))?;
     let searcher = Searcher::new(header, config, label);
-    let geo = &searcher.geometry;
+    let geo = &searcher.layout;
     let mut reader = BlockReader::new(source, geo.block_len, geo.overlap)?;
     if let Some(pb) = progress {
         pb.set_length(searcher.header.n_samples);
@@ -105,15 +107,36 @@ pub fn search_source(
     Ok(searcher.finish(totals))
 }
 
-/// Sizes of the block layout, in input samples.
-#[derive(Debug, Clone)]
-struct Geometry {
-    max_delay: usize,
-    max_width: usize,
-    margin: usize,
-    overlap: usize,
-    block_len: usize,
-    baseline_len: usize,
+/// How a recording is cut into blocks (all in input samples; see the module docs).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct BlockLayout {
+    /// Largest dispersion delay across the band over all trials (D).
+    pub max_delay: usize,
+    /// Widest boxcar (W).
+    pub max_width: usize,
+    /// Margin for an event's extent around its peak (M).
+    pub margin: usize,
+    /// Rows shared by consecutive blocks, D + W + 2M.
+    pub overlap: usize,
+    /// Rows per block, overlap included.
+    pub block_len: usize,
+    /// Running-baseline window.
+    pub baseline_len: usize,
+}
+
+impl BlockLayout {
+    /// The boxcar starts owned by a block of `n_time` rows starting at `start`, as a
+    /// half-open range; `first` and `last` extend it to the file's ends.
+    pub fn owned_range(&self, start: u64, n_time: usize, first: bool, last: bool) -> (u64, u64) {
+        let lo = if first { 0 } else { start + self.margin as u64 };
+        let hi = if last {
+            u64::MAX
+        } else {
+            (start + n_time as u64)
+                .saturating_sub((self.max_delay + self.max_width + self.margin) as u64)
+        };
+        (lo, hi)
+    }
 }
 
 struct Searcher<'a> {
@@ -125,7 +148,7 @@ struct Searcher<'a> {
     widths: Vec<Vec<usize>>,
     dm_offsets: Vec<usize>,
     static_mask: Vec<bool>,
-    geometry: Geometry,
+    layout: BlockLayout,
 }
 
 /// What one block contributed.
@@ -178,7 +201,7 @@ impl<'a> Searcher<'a> {
         let margin = max_width + 2 * max_ds;
         let overlap = max_delay + max_width + 2 * margin;
         let advance = ((config.block_s / header.tsamp_s).ceil() as usize).max(overlap);
-        let geometry = Geometry {
+        let layout = BlockLayout {
             max_delay,
             max_width,
             margin,
@@ -204,26 +227,12 @@ impl<'a> Searcher<'a> {
             widths,
             dm_offsets,
             static_mask,
-            geometry,
+            layout,
         }
     }
 
-    /// The half-open range of boxcar start samples this block owns.
-    fn owned_range(&self, block: &Block, first: bool, last: bool) -> (u64, u64) {
-        let g = &self.geometry;
-        let start = block.start_sample;
-        let lo = if first { 0 } else { start + g.margin as u64 };
-        let hi = if last {
-            u64::MAX
-        } else {
-            (start + block.n_time() as u64)
-                .saturating_sub((g.max_delay + g.max_width + g.margin) as u64)
-        };
-        (lo, hi)
-    }
-
     fn block(&self, block: &Block, first: bool, last: bool) -> BlockOutcome {
-        let g = &self.geometry;
+        let g = &self.layout;
         let cfg = &self.config.clean;
         let raw = block.view();
         let n_time = block.n_time();
@@ -254,7 +263,7 @@ impl<'a> Searcher<'a> {
             outs: &outs,
             block_start: block.start_sample,
         };
-        let (own_lo, own_hi) = self.owned_range(block, first, last);
+        let (own_lo, own_hi) = g.owned_range(block.start_sample, n_time, first, last);
         let used_bw = (n_chan - n_masked) as f64 * self.header.chan_bw_mhz;
         let time_link = (self.config.cluster.time_link_s / self.header.tsamp_s).round() as u64;
         let candidates =
@@ -293,7 +302,7 @@ impl<'a> Searcher<'a> {
                 continue;
             }
             let widths = &self.widths[si];
-            let baseline = (self.geometry.baseline_len / ds).max(1);
+            let baseline = (self.layout.baseline_len / ds).max(1);
             let dms = &step.dms;
             let offset = self.dm_offsets[si];
             let found: Vec<Detection> = step
@@ -333,7 +342,7 @@ impl<'a> Searcher<'a> {
                 *s += v;
             }
         }
-        normalise_series(&mut dm0, self.geometry.baseline_len, &mut Vec::new());
+        normalise_series(&mut dm0, self.layout.baseline_len, &mut Vec::new());
         dm0
     }
 
@@ -397,6 +406,7 @@ impl<'a> Searcher<'a> {
             n_blocks: totals.n_blocks,
             n_detections: totals.n_detections,
             trials,
+            layout: self.layout,
         }
     }
 }

@@ -13,9 +13,10 @@ mod driver;
 mod features;
 pub mod fluence;
 pub mod normalise;
+pub mod output;
 mod plan;
 pub mod trials;
 
 pub use config::{ClusterConfig, SearchConfig, TriageConfig};
-pub use driver::{FileResult, search_file, search_source};
+pub use driver::{BlockLayout, FileResult, search_file, search_source};
 pub use trials::TrialCount;
