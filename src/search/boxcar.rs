@@ -48,10 +48,10 @@ pub fn boxcar_sums(prefix: &[f64], w: usize, out: &mut Vec<f32>) {
     out.extend((0..=n - w).map(|t| (prefix[t + w] - prefix[t]) as f32));
 }
 
-/// Robust location and scale of a width's boxcar sums, from at most about 4096 of
+/// Robust location and scale of a width's boxcar sums, from at most about 2048 of
 /// them (evenly strided) to bound the cost.
 fn noise_of(sums: &[f32], scratch: &mut Vec<f32>) -> (f32, f32) {
-    median_sigma(sums, (sums.len() / 4096).max(1), scratch)
+    median_sigma(sums, (sums.len() / 2048).max(1), scratch)
 }
 
 /// One above-threshold peak of one series: the best start in a run of consecutive
