@@ -3,14 +3,17 @@
 //! keep each event exactly once.
 //!
 //! Block geometry (input samples): D = largest dispersion delay, W = widest boxcar,
-//! M = W + 2·(largest downsampling) a margin for an event's extent. Blocks overlap by
-//! D + W + 2M. A block finds detections wherever its data are complete, clusters
-//! them, and reports a cluster only if its best boxcar starts in the block's own range
-//! `[start + M, start + n − D − W − M)` (from the file start for the first block, to
-//! the file end for the last). These ranges tile the file without gaps or overlaps, and
-//! a cluster owned by a block lies entirely inside that block's complete data as long
-//! as it extends less than M around its peak. Memory is set by the block length, not
-//! the file length.
+//! M = W + 2·(largest downsampling), a margin for an event's extent around its peak.
+//! Blocks overlap by 2D + W + 2M. A block finds detections wherever its data are
+//! complete, clusters them, and reports a cluster only if its best boxcar starts in the
+//! block's own range `[start + D + M, start + n − D − W − M)` (from the file start for
+//! the first block, to the file end for the last). These ranges tile the file without
+//! gaps or overlaps. The leading D + M samples are not owned because a pulse that
+//! reached the top of the band before the block began leaves its low-frequency tail in
+//! the first D samples, where it can pass for a pulse at a lower DM; the block before
+//! sees that pulse whole. A cluster owned by a block lies entirely inside the block's
+//! complete data as long as it extends less than M around its peak. Memory is set by
+//! the block length, not the file length.
 
 use std::path::Path;
 
@@ -107,6 +110,15 @@ pub fn search_source(
     Ok(searcher.finish(totals))
 }
 
+/// The block layout a search of a recording with `header` would use.
+///
+/// # Errors
+/// An invalid configuration.
+pub fn block_layout(header: &Header, config: &SearchConfig) -> Result<BlockLayout> {
+    config.validate()?;
+    Ok(Searcher::new(header.clone(), config, "").layout)
+}
+
 /// How a recording is cut into blocks (all in input samples; see the module docs).
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct BlockLayout {
@@ -116,7 +128,7 @@ pub struct BlockLayout {
     pub max_width: usize,
     /// Margin for an event's extent around its peak (M).
     pub margin: usize,
-    /// Rows shared by consecutive blocks, D + W + 2M.
+    /// Rows shared by consecutive blocks, 2D + W + 2M.
     pub overlap: usize,
     /// Rows per block, overlap included.
     pub block_len: usize,
@@ -128,7 +140,11 @@ impl BlockLayout {
     /// The boxcar starts owned by a block of `n_time` rows starting at `start`, as a
     /// half-open range; `first` and `last` extend it to the file's ends.
     pub fn owned_range(&self, start: u64, n_time: usize, first: bool, last: bool) -> (u64, u64) {
-        let lo = if first { 0 } else { start + self.margin as u64 };
+        let lo = if first {
+            0
+        } else {
+            start + (self.max_delay + self.margin) as u64
+        };
         let hi = if last {
             u64::MAX
         } else {
@@ -199,7 +215,7 @@ impl<'a> Searcher<'a> {
             .unwrap_or(1);
         let max_delay = plan.max_delay_samples();
         let margin = max_width + 2 * max_ds;
-        let overlap = max_delay + max_width + 2 * margin;
+        let overlap = 2 * max_delay + max_width + 2 * margin;
         let advance = ((config.block_s / header.tsamp_s).ceil() as usize).max(overlap);
         let layout = BlockLayout {
             max_delay,

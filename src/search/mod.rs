@@ -18,5 +18,5 @@ mod plan;
 pub mod trials;
 
 pub use config::{ClusterConfig, SearchConfig, TriageConfig};
-pub use driver::{BlockLayout, FileResult, search_file, search_source};
+pub use driver::{BlockLayout, FileResult, block_layout, search_file, search_source};
 pub use trials::TrialCount;

@@ -21,7 +21,18 @@ pub fn noise_sigma() -> f32 {
 
 /// `n_chan` channels filling 1200–1600 MHz, descending, `tsamp_s` sampling.
 pub fn header(n_chan: usize, n_samples: u64, tsamp_s: f64) -> Header {
-    let bw = 400.0 / n_chan as f64;
+    header_band(n_chan, n_samples, tsamp_s, 1200.0, 1600.0)
+}
+
+/// `n_chan` channels filling `f_lo_mhz`–`f_hi_mhz`, descending, `tsamp_s` sampling.
+pub fn header_band(
+    n_chan: usize,
+    n_samples: u64,
+    tsamp_s: f64,
+    f_lo_mhz: f64,
+    f_hi_mhz: f64,
+) -> Header {
+    let bw = (f_hi_mhz - f_lo_mhz) / n_chan as f64;
     Header {
         source: "Test field".into(),
         telescope: "Imaginary Dish".into(),
@@ -36,7 +47,7 @@ pub fn header(n_chan: usize, n_samples: u64, tsamp_s: f64) -> Header {
         start: UtcEpoch::new(60500, 3600.0),
         tsamp_s,
         freqs_mhz: (0..n_chan)
-            .map(|i| 1600.0 - bw * (i as f64 + 0.5))
+            .map(|i| f_hi_mhz - bw * (i as f64 + 0.5))
             .collect(),
         chan_bw_mhz: bw,
         weights: vec![1.0; n_chan],
