@@ -17,6 +17,7 @@ pub mod obs;
 pub mod progress;
 pub mod robust;
 pub mod search;
+pub mod simulate;
 pub mod triage;
 pub mod units;
 

@@ -3,6 +3,7 @@
 
 mod inspect;
 mod search;
+mod simulate;
 
 use clap::{Parser, Subcommand};
 
@@ -20,6 +21,8 @@ enum Command {
     Inspect(inspect::Args),
     /// Search observations for dispersed pulses; write candidates.csv and candidates.json.
     Search(search::Args),
+    /// Write a synthetic observation with known bursts and interference from a scenario file.
+    Simulate(simulate::Args),
 }
 
 /// Runs the chosen subcommand.
@@ -27,5 +30,6 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
     match cli.command {
         Command::Inspect(a) => inspect::run(a),
         Command::Search(a) => search::run(a),
+        Command::Simulate(a) => simulate::run(a),
     }
 }
