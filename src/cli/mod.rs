@@ -3,6 +3,7 @@
 
 mod barycentre;
 mod inspect;
+mod search;
 mod simulate;
 
 use clap::{Parser, Subcommand};
@@ -19,6 +20,8 @@ pub struct Cli {
 enum Command {
     /// Summarise an observation: header, duration, statistics, suspicious channels.
     Inspect(inspect::Args),
+    /// Search observations for dispersed pulses; write candidates.csv and candidates.json.
+    Search(search::Args),
     /// Write a synthetic observation with known bursts and interference from a scenario file.
     Simulate(simulate::Args),
     /// Convert topocentric UTC arrival times (CSV column mjd_utc) to barycentric TDB.
@@ -29,6 +32,7 @@ enum Command {
 pub fn run(cli: Cli) -> anyhow::Result<()> {
     match cli.command {
         Command::Inspect(a) => inspect::run(a),
+        Command::Search(a) => search::run(a),
         Command::Simulate(a) => simulate::run(a),
         Command::Barycentre(a) => barycentre::run(a),
     }
