@@ -9,6 +9,7 @@
 //! synthetic recordings for tests and demos.
 
 pub mod candidate;
+pub mod catalogue;
 pub mod dedisperse;
 pub mod error;
 pub mod obs;
