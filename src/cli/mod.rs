@@ -1,6 +1,7 @@
 //! Command-line front end: one file per subcommand, each parsing its flags into
 //! library calls. No science happens here.
 
+mod book;
 mod inspect;
 
 use clap::{Parser, Subcommand};
@@ -17,11 +18,14 @@ pub struct Cli {
 enum Command {
     /// Summarise an observation: header, duration, statistics, suspicious channels.
     Inspect(inspect::Args),
+    /// The burst catalogue: query, label, promote, sources, exposure, summary, VOEvent.
+    Book(book::Args),
 }
 
 /// Runs the chosen subcommand.
 pub fn run(cli: Cli) -> anyhow::Result<()> {
     match cli.command {
         Command::Inspect(a) => inspect::run(a),
+        Command::Book(a) => book::run(a),
     }
 }
