@@ -28,7 +28,7 @@ pub use exposure::{ExposureInterval, exposure_hours, merge_intervals};
 pub use query::{BurstFilter, BurstRow, CandidateFilter, CandidateRow};
 pub use record::{ObservationRecord, RecordOutcome, RunRecord, config_hash, content_hash};
 pub use review::{AssignTolerance, Label, Promotion};
-pub use schema::SCHEMA_VERSION;
+pub use schema::{APPLICATION_ID, SCHEMA_VERSION};
 pub use sources::SourceRecord;
 pub use summary::{PoissonInterval, SourceSummary, poisson_interval};
 pub use voevent::{BurstPacket, VoEventOptions, mjd_to_iso, voevent_xml};
@@ -46,26 +46,34 @@ pub const DEFAULT_FILE_NAME: &str = "burstbook.sqlite";
 /// Environment variable naming the catalogue file.
 pub const ENV_VAR: &str = "BURSTBOOK_CATALOGUE";
 
-/// How long one statement waits for another writer before SQLite reports busy.
-const BUSY_TIMEOUT: Duration = Duration::from_secs(10);
-
-/// How many times a whole write transaction is retried when the database stays busy.
-const WRITE_ATTEMPTS: u32 = 6;
+/// How long a writer waits for another writer by default.
+pub const DEFAULT_LOCK_WAIT: Duration = Duration::from_secs(10);
 
 /// An open catalogue. One connection; open one per thread or process.
 pub struct Catalogue {
     conn: Connection,
     path: PathBuf,
+    lock_wait: Duration,
 }
 
 impl Catalogue {
-    /// Opens (creating if absent) the catalogue at `path` and upgrades its schema.
+    /// Opens (creating if absent) the catalogue at `path` and upgrades its schema,
+    /// waiting up to [`DEFAULT_LOCK_WAIT`] for other writers.
     ///
     /// # Errors
     /// [`Error::Catalogue`] with a one-line reason when the file is not an SQLite
     /// database, belongs to another program, was written by a newer burstbook,
-    /// stays locked, or cannot be created or written where it lies.
+    /// stays locked, or cannot be created or written where it lies. A refused file
+    /// is left exactly as it was.
     pub fn open(path: &Path) -> Result<Catalogue> {
+        Catalogue::open_with_lock_wait(path, DEFAULT_LOCK_WAIT)
+    }
+
+    /// [`Catalogue::open`] with a chosen wait for other writers.
+    ///
+    /// # Errors
+    /// As [`Catalogue::open`].
+    pub fn open_with_lock_wait(path: &Path, lock_wait: Duration) -> Result<Catalogue> {
         check_sqlite_magic(path)?;
         let flags = OpenFlags::SQLITE_OPEN_READ_WRITE
             | OpenFlags::SQLITE_OPEN_CREATE
@@ -74,10 +82,20 @@ impl Catalogue {
         let mut cat = Catalogue {
             conn,
             path: path.to_path_buf(),
+            lock_wait,
         };
         cat.conn
-            .busy_timeout(BUSY_TIMEOUT)
+            .busy_timeout(lock_wait)
             .map_err(|e| sql_error(path, e))?;
+        if cat
+            .conn
+            .is_readonly(rusqlite::MAIN_DB)
+            .map_err(|e| sql_error(path, e))?
+        {
+            return Err(catalogue_error(path, READ_ONLY_MSG));
+        }
+        // Identify the file before anything (even the journal mode) is changed.
+        schema::check_identity(&cat)?;
         cat.configure()?;
         schema::upgrade(&mut cat)?;
         Ok(cat)
@@ -102,8 +120,8 @@ impl Catalogue {
 
     /// WAL journal (readers never block the writer), foreign keys on.
     fn configure(&mut self) -> Result<()> {
-        let path = self.path.clone();
-        retry_busy(&path, || {
+        let (path, wait) = (self.path.clone(), self.lock_wait);
+        retry_busy(&path, wait, || {
             let mode: String =
                 self.conn
                     .pragma_update_and_check(None, "journal_mode", "WAL", |r| r.get(0))?;
@@ -123,6 +141,7 @@ impl Catalogue {
         &mut self,
         mut work: impl FnMut(&Transaction<'_>) -> Result<T>,
     ) -> Result<T> {
+        let start = std::time::Instant::now();
         let mut attempt = 0;
         loop {
             attempt += 1;
@@ -136,8 +155,8 @@ impl Catalogue {
                 Ok(value)
             })();
             match result {
-                Err(e) if is_busy_error(&e) && attempt < WRITE_ATTEMPTS => {
-                    std::thread::sleep(Duration::from_millis(50 * u64::from(attempt)));
+                Err(e) if is_busy_error(&e) && start.elapsed() < self.lock_wait => {
+                    std::thread::sleep(backoff(attempt));
                 }
                 other => return other,
             }
@@ -207,8 +226,18 @@ fn log_once_non_wal(path: &Path, mode: &str) {
     );
 }
 
-/// Retries an SQLite call while it reports busy/locked.
-fn retry_busy<T>(path: &Path, mut f: impl FnMut() -> rusqlite::Result<T>) -> Result<T> {
+/// Pause before retry `attempt` (1-based): 20, 40, ... ms, at most 500 ms.
+fn backoff(attempt: u32) -> Duration {
+    Duration::from_millis((20 * u64::from(attempt)).min(500))
+}
+
+/// Retries an SQLite call while it reports busy/locked, for at most `wait`.
+fn retry_busy<T>(
+    path: &Path,
+    wait: Duration,
+    mut f: impl FnMut() -> rusqlite::Result<T>,
+) -> Result<T> {
+    let start = std::time::Instant::now();
     let mut attempt = 0;
     loop {
         attempt += 1;
@@ -217,9 +246,9 @@ fn retry_busy<T>(path: &Path, mut f: impl FnMut() -> rusqlite::Result<T>) -> Res
                 if matches!(
                     e.sqlite_error_code(),
                     Some(ErrorCode::DatabaseBusy | ErrorCode::DatabaseLocked)
-                ) && attempt < WRITE_ATTEMPTS =>
+                ) && start.elapsed() < wait =>
             {
-                std::thread::sleep(Duration::from_millis(50 * u64::from(attempt)));
+                std::thread::sleep(backoff(attempt));
             }
             other => return other.map_err(|e| sql_error(path, e)),
         }
@@ -232,6 +261,7 @@ fn is_busy_error(e: &Error) -> bool {
 }
 
 const LOCKED_MSG: &str = "is locked by another process";
+const READ_ONLY_MSG: &str = "is read-only here (file or directory not writable, or a read-only file system); nothing was changed";
 
 pub(crate) fn catalogue_error(path: &Path, msg: impl Into<String>) -> Error {
     Error::Catalogue {
@@ -247,13 +277,10 @@ pub(crate) fn sql_error(path: &Path, e: rusqlite::Error) -> Error {
             "is not an SQLite database (corrupt, or another kind of file)".to_string()
         }
         Some(ErrorCode::DatabaseCorrupt) => "is corrupt (SQLite reports a malformed file)".into(),
-        Some(ErrorCode::DatabaseBusy | ErrorCode::DatabaseLocked) => format!(
-            "{LOCKED_MSG} (waited {} s); try again when it has finished",
-            BUSY_TIMEOUT.as_secs()
-        ),
-        Some(ErrorCode::ReadOnly) => {
-            "is read-only here (file or directory not writable, or a read-only file system)".into()
+        Some(ErrorCode::DatabaseBusy | ErrorCode::DatabaseLocked) => {
+            format!("{LOCKED_MSG}; nothing was changed, try again when it has finished")
         }
+        Some(ErrorCode::ReadOnly) => READ_ONLY_MSG.into(),
         Some(ErrorCode::CannotOpen) => {
             "cannot be opened or created (missing or unwritable directory?)".into()
         }

@@ -9,7 +9,7 @@ use crate::candidate::{Candidate, TriageFeatures, Verdict};
 use crate::error::Result;
 
 /// Which candidates to return; `None` / empty means "any".
-#[derive(Debug, Clone, Default)]
+#[derive(Debug, Clone, Default, PartialEq)]
 pub struct CandidateFilter {
     /// Source name as written in the observation header.
     pub source: Option<String>,

@@ -19,12 +19,11 @@ pub(crate) const MIGRATIONS: &[&str] = &[
 pub const SCHEMA_VERSION: i64 = MIGRATIONS.len() as i64;
 
 /// `PRAGMA application_id` of a burstbook catalogue: ASCII "BbCt".
-const APPLICATION_ID: i64 = 0x4262_4374;
+pub const APPLICATION_ID: i64 = 0x4262_4374;
 
 /// Brings the catalogue to [`SCHEMA_VERSION`], refusing foreign or newer files.
 pub(crate) fn upgrade(cat: &mut Catalogue) -> Result<()> {
-    let (version, app_id, n_tables) = read_identity(cat)?;
-    check_identity(cat, version, app_id, n_tables)?;
+    let (version, _, _) = read_identity(cat)?;
     if version == SCHEMA_VERSION {
         return Ok(());
     }
@@ -78,7 +77,9 @@ fn read_identity(cat: &Catalogue) -> Result<(i64, i64, i64)> {
     Ok((version, app_id, n_tables))
 }
 
-fn check_identity(cat: &Catalogue, version: i64, app_id: i64, n_tables: i64) -> Result<()> {
+/// Refuses a foreign SQLite file or one from a newer burstbook; reads only.
+pub(crate) fn check_identity(cat: &Catalogue) -> Result<()> {
+    let (version, app_id, n_tables) = read_identity(cat)?;
     let fresh = version == 0 && app_id == 0 && n_tables == 0;
     if !fresh && app_id != APPLICATION_ID {
         return Err(catalogue_error(

@@ -23,7 +23,9 @@ Example:
         file: PathBuf,
     },
     /// Export intervals in the import format.
-    #[command(after_help = "Example:\n  burstbook book exposure export --source FIELD-7 --out field7-exposure.csv")]
+    #[command(
+        after_help = "Example:\n  burstbook book exposure export --source FIELD-7 --out field7-exposure.csv"
+    )]
     Export {
         /// Only this source.
         #[arg(long)]
@@ -37,7 +39,8 @@ Example:
 pub fn run(cat: &mut Catalogue, c: ExposureCommand) -> anyhow::Result<()> {
     match c {
         ExposureCommand::Import { file } => {
-            let f = std::fs::File::open(&file).with_context(|| format!("opening {}", file.display()))?;
+            let f = std::fs::File::open(&file)
+                .with_context(|| format!("opening {}", file.display()))?;
             let (added, present) = cat.import_exposure_csv(&file, std::io::BufReader::new(f))?;
             println!("imported {added} interval(s); {present} already present");
             Ok(())

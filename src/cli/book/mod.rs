@@ -28,6 +28,9 @@ pub struct Args {
     /// Catalogue file [default: $BURSTBOOK_CATALOGUE, else ./burstbook.sqlite].
     #[arg(long, global = true, value_name = "PATH")]
     catalogue: Option<PathBuf>,
+    /// Seconds to wait for another process writing the catalogue before giving up.
+    #[arg(long, global = true, default_value_t = 10.0, value_name = "SECONDS")]
+    lock_wait: f64,
     #[command(subcommand)]
     command: Command,
 }
@@ -62,7 +65,9 @@ enum Command {
 pub fn run(args: Args) -> anyhow::Result<()> {
     let path = Catalogue::resolve_path(args.catalogue.as_deref());
     // The library's errors already name the catalogue file.
-    let open = || Catalogue::open(&path);
+    let wait = std::time::Duration::try_from_secs_f64(args.lock_wait)
+        .map_err(|_| anyhow::anyhow!("--lock-wait must be a non-negative number of seconds"))?;
+    let open = || Catalogue::open_with_lock_wait(&path, wait);
     match args.command {
         Command::Candidates(a) => query::candidates(&open()?, a),
         Command::Bursts(a) => query::bursts(&open()?, a),

@@ -3,7 +3,7 @@
 use std::path::PathBuf;
 
 use burstbook::Verdict;
-use burstbook::catalogue::{BurstFilter, Catalogue, CandidateFilter};
+use burstbook::catalogue::{BurstFilter, CandidateFilter, Catalogue};
 
 use super::output::{Format, opt, sink, write_rows};
 
@@ -83,12 +83,31 @@ pub struct CandidatesArgs {
     out: Option<PathBuf>,
 }
 
-const CANDIDATE_TABLE: &[&str] =
-    &["id", "source", "mjd_inf", "dm", "snr", "width_ms", "verdict", "label", "burst"];
+const CANDIDATE_TABLE: &[&str] = &[
+    "id", "source", "mjd_inf", "dm", "snr", "width_ms", "verdict", "label", "burst",
+];
 const CANDIDATE_CSV: &[&str] = &[
-    "id", "run_id", "source", "label", "burst_id", "file", "t_inf_s", "mjd_inf", "dm", "dm_lo",
-    "dm_hi", "width_ms", "snr", "cluster_size", "verdict", "reasons", "snr_dm0_ratio",
-    "dm_curve_misfit", "band_fraction", "modulation_index", "fluence_jy_ms",
+    "id",
+    "run_id",
+    "source",
+    "label",
+    "burst_id",
+    "file",
+    "t_inf_s",
+    "mjd_inf",
+    "dm",
+    "dm_lo",
+    "dm_hi",
+    "width_ms",
+    "snr",
+    "cluster_size",
+    "verdict",
+    "reasons",
+    "snr_dm0_ratio",
+    "dm_curve_misfit",
+    "band_fraction",
+    "modulation_index",
+    "fluence_jy_ms",
 ];
 
 pub fn candidates(cat: &Catalogue, a: CandidatesArgs) -> anyhow::Result<()> {
@@ -174,8 +193,17 @@ pub struct BurstsArgs {
 }
 
 const BURST_COLUMNS: &[&str] = &[
-    "id", "candidate_id", "source", "mjd_utc", "toa_tdb_mjd", "dm", "snr", "width_ms",
-    "fluence_jy_ms", "site", "file",
+    "id",
+    "candidate_id",
+    "source",
+    "mjd_utc",
+    "toa_tdb_mjd",
+    "dm",
+    "snr",
+    "width_ms",
+    "fluence_jy_ms",
+    "site",
+    "file",
 ];
 
 pub fn bursts(cat: &Catalogue, a: BurstsArgs) -> anyhow::Result<()> {
@@ -188,8 +216,20 @@ pub fn bursts(cat: &Catalogue, a: BurstsArgs) -> anyhow::Result<()> {
         mjd_max: a.mjd_max,
     })?;
     let table = a.format == Format::Table;
-    let num = |v: f64, digits: usize| if table { format!("{v:.digits$}") } else { v.to_string() };
-    let onum = |v: Option<f64>, digits: usize| if table { opt(v, digits) } else { v.map(|x| x.to_string()).unwrap_or_default() };
+    let num = |v: f64, digits: usize| {
+        if table {
+            format!("{v:.digits$}")
+        } else {
+            v.to_string()
+        }
+    };
+    let onum = |v: Option<f64>, digits: usize| {
+        if table {
+            opt(v, digits)
+        } else {
+            v.map(|x| x.to_string()).unwrap_or_default()
+        }
+    };
     write_rows(&mut sink(&a.out)?, a.format, BURST_COLUMNS, &rows, |b| {
         vec![
             b.id.to_string(),

@@ -14,7 +14,11 @@ fn select(cat: &Catalogue, ids: &[i64], filter: &FilterArgs) -> anyhow::Result<V
     if !ids.is_empty() && filter.is_empty() {
         return Ok(ids.to_vec());
     }
-    Ok(cat.candidates(&filter.to_filter(ids))?.iter().map(|r| r.id).collect())
+    Ok(cat
+        .candidates(&filter.to_filter(ids))?
+        .iter()
+        .map(|r| r.id)
+        .collect())
 }
 
 /// Arguments of `book label`.
@@ -63,16 +67,28 @@ pub struct HistoryArgs {
 
 pub fn history(cat: &Catalogue, a: HistoryArgs) -> anyhow::Result<()> {
     let rows = cat.label_history(a.id)?;
-    let headers = ["candidate_id", "label", "reviewer", "labelled_utc", "comment"];
-    write_rows(&mut std::io::stdout().lock(), a.format, &headers, &rows, |l| {
-        vec![
-            l.candidate_id.to_string(),
-            l.label.clone(),
-            l.reviewer.clone(),
-            l.labelled_utc.clone(),
-            l.comment.clone(),
-        ]
-    })
+    let headers = [
+        "candidate_id",
+        "label",
+        "reviewer",
+        "labelled_utc",
+        "comment",
+    ];
+    write_rows(
+        &mut std::io::stdout().lock(),
+        a.format,
+        &headers,
+        &rows,
+        |l| {
+            vec![
+                l.candidate_id.to_string(),
+                l.label.clone(),
+                l.reviewer.clone(),
+                l.labelled_utc.clone(),
+                l.comment.clone(),
+            ]
+        },
+    )
 }
 
 /// Arguments of `book promote`.
@@ -103,7 +119,10 @@ pub struct PromoteArgs {
 
 pub fn promote(cat: &mut Catalogue, a: PromoteArgs) -> anyhow::Result<()> {
     let ids = select(cat, &a.ids, &a.filter)?;
-    let tol = AssignTolerance { radius_deg: a.radius_deg, dm: a.dm_tol };
+    let tol = AssignTolerance {
+        radius_deg: a.radius_deg,
+        dm: a.dm_tol,
+    };
     for id in ids {
         let p = cat.promote(id, a.to.as_deref(), tol)?;
         let what = if p.new { "is now" } else { "already was" };

@@ -39,21 +39,35 @@ pub fn run(cat: &Catalogue, a: SummaryArgs) -> anyhow::Result<()> {
         .map(|n| cat.summary(n, a.snr_min, a.confidence))
         .collect::<Result<Vec<_>, _>>()?;
     let headers = [
-        "source", "bursts", "exposure_h", "rate_per_h", "rate_lo_per_h", "rate_hi_per_h",
-        "fluence_min_jy_ms", "fluence_max_jy_ms", "dm_mean", "dm_std",
+        "source",
+        "bursts",
+        "exposure_h",
+        "rate_per_h",
+        "rate_lo_per_h",
+        "rate_hi_per_h",
+        "fluence_min_jy_ms",
+        "fluence_max_jy_ms",
+        "dm_mean",
+        "dm_std",
     ];
-    write_rows(&mut std::io::stdout().lock(), a.format, &headers, &rows, |s| {
-        vec![
-            s.source.clone(),
-            s.n_bursts.to_string(),
-            format!("{:.3}", s.exposure_hours),
-            opt(s.rate_per_hour, 4),
-            opt(s.rate_interval_per_hour.map(|r| r.lower), 4),
-            opt(s.rate_interval_per_hour.map(|r| r.upper), 4),
-            opt(s.fluence_range_jy_ms.map(|r| r.0), 3),
-            opt(s.fluence_range_jy_ms.map(|r| r.1), 3),
-            opt(s.dm_mean, 2),
-            opt(s.dm_std, 2),
-        ]
-    })
+    write_rows(
+        &mut std::io::stdout().lock(),
+        a.format,
+        &headers,
+        &rows,
+        |s| {
+            vec![
+                s.source.clone(),
+                s.n_bursts.to_string(),
+                format!("{:.3}", s.exposure_hours),
+                opt(s.rate_per_hour, 4),
+                opt(s.rate_interval_per_hour.map(|r| r.lower), 4),
+                opt(s.rate_interval_per_hour.map(|r| r.upper), 4),
+                opt(s.fluence_range_jy_ms.map(|r| r.0), 3),
+                opt(s.fluence_range_jy_ms.map(|r| r.1), 3),
+                opt(s.dm_mean, 2),
+                opt(s.dm_std, 2),
+            ]
+        },
+    )
 }

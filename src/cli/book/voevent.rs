@@ -37,7 +37,10 @@ pub fn run(cat: &Catalogue, a: VoeventArgs) -> anyhow::Result<()> {
     let packet = cat.burst_packet(a.burst)?;
     let opt = VoEventOptions {
         ivorn_root: a.ivorn_root,
-        contact: a.contact.or_else(|| std::env::var("USER").ok()).unwrap_or_else(|| "unknown".into()),
+        contact: a
+            .contact
+            .or_else(|| std::env::var("USER").ok())
+            .unwrap_or_else(|| "unknown".into()),
         position_error_deg: a.position_error_deg,
         role: a.role,
     };
