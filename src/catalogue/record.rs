@@ -113,8 +113,10 @@ pub fn config_hash(config_json: &str) -> Result<String> {
 
 /// Hex SHA-256 of an observation's bytes, read in 1 MiB pieces.
 ///
-/// For a native observation (`NAME.json` + `NAME.npy`) both files are hashed:
-/// each contributes its length as 8 little-endian bytes, then its bytes.
+/// For a native observation (JSON header + `.npy` samples) both files are hashed:
+/// each contributes its length as 8 little-endian bytes, then its bytes. The
+/// samples file is the header's `data` entry (relative to the header), else
+/// `NAME.npy`.
 ///
 /// # Errors
 /// A file cannot be read.
@@ -123,11 +125,22 @@ pub fn content_hash(path: &Path) -> Result<String> {
     match Container::detect(path) {
         Ok(Container::Native) => {
             hash_file(&mut hasher, path, true)?;
-            hash_file(&mut hasher, &path.with_extension("npy"), true)?;
+            hash_file(&mut hasher, &native_data_path(path)?, true)?;
         }
         _ => hash_file(&mut hasher, path, false)?,
     }
     Ok(hex(&hasher.finalize()))
+}
+
+/// The samples file a native JSON header points at.
+fn native_data_path(header_path: &Path) -> Result<std::path::PathBuf> {
+    let text = std::fs::read_to_string(header_path).map_err(|e| Error::io(header_path, e))?;
+    let json: serde_json::Value = serde_json::from_str(&text)
+        .map_err(|e| Error::bad_input(header_path, format!("bad JSON header: {e}")))?;
+    Ok(match json.get("data").and_then(|d| d.as_str()) {
+        Some(name) => header_path.parent().unwrap_or(Path::new("")).join(name),
+        None => header_path.with_extension("npy"),
+    })
 }
 
 fn hash_file(hasher: &mut Sha256, path: &Path, length_prefix: bool) -> Result<()> {
@@ -348,6 +361,13 @@ mod tests {
         let h1 = content_hash(&j).unwrap();
         std::fs::write(dir.path().join("o.npy"), b"two").unwrap();
         assert_ne!(h1, content_hash(&j).unwrap());
+        // The header may name its samples file.
+        std::fs::write(&j, br#"{"data": "samples.npy"}"#).unwrap();
+        assert!(content_hash(&j).is_err());
+        std::fs::write(dir.path().join("samples.npy"), b"two").unwrap();
+        let h2 = content_hash(&j).unwrap();
+        std::fs::write(dir.path().join("samples.npy"), b"three").unwrap();
+        assert_ne!(h2, content_hash(&j).unwrap());
     }
 
     #[test]
