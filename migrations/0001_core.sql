@@ -27,6 +27,7 @@ CREATE TABLE observation (
     header_json     TEXT NOT NULL,
     recorded_utc    TEXT NOT NULL
 );
+CREATE INDEX observation_by_source ON observation (source_name);
 
 -- One row per (observation, configuration): a run is written whole or not at all.
 CREATE TABLE search_run (
@@ -64,7 +65,8 @@ CREATE TABLE candidate (
     modulation_index REAL NOT NULL,
     fluence_jy_ms    REAL
 );
-CREATE INDEX candidate_by_run ON candidate (run_id);
+-- (run_id, dm) serves both "candidates of a run" and "source + DM range" queries.
+CREATE INDEX candidate_by_run_dm ON candidate (run_id, dm);
 CREATE INDEX candidate_by_dm ON candidate (dm);
 CREATE INDEX candidate_by_mjd ON candidate (mjd_inf);
 

@@ -131,6 +131,9 @@ impl Catalogue {
                 log_once_non_wal(&path, &mode);
             }
             self.conn.pragma_update(None, "foreign_keys", "ON")?;
+            // 64 MiB page cache (negative = KiB): index inserts of a large run stay
+            // in memory instead of spilling to the WAL page by page.
+            self.conn.pragma_update(None, "cache_size", -65536)?;
             self.conn.pragma_update(None, "synchronous", "NORMAL")
         })
     }

@@ -70,6 +70,10 @@ pub struct RunRecord {
     pub started_utc: String,
     /// When it finished (ISO 8601 UTC).
     pub finished_utc: String,
+    /// Fraction of channel-samples the run masked or clipped, if known.
+    pub fraction_masked: Option<f64>,
+    /// Time samples whose boxcars were searched, if known.
+    pub samples_searched: Option<u64>,
 }
 
 impl RunRecord {
@@ -87,6 +91,8 @@ impl RunRecord {
             snr_threshold,
             started_utc,
             finished_utc: super::now_utc(),
+            fraction_masked: None,
+            samples_searched: None,
         }
     }
 }
@@ -250,8 +256,9 @@ fn insert_run(
 ) -> rusqlite::Result<i64> {
     tx.execute(
         "INSERT INTO search_run (observation_id, config_sha256, burstbook_version, config_json,
-             dm_plan_json, snr_threshold, started_utc, finished_utc, status, n_candidates)
-         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, 'complete', ?9)",
+             dm_plan_json, snr_threshold, started_utc, finished_utc, status, n_candidates,
+             fraction_masked, samples_searched)
+         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, 'complete', ?9, ?10, ?11)",
         params![
             obs_id,
             config_sha,
@@ -262,6 +269,8 @@ fn insert_run(
             run.started_utc,
             run.finished_utc,
             n_candidates as i64,
+            run.fraction_masked,
+            run.samples_searched.map(|n| n as i64),
         ],
     )?;
     Ok(tx.last_insert_rowid())
@@ -389,7 +398,10 @@ mod tests {
             .unwrap();
         assert_eq!(n, 5);
         // A different configuration is a new run of the same observation.
-        let third = cat.record_search(&obs, &run(6.0), &cands).unwrap();
+        let mut other = run(6.0);
+        other.fraction_masked = Some(0.125);
+        other.samples_searched = Some(3_686_400);
+        let third = cat.record_search(&obs, &other, &cands).unwrap();
         assert!(matches!(third, RecordOutcome::Inserted { .. }));
         let (n_obs, n_runs): (i64, i64) = cat
             .conn()
@@ -400,6 +412,15 @@ mod tests {
             )
             .unwrap();
         assert_eq!((n_obs, n_runs), (1, 2));
+        let stats: (Option<f64>, Option<i64>) = cat
+            .conn()
+            .query_row(
+                "SELECT fraction_masked, samples_searched FROM search_run WHERE snr_threshold = 6",
+                [],
+                |r| Ok((r.get(0)?, r.get(1)?)),
+            )
+            .unwrap();
+        assert_eq!(stats, (Some(0.125), Some(3_686_400)));
     }
 
     #[test]

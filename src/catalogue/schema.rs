@@ -13,6 +13,7 @@ use crate::error::Result;
 pub(crate) const MIGRATIONS: &[&str] = &[
     include_str!("../../migrations/0001_core.sql"),
     include_str!("../../migrations/0002_review_and_completeness.sql"),
+    include_str!("../../migrations/0003_run_statistics.sql"),
 ];
 
 /// The schema version this burstbook writes.
