@@ -11,6 +11,7 @@
 pub mod candidate;
 pub mod clean;
 pub mod cluster;
+pub mod catalogue;
 pub mod dedisperse;
 pub mod error;
 pub mod obs;

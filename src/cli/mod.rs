@@ -2,6 +2,7 @@
 //! library calls. No science happens here.
 
 mod barycentre;
+mod book;
 mod inspect;
 mod search;
 mod simulate;
@@ -26,6 +27,8 @@ enum Command {
     Simulate(simulate::Args),
     /// Convert topocentric UTC arrival times (CSV column mjd_utc) to barycentric TDB.
     Barycentre(barycentre::Args),
+    /// The burst catalogue: query, label, promote, sources, exposure, summary, VOEvent.
+    Book(book::Args),
 }
 
 /// Runs the chosen subcommand.
@@ -35,5 +38,6 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Search(a) => search::run(a),
         Command::Simulate(a) => simulate::run(a),
         Command::Barycentre(a) => barycentre::run(a),
+        Command::Book(a) => book::run(a),
     }
 }
