@@ -232,7 +232,8 @@ impl SampleSource for NativeReader {
             )
         })?;
         self.dtype.decode(&self.bytes, &mut out[..n]);
-        if !self.allow_non_finite {
+        // Integer samples are always finite.
+        if self.dtype == Dtype::F32 && !self.allow_non_finite {
             check_finite(&self.data_path, &out[..n], n_chan, self.rows_read)?;
         }
         self.rows_read += rows as u64;
