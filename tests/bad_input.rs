@@ -129,7 +129,8 @@ fn native_unsupported_dtype() {
 #[test]
 fn native_wrong_json_types_and_values() {
     let dir = tempfile::tempdir().unwrap();
-    let cases: [(&str, fn(&mut serde_json::Value), &str); 6] = [
+    type Edit = fn(&mut serde_json::Value);
+    let cases: [(&str, Edit, &str); 6] = [
         (
             "type",
             |v| v["sample_time_s"] = "fast".into(),

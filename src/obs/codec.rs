@@ -59,6 +59,34 @@ pub fn check_whole_rows(path: &Path, rows: &[f32], n_chan: usize) -> Result<()> 
     }
 }
 
+/// Fails if adding `adding` rows to `written` would pass the `announced` count.
+///
+/// # Errors
+/// [`Error::BadInput`] naming `path`.
+pub fn check_room(path: &Path, written: u64, adding: u64, announced: u64) -> Result<()> {
+    if written + adding > announced {
+        return Err(Error::bad_input(
+            path,
+            format!("more rows written than the {announced} announced"),
+        ));
+    }
+    Ok(())
+}
+
+/// Fails unless a finished writer received exactly the `announced` rows.
+///
+/// # Errors
+/// [`Error::BadInput`] naming `path`.
+pub fn check_complete(path: &Path, written: u64, announced: u64) -> Result<()> {
+    if written != announced {
+        return Err(Error::bad_input(
+            path,
+            format!("{written} rows written but the header announced {announced}"),
+        ));
+    }
+    Ok(())
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -93,6 +93,25 @@ pub fn open_with(path: &Path, options: OpenOptions) -> Result<Box<dyn SampleSour
     }
 }
 
+/// Reads every remaining row of `source`, `rows_per_read` rows per call, into one
+/// `[time, channel]` vector. For tests and small files only: memory grows with
+/// the file (stream with [`BlockReader`] instead).
+///
+/// # Errors
+/// Whatever the source reports.
+pub fn read_all<S: SampleSource>(source: &mut S, rows_per_read: usize) -> Result<Vec<f32>> {
+    let n_chan = source.header().n_chan();
+    let mut buf = vec![f32::NAN; rows_per_read.max(1) * n_chan];
+    let mut all = Vec::new();
+    loop {
+        let n = source.read_rows(&mut buf)?;
+        if n == 0 {
+            return Ok(all);
+        }
+        all.extend_from_slice(&buf[..n * n_chan]);
+    }
+}
+
 /// Creates an observation file that accepts rows in time order.
 ///
 /// `header.nbits` selects the stored sample type (see each format's writer);

@@ -8,7 +8,7 @@ use std::path::{Path, PathBuf};
 
 use serde::{Deserialize, Serialize};
 
-use super::codec::{check_finite, check_whole_rows, quantise};
+use super::codec::{check_complete, check_finite, check_room, check_whole_rows, quantise};
 use super::npy::{self, Dtype};
 use super::{Header, SampleSink, SampleSource, Site, UtcEpoch};
 use crate::error::{Error, Result};
@@ -313,12 +313,7 @@ impl SampleSink for NativeWriter {
         check_whole_rows(&self.data_path, rows, self.n_chan)?;
         check_finite(&self.data_path, rows, self.n_chan, self.rows_written)?;
         let n_rows = (rows.len() / self.n_chan) as u64;
-        if self.rows_written + n_rows > self.n_samples {
-            return Err(Error::bad_input(
-                &self.data_path,
-                format!("more rows written than the {} announced", self.n_samples),
-            ));
-        }
+        check_room(&self.data_path, self.rows_written, n_rows, self.n_samples)?;
         let values = if self.dtype == Dtype::F32 {
             rows
         } else {
@@ -341,16 +336,7 @@ impl SampleSink for NativeWriter {
         self.file
             .flush()
             .map_err(|e| Error::io(&self.data_path, e))?;
-        if self.rows_written != self.n_samples {
-            return Err(Error::bad_input(
-                &self.data_path,
-                format!(
-                    "{} rows written but the header announced {}",
-                    self.rows_written, self.n_samples
-                ),
-            ));
-        }
-        Ok(())
+        check_complete(&self.data_path, self.rows_written, self.n_samples)
     }
 }
 
@@ -369,16 +355,7 @@ mod tests {
 
     fn read_all(path: &Path) -> (Header, Vec<f32>) {
         let mut r = NativeReader::open(path, false).unwrap();
-        let n = r.header().n_chan();
-        let mut all = Vec::new();
-        let mut buf = vec![f32::NAN; n * 5];
-        loop {
-            let got = r.read_rows(&mut buf).unwrap();
-            if got == 0 {
-                break;
-            }
-            all.extend_from_slice(&buf[..got * n]);
-        }
+        let all = crate::obs::read_all(&mut r, 5).unwrap();
         (r.header().clone(), all)
     }
 

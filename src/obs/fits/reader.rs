@@ -7,6 +7,7 @@ use std::path::{Path, PathBuf};
 
 use super::cards::{BLOCK, Cards};
 use super::layout::{Layout, PolMode, data_bytes};
+use super::table::Column;
 use crate::error::{Error, Result};
 use crate::obs::codec::check_finite;
 use crate::obs::geodesy::{parse_sexagesimal, site_from_itrf};
@@ -162,29 +163,12 @@ impl FitsReader {
         let s = &mut self.scratch;
         let row = &self.row_bytes;
         self.weights.clear();
-        match &l.wts {
-            Some(c) => {
-                c.read_f64(row, l.n_chan, s).map_err(bad)?;
-                self.weights.extend(s.iter().map(|&w| w as f32));
-            }
-            None => self.weights.resize(l.n_chan, 1.0),
-        }
-        match &l.scl {
-            Some(c) => c.read_f64(row, n, s).map_err(bad)?,
-            None => {
-                s.clear();
-                s.resize(n, 1.0);
-            }
-        }
+        read_or(l.wts.as_ref(), row, l.n_chan, 1.0, s).map_err(bad)?;
+        self.weights.extend(s.iter().map(|&w| w as f32));
+        read_or(l.scl.as_ref(), row, n, 1.0, s).map_err(bad)?;
         self.scale.clear();
         self.scale.extend(s.iter().map(|&v| v as f32));
-        match &l.offs {
-            Some(c) => c.read_f64(row, n, s).map_err(bad)?,
-            None => {
-                s.clear();
-                s.resize(n, 0.0);
-            }
-        }
+        read_or(l.offs.as_ref(), row, n, 0.0, s).map_err(bad)?;
         self.offset.clear();
         let zero = l.zero_off;
         self.offset.extend(
@@ -240,6 +224,25 @@ impl FitsReader {
             check_finite(&self.path, dest, nc, self.delivered)?;
         }
         Ok(())
+    }
+}
+
+/// The first `n` values of the optional column `col` in `row`, or `n` copies of
+/// `default` when the file has no such column.
+fn read_or(
+    col: Option<&Column>,
+    row: &[u8],
+    n: usize,
+    default: f64,
+    out: &mut Vec<f64>,
+) -> Result<(), String> {
+    match col {
+        Some(c) => c.read_f64(row, n, out),
+        None => {
+            out.clear();
+            out.resize(n, default);
+            Ok(())
+        }
     }
 }
 
