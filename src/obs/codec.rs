@@ -11,19 +11,23 @@ pub fn quantise(v: f32, nbits: u32) -> f32 {
     v.round().clamp(0.0, max)
 }
 
+/// Whether no value is NaN or infinite.
+pub fn all_finite(values: &[f32]) -> bool {
+    // An exponent of all ones marks NaN and ±Inf; OR-reducing the test over the slice
+    // vectorises (no early exit), so the common all-finite case costs one cheap pass.
+    const EXP: u32 = 0x7f80_0000;
+    !values
+        .iter()
+        .fold(false, |acc, v| acc | (v.to_bits() & EXP == EXP))
+}
+
 /// Fails on the first NaN or infinite value in `rows` (`[time, channel]`), naming the
 /// sample (counted from `first_row`) and the channel.
 ///
 /// # Errors
 /// [`Error::BadInput`] naming `path`.
 pub fn check_finite(path: &Path, rows: &[f32], n_chan: usize, first_row: u64) -> Result<()> {
-    // An exponent of all ones marks NaN and ±Inf; OR-reducing the test over the slice
-    // vectorises, so the common all-finite case costs one cheap pass.
-    const EXP: u32 = 0x7f80_0000;
-    let any_bad = rows
-        .iter()
-        .fold(false, |acc, v| acc | (v.to_bits() & EXP == EXP));
-    if !any_bad {
+    if all_finite(rows) {
         return Ok(());
     }
     match rows.iter().position(|v| !v.is_finite()) {
