@@ -43,6 +43,12 @@ impl Container {
         {
             Some(e) if e == "json" => return Ok(Container::Native),
             Some(e) if e == "fits" || e == "sf" || e == "fit" => return Ok(Container::Fits),
+            Some(e) if e == "npy" => {
+                return Err(Error::bad_input(
+                    path,
+                    "this holds only the samples: open the .json header beside it",
+                ));
+            }
             _ => {}
         }
         let mut head = [0u8; 9];

@@ -186,10 +186,11 @@ impl NativeReader {
                 ),
             ));
         }
-        let header = json
-            .to_header(npy.dtype, n_samples)
-            .map_err(|m| Error::bad_input(path, m))?;
-        let expected = npy.data_offset + n_samples * n_chan * npy.dtype.size() as u64;
+        let expected = n_samples
+            .checked_mul(n_chan)
+            .and_then(|v| v.checked_mul(npy.dtype.size() as u64))
+            .and_then(|b| b.checked_add(npy.data_offset))
+            .unwrap_or(u64::MAX);
         if file_len != expected {
             return Err(Error::bad_input(
                 &data_path,
@@ -203,6 +204,9 @@ impl NativeReader {
                 ),
             ));
         }
+        let header = json
+            .to_header(npy.dtype, n_samples)
+            .map_err(|m| Error::bad_input(path, m))?;
         Ok(NativeReader {
             header,
             data_path,

@@ -65,6 +65,11 @@ impl FitsReader {
         let mut skip = data_bytes(&primary).map_err(&bad)?;
         while sub.str("EXTNAME") != Some("SUBINT") {
             let padded = skip.div_ceil(BLOCK as u64) * BLOCK as u64;
+            if padded > file_len {
+                return Err(bad(format!(
+                    "truncated: a header promises {skip} bytes of data, file has {file_len}"
+                )));
+            }
             file.seek_relative(padded as i64)
                 .map_err(|e| Error::io(path, e))?;
             sub = Cards::read(&mut file)
@@ -75,7 +80,10 @@ impl FitsReader {
         let layout = Layout::from_cards(&sub).map_err(|m| bad(format!("SUBINT: {m}")))?;
         let n_rows = sub.count("NAXIS2").map_err(&bad)? as u64;
         let data_start = file.stream_position().map_err(|e| Error::io(path, e))?;
-        let needed = data_start + n_rows * layout.row_bytes as u64;
+        let needed = (layout.row_bytes as u64)
+            .checked_mul(n_rows)
+            .and_then(|b| b.checked_add(data_start))
+            .unwrap_or(u64::MAX);
         if file_len < needed {
             return Err(bad(format!(
                 "truncated: {n_rows} rows of {} bytes need {needed} bytes, file has {file_len}",
