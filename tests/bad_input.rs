@@ -284,6 +284,18 @@ fn fits_nan_samples() {
     bytes[at + 4 * 6..at + 4 * 7].copy_from_slice(&f32::NAN.to_be_bytes());
     std::fs::write(&path, bytes).unwrap();
     assert_bad(open_and_read(&path), &path, "sample 1 of channel 2 is NaN");
+
+    // The same NaN in a channel of weight 0 is masked, not an error.
+    let mut h = header(4, 10, 32);
+    h.weights[2] = 0.0;
+    write(&path, &h, Container::Fits, 12345.5);
+    let mut bytes = std::fs::read(&path).unwrap();
+    let at = bytes.windows(4).position(|w| w == marker).unwrap();
+    bytes[at + 4 * 6..at + 4 * 7].copy_from_slice(&f32::NAN.to_be_bytes());
+    std::fs::write(&path, bytes).unwrap();
+    let data = obs::read_all(&mut obs::open(&path).unwrap(), 3).unwrap();
+    assert_eq!(data[4 + 2], 0.0);
+    assert_eq!(data.iter().filter(|&&v| v == 0.0).count(), 10);
 }
 
 #[test]

@@ -5,6 +5,7 @@ use std::fs::File;
 use std::io::{BufReader, Read, Seek, SeekFrom};
 use std::path::{Path, PathBuf};
 
+use super::bits::Encoding;
 use super::cards::{BLOCK, Cards};
 use super::layout::{Layout, PolMode, data_bytes};
 use super::table::Column;
@@ -226,6 +227,17 @@ impl FitsReader {
             scale_into(out, &raw[..nc], &k[..nc], &o[..nc]);
             if l.pol == PolMode::SumFirstTwo {
                 add_scaled(out, &raw[nc..2 * nc], &k[nc..2 * nc], &o[nc..2 * nc]);
+            }
+        }
+        // Zero scale and offset already mask integer samples; a float NaN or Inf in a
+        // masked channel would survive the multiplication, so clear those explicitly.
+        if l.encoding == Encoding::Float32 && self.weights.contains(&0.0) {
+            for out in dest.chunks_exact_mut(nc) {
+                for (v, &w) in out.iter_mut().zip(&self.weights) {
+                    if w == 0.0 {
+                        *v = 0.0;
+                    }
+                }
             }
         }
         if !self.allow_non_finite {
