@@ -355,6 +355,8 @@ fn bad_scenarios_give_one_clear_message() {
     let cases = [
         ("nbits = 8", "nbits = 12", "nbits"),
         ("[[burst]]", "[[burst]]\nfluence_jy_ms = 1.0", "exactly one"),
+        ("index = -1.5", "indx = -1.5", "indx"),
+        ("kind = \"gaussian\"", "kind = \"lorentzian\"", "lorentzian"),
     ];
     for (from, to, needle) in cases {
         let e = Scenario::parse(&base.replacen(from, to, 1)).unwrap_err();
