@@ -251,6 +251,10 @@ fn interference_lands_where_scheduled() {
 [[rfi.narrowband]]
 freq_mhz = 1400.0
 strength = 3.0
+[[rfi.narrowband]]
+freq_mhz = 1250.0
+strength = 4.0
+modulation_period_s = 1.0
 [[rfi.impulse]]
 t_s = 0.8
 width_ms = 2.0
@@ -269,7 +273,7 @@ freq_hi_mhz = 1500.0
     let kinds = |k| sim.truth.iter().filter(|r| r.kind == k).count();
     assert_eq!(kinds(TruthKind::RfiImpulse), 1);
     assert_eq!(kinds(TruthKind::RfiTrainPulse), 4); // 0.25, 0.75, 1.25, 1.75 s
-    assert_eq!(kinds(TruthKind::RfiNarrowband), 1);
+    assert_eq!(kinds(TruthKind::RfiNarrowband), 2);
     let rows = all_rows(&sim);
 
     // The carrier's channel has a raised mean; its neighbours do not.
@@ -292,10 +296,37 @@ freq_hi_mhz = 1500.0
         chan_mean(carrier)
     );
     assert!(chan_mean(carrier + 2).abs() < 0.1);
+    // The modulated carrier follows ½(1 + sin 2πt/P): full near t = 0.25 s, gone near 0.75 s.
+    let modulated = h
+        .freqs_mhz
+        .iter()
+        .position(|f| (f - 1250.0).abs() <= 3.125)
+        .unwrap();
+    let mean_over = |t0: usize| {
+        (t0..t0 + 100)
+            .map(|t| f64::from(rows[t * 64 + modulated]))
+            .sum::<f64>()
+            / 100.0
+    };
+    assert!(
+        mean_over(200) > 3.0 && mean_over(1200) > 3.0,
+        "{} {}",
+        mean_over(200),
+        mean_over(1200)
+    );
+    assert!(
+        mean_over(700).abs() < 0.6 && mean_over(1700).abs() < 0.6,
+        "{}",
+        mean_over(700)
+    );
 
     // DM-0 pulses: the band sum (carrier excluded) peaks at each scheduled time.
     let zero_dm = dedisperse_sum(&h, &rows, 0.0, &|c, v| {
-        if c == carrier { 0.0 } else { f64::from(v) }
+        if c == carrier || c == modulated {
+            0.0
+        } else {
+            f64::from(v)
+        }
     });
     for row in sim
         .truth
