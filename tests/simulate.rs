@@ -402,3 +402,12 @@ fn bad_scenarios_give_one_clear_message() {
     let e = Scenario::parse(&late).unwrap_err();
     assert!(e.contains("burst 1") && e.contains("outside"), "{e}");
 }
+
+// The demo data live in the repository: keep them under 20 MB (project rule).
+#[test]
+fn demo_scenario_fits_the_repository_budget() {
+    let path = concat!(env!("CARGO_MANIFEST_DIR"), "/demo-data/scenario.toml");
+    let h = Scenario::load(std::path::Path::new(path)).unwrap().header();
+    let bytes = h.n_chan() as u64 * h.n_samples * u64::from(h.nbits) / 8;
+    assert!(bytes < 20_000_000, "{bytes} bytes");
+}
