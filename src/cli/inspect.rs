@@ -9,7 +9,7 @@ use burstbook::obs::{self, Container, Header, OpenOptions, geodesy};
 /// Arguments of `inspect`.
 #[derive(clap::Args, Debug)]
 #[command(after_help = "Examples:
-  burstbook inspect demo-data/obs.json            header, statistics, suspicious channels
+  burstbook inspect demo-data/demo.json            header, statistics, suspicious channels
   burstbook inspect survey.fits --channels        plus a line per channel
   burstbook inspect survey.fits --json > s.json   everything, machine-readable
 
