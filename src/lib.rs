@@ -14,6 +14,7 @@ pub mod cluster;
 pub mod catalogue;
 pub mod dedisperse;
 pub mod error;
+pub mod inject;
 pub mod obs;
 pub mod progress;
 pub mod robust;

@@ -1,0 +1,271 @@
+//! One injection-recovery run: search the untouched data, draw and place bursts,
+//! search every pass with the bursts streamed in, match, summarise.
+
+use indicatif::ProgressBar;
+use rand::SeedableRng;
+use rand_chacha::ChaCha8Rng;
+use rayon::prelude::*;
+use serde::Serialize;
+
+use super::matching::{Matcher, Target};
+use super::ranges::{Drawn, InjectionRanges};
+use super::schedule::place;
+use super::source::{InjectingSource, channel_sigma};
+use super::summary::{Summary, summarise};
+use crate::candidate::{Candidate, Verdict};
+use crate::error::Result;
+use crate::obs::{Header, SampleSource};
+use crate::search::{SearchConfig, search_source};
+use crate::simulate::Burst;
+use crate::units::delay_to_infinity_s;
+
+/// Settings of an injection run other than the search configuration.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct InjectOptions {
+    /// Bursts to inject in total (over all passes).
+    pub count: usize,
+    /// Seed of the burst parameters and positions.
+    pub seed: u64,
+    /// Parameter ranges.
+    pub ranges: InjectionRanges,
+    /// Rows at the start of the file used to estimate each channel's noise σ.
+    pub sigma_rows: usize,
+    /// Count a recovered burst that triage calls interference as found.
+    pub count_rfi_as_found: bool,
+    /// Expected S/N above which bursts are "bright" in the summary (per-DM and
+    /// per-width completeness and S/N ratio).
+    pub bright_snr: f64,
+}
+
+impl Default for InjectOptions {
+    fn default() -> Self {
+        InjectOptions {
+            count: 200,
+            seed: 1,
+            ranges: InjectionRanges::default(),
+            sigma_rows: 16_384,
+            count_rfi_as_found: false,
+            bright_snr: 10.0,
+        }
+    }
+}
+
+/// One injected burst and what the search made of it (a CSV row).
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct InjectionRow {
+    /// Index in draw order.
+    pub index: usize,
+    /// Pass (search of the file) it was injected into.
+    pub pass: usize,
+    /// Injected arrival time at infinite frequency, seconds after the file start.
+    pub t_inf_s: f64,
+    /// Injected DM in pc cm⁻³.
+    pub dm: f64,
+    /// Intrinsic Gaussian FWHM in ms.
+    pub width_ms: f64,
+    /// Scattering time at 1 GHz in ms.
+    pub scatter_ms_1ghz: f64,
+    /// Spectral shape, e.g. `power_law(index=-1.5)`.
+    pub spectrum: String,
+    /// Expected S/N (simulator definition).
+    pub expected_snr: f64,
+    /// Ideal boxcar width in ms.
+    pub ideal_width_ms: f64,
+    /// Fluence in Jy ms where the spectrum is 1 (with an SEFD).
+    pub fluence_jy_ms: Option<f64>,
+    /// Recovered: matched, and not called interference unless those count.
+    pub found: bool,
+    /// Matched by some candidate, whatever its verdict.
+    pub detected: bool,
+    /// Verdict of the matching candidate.
+    pub verdict: Option<String>,
+    /// Reported S/N.
+    pub reported_snr: Option<f64>,
+    /// Reported DM.
+    pub reported_dm: Option<f64>,
+    /// Reported arrival time at infinite frequency.
+    pub reported_t_inf_s: Option<f64>,
+    /// Reported boxcar width in ms.
+    pub reported_width_ms: Option<f64>,
+}
+
+impl InjectionRow {
+    /// Reported / expected S/N when detected.
+    pub fn snr_ratio(&self) -> Option<f64> {
+        self.reported_snr.map(|s| s / self.expected_snr)
+    }
+}
+
+/// Everything an injection run produced.
+#[derive(Debug, Clone, Serialize)]
+pub struct InjectionResult {
+    /// The observation, as named by the caller.
+    pub file: String,
+    /// Its header.
+    #[serde(skip)]
+    pub header: Header,
+    /// Hash of the search configuration ([`SearchConfig::hash`]).
+    pub config_hash: String,
+    /// Injection settings.
+    pub options: InjectOptions,
+    /// Candidates of the untouched data (excluded from matching).
+    pub original_candidates: usize,
+    /// Passes over the file.
+    pub n_passes: usize,
+    /// Noise σ per channel used to scale the bursts (raw data units).
+    pub channel_sigma: Vec<f32>,
+    /// One row per injected burst, in draw order.
+    pub rows: Vec<InjectionRow>,
+    /// Completeness levels, curves and binned figures.
+    pub summary: Summary,
+}
+
+/// Runs injection-recovery on the recording `open` yields (it is called once per
+/// search, so each pass streams the data afresh; nothing is written back).
+/// `progress`, if given, counts searches (the untouched one plus one per pass).
+///
+/// # Errors
+/// Read errors, an invalid configuration or ranges, or bursts that do not fit.
+pub fn inject_source<F>(
+    open: F,
+    label: &str,
+    config: &SearchConfig,
+    options: &InjectOptions,
+    progress: Option<&ProgressBar>,
+) -> Result<InjectionResult>
+where
+    F: Fn() -> Result<Box<dyn SampleSource>> + Sync,
+{
+    config.validate()?;
+    let first = open()?;
+    let header = first.header().clone();
+    options.ranges.validate(&header)?;
+    let untouched = search_source(first, label, config, None)?;
+    if let Some(pb) = progress {
+        pb.inc(1);
+    }
+    let sigma = channel_sigma(&mut open()?, options.sigma_rows)?;
+
+    let mut rng = ChaCha8Rng::seed_from_u64(options.seed);
+    let drawn: Vec<Drawn> = (0..options.count)
+        .map(|_| options.ranges.draw(&header, &mut rng))
+        .collect::<Result<_>>()?;
+    let layout = &untouched.layout;
+    let time_link = (config.cluster.time_link_s / header.tsamp_s).ceil() as i64;
+    let guard = (layout.margin as i64) + time_link;
+    let busy: Vec<(i64, i64)> = untouched
+        .candidates
+        .iter()
+        .map(|c| candidate_span(c, &header))
+        .collect();
+    let bursts: Vec<Burst> = drawn.iter().map(|d| d.burst).collect();
+    let placed = place(&bursts, &header, guard, &busy, &mut rng)?;
+    let n_passes = placed.iter().map(|p| p.pass + 1).max().unwrap_or(0);
+    if let Some(pb) = progress {
+        pb.set_length(1 + n_passes as u64);
+    }
+
+    let matcher = Matcher::new(&untouched.plan, &header);
+    let per_pass: Vec<Vec<InjectionRow>> = (0..n_passes)
+        .into_par_iter()
+        .map(|pass| {
+            let mine: Vec<_> = placed.iter().filter(|p| p.pass == pass).collect();
+            let pass_bursts: Vec<Burst> = mine.iter().map(|p| p.burst).collect();
+            let source = InjectingSource::new(open()?, &pass_bursts, sigma.clone());
+            let result = search_source(Box::new(source), label, config, None)?;
+            let targets: Vec<Target> = mine
+                .iter()
+                .map(|p| Target {
+                    burst: p.burst,
+                    width_s: drawn[p.index].ideal_width_samples as f64 * header.tsamp_s,
+                })
+                .collect();
+            let hits = matcher.recover(&targets, &result.candidates, &untouched.candidates);
+            if let Some(pb) = progress {
+                pb.inc(1);
+            }
+            Ok(mine
+                .iter()
+                .zip(hits)
+                .map(|(p, hit)| row(p.index, pass, &p.burst, &drawn[p.index], &header, hit, options))
+                .collect())
+        })
+        .collect::<Result<_>>()?;
+    let mut rows: Vec<InjectionRow> = per_pass.into_iter().flatten().collect();
+    rows.sort_by_key(|r| r.index);
+    let summary = summarise(&rows, header.sefd_jy.is_some(), options.bright_snr);
+    Ok(InjectionResult {
+        file: label.to_string(),
+        header,
+        config_hash: config.hash(),
+        options: options.clone(),
+        original_candidates: untouched.candidates.len(),
+        n_passes,
+        channel_sigma: sigma,
+        rows,
+        summary,
+    })
+}
+
+/// [`inject_source`] on a file any reader of [`crate::obs::open`] understands.
+///
+/// # Errors
+/// As [`inject_source`].
+pub fn inject_file(
+    path: &std::path::Path,
+    config: &SearchConfig,
+    options: &InjectOptions,
+    progress: Option<&ProgressBar>,
+) -> Result<InjectionResult> {
+    inject_source(
+        || crate::obs::open(path),
+        &path.display().to_string(),
+        config,
+        options,
+        progress,
+    )
+}
+
+/// Samples a candidate of the untouched data occupies: its sweep across the band
+/// widened by its boxcar on both sides.
+fn candidate_span(c: &Candidate, h: &Header) -> (i64, i64) {
+    let w = c.width_ms * 1e-3;
+    let t0 = c.t_inf_s + delay_to_infinity_s(c.dm, h.freq_hi_mhz()) - w;
+    let t1 = c.t_inf_s + delay_to_infinity_s(c.dm, h.freq_lo_mhz()) + w;
+    (
+        (t0 / h.tsamp_s).floor() as i64,
+        (t1 / h.tsamp_s).ceil() as i64,
+    )
+}
+
+fn row(
+    index: usize,
+    pass: usize,
+    b: &Burst,
+    d: &Drawn,
+    h: &Header,
+    hit: Option<&Candidate>,
+    options: &InjectOptions,
+) -> InjectionRow {
+    let detected = hit.is_some();
+    let found = hit.is_some_and(|c| options.count_rfi_as_found || c.verdict != Verdict::Rfi);
+    InjectionRow {
+        index,
+        pass,
+        t_inf_s: b.t_inf_s,
+        dm: b.dm,
+        width_ms: b.width_s * 1e3,
+        scatter_ms_1ghz: b.scatter_1ghz_s * 1e3,
+        spectrum: b.spectrum.describe(),
+        expected_snr: d.expected_snr,
+        ideal_width_ms: d.ideal_width_samples as f64 * h.tsamp_s * 1e3,
+        fluence_jy_ms: d.fluence_jy_ms,
+        found,
+        detected,
+        verdict: hit.map(|c| c.verdict.as_str().to_string()),
+        reported_snr: hit.map(|c| c.snr),
+        reported_dm: hit.map(|c| c.dm),
+        reported_t_inf_s: hit.map(|c| c.t_inf_s),
+        reported_width_ms: hit.map(|c| c.width_ms),
+    }
+}
