@@ -3,6 +3,7 @@
 
 mod barycentre;
 mod book;
+mod inject;
 mod inspect;
 mod search;
 mod simulate;
@@ -23,6 +24,8 @@ enum Command {
     Inspect(inspect::Args),
     /// Search observations for dispersed pulses; write candidates.csv and candidates.json.
     Search(search::Args),
+    /// Measure search completeness by adding synthetic bursts to an observation in memory.
+    Inject(inject::Args),
     /// Write a synthetic observation with known bursts and interference from a scenario file.
     Simulate(simulate::Args),
     /// Convert topocentric UTC arrival times (CSV column mjd_utc) to barycentric TDB.
@@ -37,6 +40,7 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Inspect(a) => inspect::run(a),
         Command::Search(a) => search::run(a),
         Command::Simulate(a) => simulate::run(a),
+        Command::Inject(a) => inject::run(a),
         Command::Barycentre(a) => barycentre::run(a),
         Command::Book(a) => book::run(a),
     }

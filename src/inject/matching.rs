@@ -187,6 +187,9 @@ mod tests {
         let original = [cand(0.6001, 20.0, 25.0)];
         let got = m.recover(&[target(0.3, 50.0), target(0.6, 20.0)], &found, &original);
         assert_eq!(got[0].unwrap().snr, 12.0);
-        assert!(got[1].is_none(), "the untouched data's own event is not a recovery");
+        assert!(
+            got[1].is_none(),
+            "the untouched data's own event is not a recovery"
+        );
     }
 }

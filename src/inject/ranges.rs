@@ -108,8 +108,7 @@ impl InjectionRanges {
                 ordered("fluence", r, f64::MIN_POSITIVE)?;
                 if header.sefd_jy.is_none() {
                     return Err(Error::Config(
-                        "fluence ranges need the SEFD, but the observation header has none"
-                            .into(),
+                        "fluence ranges need the SEFD, but the observation header has none".into(),
                     ));
                 }
                 Ok(())

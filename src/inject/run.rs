@@ -187,7 +187,17 @@ where
             Ok(mine
                 .iter()
                 .zip(hits)
-                .map(|(p, hit)| row(p.index, pass, &p.burst, &drawn[p.index], &header, hit, options))
+                .map(|(p, hit)| {
+                    row(
+                        p.index,
+                        pass,
+                        &p.burst,
+                        &drawn[p.index],
+                        &header,
+                        hit,
+                        options,
+                    )
+                })
                 .collect())
         })
         .collect::<Result<_>>()?;

@@ -136,7 +136,10 @@ mod tests {
             spans.sort();
             for s in &spans {
                 assert!(s.0 >= 0 && s.1 <= 20_000, "{s:?}");
-                assert!(s.1 + guard <= 5000 || s.0 >= 6000 + guard, "{s:?} touches busy");
+                assert!(
+                    s.1 + guard <= 5000 || s.0 >= 6000 + guard,
+                    "{s:?} touches busy"
+                );
             }
             for w in spans.windows(2) {
                 assert!(w[0].1 + guard <= w[1].0, "{w:?} overlap");

@@ -25,10 +25,7 @@ impl<S: SampleSource> InjectingSource<S> {
     pub fn new(inner: S, bursts: &[Burst], chan_scale: Vec<f32>) -> Self {
         let header = inner.header();
         assert_eq!(chan_scale.len(), header.n_chan(), "one scale per channel");
-        let mut bursts: Vec<_> = bursts
-            .iter()
-            .map(|b| (*b, b.sample_span(header)))
-            .collect();
+        let mut bursts: Vec<_> = bursts.iter().map(|b| (*b, b.sample_span(header))).collect();
         bursts.sort_by_key(|(_, span)| span.0);
         let n_chan = header.n_chan();
         InjectingSource {
@@ -107,11 +104,7 @@ pub fn channel_sigma<S: SampleSource>(source: &mut S, max_rows: usize) -> Result
             column.clear();
             column.extend(data[..filled * n_chan].iter().skip(c).step_by(n_chan));
             let (_, sigma) = median_sigma(&column, 1, &mut scratch);
-            if sigma > 0.0 {
-                sigma
-            } else {
-                std_dev(&column)
-            }
+            if sigma > 0.0 { sigma } else { std_dev(&column) }
         })
         .collect())
 }
@@ -167,8 +160,7 @@ mod tests {
         for b in &bursts {
             add_burst(&mut whole, &header, b, &scale);
         }
-        let mut src =
-            InjectingSource::new(MemorySource::new(header.clone(), data), &bursts, scale);
+        let mut src = InjectingSource::new(MemorySource::new(header.clone(), data), &bursts, scale);
         let mut got = Vec::new();
         let mut buf = vec![0.0f32; 12 * 7];
         for size in [1, 7, 3, 5, 2].iter().cycle() {

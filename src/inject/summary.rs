@@ -114,7 +114,9 @@ pub fn summarise(rows: &[InjectionRow], with_fluence: bool, bright_snr: f64) -> 
     let all = |_: usize| true;
     let is_bright = |i: usize| snr[i] >= bright_snr;
     let n_bright = (0..rows.len()).filter(|&i| is_bright(i)).count();
-    let n_bright_found = (0..rows.len()).filter(|&i| is_bright(i) && found[i]).count();
+    let n_bright_found = (0..rows.len())
+        .filter(|&i| is_bright(i) && found[i])
+        .count();
     let mut bright_ratios: Vec<f64> = (0..rows.len())
         .filter(|&i| is_bright(i))
         .filter_map(|i| ratio[i])
