@@ -10,11 +10,49 @@
 //!   samples, i.e. time is the arrival at the top channel, in downsampled samples
 //!   from the block start;
 //! - every step yields `(n_time - plan.max_delay_samples()) / downsample` valid samples.
+//!
+//! Kernels: [`reference`] (per-channel shifts, the plain check) and the fast tree
+//! kernel [`FastDedisperser`] (FDMT-style, Zackay & Ofek 2017, ApJ 835, 11). The fast
+//! kernel rounds delays at the step's downsampled resolution along a merge tree, so
+//! its per-channel delays may differ from the reference's by about one downsampled
+//! sample; every output sample still sums exactly one (downsampled) sample per
+//! channel, so its noise equals the reference's. See `docs/dedisperse.md`.
 
+mod cost;
+mod fast;
 mod plan;
 pub mod reference;
+mod tree;
 
+pub use cost::PlanCost;
+pub use fast::FastDedisperser;
 pub use plan::{DmPlan, DmStep, PlanRequest};
+
+use ndarray::ArrayView2;
+
+/// Which dedispersion kernel to run.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, serde::Serialize, serde::Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Kernel {
+    /// Per-channel integer shifts and sums ([`reference::dedisperse`]).
+    Reference,
+    /// The tree kernel ([`FastDedisperser`]).
+    #[default]
+    Fast,
+}
+
+/// Dedisperses `input` (`[channel, time]`) for every step of `plan` with `kernel`.
+/// To run many blocks, keep a [`FastDedisperser`] instead: it reuses its trees and
+/// scratch buffers.
+///
+/// # Panics
+/// If `input` has a different channel count from the plan (a caller bug).
+pub fn dedisperse(input: ArrayView2<'_, f32>, plan: &DmPlan, kernel: Kernel) -> Vec<Dedispersed> {
+    match kernel {
+        Kernel::Reference => reference::dedisperse(input, plan),
+        Kernel::Fast => FastDedisperser::new(plan).dedisperse(input),
+    }
+}
 
 /// Output of one [`DmStep`]: one dedispersed time series per trial DM.
 #[derive(Debug, Clone, PartialEq)]
