@@ -2,6 +2,7 @@
 //! library calls. No science happens here.
 
 mod inspect;
+mod plan;
 
 use clap::{Parser, Subcommand};
 
@@ -17,11 +18,14 @@ pub struct Cli {
 enum Command {
     /// Summarise an observation: header, duration, statistics, suspicious channels.
     Inspect(inspect::Args),
+    /// Choose trial DMs and time resolutions for a band, and estimate the cost.
+    Plan(plan::Args),
 }
 
 /// Runs the chosen subcommand.
 pub fn run(cli: Cli) -> anyhow::Result<()> {
     match cli.command {
         Command::Inspect(a) => inspect::run(a),
+        Command::Plan(a) => plan::run(a),
     }
 }

@@ -22,11 +22,13 @@ mod cost;
 mod fast;
 mod plan;
 pub mod reference;
+mod summary;
 mod tree;
 
 pub use cost::PlanCost;
 pub use fast::FastDedisperser;
 pub use plan::{DmPlan, DmStep, PlanRequest};
+pub use summary::{PlanReport, StepSummary, channel_centres_mhz};
 
 use ndarray::ArrayView2;
 
