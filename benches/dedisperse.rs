@@ -23,7 +23,9 @@ const REFERENCE_STRIDE: usize = 50;
 fn main() {
     let n_chan = 1024;
     let bw = 400.0 / n_chan as f64;
-    let freqs: Vec<f64> = (0..n_chan).map(|i| 1600.0 - bw * (i as f64 + 0.5)).collect();
+    let freqs: Vec<f64> = (0..n_chan)
+        .map(|i| 1600.0 - bw * (i as f64 + 0.5))
+        .collect();
     let tsamp = 64e-6;
     let request = PlanRequest {
         dm_min: 0.0,

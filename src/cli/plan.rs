@@ -85,7 +85,12 @@ fn band(args: &Args) -> anyhow::Result<(Vec<f64>, f64, f64)> {
         let h = source.header();
         return Ok((h.freqs_mhz.clone(), h.chan_bw_mhz, h.tsamp_s));
     }
-    match (args.freq_lo_mhz, args.freq_hi_mhz, args.channels, args.tsamp_us) {
+    match (
+        args.freq_lo_mhz,
+        args.freq_hi_mhz,
+        args.channels,
+        args.tsamp_us,
+    ) {
         (Some(lo), Some(hi), Some(n), Some(ts)) => {
             if !(lo > 0.0 && hi > lo && n > 0 && ts > 0.0) {
                 bail!("need 0 < --freq-lo-mhz < --freq-hi-mhz, --channels > 0 and --tsamp-us > 0");
@@ -102,7 +107,11 @@ fn band(args: &Args) -> anyhow::Result<(Vec<f64>, f64, f64)> {
 fn print_report(report: &PlanReport, request: &PlanRequest) {
     let plan = &report.plan;
     let lo = plan.freqs_mhz.iter().copied().fold(f64::INFINITY, f64::min);
-    let hi = plan.freqs_mhz.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    let hi = plan
+        .freqs_mhz
+        .iter()
+        .copied()
+        .fold(f64::NEG_INFINITY, f64::max);
     let half = plan.chan_bw_mhz.abs() / 2.0;
     println!(
         "Band {:.3}-{:.3} MHz, {} channels of {:.4} MHz, {:.1} us samples",
@@ -139,7 +148,10 @@ fn print_report(report: &PlanReport, request: &PlanRequest) {
     }
     let c = &report.cost;
     println!("\nPer second of data:");
-    println!("  reference kernel   {:.3e} additions", c.reference_adds_per_s);
+    println!(
+        "  reference kernel   {:.3e} additions",
+        c.reference_adds_per_s
+    );
     println!(
         "  fast kernel        {:.3e} additions ({:.0}x fewer)",
         c.fast_adds_per_s,

@@ -1,55 +1,70 @@
-//! The fast kernel: executes the merge trees of [`super::tree`] level by level over
-//! time chunks, in parallel over rows, with caller-owned scratch buffers.
+//! The fast kernel. Per plan step and time chunk:
+//! 1. stage 1: inside each sub-band of 32 adjacent channels, the
+//!    merge tree of [`super::tree`] over short time tiles, so a sub-band's levels stay
+//!    in cache; in parallel over sub-bands;
+//! 2. stage 2: for each trial DM, the sum of one stage-1 row per sub-band at that
+//!    sub-band's own rounded delay; in parallel over blocks of trials.
+//!
+//! Hot loops run over equal-length slices so they vectorise, and never allocate:
+//! scratch buffers live in the [`FastDedisperser`] or per rayon worker.
 
 use ndarray::ArrayView2;
 use rayon::prelude::*;
 
-use super::tree::{Merge, StepTree};
+use super::subband::{StepKernel, SubBand};
+use super::tree::Merge;
 use super::{Dedispersed, DmPlan};
 
-/// Output samples per chunk as a multiple of the step's longest path: the chunk
-/// overlap (the path length) then costs at most 25 % extra work.
+/// Output samples per chunk as a multiple of the step's longest path, so that the
+/// chunk overlap costs stage 1 at most 25 % extra work.
 const CHUNK_PER_PATH: usize = 4;
-/// Smallest chunk, output samples: keeps rows long enough to vectorise and to split.
+/// Smallest chunk, tree samples.
 const MIN_CHUNK: usize = 2048;
-/// Downsampled steps run their tree at half the output sample (then sum pairs), so
-/// delays are rounded at half an output sample; see `docs/dedisperse.md`.
-const TREE_OVERSAMPLE: usize = 2;
+/// Stage-1 time tile, tree samples: a sub-band's tree levels fit in L2.
+const STAGE1_TILE: usize = 512;
+/// Stage-2 work unit: trials per task, and time tile in tree samples (even, so that
+/// pairs of tree samples never straddle tiles).
+const STAGE2_DMS: usize = 16;
+const STAGE2_TILE: usize = 1024;
 
-/// The tree's sample, in input samples, for a step downsampled by `downsample`.
-pub(crate) fn tree_downsample(downsample: usize) -> usize {
-    (downsample / TREE_OVERSAMPLE).max(1)
-}
-
-/// A reusable fast dedisperser for one [`DmPlan`]: the trees are built once, and the
-/// scratch buffers grow to the largest chunk and are then reused for every block.
+/// A reusable fast dedisperser for one [`DmPlan`]: sub-bands, trees and delays are
+/// planned once; the stage-1 buffer grows to the largest chunk and is then reused.
 #[derive(Debug, Clone)]
 pub struct FastDedisperser {
     plan: DmPlan,
-    trees: Vec<StepTree>,
-    /// Downsampled channel rows of the current chunk, `[channel, time]`.
+    steps: Vec<StepKernel>,
+    /// Stage-1 rows of the current chunk, `[row, time]`.
+    stage1: Vec<f32>,
+}
+
+/// Per-worker stage-1 scratch: one tile of a sub-band's channels and tree levels.
+#[derive(Default)]
+struct TileScratch {
     channels: Vec<f32>,
-    /// Ping-pong buffers for the tree levels, `[row, time]`.
     levels: [Vec<f32>; 2],
 }
 
 impl FastDedisperser {
-    /// Prepares the merge trees for every step of `plan`.
+    /// Plans sub-bands, trees and delays for every step of `plan`.
     pub fn new(plan: &DmPlan) -> Self {
-        let trees = plan
+        let max_delay = plan.max_delay_samples();
+        let steps = plan
             .steps
             .iter()
             .map(|s| {
-                let ds = tree_downsample(s.downsample);
-                let longest = plan.max_delay_samples() / ds;
-                StepTree::new(&plan.freqs_mhz, &s.dms, plan.tsamp_s, ds, longest)
+                StepKernel::new(
+                    &plan.freqs_mhz,
+                    &s.dms,
+                    plan.tsamp_s,
+                    s.downsample,
+                    max_delay,
+                )
             })
             .collect();
         FastDedisperser {
             plan: plan.clone(),
-            trees,
-            channels: Vec::new(),
-            levels: [Vec::new(), Vec::new()],
+            steps,
+            stage1: Vec::new(),
         }
     }
 
@@ -72,91 +87,185 @@ impl FastDedisperser {
         let input = input.as_standard_layout();
         let input = input.as_slice().expect("standard layout is contiguous");
         let valid = n_time.saturating_sub(self.plan.max_delay_samples());
-        let mut out = Vec::with_capacity(self.trees.len());
-        for i in 0..self.trees.len() {
-            let dms = self.plan.steps[i].dms.clone();
-            let ds = self.plan.steps[i].downsample;
-            let n_out = valid / ds;
-            let mut data = vec![0.0f32; dms.len() * n_out];
+        let mut out = Vec::with_capacity(self.steps.len());
+        for (step, kernel) in self.plan.steps.iter().zip(&self.steps) {
+            let n_out = valid / step.downsample;
+            let mut data = vec![0.0f32; step.dms.len() * n_out];
             if n_chan > 0 && n_out > 0 {
-                let per_out = ds / tree_downsample(ds);
-                let chunk = chunk_len(self.trees[i].max_path).div_ceil(per_out);
+                let chunk = chunk_len(kernel.max_path).div_ceil(kernel.per_out);
                 for t0 in (0..n_out).step_by(chunk) {
                     let len = chunk.min(n_out - t0);
-                    self.run_chunk(i, input, n_time, t0, len, &mut data, n_out);
+                    let source = Source {
+                        input,
+                        n_time,
+                        t0_in: t0 * kernel.per_out,
+                    };
+                    let stride = stage1(kernel, &source, len * kernel.per_out, &mut self.stage1);
+                    stage2(kernel, &self.stage1, stride, t0, len, &mut data, n_out);
                 }
             }
             out.push(Dedispersed {
-                dms,
-                downsample: ds,
+                dms: step.dms.clone(),
+                downsample: step.downsample,
                 n_time: n_out,
                 data,
             });
         }
         out
     }
+}
 
-    /// Output samples `t0..t0 + len` of step `i` into `data` (`[dm, n_out]`).
-    #[allow(clippy::too_many_arguments)]
-    fn run_chunk(
-        &mut self,
-        i: usize,
-        input: &[f32],
-        n_time: usize,
-        t0: usize,
-        len: usize,
-        data: &mut [f32],
-        n_out: usize,
-    ) {
-        let tree = &self.trees[i];
-        let ds = tree_downsample(self.plan.steps[i].downsample);
-        let per_out = self.plan.steps[i].downsample / ds;
-        let n_chan = self.plan.freqs_mhz.len();
-        let (t0_in, len_in) = (t0 * per_out, len * per_out);
-        let stride = len_in + tree.max_path;
-        grow(&mut self.channels, n_chan * stride);
-        self.channels[..n_chan * stride]
-            .par_chunks_mut(stride)
-            .enumerate()
-            .for_each(|(c, row)| {
-                downsample_into(&input[c * n_time..(c + 1) * n_time], t0_in * ds, ds, row)
-            });
+/// Tree samples per chunk for a step whose longest path is `max_path` tree samples.
+pub(crate) fn chunk_len(max_path: usize) -> usize {
+    (CHUNK_PER_PATH * max_path).max(MIN_CHUNK)
+}
 
-        let rows = tree.max_rows(n_chan);
-        for buf in &mut self.levels {
-            grow(buf, rows * stride);
+/// The block being dedispersed: `[channel, time]` input and the chunk's first tree
+/// sample.
+struct Source<'a> {
+    input: &'a [f32],
+    n_time: usize,
+    t0_in: usize,
+}
+
+/// Stage 1 for a chunk of `len_in` tree samples: every sub-band's top rows over the
+/// samples stage 2 will read, into `buf` (`[row, stride]`). Returns the stride.
+fn stage1(kernel: &StepKernel, src: &Source<'_>, len_in: usize, buf: &mut Vec<f32>) -> usize {
+    let max_offset = kernel
+        .subbands
+        .iter()
+        .map(|s| s.max_offset)
+        .max()
+        .unwrap_or(0);
+    let stride = len_in + max_offset;
+    grow(buf, kernel.n_rows() * stride);
+    let mut slabs = Vec::with_capacity(kernel.subbands.len());
+    let mut rest = &mut buf[..];
+    for sub in &kernel.subbands {
+        let (slab, tail) = rest.split_at_mut(sub.tree.n_top_rows(sub.channels.len()) * stride);
+        slabs.push(slab);
+        rest = tail;
+    }
+    kernel.subbands.par_iter().zip(slabs).for_each_init(
+        TileScratch::default,
+        |scratch, (sub, slab)| {
+            subband_rows(
+                sub,
+                kernel.tree_ds,
+                src,
+                len_in + sub.max_offset,
+                stride,
+                slab,
+                scratch,
+            )
+        },
+    );
+    stride
+}
+
+/// One sub-band's top rows for tree samples `0..need` of the chunk, tile by tile.
+fn subband_rows(
+    sub: &SubBand,
+    tree_ds: usize,
+    src: &Source<'_>,
+    need: usize,
+    stride: usize,
+    slab: &mut [f32],
+    scratch: &mut TileScratch,
+) {
+    let halo = sub.tree.max_path;
+    let n_chan = sub.channels.len();
+    for a in (0..need).step_by(STAGE1_TILE) {
+        let len = STAGE1_TILE.min(need - a);
+        let width = len + halo;
+        grow(&mut scratch.channels, n_chan * width);
+        for (row, &c) in scratch.channels.chunks_exact_mut(width).zip(&sub.channels) {
+            let chan = &src.input[c * src.n_time..(c + 1) * src.n_time];
+            downsample_into(chan, (src.t0_in + a) * tree_ds, tree_ds, row);
         }
-        let [even, odd] = &mut self.levels;
-        for (l, merges) in tree.levels.iter().enumerate() {
-            let (src, dst): (&[f32], &mut [f32]) = match l {
-                0 => (&self.channels, even),
+        let rows = sub.tree.max_rows(n_chan);
+        let [even, odd] = &mut scratch.levels;
+        grow(even, rows * width);
+        grow(odd, rows * width);
+        for (l, merges) in sub.tree.levels.iter().enumerate() {
+            let (from, to): (&[f32], &mut [f32]) = match l {
+                0 => (&scratch.channels, even),
                 _ if l % 2 == 1 => (even, odd),
                 _ => (odd, even),
             };
-            run_level(merges, src, dst, stride, len_in);
+            run_level(merges, from, to, width, len);
         }
-        let top: &[f32] = match tree.levels.len() {
-            0 => &self.channels,
+        let top: &[f32] = match sub.tree.levels.len() {
+            0 => &scratch.channels,
             n if n % 2 == 1 => even,
             _ => odd,
         };
-        data.par_chunks_mut(n_out)
-            .zip(tree.dm_rows.par_iter())
-            .for_each(|(series, &r)| {
-                let row = &top[r * stride..r * stride + len_in];
-                for (o, group) in series[t0..t0 + len]
-                    .iter_mut()
-                    .zip(row.chunks_exact(per_out))
-                {
-                    *o = group.iter().sum();
-                }
-            });
+        for (out, row) in slab.chunks_exact_mut(stride).zip(top.chunks_exact(width)) {
+            out[a..a + len].copy_from_slice(&row[..len]);
+        }
     }
 }
 
-/// Output samples per chunk for a step whose longest path is `max_path` samples.
-pub(crate) fn chunk_len(max_path: usize) -> usize {
-    (CHUNK_PER_PATH * max_path).max(MIN_CHUNK)
+/// Stage 2: output samples `t0..t0 + len` of every trial into `data` (`[dm, n_out]`).
+fn stage2(
+    kernel: &StepKernel,
+    stage1: &[f32],
+    stride: usize,
+    t0: usize,
+    len: usize,
+    data: &mut [f32],
+    n_out: usize,
+) {
+    let n_sub = kernel.subbands.len();
+    let per_out = kernel.per_out;
+    data.par_chunks_mut(n_out * STAGE2_DMS)
+        .enumerate()
+        .for_each_init(
+            || vec![0.0f32; STAGE2_TILE],
+            |acc, (block, series)| {
+                for a in (0..len * per_out).step_by(STAGE2_TILE) {
+                    let tile = STAGE2_TILE.min(len * per_out - a);
+                    for (j, row) in series.chunks_exact_mut(n_out).enumerate() {
+                        let k = block * STAGE2_DMS + j;
+                        let paths = (k * n_sub..(k + 1) * n_sub)
+                            .map(|i| kernel.rows[i] * stride + kernel.offsets[i] + a);
+                        accumulate(&mut acc[..tile], stage1, paths);
+                        let out = &mut row[t0 + a / per_out..][..tile / per_out];
+                        for (o, pair) in out.iter_mut().zip(acc.chunks_exact(per_out)) {
+                            *o = pair.iter().sum();
+                        }
+                    }
+                }
+            },
+        );
+}
+
+/// `acc` = sum of the `acc.len()` samples of `stage1` starting at each of `starts`,
+/// four rows at a time to save passes over `acc`.
+fn accumulate(acc: &mut [f32], stage1: &[f32], starts: impl Iterator<Item = usize>) {
+    let n = acc.len();
+    let mut rows = starts.map(|s| &stage1[s..s + n]);
+    match rows.next() {
+        Some(first) => acc.copy_from_slice(first),
+        None => return acc.fill(0.0),
+    }
+    loop {
+        match (rows.next(), rows.next(), rows.next(), rows.next()) {
+            (Some(a), Some(b), Some(c), Some(d)) => {
+                for ((((o, a), b), c), d) in acc.iter_mut().zip(a).zip(b).zip(c).zip(d) {
+                    *o += (a + b) + (c + d);
+                }
+            }
+            (a, b, c, _) => {
+                for r in [a, b, c].into_iter().flatten() {
+                    for (o, x) in acc.iter_mut().zip(r) {
+                        *o += x;
+                    }
+                }
+                return;
+            }
+        }
+    }
 }
 
 /// Grows `buf` to at least `n` values (never shrinks: the scratch is reused).
@@ -167,7 +276,8 @@ fn grow(buf: &mut Vec<f32>, n: usize) {
 }
 
 /// `row[j]` = sum of `chan[start + j·ds ..][..ds]`. Paths never reach past the block
-/// (trees cap them at the plan's largest delay), so the zero tail is never summed.
+/// (their length is capped at the plan's largest delay), so the zero tail that a
+/// chunk's last tile may carry is never summed into a valid output.
 fn downsample_into(chan: &[f32], start: usize, ds: usize, row: &mut [f32]) {
     let avail = chan.get(start..).unwrap_or(&[]);
     let full = (avail.len() / ds).min(row.len());
@@ -182,25 +292,20 @@ fn downsample_into(chan: &[f32], start: usize, ds: usize, row: &mut [f32]) {
     tail.fill(0.0);
 }
 
-/// One tree level: every output row in parallel, each over the samples it must supply.
+/// One tree level over a tile: each output row over the samples it must supply.
 fn run_level(merges: &[Merge], src: &[f32], dst: &mut [f32], stride: usize, len: usize) {
-    dst[..merges.len() * stride]
-        .par_chunks_mut(stride)
-        .zip(merges.par_iter())
-        .for_each(|(out, m)| {
-            let n = (len + m.reach).min(stride - m.shift);
-            let upper = &src[m.upper * stride..][..n];
-            match m.lower {
-                Some(l) => add_rows(&mut out[..n], upper, &src[l * stride + m.shift..][..n]),
-                None => out[..n].copy_from_slice(upper),
+    for (out, m) in dst.chunks_exact_mut(stride).zip(merges) {
+        let n = (len + m.reach).min(stride - m.shift);
+        let upper = &src[m.upper * stride..][..n];
+        match m.lower {
+            Some(l) => {
+                let lower = &src[l * stride + m.shift..][..n];
+                for ((o, x), y) in out[..n].iter_mut().zip(upper).zip(lower) {
+                    *o = x + y;
+                }
             }
-        });
-}
-
-/// `out = a + b` elementwise; equal-length slices so the loop vectorises.
-fn add_rows(out: &mut [f32], a: &[f32], b: &[f32]) {
-    for ((o, x), y) in out.iter_mut().zip(a).zip(b) {
-        *o = x + y;
+            None => out[..n].copy_from_slice(upper),
+        }
     }
 }
 

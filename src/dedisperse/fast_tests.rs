@@ -1,6 +1,7 @@
 //! The fast kernel against the reference kernel and the tree's own traced paths.
 
 use super::*;
+use crate::dedisperse::subband::tree_downsample;
 use crate::dedisperse::{DmStep, PlanRequest, reference};
 use crate::units::{channel_smearing_s, delay_between_s};
 use ndarray::Array2;
@@ -119,7 +120,7 @@ fn fast_kernel_matches_its_paths_and_tracks_the_reference() {
             );
             let tree_ds = tree_downsample(g.downsample);
             for (k, &dm) in g.dms.iter().enumerate() {
-                let delays = fast.trees[s].path_delays(k, n_chan);
+                let delays = fast.steps[s].path_delays(k, n_chan);
                 for (c, &d) in delays.iter().enumerate() {
                     let ideal = delay_between_s(dm, freqs[c], f_top) / (tsamp * tree_ds as f64);
                     let e = d as f64 - ideal;
@@ -209,7 +210,7 @@ fn fdmt_toy_case_recovers_pulse_and_noise() {
 
     // Cost: the paper's speed-up is about N_f/log2(N_f) = 10.7 over brute force.
     let brute = 64 * 256;
-    let tree = fast.trees[0].adds_per_sample();
+    let tree = fast.steps[0].adds_per_sample();
     assert!(
         brute >= 8 * tree,
         "tree {tree} vs brute {brute} adds per sample"

@@ -22,6 +22,7 @@ mod cost;
 mod fast;
 mod plan;
 pub mod reference;
+mod subband;
 mod summary;
 mod tree;
 

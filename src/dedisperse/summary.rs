@@ -91,7 +91,10 @@ mod tests {
         let plan = DmPlan::build(&freqs, bw, 64e-6, &req).unwrap();
         let steps = plan.summaries();
         assert_eq!(steps.len(), plan.steps.len());
-        assert_eq!(steps.iter().map(|s| s.n_trials).sum::<usize>(), plan.n_trials());
+        assert_eq!(
+            steps.iter().map(|s| s.n_trials).sum::<usize>(),
+            plan.n_trials()
+        );
         assert_eq!(steps[0].dm_first, 0.0);
         assert_eq!(steps.last().unwrap().dm_last, 300.0);
         assert!((steps[1].resolution_s - 128e-6).abs() < 1e-12);

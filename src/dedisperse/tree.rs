@@ -34,8 +34,9 @@ pub(crate) struct StepTree {
     /// Levels above the channels; level 1 reads channel rows by channel index.
     pub levels: Vec<Vec<Merge>>,
     /// For each trial DM of the step, its row in the last level (or its channel if
-    /// the band has one channel).
+    /// the band has one channel), and that row's total delay.
     pub dm_rows: Vec<usize>,
+    pub dm_delays: Vec<usize>,
     /// Largest total path delay, downsampled samples.
     pub max_path: usize,
 }
@@ -109,6 +110,7 @@ impl StepTree {
             return StepTree {
                 levels: Vec::new(),
                 dm_rows: vec![0; dms.len()],
+                dm_delays: vec![0; dms.len()],
                 max_path: 0,
             };
         }
@@ -234,7 +236,18 @@ impl StepTree {
             levels: merges,
             dm_rows: dm_d.iter().map(|&d| root.index[d - root.lo]).collect(),
             max_path: dm_d.iter().copied().max().unwrap_or(0),
+            dm_delays: dm_d,
         }
+    }
+
+    /// Rows of the last level (the channel itself for a one-channel band).
+    pub(crate) fn n_top_rows(&self, n_chan: usize) -> usize {
+        self.levels.last().map_or(n_chan.min(1), Vec::len)
+    }
+
+    /// Row in the last level and total delay used for trial `k`.
+    pub(crate) fn top_row(&self, k: usize) -> (usize, usize) {
+        (self.dm_rows[k], self.dm_delays[k])
     }
 
     /// Rows in the largest level (the channel count when there is no level).
