@@ -1,5 +1,5 @@
 //! The fast kernel. Per plan step and time chunk:
-//! 1. stage 1: inside each sub-band of 32 adjacent channels, the
+//! 1. stage 1: inside each sub-band of 64 adjacent channels, the
 //!    merge tree of [`super::tree`] over short time tiles, so a sub-band's levels stay
 //!    in cache; in parallel over sub-bands;
 //! 2. stage 2: for each trial DM, the sum of one stage-1 row per sub-band at that
@@ -20,7 +20,7 @@ use super::{Dedispersed, DmPlan};
 const CHUNK_PER_PATH: usize = 4;
 /// Smallest chunk, tree samples.
 const MIN_CHUNK: usize = 2048;
-/// Stage-1 time tile, tree samples: a sub-band's tree levels fit in L2.
+/// Stage-1 time tile, tree samples: a sub-band's tree levels stay in L2/L3.
 const STAGE1_TILE: usize = 512;
 /// Stage-2 work unit: trials per task, and time tile in tree samples (even, so that
 /// pairs of tree samples never straddle tiles).
@@ -241,8 +241,27 @@ fn stage2(
 }
 
 /// `acc` = sum of the `acc.len()` samples of `stage1` starting at each of `starts`,
-/// four rows at a time to save passes over `acc`.
+/// compiled for AVX2 when the CPU has it (twice the adds per cycle of the baseline
+/// SSE2 build).
 fn accumulate(acc: &mut [f32], stage1: &[f32], starts: impl Iterator<Item = usize>) {
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx2") {
+        // SAFETY: `accumulate_avx2` only requires the AVX2 instruction set, which
+        // was detected at run time just above; it is otherwise safe code.
+        return unsafe { accumulate_avx2(acc, stage1, starts) };
+    }
+    accumulate_rows(acc, stage1, starts)
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+fn accumulate_avx2(acc: &mut [f32], stage1: &[f32], starts: impl Iterator<Item = usize>) {
+    accumulate_rows(acc, stage1, starts)
+}
+
+/// The portable body of [`accumulate`]: four rows at a time to save passes over `acc`.
+#[inline(always)]
+fn accumulate_rows(acc: &mut [f32], stage1: &[f32], starts: impl Iterator<Item = usize>) {
     let n = acc.len();
     let mut rows = starts.map(|s| &stage1[s..s + n]);
     match rows.next() {
@@ -292,8 +311,27 @@ fn downsample_into(chan: &[f32], start: usize, ds: usize, row: &mut [f32]) {
     tail.fill(0.0);
 }
 
-/// One tree level over a tile: each output row over the samples it must supply.
+/// One tree level over a tile: each output row over the samples it must supply;
+/// compiled for AVX2 when the CPU has it.
 fn run_level(merges: &[Merge], src: &[f32], dst: &mut [f32], stride: usize, len: usize) {
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx2") {
+        // SAFETY: `run_level_avx2` only requires the AVX2 instruction set, which was
+        // detected at run time just above; it is otherwise safe code.
+        return unsafe { run_level_avx2(merges, src, dst, stride, len) };
+    }
+    merge_rows(merges, src, dst, stride, len)
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+fn run_level_avx2(merges: &[Merge], src: &[f32], dst: &mut [f32], stride: usize, len: usize) {
+    merge_rows(merges, src, dst, stride, len)
+}
+
+/// The portable body of [`run_level`].
+#[inline(always)]
+fn merge_rows(merges: &[Merge], src: &[f32], dst: &mut [f32], stride: usize, len: usize) {
     for (out, m) in dst.chunks_exact_mut(stride).zip(merges) {
         let n = (len + m.reach).min(stride - m.shift);
         let upper = &src[m.upper * stride..][..n];

@@ -7,7 +7,7 @@ use crate::units::delay_between_s;
 
 /// Channels per sub-band: the tree inside a sub-band stays in cache, and stage 2 adds
 /// `n_chan / SUBBAND_CHANNELS` rows per trial and sample.
-pub(crate) const SUBBAND_CHANNELS: usize = 32;
+pub(crate) const SUBBAND_CHANNELS: usize = 64;
 
 /// Downsampled steps run at half their output sample (pairs summed at the end), so
 /// delays are rounded at half an output sample.
