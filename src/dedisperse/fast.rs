@@ -35,6 +35,8 @@ pub struct FastDedisperser {
     steps: Vec<StepKernel>,
     /// Stage-1 rows of the current chunk, `[row, time]`.
     stage1: Vec<f32>,
+    /// The block at reduced time resolution, `[channel, time]`, halved step by step.
+    coarse: Vec<f32>,
 }
 
 /// Per-worker stage-1 scratch: one tile of a sub-band's channels and tree levels.
@@ -65,6 +67,7 @@ impl FastDedisperser {
             plan: plan.clone(),
             steps,
             stage1: Vec::new(),
+            coarse: Vec::new(),
         }
     }
 
@@ -88,7 +91,19 @@ impl FastDedisperser {
         let input = input.as_slice().expect("standard layout is contiguous");
         let valid = n_time.saturating_sub(self.plan.max_delay_samples());
         let mut out = Vec::with_capacity(self.steps.len());
+        let mut coarse_ds = 1;
         for (step, kernel) in self.plan.steps.iter().zip(&self.steps) {
+            if kernel.tree_ds < coarse_ds {
+                coarse_ds = 1;
+            }
+            while coarse_ds < kernel.tree_ds {
+                halve(input, n_time, coarse_ds, &mut self.coarse, n_chan);
+                coarse_ds *= 2;
+            }
+            let (rows, row_len): (&[f32], usize) = match coarse_ds {
+                1 => (input, n_time),
+                ds => (&self.coarse, n_time / ds),
+            };
             let n_out = valid / step.downsample;
             let mut data = vec![0.0f32; step.dms.len() * n_out];
             if n_chan > 0 && n_out > 0 {
@@ -96,9 +111,9 @@ impl FastDedisperser {
                 for t0 in (0..n_out).step_by(chunk) {
                     let len = chunk.min(n_out - t0);
                     let source = Source {
-                        input,
-                        n_time,
-                        t0_in: t0 * kernel.per_out,
+                        rows,
+                        row_len,
+                        t0: t0 * kernel.per_out,
                     };
                     let stride = stage1(kernel, &source, len * kernel.per_out, &mut self.stage1);
                     stage2(kernel, &self.stage1, stride, t0, len, &mut data, n_out);
@@ -120,12 +135,40 @@ pub(crate) fn chunk_len(max_path: usize) -> usize {
     (CHUNK_PER_PATH * max_path).max(MIN_CHUNK)
 }
 
-/// The block being dedispersed: `[channel, time]` input and the chunk's first tree
-/// sample.
+/// The block at the step's tree resolution (`[channel, row_len]`) and the chunk's
+/// first tree sample.
 struct Source<'a> {
-    input: &'a [f32],
-    n_time: usize,
-    t0_in: usize,
+    rows: &'a [f32],
+    row_len: usize,
+    t0: usize,
+}
+
+/// Halves the time resolution of the block held at `ds` input samples per sample:
+/// from `input` when `ds == 1`, else in place in `coarse` (row `c` at its new
+/// position never overlaps the unread rows after it).
+fn halve(input: &[f32], n_time: usize, ds: usize, coarse: &mut Vec<f32>, n_chan: usize) {
+    let new_len = n_time / (2 * ds);
+    if ds == 1 {
+        grow(coarse, n_chan * new_len);
+        coarse[..n_chan * new_len]
+            .par_chunks_mut(new_len.max(1))
+            .zip(input.par_chunks(n_time.max(1)))
+            .for_each(|(dst, src)| pair_sums(dst, src));
+        return;
+    }
+    let old_len = n_time / ds;
+    for c in 0..n_chan {
+        for j in 0..new_len {
+            coarse[c * new_len + j] = coarse[c * old_len + 2 * j] + coarse[c * old_len + 2 * j + 1];
+        }
+    }
+}
+
+/// `dst[j] = src[2j] + src[2j + 1]`.
+fn pair_sums(dst: &mut [f32], src: &[f32]) {
+    for (o, pair) in dst.iter_mut().zip(src.chunks_exact(2)) {
+        *o = pair[0] + pair[1];
+    }
 }
 
 /// Stage 1 for a chunk of `len_in` tree samples: every sub-band's top rows over the
@@ -149,15 +192,7 @@ fn stage1(kernel: &StepKernel, src: &Source<'_>, len_in: usize, buf: &mut Vec<f3
     kernel.subbands.par_iter().zip(slabs).for_each_init(
         TileScratch::default,
         |scratch, (sub, slab)| {
-            subband_rows(
-                sub,
-                kernel.tree_ds,
-                src,
-                len_in + sub.max_offset,
-                stride,
-                slab,
-                scratch,
-            )
+            subband_rows(sub, src, len_in + sub.max_offset, stride, slab, scratch)
         },
     );
     stride
@@ -166,7 +201,6 @@ fn stage1(kernel: &StepKernel, src: &Source<'_>, len_in: usize, buf: &mut Vec<f3
 /// One sub-band's top rows for tree samples `0..need` of the chunk, tile by tile.
 fn subband_rows(
     sub: &SubBand,
-    tree_ds: usize,
     src: &Source<'_>,
     need: usize,
     stride: usize,
@@ -180,8 +214,8 @@ fn subband_rows(
         let width = len + halo;
         grow(&mut scratch.channels, n_chan * width);
         for (row, &c) in scratch.channels.chunks_exact_mut(width).zip(&sub.channels) {
-            let chan = &src.input[c * src.n_time..(c + 1) * src.n_time];
-            downsample_into(chan, (src.t0_in + a) * tree_ds, tree_ds, row);
+            let chan = &src.rows[c * src.row_len..(c + 1) * src.row_len];
+            copy_from(chan, src.t0 + a, row);
         }
         let rows = sub.tree.max_rows(n_chan);
         let [even, odd] = &mut scratch.levels;
@@ -294,21 +328,14 @@ fn grow(buf: &mut Vec<f32>, n: usize) {
     }
 }
 
-/// `row[j]` = sum of `chan[start + j·ds ..][..ds]`. Paths never reach past the block
-/// (their length is capped at the plan's largest delay), so the zero tail that a
+/// `row` = `chan[start..]`, zero past the end of the block. Paths never reach past
+/// the block (their length is capped at the plan's largest delay), so the zero tail a
 /// chunk's last tile may carry is never summed into a valid output.
-fn downsample_into(chan: &[f32], start: usize, ds: usize, row: &mut [f32]) {
+fn copy_from(chan: &[f32], start: usize, row: &mut [f32]) {
     let avail = chan.get(start..).unwrap_or(&[]);
-    let full = (avail.len() / ds).min(row.len());
-    let (head, tail) = row.split_at_mut(full);
-    if ds == 1 {
-        head.copy_from_slice(&avail[..full]);
-    } else {
-        for (o, group) in head.iter_mut().zip(avail.chunks_exact(ds)) {
-            *o = group.iter().sum();
-        }
-    }
-    tail.fill(0.0);
+    let n = avail.len().min(row.len());
+    row[..n].copy_from_slice(&avail[..n]);
+    row[n..].fill(0.0);
 }
 
 /// One tree level over a tile: each output row over the samples it must supply;
