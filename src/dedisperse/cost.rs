@@ -12,9 +12,8 @@ pub struct PlanCost {
     /// Additions per second of data by the reference kernel: every trial sums
     /// `n_chan` samples per input sample.
     pub reference_adds_per_s: f64,
-    /// Additions per second of data by the fast kernel: sub-band tree merges and
-    /// per-trial sub-band sums per tree sample, plus the chunk overlap, downsampling
-    /// and the final pair sums.
+    /// Additions per second of data by the fast kernel: sub-band tree merges (with
+    /// the chunk overlap), phase sums and per-trial sub-band sums, and downsampling.
     pub fast_adds_per_s: f64,
     /// Scratch memory of the fast kernel (the stage-1 rows of one chunk), bytes.
     pub fast_scratch_bytes: f64,
@@ -44,12 +43,13 @@ impl DmPlan {
             let tree_ds = kernel.tree_ds as f64;
             let chunk = chunk_len(kernel.max_path) as f64;
             let overlap = 1.0 + kernel.max_path as f64 / chunk;
-            fast += kernel.adds_per_sample() as f64 * overlap * per_s / tree_ds;
-            fast += n_chan * (tree_ds - 1.0) / tree_ds * overlap * per_s;
-            let out_per_s = step.dms.len() as f64 * per_s / step.downsample as f64;
-            fast += out_per_s * (kernel.per_out - 1) as f64;
-            scratch = scratch.max(kernel.n_rows() as f64 * (chunk + kernel.max_path as f64) * 4.0);
-            output += out_per_s * 4.0;
+            let ds = step.downsample as f64;
+            fast += kernel.stage1_adds_per_sample() as f64 * overlap * per_s / tree_ds;
+            fast += kernel.stage2_adds_per_sample() as f64 * per_s / ds;
+            fast += n_chan * (tree_ds - 1.0) / tree_ds * per_s;
+            let rows = (kernel.n_rows() * kernel.per_out) as f64;
+            scratch = scratch.max(rows * (chunk + kernel.max_path as f64) / ds * tree_ds * 4.0);
+            output += step.dms.len() as f64 * per_s / ds * 4.0;
         }
         PlanCost {
             reference_adds_per_s: self.n_trials() as f64 * n_chan * per_s,

@@ -20,10 +20,10 @@ use super::{Dedispersed, DmPlan};
 const CHUNK_PER_PATH: usize = 4;
 /// Smallest chunk, tree samples.
 const MIN_CHUNK: usize = 2048;
-/// Stage-1 time tile, tree samples: a sub-band's tree levels stay in L2/L3.
+/// Stage-1 time tile, tree samples (a multiple of every `per_out`): a sub-band's tree
+/// levels stay in L2/L3.
 const STAGE1_TILE: usize = 512;
-/// Stage-2 work unit: trials per task, and time tile in tree samples (even, so that
-/// pairs of tree samples never straddle tiles).
+/// Stage-2 work unit: trials per task, and time tile in output samples.
 const STAGE2_DMS: usize = 16;
 const STAGE2_TILE: usize = 1024;
 
@@ -115,7 +115,7 @@ impl FastDedisperser {
                         row_len,
                         t0: t0 * kernel.per_out,
                     };
-                    let stride = stage1(kernel, &source, len * kernel.per_out, &mut self.stage1);
+                    let stride = stage1(kernel, &source, len, &mut self.stage1);
                     stage2(kernel, &self.stage1, stride, t0, len, &mut data, n_out);
                 }
             }
@@ -171,51 +171,72 @@ fn pair_sums(dst: &mut [f32], src: &[f32]) {
     }
 }
 
-/// Stage 1 for a chunk of `len_in` tree samples: every sub-band's top rows over the
-/// samples stage 2 will read, into `buf` (`[row, stride]`). Returns the stride.
-fn stage1(kernel: &StepKernel, src: &Source<'_>, len_in: usize, buf: &mut Vec<f32>) -> usize {
+/// Stage 1 for a chunk of `len` output samples: every sub-band's top rows over the
+/// samples stage 2 will read, into `buf`. Each top row is stored once per phase φ <
+/// `per_out` as the sums of `per_out` tree samples starting at `per_out·j + φ`, so
+/// stage 2 runs at the output rate while delays keep the tree's resolution. Layout
+/// `[row · per_out + φ, stride]`; returns the stride (output samples).
+fn stage1(kernel: &StepKernel, src: &Source<'_>, len: usize, buf: &mut Vec<f32>) -> usize {
+    let per_out = kernel.per_out;
+    let need = |max_offset: usize| len + max_offset / per_out + 1;
     let max_offset = kernel
         .subbands
         .iter()
         .map(|s| s.max_offset)
         .max()
         .unwrap_or(0);
-    let stride = len_in + max_offset;
-    grow(buf, kernel.n_rows() * stride);
+    let stride = need(max_offset);
+    grow(buf, kernel.n_rows() * per_out * stride);
     let mut slabs = Vec::with_capacity(kernel.subbands.len());
     let mut rest = &mut buf[..];
     for sub in &kernel.subbands {
-        let (slab, tail) = rest.split_at_mut(sub.tree.n_top_rows(sub.channels.len()) * stride);
+        let n_rows = sub.tree.n_top_rows(sub.channels.len()) * per_out;
+        let (slab, tail) = rest.split_at_mut(n_rows * stride);
         slabs.push(slab);
         rest = tail;
     }
     kernel.subbands.par_iter().zip(slabs).for_each_init(
         TileScratch::default,
         |scratch, (sub, slab)| {
-            subband_rows(sub, src, len_in + sub.max_offset, stride, slab, scratch)
+            let rows = Phased {
+                slab,
+                stride,
+                per_out,
+            };
+            subband_rows(sub, src, need(sub.max_offset), rows, scratch)
         },
     );
     stride
 }
 
-/// One sub-band's top rows for tree samples `0..need` of the chunk, tile by tile.
+/// A sub-band's share of the stage-1 buffer.
+struct Phased<'a> {
+    slab: &'a mut [f32],
+    stride: usize,
+    per_out: usize,
+}
+
+/// One sub-band's phased top rows for output samples `0..need`, tile by tile.
 fn subband_rows(
     sub: &SubBand,
     src: &Source<'_>,
     need: usize,
-    stride: usize,
-    slab: &mut [f32],
+    out: Phased<'_>,
     scratch: &mut TileScratch,
 ) {
     let halo = sub.tree.max_path;
     let n_chan = sub.channels.len();
-    for a in (0..need).step_by(STAGE1_TILE) {
-        let len = STAGE1_TILE.min(need - a);
+    let per_out = out.per_out;
+    let tile = STAGE1_TILE / per_out;
+    for j0 in (0..need).step_by(tile) {
+        let n_j = tile.min(need - j0);
+        // The last phase reads one tree sample past the tile.
+        let len = n_j * per_out + per_out - 1;
         let width = len + halo;
         grow(&mut scratch.channels, n_chan * width);
         for (row, &c) in scratch.channels.chunks_exact_mut(width).zip(&sub.channels) {
             let chan = &src.rows[c * src.row_len..(c + 1) * src.row_len];
-            copy_from(chan, src.t0 + a, row);
+            copy_from(chan, src.t0 + j0 * per_out, row);
         }
         let rows = sub.tree.max_rows(n_chan);
         let [even, odd] = &mut scratch.levels;
@@ -234,13 +255,24 @@ fn subband_rows(
             n if n % 2 == 1 => even,
             _ => odd,
         };
-        for (out, row) in slab.chunks_exact_mut(stride).zip(top.chunks_exact(width)) {
-            out[a..a + len].copy_from_slice(&row[..len]);
+        let dst_rows = out.slab.chunks_exact_mut(out.stride);
+        for (i, dst) in dst_rows.enumerate() {
+            let (r, phase) = (i / per_out, i % per_out);
+            let src_row = &top[r * width + phase..][..n_j * per_out];
+            let dst = &mut dst[j0..j0 + n_j];
+            if per_out == 1 {
+                dst.copy_from_slice(src_row);
+            } else {
+                for (o, group) in dst.iter_mut().zip(src_row.chunks_exact(per_out)) {
+                    *o = group.iter().sum();
+                }
+            }
         }
     }
 }
 
-/// Stage 2: output samples `t0..t0 + len` of every trial into `data` (`[dm, n_out]`).
+/// Stage 2: output samples `t0..t0 + len` of every trial into `data` (`[dm, n_out]`):
+/// for each sub-band, the phase of its row matching its delay, from that delay on.
 fn stage2(
     kernel: &StepKernel,
     stage1: &[f32],
@@ -254,24 +286,19 @@ fn stage2(
     let per_out = kernel.per_out;
     data.par_chunks_mut(n_out * STAGE2_DMS)
         .enumerate()
-        .for_each_init(
-            || vec![0.0f32; STAGE2_TILE],
-            |acc, (block, series)| {
-                for a in (0..len * per_out).step_by(STAGE2_TILE) {
-                    let tile = STAGE2_TILE.min(len * per_out - a);
-                    for (j, row) in series.chunks_exact_mut(n_out).enumerate() {
-                        let k = block * STAGE2_DMS + j;
-                        let paths = (k * n_sub..(k + 1) * n_sub)
-                            .map(|i| kernel.rows[i] * stride + kernel.offsets[i] + a);
-                        accumulate(&mut acc[..tile], stage1, paths);
-                        let out = &mut row[t0 + a / per_out..][..tile / per_out];
-                        for (o, pair) in out.iter_mut().zip(acc.chunks_exact(per_out)) {
-                            *o = pair.iter().sum();
-                        }
-                    }
+        .for_each(|(block, series)| {
+            for a in (0..len).step_by(STAGE2_TILE) {
+                let tile = STAGE2_TILE.min(len - a);
+                for (j, row) in series.chunks_exact_mut(n_out).enumerate() {
+                    let k = block * STAGE2_DMS + j;
+                    let paths = (k * n_sub..(k + 1) * n_sub).map(|i| {
+                        let (row, offset) = (kernel.rows[i], kernel.offsets[i]);
+                        (row * per_out + offset % per_out) * stride + offset / per_out + a
+                    });
+                    accumulate(&mut row[t0 + a..t0 + a + tile], stage1, paths);
                 }
-            },
-        );
+            }
+        });
 }
 
 /// `acc` = sum of the `acc.len()` samples of `stage1` starting at each of `starts`,

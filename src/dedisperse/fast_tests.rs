@@ -210,7 +210,7 @@ fn fdmt_toy_case_recovers_pulse_and_noise() {
 
     // Cost: the paper's speed-up is about N_f/log2(N_f) = 10.7 over brute force.
     let brute = 64 * 256;
-    let tree = fast.steps[0].adds_per_sample();
+    let tree = fast.steps[0].stage1_adds_per_sample() + fast.steps[0].stage2_adds_per_sample();
     assert!(
         brute >= 8 * tree,
         "tree {tree} vs brute {brute} adds per sample"

@@ -107,11 +107,16 @@ impl StepKernel {
             .sum()
     }
 
-    /// Additions per tree sample: stage-1 merges plus stage-2 sums.
-    pub(crate) fn adds_per_sample(&self) -> usize {
+    /// Stage-1 additions per tree sample (tree merges).
+    pub(crate) fn stage1_adds_per_sample(&self) -> usize {
+        self.subbands.iter().map(|s| s.tree.adds_per_sample()).sum()
+    }
+
+    /// Stage-2 additions per output sample: phase sums and per-trial sub-band sums.
+    pub(crate) fn stage2_adds_per_sample(&self) -> usize {
         let n_dm = self.rows.len() / self.subbands.len().max(1);
-        let stage1: usize = self.subbands.iter().map(|s| s.tree.adds_per_sample()).sum();
-        stage1 + n_dm * self.subbands.len().saturating_sub(1)
+        self.n_rows() * self.per_out * (self.per_out - 1)
+            + n_dm * self.subbands.len().saturating_sub(1)
     }
 
     /// The delay (tree samples) applied to each channel (data order) for trial `k`.
