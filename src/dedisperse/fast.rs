@@ -22,7 +22,7 @@ const CHUNK_PER_PATH: usize = 4;
 const MIN_CHUNK: usize = 2048;
 /// Stage-1 time tile, tree samples (a multiple of every `per_out`): a sub-band's tree
 /// levels stay in L2/L3.
-const STAGE1_TILE: usize = 512;
+const STAGE1_TILE: usize = 2048;
 /// Stage-2 work unit: trials per task, and time tile in output samples.
 const STAGE2_DMS: usize = 16;
 const STAGE2_TILE: usize = 1024;
