@@ -1,5 +1,7 @@
 //! `burstbook plan`: choose trial DMs and time resolutions for a band, and show the cost.
 
+use std::fmt::Write as _;
+use std::io::Write as _;
 use std::path::PathBuf;
 
 use anyhow::{Context, bail};
@@ -8,7 +10,7 @@ use burstbook::dedisperse::{DmPlan, PlanReport, PlanRequest, channel_centres_mhz
 const EXAMPLES: &str = "\
 Examples:
   # Plan for an observation's own band and sample time
-  burstbook plan demo-data/obs.json --dm-max 1500
+  burstbook plan demo-data/demo.json --dm-max 1500
 
   # Plan for a band given by hand: 1024 channels over 1200-1600 MHz, 64 us samples
   burstbook plan --freq-lo-mhz 1200 --freq-hi-mhz 1600 --channels 1024 --tsamp-us 64 \\
@@ -69,12 +71,16 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     };
     let plan = DmPlan::build(&freqs, chan_bw, tsamp_s, &request).context("planning trial DMs")?;
     let report = plan.report();
-    if args.json {
-        println!("{}", serde_json::to_string_pretty(&report)?);
+    let text = if args.json {
+        serde_json::to_string_pretty(&report)? + "\n"
     } else {
-        print_report(&report, &request);
+        format_report(&report, &request)?
+    };
+    // A closed pipe (e.g. `| head`) is not an error worth reporting.
+    match std::io::stdout().lock().write_all(text.as_bytes()) {
+        Err(e) if e.kind() != std::io::ErrorKind::BrokenPipe => Err(e.into()),
+        _ => Ok(()),
     }
-    Ok(())
 }
 
 /// Channel centres (MHz), channel width (MHz) and sample time (s) from the file or flags.
@@ -104,7 +110,8 @@ fn band(args: &Args) -> anyhow::Result<(Vec<f64>, f64, f64)> {
     }
 }
 
-fn print_report(report: &PlanReport, request: &PlanRequest) {
+fn format_report(report: &PlanReport, request: &PlanRequest) -> Result<String, std::fmt::Error> {
+    let mut out = String::new();
     let plan = &report.plan;
     let lo = plan.freqs_mhz.iter().copied().fold(f64::INFINITY, f64::min);
     let hi = plan
@@ -113,15 +120,17 @@ fn print_report(report: &PlanReport, request: &PlanRequest) {
         .copied()
         .fold(f64::NEG_INFINITY, f64::max);
     let half = plan.chan_bw_mhz.abs() / 2.0;
-    println!(
+    writeln!(
+        out,
         "Band {:.3}-{:.3} MHz, {} channels of {:.4} MHz, {:.1} us samples",
         lo - half,
         hi + half,
         plan.freqs_mhz.len(),
         plan.chan_bw_mhz.abs(),
         plan.tsamp_s * 1e6
-    );
-    println!(
+    )?;
+    writeln!(
+        out,
         "DM {}-{} pc cm^-3, tolerance {}, minimum width {} ms: {} trials in {} steps\n",
         request.dm_min,
         request.dm_max,
@@ -129,13 +138,15 @@ fn print_report(report: &PlanReport, request: &PlanRequest) {
         request.min_width_s * 1e3,
         report.n_trials,
         report.steps.len()
-    );
-    println!(
+    )?;
+    writeln!(
+        out,
         "{:>10} {:>10} {:>7} {:>10} {:>12} {:>21}",
         "DM first", "DM last", "trials", "downsample", "resolution", "DM spacing first/last"
-    );
+    )?;
     for s in &report.steps {
-        println!(
+        writeln!(
+            out,
             "{:>10.3} {:>10.3} {:>7} {:>10} {:>9.1} us {:>10.4} / {:<9.4}",
             s.dm_first,
             s.dm_last,
@@ -144,24 +155,32 @@ fn print_report(report: &PlanReport, request: &PlanRequest) {
             s.resolution_s * 1e6,
             s.dm_step_first,
             s.dm_step_last
-        );
+        )?;
     }
     let c = &report.cost;
-    println!("\nPer second of data:");
-    println!(
+    writeln!(out, "\nPer second of data:")?;
+    writeln!(
+        out,
         "  reference kernel   {:.3e} additions",
         c.reference_adds_per_s
-    );
-    println!(
+    )?;
+    writeln!(
+        out,
         "  fast kernel        {:.3e} additions ({:.0}x fewer)",
         c.fast_adds_per_s,
         c.reference_adds_per_s / c.fast_adds_per_s.max(1.0)
-    );
-    println!("  output             {:.1} MB", c.output_bytes_per_s / 1e6);
-    println!(
+    )?;
+    writeln!(
+        out,
+        "  output             {:.1} MB",
+        c.output_bytes_per_s / 1e6
+    )?;
+    writeln!(
+        out,
         "Fast-kernel scratch {:.0} MB; each block must overlap the next by {} samples ({:.3} s).",
         c.fast_scratch_bytes / 1e6,
         c.overlap_samples,
         c.overlap_samples as f64 * plan.tsamp_s
-    );
+    )?;
+    Ok(out)
 }
