@@ -61,13 +61,13 @@ fn correlation(a: &[f32], b: &[f32]) -> f64 {
     ab / (aa * bb).sqrt()
 }
 
-/// A plan with three steps (full, 2× and 4× downsampled) starting above DM 0.
+/// A plan with four steps (full, 2×, 4× and 8× downsampled) starting above DM 0.
 fn awkward_plan(freqs: Vec<f64>, bw: f64, tsamp: f64, dm_lo: f64, dm_hi: f64) -> DmPlan {
-    let third = (dm_hi - dm_lo) / 3.0;
-    let steps = (0..3)
+    let quarter = (dm_hi - dm_lo) / 4.0;
+    let steps = (0..4)
         .map(|s| DmStep {
             dms: (0..7)
-                .map(|k| dm_lo + third * (s as f64 + k as f64 / 7.0))
+                .map(|k| dm_lo + quarter * (s as f64 + k as f64 / 7.0))
                 .collect(),
             downsample: 1 << s,
         })
@@ -82,11 +82,12 @@ fn awkward_plan(freqs: Vec<f64>, bw: f64, tsamp: f64, dm_lo: f64, dm_hi: f64) ->
 
 // Seeded random inputs with awkward shapes: prime channel counts, one channel, short
 // blocks, ascending and descending bands, masked (zeroed) channels, DMs above 0 and
-// downsampled steps. The fast kernel must equal an explicit sum along the paths its
-// tree traces (exact up to f32 summation order); those paths must stay close to the
-// ideal per-channel delays (the tree's rounding accumulates over its levels: rms
-// ≤ 0.6, worst ≤ 2.5 tree samples, against 0.29 and 0.5 for the reference's
-// independent rounding); and each row must correlate with the reference row.
+// downsampled steps (×2, ×4, ×8: the block is halved in time up to twice). The fast
+// kernel must equal an explicit sum along the paths it traces (exact up to f32
+// summation order); those paths must stay close to the ideal per-channel delays (the
+// tree's rounding accumulates over its levels: rms ≤ 0.6, worst ≤ 2.5 tree samples,
+// against 0.29 and 0.5 for the reference's independent rounding); and each row must
+// correlate with the reference row at the same DM.
 #[test]
 fn fast_kernel_matches_its_paths_and_tracks_the_reference() {
     let mut rng = ChaCha8Rng::seed_from_u64(20_170_111);
