@@ -7,16 +7,14 @@
 //! along the dispersion curve with a total delay of `d` (downsampled) samples from its
 //! highest to its lowest channel centre. Merging an upper node U with a lower node L:
 //!
-//! `node[d, t] = U[d_U, t] + L[d − s, t + s]`, with `d_U = round(d·f_U)` and
-//! `s = round(d·f_L)`, where `f_U`, `f_L` are the fractions of the node's ν⁻² span
-//! from its top to the bottom of U and to the top of L. Every path picks exactly one
-//! sample per channel, like the reference kernel, so the noise of every output row is
-//! the same (see `docs/dedisperse.md`).
+//! `node[d, t] = U[d_U, t] + L[d − s, t + s]`, with `d_U` the floor or ceil of `d·f_U`
+//! and `s` that of `d·f_L` — whichever pair best fits the dispersion curve over the
+//! node's channels (least squares) — where `f_U`, `f_L` are the fractions of the node's
+//! ν⁻² span from its top to the bottom of U and to the top of L. Every path picks
+//! exactly one sample per channel, like the reference kernel, so every output row has
+//! the same noise (see `docs/dedisperse.md`).
 
 use crate::units::delay_between_s;
-
-/// Extra candidate rows on each side of the floor/ceil split.
-const SLACK: usize = 0;
 
 /// One row of a level: `row[t] = prev[upper][t] + prev[lower][t + shift]`, needed for
 /// `t < chunk + reach` (`lower = None` copies `upper`).
@@ -161,7 +159,7 @@ impl StepTree {
                         let widen = |child: &mut Node, lo: usize, hi: usize| {
                             (child.lo, child.hi) = match child.count {
                                 1 => (0, 0),
-                                _ => (lo.saturating_sub(SLACK), hi + SLACK),
+                                _ => (lo, hi),
                             };
                         };
                         widen(&mut prev[u], floor(node.lo, f_u), ceil(node.hi, f_u));
@@ -331,10 +329,7 @@ fn best_split(d: usize, up: &Node, low: &Node, f_u: f64, f_l: f64) -> (Fit, Choi
     let x = d as f64;
     let (x_u, x_l) = (x * f_u, x * (1.0 - f_l));
     let mut best: Option<(f64, Fit, Choice)> = None;
-    let around = |v: f64| {
-        let lo = (v.floor() as usize).saturating_sub(SLACK);
-        (lo..=(v.ceil() as usize + SLACK).min(d)).collect::<Vec<_>>()
-    };
+    let around = |v: f64| (v.floor() as usize)..=(v.ceil() as usize).min(d);
     for du in around(x_u) {
         let Some(fu) = du.checked_sub(up.lo).and_then(|i| up.fits.get(i)) else {
             continue;
