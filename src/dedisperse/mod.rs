@@ -11,7 +11,7 @@
 //!   from the block start;
 //! - every step yields `(n_time - plan.max_delay_samples()) / downsample` valid samples.
 //!
-//! Kernels: [`reference`] (per-channel shifts, the plain check) and
+//! Kernels: [`reference`](mod@reference) (per-channel shifts, the plain check) and
 //! [`FastDedisperser`]: merge trees inside 64-channel sub-bands (after the FDMT,
 //! Zackay & Ofek 2017, ApJ 835, 11), then per-trial sums of one row per sub-band.
 //! Its delays are rounded along the trees — at half the output sample for
