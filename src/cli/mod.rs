@@ -5,6 +5,7 @@ mod barycentre;
 mod book;
 mod inject;
 mod inspect;
+mod plan;
 mod search;
 mod simulate;
 
@@ -32,6 +33,8 @@ enum Command {
     Barycentre(barycentre::Args),
     /// The burst catalogue: query, label, promote, sources, exposure, summary, VOEvent.
     Book(book::Args),
+    /// Choose trial DMs and time resolutions for a band, and estimate the cost.
+    Plan(plan::Args),
 }
 
 /// Runs the chosen subcommand.
@@ -43,5 +46,6 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Inject(a) => inject::run(a),
         Command::Barycentre(a) => barycentre::run(a),
         Command::Book(a) => book::run(a),
+        Command::Plan(a) => plan::run(a),
     }
 }
