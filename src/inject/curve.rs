@@ -51,7 +51,7 @@ pub fn fit_probit(x: &[f64], found: &[bool]) -> Option<ProbitFit> {
     let n = x.len() as f64;
     let mean = x.iter().sum::<f64>() / n;
     let sd = (x.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / n).sqrt();
-    if !(sd > 0.0) {
+    if sd.is_nan() || sd <= 0.0 {
         return None;
     }
     let (mut a, mut b) = (0.0f64, 1.0f64);
@@ -74,7 +74,7 @@ pub fn fit_probit(x: &[f64], found: &[bool]) -> Option<ProbitFit> {
             swzy += w * z * y;
         }
         let det = sw * swzz - swz * swz;
-        if !(det.abs() > 1e-300) {
+        if det.is_nan() || det.abs() <= 1e-300 {
             break;
         }
         let nb = (sw * swzy - swz * swy) / det;
