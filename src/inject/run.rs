@@ -159,7 +159,9 @@ where
         .map(|c| candidate_span(c, &header))
         .collect();
     let bursts: Vec<Burst> = drawn.iter().map(|d| d.burst).collect();
-    let placed = place(&bursts, &header, guard, &busy, &mut rng)?;
+    // The search looks for pulse starts only where every trial DM can be dedispersed.
+    let start_limit = header.n_samples as i64 - (layout.max_delay + layout.margin) as i64;
+    let placed = place(&bursts, &header, guard, &busy, start_limit, &mut rng)?;
     let n_passes = placed.iter().map(|p| p.pass + 1).max().unwrap_or(0);
     if let Some(pb) = progress {
         pb.set_length(1 + n_passes as u64);

@@ -1,7 +1,10 @@
 //! Placing injected bursts in time: no two bursts of one pass overlap (dispersion
 //! sweep and pulse extent plus a guard), none touches a candidate the search already
-//! finds in the untouched data, and every burst lies wholly inside the file. Bursts
-//! that do not fit go to a further pass over the file.
+//! finds in the untouched data, every burst lies wholly inside the file, and every
+//! burst starts where the search looks for pulse starts (the last `max_delay`
+//! samples of a file cannot be dedispersed at the highest trial DM, so the search
+//! leaves them out of its exposure, `samples_searched`; completeness is measured
+//! within that exposure, not across it). Bursts that do not fit go to a further pass.
 
 use rand::Rng;
 use rand_chacha::ChaCha8Rng;
@@ -28,7 +31,8 @@ pub struct Placed {
 /// over as few passes as the first-fit random placement needs.
 ///
 /// `guard` samples are kept free on both sides of every burst's extent
-/// ([`Burst::sample_span`]); `busy` are sample ranges `[first, end)` no burst may touch.
+/// ([`Burst::sample_span`]); `busy` are sample ranges `[first, end)` no burst may
+/// touch; a burst's extent starts before sample `start_limit`.
 ///
 /// # Errors
 /// A burst whose sweep is longer than the file, or no free room in an empty pass.
@@ -37,6 +41,7 @@ pub fn place(
     header: &Header,
     guard: i64,
     busy: &[(i64, i64)],
+    start_limit: i64,
     rng: &mut ChaCha8Rng,
 ) -> Result<Vec<Placed>> {
     let n = header.n_samples as i64;
@@ -46,11 +51,12 @@ pub fn place(
         let at_zero = Burst { t_inf_s: 0.0, ..*b };
         let (a, e) = at_zero.sample_span(header);
         // Whole samples of freedom, kept one sample inside so rounding cannot spill.
-        let (lo, hi) = (-a + 1, n - e - 1);
+        let (lo, hi) = (-a + 1, (n - e).min(start_limit - a) - 1);
         if hi <= lo {
             return Err(Error::Config(format!(
                 "a burst at DM {:.1} of width {:.3} ms spans {} samples with its sweep, \
-                 longer than the file ({n} samples)",
+                 longer than the searched part of the file ({n} samples, pulse starts \
+                 searched before sample {start_limit})",
                 b.dm,
                 b.width_s * 1e3,
                 e - a
@@ -121,6 +127,7 @@ mod tests {
             &header,
             guard,
             &busy,
+            19_000,
             &mut ChaCha8Rng::seed_from_u64(9),
         )
         .unwrap();
@@ -135,7 +142,7 @@ mod tests {
                 .collect();
             spans.sort();
             for s in &spans {
-                assert!(s.0 >= 0 && s.1 <= 20_000, "{s:?}");
+                assert!(s.0 >= 0 && s.1 <= 20_000 && s.0 < 19_000, "{s:?}");
                 assert!(
                     s.1 + guard <= 5000 || s.0 >= 6000 + guard,
                     "{s:?} touches busy"
@@ -158,7 +165,15 @@ mod tests {
             spectrum: Spectrum::PowerLaw { index: 0.0 },
             amplitude: 1.0,
         };
-        let e = place(&[b], &header, 0, &[], &mut ChaCha8Rng::seed_from_u64(1)).unwrap_err();
-        assert!(e.to_string().contains("longer than the file"), "{e}");
+        let e = place(
+            &[b],
+            &header,
+            0,
+            &[],
+            1000,
+            &mut ChaCha8Rng::seed_from_u64(1),
+        )
+        .unwrap_err();
+        assert!(e.to_string().contains("longer than the searched part"), "{e}");
     }
 }
