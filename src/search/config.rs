@@ -84,7 +84,11 @@ pub struct SearchConfig {
 impl Default for SearchConfig {
     fn default() -> Self {
         SearchConfig {
-            plan: PlanRequest::default(),
+            // Wide enough for the highest-DM bursts of the demo survey.
+            plan: PlanRequest {
+                dm_max: 2000.0,
+                ..PlanRequest::default()
+            },
             snr_threshold: 7.0,
             max_width_s: 0.1,
             width_ratio: std::f64::consts::SQRT_2,

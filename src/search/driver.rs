@@ -30,7 +30,7 @@ use super::trials::{self, TrialCount};
 use super::{SearchConfig, plan::build_plan};
 use crate::candidate::Candidate;
 use crate::clean::{self, impulse, user_mask::static_mask, zero_dm};
-use crate::cluster::{Detection, friends_of_friends};
+use crate::cluster::{Cluster, Detection, Sweep, friends_of_friends, merge_dispersion_tails};
 use crate::dedisperse::{self, DmPlan};
 use crate::error::{Error, Result};
 use crate::obs::{Block, BlockReader, Header, SampleSource};
@@ -165,6 +165,7 @@ struct Searcher<'a> {
     dm_offsets: Vec<usize>,
     static_mask: Vec<bool>,
     layout: BlockLayout,
+    sweep: Sweep,
 }
 
 /// What one block contributed.
@@ -234,6 +235,15 @@ impl<'a> Searcher<'a> {
                 Some(o)
             })
             .collect();
+        let k = crate::units::DISPERSION_CONSTANT_S_MHZ2;
+        let inv_f2 = |f: f64| k / (f * f);
+        let sweep = Sweep {
+            tsamp_s: header.tsamp_s,
+            top_s_per_dm: inv_f2(header.freq_hi_mhz()),
+            mean_s_per_dm: header.freqs_mhz.iter().map(|&f| inv_f2(f)).sum::<f64>()
+                / header.n_chan() as f64,
+            band_s_per_dm: inv_f2(header.freq_lo_mhz()) - inv_f2(header.freq_hi_mhz()),
+        };
         let static_mask = static_mask(&header.freqs_mhz, &header.weights, &config.clean.masks_mhz);
         Searcher {
             label,
@@ -244,6 +254,7 @@ impl<'a> Searcher<'a> {
             dm_offsets,
             static_mask,
             layout,
+            sweep,
         }
     }
 
@@ -282,22 +293,13 @@ impl<'a> Searcher<'a> {
         let (own_lo, own_hi) = g.owned_range(block.start_sample, n_time, first, last);
         let used_bw = (n_chan - n_masked) as f64 * self.header.chan_bw_mhz;
         let time_link = (self.config.cluster.time_link_s / self.header.tsamp_s).round() as u64;
-        let candidates =
-            friends_of_friends(&detections, self.config.cluster.dm_link_trials, time_link)
-                .into_iter()
-                .filter(|c| (own_lo..own_hi).contains(&c.best.start_sample))
-                .map(|c| {
-                    let measured = features::measure(&data, &c.best);
-                    let (verdict, reasons) = triage::verdict(
-                        &measured.features,
-                        c.best.snr,
-                        c.best.dm,
-                        measured.expected_dm0_ratio,
-                        &self.config.triage,
-                    );
-                    self.candidate(&c, verdict, reasons, measured.features, used_bw)
-                })
-                .collect();
+        let clusters =
+            friends_of_friends(&detections, self.config.cluster.dm_link_trials, time_link);
+        let candidates = merge_dispersion_tails(clusters, &self.sweep, time_link as f64)
+            .into_iter()
+            .filter(|c| (own_lo..own_hi).contains(&c.best.start_sample))
+            .map(|c| self.judge(&data, &c, used_bw))
+            .collect();
         let searched_hi =
             (block.start_sample + n_time.saturating_sub(g.max_delay) as u64).min(own_hi);
         BlockOutcome {
@@ -362,14 +364,18 @@ impl<'a> Searcher<'a> {
         dm0
     }
 
-    fn candidate(
-        &self,
-        c: &crate::cluster::Cluster,
-        verdict: crate::Verdict,
-        reasons: Vec<String>,
-        features: crate::TriageFeatures,
-        used_bw_mhz: f64,
-    ) -> Candidate {
+    /// Measures a cluster's features, triages it and turns it into a candidate.
+    fn judge(&self, data: &BlockData<'_>, c: &Cluster, used_bw_mhz: f64) -> Candidate {
+        let measured = features::measure(data, &c.best);
+        let expectation = triage::Expectation {
+            snr: c.best.snr,
+            dm: c.best.dm,
+            dm0_ratio: measured.expected_dm0_ratio,
+            dm0_noise_snr: measured.dm0_noise_snr,
+        };
+        let (verdict, reasons) =
+            triage::verdict(&measured.features, &expectation, &self.config.triage);
+        let features = measured.features;
         let h = &self.header;
         let best = &c.best;
         let width_s = best.width_samples as f64 * h.tsamp_s;
