@@ -44,7 +44,7 @@ pub fn median_sigma(values: &[f32], stride: usize, scratch: &mut Vec<f32>) -> (f
 /// pulses and spikes.
 pub fn clipped_mean_sigma(values: &[f32], clip: f64, scratch: &mut Vec<f32>) -> (f32, f32) {
     let (med, sigma0) = median_sigma(values, (values.len() / 2048).max(1), scratch);
-    if !(sigma0 > 0.0) {
+    if sigma0.is_nan() || sigma0 <= 0.0 {
         return (med, sigma0);
     }
     let limit = clip * f64::from(sigma0);

@@ -52,7 +52,7 @@ pub fn modulation_index(spectrum: &[f64], noise_var: f64) -> f64 {
         return 0.0;
     }
     let mean = spectrum.iter().sum::<f64>() / n;
-    if !(mean > 0.0) {
+    if mean.is_nan() || mean <= 0.0 {
         return 0.0;
     }
     let var = spectrum.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / n;
@@ -69,7 +69,7 @@ pub fn band_fraction(subband_snr: &[f64]) -> f64 {
     let sum: f64 = subband_snr.iter().sum();
     let sum2: f64 = subband_snr.iter().map(|s| s * s).sum();
     let power = sum2 - n;
-    if !(power > 0.0) {
+    if power.is_nan() || power <= 0.0 {
         return 1.0;
     }
     ((sum * sum - n) / (n * power)).clamp(0.0, 1.0)

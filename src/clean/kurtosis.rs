@@ -120,8 +120,8 @@ impl ChannelKurtosis {
         };
         let (lo, hi) = sk_thresholds(m, nd, tail);
         let mut newly = 0;
-        for c in 0..self.n_chan {
-            if mask[c] || !self.is_power(c) {
+        for (c, masked) in mask.iter_mut().enumerate() {
+            if *masked || !self.is_power(c) {
                 continue;
             }
             let (mut flagged, mut total) = (0usize, 0usize);
@@ -131,7 +131,7 @@ impl ChannelKurtosis {
                 flagged += usize::from(!(lo..=hi).contains(&sk));
             }
             if total > 0 && flagged as f64 > flag_fraction * total as f64 {
-                mask[c] = true;
+                *masked = true;
                 newly += 1;
             }
         }

@@ -87,7 +87,7 @@ pub fn search_series(
     for &w in widths {
         boxcar_sums(&scratch.prefix, w, &mut scratch.sums);
         let (med, sigma) = noise_of(&scratch.sums, &mut scratch.work);
-        if !(sigma > 0.0) {
+        if sigma.is_nan() || sigma <= 0.0 {
             continue;
         }
         let level = med + threshold * sigma;
@@ -118,7 +118,7 @@ pub fn best_snr_in(series: &[f32], w: usize, lo: usize, hi: usize, scratch: &mut
     boxcar_sums(&scratch.prefix, w, &mut scratch.sums);
     let (med, sigma) = noise_of(&scratch.sums, &mut scratch.work);
     let hi = hi.min(scratch.sums.len().saturating_sub(1));
-    if !(sigma > 0.0) || scratch.sums.is_empty() || lo > hi {
+    if sigma.is_nan() || sigma <= 0.0 || scratch.sums.is_empty() || lo > hi {
         return 0.0;
     }
     scratch.sums[lo..=hi]

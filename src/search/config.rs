@@ -161,7 +161,7 @@ impl SearchConfig {
                 self.width_ratio
             ));
         }
-        if !(self.baseline_s >= 2.0 * self.max_width_s) {
+        if self.baseline_s.is_nan() || self.baseline_s < 2.0 * self.max_width_s {
             return bad(format!(
                 "baseline window {} s must be at least twice the widest boxcar {} s",
                 self.baseline_s, self.max_width_s

@@ -104,7 +104,7 @@ impl BlockData<'_> {
             points.push((f64::from(snr), expected));
         }
         let peak = points.iter().map(|p| p.0).fold(0.0, f64::max);
-        if points.len() < 3 || !(peak > 0.0) {
+        if points.len() < 3 || peak <= 0.0 {
             return 0.0;
         }
         let ss: f64 = points.iter().map(|(m, e)| (m / peak - e).powi(2)).sum();
