@@ -89,7 +89,7 @@ impl Default for SearchConfig {
                 dm_max: 2000.0,
                 ..PlanRequest::default()
             },
-            snr_threshold: 7.0,
+            snr_threshold: 7.5,
             max_width_s: 0.1,
             width_ratio: std::f64::consts::SQRT_2,
             baseline_s: 1.0,
