@@ -96,15 +96,18 @@ pub fn search_source(
         pb.set_length(searcher.header.n_samples);
     }
     let mut totals = Totals::default();
-    let mut next = reader.next_block()?;
     let mut first = true;
-    while let Some(block) = next {
-        next = reader.next_block()?;
-        let outcome = searcher.block(&block, first, next.is_none());
-        totals.add(outcome, &block);
+    while let Some(block) = reader.next_block()? {
+        let end = block.start_sample + block.n_time() as u64;
+        // A short block, or one reaching the header's length, ends the file.
+        let last = block.n_time() < geo.block_len || end >= searcher.header.n_samples;
+        totals.add(searcher.block(block, first, last));
         first = false;
         if let Some(pb) = progress {
-            pb.set_position(block.start_sample + block.n_time() as u64);
+            pb.set_position(end);
+        }
+        if last {
+            break;
         }
     }
     Ok(searcher.finish(totals))
@@ -174,6 +177,8 @@ struct BlockOutcome {
     masked_fraction: f64,
     n_detections: usize,
     samples_searched: u64,
+    /// Rows not shared with the previous block.
+    new_samples: u64,
 }
 
 #[derive(Default)]
@@ -187,10 +192,9 @@ struct Totals {
 }
 
 impl Totals {
-    fn add(&mut self, o: BlockOutcome, block: &Block) {
-        let new = (block.n_time() - block.overlap) as u64;
-        self.masked_weighted += o.masked_fraction * new as f64;
-        self.new_samples += new;
+    fn add(&mut self, o: BlockOutcome) {
+        self.masked_weighted += o.masked_fraction * o.new_samples as f64;
+        self.new_samples += o.new_samples;
         self.n_blocks += 1;
         self.n_detections += o.n_detections;
         self.samples_searched += o.samples_searched;
@@ -258,14 +262,19 @@ impl<'a> Searcher<'a> {
         }
     }
 
-    fn block(&self, block: &Block, first: bool, last: bool) -> BlockOutcome {
+    /// Searches one block; its raw samples are released once normalised.
+    fn block(&self, block: Block, first: bool, last: bool) -> BlockOutcome {
         let g = &self.layout;
         let cfg = &self.config.clean;
-        let raw = block.view();
-        let n_time = block.n_time();
+        let (start, n_time, new_samples) = (
+            block.start_sample,
+            block.n_time(),
+            (block.n_time() - block.overlap) as u64,
+        );
         let mut mask = self.static_mask.clone();
-        clean::flag_channels(raw, &mut mask, cfg);
-        let mut norm = normalise_channels(raw, &mut mask, g.baseline_len);
+        clean::flag_channels(block.view(), &mut mask, cfg);
+        let mut norm = normalise_channels(block.view(), &mut mask, g.baseline_len);
+        drop(block);
         let n_clipped = impulse::clip(norm.view_mut(), &mask, cfg.clip_threshold);
         if cfg.zero_dm {
             zero_dm::apply(norm.view_mut(), &mask);
@@ -279,7 +288,7 @@ impl<'a> Searcher<'a> {
         };
 
         let mut outs = dedisperse::reference::dedisperse(norm.view(), &self.plan);
-        let detections = self.detect(&mut outs, block.start_sample);
+        let detections = self.detect(&mut outs, start);
         let dm0 = self.dm0_series(&norm, &mask);
         let data = BlockData {
             header: &self.header,
@@ -288,9 +297,9 @@ impl<'a> Searcher<'a> {
             mask: &mask,
             dm0: &dm0,
             outs: &outs,
-            block_start: block.start_sample,
+            block_start: start,
         };
-        let (own_lo, own_hi) = g.owned_range(block.start_sample, n_time, first, last);
+        let (own_lo, own_hi) = g.owned_range(start, n_time, first, last);
         let used_bw = (n_chan - n_masked) as f64 * self.header.chan_bw_mhz;
         let time_link = (self.config.cluster.time_link_s / self.header.tsamp_s).round() as u64;
         let clusters =
@@ -300,13 +309,13 @@ impl<'a> Searcher<'a> {
             .filter(|c| (own_lo..own_hi).contains(&c.best.start_sample))
             .map(|c| self.judge(&data, &c, used_bw))
             .collect();
-        let searched_hi =
-            (block.start_sample + n_time.saturating_sub(g.max_delay) as u64).min(own_hi);
+        let searched_hi = (start + n_time.saturating_sub(g.max_delay) as u64).min(own_hi);
         BlockOutcome {
             candidates,
             masked_fraction,
             n_detections: detections.len(),
-            samples_searched: searched_hi.saturating_sub(own_lo.max(block.start_sample)),
+            samples_searched: searched_hi.saturating_sub(own_lo.max(start)),
+            new_samples,
         }
     }
 
