@@ -9,6 +9,7 @@
 //! synthetic recordings for tests and demos.
 
 pub mod candidate;
+pub mod catalogue;
 pub mod clean;
 pub mod cluster;
 pub mod dedisperse;
@@ -18,6 +19,7 @@ pub mod progress;
 pub mod robust;
 pub mod search;
 pub mod simulate;
+pub mod timing;
 pub mod triage;
 pub mod units;
 

@@ -1,7 +1,10 @@
 //! Command-line front end: one file per subcommand, each parsing its flags into
 //! library calls. No science happens here.
 
+mod barycentre;
+mod book;
 mod inspect;
+mod plan;
 mod search;
 mod simulate;
 
@@ -23,6 +26,12 @@ enum Command {
     Search(search::Args),
     /// Write a synthetic observation with known bursts and interference from a scenario file.
     Simulate(simulate::Args),
+    /// Convert topocentric UTC arrival times (CSV column mjd_utc) to barycentric TDB.
+    Barycentre(barycentre::Args),
+    /// The burst catalogue: query, label, promote, sources, exposure, summary, VOEvent.
+    Book(book::Args),
+    /// Choose trial DMs and time resolutions for a band, and estimate the cost.
+    Plan(plan::Args),
 }
 
 /// Runs the chosen subcommand.
@@ -31,5 +40,8 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Inspect(a) => inspect::run(a),
         Command::Search(a) => search::run(a),
         Command::Simulate(a) => simulate::run(a),
+        Command::Barycentre(a) => barycentre::run(a),
+        Command::Book(a) => book::run(a),
+        Command::Plan(a) => plan::run(a),
     }
 }
