@@ -135,21 +135,18 @@ pub fn merge_dispersion_tails(
     slack_samples: f64,
 ) -> Vec<Cluster> {
     clusters.sort_by(|a, b| b.best.snr.total_cmp(&a.best.snr));
-    // Arrival at infinite frequency of a detection, in samples.
-    let t_inf = |d: &Detection| {
-        d.start_sample as f64 + 0.5 * d.width_samples as f64
-            - d.dm * sweep.top_s_per_dm / sweep.tsamp_s
+    let event = |d: &Detection| Event {
+        t_inf_s: (d.start_sample as f64 + 0.5 * d.width_samples as f64) * sweep.tsamp_s
+            - d.dm * sweep.top_s_per_dm,
+        dm: d.dm,
+        width_s: d.width_samples as f64 * sweep.tsamp_s,
     };
+    let slack_s = slack_samples * sweep.tsamp_s;
     let mut leaders: Vec<Cluster> = Vec::new();
     for c in clusters {
-        let host = leaders.iter_mut().find(|l| {
-            let ddm = l.best.dm - c.best.dm;
-            let expected_shift = ddm * sweep.mean_s_per_dm / sweep.tsamp_s;
-            let smeared = (l.best.width_samples as f64)
-                .hypot(ddm.abs() * sweep.band_s_per_dm / sweep.tsamp_s);
-            let reach = 0.5 * (smeared + c.best.width_samples as f64) + slack_samples;
-            (t_inf(&c.best) - t_inf(&l.best) - expected_shift).abs() <= reach
-        });
+        let host = leaders
+            .iter_mut()
+            .find(|l| sweep.on_bow_tie(&event(&l.best), &event(&c.best), slack_s));
         match host {
             Some(l) => {
                 l.size += c.size;
@@ -161,6 +158,29 @@ pub fn merge_dispersion_tails(
     }
     leaders.sort_by_key(|c| c.best.start_sample);
     leaders
+}
+
+/// Where and how wide a detected pulse is.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Event {
+    /// Inferred arrival at infinite frequency in seconds.
+    pub t_inf_s: f64,
+    /// DM in pc cm⁻³.
+    pub dm: f64,
+    /// Boxcar width in seconds.
+    pub width_s: f64,
+}
+
+impl Sweep {
+    /// Whether `other` could be `leader` seen at a different trial DM: a pulse at DM
+    /// D seen at trial d appears at t_inf + (D − d)·k⟨ν⁻²⟩, widened by the residual
+    /// sweep |D − d|·k(ν_lo⁻² − ν_hi⁻²).
+    pub fn on_bow_tie(&self, leader: &Event, other: &Event, slack_s: f64) -> bool {
+        let ddm = leader.dm - other.dm;
+        let smeared = leader.width_s.hypot(ddm.abs() * self.band_s_per_dm);
+        let reach = 0.5 * (smeared + other.width_s) + slack_s;
+        (other.t_inf_s - leader.t_inf_s - ddm * self.mean_s_per_dm).abs() <= reach
+    }
 }
 
 #[cfg(test)]

@@ -118,8 +118,10 @@ fn false_alarms_on_pure_noise_match_the_gaussian_tail() {
         let expected = r.trials.expected_at(s);
         eprintln!("S/N >= {s}: {found} candidates, {expected:.2} expected");
         if s == 4.5 {
+            // The count is an estimate: with the planner's finely spaced low-DM trials
+            // the measured rate is about twice it (docs/search.md).
             assert!(
-                (0.5..2.0).contains(&(found / expected)),
+                (0.5..3.0).contains(&(found / expected)),
                 "{found} vs {expected}"
             );
         } else {

@@ -5,7 +5,7 @@ use serde::{Deserialize, Serialize};
 use sha2::{Digest, Sha256};
 
 use crate::clean::CleanConfig;
-use crate::dedisperse::PlanRequest;
+use crate::dedisperse::{Kernel, PlanRequest};
 use crate::error::{Error, Result};
 
 /// How detections are merged into candidates (see [`crate::cluster`]).
@@ -73,6 +73,8 @@ pub struct SearchConfig {
     pub baseline_s: f64,
     /// New samples per block in seconds (each block also carries the overlap).
     pub block_s: f64,
+    /// Dedispersion kernel (`fast` or `reference`).
+    pub kernel: Kernel,
     /// Interference excision.
     pub clean: CleanConfig,
     /// Clustering of detections into candidates.
@@ -94,6 +96,7 @@ impl Default for SearchConfig {
             width_ratio: std::f64::consts::SQRT_2,
             baseline_s: 1.0,
             block_s: 4.0,
+            kernel: Kernel::default(),
             clean: CleanConfig::default(),
             cluster: ClusterConfig::default(),
             triage: TriageConfig::default(),

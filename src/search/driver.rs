@@ -22,16 +22,18 @@ use ndarray::Array2;
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
+use super::SearchConfig;
 use super::boxcar::{self, Scratch};
 use super::features::{self, BlockData};
 use super::fluence::fluence_jy_ms;
 use super::normalise::{normalise_channels, normalise_series};
 use super::trials::{self, TrialCount};
-use super::{SearchConfig, plan::build_plan};
 use crate::candidate::Candidate;
 use crate::clean::{self, impulse, user_mask::static_mask, zero_dm};
-use crate::cluster::{Cluster, Detection, Sweep, friends_of_friends, merge_dispersion_tails};
-use crate::dedisperse::{self, DmPlan};
+use crate::cluster::{
+    Cluster, Detection, Event, Sweep, friends_of_friends, merge_dispersion_tails,
+};
+use crate::dedisperse::{self, DmPlan, FastDedisperser, Kernel};
 use crate::error::{Error, Result};
 use crate::obs::{Block, BlockReader, Header, SampleSource};
 use crate::triage;
@@ -89,19 +91,26 @@ pub fn search_source(
     config.validate()?;
     let header = source.header().clone();
     header.validate().map_err(|m| Error::bad_input(label, m))?;
-    let searcher = Searcher::new(header, config, label);
-    let geo = &searcher.layout;
-    let mut reader = BlockReader::new(source, geo.block_len, geo.overlap)?;
+    let mut searcher = Searcher::new(header, config, label)?;
+    if config.kernel == Kernel::Fast {
+        searcher.fast = Some(FastDedisperser::new(&searcher.plan));
+    }
+    let (block_len, n_samples) = (searcher.layout.block_len, searcher.header.n_samples);
+    let mut reader = BlockReader::new(source, block_len, searcher.layout.overlap)?;
     if let Some(pb) = progress {
-        pb.set_length(searcher.header.n_samples);
+        pb.set_length(n_samples);
     }
     let mut totals = Totals::default();
+    // Candidates of one block can only repeat those within one overlap before them.
+    let recent_s = searcher.layout.overlap as f64 * searcher.header.tsamp_s
+        + searcher.plan.max_dm() * searcher.sweep.top_s_per_dm;
     let mut first = true;
     while let Some(block) = reader.next_block()? {
         let end = block.start_sample + block.n_time() as u64;
         // A short block, or one reaching the header's length, ends the file.
-        let last = block.n_time() < geo.block_len || end >= searcher.header.n_samples;
-        totals.add(searcher.block(block, first, last));
+        let last = block.n_time() < block_len || end >= n_samples;
+        let outcome = searcher.block(block, first, last);
+        totals.add(outcome, &searcher.sweep, recent_s);
         first = false;
         if let Some(pb) = progress {
             pb.set_position(end);
@@ -119,7 +128,7 @@ pub fn search_source(
 /// An invalid configuration.
 pub fn block_layout(header: &Header, config: &SearchConfig) -> Result<BlockLayout> {
     config.validate()?;
-    Ok(Searcher::new(header.clone(), config, "").layout)
+    Ok(Searcher::new(header.clone(), config, "")?.layout)
 }
 
 /// How a recording is cut into blocks (all in input samples; see the module docs).
@@ -169,6 +178,9 @@ struct Searcher<'a> {
     static_mask: Vec<bool>,
     layout: BlockLayout,
     sweep: Sweep,
+    /// The fast kernel, kept across blocks (it reuses its trees); `None` runs the
+    /// reference kernel.
+    fast: Option<FastDedisperser>,
 }
 
 /// What one block contributed.
@@ -192,19 +204,52 @@ struct Totals {
 }
 
 impl Totals {
-    fn add(&mut self, o: BlockOutcome) {
+    /// Adds a block's outcome. A candidate that the previous block already reported
+    /// (the same pulse on its bow-tie, found by both blocks because their S/N
+    /// estimates differ slightly at the boundary) is kept once, with the higher S/N.
+    fn add(&mut self, o: BlockOutcome, sweep: &Sweep, recent_s: f64) {
+        let event = |c: &Candidate| Event {
+            t_inf_s: c.t_inf_s,
+            dm: c.dm,
+            width_s: c.width_ms * 1e-3,
+        };
+        for c in o.candidates {
+            let horizon = c.t_inf_s - recent_s;
+            let twin = self
+                .candidates
+                .iter_mut()
+                .rev()
+                .take_while(|p| p.t_inf_s >= horizon)
+                .find(|p| {
+                    let (a, b) = if p.snr >= c.snr {
+                        (&**p, &c)
+                    } else {
+                        (&c, &**p)
+                    };
+                    sweep.on_bow_tie(&event(a), &event(b), 0.0)
+                });
+            match twin {
+                Some(p) if p.snr >= c.snr => {}
+                Some(p) => *p = c,
+                None => self.candidates.push(c),
+            }
+        }
         self.masked_weighted += o.masked_fraction * o.new_samples as f64;
         self.new_samples += o.new_samples;
         self.n_blocks += 1;
         self.n_detections += o.n_detections;
         self.samples_searched += o.samples_searched;
-        self.candidates.extend(o.candidates);
     }
 }
 
 impl<'a> Searcher<'a> {
-    fn new(header: Header, config: &'a SearchConfig, label: &'a str) -> Self {
-        let plan = build_plan(&header, &config.plan);
+    fn new(header: Header, config: &'a SearchConfig, label: &'a str) -> Result<Self> {
+        let plan = DmPlan::build(
+            &header.freqs_mhz,
+            header.chan_bw_mhz,
+            header.tsamp_s,
+            &config.plan,
+        )?;
         let max_width = ((config.max_width_s / header.tsamp_s).floor() as usize).max(1);
         let widths: Vec<Vec<usize>> = plan
             .steps
@@ -249,7 +294,7 @@ impl<'a> Searcher<'a> {
             band_s_per_dm: inv_f2(header.freq_lo_mhz()) - inv_f2(header.freq_hi_mhz()),
         };
         let static_mask = static_mask(&header.freqs_mhz, &header.weights, &config.clean.masks_mhz);
-        Searcher {
+        Ok(Searcher {
             label,
             header,
             config,
@@ -259,11 +304,12 @@ impl<'a> Searcher<'a> {
             static_mask,
             layout,
             sweep,
-        }
+            fast: None,
+        })
     }
 
     /// Searches one block; its raw samples are released once normalised.
-    fn block(&self, block: Block, first: bool, last: bool) -> BlockOutcome {
+    fn block(&mut self, block: Block, first: bool, last: bool) -> BlockOutcome {
         let g = &self.layout;
         let cfg = &self.config.clean;
         let (start, n_time, new_samples) = (
@@ -287,7 +333,10 @@ impl<'a> Searcher<'a> {
             (n_masked * n_time + n_clipped * (n_chan - n_masked)) as f64 / (n_chan * n_time) as f64
         };
 
-        let mut outs = dedisperse::reference::dedisperse(norm.view(), &self.plan);
+        let mut outs = match &mut self.fast {
+            Some(kernel) => kernel.dedisperse(norm.view()),
+            None => dedisperse::reference::dedisperse(norm.view(), &self.plan),
+        };
         let detections = self.detect(&mut outs, start);
         let dm0 = self.dm0_series(&norm, &mask);
         let data = BlockData {
