@@ -4,7 +4,7 @@
 //!
 //! SK = (M·N·d + 1)/(M − 1) · (M·S₂/S₁² − 1), with S₁ = ΣPᵢ, S₂ = ΣPᵢ² over M samples.
 //!
-//! For Gaussian noise E[SK] = 1; its variance and third central moment are known in
+//! For Gaussian noise the mean of SK is 1; its variance and third central moment are known in
 //! closed form (same papers), and the distribution is skewed, so the flagging
 //! thresholds are asymmetric: quantiles of the Pearson type III curve (a shifted gamma
 //! distribution) with those first three moments.

@@ -28,7 +28,7 @@ pub fn width_ladder(max_width: usize, ratio: f64) -> Vec<usize> {
     widths
 }
 
-/// Prefix sums in f64: `prefix[t]` = Σ_{i<t} series[i].
+/// Prefix sums in f64: `prefix[t]` is the sum of the first `t` values of `series`.
 pub fn prefix_sums(series: &[f32], prefix: &mut Vec<f64>) {
     prefix.clear();
     prefix.push(0.0);
