@@ -12,6 +12,7 @@ pub mod candidate;
 pub mod dedisperse;
 pub mod error;
 pub mod obs;
+pub mod period;
 pub mod progress;
 pub mod units;
 
