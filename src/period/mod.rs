@@ -13,9 +13,15 @@
 //! Every entry point takes plain slices of times (seconds or days after a reference
 //! MJD, see [`times`]) so catalogue rows convert with [`times::ArrivalTimes::from_mjd`].
 
+pub mod activity;
 pub mod coherence;
 pub mod divisor;
+pub mod fold;
+pub mod lomb;
+pub mod powerlaw;
 pub mod rotation;
 pub mod scan;
+pub mod synth;
 pub mod times;
 pub mod timing;
+pub mod waiting;
