@@ -2,15 +2,15 @@
 //! common-divisor cross-check and phase-connected refinement.
 //!
 //! Trial counting: the scan's false-alarm probability is the Davies-type bound of
-//! [`z2n_scan_fap`] over the searched band, which needs no count of "independent"
-//! frequencies; for display the Fourier count B·T is reported. The H-test is
-//! evaluated only at the strongest Z²ₙ peaks, so its FAP uses B·T·m̂ trials (m̂ its
-//! chosen harmonic count, since the m-th harmonic's peaks are m times narrower).
+//! [`z2n_scan_fap`] over the searched band (an upcrossing count, so no number of
+//! "independent" frequencies is assumed; it corresponds to about B·√(4π·Var t)·√(z/2)
+//! trials). The Fourier count B·T is reported for reference. The H-test is evaluated
+//! at the strongest Z²ₙ peaks; its FAP is the union bound [`h_scan_fap`].
 
 use serde::Serialize;
 
 use super::coherence::{
-    HTest, fap_after_trials, h_p_single, h_test, phases, variance, z2n, z2n_p_single, z2n_scan_fap,
+    HTest, h_p_single, h_scan_fap, h_test, phases, variance, z2n, z2n_p_single, z2n_scan_fap,
 };
 use super::divisor::{DivisorResult, common_divisor_period};
 use super::scan::{FrequencyGrid, Periodogram, centre, z2n_grid};
@@ -77,7 +77,7 @@ pub struct RotationCandidate {
     pub h: HTest,
     /// Single-trial exp(−0.4 H).
     pub h_p_single: f64,
-    /// H false-alarm probability after B·T·m̂ trials.
+    /// H false-alarm probability over the scan (union bound, [`h_scan_fap`]).
     pub h_fap: f64,
 }
 
@@ -96,7 +96,8 @@ pub struct RotationResult {
     pub independent_frequencies: f64,
     /// Refined peaks, strongest Z²ₙ first.
     pub candidates: Vec<RotationCandidate>,
-    /// Index in `candidates` of the chosen (lowest-frequency strong) peak.
+    /// Index in `candidates` of the chosen peak (the strongest, or a nearly as strong
+    /// sub-harmonic f/k of it).
     pub best: usize,
     /// Phase-connected solution started from the chosen peak, if it could be fitted.
     pub timing: Option<TimingSolution>,
@@ -163,11 +164,7 @@ pub fn search_rotation(
         .map(|&(j, _)| refine(&toas, grid.freq(j), grid.df_hz, cfg, band_hz, span_s, var_t))
         .collect();
     candidates.sort_by(|a, b| b.z2n.total_cmp(&a.z2n));
-    let strongest = candidates[0].z2n;
-    let best = (0..candidates.len())
-        .filter(|&i| candidates[i].z2n >= cfg.harmonic_family_fraction * strongest)
-        .min_by(|&a, &b| candidates[a].freq_hz.total_cmp(&candidates[b].freq_hz))
-        .unwrap_or(0);
+    let best = fundamental(&candidates, cfg.harmonic_family_fraction, grid.df_hz);
     let chosen = &candidates[best];
     let timing = fit_phase_connected(&toas, chosen.period_s, cfg.fit_pdot)
         .ok()
@@ -194,6 +191,23 @@ pub fn search_rotation(
         period_err_s,
         periodogram: scan.periodogram,
     })
+}
+
+/// Index of the fundamental: the strongest peak, unless a peak at f/k (k ≥ 2) is
+/// nearly as strong — every harmonic of a narrow pulse is as coherent as the
+/// fundamental, so the lowest such frequency is the rotation frequency.
+fn fundamental(candidates: &[RotationCandidate], fraction: f64, df_hz: f64) -> usize {
+    let strongest = &candidates[0];
+    (0..candidates.len())
+        .filter(|&i| {
+            let c = &candidates[i];
+            let k = (strongest.freq_hz / c.freq_hz).round();
+            c.z2n >= fraction * strongest.z2n
+                && k >= 1.0
+                && (k * c.freq_hz - strongest.freq_hz).abs() <= 2.0 * k * df_hz
+        })
+        .min_by(|&a, &b| candidates[a].freq_hz.total_cmp(&candidates[b].freq_hz))
+        .unwrap_or(0)
 }
 
 /// The trial grid [`search_rotation`] scans for these (merged) arrivals.
@@ -258,7 +272,7 @@ fn refine(
         z2n_fap: z2n_scan_fap(z, n, band_hz, var_t),
         h,
         h_p_single: h_p,
-        h_fap: fap_after_trials(h_p, band_hz * span_s * h.harmonics as f64),
+        h_fap: h_scan_fap(h.h, band_hz, var_t),
     }
 }
 
