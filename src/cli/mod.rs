@@ -2,6 +2,7 @@
 //! library calls. No science happens here.
 
 mod inspect;
+mod period;
 
 use clap::{Parser, Subcommand};
 
@@ -17,11 +18,14 @@ pub struct Cli {
 enum Command {
     /// Summarise an observation: header, duration, statistics, suspicious channels.
     Inspect(inspect::Args),
+    /// Periodicity tests on burst arrival times: rotation, activity cycles, statistics.
+    Period(period::Args),
 }
 
 /// Runs the chosen subcommand.
 pub fn run(cli: Cli) -> anyhow::Result<()> {
     match cli.command {
         Command::Inspect(a) => inspect::run(a),
+        Command::Period(a) => period::run(a),
     }
 }
