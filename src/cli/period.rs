@@ -86,8 +86,9 @@ struct RotationArgs {
     periodogram_out: Option<PathBuf>,
 }
 
+/// Burst arrival times and the observing sessions they were found in.
 #[derive(clap::Args, Debug)]
-struct ActivityArgs {
+struct BurstInputs {
     /// CSV of burst arrival times with an MJD column.
     #[arg(long, default_value = "demo-data/period/repeater_bursts.csv")]
     toas: PathBuf,
@@ -97,6 +98,12 @@ struct ActivityArgs {
     /// CSV of observing sessions with columns start_mjd,end_mjd.
     #[arg(long, default_value = "demo-data/period/repeater_exposure.csv")]
     exposure: PathBuf,
+}
+
+#[derive(clap::Args, Debug)]
+struct ActivityArgs {
+    #[command(flatten)]
+    input: BurstInputs,
     /// Shortest trial period, days.
     #[arg(long, default_value_t = 1.5)]
     min_period_days: f64,
@@ -131,15 +138,8 @@ struct ActivityArgs {
 
 #[derive(clap::Args, Debug)]
 struct StatsArgs {
-    /// CSV of burst arrival times with an MJD column.
-    #[arg(long, default_value = "demo-data/period/repeater_bursts.csv")]
-    toas: PathBuf,
-    /// Name of the MJD column.
-    #[arg(long, default_value = "mjd")]
-    column: String,
-    /// CSV of observing sessions with columns start_mjd,end_mjd.
-    #[arg(long, default_value = "demo-data/period/repeater_exposure.csv")]
-    exposure: PathBuf,
+    #[command(flatten)]
+    input: BurstInputs,
     /// CSV holding fluences or energies for the power-law fit.
     #[arg(long, default_value = "demo-data/period/repeater_bursts.csv")]
     values: PathBuf,
@@ -311,18 +311,20 @@ fn print_rotation(r: &RotationResult, toas: &ArrivalTimes) {
     }
 }
 
-fn read_bursts_and_exposure(
-    toas: &Path,
-    column: &str,
-    exposure: &Path,
-) -> anyhow::Result<(ArrivalTimes, Exposure)> {
-    let t = read_arrival_csv(toas, column)?;
-    let e = read_exposure_csv(exposure, t.ref_mjd)?;
-    Ok((t, e))
+impl BurstInputs {
+    fn read(&self) -> anyhow::Result<(ArrivalTimes, Exposure)> {
+        let t = read_arrival_csv(&self.toas, &self.column)?;
+        let e = read_exposure_csv(&self.exposure, t.ref_mjd)?;
+        Ok((t, e))
+    }
+
+    fn describe(&self) -> String {
+        format!("{} with {}", self.toas.display(), self.exposure.display())
+    }
 }
 
 fn activity(a: ActivityArgs) -> anyhow::Result<()> {
-    let (toas, exposure) = read_bursts_and_exposure(&a.toas, &a.column, &a.exposure)?;
+    let (toas, exposure) = a.input.read()?;
     let cfg = ActivityConfig {
         min_period_days: a.min_period_days,
         max_period_days: a.max_period_days,
@@ -341,7 +343,7 @@ fn activity(a: ActivityArgs) -> anyhow::Result<()> {
         &cfg,
         &|n| bar.inc(n),
     )
-    .with_context(|| format!("{} with {}", a.toas.display(), a.exposure.display()))?;
+    .with_context(|| a.input.describe())?;
     bar.finish_and_clear();
     if let Some(path) = &a.periodogram_out {
         let mut w = create(path)?;
@@ -413,9 +415,9 @@ fn print_activity(r: &ActivityResult) {
 }
 
 fn stats(a: StatsArgs) -> anyhow::Result<()> {
-    let (toas, exposure) = read_bursts_and_exposure(&a.toas, &a.column, &a.exposure)?;
+    let (toas, exposure) = a.input.read()?;
     let waiting = waiting_time_stats(&toas.days(), &exposure.sessions_days)
-        .with_context(|| format!("{} with {}", a.toas.display(), a.exposure.display()))?;
+        .with_context(|| a.input.describe())?;
     let values = read_number_csv(&a.values, &a.value_column)?;
     let power = fit_power_law(&values, a.s_min, a.boot, a.seed)
         .with_context(|| format!("{}", a.values.display()))?;

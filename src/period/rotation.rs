@@ -17,6 +17,12 @@ use super::scan::{FrequencyGrid, Periodogram, centre, z2n_grid};
 use super::timing::{TimingSolution, fit_phase_connected};
 use crate::error::{Error, Result};
 
+/// Largest grid searched (about an hour of scanning for 200 arrivals on 2 cores).
+pub const MAX_TRIALS: usize = 1 << 33;
+
+/// Largest k tried when looking for the fundamental f/k below the strongest peak.
+pub const MAX_SUB_HARMONIC: usize = 1000;
+
 /// Settings of a rotation search.
 #[derive(Clone, Debug, Serialize)]
 pub struct RotationConfig {
@@ -148,6 +154,14 @@ pub fn search_rotation(
     validate(&toas, cfg)?;
     let span_s = toas[toas.len() - 1] - toas[0];
     let grid = rotation_grid(&toas, cfg);
+    if grid.len > MAX_TRIALS {
+        return Err(Error::Config(format!(
+            "{} trial frequencies ({:.1} days span) is beyond {MAX_TRIALS}; raise the minimum \
+             period, lower the oversampling or split the data into shorter spans",
+            grid.len,
+            span_s / 86_400.0
+        )));
+    }
     let scan = z2n_grid(
         &toas,
         &grid,
@@ -164,7 +178,23 @@ pub fn search_rotation(
         .map(|&(j, _)| refine(&toas, grid.freq(j), grid.df_hz, cfg, band_hz, span_s, var_t))
         .collect();
     candidates.sort_by(|a, b| b.z2n.total_cmp(&a.z2n));
-    let best = fundamental(&candidates, cfg.harmonic_family_fraction, grid.df_hz);
+    let strongest = candidates[0].clone();
+    let best = match sub_harmonic(&toas, &strongest, cfg, &grid, band_hz, span_s, var_t) {
+        None => 0,
+        Some(c) => match candidates
+            .iter()
+            .position(|x| (x.freq_hz - c.freq_hz).abs() < grid.df_hz)
+        {
+            Some(i) => {
+                candidates[i] = c;
+                i
+            }
+            None => {
+                candidates.push(c);
+                candidates.len() - 1
+            }
+        },
+    };
     let chosen = &candidates[best];
     let timing = fit_phase_connected(&toas, chosen.period_s, cfg.fit_pdot)
         .ok()
@@ -193,21 +223,26 @@ pub fn search_rotation(
     })
 }
 
-/// Index of the fundamental: the strongest peak, unless a peak at f/k (k ≥ 2) is
-/// nearly as strong — every harmonic of a narrow pulse is as coherent as the
-/// fundamental, so the lowest such frequency is the rotation frequency.
-fn fundamental(candidates: &[RotationCandidate], fraction: f64, df_hz: f64) -> usize {
-    let strongest = &candidates[0];
-    (0..candidates.len())
-        .filter(|&i| {
-            let c = &candidates[i];
-            let k = (strongest.freq_hz / c.freq_hz).round();
-            c.z2n >= fraction * strongest.z2n
-                && k >= 1.0
-                && (k * c.freq_hz - strongest.freq_hz).abs() <= 2.0 * k * df_hz
-        })
-        .min_by(|&a, &b| candidates[a].freq_hz.total_cmp(&candidates[b].freq_hz))
-        .unwrap_or(0)
+/// The fundamental below the strongest peak f: every harmonic of a narrow pulse is as
+/// coherent as the fundamental, so the scan's strongest peak may be k·f. Returns the
+/// refined sub-harmonic f/k (k ≥ 2, largest k first) whose Z²ₙ reaches
+/// `harmonic_family_fraction` of the peak's, if any (common practice).
+fn sub_harmonic(
+    toas: &[f64],
+    strongest: &RotationCandidate,
+    cfg: &RotationConfig,
+    grid: &FrequencyGrid,
+    band_hz: f64,
+    span_s: f64,
+    var_t: f64,
+) -> Option<RotationCandidate> {
+    let k_max = ((strongest.freq_hz / grid.f0_hz).floor() as usize).min(MAX_SUB_HARMONIC);
+    (2..=k_max).rev().find_map(|k| {
+        let kf = k as f64;
+        let (f, z) = refine_z(toas, strongest.freq_hz / kf, grid.df_hz / kf, cfg.harmonics);
+        (z >= cfg.harmonic_family_fraction * strongest.z2n)
+            .then(|| candidate_at(toas, f, z, cfg, band_hz, span_s, var_t))
+    })
 }
 
 /// The trial grid [`search_rotation`] scans for these (merged) arrivals.
@@ -244,6 +279,14 @@ fn local_max(f0: f64, step: f64, steps: i32, stat: impl Fn(f64) -> f64) -> (f64,
         .expect("non-empty local grid")
 }
 
+/// Z²ₙ maximised near `f_grid` (±1 grid step, then 8× finer around the best).
+fn refine_z(toas: &[f64], f_grid: f64, df: f64, n: usize) -> (f64, f64) {
+    let t_ref = centre(toas);
+    let z_of = |f: f64| z2n(&phases(toas, t_ref, f, 0.0), n);
+    let (f1, _) = local_max(f_grid, df / 8.0, 8, z_of);
+    local_max(f1, df / 64.0, 8, z_of)
+}
+
 fn refine(
     toas: &[f64],
     f_grid: f64,
@@ -253,17 +296,27 @@ fn refine(
     span_s: f64,
     var_t: f64,
 ) -> RotationCandidate {
+    let (fz, z) = refine_z(toas, f_grid, df, cfg.harmonics);
+    candidate_at(toas, fz, z, cfg, band_hz, span_s, var_t)
+}
+
+/// Scores a refined frequency: FAPs of Z²ₙ and the H-test (H refined on a step
+/// fine enough for 20 harmonics).
+fn candidate_at(
+    toas: &[f64],
+    fz: f64,
+    z: f64,
+    cfg: &RotationConfig,
+    band_hz: f64,
+    span_s: f64,
+    var_t: f64,
+) -> RotationCandidate {
     let t_ref = centre(toas);
     let n = cfg.harmonics;
-    let z_of = |f: f64| z2n(&phases(toas, t_ref, f, 0.0), n);
-    let (f1, _) = local_max(f_grid, df / 8.0, 8, z_of);
-    // Twice finer again, then an H-resolution pass (20 harmonics narrow the peak).
-    let (fz, z) = local_max(f1, df / 64.0, 8, z_of);
     let h_of = |f: f64| h_test(&phases(toas, t_ref, f, 0.0)).h;
     let h_step = 1.0 / (4.0 * 20.0 * span_s.max(f64::MIN_POSITIVE));
     let (fh, _) = local_max(fz, h_step, 8, h_of);
     let h = h_test(&phases(toas, t_ref, fh, 0.0));
-    let h_p = h_p_single(h.h);
     RotationCandidate {
         freq_hz: fz,
         period_s: 1.0 / fz,
@@ -271,7 +324,7 @@ fn refine(
         z2n_p_single: z2n_p_single(z, n),
         z2n_fap: z2n_scan_fap(z, n, band_hz, var_t),
         h,
-        h_p_single: h_p,
+        h_p_single: h_p_single(h.h),
         h_fap: h_scan_fap(h.h, band_hz, var_t),
     }
 }

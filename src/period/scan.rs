@@ -71,6 +71,9 @@ pub struct ScanOutput {
 /// Interleaved phasor lanes per event; a multiple of the SIMD width.
 const LANES: usize = 8;
 
+/// Frequencies per parallel block (rounded to a multiple of the decimation).
+const BLOCK_TARGET: usize = 512;
+
 /// Z²ₙ at every grid frequency by the obvious direct sum. Reference for the kernel.
 pub fn z2n_grid_reference(t_s: &[f64], grid: &FrequencyGrid, harmonics: usize) -> Vec<f64> {
     let t_ref = centre(t_s);
@@ -79,33 +82,76 @@ pub fn z2n_grid_reference(t_s: &[f64], grid: &FrequencyGrid, harmonics: usize) -
         .collect()
 }
 
-/// Z²ₙ of one block of grid points [j0, j0 + out.len()) by phasor recurrences.
+/// exp(2πi·frac(x)) as (re, im).
+fn cis_cycles(x: f64) -> (f64, f64) {
+    let (s, c) = (2.0 * PI * (x - x.round())).sin_cos();
+    (c, s)
+}
+
+fn cmul(a: (f64, f64), b: (f64, f64)) -> (f64, f64) {
+    (a.0 * b.0 - a.1 * b.1, a.0 * b.1 + a.1 * b.0)
+}
+
+/// Z²ₙ of one block of grid points [j0, j0 + out.len()), using AVX2/FMA when the CPU
+/// has them (about twice as fast as the baseline x86-64 build).
 fn z2n_block(tau_s: &[f64], grid: &FrequencyGrid, harmonics: usize, j0: usize, out: &mut [f64]) {
-    let len = out.len();
-    let padded = len.div_ceil(LANES) * LANES;
-    let mut acc_re = vec![0.0f64; harmonics * padded];
-    let mut acc_im = vec![0.0f64; harmonics * padded];
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx2") && std::arch::is_x86_feature_detected!("fma") {
+        // SAFETY: the only requirement of a target_feature function is that the CPU
+        // supports the features, which was just checked at run time.
+        unsafe { z2n_block_avx2(tau_s, grid, harmonics, j0, out) };
+        return;
+    }
+    z2n_block_generic(tau_s, grid, harmonics, j0, out);
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2,fma")]
+fn z2n_block_avx2(
+    tau_s: &[f64],
+    grid: &FrequencyGrid,
+    harmonics: usize,
+    j0: usize,
+    out: &mut [f64],
+) {
+    z2n_block_generic(tau_s, grid, harmonics, j0, out);
+}
+
+/// Z²ₙ of one block of grid points by phasor recurrences. Accumulators are chunks of
+/// LANES frequencies, harmonics of a chunk side by side, so a block of ~512
+/// frequencies keeps them in L1 cache. Inlined so each caller's target features apply.
+#[inline(always)]
+fn z2n_block_generic(
+    tau_s: &[f64],
+    grid: &FrequencyGrid,
+    harmonics: usize,
+    j0: usize,
+    out: &mut [f64],
+) {
+    let chunks = out.len().div_ceil(LANES);
+    let mut acc_re = vec![[0.0f64; LANES]; chunks * harmonics];
+    let mut acc_im = vec![[0.0f64; LANES]; chunks * harmonics];
     let f0 = grid.freq(j0);
     for &tau in tau_s {
-        // Lanes start at j0 + l and each step advances them by LANES grid points.
+        // Lane l starts at grid point j0 + l; each chunk advances all lanes by LANES.
+        let step1 = cis_cycles(grid.df_hz * tau);
+        let mut z = cis_cycles(f0 * tau);
         let mut zr = [0.0f64; LANES];
         let mut zi = [0.0f64; LANES];
         for l in 0..LANES {
-            let cycles = (f0 + l as f64 * grid.df_hz) * tau;
-            let (s, c) = (2.0 * PI * (cycles - cycles.round())).sin_cos();
-            zr[l] = c;
-            zi[l] = s;
+            zr[l] = z.0;
+            zi[l] = z.1;
+            z = cmul(z, step1);
         }
-        let step = LANES as f64 * grid.df_hz * tau;
-        let (wi, wr) = (2.0 * PI * (step - step.round())).sin_cos();
-        for base in (0..padded).step_by(LANES) {
+        let (wr, wi) = cis_cycles(LANES as f64 * grid.df_hz * tau);
+        for c in 0..chunks {
             let (mut pr, mut pi) = (zr, zi);
+            let ar = &mut acc_re[c * harmonics..(c + 1) * harmonics];
+            let ai = &mut acc_im[c * harmonics..(c + 1) * harmonics];
             for k in 0..harmonics {
-                let off = k * padded + base;
-                let (ar, ai) = (&mut acc_re[off..off + LANES], &mut acc_im[off..off + LANES]);
                 for l in 0..LANES {
-                    ar[l] += pr[l];
-                    ai[l] += pi[l];
+                    ar[k][l] += pr[l];
+                    ai[k][l] += pi[l];
                 }
                 if k + 1 < harmonics {
                     for l in 0..LANES {
@@ -124,10 +170,11 @@ fn z2n_block(tau_s: &[f64], grid: &FrequencyGrid, harmonics: usize, j0: usize, o
     }
     let norm = 2.0 / tau_s.len().max(1) as f64;
     for (j, o) in out.iter_mut().enumerate() {
+        let (c, l) = (j / LANES, j % LANES);
         *o = (0..harmonics)
             .map(|k| {
-                let i = k * padded + j;
-                acc_re[i] * acc_re[i] + acc_im[i] * acc_im[i]
+                let i = c * harmonics + k;
+                acc_re[i][l] * acc_re[i][l] + acc_im[i][l] * acc_im[i][l]
             })
             .sum::<f64>()
             * norm;
@@ -156,7 +203,7 @@ pub fn z2n_grid(
     let t_ref = centre(t_s);
     let tau: Vec<f64> = t_s.iter().map(|t| t - t_ref).collect();
     let decimation = grid.len.div_ceil(max_points.max(1)).max(1);
-    let block = decimation * 2048usize.div_ceil(decimation);
+    let block = decimation * BLOCK_TARGET.div_ceil(decimation);
     let n_blocks = grid.len.div_ceil(block);
     let parts: Vec<(Periodogram, Vec<(usize, f64)>)> = (0..n_blocks)
         .into_par_iter()
@@ -252,8 +299,11 @@ mod tests {
             let mut fast = vec![f64::NAN; n_f];
             let tau: Vec<f64> = t.iter().map(|x| x - centre(&t)).collect();
             z2n_block(&tau, &grid, harmonics, 0, &mut fast);
-            for (a, b) in fast.iter().zip(&reference) {
+            let mut generic = vec![f64::NAN; n_f];
+            z2n_block_generic(&tau, &grid, harmonics, 0, &mut generic);
+            for ((a, g), b) in fast.iter().zip(&generic).zip(&reference) {
                 assert!((a - b).abs() < 1e-8 * (1.0 + b.abs()), "{a} vs {b}");
+                assert!((g - b).abs() < 1e-8 * (1.0 + b.abs()), "{g} vs {b}");
             }
             let out = z2n_grid(&t, &grid, harmonics, 100, 5, &|_| {});
             let best = reference.iter().cloned().fold(f64::MIN, f64::max);
@@ -265,7 +315,7 @@ mod tests {
                 .cloned()
                 .fold(f32::MIN, f32::max);
             assert!((pmax as f64 - best).abs() < 1e-4 * (1.0 + best));
-            assert!(out.periodogram.freq_hz.len() <= 100 + n_f / 2048 + 1);
+            assert!(out.periodogram.freq_hz.len() <= 100 + n_f / BLOCK_TARGET + 1);
         }
     }
 

@@ -4,8 +4,6 @@ use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution, Normal};
 
-use super::times::SECONDS_PER_DAY;
-
 /// A generator seeded once; `stream` separates independent sets from one seed.
 pub fn rng(seed: u64, stream: u64) -> ChaCha8Rng {
     let mut r = ChaCha8Rng::seed_from_u64(seed);
@@ -124,11 +122,6 @@ pub fn activity_cycle(
         }
     }
     out
-}
-
-/// Seconds in `days` days (helper for building second-based sessions).
-pub fn days_to_s(days: f64) -> f64 {
-    days * SECONDS_PER_DAY
 }
 
 #[cfg(test)]
