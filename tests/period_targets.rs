@@ -113,9 +113,8 @@ fn rotation_fap_is_calibrated_on_sets_without_period() {
         .map(|s| {
             let t = uniform_over_exposure(&sessions, 30, &mut rng(2024, s));
             let r = search_rotation(&t, &cfg, &|_| {}).unwrap();
-            let best = &r.candidates[0];
             (
-                best.z2n_fap,
+                r.fap,
                 r.candidates.iter().map(|c| c.h_fap).fold(1.0, f64::min),
             )
         })

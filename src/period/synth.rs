@@ -137,7 +137,7 @@ mod tests {
                 .all(|&x| sessions.iter().any(|s| x >= s.0 && x <= s.1))
         );
         // About 1/9 of the exposure is in the middle session: binomial sd ≈ 7.
-        let mid = t.iter().filter(|&&x| x >= 5.0 && x <= 5.5).count();
+        let mid = t.iter().filter(|&&x| (5.0..=5.5).contains(&x)).count();
         assert!((mid as f64 - 500.0 / 9.0).abs() < 4.0 * 7.0);
     }
 
