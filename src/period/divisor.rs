@@ -6,7 +6,8 @@
 //! phase outwards in time from that pair, refitting (t₀, P) after every added arrival
 //! and rejecting the candidate as soon as a residual exceeds `tol`·P: dividing d_min
 //! by k and checking all differences at once fails over long spans because the error
-//! of d_min/k grows with the number of turns.
+//! of d_min/k grows with the number of turns. A prediction that misses by a turn (short
+//! baseline, jittered arrivals) is retried with n ± 1, keeping the best refit.
 
 use serde::Serialize;
 
@@ -21,15 +22,16 @@ pub struct DivisorResult {
     pub turns_in_smallest_gap: u64,
     /// Candidates tried before this one passed (largest period first).
     pub candidates_tried: u64,
-    /// Rough chance that a wrong candidate passes: tried·(2·tol)^(N−2) (every
-    /// arrival after the first pair must land within ±tol of a turn by accident).
+    /// Rough chance that a wrong candidate passes: tried·(6·tol)^(N−2) (every
+    /// arrival after the first pair must land within ±tol of one of the three turn
+    /// counts tried by accident).
     pub chance_probability: f64,
     /// Least-squares timing solution for the accepted period.
     pub solution: TimingSolution,
 }
 
 /// Running least-squares line y = a + b·x (Welford updates, stable for large x).
-#[derive(Default)]
+#[derive(Clone, Default)]
 struct Line {
     n: f64,
     mean_x: f64,
@@ -80,7 +82,7 @@ pub fn common_divisor_period(
             continue;
         };
         let solution = fit_phase_connected(t_s, period, false).ok()?;
-        let chance = k as f64 * (2.0 * tol_cycles).powi(t_s.len() as i32 - 2);
+        let chance = k as f64 * (6.0 * tol_cycles).powi(t_s.len() as i32 - 2);
         return Some(DivisorResult {
             smallest_gap_s: d_min,
             turns_in_smallest_gap: k,
@@ -96,9 +98,9 @@ pub fn common_divisor_period(
 /// fitted period, or None once a residual exceeds `tol_cycles`.
 fn connect(t_s: &[f64], i0: usize, k: u64, tol_cycles: f64) -> Option<f64> {
     let origin = t_s[i0];
+    let mut points = vec![(0.0, 0.0), (k as f64, t_s[i0 + 1] - origin)];
     let mut line = Line::default();
-    line.add(0.0, 0.0);
-    line.add(k as f64, t_s[i0 + 1] - origin);
+    points.iter().for_each(|&(x, y)| line.add(x, y));
     let (mut lo, mut hi) = (i0, i0 + 1);
     while lo > 0 || hi + 1 < t_s.len() {
         let take_left =
@@ -112,11 +114,34 @@ fn connect(t_s: &[f64], i0: usize, k: u64, tol_cycles: f64) -> Option<f64> {
         };
         let y = t_s[i] - origin;
         let b = line.slope();
-        let n = ((y - line.at(0.0)) / b).round();
-        if (y - line.at(n)).abs() > tol_cycles * b {
-            return None;
-        }
-        line.add(n, y);
+        let predicted = ((y - line.at(0.0)) / b).round();
+        let n = if (y - line.at(predicted)).abs() <= tol_cycles * b {
+            line.add(predicted, y);
+            predicted
+        } else {
+            // Extrapolating from a short baseline can miss by a turn: take the turn
+            // count (n, n ± 1) whose refit leaves the smallest worst residual.
+            let (n, refit, worst) = [predicted, predicted - 1.0, predicted + 1.0]
+                .into_iter()
+                .map(|m| {
+                    let mut l = line.clone();
+                    l.add(m, y);
+                    let worst = points
+                        .iter()
+                        .chain(std::iter::once(&(m, y)))
+                        .map(|&(x, yy)| (yy - l.at(x)).abs())
+                        .fold(0.0, f64::max);
+                    (m, l, worst)
+                })
+                .min_by(|a, b| a.2.total_cmp(&b.2))
+                .expect("three choices");
+            if worst > tol_cycles * refit.slope() {
+                return None;
+            }
+            line = refit;
+            n
+        };
+        points.push((n, y));
     }
     Some(line.slope())
 }
@@ -144,5 +169,26 @@ mod tests {
         let first = r.solution.pulse_numbers[0];
         let rel: Vec<i64> = r.solution.pulse_numbers.iter().map(|n| n - first).collect();
         assert_eq!(rel, turns.to_vec());
+    }
+
+    #[test]
+    fn connects_jittered_pulses_on_few_turns() {
+        use crate::period::synth::{RotatingSource, rng};
+        let src = RotatingSource {
+            period_s: 0.4137029,
+            pdot: 0.0,
+            epoch_s: 3.1,
+            pulse_fraction: 0.02,
+            jitter_s: 0.001,
+        };
+        let t = src.arrivals(&[(0.0, 1800.0), (2700.0, 4500.0)], &mut rng(8, 0));
+        let r = common_divisor_period(&t, 0.05, 0.05, 1_000_000).unwrap();
+        let err = (r.solution.period_s - src.period_s).abs();
+        assert!(
+            err < 3.0 * r.solution.period_err_s,
+            "{:?}",
+            r.solution.period_s
+        );
+        assert!(r.chance_probability < 1e-20);
     }
 }
