@@ -57,7 +57,7 @@ impl Default for ActivityConfig {
 /// Per-trial-period curves (for plotting).
 #[derive(Clone, Debug, Default, Serialize)]
 pub struct ActivityPeriodogram {
-    /// Trial periods, days (descending frequency order reversed: ascending frequency).
+    /// Trial periods, days, in order of ascending trial frequency (descending period).
     pub period_days: Vec<f64>,
     /// Pearson χ² of the folded counts against the exposure.
     pub chi2: Vec<f64>,
