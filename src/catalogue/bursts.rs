@@ -222,11 +222,11 @@ mod tests {
         assert_eq!(t.len(), 2);
         assert_eq!(t[0].site, obs.header.site);
         assert_eq!(t[0].mjd_utc, rows[0].candidate.mjd_inf);
-        cat.set_barycentric_toa(t[1].burst_id, 60009.123_456_789)
+        cat.set_barycentric_toa(t[1].burst_id, 60_009.123_456_789)
             .unwrap();
         assert_eq!(
             cat.burst_timing("ECHO").unwrap()[1].toa_tdb_mjd,
-            Some(60009.123_456_789)
+            Some(60_009.123_456_789)
         );
         assert!(cat.set_barycentric_toa(999, 1.0).is_err());
     }

@@ -19,13 +19,13 @@ enum Command {
     /// Summarise an observation: header, duration, statistics, suspicious channels.
     Inspect(inspect::Args),
     /// The burst catalogue: query, label, promote, sources, exposure, summary, VOEvent.
-    Book(book::Args),
+    Book(Box<book::Args>),
 }
 
 /// Runs the chosen subcommand.
 pub fn run(cli: Cli) -> anyhow::Result<()> {
     match cli.command {
         Command::Inspect(a) => inspect::run(a),
-        Command::Book(a) => book::run(a),
+        Command::Book(a) => book::run(*a),
     }
 }
