@@ -10,10 +10,17 @@
 
 pub mod candidate;
 pub mod catalogue;
+pub mod clean;
+pub mod cluster;
 pub mod dedisperse;
 pub mod error;
 pub mod obs;
 pub mod progress;
+pub mod robust;
+pub mod search;
+pub mod simulate;
+pub mod timing;
+pub mod triage;
 pub mod units;
 
 pub use candidate::{Candidate, TriageFeatures, Verdict};

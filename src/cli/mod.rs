@@ -1,8 +1,11 @@
 //! Command-line front end: one file per subcommand, each parsing its flags into
 //! library calls. No science happens here.
 
+mod barycentre;
 mod book;
 mod inspect;
+mod search;
+mod simulate;
 
 use clap::{Parser, Subcommand};
 
@@ -18,6 +21,12 @@ pub struct Cli {
 enum Command {
     /// Summarise an observation: header, duration, statistics, suspicious channels.
     Inspect(inspect::Args),
+    /// Search observations for dispersed pulses; write candidates.csv and candidates.json.
+    Search(search::Args),
+    /// Write a synthetic observation with known bursts and interference from a scenario file.
+    Simulate(simulate::Args),
+    /// Convert topocentric UTC arrival times (CSV column mjd_utc) to barycentric TDB.
+    Barycentre(barycentre::Args),
     /// The burst catalogue: query, label, promote, sources, exposure, summary, VOEvent.
     Book(Box<book::Args>),
 }
@@ -26,6 +35,9 @@ enum Command {
 pub fn run(cli: Cli) -> anyhow::Result<()> {
     match cli.command {
         Command::Inspect(a) => inspect::run(a),
+        Command::Search(a) => search::run(a),
+        Command::Simulate(a) => simulate::run(a),
+        Command::Barycentre(a) => barycentre::run(a),
         Command::Book(a) => book::run(*a),
     }
 }
