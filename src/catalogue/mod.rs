@@ -14,6 +14,7 @@
 
 mod bursts;
 mod exposure;
+mod from_search;
 mod query;
 mod record;
 mod review;
@@ -300,7 +301,7 @@ pub(crate) fn sql_error(path: &Path, e: rusqlite::Error) -> Error {
 }
 
 /// The current UTC time as ISO 8601 with milliseconds, as stored in `*_utc` columns.
-pub(crate) fn now_utc() -> String {
+pub fn now_utc() -> String {
     chrono::Utc::now()
         .format("%Y-%m-%dT%H:%M:%S%.3fZ")
         .to_string()
