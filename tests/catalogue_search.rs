@@ -5,6 +5,7 @@ use std::io::{BufRead, BufReader};
 use std::path::{Path, PathBuf};
 use std::process::{Command, Stdio};
 
+use burstbook::catalogue::Catalogue;
 use rusqlite::Connection;
 
 const BIN: &str = env!("CARGO_BIN_EXE_burstbook");
@@ -78,23 +79,8 @@ fn search(files: &[PathBuf], dir: &Path, db: &Path) -> Command {
 
 /// (observations, runs, candidates), after checking no run is partial.
 fn contents(db: &Path) -> (i64, i64, i64) {
-    let c = Connection::open(db).unwrap();
-    let partial: i64 = c
-        .query_row(
-            "SELECT count(*) FROM search_run r
-             WHERE r.n_candidates != (SELECT count(*) FROM candidate WHERE run_id = r.id)",
-            [],
-            |r| r.get(0),
-        )
-        .unwrap();
-    assert_eq!(partial, 0);
-    c.query_row(
-        "SELECT (SELECT count(*) FROM observation), (SELECT count(*) FROM search_run),
-                (SELECT count(*) FROM candidate)",
-        [],
-        |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)),
-    )
-    .unwrap()
+    let c = Catalogue::open(db).unwrap().verify().unwrap();
+    (c.observations, c.runs, c.candidates)
 }
 
 #[test]

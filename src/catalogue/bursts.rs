@@ -248,7 +248,7 @@ mod tests {
         rec.snr50 = Some(8.5);
         cat.record_completeness(&obs, &rec).unwrap();
         let got = cat
-            .completeness(&obs.content_sha256, r#"{"snr_threshold":7}"#)
+            .completeness(&obs.content_sha256, r#"{"snr_threshold": 7}"#)
             .unwrap();
         assert_eq!(got.unwrap().snr50, Some(8.5));
         assert!(

@@ -20,10 +20,12 @@ impl Catalogue {
         config: &SearchConfig,
         started_utc: String,
     ) -> Result<RecordOutcome> {
-        let json = |what: &str, e: serde_json::Error| Error::Config(format!("{what} not serialisable: {e}"));
+        let json = |what: &str, e: serde_json::Error| {
+            Error::Config(format!("{what} not serialisable: {e}"))
+        };
         let obs = ObservationRecord::from_file(path, &result.header)?;
         let mut run = RunRecord::finished_now(
-            serde_json::to_string(config).map_err(|e| json("search configuration", e))?,
+            config.to_json(),
             serde_json::to_string(&result.plan).map_err(|e| json("DM plan", e))?,
             Some(config.snr_threshold),
             started_utc,

@@ -8,21 +8,28 @@ use super::Catalogue;
 use crate::candidate::{Candidate, TriageFeatures, Verdict};
 use crate::error::Result;
 
+/// Ranges shared by candidate and burst queries (inclusive; `None` = unbounded).
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Bounds {
+    /// Lowest DM in pc cm⁻³.
+    pub dm_min: Option<f64>,
+    /// Highest DM in pc cm⁻³.
+    pub dm_max: Option<f64>,
+    /// Lowest S/N.
+    pub snr_min: Option<f64>,
+    /// Earliest arrival, UTC MJD.
+    pub mjd_min: Option<f64>,
+    /// Latest arrival, UTC MJD.
+    pub mjd_max: Option<f64>,
+}
+
 /// Which candidates to return; `None` / empty means "any".
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct CandidateFilter {
     /// Source name as written in the observation header.
     pub source: Option<String>,
-    /// Lowest DM in pc cm⁻³ (inclusive).
-    pub dm_min: Option<f64>,
-    /// Highest DM in pc cm⁻³ (inclusive).
-    pub dm_max: Option<f64>,
-    /// Lowest S/N (inclusive).
-    pub snr_min: Option<f64>,
-    /// Earliest arrival, UTC MJD (inclusive).
-    pub mjd_min: Option<f64>,
-    /// Latest arrival, UTC MJD (inclusive).
-    pub mjd_max: Option<f64>,
+    /// DM, S/N and time ranges.
+    pub bounds: Bounds,
     /// Triage verdict.
     pub verdict: Option<Verdict>,
     /// Current (newest) review label; `"none"` selects unlabelled candidates.
@@ -52,20 +59,12 @@ pub struct CandidateRow {
 }
 
 /// Which bursts to return; `None` means "any".
-#[derive(Debug, Clone, Default)]
+#[derive(Debug, Clone, Default, PartialEq)]
 pub struct BurstFilter {
     /// Assigned source name.
     pub source: Option<String>,
-    /// Lowest DM in pc cm⁻³ (inclusive).
-    pub dm_min: Option<f64>,
-    /// Highest DM in pc cm⁻³ (inclusive).
-    pub dm_max: Option<f64>,
-    /// Lowest S/N (inclusive).
-    pub snr_min: Option<f64>,
-    /// Earliest arrival, UTC MJD (inclusive).
-    pub mjd_min: Option<f64>,
-    /// Latest arrival, UTC MJD (inclusive).
-    pub mjd_max: Option<f64>,
+    /// DM, S/N and time ranges.
+    pub bounds: Bounds,
 }
 
 /// A confirmed burst.
@@ -112,6 +111,15 @@ impl Where {
         }
     }
 
+    /// The range conditions of `b` on the named columns.
+    fn push_bounds(&mut self, b: &Bounds, dm: &str, snr: &str, mjd: &str) {
+        self.push(&format!("{dm} >= ?"), b.dm_min.map(Value::Real));
+        self.push(&format!("{dm} <= ?"), b.dm_max.map(Value::Real));
+        self.push(&format!("{snr} >= ?"), b.snr_min.map(Value::Real));
+        self.push(&format!("{mjd} >= ?"), b.mjd_min.map(Value::Real));
+        self.push(&format!("{mjd} <= ?"), b.mjd_max.map(Value::Real));
+    }
+
     fn sql(&self) -> String {
         if self.clauses.is_empty() {
             String::new()
@@ -128,11 +136,7 @@ const LATEST_LABEL: &str =
 fn candidate_sql(filter: &CandidateFilter) -> (String, Vec<Value>) {
     let mut w = Where::default();
     w.push("o.source_name = ?", filter.source.clone().map(Value::Text));
-    w.push("c.dm >= ?", filter.dm_min.map(Value::Real));
-    w.push("c.dm <= ?", filter.dm_max.map(Value::Real));
-    w.push("c.snr >= ?", filter.snr_min.map(Value::Real));
-    w.push("c.mjd_inf >= ?", filter.mjd_min.map(Value::Real));
-    w.push("c.mjd_inf <= ?", filter.mjd_max.map(Value::Real));
+    w.push_bounds(&filter.bounds, "c.dm", "c.snr", "c.mjd_inf");
     w.push(
         "c.verdict = ?",
         filter.verdict.map(|v| Value::Text(v.as_str().into())),
@@ -217,11 +221,7 @@ impl Catalogue {
     pub fn bursts(&self, filter: &BurstFilter) -> Result<Vec<BurstRow>> {
         let mut w = Where::default();
         w.push("s.name = ?", filter.source.clone().map(Value::Text));
-        w.push("b.dm >= ?", filter.dm_min.map(Value::Real));
-        w.push("b.dm <= ?", filter.dm_max.map(Value::Real));
-        w.push("b.snr >= ?", filter.snr_min.map(Value::Real));
-        w.push("b.mjd_utc >= ?", filter.mjd_min.map(Value::Real));
-        w.push("b.mjd_utc <= ?", filter.mjd_max.map(Value::Real));
+        w.push_bounds(&filter.bounds, "b.dm", "b.snr", "b.mjd_utc");
         let sql = format!(
             "SELECT b.id, b.candidate_id, s.name, b.mjd_utc, b.toa_tdb_mjd, b.snr, b.width_ms,
                     b.dm, b.fluence_jy_ms, o.site, c.file
@@ -279,9 +279,12 @@ mod tests {
         let (_dir, cat, all) = filled();
         let f = CandidateFilter {
             source: Some("BETA".into()),
-            dm_min: Some(100.0),
-            dm_max: Some(400.0),
-            snr_min: Some(20.0),
+            bounds: Bounds {
+                dm_min: Some(100.0),
+                dm_max: Some(400.0),
+                snr_min: Some(20.0),
+                ..Default::default()
+            },
             verdict: Some(Verdict::Rfi),
             ..Default::default()
         };
@@ -308,8 +311,11 @@ mod tests {
         let (_dir, cat, _) = filled();
         let f = CandidateFilter {
             source: Some("BETA".into()),
-            dm_min: Some(300.0),
-            dm_max: Some(350.0),
+            bounds: Bounds {
+                dm_min: Some(300.0),
+                dm_max: Some(350.0),
+                ..Default::default()
+            },
             ..Default::default()
         };
         let (sql, values) = candidate_sql(&f);

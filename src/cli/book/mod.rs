@@ -55,6 +55,9 @@ enum Command {
     Exposure(exposure::ExposureCommand),
     /// Per-source bursts, exposure, burst rate with confidence limits, DM and fluence.
     Summary(summary::SummaryArgs),
+    /// Check the file's integrity and that every run holds all its candidates.
+    #[command(after_help = "Example:\n  burstbook book check")]
+    Check,
     /// Write one burst as a VOEvent 2.0 XML packet.
     Voevent(voevent::VoeventArgs),
     /// Fill the catalogue with invented searches (for crash, concurrency and speed tests).
@@ -78,6 +81,17 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         Command::Exposure(c) => exposure::run(&mut open()?, c),
         Command::Summary(a) => summary::run(&open()?, a),
         Command::Voevent(a) => voevent::run(&open()?, a),
+        Command::Check => {
+            let c = open()?.verify()?;
+            println!(
+                "{}: ok ({} observations, {} runs, {} candidates)",
+                path.display(),
+                c.observations,
+                c.runs,
+                c.candidates
+            );
+            Ok(())
+        }
         Command::FillSynthetic(a) => synthetic::run(&mut open()?, a),
     }
 }
