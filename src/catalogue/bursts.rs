@@ -129,7 +129,8 @@ impl Catalogue {
     }
 
     /// Appends an injection-recovery result for `obs` (recorded first if new).
-    /// Returns the row id.
+    /// When `fluence90_jy_ms` is given it also becomes the fluence limit of the
+    /// exposure searched with that configuration. Returns the row id.
     ///
     /// # Errors
     /// Bad configuration JSON or an SQLite failure.
@@ -161,7 +162,16 @@ impl Catalogue {
                 ],
             )
             .map_err(e)?;
-            Ok(tx.last_insert_rowid())
+            let id = tx.last_insert_rowid();
+            if let Some(limit) = rec.fluence90_jy_ms {
+                tx.execute(
+                    "UPDATE exposure SET fluence_limit_jy_ms = ?3 WHERE run_id IN
+                         (SELECT id FROM search_run WHERE observation_id = ?1 AND config_sha256 = ?2)",
+                    params![obs_id, config_sha, limit],
+                )
+                .map_err(e)?;
+            }
+            Ok(id)
         })
     }
 
@@ -263,5 +273,35 @@ mod tests {
             })
             .unwrap();
         assert_eq!(n, 2);
+        // The hash is of the exact text, as the search writes it.
+        let respaced = cat.completeness(&obs.content_sha256, r#"{"snr_threshold":7}"#);
+        assert!(respaced.unwrap().is_none());
+    }
+
+    #[test]
+    fn fluence_completeness_marks_the_exposure_of_that_configuration() {
+        let dir = tempfile::tempdir().unwrap();
+        let mut cat = Catalogue::open(&dir.path().join("c.sqlite")).unwrap();
+        let obs = observation("ECHO", 2);
+        let (searched, other) = (run(7.0), run(9.0));
+        cat.record_search(&obs, &searched, &[]).unwrap();
+        cat.record_search(&obs, &other, &[]).unwrap();
+        let rec = CompletenessRecord {
+            config_json: searched.config_json.clone(),
+            snr50: None,
+            snr90: None,
+            fluence50_jy_ms: Some(0.4),
+            fluence90_jy_ms: Some(0.9),
+            result_json: "{}".into(),
+        };
+        cat.record_completeness(&obs, &rec).unwrap();
+        let mut limits: Vec<_> = cat
+            .exposure(Some("ECHO"))
+            .unwrap()
+            .into_iter()
+            .map(|e| (e.snr_threshold, e.fluence_limit_jy_ms))
+            .collect();
+        limits.sort_by(|a, b| a.0.partial_cmp(&b.0).unwrap());
+        assert_eq!(limits, vec![(Some(7.0), Some(0.9)), (Some(9.0), None)]);
     }
 }
