@@ -4,6 +4,7 @@
 mod barycentre;
 mod book;
 mod inspect;
+mod plan;
 mod search;
 mod simulate;
 
@@ -29,6 +30,8 @@ enum Command {
     Barycentre(barycentre::Args),
     /// The burst catalogue: query, label, promote, sources, exposure, summary, VOEvent.
     Book(Box<book::Args>),
+    /// Choose trial DMs and time resolutions for a band, and estimate the cost.
+    Plan(plan::Args),
 }
 
 /// Runs the chosen subcommand.
@@ -39,5 +42,6 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Simulate(a) => simulate::run(a),
         Command::Barycentre(a) => barycentre::run(a),
         Command::Book(a) => book::run(*a),
+        Command::Plan(a) => plan::run(a),
     }
 }
