@@ -158,5 +158,27 @@ fn review_promote_summarise_and_export() {
 
     let xml = book(&db, &["voevent", &bursts[0]["id"].to_string()]);
     assert!(xml.contains("<voe:VOEvent") && xml.contains("FIELD-7"));
+    // Barycentric TOAs are those of the timing library for the burst's site and
+    // its source's catalogue position.
+    let msg = book(&db, &["barycentre", "FIELD-7"]);
+    assert!(
+        msg.contains(&format!("{} barycentric TOA(s) stored", bursts.len())),
+        "{msg}"
+    );
+    let cat = burstbook::catalogue::Catalogue::open(&db).unwrap();
+    for b in cat.burst_timing("FIELD-7").unwrap() {
+        let expected = burstbook::timing::utc_to_barycentric_tdb(
+            burstbook::obs::UtcEpoch::from_mjd_f64(b.mjd_utc),
+            &b.site,
+            123.25,
+            -12.5,
+        )
+        .unwrap();
+        assert_eq!(b.toa_tdb_mjd, Some(expected.tdb.to_mjd_f64()));
+        // TDB − UTC is 69.184 s plus up to ±500 s of light travel time.
+        let diff_s = (b.toa_tdb_mjd.unwrap() - b.mjd_utc) * 86_400.0;
+        assert!((diff_s - 69.184).abs() < 510.0, "{diff_s}");
+    }
+    drop(cat);
     assert!(book(&db, &["check"]).contains("ok (3 observations, 3 runs, 120 candidates)"));
 }

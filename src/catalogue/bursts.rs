@@ -12,7 +12,7 @@ use crate::obs::{Header, Site};
 /// A burst with everything needed to barycentre its arrival time.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct BurstTiming {
-    /// Burst id (pass to [`Catalogue::set_barycentric_toa`]).
+    /// Burst id (pass to [`Catalogue::set_barycentric_toas`]).
     pub burst_id: i64,
     /// Topocentric UTC MJD of arrival at infinite frequency.
     pub mjd_utc: f64,
@@ -103,26 +103,33 @@ impl Catalogue {
         Ok(out)
     }
 
-    /// Stores (or replaces) the barycentric TDB MJD of burst `burst_id`.
+    /// Stores (or replaces) barycentric TDB MJDs, `(burst_id, toa_tdb_mjd)`, all in
+    /// one transaction.
     ///
     /// # Errors
-    /// No such burst, a non-finite value, or an SQLite failure.
-    pub fn set_barycentric_toa(&mut self, burst_id: i64, toa_tdb_mjd: f64) -> Result<()> {
-        if !toa_tdb_mjd.is_finite() {
+    /// An unknown burst or a non-finite value (then nothing is stored), or an
+    /// SQLite failure.
+    pub fn set_barycentric_toas(&mut self, toas: &[(i64, f64)]) -> Result<()> {
+        if let Some((id, _)) = toas.iter().find(|(_, t)| !t.is_finite()) {
             return Err(Error::Numerical(format!(
-                "barycentric TOA of burst {burst_id} is not finite"
+                "barycentric TOA of burst {id} is not finite"
             )));
         }
         let path = self.path().to_path_buf();
         self.write(|tx| {
-            let n = tx
-                .execute(
-                    "UPDATE burst SET toa_tdb_mjd = ?2 WHERE id = ?1",
-                    params![burst_id, toa_tdb_mjd],
-                )
+            let mut update = tx
+                .prepare_cached("UPDATE burst SET toa_tdb_mjd = ?2 WHERE id = ?1")
                 .map_err(|e| super::sql_error(&path, e))?;
-            if n == 0 {
-                return Err(catalogue_error(&path, format!("has no burst {burst_id}")));
+            for &(burst_id, toa) in toas {
+                let n = update
+                    .execute(params![burst_id, toa])
+                    .map_err(|e| super::sql_error(&path, e))?;
+                if n == 0 {
+                    return Err(catalogue_error(
+                        &path,
+                        format!("has no burst {burst_id}; no TOA stored"),
+                    ));
+                }
             }
             Ok(())
         })
@@ -232,13 +239,18 @@ mod tests {
         assert_eq!(t.len(), 2);
         assert_eq!(t[0].site, obs.header.site);
         assert_eq!(t[0].mjd_utc, rows[0].candidate.mjd_inf);
-        cat.set_barycentric_toa(t[1].burst_id, 60_009.123_456_789)
+        cat.set_barycentric_toas(&[(t[1].burst_id, 60_009.123_456_789)])
             .unwrap();
         assert_eq!(
             cat.burst_timing("ECHO").unwrap()[1].toa_tdb_mjd,
             Some(60_009.123_456_789)
         );
-        assert!(cat.set_barycentric_toa(999, 1.0).is_err());
+        // One bad id stores nothing.
+        assert!(
+            cat.set_barycentric_toas(&[(t[0].burst_id, 1.0), (999, 1.0)])
+                .is_err()
+        );
+        assert_eq!(cat.burst_timing("ECHO").unwrap()[0].toa_tdb_mjd, None);
     }
 
     #[test]

@@ -1,5 +1,6 @@
 //! `burstbook book ...`: the burst catalogue from the command line.
 
+mod barycentre;
 mod exposure;
 mod output;
 mod query;
@@ -53,6 +54,8 @@ enum Command {
     /// Import or export exposure intervals as CSV.
     #[command(subcommand)]
     Exposure(exposure::ExposureCommand),
+    /// Store barycentric TDB arrival times of bursts (for period searches).
+    Barycentre(barycentre::BarycentreArgs),
     /// Per-source bursts, exposure, burst rate with confidence limits, DM and fluence.
     Summary(summary::SummaryArgs),
     /// Check the file's integrity and that every run holds all its candidates.
@@ -80,6 +83,7 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         Command::Source(c) => sources::run(&mut open()?, c),
         Command::Exposure(c) => exposure::run(&mut open()?, c),
         Command::Summary(a) => summary::run(&open()?, a),
+        Command::Barycentre(a) => barycentre::run(&mut open()?, a),
         Command::Voevent(a) => voevent::run(&open()?, a),
         Command::Check => {
             let c = open()?.verify()?;
