@@ -4,6 +4,7 @@
 mod barycentre;
 mod book;
 mod inspect;
+mod period;
 mod plan;
 mod search;
 mod simulate;
@@ -32,6 +33,8 @@ enum Command {
     Book(Box<book::Args>),
     /// Choose trial DMs and time resolutions for a band, and estimate the cost.
     Plan(plan::Args),
+    /// Periodicity tests on burst arrival times: rotation, activity cycles, statistics.
+    Period(period::Args),
 }
 
 /// Runs the chosen subcommand.
@@ -43,5 +46,6 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Barycentre(a) => barycentre::run(a),
         Command::Book(a) => book::run(*a),
         Command::Plan(a) => plan::run(a),
+        Command::Period(a) => period::run(a),
     }
 }
