@@ -16,6 +16,7 @@ pub mod dedisperse;
 pub mod error;
 pub mod inject;
 pub mod obs;
+pub mod period;
 pub mod progress;
 pub mod robust;
 pub mod search;

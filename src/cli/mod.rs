@@ -5,6 +5,7 @@ mod barycentre;
 mod book;
 mod inject;
 mod inspect;
+mod period;
 mod plan;
 mod search;
 mod simulate;
@@ -32,9 +33,11 @@ enum Command {
     /// Convert topocentric UTC arrival times (CSV column mjd_utc) to barycentric TDB.
     Barycentre(barycentre::Args),
     /// The burst catalogue: query, label, promote, sources, exposure, summary, VOEvent.
-    Book(book::Args),
+    Book(Box<book::Args>),
     /// Choose trial DMs and time resolutions for a band, and estimate the cost.
     Plan(plan::Args),
+    /// Periodicity tests on burst arrival times: rotation, activity cycles, statistics.
+    Period(period::Args),
 }
 
 /// Runs the chosen subcommand.
@@ -45,7 +48,8 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Simulate(a) => simulate::run(a),
         Command::Inject(a) => inject::run(a),
         Command::Barycentre(a) => barycentre::run(a),
-        Command::Book(a) => book::run(a),
+        Command::Book(a) => book::run(*a),
         Command::Plan(a) => plan::run(a),
+        Command::Period(a) => period::run(a),
     }
 }
