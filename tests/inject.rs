@@ -81,9 +81,13 @@ fn completeness_follows_the_gaussian_prediction_and_input_is_untouched() {
     }
 
     let s = &result.summary;
-    // Near 1: the best boxcar of a √2 ladder keeps ≥ 0.933 of a Gaussian's ideal S/N
-    // and DM-trial and sample-phase losses cost a few per cent more (the search's own
-    // bounds, docs/search.md); the ideal reference counts every integer width.
+    // Near 1. The ideal reference counts every integer width at the exact DM; the
+    // search's documented worst cases are 0.933 for the best rung of a √2 boxcar
+    // ladder (docs/search.md) and 0.936 half-way between DM trials at tolerance 1.25
+    // (docs/dedisperse.md), with a few per cent more for sample phase after
+    // downsampling: 0.933 × 0.936 × 0.97 ≈ 0.85 is the floor for the median.
+    // (Measured 0.852 with the planner and fast kernel of 2 Dec 2026: bursts at DM
+    // 28–46, searched at 4× downsampling, lose most; see docs/inject.md.)
     let ratio = s.bright.median_snr_ratio.unwrap();
     assert!(
         (0.85..=1.05).contains(&ratio),
@@ -152,7 +156,7 @@ fn completeness_follows_the_gaussian_prediction_and_input_is_untouched() {
     assert_eq!(stored.snr90, s.snr90);
     let json: serde_json::Value = serde_json::from_str(&stored.result_json).unwrap();
     assert_eq!(json["summary"]["n_injected"], 360);
-    eprintln!("{report}{fit:?}, {} passes", result.n_passes);
+    eprintln!("{report}{fit:?}, {} passes, bright ratio {ratio:.3}", result.n_passes);
 }
 
 /// The command writes its three outputs, records the levels in the catalogue named
