@@ -74,28 +74,35 @@ impl InjectionRanges {
     /// # Errors
     /// [`Error::Config`] naming the bad range; fluence without an SEFD in `header`.
     pub fn validate(&self, header: &Header) -> Result<()> {
-        let ordered = |name: &str, r: [f64; 2], min: f64| {
-            if r[0].is_finite() && r[1].is_finite() && r[0] >= min && r[1] >= r[0] {
+        // `positive`: the lower end must exceed 0; otherwise it must be at least `min`.
+        let ordered = |name: &str, r: [f64; 2], min: f64, positive: bool| {
+            let low_ok = if positive { r[0] > 0.0 } else { r[0] >= min };
+            if r[0].is_finite() && r[1].is_finite() && low_ok && r[1] >= r[0] {
                 Ok(())
             } else {
+                let bound = if positive {
+                    "above 0".to_string()
+                } else {
+                    format!("at least {min}")
+                };
                 Err(Error::Config(format!(
-                    "{name} range {}..{} must be finite, ordered and at least {min}",
+                    "{name} range {}..{} must be finite, ordered (LO <= HI) and {bound}",
                     r[0], r[1]
                 )))
             }
         };
-        ordered("DM", self.dm, 0.0)?;
-        ordered("width", self.width_ms, 0.0)?;
-        if self.width_ms[0] <= 0.0 {
-            return Err(Error::Config(
-                "width range must be above 0 ms (widths are drawn log-uniformly)".into(),
-            ));
-        }
+        ordered("DM", self.dm, 0.0, false)?;
+        ordered("width (ms, drawn log-uniformly)", self.width_ms, 0.0, true)?;
         if let Some(s) = self.scatter_ms_1ghz {
-            ordered("scattering", s, f64::MIN_POSITIVE)?;
+            ordered("scattering (ms, drawn log-uniformly)", s, 0.0, true)?;
         }
-        ordered("spectral index", self.spectral_index, f64::NEG_INFINITY)?;
-        ordered("envelope FWHM", self.envelope_fwhm_mhz, f64::MIN_POSITIVE)?;
+        ordered(
+            "spectral index",
+            self.spectral_index,
+            f64::NEG_INFINITY,
+            false,
+        )?;
+        ordered("envelope FWHM", self.envelope_fwhm_mhz, 0.0, true)?;
         if !(0.0..=1.0).contains(&self.band_limited_fraction) {
             return Err(Error::Config(format!(
                 "band-limited fraction {} must be in [0, 1]",
@@ -103,9 +110,9 @@ impl InjectionRanges {
             )));
         }
         match self.brightness {
-            Brightness::Snr(r) => ordered("S/N", r, f64::MIN_POSITIVE),
+            Brightness::Snr(r) => ordered("S/N", r, 0.0, true),
             Brightness::FluenceJyMs(r) => {
-                ordered("fluence", r, f64::MIN_POSITIVE)?;
+                ordered("fluence (Jy ms, drawn log-uniformly)", r, 0.0, true)?;
                 if header.sefd_jy.is_none() {
                     return Err(Error::Config(
                         "fluence ranges need the SEFD, but the observation header has none".into(),
@@ -220,5 +227,21 @@ mod tests {
         assert!((d.fluence_jy_ms.unwrap() - 1.0).abs() < 1e-12);
         let want = amplitude_from_fluence(&header, 20.0, 1.0);
         assert!((d.burst.amplitude - want).abs() < 1e-12 * want);
+    }
+
+    #[test]
+    fn bad_ranges_are_named() {
+        let header = crate::simulate::test_header(16, 4000);
+        let bad = |r: InjectionRanges| r.validate(&header).unwrap_err().to_string();
+        let e = bad(InjectionRanges {
+            brightness: Brightness::Snr([5.0, 3.0]),
+            ..InjectionRanges::default()
+        });
+        assert!(e.contains("S/N range 5..3") && e.contains("above 0"), "{e}");
+        let e = bad(InjectionRanges {
+            width_ms: [0.0, 3.0],
+            ..InjectionRanges::default()
+        });
+        assert!(e.contains("width"), "{e}");
     }
 }

@@ -174,6 +174,9 @@ mod tests {
             &mut ChaCha8Rng::seed_from_u64(1),
         )
         .unwrap_err();
-        assert!(e.to_string().contains("longer than the searched part"), "{e}");
+        assert!(
+            e.to_string().contains("longer than the searched part"),
+            "{e}"
+        );
     }
 }
