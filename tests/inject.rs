@@ -156,7 +156,10 @@ fn completeness_follows_the_gaussian_prediction_and_input_is_untouched() {
     assert_eq!(stored.snr90, s.snr90);
     let json: serde_json::Value = serde_json::from_str(&stored.result_json).unwrap();
     assert_eq!(json["summary"]["n_injected"], 360);
-    eprintln!("{report}{fit:?}, {} passes, bright ratio {ratio:.3}", result.n_passes);
+    eprintln!(
+        "{report}{fit:?}, {} passes, bright ratio {ratio:.3}",
+        result.n_passes
+    );
 }
 
 /// The command writes its three outputs, records the levels in the catalogue named
