@@ -13,6 +13,7 @@ pub mod dedisperse;
 pub mod error;
 pub mod obs;
 pub mod progress;
+pub mod report;
 pub mod units;
 
 pub use candidate::{Candidate, TriageFeatures, Verdict};
