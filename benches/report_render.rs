@@ -17,7 +17,7 @@ use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution, Normal};
 
 const N_CHAN: usize = 256;
-const N_TIME: usize = 40_000;
+const N_TIME: usize = 50_000;
 const TSAMP_S: f64 = 64e-6;
 const DM: f64 = 500.0;
 
@@ -37,9 +37,13 @@ fn header() -> Header {
         site,
         start: UtcEpoch::new(60000, 0.0),
         tsamp_s: TSAMP_S,
-        freqs_mhz: (0..N_CHAN).map(|i| 1600.0 - bw * (i as f64 + 0.5)).collect(),
+        freqs_mhz: (0..N_CHAN)
+            .map(|i| 1600.0 - bw * (i as f64 + 0.5))
+            .collect(),
         chan_bw_mhz: bw,
-        weights: (0..N_CHAN).map(|c| if (100..110).contains(&c) { 0.0 } else { 1.0 }).collect(),
+        weights: (0..N_CHAN)
+            .map(|c| if (100..110).contains(&c) { 0.0 } else { 1.0 })
+            .collect(),
         n_samples: N_TIME as u64,
         nbits: 32,
         sefd_jy: None,
@@ -51,9 +55,14 @@ fn main() {
     let h = header();
     let mut rng = ChaCha8Rng::seed_from_u64(7);
     let noise = Normal::new(0.0f32, 1.0).unwrap();
-    let mut data: Vec<f32> = (0..N_TIME * N_CHAN).map(|_| noise.sample(&mut rng)).collect();
-    let t_top = 8000;
-    for (c, d) in channel_delays(&h.freqs_mhz, DM, TSAMP_S).into_iter().enumerate() {
+    let mut data: Vec<f32> = (0..N_TIME * N_CHAN)
+        .map(|_| noise.sample(&mut rng))
+        .collect();
+    let t_top = 30_000;
+    for (c, d) in channel_delays(&h.freqs_mhz, DM, TSAMP_S)
+        .into_iter()
+        .enumerate()
+    {
         for t in t_top + d..t_top + d + 31 {
             data[t * N_CHAN + c] += 1.0;
         }
@@ -79,17 +88,21 @@ fn main() {
             t_s: t_inf_s + (i as f64 - 15.0) * 0.05,
             dm: 10.0 + 30.0 * i as f64,
             snr: 6.0 + (i % 7) as f64,
-            verdict: Some(if i % 3 == 0 { Verdict::Rfi } else { Verdict::Unsure }),
+            verdict: Some(if i % 3 == 0 {
+                Verdict::Rfi
+            } else {
+                Verdict::Unsure
+            }),
         })
         .collect();
     let cut = Cut::new(&h, &cand);
     let runs = 15;
     let (mut read_ms, mut curve_ms, mut draw_ms) = (Vec::new(), Vec::new(), Vec::new());
     let mut png_len = 0;
+    let mut cpu_ns = 0;
     for _ in 0..runs {
-        let t0 = Instant::now();
         let src = MemorySource::new(h.clone(), data.clone());
-        let t1 = Instant::now();
+        let (t1, c1) = (Instant::now(), thread_cpu_ns());
         let stretch = read_stretch(src, cut.window.start as u64, cut.stretch_len).unwrap();
         let input = candidate_data::normalise_for(&h, &stretch, &cut).unwrap();
         let t2 = Instant::now();
@@ -98,8 +111,8 @@ fn main() {
         let fig = candidate_figure(&h, &stretch, &cand, Some(&curve), &others).unwrap();
         let png = fig.to_png();
         let t4 = Instant::now();
+        cpu_ns += thread_cpu_ns() - c1;
         png_len = png.len();
-        let _ = t0;
         read_ms.push((t2 - t1).as_secs_f64() * 1e3);
         curve_ms.push((t3 - t2).as_secs_f64() * 1e3);
         draw_ms.push((t4 - t3).as_secs_f64() * 1e3);
@@ -108,11 +121,16 @@ fn main() {
             std::fs::write("target/report-bench/candidate.png", &png).unwrap();
         }
     }
+    let cpu_ms = cpu_ns as f64 / 1e6 / runs as f64;
     let median = |v: &mut Vec<f64>| {
         v.sort_by(f64::total_cmp);
         v[v.len() / 2]
     };
-    let (r, c, d) = (median(&mut read_ms), median(&mut curve_ms), median(&mut draw_ms));
+    let (r, c, d) = (
+        median(&mut read_ms),
+        median(&mut curve_ms),
+        median(&mut draw_ms),
+    );
     println!(
         "candidate figure ({N_CHAN} ch, {} rows stretch, {} DM trials): read+normalise {r:.1} ms, \
          S/N-vs-DM {c:.1} ms, draw+PNG {d:.1} ms ({png_len} bytes), total {:.1} ms (median of {runs})",
@@ -120,4 +138,16 @@ fn main() {
         candidate_data::N_DM_TRIALS,
         r + c + d
     );
+    println!(
+        "mean on-CPU time per figure (this thread, excludes waiting for a core): {cpu_ms:.1} ms"
+    );
+}
+
+/// Nanoseconds this thread has spent on a CPU (Linux schedstat), so the figure is
+/// meaningful on a loaded shared machine.
+fn thread_cpu_ns() -> u64 {
+    std::fs::read_to_string("/proc/thread-self/schedstat")
+        .ok()
+        .and_then(|s| s.split_whitespace().next()?.parse().ok())
+        .unwrap_or(0)
 }

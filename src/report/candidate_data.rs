@@ -117,10 +117,20 @@ pub fn normalise_for(header: &Header, stretch: &Block, cut: &Cut) -> Result<Norm
 
 /// The dedispersed waterfall and profile at the candidate's DM.
 pub fn panels(header: &Header, input: &Normalised, cut: &Cut, dm: f64) -> Panels {
-    let window = Window { start: 0, ..cut.window };
+    let window = Window {
+        start: 0,
+        ..cut.window
+    };
     Panels {
         cut: *cut,
-        waterfall: waterfall::build(input, &header.freqs_mhz, header.tsamp_s, dm, window, MAX_BANDS),
+        waterfall: waterfall::build(
+            input,
+            &header.freqs_mhz,
+            header.tsamp_s,
+            dm,
+            window,
+            MAX_BANDS,
+        ),
     }
 }
 

@@ -10,9 +10,7 @@ use plotters::prelude::*;
 
 use super::candidate_data::{self, Cut, Panels};
 use super::dm_curve::{DmCurve, expected_ratio};
-use super::figure::{
-    Figure, MASKED_GREY, PanelRect, draw_err, text, verdict_colour, viridis,
-};
+use super::figure::{Figure, MASKED_GREY, PanelRect, draw_err, text, verdict_colour, viridis};
 use crate::candidate::{Candidate, Verdict};
 use crate::error::Result;
 use crate::obs::{Block, Header};
@@ -153,7 +151,11 @@ fn draw_profile(area: &Area, header: &Header, c: &Candidate, p: &Panels) -> Resu
     let col_ms = (x.end - x.start) / p.cut.window.n_cols as f64;
     let prof = &p.waterfall.profile;
     let lo = prof.iter().copied().fold(f32::INFINITY, f32::min).min(-1.0) as f64;
-    let hi = prof.iter().copied().fold(f32::NEG_INFINITY, f32::max).max(1.0) as f64;
+    let hi = prof
+        .iter()
+        .copied()
+        .fold(f32::NEG_INFINITY, f32::max)
+        .max(1.0) as f64;
     let pad = 0.08 * (hi - lo);
     let mut chart = ChartBuilder::on(area)
         .margin_top(6)
@@ -279,8 +281,15 @@ fn draw_colour_bar(area: &Area, lo: f64, hi: f64) -> Result<()> {
         .map_err(draw_err)?;
     let (px, py) = chart.plotting_area().get_pixel_range();
     for (v, y) in [(hi, py.start), (lo, py.end - 12)] {
-        area.draw(&Text::new(format!("{v:.0}σ"), (px.end - area.get_base_pixel().0 + 2, y - area.get_base_pixel().1), text(11)))
-            .map_err(draw_err)?;
+        area.draw(&Text::new(
+            format!("{v:.0}σ"),
+            (
+                px.end - area.get_base_pixel().0 + 2,
+                y - area.get_base_pixel().1,
+            ),
+            text(11),
+        ))
+        .map_err(draw_err)?;
     }
     Ok(())
 }
@@ -292,11 +301,18 @@ fn draw_dm_curve(
     curve: Option<&DmCurve>,
 ) -> Result<PanelRect> {
     let Some(curve) = curve.filter(|k| !k.dms.is_empty()) else {
-        area.draw(&Text::new("S/N against DM: not computed", (30, 150), text(14)))
-            .map_err(draw_err)?;
+        area.draw(&Text::new(
+            "S/N against DM: not computed",
+            (30, 150),
+            text(14),
+        ))
+        .map_err(draw_err)?;
         return Ok(PanelRect::from_ranges(0..0, 0..0));
     };
-    let (d0, d1) = (curve.dms[0], curve.dms[curve.dms.len() - 1].max(curve.dms[0] + 1e-3));
+    let (d0, d1) = (
+        curve.dms[0],
+        curve.dms[curve.dms.len() - 1].max(curve.dms[0] + 1e-3),
+    );
     let at_dm = curve
         .dms
         .iter()
@@ -324,7 +340,10 @@ fn draw_dm_curve(
     let centre_ghz = (header.freq_lo_mhz() + header.freq_hi_mhz()) / 2e3;
     let expected = (0..=200).map(|i| {
         let dm = d0 + (d1 - d0) * i as f64 / 200.0;
-        (dm, at_dm * expected_ratio(dm - c.dm, bw, centre_ghz, c.width_ms))
+        (
+            dm,
+            at_dm * expected_ratio(dm - c.dm, bw, centre_ghz, c.width_ms),
+        )
     });
     let blue = verdict_colour(Verdict::Astrophysical);
     chart
@@ -332,9 +351,17 @@ fn draw_dm_curve(
         .map_err(draw_err)?
         .label("expected for a dispersed pulse")
         .legend(move |(x, y)| PathElement::new([(x, y), (x + 16, y)], blue.stroke_width(2)));
-    let points: Vec<(f64, f64)> = curve.dms.iter().copied().zip(curve.snr.iter().copied()).collect();
+    let points: Vec<(f64, f64)> = curve
+        .dms
+        .iter()
+        .copied()
+        .zip(curve.snr.iter().copied())
+        .collect();
     chart
-        .draw_series(LineSeries::new(points.iter().copied(), BLACK.stroke_width(1)))
+        .draw_series(LineSeries::new(
+            points.iter().copied(),
+            BLACK.stroke_width(1),
+        ))
         .map_err(draw_err)?
         .label("measured")
         .legend(|(x, y)| Circle::new((x + 8, y), 3, BLACK.filled()));
@@ -396,7 +423,11 @@ fn draw_neighbours(area: &Area, c: &Candidate, others: &[Detection]) -> Result<P
     chart
         .draw_series(others.iter().map(|d| {
             let colour = d.verdict.map_or(RGBColor(120, 120, 120), verdict_colour);
-            Circle::new((d.t_s, d.dm), marker_radius(d.snr), colour.mix(0.7).filled())
+            Circle::new(
+                (d.t_s, d.dm),
+                marker_radius(d.snr),
+                colour.mix(0.7).filled(),
+            )
         }))
         .map_err(draw_err)?;
     chart
@@ -413,8 +444,12 @@ fn draw_neighbours(area: &Area, c: &Candidate, others: &[Detection]) -> Result<P
     };
     let (px, py) = chart.plotting_area().get_pixel_range();
     let base = area.get_base_pixel();
-    area.draw(&Text::new(note, (px.start - base.0 + 6, py.start - base.1 + 4), text(12)))
-        .map_err(draw_err)?;
+    area.draw(&Text::new(
+        note,
+        (px.start - base.0 + 6, py.start - base.1 + 4),
+        text(12),
+    ))
+    .map_err(draw_err)?;
     Ok(PanelRect::from_ranges(px, py))
 }
 
@@ -423,9 +458,9 @@ mod tests {
     use super::*;
     use crate::candidate::TriageFeatures;
     use crate::obs::MemorySource;
-    use crate::report::waterfall::tests::test_header;
     use crate::report::stretch::read_stretch;
     use crate::report::waterfall::tests::noisy_burst;
+    use crate::report::waterfall::tests::test_header;
     use crate::units::delay_to_infinity_s;
 
     const DM: f64 = 300.0;
@@ -507,7 +542,10 @@ mod tests {
         let t_lo = cut.col_ms(0.0, h.tsamp_s);
         let t_hi = cut.col_ms(128.0, h.tsamp_s);
         let ms = t_lo + (best_x - wf.x0) as f64 / (wf.x1 - wf.x0) as f64 * (t_hi - t_lo);
-        assert!((-0.5..4.5).contains(&ms), "brightest column at {ms} ms, pulse at 0–4 ms");
+        assert!(
+            (-0.5..4.5).contains(&ms),
+            "brightest column at {ms} ms, pulse at 0–4 ms"
+        );
         // Masked channels 40..44 (one of the 64 sub-bands) are drawn grey.
         let band_h = (wf.y1 - wf.y0) as f64 / 64.0;
         let y = wf.y0 + (40.5 * band_h) as i32;
@@ -524,7 +562,10 @@ mod tests {
                 .filter(|&(x, y)| fig.pixel(x as u32, y as u32) != [255, 255, 255])
                 .count();
             let area = ((r.x1 - r.x0) * (r.y1 - r.y0)) as usize;
-            assert!(inked > area / 200, "panel {name} nearly blank: {inked}/{area}");
+            assert!(
+                inked > area / 200,
+                "panel {name} nearly blank: {inked}/{area}"
+            );
         }
         // Axis labels: the strip left of the waterfall holds dark text pixels.
         let wf = fig.panels["waterfall"];
@@ -532,7 +573,10 @@ mod tests {
             .flat_map(|y| (wf.x0 - 60..wf.x0 - 2).map(move |x| (x, y)))
             .filter(|&(x, y)| luminance(fig.pixel(x as u32, y as u32)) < 100.0)
             .count();
-        assert!(dark > 200, "frequency axis labels missing ({dark} dark pixels)");
+        assert!(
+            dark > 200,
+            "frequency axis labels missing ({dark} dark pixels)"
+        );
         // The profile's highest black pixel lies over the shaded boxcar.
         let p = fig.panels["profile"];
         let top = (p.y0..p.y1)

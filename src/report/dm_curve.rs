@@ -40,10 +40,7 @@ pub fn half_power_delta_dm(bw_mhz: f64, freq_ghz: f64, width_ms: f64) -> f64 {
 /// DM range for the curve: `dm ± 4` half-power widths,
 /// widened to cover the cluster's `dm_lo..dm_hi`, never below zero.
 pub fn trial_range(dm: f64, dm_lo: f64, dm_hi: f64, half_width: f64) -> (f64, f64) {
-    let span = (4.0 * half_width)
-        .max(dm - dm_lo)
-        .max(dm_hi - dm)
-        .max(0.5);
+    let span = (4.0 * half_width).max(dm - dm_lo).max(dm_hi - dm).max(0.5);
     ((dm - span).max(0.0), dm + span)
 }
 
@@ -66,12 +63,7 @@ pub fn measure(
     for step in &out {
         for (d, &dm) in step.dms.iter().enumerate() {
             dms.push(dm);
-            snr.push(best_boxcar_snr(
-                step.row(d),
-                width,
-                expected_start,
-                search,
-            ));
+            snr.push(best_boxcar_snr(step.row(d), width, expected_start, search));
         }
     }
     DmCurve { dms, snr }
@@ -102,7 +94,12 @@ mod tests {
     // Δν = 400 MHz, ν = 1.4 GHz, W = 1 ms (ζ = 0.50364 at δDM = 0.5).
     #[test]
     fn expected_ratio_matches_cordes_mclaughlin() {
-        for (ddm, want) in [(0.5, 0.92151), (1.0, 0.74406), (2.0, 0.43798), (10.0, 0.08798)] {
+        for (ddm, want) in [
+            (0.5, 0.92151),
+            (1.0, 0.74406),
+            (2.0, 0.43798),
+            (10.0, 0.08798),
+        ] {
             let got = expected_ratio(ddm, 400.0, 1.4, 1.0);
             assert!((got - want).abs() < 1e-4, "δDM {ddm}: {got} vs {want}");
             assert_eq!(got, expected_ratio(-ddm, 400.0, 1.4, 1.0), "symmetric");

@@ -109,7 +109,7 @@ pub fn verdict_colour(v: Verdict) -> RGBColor {
     match v {
         Verdict::Astrophysical => RGBColor(0, 114, 178), // blue
         Verdict::Rfi => RGBColor(213, 94, 0),            // vermillion
-        Verdict::Unsure => RGBColor(230, 159, 0),        // orange
+        Verdict::Unsure => RGBColor(204, 121, 167),      // reddish purple
     }
 }
 

@@ -8,6 +8,7 @@ pub mod candidate_data;
 pub mod candidate_plot;
 pub mod dm_curve;
 pub mod figure;
+pub mod overview;
 pub mod stretch;
 pub mod waterfall;
 

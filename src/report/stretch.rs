@@ -117,7 +117,11 @@ mod tests {
         let src = MemorySource::new(test_header(n_chan, n_time), data.clone());
         let b = read_stretch(src, 4090, 20).unwrap();
         assert_eq!((b.start_sample, b.n_time()), (4090, 20));
-        assert_eq!(b.data[..], data[4090 * 3..4110 * 3], "crosses a block boundary");
+        assert_eq!(
+            b.data[..],
+            data[4090 * 3..4110 * 3],
+            "crosses a block boundary"
+        );
         let src = MemorySource::new(test_header(n_chan, n_time), data.clone());
         let b = read_stretch(src, 9995, 10).unwrap();
         assert_eq!(b.row(4)[2], data[9999 * 3 + 2]);

@@ -56,7 +56,10 @@ pub fn build(
     let n_chan = freqs_mhz.len();
     let delays = channel_delays(freqs_mhz, dm, tsamp_s);
     let needed = window.start + window.n_cols * window.bin + delays.iter().max().unwrap_or(&0);
-    assert!(input.data.ncols() >= needed, "stretch shorter than the window");
+    assert!(
+        input.data.ncols() >= needed,
+        "stretch shorter than the window"
+    );
 
     // Channels from the top of the band down, cut into near-equal runs.
     let mut order: Vec<usize> = (0..n_chan).collect();
@@ -170,7 +173,9 @@ pub(crate) mod tests {
 
     pub(crate) fn band(n_chan: usize) -> Vec<f64> {
         let bw = 400.0 / n_chan as f64;
-        (0..n_chan).map(|i| 1600.0 - bw * (i as f64 + 0.5)).collect()
+        (0..n_chan)
+            .map(|i| 1600.0 - bw * (i as f64 + 0.5))
+            .collect()
     }
 
     #[test]
@@ -199,7 +204,11 @@ pub(crate) mod tests {
         assert!((0..100).all(|c| w.at(2, c).is_nan()), "masked band is NaN");
         let p = &w.profile;
         let peak = (0..100).max_by(|&i, &j| p[i].total_cmp(&p[j])).unwrap();
-        assert!((50..=51).contains(&peak) && p[peak] > 25.0, "{peak} {}", p[peak]);
+        assert!(
+            (50..=51).contains(&peak) && p[peak] > 25.0,
+            "{peak} {}",
+            p[peak]
+        );
     }
 
     #[test]
@@ -216,7 +225,9 @@ pub(crate) mod tests {
         let w = build(&input, &freqs, tsamp, 0.0, window, 64);
         for (c, &f) in freqs.iter().enumerate().step_by(7) {
             let row: Vec<f32> = (0..1000).map(|t| w.at(c, t)).collect();
-            let peak = (0..1000).max_by(|&i, &j| row[i].total_cmp(&row[j])).unwrap();
+            let peak = (0..1000)
+                .max_by(|&i, &j| row[i].total_cmp(&row[j]))
+                .unwrap();
             let expected = 300.0 + crate::units::delay_between_s(dm, f, freqs[0]) / tsamp;
             assert!(
                 (peak as f64 - expected).abs() <= 4.0,
