@@ -1,16 +1,164 @@
-//! `burstbook inspect FILE`.
+//! `burstbook inspect FILE`: what is in a recording, and does it look healthy?
 
 use std::path::PathBuf;
 
+use anyhow::Context;
+use burstbook::obs::stats::{self, ObsStats};
+use burstbook::obs::{self, Container, Header, OpenOptions, geodesy};
+
 /// Arguments of `inspect`.
 #[derive(clap::Args, Debug)]
+#[command(after_help = "Examples:
+  burstbook inspect demo-data/obs.json            header, statistics, suspicious channels
+  burstbook inspect survey.fits --channels        plus a line per channel
+  burstbook inspect survey.fits --json > s.json   everything, machine-readable
+
+Reads the whole file once, a block at a time (memory stays small for any length).
+NaN/Inf samples are counted here; the other commands refuse them.")]
 pub struct Args {
-    /// Observation file (.json native header or FITS search mode).
+    /// Observation file: a native `.json` header (with its `.npy`) or a FITS
+    /// search-mode file.
     pub file: PathBuf,
+    /// Print a line of statistics for every channel.
+    #[arg(long)]
+    pub channels: bool,
+    /// Print the header and statistics as JSON instead of text.
+    #[arg(long)]
+    pub json: bool,
 }
 
 pub fn run(args: Args) -> anyhow::Result<()> {
-    let source = burstbook::obs::open(&args.file)?;
-    println!("{:#?}", source.header());
+    let container = Container::detect(&args.file)?;
+    let options = OpenOptions {
+        allow_non_finite: true,
+    };
+    let source = obs::open_with(&args.file, options)?;
+    let header = source.header().clone();
+    let bar = burstbook::progress::bar(header.n_samples, "reading");
+    let stats = stats::compute(source, |n| bar.inc(n))
+        .with_context(|| format!("inspecting {}", args.file.display()))?;
+    bar.finish_and_clear();
+    if args.json {
+        let out = serde_json::json!({
+            "file": args.file,
+            "container": container,
+            "header": header,
+            "start_utc": utc_string(&header),
+            "duration_s": header.duration_s(),
+            "statistics": stats,
+        });
+        println!("{}", serde_json::to_string_pretty(&out)?);
+    } else {
+        print_header(&args.file, container, &header);
+        print_stats(&stats, args.channels);
+    }
     Ok(())
+}
+
+/// The start as an ISO-8601 UTC string (days of 86400 s).
+fn utc_string(h: &Header) -> String {
+    let mjd_epoch = chrono::NaiveDate::from_ymd_opt(1858, 11, 17).expect("valid date");
+    let date = mjd_epoch + chrono::Days::new(h.start.mjd.max(0) as u64);
+    let hms = geodesy::format_sexagesimal(h.start.sec / 3600.0, 6, false);
+    format!("{date}T{hms}")
+}
+
+fn print_header(file: &std::path::Path, container: Container, h: &Header) {
+    let order = if h.is_descending() {
+        "descending"
+    } else {
+        "ascending"
+    };
+    let row = |k: &str, v: String| println!("{k:<12} {v}");
+    let kind = match container {
+        Container::Native => "native .json + .npy",
+        Container::Fits => "FITS search mode",
+    };
+    row(
+        "file",
+        format!("{} ({kind}, {}-bit samples)", file.display(), h.nbits),
+    );
+    row("source", h.source.clone());
+    row("telescope", h.telescope.clone());
+    row(
+        "site",
+        format!(
+            "{}: lon {:.6}°, lat {:.6}°, height {:.1} m (WGS84)",
+            h.site.name, h.site.lon_deg, h.site.lat_deg, h.site.height_m
+        ),
+    );
+    row(
+        "position",
+        format!(
+            "RA {} ({:.6}°), Dec {} ({:.6}°)",
+            geodesy::format_sexagesimal(h.ra_deg / 15.0, 3, false),
+            h.ra_deg,
+            geodesy::format_sexagesimal(h.dec_deg, 2, true),
+            h.dec_deg
+        ),
+    );
+    row(
+        "start",
+        format!("{} UTC (MJD {:.9})", utc_string(h), h.start.to_mjd_f64()),
+    );
+    row("tsamp", format!("{} µs", h.tsamp_s * 1e6));
+    row(
+        "band",
+        format!(
+            "{:.4}–{:.4} MHz, {} channels of {} MHz, {order}",
+            h.freq_lo_mhz() - h.chan_bw_mhz / 2.0,
+            h.freq_hi_mhz() + h.chan_bw_mhz / 2.0,
+            h.n_chan(),
+            h.chan_bw_mhz
+        ),
+    );
+    row(
+        "duration",
+        format!("{:.3} s ({} samples)", h.duration_s(), h.n_samples),
+    );
+    row(
+        "SEFD",
+        h.sefd_jy.map_or("unknown".into(), |s| format!("{s} Jy")),
+    );
+    if let Some(beam) = &h.beam {
+        row("beam", beam.clone());
+    }
+}
+
+fn print_stats(s: &ObsStats, per_channel: bool) {
+    let d = &s.data;
+    println!(
+        "{:<12} mean {:.4}, std {:.4}, min {:.4}, max {:.4}, NaN {}, Inf {}",
+        "data", d.mean, d.std, d.min, d.max, d.nan_count, d.inf_count
+    );
+    if per_channel {
+        println!(
+            "{:>6} {:>12} {:>6} {:>12} {:>12} {:>12} {:>12} {:>8}",
+            "chan", "freq_mhz", "weight", "mean", "std", "median", "robust_std", "non_fin"
+        );
+        for c in &s.channels {
+            println!(
+                "{:>6} {:>12.4} {:>6} {:>12.4} {:>12.4} {:>12.4} {:>12.4} {:>8}",
+                c.index, c.freq_mhz, c.weight, c.mean, c.std, c.median, c.robust_std, c.non_finite
+            );
+        }
+    }
+    if s.bad_channels.is_empty() {
+        println!("{:<12} none look bad", "channels");
+        return;
+    }
+    println!(
+        "{:<12} {} of {} look bad:",
+        "channels",
+        s.bad_channels.len(),
+        s.channels.len()
+    );
+    for b in &s.bad_channels {
+        println!(
+            "  {:>5} ({:.4} MHz): {}",
+            b.index,
+            b.freq_mhz,
+            b.reasons.join("; ")
+        );
+    }
 }

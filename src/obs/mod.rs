@@ -5,9 +5,13 @@
 //! own file and teaching [`open`] / [`create`] to recognise it.
 
 mod block;
+mod codec;
 pub mod fits;
+pub mod geodesy;
 mod header;
 pub mod native;
+mod npy;
+pub mod stats;
 
 pub use block::{Block, BlockReader, MemorySource, SampleSink, SampleSource};
 pub use header::{Header, Site, UtcEpoch};
@@ -60,14 +64,32 @@ impl Container {
     }
 }
 
-/// Opens an observation for streaming, whatever its container.
+/// How to open an observation.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub struct OpenOptions {
+    /// Pass NaN and infinite samples through instead of failing on the first one
+    /// (for `inspect`, which counts them).
+    pub allow_non_finite: bool,
+}
+
+/// Opens an observation for streaming, whatever its container. A NaN or infinite
+/// sample is an error when it is reached.
 ///
 /// # Errors
 /// Missing file, unknown format, or a header that fails validation.
 pub fn open(path: &Path) -> Result<Box<dyn SampleSource>> {
+    open_with(path, OpenOptions::default())
+}
+
+/// [`open`] with options.
+///
+/// # Errors
+/// As [`open`].
+pub fn open_with(path: &Path, options: OpenOptions) -> Result<Box<dyn SampleSource>> {
+    let lenient = options.allow_non_finite;
     match Container::detect(path)? {
-        Container::Native => Ok(Box::new(native::NativeReader::open(path)?)),
-        Container::Fits => Ok(Box::new(fits::FitsReader::open(path)?)),
+        Container::Native => Ok(Box::new(native::NativeReader::open(path, lenient)?)),
+        Container::Fits => Ok(Box::new(fits::FitsReader::open(path, lenient)?)),
     }
 }
 

@@ -1,22 +1,217 @@
-//! Native format: `NAME.json` header + `NAME.npy` samples. (Being written.)
+//! Native format: a `NAME.json` header beside a `NAME.npy` array of samples
+//! (`[time, channel]`, C order, little-endian `uint8`, `uint16`, `int16` or `float32`).
+//! The layout is documented for users in `docs/formats.md`.
 
-use std::path::Path;
+use std::fs::File;
+use std::io::{BufReader, BufWriter, Read, Write};
+use std::path::{Path, PathBuf};
 
-use super::{Header, SampleSink, SampleSource};
+use serde::{Deserialize, Serialize};
+
+use super::codec::{check_finite, check_whole_rows, quantise};
+use super::npy::{self, Dtype};
+use super::{Header, SampleSink, SampleSource, Site, UtcEpoch};
 use crate::error::{Error, Result};
 
-/// Streams rows from a native observation.
+const FORMAT_NAME: &str = "burstbook.observation";
+const FORMAT_VERSION: u32 = 1;
+
+/// Channel centre frequencies: `first_mhz + i * step_mhz` for `i < count`.
+#[derive(Debug, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct Channels {
+    first_mhz: f64,
+    step_mhz: f64,
+    count: usize,
+}
+
+/// The JSON header exactly as stored.
+#[derive(Debug, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct JsonHeader {
+    format: String,
+    version: u32,
+    source: String,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    telescope: Option<String>,
+    ra_deg: f64,
+    dec_deg: f64,
+    site: Site,
+    start_mjd: i64,
+    start_sec: f64,
+    sample_time_s: f64,
+    channels: Channels,
+    data: String,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    sefd_jy: Option<f64>,
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    bad_channels: Vec<usize>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    beam: Option<String>,
+}
+
+impl JsonHeader {
+    /// The library header, given what the .npy says about the samples.
+    fn to_header(&self, dtype: Dtype, n_samples: u64) -> Result<Header, String> {
+        if self.format != FORMAT_NAME {
+            return Err(format!(
+                "\"format\" is \"{}\", expected \"{FORMAT_NAME}\"",
+                self.format
+            ));
+        }
+        if self.version != FORMAT_VERSION {
+            return Err(format!(
+                "format version {} is not supported (this build reads version {FORMAT_VERSION})",
+                self.version
+            ));
+        }
+        let c = &self.channels;
+        if c.step_mhz == 0.0 || !c.step_mhz.is_finite() {
+            return Err(format!("channel step must be non-zero, got {}", c.step_mhz));
+        }
+        let mut weights = vec![1.0; c.count];
+        for &b in &self.bad_channels {
+            *weights.get_mut(b).ok_or_else(|| {
+                format!("bad channel {b} does not exist ({} channels)", c.count)
+            })? = 0.0;
+        }
+        let header = Header {
+            source: self.source.clone(),
+            telescope: self
+                .telescope
+                .clone()
+                .unwrap_or_else(|| self.site.name.clone()),
+            ra_deg: self.ra_deg,
+            dec_deg: self.dec_deg,
+            site: self.site.clone(),
+            start: UtcEpoch::new(self.start_mjd, self.start_sec),
+            tsamp_s: self.sample_time_s,
+            freqs_mhz: (0..c.count)
+                .map(|i| c.first_mhz + c.step_mhz * i as f64)
+                .collect(),
+            chan_bw_mhz: c.step_mhz.abs(),
+            weights,
+            n_samples,
+            nbits: dtype.nbits(),
+            sefd_jy: self.sefd_jy,
+            beam: self.beam.clone(),
+        };
+        header.validate()?;
+        Ok(header)
+    }
+
+    /// The JSON form of `header`, whose samples live in `data`.
+    fn from_header(header: &Header, data: String) -> Result<JsonHeader, String> {
+        let f = &header.freqs_mhz;
+        let step_mhz = if f.len() > 1 {
+            (f[f.len() - 1] - f[0]) / (f.len() - 1) as f64
+        } else {
+            header.chan_bw_mhz
+        };
+        let tol = 1e-6 * header.chan_bw_mhz;
+        if f.iter()
+            .enumerate()
+            .any(|(i, &fi)| (fi - (f[0] + step_mhz * i as f64)).abs() > tol)
+        {
+            return Err("the native format needs evenly spaced channels".into());
+        }
+        if (step_mhz.abs() - header.chan_bw_mhz).abs() > tol {
+            return Err(format!(
+                "channel width {} MHz differs from the channel spacing {} MHz; the native format ties them",
+                header.chan_bw_mhz,
+                step_mhz.abs()
+            ));
+        }
+        Ok(JsonHeader {
+            format: FORMAT_NAME.into(),
+            version: FORMAT_VERSION,
+            source: header.source.clone(),
+            telescope: (header.telescope != header.site.name).then(|| header.telescope.clone()),
+            ra_deg: header.ra_deg,
+            dec_deg: header.dec_deg,
+            site: header.site.clone(),
+            start_mjd: header.start.mjd,
+            start_sec: header.start.sec,
+            sample_time_s: header.tsamp_s,
+            channels: Channels {
+                first_mhz: f[0],
+                step_mhz,
+                count: f.len(),
+            },
+            data,
+            sefd_jy: header.sefd_jy,
+            bad_channels: (0..f.len()).filter(|&i| header.weights[i] == 0.0).collect(),
+            beam: header.beam.clone(),
+        })
+    }
+}
+
+/// Streams rows from a native observation, a chunk at a time.
 pub struct NativeReader {
     header: Header,
+    data_path: PathBuf,
+    file: BufReader<File>,
+    dtype: Dtype,
+    rows_read: u64,
+    bytes: Vec<u8>,
+    allow_non_finite: bool,
 }
 
 impl NativeReader {
-    /// Opens `path` (the JSON header).
+    /// Opens `path` (the JSON header) and checks its `.npy` against it.
+    ///
+    /// `allow_non_finite` lets NaN/Inf samples through (for `inspect`, which counts
+    /// them); otherwise the first one is an error.
     ///
     /// # Errors
-    /// Not yet supported.
-    pub fn open(path: &Path) -> Result<Self> {
-        Err(Error::bad_input(path, "native reader not yet available"))
+    /// [`Error::Io`] if a file cannot be opened; [`Error::BadInput`] for a malformed
+    /// or inconsistent header, an unsupported dtype, or a data file of the wrong size.
+    pub fn open(path: &Path, allow_non_finite: bool) -> Result<Self> {
+        let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
+        let json: JsonHeader = serde_json::from_str(&text)
+            .map_err(|e| Error::bad_input(path, format!("bad JSON header: {e}")))?;
+        let data_path = path.parent().unwrap_or(Path::new("")).join(&json.data);
+        let file = File::open(&data_path).map_err(|e| Error::io(&data_path, e))?;
+        let file_len = file.metadata().map_err(|e| Error::io(&data_path, e))?.len();
+        let mut file = BufReader::with_capacity(1 << 16, file);
+        let npy = npy::read_header(&mut file).map_err(|m| Error::bad_input(&data_path, m))?;
+        let [n_samples, n_chan] = npy.shape;
+        if n_chan != json.channels.count as u64 {
+            return Err(Error::bad_input(
+                path,
+                format!(
+                    "header lists {} channels but {} holds {n_chan}",
+                    json.channels.count,
+                    data_path.display()
+                ),
+            ));
+        }
+        let header = json
+            .to_header(npy.dtype, n_samples)
+            .map_err(|m| Error::bad_input(path, m))?;
+        let expected = npy.data_offset + n_samples * n_chan * npy.dtype.size() as u64;
+        if file_len != expected {
+            return Err(Error::bad_input(
+                &data_path,
+                format!(
+                    "file is {file_len} bytes but its shape ({n_samples}, {n_chan}) needs {expected}{}",
+                    if file_len < expected {
+                        " (truncated?)"
+                    } else {
+                        ""
+                    }
+                ),
+            ));
+        }
+        Ok(NativeReader {
+            header,
+            data_path,
+            file,
+            dtype: npy.dtype,
+            rows_read: 0,
+            bytes: Vec::new(),
+            allow_non_finite,
+        })
     }
 }
 
@@ -24,29 +219,217 @@ impl SampleSource for NativeReader {
     fn header(&self) -> &Header {
         &self.header
     }
-    fn read_rows(&mut self, _out: &mut [f32]) -> Result<usize> {
-        Ok(0)
+
+    fn read_rows(&mut self, out: &mut [f32]) -> Result<usize> {
+        let n_chan = self.header.n_chan();
+        let rows = (out.len() / n_chan).min((self.header.n_samples - self.rows_read) as usize);
+        let n = rows * n_chan;
+        self.bytes.resize(n * self.dtype.size(), 0);
+        self.file.read_exact(&mut self.bytes).map_err(|e| {
+            Error::bad_input(
+                &self.data_path,
+                format!("cannot read sample {}: {e}", self.rows_read),
+            )
+        })?;
+        self.dtype.decode(&self.bytes, &mut out[..n]);
+        if !self.allow_non_finite {
+            check_finite(&self.data_path, &out[..n], n_chan, self.rows_read)?;
+        }
+        self.rows_read += rows as u64;
+        Ok(rows)
     }
 }
 
-/// Writes a native observation.
-pub struct NativeWriter;
+/// Writes a native observation: the JSON header at once, the samples as rows arrive.
+pub struct NativeWriter {
+    data_path: PathBuf,
+    file: BufWriter<File>,
+    dtype: Dtype,
+    nbits: u32,
+    n_chan: usize,
+    n_samples: u64,
+    rows_written: u64,
+    scratch: Vec<f32>,
+    bytes: Vec<u8>,
+}
 
 impl NativeWriter {
-    /// Creates `path` and its `.npy` companion.
+    /// Creates `path` (which must end in `.json`) and `NAME.npy` beside it.
+    ///
+    /// `header.nbits` picks the stored type: 8 → `uint8`, 16 → `uint16`,
+    /// 32 → `float32`. Integer types store values rounded and clamped to their range.
     ///
     /// # Errors
-    /// Not yet supported.
-    pub fn create(path: &Path, _header: &Header) -> Result<Self> {
-        Err(Error::bad_input(path, "native writer not yet available"))
+    /// [`Error::BadInput`] for another bit depth, a non-`.json` name or channels the
+    /// format cannot describe; [`Error::Io`] if a file cannot be created.
+    pub fn create(path: &Path, header: &Header) -> Result<Self> {
+        header.validate().map_err(|m| Error::bad_input(path, m))?;
+        if path.extension().and_then(|e| e.to_str()) != Some("json") {
+            return Err(Error::bad_input(
+                path,
+                "native observations are named NAME.json (samples go to NAME.npy)",
+            ));
+        }
+        let dtype = Dtype::for_nbits(header.nbits).ok_or_else(|| {
+            Error::bad_input(
+                path,
+                format!(
+                    "the native format stores 8, 16 or 32 bits per sample, not {}",
+                    header.nbits
+                ),
+            )
+        })?;
+        let data_path = path.with_extension("npy");
+        let data_name = data_path
+            .file_name()
+            .and_then(|n| n.to_str())
+            .ok_or_else(|| Error::bad_input(path, "file name is not valid UTF-8"))?;
+        let json = JsonHeader::from_header(header, data_name.to_string())
+            .map_err(|m| Error::bad_input(path, m))?;
+        let text = serde_json::to_string_pretty(&json).expect("header serialises") + "\n";
+        std::fs::write(path, text).map_err(|e| Error::io(path, e))?;
+        let file = File::create(&data_path).map_err(|e| Error::io(&data_path, e))?;
+        let mut file = BufWriter::with_capacity(1 << 16, file);
+        let n_chan = header.n_chan();
+        file.write_all(&npy::header_bytes(dtype, header.n_samples, n_chan as u64))
+            .map_err(|e| Error::io(&data_path, e))?;
+        Ok(NativeWriter {
+            data_path,
+            file,
+            dtype,
+            nbits: header.nbits,
+            n_chan,
+            n_samples: header.n_samples,
+            rows_written: 0,
+            scratch: Vec::new(),
+            bytes: Vec::new(),
+        })
     }
 }
 
 impl SampleSink for NativeWriter {
-    fn write_rows(&mut self, _rows: &[f32]) -> Result<()> {
+    fn write_rows(&mut self, rows: &[f32]) -> Result<()> {
+        check_whole_rows(&self.data_path, rows, self.n_chan)?;
+        check_finite(&self.data_path, rows, self.n_chan, self.rows_written)?;
+        let n_rows = (rows.len() / self.n_chan) as u64;
+        if self.rows_written + n_rows > self.n_samples {
+            return Err(Error::bad_input(
+                &self.data_path,
+                format!("more rows written than the {} announced", self.n_samples),
+            ));
+        }
+        let values = if self.dtype == Dtype::F32 {
+            rows
+        } else {
+            self.scratch.clear();
+            let nbits = self.nbits;
+            self.scratch
+                .extend(rows.iter().map(|&v| quantise(v, nbits)));
+            &self.scratch
+        };
+        self.bytes.clear();
+        self.dtype.encode(values, &mut self.bytes);
+        self.file
+            .write_all(&self.bytes)
+            .map_err(|e| Error::io(&self.data_path, e))?;
+        self.rows_written += n_rows;
         Ok(())
     }
-    fn finish(self: Box<Self>) -> Result<()> {
+
+    fn finish(mut self: Box<Self>) -> Result<()> {
+        self.file
+            .flush()
+            .map_err(|e| Error::io(&self.data_path, e))?;
+        if self.rows_written != self.n_samples {
+            return Err(Error::bad_input(
+                &self.data_path,
+                format!(
+                    "{} rows written but the header announced {}",
+                    self.rows_written, self.n_samples
+                ),
+            ));
+        }
         Ok(())
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::obs::header::tests::test_header;
+
+    fn write(path: &Path, header: &Header, data: &[f32]) -> Result<()> {
+        let mut w = Box::new(NativeWriter::create(path, header)?);
+        for chunk in data.chunks(header.n_chan() * 7) {
+            w.write_rows(chunk)?;
+        }
+        w.finish()
+    }
+
+    fn read_all(path: &Path) -> (Header, Vec<f32>) {
+        let mut r = NativeReader::open(path, false).unwrap();
+        let n = r.header().n_chan();
+        let mut all = Vec::new();
+        let mut buf = vec![f32::NAN; n * 5];
+        loop {
+            let got = r.read_rows(&mut buf).unwrap();
+            if got == 0 {
+                break;
+            }
+            all.extend_from_slice(&buf[..got * n]);
+        }
+        (r.header().clone(), all)
+    }
+
+    #[test]
+    fn round_trips_every_writer_depth() {
+        let dir = tempfile::tempdir().unwrap();
+        for nbits in [8, 16, 32] {
+            let mut h = test_header(5, 23);
+            h.nbits = nbits;
+            h.weights[3] = 0.0;
+            h.sefd_jy = Some(25.0);
+            let data: Vec<f32> = (0..5 * 23).map(|i| (i * 7 % 251) as f32).collect();
+            let path = dir.path().join(format!("obs{nbits}.json"));
+            write(&path, &h, &data).unwrap();
+            let (back, samples) = read_all(&path);
+            assert_eq!(samples, data);
+            assert_eq!(back.nbits, nbits);
+            assert_eq!(back.weights, h.weights);
+            assert_eq!(back.sefd_jy, Some(25.0));
+            for (a, b) in back.freqs_mhz.iter().zip(&h.freqs_mhz) {
+                assert!((a - b).abs() < 1e-9);
+            }
+        }
+    }
+
+    #[test]
+    fn integer_writer_saturates() {
+        let dir = tempfile::tempdir().unwrap();
+        let mut h = test_header(2, 2);
+        h.nbits = 8;
+        let path = dir.path().join("sat.json");
+        write(&path, &h, &[-3.0, 2.6, 255.4, 900.0]).unwrap();
+        assert_eq!(read_all(&path).1, [0.0, 3.0, 255.0, 255.0]);
+    }
+
+    #[test]
+    fn writer_rejects_bad_requests() {
+        let dir = tempfile::tempdir().unwrap();
+        let mut h = test_header(2, 2);
+        h.nbits = 4;
+        let e = NativeWriter::create(&dir.path().join("a.json"), &h)
+            .err()
+            .unwrap();
+        assert!(e.to_string().contains("not 4"), "{e}");
+        h.nbits = 8;
+        let e = NativeWriter::create(&dir.path().join("a.npy"), &h)
+            .err()
+            .unwrap();
+        assert!(e.to_string().contains("NAME.json"), "{e}");
+        let e = write(&dir.path().join("short.json"), &h, &[1.0, 2.0]).unwrap_err();
+        assert!(e.to_string().contains("1 rows written"), "{e}");
+        let e = write(&dir.path().join("nan.json"), &h, &[1.0, f32::NAN, 0.0, 0.0]).unwrap_err();
+        assert!(e.to_string().contains("NaN"), "{e}");
     }
 }

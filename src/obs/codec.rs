@@ -1,0 +1,80 @@
+//! Sample checks and quantisation shared by every reader and writer.
+
+use std::path::Path;
+
+use crate::error::{Error, Result};
+
+/// Rounds `v` to the nearest integer and clamps it to `[0, 2^nbits − 1]`: the stored
+/// value of an unsigned `nbits`-bit digitiser that saturates (common practice).
+pub fn quantise(v: f32, nbits: u32) -> f32 {
+    let max = ((1u64 << nbits) - 1) as f32;
+    v.round().clamp(0.0, max)
+}
+
+/// Fails on the first NaN or infinite value in `rows` (`[time, channel]`), naming the
+/// sample (counted from `first_row`) and the channel.
+///
+/// # Errors
+/// [`Error::BadInput`] naming `path`.
+pub fn check_finite(path: &Path, rows: &[f32], n_chan: usize, first_row: u64) -> Result<()> {
+    match rows.iter().position(|v| !v.is_finite()) {
+        None => Ok(()),
+        Some(i) => Err(Error::bad_input(
+            path,
+            format!(
+                "sample {} of channel {} is {} (only finite values are allowed)",
+                first_row + (i / n_chan) as u64,
+                i % n_chan,
+                rows[i]
+            ),
+        )),
+    }
+}
+
+/// Fails unless `rows.len()` is a whole number of rows of `n_chan` channels: a
+/// caller bug reported as a typed error so a writer never panics.
+///
+/// # Errors
+/// [`Error::BadInput`] naming `path`.
+pub fn check_whole_rows(path: &Path, rows: &[f32], n_chan: usize) -> Result<()> {
+    if rows.len() % n_chan == 0 {
+        Ok(())
+    } else {
+        Err(Error::bad_input(
+            path,
+            format!(
+                "{} values are not whole rows of {n_chan} channels",
+                rows.len()
+            ),
+        ))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn quantise_rounds_and_saturates() {
+        assert_eq!(quantise(3.49, 8), 3.0);
+        assert_eq!(quantise(3.5, 8), 4.0);
+        assert_eq!(quantise(-7.0, 8), 0.0);
+        assert_eq!(quantise(300.0, 8), 255.0);
+        assert_eq!(quantise(300.0, 4), 15.0);
+        assert_eq!(quantise(1e9, 16), 65535.0);
+        assert_eq!(quantise(0.6, 1), 1.0);
+    }
+
+    #[test]
+    fn finite_check_names_sample_and_channel() {
+        let p = Path::new("x.npy");
+        assert!(check_finite(p, &[1.0, 2.0, 3.0, 4.0], 2, 0).is_ok());
+        let msg = check_finite(p, &[1.0, 2.0, 3.0, f32::NAN], 2, 10)
+            .unwrap_err()
+            .to_string();
+        assert_eq!(
+            msg,
+            "x.npy: sample 11 of channel 1 is NaN (only finite values are allowed)"
+        );
+    }
+}

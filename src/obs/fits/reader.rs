@@ -1,0 +1,310 @@
+//! Streaming reader for search-mode FITS: the primary header gives source, site
+//! and start time; the `SUBINT` binary table gives the samples, one row at a time.
+
+use std::fs::File;
+use std::io::{BufReader, Read, Seek, SeekFrom};
+use std::path::{Path, PathBuf};
+
+use super::cards::{BLOCK, Cards};
+use super::layout::{Layout, PolMode, data_bytes};
+use crate::error::{Error, Result};
+use crate::obs::codec::check_finite;
+use crate::obs::geodesy::{parse_sexagesimal, site_from_itrf};
+use crate::obs::{Header, SampleSource, UtcEpoch};
+
+/// Streams rows from a FITS search-mode file. Memory is one `SUBINT` row.
+pub struct FitsReader {
+    path: PathBuf,
+    header: Header,
+    layout: Layout,
+    file: BufReader<File>,
+    n_rows: u64,
+    rows_loaded: u64,
+    allow_non_finite: bool,
+    row_bytes: Vec<u8>,
+    raw: Vec<f32>,
+    /// Decoded samples of the current row, `[time, channel]`.
+    samples: Vec<f32>,
+    /// Rows of `samples` already handed out.
+    pos: usize,
+    delivered: u64,
+    scratch: Vec<f64>,
+    scale: Vec<f32>,
+    offset: Vec<f32>,
+    weights: Vec<f32>,
+}
+
+impl FitsReader {
+    /// Opens `path`, reads its headers and first row, and checks the file size.
+    ///
+    /// `allow_non_finite` lets NaN/Inf samples through (for `inspect`).
+    ///
+    /// # Errors
+    /// [`Error::Io`] if the file cannot be opened; [`Error::BadInput`] for anything
+    /// malformed, missing, unsupported or truncated.
+    pub fn open(path: &Path, allow_non_finite: bool) -> Result<Self> {
+        let bad = |m: String| Error::bad_input(path, m);
+        let file = File::open(path).map_err(|e| Error::io(path, e))?;
+        let file_len = file.metadata().map_err(|e| Error::io(path, e))?.len();
+        let mut file = BufReader::with_capacity(1 << 16, file);
+        let primary = Cards::read(&mut file)
+            .map_err(&bad)?
+            .ok_or_else(|| bad("empty file".into()))?;
+        if primary.get("SIMPLE").is_none() {
+            return Err(bad("not a FITS file (no SIMPLE keyword)".into()));
+        }
+        if let Some(mode) = primary.str("OBS_MODE")
+            && !mode.eq_ignore_ascii_case("SEARCH")
+        {
+            return Err(bad(format!(
+                "OBS_MODE is '{mode}'; only search-mode data can be read"
+            )));
+        }
+        let mut sub = primary.clone();
+        let mut skip = data_bytes(&primary).map_err(&bad)?;
+        while sub.str("EXTNAME") != Some("SUBINT") {
+            let padded = skip.div_ceil(BLOCK as u64) * BLOCK as u64;
+            file.seek_relative(padded as i64)
+                .map_err(|e| Error::io(path, e))?;
+            sub = Cards::read(&mut file)
+                .map_err(&bad)?
+                .ok_or_else(|| bad("no SUBINT table (not a search-mode file)".into()))?;
+            skip = data_bytes(&sub).map_err(&bad)?;
+        }
+        let layout = Layout::from_cards(&sub).map_err(|m| bad(format!("SUBINT: {m}")))?;
+        let n_rows = sub.count("NAXIS2").map_err(&bad)? as u64;
+        let data_start = file.stream_position().map_err(|e| Error::io(path, e))?;
+        let needed = data_start + n_rows * layout.row_bytes as u64;
+        if file_len < needed {
+            return Err(bad(format!(
+                "truncated: {n_rows} rows of {} bytes need {needed} bytes, file has {file_len}",
+                layout.row_bytes
+            )));
+        }
+        if n_rows == 0 {
+            return Err(bad("SUBINT table has no rows (no samples)".into()));
+        }
+        let mut reader = FitsReader {
+            path: path.to_path_buf(),
+            header: header_from_primary(&primary).map_err(&bad)?,
+            row_bytes: vec![0; layout.row_bytes],
+            layout,
+            file,
+            n_rows,
+            rows_loaded: 0,
+            allow_non_finite,
+            raw: Vec::new(),
+            samples: Vec::new(),
+            pos: 0,
+            delivered: 0,
+            scratch: Vec::new(),
+            scale: Vec::new(),
+            offset: Vec::new(),
+            weights: Vec::new(),
+        };
+        reader.complete_header(data_start)?;
+        Ok(reader)
+    }
+
+    /// Fills in what only the rows tell: frequencies and weights (first row) and
+    /// the true length of the last row (its `TSUBINT`). Leaves the file at row 0.
+    fn complete_header(&mut self, data_start: u64) -> Result<()> {
+        let path = self.path.clone();
+        let bad = |m: String| Error::bad_input(&path, m);
+        let l = self.layout.clone();
+        let last = data_start + (self.n_rows - 1) * l.row_bytes as u64;
+        self.file
+            .seek(SeekFrom::Start(last))
+            .and_then(|_| self.file.read_exact(&mut self.row_bytes))
+            .map_err(|e| Error::io(&path, e))?;
+        let last_len = match &l.tsubint {
+            Some(col) => {
+                col.read_f64(&self.row_bytes, 1, &mut self.scratch)
+                    .map_err(&bad)?;
+                l.samples_in_row(self.scratch[0])
+            }
+            None => l.nsblk,
+        };
+        self.file
+            .seek(SeekFrom::Start(data_start))
+            .and_then(|_| self.file.read_exact(&mut self.row_bytes))
+            .map_err(|e| Error::io(&path, e))?;
+        self.file
+            .seek(SeekFrom::Start(data_start))
+            .map_err(|e| Error::io(&path, e))?;
+        let mut freqs = Vec::new();
+        l.freq
+            .read_f64(&self.row_bytes, l.n_chan, &mut freqs)
+            .map_err(&bad)?;
+        let chan_bw = match l.chan_bw_mhz {
+            Some(bw) => bw.abs(),
+            None if freqs.len() > 1 => (freqs[1] - freqs[0]).abs(),
+            None => return Err(bad("keyword CHAN_BW is missing".into())),
+        };
+        self.load_weights()?;
+        let h = &mut self.header;
+        h.freqs_mhz = freqs;
+        h.chan_bw_mhz = chan_bw;
+        h.weights = self.weights.clone();
+        h.tsamp_s = l.tbin_s;
+        h.nbits = l.nbits;
+        h.n_samples = (self.n_rows - 1) * l.nsblk as u64 + last_len as u64;
+        h.validate().map_err(bad)
+    }
+
+    /// Reads `DAT_WTS`, `DAT_SCL`, `DAT_OFFS` of the row in `row_bytes` into
+    /// per-channel weights and per-(pol, channel) scale and offset, with `ZERO_OFF`
+    /// folded in: value = raw × scale + offset.
+    fn load_weights(&mut self) -> Result<()> {
+        let l = &self.layout;
+        let n = l.n_chan * l.npol;
+        let bad = |m: String| Error::bad_input(&self.path, m);
+        let s = &mut self.scratch;
+        let row = &self.row_bytes;
+        self.weights.clear();
+        match &l.wts {
+            Some(c) => {
+                c.read_f64(row, l.n_chan, s).map_err(bad)?;
+                self.weights.extend(s.iter().map(|&w| w as f32));
+            }
+            None => self.weights.resize(l.n_chan, 1.0),
+        }
+        match &l.scl {
+            Some(c) => c.read_f64(row, n, s).map_err(bad)?,
+            None => {
+                s.clear();
+                s.resize(n, 1.0);
+            }
+        }
+        self.scale.clear();
+        self.scale.extend(s.iter().map(|&v| v as f32));
+        match &l.offs {
+            Some(c) => c.read_f64(row, n, s).map_err(bad)?,
+            None => {
+                s.clear();
+                s.resize(n, 0.0);
+            }
+        }
+        self.offset.clear();
+        let zero = l.zero_off;
+        self.offset.extend(
+            s.iter()
+                .zip(&self.scale)
+                .map(|(&o, &k)| (o - zero * k as f64) as f32),
+        );
+        Ok(())
+    }
+
+    /// Reads and decodes the next row into `samples`; `false` after the last row.
+    fn load_row(&mut self) -> Result<bool> {
+        if self.rows_loaded == self.n_rows {
+            return Ok(false);
+        }
+        self.file.read_exact(&mut self.row_bytes).map_err(|e| {
+            Error::bad_input(
+                &self.path,
+                format!("cannot read SUBINT row {}: {e}", self.rows_loaded),
+            )
+        })?;
+        self.rows_loaded += 1;
+        self.load_weights()?;
+        let l = &self.layout;
+        let (nc, np) = (l.n_chan, l.npol);
+        let n_time = if self.rows_loaded == self.n_rows {
+            (self.header.n_samples - (self.n_rows - 1) * l.nsblk as u64) as usize
+        } else {
+            l.nsblk
+        };
+        self.raw.resize(n_time * np * nc, 0.0);
+        l.encoding
+            .unpack(l.data.bytes(&self.row_bytes), &mut self.raw);
+        self.samples.resize(n_time * nc, 0.0);
+        let pols: &[usize] = match l.pol {
+            PolMode::Single | PolMode::First => &[0],
+            PolMode::SumFirstTwo => &[0, 1],
+        };
+        for (t, out) in self.samples.chunks_exact_mut(nc).enumerate() {
+            out.fill(0.0);
+            for &p in pols {
+                let raw = &self.raw[(t * np + p) * nc..][..nc];
+                let (k, o) = (&self.scale[p * nc..][..nc], &self.offset[p * nc..][..nc]);
+                for c in 0..nc {
+                    out[c] += raw[c] * k[c] + o[c];
+                }
+            }
+            for (v, &w) in out.iter_mut().zip(&self.weights) {
+                if w == 0.0 {
+                    *v = 0.0;
+                }
+            }
+        }
+        if !self.allow_non_finite {
+            check_finite(&self.path, &self.samples, nc, self.delivered)?;
+        }
+        self.pos = 0;
+        Ok(true)
+    }
+}
+
+/// The header fields held by the primary header unit.
+fn header_from_primary(p: &Cards) -> Result<Header, String> {
+    let angle = |key: &str| {
+        let s = p.str(key).ok_or(format!("keyword {key} is missing"))?;
+        parse_sexagesimal(s).ok_or(format!("{key} '{s}' is not of the form dd:mm:ss.s"))
+    };
+    let xyz = [p.f64("ANT_X")?, p.f64("ANT_Y")?, p.f64("ANT_Z")?];
+    if xyz.iter().all(|&v| v == 0.0) || xyz.iter().any(|v| !v.is_finite()) {
+        return Err("ANT_X/ANT_Y/ANT_Z do not give a telescope position".into());
+    }
+    let telescope = p.str("TELESCOP").unwrap_or("").to_string();
+    let start_sec = p.f64("STT_SMJD")? + p.f64("STT_OFFS").unwrap_or(0.0);
+    Ok(Header {
+        source: p.str("SRC_NAME").unwrap_or("").to_string(),
+        site: site_from_itrf(&telescope, xyz),
+        telescope,
+        ra_deg: angle("RA")? * 15.0,
+        dec_deg: angle("DEC")?,
+        start: UtcEpoch::new(p.int("STT_IMJD")?, start_sec),
+        // Filled from the SUBINT table by `complete_header`.
+        tsamp_s: 0.0,
+        freqs_mhz: Vec::new(),
+        chan_bw_mhz: 0.0,
+        weights: Vec::new(),
+        n_samples: 0,
+        nbits: 0,
+        sefd_jy: None,
+        beam: match p.get("IBEAM") {
+            Some(super::cards::Value::Str(s)) if !s.is_empty() => Some(s.clone()),
+            Some(super::cards::Value::Int(i)) => Some(i.to_string()),
+            _ => None,
+        },
+    })
+}
+
+impl SampleSource for FitsReader {
+    fn header(&self) -> &Header {
+        &self.header
+    }
+
+    fn read_rows(&mut self, out: &mut [f32]) -> Result<usize> {
+        let nc = self.header.n_chan();
+        let want = out.len() / nc;
+        let mut done = 0;
+        while done < want {
+            let available = self.samples.len() / nc - self.pos;
+            if available == 0 {
+                if !self.load_row()? {
+                    break;
+                }
+                continue;
+            }
+            let n = available.min(want - done);
+            out[done * nc..(done + n) * nc]
+                .copy_from_slice(&self.samples[self.pos * nc..(self.pos + n) * nc]);
+            self.pos += n;
+            done += n;
+            self.delivered += n as u64;
+        }
+        Ok(done)
+    }
+}

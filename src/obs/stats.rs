@@ -1,0 +1,343 @@
+//! Streaming statistics of an observation: whole-data and per-channel moments,
+//! robust per-channel levels, and channels that look bad. Memory is one block plus
+//! a bounded subsample per channel, whatever the file length.
+
+use serde::Serialize;
+
+use super::{BlockReader, Header, SampleSource};
+use crate::error::Result;
+
+/// Samples per channel kept (evenly spaced in time) for the robust statistics.
+pub const ROBUST_SUBSAMPLE: usize = 2048;
+/// A channel is flagged when its mean or standard deviation lies further than this
+/// many robust standard deviations from the median over channels (common practice).
+pub const OUTLIER_SIGMA: f64 = 5.0;
+/// Fewer unmasked channels than this give no meaningful band median/MAD, so the
+/// outlier test is skipped (common practice).
+pub const MIN_CHANNELS_FOR_OUTLIERS: usize = 8;
+/// MAD → standard deviation for Gaussian data: 1/Φ⁻¹(3/4) = 1.4826 (Rousseeuw & Croux
+/// 1993, JASA 88, 1273).
+const MAD_TO_SIGMA: f64 = 1.482_602_218_505_602;
+
+/// Statistics of all samples together.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct DataStats {
+    /// Finite samples counted.
+    pub n_finite: u64,
+    pub mean: f64,
+    pub std: f64,
+    pub min: f64,
+    pub max: f64,
+    pub nan_count: u64,
+    pub inf_count: u64,
+}
+
+/// Statistics of one channel.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct ChannelStats {
+    pub index: usize,
+    pub freq_mhz: f64,
+    pub weight: f32,
+    pub mean: f64,
+    pub std: f64,
+    /// Median of the evenly spaced subsample.
+    pub median: f64,
+    /// 1.4826 × median absolute deviation of the subsample.
+    pub robust_std: f64,
+    /// NaN and infinite samples.
+    pub non_finite: u64,
+}
+
+/// A channel that looks bad, with the reasons.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct BadChannel {
+    pub index: usize,
+    pub freq_mhz: f64,
+    pub reasons: Vec<String>,
+}
+
+/// Everything `inspect` reports about the samples.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct ObsStats {
+    pub data: DataStats,
+    pub channels: Vec<ChannelStats>,
+    pub bad_channels: Vec<BadChannel>,
+}
+
+/// Accumulates statistics row by row.
+pub struct StatsAccumulator {
+    n_chan: usize,
+    stride: u64,
+    /// Per channel: first finite value (a shift that keeps the sums well conditioned).
+    shift: Vec<Option<f64>>,
+    count: Vec<u64>,
+    sum: Vec<f64>,
+    sum_sq: Vec<f64>,
+    non_finite: Vec<u64>,
+    nan: u64,
+    min: f64,
+    max: f64,
+    /// `[channel][kept sample]`.
+    kept: Vec<Vec<f32>>,
+}
+
+impl StatsAccumulator {
+    /// For `n_chan` channels and an expected `n_samples` rows (sets the subsample stride).
+    pub fn new(n_chan: usize, n_samples: u64) -> Self {
+        StatsAccumulator {
+            n_chan,
+            stride: n_samples.div_ceil(ROBUST_SUBSAMPLE as u64).max(1),
+            shift: vec![None; n_chan],
+            count: vec![0; n_chan],
+            sum: vec![0.0; n_chan],
+            sum_sq: vec![0.0; n_chan],
+            non_finite: vec![0; n_chan],
+            nan: 0,
+            min: f64::INFINITY,
+            max: f64::NEG_INFINITY,
+            kept: vec![Vec::new(); n_chan],
+        }
+    }
+
+    /// Adds `rows` (`[time, channel]`) whose first row is row `first_row` of the file.
+    pub fn add_rows(&mut self, first_row: u64, rows: &[f32]) {
+        for (t, row) in rows.chunks_exact(self.n_chan).enumerate() {
+            let keep = (first_row + t as u64) % self.stride == 0;
+            for (c, &v) in row.iter().enumerate() {
+                if !v.is_finite() {
+                    self.non_finite[c] += 1;
+                    self.nan += v.is_nan() as u64;
+                    continue;
+                }
+                let v64 = v as f64;
+                let d = v64 - *self.shift[c].get_or_insert(v64);
+                self.count[c] += 1;
+                self.sum[c] += d;
+                self.sum_sq[c] += d * d;
+                self.min = self.min.min(v64);
+                self.max = self.max.max(v64);
+                if keep {
+                    self.kept[c].push(v);
+                }
+            }
+        }
+    }
+
+    /// The statistics, with bad channels judged against `header`'s weights.
+    pub fn finish(mut self, header: &Header) -> ObsStats {
+        let mut channels = Vec::with_capacity(self.n_chan);
+        let (mut n, mut sum, mut sum_sq) = (0u64, 0.0, 0.0);
+        for c in 0..self.n_chan {
+            let (mean, var) = moments(self.count[c], self.sum[c], self.sum_sq[c]);
+            let mean = mean + self.shift[c].unwrap_or(0.0);
+            // Pool the channels about zero for the whole-data moments.
+            n += self.count[c];
+            sum += mean * self.count[c] as f64;
+            sum_sq += (var + mean * mean) * self.count[c] as f64;
+            let (median, robust_std) = median_and_robust_std(&mut self.kept[c]);
+            channels.push(ChannelStats {
+                index: c,
+                freq_mhz: header.freqs_mhz[c],
+                weight: header.weights[c],
+                mean,
+                std: var.sqrt(),
+                median,
+                robust_std,
+                non_finite: self.non_finite[c],
+            });
+        }
+        let (mean, var) = moments(n, sum, sum_sq);
+        let non_finite: u64 = self.non_finite.iter().sum();
+        let data = DataStats {
+            n_finite: n,
+            mean,
+            std: var.sqrt(),
+            min: if n > 0 { self.min } else { f64::NAN },
+            max: if n > 0 { self.max } else { f64::NAN },
+            nan_count: self.nan,
+            inf_count: non_finite - self.nan,
+        };
+        let bad_channels = find_bad_channels(&channels);
+        ObsStats {
+            data,
+            channels,
+            bad_channels,
+        }
+    }
+}
+
+/// Mean and population variance from a count, sum and sum of squares.
+fn moments(n: u64, sum: f64, sum_sq: f64) -> (f64, f64) {
+    if n == 0 {
+        return (f64::NAN, f64::NAN);
+    }
+    let mean = sum / n as f64;
+    (mean, (sum_sq / n as f64 - mean * mean).max(0.0))
+}
+
+fn median(values: &mut [f64]) -> f64 {
+    if values.is_empty() {
+        return f64::NAN;
+    }
+    values.sort_by(f64::total_cmp);
+    let m = values.len() / 2;
+    if values.len() % 2 == 1 {
+        values[m]
+    } else {
+        0.5 * (values[m - 1] + values[m])
+    }
+}
+
+/// Median and 1.4826 × MAD.
+fn median_and_robust_std(values: &mut [f32]) -> (f64, f64) {
+    let mut v: Vec<f64> = values.iter().map(|&x| x as f64).collect();
+    let med = median(&mut v);
+    let mut dev: Vec<f64> = v.iter().map(|x| (x - med).abs()).collect();
+    (med, MAD_TO_SIGMA * median(&mut dev))
+}
+
+/// Channels masked in the file, with non-finite samples, constant, or whose mean or
+/// std is an outlier (median/MAD over the unmasked channels, if there are at least
+/// [`MIN_CHANNELS_FOR_OUTLIERS`]).
+fn find_bad_channels(channels: &[ChannelStats]) -> Vec<BadChannel> {
+    let live: Vec<&ChannelStats> = channels.iter().filter(|c| c.weight != 0.0).collect();
+    let centre_scale = |get: fn(&ChannelStats) -> f64| {
+        let mut v: Vec<f64> = live
+            .iter()
+            .map(|c| get(c))
+            .filter(|x| x.is_finite())
+            .collect();
+        let (med, sigma) = {
+            let med = median(&mut v);
+            let mut dev: Vec<f64> = v.iter().map(|x| (x - med).abs()).collect();
+            (med, MAD_TO_SIGMA * median(&mut dev))
+        };
+        // A floor so identical channels with one deviant still give a finite scale.
+        (med, sigma.max(1e-6 * med.abs().max(1.0)))
+    };
+    let (mean_med, mean_sigma) = centre_scale(|c| c.mean);
+    let (std_med, std_sigma) = centre_scale(|c| c.std);
+    let mut bad = Vec::new();
+    for c in channels {
+        let mut reasons = Vec::new();
+        if c.weight == 0.0 {
+            reasons.push("weight 0 in the file".to_string());
+        }
+        if c.non_finite > 0 {
+            reasons.push(format!("{} NaN/Inf samples", c.non_finite));
+        }
+        if c.std == 0.0 {
+            reasons.push("constant".to_string());
+        } else if c.weight != 0.0 && live.len() >= MIN_CHANNELS_FOR_OUTLIERS {
+            let zm = (c.mean - mean_med) / mean_sigma;
+            let zs = (c.std - std_med) / std_sigma;
+            if zm.abs() > OUTLIER_SIGMA {
+                reasons.push(format!("mean {:.4} is {zm:+.1} σ from the band", c.mean));
+            }
+            if zs.abs() > OUTLIER_SIGMA {
+                reasons.push(format!("std {:.4} is {zs:+.1} σ from the band", c.std));
+            }
+        }
+        if !reasons.is_empty() {
+            bad.push(BadChannel {
+                index: c.index,
+                freq_mhz: c.freq_mhz,
+                reasons,
+            });
+        }
+    }
+    bad
+}
+
+/// Streams `source` block by block and returns its statistics. `on_rows` is told
+/// how many rows were just read (for a progress bar).
+///
+/// # Errors
+/// Whatever the source reports.
+pub fn compute<S: SampleSource>(source: S, mut on_rows: impl FnMut(u64)) -> Result<ObsStats> {
+    let header = source.header().clone();
+    let block_len = ((1 << 20) / header.n_chan()).max(1);
+    let mut acc = StatsAccumulator::new(header.n_chan(), header.n_samples);
+    for block in BlockReader::new(source, block_len, 0)? {
+        let block = block?;
+        acc.add_rows(block.start_sample, &block.data);
+        on_rows(block.n_time() as u64);
+    }
+    Ok(acc.finish(&header))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::obs::MemorySource;
+    use crate::obs::header::tests::test_header;
+    use rand::SeedableRng;
+    use rand_chacha::ChaCha8Rng;
+    use rand_distr::{Distribution, Normal};
+
+    #[test]
+    fn moments_match_a_direct_computation() {
+        let (n_chan, n_time) = (5, 1001);
+        let mut rng = ChaCha8Rng::seed_from_u64(3);
+        let noise = Normal::new(100.0f32, 4.0).unwrap();
+        let mut h = test_header(n_chan, n_time);
+        let mut data: Vec<f32> = (0..n_chan * n_time as usize)
+            .map(|_| noise.sample(&mut rng))
+            .collect();
+        data[7] = f32::NAN;
+        data[13] = f32::INFINITY;
+        h.weights[4] = 0.0;
+        let src = MemorySource::new(h, data.clone());
+        let mut rows_seen = 0;
+        let s = compute(src, |n| rows_seen += n).unwrap();
+        assert_eq!(rows_seen, n_time);
+        assert_eq!((s.data.nan_count, s.data.inf_count), (1, 1));
+        let finite: Vec<f64> = data
+            .iter()
+            .filter(|v| v.is_finite())
+            .map(|&v| v as f64)
+            .collect();
+        let mean = finite.iter().sum::<f64>() / finite.len() as f64;
+        let var = finite.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / finite.len() as f64;
+        assert!((s.data.mean - mean).abs() < 1e-9);
+        assert!((s.data.std - var.sqrt()).abs() < 1e-9);
+        let ch0: Vec<f64> = data.iter().step_by(n_chan).map(|&v| v as f64).collect();
+        let m0 = ch0.iter().sum::<f64>() / ch0.len() as f64;
+        assert!((s.channels[0].mean - m0).abs() < 1e-9);
+        assert!(
+            (s.channels[0].robust_std - 4.0).abs() < 0.5,
+            "{}",
+            s.channels[0].robust_std
+        );
+        let bad: Vec<usize> = s.bad_channels.iter().map(|b| b.index).collect();
+        // Five channels are too few for the outlier test: only the definite problems.
+        assert_eq!(bad, [2, 3, 4], "NaN in 2, Inf in 3, weight 0 in 4");
+    }
+
+    #[test]
+    fn flags_outlying_and_constant_channels() {
+        let (n_chan, n_time) = (16, 400);
+        let mut rng = ChaCha8Rng::seed_from_u64(4);
+        let noise = Normal::new(0.0f32, 1.0).unwrap();
+        let mut data: Vec<f32> = (0..n_chan * n_time)
+            .map(|_| 50.0 + noise.sample(&mut rng))
+            .collect();
+        for t in 0..n_time {
+            data[t * n_chan + 5] *= 3.0; // mean 150
+            data[t * n_chan + 9] = 50.0 + 10.0 * (data[t * n_chan + 9] - 50.0); // std 10
+            data[t * n_chan + 12] = 50.0;
+        }
+        let h = test_header(n_chan, n_time as u64);
+        let s = compute(MemorySource::new(h, data), |_| {}).unwrap();
+        let bad: Vec<usize> = s.bad_channels.iter().map(|b| b.index).collect();
+        assert_eq!(bad, [5, 9, 12]);
+        assert!(s.bad_channels[2].reasons[0].contains("constant"));
+    }
+
+    #[test]
+    fn median_of_even_and_odd_counts() {
+        assert_eq!(median(&mut [3.0, 1.0, 2.0]), 2.0);
+        assert_eq!(median(&mut [4.0, 1.0, 2.0, 3.0]), 2.5);
+        assert!(median(&mut []).is_nan());
+    }
+}
