@@ -9,6 +9,7 @@ pub mod candidate_plot;
 pub mod dm_curve;
 pub mod figure;
 pub mod overview;
+pub mod periodicity;
 pub mod stretch;
 pub mod waterfall;
 
