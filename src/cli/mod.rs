@@ -2,6 +2,7 @@
 //! library calls. No science happens here.
 
 mod inspect;
+mod report;
 
 use clap::{Parser, Subcommand};
 
@@ -17,11 +18,14 @@ pub struct Cli {
 enum Command {
     /// Summarise an observation: header, duration, statistics, suspicious channels.
     Inspect(inspect::Args),
+    /// Write an HTML report (overview and per-candidate figures) from search output.
+    Report(report::Args),
 }
 
 /// Runs the chosen subcommand.
 pub fn run(cli: Cli) -> anyhow::Result<()> {
     match cli.command {
         Command::Inspect(a) => inspect::run(a),
+        Command::Report(a) => report::run(a),
     }
 }

@@ -8,6 +8,8 @@ pub mod candidate_data;
 pub mod candidate_plot;
 pub mod dm_curve;
 pub mod figure;
+pub mod html;
+pub mod load;
 pub mod overview;
 pub mod periodicity;
 pub mod stretch;
