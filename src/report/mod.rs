@@ -12,6 +12,7 @@ pub mod html;
 pub mod load;
 pub mod overview;
 pub mod periodicity;
+pub mod review;
 pub mod stretch;
 pub mod waterfall;
 
