@@ -459,8 +459,8 @@ mod tests {
     use crate::candidate::TriageFeatures;
     use crate::obs::MemorySource;
     use crate::report::stretch::read_stretch;
-    use crate::report::waterfall::tests::noisy_burst;
     use crate::report::waterfall::tests::test_header;
+    use crate::report::waterfall::tests::{Pulse, noisy_burst};
     use crate::units::delay_to_infinity_s;
 
     const DM: f64 = 300.0;
@@ -472,7 +472,18 @@ mod tests {
         let mut h = test_header(64, 6000);
         h.tsamp_s = 1e-3;
         h.weights[40..44].fill(0.0);
-        let block = noisy_burst(&h.freqs_mhz, h.tsamp_s, 6000, T_TOP, DM, 4, 2.0, 11);
+        let block = noisy_burst(
+            &h.freqs_mhz,
+            h.tsamp_s,
+            6000,
+            Pulse {
+                t_top: T_TOP,
+                dm: DM,
+                width: 4,
+                amp: 2.0,
+            },
+            11,
+        );
         let t_inf_s = T_TOP as f64 * h.tsamp_s - delay_to_infinity_s(DM, h.freq_hi_mhz());
         let cand = Candidate {
             file: "synthetic.json".into(),
@@ -581,9 +592,7 @@ mod tests {
         let p = fig.panels["profile"];
         let top = (p.y0..p.y1)
             .find_map(|y| {
-                (p.x0 + 1..p.x1 - 1)
-                    .find(|&x| fig.pixel(x as u32, y as u32) == [0, 0, 0])
-                    .map(|x| x)
+                (p.x0 + 1..p.x1 - 1).find(|&x| fig.pixel(x as u32, y as u32) == [0, 0, 0])
             })
             .unwrap();
         let cut = Cut::new(&h, &cand);

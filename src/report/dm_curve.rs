@@ -88,7 +88,7 @@ fn best_boxcar_snr(series: &[f32], width: usize, centre: usize, search: usize) -
 mod tests {
     use super::*;
     use crate::report::stretch::normalise;
-    use crate::report::waterfall::tests::{band, noisy_burst};
+    use crate::report::waterfall::tests::{Pulse, band, noisy_burst};
 
     // Check values derived from the Cordes & McLaughlin (2003, ApJ 596, 1142) formula for
     // Δν = 400 MHz, ν = 1.4 GHz, W = 1 ms (ζ = 0.50364 at δDM = 0.5).
@@ -121,7 +121,18 @@ mod tests {
     fn measured_curve_peaks_at_the_true_dm() {
         let (tsamp, dm) = (1e-3, 200.0);
         let freqs = band(32);
-        let block = noisy_burst(&freqs, tsamp, 1400, 500, dm, 3, 2.0, 3);
+        let block = noisy_burst(
+            &freqs,
+            tsamp,
+            1400,
+            Pulse {
+                t_top: 500,
+                dm,
+                width: 3,
+                amp: 2.0,
+            },
+            3,
+        );
         let input = normalise(&block, &[1.0; 32]);
         let plan = DmPlan::uniform(freqs, 12.5, tsamp, 180.0, 220.0, 41);
         let curve = measure(&input, &plan, 3, 500, 6);

@@ -181,7 +181,7 @@ fn draw_histogram(area: &Area, cands: &[Candidate]) -> Result<PanelRect> {
         .draw()
         .map_err(draw_err)?;
     // Stacked bars: astrophysical at the bottom, then unsure, then rfi.
-    let mut base = vec![0usize; HIST_BINS];
+    let mut base = [0usize; HIST_BINS];
     for (v, row) in VERDICTS.iter().zip(&counts) {
         let colour = verdict_colour(*v);
         let bars: Vec<_> = (0..HIST_BINS)

@@ -291,7 +291,7 @@ pub fn timeline_figure(
     if let Some(bad) = sessions_mjd
         .iter()
         .chain(windows_mjd)
-        .find(|(a, b)| !(b >= a))
+        .find(|(a, b)| b < a || a.is_nan() || b.is_nan())
     {
         return Err(Error::Config(format!(
             "interval {bad:?} ends before it starts"

@@ -58,7 +58,7 @@ pub fn normalise(block: &Block, weights: &[f32]) -> Normalised {
     let mut data = Array2::<f32>::zeros((n_chan, n_time));
     let mut live = vec![false; n_chan];
     let mut column = Vec::with_capacity(n_time);
-    for c in 0..n_chan {
+    for (c, is_live) in live.iter_mut().enumerate() {
         if weights.get(c).is_some_and(|&w| w == 0.0) {
             continue;
         }
@@ -67,7 +67,7 @@ pub fn normalise(block: &Block, weights: &[f32]) -> Normalised {
         let Some((median, sigma)) = robust_location_scale(&column) else {
             continue;
         };
-        live[c] = true;
+        *is_live = true;
         for (out, &x) in data.row_mut(c).iter_mut().zip(&column) {
             *out = if x.is_finite() {
                 ((x as f64 - median) / sigma) as f32

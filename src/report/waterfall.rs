@@ -113,18 +113,29 @@ pub(crate) mod tests {
     use rand_chacha::ChaCha8Rng;
     use rand_distr::{Distribution, Normal};
 
-    /// Gaussian noise `[time, chan]` with a bright pulse arriving at the top channel at
-    /// sample `t_top`, dispersed at `dm`, `width` samples wide.
+    /// A top-hat test pulse: starts at the top channel at sample `t_top`, dispersed at
+    /// `dm`, `width` samples wide, `amp` noise σ high.
+    pub(crate) struct Pulse {
+        pub t_top: usize,
+        pub dm: f64,
+        pub width: usize,
+        pub amp: f32,
+    }
+
+    /// Unit Gaussian noise (offset 10) `[time, chan]` with `pulse` added.
     pub(crate) fn noisy_burst(
         freqs: &[f64],
         tsamp: f64,
         n_time: usize,
-        t_top: usize,
-        dm: f64,
-        width: usize,
-        amp: f32,
+        pulse: Pulse,
         seed: u64,
     ) -> Block {
+        let Pulse {
+            t_top,
+            dm,
+            width,
+            amp,
+        } = pulse;
         let n_chan = freqs.len();
         let mut rng = ChaCha8Rng::seed_from_u64(seed);
         let noise = Normal::new(0.0f32, 1.0).unwrap();
@@ -182,7 +193,18 @@ pub(crate) mod tests {
     fn dedispersed_burst_lines_up_in_every_band_at_its_time() {
         let (tsamp, dm) = (1e-3, 300.0);
         let freqs = band(64);
-        let block = noisy_burst(&freqs, tsamp, 2000, 700, dm, 4, 3.0, 1);
+        let block = noisy_burst(
+            &freqs,
+            tsamp,
+            2000,
+            Pulse {
+                t_top: 700,
+                dm,
+                width: 4,
+                amp: 3.0,
+            },
+            1,
+        );
         let mut weights = vec![1.0; 64];
         weights[8..12].fill(0.0); // exactly sub-band 2 of 16
         let input = normalise(&block, &weights);
@@ -215,7 +237,18 @@ pub(crate) mod tests {
     fn at_dm_zero_the_burst_follows_the_dispersion_sweep() {
         let (tsamp, dm) = (1e-3, 300.0);
         let freqs = band(64);
-        let block = noisy_burst(&freqs, tsamp, 2000, 300, dm, 4, 8.0, 2);
+        let block = noisy_burst(
+            &freqs,
+            tsamp,
+            2000,
+            Pulse {
+                t_top: 300,
+                dm,
+                width: 4,
+                amp: 8.0,
+            },
+            2,
+        );
         let input = normalise(&block, &[1.0; 64]);
         let window = Window {
             start: 0,
