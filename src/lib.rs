@@ -14,6 +14,8 @@ pub mod error;
 pub mod obs;
 pub mod progress;
 pub mod report;
+pub mod simulate;
+pub mod timing;
 pub mod units;
 
 pub use candidate::{Candidate, TriageFeatures, Verdict};

@@ -11,8 +11,15 @@ fn main() -> ExitCode {
     match cli::run(args) {
         Ok(()) => ExitCode::SUCCESS,
         Err(e) => {
-            // One line: the outermost context, then each cause.
-            eprintln!("burstbook: error: {e:#}");
+            // One line: the outermost context, then each cause not already quoted
+            // by the one before (library errors embed their I/O cause).
+            let mut line = e.to_string();
+            for cause in e.chain().skip(1).map(|c| c.to_string()) {
+                if !line.contains(&cause) {
+                    line = format!("{line}: {cause}");
+                }
+            }
+            eprintln!("burstbook: error: {line}");
             ExitCode::FAILURE
         }
     }

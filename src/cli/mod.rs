@@ -1,8 +1,10 @@
 //! Command-line front end: one file per subcommand, each parsing its flags into
 //! library calls. No science happens here.
 
+mod barycentre;
 mod inspect;
 mod report;
+mod simulate;
 
 use clap::{Parser, Subcommand};
 
@@ -20,6 +22,10 @@ enum Command {
     Inspect(inspect::Args),
     /// Write an HTML report (overview and per-candidate figures) from search output.
     Report(report::Args),
+    /// Write a synthetic observation with known bursts and interference from a scenario file.
+    Simulate(simulate::Args),
+    /// Convert topocentric UTC arrival times (CSV column mjd_utc) to barycentric TDB.
+    Barycentre(barycentre::Args),
 }
 
 /// Runs the chosen subcommand.
@@ -27,5 +33,7 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
     match cli.command {
         Command::Inspect(a) => inspect::run(a),
         Command::Report(a) => report::run(a),
+        Command::Simulate(a) => simulate::run(a),
+        Command::Barycentre(a) => barycentre::run(a),
     }
 }

@@ -1,0 +1,300 @@
+//! Turns a [`Scenario`] into concrete signals: every burst and interference pulse as
+//! a [`Burst`] with its amplitude fixed, plus the truth table describing them.
+
+use rand::{Rng, SeedableRng};
+use rand_chacha::ChaCha8Rng;
+use serde::Serialize;
+
+use super::burst::{Burst, Spectrum};
+use super::scenario::{RandomBurstsSpec, Scenario};
+use super::snr::{amplitude_from_fluence, expected_snr, fluence_from_amplitude, with_expected_snr};
+use crate::error::Result;
+use crate::obs::Header;
+
+/// RNG stream (of the scenario seed) for random burst parameters; noise uses stream 0
+/// and carrier fluctuations stream 2, so adding bursts never changes the noise.
+const BURST_STREAM: u64 = 1;
+
+/// What a truth-table row describes.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum TruthKind {
+    /// An astrophysical burst.
+    Burst,
+    /// A persistent narrow-band carrier (interference).
+    RfiNarrowband,
+    /// A single broadband DM-0 impulse (interference).
+    RfiImpulse,
+    /// One pulse of a periodic DM-0 impulse train (interference).
+    RfiTrainPulse,
+}
+
+/// One row of `NAME.truth.csv`.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct TruthRow {
+    pub kind: TruthKind,
+    /// Arrival at infinite frequency (for a carrier: the file start), s from start.
+    pub t_inf_s: f64,
+    /// The same instant as a UTC MJD.
+    pub mjd_inf: f64,
+    pub dm: Option<f64>,
+    /// Intrinsic FWHM, ms.
+    pub width_ms: Option<f64>,
+    pub scatter_ms_1ghz: Option<f64>,
+    pub spectrum: Option<String>,
+    pub expected_snr: Option<f64>,
+    /// Fluence in Jy ms where the spectrum is 1 (only with an SEFD).
+    pub fluence_jy_ms: Option<f64>,
+    /// Carrier frequency, MHz.
+    pub freq_mhz: Option<f64>,
+    /// Train period or carrier modulation period, s.
+    pub period_s: Option<f64>,
+    /// Carrier mean excess in σ units.
+    pub strength: Option<f64>,
+}
+
+/// A persistent narrow-band carrier, resolved to channels.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Carrier {
+    /// Data-order channel indices it occupies.
+    pub channels: Vec<usize>,
+    /// Mean excess per sample, σ units.
+    pub strength: f64,
+    pub modulation_period_s: Option<f64>,
+}
+
+/// Everything needed to write the data, and the truth about it.
+#[derive(Debug, Clone)]
+pub struct Simulation {
+    pub header: Header,
+    /// Noise level and bandpass gain per channel: mean and σ in output units.
+    pub chan_mean: Vec<f64>,
+    pub chan_sigma: Vec<f64>,
+    /// All pulsed signals (bursts and DM-0 interference), amplitude in σ units.
+    pub pulses: Vec<Burst>,
+    pub carriers: Vec<Carrier>,
+    pub truth: Vec<TruthRow>,
+    pub seed: u64,
+}
+
+impl Simulation {
+    /// Resolves `scenario` with `seed` (random draws and noise).
+    ///
+    /// # Errors
+    /// [`crate::Error::Config`] if a burst cannot reach its S/N (no signal in band).
+    pub fn new(scenario: &Scenario, seed: u64) -> Result<Simulation> {
+        let header = scenario.header();
+        let gains = super::noise::bandpass_gains(&header, &scenario.bandpass)?;
+        let mut sim = Simulation {
+            chan_mean: gains.iter().map(|g| g * scenario.noise.mean).collect(),
+            chan_sigma: gains.iter().map(|g| g * scenario.noise.sigma).collect(),
+            header,
+            pulses: Vec::new(),
+            carriers: Vec::new(),
+            truth: Vec::new(),
+            seed,
+        };
+        let sefd = scenario.noise.sefd_jy;
+        for b in &scenario.bursts {
+            let burst = Burst {
+                t_inf_s: b.t_inf_s,
+                dm: b.dm,
+                width_s: b.width_ms * 1e-3,
+                scatter_1ghz_s: b.scatter_ms_1ghz * 1e-3,
+                spectrum: b.spectrum,
+                amplitude: 1.0,
+            };
+            sim.add_burst(burst, b.snr, b.fluence_jy_ms.zip(sefd))?;
+        }
+        if let Some(r) = &scenario.random_bursts {
+            let mut rng = ChaCha8Rng::seed_from_u64(seed);
+            rng.set_stream(BURST_STREAM);
+            for _ in 0..r.count {
+                let (burst, snr, fluence) = draw_burst(&mut rng, r, &sim.header);
+                sim.add_burst(burst, snr, fluence.zip(sefd))?;
+            }
+        }
+        sim.add_rfi(scenario)?;
+        Ok(sim)
+    }
+
+    fn add_burst(
+        &mut self,
+        burst: Burst,
+        snr: Option<f64>,
+        fluence: Option<(f64, f64)>,
+    ) -> Result<()> {
+        let burst = match (snr, fluence) {
+            (Some(s), _) => with_expected_snr(&self.header, &burst, s)?,
+            (None, Some((f, sefd))) => Burst {
+                amplitude: amplitude_from_fluence(&self.header, sefd, f),
+                ..burst
+            },
+            (None, None) => burst,
+        };
+        let row = TruthRow {
+            kind: TruthKind::Burst,
+            dm: Some(burst.dm),
+            width_ms: Some(burst.width_s * 1e3),
+            scatter_ms_1ghz: Some(burst.scatter_1ghz_s * 1e3),
+            spectrum: Some(burst.spectrum.describe()),
+            expected_snr: Some(expected_snr(&self.header, &burst)),
+            fluence_jy_ms: self
+                .header
+                .sefd_jy
+                .map(|sefd| fluence_from_amplitude(&self.header, sefd, burst.amplitude)),
+            ..self.empty_row(TruthKind::Burst, burst.t_inf_s)
+        };
+        self.truth.push(row);
+        self.pulses.push(burst);
+        Ok(())
+    }
+
+    fn add_rfi(&mut self, scenario: &Scenario) -> Result<()> {
+        for nb in &scenario.rfi.narrowband {
+            let h = &self.header;
+            let half = nb.width_mhz.unwrap_or(0.0) / 2.0;
+            let channels: Vec<usize> = (0..h.n_chan())
+                .filter(|&c| {
+                    let (lo, hi) = (
+                        h.freqs_mhz[c] - h.chan_bw_mhz / 2.0,
+                        h.freqs_mhz[c] + h.chan_bw_mhz / 2.0,
+                    );
+                    nb.freq_mhz + half >= lo && nb.freq_mhz - half < hi
+                })
+                .collect();
+            self.truth.push(TruthRow {
+                freq_mhz: Some(nb.freq_mhz),
+                period_s: nb.modulation_period_s,
+                strength: Some(nb.strength),
+                ..self.empty_row(TruthKind::RfiNarrowband, 0.0)
+            });
+            self.carriers.push(Carrier {
+                channels,
+                strength: nb.strength,
+                modulation_period_s: nb.modulation_period_s,
+            });
+        }
+        for p in &scenario.rfi.impulse {
+            self.add_impulse(
+                TruthKind::RfiImpulse,
+                p.t_s,
+                p.width_ms,
+                p.snr,
+                Spectrum::PowerLaw { index: 0.0 },
+                None,
+            )?;
+        }
+        let length = self.header.duration_s();
+        for t in &scenario.rfi.train {
+            let spectrum = match (t.freq_lo_mhz, t.freq_hi_mhz) {
+                (Some(lo), Some(hi)) => Spectrum::TopHat {
+                    lo_mhz: lo,
+                    hi_mhz: hi,
+                },
+                _ => Spectrum::PowerLaw { index: 0.0 },
+            };
+            let count = t.count.unwrap_or(usize::MAX);
+            let mut time = t.first_s;
+            let mut k = 0;
+            while time < length && k < count {
+                self.add_impulse(
+                    TruthKind::RfiTrainPulse,
+                    time,
+                    t.width_ms,
+                    t.snr,
+                    spectrum,
+                    Some(t.period_s),
+                )?;
+                k += 1;
+                time = t.first_s + k as f64 * t.period_s;
+            }
+        }
+        Ok(())
+    }
+
+    fn add_impulse(
+        &mut self,
+        kind: TruthKind,
+        t_s: f64,
+        width_ms: f64,
+        snr: f64,
+        spectrum: Spectrum,
+        period_s: Option<f64>,
+    ) -> Result<()> {
+        let unit = Burst {
+            t_inf_s: t_s,
+            dm: 0.0,
+            width_s: width_ms * 1e-3,
+            scatter_1ghz_s: 0.0,
+            spectrum,
+            amplitude: 1.0,
+        };
+        let pulse = with_expected_snr(&self.header, &unit, snr)?;
+        self.truth.push(TruthRow {
+            dm: Some(0.0),
+            width_ms: Some(width_ms),
+            spectrum: Some(spectrum.describe()),
+            expected_snr: Some(snr),
+            period_s,
+            ..self.empty_row(kind, t_s)
+        });
+        self.pulses.push(pulse);
+        Ok(())
+    }
+
+    fn empty_row(&self, kind: TruthKind, t_s: f64) -> TruthRow {
+        TruthRow {
+            kind,
+            t_inf_s: t_s,
+            mjd_inf: self.header.start.plus_seconds(t_s).to_mjd_f64(),
+            dm: None,
+            width_ms: None,
+            scatter_ms_1ghz: None,
+            spectrum: None,
+            expected_snr: None,
+            fluence_jy_ms: None,
+            freq_mhz: None,
+            period_s: None,
+            strength: None,
+        }
+    }
+}
+
+/// One random burst: unit amplitude plus its target S/N or fluence.
+fn draw_burst(
+    rng: &mut ChaCha8Rng,
+    r: &RandomBurstsSpec,
+    header: &Header,
+) -> (Burst, Option<f64>, Option<f64>) {
+    let uniform = |rng: &mut ChaCha8Rng, [lo, hi]: [f64; 2]| lo + (hi - lo) * rng.random::<f64>();
+    let log_uniform = |rng: &mut ChaCha8Rng, [lo, hi]: [f64; 2]| {
+        (lo.ln() + (hi.ln() - lo.ln()) * rng.random::<f64>()).exp()
+    };
+    let t_inf_s = uniform(rng, r.t_range_s);
+    let dm = uniform(rng, r.dm_range);
+    let width_ms = log_uniform(rng, r.width_ms_range);
+    let scatter_ms = r.scatter_ms_1ghz_range.map_or(0.0, |s| log_uniform(rng, s));
+    let spectrum = if rng.random::<f64>() < r.band_limited_fraction {
+        let lo = header.freq_lo_mhz();
+        Spectrum::Gaussian {
+            centre_mhz: uniform(rng, [lo, header.freq_hi_mhz()]),
+            fwhm_mhz: uniform(rng, r.envelope_fwhm_mhz_range.unwrap_or([100.0, 300.0])),
+        }
+    } else {
+        Spectrum::PowerLaw {
+            index: uniform(rng, r.spectral_index_range.unwrap_or([0.0, 0.0])),
+        }
+    };
+    let snr = r.snr_range.map(|s| uniform(rng, s));
+    let fluence = r.fluence_jy_ms_range.map(|f| log_uniform(rng, f));
+    let burst = Burst {
+        t_inf_s,
+        dm,
+        width_s: width_ms * 1e-3,
+        scatter_1ghz_s: scatter_ms * 1e-3,
+        spectrum,
+        amplitude: 1.0,
+    };
+    (burst, snr, fluence)
+}

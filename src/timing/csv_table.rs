@@ -1,0 +1,141 @@
+//! Barycentring a CSV table of UTC MJDs: the library side of `burstbook barycentre`.
+
+use std::path::Path;
+
+use super::{Barycentrer, TdbEpoch, TimingWarning};
+use crate::error::{Error, Result};
+use crate::obs::UtcEpoch;
+use crate::units::SECONDS_PER_DAY;
+
+/// Name of the input column holding topocentric UTC MJDs.
+pub const MJD_UTC_COLUMN: &str = "mjd_utc";
+
+/// What [`barycentre_csv`] did.
+#[derive(Debug, Clone, Default)]
+pub struct CsvSummary {
+    /// Data rows converted.
+    pub rows: usize,
+    /// One example of each kind of warning met (the first row that raised it).
+    pub warnings: Vec<TimingWarning>,
+}
+
+/// Reads `input` (CSV with a header and a column `mjd_utc`), converts every row and
+/// writes all input columns plus `mjd_tdb` (15 decimals, ~1 ns) and `correction_s` to
+/// `output`. The MJD is parsed exactly as integer day + decimal fraction.
+///
+/// # Errors
+/// [`Error::Io`] when a file cannot be read or written; [`Error::BadInput`] naming
+/// `input` for a missing column, an unparsable or unsupported time, or ragged rows.
+pub fn barycentre_csv(bary: &Barycentrer, input: &Path, output: &Path) -> Result<CsvSummary> {
+    let bad = |msg: String| Error::bad_input(input, msg);
+    let file = std::fs::File::open(input).map_err(|e| Error::io(input, e))?;
+    let mut reader = csv::ReaderBuilder::new()
+        .comment(Some(b'#'))
+        .from_reader(file);
+    let headers = reader
+        .headers()
+        .map_err(|e| bad(format!("cannot read the CSV header: {e}")))?
+        .clone();
+    let column = headers
+        .iter()
+        .position(|h| h.trim() == MJD_UTC_COLUMN)
+        .ok_or_else(|| bad(format!("no column named `{MJD_UTC_COLUMN}` in the header")))?;
+    if let Some(clash) = headers
+        .iter()
+        .find(|h| matches!(h.trim(), "mjd_tdb" | "correction_s"))
+    {
+        return Err(bad(format!("already has a column `{clash}`")));
+    }
+    let out_file = std::fs::File::create(output).map_err(|e| Error::io(output, e))?;
+    let mut writer = csv::Writer::from_writer(out_file);
+    let write_err = |e: csv::Error| Error::io(output, std::io::Error::other(e));
+    let mut out_headers = headers.clone();
+    out_headers.push_field("mjd_tdb");
+    out_headers.push_field("correction_s");
+    writer.write_record(&out_headers).map_err(write_err)?;
+
+    let mut summary = CsvSummary::default();
+    for record in reader.records() {
+        let mut record = record.map_err(|e| bad(e.to_string()))?;
+        let line = record.position().map_or(0, |p| p.line());
+        let text = record.get(column).unwrap_or("").trim();
+        let utc =
+            parse_mjd(text).ok_or_else(|| bad(format!("line {line}: `{text}` is not an MJD")))?;
+        let result = bary
+            .convert(utc)
+            .map_err(|e| bad(format!("line {line}: {e}")))?;
+        for w in result.warnings {
+            let seen = summary
+                .warnings
+                .iter()
+                .any(|s| std::mem::discriminant(s) == std::mem::discriminant(&w));
+            if !seen {
+                summary.warnings.push(w);
+            }
+        }
+        record.push_field(&format_mjd(result.tdb, 15));
+        record.push_field(&format!("{:.9}", result.correction_s));
+        writer.write_record(&record).map_err(write_err)?;
+        summary.rows += 1;
+    }
+    writer.flush().map_err(|e| Error::io(output, e))?;
+    Ok(summary)
+}
+
+/// Parses a decimal MJD such as `60123.456789012345` into day + seconds without
+/// going through a single f64 (which would keep only ~1 µs).
+pub fn parse_mjd(text: &str) -> Option<UtcEpoch> {
+    let (day, frac) = text.split_once('.').unwrap_or((text, ""));
+    if day.is_empty() || !day.bytes().all(|b| b.is_ascii_digit()) {
+        return None;
+    }
+    if !frac.bytes().all(|b| b.is_ascii_digit()) {
+        return None;
+    }
+    let day: i64 = day.parse().ok()?;
+    let frac: f64 = if frac.is_empty() {
+        0.0
+    } else {
+        format!("0.{frac}").parse().ok()?
+    };
+    Some(UtcEpoch {
+        mjd: day,
+        sec: frac * SECONDS_PER_DAY,
+    })
+}
+
+/// Formats a TDB epoch as a decimal MJD with `decimals` digits after the point,
+/// carrying into the day when the fraction rounds up to one.
+pub fn format_mjd(t: TdbEpoch, decimals: usize) -> String {
+    let frac = format!("{:.*}", decimals, t.sec / SECONDS_PER_DAY);
+    match frac.strip_prefix("0.") {
+        Some(digits) => format!("{}.{digits}", t.mjd),
+        None => format!("{}.{}", t.mjd + 1, "0".repeat(decimals)),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn mjd_text_round_trip() {
+        let t = parse_mjd("60123.456789012345").unwrap();
+        assert_eq!(t.mjd, 60123);
+        assert!((t.sec - 0.456789012345 * 86400.0).abs() < 1e-9);
+        assert_eq!(parse_mjd("60000").unwrap().sec, 0.0);
+        for bad in ["", "abc", "60000.1e3", "-5.5", "1.2.3", ".5"] {
+            assert!(parse_mjd(bad).is_none(), "{bad}");
+        }
+        let e = TdbEpoch {
+            mjd: 60123,
+            sec: 0.456789012345 * 86400.0,
+        };
+        assert_eq!(format_mjd(e, 12), "60123.456789012345");
+        let late = TdbEpoch {
+            mjd: 60123,
+            sec: 86_399.999_999_999_99,
+        };
+        assert_eq!(format_mjd(late, 6), "60124.000000");
+    }
+}

@@ -1,0 +1,339 @@
+//! Broken observations give one clear typed error naming the file, never a panic:
+//! through the library and through the `burstbook` binary.
+
+use std::path::{Path, PathBuf};
+use std::process::Command;
+
+use burstbook::Error;
+use burstbook::obs::{self, Container, Header, Site, UtcEpoch};
+
+fn header(n_chan: usize, n_samples: u64, nbits: u32) -> Header {
+    Header {
+        source: "Field A".into(),
+        telescope: "Test Array".into(),
+        ra_deg: 150.0,
+        dec_deg: -20.0,
+        site: Site {
+            name: "Test Array".into(),
+            lon_deg: 20.0,
+            lat_deg: -30.0,
+            height_m: 1000.0,
+        },
+        start: UtcEpoch::new(60500, 10.5),
+        tsamp_s: 1e-3,
+        freqs_mhz: (0..n_chan).map(|i| 1400.0 - i as f64).collect(),
+        chan_bw_mhz: 1.0,
+        weights: vec![1.0; n_chan],
+        n_samples,
+        nbits,
+        sefd_jy: None,
+        beam: None,
+    }
+}
+
+/// Writes `n_samples` rows of `value` to `path`.
+fn write(path: &Path, h: &Header, container: Container, value: f32) {
+    let mut sink = obs::create(path, h, container).unwrap();
+    sink.write_rows(&vec![value; h.n_chan() * h.n_samples as usize])
+        .unwrap();
+    sink.finish().unwrap();
+}
+
+/// Opens and reads everything; returns the error.
+fn open_and_read(path: &Path) -> Error {
+    let mut src = match obs::open(path) {
+        Ok(s) => s,
+        Err(e) => return e,
+    };
+    let mut buf = vec![0.0; src.header().n_chan() * 16];
+    loop {
+        match src.read_rows(&mut buf) {
+            Ok(0) => panic!("{} read without error", path.display()),
+            Ok(_) => {}
+            Err(e) => return e,
+        }
+    }
+}
+
+/// Asserts `e` is `BadInput` for `file` whose message contains `needle`, on one line.
+fn assert_bad(e: Error, file: &Path, needle: &str) {
+    let text = e.to_string();
+    match &e {
+        Error::BadInput { path, msg } => {
+            assert_eq!(path, file, "{text}");
+            assert!(msg.contains(needle), "expected '{needle}' in: {text}");
+        }
+        other => panic!("expected BadInput for {}, got {other:?}", file.display()),
+    }
+    assert!(!text.contains('\n'), "one line: {text}");
+}
+
+fn native_pair(dir: &Path, name: &str, nbits: u32) -> (PathBuf, PathBuf) {
+    let json = dir.join(format!("{name}.json"));
+    write(&json, &header(4, 10, nbits), Container::Native, 3.0);
+    (json.clone(), json.with_extension("npy"))
+}
+
+fn edit_json(path: &Path, f: impl FnOnce(&mut serde_json::Value)) {
+    let mut v: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(path).unwrap()).unwrap();
+    f(&mut v);
+    std::fs::write(path, v.to_string()).unwrap();
+}
+
+#[test]
+fn native_missing_files_are_io_errors_naming_the_file() {
+    let dir = tempfile::tempdir().unwrap();
+    let missing = dir.path().join("nothing.json");
+    let e = open_and_read(&missing);
+    assert!(
+        matches!(&e, Error::Io { path, .. } if path == &missing),
+        "{e}"
+    );
+    let (json, npy) = native_pair(dir.path(), "a", 8);
+    std::fs::remove_file(&npy).unwrap();
+    let e = open_and_read(&json);
+    assert!(matches!(&e, Error::Io { path, .. } if path == &npy), "{e}");
+}
+
+#[test]
+fn native_truncated_or_oversized_data() {
+    let dir = tempfile::tempdir().unwrap();
+    let (json, npy) = native_pair(dir.path(), "a", 16);
+    let bytes = std::fs::read(&npy).unwrap();
+    std::fs::write(&npy, &bytes[..bytes.len() - 3]).unwrap();
+    assert_bad(open_and_read(&json), &npy, "truncated");
+    std::fs::write(&npy, [&bytes[..], &[0, 0]].concat()).unwrap();
+    assert_bad(open_and_read(&json), &npy, "needs");
+}
+
+#[test]
+fn native_header_disagreeing_with_data() {
+    let dir = tempfile::tempdir().unwrap();
+    let (json, _) = native_pair(dir.path(), "a", 8);
+    edit_json(&json, |v| v["channels"]["count"] = 7.into());
+    assert_bad(open_and_read(&json), &json, "7 channels");
+}
+
+#[test]
+fn native_unsupported_dtype() {
+    let dir = tempfile::tempdir().unwrap();
+    let (json, npy) = native_pair(dir.path(), "a", 32);
+    let mut bytes = std::fs::read(&npy).unwrap();
+    let at = bytes.windows(3).position(|w| w == b"<f4").unwrap();
+    bytes[at..at + 3].copy_from_slice(b"<f8");
+    std::fs::write(&npy, bytes).unwrap();
+    assert_bad(open_and_read(&json), &npy, "unsupported sample type '<f8'");
+}
+
+#[test]
+fn native_wrong_json_types_and_values() {
+    let dir = tempfile::tempdir().unwrap();
+    let cases: [(&str, fn(&mut serde_json::Value), &str); 6] = [
+        (
+            "type",
+            |v| v["sample_time_s"] = "fast".into(),
+            "invalid type",
+        ),
+        (
+            "negative",
+            |v| v["sample_time_s"] = (-1e-3).into(),
+            "sample time must be positive",
+        ),
+        (
+            "zero",
+            |v| v["channels"]["step_mhz"] = 0.0.into(),
+            "channel step",
+        ),
+        (
+            "missing",
+            |v| drop(v.as_object_mut().unwrap().remove("ra_deg")),
+            "missing field `ra_deg`",
+        ),
+        ("format", |v| v["format"] = "other".into(), "\"format\""),
+        (
+            "badchan",
+            |v| v["bad_channels"] = serde_json::json!([9]),
+            "bad channel 9",
+        ),
+    ];
+    for (name, edit, needle) in cases {
+        let (json, _) = native_pair(dir.path(), name, 8);
+        edit_json(&json, edit);
+        assert_bad(open_and_read(&json), &json, needle);
+    }
+    let json = dir.path().join("text.json");
+    std::fs::write(&json, "{ not json").unwrap();
+    assert_bad(open_and_read(&json), &json, "bad JSON header");
+}
+
+#[test]
+fn native_zero_channels() {
+    let dir = tempfile::tempdir().unwrap();
+    let (json, npy) = native_pair(dir.path(), "a", 8);
+    edit_json(&json, |v| v["channels"]["count"] = 0.into());
+    let mut bytes = std::fs::read(&npy).unwrap();
+    bytes.truncate(bytes.len() - 40); // drop the samples
+    let at = bytes.windows(7).position(|w| w == b"(10, 4)").unwrap();
+    bytes[at..at + 7].copy_from_slice(b"(10, 0)");
+    std::fs::write(&npy, bytes).unwrap();
+    assert_bad(open_and_read(&json), &json, "zero channels");
+}
+
+#[test]
+fn native_nan_and_inf_samples() {
+    let dir = tempfile::tempdir().unwrap();
+    let (json, npy) = native_pair(dir.path(), "a", 32);
+    let mut bytes = std::fs::read(&npy).unwrap();
+    let n = bytes.len();
+    bytes[n - 4..].copy_from_slice(&f32::INFINITY.to_le_bytes());
+    std::fs::write(&npy, &bytes).unwrap();
+    assert_bad(open_and_read(&json), &npy, "sample 9 of channel 3 is inf");
+    bytes[n - 24..n - 20].copy_from_slice(&f32::NAN.to_le_bytes());
+    std::fs::write(&npy, &bytes).unwrap();
+    assert_bad(open_and_read(&json), &npy, "sample 8 of channel 2 is NaN");
+}
+
+/// Replaces the card starting with `key` by `card` (padded to 80 characters).
+fn patch_card(path: &Path, key: &str, card: &str) {
+    let mut bytes = std::fs::read(path).unwrap();
+    let at = (0..bytes.len())
+        .step_by(80)
+        .find(|&i| bytes[i..].starts_with(format!("{key:<8}").as_bytes()))
+        .unwrap_or_else(|| panic!("no {key} card"));
+    bytes[at..at + 80].copy_from_slice(format!("{card:<80}").as_bytes());
+    std::fs::write(path, bytes).unwrap();
+}
+
+fn fits_file(dir: &Path, name: &str, nbits: u32, value: f32) -> PathBuf {
+    let path = dir.join(format!("{name}.fits"));
+    write(&path, &header(4, 10, nbits), Container::Fits, value);
+    path
+}
+
+#[test]
+fn fits_missing_and_truncated() {
+    let dir = tempfile::tempdir().unwrap();
+    let missing = dir.path().join("none.fits");
+    assert!(matches!(open_and_read(&missing), Error::Io { .. }));
+    let path = fits_file(dir.path(), "a", 8, 1.0);
+    let bytes = std::fs::read(&path).unwrap();
+    std::fs::write(&path, &bytes[..bytes.len() - 2880]).unwrap();
+    assert_bad(open_and_read(&path), &path, "truncated");
+    std::fs::write(&path, &bytes[..2000]).unwrap();
+    assert_bad(open_and_read(&path), &path, "truncated");
+    std::fs::write(&path, b"just some text, not FITS at all").unwrap();
+    assert_bad(open_and_read(&path), &path, "header");
+}
+
+#[test]
+fn fits_unsupported_or_inconsistent_keywords() {
+    let dir = tempfile::tempdir().unwrap();
+    let cases = [
+        (
+            "NBITS",
+            "NBITS   =                    3",
+            "NBITS = 3 is not supported",
+        ),
+        ("NPOL", "NPOL    =                    3", "NPOL = 3"),
+        ("NCHAN", "NCHAN   =                    0", "zero channels"),
+        (
+            "TBIN",
+            "TBIN    =                -1E-3",
+            "TBIN must be positive",
+        ),
+        ("NAXIS1", "NAXIS1  =                  999", "NAXIS1 is 999"),
+        ("OBS_MODE", "OBS_MODE= 'PSR     '", "OBS_MODE is 'PSR'"),
+        ("RA", "RA      = 'noon    '", "RA 'noon'"),
+        ("ANT_X", "ANT_X   = 'here    '", "ANT_X is not a number"),
+    ];
+    for (key, card, needle) in cases {
+        let path = fits_file(dir.path(), key, 8, 1.0);
+        patch_card(&path, key, card);
+        assert_bad(open_and_read(&path), &path, needle);
+    }
+}
+
+#[test]
+fn fits_nan_samples() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = fits_file(dir.path(), "nan", 32, 12345.5);
+    let mut bytes = std::fs::read(&path).unwrap();
+    let marker = 12345.5f32.to_be_bytes();
+    let at = bytes.windows(4).position(|w| w == marker).unwrap();
+    bytes[at + 4 * 6..at + 4 * 7].copy_from_slice(&f32::NAN.to_be_bytes());
+    std::fs::write(&path, bytes).unwrap();
+    assert_bad(open_and_read(&path), &path, "sample 1 of channel 2 is NaN");
+}
+
+#[test]
+fn writers_reject_what_they_cannot_store() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("x.fits");
+    let e = obs::create(&path, &header(4, 10, 7), Container::Fits)
+        .err()
+        .unwrap();
+    assert_bad(e, &path, "not 7");
+    let path = dir.path().join("x.json");
+    let mut h = header(4, 10, 8);
+    h.tsamp_s = -1.0;
+    let e = obs::create(&path, &h, Container::Native).err().unwrap();
+    assert_bad(e, &path, "sample time");
+}
+
+/// Runs `burstbook inspect FILE`; returns (success, stderr).
+fn inspect(file: &Path) -> (bool, String) {
+    let out = Command::new(env!("CARGO_BIN_EXE_burstbook"))
+        .arg("inspect")
+        .arg(file)
+        .output()
+        .unwrap();
+    (out.status.success(), String::from_utf8(out.stderr).unwrap())
+}
+
+fn assert_one_line_failure(file: &Path, needle: &str) {
+    let (ok, stderr) = inspect(file);
+    assert!(!ok, "exit status must be non-zero for {}", file.display());
+    assert_eq!(stderr.lines().count(), 1, "one line: {stderr}");
+    assert!(
+        stderr.contains(&file.display().to_string()),
+        "names file: {stderr}"
+    );
+    assert_eq!(stderr.matches(needle).count(), 1, "'{needle}' once in: {stderr}");
+    assert!(!stderr.contains("panicked"), "{stderr}");
+}
+
+#[test]
+fn binary_reports_bad_input_in_one_line() {
+    let dir = tempfile::tempdir().unwrap();
+    assert_one_line_failure(&dir.path().join("missing.json"), "No such file");
+    let (json, _) = native_pair(dir.path(), "types", 8);
+    edit_json(&json, |v| v["start_mjd"] = "yesterday".into());
+    assert_one_line_failure(&json, "invalid type");
+    let (json, npy) = native_pair(dir.path(), "short", 8);
+    let bytes = std::fs::read(&npy).unwrap();
+    std::fs::write(&npy, &bytes[..bytes.len() - 1]).unwrap();
+    let (ok, stderr) = inspect(&json);
+    assert!(
+        !ok && stderr.lines().count() == 1 && stderr.contains("truncated"),
+        "{stderr}"
+    );
+    let fits = fits_file(dir.path(), "bits", 8, 1.0);
+    patch_card(&fits, "NBITS", "NBITS   =                   12");
+    assert_one_line_failure(&fits, "NBITS = 12");
+}
+
+#[test]
+fn binary_inspects_a_good_file() {
+    let dir = tempfile::tempdir().unwrap();
+    let fits = fits_file(dir.path(), "good", 8, 7.0);
+    let out = Command::new(env!("CARGO_BIN_EXE_burstbook"))
+        .args(["inspect", "--json"])
+        .arg(&fits)
+        .output()
+        .unwrap();
+    assert!(out.status.success());
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(v["statistics"]["data"]["mean"], 7.0);
+    assert_eq!(v["header"]["n_samples"], 10);
+}

@@ -1,0 +1,77 @@
+//! End-to-end: `burstbook barycentre` on small CSV files.
+
+use std::process::Command;
+
+use burstbook::obs::{Site, UtcEpoch};
+use burstbook::timing::utc_to_barycentric_tdb;
+
+fn run(dir: &std::path::Path, input: &str, extra: &[&str]) -> std::process::Output {
+    let inp = dir.join("in.csv");
+    std::fs::write(&inp, input).unwrap();
+    let mut args = vec!["barycentre", "--ra-deg", "201.37", "--dec-deg", "-43.02"];
+    args.extend_from_slice(extra);
+    Command::new(env!("CARGO_BIN_EXE_burstbook"))
+        .args(&args)
+        .arg("--in")
+        .arg(&inp)
+        .arg("--out")
+        .arg(dir.join("out.csv"))
+        .output()
+        .unwrap()
+}
+
+#[test]
+fn adds_tdb_columns_and_keeps_the_others() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = run(
+        dir.path(),
+        "# bursts\nname,mjd_utc,snr\nb1,60123.456789012345,9.5\nb2,58000,12\n",
+        &["--site", "-70.25,-30.5,2400"],
+    );
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let text = std::fs::read_to_string(dir.path().join("out.csv")).unwrap();
+    let lines: Vec<&str> = text.lines().collect();
+    assert_eq!(lines[0], "name,mjd_utc,snr,mjd_tdb,correction_s");
+    let fields: Vec<&str> = lines[1].split(',').collect();
+    assert_eq!(&fields[..3], &["b1", "60123.456789012345", "9.5"]);
+    assert_eq!(fields[3].split('.').nth(1).unwrap().len(), 15);
+
+    let site = Site {
+        name: "x".into(),
+        lon_deg: -70.25,
+        lat_deg: -30.5,
+        height_m: 2400.0,
+    };
+    let utc = UtcEpoch {
+        mjd: 60123,
+        sec: 0.456789012345 * 86400.0,
+    };
+    let expected = utc_to_barycentric_tdb(utc, &site, 201.37, -43.02).unwrap();
+    let correction: f64 = fields[4].parse().unwrap();
+    assert!((correction - expected.correction_s).abs() < 1e-9);
+    let tdb_frac: f64 = format!("0.{}", fields[3].split('.').nth(1).unwrap())
+        .parse()
+        .unwrap();
+    assert!((tdb_frac * 86400.0 - expected.tdb.sec).abs() < 1e-6);
+    assert_eq!(lines.len(), 3);
+}
+
+#[test]
+fn bad_input_gives_one_line_naming_the_file() {
+    let dir = tempfile::tempdir().unwrap();
+    for (input, problem) in [
+        ("time,snr\n60000.5,3\n", "no column named `mjd_utc`"),
+        ("mjd_utc\n60000.5\nsoon\n", "`soon` is not an MJD"),
+        ("mjd_utc\n30000.5\n", "before 1972"),
+    ] {
+        let out = run(dir.path(), input, &["--site", "10,45,500"]);
+        assert!(!out.status.success());
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(err.trim().lines().count(), 1, "{err}");
+        assert!(err.contains("in.csv") && err.contains(problem), "{err}");
+    }
+}
