@@ -9,13 +9,19 @@
 //! synthetic recordings for tests and demos.
 
 pub mod candidate;
+pub mod clean;
+pub mod cluster;
+pub mod catalogue;
 pub mod dedisperse;
 pub mod error;
 pub mod obs;
 pub mod progress;
 pub mod report;
+pub mod robust;
+pub mod search;
 pub mod simulate;
 pub mod timing;
+pub mod triage;
 pub mod units;
 
 pub use candidate::{Candidate, TriageFeatures, Verdict};

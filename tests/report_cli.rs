@@ -3,9 +3,9 @@
 
 use std::process::Command;
 
-mod common;
+mod report_common;
 
-use common::{DM, TSAMP_S, header, write_observation};
+use report_common::{DM, TSAMP_S, header, write_observation};
 
 #[test]
 fn report_from_search_csv_is_self_contained_and_shows_the_burst() {

@@ -6,7 +6,7 @@
 //! `npm ci --prefix tests/browser` (playwright-core; fails with instructions when
 //! missing, because then the test would silently prove nothing).
 
-mod common;
+mod report_common;
 
 use std::io::{Read, Write};
 use std::net::TcpStream;
@@ -39,7 +39,7 @@ fn candidate(file: &Path, t_inf_s: f64, dm: f64, snr: f64) -> Candidate {
 
 fn store_with_four(obs: &Path, t_inf: f64) -> MemoryStore {
     let items = [
-        (11, t_inf, common::DM, 25.0),
+        (11, t_inf, report_common::DM, 25.0),
         (12, 2.0, 40.0, 8.0),
         (13, 5.5, 90.0, 7.0),
         (14, 7.0, 10.0, 6.5),
@@ -100,7 +100,7 @@ fn keyboard_review_in_headless_chromium_records_labels() {
     );
     let dir = tempfile::tempdir().unwrap();
     let obs = dir.path().join("review-night.json");
-    let t_inf = common::write_observation(&obs);
+    let t_inf = report_common::write_observation(&obs);
     let (url, stop, handle) = start(store_with_four(&obs, t_inf));
 
     let out = Command::new("node")

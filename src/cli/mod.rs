@@ -2,8 +2,10 @@
 //! library calls. No science happens here.
 
 mod barycentre;
+mod book;
 mod inspect;
 mod report;
+mod search;
 mod simulate;
 
 use clap::{Parser, Subcommand};
@@ -22,10 +24,14 @@ enum Command {
     Inspect(inspect::Args),
     /// Write an HTML report (overview and per-candidate figures) from search output.
     Report(report::Args),
+    /// Search observations for dispersed pulses; write candidates.csv and candidates.json.
+    Search(search::Args),
     /// Write a synthetic observation with known bursts and interference from a scenario file.
     Simulate(simulate::Args),
     /// Convert topocentric UTC arrival times (CSV column mjd_utc) to barycentric TDB.
     Barycentre(barycentre::Args),
+    /// The burst catalogue: query, label, promote, sources, exposure, summary, VOEvent.
+    Book(book::Args),
 }
 
 /// Runs the chosen subcommand.
@@ -33,7 +39,9 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
     match cli.command {
         Command::Inspect(a) => inspect::run(a),
         Command::Report(a) => report::run(a),
+        Command::Search(a) => search::run(a),
         Command::Simulate(a) => simulate::run(a),
         Command::Barycentre(a) => barycentre::run(a),
+        Command::Book(a) => book::run(a),
     }
 }

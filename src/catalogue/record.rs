@@ -1,0 +1,441 @@
+//! Recording one search of one observation: observation, run, candidates and the
+//! exposure it adds, all in one transaction.
+
+use std::io::Read;
+use std::path::Path;
+
+use rusqlite::{OptionalExtension, Transaction, params};
+use sha2::{Digest, Sha256};
+
+use super::Catalogue;
+use crate::candidate::Candidate;
+use crate::error::{Error, Result};
+use crate::obs::{Container, Header};
+
+/// An observation as the catalogue knows it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ObservationRecord {
+    /// Path as given when it was searched.
+    pub path: String,
+    /// Hex SHA-256 of the content (see [`content_hash`]).
+    pub content_sha256: String,
+    /// The full header.
+    pub header: Header,
+}
+
+impl ObservationRecord {
+    /// Hashes the file at `path` (streaming) and keeps its header.
+    ///
+    /// # Errors
+    /// The file (or, for native observations, its `.npy`) cannot be read.
+    pub fn from_file(path: &Path, header: &Header) -> Result<ObservationRecord> {
+        Ok(ObservationRecord {
+            path: path.display().to_string(),
+            content_sha256: content_hash(path)?,
+            header: header.clone(),
+        })
+    }
+
+    /// Fraction of channels with weight 0.
+    pub fn masked_fraction(&self) -> f64 {
+        let w = &self.header.weights;
+        if w.is_empty() {
+            return 0.0;
+        }
+        w.iter().filter(|&&x| x == 0.0).count() as f64 / w.len() as f64
+    }
+
+    /// UTC MJD of the first sample and just after the last.
+    pub fn span_mjd(&self) -> (f64, f64) {
+        let start = self.header.start;
+        (
+            start.to_mjd_f64(),
+            start.plus_seconds(self.header.duration_s()).to_mjd_f64(),
+        )
+    }
+}
+
+/// One search run: who searched, with what settings.
+#[derive(Debug, Clone, PartialEq)]
+pub struct RunRecord {
+    /// Version of the burstbook that searched.
+    pub burstbook_version: String,
+    /// The complete search configuration as JSON.
+    pub config_json: String,
+    /// The DM plan used, as JSON.
+    pub dm_plan_json: String,
+    /// Detection S/N threshold, above which the search counts as complete.
+    pub snr_threshold: Option<f64>,
+    /// When the search started (ISO 8601 UTC).
+    pub started_utc: String,
+    /// When it finished (ISO 8601 UTC).
+    pub finished_utc: String,
+    /// Fraction of channel-samples the run masked or clipped, if known.
+    pub fraction_masked: Option<f64>,
+    /// Time samples whose boxcars were searched, if known.
+    pub samples_searched: Option<u64>,
+}
+
+impl RunRecord {
+    /// A run by this burstbook that started at `started_utc` and finished now.
+    pub fn finished_now(
+        config_json: String,
+        dm_plan_json: String,
+        snr_threshold: Option<f64>,
+        started_utc: String,
+    ) -> RunRecord {
+        RunRecord {
+            burstbook_version: env!("CARGO_PKG_VERSION").to_string(),
+            config_json,
+            dm_plan_json,
+            snr_threshold,
+            started_utc,
+            finished_utc: super::now_utc(),
+            fraction_masked: None,
+            samples_searched: None,
+        }
+    }
+}
+
+/// What [`Catalogue::record_search`] did.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum RecordOutcome {
+    /// The run and its candidates were written.
+    Inserted { run_id: i64 },
+    /// This content was already searched with this configuration; nothing written.
+    AlreadyPresent { run_id: i64 },
+}
+
+/// Hex SHA-256 of a configuration: the JSON is parsed and re-serialised with
+/// sorted keys and no spaces first, so formatting does not change the hash.
+///
+/// # Errors
+/// [`Error::Config`] if the text is not JSON.
+pub fn config_hash(config_json: &str) -> Result<String> {
+    let value: serde_json::Value = serde_json::from_str(config_json)
+        .map_err(|e| Error::Config(format!("search configuration is not JSON: {e}")))?;
+    Ok(hex(&Sha256::digest(value.to_string().as_bytes())))
+}
+
+/// Hex SHA-256 of an observation's bytes, read in 1 MiB pieces.
+///
+/// For a native observation (JSON header + `.npy` samples) both files are hashed:
+/// each contributes its length as 8 little-endian bytes, then its bytes. The
+/// samples file is the header's `data` entry (relative to the header), else
+/// `NAME.npy`.
+///
+/// # Errors
+/// A file cannot be read.
+pub fn content_hash(path: &Path) -> Result<String> {
+    let mut hasher = Sha256::new();
+    match Container::detect(path) {
+        Ok(Container::Native) => {
+            hash_file(&mut hasher, path, true)?;
+            hash_file(&mut hasher, &native_data_path(path)?, true)?;
+        }
+        _ => hash_file(&mut hasher, path, false)?,
+    }
+    Ok(hex(&hasher.finalize()))
+}
+
+/// The samples file a native JSON header points at.
+fn native_data_path(header_path: &Path) -> Result<std::path::PathBuf> {
+    let text = std::fs::read_to_string(header_path).map_err(|e| Error::io(header_path, e))?;
+    let json: serde_json::Value = serde_json::from_str(&text)
+        .map_err(|e| Error::bad_input(header_path, format!("bad JSON header: {e}")))?;
+    Ok(match json.get("data").and_then(|d| d.as_str()) {
+        Some(name) => header_path.parent().unwrap_or(Path::new("")).join(name),
+        None => header_path.with_extension("npy"),
+    })
+}
+
+fn hash_file(hasher: &mut Sha256, path: &Path, length_prefix: bool) -> Result<()> {
+    let mut f = std::fs::File::open(path).map_err(|e| Error::io(path, e))?;
+    if length_prefix {
+        let len = f.metadata().map_err(|e| Error::io(path, e))?.len();
+        hasher.update(len.to_le_bytes());
+    }
+    let mut buf = vec![0u8; 1 << 20];
+    loop {
+        let n = f.read(&mut buf).map_err(|e| Error::io(path, e))?;
+        if n == 0 {
+            return Ok(());
+        }
+        hasher.update(&buf[..n]);
+    }
+}
+
+fn hex(bytes: &[u8]) -> String {
+    bytes.iter().map(|b| format!("{b:02x}")).collect()
+}
+
+impl Catalogue {
+    /// Records one search of one observation in a single transaction.
+    ///
+    /// If the same content was already recorded with the same configuration hash,
+    /// nothing is written and [`RecordOutcome::AlreadyPresent`] is returned. The
+    /// observation's source is added to `source` (header position, no reference
+    /// DM) if not yet known, and the searched span becomes exposure for it.
+    ///
+    /// # Errors
+    /// Invalid configuration JSON, or an SQLite failure (then nothing is written).
+    pub fn record_search(
+        &mut self,
+        obs: &ObservationRecord,
+        run: &RunRecord,
+        candidates: &[Candidate],
+    ) -> Result<RecordOutcome> {
+        let config_sha = config_hash(&run.config_json)?;
+        let header_json = serde_json::to_string(&obs.header)
+            .map_err(|e| Error::Config(format!("header not serialisable: {e}")))?;
+        let path = self.path().to_path_buf();
+        let err = move |e| super::sql_error(&path, e);
+        self.write(|tx| {
+            let obs_id = upsert_observation(tx, obs, &header_json).map_err(&err)?;
+            let existing: Option<i64> = tx
+                .query_row(
+                    "SELECT id FROM search_run WHERE observation_id = ?1 AND config_sha256 = ?2",
+                    params![obs_id, config_sha],
+                    |r| r.get(0),
+                )
+                .optional()
+                .map_err(&err)?;
+            if let Some(run_id) = existing {
+                return Ok(RecordOutcome::AlreadyPresent { run_id });
+            }
+            let run_id =
+                insert_run(tx, obs_id, &config_sha, run, candidates.len()).map_err(&err)?;
+            insert_candidates(tx, run_id, candidates).map_err(&err)?;
+            insert_exposure(tx, obs, run_id, run.snr_threshold).map_err(&err)?;
+            Ok(RecordOutcome::Inserted { run_id })
+        })
+    }
+}
+
+pub(super) fn upsert_observation(
+    tx: &Transaction<'_>,
+    obs: &ObservationRecord,
+    header_json: &str,
+) -> rusqlite::Result<i64> {
+    let h = &obs.header;
+    let (start_mjd, _) = obs.span_mjd();
+    tx.execute(
+        "INSERT OR IGNORE INTO observation (content_sha256, path, source_name, ra_deg, dec_deg,
+             site, start_mjd, duration_s, freq_lo_mhz, freq_hi_mhz, masked_fraction,
+             header_json, recorded_utc)
+         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13)",
+        params![
+            obs.content_sha256,
+            obs.path,
+            h.source,
+            h.ra_deg,
+            h.dec_deg,
+            h.site.name,
+            start_mjd,
+            h.duration_s(),
+            h.freq_lo_mhz(),
+            h.freq_hi_mhz(),
+            obs.masked_fraction(),
+            header_json,
+            super::now_utc(),
+        ],
+    )?;
+    tx.query_row(
+        "SELECT id FROM observation WHERE content_sha256 = ?1",
+        [&obs.content_sha256],
+        |r| r.get(0),
+    )
+}
+
+fn insert_run(
+    tx: &Transaction<'_>,
+    obs_id: i64,
+    config_sha: &str,
+    run: &RunRecord,
+    n_candidates: usize,
+) -> rusqlite::Result<i64> {
+    tx.execute(
+        "INSERT INTO search_run (observation_id, config_sha256, burstbook_version, config_json,
+             dm_plan_json, snr_threshold, started_utc, finished_utc, status, n_candidates,
+             fraction_masked, samples_searched)
+         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, 'complete', ?9, ?10, ?11)",
+        params![
+            obs_id,
+            config_sha,
+            run.burstbook_version,
+            run.config_json,
+            run.dm_plan_json,
+            run.snr_threshold,
+            run.started_utc,
+            run.finished_utc,
+            n_candidates as i64,
+            run.fraction_masked,
+            run.samples_searched.map(|n| n as i64),
+        ],
+    )?;
+    Ok(tx.last_insert_rowid())
+}
+
+fn insert_candidates(
+    tx: &Transaction<'_>,
+    run_id: i64,
+    candidates: &[Candidate],
+) -> rusqlite::Result<()> {
+    let mut stmt = tx.prepare_cached(
+        "INSERT INTO candidate (run_id, file, t_inf_s, mjd_inf, dm, dm_lo, dm_hi, width_ms, snr,
+             cluster_size, verdict, reasons_json, snr_dm0_ratio, dm_curve_misfit, band_fraction,
+             modulation_index, fluence_jy_ms)
+         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17)",
+    )?;
+    for c in candidates {
+        let reasons = serde_json::to_string(&c.reasons).expect("strings serialise");
+        stmt.execute(params![
+            run_id,
+            c.file,
+            c.t_inf_s,
+            c.mjd_inf,
+            c.dm,
+            c.dm_lo,
+            c.dm_hi,
+            c.width_ms,
+            c.snr,
+            c.cluster_size as i64,
+            c.verdict.as_str(),
+            reasons,
+            c.features.snr_dm0_ratio,
+            c.features.dm_curve_misfit,
+            c.features.band_fraction,
+            c.features.modulation_index,
+            c.fluence_jy_ms,
+        ])?;
+    }
+    Ok(())
+}
+
+fn insert_exposure(
+    tx: &Transaction<'_>,
+    obs: &ObservationRecord,
+    run_id: i64,
+    snr_threshold: Option<f64>,
+) -> rusqlite::Result<()> {
+    let h = &obs.header;
+    tx.execute(
+        "INSERT OR IGNORE INTO source (name, ra_deg, dec_deg) VALUES (?1, ?2, ?3)",
+        params![h.source, h.ra_deg, h.dec_deg],
+    )?;
+    let (start, end) = obs.span_mjd();
+    if end <= start {
+        return Ok(()); // an empty recording adds no exposure
+    }
+    tx.execute(
+        "INSERT OR IGNORE INTO exposure (source_id, start_mjd, end_mjd, snr_threshold, run_id)
+         SELECT id, ?2, ?3, ?4, ?5 FROM source WHERE name = ?1",
+        params![h.source, start, end, snr_threshold, run_id],
+    )?;
+    Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::catalogue::synthetic::{candidates, observation, run};
+
+    #[test]
+    fn config_hash_ignores_formatting_and_key_order() {
+        let a = config_hash(r#"{"a": 1, "b": [1, 2]}"#).unwrap();
+        let b = config_hash("{\"b\":[1,2],\n \"a\":1}").unwrap();
+        assert_eq!(a, b);
+        assert_ne!(a, config_hash(r#"{"a": 2, "b": [1, 2]}"#).unwrap());
+        assert!(config_hash("not json").is_err());
+    }
+
+    #[test]
+    fn content_hash_of_known_bytes_matches_sha256_test_vector() {
+        // FIPS 180-2 appendix B.1: SHA-256("abc").
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("x.fits");
+        std::fs::write(&p, b"abc").unwrap();
+        assert_eq!(
+            content_hash(&p).unwrap(),
+            "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad"
+        );
+    }
+
+    #[test]
+    fn native_hash_covers_the_npy() {
+        let dir = tempfile::tempdir().unwrap();
+        let j = dir.path().join("o.json");
+        std::fs::write(&j, b"{}").unwrap();
+        std::fs::write(dir.path().join("o.npy"), b"one").unwrap();
+        let h1 = content_hash(&j).unwrap();
+        std::fs::write(dir.path().join("o.npy"), b"two").unwrap();
+        assert_ne!(h1, content_hash(&j).unwrap());
+        // The header may name its samples file.
+        std::fs::write(&j, br#"{"data": "samples.npy"}"#).unwrap();
+        assert!(content_hash(&j).is_err());
+        std::fs::write(dir.path().join("samples.npy"), b"two").unwrap();
+        let h2 = content_hash(&j).unwrap();
+        std::fs::write(dir.path().join("samples.npy"), b"three").unwrap();
+        assert_ne!(h2, content_hash(&j).unwrap());
+    }
+
+    #[test]
+    fn same_content_and_config_is_recorded_once() {
+        let dir = tempfile::tempdir().unwrap();
+        let mut cat = Catalogue::open(&dir.path().join("c.sqlite")).unwrap();
+        let obs = observation("A", 1);
+        let cands = candidates(&obs, 5, 7);
+        let first = cat.record_search(&obs, &run(8.0), &cands).unwrap();
+        assert!(matches!(first, RecordOutcome::Inserted { .. }));
+        // Same config, reformatted JSON: still the same run.
+        let mut again = run(8.0);
+        again.config_json = again.config_json.replace(':', " : ");
+        let second = cat.record_search(&obs, &again, &cands).unwrap();
+        assert!(matches!(second, RecordOutcome::AlreadyPresent { .. }));
+        let n: i64 = cat
+            .conn()
+            .query_row("SELECT count(*) FROM candidate", [], |r| r.get(0))
+            .unwrap();
+        assert_eq!(n, 5);
+        // A different configuration is a new run of the same observation.
+        let mut other = run(6.0);
+        other.fraction_masked = Some(0.125);
+        other.samples_searched = Some(3_686_400);
+        let third = cat.record_search(&obs, &other, &cands).unwrap();
+        assert!(matches!(third, RecordOutcome::Inserted { .. }));
+        let (n_obs, n_runs): (i64, i64) = cat
+            .conn()
+            .query_row(
+                "SELECT (SELECT count(*) FROM observation), (SELECT count(*) FROM search_run)",
+                [],
+                |r| Ok((r.get(0)?, r.get(1)?)),
+            )
+            .unwrap();
+        assert_eq!((n_obs, n_runs), (1, 2));
+        let stats: (Option<f64>, Option<i64>) = cat
+            .conn()
+            .query_row(
+                "SELECT fraction_masked, samples_searched FROM search_run WHERE snr_threshold = 6",
+                [],
+                |r| Ok((r.get(0)?, r.get(1)?)),
+            )
+            .unwrap();
+        assert_eq!(stats, (Some(0.125), Some(3_686_400)));
+    }
+
+    #[test]
+    fn candidates_round_trip_every_column() {
+        let dir = tempfile::tempdir().unwrap();
+        let mut cat = Catalogue::open(&dir.path().join("c.sqlite")).unwrap();
+        let obs = observation("A", 2);
+        let cands = candidates(&obs, 3, 11);
+        cat.record_search(&obs, &run(8.0), &cands).unwrap();
+        let back = cat
+            .candidates(&crate::catalogue::CandidateFilter::default())
+            .unwrap();
+        let back: Vec<Candidate> = back.into_iter().map(|r| r.candidate).collect();
+        let mut expected = cands;
+        expected.sort_by(|a, b| a.mjd_inf.total_cmp(&b.mjd_inf));
+        assert_eq!(back, expected);
+    }
+}

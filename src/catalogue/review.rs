@@ -1,0 +1,285 @@
+//! Human review: labels kept as history, and promotion of candidates to bursts of a
+//! source (by hand or by position and DM).
+
+use rusqlite::{OptionalExtension, Transaction, params};
+use serde::Serialize;
+
+use super::{Catalogue, SourceRecord, catalogue_error};
+use crate::error::{Error, Result};
+
+/// One judgement of one candidate. Labels are appended, never changed.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Label {
+    /// Candidate id.
+    pub candidate_id: i64,
+    /// The label, free text such as `burst`, `rfi`, `noise`.
+    pub label: String,
+    /// Who judged.
+    pub reviewer: String,
+    /// When (ISO 8601 UTC).
+    pub labelled_utc: String,
+    /// Free text.
+    pub comment: String,
+}
+
+/// How close a candidate must be to a source to be assigned to it automatically.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct AssignTolerance {
+    /// Largest angular distance between the observation pointing and the source, degrees.
+    pub radius_deg: f64,
+    /// Largest |DM − reference DM| in pc cm⁻³.
+    pub dm: f64,
+}
+
+/// What promoting a candidate did.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Promotion {
+    /// The burst's id.
+    pub burst_id: i64,
+    /// The source it belongs to.
+    pub source: String,
+    /// False when the candidate already was a burst (nothing changed).
+    pub new: bool,
+}
+
+impl Catalogue {
+    /// Appends the same label to each candidate in `ids`, in one transaction.
+    ///
+    /// # Errors
+    /// An id that is not in the catalogue (then nothing is labelled), an empty
+    /// label, or an SQLite failure.
+    pub fn label(&mut self, ids: &[i64], label: &str, reviewer: &str, comment: &str) -> Result<()> {
+        if label.trim().is_empty() {
+            return Err(Error::Config("label is empty".into()));
+        }
+        let path = self.path().to_path_buf();
+        let now = super::now_utc();
+        self.write(|tx| {
+            let e = |e| super::sql_error(&path, e);
+            let mut exists = tx
+                .prepare_cached("SELECT 1 FROM candidate WHERE id = ?1")
+                .map_err(e)?;
+            let mut insert = tx
+                .prepare_cached(
+                    "INSERT INTO review_label (candidate_id, label, reviewer, labelled_utc, comment)
+                     VALUES (?1, ?2, ?3, ?4, ?5)",
+                )
+                .map_err(e)?;
+            for &id in ids {
+                if !exists.exists([id]).map_err(e)? {
+                    return Err(catalogue_error(
+                        &path,
+                        format!("has no candidate {id}; nothing labelled"),
+                    ));
+                }
+                insert
+                    .execute(params![id, label, reviewer, now, comment])
+                    .map_err(e)?;
+            }
+            Ok(())
+        })
+    }
+
+    /// Every label given to candidate `id`, oldest first.
+    ///
+    /// # Errors
+    /// An SQLite failure.
+    pub fn label_history(&self, id: i64) -> Result<Vec<Label>> {
+        let mut stmt = self
+            .conn()
+            .prepare(
+                "SELECT candidate_id, label, reviewer, labelled_utc, comment FROM review_label
+                 WHERE candidate_id = ?1 ORDER BY id",
+            )
+            .map_err(|e| self.err(e))?;
+        let rows = stmt
+            .query_map([id], |r| {
+                Ok(Label {
+                    candidate_id: r.get(0)?,
+                    label: r.get(1)?,
+                    reviewer: r.get(2)?,
+                    labelled_utc: r.get(3)?,
+                    comment: r.get(4)?,
+                })
+            })
+            .map_err(|e| self.err(e))?;
+        rows.collect::<rusqlite::Result<_>>()
+            .map_err(|e| self.err(e))
+    }
+
+    /// Makes candidate `id` a burst of `source`, or, when `source` is `None`, of the
+    /// single source with a reference DM that lies within `tol` of the candidate's
+    /// pointing and DM. A candidate already promoted is left as it is.
+    ///
+    /// # Errors
+    /// Unknown candidate or source; no source or several sources within tolerance.
+    pub fn promote(
+        &mut self,
+        id: i64,
+        source: Option<&str>,
+        tol: AssignTolerance,
+    ) -> Result<Promotion> {
+        let chosen = match source {
+            Some(name) => self.source(name)?,
+            None => self.match_source(id, tol)?,
+        };
+        let path = self.path().to_path_buf();
+        self.write(|tx| promote_in(tx, id, &chosen).map_err(|e| super::sql_error(&path, e)))
+    }
+
+    /// The unique source within `tol` of candidate `id`.
+    fn match_source(&self, id: i64, tol: AssignTolerance) -> Result<SourceRecord> {
+        let (ra, dec, dm): (f64, f64, f64) = self
+            .conn()
+            .query_row(
+                "SELECT o.ra_deg, o.dec_deg, c.dm FROM candidate c
+                 JOIN search_run r ON r.id = c.run_id JOIN observation o ON o.id = r.observation_id
+                 WHERE c.id = ?1",
+                [id],
+                |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)),
+            )
+            .optional()
+            .map_err(|e| self.err(e))?
+            .ok_or_else(|| catalogue_error(self.path(), format!("has no candidate {id}")))?;
+        let near: Vec<SourceRecord> = self
+            .sources()?
+            .into_iter()
+            .filter(|s| s.separation_deg(ra, dec) <= tol.radius_deg)
+            .filter(|s| s.dm_ref.is_some_and(|d| (d - dm).abs() <= tol.dm))
+            .collect();
+        match near.len() {
+            1 => Ok(near.into_iter().next().expect("one element")),
+            0 => Err(catalogue_error(
+                self.path(),
+                format!(
+                    "no source with a reference DM lies within {} deg and {} pc cm^-3 of candidate {id} (DM {dm:.2}); name one with --source",
+                    tol.radius_deg, tol.dm
+                ),
+            )),
+            _ => Err(catalogue_error(
+                self.path(),
+                format!(
+                    "candidate {id} matches several sources ({}); name one with --source",
+                    near.iter()
+                        .map(|s| s.name.as_str())
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                ),
+            )),
+        }
+    }
+}
+
+fn promote_in(tx: &Transaction<'_>, id: i64, source: &SourceRecord) -> rusqlite::Result<Promotion> {
+    let existing: Option<(i64, String)> = tx
+        .query_row(
+            "SELECT b.id, s.name FROM burst b JOIN source s ON s.id = b.source_id WHERE b.candidate_id = ?1",
+            [id],
+            |r| Ok((r.get(0)?, r.get(1)?)),
+        )
+        .optional()?;
+    if let Some((burst_id, source)) = existing {
+        return Ok(Promotion {
+            burst_id,
+            source,
+            new: false,
+        });
+    }
+    let n = tx.execute(
+        "INSERT INTO burst (candidate_id, source_id, mjd_utc, snr, width_ms, dm, fluence_jy_ms, promoted_utc)
+         SELECT id, ?2, mjd_inf, snr, width_ms, dm, fluence_jy_ms, ?3 FROM candidate WHERE id = ?1",
+        params![id, source.id, super::now_utc()],
+    )?;
+    if n == 0 {
+        return Err(rusqlite::Error::QueryReturnedNoRows);
+    }
+    Ok(Promotion {
+        burst_id: tx.last_insert_rowid(),
+        source: source.name.clone(),
+        new: true,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::catalogue::synthetic::{candidates, observation, run};
+    use crate::catalogue::{BurstFilter, CandidateFilter};
+
+    const TOL: AssignTolerance = AssignTolerance {
+        radius_deg: 0.5,
+        dm: 5.0,
+    };
+
+    fn setup() -> (tempfile::TempDir, Catalogue, Vec<i64>) {
+        let dir = tempfile::tempdir().unwrap();
+        let mut cat = Catalogue::open(&dir.path().join("c.sqlite")).unwrap();
+        let obs = observation("FIELD-7", 3);
+        cat.record_search(&obs, &run(7.0), &candidates(&obs, 10, 3))
+            .unwrap();
+        let ids = cat
+            .candidates(&CandidateFilter::default())
+            .unwrap()
+            .iter()
+            .map(|r| r.id)
+            .collect();
+        (dir, cat, ids)
+    }
+
+    #[test]
+    fn labels_are_history_and_the_newest_one_filters() {
+        let (_d, mut cat, ids) = setup();
+        cat.label(&ids[..3], "burst", "ana", "bright").unwrap();
+        cat.label(&ids[..1], "rfi", "ben", "on second look")
+            .unwrap();
+        let h = cat.label_history(ids[0]).unwrap();
+        assert_eq!(
+            h.iter().map(|l| l.label.as_str()).collect::<Vec<_>>(),
+            ["burst", "rfi"]
+        );
+        let f = |l: &str| CandidateFilter {
+            label: Some(l.into()),
+            ..Default::default()
+        };
+        assert_eq!(cat.candidates(&f("burst")).unwrap().len(), 2);
+        assert_eq!(cat.candidates(&f("rfi")).unwrap().len(), 1);
+        assert_eq!(cat.candidates(&f("none")).unwrap().len(), ids.len() - 3);
+        // An unknown id labels nothing at all.
+        assert!(cat.label(&[ids[5], 999_999], "burst", "ana", "").is_err());
+        assert!(cat.label_history(ids[5]).unwrap().is_empty());
+    }
+
+    #[test]
+    fn promotion_by_position_and_dm_picks_the_unique_match() {
+        let (_d, mut cat, ids) = setup();
+        let dm = cat.candidates(&CandidateFilter::default()).unwrap()[0]
+            .candidate
+            .dm;
+        let src = |name: &str, ra: f64, dm_ref: f64| SourceRecord {
+            id: 0,
+            name: name.into(),
+            ra_deg: ra,
+            dec_deg: -12.5,
+            dm_ref: Some(dm_ref),
+            notes: String::new(),
+        };
+        // The synthetic pointing is RA 123.25, Dec -12.5.
+        cat.upsert_source(&src("NEAR", 123.3, dm + 2.0)).unwrap();
+        cat.upsert_source(&src("FAR", 130.0, dm)).unwrap();
+        cat.upsert_source(&src("WRONG-DM", 123.25, dm + 50.0))
+            .unwrap();
+        let p = cat.promote(ids[0], None, TOL).unwrap();
+        assert_eq!((p.source.as_str(), p.new), ("NEAR", true));
+        // Promoting again changes nothing.
+        let again = cat.promote(ids[0], Some("FAR"), TOL).unwrap();
+        assert_eq!((again.burst_id, again.new), (p.burst_id, false));
+        let b = cat.bursts(&BurstFilter::default()).unwrap();
+        assert_eq!(b.len(), 1);
+        assert_eq!((b[0].source.as_str(), b[0].dm), ("NEAR", dm));
+        // Two matches are refused rather than guessed.
+        cat.upsert_source(&src("NEAR-TWIN", 123.2, dm - 1.0))
+            .unwrap();
+        let err = cat.promote(ids[1], None, AssignTolerance { dm: 1e4, ..TOL });
+        assert!(err.unwrap_err().to_string().contains("several sources"));
+    }
+}

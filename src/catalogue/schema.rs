@@ -1,0 +1,126 @@
+//! Forward-only schema migrations kept as SQL files in `migrations/`.
+//!
+//! Migration `i` (1-based) upgrades a catalogue from version `i - 1` to `i`; the
+//! version lives in `PRAGMA user_version`, and `PRAGMA application_id` marks the
+//! file as a burstbook catalogue.
+
+use rusqlite::Connection;
+
+use super::{Catalogue, catalogue_error};
+use crate::error::Result;
+
+/// The migrations, in order. Never edit a shipped file: add a new one.
+pub(crate) const MIGRATIONS: &[&str] = &[
+    include_str!("../../migrations/0001_core.sql"),
+    include_str!("../../migrations/0002_review_and_completeness.sql"),
+    include_str!("../../migrations/0003_run_statistics.sql"),
+];
+
+/// The schema version this burstbook writes.
+pub const SCHEMA_VERSION: i64 = MIGRATIONS.len() as i64;
+
+/// `PRAGMA application_id` of a burstbook catalogue: ASCII "BbCt".
+pub const APPLICATION_ID: i64 = 0x4262_4374;
+
+/// Brings the catalogue to [`SCHEMA_VERSION`], refusing foreign or newer files.
+pub(crate) fn upgrade(cat: &mut Catalogue) -> Result<()> {
+    let (version, _, _) = read_identity(cat)?;
+    if version == SCHEMA_VERSION {
+        return Ok(());
+    }
+    cat.write(|tx| {
+        // Re-read inside the write lock: another process may have upgraded meanwhile.
+        let now: i64 = tx
+            .query_row("PRAGMA user_version", [], |r| r.get(0))
+            .map_err(|e| cat_err(tx, e))?;
+        apply_from(tx, now)
+    })
+    .map_err(|e| match e {
+        crate::Error::Catalogue { path, msg } => crate::Error::Catalogue {
+            path,
+            msg: format!("{msg} (while upgrading the schema; the file is unchanged)"),
+        },
+        other => other,
+    })
+}
+
+fn cat_err(tx: &Connection, e: rusqlite::Error) -> crate::Error {
+    let path = tx.path().unwrap_or("").to_string();
+    super::sql_error(std::path::Path::new(&path), e)
+}
+
+/// Applies migrations after `from` on an open transaction.
+pub(crate) fn apply_from(tx: &Connection, from: i64) -> Result<()> {
+    for (i, sql) in MIGRATIONS.iter().enumerate().skip(from.max(0) as usize) {
+        tx.execute_batch(sql).map_err(|e| cat_err(tx, e))?;
+        tx.pragma_update(None, "user_version", i as i64 + 1)
+            .map_err(|e| cat_err(tx, e))?;
+    }
+    tx.pragma_update(None, "application_id", APPLICATION_ID)
+        .map_err(|e| cat_err(tx, e))
+}
+
+fn read_identity(cat: &Catalogue) -> Result<(i64, i64, i64)> {
+    let c = cat.conn();
+    let version = c
+        .query_row("PRAGMA user_version", [], |r| r.get(0))
+        .map_err(|e| cat.err(e))?;
+    let app_id = c
+        .query_row("PRAGMA application_id", [], |r| r.get(0))
+        .map_err(|e| cat.err(e))?;
+    let n_tables = c
+        .query_row(
+            "SELECT count(*) FROM sqlite_master WHERE type = 'table'",
+            [],
+            |r| r.get(0),
+        )
+        .map_err(|e| cat.err(e))?;
+    Ok((version, app_id, n_tables))
+}
+
+/// Refuses a foreign SQLite file or one from a newer burstbook; reads only.
+pub(crate) fn check_identity(cat: &Catalogue) -> Result<()> {
+    let (version, app_id, n_tables) = read_identity(cat)?;
+    let fresh = version == 0 && app_id == 0 && n_tables == 0;
+    if !fresh && app_id != APPLICATION_ID {
+        return Err(catalogue_error(
+            cat.path(),
+            "is an SQLite database but not a burstbook catalogue; refusing to change it",
+        ));
+    }
+    if version > SCHEMA_VERSION {
+        return Err(catalogue_error(
+            cat.path(),
+            format!(
+                "has schema version {version}, newer than this burstbook {} understands ({SCHEMA_VERSION}); use a newer burstbook",
+                env!("CARGO_PKG_VERSION")
+            ),
+        ));
+    }
+    Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn migrations_apply_in_order_and_set_version() {
+        let conn = Connection::open_in_memory().unwrap();
+        apply_from(&conn, 0).unwrap();
+        let v: i64 = conn
+            .query_row("PRAGMA user_version", [], |r| r.get(0))
+            .unwrap();
+        assert_eq!(v, SCHEMA_VERSION);
+        // Applying from the current version is a no-op.
+        apply_from(&conn, v).unwrap();
+        let n: i64 = conn
+            .query_row(
+                "SELECT count(*) FROM sqlite_master WHERE name = 'review_label'",
+                [],
+                |r| r.get(0),
+            )
+            .unwrap();
+        assert_eq!(n, 1);
+    }
+}

@@ -1,0 +1,97 @@
+//! Invented catalogue content for tests, benchmarks and the hidden
+//! `burstbook book fill-synthetic` command that the crash and concurrency tests
+//! drive as a separate process. Nothing here touches real data.
+
+use rand::{Rng, SeedableRng};
+use rand_chacha::ChaCha8Rng;
+use sha2::{Digest, Sha256};
+
+use super::{ObservationRecord, RunRecord};
+use crate::candidate::{Candidate, TriageFeatures, Verdict};
+use crate::obs::{Header, Site, UtcEpoch};
+
+/// A one-hour observation of `source` at an invented site; `seed` picks its start
+/// day and its content hash, so different seeds are different files.
+pub fn observation(source: &str, seed: u64) -> ObservationRecord {
+    let n_chan = 64;
+    let bw = 400.0 / n_chan as f64;
+    let mut weights = vec![1.0f32; n_chan];
+    weights[3] = 0.0;
+    let header = Header {
+        source: source.to_string(),
+        telescope: "Heronsgate 40 m".into(),
+        ra_deg: 123.25,
+        dec_deg: -12.5,
+        site: Site {
+            name: "Heronsgate".into(),
+            lon_deg: 7.5,
+            lat_deg: 47.25,
+            height_m: 820.0,
+        },
+        start: UtcEpoch::new(60000 + seed as i64, 3600.0),
+        tsamp_s: 1.0 / 1024.0,
+        freqs_mhz: (0..n_chan)
+            .map(|i| 1600.0 - bw * (i as f64 + 0.5))
+            .collect(),
+        chan_bw_mhz: bw,
+        weights,
+        n_samples: 3600 * 1024,
+        nbits: 8,
+        sefd_jy: Some(20.0),
+        beam: None,
+    };
+    let hash = Sha256::digest(format!("synthetic observation {source} {seed}").as_bytes());
+    ObservationRecord {
+        path: format!("synthetic/{source}-{seed}.fits"),
+        content_sha256: hash.iter().map(|b| format!("{b:02x}")).collect(),
+        header,
+    }
+}
+
+/// `n` seeded candidates inside `obs`, DMs in 10..1000 pc cm⁻³, S/N 6..50.
+pub fn candidates(obs: &ObservationRecord, n: usize, seed: u64) -> Vec<Candidate> {
+    let mut rng = ChaCha8Rng::seed_from_u64(seed);
+    let duration_s = obs.header.duration_s();
+    let start_mjd = obs.span_mjd().0;
+    (0..n)
+        .map(|_| {
+            let t = rng.random_range(0.0..duration_s);
+            let dm = rng.random_range(10.0..1000.0);
+            let verdict = match rng.random_range(0..3) {
+                0 => Verdict::Astrophysical,
+                1 => Verdict::Rfi,
+                _ => Verdict::Unsure,
+            };
+            Candidate {
+                file: obs.path.clone(),
+                t_inf_s: t,
+                mjd_inf: start_mjd + t / crate::units::SECONDS_PER_DAY,
+                dm,
+                dm_lo: dm - 1.5,
+                dm_hi: dm + 2.0,
+                width_ms: rng.random_range(0.5..20.0),
+                snr: rng.random_range(6.0..50.0),
+                cluster_size: rng.random_range(1..40),
+                verdict,
+                reasons: vec![format!("synthetic {}", verdict.as_str())],
+                features: TriageFeatures {
+                    snr_dm0_ratio: rng.random_range(0.0..1.0),
+                    dm_curve_misfit: rng.random_range(0.0..0.5),
+                    band_fraction: rng.random_range(0.0..1.0),
+                    modulation_index: rng.random_range(0.0..3.0),
+                },
+                fluence_jy_ms: Some(rng.random_range(0.1..10.0)),
+            }
+        })
+        .collect()
+}
+
+/// A run record whose configuration differs only by its S/N threshold.
+pub fn run(snr_threshold: f64) -> RunRecord {
+    RunRecord::finished_now(
+        format!(r#"{{"snr_threshold":{snr_threshold},"dm_max":1000.0,"widths_ms":[1,2,4,8]}}"#),
+        r#"{"steps":[{"dms":[0.0,1.0],"downsample":1}]}"#.into(),
+        Some(snr_threshold),
+        super::now_utc(),
+    )
+}

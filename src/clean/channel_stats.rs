@@ -1,0 +1,156 @@
+//! Channel masking from robust statistics: a channel whose mean or standard deviation
+//! stands out from its neighbours in frequency by more than a threshold in robust σ
+//! (1.4826 × MAD across channels) is masked. Comparing with a running median over
+//! neighbouring channels keeps a smooth bandpass from being mistaken for interference
+//! (common practice).
+
+use ndarray::ArrayView2;
+
+use crate::robust::{MAD_TO_SIGMA, median_in_place};
+
+/// Per-channel mean and standard deviation of one block.
+#[derive(Debug, Clone)]
+pub struct ChannelStats {
+    /// Mean of each channel.
+    pub mean: Vec<f64>,
+    /// Standard deviation of each channel.
+    pub std: Vec<f64>,
+}
+
+impl ChannelStats {
+    /// Measures a raw block laid out `[time, channel]`.
+    pub fn measure(raw: ArrayView2<'_, f32>) -> Self {
+        let (n_time, n_chan) = raw.dim();
+        let mut s1 = vec![0.0f64; n_chan];
+        let mut s2 = vec![0.0f64; n_chan];
+        for row in raw.rows() {
+            for ((a, b), &v) in s1.iter_mut().zip(s2.iter_mut()).zip(row.iter()) {
+                let v = f64::from(v);
+                *a += v;
+                *b += v * v;
+            }
+        }
+        let n = n_time.max(1) as f64;
+        let mean: Vec<f64> = s1.iter().map(|s| s / n).collect();
+        let std = s2
+            .iter()
+            .zip(&mean)
+            .map(|(s, m)| (s / n - m * m).max(0.0).sqrt())
+            .collect();
+        ChannelStats { mean, std }
+    }
+}
+
+/// Masks channels whose mean or standard deviation is an outlier; also masks channels
+/// with zero variance (dead). Returns the number newly masked.
+pub fn flag_outliers(stats: &ChannelStats, mask: &mut [bool], threshold: f64) -> usize {
+    let mut flags = outliers(&stats.mean, mask, threshold);
+    for (f, o) in flags.iter_mut().zip(outliers(&stats.std, mask, threshold)) {
+        *f |= o;
+    }
+    let mut newly = 0;
+    for ((m, f), &sd) in mask.iter_mut().zip(flags).zip(&stats.std) {
+        if !*m && (f || sd == 0.0) {
+            *m = true;
+            newly += 1;
+        }
+    }
+    newly
+}
+
+/// Half-width in channels of the neighbourhood used to predict a channel.
+fn half_window(n_chan: usize) -> usize {
+    (n_chan / 16).clamp(4, 16)
+}
+
+/// A channel's value predicted from its unmasked neighbours, and the noise of the
+/// prediction error relative to one channel's noise. Each symmetric pair (c − d, c + d)
+/// predicts by linear interpolation, exact for a linear bandpass; near the band edges
+/// one-sided pairs (c ± d, c ± 2d) extrapolate. The median over pairs resists a hot
+/// neighbour.
+fn predict(
+    values: &[f64],
+    mask: &[bool],
+    c: usize,
+    h: usize,
+    scratch: &mut Vec<f32>,
+) -> Option<(f32, f64)> {
+    let ok = |j: isize| j >= 0 && (j as usize) < values.len() && !mask[j as usize];
+    let v = |j: isize| values[j as usize];
+    let ci = c as isize;
+    scratch.clear();
+    for d in 1..=h as isize {
+        if ok(ci - d) && ok(ci + d) {
+            scratch.push((0.5 * (v(ci - d) + v(ci + d))) as f32);
+        }
+    }
+    if !scratch.is_empty() {
+        // Prediction noise √½; the median of several pairs is a little noisier.
+        return Some((median_in_place(scratch), 1.5f64.sqrt()));
+    }
+    for d in 1..=h as isize {
+        for s in [-1, 1] {
+            if ok(ci + s * d) && ok(ci + 2 * s * d) {
+                scratch.push((2.0 * v(ci + s * d) - v(ci + 2 * s * d)) as f32);
+            }
+        }
+    }
+    (!scratch.is_empty()).then(|| (median_in_place(scratch), 6f64.sqrt()))
+}
+
+/// `true` for unmasked channels whose value departs from its prediction by more than
+/// `threshold` robust σ of all such departures (each scaled by its prediction noise).
+fn outliers(values: &[f64], mask: &[bool], threshold: f64) -> Vec<bool> {
+    let n = values.len();
+    let h = half_window(n);
+    let mut scratch = Vec::new();
+    let resid: Vec<Option<f32>> = (0..n)
+        .map(|c| {
+            if mask[c] {
+                return None;
+            }
+            let (pred, noise) = predict(values, mask, c, h, &mut scratch)?;
+            Some(((values[c] - f64::from(pred)) / noise) as f32)
+        })
+        .collect();
+    let mut abs: Vec<f32> = resid.iter().flatten().map(|r| r.abs()).collect();
+    let sigma = f64::from(median_in_place(&mut abs)) * MAD_TO_SIGMA;
+    if !(sigma > 0.0) {
+        return vec![false; n];
+    }
+    resid
+        .iter()
+        .map(|r| r.is_some_and(|r| f64::from(r.abs()) > threshold * sigma))
+        .collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use ndarray::Array2;
+    use rand::SeedableRng;
+    use rand_distr::{Distribution, Normal};
+
+    #[test]
+    fn flags_hot_noisy_and_dead_channels_but_not_a_bandpass() {
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(3);
+        let n_chan = 64;
+        // A bandpass rising from 50 to 150 across the band, σ = 5 % of the level.
+        let raw = Array2::from_shape_fn((2000, n_chan), |(_, c)| {
+            let level = 50.0 + 100.0 * c as f32 / n_chan as f32;
+            let sd = match c {
+                20 => 0.25 * level, // noisy channel
+                40 => 0.0,          // dead channel
+                _ => 0.05 * level,
+            };
+            let offset = if c == 30 { 20.0 } else { 0.0 }; // hot channel
+            level + offset + Normal::new(0.0, sd.max(1e-12)).unwrap().sample(&mut rng)
+        });
+        let stats = ChannelStats::measure(raw.view());
+        let mut mask = vec![false; n_chan];
+        let n = flag_outliers(&stats, &mut mask, 5.0);
+        let flagged: Vec<usize> = (0..n_chan).filter(|&c| mask[c]).collect();
+        assert_eq!(flagged, vec![20, 30, 40]);
+        assert_eq!(n, 3);
+    }
+}

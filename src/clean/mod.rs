@@ -1,0 +1,129 @@
+//! Interference excision, one file per step. All steps share one channel mask
+//! (`true` = masked) per block.
+//!
+//! Order within a block (see `search::driver`): user and header masks
+//! ([`user_mask`]) → iterated channel statistics ([`channel_stats`]) and spectral
+//! kurtosis ([`kurtosis`]) on the raw samples → per-channel normalisation → clipping
+//! of strong broadband impulses ([`impulse`]) → optional zero-DM filter ([`zero_dm`]).
+
+pub mod channel_stats;
+pub mod impulse;
+pub mod kurtosis;
+pub mod user_mask;
+pub mod zero_dm;
+
+use ndarray::ArrayView2;
+use serde::{Deserialize, Serialize};
+
+use crate::error::{Error, Result};
+
+/// Settings of every excision step.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(default, deny_unknown_fields)]
+pub struct CleanConfig {
+    /// Frequency ranges `[lo, hi]` in MHz to mask always (a channel is masked if its
+    /// centre lies inside a range).
+    pub masks_mhz: Vec<[f64; 2]>,
+    /// Threshold in robust σ for a channel's mean or standard deviation to differ from
+    /// its neighbours' before the channel is masked.
+    pub stat_threshold: f64,
+    /// Whether to apply the spectral-kurtosis test.
+    pub kurtosis: bool,
+    /// Samples per spectral-kurtosis estimate (M).
+    pub kurtosis_m: usize,
+    /// N·d of the generalised estimator (raw spectra summed per sample times the shape
+    /// factor); estimated from the data when absent.
+    pub kurtosis_nd: Option<f64>,
+    /// Probability in each tail of the kurtosis distribution for pure noise at which
+    /// an estimate is flagged (0.0013499 is the 3σ-equivalent per side).
+    pub kurtosis_tail_probability: f64,
+    /// Fraction of a channel's kurtosis estimates that must be flagged to mask it.
+    pub kurtosis_flag_fraction: f64,
+    /// Rounds of (statistics, kurtosis) flagging; stops early when nothing changes.
+    pub max_iterations: usize,
+    /// Robust S/N of a single time sample summed over the band above which the sample
+    /// is zeroed in every channel (0 disables clipping).
+    pub clip_threshold: f64,
+    /// Subtract the band average of every time sample (Eatough, Keane & Lyne 2009).
+    pub zero_dm: bool,
+}
+
+impl Default for CleanConfig {
+    fn default() -> Self {
+        CleanConfig {
+            masks_mhz: Vec::new(),
+            stat_threshold: 5.0,
+            kurtosis: true,
+            kurtosis_m: 512,
+            kurtosis_nd: None,
+            kurtosis_tail_probability: 0.0013499,
+            kurtosis_flag_fraction: 0.25,
+            max_iterations: 3,
+            clip_threshold: 6.0,
+            zero_dm: false,
+        }
+    }
+}
+
+impl CleanConfig {
+    /// Checks ranges.
+    ///
+    /// # Errors
+    /// [`Error::Config`] naming the offending value.
+    pub fn validate(&self) -> Result<()> {
+        for r in &self.masks_mhz {
+            if !(r[0].is_finite() && r[1].is_finite() && r[0] <= r[1]) {
+                return Err(Error::Config(format!(
+                    "mask range {}..{} MHz must have lo <= hi",
+                    r[0], r[1]
+                )));
+            }
+        }
+        if !(self.stat_threshold > 0.0) {
+            return Err(Error::Config("stat_threshold must be positive".into()));
+        }
+        if self.kurtosis_m < 16 {
+            return Err(Error::Config("kurtosis_m must be at least 16".into()));
+        }
+        if let Some(nd) = self.kurtosis_nd
+            && !(nd > 0.0)
+        {
+            return Err(Error::Config("kurtosis_nd must be positive".into()));
+        }
+        if !(self.kurtosis_tail_probability > 0.0 && self.kurtosis_tail_probability < 0.5) {
+            return Err(Error::Config(
+                "kurtosis_tail_probability must be in (0, 0.5)".into(),
+            ));
+        }
+        if !(self.clip_threshold >= 0.0) {
+            return Err(Error::Config("clip_threshold must be >= 0".into()));
+        }
+        Ok(())
+    }
+}
+
+/// Flags channels of a raw block (`[time, channel]`) by their statistics and spectral
+/// kurtosis, repeating until nothing new is flagged or `max_iterations` is reached.
+/// Returns the number of channels newly masked.
+pub fn flag_channels(raw: ArrayView2<'_, f32>, mask: &mut [bool], config: &CleanConfig) -> usize {
+    let before = mask.iter().filter(|&&m| m).count();
+    let stats = channel_stats::ChannelStats::measure(raw);
+    let sk = config
+        .kurtosis
+        .then(|| kurtosis::ChannelKurtosis::measure(raw, config.kurtosis_m));
+    for _ in 0..config.max_iterations {
+        let mut changed = channel_stats::flag_outliers(&stats, mask, config.stat_threshold);
+        if let Some(sk) = &sk {
+            changed += sk.flag(
+                mask,
+                config.kurtosis_nd,
+                config.kurtosis_tail_probability,
+                config.kurtosis_flag_fraction,
+            );
+        }
+        if changed == 0 {
+            break;
+        }
+    }
+    mask.iter().filter(|&&m| m).count() - before
+}

@@ -1,0 +1,92 @@
+//! `burstbook book ...`: the burst catalogue from the command line.
+
+mod exposure;
+mod output;
+mod query;
+mod review;
+mod sources;
+mod summary;
+mod synthetic;
+mod voevent;
+
+use std::path::PathBuf;
+
+use burstbook::catalogue::Catalogue;
+use clap::Subcommand;
+
+/// Arguments of `book`.
+#[derive(clap::Args, Debug)]
+#[command(after_help = "\
+Examples:
+  burstbook book source add FIELD-7 --ra 123.25 --dec -12.5 --dm 351
+  burstbook book candidates --source FIELD-7 --dm-min 300 --dm-max 400 --snr-min 8
+  burstbook book label 12 15 --label burst --comment 'clear sweep'
+  burstbook book promote --label burst
+  burstbook book summary FIELD-7 --snr-min 8
+  burstbook book voevent 3 --out burst-3.xml")]
+pub struct Args {
+    /// Catalogue file [default: $BURSTBOOK_CATALOGUE, else ./burstbook.sqlite].
+    #[arg(long, global = true, value_name = "PATH")]
+    catalogue: Option<PathBuf>,
+    /// Seconds to wait for another process writing the catalogue before giving up.
+    #[arg(long, global = true, default_value_t = 10.0, value_name = "SECONDS")]
+    lock_wait: f64,
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand, Debug)]
+enum Command {
+    /// List candidates matching filters, as a table, CSV or JSON.
+    Candidates(query::CandidatesArgs),
+    /// List or export confirmed bursts, as a table, CSV or JSON.
+    Bursts(query::BurstsArgs),
+    /// Give one or many candidates a review label (kept as history).
+    Label(review::LabelArgs),
+    /// Show every label a candidate was given.
+    History(review::HistoryArgs),
+    /// Promote candidates to bursts of a source (by hand or by position and DM).
+    Promote(review::PromoteArgs),
+    /// Add, update or list sources.
+    #[command(subcommand)]
+    Source(sources::SourceCommand),
+    /// Import or export exposure intervals as CSV.
+    #[command(subcommand)]
+    Exposure(exposure::ExposureCommand),
+    /// Per-source bursts, exposure, burst rate with confidence limits, DM and fluence.
+    Summary(summary::SummaryArgs),
+    /// Write one burst as a VOEvent 2.0 XML packet.
+    Voevent(voevent::VoeventArgs),
+    /// Fill the catalogue with invented searches (for crash, concurrency and speed tests).
+    #[command(hide = true)]
+    FillSynthetic(synthetic::FillArgs),
+}
+
+pub fn run(args: Args) -> anyhow::Result<()> {
+    let path = Catalogue::resolve_path(args.catalogue.as_deref());
+    // The library's errors already name the catalogue file.
+    let wait = std::time::Duration::try_from_secs_f64(args.lock_wait)
+        .map_err(|_| anyhow::anyhow!("--lock-wait must be a non-negative number of seconds"))?;
+    let open = || Catalogue::open_with_lock_wait(&path, wait);
+    match args.command {
+        Command::Candidates(a) => query::candidates(&open()?, a),
+        Command::Bursts(a) => query::bursts(&open()?, a),
+        Command::Label(a) => review::label(&mut open()?, a),
+        Command::History(a) => review::history(&open()?, a),
+        Command::Promote(a) => review::promote(&mut open()?, a),
+        Command::Source(c) => sources::run(&mut open()?, c),
+        Command::Exposure(c) => exposure::run(&mut open()?, c),
+        Command::Summary(a) => summary::run(&open()?, a),
+        Command::Voevent(a) => voevent::run(&open()?, a),
+        Command::FillSynthetic(a) => synthetic::run(&mut open()?, a),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    #[test]
+    fn command_line_definition_is_consistent() {
+        use clap::CommandFactory;
+        crate::cli::Cli::command().debug_assert();
+    }
+}

@@ -1,0 +1,248 @@
+//! `book candidates` and `book bursts`.
+
+use std::path::PathBuf;
+
+use burstbook::Verdict;
+use burstbook::catalogue::{BurstFilter, CandidateFilter, Catalogue};
+
+use super::output::{Format, opt, sink, write_rows};
+
+/// Candidate filters shared by `candidates`, `label` and `promote`.
+#[derive(clap::Args, Debug, Clone, Default)]
+pub struct FilterArgs {
+    /// Source name from the observation header.
+    #[arg(long)]
+    pub source: Option<String>,
+    /// Lowest DM in pc cm^-3.
+    #[arg(long)]
+    pub dm_min: Option<f64>,
+    /// Highest DM in pc cm^-3.
+    #[arg(long)]
+    pub dm_max: Option<f64>,
+    /// Lowest S/N.
+    #[arg(long)]
+    pub snr_min: Option<f64>,
+    /// Earliest arrival, UTC MJD.
+    #[arg(long)]
+    pub mjd_min: Option<f64>,
+    /// Latest arrival, UTC MJD.
+    #[arg(long)]
+    pub mjd_max: Option<f64>,
+    /// Triage verdict: astrophysical, rfi or unsure.
+    #[arg(long, value_parser = parse_verdict)]
+    pub verdict: Option<Verdict>,
+    /// Newest review label ("none" for unlabelled candidates).
+    #[arg(long, value_name = "LABEL")]
+    pub label_is: Option<String>,
+}
+
+fn parse_verdict(s: &str) -> Result<Verdict, String> {
+    Verdict::parse(s).ok_or_else(|| format!("{s:?} is not one of astrophysical, rfi, unsure"))
+}
+
+impl FilterArgs {
+    /// The library filter for these flags plus explicit ids.
+    pub fn to_filter(&self, ids: &[i64]) -> CandidateFilter {
+        CandidateFilter {
+            source: self.source.clone(),
+            dm_min: self.dm_min,
+            dm_max: self.dm_max,
+            snr_min: self.snr_min,
+            mjd_min: self.mjd_min,
+            mjd_max: self.mjd_max,
+            verdict: self.verdict,
+            label: self.label_is.clone(),
+            ids: ids.to_vec(),
+            limit: None,
+        }
+    }
+
+    /// Whether any flag narrows the selection.
+    pub fn is_empty(&self) -> bool {
+        self.to_filter(&[]) == CandidateFilter::default()
+    }
+}
+
+/// Arguments of `book candidates`.
+#[derive(clap::Args, Debug)]
+#[command(after_help = "\
+Examples:
+  burstbook book candidates --source FIELD-7 --dm-min 300 --dm-max 400 --snr-min 8
+  burstbook book candidates --verdict astrophysical --label-is none --format csv --out todo.csv")]
+pub struct CandidatesArgs {
+    #[command(flatten)]
+    filter: FilterArgs,
+    /// At most this many rows (earliest first).
+    #[arg(long)]
+    limit: Option<usize>,
+    /// Output format (CSV and JSON carry every column).
+    #[arg(long, value_enum, default_value = "table")]
+    format: Format,
+    /// Write to this file instead of standard output.
+    #[arg(long)]
+    out: Option<PathBuf>,
+}
+
+const CANDIDATE_TABLE: &[&str] = &[
+    "id", "source", "mjd_inf", "dm", "snr", "width_ms", "verdict", "label", "burst",
+];
+const CANDIDATE_CSV: &[&str] = &[
+    "id",
+    "run_id",
+    "source",
+    "label",
+    "burst_id",
+    "file",
+    "t_inf_s",
+    "mjd_inf",
+    "dm",
+    "dm_lo",
+    "dm_hi",
+    "width_ms",
+    "snr",
+    "cluster_size",
+    "verdict",
+    "reasons",
+    "snr_dm0_ratio",
+    "dm_curve_misfit",
+    "band_fraction",
+    "modulation_index",
+    "fluence_jy_ms",
+];
+
+pub fn candidates(cat: &Catalogue, a: CandidatesArgs) -> anyhow::Result<()> {
+    let mut filter = a.filter.to_filter(&[]);
+    filter.limit = a.limit;
+    let rows = cat.candidates(&filter)?;
+    let mut out = sink(&a.out)?;
+    if a.format == Format::Table {
+        return write_rows(&mut out, a.format, CANDIDATE_TABLE, &rows, |r| {
+            vec![
+                r.id.to_string(),
+                r.source.clone(),
+                format!("{:.8}", r.candidate.mjd_inf),
+                format!("{:.2}", r.candidate.dm),
+                format!("{:.1}", r.candidate.snr),
+                format!("{:.2}", r.candidate.width_ms),
+                r.candidate.verdict.to_string(),
+                r.label.clone().unwrap_or_default(),
+                r.burst_id.map(|b| b.to_string()).unwrap_or_default(),
+            ]
+        });
+    }
+    write_rows(&mut out, a.format, CANDIDATE_CSV, &rows, |r| {
+        let c = &r.candidate;
+        vec![
+            r.id.to_string(),
+            r.run_id.to_string(),
+            r.source.clone(),
+            r.label.clone().unwrap_or_default(),
+            r.burst_id.map(|b| b.to_string()).unwrap_or_default(),
+            c.file.clone(),
+            c.t_inf_s.to_string(),
+            c.mjd_inf.to_string(),
+            c.dm.to_string(),
+            c.dm_lo.to_string(),
+            c.dm_hi.to_string(),
+            c.width_ms.to_string(),
+            c.snr.to_string(),
+            c.cluster_size.to_string(),
+            c.verdict.to_string(),
+            c.reasons.join("; "),
+            c.features.snr_dm0_ratio.to_string(),
+            c.features.dm_curve_misfit.to_string(),
+            c.features.band_fraction.to_string(),
+            c.features.modulation_index.to_string(),
+            c.fluence_jy_ms.map(|f| f.to_string()).unwrap_or_default(),
+        ]
+    })
+}
+
+/// Arguments of `book bursts`.
+#[derive(clap::Args, Debug)]
+#[command(after_help = "\
+Examples:
+  burstbook book bursts --source FIELD-7
+  burstbook book bursts --format csv --out bursts.csv
+  burstbook book bursts --source FIELD-7 --snr-min 10 --format json --out bursts.json")]
+pub struct BurstsArgs {
+    /// Assigned source.
+    #[arg(long)]
+    source: Option<String>,
+    /// Lowest DM in pc cm^-3.
+    #[arg(long)]
+    dm_min: Option<f64>,
+    /// Highest DM in pc cm^-3.
+    #[arg(long)]
+    dm_max: Option<f64>,
+    /// Lowest S/N.
+    #[arg(long)]
+    snr_min: Option<f64>,
+    /// Earliest arrival, UTC MJD.
+    #[arg(long)]
+    mjd_min: Option<f64>,
+    /// Latest arrival, UTC MJD.
+    #[arg(long)]
+    mjd_max: Option<f64>,
+    /// Output format.
+    #[arg(long, value_enum, default_value = "table")]
+    format: Format,
+    /// Write to this file instead of standard output.
+    #[arg(long)]
+    out: Option<PathBuf>,
+}
+
+const BURST_COLUMNS: &[&str] = &[
+    "id",
+    "candidate_id",
+    "source",
+    "mjd_utc",
+    "toa_tdb_mjd",
+    "dm",
+    "snr",
+    "width_ms",
+    "fluence_jy_ms",
+    "site",
+    "file",
+];
+
+pub fn bursts(cat: &Catalogue, a: BurstsArgs) -> anyhow::Result<()> {
+    let rows = cat.bursts(&BurstFilter {
+        source: a.source,
+        dm_min: a.dm_min,
+        dm_max: a.dm_max,
+        snr_min: a.snr_min,
+        mjd_min: a.mjd_min,
+        mjd_max: a.mjd_max,
+    })?;
+    let table = a.format == Format::Table;
+    let num = |v: f64, digits: usize| {
+        if table {
+            format!("{v:.digits$}")
+        } else {
+            v.to_string()
+        }
+    };
+    let onum = |v: Option<f64>, digits: usize| {
+        if table {
+            opt(v, digits)
+        } else {
+            v.map(|x| x.to_string()).unwrap_or_default()
+        }
+    };
+    write_rows(&mut sink(&a.out)?, a.format, BURST_COLUMNS, &rows, |b| {
+        vec![
+            b.id.to_string(),
+            b.candidate_id.to_string(),
+            b.source.clone(),
+            num(b.mjd_utc, 8),
+            onum(b.toa_tdb_mjd, 10),
+            num(b.dm, 2),
+            num(b.snr, 1),
+            num(b.width_ms, 2),
+            onum(b.fluence_jy_ms, 3),
+            b.site.clone(),
+            b.file.clone(),
+        ]
+    })
+}

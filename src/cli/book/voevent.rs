@@ -1,0 +1,52 @@
+//! `book voevent`.
+
+use std::io::Write;
+use std::path::PathBuf;
+
+use burstbook::catalogue::{Catalogue, VoEventOptions, voevent_xml};
+
+use super::output::sink;
+
+/// Arguments of `book voevent`.
+#[derive(clap::Args, Debug)]
+#[command(after_help = "\
+Examples:
+  burstbook book voevent 3 --out burst-3.xml
+  burstbook book voevent 3 --ivorn-root ivo://example.invalid/mysurvey --role observation")]
+pub struct VoeventArgs {
+    /// Burst id (see `burstbook book bursts`).
+    burst: i64,
+    /// IVORN of the publishing stream; the packet is `<root>#burst-<id>`.
+    #[arg(long, default_value = "ivo://example.invalid/burstbook")]
+    ivorn_root: String,
+    /// Contact name for Who/Author [default: $USER].
+    #[arg(long)]
+    contact: Option<String>,
+    /// Position uncertainty radius in degrees (e.g. the beam half-width).
+    #[arg(long, default_value_t = 0.25)]
+    position_error_deg: f64,
+    /// Packet role: observation or test.
+    #[arg(long, default_value = "test", value_parser = ["observation", "test"])]
+    role: String,
+    /// Write to this file instead of standard output.
+    #[arg(long)]
+    out: Option<PathBuf>,
+}
+
+pub fn run(cat: &Catalogue, a: VoeventArgs) -> anyhow::Result<()> {
+    let packet = cat.burst_packet(a.burst)?;
+    let opt = VoEventOptions {
+        ivorn_root: a.ivorn_root,
+        contact: a
+            .contact
+            .or_else(|| std::env::var("USER").ok())
+            .unwrap_or_else(|| "unknown".into()),
+        position_error_deg: a.position_error_deg,
+        role: a.role,
+    };
+    let date = chrono::Utc::now().format("%Y-%m-%dT%H:%M:%S").to_string();
+    let mut out = sink(&a.out)?;
+    writeln!(out, "{}", voevent_xml(&packet, &opt, &date))?;
+    out.flush()?;
+    Ok(())
+}

@@ -1,0 +1,145 @@
+//! `burstbook search FILE... --out DIR`.
+
+use std::path::PathBuf;
+
+use anyhow::Context;
+use burstbook::search::{self, FileResult, SearchConfig, output};
+
+/// Arguments of `search`.
+#[derive(clap::Args, Debug)]
+#[command(after_help = "Examples:
+  burstbook search demo-data/*.json --out results
+  burstbook search obs.fits --out results --dm-max 500 --snr 8 --mask-mhz 1270:1290
+  burstbook search obs.json --out results --config search.toml --zero-dm")]
+pub struct Args {
+    /// Observation files (.json native header or FITS search mode).
+    #[arg(required = true)]
+    pub files: Vec<PathBuf>,
+    /// Directory for candidates.csv and candidates.json (created if missing).
+    #[arg(long)]
+    pub out: PathBuf,
+    /// TOML file with search settings; the flags below override it.
+    #[arg(long)]
+    pub config: Option<PathBuf>,
+    /// Lowest trial DM in pc cm⁻³.
+    #[arg(long)]
+    pub dm_min: Option<f64>,
+    /// Highest trial DM in pc cm⁻³.
+    #[arg(long)]
+    pub dm_max: Option<f64>,
+    /// Detection threshold on the matched-filter S/N.
+    #[arg(long)]
+    pub snr: Option<f64>,
+    /// Widest boxcar in milliseconds.
+    #[arg(long)]
+    pub max_width_ms: Option<f64>,
+    /// Apply the zero-DM filter.
+    #[arg(long)]
+    pub zero_dm: bool,
+    /// Skip the spectral-kurtosis test.
+    #[arg(long)]
+    pub no_kurtosis: bool,
+    /// Mask a frequency range LO:HI in MHz (repeatable).
+    #[arg(long, value_name = "LO:HI", value_parser = parse_range)]
+    pub mask_mhz: Vec<[f64; 2]>,
+    /// New samples per block in seconds.
+    #[arg(long)]
+    pub block_s: Option<f64>,
+    /// Candidates listed in the terminal summary.
+    #[arg(long, default_value_t = 10)]
+    pub top: usize,
+}
+
+fn parse_range(s: &str) -> Result<[f64; 2], String> {
+    let (lo, hi) = s
+        .split_once(':')
+        .ok_or_else(|| format!("expected LO:HI in MHz, got {s:?}"))?;
+    let lo: f64 = lo.trim().parse().map_err(|e| format!("{lo:?}: {e}"))?;
+    let hi: f64 = hi.trim().parse().map_err(|e| format!("{hi:?}: {e}"))?;
+    Ok([lo, hi])
+}
+
+/// The configuration from the file (or defaults) with the flags applied.
+fn config(args: &Args) -> anyhow::Result<SearchConfig> {
+    let mut c = match &args.config {
+        Some(p) => SearchConfig::from_toml_file(p)?,
+        None => SearchConfig::default(),
+    };
+    if let Some(v) = args.dm_min {
+        c.plan.dm_min = v;
+    }
+    if let Some(v) = args.dm_max {
+        c.plan.dm_max = v;
+    }
+    if let Some(v) = args.snr {
+        c.snr_threshold = v;
+    }
+    if let Some(v) = args.max_width_ms {
+        c.max_width_s = v * 1e-3;
+    }
+    if let Some(v) = args.block_s {
+        c.block_s = v;
+    }
+    c.clean.zero_dm |= args.zero_dm;
+    c.clean.kurtosis &= !args.no_kurtosis;
+    c.clean.masks_mhz.extend(&args.mask_mhz);
+    c.validate()?;
+    Ok(c)
+}
+
+pub fn run(args: Args) -> anyhow::Result<()> {
+    let config = config(&args)?;
+    std::fs::create_dir_all(&args.out)
+        .with_context(|| format!("cannot create output directory {}", args.out.display()))?;
+    let mut results = Vec::new();
+    for path in &args.files {
+        let source = burstbook::obs::open(path)?;
+        let label = path.display().to_string();
+        let bar = burstbook::progress::bar(source.header().n_samples, &label);
+        let result = search::search_source(source, &label, &config, Some(&bar))?;
+        bar.finish_and_clear();
+        results.push(result);
+    }
+    let csv = args.out.join("candidates.csv");
+    let json = args.out.join("candidates.json");
+    output::write_csv(&csv, &results)?;
+    output::write_json(&json, &results, &config)?;
+    print_summary(&results, args.top);
+    println!("wrote {} and {}", csv.display(), json.display());
+    Ok(())
+}
+
+fn print_summary(results: &[FileResult], top: usize) {
+    use burstbook::Verdict;
+    for r in results {
+        let count = |v: Verdict| r.candidates.iter().filter(|c| c.verdict == v).count();
+        println!(
+            "{}: {:.1} s, {:.1} % masked, {} DM trials, {:.2e} effective trials \
+             ({:.2} false alarms expected); candidates: {} astrophysical, {} unsure, {} rfi",
+            r.file,
+            r.header.duration_s(),
+            100.0 * r.fraction_masked,
+            r.trials.dm_trials,
+            r.trials.effective_trials,
+            r.trials.expected_false_alarms,
+            count(Verdict::Astrophysical),
+            count(Verdict::Unsure),
+            count(Verdict::Rfi),
+        );
+    }
+    let mut all: Vec<_> = results.iter().flat_map(|r| &r.candidates).collect();
+    all.sort_by(|a, b| b.snr.total_cmp(&a.snr));
+    if all.is_empty() {
+        return;
+    }
+    println!(
+        "{:>8} {:>12} {:>9} {:>9} {:>14}  file",
+        "S/N", "t_inf (s)", "DM", "width ms", "verdict"
+    );
+    for c in all.iter().take(top) {
+        println!(
+            "{:>8.1} {:>12.4} {:>9.2} {:>9.3} {:>14}  {}",
+            c.snr, c.t_inf_s, c.dm, c.width_ms, c.verdict, c.file
+        );
+    }
+}

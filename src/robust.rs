@@ -1,0 +1,117 @@
+//! Robust location and scale: medians, the median absolute deviation and a
+//! piecewise-median running baseline. Used by excision and normalisation.
+
+/// 1/Φ⁻¹(0.75): turns a median absolute deviation into a Gaussian σ
+/// (common practice; e.g. Rousseeuw & Croux 1993, JASA 88, 1273).
+pub const MAD_TO_SIGMA: f64 = 1.482_602_218_505_602;
+
+/// Median of `values`, reordering them; NaN for an empty slice.
+pub fn median_in_place(values: &mut [f32]) -> f32 {
+    if values.is_empty() {
+        return f32::NAN;
+    }
+    let (n, mid) = (values.len(), values.len() / 2);
+    let (below, m, _) = values.select_nth_unstable_by(mid, f32::total_cmp);
+    let upper = *m;
+    if n % 2 == 1 {
+        upper
+    } else {
+        let lower = below.iter().copied().fold(f32::NEG_INFINITY, f32::max);
+        0.5 * (lower + upper)
+    }
+}
+
+/// Median and robust σ (1.4826 × MAD) of every `stride`-th value of `values`.
+///
+/// `scratch` is reused between calls to avoid allocation. Returns `(NaN, NaN)` for
+/// an empty input.
+pub fn median_sigma(values: &[f32], stride: usize, scratch: &mut Vec<f32>) -> (f32, f32) {
+    scratch.clear();
+    scratch.extend(values.iter().step_by(stride.max(1)).copied());
+    let med = median_in_place(scratch);
+    for v in scratch.iter_mut() {
+        *v = (*v - med).abs();
+    }
+    let mad = median_in_place(scratch);
+    (med, (f64::from(mad) * MAD_TO_SIGMA) as f32)
+}
+
+/// A slowly varying baseline of `series`: the median of each run of `window` samples,
+/// placed at the run's centre and joined by straight lines (held flat beyond the first
+/// and last centres). A pulse much shorter than `window` barely moves it.
+pub fn piecewise_median_baseline(
+    series: &[f32],
+    window: usize,
+    scratch: &mut Vec<f32>,
+) -> Vec<f32> {
+    let n = series.len();
+    let window = window.clamp(1, n.max(1));
+    let n_runs = n.div_ceil(window).max(1);
+    // Spread the runs evenly so the last one is not a stub.
+    let run_len = n.div_ceil(n_runs).max(1);
+    let mut knots: Vec<(f64, f32)> = Vec::with_capacity(n_runs);
+    for start in (0..n).step_by(run_len) {
+        let end = (start + run_len).min(n);
+        scratch.clear();
+        scratch.extend_from_slice(&series[start..end]);
+        knots.push((0.5 * (start + end - 1) as f64, median_in_place(scratch)));
+    }
+    let mut out = vec![0.0f32; n];
+    let mut k = 0;
+    for (t, o) in out.iter_mut().enumerate() {
+        let x = t as f64;
+        while k + 1 < knots.len() && knots[k + 1].0 <= x {
+            k += 1;
+        }
+        let (x0, y0) = knots[k];
+        *o = match knots.get(k + 1) {
+            Some(&(x1, y1)) if x > x0 => {
+                let f = ((x - x0) / (x1 - x0)) as f32;
+                y0 + f * (y1 - y0)
+            }
+            _ => y0,
+        };
+    }
+    out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn median_of_odd_and_even_lengths() {
+        assert_eq!(median_in_place(&mut [3.0, 1.0, 2.0]), 2.0);
+        assert_eq!(median_in_place(&mut [4.0, 1.0, 3.0, 2.0]), 2.5);
+        assert!(median_in_place(&mut []).is_nan());
+    }
+
+    #[test]
+    fn mad_sigma_of_a_known_set() {
+        // MAD of {1,2,3,4,100} about median 3 is median{2,1,0,1,97} = 1.
+        let (m, s) = median_sigma(&[1.0, 2.0, 3.0, 4.0, 100.0], 1, &mut Vec::new());
+        assert_eq!(m, 3.0);
+        assert!((f64::from(s) - MAD_TO_SIGMA).abs() < 1e-6);
+    }
+
+    #[test]
+    fn mad_constant_matches_normal_quantile() {
+        // Φ⁻¹(0.75) from the normal quantile function (statrs; checked against scipy).
+        use statrs::distribution::{ContinuousCDF, Normal};
+        let q = Normal::standard().inverse_cdf(0.75);
+        assert!((1.0 / q - MAD_TO_SIGMA).abs() < 1e-12);
+    }
+
+    #[test]
+    fn baseline_follows_a_ramp_and_ignores_a_spike() {
+        let mut s: Vec<f32> = (0..1000).map(|i| i as f32 * 0.01).collect();
+        s[500] += 1000.0;
+        let b = piecewise_median_baseline(&s, 100, &mut Vec::new());
+        for (t, (&v, &base)) in s.iter().zip(&b).enumerate().skip(50).take(900) {
+            if t != 500 {
+                assert!((v - base).abs() < 0.02, "t={t} {v} {base}");
+            }
+        }
+        assert!(b[500] < 6.0);
+    }
+}

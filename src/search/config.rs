@@ -1,0 +1,213 @@
+//! The search configuration: every knob of a run, serialisable (TOML in, JSON out)
+//! with a stable hash so a catalogue can record exactly how a candidate was found.
+
+use serde::{Deserialize, Serialize};
+use sha2::{Digest, Sha256};
+
+use crate::clean::CleanConfig;
+use crate::dedisperse::PlanRequest;
+use crate::error::{Error, Result};
+
+/// How detections are merged into candidates (see [`crate::cluster`]).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(default, deny_unknown_fields)]
+pub struct ClusterConfig {
+    /// Two detections are friends if their trial DMs are at most this many trials
+    /// apart (in the plan's ascending DM order).
+    pub dm_link_trials: usize,
+    /// Extra time slack in seconds added to the half-sum of the two boxcar widths.
+    pub time_link_s: f64,
+}
+
+impl Default for ClusterConfig {
+    fn default() -> Self {
+        ClusterConfig {
+            dm_link_trials: 3,
+            time_link_s: 0.002,
+        }
+    }
+}
+
+/// Thresholds of the triage verdict (see [`crate::triage`]).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(default, deny_unknown_fields)]
+pub struct TriageConfig {
+    /// Largest allowed excess of the DM-0 S/N ratio over the ratio expected for a
+    /// dispersed pulse before the candidate is called undispersed interference.
+    pub max_dm0_excess: f64,
+    /// Expected DM-0 ratio above which the DM is too low to tell a pulse from
+    /// undispersed interference.
+    pub ambiguous_dm0_ratio: f64,
+    /// RMS misfit of the S/N-versus-DM curve above which the candidate is interference.
+    pub max_dm_curve_misfit: f64,
+    /// Band fraction below which the signal is called narrow-band interference.
+    pub min_band_fraction: f64,
+}
+
+impl Default for TriageConfig {
+    fn default() -> Self {
+        TriageConfig {
+            max_dm0_excess: 0.25,
+            ambiguous_dm0_ratio: 0.7,
+            max_dm_curve_misfit: 0.25,
+            min_band_fraction: 0.15,
+        }
+    }
+}
+
+/// Everything that defines a search run.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(default, deny_unknown_fields)]
+pub struct SearchConfig {
+    /// Trial DMs requested of the planner.
+    pub plan: PlanRequest,
+    /// Detection threshold on the matched-filter S/N.
+    pub snr_threshold: f64,
+    /// Widest boxcar in seconds.
+    pub max_width_s: f64,
+    /// Ratio between neighbouring boxcar widths (√2 keeps the worst-case loss for a
+    /// Gaussian pulse at 0.933 of the best boxcar; see `search::boxcar`).
+    pub width_ratio: f64,
+    /// Length of the running baseline (median) window in seconds; must be well above
+    /// `max_width_s` so a pulse does not pull its own baseline.
+    pub baseline_s: f64,
+    /// New samples per block in seconds (each block also carries the overlap).
+    pub block_s: f64,
+    /// Interference excision.
+    pub clean: CleanConfig,
+    /// Clustering of detections into candidates.
+    pub cluster: ClusterConfig,
+    /// Triage verdict thresholds.
+    pub triage: TriageConfig,
+}
+
+impl Default for SearchConfig {
+    fn default() -> Self {
+        SearchConfig {
+            plan: PlanRequest::default(),
+            snr_threshold: 7.0,
+            max_width_s: 0.1,
+            width_ratio: std::f64::consts::SQRT_2,
+            baseline_s: 1.0,
+            block_s: 4.0,
+            clean: CleanConfig::default(),
+            cluster: ClusterConfig::default(),
+            triage: TriageConfig::default(),
+        }
+    }
+}
+
+impl SearchConfig {
+    /// Reads a TOML file; missing keys keep their defaults.
+    ///
+    /// # Errors
+    /// Unreadable file, bad TOML, unknown keys or values out of range.
+    pub fn from_toml_file(path: &std::path::Path) -> Result<Self> {
+        let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
+        let config: SearchConfig =
+            toml::from_str(&text).map_err(|e| Error::bad_input(path, e.to_string()))?;
+        config.validate()?;
+        Ok(config)
+    }
+
+    /// The configuration as compact JSON (field order fixed by the struct).
+    pub fn to_json(&self) -> String {
+        serde_json::to_string(self).expect("a search configuration always serialises")
+    }
+
+    /// A stable identifier of the configuration: SHA-256 of [`Self::to_json`], hex.
+    ///
+    /// Equal configurations give equal hashes across runs and machines (serde_json
+    /// prints floats in shortest round-trip form).
+    pub fn hash(&self) -> String {
+        Sha256::digest(self.to_json().as_bytes())
+            .iter()
+            .map(|b| format!("{b:02x}"))
+            .collect()
+    }
+
+    /// Checks ranges and consistency.
+    ///
+    /// # Errors
+    /// [`Error::Config`] naming the offending value.
+    pub fn validate(&self) -> Result<()> {
+        let p = &self.plan;
+        let bad = |m: String| Err(Error::Config(m));
+        if !(p.dm_min >= 0.0 && p.dm_max >= p.dm_min && p.dm_max.is_finite()) {
+            return bad(format!(
+                "DM range {}..{} must satisfy 0 <= min <= max",
+                p.dm_min, p.dm_max
+            ));
+        }
+        if !(self.snr_threshold.is_finite() && self.snr_threshold > 0.0) {
+            return bad(format!(
+                "S/N threshold must be positive, got {}",
+                self.snr_threshold
+            ));
+        }
+        if !(self.max_width_s.is_finite() && self.max_width_s > 0.0) {
+            return bad(format!(
+                "maximum width must be positive, got {} s",
+                self.max_width_s
+            ));
+        }
+        if !(self.width_ratio > 1.0 && self.width_ratio <= 4.0) {
+            return bad(format!(
+                "width ratio must be in (1, 4], got {}",
+                self.width_ratio
+            ));
+        }
+        if !(self.baseline_s >= 2.0 * self.max_width_s) {
+            return bad(format!(
+                "baseline window {} s must be at least twice the widest boxcar {} s",
+                self.baseline_s, self.max_width_s
+            ));
+        }
+        if !(self.block_s.is_finite() && self.block_s > 0.0) {
+            return bad(format!(
+                "block length must be positive, got {} s",
+                self.block_s
+            ));
+        }
+        self.clean.validate()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn toml_overrides_defaults_and_hash_is_stable() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("s.toml");
+        std::fs::write(
+            &path,
+            "snr_threshold = 8.0\n[plan]\ndm_min = 0.0\ndm_max = 300.0\nmin_width_s = 0.0\n\
+             tolerance = 1.25\nmax_downsample = 8\n[clean]\nzero_dm = true\n",
+        )
+        .unwrap();
+        let c = SearchConfig::from_toml_file(&path).unwrap();
+        assert_eq!(c.snr_threshold, 8.0);
+        assert_eq!(c.plan.dm_max, 300.0);
+        assert!(c.clean.zero_dm);
+        assert_eq!(c.max_width_s, SearchConfig::default().max_width_s);
+        assert_eq!(c.hash(), c.clone().hash());
+        assert_eq!(c.hash().len(), 64);
+        assert_ne!(c.hash(), SearchConfig::default().hash());
+        let back: SearchConfig = serde_json::from_str(&c.to_json()).unwrap();
+        assert_eq!(back, c);
+    }
+
+    #[test]
+    fn rejects_unknown_keys_and_bad_values() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("s.toml");
+        std::fs::write(&path, "snr_treshold = 8.0\n").unwrap();
+        let e = SearchConfig::from_toml_file(&path).unwrap_err().to_string();
+        assert!(e.contains("s.toml"), "{e}");
+        let mut c = SearchConfig::default();
+        c.baseline_s = c.max_width_s;
+        assert!(c.validate().is_err());
+    }
+}

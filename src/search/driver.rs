@@ -1,0 +1,428 @@
+//! The streaming driver: cut a recording into overlapping blocks, run excision,
+//! normalisation, dedispersion, matched filter, clustering and triage on each, and
+//! keep each event exactly once.
+//!
+//! Block geometry (input samples): D = largest dispersion delay, W = widest boxcar,
+//! M = W + 2·(largest downsampling), a margin for an event's extent around its peak.
+//! Blocks overlap by 2D + W + 2M. A block finds detections wherever its data are
+//! complete, clusters them, and reports a cluster only if its best boxcar starts in the
+//! block's own range `[start + D + M, start + n − D − W − M)` (from the file start for
+//! the first block, to the file end for the last). These ranges tile the file without
+//! gaps or overlaps. The leading D + M samples are not owned because a pulse that
+//! reached the top of the band before the block began leaves its low-frequency tail in
+//! the first D samples, where it can pass for a pulse at a lower DM; the block before
+//! sees that pulse whole. A cluster owned by a block lies entirely inside the block's
+//! complete data as long as it extends less than M around its peak. Memory is set by
+//! the block length, not the file length.
+
+use std::path::Path;
+
+use indicatif::ProgressBar;
+use ndarray::Array2;
+use rayon::prelude::*;
+use serde::{Deserialize, Serialize};
+
+use super::boxcar::{self, Scratch};
+use super::features::{self, BlockData};
+use super::fluence::fluence_jy_ms;
+use super::normalise::{normalise_channels, normalise_series};
+use super::trials::{self, TrialCount};
+use super::{SearchConfig, plan::build_plan};
+use crate::candidate::Candidate;
+use crate::clean::{self, impulse, user_mask::static_mask, zero_dm};
+use crate::cluster::{Detection, friends_of_friends};
+use crate::dedisperse::{self, DmPlan};
+use crate::error::{Error, Result};
+use crate::obs::{Block, BlockReader, Header, SampleSource};
+use crate::triage;
+use crate::units::delay_to_infinity_s;
+
+/// What the search of one recording produced.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct FileResult {
+    /// The recording, as named by the caller.
+    pub file: String,
+    /// Its header.
+    pub header: Header,
+    /// The trial DMs searched.
+    pub plan: DmPlan,
+    /// Clustered candidates in time order.
+    pub candidates: Vec<Candidate>,
+    /// Fraction of the channel-samples masked or clipped.
+    pub fraction_masked: f64,
+    /// Input samples whose boxcars were searched.
+    pub samples_searched: u64,
+    /// Blocks processed.
+    pub n_blocks: usize,
+    /// Threshold crossings before clustering (over all blocks, overlaps included).
+    pub n_detections: usize,
+    /// Trial accounting and expected false alarms.
+    pub trials: TrialCount,
+    /// How the recording was cut into blocks.
+    pub layout: BlockLayout,
+}
+
+/// Searches the recording at `path` (any format [`crate::obs::open`] reads).
+///
+/// # Errors
+/// Unreadable or corrupt input, or an invalid configuration.
+pub fn search_file(
+    path: &Path,
+    config: &SearchConfig,
+    progress: Option<&ProgressBar>,
+) -> Result<FileResult> {
+    let source = crate::obs::open(path)?;
+    search_source(source, &path.display().to_string(), config, progress)
+}
+
+/// Searches any sample source; `label` names it in the candidates and in errors.
+/// `progress`, if given, is set to the number of samples and advanced per block.
+///
+/// # Errors
+/// Read errors from the source, or an invalid configuration.
+pub fn search_source(
+    source: Box<dyn SampleSource>,
+    label: &str,
+    config: &SearchConfig,
+    progress: Option<&ProgressBar>,
+) -> Result<FileResult> {
+    config.validate()?;
+    let header = source.header().clone();
+    header.validate().map_err(|m| Error::bad_input(label, m))?;
+    let searcher = Searcher::new(header, config, label);
+    let geo = &searcher.layout;
+    let mut reader = BlockReader::new(source, geo.block_len, geo.overlap)?;
+    if let Some(pb) = progress {
+        pb.set_length(searcher.header.n_samples);
+    }
+    let mut totals = Totals::default();
+    let mut next = reader.next_block()?;
+    let mut first = true;
+    while let Some(block) = next {
+        next = reader.next_block()?;
+        let outcome = searcher.block(&block, first, next.is_none());
+        totals.add(outcome, &block);
+        first = false;
+        if let Some(pb) = progress {
+            pb.set_position(block.start_sample + block.n_time() as u64);
+        }
+    }
+    Ok(searcher.finish(totals))
+}
+
+/// The block layout a search of a recording with `header` would use.
+///
+/// # Errors
+/// An invalid configuration.
+pub fn block_layout(header: &Header, config: &SearchConfig) -> Result<BlockLayout> {
+    config.validate()?;
+    Ok(Searcher::new(header.clone(), config, "").layout)
+}
+
+/// How a recording is cut into blocks (all in input samples; see the module docs).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct BlockLayout {
+    /// Largest dispersion delay across the band over all trials (D).
+    pub max_delay: usize,
+    /// Widest boxcar (W).
+    pub max_width: usize,
+    /// Margin for an event's extent around its peak (M).
+    pub margin: usize,
+    /// Rows shared by consecutive blocks, 2D + W + 2M.
+    pub overlap: usize,
+    /// Rows per block, overlap included.
+    pub block_len: usize,
+    /// Running-baseline window.
+    pub baseline_len: usize,
+}
+
+impl BlockLayout {
+    /// The boxcar starts owned by a block of `n_time` rows starting at `start`, as a
+    /// half-open range; `first` and `last` extend it to the file's ends.
+    pub fn owned_range(&self, start: u64, n_time: usize, first: bool, last: bool) -> (u64, u64) {
+        let lo = if first {
+            0
+        } else {
+            start + (self.max_delay + self.margin) as u64
+        };
+        let hi = if last {
+            u64::MAX
+        } else {
+            (start + n_time as u64)
+                .saturating_sub((self.max_delay + self.max_width + self.margin) as u64)
+        };
+        (lo, hi)
+    }
+}
+
+struct Searcher<'a> {
+    label: &'a str,
+    header: Header,
+    config: &'a SearchConfig,
+    plan: DmPlan,
+    /// Boxcar widths of each plan step, in that step's samples.
+    widths: Vec<Vec<usize>>,
+    dm_offsets: Vec<usize>,
+    static_mask: Vec<bool>,
+    layout: BlockLayout,
+}
+
+/// What one block contributed.
+struct BlockOutcome {
+    candidates: Vec<Candidate>,
+    masked_fraction: f64,
+    n_detections: usize,
+    samples_searched: u64,
+}
+
+#[derive(Default)]
+struct Totals {
+    candidates: Vec<Candidate>,
+    masked_weighted: f64,
+    new_samples: u64,
+    n_blocks: usize,
+    n_detections: usize,
+    samples_searched: u64,
+}
+
+impl Totals {
+    fn add(&mut self, o: BlockOutcome, block: &Block) {
+        let new = (block.n_time() - block.overlap) as u64;
+        self.masked_weighted += o.masked_fraction * new as f64;
+        self.new_samples += new;
+        self.n_blocks += 1;
+        self.n_detections += o.n_detections;
+        self.samples_searched += o.samples_searched;
+        self.candidates.extend(o.candidates);
+    }
+}
+
+impl<'a> Searcher<'a> {
+    fn new(header: Header, config: &'a SearchConfig, label: &'a str) -> Self {
+        let plan = build_plan(&header, &config.plan);
+        let max_width = ((config.max_width_s / header.tsamp_s).floor() as usize).max(1);
+        let widths: Vec<Vec<usize>> = plan
+            .steps
+            .iter()
+            .map(|s| boxcar::width_ladder((max_width / s.downsample).max(1), config.width_ratio))
+            .collect();
+        let max_ds = plan.steps.iter().map(|s| s.downsample).max().unwrap_or(1);
+        let max_width = widths
+            .iter()
+            .zip(&plan.steps)
+            .map(|(w, s)| w.last().copied().unwrap_or(1) * s.downsample)
+            .max()
+            .unwrap_or(1);
+        let max_delay = plan.max_delay_samples();
+        let margin = max_width + 2 * max_ds;
+        let overlap = 2 * max_delay + max_width + 2 * margin;
+        let advance = ((config.block_s / header.tsamp_s).ceil() as usize).max(overlap);
+        let layout = BlockLayout {
+            max_delay,
+            max_width,
+            margin,
+            overlap,
+            block_len: overlap + advance,
+            baseline_len: ((config.baseline_s / header.tsamp_s).round() as usize).max(1),
+        };
+        let dm_offsets = plan
+            .steps
+            .iter()
+            .scan(0, |acc, s| {
+                let o = *acc;
+                *acc += s.dms.len();
+                Some(o)
+            })
+            .collect();
+        let static_mask = static_mask(&header.freqs_mhz, &header.weights, &config.clean.masks_mhz);
+        Searcher {
+            label,
+            header,
+            config,
+            plan,
+            widths,
+            dm_offsets,
+            static_mask,
+            layout,
+        }
+    }
+
+    fn block(&self, block: &Block, first: bool, last: bool) -> BlockOutcome {
+        let g = &self.layout;
+        let cfg = &self.config.clean;
+        let raw = block.view();
+        let n_time = block.n_time();
+        let mut mask = self.static_mask.clone();
+        clean::flag_channels(raw, &mut mask, cfg);
+        let mut norm = normalise_channels(raw, &mut mask, g.baseline_len);
+        let n_clipped = impulse::clip(norm.view_mut(), &mask, cfg.clip_threshold);
+        if cfg.zero_dm {
+            zero_dm::apply(norm.view_mut(), &mask);
+        }
+        let n_chan = mask.len();
+        let n_masked = mask.iter().filter(|&&m| m).count();
+        let masked_fraction = if n_time == 0 {
+            0.0
+        } else {
+            (n_masked * n_time + n_clipped * (n_chan - n_masked)) as f64 / (n_chan * n_time) as f64
+        };
+
+        let mut outs = dedisperse::reference::dedisperse(norm.view(), &self.plan);
+        let detections = self.detect(&mut outs, block.start_sample);
+        let dm0 = self.dm0_series(&norm, &mask);
+        let data = BlockData {
+            header: &self.header,
+            dm_offsets: &self.dm_offsets,
+            norm: norm.view(),
+            mask: &mask,
+            dm0: &dm0,
+            outs: &outs,
+            block_start: block.start_sample,
+        };
+        let (own_lo, own_hi) = g.owned_range(block.start_sample, n_time, first, last);
+        let used_bw = (n_chan - n_masked) as f64 * self.header.chan_bw_mhz;
+        let time_link = (self.config.cluster.time_link_s / self.header.tsamp_s).round() as u64;
+        let candidates =
+            friends_of_friends(&detections, self.config.cluster.dm_link_trials, time_link)
+                .into_iter()
+                .filter(|c| (own_lo..own_hi).contains(&c.best.start_sample))
+                .map(|c| {
+                    let measured = features::measure(&data, &c.best);
+                    let (verdict, reasons) = triage::verdict(
+                        &measured.features,
+                        c.best.snr,
+                        c.best.dm,
+                        measured.expected_dm0_ratio,
+                        &self.config.triage,
+                    );
+                    self.candidate(&c, verdict, reasons, measured.features, used_bw)
+                })
+                .collect();
+        let searched_hi =
+            (block.start_sample + n_time.saturating_sub(g.max_delay) as u64).min(own_hi);
+        BlockOutcome {
+            candidates,
+            masked_fraction,
+            n_detections: detections.len(),
+            samples_searched: searched_hi.saturating_sub(own_lo.max(block.start_sample)),
+        }
+    }
+
+    /// Normalises every dedispersed series in place and runs the matched filter on it.
+    fn detect(&self, outs: &mut [dedisperse::Dedispersed], block_start: u64) -> Vec<Detection> {
+        let threshold = self.config.snr_threshold as f32;
+        let mut all = Vec::new();
+        for (si, step) in outs.iter_mut().enumerate() {
+            let (n, ds) = (step.n_time, step.downsample);
+            if n == 0 {
+                continue;
+            }
+            let widths = &self.widths[si];
+            let baseline = (self.layout.baseline_len / ds).max(1);
+            let dms = &step.dms;
+            let offset = self.dm_offsets[si];
+            let found: Vec<Detection> = step
+                .data
+                .par_chunks_mut(n)
+                .enumerate()
+                .map_init(
+                    || (Scratch::default(), Vec::new(), Vec::new()),
+                    |(scratch, work, peaks), (d, row)| {
+                        normalise_series(row, baseline, work);
+                        peaks.clear();
+                        boxcar::search_series(row, widths, threshold, scratch, peaks);
+                        peaks
+                            .iter()
+                            .map(|p| Detection {
+                                start_sample: block_start + (p.start * ds) as u64,
+                                width_samples: p.width * ds,
+                                dm_index: offset + d,
+                                dm: dms[d],
+                                snr: f64::from(p.snr),
+                            })
+                            .collect::<Vec<_>>()
+                    },
+                )
+                .flatten()
+                .collect();
+            all.extend(found);
+        }
+        all
+    }
+
+    /// The band sum at DM 0, normalised like a dedispersed series.
+    fn dm0_series(&self, norm: &Array2<f32>, mask: &[bool]) -> Vec<f32> {
+        let mut dm0 = vec![0.0f32; norm.ncols()];
+        for (row, _) in norm.rows().into_iter().zip(mask).filter(|(_, m)| !**m) {
+            for (s, &v) in dm0.iter_mut().zip(row.iter()) {
+                *s += v;
+            }
+        }
+        normalise_series(&mut dm0, self.layout.baseline_len, &mut Vec::new());
+        dm0
+    }
+
+    fn candidate(
+        &self,
+        c: &crate::cluster::Cluster,
+        verdict: crate::Verdict,
+        reasons: Vec<String>,
+        features: crate::TriageFeatures,
+        used_bw_mhz: f64,
+    ) -> Candidate {
+        let h = &self.header;
+        let best = &c.best;
+        let width_s = best.width_samples as f64 * h.tsamp_s;
+        // Boxcar centre at the top channel, then back to infinite frequency.
+        let t_top = best.start_sample as f64 * h.tsamp_s + 0.5 * width_s;
+        let t_inf_s = t_top - delay_to_infinity_s(best.dm, h.freq_hi_mhz());
+        Candidate {
+            file: self.label.to_string(),
+            t_inf_s,
+            mjd_inf: h.start.plus_seconds(t_inf_s).to_mjd_f64(),
+            dm: best.dm,
+            dm_lo: c.dm_lo,
+            dm_hi: c.dm_hi,
+            width_ms: width_s * 1e3,
+            snr: best.snr,
+            cluster_size: c.size,
+            verdict,
+            reasons,
+            features,
+            fluence_jy_ms: h
+                .sefd_jy
+                .map(|sefd| fluence_jy_ms(best.snr, sefd, width_s, used_bw_mhz)),
+        }
+    }
+
+    fn finish(self, mut totals: Totals) -> FileResult {
+        totals
+            .candidates
+            .sort_by(|a, b| a.t_inf_s.total_cmp(&b.t_inf_s));
+        let h = &self.header;
+        let trials = trials::count(
+            &self.plan,
+            &self.widths,
+            totals.samples_searched,
+            h.bandwidth_mhz(),
+            0.5 * (h.freq_lo_mhz() + h.freq_hi_mhz()),
+            self.config.snr_threshold,
+        );
+        FileResult {
+            file: self.label.to_string(),
+            header: self.header,
+            plan: self.plan,
+            candidates: totals.candidates,
+            fraction_masked: if totals.new_samples == 0 {
+                0.0
+            } else {
+                totals.masked_weighted / totals.new_samples as f64
+            },
+            samples_searched: totals.samples_searched,
+            n_blocks: totals.n_blocks,
+            n_detections: totals.n_detections,
+            trials,
+            layout: self.layout,
+        }
+    }
+}

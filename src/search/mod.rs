@@ -1,0 +1,22 @@
+//! The single-pulse search: normalisation, boxcar matched filter, the per-block driver
+//! and its configuration. Entry points: [`search_file`] and [`search_source`].
+//!
+//! Data flow per block: [`crate::clean`] flags channels on raw samples →
+//! [`normalise`] makes every channel zero-mean, unit-variance and transposes to
+//! `[channel, time]` → impulse clipping / zero-DM → dedispersion → each dedispersed
+//! series is normalised again → [`boxcar`] matched filter → [`crate::cluster`] →
+//! features and [`crate::triage`].
+
+pub mod boxcar;
+mod config;
+mod driver;
+mod features;
+pub mod fluence;
+pub mod normalise;
+pub mod output;
+mod plan;
+pub mod trials;
+
+pub use config::{ClusterConfig, SearchConfig, TriageConfig};
+pub use driver::{BlockLayout, FileResult, block_layout, search_file, search_source};
+pub use trials::TrialCount;

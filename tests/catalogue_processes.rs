@@ -1,0 +1,368 @@
+//! The catalogue under real processes: killed mid-write, several writers at once,
+//! and every kind of bad catalogue file through the `burstbook` binary.
+
+use std::io::{BufRead, BufReader};
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output, Stdio};
+use std::time::{Duration, Instant};
+
+use burstbook::catalogue::Catalogue;
+use rusqlite::Connection;
+
+const BIN: &str = env!("CARGO_BIN_EXE_burstbook");
+
+fn book(db: &Path, args: &[&str]) -> Output {
+    Command::new(BIN)
+        .arg("book")
+        .arg("--catalogue")
+        .arg(db)
+        .args(args)
+        .output()
+        .expect("burstbook runs")
+}
+
+fn fill_args(source: &str, first_seed: u64, n_obs: u64, n_cand: usize) -> Vec<String> {
+    [
+        "fill-synthetic",
+        "--source",
+        source,
+        "--first-seed",
+        &first_seed.to_string(),
+        "--observations",
+        &n_obs.to_string(),
+        "--candidates",
+        &n_cand.to_string(),
+    ]
+    .iter()
+    .map(|s| s.to_string())
+    .collect()
+}
+
+/// (runs, candidates) after checking every run holds exactly its candidates.
+fn check_runs_whole(db: &Path) -> (i64, i64) {
+    let cat = Catalogue::open(db).expect("catalogue opens after the crash");
+    cat.integrity_check().unwrap();
+    drop(cat);
+    let c = Connection::open(db).unwrap();
+    let partial: i64 = c
+        .query_row(
+            "SELECT count(*) FROM search_run r
+             WHERE r.n_candidates != (SELECT count(*) FROM candidate WHERE run_id = r.id)",
+            [],
+            |r| r.get(0),
+        )
+        .unwrap();
+    assert_eq!(partial, 0, "a run is missing candidates");
+    let orphans: i64 = c
+        .query_row(
+            "SELECT (SELECT count(*) FROM candidate WHERE run_id NOT IN (SELECT id FROM search_run))
+                  + (SELECT count(*) FROM exposure WHERE run_id IS NOT NULL
+                       AND run_id NOT IN (SELECT id FROM search_run))",
+            [],
+            |r| r.get(0),
+        )
+        .unwrap();
+    assert_eq!(orphans, 0);
+    c.query_row(
+        "SELECT (SELECT count(*) FROM search_run), (SELECT count(*) FROM candidate)",
+        [],
+        |r| Ok((r.get(0)?, r.get(1)?)),
+    )
+    .unwrap()
+}
+
+#[test]
+fn a_killed_writer_leaves_whole_runs_and_a_rerun_completes_them() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("kill.sqlite");
+    let (n_obs, n_cand) = (4u64, 40_000usize);
+    let start = Instant::now();
+    let mut child = Command::new(BIN)
+        .arg("book")
+        .arg("--catalogue")
+        .arg(&db)
+        .args(fill_args("KILL", 0, n_obs, n_cand))
+        .stdout(Stdio::piped())
+        .spawn()
+        .unwrap();
+    let mut lines = BufReader::new(child.stdout.take().unwrap()).lines();
+    let first = lines.next().expect("first run reported").unwrap();
+    assert_eq!(first, "0 inserted");
+    // Runs are the same size, so halfway through the second one's time the process
+    // is inside its transaction.
+    let one_run = start.elapsed();
+    std::thread::sleep(one_run / 2);
+    child.kill().unwrap();
+    child.wait().unwrap();
+
+    let (runs, cands) = check_runs_whole(&db);
+    assert!(
+        (1..n_obs as i64).contains(&runs),
+        "killed too late: {runs} runs"
+    );
+    assert_eq!(cands, runs * n_cand as i64);
+    eprintln!(
+        "killed after {:?}: {runs} whole run(s) survived",
+        one_run * 3 / 2
+    );
+
+    // Running the same job again records only what is missing.
+    let out = book(
+        &db,
+        &fill_args("KILL", 0, n_obs, n_cand)
+            .iter()
+            .map(String::as_str)
+            .collect::<Vec<_>>(),
+    );
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let text = String::from_utf8(out.stdout).unwrap();
+    assert_eq!(text.matches("present").count() as i64, runs, "{text}");
+    assert_eq!(
+        check_runs_whole(&db),
+        (n_obs as i64, n_obs as i64 * n_cand as i64)
+    );
+}
+
+#[test]
+fn concurrent_writers_neither_lose_nor_duplicate() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("many.sqlite");
+    // Four processes, six observations each, neighbours sharing three seeds.
+    let children: Vec<_> = (0..4u64)
+        .map(|i| {
+            Command::new(BIN)
+                .arg("book")
+                .arg("--catalogue")
+                .arg(&db)
+                .args(["--lock-wait", "60"])
+                .args(fill_args("CROWD", i * 3, 6, 3000))
+                .stdout(Stdio::piped())
+                .stderr(Stdio::piped())
+                .spawn()
+                .unwrap()
+        })
+        .collect();
+    let mut inserted = Vec::new();
+    for c in children {
+        let out = c.wait_with_output().unwrap();
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        for line in String::from_utf8(out.stdout).unwrap().lines() {
+            if let Some(seed) = line.strip_suffix(" inserted") {
+                inserted.push(seed.parse::<u64>().unwrap());
+            }
+        }
+    }
+    inserted.sort();
+    // Seeds 0..15 exist; each was inserted by exactly one process.
+    assert_eq!(inserted, (0..15).collect::<Vec<_>>());
+    assert_eq!(check_runs_whole(&db), (15, 15 * 3000));
+}
+
+/// Bytes of the main file, after the last connection has folded the WAL back in.
+fn snapshot(db: &Path) -> Vec<u8> {
+    std::fs::read(db).unwrap()
+}
+
+/// A catalogue with one source and one search, fully checkpointed.
+fn small_catalogue(dir: &Path) -> PathBuf {
+    let db = dir.join("small.sqlite");
+    let out = book(&db, &["fill-synthetic", "--candidates", "20"]);
+    assert!(out.status.success());
+    assert!(
+        !db.with_extension("sqlite-wal").exists()
+            || std::fs::metadata(db.with_extension("sqlite-wal"))
+                .unwrap()
+                .len()
+                == 0
+    );
+    db
+}
+
+/// Asserts a failed run: non-zero exit and exactly one stderr line containing `needle`.
+fn assert_one_line_failure(out: &Output, needle: &str) {
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(!out.status.success(), "should fail: {err}");
+    assert_eq!(err.trim_end().lines().count(), 1, "not one line: {err}");
+    assert!(err.starts_with("burstbook: error: "), "{err}");
+    assert!(err.contains(needle), "expected {needle:?} in {err}");
+}
+
+#[test]
+fn a_file_that_is_not_sqlite_is_refused_untouched() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("notes.sqlite");
+    std::fs::write(&db, b"observing log, 2026-11-30: clouds all night\n").unwrap();
+    let before = snapshot(&db);
+    let out = book(&db, &["source", "add", "X", "--ra", "1", "--dec", "2"]);
+    assert_one_line_failure(&out, "is not an SQLite database");
+    assert!(String::from_utf8_lossy(&out.stderr).contains("notes.sqlite"));
+    assert_eq!(snapshot(&db), before);
+}
+
+#[test]
+fn a_corrupt_catalogue_is_refused_untouched() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = small_catalogue(dir.path());
+    let mut bytes = snapshot(&db);
+    // Keep the 100-byte database header, scramble the schema page and beyond.
+    for (i, b) in bytes.iter_mut().enumerate().skip(100).take(8000) {
+        *b = (i * 7919 % 251) as u8;
+    }
+    std::fs::write(&db, &bytes).unwrap();
+    let out = book(&db, &["candidates"]);
+    assert_one_line_failure(&out, "small.sqlite");
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("corrupt") || err.contains("not an SQLite database"),
+        "{err}"
+    );
+    assert_eq!(snapshot(&db), bytes);
+}
+
+#[test]
+fn a_catalogue_from_a_newer_burstbook_is_refused_untouched() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = small_catalogue(dir.path());
+    {
+        let c = Connection::open(&db).unwrap();
+        c.pragma_update(None, "user_version", 99).unwrap();
+    }
+    let before = snapshot(&db);
+    let out = book(&db, &["source", "add", "X", "--ra", "1", "--dec", "2"]);
+    assert_one_line_failure(&out, "schema version 99, newer than this burstbook");
+    assert_eq!(snapshot(&db), before);
+}
+
+#[test]
+fn another_programs_database_is_refused_untouched() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("other.sqlite");
+    {
+        let c = Connection::open(&db).unwrap();
+        c.execute_batch(
+            "CREATE TABLE inventory (item TEXT); INSERT INTO inventory VALUES ('lens');",
+        )
+        .unwrap();
+    }
+    let before = snapshot(&db);
+    let out = book(&db, &["candidates"]);
+    assert_one_line_failure(&out, "not a burstbook catalogue");
+    assert_eq!(snapshot(&db), before);
+}
+
+#[test]
+fn a_locked_catalogue_fails_writes_cleanly_and_still_serves_reads() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = small_catalogue(dir.path());
+    let holder = Connection::open(&db).unwrap();
+    holder.execute_batch("BEGIN IMMEDIATE").unwrap();
+    let t = Instant::now();
+    let out = book(
+        &db,
+        &[
+            "--lock-wait",
+            "0.5",
+            "source",
+            "add",
+            "NEW",
+            "--ra",
+            "1",
+            "--dec",
+            "2",
+        ],
+    );
+    assert_one_line_failure(&out, "is locked by another process");
+    assert!(
+        t.elapsed() < Duration::from_secs(8),
+        "waited {:?}",
+        t.elapsed()
+    );
+    // Readers are not blocked by a writer (WAL).
+    let list = book(&db, &["source", "list", "--format", "csv"]);
+    assert!(
+        list.status.success(),
+        "{}",
+        String::from_utf8_lossy(&list.stderr)
+    );
+    holder.execute_batch("ROLLBACK").unwrap();
+    drop(holder);
+    let names =
+        String::from_utf8(book(&db, &["source", "list", "--format", "csv"]).stdout).unwrap();
+    assert!(
+        names.contains("SYNTH-1") && !names.contains("NEW"),
+        "{names}"
+    );
+}
+
+#[test]
+fn a_missing_directory_gives_one_clear_line() {
+    let out = book(
+        Path::new("/nonexistent-burstbook-dir/c.sqlite"),
+        &["candidates"],
+    );
+    assert_one_line_failure(&out, "cannot be opened or created");
+}
+
+/// Read-only location. Root ignores file permissions, so when the tests run as
+/// root the binary is run as user `nobody` through util-linux `setpriv`.
+#[test]
+fn a_read_only_location_is_refused_untouched() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = small_catalogue(dir.path());
+    let before = snapshot(&db);
+    use std::os::unix::fs::PermissionsExt;
+    let set = |p: &Path, mode| {
+        std::fs::set_permissions(p, std::fs::Permissions::from_mode(mode)).unwrap()
+    };
+    set(&db, 0o444);
+    set(dir.path(), 0o555);
+    let probe = dir.path().join("probe");
+    let privileged = std::fs::write(&probe, b"").is_ok();
+    let _ = std::fs::remove_file(&probe);
+    let mut cmd = if privileged {
+        let mut c = Command::new("setpriv");
+        c.args(["--reuid=65534", "--regid=65534", "--clear-groups", BIN]);
+        c
+    } else {
+        Command::new(BIN)
+    };
+    let out = cmd
+        .arg("book")
+        .arg("--catalogue")
+        .arg(&db)
+        .args(["source", "add", "X", "--ra", "1", "--dec", "2"])
+        .output();
+    set(dir.path(), 0o755);
+    let out = match out {
+        Ok(o) if privileged && String::from_utf8_lossy(&o.stderr).starts_with("setpriv:") => {
+            eprintln!(
+                "SKIPPED a_read_only_location_is_refused_untouched: running as root and setpriv \
+                 could not run the binary as nobody: {}",
+                String::from_utf8_lossy(&o.stderr)
+            );
+            return;
+        }
+        Ok(o) => o,
+        Err(e) => {
+            eprintln!(
+                "SKIPPED a_read_only_location_is_refused_untouched: running as root, no setpriv: {e}"
+            );
+            return;
+        }
+    };
+    assert_one_line_failure(&out, "small.sqlite");
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("read-only") || err.contains("cannot be opened"),
+        "{err}"
+    );
+    assert_eq!(snapshot(&db), before);
+}
