@@ -9,9 +9,9 @@
 //! synthetic recordings for tests and demos.
 
 pub mod candidate;
+pub mod catalogue;
 pub mod clean;
 pub mod cluster;
-pub mod catalogue;
 pub mod dedisperse;
 pub mod error;
 pub mod obs;

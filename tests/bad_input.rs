@@ -299,7 +299,11 @@ fn assert_one_line_failure(file: &Path, needle: &str) {
         stderr.contains(&file.display().to_string()),
         "names file: {stderr}"
     );
-    assert_eq!(stderr.matches(needle).count(), 1, "'{needle}' once in: {stderr}");
+    assert_eq!(
+        stderr.matches(needle).count(),
+        1,
+        "'{needle}' once in: {stderr}"
+    );
     assert!(!stderr.contains("panicked"), "{stderr}");
 }
 

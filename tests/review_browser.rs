@@ -1,6 +1,6 @@
 //! The review page end to end in a real headless browser: start the server on a
-//! label store, press keys, check the labels landed in the store. Plus plain-HTTP
-//! checks of the server's guards.
+//! temporary catalogue, press keys, check the labels landed in the catalogue's label
+//! history. Plus plain-HTTP checks of the server's guards.
 //!
 //! Needs Debian `chromium` (skipped, loudly, when absent), `node`, and
 //! `npm ci --prefix tests/browser` (playwright-core; fails with instructions when
@@ -17,7 +17,10 @@ use std::sync::atomic::{AtomicBool, Ordering};
 use std::thread;
 
 use burstbook::candidate::{Candidate, TriageFeatures, Verdict};
-use burstbook::report::review::{MemoryStore, ReviewItem, ReviewLabel, ReviewServer};
+use burstbook::catalogue::{CandidateFilter, Catalogue, ObservationRecord, synthetic};
+use burstbook::report::review::{
+    CatalogueStore, LabelStore, MemoryStore, ReviewItem, ReviewLabel, ReviewServer,
+};
 
 fn candidate(file: &Path, t_inf_s: f64, dm: f64, snr: f64) -> Candidate {
     Candidate {
@@ -34,6 +37,29 @@ fn candidate(file: &Path, t_inf_s: f64, dm: f64, snr: f64) -> Candidate {
         reasons: vec!["made for the review test".into()],
         features: TriageFeatures::default(),
         fluence_jy_ms: None,
+    }
+}
+
+/// A catalogue holding the four candidates of [`store_with_four`] from one search.
+fn catalogue_with_four(dir: &Path, obs: &Path, t_inf: f64) -> CatalogueStore {
+    let mut cat = Catalogue::open(&dir.join("review.sqlite")).unwrap();
+    let header = burstbook::obs::open(obs).unwrap().header().clone();
+    let record = ObservationRecord::from_file(obs, &header).unwrap();
+    let cands: Vec<Candidate> = store_with_four(obs, t_inf)
+        .items
+        .into_iter()
+        .map(|i| i.candidate)
+        .collect();
+    cat.record_search(&record, &synthetic::run(6.0), &cands)
+        .unwrap();
+    CatalogueStore {
+        catalogue: cat,
+        filter: CandidateFilter {
+            label: Some("none".into()),
+            ..CandidateFilter::default()
+        },
+        reviewer: "test-reviewer".into(),
+        obs_dir: None,
     }
 }
 
@@ -59,7 +85,7 @@ fn store_with_four(obs: &Path, t_inf: f64) -> MemoryStore {
 }
 
 /// Runs the server on its own thread; the handle returns the store when it stops.
-fn start(store: MemoryStore) -> (String, Arc<AtomicBool>, thread::JoinHandle<MemoryStore>) {
+fn start<S: LabelStore + 'static>(store: S) -> (String, Arc<AtomicBool>, thread::JoinHandle<S>) {
     let server = ReviewServer::bind(None).unwrap();
     let url = server.url();
     let stop = Arc::new(AtomicBool::new(false));
@@ -101,7 +127,11 @@ fn keyboard_review_in_headless_chromium_records_labels() {
     let dir = tempfile::tempdir().unwrap();
     let obs = dir.path().join("review-night.json");
     let t_inf = report_common::write_observation(&obs);
-    let (url, stop, handle) = start(store_with_four(&obs, t_inf));
+    let mut store = catalogue_with_four(dir.path(), &obs, t_inf);
+    // Review order is S/N, highest first: catalogue ids in that order.
+    let ids: Vec<i64> = store.items().unwrap().iter().map(|i| i.id).collect();
+    assert_eq!(ids.len(), 4);
+    let (url, stop, handle) = start(store);
 
     let out = Command::new("node")
         .arg(browser_dir.join("review.mjs"))
@@ -121,8 +151,8 @@ fn keyboard_review_in_headless_chromium_records_labels() {
     let seen: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
     assert_eq!(
         seen["ids"],
-        serde_json::json!([11, 12, 13, 14, 13]),
-        "walked in order; s skipped 13; k went back"
+        serde_json::json!([ids[0], ids[1], ids[2], ids[3], ids[2]]),
+        "walked in S/N order; s skipped the third; k went back"
     );
     assert_eq!(
         seen["plotWidths"],
@@ -135,21 +165,41 @@ fn keyboard_review_in_headless_chromium_records_labels() {
             .unwrap()
             .contains("with comment")
     );
+
+    // The labels are in the catalogue's history, as the catalogue reports them.
+    let cat = store.catalogue;
+    let history = |id| cat.label_history(id).unwrap();
+    let got: Vec<(String, String, String)> = ids
+        .iter()
+        .flat_map(|&id| history(id))
+        .map(|l| (l.label, l.reviewer, l.comment))
+        .collect();
+    let r = "test-reviewer".to_string();
     assert_eq!(
-        store.history,
+        got,
         vec![
-            (11, ReviewLabel::Astrophysical, String::new()),
+            ("astrophysical".into(), r.clone(), String::new()),
             (
-                12,
-                ReviewLabel::Interference,
+                "rfi".into(),
+                r.clone(),
                 "two peaks, maybe a reflection".into()
             ),
-            (14, ReviewLabel::Unsure, String::new()),
+            ("unsure".into(), r, String::new()),
         ]
     );
-    assert_eq!(
-        store.items[2].label, None,
+    assert!(
+        history(ids[2]).is_empty(),
         "skipped candidate stays unlabelled"
+    );
+    let unlabelled = cat
+        .candidates(&CandidateFilter {
+            label: Some("none".into()),
+            ..CandidateFilter::default()
+        })
+        .unwrap();
+    assert_eq!(
+        unlabelled.iter().map(|r| r.id).collect::<Vec<_>>(),
+        vec![ids[2]]
     );
 }
 

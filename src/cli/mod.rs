@@ -5,6 +5,7 @@ mod barycentre;
 mod book;
 mod inspect;
 mod report;
+mod review;
 mod search;
 mod simulate;
 
@@ -24,6 +25,8 @@ enum Command {
     Inspect(inspect::Args),
     /// Write an HTML report (overview and per-candidate figures) from search output.
     Report(report::Args),
+    /// Label catalogue candidates one key at a time in a local web page.
+    Review(review::Args),
     /// Search observations for dispersed pulses; write candidates.csv and candidates.json.
     Search(search::Args),
     /// Write a synthetic observation with known bursts and interference from a scenario file.
@@ -39,6 +42,7 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
     match cli.command {
         Command::Inspect(a) => inspect::run(a),
         Command::Report(a) => report::run(a),
+        Command::Review(a) => review::run(a),
         Command::Search(a) => search::run(a),
         Command::Simulate(a) => simulate::run(a),
         Command::Barycentre(a) => barycentre::run(a),
