@@ -95,3 +95,74 @@ fn missing_observation_is_one_clear_error() {
     assert!(err.contains("gone.json") && err.contains("--obs"), "{err}");
     assert_eq!(err.lines().count(), 1, "{err}");
 }
+
+#[test]
+fn source_report_from_the_catalogue_has_timeline_and_figures() {
+    use burstbook::catalogue::{Catalogue, ObservationRecord, synthetic};
+    let dir = tempfile::tempdir().unwrap();
+    let obs = dir.path().join("night2.json");
+    let t_inf = write_observation(&obs);
+    let csv = format!(
+        "file,t_inf_s,mjd_inf,dm,dm_lo,dm_hi,width_ms,snr,cluster_size,verdict,reasons,\
+         snr_dm0_ratio,dm_curve_misfit,band_fraction,modulation_index,fluence_jy_ms\n\
+         {o},{t_inf},60100.05,{DM},248,252,3,25.0,9,astrophysical,,0.1,0.05,0.9,0.3,\n",
+        o = obs.display()
+    );
+    std::fs::write(dir.path().join("candidates.csv"), csv).unwrap();
+    let cands =
+        burstbook::report::load::load_candidates(&dir.path().join("candidates.csv")).unwrap();
+    let db = dir.path().join("book.sqlite");
+    let mut cat = Catalogue::open(&db).unwrap();
+    let record = ObservationRecord::from_file(&obs, &header()).unwrap();
+    cat.record_search(&record, &synthetic::run(6.0), &cands)
+        .unwrap();
+    drop(cat);
+
+    let out = dir.path().join("src-report");
+    let run = Command::new(env!("CARGO_BIN_EXE_burstbook"))
+        .args(["report", "--source", "TESTSRC-A", "--catalogue"])
+        .arg(&db)
+        .arg("--out")
+        .arg(&out)
+        .output()
+        .unwrap();
+    assert!(
+        run.status.success(),
+        "{}",
+        String::from_utf8_lossy(&run.stderr)
+    );
+    let html = std::fs::read_to_string(out.join("index.html")).unwrap();
+    assert!(html.contains("lead00.png"), "timeline of sessions shown");
+    assert!(html.contains("obs00-cand0000.png") && html.contains("night2.json"));
+    let timeline = image::open(out.join("lead00.png")).unwrap();
+    assert!(timeline.width() >= 1000);
+
+    let unknown = Command::new(env!("CARGO_BIN_EXE_burstbook"))
+        .args(["report", "--source", "NOBODY", "--catalogue"])
+        .arg(&db)
+        .arg("--out")
+        .arg(dir.path().join("x"))
+        .output()
+        .unwrap();
+    assert!(!unknown.status.success());
+    let err = String::from_utf8_lossy(&unknown.stderr);
+    assert!(
+        err.contains("NOBODY") && err.contains("book.sqlite"),
+        "{err}"
+    );
+}
+
+#[test]
+fn help_shows_examples() {
+    for cmd in ["report", "review"] {
+        let out = Command::new(env!("CARGO_BIN_EXE_burstbook"))
+            .args([cmd, "--help"])
+            .output()
+            .unwrap();
+        let text = String::from_utf8_lossy(&out.stdout);
+        assert!(
+            out.status.success() && text.contains("Examples:"),
+            "{cmd}: {text}"
+        );
+    }
+}

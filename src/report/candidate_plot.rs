@@ -93,7 +93,7 @@ fn draw(
     let mut rects = BTreeMap::new();
     {
         let root = BitMapBackend::with_buffer(&mut fig.rgb, SIZE).into_drawing_area();
-        let (head, body) = root.split_vertically(62);
+        let (head, body) = root.split_vertically(68);
         draw_header(&head, header, cand)?;
         let (left, right) = body.split_horizontally(640);
         let (prof_area, wf_area) = left.split_vertically(190);
@@ -122,18 +122,20 @@ fn draw_header(area: &Area, header: &Header, c: &Candidate) -> Result<()> {
     if !c.reasons.is_empty() {
         line2 += &format!(": {}", c.reasons.join("; "));
     }
+    let mut line3 = format!("{} detections merged", c.cluster_size);
     if let Some(f) = c.fluence_jy_ms {
-        line2 += &format!("   fluence {f:.2} Jy ms");
+        line3 += &format!("   fluence {f:.2} Jy ms");
     }
-    line2 += &format!("   {} detections merged   {}", c.cluster_size, c.file);
-    area.draw(&Text::new(line1, (12, 10), text(16)))
-        .map_err(draw_err)?;
-    area.draw(&Text::new(
-        line2,
-        (12, 36),
-        text(15).color(&verdict_colour(c.verdict)),
-    ))
-    .map_err(draw_err)?;
+    line3 += &format!("   {}", c.file);
+    let grey = RGBColor(90, 90, 90);
+    for (line, y, style) in [
+        (line1, 6, text(16)),
+        (line2, 29, text(14).color(&verdict_colour(c.verdict))),
+        (line3, 49, text(13).color(&grey)),
+    ] {
+        area.draw(&Text::new(line, (12, y), style))
+            .map_err(draw_err)?;
+    }
     Ok(())
 }
 
@@ -440,7 +442,7 @@ fn draw_neighbours(area: &Area, c: &Candidate, others: &[Detection]) -> Result<P
     let note = if others.is_empty() {
         "no other detections nearby".to_string()
     } else {
-        format!("{} other detections; ring = this one", others.len())
+        format!("other detections: {}; ring = this one", others.len())
     };
     let (px, py) = chart.plotting_area().get_pixel_range();
     let base = area.get_base_pixel();

@@ -5,6 +5,7 @@ use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 
 use super::candidate_plot::{Detection, candidate_figure_from_file};
+use super::figure::Figure;
 use super::overview::{bandpass, overview_figure};
 use crate::candidate::Candidate;
 use crate::error::{Error, Result};
@@ -57,6 +58,7 @@ impl Default for ReportOptions {
 }
 
 /// Writes `out_dir/index.html` and every PNG it shows; returns the index path.
+/// `lead_figures` (caption, figure) are shown first, e.g. a source's timeline.
 ///
 /// # Errors
 /// The output folder cannot be written, or an observation cannot be read.
@@ -64,8 +66,20 @@ pub fn write_report(
     out_dir: &Path,
     sections: &[ObsSection],
     opts: &ReportOptions,
+    lead_figures: &[(String, Figure)],
 ) -> Result<PathBuf> {
     std::fs::create_dir_all(out_dir).map_err(|e| Error::io(out_dir, e))?;
+    let mut lead = String::new();
+    for (i, (caption, fig)) in lead_figures.iter().enumerate() {
+        let name = format!("lead{i:02}.png");
+        fig.save_png(&out_dir.join(&name))?;
+        let _ = write!(
+            lead,
+            "<figure><img src=\"{name}\" alt=\"{c}\" width=\"{w}\"><figcaption>{c}</figcaption></figure>",
+            c = esc(caption),
+            w = fig.width,
+        );
+    }
     let total: usize = sections
         .iter()
         .map(|s| s.candidates.len().min(opts.max_plots))
@@ -83,7 +97,7 @@ pub fn write_report(
          <span class=\"unsure\">unsure</span>, <span class=\"rfi\">rfi</span>. Each figure: \
          profile and dedispersed waterfall (left), S/N against trial DM with the curve a dispersed \
          pulse of that width would follow (right, top), other detections nearby (right, bottom).</p>\
-         {body}</body></html>\n",
+         {lead}{body}</body></html>\n",
         t = esc(&opts.title),
         v = env!("CARGO_PKG_VERSION"),
     );

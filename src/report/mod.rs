@@ -13,6 +13,7 @@ pub mod load;
 pub mod overview;
 pub mod periodicity;
 pub mod review;
+pub mod source;
 pub mod stretch;
 pub mod waterfall;
 
