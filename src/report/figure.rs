@@ -98,6 +98,9 @@ impl Figure {
     }
 }
 
+/// A figure with the caption it is shown under.
+pub type CaptionedFigure = (String, Figure);
+
 /// Converts a plotters drawing error (only possible from a bug in our layout code,
 /// since the backend is an in-memory buffer) into our error type.
 pub(crate) fn draw_err<E: std::fmt::Debug>(e: E) -> Error {

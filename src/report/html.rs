@@ -5,7 +5,7 @@ use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 
 use super::candidate_plot::{Detection, candidate_figure_from_file};
-use super::figure::Figure;
+use super::figure::CaptionedFigure;
 use super::overview::{bandpass, overview_figure};
 use crate::candidate::Candidate;
 use crate::error::{Error, Result};
@@ -66,7 +66,7 @@ pub fn write_report(
     out_dir: &Path,
     sections: &[ObsSection],
     opts: &ReportOptions,
-    lead_figures: &[(String, Figure)],
+    lead_figures: &[CaptionedFigure],
 ) -> Result<PathBuf> {
     std::fs::create_dir_all(out_dir).map_err(|e| Error::io(out_dir, e))?;
     let mut lead = String::new();

@@ -3,7 +3,7 @@
 
 use std::path::{Path, PathBuf};
 
-use super::figure::Figure;
+use super::figure::CaptionedFigure;
 use super::html::ObsSection;
 use super::load::group_by_observation;
 use super::periodicity::timeline_figure;
@@ -21,7 +21,7 @@ pub fn source_report(
     cat: &Catalogue,
     source: &str,
     obs_dir: Option<&Path>,
-) -> Result<(Vec<ObsSection>, Vec<(String, Figure)>)> {
+) -> Result<(Vec<ObsSection>, Vec<CaptionedFigure>)> {
     let cands = cat.candidates(&CandidateFilter {
         source: Some(source.to_string()),
         ..CandidateFilter::default()
