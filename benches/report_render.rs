@@ -104,7 +104,12 @@ fn main() {
     sink.finish().unwrap();
 
     let cut = Cut::new(&h, &cand);
-    let runs = 15;
+    // `cargo bench` passes --bench; under `cargo test --all-targets` one smoke run.
+    let runs = if std::env::args().any(|a| a == "--bench") {
+        15
+    } else {
+        1
+    };
     let mut stages = [Vec::new(), Vec::new(), Vec::new(), Vec::new()];
     let mut png = Vec::new();
     for _ in 0..runs {
