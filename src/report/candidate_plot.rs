@@ -10,7 +10,10 @@ use plotters::prelude::*;
 
 use super::candidate_data::{self, Cut, Panels};
 use super::dm_curve::{DmCurve, expected_ratio};
-use super::figure::{Figure, MASKED_GREY, PanelRect, draw_err, text, verdict_colour, viridis};
+use super::figure::{
+    Figure, MASKED_GREY, PanelRect, draw_axes, draw_err, draw_legend, panel_rect, text,
+    verdict_colour, viridis,
+};
 use crate::candidate::{Candidate, Verdict};
 use crate::error::Result;
 use crate::obs::{Block, Header};
@@ -166,15 +169,7 @@ fn draw_profile(area: &Area, header: &Header, c: &Candidate, p: &Panels) -> Resu
         .y_label_area_size(64)
         .build_cartesian_2d(x.clone(), (lo - pad)..(hi + pad))
         .map_err(draw_err)?;
-    chart
-        .configure_mesh()
-        .disable_x_mesh()
-        .light_line_style(RGBColor(235, 235, 235))
-        .y_desc("S/N per bin")
-        .label_style(text(12))
-        .axis_desc_style(text(13))
-        .draw()
-        .map_err(draw_err)?;
+    draw_axes(&mut chart, "", "S/N per bin", false)?;
     let box_ms = p.cut.width as f64 * header.tsamp_s * 1e3;
     chart
         .draw_series(std::iter::once(Rectangle::new(
@@ -196,15 +191,8 @@ fn draw_profile(area: &Area, header: &Header, c: &Candidate, p: &Panels) -> Resu
     chart
         .draw_series(LineSeries::new(steps, BLACK.stroke_width(1)))
         .map_err(draw_err)?;
-    chart
-        .configure_series_labels()
-        .position(SeriesLabelPosition::UpperLeft)
-        .background_style(WHITE.mix(0.8))
-        .label_font(text(12))
-        .draw()
-        .map_err(draw_err)?;
-    let (px, py) = chart.plotting_area().get_pixel_range();
-    Ok(PanelRect::from_ranges(px, py))
+    draw_legend(&mut chart, SeriesLabelPosition::UpperLeft)?;
+    Ok(panel_rect(&chart))
 }
 
 fn draw_waterfall(
@@ -260,8 +248,7 @@ fn draw_waterfall(
         .axis_desc_style(text(13))
         .draw()
         .map_err(draw_err)?;
-    let (px, py) = chart.plotting_area().get_pixel_range();
-    Ok((PanelRect::from_ranges(px, py), lo, hi))
+    Ok((panel_rect(&chart), lo, hi))
 }
 
 fn draw_colour_bar(area: &Area, lo: f64, hi: f64) -> Result<()> {
@@ -329,15 +316,7 @@ fn draw_dm_curve(
         .y_label_area_size(52)
         .build_cartesian_2d(d0..d1, lo..hi)
         .map_err(draw_err)?;
-    chart
-        .configure_mesh()
-        .light_line_style(RGBColor(235, 235, 235))
-        .x_desc("trial DM (pc cm⁻³)")
-        .y_desc("S/N")
-        .label_style(text(12))
-        .axis_desc_style(text(13))
-        .draw()
-        .map_err(draw_err)?;
+    draw_axes(&mut chart, "trial DM (pc cm⁻³)", "S/N", true)?;
     let bw = header.bandwidth_mhz();
     let centre_ghz = (header.freq_lo_mhz() + header.freq_hi_mhz()) / 2e3;
     let expected = (0..=200).map(|i| {
@@ -376,16 +355,8 @@ fn draw_dm_curve(
             RGBColor(120, 120, 120).stroke_width(1),
         )))
         .map_err(draw_err)?;
-    chart
-        .configure_series_labels()
-        .position(SeriesLabelPosition::UpperRight)
-        .background_style(WHITE.mix(0.85))
-        .border_style(RGBColor(200, 200, 200))
-        .label_font(text(12))
-        .draw()
-        .map_err(draw_err)?;
-    let (px, py) = chart.plotting_area().get_pixel_range();
-    Ok(PanelRect::from_ranges(px, py))
+    draw_legend(&mut chart, SeriesLabelPosition::UpperRight)?;
+    Ok(panel_rect(&chart))
 }
 
 /// Marker radius in pixels for an S/N value (area grows with S/N).
@@ -413,15 +384,12 @@ fn draw_neighbours(area: &Area, c: &Candidate, others: &[Detection]) -> Result<P
             (dm_lo - dm_pad).max(0.0)..(dm_hi + dm_pad),
         )
         .map_err(draw_err)?;
-    chart
-        .configure_mesh()
-        .light_line_style(RGBColor(235, 235, 235))
-        .x_desc("time after start (s, ν→∞)")
-        .y_desc("DM (pc cm⁻³)")
-        .label_style(text(12))
-        .axis_desc_style(text(13))
-        .draw()
-        .map_err(draw_err)?;
+    draw_axes(
+        &mut chart,
+        "time after start (s, ν→∞)",
+        "DM (pc cm⁻³)",
+        true,
+    )?;
     chart
         .draw_series(others.iter().map(|d| {
             let colour = d.verdict.map_or(RGBColor(120, 120, 120), verdict_colour);
@@ -452,7 +420,7 @@ fn draw_neighbours(area: &Area, c: &Candidate, others: &[Detection]) -> Result<P
         text(12),
     ))
     .map_err(draw_err)?;
-    Ok(PanelRect::from_ranges(px, py))
+    Ok(panel_rect(&chart))
 }
 
 #[cfg(test)]

@@ -7,6 +7,8 @@ use std::io::Cursor;
 use std::path::Path;
 use std::sync::Once;
 
+use plotters::coord::CoordTranslate;
+use plotters::coord::ranged1d::{Ranged, ValueFormatter};
 use plotters::prelude::*;
 use plotters::style::{FontStyle, register_font};
 
@@ -105,6 +107,56 @@ pub type CaptionedFigure = (String, Figure);
 /// since the backend is an in-memory buffer) into our error type.
 pub(crate) fn draw_err<E: std::fmt::Debug>(e: E) -> Error {
     Error::Numerical(format!("plot drawing failed: {e:?}"))
+}
+
+/// Pixel box of a chart's data area.
+pub(crate) fn panel_rect<DB: DrawingBackend, CT: CoordTranslate>(
+    chart: &ChartContext<'_, DB, CT>,
+) -> PanelRect {
+    let (x, y) = chart.plotting_area().get_pixel_range();
+    PanelRect::from_ranges(x, y)
+}
+
+/// Draws the series legend in the house style at `pos`.
+pub(crate) fn draw_legend<'a, DB: DrawingBackend + 'a, CT: CoordTranslate>(
+    chart: &mut ChartContext<'a, DB, CT>,
+    pos: SeriesLabelPosition,
+) -> Result<()> {
+    chart
+        .configure_series_labels()
+        .position(pos)
+        .background_style(WHITE.mix(0.85))
+        .border_style(RGBColor(200, 200, 200))
+        .label_font(text(12))
+        .draw()
+        .map_err(draw_err)
+}
+
+/// Draws labelled axes with a faint grid (the grid lines along x only if `x_grid`).
+pub(crate) fn draw_axes<'a, DB, X, Y>(
+    chart: &mut ChartContext<'a, DB, Cartesian2d<X, Y>>,
+    x_desc: &str,
+    y_desc: &str,
+    x_grid: bool,
+) -> Result<()>
+where
+    DB: DrawingBackend,
+    X: Ranged + ValueFormatter<X::ValueType>,
+    Y: Ranged + ValueFormatter<Y::ValueType>,
+    X::ValueType: std::fmt::Debug,
+    Y::ValueType: std::fmt::Debug,
+{
+    let mut mesh = chart.configure_mesh();
+    if !x_grid {
+        mesh.disable_x_mesh();
+    }
+    mesh.light_line_style(RGBColor(235, 235, 235))
+        .x_desc(x_desc)
+        .y_desc(y_desc)
+        .label_style(text(12))
+        .axis_desc_style(text(13))
+        .draw()
+        .map_err(draw_err)
 }
 
 /// Okabe & Ito (2008, "Color Universal Design") colour-blind-safe colours, one per verdict.

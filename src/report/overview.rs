@@ -7,7 +7,10 @@ use plotters::coord::Shift;
 use plotters::prelude::*;
 
 use super::candidate_plot::marker_radius;
-use super::figure::{Figure, MASKED_GREY, PanelRect, draw_err, text, verdict_colour};
+use super::figure::{
+    Figure, MASKED_GREY, PanelRect, draw_axes, draw_err, draw_legend, panel_rect, text,
+    verdict_colour,
+};
 use crate::candidate::{Candidate, Verdict};
 use crate::error::Result;
 use crate::obs::{BlockReader, Header, SampleSource};
@@ -117,15 +120,12 @@ fn draw_time_dm(area: &Area, header: &Header, cands: &[Candidate]) -> Result<Pan
         .y_label_area_size(60)
         .build_cartesian_2d(0.0..header.duration_s().max(1e-3), 0.0..dm_hi)
         .map_err(draw_err)?;
-    chart
-        .configure_mesh()
-        .light_line_style(RGBColor(235, 235, 235))
-        .x_desc("time after start (s, arrival at ν→∞)")
-        .y_desc("DM (pc cm⁻³)")
-        .label_style(text(12))
-        .axis_desc_style(text(13))
-        .draw()
-        .map_err(draw_err)?;
+    draw_axes(
+        &mut chart,
+        "time after start (s, arrival at ν→∞)",
+        "DM (pc cm⁻³)",
+        true,
+    )?;
     // Weakest first so bright events sit on top.
     let mut order: Vec<&Candidate> = cands.iter().collect();
     order.sort_by(|a, b| a.snr.total_cmp(&b.snr));
@@ -146,16 +146,8 @@ fn draw_time_dm(area: &Area, header: &Header, cands: &[Candidate]) -> Result<Pan
             )
         }))
         .map_err(draw_err)?;
-    chart
-        .configure_series_labels()
-        .position(SeriesLabelPosition::UpperRight)
-        .background_style(WHITE.mix(0.85))
-        .border_style(RGBColor(200, 200, 200))
-        .label_font(text(12))
-        .draw()
-        .map_err(draw_err)?;
-    let (px, py) = chart.plotting_area().get_pixel_range();
-    Ok(PanelRect::from_ranges(px, py))
+    draw_legend(&mut chart, SeriesLabelPosition::UpperRight)?;
+    Ok(panel_rect(&chart))
 }
 
 fn draw_histogram(area: &Area, cands: &[Candidate]) -> Result<PanelRect> {
@@ -170,16 +162,7 @@ fn draw_histogram(area: &Area, cands: &[Candidate]) -> Result<PanelRect> {
         .y_label_area_size(50)
         .build_cartesian_2d(edges[0]..edges[HIST_BINS], 0.0..y_hi)
         .map_err(draw_err)?;
-    chart
-        .configure_mesh()
-        .disable_x_mesh()
-        .light_line_style(RGBColor(235, 235, 235))
-        .x_desc("S/N")
-        .y_desc("candidates")
-        .label_style(text(12))
-        .axis_desc_style(text(13))
-        .draw()
-        .map_err(draw_err)?;
+    draw_axes(&mut chart, "S/N", "candidates", false)?;
     // Stacked bars: astrophysical at the bottom, then unsure, then rfi.
     let mut base = [0usize; HIST_BINS];
     for (v, row) in VERDICTS.iter().zip(&counts) {
@@ -200,8 +183,7 @@ fn draw_histogram(area: &Area, cands: &[Candidate]) -> Result<PanelRect> {
             .collect();
         chart.draw_series(bars).map_err(draw_err)?;
     }
-    let (px, py) = chart.plotting_area().get_pixel_range();
-    Ok(PanelRect::from_ranges(px, py))
+    Ok(panel_rect(&chart))
 }
 
 fn draw_bandpass(area: &Area, header: &Header, bandpass: &[f64]) -> Result<PanelRect> {
@@ -229,16 +211,12 @@ fn draw_bandpass(area: &Area, header: &Header, bandpass: &[f64]) -> Result<Panel
             (lo - pad)..(hi + pad),
         )
         .map_err(draw_err)?;
-    chart
-        .configure_mesh()
-        .disable_x_mesh()
-        .light_line_style(RGBColor(235, 235, 235))
-        .x_desc("frequency (MHz)")
-        .y_desc("mean level (file units)")
-        .label_style(text(12))
-        .axis_desc_style(text(13))
-        .draw()
-        .map_err(draw_err)?;
+    draw_axes(
+        &mut chart,
+        "frequency (MHz)",
+        "mean level (file units)",
+        false,
+    )?;
     let masked = (0..header.n_chan()).filter(|&c| header.weights[c] == 0.0);
     chart
         .draw_series(masked.map(|c| {
@@ -261,16 +239,8 @@ fn draw_bandpass(area: &Area, header: &Header, bandpass: &[f64]) -> Result<Panel
         .map_err(draw_err)?
         .label("bandpass")
         .legend(|(x, y)| PathElement::new([(x, y), (x + 14, y)], BLACK.stroke_width(1)));
-    chart
-        .configure_series_labels()
-        .position(SeriesLabelPosition::LowerRight)
-        .background_style(WHITE.mix(0.85))
-        .border_style(RGBColor(200, 200, 200))
-        .label_font(text(12))
-        .draw()
-        .map_err(draw_err)?;
-    let (px, py) = chart.plotting_area().get_pixel_range();
-    Ok(PanelRect::from_ranges(px, py))
+    draw_legend(&mut chart, SeriesLabelPosition::LowerRight)?;
+    Ok(panel_rect(&chart))
 }
 
 #[cfg(test)]

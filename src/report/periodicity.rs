@@ -9,7 +9,9 @@ use plotters::coord::ranged1d::ValueFormatter;
 use plotters::coord::types::RangedCoordf64;
 use plotters::prelude::*;
 
-use super::figure::{Figure, PanelRect, draw_err, text, verdict_colour};
+use super::figure::{
+    Figure, PanelRect, draw_axes, draw_err, draw_legend, panel_rect, text, verdict_colour,
+};
 use crate::candidate::Verdict;
 use crate::error::{Error, Result};
 
@@ -107,15 +109,7 @@ fn draw_periodogram<X>(
 where
     X: Ranged<ValueType = f64> + ValueFormatter<f64>,
 {
-    chart
-        .configure_mesh()
-        .light_line_style(RGBColor(235, 235, 235))
-        .x_desc(p.period_label)
-        .y_desc(p.statistic_label)
-        .label_style(text(12))
-        .axis_desc_style(text(13))
-        .draw()
-        .map_err(draw_err)?;
+    draw_axes(chart, p.period_label, p.statistic_label, true)?;
     let grey = RGBColor(90, 90, 90);
     for (i, &(level, label)) in p.fap_levels.iter().enumerate() {
         chart
@@ -145,16 +139,8 @@ where
         .map_err(draw_err)?
         .label("best peak")
         .legend(move |(x, y)| Circle::new((x + 8, y), 5, peak.stroke_width(2)));
-    chart
-        .configure_series_labels()
-        .position(SeriesLabelPosition::UpperLeft)
-        .background_style(WHITE.mix(0.85))
-        .border_style(RGBColor(200, 200, 200))
-        .label_font(text(12))
-        .draw()
-        .map_err(draw_err)?;
-    let (px, py) = chart.plotting_area().get_pixel_range();
-    Ok(PanelRect::from_ranges(px, py))
+    draw_legend(chart, SeriesLabelPosition::UpperLeft)?;
+    Ok(panel_rect(chart))
 }
 
 /// Draws bursts per phase bin (bars) with the counts a constant rate would give
@@ -209,15 +195,7 @@ pub fn folded_figure(
             .y_label_area_size(64)
             .build_cartesian_2d(0.0..1.0, 0.0..c_hi)
             .map_err(draw_err)?;
-        chart
-            .configure_mesh()
-            .disable_x_mesh()
-            .light_line_style(RGBColor(235, 235, 235))
-            .y_desc("bursts")
-            .label_style(text(12))
-            .axis_desc_style(text(13))
-            .draw()
-            .map_err(draw_err)?;
+        draw_axes(&mut chart, "", "bursts", false)?;
         let blue = verdict_colour(Verdict::Astrophysical);
         chart
             .draw_series(counts.iter().enumerate().map(|(i, &c)| {
@@ -236,16 +214,8 @@ pub fn folded_figure(
             .map_err(draw_err)?
             .label("expected at a constant rate")
             .legend(|(x, y)| PathElement::new([(x, y), (x + 16, y)], BLACK.stroke_width(2)));
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::UpperRight)
-            .background_style(WHITE.mix(0.85))
-            .border_style(RGBColor(200, 200, 200))
-            .label_font(text(12))
-            .draw()
-            .map_err(draw_err)?;
-        let (px, py) = chart.plotting_area().get_pixel_range();
-        rects.insert("counts", PanelRect::from_ranges(px, py));
+        draw_legend(&mut chart, SeriesLabelPosition::UpperRight)?;
+        rects.insert("counts", panel_rect(&chart));
 
         let e_hi = exposure.iter().copied().fold(0.0, f64::max).max(1e-12) * 1.15;
         let mut chart = ChartBuilder::on(&lower)
@@ -254,24 +224,19 @@ pub fn folded_figure(
             .y_label_area_size(64)
             .build_cartesian_2d(0.0..1.0, 0.0..e_hi)
             .map_err(draw_err)?;
-        chart
-            .configure_mesh()
-            .disable_x_mesh()
-            .light_line_style(RGBColor(235, 235, 235))
-            .x_desc("phase (cycles)")
-            .y_desc(format!("exposure ({exposure_unit})"))
-            .label_style(text(12))
-            .axis_desc_style(text(13))
-            .draw()
-            .map_err(draw_err)?;
+        draw_axes(
+            &mut chart,
+            "phase (cycles)",
+            &format!("exposure ({exposure_unit})"),
+            false,
+        )?;
         chart
             .draw_series(exposure.iter().enumerate().map(|(i, &e)| {
                 let x = i as f64 * width;
                 Rectangle::new([(x, 0.0), (x + width, e)], RGBColor(150, 150, 150).filled())
             }))
             .map_err(draw_err)?;
-        let (px, py) = chart.plotting_area().get_pixel_range();
-        rects.insert("exposure", PanelRect::from_ranges(px, py));
+        rects.insert("exposure", panel_rect(&chart));
         root.present().map_err(draw_err)?;
     }
     fig.panels = rects;
@@ -382,16 +347,8 @@ pub fn timeline_figure(
             .legend(move |(x, y)| {
                 PathElement::new([(x + 7, y - 6), (x + 7, y + 6)], blue.stroke_width(2))
             });
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::UpperRight)
-            .background_style(WHITE.mix(0.85))
-            .border_style(RGBColor(200, 200, 200))
-            .label_font(text(12))
-            .draw()
-            .map_err(draw_err)?;
-        let (px, py) = chart.plotting_area().get_pixel_range();
-        rects.insert("timeline", PanelRect::from_ranges(px, py));
+        draw_legend(&mut chart, SeriesLabelPosition::UpperRight)?;
+        rects.insert("timeline", panel_rect(&chart));
         root.present().map_err(draw_err)?;
     }
     fig.panels = rects;
