@@ -280,3 +280,40 @@ fn server_refuses_foreign_hosts_and_non_json_posts_and_reports_bad_labels() {
         vec![(13, ReviewLabel::Interference, "x".to_string())]
     );
 }
+
+#[test]
+fn review_command_serves_the_catalogue_and_stops_on_quit() {
+    use std::io::BufRead;
+    let dir = tempfile::tempdir().unwrap();
+    let obs = dir.path().join("cli-night.json");
+    let t_inf = report_common::write_observation(&obs);
+    drop(catalogue_with_four(dir.path(), &obs, t_inf)); // writes review.sqlite
+    let mut child = Command::new(env!("CARGO_BIN_EXE_burstbook"))
+        .args(["review", "--catalogue"])
+        .arg(dir.path().join("review.sqlite"))
+        .stdout(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    let mut lines = std::io::BufReader::new(child.stdout.take().unwrap()).lines();
+    let first = lines.next().unwrap().unwrap();
+    assert!(first.starts_with("4 candidates to review"), "{first}");
+    let second = lines.next().unwrap().unwrap();
+    let url = second
+        .split_whitespace()
+        .find(|w| w.starts_with("http://127.0.0.1:"))
+        .unwrap_or_else(|| panic!("no URL in {second:?}"))
+        .to_string();
+    let (code, items) = request(
+        &url,
+        "GET /api/items HTTP/1.1\r\nHost: {HOST}\r\nConnection: close\r\n\r\n",
+    );
+    assert_eq!(code, 200);
+    assert!(items.contains("cli-night.json"));
+    let (code, _) = request(
+        &url,
+        "POST /api/quit HTTP/1.1\r\nHost: {HOST}\r\nContent-Length: 0\r\nConnection: close\r\n\r\n",
+    );
+    assert_eq!(code, 200);
+    assert!(child.wait().unwrap().success());
+    assert_eq!(lines.next().unwrap().unwrap(), "review finished");
+}
