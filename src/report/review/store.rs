@@ -74,8 +74,7 @@ pub trait LabelStore: Send {
     fn record(&mut self, id: i64, label: ReviewLabel, comment: &str) -> Result<()>;
 }
 
-/// Labels kept in memory: for tests and for reviewing a candidate file without a
-/// catalogue (labels are then lost on exit, which the page says).
+/// Labels kept in memory (lost on exit): for tests of the page and server.
 #[derive(Debug, Clone, Default)]
 pub struct MemoryStore {
     pub items: Vec<ReviewItem>,
