@@ -15,6 +15,7 @@ pub mod cluster;
 pub mod dedisperse;
 pub mod error;
 pub mod obs;
+pub mod period;
 pub mod progress;
 pub mod report;
 pub mod robust;

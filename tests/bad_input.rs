@@ -108,6 +108,21 @@ fn native_truncated_or_oversized_data() {
 }
 
 #[test]
+fn native_absurd_shape() {
+    let dir = tempfile::tempdir().unwrap();
+    let (json, npy) = native_pair(dir.path(), "a", 8);
+    let mut bytes = std::fs::read(&npy).unwrap();
+    let at = bytes.windows(7).position(|w| w == b"(10, 4)").unwrap();
+    let huge = b"(4611686018427387904, 4)";
+    bytes.splice(at..at + 7, huge.iter().copied());
+    // Keep the header length field consistent (version 1: u16 at bytes 8..10).
+    let len = u16::from_le_bytes([bytes[8], bytes[9]]) + (huge.len() - 7) as u16;
+    bytes[8..10].copy_from_slice(&len.to_le_bytes());
+    std::fs::write(&npy, bytes).unwrap();
+    assert_bad(open_and_read(&json), &npy, "needs");
+}
+
+#[test]
 fn native_header_disagreeing_with_data() {
     let dir = tempfile::tempdir().unwrap();
     let (json, _) = native_pair(dir.path(), "a", 8);
@@ -129,7 +144,8 @@ fn native_unsupported_dtype() {
 #[test]
 fn native_wrong_json_types_and_values() {
     let dir = tempfile::tempdir().unwrap();
-    let cases: [(&str, fn(&mut serde_json::Value), &str); 6] = [
+    type Edit = fn(&mut serde_json::Value);
+    let cases: [(&str, Edit, &str); 6] = [
         (
             "type",
             |v| v["sample_time_s"] = "fast".into(),
@@ -246,6 +262,10 @@ fn fits_unsupported_or_inconsistent_keywords() {
         ("OBS_MODE", "OBS_MODE= 'PSR     '", "OBS_MODE is 'PSR'"),
         ("RA", "RA      = 'noon    '", "RA 'noon'"),
         ("ANT_X", "ANT_X   = 'here    '", "ANT_X is not a number"),
+        // Absurd sizes from a corrupt header: an error, not an overflow or a huge allocation.
+        ("NAXIS2", "NAXIS2  =  9223372036854775807", "truncated"),
+        ("NSBLK", "NSBLK   =  9223372036854775807", "DATA holds"),
+        ("TFORM7", "TFORM7  = '9223372036854775807E'", "too large"),
     ];
     for (key, card, needle) in cases {
         let path = fits_file(dir.path(), key, 8, 1.0);
@@ -264,6 +284,18 @@ fn fits_nan_samples() {
     bytes[at + 4 * 6..at + 4 * 7].copy_from_slice(&f32::NAN.to_be_bytes());
     std::fs::write(&path, bytes).unwrap();
     assert_bad(open_and_read(&path), &path, "sample 1 of channel 2 is NaN");
+
+    // The same NaN in a channel of weight 0 is masked, not an error.
+    let mut h = header(4, 10, 32);
+    h.weights[2] = 0.0;
+    write(&path, &h, Container::Fits, 12345.5);
+    let mut bytes = std::fs::read(&path).unwrap();
+    let at = bytes.windows(4).position(|w| w == marker).unwrap();
+    bytes[at + 4 * 6..at + 4 * 7].copy_from_slice(&f32::NAN.to_be_bytes());
+    std::fs::write(&path, bytes).unwrap();
+    let data = obs::read_all(&mut obs::open(&path).unwrap(), 3).unwrap();
+    assert_eq!(data[4 + 2], 0.0);
+    assert_eq!(data.iter().filter(|&&v| v == 0.0).count(), 10);
 }
 
 #[test]
@@ -325,6 +357,8 @@ fn binary_reports_bad_input_in_one_line() {
     let fits = fits_file(dir.path(), "bits", 8, 1.0);
     patch_card(&fits, "NBITS", "NBITS   =                   12");
     assert_one_line_failure(&fits, "NBITS = 12");
+    let (_, npy) = native_pair(dir.path(), "direct", 8);
+    assert_one_line_failure(&npy, "open the .json header");
 }
 
 #[test]

@@ -251,6 +251,10 @@ fn interference_lands_where_scheduled() {
 [[rfi.narrowband]]
 freq_mhz = 1400.0
 strength = 3.0
+[[rfi.narrowband]]
+freq_mhz = 1250.0
+strength = 4.0
+modulation_period_s = 1.0
 [[rfi.impulse]]
 t_s = 0.8
 width_ms = 2.0
@@ -269,7 +273,7 @@ freq_hi_mhz = 1500.0
     let kinds = |k| sim.truth.iter().filter(|r| r.kind == k).count();
     assert_eq!(kinds(TruthKind::RfiImpulse), 1);
     assert_eq!(kinds(TruthKind::RfiTrainPulse), 4); // 0.25, 0.75, 1.25, 1.75 s
-    assert_eq!(kinds(TruthKind::RfiNarrowband), 1);
+    assert_eq!(kinds(TruthKind::RfiNarrowband), 2);
     let rows = all_rows(&sim);
 
     // The carrier's channel has a raised mean; its neighbours do not.
@@ -292,10 +296,37 @@ freq_hi_mhz = 1500.0
         chan_mean(carrier)
     );
     assert!(chan_mean(carrier + 2).abs() < 0.1);
+    // The modulated carrier follows ½(1 + sin 2πt/P): full near t = 0.25 s, gone near 0.75 s.
+    let modulated = h
+        .freqs_mhz
+        .iter()
+        .position(|f| (f - 1250.0).abs() <= 3.125)
+        .unwrap();
+    let mean_over = |t0: usize| {
+        (t0..t0 + 100)
+            .map(|t| f64::from(rows[t * 64 + modulated]))
+            .sum::<f64>()
+            / 100.0
+    };
+    assert!(
+        mean_over(200) > 3.0 && mean_over(1200) > 3.0,
+        "{} {}",
+        mean_over(200),
+        mean_over(1200)
+    );
+    assert!(
+        mean_over(700).abs() < 0.6 && mean_over(1700).abs() < 0.6,
+        "{}",
+        mean_over(700)
+    );
 
     // DM-0 pulses: the band sum (carrier excluded) peaks at each scheduled time.
     let zero_dm = dedisperse_sum(&h, &rows, 0.0, &|c, v| {
-        if c == carrier { 0.0 } else { f64::from(v) }
+        if c == carrier || c == modulated {
+            0.0
+        } else {
+            f64::from(v)
+        }
     });
     for row in sim
         .truth
@@ -355,6 +386,8 @@ fn bad_scenarios_give_one_clear_message() {
     let cases = [
         ("nbits = 8", "nbits = 12", "nbits"),
         ("[[burst]]", "[[burst]]\nfluence_jy_ms = 1.0", "exactly one"),
+        ("index = -1.5", "indx = -1.5", "indx"),
+        ("kind = \"gaussian\"", "kind = \"lorentzian\"", "lorentzian"),
     ];
     for (from, to, needle) in cases {
         let e = Scenario::parse(&base.replacen(from, to, 1)).unwrap_err();
@@ -368,4 +401,13 @@ fn bad_scenarios_give_one_clear_message() {
     );
     let e = Scenario::parse(&late).unwrap_err();
     assert!(e.contains("burst 1") && e.contains("outside"), "{e}");
+}
+
+// The demo data live in the repository: keep them under 20 MB (project rule).
+#[test]
+fn demo_scenario_fits_the_repository_budget() {
+    let path = concat!(env!("CARGO_MANIFEST_DIR"), "/demo-data/scenario.toml");
+    let h = Scenario::load(std::path::Path::new(path)).unwrap().header();
+    let bytes = h.n_chan() as u64 * h.n_samples * u64::from(h.nbits) / 8;
+    assert!(bytes < 20_000_000, "{bytes} bytes");
 }

@@ -9,7 +9,7 @@ use burstbook::obs::{self, Container, Header, OpenOptions, geodesy};
 /// Arguments of `inspect`.
 #[derive(clap::Args, Debug)]
 #[command(after_help = "Examples:
-  burstbook inspect demo-data/obs.json            header, statistics, suspicious channels
+  burstbook inspect demo-data/demo.json            header, statistics, suspicious channels
   burstbook inspect survey.fits --channels        plus a line per channel
   burstbook inspect survey.fits --json > s.json   everything, machine-readable
 
@@ -38,6 +38,7 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     let stats = stats::compute(source, |n| bar.inc(n))
         .with_context(|| format!("inspecting {}", args.file.display()))?;
     bar.finish_and_clear();
+    let mut text = String::new();
     if args.json {
         let out = serde_json::json!({
             "file": args.file,
@@ -47,12 +48,21 @@ pub fn run(args: Args) -> anyhow::Result<()> {
             "duration_s": header.duration_s(),
             "statistics": stats,
         });
-        println!("{}", serde_json::to_string_pretty(&out)?);
+        text = serde_json::to_string_pretty(&out)? + "\n";
     } else {
-        print_header(&args.file, container, &header);
-        print_stats(&stats, args.channels);
+        write_header(&mut text, &args.file, container, &header);
+        write_stats(&mut text, &stats, args.channels)?;
     }
-    Ok(())
+    emit(&text)
+}
+
+/// Writes `text` to stdout; a closed pipe (`inspect … | head`) is not an error.
+fn emit(text: &str) -> anyhow::Result<()> {
+    use std::io::Write;
+    match std::io::stdout().lock().write_all(text.as_bytes()) {
+        Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => Ok(()),
+        other => Ok(other?),
+    }
 }
 
 /// The start as an ISO-8601 UTC string (days of 86400 s).
@@ -63,13 +73,13 @@ fn utc_string(h: &Header) -> String {
     format!("{date}T{hms}")
 }
 
-fn print_header(file: &std::path::Path, container: Container, h: &Header) {
+fn write_header(out: &mut String, file: &std::path::Path, container: Container, h: &Header) {
     let order = if h.is_descending() {
         "descending"
     } else {
         "ascending"
     };
-    let row = |k: &str, v: String| println!("{k:<12} {v}");
+    let mut row = |k: &str, v: String| out.push_str(&format!("{k:<12} {v}\n"));
     let kind = match container {
         Container::Native => "native .json + .npy",
         Container::Fits => "FITS search mode",
@@ -125,40 +135,47 @@ fn print_header(file: &std::path::Path, container: Container, h: &Header) {
     }
 }
 
-fn print_stats(s: &ObsStats, per_channel: bool) {
+fn write_stats(out: &mut String, s: &ObsStats, per_channel: bool) -> std::fmt::Result {
+    use std::fmt::Write;
     let d = &s.data;
-    println!(
+    writeln!(
+        out,
         "{:<12} mean {:.4}, std {:.4}, min {:.4}, max {:.4}, NaN {}, Inf {}",
         "data", d.mean, d.std, d.min, d.max, d.nan_count, d.inf_count
-    );
+    )?;
     if per_channel {
-        println!(
+        writeln!(
+            out,
             "{:>6} {:>12} {:>6} {:>12} {:>12} {:>12} {:>12} {:>8}",
             "chan", "freq_mhz", "weight", "mean", "std", "median", "robust_std", "non_fin"
-        );
+        )?;
         for c in &s.channels {
-            println!(
+            writeln!(
+                out,
                 "{:>6} {:>12.4} {:>6} {:>12.4} {:>12.4} {:>12.4} {:>12.4} {:>8}",
                 c.index, c.freq_mhz, c.weight, c.mean, c.std, c.median, c.robust_std, c.non_finite
-            );
+            )?;
         }
     }
     if s.bad_channels.is_empty() {
-        println!("{:<12} none look bad", "channels");
-        return;
+        writeln!(out, "{:<12} none look bad", "channels")?;
+        return Ok(());
     }
-    println!(
+    writeln!(
+        out,
         "{:<12} {} of {} look bad:",
         "channels",
         s.bad_channels.len(),
         s.channels.len()
-    );
+    )?;
     for b in &s.bad_channels {
-        println!(
+        writeln!(
+            out,
             "  {:>5} ({:.4} MHz): {}",
             b.index,
             b.freq_mhz,
             b.reasons.join("; ")
-        );
+        )?;
     }
+    Ok(())
 }

@@ -6,6 +6,8 @@ mod book;
 mod inspect;
 mod report;
 mod review;
+mod period;
+mod plan;
 mod search;
 mod simulate;
 
@@ -35,6 +37,10 @@ enum Command {
     Barycentre(barycentre::Args),
     /// The burst catalogue: query, label, promote, sources, exposure, summary, VOEvent.
     Book(book::Args),
+    /// Choose trial DMs and time resolutions for a band, and estimate the cost.
+    Plan(plan::Args),
+    /// Periodicity tests on burst arrival times: rotation, activity cycles, statistics.
+    Period(period::Args),
 }
 
 /// Runs the chosen subcommand.
@@ -47,5 +53,7 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Simulate(a) => simulate::run(a),
         Command::Barycentre(a) => barycentre::run(a),
         Command::Book(a) => book::run(a),
+        Command::Plan(a) => plan::run(a),
+        Command::Period(a) => period::run(a),
     }
 }

@@ -10,11 +10,54 @@
 //!   samples, i.e. time is the arrival at the top channel, in downsampled samples
 //!   from the block start;
 //! - every step yields `(n_time - plan.max_delay_samples()) / downsample` valid samples.
+//!
+//! Kernels: [`reference`](mod@reference) (per-channel shifts, the plain check) and
+//! [`FastDedisperser`]: merge trees inside 64-channel sub-bands (after the FDMT,
+//! Zackay & Ofek 2017, ApJ 835, 11), then per-trial sums of one row per sub-band.
+//! Its delays are rounded along the trees — at half the output sample for
+//! downsampled steps — so per-channel delays differ from the exact ones by about 0.5
+//! tree samples rms (at most 2) instead of the reference's 0.29 (at most 0.5); every
+//! output sample still sums exactly `downsample` input samples per channel, so its
+//! noise equals the reference's. See `docs/dedisperse.md`.
 
+mod cost;
+mod fast;
 mod plan;
 pub mod reference;
+mod subband;
+mod summary;
+mod tree;
 
+pub use cost::PlanCost;
+pub use fast::FastDedisperser;
 pub use plan::{DmPlan, DmStep, PlanRequest};
+pub use summary::{PlanReport, StepSummary, channel_centres_mhz};
+
+use ndarray::ArrayView2;
+
+/// Which dedispersion kernel to run.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, serde::Serialize, serde::Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Kernel {
+    /// Per-channel integer shifts and sums ([`reference::dedisperse`]).
+    Reference,
+    /// The tree kernel ([`FastDedisperser`]).
+    #[default]
+    Fast,
+}
+
+/// Dedisperses `input` (`[channel, time]`) for every step of `plan` with `kernel`.
+/// To run many blocks, keep a [`FastDedisperser`] instead: it reuses its trees and
+/// scratch buffers.
+///
+/// # Panics
+/// If `input` has a different channel count from the plan (a caller bug).
+pub fn dedisperse(input: ArrayView2<'_, f32>, plan: &DmPlan, kernel: Kernel) -> Vec<Dedispersed> {
+    match kernel {
+        Kernel::Reference => reference::dedisperse(input, plan),
+        Kernel::Fast => FastDedisperser::new(plan).dedisperse(input),
+    }
+}
 
 /// Output of one [`DmStep`]: one dedispersed time series per trial DM.
 #[derive(Debug, Clone, PartialEq)]

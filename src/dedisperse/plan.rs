@@ -3,6 +3,11 @@
 use serde::{Deserialize, Serialize};
 
 use super::channel_delays;
+use crate::error::{Error, Result};
+use crate::units::{DISPERSION_CONSTANT_S_MHZ2, channel_smearing_s};
+
+/// More trials than this is almost certainly a mistaken request.
+const MAX_TRIALS: usize = 10_000_000;
 
 /// What the user asks of a DM plan; [`DmPlan`] is what the planner makes of it.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -14,8 +19,10 @@ pub struct PlanRequest {
     pub dm_max: f64,
     /// Narrowest intrinsic pulse width searched, in seconds.
     pub min_width_s: f64,
-    /// Allowed smearing growth between neighbouring trials (e.g. 1.25: the effective
-    /// width grows by at most 25 % half-way between trials).
+    /// Allowed growth of the effective width over one full step between neighbouring
+    /// trials (e.g. 1.25: a burst at the next trial's DM, searched at this one, is
+    /// smeared to at most 1.25 × the effective width). Half-way between trials, the
+    /// worst case, the width grows by at most √(1 + (tol² − 1)/4) (1.068 for 1.25).
     pub tolerance: f64,
     /// Largest time-resolution reduction factor (a power of two).
     pub max_downsample: usize,
@@ -82,9 +89,73 @@ impl DmPlan {
         }
     }
 
+    /// Plans trial DMs `request.dm_min..=request.dm_max` so that the effective width
+    /// grows by at most `request.tolerance` from one trial to the next, reducing the
+    /// time resolution where dispersion smearing already exceeds it.
+    ///
+    /// With B = k(ν_lo⁻² − ν_hi⁻²) the dispersion sweep per unit DM across the band
+    /// (edges) and ν_c the band centre (Cordes & McLaughlin 2003, ApJ 596, 1142):
+    /// - downsampling n(DM): smallest power of two with t_chan(DM, ν_c) < 2n·t_s,
+    ///   capped at `max_downsample`;
+    /// - W_eff(DM)² = W_int² + (n·t_s)² + t_chan(DM, ν_c)²;
+    /// - DM_{i+1} = DM_i + √(tol² − 1)·W_eff(DM_i)/B, since a DM error δDM smears the
+    ///   burst by B·δDM, added in quadrature to W_eff.
+    ///
+    /// The last trial is `dm_max` itself. Consecutive trials with the same
+    /// downsampling form one [`DmStep`].
+    ///
+    /// # Errors
+    /// [`Error::Config`] for an empty band, non-positive sample time or channel width,
+    /// a negative or inverted DM range, `tolerance <= 1`, a negative width, a
+    /// `max_downsample` that is not a power of two, or more than ten million trials.
+    pub fn build(
+        freqs_mhz: &[f64],
+        chan_bw_mhz: f64,
+        tsamp_s: f64,
+        request: &PlanRequest,
+    ) -> Result<DmPlan> {
+        let planner = Planner::new(freqs_mhz, chan_bw_mhz, tsamp_s, request)?;
+        let mut steps: Vec<DmStep> = Vec::new();
+        let mut dm = request.dm_min;
+        let mut n_trials = 0usize;
+        loop {
+            let downsample = planner.downsample_at(dm);
+            match steps.last_mut() {
+                Some(step) if step.downsample == downsample => step.dms.push(dm),
+                _ => steps.push(DmStep {
+                    dms: vec![dm],
+                    downsample,
+                }),
+            }
+            n_trials += 1;
+            if n_trials > MAX_TRIALS {
+                return Err(Error::Config(format!(
+                    "more than {MAX_TRIALS} trial DMs: raise the tolerance or narrow the DM range"
+                )));
+            }
+            if dm >= request.dm_max {
+                break;
+            }
+            dm = (dm + planner.step_at(dm)).min(request.dm_max);
+        }
+        Ok(DmPlan {
+            freqs_mhz: freqs_mhz.to_vec(),
+            chan_bw_mhz,
+            tsamp_s,
+            steps,
+        })
+    }
+
     /// Total number of trial DMs.
     pub fn n_trials(&self) -> usize {
         self.steps.iter().map(|s| s.dms.len()).sum()
+    }
+
+    /// All trial DMs in ascending order, with their step's downsampling factor.
+    pub fn trials(&self) -> impl Iterator<Item = (f64, usize)> + '_ {
+        self.steps
+            .iter()
+            .flat_map(|s| s.dms.iter().map(move |&dm| (dm, s.downsample)))
     }
 
     /// Largest trial DM in pc cm⁻³ (0 for an empty plan).
@@ -104,3 +175,109 @@ impl DmPlan {
             .unwrap_or(0)
     }
 }
+
+/// The plan formulae for one band and request (see [`DmPlan::build`]).
+#[derive(Debug, Clone)]
+pub(crate) struct Planner {
+    tsamp_s: f64,
+    chan_bw_mhz: f64,
+    centre_mhz: f64,
+    /// Sweep across the band per unit DM, seconds per pc cm⁻³.
+    sweep_s_per_dm: f64,
+    min_width_s: f64,
+    tolerance: f64,
+    max_downsample: usize,
+}
+
+impl Planner {
+    pub(crate) fn new(
+        freqs_mhz: &[f64],
+        chan_bw_mhz: f64,
+        tsamp_s: f64,
+        request: &PlanRequest,
+    ) -> Result<Planner> {
+        let bad = |msg: String| Err(Error::Config(msg));
+        if freqs_mhz.is_empty() || freqs_mhz.iter().any(|f| !(f.is_finite() && *f > 0.0)) {
+            return bad("the band needs at least one positive channel frequency".into());
+        }
+        if !(chan_bw_mhz.is_finite() && chan_bw_mhz != 0.0) {
+            return bad(format!(
+                "channel width must be non-zero, got {chan_bw_mhz} MHz"
+            ));
+        }
+        if !(tsamp_s.is_finite() && tsamp_s > 0.0) {
+            return bad(format!("sample time must be positive, got {tsamp_s} s"));
+        }
+        let PlanRequest {
+            dm_min,
+            dm_max,
+            min_width_s,
+            tolerance,
+            max_downsample,
+        } = *request;
+        if !(dm_min.is_finite() && dm_max.is_finite() && 0.0 <= dm_min && dm_min <= dm_max) {
+            return bad(format!(
+                "DM range must satisfy 0 <= dm_min <= dm_max, got {dm_min}..{dm_max}"
+            ));
+        }
+        if !(tolerance.is_finite() && tolerance > 1.0) {
+            return bad(format!("tolerance must exceed 1, got {tolerance}"));
+        }
+        if !(min_width_s.is_finite() && min_width_s >= 0.0) {
+            return bad(format!("minimum width must be >= 0, got {min_width_s} s"));
+        }
+        if !max_downsample.is_power_of_two() {
+            return bad(format!(
+                "max downsample must be a power of two, got {max_downsample}"
+            ));
+        }
+        let half = chan_bw_mhz.abs() / 2.0;
+        let lo = freqs_mhz.iter().copied().fold(f64::INFINITY, f64::min) - half;
+        let hi = freqs_mhz.iter().copied().fold(f64::NEG_INFINITY, f64::max) + half;
+        if lo <= 0.0 {
+            return bad(format!("band edge {lo} MHz is not positive"));
+        }
+        Ok(Planner {
+            tsamp_s,
+            chan_bw_mhz: chan_bw_mhz.abs(),
+            centre_mhz: (lo + hi) / 2.0,
+            sweep_s_per_dm: DISPERSION_CONSTANT_S_MHZ2 * (lo.powi(-2) - hi.powi(-2)),
+            min_width_s,
+            tolerance,
+            max_downsample,
+        })
+    }
+
+    /// Intra-channel smearing at the band centre, seconds.
+    fn channel_smearing_s(&self, dm: f64) -> f64 {
+        channel_smearing_s(dm, self.chan_bw_mhz, self.centre_mhz)
+    }
+
+    /// Smallest power of two n with t_chan(ν_c) < 2n·t_s, capped.
+    pub(crate) fn downsample_at(&self, dm: f64) -> usize {
+        let mut n = 1;
+        while n < self.max_downsample
+            && self.channel_smearing_s(dm) >= 2.0 * n as f64 * self.tsamp_s
+        {
+            n *= 2;
+        }
+        n
+    }
+
+    /// W_eff² = W_int² + (n·t_s)² + t_chan², seconds.
+    pub(crate) fn effective_width_s(&self, dm: f64) -> f64 {
+        let sample = self.downsample_at(dm) as f64 * self.tsamp_s;
+        self.min_width_s
+            .hypot(sample)
+            .hypot(self.channel_smearing_s(dm))
+    }
+
+    /// DM step from a trial at `dm`, pc cm⁻³.
+    pub(crate) fn step_at(&self, dm: f64) -> f64 {
+        (self.tolerance.powi(2) - 1.0).sqrt() * self.effective_width_s(dm) / self.sweep_s_per_dm
+    }
+}
+
+#[cfg(test)]
+#[path = "plan_tests.rs"]
+mod tests;

@@ -11,12 +11,25 @@ pub fn quantise(v: f32, nbits: u32) -> f32 {
     v.round().clamp(0.0, max)
 }
 
+/// Whether no value is NaN or infinite.
+pub fn all_finite(values: &[f32]) -> bool {
+    // An exponent of all ones marks NaN and ±Inf; OR-reducing the test over the slice
+    // vectorises (no early exit), so the common all-finite case costs one cheap pass.
+    const EXP: u32 = 0x7f80_0000;
+    !values
+        .iter()
+        .fold(false, |acc, v| acc | (v.to_bits() & EXP == EXP))
+}
+
 /// Fails on the first NaN or infinite value in `rows` (`[time, channel]`), naming the
 /// sample (counted from `first_row`) and the channel.
 ///
 /// # Errors
 /// [`Error::BadInput`] naming `path`.
 pub fn check_finite(path: &Path, rows: &[f32], n_chan: usize, first_row: u64) -> Result<()> {
+    if all_finite(rows) {
+        return Ok(());
+    }
     match rows.iter().position(|v| !v.is_finite()) {
         None => Ok(()),
         Some(i) => Err(Error::bad_input(
@@ -48,6 +61,34 @@ pub fn check_whole_rows(path: &Path, rows: &[f32], n_chan: usize) -> Result<()> 
             ),
         ))
     }
+}
+
+/// Fails if adding `adding` rows to `written` would pass the `announced` count.
+///
+/// # Errors
+/// [`Error::BadInput`] naming `path`.
+pub fn check_room(path: &Path, written: u64, adding: u64, announced: u64) -> Result<()> {
+    if written + adding > announced {
+        return Err(Error::bad_input(
+            path,
+            format!("more rows written than the {announced} announced"),
+        ));
+    }
+    Ok(())
+}
+
+/// Fails unless a finished writer received exactly the `announced` rows.
+///
+/// # Errors
+/// [`Error::BadInput`] naming `path`.
+pub fn check_complete(path: &Path, written: u64, announced: u64) -> Result<()> {
+    if written != announced {
+        return Err(Error::bad_input(
+            path,
+            format!("{written} rows written but the header announced {announced}"),
+        ));
+    }
+    Ok(())
 }
 
 #[cfg(test)]

@@ -43,6 +43,12 @@ impl Container {
         {
             Some(e) if e == "json" => return Ok(Container::Native),
             Some(e) if e == "fits" || e == "sf" || e == "fit" => return Ok(Container::Fits),
+            Some(e) if e == "npy" => {
+                return Err(Error::bad_input(
+                    path,
+                    "this holds only the samples: open the .json header beside it",
+                ));
+            }
             _ => {}
         }
         let mut head = [0u8; 9];
@@ -90,6 +96,25 @@ pub fn open_with(path: &Path, options: OpenOptions) -> Result<Box<dyn SampleSour
     match Container::detect(path)? {
         Container::Native => Ok(Box::new(native::NativeReader::open(path, lenient)?)),
         Container::Fits => Ok(Box::new(fits::FitsReader::open(path, lenient)?)),
+    }
+}
+
+/// Reads every remaining row of `source`, `rows_per_read` rows per call, into one
+/// `[time, channel]` vector. For tests and small files only: memory grows with
+/// the file (stream with [`BlockReader`] instead).
+///
+/// # Errors
+/// Whatever the source reports.
+pub fn read_all<S: SampleSource>(source: &mut S, rows_per_read: usize) -> Result<Vec<f32>> {
+    let n_chan = source.header().n_chan();
+    let mut buf = vec![f32::NAN; rows_per_read.max(1) * n_chan];
+    let mut all = Vec::new();
+    loop {
+        let n = source.read_rows(&mut buf)?;
+        if n == 0 {
+            return Ok(all);
+        }
+        all.extend_from_slice(&buf[..n * n_chan]);
     }
 }
 

@@ -8,7 +8,7 @@ use std::path::{Path, PathBuf};
 
 use serde::{Deserialize, Serialize};
 
-use super::codec::{check_finite, check_whole_rows, quantise};
+use super::codec::{check_complete, check_finite, check_room, check_whole_rows, quantise};
 use super::npy::{self, Dtype};
 use super::{Header, SampleSink, SampleSource, Site, UtcEpoch};
 use crate::error::{Error, Result};
@@ -186,10 +186,11 @@ impl NativeReader {
                 ),
             ));
         }
-        let header = json
-            .to_header(npy.dtype, n_samples)
-            .map_err(|m| Error::bad_input(path, m))?;
-        let expected = npy.data_offset + n_samples * n_chan * npy.dtype.size() as u64;
+        let expected = n_samples
+            .checked_mul(n_chan)
+            .and_then(|v| v.checked_mul(npy.dtype.size() as u64))
+            .and_then(|b| b.checked_add(npy.data_offset))
+            .unwrap_or(u64::MAX);
         if file_len != expected {
             return Err(Error::bad_input(
                 &data_path,
@@ -203,6 +204,9 @@ impl NativeReader {
                 ),
             ));
         }
+        let header = json
+            .to_header(npy.dtype, n_samples)
+            .map_err(|m| Error::bad_input(path, m))?;
         Ok(NativeReader {
             header,
             data_path,
@@ -232,7 +236,8 @@ impl SampleSource for NativeReader {
             )
         })?;
         self.dtype.decode(&self.bytes, &mut out[..n]);
-        if !self.allow_non_finite {
+        // Integer samples are always finite.
+        if self.dtype == Dtype::F32 && !self.allow_non_finite {
             check_finite(&self.data_path, &out[..n], n_chan, self.rows_read)?;
         }
         self.rows_read += rows as u64;
@@ -312,12 +317,7 @@ impl SampleSink for NativeWriter {
         check_whole_rows(&self.data_path, rows, self.n_chan)?;
         check_finite(&self.data_path, rows, self.n_chan, self.rows_written)?;
         let n_rows = (rows.len() / self.n_chan) as u64;
-        if self.rows_written + n_rows > self.n_samples {
-            return Err(Error::bad_input(
-                &self.data_path,
-                format!("more rows written than the {} announced", self.n_samples),
-            ));
-        }
+        check_room(&self.data_path, self.rows_written, n_rows, self.n_samples)?;
         let values = if self.dtype == Dtype::F32 {
             rows
         } else {
@@ -340,16 +340,7 @@ impl SampleSink for NativeWriter {
         self.file
             .flush()
             .map_err(|e| Error::io(&self.data_path, e))?;
-        if self.rows_written != self.n_samples {
-            return Err(Error::bad_input(
-                &self.data_path,
-                format!(
-                    "{} rows written but the header announced {}",
-                    self.rows_written, self.n_samples
-                ),
-            ));
-        }
-        Ok(())
+        check_complete(&self.data_path, self.rows_written, self.n_samples)
     }
 }
 
@@ -368,16 +359,7 @@ mod tests {
 
     fn read_all(path: &Path) -> (Header, Vec<f32>) {
         let mut r = NativeReader::open(path, false).unwrap();
-        let n = r.header().n_chan();
-        let mut all = Vec::new();
-        let mut buf = vec![f32::NAN; n * 5];
-        loop {
-            let got = r.read_rows(&mut buf).unwrap();
-            if got == 0 {
-                break;
-            }
-            all.extend_from_slice(&buf[..got * n]);
-        }
+        let all = crate::obs::read_all(&mut r, 5).unwrap();
         (r.header().clone(), all)
     }
 

@@ -321,6 +321,36 @@ mod tests {
         }
     }
 
+    // Intra-channel smearing: an unresolved pulse at DM 500 in the 1200.000–1200.391 MHz
+    // channel sweeps across it in exactly k·DM·(ν_lo⁻² − ν_hi⁻²) = 937.41 µs (Lorimer &
+    // Kramer 2005; 8.3 µs·DM·Δν/ν³ to first order, Cordes & McLaughlin 2003, ApJ 596,
+    // 1142), so at 10 µs sampling it fills ~94 samples at a level of amplitude/93.741.
+    #[test]
+    fn unresolved_pulse_fills_the_channel_smearing_time() {
+        let mut h = test_header(1, 3000);
+        h.freqs_mhz = vec![1200.0 + 0.390625 / 2.0];
+        h.chan_bw_mhz = 0.390625;
+        h.tsamp_s = 10e-6;
+        let b = Burst {
+            t_inf_s: 5e-3 - delay_to_infinity_s(500.0, 1200.390625),
+            ..flat(500.0, 0.0, 0.0)
+        };
+        let block = render(&h, &b);
+        let smear = crate::units::delay_between_s(500.0, 1200.0, 1200.390625);
+        assert!((smear - 937.41e-6).abs() < 0.01e-6);
+        let level = 10.0 * h.tsamp_s / smear;
+        let full: Vec<f32> = block
+            .data
+            .iter()
+            .copied()
+            .filter(|&v| f64::from(v) > 0.5 * level)
+            .collect();
+        assert!((92..=95).contains(&full.len()), "{} samples", full.len());
+        for &v in &full[1..full.len() - 1] {
+            assert!((f64::from(v) / level - 1.0).abs() < 0.02, "{v} vs {level}");
+        }
+    }
+
     #[test]
     fn blocks_add_up_to_the_whole() {
         let mut h = test_header(16, 3000);

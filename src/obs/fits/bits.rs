@@ -19,13 +19,18 @@ pub enum Encoding {
 }
 
 impl Encoding {
+    /// Bits per stored sample.
+    pub fn bits(self) -> u32 {
+        match self {
+            Encoding::Packed(b) => b,
+            Encoding::Int16 { .. } | Encoding::UInt16 => 16,
+            Encoding::Float32 => 32,
+        }
+    }
+
     /// Bytes needed for `n` samples.
     pub fn bytes_for(self, n: usize) -> usize {
-        match self {
-            Encoding::Packed(b) => (n * b as usize).div_ceil(8),
-            Encoding::Int16 { .. } | Encoding::UInt16 => 2 * n,
-            Encoding::Float32 => 4 * n,
-        }
+        (n * self.bits() as usize).div_ceil(8)
     }
 
     /// Decodes the first `out.len()` samples of `bytes`.

@@ -78,9 +78,10 @@ impl Layout {
                 ));
             }
         };
-        let n_values = nsblk * npol * n_chan;
-        let needed = encoding.bytes_for(n_values);
-        if data.width != needed {
+        // u128: corrupt headers must give an error, not an overflow.
+        let needed =
+            (nsblk as u128 * npol as u128 * n_chan as u128 * encoding.bits() as u128).div_ceil(8);
+        if data.width as u128 != needed {
             return Err(format!(
                 "DATA holds {} bytes per row but NSBLK × NPOL × NCHAN × NBITS needs {needed}",
                 data.width

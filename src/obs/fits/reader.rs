@@ -5,8 +5,10 @@ use std::fs::File;
 use std::io::{BufReader, Read, Seek, SeekFrom};
 use std::path::{Path, PathBuf};
 
+use super::bits::Encoding;
 use super::cards::{BLOCK, Cards};
 use super::layout::{Layout, PolMode, data_bytes};
+use super::table::Column;
 use crate::error::{Error, Result};
 use crate::obs::codec::check_finite;
 use crate::obs::geodesy::{parse_sexagesimal, site_from_itrf};
@@ -64,6 +66,11 @@ impl FitsReader {
         let mut skip = data_bytes(&primary).map_err(&bad)?;
         while sub.str("EXTNAME") != Some("SUBINT") {
             let padded = skip.div_ceil(BLOCK as u64) * BLOCK as u64;
+            if padded > file_len {
+                return Err(bad(format!(
+                    "truncated: a header promises {skip} bytes of data, file has {file_len}"
+                )));
+            }
             file.seek_relative(padded as i64)
                 .map_err(|e| Error::io(path, e))?;
             sub = Cards::read(&mut file)
@@ -74,7 +81,10 @@ impl FitsReader {
         let layout = Layout::from_cards(&sub).map_err(|m| bad(format!("SUBINT: {m}")))?;
         let n_rows = sub.count("NAXIS2").map_err(&bad)? as u64;
         let data_start = file.stream_position().map_err(|e| Error::io(path, e))?;
-        let needed = data_start + n_rows * layout.row_bytes as u64;
+        let needed = (layout.row_bytes as u64)
+            .checked_mul(n_rows)
+            .and_then(|b| b.checked_add(data_start))
+            .unwrap_or(u64::MAX);
         if file_len < needed {
             return Err(bad(format!(
                 "truncated: {n_rows} rows of {} bytes need {needed} bytes, file has {file_len}",
@@ -162,29 +172,12 @@ impl FitsReader {
         let s = &mut self.scratch;
         let row = &self.row_bytes;
         self.weights.clear();
-        match &l.wts {
-            Some(c) => {
-                c.read_f64(row, l.n_chan, s).map_err(bad)?;
-                self.weights.extend(s.iter().map(|&w| w as f32));
-            }
-            None => self.weights.resize(l.n_chan, 1.0),
-        }
-        match &l.scl {
-            Some(c) => c.read_f64(row, n, s).map_err(bad)?,
-            None => {
-                s.clear();
-                s.resize(n, 1.0);
-            }
-        }
+        read_or(l.wts.as_ref(), row, l.n_chan, 1.0, s).map_err(bad)?;
+        self.weights.extend(s.iter().map(|&w| w as f32));
+        read_or(l.scl.as_ref(), row, n, 1.0, s).map_err(bad)?;
         self.scale.clear();
         self.scale.extend(s.iter().map(|&v| v as f32));
-        match &l.offs {
-            Some(c) => c.read_f64(row, n, s).map_err(bad)?,
-            None => {
-                s.clear();
-                s.resize(n, 0.0);
-            }
-        }
+        read_or(l.offs.as_ref(), row, n, 0.0, s).map_err(bad)?;
         self.offset.clear();
         let zero = l.zero_off;
         self.offset.extend(
@@ -192,14 +185,26 @@ impl FitsReader {
                 .zip(&self.scale)
                 .map(|(&o, &k)| (o - zero * k as f64) as f32),
         );
+        // A weight of 0 masks the channel: scale and offset 0 make its samples 0.
+        for (i, (k, o)) in self.scale.iter_mut().zip(&mut self.offset).enumerate() {
+            if self.weights[i % l.n_chan] == 0.0 {
+                (*k, *o) = (0.0, 0.0);
+            }
+        }
         Ok(())
     }
 
-    /// Reads and decodes the next row into `samples`; `false` after the last row.
-    fn load_row(&mut self) -> Result<bool> {
-        if self.rows_loaded == self.n_rows {
-            return Ok(false);
+    /// Samples in the next row to be read.
+    fn next_row_len(&self) -> usize {
+        if self.rows_loaded + 1 == self.n_rows {
+            (self.header.n_samples - (self.n_rows - 1) * self.layout.nsblk as u64) as usize
+        } else {
+            self.layout.nsblk
         }
+    }
+
+    /// Reads the next row and decodes it into `dest` (`next_row_len() × n_chan`).
+    fn read_row_into(&mut self, dest: &mut [f32]) -> Result<()> {
         self.file.read_exact(&mut self.row_bytes).map_err(|e| {
             Error::bad_input(
                 &self.path,
@@ -210,39 +215,68 @@ impl FitsReader {
         self.load_weights()?;
         let l = &self.layout;
         let (nc, np) = (l.n_chan, l.npol);
-        let n_time = if self.rows_loaded == self.n_rows {
-            (self.header.n_samples - (self.n_rows - 1) * l.nsblk as u64) as usize
-        } else {
-            l.nsblk
-        };
+        let n_time = dest.len() / nc;
         self.raw.resize(n_time * np * nc, 0.0);
         l.encoding
             .unpack(l.data.bytes(&self.row_bytes), &mut self.raw);
-        self.samples.resize(n_time * nc, 0.0);
-        let pols: &[usize] = match l.pol {
-            PolMode::Single | PolMode::First => &[0],
-            PolMode::SumFirstTwo => &[0, 1],
-        };
-        for (t, out) in self.samples.chunks_exact_mut(nc).enumerate() {
-            out.fill(0.0);
-            for &p in pols {
-                let raw = &self.raw[(t * np + p) * nc..][..nc];
-                let (k, o) = (&self.scale[p * nc..][..nc], &self.offset[p * nc..][..nc]);
-                for c in 0..nc {
-                    out[c] += raw[c] * k[c] + o[c];
-                }
+        let (k, o) = (&self.scale, &self.offset);
+        for (out, raw) in dest
+            .chunks_exact_mut(nc)
+            .zip(self.raw.chunks_exact(np * nc))
+        {
+            scale_into(out, &raw[..nc], &k[..nc], &o[..nc]);
+            if l.pol == PolMode::SumFirstTwo {
+                add_scaled(out, &raw[nc..2 * nc], &k[nc..2 * nc], &o[nc..2 * nc]);
             }
-            for (v, &w) in out.iter_mut().zip(&self.weights) {
-                if w == 0.0 {
-                    *v = 0.0;
+        }
+        // Zero scale and offset already mask integer samples; a float NaN or Inf in a
+        // masked channel would survive the multiplication, so clear those explicitly.
+        if l.encoding == Encoding::Float32 && self.weights.contains(&0.0) {
+            for out in dest.chunks_exact_mut(nc) {
+                for (v, &w) in out.iter_mut().zip(&self.weights) {
+                    if w == 0.0 {
+                        *v = 0.0;
+                    }
                 }
             }
         }
         if !self.allow_non_finite {
-            check_finite(&self.path, &self.samples, nc, self.delivered)?;
+            check_finite(&self.path, dest, nc, self.delivered)?;
         }
-        self.pos = 0;
-        Ok(true)
+        Ok(())
+    }
+}
+
+/// The first `n` values of the optional column `col` in `row`, or `n` copies of
+/// `default` when the file has no such column.
+fn read_or(
+    col: Option<&Column>,
+    row: &[u8],
+    n: usize,
+    default: f64,
+    out: &mut Vec<f64>,
+) -> Result<(), String> {
+    match col {
+        Some(c) => c.read_f64(row, n, out),
+        None => {
+            out.clear();
+            out.resize(n, default);
+            Ok(())
+        }
+    }
+}
+
+/// `out = raw × k + o`, element-wise (written as zips so it vectorises).
+fn scale_into(out: &mut [f32], raw: &[f32], k: &[f32], o: &[f32]) {
+    for (((y, &r), &k), &o) in out.iter_mut().zip(raw).zip(k).zip(o) {
+        *y = r * k + o;
+    }
+}
+
+/// `out += raw × k + o`, element-wise.
+fn add_scaled(out: &mut [f32], raw: &[f32], k: &[f32], o: &[f32]) {
+    for (((y, &r), &k), &o) in out.iter_mut().zip(raw).zip(k).zip(o) {
+        *y += r * k + o;
     }
 }
 
@@ -292,18 +326,32 @@ impl SampleSource for FitsReader {
         let mut done = 0;
         while done < want {
             let available = self.samples.len() / nc - self.pos;
-            if available == 0 {
-                if !self.load_row()? {
-                    break;
-                }
+            if available > 0 {
+                let n = available.min(want - done);
+                out[done * nc..(done + n) * nc]
+                    .copy_from_slice(&self.samples[self.pos * nc..(self.pos + n) * nc]);
+                self.pos += n;
+                done += n;
+                self.delivered += n as u64;
                 continue;
             }
-            let n = available.min(want - done);
-            out[done * nc..(done + n) * nc]
-                .copy_from_slice(&self.samples[self.pos * nc..(self.pos + n) * nc]);
-            self.pos += n;
-            done += n;
-            self.delivered += n as u64;
+            if self.rows_loaded == self.n_rows {
+                break;
+            }
+            let n_time = self.next_row_len();
+            if want - done >= n_time {
+                // The whole row fits: decode straight into the caller's buffer.
+                self.read_row_into(&mut out[done * nc..(done + n_time) * nc])?;
+                done += n_time;
+                self.delivered += n_time as u64;
+            } else {
+                let mut row = std::mem::take(&mut self.samples);
+                row.resize(n_time * nc, 0.0);
+                let result = self.read_row_into(&mut row);
+                self.samples = row;
+                self.pos = 0;
+                result?;
+            }
         }
         Ok(done)
     }

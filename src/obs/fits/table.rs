@@ -34,16 +34,20 @@ pub fn parse_tform(tform: &str) -> Result<(usize, char, usize), String> {
         .chars()
         .next()
         .ok_or_else(|| format!("bad TFORM '{tform}'"))?;
-    let bytes = match code {
-        'X' => repeat.div_ceil(8),
-        'L' | 'B' | 'A' => repeat,
-        'I' => 2 * repeat,
-        'J' | 'E' => 4 * repeat,
+    let (num, den) = match code {
+        'X' => (1, 8),
+        'L' | 'B' | 'A' => (1, 1),
+        'I' => (2, 1),
+        'J' | 'E' => (4, 1),
         // P and Q are array descriptors: 8 and 16 bytes in the row.
-        'K' | 'D' | 'C' | 'P' => 8 * repeat,
-        'M' | 'Q' => 16 * repeat,
+        'K' | 'D' | 'C' | 'P' => (8, 1),
+        'M' | 'Q' => (16, 1),
         _ => return Err(format!("unknown data type in TFORM '{tform}'")),
     };
+    let bytes = repeat
+        .checked_mul(num)
+        .map(|b| b.div_ceil(den))
+        .ok_or_else(|| format!("TFORM '{tform}' is too large"))?;
     Ok((repeat, code, bytes))
 }
 
@@ -66,7 +70,9 @@ pub fn columns(cards: &Cards) -> Result<Vec<Column>, String> {
             width,
             zero,
         });
-        offset += width;
+        offset = offset
+            .checked_add(width)
+            .ok_or("table row length overflows")?;
     }
     let naxis1 = cards.count("NAXIS1")?;
     if offset != naxis1 {

@@ -9,7 +9,7 @@ use std::path::{Path, PathBuf};
 use super::bits::Encoding;
 use super::cards::{BLOCK, CardWriter};
 use crate::error::{Error, Result};
-use crate::obs::codec::{check_finite, check_whole_rows, quantise};
+use crate::obs::codec::{check_complete, check_finite, check_room, check_whole_rows, quantise};
 use crate::obs::geodesy::{format_sexagesimal, geodetic_to_itrf_m};
 use crate::obs::{Header, SampleSink};
 
@@ -193,12 +193,8 @@ impl SampleSink for FitsWriter {
         let nc = self.n_chan;
         check_whole_rows(&self.path, rows, nc)?;
         check_finite(&self.path, rows, nc, self.samples_written)?;
-        if self.samples_written + (rows.len() / nc) as u64 > self.n_samples {
-            return Err(Error::bad_input(
-                &self.path,
-                format!("more rows written than the {} announced", self.n_samples),
-            ));
-        }
+        let adding = (rows.len() / nc) as u64;
+        check_room(&self.path, self.samples_written, adding, self.n_samples)?;
         for row in rows.chunks_exact(nc) {
             if self.encoding == Encoding::Float32 {
                 self.pending.extend_from_slice(row);
@@ -215,15 +211,7 @@ impl SampleSink for FitsWriter {
     }
 
     fn finish(mut self: Box<Self>) -> Result<()> {
-        if self.samples_written != self.n_samples {
-            return Err(Error::bad_input(
-                &self.path,
-                format!(
-                    "{} rows written but the header announced {}",
-                    self.samples_written, self.n_samples
-                ),
-            ));
-        }
+        check_complete(&self.path, self.samples_written, self.n_samples)?;
         if !self.pending.is_empty() {
             self.flush_row()?;
         }
@@ -302,16 +290,11 @@ mod tests {
         w.finish().unwrap();
         assert_eq!(std::fs::metadata(&path).unwrap().len() % BLOCK as u64, 0);
         let mut r = FitsReader::open(&path, false).unwrap();
-        let mut out = vec![f32::NAN; data.len() + h.n_chan() * 3];
-        let mut got = 0;
-        loop {
-            let n = r.read_rows(&mut out[got * h.n_chan()..]).unwrap();
-            if n == 0 {
-                break;
-            }
-            got += n;
-        }
-        out.truncate(got * h.n_chan());
+        // Whole rows at once (decoded in place) ...
+        let out = crate::obs::read_all(&mut r, 10 * nsblk).unwrap();
+        // ... and a few rows at a time (through the row buffer) agree.
+        let mut r3 = FitsReader::open(&path, false).unwrap();
+        assert_eq!(crate::obs::read_all(&mut r3, 3).unwrap(), out);
         (r.header().clone(), out)
     }
 

@@ -1,0 +1,173 @@
+//! `burstbook period rotation`: rotation-period search or a stated-period test.
+
+use std::io::Write;
+use std::path::{Path, PathBuf};
+
+use anyhow::Context;
+use burstbook::period::rotation::{RotationConfig, RotationResult, search_rotation, test_period};
+use burstbook::period::times::{ArrivalTimes, read_arrival_csv};
+use burstbook::progress;
+
+use super::{create, print_json};
+
+#[derive(clap::Args, Debug)]
+pub struct Args {
+    /// CSV of barycentric (TDB) arrival times with an MJD column.
+    #[arg(long, default_value = "demo-data/period/rotator_toas.csv")]
+    toas: PathBuf,
+    /// Name of the MJD column.
+    #[arg(long, default_value = "mjd")]
+    column: String,
+    /// Shortest trial period, s.
+    #[arg(long, default_value_t = 1e-3)]
+    min_period_s: f64,
+    /// Longest trial period, s.
+    #[arg(long, default_value_t = 10.0)]
+    max_period_s: f64,
+    /// Harmonics n of the scanned Z²ₙ (1–20).
+    #[arg(long, default_value_t = 2)]
+    harmonics: usize,
+    /// Grid points per peak of the n-th harmonic.
+    #[arg(long, default_value_t = 3.0)]
+    oversample: f64,
+    /// Merge arrivals closer than this (components of one burst), s.
+    #[arg(long, default_value_t = 1e-3)]
+    merge_gap_s: f64,
+    /// Also fit a period derivative.
+    #[arg(long)]
+    fit_pdot: bool,
+    /// Tolerance of the common-divisor check, cycles (0 turns it off).
+    #[arg(long, default_value_t = 0.05)]
+    divisor_tol: f64,
+    /// Test this period instead of searching (no trials), s.
+    #[arg(long)]
+    period_s: Option<f64>,
+    /// Period derivative for --period-s.
+    #[arg(long, default_value_t = 0.0, requires = "period_s")]
+    pdot: f64,
+    /// Print JSON instead of a table.
+    #[arg(long)]
+    json: bool,
+    /// Write the (peak-preserving, decimated) periodogram to this CSV.
+    #[arg(long)]
+    periodogram_out: Option<PathBuf>,
+}
+
+pub fn run(a: Args) -> anyhow::Result<()> {
+    let toas = read_arrival_csv(&a.toas, &a.column)?;
+    let cfg = RotationConfig {
+        min_period_s: a.min_period_s,
+        max_period_s: a.max_period_s,
+        harmonics: a.harmonics,
+        oversample: a.oversample,
+        merge_gap_s: a.merge_gap_s,
+        fit_pdot: a.fit_pdot,
+        divisor_tol_cycles: a.divisor_tol,
+        ..Default::default()
+    };
+    if let Some(p) = a.period_s {
+        let h = test_period(&toas.t_s, p, a.pdot, &cfg)
+            .with_context(|| format!("{}", a.toas.display()))?;
+        if a.json {
+            return print_json(&h);
+        }
+        println!(
+            "Hypothesis P = {p} s (Ṗ = {}) on {} arrivals",
+            a.pdot, h.n_toas
+        );
+        println!(
+            "  Z²_{} = {:.3}   chance p = {:.3e}",
+            h.harmonics, h.z2n, h.z2n_p
+        );
+        println!(
+            "  H = {:.3} (m = {})   chance p = exp(-0.4 H) = {:.3e}",
+            h.h.h, h.h.harmonics, h.h_p
+        );
+        if let Some(t) = &h.timing {
+            println!(
+                "  timing fit: P = {:.12} ± {:.2e} s, residual rms {:.3e} s ({:.4} cycles)",
+                t.period_s, t.period_err_s, t.rms_s, t.rms_cycles
+            );
+        }
+        return Ok(());
+    }
+    let grid_len = burstbook::period::rotation::rotation_grid(
+        &toas.merge_closer_than(cfg.merge_gap_s).t_s,
+        &cfg,
+    )
+    .len;
+    let bar = progress::bar(grid_len as u64, "Z² scan");
+    let r = search_rotation(&toas.t_s, &cfg, &|n| bar.inc(n))
+        .with_context(|| format!("{}", a.toas.display()))?;
+    bar.finish_and_clear();
+    if let Some(path) = &a.periodogram_out {
+        write_rotation_periodogram(path, &r)?;
+    }
+    if a.json {
+        return print_json(&r);
+    }
+    print_rotation(&r, &toas);
+    Ok(())
+}
+
+fn write_rotation_periodogram(path: &Path, r: &RotationResult) -> anyhow::Result<()> {
+    let mut w = create(path)?;
+    writeln!(w, "freq_hz,period_s,z2n")?;
+    for (f, z) in r.periodogram.freq_hz.iter().zip(&r.periodogram.power) {
+        writeln!(w, "{f:.12},{:.12},{z}", 1.0 / f)?;
+    }
+    w.flush()
+        .with_context(|| format!("writing {}", path.display()))
+}
+
+fn print_rotation(r: &RotationResult, toas: &ArrivalTimes) {
+    println!(
+        "{} arrivals over {:.1} s; {} trial frequencies (step {:.3e} Hz, ~{:.0} independent)",
+        r.n_toas, r.span_s, r.grid.len, r.grid.df_hz, r.independent_frequencies
+    );
+    println!(
+        "{:>3} {:>16} {:>9} {:>10} {:>10} {:>8} {:>3} {:>10}",
+        "#", "period_s", "Z2n", "p_single", "FAP(Z2n)", "H", "m", "FAP(H)*"
+    );
+    for (i, c) in r.candidates.iter().enumerate().take(10) {
+        println!(
+            "{:>3} {:>16.10} {:>9.2} {:>10.2e} {:>10.2e} {:>8.2} {:>3} {:>10.2e}{}",
+            i,
+            c.period_s,
+            c.z2n,
+            c.z2n_p_single,
+            c.z2n_fap,
+            c.h.h,
+            c.h.harmonics,
+            c.h_fap,
+            if i == r.best { "  <- chosen" } else { "" }
+        );
+    }
+    println!("  * H FAP is a union bound; optimistic for small N (see docs/period.md).");
+    println!(
+        "Best period: {:.12} ± {:.2e} s   FAP = {:.3e}",
+        r.period_s, r.period_err_s, r.fap
+    );
+    if let Some(t) = &r.timing {
+        println!(
+            "  phase-connected: epoch MJD {:.12}, residual rms {:.3e} s ({:.4} cycles), pulses {}..{}",
+            toas.mjd_of(t.epoch_s),
+            t.rms_s,
+            t.rms_cycles,
+            t.pulse_numbers.first().unwrap_or(&0),
+            t.pulse_numbers.last().unwrap_or(&0)
+        );
+        if let (Some(pd), Some(e)) = (t.pdot, t.pdot_err) {
+            println!("  Ṗ = {pd:.3e} ± {e:.1e}");
+        }
+    } else {
+        println!("  no phase-connected solution (residuals above 0.25 cycles)");
+    }
+    match &r.divisor {
+        Some(d) => println!(
+            "Common divisor: P = {:.12} s (smallest gap {:.6} s = {} turns), chance ≈ {:.1e}; P/k also fits",
+            d.solution.period_s, d.smallest_gap_s, d.turns_in_smallest_gap, d.chance_probability
+        ),
+        None => println!("Common divisor: no period ≥ the minimum connects all arrivals"),
+    }
+}

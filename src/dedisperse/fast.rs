@@ -1,0 +1,406 @@
+//! The fast kernel. Per plan step and time chunk:
+//! 1. stage 1: inside each sub-band of 64 adjacent channels, the
+//!    merge tree of [`super::tree`] over short time tiles, so a sub-band's levels stay
+//!    in cache; in parallel over sub-bands;
+//! 2. stage 2: for each trial DM, the sum of one stage-1 row per sub-band at that
+//!    sub-band's own rounded delay; in parallel over blocks of trials.
+//!
+//! Hot loops run over equal-length slices so they vectorise, and never allocate:
+//! scratch buffers live in the [`FastDedisperser`] or per rayon worker.
+
+use ndarray::ArrayView2;
+use rayon::prelude::*;
+
+use super::subband::{StepKernel, SubBand};
+use super::tree::Merge;
+use super::{Dedispersed, DmPlan};
+
+/// Output samples per chunk as a multiple of the step's longest path, so that the
+/// chunk overlap costs stage 1 at most 25 % extra work.
+const CHUNK_PER_PATH: usize = 4;
+/// Smallest chunk, tree samples.
+const MIN_CHUNK: usize = 2048;
+/// Stage-1 time tile, tree samples (a multiple of every `per_out`): a sub-band's tree
+/// levels stay in L2/L3.
+const STAGE1_TILE: usize = 2048;
+/// Stage-2 work unit: trials per task, and time tile in output samples.
+const STAGE2_DMS: usize = 16;
+const STAGE2_TILE: usize = 1024;
+
+/// A reusable fast dedisperser for one [`DmPlan`]: sub-bands, trees and delays are
+/// planned once; the stage-1 buffer grows to the largest chunk and is then reused.
+#[derive(Debug, Clone)]
+pub struct FastDedisperser {
+    plan: DmPlan,
+    steps: Vec<StepKernel>,
+    /// Stage-1 rows of the current chunk, `[row, time]`.
+    stage1: Vec<f32>,
+    /// The block at reduced time resolution, `[channel, time]`, halved step by step.
+    coarse: Vec<f32>,
+}
+
+/// Per-worker stage-1 scratch: one tile of a sub-band's channels and tree levels.
+#[derive(Default)]
+struct TileScratch {
+    channels: Vec<f32>,
+    levels: [Vec<f32>; 2],
+}
+
+impl FastDedisperser {
+    /// Plans sub-bands, trees and delays for every step of `plan`.
+    pub fn new(plan: &DmPlan) -> Self {
+        let max_delay = plan.max_delay_samples();
+        let steps = plan
+            .steps
+            .iter()
+            .map(|s| {
+                StepKernel::new(
+                    &plan.freqs_mhz,
+                    &s.dms,
+                    plan.tsamp_s,
+                    s.downsample,
+                    max_delay,
+                )
+            })
+            .collect();
+        FastDedisperser {
+            plan: plan.clone(),
+            steps,
+            stage1: Vec::new(),
+            coarse: Vec::new(),
+        }
+    }
+
+    /// The plan this dedisperser executes.
+    pub fn plan(&self) -> &DmPlan {
+        &self.plan
+    }
+
+    /// Dedisperses `input` (`[channel, time]`, conventions of [`super`]) for every step.
+    ///
+    /// # Panics
+    /// If `input` has a different channel count from the plan (a caller bug).
+    pub fn dedisperse(&mut self, input: ArrayView2<'_, f32>) -> Vec<Dedispersed> {
+        let (n_chan, n_time) = input.dim();
+        assert_eq!(
+            n_chan,
+            self.plan.freqs_mhz.len(),
+            "input channels disagree with the plan"
+        );
+        let input = input.as_standard_layout();
+        let input = input.as_slice().expect("standard layout is contiguous");
+        let valid = n_time.saturating_sub(self.plan.max_delay_samples());
+        let mut out = Vec::with_capacity(self.steps.len());
+        let mut coarse_ds = 1;
+        for (step, kernel) in self.plan.steps.iter().zip(&self.steps) {
+            if kernel.tree_ds < coarse_ds {
+                coarse_ds = 1;
+            }
+            while coarse_ds < kernel.tree_ds {
+                halve(input, n_time, coarse_ds, &mut self.coarse, n_chan);
+                coarse_ds *= 2;
+            }
+            let (rows, row_len): (&[f32], usize) = match coarse_ds {
+                1 => (input, n_time),
+                ds => (&self.coarse, n_time / ds),
+            };
+            let n_out = valid / step.downsample;
+            let mut data = vec![0.0f32; step.dms.len() * n_out];
+            if n_chan > 0 && n_out > 0 {
+                let chunk = chunk_len(kernel.max_path).div_ceil(kernel.per_out);
+                for t0 in (0..n_out).step_by(chunk) {
+                    let len = chunk.min(n_out - t0);
+                    let source = Source {
+                        rows,
+                        row_len,
+                        t0: t0 * kernel.per_out,
+                    };
+                    let stride = stage1(kernel, &source, len, &mut self.stage1);
+                    stage2(kernel, &self.stage1, stride, t0, len, &mut data, n_out);
+                }
+            }
+            out.push(Dedispersed {
+                dms: step.dms.clone(),
+                downsample: step.downsample,
+                n_time: n_out,
+                data,
+            });
+        }
+        out
+    }
+}
+
+/// Tree samples per chunk for a step whose longest path is `max_path` tree samples.
+pub(crate) fn chunk_len(max_path: usize) -> usize {
+    (CHUNK_PER_PATH * max_path).max(MIN_CHUNK)
+}
+
+/// The block at the step's tree resolution (`[channel, row_len]`) and the chunk's
+/// first tree sample.
+struct Source<'a> {
+    rows: &'a [f32],
+    row_len: usize,
+    t0: usize,
+}
+
+/// Halves the time resolution of the block held at `ds` input samples per sample:
+/// from `input` when `ds == 1`, else in place in `coarse` (row `c` at its new
+/// position never overlaps the unread rows after it).
+fn halve(input: &[f32], n_time: usize, ds: usize, coarse: &mut Vec<f32>, n_chan: usize) {
+    let new_len = n_time / (2 * ds);
+    if ds == 1 {
+        grow(coarse, n_chan * new_len);
+        coarse[..n_chan * new_len]
+            .par_chunks_mut(new_len.max(1))
+            .zip(input.par_chunks(n_time.max(1)))
+            .for_each(|(dst, src)| pair_sums(dst, src));
+        return;
+    }
+    let old_len = n_time / ds;
+    for c in 0..n_chan {
+        for j in 0..new_len {
+            coarse[c * new_len + j] = coarse[c * old_len + 2 * j] + coarse[c * old_len + 2 * j + 1];
+        }
+    }
+}
+
+/// `dst[j] = src[2j] + src[2j + 1]`.
+fn pair_sums(dst: &mut [f32], src: &[f32]) {
+    for (o, pair) in dst.iter_mut().zip(src.chunks_exact(2)) {
+        *o = pair[0] + pair[1];
+    }
+}
+
+/// Stage 1 for a chunk of `len` output samples: every sub-band's top rows over the
+/// samples stage 2 will read, into `buf`. Each top row is stored once per phase φ <
+/// `per_out` as the sums of `per_out` tree samples starting at `per_out·j + φ`, so
+/// stage 2 runs at the output rate while delays keep the tree's resolution. Layout
+/// `[row · per_out + φ, stride]`; returns the stride (output samples).
+fn stage1(kernel: &StepKernel, src: &Source<'_>, len: usize, buf: &mut Vec<f32>) -> usize {
+    let per_out = kernel.per_out;
+    let need = |max_offset: usize| len + max_offset / per_out + 1;
+    let max_offset = kernel
+        .subbands
+        .iter()
+        .map(|s| s.max_offset)
+        .max()
+        .unwrap_or(0);
+    let stride = need(max_offset);
+    grow(buf, kernel.n_rows() * per_out * stride);
+    let mut slabs = Vec::with_capacity(kernel.subbands.len());
+    let mut rest = &mut buf[..];
+    for sub in &kernel.subbands {
+        let n_rows = sub.tree.n_top_rows(sub.channels.len()) * per_out;
+        let (slab, tail) = rest.split_at_mut(n_rows * stride);
+        slabs.push(slab);
+        rest = tail;
+    }
+    kernel.subbands.par_iter().zip(slabs).for_each_init(
+        TileScratch::default,
+        |scratch, (sub, slab)| {
+            let rows = Phased {
+                slab,
+                stride,
+                per_out,
+            };
+            subband_rows(sub, src, need(sub.max_offset), rows, scratch)
+        },
+    );
+    stride
+}
+
+/// A sub-band's share of the stage-1 buffer.
+struct Phased<'a> {
+    slab: &'a mut [f32],
+    stride: usize,
+    per_out: usize,
+}
+
+/// One sub-band's phased top rows for output samples `0..need`, tile by tile.
+fn subband_rows(
+    sub: &SubBand,
+    src: &Source<'_>,
+    need: usize,
+    out: Phased<'_>,
+    scratch: &mut TileScratch,
+) {
+    let halo = sub.tree.max_path;
+    let n_chan = sub.channels.len();
+    let per_out = out.per_out;
+    let tile = STAGE1_TILE / per_out;
+    for j0 in (0..need).step_by(tile) {
+        let n_j = tile.min(need - j0);
+        // The last phase reads one tree sample past the tile.
+        let len = n_j * per_out + per_out - 1;
+        let width = len + halo;
+        grow(&mut scratch.channels, n_chan * width);
+        for (row, &c) in scratch.channels.chunks_exact_mut(width).zip(&sub.channels) {
+            let chan = &src.rows[c * src.row_len..(c + 1) * src.row_len];
+            copy_from(chan, src.t0 + j0 * per_out, row);
+        }
+        let rows = sub.tree.max_rows(n_chan);
+        let [even, odd] = &mut scratch.levels;
+        grow(even, rows * width);
+        grow(odd, rows * width);
+        for (l, merges) in sub.tree.levels.iter().enumerate() {
+            let (from, to): (&[f32], &mut [f32]) = match l {
+                0 => (&scratch.channels, even),
+                _ if l % 2 == 1 => (even, odd),
+                _ => (odd, even),
+            };
+            run_level(merges, from, to, width, len);
+        }
+        let top: &[f32] = match sub.tree.levels.len() {
+            0 => &scratch.channels,
+            n if n % 2 == 1 => even,
+            _ => odd,
+        };
+        let dst_rows = out.slab.chunks_exact_mut(out.stride);
+        for (i, dst) in dst_rows.enumerate() {
+            let (r, phase) = (i / per_out, i % per_out);
+            let src_row = &top[r * width + phase..][..n_j * per_out];
+            let dst = &mut dst[j0..j0 + n_j];
+            if per_out == 1 {
+                dst.copy_from_slice(src_row);
+            } else {
+                for (o, group) in dst.iter_mut().zip(src_row.chunks_exact(per_out)) {
+                    *o = group.iter().sum();
+                }
+            }
+        }
+    }
+}
+
+/// Stage 2: output samples `t0..t0 + len` of every trial into `data` (`[dm, n_out]`):
+/// for each sub-band, the phase of its row matching its delay, from that delay on.
+fn stage2(
+    kernel: &StepKernel,
+    stage1: &[f32],
+    stride: usize,
+    t0: usize,
+    len: usize,
+    data: &mut [f32],
+    n_out: usize,
+) {
+    let n_sub = kernel.subbands.len();
+    let per_out = kernel.per_out;
+    data.par_chunks_mut(n_out * STAGE2_DMS)
+        .enumerate()
+        .for_each(|(block, series)| {
+            for a in (0..len).step_by(STAGE2_TILE) {
+                let tile = STAGE2_TILE.min(len - a);
+                for (j, row) in series.chunks_exact_mut(n_out).enumerate() {
+                    let k = block * STAGE2_DMS + j;
+                    let paths = (k * n_sub..(k + 1) * n_sub).map(|i| {
+                        let (row, offset) = (kernel.rows[i], kernel.offsets[i]);
+                        (row * per_out + offset % per_out) * stride + offset / per_out + a
+                    });
+                    accumulate(&mut row[t0 + a..t0 + a + tile], stage1, paths);
+                }
+            }
+        });
+}
+
+/// `acc` = sum of the `acc.len()` samples of `stage1` starting at each of `starts`,
+/// compiled for AVX2 when the CPU has it (twice the adds per cycle of the baseline
+/// SSE2 build).
+fn accumulate(acc: &mut [f32], stage1: &[f32], starts: impl Iterator<Item = usize>) {
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx2") {
+        // SAFETY: `accumulate_avx2` only requires the AVX2 instruction set, which
+        // was detected at run time just above; it is otherwise safe code.
+        return unsafe { accumulate_avx2(acc, stage1, starts) };
+    }
+    accumulate_rows(acc, stage1, starts)
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+fn accumulate_avx2(acc: &mut [f32], stage1: &[f32], starts: impl Iterator<Item = usize>) {
+    accumulate_rows(acc, stage1, starts)
+}
+
+/// The portable body of [`accumulate`]: four rows at a time to save passes over `acc`.
+#[inline(always)]
+fn accumulate_rows(acc: &mut [f32], stage1: &[f32], starts: impl Iterator<Item = usize>) {
+    let n = acc.len();
+    let mut rows = starts.map(|s| &stage1[s..s + n]);
+    match rows.next() {
+        Some(first) => acc.copy_from_slice(first),
+        None => return acc.fill(0.0),
+    }
+    loop {
+        match (rows.next(), rows.next(), rows.next(), rows.next()) {
+            (Some(a), Some(b), Some(c), Some(d)) => {
+                for ((((o, a), b), c), d) in acc.iter_mut().zip(a).zip(b).zip(c).zip(d) {
+                    *o += (a + b) + (c + d);
+                }
+            }
+            (a, b, c, _) => {
+                for r in [a, b, c].into_iter().flatten() {
+                    for (o, x) in acc.iter_mut().zip(r) {
+                        *o += x;
+                    }
+                }
+                return;
+            }
+        }
+    }
+}
+
+/// Grows `buf` to at least `n` values (never shrinks: the scratch is reused).
+fn grow(buf: &mut Vec<f32>, n: usize) {
+    if buf.len() < n {
+        buf.resize(n, 0.0);
+    }
+}
+
+/// `row` = `chan[start..]`, zero past the end of the block. Paths never reach past
+/// the block (their length is capped at the plan's largest delay), so the zero tail a
+/// chunk's last tile may carry is never summed into a valid output.
+fn copy_from(chan: &[f32], start: usize, row: &mut [f32]) {
+    let avail = chan.get(start..).unwrap_or(&[]);
+    let n = avail.len().min(row.len());
+    row[..n].copy_from_slice(&avail[..n]);
+    row[n..].fill(0.0);
+}
+
+/// One tree level over a tile: each output row over the samples it must supply;
+/// compiled for AVX2 when the CPU has it.
+fn run_level(merges: &[Merge], src: &[f32], dst: &mut [f32], stride: usize, len: usize) {
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx2") {
+        // SAFETY: `run_level_avx2` only requires the AVX2 instruction set, which was
+        // detected at run time just above; it is otherwise safe code.
+        return unsafe { run_level_avx2(merges, src, dst, stride, len) };
+    }
+    merge_rows(merges, src, dst, stride, len)
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+fn run_level_avx2(merges: &[Merge], src: &[f32], dst: &mut [f32], stride: usize, len: usize) {
+    merge_rows(merges, src, dst, stride, len)
+}
+
+/// The portable body of [`run_level`].
+#[inline(always)]
+fn merge_rows(merges: &[Merge], src: &[f32], dst: &mut [f32], stride: usize, len: usize) {
+    for (out, m) in dst.chunks_exact_mut(stride).zip(merges) {
+        let n = (len + m.reach).min(stride - m.shift);
+        let upper = &src[m.upper * stride..][..n];
+        match m.lower {
+            Some(l) => {
+                let lower = &src[l * stride + m.shift..][..n];
+                for ((o, x), y) in out[..n].iter_mut().zip(upper).zip(lower) {
+                    *o = x + y;
+                }
+            }
+            None => out[..n].copy_from_slice(upper),
+        }
+    }
+}
+
+#[cfg(test)]
+#[path = "fast_tests.rs"]
+mod tests;

@@ -1,0 +1,383 @@
+//! Rotation-period search over arrival times: Z²ₙ scan, H-test at the strongest peaks,
+//! common-divisor cross-check and phase-connected refinement.
+//!
+//! Trial counting: the scan's false-alarm probability is the Davies-type bound of
+//! [`z2n_scan_fap`] over the searched band (an upcrossing count, so no number of
+//! "independent" frequencies is assumed; it corresponds to about B·√(4π·Var t)·√(z/2)
+//! trials). The Fourier count B·T is reported for reference. The H-test is evaluated
+//! at the strongest Z²ₙ peaks; its FAP is the union bound [`h_scan_fap`].
+
+use serde::Serialize;
+
+use super::coherence::{
+    HTest, h_p_single, h_scan_fap, h_test, phases, variance, z2n, z2n_p_single, z2n_scan_fap,
+};
+use super::divisor::{DivisorResult, common_divisor_period};
+use super::scan::{FrequencyGrid, Periodogram, centre, z2n_grid};
+use super::timing::{TimingSolution, fit_phase_connected};
+use crate::error::{Error, Result};
+
+/// Largest grid searched: for 200 arrivals, about 30 min of CPU (bench: 7 s per 3.1e7).
+pub const MAX_TRIALS: usize = 1 << 33;
+
+/// Largest k tried when looking for the fundamental f/k below the strongest peak.
+pub const MAX_SUB_HARMONIC: usize = 1000;
+
+/// Settings of a rotation search.
+#[derive(Clone, Debug, Serialize)]
+pub struct RotationConfig {
+    /// Shortest trial period, s.
+    pub min_period_s: f64,
+    /// Longest trial period, s.
+    pub max_period_s: f64,
+    /// Harmonics n of the scanned Z²ₙ.
+    pub harmonics: usize,
+    /// Grid points per peak width of the n-th harmonic (step 1/(oversample·n·T)).
+    pub oversample: f64,
+    /// Strongest peaks kept for refinement and the H-test.
+    pub candidates: usize,
+    /// Arrivals closer than this are merged into one first, s.
+    pub merge_gap_s: f64,
+    /// Fit a period derivative in the timing solution.
+    pub fit_pdot: bool,
+    /// Tolerance (cycles) of the common-divisor method; 0 disables it.
+    pub divisor_tol_cycles: f64,
+    /// A peak counts as "as strong" as the best (for choosing the fundamental among
+    /// harmonics) if its Z²ₙ reaches this fraction of the best — common practice.
+    pub harmonic_family_fraction: f64,
+    /// Most points kept in the plotted periodogram.
+    pub max_periodogram_points: usize,
+}
+
+impl Default for RotationConfig {
+    fn default() -> Self {
+        RotationConfig {
+            min_period_s: 1e-3,
+            max_period_s: 10.0,
+            harmonics: 2,
+            oversample: 3.0,
+            candidates: 16,
+            merge_gap_s: 1e-3,
+            fit_pdot: false,
+            divisor_tol_cycles: 0.05,
+            harmonic_family_fraction: 0.8,
+            max_periodogram_points: 200_000,
+        }
+    }
+}
+
+/// One refined peak of the scan.
+#[derive(Clone, Debug, Serialize)]
+pub struct RotationCandidate {
+    /// Refined frequency, Hz.
+    pub freq_hz: f64,
+    /// 1/freq, s.
+    pub period_s: f64,
+    /// Z²ₙ at the refined frequency.
+    pub z2n: f64,
+    /// Single-trial chance probability of Z²ₙ (χ²₂ₙ tail).
+    pub z2n_p_single: f64,
+    /// Z²ₙ false-alarm probability over the whole scan.
+    pub z2n_fap: f64,
+    /// H-test at the H-refined frequency.
+    pub h: HTest,
+    /// Single-trial exp(−0.4 H).
+    pub h_p_single: f64,
+    /// H false-alarm probability over the scan (union bound, [`h_scan_fap`]).
+    pub h_fap: f64,
+}
+
+/// Outcome of [`search_rotation`].
+#[derive(Clone, Debug, Serialize)]
+pub struct RotationResult {
+    /// The settings used.
+    pub config: RotationConfig,
+    /// Arrivals after merging.
+    pub n_toas: usize,
+    /// Span of the arrivals, s.
+    pub span_s: f64,
+    /// The trial-frequency grid.
+    pub grid: FrequencyGrid,
+    /// Fourier count of independent frequencies, B·T (for reference).
+    pub independent_frequencies: f64,
+    /// Refined peaks, strongest Z²ₙ first.
+    pub candidates: Vec<RotationCandidate>,
+    /// Index in `candidates` of the chosen peak (the strongest, or a nearly as strong
+    /// sub-harmonic f/k of it).
+    pub best: usize,
+    /// Phase-connected solution started from the chosen peak, if it could be fitted.
+    pub timing: Option<TimingSolution>,
+    /// Common-divisor result, if enabled and found.
+    pub divisor: Option<DivisorResult>,
+    /// Reported period, s: the timing solution's if fitted, else the peak's.
+    pub period_s: f64,
+    /// Its 1σ uncertainty, s (timing fit, else a quarter of the grid step in period).
+    pub period_err_s: f64,
+    /// False-alarm probability of the chosen peak (Z²ₙ scan bound).
+    pub fap: f64,
+    /// Decimated Z²ₙ periodogram (not written to JSON; see the CSV export).
+    #[serde(skip)]
+    pub periodogram: Periodogram,
+}
+
+fn validate(toas: &[f64], cfg: &RotationConfig) -> Result<()> {
+    if toas.len() < 3 {
+        return Err(Error::Config(format!(
+            "a period search needs at least 3 arrival times, got {}",
+            toas.len()
+        )));
+    }
+    let ok = cfg.min_period_s > 0.0
+        && cfg.max_period_s > cfg.min_period_s
+        && (1..=20).contains(&cfg.harmonics)
+        && cfg.oversample >= 1.0
+        && cfg.candidates >= 1;
+    if !ok {
+        return Err(Error::Config(
+            "need 0 < min period < max period, 1 ≤ harmonics ≤ 20, oversample ≥ 1".into(),
+        ));
+    }
+    Ok(())
+}
+
+/// Searches sorted arrival times `t_s` (s, TDB) for a rotation period.
+/// `on_progress` receives grid points done out of `grid.len` (see [`rotation_grid`]).
+///
+/// # Errors
+/// [`Error::Config`] for fewer than 3 arrivals or inconsistent settings.
+pub fn search_rotation(
+    t_s: &[f64],
+    cfg: &RotationConfig,
+    on_progress: &(dyn Fn(u64) + Sync),
+) -> Result<RotationResult> {
+    let toas = merged(t_s, cfg.merge_gap_s);
+    validate(&toas, cfg)?;
+    let span_s = toas[toas.len() - 1] - toas[0];
+    let grid = rotation_grid(&toas, cfg);
+    if grid.len > MAX_TRIALS {
+        return Err(Error::Config(format!(
+            "{} trial frequencies ({:.1} days span) is beyond {MAX_TRIALS}; raise the minimum \
+             period, lower the oversampling or split the data into shorter spans",
+            grid.len,
+            span_s / 86_400.0
+        )));
+    }
+    let scan = z2n_grid(
+        &toas,
+        &grid,
+        cfg.harmonics,
+        cfg.max_periodogram_points,
+        cfg.candidates,
+        on_progress,
+    );
+    let band_hz = 1.0 / cfg.min_period_s - 1.0 / cfg.max_period_s;
+    let var_t = variance(&toas);
+    let mut candidates: Vec<RotationCandidate> = scan
+        .peaks
+        .iter()
+        .map(|&(j, _)| refine(&toas, grid.freq(j), grid.df_hz, cfg, band_hz, span_s, var_t))
+        .collect();
+    candidates.sort_by(|a, b| b.z2n.total_cmp(&a.z2n));
+    let strongest = candidates[0].clone();
+    let best = match sub_harmonic(&toas, &strongest, cfg, &grid, band_hz, span_s, var_t) {
+        None => 0,
+        Some(c) => match candidates
+            .iter()
+            .position(|x| (x.freq_hz - c.freq_hz).abs() < grid.df_hz)
+        {
+            Some(i) => {
+                candidates[i] = c;
+                i
+            }
+            None => {
+                candidates.push(c);
+                candidates.len() - 1
+            }
+        },
+    };
+    let chosen = &candidates[best];
+    let timing = fit_phase_connected(&toas, chosen.period_s, cfg.fit_pdot)
+        .ok()
+        .filter(|s| s.rms_cycles < 0.25);
+    let divisor = (cfg.divisor_tol_cycles > 0.0)
+        .then(|| common_divisor_period(&toas, cfg.min_period_s, cfg.divisor_tol_cycles, 10_000_000))
+        .flatten();
+    let (period_s, period_err_s) = match &timing {
+        Some(s) => (s.period_s, s.period_err_s),
+        None => (chosen.period_s, 0.25 * grid.df_hz * chosen.period_s.powi(2)),
+    };
+    Ok(RotationResult {
+        config: cfg.clone(),
+        n_toas: toas.len(),
+        span_s,
+        grid,
+        independent_frequencies: band_hz * span_s,
+        fap: chosen.z2n_fap,
+        best,
+        candidates,
+        timing,
+        divisor,
+        period_s,
+        period_err_s,
+        periodogram: scan.periodogram,
+    })
+}
+
+/// The fundamental below the strongest peak f: every harmonic of a narrow pulse is as
+/// coherent as the fundamental, so the scan's strongest peak may be k·f. Returns the
+/// refined sub-harmonic f/k (k ≥ 2, largest k first) whose Z²ₙ reaches
+/// `harmonic_family_fraction` of the peak's, if any (common practice).
+fn sub_harmonic(
+    toas: &[f64],
+    strongest: &RotationCandidate,
+    cfg: &RotationConfig,
+    grid: &FrequencyGrid,
+    band_hz: f64,
+    span_s: f64,
+    var_t: f64,
+) -> Option<RotationCandidate> {
+    let k_max = ((strongest.freq_hz / grid.f0_hz).floor() as usize).min(MAX_SUB_HARMONIC);
+    (2..=k_max).rev().find_map(|k| {
+        let kf = k as f64;
+        let (f, z) = refine_z(toas, strongest.freq_hz / kf, grid.df_hz / kf, cfg.harmonics);
+        (z >= cfg.harmonic_family_fraction * strongest.z2n)
+            .then(|| candidate_at(toas, f, z, cfg, band_hz, span_s, var_t))
+    })
+}
+
+/// The trial grid [`search_rotation`] scans for these (merged) arrivals.
+pub fn rotation_grid(t_s: &[f64], cfg: &RotationConfig) -> FrequencyGrid {
+    let span = t_s.last().unwrap_or(&0.0) - t_s.first().unwrap_or(&0.0);
+    FrequencyGrid::for_span(
+        1.0 / cfg.max_period_s,
+        1.0 / cfg.min_period_s,
+        span,
+        cfg.harmonics,
+        cfg.oversample,
+    )
+}
+
+fn merged(t_s: &[f64], gap_s: f64) -> Vec<f64> {
+    let mut sorted = t_s.to_vec();
+    sorted.sort_by(f64::total_cmp);
+    super::times::ArrivalTimes {
+        ref_mjd: 0,
+        t_s: sorted,
+    }
+    .merge_closer_than(gap_s)
+    .t_s
+}
+
+/// Maximises f ↦ stat(f) on a local grid of `steps` points either side of `f0`.
+fn local_max(f0: f64, step: f64, steps: i32, stat: impl Fn(f64) -> f64) -> (f64, f64) {
+    (-steps..=steps)
+        .map(|i| {
+            let f = f0 + i as f64 * step;
+            (f, stat(f))
+        })
+        .max_by(|a, b| a.1.total_cmp(&b.1))
+        .expect("non-empty local grid")
+}
+
+/// Z²ₙ maximised near `f_grid` (±1 grid step, then 8× finer around the best).
+fn refine_z(toas: &[f64], f_grid: f64, df: f64, n: usize) -> (f64, f64) {
+    let t_ref = centre(toas);
+    let z_of = |f: f64| z2n(&phases(toas, t_ref, f, 0.0), n);
+    let (f1, _) = local_max(f_grid, df / 8.0, 8, z_of);
+    local_max(f1, df / 64.0, 8, z_of)
+}
+
+fn refine(
+    toas: &[f64],
+    f_grid: f64,
+    df: f64,
+    cfg: &RotationConfig,
+    band_hz: f64,
+    span_s: f64,
+    var_t: f64,
+) -> RotationCandidate {
+    let (fz, z) = refine_z(toas, f_grid, df, cfg.harmonics);
+    candidate_at(toas, fz, z, cfg, band_hz, span_s, var_t)
+}
+
+/// Scores a refined frequency: FAPs of Z²ₙ and the H-test (H refined on a step
+/// fine enough for 20 harmonics).
+fn candidate_at(
+    toas: &[f64],
+    fz: f64,
+    z: f64,
+    cfg: &RotationConfig,
+    band_hz: f64,
+    span_s: f64,
+    var_t: f64,
+) -> RotationCandidate {
+    let t_ref = centre(toas);
+    let n = cfg.harmonics;
+    let h_of = |f: f64| h_test(&phases(toas, t_ref, f, 0.0)).h;
+    let h_step = 1.0 / (4.0 * 20.0 * span_s.max(f64::MIN_POSITIVE));
+    let (fh, _) = local_max(fz, h_step, 8, h_of);
+    let h = h_test(&phases(toas, t_ref, fh, 0.0));
+    RotationCandidate {
+        freq_hz: fz,
+        period_s: 1.0 / fz,
+        z2n: z,
+        z2n_p_single: z2n_p_single(z, n),
+        z2n_fap: z2n_scan_fap(z, n, band_hz, var_t),
+        h,
+        h_p_single: h_p_single(h.h),
+        h_fap: h_scan_fap(h.h, band_hz, var_t),
+    }
+}
+
+/// Significance of one stated period (no search, so no trials).
+#[derive(Clone, Debug, Serialize)]
+pub struct HypothesisResult {
+    /// The period tested, s.
+    pub period_s: f64,
+    /// Arrivals after merging.
+    pub n_toas: usize,
+    /// Z²ₙ at the stated period and its χ²₂ₙ chance probability.
+    pub z2n: f64,
+    /// Harmonics n.
+    pub harmonics: usize,
+    /// Chance probability of Z²ₙ.
+    pub z2n_p: f64,
+    /// H-test and its chance probability exp(−0.4 H).
+    pub h: HTest,
+    /// exp(−0.4 H).
+    pub h_p: f64,
+    /// Phase-connected fit started from the stated period (residuals, pulse numbers).
+    pub timing: Option<TimingSolution>,
+}
+
+/// Tests one period (and optional Ṗ) without searching.
+///
+/// # Errors
+/// [`Error::Config`] for fewer than 3 arrivals or a non-positive period.
+pub fn test_period(
+    t_s: &[f64],
+    period_s: f64,
+    pdot: f64,
+    cfg: &RotationConfig,
+) -> Result<HypothesisResult> {
+    let toas = merged(t_s, cfg.merge_gap_s);
+    if toas.len() < 3 || period_s <= 0.0 || !(1..=20).contains(&cfg.harmonics) {
+        return Err(Error::Config(
+            "need at least 3 arrival times, a positive period and 1 ≤ harmonics ≤ 20".into(),
+        ));
+    }
+    let f = 1.0 / period_s;
+    let ph = phases(&toas, centre(&toas), f, -pdot * f * f);
+    let z = z2n(&ph, cfg.harmonics);
+    let h = h_test(&ph);
+    Ok(HypothesisResult {
+        period_s,
+        n_toas: toas.len(),
+        z2n: z,
+        harmonics: cfg.harmonics,
+        z2n_p: z2n_p_single(z, cfg.harmonics),
+        h,
+        h_p: h_p_single(h.h),
+        timing: fit_phase_connected(&toas, period_s, cfg.fit_pdot).ok(),
+    })
+}

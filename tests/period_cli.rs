@@ -1,0 +1,92 @@
+//! End-to-end runs of `burstbook period ...` on freshly written demo sets.
+
+use std::path::Path;
+use std::process::Command;
+
+fn burstbook(args: &[&str], dir: &Path) -> std::process::Output {
+    Command::new(env!("CARGO_BIN_EXE_burstbook"))
+        .args(args)
+        .current_dir(dir)
+        .output()
+        .expect("binary runs")
+}
+
+fn json(out: &std::process::Output) -> serde_json::Value {
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    serde_json::from_slice(&out.stdout).expect("JSON on stdout")
+}
+
+#[test]
+fn demo_sets_give_json_with_the_promised_fields() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    assert!(
+        burstbook(&["period", "synth", "--seed", "4"], d)
+            .status
+            .success()
+    );
+    let r = json(&burstbook(
+        &[
+            "period",
+            "rotation",
+            "--min-period-s",
+            "0.3",
+            "--max-period-s",
+            "0.6",
+            "--json",
+            "--periodogram-out",
+            "pg.csv",
+        ],
+        d,
+    ));
+    let p = r["period_s"].as_f64().unwrap();
+    assert!(
+        (p - 0.413_702_9).abs() < 5.0 * r["period_err_s"].as_f64().unwrap(),
+        "P = {p}"
+    );
+    assert!(r["fap"].as_f64().unwrap() < 1e-6);
+    let pg = std::fs::read_to_string(d.join("pg.csv")).unwrap();
+    assert!(pg.starts_with("freq_hz,period_s,z2n\n") && pg.lines().count() > 100);
+
+    let h = json(&burstbook(
+        &["period", "rotation", "--period-s", "0.4137029", "--json"],
+        d,
+    ));
+    assert!(h["z2n_p"].as_f64().unwrap() < 1e-20);
+
+    let a = json(&burstbook(
+        &["period", "activity", "--sims", "49", "--json"],
+        d,
+    ));
+    for key in ["period_days", "period_err_days", "fap", "window_fraction"] {
+        assert!(a[key].as_f64().is_some(), "{key} missing");
+    }
+    assert_eq!(a["next_windows"].as_array().unwrap().len(), 3);
+    assert!(a["next_windows"][0]["start_mjd"].as_f64().unwrap() > 61_000.0);
+
+    let s = json(&burstbook(
+        &["period", "stats", "--boot", "20", "--json"],
+        d,
+    ));
+    assert!(s["waiting"]["weibull"]["k"].as_f64().unwrap() > 0.0);
+    assert!(s["power_law"]["alpha"].as_f64().unwrap() > 1.0);
+}
+
+#[test]
+fn bad_input_is_one_line_naming_the_file() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    std::fs::write(d.join("t.csv"), "time\n61000.5\n").unwrap();
+    let out = burstbook(&["period", "rotation", "--toas", "t.csv"], d);
+    assert!(!out.status.success());
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(err.trim().lines().count(), 1, "{err}");
+    assert!(
+        err.contains("t.csv") && err.contains("no column 'mjd'"),
+        "{err}"
+    );
+}

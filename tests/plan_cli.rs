@@ -1,0 +1,71 @@
+//! `burstbook plan` end to end: band flags in, plan and cost out.
+
+use std::process::Command;
+
+fn plan(args: &[&str]) -> std::process::Output {
+    Command::new(env!("CARGO_BIN_EXE_burstbook"))
+        .arg("plan")
+        .args(args)
+        .output()
+        .expect("run burstbook")
+}
+
+const SURVEY: [&str; 8] = [
+    "--freq-lo-mhz",
+    "1200",
+    "--freq-hi-mhz",
+    "1600",
+    "--channels",
+    "1024",
+    "--tsamp-us",
+    "64",
+];
+
+// The survey band at tolerance 1.25 up to DM 1000: about 4603 trials, the continuous
+// count of the Cordes & McLaughlin 2003 (ApJ 596, 1142) step formula (see the planner
+// tests), with the doubling of the time resolution from DM 108.36 on.
+#[test]
+fn json_plan_for_the_survey_band() {
+    let out = plan(&[&SURVEY[..], &["--dm-max", "1000", "--json"]].concat());
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let report: serde_json::Value = serde_json::from_slice(&out.stdout).expect("JSON");
+    let n = report["n_trials"].as_u64().unwrap() as i64;
+    assert!((n - 4603).abs() <= 4, "{n} trials");
+    let steps = report["steps"].as_array().unwrap();
+    assert_eq!(steps[0]["downsample"], 1);
+    assert_eq!(steps[1]["downsample"], 2);
+    assert!((steps[1]["dm_first"].as_f64().unwrap() - 108.4).abs() < 0.1);
+    let cost = &report["cost"];
+    assert!(
+        cost["fast_adds_per_s"].as_f64().unwrap()
+            < cost["reference_adds_per_s"].as_f64().unwrap() / 20.0
+    );
+    assert_eq!(report["plan"]["freqs_mhz"].as_array().unwrap().len(), 1024);
+}
+
+#[test]
+fn text_plan_and_bad_input() {
+    let out = plan(&[&SURVEY[..], &["--dm-max", "300"]].concat());
+    assert!(out.status.success());
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(
+        text.contains("1024 channels") && text.contains("Per second of data"),
+        "{text}"
+    );
+
+    let out = plan(&[&SURVEY[..], &["--tolerance", "0.9"]].concat());
+    assert!(!out.status.success());
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("tolerance must exceed 1") && !err.contains("panicked"),
+        "{err}"
+    );
+
+    let out = plan(&[]);
+    assert!(!out.status.success());
+    assert!(String::from_utf8_lossy(&out.stderr).contains("give an observation file"));
+}
