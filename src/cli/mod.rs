@@ -4,10 +4,10 @@
 mod barycentre;
 mod book;
 mod inspect;
-mod report;
-mod review;
 mod period;
 mod plan;
+mod report;
+mod review;
 mod search;
 mod simulate;
 

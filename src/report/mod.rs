@@ -4,6 +4,7 @@
 //! with PNG encoding), drawn with plotters in the embedded DejaVu Sans font and the
 //! viridis colour map, so the same input gives the same pixels on every machine.
 
+pub mod activity;
 pub mod candidate_data;
 pub mod candidate_plot;
 pub mod dm_curve;
