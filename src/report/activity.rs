@@ -96,7 +96,9 @@ fn active_windows(r: &ActivityResult, sessions_mjd: &[(f64, f64)]) -> Vec<(f64, 
         for k in first..=last {
             let start = r.epoch_mjd + (k as f64 + r.window.start) * p;
             let end = start + r.window.width * p;
-            if end >= lo && start <= hi {
+            // A cycle running past the last session is drawn by the (widened) forecast.
+            let forecast_covers = end > hi && !r.next_windows.is_empty();
+            if end >= lo && start <= hi && !forecast_covers {
                 out.push((start, end));
             }
         }
