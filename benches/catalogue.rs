@@ -5,7 +5,7 @@
 
 use std::time::Instant;
 
-use burstbook::catalogue::{CandidateFilter, Catalogue, synthetic};
+use burstbook::catalogue::{Bounds, CandidateFilter, Catalogue, synthetic};
 
 fn main() {
     let full = std::env::args().any(|a| a == "--bench");
@@ -36,8 +36,11 @@ fn main() {
 
     let filter = CandidateFilter {
         source: Some("BENCH-3".into()),
-        dm_min: Some(300.0),
-        dm_max: Some(350.0),
+        bounds: Bounds {
+            dm_min: Some(300.0),
+            dm_max: Some(350.0),
+            ..Default::default()
+        },
         ..Default::default()
     };
     let filter = if full {

@@ -106,6 +106,83 @@ pub fn friends_of_friends(
     out
 }
 
+/// Where in the band the dispersion delays are referenced, for
+/// [`merge_dispersion_tails`]. Quantities are k·ν⁻² in seconds per unit DM, with k the
+/// dispersion constant.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Sweep {
+    /// Sample time in seconds.
+    pub tsamp_s: f64,
+    /// k/ν² of the highest channel (detections are timed there).
+    pub top_s_per_dm: f64,
+    /// k·⟨ν⁻²⟩ over the channels: a pulse dedispersed with a DM error δ appears, on
+    /// average over the band, at this delay times δ.
+    pub mean_s_per_dm: f64,
+    /// k(ν_lo⁻² − ν_hi⁻²): the sweep across the band per unit DM.
+    pub band_s_per_dm: f64,
+}
+
+/// Merges into each cluster the fainter clusters that lie on its "bow-tie": a pulse at
+/// DM D and arrival t_inf, dedispersed at a trial DM d, shows up around
+/// t_inf + (D − d)·k⟨ν⁻²⟩ with its width grown by the residual sweep |D − d|·k(ν_lo⁻² −
+/// ν_hi⁻²) (detection notes §9: the time linking scale is the width plus the
+/// mis-dedispersion shift). Bright pulses break into such fragments wherever a DM
+/// gap interrupts the friends-of-friends chain. Clusters are taken in decreasing S/N;
+/// output is in time order of the best member.
+pub fn merge_dispersion_tails(
+    mut clusters: Vec<Cluster>,
+    sweep: &Sweep,
+    slack_samples: f64,
+) -> Vec<Cluster> {
+    clusters.sort_by(|a, b| b.best.snr.total_cmp(&a.best.snr));
+    let event = |d: &Detection| Event {
+        t_inf_s: (d.start_sample as f64 + 0.5 * d.width_samples as f64) * sweep.tsamp_s
+            - d.dm * sweep.top_s_per_dm,
+        dm: d.dm,
+        width_s: d.width_samples as f64 * sweep.tsamp_s,
+    };
+    let slack_s = slack_samples * sweep.tsamp_s;
+    let mut leaders: Vec<Cluster> = Vec::new();
+    for c in clusters {
+        let host = leaders
+            .iter_mut()
+            .find(|l| sweep.on_bow_tie(&event(&l.best), &event(&c.best), slack_s));
+        match host {
+            Some(l) => {
+                l.size += c.size;
+                l.dm_lo = l.dm_lo.min(c.dm_lo);
+                l.dm_hi = l.dm_hi.max(c.dm_hi);
+            }
+            None => leaders.push(c),
+        }
+    }
+    leaders.sort_by_key(|c| c.best.start_sample);
+    leaders
+}
+
+/// Where and how wide a detected pulse is.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Event {
+    /// Inferred arrival at infinite frequency in seconds.
+    pub t_inf_s: f64,
+    /// DM in pc cm⁻³.
+    pub dm: f64,
+    /// Boxcar width in seconds.
+    pub width_s: f64,
+}
+
+impl Sweep {
+    /// Whether `other` could be `leader` seen at a different trial DM: a pulse at DM
+    /// D seen at trial d appears at t_inf + (D − d)·k⟨ν⁻²⟩, widened by the residual
+    /// sweep |D − d|·k(ν_lo⁻² − ν_hi⁻²).
+    pub fn on_bow_tie(&self, leader: &Event, other: &Event, slack_s: f64) -> bool {
+        let ddm = leader.dm - other.dm;
+        let smeared = leader.width_s.hypot(ddm.abs() * self.band_s_per_dm);
+        let reach = 0.5 * (smeared + other.width_s) + slack_s;
+        (other.t_inf_s - leader.t_inf_s - ddm * self.mean_s_per_dm).abs() <= reach
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -140,6 +217,42 @@ mod tests {
         let big = c.iter().find(|c| c.size == 20).unwrap();
         assert_eq!(big.best.snr, 10.0);
         assert_eq!((big.dm_lo, big.dm_hi), (10.0, 14.5));
+    }
+
+    #[test]
+    fn a_fragment_on_the_bow_tie_merges_and_a_distant_event_does_not() {
+        let sweep = Sweep {
+            tsamp_s: 1e-3,
+            top_s_per_dm: 4.148808e3 / 1600f64.powi(2),
+            mean_s_per_dm: 4.148808e3 / (1200.0 * 1600.0),
+            band_s_per_dm: 4.148808e3 * (1200f64.powi(-2) - 1600f64.powi(-2)),
+        };
+        let cluster = |d: Detection| Cluster {
+            best: d,
+            dm_lo: d.dm,
+            dm_hi: d.dm,
+            size: 1,
+        };
+        // Main pulse: DM 100, infinite-frequency arrival at sample 10 000.
+        let at = |dm: f64, t_inf: f64, w: usize, snr: f64| {
+            let start = t_inf + dm * sweep.top_s_per_dm / sweep.tsamp_s - 0.5 * w as f64;
+            cluster(Detection {
+                start_sample: start as u64,
+                width_samples: w,
+                dm_index: dm as usize,
+                dm,
+                snr,
+            })
+        };
+        let main = at(100.0, 10_000.0, 4, 20.0);
+        // Seen at DM 150 it appears 50·k⟨ν⁻²⟩ = 108 samples earlier in t_inf.
+        let fragment = at(150.0, 10_000.0 - 108.0, 32, 7.5);
+        let elsewhere = at(150.0, 10_400.0, 4, 9.0);
+        let merged =
+            merge_dispersion_tails(vec![fragment.clone(), main.clone(), elsewhere], &sweep, 2.0);
+        assert_eq!(merged.len(), 2);
+        assert_eq!(merged[0].best, main.best);
+        assert_eq!((merged[0].size, merged[0].dm_hi), (2, 150.0));
     }
 
     /// Reference: every pair tested, components by repeated relabelling.

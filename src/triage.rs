@@ -52,7 +52,7 @@ pub fn modulation_index(spectrum: &[f64], noise_var: f64) -> f64 {
         return 0.0;
     }
     let mean = spectrum.iter().sum::<f64>() / n;
-    if !(mean > 0.0) {
+    if mean.is_nan() || mean <= 0.0 {
         return 0.0;
     }
     let var = spectrum.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / n;
@@ -69,21 +69,33 @@ pub fn band_fraction(subband_snr: &[f64]) -> f64 {
     let sum: f64 = subband_snr.iter().sum();
     let sum2: f64 = subband_snr.iter().map(|s| s * s).sum();
     let power = sum2 - n;
-    if !(power > 0.0) {
+    if power.is_nan() || power <= 0.0 {
         return 1.0;
     }
     ((sum * sum - n) / (n * power)).clamp(0.0, 1.0)
 }
 
-/// The verdict and the reasons for it. `expected_dm0_ratio` is the DM-0 ratio a
-/// dispersed pulse of the detected width and DM would show.
+/// What a dispersed pulse with the candidate's S/N, DM, width and band would show.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Expectation {
+    /// Best S/N of the candidate.
+    pub snr: f64,
+    /// Best DM in pc cm⁻³.
+    pub dm: f64,
+    /// DM-0 S/N ratio expected from smearing alone (Cordes & McLaughlin 2003).
+    pub dm0_ratio: f64,
+    /// Typical largest noise S/N in the DM-0 search window; a weak pulse's DM-0 S/N
+    /// does not fall below it.
+    pub dm0_noise_snr: f64,
+}
+
+/// The verdict and the reasons for it.
 pub fn verdict(
     f: &TriageFeatures,
-    snr: f64,
-    dm: f64,
-    expected_dm0_ratio: f64,
+    e: &Expectation,
     config: &TriageConfig,
 ) -> (Verdict, Vec<String>) {
+    let (snr, dm, expected_dm0_ratio) = (e.snr, e.dm, e.dm0_ratio);
     let mut rfi = Vec::new();
     if f.band_fraction < config.min_band_fraction {
         rfi.push(format!(
@@ -98,10 +110,11 @@ pub fn verdict(
             f.dm_curve_misfit, misfit_limit
         ));
     }
-    if f.snr_dm0_ratio > expected_dm0_ratio + config.max_dm0_excess {
+    let dm0_limit = expected_dm0_ratio.max(e.dm0_noise_snr / snr.max(1.0)) + config.max_dm0_excess;
+    if f.snr_dm0_ratio > dm0_limit {
         rfi.push(format!(
-            "as bright at DM 0 (ratio {:.2}) as at DM {:.1} (expected {:.2})",
-            f.snr_dm0_ratio, dm, expected_dm0_ratio
+            "as bright at DM 0 (ratio {:.2}) as at DM {:.1} (limit {:.2})",
+            f.snr_dm0_ratio, dm, dm0_limit
         ));
     }
     if !rfi.is_empty() {
@@ -176,21 +189,40 @@ mod tests {
             band_fraction: 0.9,
             modulation_index: 0.2,
         };
-        assert_eq!(
-            verdict(&good, 12.0, 300.0, 0.05, &cfg).0,
-            Verdict::Astrophysical
-        );
-        assert_eq!(verdict(&good, 12.0, 2.0, 0.95, &cfg).0, Verdict::Unsure);
+        let e = Expectation {
+            snr: 12.0,
+            dm: 300.0,
+            dm0_ratio: 0.05,
+            dm0_noise_snr: 2.5,
+        };
+        assert_eq!(verdict(&good, &e, &cfg).0, Verdict::Astrophysical);
+        let low = Expectation {
+            dm: 2.0,
+            dm0_ratio: 0.95,
+            ..e
+        };
+        assert_eq!(verdict(&good, &low, &cfg).0, Verdict::Unsure);
         let narrow = TriageFeatures {
             band_fraction: 0.05,
             ..good
         };
-        assert_eq!(verdict(&narrow, 12.0, 300.0, 0.05, &cfg).0, Verdict::Rfi);
+        assert_eq!(verdict(&narrow, &e, &cfg).0, Verdict::Rfi);
+        // A weak pulse's DM-0 S/N sits at the noise maximum, not at the smearing ratio.
+        let weak = TriageFeatures {
+            snr_dm0_ratio: 0.35,
+            ..good
+        };
+        let weak_e = Expectation {
+            snr: 8.0,
+            dm0_noise_snr: 3.0,
+            ..e
+        };
+        assert_eq!(verdict(&weak, &weak_e, &cfg).0, Verdict::Astrophysical);
         let flat = TriageFeatures {
             snr_dm0_ratio: 1.0,
             ..good
         };
-        let (v, reasons) = verdict(&flat, 12.0, 300.0, 0.05, &cfg);
+        let (v, reasons) = verdict(&flat, &e, &cfg);
         assert_eq!(v, Verdict::Rfi);
         assert!(reasons[0].contains("DM 0"), "{reasons:?}");
     }

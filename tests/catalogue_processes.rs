@@ -40,35 +40,11 @@ fn fill_args(source: &str, first_seed: u64, n_obs: u64, n_cand: usize) -> Vec<St
 
 /// (runs, candidates) after checking every run holds exactly its candidates.
 fn check_runs_whole(db: &Path) -> (i64, i64) {
-    let cat = Catalogue::open(db).expect("catalogue opens after the crash");
-    cat.integrity_check().unwrap();
-    drop(cat);
-    let c = Connection::open(db).unwrap();
-    let partial: i64 = c
-        .query_row(
-            "SELECT count(*) FROM search_run r
-             WHERE r.n_candidates != (SELECT count(*) FROM candidate WHERE run_id = r.id)",
-            [],
-            |r| r.get(0),
-        )
-        .unwrap();
-    assert_eq!(partial, 0, "a run is missing candidates");
-    let orphans: i64 = c
-        .query_row(
-            "SELECT (SELECT count(*) FROM candidate WHERE run_id NOT IN (SELECT id FROM search_run))
-                  + (SELECT count(*) FROM exposure WHERE run_id IS NOT NULL
-                       AND run_id NOT IN (SELECT id FROM search_run))",
-            [],
-            |r| r.get(0),
-        )
-        .unwrap();
-    assert_eq!(orphans, 0);
-    c.query_row(
-        "SELECT (SELECT count(*) FROM search_run), (SELECT count(*) FROM candidate)",
-        [],
-        |r| Ok((r.get(0)?, r.get(1)?)),
-    )
-    .unwrap()
+    let counts = Catalogue::open(db)
+        .expect("catalogue opens after the crash")
+        .verify()
+        .expect("no partial run");
+    (counts.runs, counts.candidates)
 }
 
 #[test]

@@ -6,13 +6,14 @@
 //! Compared quantity: the PEAK ratio (the dedispersed series' maximum at DM + δDM over
 //! its maximum at the true DM, i.e. a one-sample boxcar on a pulse 50 samples wide),
 //! not the re-matched S/N. The formula linearises the dispersion sweep across the band,
-//! so a narrow fractional band (1350–1450 MHz) is used.
+//! so a narrow fractional band (1350–1450 MHz) is used. The burst comes from the
+//! simulator's signal model (which includes the small intra-channel smearing).
 
 mod common;
 
 use burstbook::dedisperse::{DmPlan, reference};
 use burstbook::triage::{cm03_peak_ratio, cm03_zeta};
-use common::{Pulse, add_pulse, header_band};
+use common::{add, burst, header_band};
 use ndarray::Array2;
 
 #[test]
@@ -21,15 +22,9 @@ fn peak_ratio_follows_cordes_mclaughlin() {
     let h = header_band(n_chan, n_time as u64, tsamp, 1350.0, 1450.0);
     let mut data = vec![0.0f32; n_time * n_chan];
     let dm = 100.0;
-    let pulse = Pulse {
-        t_inf_s: 0.0,
-        dm,
-        fwhm_s: 1e-3,
-        amplitude: 1.0,
-    };
-    // Put the pulse at the top channel 20 ms into the data.
+    // Put the burst at the top channel 20 ms into the data; the amplitude is arbitrary.
     let t_inf_s = 0.02 - common::K_HANDBOOK_S_MHZ2 * dm / h.freqs_mhz[0].powi(2);
-    add_pulse(&h, &mut data, Pulse { t_inf_s, ..pulse }, 0..n_chan);
+    add(&h, &mut data, &burst(&h, t_inf_s, dm, 1e-3, 100.0));
     let input = Array2::from_shape_vec((n_time, n_chan), data).unwrap();
     let input = input.t().as_standard_layout().to_owned();
 

@@ -12,7 +12,7 @@ use crate::obs::{Header, Site};
 /// A burst with everything needed to barycentre its arrival time.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct BurstTiming {
-    /// Burst id (pass to [`Catalogue::set_barycentric_toa`]).
+    /// Burst id (pass to [`Catalogue::set_barycentric_toas`]).
     pub burst_id: i64,
     /// Topocentric UTC MJD of arrival at infinite frequency.
     pub mjd_utc: f64,
@@ -103,33 +103,41 @@ impl Catalogue {
         Ok(out)
     }
 
-    /// Stores (or replaces) the barycentric TDB MJD of burst `burst_id`.
+    /// Stores (or replaces) barycentric TDB MJDs, `(burst_id, toa_tdb_mjd)`, all in
+    /// one transaction.
     ///
     /// # Errors
-    /// No such burst, a non-finite value, or an SQLite failure.
-    pub fn set_barycentric_toa(&mut self, burst_id: i64, toa_tdb_mjd: f64) -> Result<()> {
-        if !toa_tdb_mjd.is_finite() {
+    /// An unknown burst or a non-finite value (then nothing is stored), or an
+    /// SQLite failure.
+    pub fn set_barycentric_toas(&mut self, toas: &[(i64, f64)]) -> Result<()> {
+        if let Some((id, _)) = toas.iter().find(|(_, t)| !t.is_finite()) {
             return Err(Error::Numerical(format!(
-                "barycentric TOA of burst {burst_id} is not finite"
+                "barycentric TOA of burst {id} is not finite"
             )));
         }
         let path = self.path().to_path_buf();
         self.write(|tx| {
-            let n = tx
-                .execute(
-                    "UPDATE burst SET toa_tdb_mjd = ?2 WHERE id = ?1",
-                    params![burst_id, toa_tdb_mjd],
-                )
+            let mut update = tx
+                .prepare_cached("UPDATE burst SET toa_tdb_mjd = ?2 WHERE id = ?1")
                 .map_err(|e| super::sql_error(&path, e))?;
-            if n == 0 {
-                return Err(catalogue_error(&path, format!("has no burst {burst_id}")));
+            for &(burst_id, toa) in toas {
+                let n = update
+                    .execute(params![burst_id, toa])
+                    .map_err(|e| super::sql_error(&path, e))?;
+                if n == 0 {
+                    return Err(catalogue_error(
+                        &path,
+                        format!("has no burst {burst_id}; no TOA stored"),
+                    ));
+                }
             }
             Ok(())
         })
     }
 
     /// Appends an injection-recovery result for `obs` (recorded first if new).
-    /// Returns the row id.
+    /// When `fluence90_jy_ms` is given it also becomes the fluence limit of the
+    /// exposure searched with that configuration. Returns the row id.
     ///
     /// # Errors
     /// Bad configuration JSON or an SQLite failure.
@@ -161,7 +169,16 @@ impl Catalogue {
                 ],
             )
             .map_err(e)?;
-            Ok(tx.last_insert_rowid())
+            let id = tx.last_insert_rowid();
+            if let Some(limit) = rec.fluence90_jy_ms {
+                tx.execute(
+                    "UPDATE exposure SET fluence_limit_jy_ms = ?3 WHERE run_id IN
+                         (SELECT id FROM search_run WHERE observation_id = ?1 AND config_sha256 = ?2)",
+                    params![obs_id, config_sha, limit],
+                )
+                .map_err(e)?;
+            }
+            Ok(id)
         })
     }
 
@@ -222,13 +239,18 @@ mod tests {
         assert_eq!(t.len(), 2);
         assert_eq!(t[0].site, obs.header.site);
         assert_eq!(t[0].mjd_utc, rows[0].candidate.mjd_inf);
-        cat.set_barycentric_toa(t[1].burst_id, 60009.123_456_789)
+        cat.set_barycentric_toas(&[(t[1].burst_id, 60_009.123_456_789)])
             .unwrap();
         assert_eq!(
             cat.burst_timing("ECHO").unwrap()[1].toa_tdb_mjd,
-            Some(60009.123_456_789)
+            Some(60_009.123_456_789)
         );
-        assert!(cat.set_barycentric_toa(999, 1.0).is_err());
+        // One bad id stores nothing.
+        assert!(
+            cat.set_barycentric_toas(&[(t[0].burst_id, 1.0), (999, 1.0)])
+                .is_err()
+        );
+        assert_eq!(cat.burst_timing("ECHO").unwrap()[0].toa_tdb_mjd, None);
     }
 
     #[test]
@@ -248,7 +270,7 @@ mod tests {
         rec.snr50 = Some(8.5);
         cat.record_completeness(&obs, &rec).unwrap();
         let got = cat
-            .completeness(&obs.content_sha256, r#"{"snr_threshold":7}"#)
+            .completeness(&obs.content_sha256, r#"{"snr_threshold": 7}"#)
             .unwrap();
         assert_eq!(got.unwrap().snr50, Some(8.5));
         assert!(
@@ -263,5 +285,35 @@ mod tests {
             })
             .unwrap();
         assert_eq!(n, 2);
+        // The hash is of the exact text, as the search writes it.
+        let respaced = cat.completeness(&obs.content_sha256, r#"{"snr_threshold":7}"#);
+        assert!(respaced.unwrap().is_none());
+    }
+
+    #[test]
+    fn fluence_completeness_marks_the_exposure_of_that_configuration() {
+        let dir = tempfile::tempdir().unwrap();
+        let mut cat = Catalogue::open(&dir.path().join("c.sqlite")).unwrap();
+        let obs = observation("ECHO", 2);
+        let (searched, other) = (run(7.0), run(9.0));
+        cat.record_search(&obs, &searched, &[]).unwrap();
+        cat.record_search(&obs, &other, &[]).unwrap();
+        let rec = CompletenessRecord {
+            config_json: searched.config_json.clone(),
+            snr50: None,
+            snr90: None,
+            fluence50_jy_ms: Some(0.4),
+            fluence90_jy_ms: Some(0.9),
+            result_json: "{}".into(),
+        };
+        cat.record_completeness(&obs, &rec).unwrap();
+        let mut limits: Vec<_> = cat
+            .exposure(Some("ECHO"))
+            .unwrap()
+            .into_iter()
+            .map(|e| (e.snr_threshold, e.fluence_limit_jy_ms))
+            .collect();
+        limits.sort_by(|a, b| a.0.partial_cmp(&b.0).unwrap());
+        assert_eq!(limits, vec![(Some(7.0), Some(0.9)), (Some(9.0), None)]);
     }
 }

@@ -14,6 +14,7 @@
 
 mod bursts;
 mod exposure;
+mod from_search;
 mod query;
 mod record;
 mod review;
@@ -25,11 +26,12 @@ mod voevent;
 
 pub use bursts::{BurstTiming, CompletenessRecord};
 pub use exposure::{ExposureInterval, exposure_hours, merge_intervals};
-pub use query::{BurstFilter, BurstRow, CandidateFilter, CandidateRow};
+pub use query::{Bounds, BurstFilter, BurstRow, CandidateFilter, CandidateRow};
 pub use record::{ObservationRecord, RecordOutcome, RunRecord, config_hash, content_hash};
 pub use review::{AssignTolerance, Label, Promotion};
 pub use schema::{APPLICATION_ID, SCHEMA_VERSION};
 pub use sources::SourceRecord;
+
 pub use summary::{PoissonInterval, SourceSummary, poisson_interval};
 pub use voevent::{BurstPacket, VoEventOptions, mjd_to_iso, voevent_xml};
 
@@ -176,24 +178,60 @@ impl Catalogue {
         sql_error(&self.path, e)
     }
 
-    /// Checks the file with SQLite's own integrity check; `Ok(())` when sound.
+    /// Checks the file with SQLite's integrity check, then that every run holds
+    /// exactly its `n_candidates` candidates and nothing points at a missing run.
+    /// Returns the counts of observations, runs and candidates.
     ///
     /// # Errors
-    /// The first problem SQLite reports.
-    pub fn integrity_check(&self) -> Result<()> {
+    /// The first problem found.
+    pub fn verify(&self) -> Result<Counts> {
+        let one = |sql: &str| -> Result<i64> {
+            self.conn
+                .query_row(sql, [], |r| r.get(0))
+                .map_err(|e| self.err(e))
+        };
         let verdict: String = self
             .conn
             .query_row("PRAGMA integrity_check", [], |r| r.get(0))
             .map_err(|e| self.err(e))?;
-        if verdict == "ok" {
-            Ok(())
-        } else {
-            Err(catalogue_error(
+        if verdict != "ok" {
+            return Err(catalogue_error(
                 &self.path,
                 format!("integrity check failed: {verdict}"),
-            ))
+            ));
         }
+        let partial = one("SELECT count(*) FROM search_run r
+             WHERE r.n_candidates != (SELECT count(*) FROM candidate WHERE run_id = r.id)")?;
+        let orphans = one(
+            "SELECT (SELECT count(*) FROM candidate WHERE run_id NOT IN (SELECT id FROM search_run))
+                  + (SELECT count(*) FROM exposure WHERE run_id IS NOT NULL
+                       AND run_id NOT IN (SELECT id FROM search_run))",
+        )?;
+        if partial + orphans > 0 {
+            return Err(catalogue_error(
+                &self.path,
+                format!(
+                    "{partial} run(s) with missing candidates, {orphans} row(s) of missing runs"
+                ),
+            ));
+        }
+        Ok(Counts {
+            observations: one("SELECT count(*) FROM observation")?,
+            runs: one("SELECT count(*) FROM search_run")?,
+            candidates: one("SELECT count(*) FROM candidate")?,
+        })
     }
+}
+
+/// What [`Catalogue::verify`] counted.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Counts {
+    /// Distinct observations.
+    pub observations: i64,
+    /// Search runs.
+    pub runs: i64,
+    /// Candidates.
+    pub candidates: i64,
 }
 
 /// Refuses a non-empty file that does not start with SQLite's magic string,
@@ -300,7 +338,7 @@ pub(crate) fn sql_error(path: &Path, e: rusqlite::Error) -> Error {
 }
 
 /// The current UTC time as ISO 8601 with milliseconds, as stored in `*_utc` columns.
-pub(crate) fn now_utc() -> String {
+pub fn now_utc() -> String {
     chrono::Utc::now()
         .format("%Y-%m-%dT%H:%M:%S%.3fZ")
         .to_string()

@@ -8,21 +8,28 @@ use super::Catalogue;
 use crate::candidate::{Candidate, TriageFeatures, Verdict};
 use crate::error::Result;
 
+/// Ranges shared by candidate and burst queries (inclusive; `None` = unbounded).
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Bounds {
+    /// Lowest DM in pc cm⁻³.
+    pub dm_min: Option<f64>,
+    /// Highest DM in pc cm⁻³.
+    pub dm_max: Option<f64>,
+    /// Lowest S/N.
+    pub snr_min: Option<f64>,
+    /// Earliest arrival, UTC MJD.
+    pub mjd_min: Option<f64>,
+    /// Latest arrival, UTC MJD.
+    pub mjd_max: Option<f64>,
+}
+
 /// Which candidates to return; `None` / empty means "any".
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct CandidateFilter {
     /// Source name as written in the observation header.
     pub source: Option<String>,
-    /// Lowest DM in pc cm⁻³ (inclusive).
-    pub dm_min: Option<f64>,
-    /// Highest DM in pc cm⁻³ (inclusive).
-    pub dm_max: Option<f64>,
-    /// Lowest S/N (inclusive).
-    pub snr_min: Option<f64>,
-    /// Earliest arrival, UTC MJD (inclusive).
-    pub mjd_min: Option<f64>,
-    /// Latest arrival, UTC MJD (inclusive).
-    pub mjd_max: Option<f64>,
+    /// DM, S/N and time ranges.
+    pub bounds: Bounds,
     /// Triage verdict.
     pub verdict: Option<Verdict>,
     /// Current (newest) review label; `"none"` selects unlabelled candidates.
@@ -52,20 +59,12 @@ pub struct CandidateRow {
 }
 
 /// Which bursts to return; `None` means "any".
-#[derive(Debug, Clone, Default)]
+#[derive(Debug, Clone, Default, PartialEq)]
 pub struct BurstFilter {
     /// Assigned source name.
     pub source: Option<String>,
-    /// Lowest DM in pc cm⁻³ (inclusive).
-    pub dm_min: Option<f64>,
-    /// Highest DM in pc cm⁻³ (inclusive).
-    pub dm_max: Option<f64>,
-    /// Lowest S/N (inclusive).
-    pub snr_min: Option<f64>,
-    /// Earliest arrival, UTC MJD (inclusive).
-    pub mjd_min: Option<f64>,
-    /// Latest arrival, UTC MJD (inclusive).
-    pub mjd_max: Option<f64>,
+    /// DM, S/N and time ranges.
+    pub bounds: Bounds,
 }
 
 /// A confirmed burst.
@@ -112,6 +111,15 @@ impl Where {
         }
     }
 
+    /// The range conditions of `b` on the named columns.
+    fn push_bounds(&mut self, b: &Bounds, dm: &str, snr: &str, mjd: &str) {
+        self.push(&format!("{dm} >= ?"), b.dm_min.map(Value::Real));
+        self.push(&format!("{dm} <= ?"), b.dm_max.map(Value::Real));
+        self.push(&format!("{snr} >= ?"), b.snr_min.map(Value::Real));
+        self.push(&format!("{mjd} >= ?"), b.mjd_min.map(Value::Real));
+        self.push(&format!("{mjd} <= ?"), b.mjd_max.map(Value::Real));
+    }
+
     fn sql(&self) -> String {
         if self.clauses.is_empty() {
             String::new()
@@ -124,51 +132,53 @@ impl Where {
 const LATEST_LABEL: &str =
     "(SELECT label FROM review_label l WHERE l.candidate_id = c.id ORDER BY l.id DESC LIMIT 1)";
 
+/// The candidate query for `filter`, with its bound values.
+fn candidate_sql(filter: &CandidateFilter) -> (String, Vec<Value>) {
+    let mut w = Where::default();
+    w.push("o.source_name = ?", filter.source.clone().map(Value::Text));
+    w.push_bounds(&filter.bounds, "c.dm", "c.snr", "c.mjd_inf");
+    w.push(
+        "c.verdict = ?",
+        filter.verdict.map(|v| Value::Text(v.as_str().into())),
+    );
+    match filter.label.as_deref() {
+        Some("none") => w.clauses.push(format!("{LATEST_LABEL} IS NULL")),
+        Some(l) => w.push(&format!("{LATEST_LABEL} = ?"), Some(Value::Text(l.into()))),
+        None => {}
+    }
+    if !filter.ids.is_empty() {
+        let ids = serde_json::to_string(&filter.ids).expect("integers serialise");
+        w.push(
+            "c.id IN (SELECT value FROM json_each(?))",
+            Some(Value::Text(ids)),
+        );
+    }
+    let limit = filter.limit.map_or(-1, |n| n as i64);
+    let sql = format!(
+        "SELECT c.id, c.run_id, o.source_name, {LATEST_LABEL}, b.id,
+                c.file, c.t_inf_s, c.mjd_inf, c.dm, c.dm_lo, c.dm_hi, c.width_ms, c.snr,
+                c.cluster_size, c.verdict, c.reasons_json, c.snr_dm0_ratio,
+                c.dm_curve_misfit, c.band_fraction, c.modulation_index, c.fluence_jy_ms
+         FROM candidate c
+         JOIN search_run r ON r.id = c.run_id
+         JOIN observation o ON o.id = r.observation_id
+         LEFT JOIN burst b ON b.candidate_id = c.id
+         {} ORDER BY c.mjd_inf, c.id LIMIT {limit}",
+        w.sql()
+    );
+    (sql, w.values)
+}
+
 impl Catalogue {
     /// Candidates matching `filter`, ordered by arrival time.
     ///
     /// # Errors
     /// An SQLite failure.
     pub fn candidates(&self, filter: &CandidateFilter) -> Result<Vec<CandidateRow>> {
-        let mut w = Where::default();
-        w.push("o.source_name = ?", filter.source.clone().map(Value::Text));
-        w.push("c.dm >= ?", filter.dm_min.map(Value::Real));
-        w.push("c.dm <= ?", filter.dm_max.map(Value::Real));
-        w.push("c.snr >= ?", filter.snr_min.map(Value::Real));
-        w.push("c.mjd_inf >= ?", filter.mjd_min.map(Value::Real));
-        w.push("c.mjd_inf <= ?", filter.mjd_max.map(Value::Real));
-        w.push(
-            "c.verdict = ?",
-            filter.verdict.map(|v| Value::Text(v.as_str().into())),
-        );
-        match filter.label.as_deref() {
-            Some("none") => w.clauses.push(format!("{LATEST_LABEL} IS NULL")),
-            Some(l) => w.push(&format!("{LATEST_LABEL} = ?"), Some(Value::Text(l.into()))),
-            None => {}
-        }
-        if !filter.ids.is_empty() {
-            let ids = serde_json::to_string(&filter.ids).expect("integers serialise");
-            w.push(
-                "c.id IN (SELECT value FROM json_each(?))",
-                Some(Value::Text(ids)),
-            );
-        }
-        let limit = filter.limit.map_or(-1, |n| n as i64);
-        let sql = format!(
-            "SELECT c.id, c.run_id, o.source_name, {LATEST_LABEL}, b.id,
-                    c.file, c.t_inf_s, c.mjd_inf, c.dm, c.dm_lo, c.dm_hi, c.width_ms, c.snr,
-                    c.cluster_size, c.verdict, c.reasons_json, c.snr_dm0_ratio,
-                    c.dm_curve_misfit, c.band_fraction, c.modulation_index, c.fluence_jy_ms
-             FROM candidate c
-             JOIN search_run r ON r.id = c.run_id
-             JOIN observation o ON o.id = r.observation_id
-             LEFT JOIN burst b ON b.candidate_id = c.id
-             {} ORDER BY c.mjd_inf, c.id LIMIT {limit}",
-            w.sql()
-        );
+        let (sql, values) = candidate_sql(filter);
         let mut stmt = self.conn().prepare(&sql).map_err(|e| self.err(e))?;
         let rows = stmt
-            .query_map(rusqlite::params_from_iter(w.values.iter()), |r| {
+            .query_map(rusqlite::params_from_iter(values.iter()), |r| {
                 let verdict: String = r.get(14)?;
                 let reasons: String = r.get(15)?;
                 Ok(CandidateRow {
@@ -211,11 +221,7 @@ impl Catalogue {
     pub fn bursts(&self, filter: &BurstFilter) -> Result<Vec<BurstRow>> {
         let mut w = Where::default();
         w.push("s.name = ?", filter.source.clone().map(Value::Text));
-        w.push("b.dm >= ?", filter.dm_min.map(Value::Real));
-        w.push("b.dm <= ?", filter.dm_max.map(Value::Real));
-        w.push("b.snr >= ?", filter.snr_min.map(Value::Real));
-        w.push("b.mjd_utc >= ?", filter.mjd_min.map(Value::Real));
-        w.push("b.mjd_utc <= ?", filter.mjd_max.map(Value::Real));
+        w.push_bounds(&filter.bounds, "b.dm", "b.snr", "b.mjd_utc");
         let sql = format!(
             "SELECT b.id, b.candidate_id, s.name, b.mjd_utc, b.toa_tdb_mjd, b.snr, b.width_ms,
                     b.dm, b.fluence_jy_ms, o.site, c.file
@@ -273,9 +279,12 @@ mod tests {
         let (_dir, cat, all) = filled();
         let f = CandidateFilter {
             source: Some("BETA".into()),
-            dm_min: Some(100.0),
-            dm_max: Some(400.0),
-            snr_min: Some(20.0),
+            bounds: Bounds {
+                dm_min: Some(100.0),
+                dm_max: Some(400.0),
+                snr_min: Some(20.0),
+                ..Default::default()
+            },
             verdict: Some(Verdict::Rfi),
             ..Default::default()
         };
@@ -292,6 +301,36 @@ mod tests {
         assert!(
             got.windows(2)
                 .all(|w| w[0].candidate.mjd_inf <= w[1].candidate.mjd_inf)
+        );
+    }
+
+    /// A source + DM query must walk the (run_id, dm) index, not scan by DM
+    /// (the benchmark's query; see docs/catalogue.md).
+    #[test]
+    fn source_and_dm_query_uses_the_run_dm_index() {
+        let (_dir, cat, _) = filled();
+        let f = CandidateFilter {
+            source: Some("BETA".into()),
+            bounds: Bounds {
+                dm_min: Some(300.0),
+                dm_max: Some(350.0),
+                ..Default::default()
+            },
+            ..Default::default()
+        };
+        let (sql, values) = candidate_sql(&f);
+        let mut stmt = cat
+            .conn()
+            .prepare(&format!("EXPLAIN QUERY PLAN {sql}"))
+            .unwrap();
+        let plan: Vec<String> = stmt
+            .query_map(rusqlite::params_from_iter(values.iter()), |r| r.get(3))
+            .unwrap()
+            .collect::<rusqlite::Result<_>>()
+            .unwrap();
+        assert!(
+            plan.iter().any(|p| p.contains("candidate_by_run_dm")),
+            "{plan:?}"
         );
     }
 

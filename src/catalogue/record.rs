@@ -106,15 +106,17 @@ pub enum RecordOutcome {
     AlreadyPresent { run_id: i64 },
 }
 
-/// Hex SHA-256 of a configuration: the JSON is parsed and re-serialised with
-/// sorted keys and no spaces first, so formatting does not change the hash.
+/// Hex SHA-256 of a configuration's JSON text, exactly as given. Pass
+/// [`crate::search::SearchConfig::to_json`]: the hash then equals
+/// [`crate::search::SearchConfig::hash`], the `config_hash` written beside the
+/// search's candidates, so outputs and catalogue runs can be matched.
 ///
 /// # Errors
 /// [`Error::Config`] if the text is not JSON.
 pub fn config_hash(config_json: &str) -> Result<String> {
-    let value: serde_json::Value = serde_json::from_str(config_json)
+    serde_json::from_str::<serde_json::Value>(config_json)
         .map_err(|e| Error::Config(format!("search configuration is not JSON: {e}")))?;
-    Ok(hex(&Sha256::digest(value.to_string().as_bytes())))
+    Ok(hex(&Sha256::digest(config_json.as_bytes())))
 }
 
 /// Hex SHA-256 of an observation's bytes, read in 1 MiB pieces.
@@ -341,11 +343,13 @@ mod tests {
     use crate::catalogue::synthetic::{candidates, observation, run};
 
     #[test]
-    fn config_hash_ignores_formatting_and_key_order() {
-        let a = config_hash(r#"{"a": 1, "b": [1, 2]}"#).unwrap();
-        let b = config_hash("{\"b\":[1,2],\n \"a\":1}").unwrap();
-        assert_eq!(a, b);
-        assert_ne!(a, config_hash(r#"{"a": 2, "b": [1, 2]}"#).unwrap());
+    fn config_hash_is_the_search_configuration_hash() {
+        let config = crate::search::SearchConfig::default();
+        assert_eq!(config_hash(&config.to_json()).unwrap(), config.hash());
+        assert_ne!(
+            config_hash(r#"{"a": 1}"#).unwrap(),
+            config_hash(r#"{"a": 2}"#).unwrap()
+        );
         assert!(config_hash("not json").is_err());
     }
 
@@ -387,10 +391,10 @@ mod tests {
         let cands = candidates(&obs, 5, 7);
         let first = cat.record_search(&obs, &run(8.0), &cands).unwrap();
         assert!(matches!(first, RecordOutcome::Inserted { .. }));
-        // Same config, reformatted JSON: still the same run.
-        let mut again = run(8.0);
-        again.config_json = again.config_json.replace(':', " : ");
-        let second = cat.record_search(&obs, &again, &cands).unwrap();
+        // Same content and configuration again (another path, later time): same run.
+        let mut moved = obs.clone();
+        moved.path = "elsewhere/copy.fits".into();
+        let second = cat.record_search(&moved, &run(8.0), &cands).unwrap();
         assert!(matches!(second, RecordOutcome::AlreadyPresent { .. }));
         let n: i64 = cat
             .conn()

@@ -4,7 +4,7 @@
 use serde::Serialize;
 use statrs::distribution::{ChiSquared, ContinuousCDF};
 
-use super::{BurstFilter, Catalogue, exposure_hours};
+use super::{Bounds, BurstFilter, Catalogue, exposure_hours};
 use crate::error::{Error, Result};
 
 /// Confidence limits on the mean of a Poisson variable given `n` events.
@@ -83,8 +83,10 @@ impl Catalogue {
         self.source(source)?;
         let bursts = self.bursts(&BurstFilter {
             source: Some(source.into()),
-            snr_min,
-            ..Default::default()
+            bounds: Bounds {
+                snr_min,
+                ..Default::default()
+            },
         })?;
         let hours = exposure_hours(&self.merged_exposure(source, snr_min)?);
         let n = bursts.len() as u64;

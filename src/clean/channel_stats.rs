@@ -115,7 +115,7 @@ fn outliers(values: &[f64], mask: &[bool], threshold: f64) -> Vec<bool> {
         .collect();
     let mut abs: Vec<f32> = resid.iter().flatten().map(|r| r.abs()).collect();
     let sigma = f64::from(median_in_place(&mut abs)) * MAD_TO_SIGMA;
-    if !(sigma > 0.0) {
+    if sigma.is_nan() || sigma <= 0.0 {
         return vec![false; n];
     }
     resid

@@ -21,7 +21,7 @@ pub fn clip(mut data: ArrayViewMut2<'_, f32>, mask: &[bool], threshold: f64) -> 
         }
     }
     let (med, sigma) = median_sigma(&sums, 1, &mut Vec::new());
-    if !(sigma > 0.0) {
+    if sigma.is_nan() || sigma <= 0.0 {
         return 0;
     }
     let hot: Vec<usize> = (0..n_time)

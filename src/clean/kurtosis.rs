@@ -4,7 +4,7 @@
 //!
 //! SK = (M·N·d + 1)/(M − 1) · (M·S₂/S₁² − 1), with S₁ = ΣPᵢ, S₂ = ΣPᵢ² over M samples.
 //!
-//! For Gaussian noise E[SK] = 1; its variance and third central moment are known in
+//! For Gaussian noise the mean of SK is 1; its variance and third central moment are known in
 //! closed form (same papers), and the distribution is skewed, so the flagging
 //! thresholds are asymmetric: quantiles of the Pearson type III curve (a shifted gamma
 //! distribution) with those first three moments.
@@ -120,8 +120,8 @@ impl ChannelKurtosis {
         };
         let (lo, hi) = sk_thresholds(m, nd, tail);
         let mut newly = 0;
-        for c in 0..self.n_chan {
-            if mask[c] || !self.is_power(c) {
+        for (c, masked) in mask.iter_mut().enumerate() {
+            if *masked || !self.is_power(c) {
                 continue;
             }
             let (mut flagged, mut total) = (0usize, 0usize);
@@ -131,7 +131,7 @@ impl ChannelKurtosis {
                 flagged += usize::from(!(lo..=hi).contains(&sk));
             }
             if total > 0 && flagged as f64 > flag_fraction * total as f64 {
-                mask[c] = true;
+                *masked = true;
                 newly += 1;
             }
         }

@@ -79,14 +79,14 @@ impl CleanConfig {
                 )));
             }
         }
-        if !(self.stat_threshold > 0.0) {
+        if self.stat_threshold.is_nan() || self.stat_threshold <= 0.0 {
             return Err(Error::Config("stat_threshold must be positive".into()));
         }
         if self.kurtosis_m < 16 {
             return Err(Error::Config("kurtosis_m must be at least 16".into()));
         }
         if let Some(nd) = self.kurtosis_nd
-            && !(nd > 0.0)
+            && (nd.is_nan() || nd <= 0.0)
         {
             return Err(Error::Config("kurtosis_nd must be positive".into()));
         }
@@ -95,7 +95,7 @@ impl CleanConfig {
                 "kurtosis_tail_probability must be in (0, 0.5)".into(),
             ));
         }
-        if !(self.clip_threshold >= 0.0) {
+        if self.clip_threshold.is_nan() || self.clip_threshold < 0.0 {
             return Err(Error::Config("clip_threshold must be >= 0".into()));
         }
         Ok(())

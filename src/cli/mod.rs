@@ -36,7 +36,7 @@ enum Command {
     /// Convert topocentric UTC arrival times (CSV column mjd_utc) to barycentric TDB.
     Barycentre(barycentre::Args),
     /// The burst catalogue: query, label, promote, sources, exposure, summary, VOEvent.
-    Book(book::Args),
+    Book(Box<book::Args>),
     /// Choose trial DMs and time resolutions for a band, and estimate the cost.
     Plan(plan::Args),
     /// Periodicity tests on burst arrival times: rotation, activity cycles, statistics.
@@ -52,7 +52,7 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Search(a) => search::run(a),
         Command::Simulate(a) => simulate::run(a),
         Command::Barycentre(a) => barycentre::run(a),
-        Command::Book(a) => book::run(a),
+        Command::Book(a) => book::run(*a),
         Command::Plan(a) => plan::run(a),
         Command::Period(a) => period::run(a),
     }

@@ -3,6 +3,7 @@
 use std::path::PathBuf;
 
 use anyhow::Context;
+use burstbook::catalogue::{Catalogue, RecordOutcome};
 use burstbook::search::{self, FileResult, SearchConfig, output};
 
 /// Arguments of `search`.
@@ -10,7 +11,8 @@ use burstbook::search::{self, FileResult, SearchConfig, output};
 #[command(after_help = "Examples:
   burstbook search demo-data/*.json --out results
   burstbook search obs.fits --out results --dm-max 500 --snr 8 --mask-mhz 1270:1290
-  burstbook search obs.json --out results --config search.toml --zero-dm")]
+  burstbook search obs.json --out results --config search.toml --zero-dm
+  burstbook search demo-data/demo.json --out results --catalogue survey.sqlite")]
 pub struct Args {
     /// Observation files (.json native header or FITS search mode).
     #[arg(required = true)]
@@ -45,6 +47,12 @@ pub struct Args {
     /// New samples per block in seconds.
     #[arg(long)]
     pub block_s: Option<f64>,
+    /// Catalogue that records each searched file [default: $BURSTBOOK_CATALOGUE, else ./burstbook.sqlite].
+    #[arg(long, value_name = "PATH")]
+    pub catalogue: Option<PathBuf>,
+    /// Do not record the search in a catalogue.
+    #[arg(long, conflicts_with = "catalogue")]
+    pub no_catalogue: bool,
     /// Candidates listed in the terminal summary.
     #[arg(long, default_value_t = 10)]
     pub top: usize,
@@ -91,13 +99,30 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     let config = config(&args)?;
     std::fs::create_dir_all(&args.out)
         .with_context(|| format!("cannot create output directory {}", args.out.display()))?;
+    // Opened first, so a bad catalogue stops us before hours of searching.
+    let mut catalogue = match args.no_catalogue {
+        true => None,
+        false => Some(Catalogue::open(&Catalogue::resolve_path(
+            args.catalogue.as_deref(),
+        ))?),
+    };
     let mut results = Vec::new();
     for path in &args.files {
+        let started_utc = burstbook::catalogue::now_utc();
         let source = burstbook::obs::open(path)?;
         let label = path.display().to_string();
         let bar = burstbook::progress::bar(source.header().n_samples, &label);
         let result = search::search_source(source, &label, &config, Some(&bar))?;
         bar.finish_and_clear();
+        if let Some(cat) = catalogue.as_mut() {
+            // One transaction per file: a killed search keeps every file finished so far.
+            let outcome = cat.record_file_result(path, &result, &config, started_utc)?;
+            let what = match outcome {
+                RecordOutcome::Inserted { .. } => "recorded in",
+                RecordOutcome::AlreadyPresent { .. } => "already in",
+            };
+            println!("{label}: {what} catalogue {}", cat.path().display());
+        }
         results.push(result);
     }
     let csv = args.out.join("candidates.csv");

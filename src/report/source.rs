@@ -60,7 +60,9 @@ pub fn source_report(
             ..BurstFilter::default()
         })?
         .iter()
-        .map(|b| b.toa_tdb_mjd.unwrap_or(b.mjd_utc))
+        // UTC like the exposure: TDB would push bursts near a session's end outside it,
+        // and at activity time scales (hours to days) UTC loses nothing.
+        .map(|b| b.mjd_utc)
         .collect();
     let mut lead = Vec::new();
     match activity(&sessions, &bursts) {

@@ -1,8 +1,9 @@
 //! The boxcar matched filter: running sums over a ladder of widths, with S/N from a
 //! noise level measured robustly for every width (not assumed to grow as √w).
 //!
-//! S/N(t, w) = (Σ_{i=t}^{t+w−1} xᵢ − m_w) / σ_w, where m_w and σ_w are the median and
-//! 1.4826 × MAD of all boxcar sums of width w in the series (detection notes §4;
+//! S/N(t, w) = (Σ_{i=t}^{t+w−1} xᵢ − m_w) / σ_w, where m_w and σ_w are the mean and
+//! standard deviation of all boxcar sums of width w in the series after discarding
+//! those beyond 4σ of the median (σ from 1.4826 × MAD), corrected for the clipping (detection notes §4;
 //! Keane & Petroff 2015, MNRAS 447, 2852, on why the normalisation must be measured).
 //!
 //! Widths grow geometrically by `ratio` (default √2). For a Gaussian pulse the best
@@ -11,7 +12,7 @@
 //! relative to the best boxcar for a top-hat pulse); a ladder of 2 would fall to 0.904. At one to four samples the ladder is integer-limited (1, 2,
 //! 3, 4 ...), where sample phase dominates the loss anyway.
 
-use crate::robust::median_sigma;
+use crate::robust::clipped_mean_sigma;
 
 /// Boxcar widths `1, round(r), round(r²), …` without repeats, up to `max_width`.
 pub fn width_ladder(max_width: usize, ratio: f64) -> Vec<usize> {
@@ -27,7 +28,7 @@ pub fn width_ladder(max_width: usize, ratio: f64) -> Vec<usize> {
     widths
 }
 
-/// Prefix sums in f64: `prefix[t]` = Σ_{i<t} series[i].
+/// Prefix sums in f64: `prefix[t]` is the sum of the first `t` values of `series`.
 pub fn prefix_sums(series: &[f32], prefix: &mut Vec<f64>) {
     prefix.clear();
     prefix.push(0.0);
@@ -48,10 +49,10 @@ pub fn boxcar_sums(prefix: &[f64], w: usize, out: &mut Vec<f32>) {
     out.extend((0..=n - w).map(|t| (prefix[t + w] - prefix[t]) as f32));
 }
 
-/// Robust location and scale of a width's boxcar sums, from at most about 2048 of
-/// them (evenly strided) to bound the cost.
+/// Robust location and scale of a width's boxcar sums: moments of all sums within
+/// 4σ of the median (σ from the MAD), corrected for the clipping.
 fn noise_of(sums: &[f32], scratch: &mut Vec<f32>) -> (f32, f32) {
-    median_sigma(sums, (sums.len() / 2048).max(1), scratch)
+    clipped_mean_sigma(sums, 4.0, scratch)
 }
 
 /// One above-threshold peak of one series: the best start in a run of consecutive
@@ -86,7 +87,7 @@ pub fn search_series(
     for &w in widths {
         boxcar_sums(&scratch.prefix, w, &mut scratch.sums);
         let (med, sigma) = noise_of(&scratch.sums, &mut scratch.work);
-        if !(sigma > 0.0) {
+        if sigma.is_nan() || sigma <= 0.0 {
             continue;
         }
         let level = med + threshold * sigma;
@@ -117,7 +118,7 @@ pub fn best_snr_in(series: &[f32], w: usize, lo: usize, hi: usize, scratch: &mut
     boxcar_sums(&scratch.prefix, w, &mut scratch.sums);
     let (med, sigma) = noise_of(&scratch.sums, &mut scratch.work);
     let hi = hi.min(scratch.sums.len().saturating_sub(1));
-    if !(sigma > 0.0) || scratch.sums.is_empty() || lo > hi {
+    if sigma.is_nan() || sigma <= 0.0 || scratch.sums.is_empty() || lo > hi {
         return 0.0;
     }
     scratch.sums[lo..=hi]

@@ -5,7 +5,7 @@ use serde::{Deserialize, Serialize};
 use sha2::{Digest, Sha256};
 
 use crate::clean::CleanConfig;
-use crate::dedisperse::PlanRequest;
+use crate::dedisperse::{Kernel, PlanRequest};
 use crate::error::{Error, Result};
 
 /// How detections are merged into candidates (see [`crate::cluster`]).
@@ -73,6 +73,8 @@ pub struct SearchConfig {
     pub baseline_s: f64,
     /// New samples per block in seconds (each block also carries the overlap).
     pub block_s: f64,
+    /// Dedispersion kernel (`fast` or `reference`).
+    pub kernel: Kernel,
     /// Interference excision.
     pub clean: CleanConfig,
     /// Clustering of detections into candidates.
@@ -84,12 +86,17 @@ pub struct SearchConfig {
 impl Default for SearchConfig {
     fn default() -> Self {
         SearchConfig {
-            plan: PlanRequest::default(),
-            snr_threshold: 7.0,
+            // Wide enough for the highest-DM bursts of the demo survey.
+            plan: PlanRequest {
+                dm_max: 2000.0,
+                ..PlanRequest::default()
+            },
+            snr_threshold: 7.5,
             max_width_s: 0.1,
             width_ratio: std::f64::consts::SQRT_2,
             baseline_s: 1.0,
             block_s: 4.0,
+            kernel: Kernel::default(),
             clean: CleanConfig::default(),
             cluster: ClusterConfig::default(),
             triage: TriageConfig::default(),
@@ -157,7 +164,7 @@ impl SearchConfig {
                 self.width_ratio
             ));
         }
-        if !(self.baseline_s >= 2.0 * self.max_width_s) {
+        if self.baseline_s.is_nan() || self.baseline_s < 2.0 * self.max_width_s {
             return bad(format!(
                 "baseline window {} s must be at least twice the widest boxcar {} s",
                 self.baseline_s, self.max_width_s

@@ -22,16 +22,18 @@ use ndarray::Array2;
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
+use super::SearchConfig;
 use super::boxcar::{self, Scratch};
 use super::features::{self, BlockData};
 use super::fluence::fluence_jy_ms;
 use super::normalise::{normalise_channels, normalise_series};
 use super::trials::{self, TrialCount};
-use super::{SearchConfig, plan::build_plan};
 use crate::candidate::Candidate;
 use crate::clean::{self, impulse, user_mask::static_mask, zero_dm};
-use crate::cluster::{Detection, friends_of_friends};
-use crate::dedisperse::{self, DmPlan};
+use crate::cluster::{
+    Cluster, Detection, Event, Sweep, friends_of_friends, merge_dispersion_tails,
+};
+use crate::dedisperse::{self, DmPlan, FastDedisperser, Kernel};
 use crate::error::{Error, Result};
 use crate::obs::{Block, BlockReader, Header, SampleSource};
 use crate::triage;
@@ -89,22 +91,32 @@ pub fn search_source(
     config.validate()?;
     let header = source.header().clone();
     header.validate().map_err(|m| Error::bad_input(label, m))?;
-    let searcher = Searcher::new(header, config, label);
-    let geo = &searcher.layout;
-    let mut reader = BlockReader::new(source, geo.block_len, geo.overlap)?;
+    let mut searcher = Searcher::new(header, config, label)?;
+    if config.kernel == Kernel::Fast {
+        searcher.fast = Some(FastDedisperser::new(&searcher.plan));
+    }
+    let (block_len, n_samples) = (searcher.layout.block_len, searcher.header.n_samples);
+    let mut reader = BlockReader::new(source, block_len, searcher.layout.overlap)?;
     if let Some(pb) = progress {
-        pb.set_length(searcher.header.n_samples);
+        pb.set_length(n_samples);
     }
     let mut totals = Totals::default();
-    let mut next = reader.next_block()?;
+    // Candidates of one block can only repeat those within one overlap before them.
+    let recent_s = searcher.layout.overlap as f64 * searcher.header.tsamp_s
+        + searcher.plan.max_dm() * searcher.sweep.top_s_per_dm;
     let mut first = true;
-    while let Some(block) = next {
-        next = reader.next_block()?;
-        let outcome = searcher.block(&block, first, next.is_none());
-        totals.add(outcome, &block);
+    while let Some(block) = reader.next_block()? {
+        let end = block.start_sample + block.n_time() as u64;
+        // A short block, or one reaching the header's length, ends the file.
+        let last = block.n_time() < block_len || end >= n_samples;
+        let outcome = searcher.block(block, first, last);
+        totals.add(outcome, &searcher.sweep, recent_s);
         first = false;
         if let Some(pb) = progress {
-            pb.set_position(block.start_sample + block.n_time() as u64);
+            pb.set_position(end);
+        }
+        if last {
+            break;
         }
     }
     Ok(searcher.finish(totals))
@@ -116,7 +128,7 @@ pub fn search_source(
 /// An invalid configuration.
 pub fn block_layout(header: &Header, config: &SearchConfig) -> Result<BlockLayout> {
     config.validate()?;
-    Ok(Searcher::new(header.clone(), config, "").layout)
+    Ok(Searcher::new(header.clone(), config, "")?.layout)
 }
 
 /// How a recording is cut into blocks (all in input samples; see the module docs).
@@ -165,6 +177,10 @@ struct Searcher<'a> {
     dm_offsets: Vec<usize>,
     static_mask: Vec<bool>,
     layout: BlockLayout,
+    sweep: Sweep,
+    /// The fast kernel, kept across blocks (it reuses its trees); `None` runs the
+    /// reference kernel.
+    fast: Option<FastDedisperser>,
 }
 
 /// What one block contributed.
@@ -173,6 +189,8 @@ struct BlockOutcome {
     masked_fraction: f64,
     n_detections: usize,
     samples_searched: u64,
+    /// Rows not shared with the previous block.
+    new_samples: u64,
 }
 
 #[derive(Default)]
@@ -186,20 +204,52 @@ struct Totals {
 }
 
 impl Totals {
-    fn add(&mut self, o: BlockOutcome, block: &Block) {
-        let new = (block.n_time() - block.overlap) as u64;
-        self.masked_weighted += o.masked_fraction * new as f64;
-        self.new_samples += new;
+    /// Adds a block's outcome. A candidate that the previous block already reported
+    /// (the same pulse on its bow-tie, found by both blocks because their S/N
+    /// estimates differ slightly at the boundary) is kept once, with the higher S/N.
+    fn add(&mut self, o: BlockOutcome, sweep: &Sweep, recent_s: f64) {
+        let event = |c: &Candidate| Event {
+            t_inf_s: c.t_inf_s,
+            dm: c.dm,
+            width_s: c.width_ms * 1e-3,
+        };
+        for c in o.candidates {
+            let horizon = c.t_inf_s - recent_s;
+            let twin = self
+                .candidates
+                .iter_mut()
+                .rev()
+                .take_while(|p| p.t_inf_s >= horizon)
+                .find(|p| {
+                    let (a, b) = if p.snr >= c.snr {
+                        (&**p, &c)
+                    } else {
+                        (&c, &**p)
+                    };
+                    sweep.on_bow_tie(&event(a), &event(b), 0.0)
+                });
+            match twin {
+                Some(p) if p.snr >= c.snr => {}
+                Some(p) => *p = c,
+                None => self.candidates.push(c),
+            }
+        }
+        self.masked_weighted += o.masked_fraction * o.new_samples as f64;
+        self.new_samples += o.new_samples;
         self.n_blocks += 1;
         self.n_detections += o.n_detections;
         self.samples_searched += o.samples_searched;
-        self.candidates.extend(o.candidates);
     }
 }
 
 impl<'a> Searcher<'a> {
-    fn new(header: Header, config: &'a SearchConfig, label: &'a str) -> Self {
-        let plan = build_plan(&header, &config.plan);
+    fn new(header: Header, config: &'a SearchConfig, label: &'a str) -> Result<Self> {
+        let plan = DmPlan::build(
+            &header.freqs_mhz,
+            header.chan_bw_mhz,
+            header.tsamp_s,
+            &config.plan,
+        )?;
         let max_width = ((config.max_width_s / header.tsamp_s).floor() as usize).max(1);
         let widths: Vec<Vec<usize>> = plan
             .steps
@@ -234,8 +284,17 @@ impl<'a> Searcher<'a> {
                 Some(o)
             })
             .collect();
+        let k = crate::units::DISPERSION_CONSTANT_S_MHZ2;
+        let inv_f2 = |f: f64| k / (f * f);
+        let sweep = Sweep {
+            tsamp_s: header.tsamp_s,
+            top_s_per_dm: inv_f2(header.freq_hi_mhz()),
+            mean_s_per_dm: header.freqs_mhz.iter().map(|&f| inv_f2(f)).sum::<f64>()
+                / header.n_chan() as f64,
+            band_s_per_dm: inv_f2(header.freq_lo_mhz()) - inv_f2(header.freq_hi_mhz()),
+        };
         let static_mask = static_mask(&header.freqs_mhz, &header.weights, &config.clean.masks_mhz);
-        Searcher {
+        Ok(Searcher {
             label,
             header,
             config,
@@ -244,17 +303,24 @@ impl<'a> Searcher<'a> {
             dm_offsets,
             static_mask,
             layout,
-        }
+            sweep,
+            fast: None,
+        })
     }
 
-    fn block(&self, block: &Block, first: bool, last: bool) -> BlockOutcome {
+    /// Searches one block; its raw samples are released once normalised.
+    fn block(&mut self, block: Block, first: bool, last: bool) -> BlockOutcome {
         let g = &self.layout;
         let cfg = &self.config.clean;
-        let raw = block.view();
-        let n_time = block.n_time();
+        let (start, n_time, new_samples) = (
+            block.start_sample,
+            block.n_time(),
+            (block.n_time() - block.overlap) as u64,
+        );
         let mut mask = self.static_mask.clone();
-        clean::flag_channels(raw, &mut mask, cfg);
-        let mut norm = normalise_channels(raw, &mut mask, g.baseline_len);
+        clean::flag_channels(block.view(), &mut mask, cfg);
+        let mut norm = normalise_channels(block.view(), &mut mask, g.baseline_len);
+        drop(block);
         let n_clipped = impulse::clip(norm.view_mut(), &mask, cfg.clip_threshold);
         if cfg.zero_dm {
             zero_dm::apply(norm.view_mut(), &mask);
@@ -267,8 +333,11 @@ impl<'a> Searcher<'a> {
             (n_masked * n_time + n_clipped * (n_chan - n_masked)) as f64 / (n_chan * n_time) as f64
         };
 
-        let mut outs = dedisperse::reference::dedisperse(norm.view(), &self.plan);
-        let detections = self.detect(&mut outs, block.start_sample);
+        let mut outs = match &mut self.fast {
+            Some(kernel) => kernel.dedisperse(norm.view()),
+            None => dedisperse::reference::dedisperse(norm.view(), &self.plan),
+        };
+        let detections = self.detect(&mut outs, start);
         let dm0 = self.dm0_series(&norm, &mask);
         let data = BlockData {
             header: &self.header,
@@ -277,34 +346,25 @@ impl<'a> Searcher<'a> {
             mask: &mask,
             dm0: &dm0,
             outs: &outs,
-            block_start: block.start_sample,
+            block_start: start,
         };
-        let (own_lo, own_hi) = g.owned_range(block.start_sample, n_time, first, last);
+        let (own_lo, own_hi) = g.owned_range(start, n_time, first, last);
         let used_bw = (n_chan - n_masked) as f64 * self.header.chan_bw_mhz;
         let time_link = (self.config.cluster.time_link_s / self.header.tsamp_s).round() as u64;
-        let candidates =
-            friends_of_friends(&detections, self.config.cluster.dm_link_trials, time_link)
-                .into_iter()
-                .filter(|c| (own_lo..own_hi).contains(&c.best.start_sample))
-                .map(|c| {
-                    let measured = features::measure(&data, &c.best);
-                    let (verdict, reasons) = triage::verdict(
-                        &measured.features,
-                        c.best.snr,
-                        c.best.dm,
-                        measured.expected_dm0_ratio,
-                        &self.config.triage,
-                    );
-                    self.candidate(&c, verdict, reasons, measured.features, used_bw)
-                })
-                .collect();
-        let searched_hi =
-            (block.start_sample + n_time.saturating_sub(g.max_delay) as u64).min(own_hi);
+        let clusters =
+            friends_of_friends(&detections, self.config.cluster.dm_link_trials, time_link);
+        let candidates = merge_dispersion_tails(clusters, &self.sweep, time_link as f64)
+            .into_iter()
+            .filter(|c| (own_lo..own_hi).contains(&c.best.start_sample))
+            .map(|c| self.judge(&data, &c, used_bw))
+            .collect();
+        let searched_hi = (start + n_time.saturating_sub(g.max_delay) as u64).min(own_hi);
         BlockOutcome {
             candidates,
             masked_fraction,
             n_detections: detections.len(),
-            samples_searched: searched_hi.saturating_sub(own_lo.max(block.start_sample)),
+            samples_searched: searched_hi.saturating_sub(own_lo.max(start)),
+            new_samples,
         }
     }
 
@@ -362,14 +422,18 @@ impl<'a> Searcher<'a> {
         dm0
     }
 
-    fn candidate(
-        &self,
-        c: &crate::cluster::Cluster,
-        verdict: crate::Verdict,
-        reasons: Vec<String>,
-        features: crate::TriageFeatures,
-        used_bw_mhz: f64,
-    ) -> Candidate {
+    /// Measures a cluster's features, triages it and turns it into a candidate.
+    fn judge(&self, data: &BlockData<'_>, c: &Cluster, used_bw_mhz: f64) -> Candidate {
+        let measured = features::measure(data, &c.best);
+        let expectation = triage::Expectation {
+            snr: c.best.snr,
+            dm: c.best.dm,
+            dm0_ratio: measured.expected_dm0_ratio,
+            dm0_noise_snr: measured.dm0_noise_snr,
+        };
+        let (verdict, reasons) =
+            triage::verdict(&measured.features, &expectation, &self.config.triage);
+        let features = measured.features;
         let h = &self.header;
         let best = &c.best;
         let width_s = best.width_samples as f64 * h.tsamp_s;

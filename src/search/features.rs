@@ -1,6 +1,7 @@
 //! Measures a candidate's triage features from the block it was found in: the
-//! on-pulse spectrum (band fraction, modulation index), the S/N at DM 0 over the
-//! pulse's sweep, and the S/N-versus-DM curve around the best DM.
+//! on-pulse spectrum (band fraction, modulation index, the part of the band the signal
+//! occupies), the S/N at DM 0 over the pulse's sweep, and the S/N-versus-DM curve
+//! around the best DM.
 
 use ndarray::ArrayView2;
 
@@ -32,34 +33,41 @@ pub(super) struct BlockData<'a> {
     pub block_start: u64,
 }
 
-/// The features and the DM-0 ratio a dispersed pulse like this one would show.
+/// The features, and what triage needs to judge them.
 pub(super) struct Measured {
     pub features: TriageFeatures,
+    /// DM-0 ratio a dispersed pulse like this one would show.
     pub expected_dm0_ratio: f64,
+    /// Typical largest noise S/N in the DM-0 search window (√(2 ln n) for n
+    /// independent boxcars), which a weak pulse's DM-0 S/N cannot fall below.
+    pub dm0_noise_snr: f64,
+}
+
+/// The part of the band a pulse occupies, which sets its smearing by a DM error
+/// (Cordes & McLaughlin 2003 use the bandwidth and centre of the signal).
+#[derive(Debug, Clone, Copy)]
+struct SignalBand {
+    bandwidth_mhz: f64,
+    centre_ghz: f64,
+}
+
+impl SignalBand {
+    fn zeta(&self, delta_dm: f64, width_in: usize, tsamp_s: f64) -> f64 {
+        let width_ms = width_in as f64 * tsamp_s * 1e3;
+        cm03_zeta(delta_dm, self.bandwidth_mhz, width_ms, self.centre_ghz)
+    }
 }
 
 impl BlockData<'_> {
-    fn bandwidth_mhz(&self) -> f64 {
-        self.header.bandwidth_mhz()
-    }
-
-    fn centre_ghz(&self) -> f64 {
-        0.5 * (self.header.freq_lo_mhz() + self.header.freq_hi_mhz()) / 1e3
-    }
-
-    fn zeta(&self, delta_dm: f64, width_in: usize) -> f64 {
-        let width_ms = width_in as f64 * self.header.tsamp_s * 1e3;
-        cm03_zeta(delta_dm, self.bandwidth_mhz(), width_ms, self.centre_ghz())
-    }
-
     /// Sweep across the band in input samples for `dm`.
     fn sweep_samples(&self, dm: f64) -> usize {
         let h = self.header;
         (delay_between_s(dm.abs(), h.freq_lo_mhz(), h.freq_hi_mhz()) / h.tsamp_s).ceil() as usize
     }
 
-    /// On-pulse sum of each unmasked channel along the dispersion curve of `d`.
-    fn spectrum(&self, d: &Detection, t0: usize) -> Vec<f64> {
+    /// On-pulse sum of each unmasked channel along the dispersion curve of `d`, with
+    /// the channel frequencies.
+    fn spectrum(&self, d: &Detection, t0: usize) -> (Vec<f64>, Vec<f64>) {
         let delays = channel_delays(&self.header.freqs_mhz, d.dm, self.header.tsamp_s);
         let n_time = self.norm.ncols();
         (0..self.mask.len())
@@ -68,19 +76,22 @@ impl BlockData<'_> {
                 let start = (t0 + delays[c]).min(n_time);
                 let end = (start + d.width_samples).min(n_time);
                 let row = self.norm.row(c);
-                (start..end).map(|i| f64::from(row[i])).sum()
+                let sum: f64 = (start..end).map(|i| f64::from(row[i])).sum();
+                (sum, self.header.freqs_mhz[c])
             })
-            .collect()
+            .unzip()
     }
 
     /// Peak-normalised S/N at the detected width for trial DMs near the best one,
     /// against the Cordes & McLaughlin curve; RMS difference (0 with < 3 trials).
-    fn dm_curve_misfit(&self, d: &Detection, t0_in: usize, scratch: &mut Scratch) -> f64 {
+    fn dm_curve_misfit(&self, d: &Detection, t0_in: usize, band: SignalBand) -> f64 {
+        let tsamp = self.header.tsamp_s;
         let step_index = self.dm_offsets.partition_point(|&o| o <= d.dm_index) - 1;
         let step = &self.outs[step_index];
         let ds = step.downsample;
         let (t0, w) = (t0_in / ds, (d.width_samples / ds).max(1));
-        let reach = CURVE_MAX_ZETA / self.zeta(1.0, d.width_samples);
+        let reach = CURVE_MAX_ZETA / band.zeta(1.0, d.width_samples, tsamp);
+        let mut scratch = Scratch::default();
         let mut points = Vec::new();
         for (r, &dm) in step.dms.iter().enumerate() {
             if (dm - d.dm).abs() > reach {
@@ -88,14 +99,12 @@ impl BlockData<'_> {
             }
             let shift = self.sweep_samples(dm - d.dm).div_ceil(ds);
             let lo = t0.saturating_sub(shift + w);
-            let snr = best_snr_in(step.row(r), w, lo, t0 + shift + w, scratch);
-            points.push((
-                f64::from(snr),
-                cm03_peak_ratio(self.zeta(dm - d.dm, d.width_samples)),
-            ));
+            let snr = best_snr_in(step.row(r), w, lo, t0 + shift + w, &mut scratch);
+            let expected = cm03_peak_ratio(band.zeta(dm - d.dm, d.width_samples, tsamp));
+            points.push((f64::from(snr), expected));
         }
         let peak = points.iter().map(|p| p.0).fold(0.0, f64::max);
-        if points.len() < 3 || !(peak > 0.0) {
+        if points.len() < 3 || peak <= 0.0 {
             return 0.0;
         }
         let ss: f64 = points.iter().map(|(m, e)| (m / peak - e).powi(2)).sum();
@@ -103,32 +112,60 @@ impl BlockData<'_> {
     }
 }
 
+/// Splits a spectrum (each value with unit noise) into up to [`N_SUBBANDS`] runs of
+/// channels; returns each run's S/N and mean frequency in MHz.
+fn subbands(unit: &[f64], freqs_mhz: &[f64]) -> (Vec<f64>, Vec<f64>) {
+    let n_sub = N_SUBBANDS.min(unit.len()).max(1);
+    (0..n_sub)
+        .map(|k| {
+            let range = k * unit.len() / n_sub..(k + 1) * unit.len() / n_sub;
+            let n = range.len().max(1) as f64;
+            let snr = unit[range.clone()].iter().sum::<f64>() / n.sqrt();
+            (snr, freqs_mhz[range].iter().sum::<f64>() / n)
+        })
+        .unzip()
+}
+
 /// Measures the triage features of detection `d` (the best member of a cluster).
 pub(super) fn measure(b: &BlockData<'_>, d: &Detection) -> Measured {
+    let h = b.header;
     let t0 = (d.start_sample - b.block_start) as usize;
     let w = d.width_samples;
-    let mut scratch = Scratch::default();
 
-    let spectrum = b.spectrum(d, t0);
+    let (spectrum, freqs) = b.spectrum(d, t0);
     let unit: Vec<f64> = spectrum.iter().map(|s| s / (w as f64).sqrt()).collect();
-    let n_sub = N_SUBBANDS.min(unit.len()).max(1);
-    let subbands: Vec<f64> = (0..n_sub)
-        .map(|k| {
-            let part = &unit[k * unit.len() / n_sub..(k + 1) * unit.len() / n_sub];
-            part.iter().sum::<f64>() / (part.len().max(1) as f64).sqrt()
-        })
-        .collect();
+    let (sub_snr, sub_freq) = subbands(&unit, &freqs);
+    let fraction = band_fraction(&sub_snr);
+    let weight: f64 = sub_snr.iter().map(|s| s.max(0.0)).sum();
+    let centre_mhz = if weight > 0.0 {
+        sub_snr
+            .iter()
+            .zip(&sub_freq)
+            .map(|(s, f)| s.max(0.0) * f)
+            .sum::<f64>()
+            / weight
+    } else {
+        0.5 * (h.freq_lo_mhz() + h.freq_hi_mhz())
+    };
+    let band = SignalBand {
+        bandwidth_mhz: fraction.max(1.0 / sub_snr.len() as f64) * h.bandwidth_mhz(),
+        centre_ghz: centre_mhz / 1e3,
+    };
 
+    let mut scratch = Scratch::default();
     let lo = t0.saturating_sub(w);
-    let snr0 = best_snr_in(b.dm0, w, lo, t0 + b.sweep_samples(d.dm) + w, &mut scratch);
+    let sweep = b.sweep_samples(d.dm);
+    let snr0 = best_snr_in(b.dm0, w, lo, t0 + sweep + w, &mut scratch);
+    let window_trials = ((sweep + 2 * w) as f64 / w as f64).max(2.0);
 
     Measured {
         features: TriageFeatures {
             snr_dm0_ratio: f64::from(snr0).max(0.0) / d.snr,
-            dm_curve_misfit: b.dm_curve_misfit(d, t0, &mut scratch),
-            band_fraction: band_fraction(&subbands),
+            dm_curve_misfit: b.dm_curve_misfit(d, t0, band),
+            band_fraction: fraction,
             modulation_index: modulation_index(&unit, 1.0),
         },
-        expected_dm0_ratio: cm03_peak_ratio(b.zeta(d.dm, w)),
+        expected_dm0_ratio: cm03_peak_ratio(band.zeta(d.dm, w, h.tsamp_s)),
+        dm0_noise_snr: (2.0 * window_trials.ln()).sqrt(),
     }
 }

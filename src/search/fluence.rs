@@ -9,8 +9,7 @@
 //! flat spectrum across the band. The result is therefore a lower limit for pulses
 //! off-axis or wider than the boxcar.
 
-/// Polarisations assumed summed in the data.
-pub const N_POL: f64 = 2.0;
+use crate::simulate::N_POL;
 
 /// Fluence in Jy ms for `snr` at boxcar width `width_s` over `bandwidth_mhz` of
 /// unmasked band, for a system-equivalent flux density `sefd_jy`.

@@ -14,7 +14,6 @@ mod features;
 pub mod fluence;
 pub mod normalise;
 pub mod output;
-mod plan;
 pub mod trials;
 
 pub use config::{ClusterConfig, SearchConfig, TriageConfig};

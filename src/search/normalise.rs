@@ -20,7 +20,7 @@ pub fn normalise_series(series: &mut [f32], baseline_len: usize, scratch: &mut V
     }
     // At most ~8192 evenly strided values: σ to about 1.5 %.
     let (_, mut sigma) = median_sigma(series, (series.len() / 8192).max(1), scratch);
-    if !(sigma > 0.0) {
+    if sigma.is_nan() || sigma <= 0.0 {
         let n = series.len() as f64;
         let mean = series.iter().map(|&v| f64::from(v)).sum::<f64>() / n;
         let var = series

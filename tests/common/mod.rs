@@ -1,9 +1,9 @@
 //! Test data for the search tests: Gamma-distributed power noise (mean 1, N·d = 50,
-//! as detected channelised data; detection notes §6) and Gaussian dispersed pulses.
-//! Stand-in until the simulator module lands.
+//! as detected channelised data; detection notes §6) with bursts from the simulator.
 #![allow(dead_code)]
 
-use burstbook::obs::{Header, MemorySource, SampleSource, Site, UtcEpoch};
+use burstbook::obs::{Block, Header, MemorySource, SampleSource, Site, UtcEpoch};
+use burstbook::simulate::{Burst, Spectrum, add_burst, with_expected_snr};
 use rand::SeedableRng;
 use rand_distr::{Distribution, Gamma, Normal};
 
@@ -77,44 +77,31 @@ pub fn gaussian_noise(h: &Header, seed: u64) -> Vec<f32> {
         .collect()
 }
 
-/// A dispersed pulse to add to data.
-#[derive(Debug, Clone, Copy)]
-pub struct Pulse {
-    /// Arrival of the pulse peak at infinite frequency, seconds after the first
-    /// sample's start.
-    pub t_inf_s: f64,
-    /// DM in pc cm⁻³.
-    pub dm: f64,
-    /// FWHM in seconds.
-    pub fwhm_s: f64,
-    /// Peak amplitude per channel in units of the noise σ.
-    pub amplitude: f64,
+/// A Gaussian burst with a flat spectrum scaled to an ideal boxcar S/N of `snr`
+/// (the simulator's definition, `simulate::expected_snr`).
+pub fn burst(h: &Header, t_inf_s: f64, dm: f64, fwhm_s: f64, snr: f64) -> Burst {
+    let shape = Burst {
+        t_inf_s,
+        dm,
+        width_s: fwhm_s,
+        scatter_1ghz_s: 0.0,
+        spectrum: Spectrum::PowerLaw { index: 0.0 },
+        amplitude: 1.0,
+    };
+    with_expected_snr(h, &shape, snr).unwrap()
 }
 
-/// Adds `p` to channels `chans` of `data` (`[time, channel]`): in each channel a
-/// Gaussian centred at t_inf + k·DM/ν², with ν the channel centre; sample i covers
-/// [i·t_s, (i+1)·t_s) and is given the profile at its centre.
-pub fn add_pulse(h: &Header, data: &mut [f32], p: Pulse, chans: std::ops::Range<usize>) {
-    let n_chan = h.n_chan();
-    let sigma_t = p.fwhm_s / (8.0 * 2f64.ln()).sqrt();
-    let amp = p.amplitude * f64::from(noise_sigma());
-    for c in chans {
-        let centre = p.t_inf_s + K_HANDBOOK_S_MHZ2 * p.dm / h.freqs_mhz[c].powi(2);
-        let lo = ((centre - 6.0 * sigma_t) / h.tsamp_s).floor().max(0.0) as usize;
-        let hi = (((centre + 6.0 * sigma_t) / h.tsamp_s).ceil() as usize).min(h.n_samples as usize);
-        for i in lo..hi {
-            let t = (i as f64 + 0.5) * h.tsamp_s;
-            let g = (-0.5 * ((t - centre) / sigma_t).powi(2)).exp();
-            data[i * n_chan + c] += (amp * g) as f32;
-        }
-    }
-}
-
-/// S/N of `p` (all `n_chan` channels) through an ideal matched filter at its true DM:
-/// a·√(N·Σg²) in noise units, Σg² ≈ σ_t√π/t_s samples.
-pub fn matched_filter_snr(h: &Header, p: Pulse, n_chan: usize) -> f64 {
-    let sigma_samples = p.fwhm_s / (8.0 * 2f64.ln()).sqrt() / h.tsamp_s;
-    p.amplitude * (n_chan as f64 * sigma_samples * std::f64::consts::PI.sqrt()).sqrt()
+/// Adds `b` to `data` (`[time, channel]`, noise σ = [`noise_sigma`]) with the
+/// simulator's signal model.
+pub fn add(h: &Header, data: &mut Vec<f32>, b: &Burst) {
+    let mut block = Block {
+        start_sample: 0,
+        overlap: 0,
+        n_chan: h.n_chan(),
+        data: std::mem::take(data),
+    };
+    add_burst(&mut block, h, b, &vec![noise_sigma(); h.n_chan()]);
+    *data = block.data;
 }
 
 /// The data as a boxed source.

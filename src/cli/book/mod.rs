@@ -1,5 +1,6 @@
 //! `burstbook book ...`: the burst catalogue from the command line.
 
+mod barycentre;
 mod exposure;
 mod output;
 mod query;
@@ -21,7 +22,7 @@ Examples:
   burstbook book source add FIELD-7 --ra 123.25 --dec -12.5 --dm 351
   burstbook book candidates --source FIELD-7 --dm-min 300 --dm-max 400 --snr-min 8
   burstbook book label 12 15 --label burst --comment 'clear sweep'
-  burstbook book promote --label burst
+  burstbook book promote --label-is burst
   burstbook book summary FIELD-7 --snr-min 8
   burstbook book voevent 3 --out burst-3.xml")]
 pub struct Args {
@@ -53,8 +54,13 @@ enum Command {
     /// Import or export exposure intervals as CSV.
     #[command(subcommand)]
     Exposure(exposure::ExposureCommand),
+    /// Store barycentric TDB arrival times of bursts (for period searches).
+    Barycentre(barycentre::BarycentreArgs),
     /// Per-source bursts, exposure, burst rate with confidence limits, DM and fluence.
     Summary(summary::SummaryArgs),
+    /// Check the file's integrity and that every run holds all its candidates.
+    #[command(after_help = "Example:\n  burstbook book check")]
+    Check,
     /// Write one burst as a VOEvent 2.0 XML packet.
     Voevent(voevent::VoeventArgs),
     /// Fill the catalogue with invented searches (for crash, concurrency and speed tests).
@@ -77,7 +83,19 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         Command::Source(c) => sources::run(&mut open()?, c),
         Command::Exposure(c) => exposure::run(&mut open()?, c),
         Command::Summary(a) => summary::run(&open()?, a),
+        Command::Barycentre(a) => barycentre::run(&mut open()?, a),
         Command::Voevent(a) => voevent::run(&open()?, a),
+        Command::Check => {
+            let c = open()?.verify()?;
+            println!(
+                "{}: ok ({} observations, {} runs, {} candidates)",
+                path.display(),
+                c.observations,
+                c.runs,
+                c.candidates
+            );
+            Ok(())
+        }
         Command::FillSynthetic(a) => synthetic::run(&mut open()?, a),
     }
 }

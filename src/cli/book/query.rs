@@ -3,16 +3,13 @@
 use std::path::PathBuf;
 
 use burstbook::Verdict;
-use burstbook::catalogue::{BurstFilter, CandidateFilter, Catalogue};
+use burstbook::catalogue::{Bounds, BurstFilter, CandidateFilter, Catalogue};
 
 use super::output::{Format, opt, sink, write_rows};
 
-/// Candidate filters shared by `candidates`, `label` and `promote`.
+/// DM, S/N and time ranges shared by the candidate and burst listings.
 #[derive(clap::Args, Debug, Clone, Default)]
-pub struct FilterArgs {
-    /// Source name from the observation header.
-    #[arg(long)]
-    pub source: Option<String>,
+pub struct BoundsArgs {
     /// Lowest DM in pc cm^-3.
     #[arg(long)]
     pub dm_min: Option<f64>,
@@ -28,6 +25,28 @@ pub struct FilterArgs {
     /// Latest arrival, UTC MJD.
     #[arg(long)]
     pub mjd_max: Option<f64>,
+}
+
+impl BoundsArgs {
+    fn to_bounds(&self) -> Bounds {
+        Bounds {
+            dm_min: self.dm_min,
+            dm_max: self.dm_max,
+            snr_min: self.snr_min,
+            mjd_min: self.mjd_min,
+            mjd_max: self.mjd_max,
+        }
+    }
+}
+
+/// Candidate filters shared by `candidates`, `label` and `promote`.
+#[derive(clap::Args, Debug, Clone, Default)]
+pub struct FilterArgs {
+    /// Source name from the observation header.
+    #[arg(long)]
+    pub source: Option<String>,
+    #[command(flatten)]
+    pub bounds: BoundsArgs,
     /// Triage verdict: astrophysical, rfi or unsure.
     #[arg(long, value_parser = parse_verdict)]
     pub verdict: Option<Verdict>,
@@ -45,11 +64,7 @@ impl FilterArgs {
     pub fn to_filter(&self, ids: &[i64]) -> CandidateFilter {
         CandidateFilter {
             source: self.source.clone(),
-            dm_min: self.dm_min,
-            dm_max: self.dm_max,
-            snr_min: self.snr_min,
-            mjd_min: self.mjd_min,
-            mjd_max: self.mjd_max,
+            bounds: self.bounds.to_bounds(),
             verdict: self.verdict,
             label: self.label_is.clone(),
             ids: ids.to_vec(),
@@ -169,21 +184,8 @@ pub struct BurstsArgs {
     /// Assigned source.
     #[arg(long)]
     source: Option<String>,
-    /// Lowest DM in pc cm^-3.
-    #[arg(long)]
-    dm_min: Option<f64>,
-    /// Highest DM in pc cm^-3.
-    #[arg(long)]
-    dm_max: Option<f64>,
-    /// Lowest S/N.
-    #[arg(long)]
-    snr_min: Option<f64>,
-    /// Earliest arrival, UTC MJD.
-    #[arg(long)]
-    mjd_min: Option<f64>,
-    /// Latest arrival, UTC MJD.
-    #[arg(long)]
-    mjd_max: Option<f64>,
+    #[command(flatten)]
+    bounds: BoundsArgs,
     /// Output format.
     #[arg(long, value_enum, default_value = "table")]
     format: Format,
@@ -209,11 +211,7 @@ const BURST_COLUMNS: &[&str] = &[
 pub fn bursts(cat: &Catalogue, a: BurstsArgs) -> anyhow::Result<()> {
     let rows = cat.bursts(&BurstFilter {
         source: a.source,
-        dm_min: a.dm_min,
-        dm_max: a.dm_max,
-        snr_min: a.snr_min,
-        mjd_min: a.mjd_min,
-        mjd_max: a.mjd_max,
+        bounds: a.bounds.to_bounds(),
     })?;
     let table = a.format == Format::Table;
     let num = |v: f64, digits: usize| {

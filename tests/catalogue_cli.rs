@@ -1,0 +1,184 @@
+//! The `burstbook book` commands end to end, as an observer would use them.
+
+use std::path::Path;
+use std::process::Command;
+
+const BIN: &str = env!("CARGO_BIN_EXE_burstbook");
+
+/// Runs `burstbook book --catalogue DB ARGS...`, asserts success, returns stdout.
+fn book(db: &Path, args: &[&str]) -> String {
+    let out = Command::new(BIN)
+        .arg("book")
+        .arg("--catalogue")
+        .arg(db)
+        .args(args)
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "book {args:?}: {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    String::from_utf8(out.stdout).unwrap()
+}
+
+fn json(text: &str) -> Vec<serde_json::Value> {
+    serde_json::from_str::<serde_json::Value>(text)
+        .unwrap()
+        .as_array()
+        .unwrap()
+        .clone()
+}
+
+#[test]
+fn review_promote_summarise_and_export() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("c.sqlite");
+    book(
+        &db,
+        &[
+            "fill-synthetic",
+            "--source",
+            "FIELD-7",
+            "--observations",
+            "3",
+            "--candidates",
+            "40",
+        ],
+    );
+
+    // Filtered listing agrees with itself across formats.
+    let filter = [
+        "--source",
+        "FIELD-7",
+        "--dm-min",
+        "100",
+        "--dm-max",
+        "600",
+        "--snr-min",
+        "20",
+    ];
+    let rows = json(&book(
+        &db,
+        &[&["candidates"][..], &filter, &["--format", "json"]].concat(),
+    ));
+    assert!(!rows.is_empty());
+    for r in &rows {
+        let (dm, snr) = (r["dm"].as_f64().unwrap(), r["snr"].as_f64().unwrap());
+        assert!((100.0..=600.0).contains(&dm) && snr >= 20.0, "{r}");
+    }
+    let csv = book(
+        &db,
+        &[&["candidates"][..], &filter, &["--format", "csv"]].concat(),
+    );
+    assert_eq!(csv.lines().count(), rows.len() + 1);
+
+    // Label by filter, relabel one by id; history keeps both.
+    book(
+        &db,
+        &[
+            &["label"][..],
+            &filter,
+            &["--label", "burst", "--reviewer", "ana"],
+        ]
+        .concat(),
+    );
+    let first = rows[0]["id"].as_i64().unwrap().to_string();
+    book(
+        &db,
+        &[
+            "label",
+            &first,
+            "--label",
+            "rfi",
+            "--reviewer",
+            "ben",
+            "--comment",
+            "satellite",
+        ],
+    );
+    let history = json(&book(&db, &["history", &first, "--format", "json"]));
+    assert_eq!(history.len(), 2);
+    assert_eq!(history[1]["comment"], "satellite");
+    let labelled = json(&book(
+        &db,
+        &["candidates", "--label-is", "burst", "--format", "json"],
+    ));
+    assert_eq!(labelled.len(), rows.len() - 1);
+
+    // Refuses to label everything by accident.
+    let out = Command::new(BIN)
+        .args(["book", "--catalogue"])
+        .arg(&db)
+        .args(["label", "--label", "x"])
+        .output()
+        .unwrap();
+    assert!(!out.status.success());
+
+    // Automatic promotion needs a source with a reference DM near each candidate.
+    book(
+        &db,
+        &[
+            "source", "add", "FIELD-7", "--ra", "123.25", "--dec", "-12.5", "--dm", "350",
+            "--notes", "test",
+        ],
+    );
+    book(&db, &["promote", "--label-is", "burst", "--dm-tol", "300"]);
+    let bursts = json(&book(
+        &db,
+        &["bursts", "--source", "FIELD-7", "--format", "json"],
+    ));
+    assert_eq!(bursts.len(), labelled.len());
+    let bursts_csv = book(&db, &["bursts", "--format", "csv"]);
+    assert!(bursts_csv.starts_with("id,candidate_id,source,mjd_utc,toa_tdb_mjd,dm,snr"));
+
+    // Exposure: 3 one-hour observations (the first 01:00-02:00 UTC on MJD 60000)
+    // plus 01:30-03:30 imported: 3 + 2 - 0.5 overlapping = 4.5 hours.
+    let csv_path = dir.path().join("exposure.csv");
+    std::fs::write(
+        &csv_path,
+        "source,start_mjd,end_mjd,snr_threshold\nFIELD-7,60000.0625,60000.14583333333,7\n",
+    )
+    .unwrap();
+    let msg = book(&db, &["exposure", "import", csv_path.to_str().unwrap()]);
+    assert!(msg.contains("imported 1"), "{msg}");
+    let exported = book(&db, &["exposure", "export", "--source", "FIELD-7"]);
+    assert_eq!(exported.lines().count(), 1 + 3 + 1);
+
+    let summary = json(&book(
+        &db,
+        &["summary", "FIELD-7", "--snr-min", "20", "--format", "json"],
+    ));
+    let s = &summary[0];
+    assert_eq!(s["n_bursts"].as_u64().unwrap() as usize, bursts.len());
+    assert!(
+        (s["exposure_hours"].as_f64().unwrap() - 4.5).abs() < 1e-6,
+        "{s}"
+    );
+
+    let xml = book(&db, &["voevent", &bursts[0]["id"].to_string()]);
+    assert!(xml.contains("<voe:VOEvent") && xml.contains("FIELD-7"));
+    // Barycentric TOAs are those of the timing library for the burst's site and
+    // its source's catalogue position.
+    let msg = book(&db, &["barycentre", "FIELD-7"]);
+    assert!(
+        msg.contains(&format!("{} barycentric TOA(s) stored", bursts.len())),
+        "{msg}"
+    );
+    let cat = burstbook::catalogue::Catalogue::open(&db).unwrap();
+    for b in cat.burst_timing("FIELD-7").unwrap() {
+        let expected = burstbook::timing::utc_to_barycentric_tdb(
+            burstbook::obs::UtcEpoch::from_mjd_f64(b.mjd_utc),
+            &b.site,
+            123.25,
+            -12.5,
+        )
+        .unwrap();
+        assert_eq!(b.toa_tdb_mjd, Some(expected.tdb.to_mjd_f64()));
+        // TDB − UTC is 69.184 s plus up to ±500 s of light travel time.
+        let diff_s = (b.toa_tdb_mjd.unwrap() - b.mjd_utc) * 86_400.0;
+        assert!((diff_s - 69.184).abs() < 510.0, "{diff_s}");
+    }
+    drop(cat);
+    assert!(book(&db, &["check"]).contains("ok (3 observations, 3 runs, 120 candidates)"));
+}

@@ -1,0 +1,163 @@
+//! `burstbook search` recording into the catalogue, with a real search process
+//! killed part-way through its files and then run again.
+
+use std::io::{BufRead, BufReader};
+use std::path::{Path, PathBuf};
+use std::process::{Command, Stdio};
+
+use burstbook::catalogue::Catalogue;
+use rusqlite::Connection;
+
+const BIN: &str = env!("CARGO_BIN_EXE_burstbook");
+
+/// A small invented observation: 64 channels, 6 s, one burst.
+const SCENARIO: &str = r#"
+[observation]
+source = "Quillwort Test Field"
+telescope = "Marrowby 12 m"
+ra_deg = 210.5
+dec_deg = 33.25
+start_mjd = 61100.5
+length_s = 6.0
+tsamp_s = 1.024e-3
+
+[site]
+name = "Marrowby"
+lon_deg = 4.5
+lat_deg = 51.0
+height_m = 30.0
+
+[band]
+first_chan_mhz = 1596.875
+chan_step_mhz = -6.25
+n_chan = 64
+
+[noise]
+nbits = 8
+mean = 96.0
+sigma = 12.0
+sefd_jy = 30.0
+
+[[burst]]
+t_inf_s = 3.0
+dm = 120.0
+width_ms = 2.0
+snr = 30.0
+"#;
+
+fn simulate(dir: &Path, seed: u64) -> PathBuf {
+    let scenario = dir.join("scenario.toml");
+    std::fs::write(&scenario, SCENARIO).unwrap();
+    let out = dir.join(format!("obs{seed}.json"));
+    let st = Command::new(BIN)
+        .arg("simulate")
+        .arg(&scenario)
+        .arg("--out")
+        .arg(&out)
+        .args(["--seed", &seed.to_string()])
+        .output()
+        .unwrap();
+    assert!(
+        st.status.success(),
+        "{}",
+        String::from_utf8_lossy(&st.stderr)
+    );
+    out
+}
+
+fn search(files: &[PathBuf], dir: &Path, db: &Path) -> Command {
+    let mut c = Command::new(BIN);
+    c.arg("search")
+        .args(files)
+        .arg("--out")
+        .arg(dir.join("results"))
+        .arg("--catalogue")
+        .arg(db)
+        .args(["--dm-max", "200"]);
+    c
+}
+
+/// (observations, runs, candidates), after checking no run is partial.
+fn contents(db: &Path) -> (i64, i64, i64) {
+    let c = Catalogue::open(db).unwrap().verify().unwrap();
+    (c.observations, c.runs, c.candidates)
+}
+
+#[test]
+fn a_killed_search_keeps_finished_files_and_a_rerun_records_the_rest() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("survey.sqlite");
+    let files: Vec<PathBuf> = (1..=3).map(|s| simulate(dir.path(), s)).collect();
+
+    let mut child = search(&files, dir.path(), &db)
+        .stdout(Stdio::piped())
+        .stderr(Stdio::null())
+        .spawn()
+        .unwrap();
+    let lines = BufReader::new(child.stdout.take().unwrap()).lines();
+    for line in lines {
+        if line.unwrap().contains("recorded in catalogue") {
+            break;
+        }
+    }
+    child.kill().unwrap();
+    child.wait().unwrap();
+    let (n_obs, n_runs, _) = contents(&db);
+    assert_eq!(n_obs, n_runs);
+    assert!((1..3).contains(&n_runs), "killed too late: {n_runs} runs");
+
+    let out = search(&files, dir.path(), &db).output().unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let text = String::from_utf8(out.stdout).unwrap();
+    assert_eq!(
+        text.matches("already in catalogue").count() as i64,
+        n_runs,
+        "{text}"
+    );
+    let (n_obs, n_runs, n_cands) = contents(&db);
+    assert_eq!((n_obs, n_runs), (3, 3));
+    // The catalogue holds exactly the candidates the complete search wrote out.
+    let csv = std::fs::read_to_string(dir.path().join("results/candidates.csv")).unwrap();
+    assert_eq!(n_cands, csv.lines().count() as i64 - 1);
+    assert!(n_cands >= 3, "each file has a 30-sigma burst");
+
+    // Every run keeps the configuration that produced it, and its exposure.
+    let c = Connection::open(&db).unwrap();
+    let (snr, hours): (f64, f64) = c
+        .query_row(
+            "SELECT json_extract(config_json, '$.snr_threshold'),
+                    (SELECT sum(end_mjd - start_mjd) * 24 FROM exposure)
+             FROM search_run LIMIT 1",
+            [],
+            |r| Ok((r.get(0)?, r.get(1)?)),
+        )
+        .unwrap();
+    assert!(snr > 0.0);
+    assert!((hours - 3.0 * 6.0 / 3600.0).abs() < 1e-6, "{hours}");
+}
+
+#[test]
+fn search_without_catalogue_writes_none() {
+    let dir = tempfile::tempdir().unwrap();
+    let file = simulate(dir.path(), 9);
+    let out = Command::new(BIN)
+        .current_dir(dir.path())
+        .arg("search")
+        .arg(&file)
+        .arg("--out")
+        .arg(dir.path().join("r"))
+        .args(["--dm-max", "200", "--no-catalogue"])
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    // Without the flag the default would be ./burstbook.sqlite in the working directory.
+    assert!(!dir.path().join("burstbook.sqlite").exists());
+}

@@ -1,0 +1,168 @@
+//! `burstbook search` end to end: simulated files in both containers, the CSV/JSON
+//! outputs, config-file overrides, and clean failures on bad input.
+
+use std::path::Path;
+use std::process::Command;
+
+use burstbook::obs::{self, Container};
+use burstbook::search::output;
+use burstbook::simulate::{Scenario, Simulation, write_observation};
+
+const SCENARIO: &str = r#"
+[observation]
+source = "Made-Up Source 9"
+telescope = "Paper Dish"
+ra_deg = 45.0
+dec_deg = 12.5
+start_mjd = 61020.75
+length_s = 12.0
+tsamp_s = 1e-3
+[site]
+name = "Paper Dish"
+lon_deg = 100.0
+lat_deg = 10.0
+height_m = 50.0
+[band]
+first_chan_mhz = 1593.75
+chan_step_mhz = -12.5
+n_chan = 32
+[noise]
+nbits = 8
+mean = 96.0
+sigma = 12.0
+sefd_jy = 30.0
+[[burst]]
+t_inf_s = 4.0
+dm = 180.0
+width_ms = 4.0
+snr = 25.0
+[[rfi.impulse]]
+t_s = 8.0
+width_ms = 2.0
+snr = 40.0
+"#;
+
+fn simulate(path: &Path, container: Container, seed: u64) {
+    let sim = Simulation::new(&Scenario::parse(SCENARIO).unwrap(), seed).unwrap();
+    let mut sink = obs::create(path, &sim.header, container).unwrap();
+    write_observation(&sim, sink.as_mut()).unwrap();
+    sink.finish().unwrap();
+}
+
+fn run(args: &[&str]) -> std::process::Output {
+    Command::new(env!("CARGO_BIN_EXE_burstbook"))
+        .args(args)
+        .output()
+        .unwrap()
+}
+
+#[test]
+fn finds_the_burst_in_both_containers_and_writes_csv_and_json() {
+    let dir = tempfile::tempdir().unwrap();
+    let native = dir.path().join("a.json");
+    let fits = dir.path().join("b.fits");
+    simulate(&native, Container::Native, 1);
+    simulate(&fits, Container::Fits, 2);
+    let config = dir.path().join("search.toml");
+    std::fs::write(
+        &config,
+        "snr_threshold = 8.0\n[plan]\ndm_min = 0.0\ndm_max = 300.0\n\
+        min_width_s = 0.0\ntolerance = 1.25\nmax_downsample = 8\n",
+    )
+    .unwrap();
+    let out = dir.path().join("out");
+    let o = run(&[
+        "search",
+        native.to_str().unwrap(),
+        fits.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+        "--config",
+        config.to_str().unwrap(),
+        "--snr",
+        "7.5",
+    ]);
+    let stdout = String::from_utf8_lossy(&o.stdout);
+    assert!(
+        o.status.success(),
+        "{stdout}\n{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    assert!(stdout.contains("astrophysical"), "{stdout}");
+
+    let mut reader = csv::Reader::from_path(out.join("candidates.csv")).unwrap();
+    let headers = reader.headers().unwrap().clone();
+    assert_eq!(headers.iter().collect::<Vec<_>>(), output::CSV_COLUMNS);
+    // The columns the catalogue relies on.
+    for col in "file t_inf_s mjd_inf dm dm_lo dm_hi width_ms snr cluster_size verdict".split(' ') {
+        assert!(headers.iter().any(|h| h == col), "column {col}");
+    }
+    let rows: Vec<csv::StringRecord> = reader.records().map(|r| r.unwrap()).collect();
+    let col = |name: &str| headers.iter().position(|h| h == name).unwrap();
+    let astro: Vec<&csv::StringRecord> = rows
+        .iter()
+        .filter(|r| &r[col("verdict")] == "astrophysical")
+        .collect();
+    assert_eq!(astro.len(), 2, "one burst per file: {rows:?}");
+    assert!(astro[0][col("file")].ends_with("a.json") && astro[1][col("file")].ends_with("b.fits"));
+    for r in &astro {
+        let t: f64 = r[col("t_inf_s")].parse().unwrap();
+        let dm: f64 = r[col("dm")].parse().unwrap();
+        assert!((t - 4.0).abs() < 0.01 && (dm - 180.0).abs() < 10.0, "{r:?}");
+        let mjd: f64 = r[col("mjd_inf")].parse().unwrap();
+        assert!((mjd - (61020.75 + t / 86400.0)).abs() < 1e-9);
+    }
+
+    let json: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("candidates.json")).unwrap())
+            .unwrap();
+    assert_eq!(
+        json["config"]["snr_threshold"], 7.5,
+        "flag overrides the file"
+    );
+    assert_eq!(json["config"]["plan"]["dm_max"], 300.0);
+    assert_eq!(json["config_hash"].as_str().unwrap().len(), 64);
+    assert_eq!(json["files"].as_array().unwrap().len(), 2);
+    assert_eq!(json["candidates"].as_array().unwrap().len(), rows.len());
+}
+
+#[test]
+fn bad_input_fails_with_one_line_naming_the_file() {
+    let dir = tempfile::tempdir().unwrap();
+    let missing = dir.path().join("nothing.json");
+    let out = dir.path().join("out");
+    let o = run(&[
+        "search",
+        missing.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    assert!(!o.status.success());
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert_eq!(err.trim().lines().count(), 1, "{err}");
+    assert!(err.contains("nothing.json"), "{err}");
+
+    let junk = dir.path().join("junk.fits");
+    std::fs::write(&junk, b"SIMPLE  = T  this is not a FITS file").unwrap();
+    let o = run(&[
+        "search",
+        junk.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    assert!(!o.status.success());
+    assert!(String::from_utf8_lossy(&o.stderr).contains("junk.fits"));
+
+    let o = run(&[
+        "search",
+        junk.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+        "--dm-min",
+        "50",
+        "--dm-max",
+        "10",
+    ]);
+    assert!(!o.status.success());
+    assert!(String::from_utf8_lossy(&o.stderr).contains("DM range"));
+}
