@@ -4,7 +4,7 @@ use std::path::PathBuf;
 use std::sync::atomic::AtomicBool;
 
 use anyhow::Context;
-use burstbook::catalogue::{CandidateFilter, Catalogue};
+use burstbook::catalogue::{Bounds, CandidateFilter, Catalogue};
 use burstbook::report::review::{CatalogueStore, LabelStore, ReviewServer};
 
 /// Arguments of `review`.
@@ -48,7 +48,10 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     let catalogue = Catalogue::open(&path)?;
     let filter = CandidateFilter {
         source: args.source,
-        snr_min: args.snr_min,
+        bounds: Bounds {
+            snr_min: args.snr_min,
+            ..Bounds::default()
+        },
         label: (!args.all).then(|| "none".to_string()),
         ..CandidateFilter::default()
     };
