@@ -33,8 +33,8 @@ pub struct Args {
     /// no longer resolve (matched by name).
     #[arg(long, value_name = "DIR", requires = "source")]
     pub obs_dir: Option<PathBuf>,
-    /// Observation files, when the paths recorded in the candidates do not resolve
-    /// (matched by file name; a single file is used for all candidates).
+    /// Observation files, matched to candidates by file name ahead of the recorded
+    /// paths; a single file also serves candidates whose recorded path does not resolve.
     #[arg(long = "obs", num_args = 1..)]
     pub obs: Vec<PathBuf>,
     /// Output folder for index.html and the PNGs.

@@ -115,10 +115,10 @@ fn parse_csv(path: &Path, text: &str) -> Result<Vec<Candidate>> {
         .collect()
 }
 
-/// Groups candidates by observation and finds each observation's file: the path
-/// recorded in the candidate if it exists (relative paths are tried from
-/// `search_dir` as well), else the entry of `obs_files` with the same file name,
-/// else the only entry of `obs_files`.
+/// Groups candidates by observation and finds each observation's file: the entry of
+/// `obs_files` with the same file name, else the path recorded in the candidate if it
+/// exists (relative paths are tried from `search_dir` as well), else the only entry
+/// of `obs_files`.
 ///
 /// # Errors
 /// [`Error::Config`] naming a recorded file that none of these resolve.
