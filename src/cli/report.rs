@@ -11,9 +11,10 @@ use burstbook::report::source::source_report;
 /// Arguments of `report`.
 #[derive(clap::Args, Debug)]
 #[command(after_help = "Examples:
-  burstbook report out/search --out out/report
-  burstbook report out/search/candidates.csv --obs demo-data/session1.json --out out/report
-  burstbook report out/search --max-plots 10 --title \"Night 3\" --out out/night3
+  burstbook report results --out results/report
+  burstbook search demo-data/demo.json --out results   # first, the search
+  burstbook report results/candidates.csv --obs demo-data/demo.json --out results/report
+  burstbook report results --max-plots 10 --title \"Night 3\" --out out/night3
   burstbook report --source \"Lanternfish Repeater A\" --catalogue burstbook.sqlite --out out/source
 
 The folder written holds index.html and its PNGs only (no scripts, nothing fetched),
