@@ -11,8 +11,8 @@ use burstbook::report::source::source_report;
 /// Arguments of `report`.
 #[derive(clap::Args, Debug)]
 #[command(after_help = "Examples:
-  burstbook report results --out results/report
   burstbook search demo-data/demo.json --out results   # first, the search
+  burstbook report results --out results/report
   burstbook report results/candidates.csv --obs demo-data/demo.json --out results/report
   burstbook report results --max-plots 10 --title \"Night 3\" --out out/night3
   burstbook report --source \"Lanternfish Repeater A\" --catalogue burstbook.sqlite --out out/source
