@@ -17,6 +17,7 @@ pub mod error;
 pub mod obs;
 pub mod period;
 pub mod progress;
+pub mod report;
 pub mod robust;
 pub mod search;
 pub mod simulate;
