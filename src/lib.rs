@@ -18,6 +18,7 @@ pub mod inject;
 pub mod obs;
 pub mod period;
 pub mod progress;
+pub mod report;
 pub mod robust;
 pub mod search;
 pub mod simulate;

@@ -253,3 +253,15 @@ fn fast_and_reference_kernels_agree() {
         assert!((f.dm - r.dm).abs() < 10.0 && (f.t_inf_s - r.t_inf_s).abs() < 0.02);
     }
 }
+
+// Recordings shorter than one dispersion sweep, or empty, are searched without error
+// (nothing can be found in them).
+#[test]
+fn short_and_empty_recordings_yield_no_candidates() {
+    for n in [0u64, 1, 50, 400] {
+        let r = run(n, 13, &[], &config());
+        assert!(r.candidates.is_empty(), "n={n}");
+        let searchable = n.saturating_sub(r.layout.max_delay as u64);
+        assert_eq!(r.samples_searched, searchable, "n={n}");
+    }
+}

@@ -7,6 +7,8 @@ mod inject;
 mod inspect;
 mod period;
 mod plan;
+mod report;
+mod review;
 mod search;
 mod simulate;
 
@@ -24,6 +26,10 @@ pub struct Cli {
 enum Command {
     /// Summarise an observation: header, duration, statistics, suspicious channels.
     Inspect(inspect::Args),
+    /// Write an HTML report (overview and per-candidate figures) from search output.
+    Report(report::Args),
+    /// Label catalogue candidates one key at a time in a local web page.
+    Review(review::Args),
     /// Search observations for dispersed pulses; write candidates.csv and candidates.json.
     Search(search::Args),
     /// Measure search completeness by adding synthetic bursts to an observation in memory.
@@ -44,6 +50,8 @@ enum Command {
 pub fn run(cli: Cli) -> anyhow::Result<()> {
     match cli.command {
         Command::Inspect(a) => inspect::run(a),
+        Command::Report(a) => report::run(a),
+        Command::Review(a) => review::run(a),
         Command::Search(a) => search::run(a),
         Command::Simulate(a) => simulate::run(a),
         Command::Inject(a) => inject::run(a),

@@ -49,10 +49,20 @@ pub fn boxcar_sums(prefix: &[f64], w: usize, out: &mut Vec<f32>) {
     out.extend((0..=n - w).map(|t| (prefix[t + w] - prefix[t]) as f32));
 }
 
+/// Fewest independent boxcar sums (series length / width) from which a width's noise
+/// is measured; with fewer, σ would be uncertain by more than about 1/√(2·16) = 18 %
+/// and the width is skipped.
+pub const MIN_INDEPENDENT_SUMS: usize = 16;
+
 /// Robust location and scale of a width's boxcar sums: moments of all sums within
-/// 4σ of the median (σ from the MAD), corrected for the clipping.
-fn noise_of(sums: &[f32], scratch: &mut Vec<f32>) -> (f32, f32) {
-    clipped_mean_sigma(sums, 4.0, scratch)
+/// 4σ of the median (σ from the MAD), corrected for the clipping. `None` when the
+/// series is too short for width `w` or has no spread.
+fn noise_of(sums: &[f32], w: usize, scratch: &mut Vec<f32>) -> Option<(f32, f32)> {
+    if sums.len() < MIN_INDEPENDENT_SUMS * w {
+        return None;
+    }
+    let (med, sigma) = clipped_mean_sigma(sums, 4.0, scratch);
+    (sigma > 0.0).then_some((med, sigma))
 }
 
 /// One above-threshold peak of one series: the best start in a run of consecutive
@@ -86,10 +96,9 @@ pub fn search_series(
     prefix_sums(series, &mut scratch.prefix);
     for &w in widths {
         boxcar_sums(&scratch.prefix, w, &mut scratch.sums);
-        let (med, sigma) = noise_of(&scratch.sums, &mut scratch.work);
-        if sigma.is_nan() || sigma <= 0.0 {
+        let Some((med, sigma)) = noise_of(&scratch.sums, w, &mut scratch.work) else {
             continue;
-        }
+        };
         let level = med + threshold * sigma;
         let mut best: Option<Peak> = None;
         for (t, &s) in scratch.sums.iter().enumerate() {
@@ -112,13 +121,15 @@ pub fn search_series(
 
 /// The best S/N at width `w` over starts `lo..=hi` (clamped to the series), with the
 /// noise measured over the whole series as in [`search_series`]. 0 when the series
-/// has no spread or the range is empty.
+/// is too short, has no spread, or the range is empty.
 pub fn best_snr_in(series: &[f32], w: usize, lo: usize, hi: usize, scratch: &mut Scratch) -> f32 {
     prefix_sums(series, &mut scratch.prefix);
     boxcar_sums(&scratch.prefix, w, &mut scratch.sums);
-    let (med, sigma) = noise_of(&scratch.sums, &mut scratch.work);
+    let Some((med, sigma)) = noise_of(&scratch.sums, w, &mut scratch.work) else {
+        return 0.0;
+    };
     let hi = hi.min(scratch.sums.len().saturating_sub(1));
-    if sigma.is_nan() || sigma <= 0.0 || scratch.sums.is_empty() || lo > hi {
+    if lo > hi {
         return 0.0;
     }
     scratch.sums[lo..=hi]
@@ -214,7 +225,7 @@ mod tests {
         let mut scratch = Scratch::default();
         prefix_sums(&series, &mut scratch.prefix);
         boxcar_sums(&scratch.prefix, 1, &mut scratch.sums);
-        let (med, sigma) = noise_of(&scratch.sums, &mut scratch.work);
+        let (med, sigma) = noise_of(&scratch.sums, 1, &mut scratch.work).unwrap();
         let s = 3.5f32;
         let count = scratch
             .sums

@@ -1,0 +1,217 @@
+//! Reading the search's output back (`candidates.json` or `candidates.csv`) and
+//! matching each candidate with its observation file.
+
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+
+use serde::Deserialize;
+
+use crate::candidate::{Candidate, TriageFeatures, Verdict};
+use crate::error::{Error, Result};
+
+/// A `candidates.csv` row as the search writes it (features flattened, reasons joined
+/// by "; ").
+#[derive(Debug, Deserialize)]
+struct CsvRow {
+    file: String,
+    t_inf_s: f64,
+    mjd_inf: f64,
+    dm: f64,
+    dm_lo: f64,
+    dm_hi: f64,
+    width_ms: f64,
+    snr: f64,
+    cluster_size: usize,
+    verdict: String,
+    reasons: String,
+    snr_dm0_ratio: f64,
+    dm_curve_misfit: f64,
+    band_fraction: f64,
+    modulation_index: f64,
+    fluence_jy_ms: Option<f64>,
+}
+
+#[derive(Deserialize)]
+#[serde(untagged)]
+enum JsonCandidates {
+    Wrapped { candidates: Vec<Candidate> },
+    Bare(Vec<Candidate>),
+}
+
+/// Loads candidates from a search output folder (its `candidates.json`, else its
+/// `candidates.csv`), or from one of those files directly.
+///
+/// # Errors
+/// [`Error::BadInput`] naming the file when it is missing or not a candidate list.
+pub fn load_candidates(path: &Path) -> Result<Vec<Candidate>> {
+    let path = if path.is_dir() {
+        let json = path.join("candidates.json");
+        if json.exists() {
+            json
+        } else {
+            path.join("candidates.csv")
+        }
+    } else {
+        path.to_path_buf()
+    };
+    let text = std::fs::read_to_string(&path).map_err(|e| Error::io(&path, e))?;
+    let is_csv = path
+        .extension()
+        .is_some_and(|e| e.eq_ignore_ascii_case("csv"));
+    if is_csv {
+        parse_csv(&path, &text)
+    } else {
+        match serde_json::from_str::<JsonCandidates>(&text) {
+            Ok(JsonCandidates::Wrapped { candidates } | JsonCandidates::Bare(candidates)) => {
+                Ok(candidates)
+            }
+            Err(e) => Err(Error::bad_input(
+                &path,
+                format!("not a candidate list: {e}"),
+            )),
+        }
+    }
+}
+
+fn parse_csv(path: &Path, text: &str) -> Result<Vec<Candidate>> {
+    let mut reader = csv::Reader::from_reader(text.as_bytes());
+    reader
+        .deserialize::<CsvRow>()
+        .enumerate()
+        .map(|(i, row)| {
+            let r = row.map_err(|e| Error::bad_input(path, format!("row {}: {e}", i + 1)))?;
+            let verdict = Verdict::parse(&r.verdict).ok_or_else(|| {
+                Error::bad_input(
+                    path,
+                    format!("row {}: unknown verdict {:?}", i + 1, r.verdict),
+                )
+            })?;
+            Ok(Candidate {
+                file: r.file,
+                t_inf_s: r.t_inf_s,
+                mjd_inf: r.mjd_inf,
+                dm: r.dm,
+                dm_lo: r.dm_lo,
+                dm_hi: r.dm_hi,
+                width_ms: r.width_ms,
+                snr: r.snr,
+                cluster_size: r.cluster_size,
+                verdict,
+                reasons: r
+                    .reasons
+                    .split("; ")
+                    .filter(|s| !s.is_empty())
+                    .map(str::to_string)
+                    .collect(),
+                features: TriageFeatures {
+                    snr_dm0_ratio: r.snr_dm0_ratio,
+                    dm_curve_misfit: r.dm_curve_misfit,
+                    band_fraction: r.band_fraction,
+                    modulation_index: r.modulation_index,
+                },
+                fluence_jy_ms: r.fluence_jy_ms,
+            })
+        })
+        .collect()
+}
+
+/// Groups candidates by observation and finds each observation's file: the entry of
+/// `obs_files` with the same file name, else the path recorded in the candidate if it
+/// exists (relative paths are tried from `search_dir` as well), else the only entry
+/// of `obs_files`.
+///
+/// # Errors
+/// [`Error::Config`] naming a recorded file that none of these resolve.
+pub fn group_by_observation(
+    cands: Vec<Candidate>,
+    search_dir: Option<&Path>,
+    obs_files: &[PathBuf],
+) -> Result<Vec<(PathBuf, Vec<Candidate>)>> {
+    let mut groups: BTreeMap<String, Vec<Candidate>> = BTreeMap::new();
+    for c in cands {
+        groups.entry(c.file.clone()).or_default().push(c);
+    }
+    groups
+        .into_iter()
+        .map(|(file, cs)| Ok((resolve(&file, search_dir, obs_files)?, cs)))
+        .collect()
+}
+
+fn resolve(file: &str, search_dir: Option<&Path>, obs_files: &[PathBuf]) -> Result<PathBuf> {
+    let recorded = Path::new(file);
+    let name = recorded.file_name();
+    if let Some(p) = obs_files.iter().find(|p| p.file_name() == name) {
+        return Ok(p.clone());
+    }
+    if recorded.exists() {
+        return Ok(recorded.to_path_buf());
+    }
+    if let Some(p) = search_dir.map(|d| d.join(recorded)).filter(|p| p.exists()) {
+        return Ok(p);
+    }
+    match obs_files {
+        [only] => Ok(only.clone()),
+        _ => Err(Error::Config(format!(
+            "cannot find observation {file:?} named in the candidates; pass it with --obs"
+        ))),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    const CSV: &str = "file,t_inf_s,mjd_inf,dm,dm_lo,dm_hi,width_ms,snr,cluster_size,verdict,reasons,\
+snr_dm0_ratio,dm_curve_misfit,band_fraction,modulation_index,fluence_jy_ms\n\
+a/obs1.json,1.5,60000.1,300,299,301,2,12.5,7,astrophysical,peaks away from DM 0; broadband,0.1,0.05,0.9,0.3,\n\
+a/obs2.json,3.0,60000.2,20,10,40,8,7.1,30,rfi,bright at DM 0,0.9,0.5,0.1,2.0,1.25\n";
+
+    #[test]
+    fn reads_the_search_csv_and_json() {
+        let dir = tempfile::tempdir().unwrap();
+        let csv = dir.path().join("candidates.csv");
+        std::fs::write(&csv, CSV).unwrap();
+        let cs = load_candidates(dir.path()).unwrap();
+        assert_eq!(cs.len(), 2);
+        assert_eq!(cs[0].reasons, vec!["peaks away from DM 0", "broadband"]);
+        assert_eq!(
+            (cs[1].verdict, cs[1].fluence_jy_ms),
+            (Verdict::Rfi, Some(1.25))
+        );
+        assert_eq!(cs[0].fluence_jy_ms, None);
+        let json = dir.path().join("candidates.json");
+        let wrapped = serde_json::json!({ "config_hash": "x", "candidates": cs });
+        std::fs::write(&json, wrapped.to_string()).unwrap();
+        assert_eq!(
+            load_candidates(dir.path()).unwrap(),
+            cs,
+            "folder prefers the JSON"
+        );
+        std::fs::write(&json, serde_json::to_string(&cs).unwrap()).unwrap();
+        assert_eq!(load_candidates(&json).unwrap(), cs);
+        std::fs::write(&json, "{\"nope\": 1}").unwrap();
+        let err = load_candidates(&json).unwrap_err().to_string();
+        assert!(
+            err.contains("candidates.json") && err.contains("not a candidate list"),
+            "{err}"
+        );
+    }
+
+    #[test]
+    fn groups_and_resolves_observation_files() {
+        let cs = load_candidates_from_str();
+        let given = [
+            PathBuf::from("/data/obs2.json"),
+            PathBuf::from("/data/obs1.json"),
+        ];
+        let groups = group_by_observation(cs.clone(), None, &given).unwrap();
+        assert_eq!(groups[0].0, PathBuf::from("/data/obs1.json"));
+        assert_eq!(groups[1].0, PathBuf::from("/data/obs2.json"));
+        let err = group_by_observation(cs, None, &[]).unwrap_err().to_string();
+        assert!(err.contains("--obs"), "{err}");
+    }
+
+    fn load_candidates_from_str() -> Vec<Candidate> {
+        parse_csv(Path::new("x.csv"), CSV).unwrap()
+    }
+}
