@@ -146,6 +146,10 @@ fn completeness_follows_the_gaussian_prediction_and_input_is_untouched() {
     let text = std::fs::read_to_string(&rows_csv).unwrap();
     assert_eq!(text.lines().count(), 361);
     assert!(text.starts_with("index,pass,t_inf_s,dm,width_ms,"));
+    let png = dir.path().join("completeness.png");
+    output::write_curve_png(&png, &result, &config).unwrap();
+    let bytes = std::fs::read(&png).unwrap();
+    assert_eq!(&bytes[..8], b"\x89PNG\r\n\x1a\n");
     let mut cat = Catalogue::open(&dir.path().join("cat.sqlite")).unwrap();
     output::record(&mut cat, &path, &result, &config).unwrap();
     let stored = cat
@@ -203,7 +207,12 @@ fn command_writes_outputs_and_records_in_the_catalogue() {
         "{stdout}{}",
         String::from_utf8_lossy(&run.stderr)
     );
-    for f in ["injections.csv", "completeness.csv", "summary.json"] {
+    for f in [
+        "injections.csv",
+        "completeness.csv",
+        "completeness.png",
+        "summary.json",
+    ] {
         assert!(out.join(f).exists(), "{f} missing");
     }
     let rows = std::fs::read_to_string(out.join("injections.csv")).unwrap();

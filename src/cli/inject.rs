@@ -17,15 +17,15 @@ use burstbook::search::SearchConfig;
       --spectral-index -3:1 --band-limited-fraction 0.3 --scatter-ms 0.01:5 --out inj
 
 The file is only read; bursts are added to the samples in memory. Writes
-injections.csv (one row per burst), summary.json and completeness.csv to --out and
-records the 50 %/90 % levels in the catalogue.")]
+injections.csv (one row per burst), summary.json, completeness.csv and
+completeness.png to --out and records the 50 %/90 % levels in the catalogue.")]
 pub struct Args {
     /// Observation file (.json native header or FITS search mode).
     pub file: PathBuf,
     /// TOML search configuration, exactly as given to `search --config` [default: built-in defaults].
     #[arg(long)]
     pub config: Option<PathBuf>,
-    /// Directory for injections.csv, summary.json and completeness.csv.
+    /// Directory for injections.csv, summary.json, completeness.csv and completeness.png.
     #[arg(long)]
     pub out: PathBuf,
     /// Bursts to inject in total (spread over as many passes as needed).
@@ -116,8 +116,12 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     let rows = args.out.join("injections.csv");
     let curve = args.out.join("completeness.csv");
     let json = args.out.join("summary.json");
+    let png = args.out.join("completeness.png");
     output::write_rows_csv(&rows, &result.rows)?;
     output::write_curve_csv(&curve, &result)?;
+    if !result.rows.is_empty() {
+        output::write_curve_png(&png, &result, &config)?;
+    }
     std::fs::write(&json, output::summary_json(&result, &config))
         .with_context(|| format!("cannot write {}", json.display()))?;
     if !args.no_catalogue {
@@ -128,9 +132,10 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     }
     print_summary(&result);
     println!(
-        "wrote {}, {} and {}",
+        "wrote {}, {}, {} and {}",
         rows.display(),
         curve.display(),
+        png.display(),
         json.display()
     );
     Ok(())

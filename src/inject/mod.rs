@@ -13,6 +13,7 @@
 pub mod curve;
 pub mod matching;
 pub mod output;
+pub mod plot;
 mod ranges;
 mod run;
 pub mod schedule;

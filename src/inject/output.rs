@@ -89,6 +89,14 @@ pub fn summary_json(result: &InjectionResult, config: &SearchConfig) -> String {
     .expect("injection summaries always serialise")
 }
 
+/// Draws the completeness curve to `path` as PNG.
+///
+/// # Errors
+/// Nothing injected, or the file cannot be written.
+pub fn write_curve_png(path: &Path, result: &InjectionResult, config: &SearchConfig) -> Result<()> {
+    super::plot::completeness_figure(result, config.snr_threshold)?.save_png(path)
+}
+
 /// Records the completeness levels against the observation at `path` and the
 /// configuration in `cat`; returns the row id.
 ///
