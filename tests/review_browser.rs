@@ -120,10 +120,19 @@ fn keyboard_review_in_headless_chromium_records_labels() {
         return;
     };
     let browser_dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/browser");
-    assert!(
-        browser_dir.join("node_modules/playwright-core").is_dir(),
-        "chromium is present but playwright-core is not installed: run `npm ci --prefix tests/browser`"
-    );
+    if !browser_dir.join("node_modules/playwright-core").is_dir() {
+        // CI installs it (.ci/run), so there a missing driver is a failure; on a
+        // developer's machine the suite still runs, and says loudly what it skipped.
+        assert!(
+            std::env::var_os("CI").is_none(),
+            "chromium is present but playwright-core is not installed: run `npm ci --prefix tests/browser`"
+        );
+        eprintln!(
+            "\n!!!!!!!! SKIPPED keyboard_review_in_headless_chromium_records_labels: \
+             playwright-core not installed (run `npm ci --prefix tests/browser`) !!!!!!!!\n"
+        );
+        return;
+    }
     let dir = tempfile::tempdir().unwrap();
     let obs = dir.path().join("review-night.json");
     let t_inf = report_common::write_observation(&obs);
