@@ -153,7 +153,7 @@ mod tests {
     #[test]
     fn csv_cells_follow_the_columns_and_round_trip() {
         let mut c = cand();
-        c.mjd_inf = 60000.123_456_789_012;
+        c.mjd_inf = 60_000.123_456_789;
         c.features.band_fraction = 1e-7;
         let cells = csv_cells(&c);
         assert_eq!(cells.len(), CSV_COLUMNS.len());
