@@ -10,8 +10,10 @@ use crate::units::{DISPERSION_CONSTANT_S_MHZ2, channel_smearing_s};
 const MAX_TRIALS: usize = 10_000_000;
 
 /// What the user asks of a DM plan; [`DmPlan`] is what the planner makes of it.
+/// Keys missing from a serialised request (e.g. a partial `[plan]` table of a search
+/// configuration) take their [`Default`] values.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-#[serde(deny_unknown_fields)]
+#[serde(default, deny_unknown_fields)]
 pub struct PlanRequest {
     /// Lowest trial DM in pc cm⁻³.
     pub dm_min: f64,
@@ -32,7 +34,9 @@ impl Default for PlanRequest {
     fn default() -> Self {
         PlanRequest {
             dm_min: 0.0,
-            dm_max: 1000.0,
+            // Wide enough for the highest-DM bursts of the demo survey; the search's
+            // default, and what a `[plan]` table without `dm_max` gets.
+            dm_max: 2000.0,
             min_width_s: 0.0,
             tolerance: 1.25,
             max_downsample: 64,

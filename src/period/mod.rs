@@ -11,12 +11,14 @@
 //! * [`synth`] makes seeded synthetic sets for tests, benchmarks and demos.
 //!
 //! Every entry point takes plain slices of times (seconds or days after a reference
-//! MJD, see [`times`]) so catalogue rows convert with [`times::ArrivalTimes::from_mjd`].
+//! MJD, see [`times`]) so catalogue rows convert with [`times::ArrivalTimes::from_mjd`];
+//! [`from_catalogue`] reads a source's bursts and exposure, both on barycentric TDB.
 
 pub mod activity;
 pub mod coherence;
 pub mod divisor;
 pub mod fold;
+pub mod from_catalogue;
 pub mod lomb;
 pub mod powerlaw;
 pub mod rotation;

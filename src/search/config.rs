@@ -86,11 +86,7 @@ pub struct SearchConfig {
 impl Default for SearchConfig {
     fn default() -> Self {
         SearchConfig {
-            // Wide enough for the highest-DM bursts of the demo survey.
-            plan: PlanRequest {
-                dm_max: 2000.0,
-                ..PlanRequest::default()
-            },
+            plan: PlanRequest::default(),
             snr_threshold: 7.5,
             max_width_s: 0.1,
             width_ratio: std::f64::consts::SQRT_2,
@@ -204,6 +200,23 @@ mod tests {
         assert_ne!(c.hash(), SearchConfig::default().hash());
         let back: SearchConfig = serde_json::from_str(&c.to_json()).unwrap();
         assert_eq!(back, c);
+    }
+
+    #[test]
+    fn partial_plan_table_keeps_the_other_defaults() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("s.toml");
+        std::fs::write(&path, "[plan]\ndm_min = 50.0\ntolerance = 1.1\n").unwrap();
+        let c = SearchConfig::from_toml_file(&path).unwrap();
+        let d = SearchConfig::default();
+        assert_eq!((c.plan.dm_min, c.plan.tolerance), (50.0, 1.1));
+        assert_eq!(c.plan.dm_max, d.plan.dm_max);
+        assert_eq!(c.plan.min_width_s, d.plan.min_width_s);
+        assert_eq!(c.plan.max_downsample, d.plan.max_downsample);
+        // Unknown keys inside [plan] are still refused.
+        std::fs::write(&path, "[plan]\ndm_maks = 50.0\n").unwrap();
+        let e = SearchConfig::from_toml_file(&path).unwrap_err().to_string();
+        assert!(e.contains("dm_maks"), "{e}");
     }
 
     #[test]

@@ -9,48 +9,30 @@ use super::{FileResult, SearchConfig};
 use crate::candidate::Candidate;
 use crate::error::{Error, Result};
 
-/// One CSV row: a [`Candidate`] with its features flattened and reasons joined by "; ".
-#[derive(Debug, Serialize)]
-struct CsvRow<'a> {
-    file: &'a str,
-    t_inf_s: f64,
-    mjd_inf: f64,
-    dm: f64,
-    dm_lo: f64,
-    dm_hi: f64,
-    width_ms: f64,
-    snr: f64,
-    cluster_size: usize,
-    verdict: &'static str,
-    reasons: String,
-    snr_dm0_ratio: f64,
-    dm_curve_misfit: f64,
-    band_fraction: f64,
-    modulation_index: f64,
-    fluence_jy_ms: Option<f64>,
-}
-
-impl<'a> From<&'a Candidate> for CsvRow<'a> {
-    fn from(c: &'a Candidate) -> Self {
-        CsvRow {
-            file: &c.file,
-            t_inf_s: c.t_inf_s,
-            mjd_inf: c.mjd_inf,
-            dm: c.dm,
-            dm_lo: c.dm_lo,
-            dm_hi: c.dm_hi,
-            width_ms: c.width_ms,
-            snr: c.snr,
-            cluster_size: c.cluster_size,
-            verdict: c.verdict.as_str(),
-            reasons: c.reasons.join("; "),
-            snr_dm0_ratio: c.features.snr_dm0_ratio,
-            dm_curve_misfit: c.features.dm_curve_misfit,
-            band_fraction: c.features.band_fraction,
-            modulation_index: c.features.modulation_index,
-            fluence_jy_ms: c.fluence_jy_ms,
-        }
-    }
+/// The cells of one CSV row in [`CSV_COLUMNS`] order: a [`Candidate`] with its
+/// features flattened, reasons joined by "; ", no fluence as an empty cell. Numbers are
+/// written in Rust's shortest round-trip form. The catalogue's candidate CSV appends
+/// these cells to its own columns.
+pub fn csv_cells(c: &Candidate) -> Vec<String> {
+    let f = &c.features;
+    vec![
+        c.file.clone(),
+        c.t_inf_s.to_string(),
+        c.mjd_inf.to_string(),
+        c.dm.to_string(),
+        c.dm_lo.to_string(),
+        c.dm_hi.to_string(),
+        c.width_ms.to_string(),
+        c.snr.to_string(),
+        c.cluster_size.to_string(),
+        c.verdict.as_str().to_string(),
+        c.reasons.join("; "),
+        f.snr_dm0_ratio.to_string(),
+        f.dm_curve_misfit.to_string(),
+        f.band_fraction.to_string(),
+        f.modulation_index.to_string(),
+        c.fluence_jy_ms.map(|x| x.to_string()).unwrap_or_default(),
+    ]
 }
 
 /// Per-file summary stored in the JSON output.
@@ -102,12 +84,9 @@ struct JsonOut<'a> {
 pub fn write_csv(path: &Path, results: &[FileResult]) -> Result<()> {
     let io = |e: csv::Error| Error::io(path, std::io::Error::other(e));
     let mut w = csv::Writer::from_path(path).map_err(io)?;
+    w.write_record(CSV_COLUMNS).map_err(io)?;
     for c in results.iter().flat_map(|r| &r.candidates) {
-        w.serialize(CsvRow::from(c)).map_err(io)?;
-    }
-    if results.iter().all(|r| r.candidates.is_empty()) {
-        // Keep the header line even without candidates.
-        w.write_record(CSV_COLUMNS).map_err(io)?;
+        w.write_record(csv_cells(c)).map_err(io)?;
     }
     w.flush().map_err(|e| Error::io(path, e))
 }
@@ -172,15 +151,18 @@ mod tests {
     }
 
     #[test]
-    fn csv_columns_match_the_row_struct() {
-        let dir = tempfile::tempdir().unwrap();
-        let path = dir.path().join("c.csv");
-        let mut w = csv::Writer::from_path(&path).unwrap();
-        w.serialize(CsvRow::from(&cand())).unwrap();
-        w.flush().unwrap();
-        let text = std::fs::read_to_string(&path).unwrap();
-        let mut lines = text.lines();
-        assert_eq!(lines.next().unwrap(), CSV_COLUMNS.join(","));
-        assert!(lines.next().unwrap().contains("astrophysical,one; two,"));
+    fn csv_cells_follow_the_columns_and_round_trip() {
+        let mut c = cand();
+        c.mjd_inf = 60_000.123_456_789;
+        c.features.band_fraction = 1e-7;
+        let cells = csv_cells(&c);
+        assert_eq!(cells.len(), CSV_COLUMNS.len());
+        let cell = |name: &str| &cells[CSV_COLUMNS.iter().position(|n| *n == name).unwrap()];
+        assert_eq!(cell("verdict"), "astrophysical");
+        assert_eq!(cell("reasons"), "one; two");
+        assert_eq!(cell("fluence_jy_ms"), "");
+        assert_eq!(cell("cluster_size"), "7");
+        assert_eq!(cell("mjd_inf").parse::<f64>().unwrap(), c.mjd_inf);
+        assert_eq!(cell("band_fraction").parse::<f64>().unwrap(), 1e-7);
     }
 }

@@ -4,6 +4,7 @@ use std::path::PathBuf;
 
 use burstbook::Verdict;
 use burstbook::catalogue::{Bounds, BurstFilter, CandidateFilter, Catalogue};
+use burstbook::search::output::{CSV_COLUMNS, csv_cells};
 
 use super::output::{Format, opt, sink, write_rows};
 
@@ -101,29 +102,8 @@ pub struct CandidatesArgs {
 const CANDIDATE_TABLE: &[&str] = &[
     "id", "source", "mjd_inf", "dm", "snr", "width_ms", "verdict", "label", "burst",
 ];
-const CANDIDATE_CSV: &[&str] = &[
-    "id",
-    "run_id",
-    "source",
-    "label",
-    "burst_id",
-    "file",
-    "t_inf_s",
-    "mjd_inf",
-    "dm",
-    "dm_lo",
-    "dm_hi",
-    "width_ms",
-    "snr",
-    "cluster_size",
-    "verdict",
-    "reasons",
-    "snr_dm0_ratio",
-    "dm_curve_misfit",
-    "band_fraction",
-    "modulation_index",
-    "fluence_jy_ms",
-];
+/// Catalogue columns in front of the search's own `candidates.csv` columns.
+const CANDIDATE_KEYS: [&str; 5] = ["id", "run_id", "source", "label", "burst_id"];
 
 pub fn candidates(cat: &Catalogue, a: CandidatesArgs) -> anyhow::Result<()> {
     let mut filter = a.filter.to_filter(&[]);
@@ -145,31 +125,17 @@ pub fn candidates(cat: &Catalogue, a: CandidatesArgs) -> anyhow::Result<()> {
             ]
         });
     }
-    write_rows(&mut out, a.format, CANDIDATE_CSV, &rows, |r| {
-        let c = &r.candidate;
-        vec![
+    let headers: Vec<&str> = CANDIDATE_KEYS.into_iter().chain(CSV_COLUMNS).collect();
+    write_rows(&mut out, a.format, &headers, &rows, |r| {
+        let mut cells = vec![
             r.id.to_string(),
             r.run_id.to_string(),
             r.source.clone(),
             r.label.clone().unwrap_or_default(),
             r.burst_id.map(|b| b.to_string()).unwrap_or_default(),
-            c.file.clone(),
-            c.t_inf_s.to_string(),
-            c.mjd_inf.to_string(),
-            c.dm.to_string(),
-            c.dm_lo.to_string(),
-            c.dm_hi.to_string(),
-            c.width_ms.to_string(),
-            c.snr.to_string(),
-            c.cluster_size.to_string(),
-            c.verdict.to_string(),
-            c.reasons.join("; "),
-            c.features.snr_dm0_ratio.to_string(),
-            c.features.dm_curve_misfit.to_string(),
-            c.features.band_fraction.to_string(),
-            c.features.modulation_index.to_string(),
-            c.fluence_jy_ms.map(|f| f.to_string()).unwrap_or_default(),
-        ]
+        ];
+        cells.extend(csv_cells(&r.candidate));
+        cells
     })
 }
 

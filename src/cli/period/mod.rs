@@ -9,6 +9,8 @@ mod synth;
 use std::path::{Path, PathBuf};
 
 use anyhow::Context;
+use burstbook::catalogue::Catalogue;
+use burstbook::period::from_catalogue::SourceArrivals;
 use burstbook::period::times::{ArrivalTimes, Exposure, read_arrival_csv, read_exposure_csv};
 
 /// Arguments of `period`.
@@ -23,21 +25,66 @@ enum PeriodCommand {
     /// Search arrival times for a rotation period (ms–s) with Z²ₙ and the H-test.
     #[command(after_help = "Examples:\n  burstbook period rotation\n  \
         burstbook period rotation --toas toas.csv --min-period-s 0.05 --max-period-s 10 --json\n  \
-        burstbook period rotation --toas toas.csv --period-s 0.41370 --fit-pdot")]
+        burstbook period rotation --toas toas.csv --period-s 0.41370 --fit-pdot\n  \
+        burstbook period rotation --source FIELD-7 --catalogue survey.sqlite --max-period-s 2")]
     Rotation(rotation::Args),
     /// Search bursts and observing sessions for an activity cycle (days–months).
     #[command(after_help = "Examples:\n  burstbook period activity\n  \
-        burstbook period activity --toas bursts.csv --exposure sessions.csv --max-period-days 60 --sims 2000 --json")]
+        burstbook period activity --toas bursts.csv --exposure sessions.csv --max-period-days 60 --sims 2000 --json\n  \
+        burstbook period activity --source FIELD-7 --snr-min 8 --json")]
     Activity(activity::Args),
     /// Waiting times (Poisson, Weibull) and the power-law index of fluences.
     #[command(after_help = "Examples:\n  burstbook period stats\n  \
-        burstbook period stats --toas bursts.csv --exposure sessions.csv --values bursts.csv --value-column fluence_jy_ms")]
+        burstbook period stats --toas bursts.csv --exposure sessions.csv --values bursts.csv --value-column fluence_jy_ms\n  \
+        burstbook period stats --source FIELD-7 --catalogue survey.sqlite")]
     Stats(stats::Args),
     /// Write invented demo sets (a sparse rotator; a repeater with an activity cycle).
     #[command(
         after_help = "Example:\n  burstbook period synth --out-dir demo-data/period --seed 1"
     )]
     Synth(synth::Args),
+}
+
+/// A catalogue source to read instead of CSV files.
+#[derive(clap::Args, Debug)]
+struct SourceInput {
+    /// Read the bursts of this catalogue source (barycentric TDB; those not yet
+    /// barycentred are converted on the fly) instead of --toas.
+    #[arg(long, conflicts_with_all = ["toas", "column"])]
+    source: Option<String>,
+    /// Catalogue file [default: $BURSTBOOK_CATALOGUE, else ./burstbook.sqlite].
+    #[arg(long, value_name = "PATH", requires = "source")]
+    catalogue: Option<PathBuf>,
+}
+
+impl SourceInput {
+    /// The catalogue and the source's arrival times, if a source was named. Notes on
+    /// stderr how many arrival times had to be converted.
+    fn load(&self) -> anyhow::Result<Option<(Catalogue, SourceArrivals)>> {
+        let Some(source) = &self.source else {
+            return Ok(None);
+        };
+        let cat = Catalogue::open(&Catalogue::resolve_path(self.catalogue.as_deref()))?;
+        let arrivals = SourceArrivals::load(&cat, source)?;
+        for w in &arrivals.warnings {
+            eprintln!("burstbook: warning: {source}: {w}");
+        }
+        if arrivals.computed > 0 {
+            eprintln!(
+                "burstbook: note: {} of {} barycentric arrival times of {source} computed now \
+                 (store them with `burstbook book barycentre {source}`)",
+                arrivals.computed,
+                arrivals.toas.len()
+            );
+        }
+        Ok(Some((cat, arrivals)))
+    }
+
+    fn describe(&self) -> String {
+        let path = Catalogue::resolve_path(self.catalogue.as_deref());
+        let name = self.source.as_deref().unwrap_or_default();
+        format!("source {name} in {}", path.display())
+    }
 }
 
 /// Burst arrival times and the observing sessions they were found in.
@@ -52,16 +99,31 @@ struct BurstInputs {
     /// CSV of observing sessions with columns start_mjd,end_mjd.
     #[arg(long, default_value = "demo-data/period/repeater_exposure.csv")]
     exposure: PathBuf,
+    #[command(flatten)]
+    catalogue: SourceInput,
+    /// With --source: count only exposure searched at least this deep (S/N threshold
+    /// at most this) [default: all exposure].
+    #[arg(long, requires = "source", conflicts_with = "exposure")]
+    snr_min: Option<f64>,
 }
 
 impl BurstInputs {
+    /// Arrival times and sessions: from the catalogue (both on barycentric TDB) with
+    /// --source, else from the CSV files.
     fn read(&self) -> anyhow::Result<(ArrivalTimes, Exposure)> {
+        if let Some((cat, arrivals)) = self.catalogue.load()? {
+            let e = arrivals.exposure(&cat, self.snr_min)?;
+            return Ok((arrivals.toas, e));
+        }
         let t = read_arrival_csv(&self.toas, &self.column)?;
         let e = read_exposure_csv(&self.exposure, t.ref_mjd)?;
         Ok((t, e))
     }
 
     fn describe(&self) -> String {
+        if self.catalogue.source.is_some() {
+            return self.catalogue.describe();
+        }
         format!("{} with {}", self.toas.display(), self.exposure.display())
     }
 }

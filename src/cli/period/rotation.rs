@@ -8,7 +8,7 @@ use burstbook::period::rotation::{RotationConfig, RotationResult, search_rotatio
 use burstbook::period::times::{ArrivalTimes, read_arrival_csv};
 use burstbook::progress;
 
-use super::{create, print_json};
+use super::{SourceInput, create, print_json};
 
 #[derive(clap::Args, Debug)]
 pub struct Args {
@@ -18,6 +18,8 @@ pub struct Args {
     /// Name of the MJD column.
     #[arg(long, default_value = "mjd")]
     column: String,
+    #[command(flatten)]
+    catalogue: SourceInput,
     /// Shortest trial period, s.
     #[arg(long, default_value_t = 1e-3)]
     min_period_s: f64,
@@ -54,7 +56,13 @@ pub struct Args {
 }
 
 pub fn run(a: Args) -> anyhow::Result<()> {
-    let toas = read_arrival_csv(&a.toas, &a.column)?;
+    let (toas, what) = match a.catalogue.load()? {
+        Some((_, arrivals)) => (arrivals.toas, a.catalogue.describe()),
+        None => (
+            read_arrival_csv(&a.toas, &a.column)?,
+            a.toas.display().to_string(),
+        ),
+    };
     let cfg = RotationConfig {
         min_period_s: a.min_period_s,
         max_period_s: a.max_period_s,
@@ -66,8 +74,7 @@ pub fn run(a: Args) -> anyhow::Result<()> {
         ..Default::default()
     };
     if let Some(p) = a.period_s {
-        let h = test_period(&toas.t_s, p, a.pdot, &cfg)
-            .with_context(|| format!("{}", a.toas.display()))?;
+        let h = test_period(&toas.t_s, p, a.pdot, &cfg).with_context(|| what.clone())?;
         if a.json {
             return print_json(&h);
         }
@@ -97,8 +104,7 @@ pub fn run(a: Args) -> anyhow::Result<()> {
     )
     .len;
     let bar = progress::bar(grid_len as u64, "Z² scan");
-    let r = search_rotation(&toas.t_s, &cfg, &|n| bar.inc(n))
-        .with_context(|| format!("{}", a.toas.display()))?;
+    let r = search_rotation(&toas.t_s, &cfg, &|n| bar.inc(n)).with_context(|| what.clone())?;
     bar.finish_and_clear();
     if let Some(path) = &a.periodogram_out {
         write_rotation_periodogram(path, &r)?;

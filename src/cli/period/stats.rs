@@ -3,6 +3,8 @@
 use std::path::PathBuf;
 
 use anyhow::Context;
+use burstbook::catalogue::Catalogue;
+use burstbook::period::from_catalogue::source_fluences_jy_ms;
 use burstbook::period::powerlaw::fit_power_law;
 use burstbook::period::times::read_number_csv;
 use burstbook::period::waiting::waiting_time_stats;
@@ -13,9 +15,10 @@ use super::{BurstInputs, print_json};
 pub struct Args {
     #[command(flatten)]
     input: BurstInputs,
-    /// CSV holding fluences or energies for the power-law fit.
-    #[arg(long, default_value = "demo-data/period/repeater_bursts.csv")]
-    values: PathBuf,
+    /// CSV holding fluences or energies for the power-law fit [default: with
+    /// --source, the bursts' catalogue fluences; else demo-data/period/repeater_bursts.csv].
+    #[arg(long)]
+    values: Option<PathBuf>,
     /// Column of --values to fit.
     #[arg(long, default_value = "fluence_jy_ms")]
     value_column: String,
@@ -37,9 +40,23 @@ pub fn run(a: Args) -> anyhow::Result<()> {
     let (toas, exposure) = a.input.read()?;
     let waiting = waiting_time_stats(&toas.days(), &exposure.sessions_days)
         .with_context(|| a.input.describe())?;
-    let values = read_number_csv(&a.values, &a.value_column)?;
-    let power = fit_power_law(&values, a.s_min, a.boot, a.seed)
-        .with_context(|| format!("{}", a.values.display()))?;
+    let (values, values_from) = match (&a.values, &a.input.catalogue.source) {
+        (None, Some(source)) => {
+            let path = Catalogue::resolve_path(a.input.catalogue.catalogue.as_deref());
+            let cat = Catalogue::open(&path)?;
+            let what = format!("fluence_jy_ms of {}", a.input.catalogue.describe());
+            (source_fluences_jy_ms(&cat, source)?, what)
+        }
+        (path, _) => {
+            let path = path
+                .clone()
+                .unwrap_or_else(|| PathBuf::from("demo-data/period/repeater_bursts.csv"));
+            let what = format!("{} of {}", a.value_column, path.display());
+            (read_number_csv(&path, &a.value_column)?, what)
+        }
+    };
+    let power =
+        fit_power_law(&values, a.s_min, a.boot, a.seed).with_context(|| values_from.clone())?;
     if a.json {
         return print_json(&serde_json::json!({ "waiting": waiting, "power_law": power }));
     }
@@ -61,9 +78,8 @@ pub fn run(a: Args) -> anyhow::Result<()> {
         waiting.likelihood_ratio, waiting.poisson_p
     );
     println!(
-        "Power law of {}: dN/dS ∝ S^-α above S_min = {:.4} ({}; {} values): α = {:.3} ± {:.3} \
+        "Power law of {values_from}: dN/dS ∝ S^-α above S_min = {:.4} ({}; {} values): α = {:.3} ± {:.3} \
          (n−1 form {:.3}), cumulative γ = {:.3}, KS D = {:.3}, fit p = {}",
-        a.value_column,
         power.s_min,
         if power.s_min_chosen {
             "KS-chosen"

@@ -1,0 +1,90 @@
+#!/usr/bin/env bash
+# Pipeline benchmark on a reference survey file: 1024 channels over 1200–1600 MHz,
+# 64 µs samples, 8-bit, LENGTH_S seconds (default 30) with a few invented bursts.
+#   1. `burstbook search` over DM 0–2000 pc cm⁻³, widths to 50 ms, default kernel
+#      ("fast"): wall seconds, real-time factor (data seconds / wall seconds), peak RSS.
+#   2. The same plan restricted to DM 0–500 on the first SHORT_S seconds (default 10),
+#      once with kernel = "fast" and once with kernel = "reference": the speed-up.
+# Every search runs with --no-catalogue so only the search is timed. The generated
+# files are deleted on exit. Run it once on a quiet machine; it prints the load.
+# Usage: scripts/bench-survey.sh [LENGTH_S] [SHORT_S]
+set -euo pipefail
+cd "$(dirname "$0")/.."
+length_s="${1:-30}"
+short_s="${2:-10}"
+work="$(mktemp -d)"
+trap 'rm -rf "$work"' EXIT
+cargo build --quiet --release
+bin=target/release/burstbook
+
+scenario() { # $1 = length in seconds
+  local length="$1"
+  cat <<EOF
+# Invented reference survey (fictional telescope, site and source).
+seed = 7
+[observation]
+source = "Bench Field 1"
+telescope = "Saltmarsh 64 m"
+ra_deg = 210.5
+dec_deg = -20.25
+start_mjd = 61020.5
+length_s = $1
+tsamp_s = 64.0e-6
+[site]
+name = "Saltmarsh Flats"
+lon_deg = 12.5
+lat_deg = -31.0
+height_m = 300.0
+[band]
+first_chan_mhz = 1599.8046875
+chan_step_mhz = -0.390625
+n_chan = 1024
+[noise]
+nbits = 8
+mean = 96.0
+sigma = 12.0
+sefd_jy = 30.0
+EOF
+  # (t_inf_s, dm, width_ms, snr); only bursts whose sweep ends inside the file.
+  local b
+  for b in "3.0 320.0 2.0 20.0" "12.5 850.0 5.0 15.0" "24.0 1650.0 10.0 18.0"; do
+    set -- "$length" $b
+    if (( $(echo "$2 + 3 < $1" | bc) )); then
+      printf '[[burst]]\nt_inf_s = %s\ndm = %s\nwidth_ms = %s\nsnr = %s\n' "$2" "$3" "$4" "$5"
+    fi
+  done
+}
+
+scenario "${length_s}.0" > "$work/long.toml"
+scenario "${short_s}.0" > "$work/short.toml"
+$bin simulate "$work/long.toml" --out "$work/long.json" > /dev/null
+$bin simulate "$work/short.toml" --out "$work/short.json" > /dev/null
+echo 'kernel = "fast"' > "$work/fast.toml"
+echo 'kernel = "reference"' > "$work/reference.toml"
+
+timed() { # $1 = label, rest = command; prints wall seconds and peak RSS
+  local label="$1"
+  shift
+  /usr/bin/time -v -o "$work/time.txt" "$@" > "$work/$label.log"
+  local wall rss
+  wall=$(awk -F': ' '/Elapsed \(wall clock\)/ {n = split($2, p, ":"); s = 0;
+    for (i = 1; i <= n; i++) s = s * 60 + p[i]; print s}' "$work/time.txt")
+  rss=$(awk -F': ' '/Maximum resident set size/ {print $2}' "$work/time.txt")
+  echo "$wall $rss"
+}
+
+echo "load average before: $(cut -d' ' -f1-3 /proc/loadavg); cores: $(nproc)"
+read -r wall rss < <(timed full $bin search "$work/long.json" --out "$work/out-full" \
+  --dm-min 0 --dm-max 2000 --max-width-ms 50 --no-catalogue)
+echo "full search, ${length_s} s, DM 0-2000, widths to 50 ms, fast kernel: wall ${wall} s," \
+  "real-time factor $(echo "scale=3; ${length_s} / ${wall}" | bc), peak RSS ${rss} KiB"
+grep -i "candidates\|trials" "$work/full.log" | head -5 || true
+for kernel in fast reference; do
+  read -r wall rss < <(timed "$kernel" $bin search "$work/short.json" --out "$work/out-$kernel" \
+    --config "$work/$kernel.toml" --dm-min 0 --dm-max 500 --max-width-ms 50 --no-catalogue)
+  echo "short search, ${short_s} s, DM 0-500, widths to 50 ms, $kernel kernel: wall ${wall} s," \
+    "peak RSS ${rss} KiB"
+  eval "wall_$kernel=$wall"
+done
+echo "speed-up fast over reference (whole search command, same plan): $(echo "scale=2; ${wall_reference} / ${wall_fast}" | bc)"
+echo "load average after: $(cut -d' ' -f1-3 /proc/loadavg)"
