@@ -427,6 +427,44 @@ mod tests {
         assert_eq!(stats, (Some(0.125), Some(3_686_400)));
     }
 
+    // A full disk is simulated with SQLite's page limit, which fails a write with the
+    // same SQLITE_FULL a full file system gives: the run is refused whole, the
+    // catalogue keeps what it had, and the same run goes in once space is back.
+    #[test]
+    fn a_full_disk_refuses_the_whole_run_and_keeps_the_catalogue() {
+        let dir = tempfile::tempdir().unwrap();
+        let mut cat = Catalogue::open(&dir.path().join("c.sqlite")).unwrap();
+        let first = observation("A", 1);
+        cat.record_search(&first, &run(8.0), &candidates(&first, 5, 7))
+            .unwrap();
+        let before = cat.verify().unwrap();
+        let pages: i64 = cat
+            .conn()
+            .query_row("PRAGMA page_count", [], |r| r.get(0))
+            .unwrap();
+        cat.conn()
+            .query_row(
+                &format!("PRAGMA max_page_count = {}", pages + 2),
+                [],
+                |_| Ok(()),
+            )
+            .unwrap();
+        let second = observation("A", 2);
+        let many = candidates(&second, 20_000, 8);
+        let err = cat.record_search(&second, &run(8.0), &many).unwrap_err();
+        assert!(err.to_string().contains("disk full"), "{err}");
+        assert_eq!(
+            cat.verify().unwrap(),
+            before,
+            "nothing of the failed run remains"
+        );
+        cat.conn()
+            .query_row("PRAGMA max_page_count = 1073741823", [], |_| Ok(()))
+            .unwrap();
+        cat.record_search(&second, &run(8.0), &many).unwrap();
+        assert_eq!(cat.verify().unwrap().candidates, before.candidates + 20_000);
+    }
+
     #[test]
     fn candidates_round_trip_every_column() {
         let dir = tempfile::tempdir().unwrap();
