@@ -6,30 +6,8 @@ use std::path::{Path, PathBuf};
 
 use serde::Deserialize;
 
-use crate::candidate::{Candidate, TriageFeatures, Verdict};
+use crate::candidate::Candidate;
 use crate::error::{Error, Result};
-
-/// A `candidates.csv` row as the search writes it (features flattened, reasons joined
-/// by "; ").
-#[derive(Debug, Deserialize)]
-struct CsvRow {
-    file: String,
-    t_inf_s: f64,
-    mjd_inf: f64,
-    dm: f64,
-    dm_lo: f64,
-    dm_hi: f64,
-    width_ms: f64,
-    snr: f64,
-    cluster_size: usize,
-    verdict: String,
-    reasons: String,
-    snr_dm0_ratio: f64,
-    dm_curve_misfit: f64,
-    band_fraction: f64,
-    modulation_index: f64,
-    fluence_jy_ms: Option<f64>,
-}
 
 #[derive(Deserialize)]
 #[serde(untagged)]
@@ -59,7 +37,7 @@ pub fn load_candidates(path: &Path) -> Result<Vec<Candidate>> {
         .extension()
         .is_some_and(|e| e.eq_ignore_ascii_case("csv"));
     if is_csv {
-        parse_csv(&path, &text)
+        crate::search::output::parse_csv(&path, &text)
     } else {
         match serde_json::from_str::<JsonCandidates>(&text) {
             Ok(JsonCandidates::Wrapped { candidates } | JsonCandidates::Bare(candidates)) => {
@@ -71,48 +49,6 @@ pub fn load_candidates(path: &Path) -> Result<Vec<Candidate>> {
             )),
         }
     }
-}
-
-fn parse_csv(path: &Path, text: &str) -> Result<Vec<Candidate>> {
-    let mut reader = csv::Reader::from_reader(text.as_bytes());
-    reader
-        .deserialize::<CsvRow>()
-        .enumerate()
-        .map(|(i, row)| {
-            let r = row.map_err(|e| Error::bad_input(path, format!("row {}: {e}", i + 1)))?;
-            let verdict = Verdict::parse(&r.verdict).ok_or_else(|| {
-                Error::bad_input(
-                    path,
-                    format!("row {}: unknown verdict {:?}", i + 1, r.verdict),
-                )
-            })?;
-            Ok(Candidate {
-                file: r.file,
-                t_inf_s: r.t_inf_s,
-                mjd_inf: r.mjd_inf,
-                dm: r.dm,
-                dm_lo: r.dm_lo,
-                dm_hi: r.dm_hi,
-                width_ms: r.width_ms,
-                snr: r.snr,
-                cluster_size: r.cluster_size,
-                verdict,
-                reasons: r
-                    .reasons
-                    .split("; ")
-                    .filter(|s| !s.is_empty())
-                    .map(str::to_string)
-                    .collect(),
-                features: TriageFeatures {
-                    snr_dm0_ratio: r.snr_dm0_ratio,
-                    dm_curve_misfit: r.dm_curve_misfit,
-                    band_fraction: r.band_fraction,
-                    modulation_index: r.modulation_index,
-                },
-                fluence_jy_ms: r.fluence_jy_ms,
-            })
-        })
-        .collect()
 }
 
 /// Groups candidates by observation and finds each observation's file: the entry of
@@ -160,6 +96,8 @@ fn resolve(file: &str, search_dir: Option<&Path>, obs_files: &[PathBuf]) -> Resu
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::candidate::Verdict;
+    use crate::search::output::parse_csv;
 
     const CSV: &str = "file,t_inf_s,mjd_inf,dm,dm_lo,dm_hi,width_ms,snr,cluster_size,verdict,reasons,\
 snr_dm0_ratio,dm_curve_misfit,band_fraction,modulation_index,fluence_jy_ms\n\

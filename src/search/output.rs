@@ -3,10 +3,10 @@
 
 use std::path::Path;
 
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 use super::{FileResult, SearchConfig};
-use crate::candidate::Candidate;
+use crate::candidate::{Candidate, TriageFeatures, Verdict};
 use crate::error::{Error, Result};
 
 /// The cells of one CSV row in [`CSV_COLUMNS`] order: a [`Candidate`] with its
@@ -125,6 +125,74 @@ pub fn write_json(path: &Path, results: &[FileResult], config: &SearchConfig) ->
     };
     let text = serde_json::to_string_pretty(&out).expect("search results always serialise");
     std::fs::write(path, text).map_err(|e| Error::io(path, e))
+}
+
+/// A `candidates.csv` row as the search writes it (features flattened, reasons joined
+/// by "; ").
+#[derive(Debug, Deserialize)]
+struct CsvRow {
+    file: String,
+    t_inf_s: f64,
+    mjd_inf: f64,
+    dm: f64,
+    dm_lo: f64,
+    dm_hi: f64,
+    width_ms: f64,
+    snr: f64,
+    cluster_size: usize,
+    verdict: String,
+    reasons: String,
+    snr_dm0_ratio: f64,
+    dm_curve_misfit: f64,
+    band_fraction: f64,
+    modulation_index: f64,
+    fluence_jy_ms: Option<f64>,
+}
+
+/// Reads `candidates.csv` text back into candidates (the inverse of [`write_csv`]).
+///
+/// # Errors
+/// [`Error::BadInput`] naming `path` and the row at fault.
+pub fn parse_csv(path: &Path, text: &str) -> Result<Vec<Candidate>> {
+    let mut reader = csv::Reader::from_reader(text.as_bytes());
+    reader
+        .deserialize::<CsvRow>()
+        .enumerate()
+        .map(|(i, row)| {
+            let r = row.map_err(|e| Error::bad_input(path, format!("row {}: {e}", i + 1)))?;
+            let verdict = Verdict::parse(&r.verdict).ok_or_else(|| {
+                Error::bad_input(
+                    path,
+                    format!("row {}: unknown verdict {:?}", i + 1, r.verdict),
+                )
+            })?;
+            Ok(Candidate {
+                file: r.file,
+                t_inf_s: r.t_inf_s,
+                mjd_inf: r.mjd_inf,
+                dm: r.dm,
+                dm_lo: r.dm_lo,
+                dm_hi: r.dm_hi,
+                width_ms: r.width_ms,
+                snr: r.snr,
+                cluster_size: r.cluster_size,
+                verdict,
+                reasons: r
+                    .reasons
+                    .split("; ")
+                    .filter(|s| !s.is_empty())
+                    .map(str::to_string)
+                    .collect(),
+                features: TriageFeatures {
+                    snr_dm0_ratio: r.snr_dm0_ratio,
+                    dm_curve_misfit: r.dm_curve_misfit,
+                    band_fraction: r.band_fraction,
+                    modulation_index: r.modulation_index,
+                },
+                fluence_jy_ms: r.fluence_jy_ms,
+            })
+        })
+        .collect()
 }
 
 #[cfg(test)]
