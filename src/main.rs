@@ -10,6 +10,8 @@ fn main() -> ExitCode {
     let args = cli::Cli::parse();
     match cli::run(args) {
         Ok(()) => ExitCode::SUCCESS,
+        // A reader that stopped early (`| head`) is not an error of ours.
+        Err(e) if is_broken_pipe(&e) => ExitCode::SUCCESS,
         Err(e) => {
             // One line: the outermost context, then each cause not already quoted
             // by the one before (library errors embed their I/O cause).
@@ -23,4 +25,11 @@ fn main() -> ExitCode {
             ExitCode::FAILURE
         }
     }
+}
+
+fn is_broken_pipe(e: &anyhow::Error) -> bool {
+    e.chain().any(|c| {
+        c.downcast_ref::<std::io::Error>()
+            .is_some_and(|io| io.kind() == std::io::ErrorKind::BrokenPipe)
+    })
 }

@@ -48,7 +48,14 @@ pub fn barycentre_csv(bary: &Barycentrer, input: &Path, output: &Path) -> Result
     }
     let out_file = std::fs::File::create(output).map_err(|e| Error::io(output, e))?;
     let mut writer = csv::Writer::from_writer(out_file);
-    let write_err = |e: csv::Error| Error::io(output, std::io::Error::other(e));
+    // Keep the I/O kind (a closed pipe must stay recognisable as one).
+    let write_err = |e: csv::Error| {
+        let io = match e.into_kind() {
+            csv::ErrorKind::Io(io) => io,
+            other => std::io::Error::other(format!("{other:?}")),
+        };
+        Error::io(output, io)
+    };
     let mut out_headers = headers.clone();
     out_headers.push_field("mjd_tdb");
     out_headers.push_field("correction_s");

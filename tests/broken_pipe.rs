@@ -1,0 +1,36 @@
+//! A reader that stops early (`burstbook ... | head`) must not turn into an error
+//! message or a panic (common practice for command-line tools).
+
+use std::io::{BufRead, BufReader};
+use std::process::{Command, Stdio};
+
+#[test]
+fn closing_stdout_early_is_quiet_and_successful() {
+    // Far more output than a pipe buffers, so the writer really meets a closed pipe.
+    let dir = tempfile::tempdir().unwrap();
+    let input = dir.path().join("times.csv");
+    let rows: String = (0..40_000)
+        .map(|i| format!("{}\n", 60000.0 + f64::from(i) * 1e-3))
+        .collect();
+    std::fs::write(&input, format!("mjd_utc\n{rows}")).unwrap();
+    let mut child = Command::new(env!("CARGO_BIN_EXE_burstbook"))
+        .args(["barycentre", "--ra-deg", "10", "--dec-deg", "20"])
+        .args(["--site", "10,45,100", "--out", "/dev/stdout"])
+        .arg("--in")
+        .arg(&input)
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("burstbook runs");
+    let mut first = String::new();
+    BufReader::new(child.stdout.take().expect("stdout piped"))
+        .read_line(&mut first)
+        .expect("one line");
+    assert!(!first.is_empty());
+    // The reading end is dropped here, as `head -1` would.
+    let out = child.wait_with_output().expect("burstbook exits");
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(out.status.success(), "exit {:?}: {stderr}", out.status);
+    assert!(!stderr.contains("panicked"), "{stderr}");
+    assert!(!stderr.contains("error"), "{stderr}");
+}
