@@ -119,12 +119,36 @@ impl Catalogue {
         source: Option<&str>,
         tol: AssignTolerance,
     ) -> Result<Promotion> {
-        let chosen = match source {
-            Some(name) => self.source(name)?,
-            None => self.match_source(id, tol)?,
-        };
+        let mut done = self.promote_all(&[id], source, tol)?;
+        Ok(done.pop().expect("one promotion per id"))
+    }
+
+    /// Promotes every candidate in `ids`, all or nothing: each one's source is settled
+    /// first, so one candidate without a matching source leaves the catalogue as it was.
+    ///
+    /// # Errors
+    /// As [`Catalogue::promote`], for the first candidate at fault.
+    pub fn promote_all(
+        &mut self,
+        ids: &[i64],
+        source: Option<&str>,
+        tol: AssignTolerance,
+    ) -> Result<Vec<Promotion>> {
+        let chosen = ids
+            .iter()
+            .map(|&id| match source {
+                Some(name) => self.source(name),
+                None => self.match_source(id, tol),
+            })
+            .collect::<Result<Vec<_>>>()?;
         let path = self.path().to_path_buf();
-        self.write(|tx| promote_in(tx, id, &chosen).map_err(|e| super::sql_error(&path, e)))
+        self.write(|tx| {
+            ids.iter()
+                .zip(&chosen)
+                .map(|(&id, src)| promote_in(tx, id, src))
+                .collect::<rusqlite::Result<Vec<_>>>()
+                .map_err(|e| super::sql_error(&path, e))
+        })
     }
 
     /// The unique source within `tol` of candidate `id`.
@@ -152,14 +176,14 @@ impl Catalogue {
             0 => Err(catalogue_error(
                 self.path(),
                 format!(
-                    "no source with a reference DM lies within {} deg and {} pc cm^-3 of candidate {id} (DM {dm:.2}); name one with --source",
+                    "no source with a reference DM lies within {} deg and {} pc cm^-3 of candidate {id} (DM {dm:.2}); name one with --to",
                     tol.radius_deg, tol.dm
                 ),
             )),
             _ => Err(catalogue_error(
                 self.path(),
                 format!(
-                    "candidate {id} matches several sources ({}); name one with --source",
+                    "candidate {id} matches several sources ({}); name one with --to",
                     near.iter()
                         .map(|s| s.name.as_str())
                         .collect::<Vec<_>>()
@@ -281,5 +305,12 @@ mod tests {
             .unwrap();
         let err = cat.promote(ids[1], None, AssignTolerance { dm: 1e4, ..TOL });
         assert!(err.unwrap_err().to_string().contains("several sources"));
+        // A batch with one candidate that cannot be promoted promotes none of them,
+        // though the other alone goes in.
+        let before = cat.bursts(&BurstFilter::default()).unwrap().len();
+        let err = cat.promote_all(&[ids[2], i64::MAX], Some("FAR"), TOL);
+        assert!(err.is_err(), "an unknown candidate fails the batch");
+        assert_eq!(cat.bursts(&BurstFilter::default()).unwrap().len(), before);
+        assert!(cat.promote_all(&[ids[2]], Some("FAR"), TOL).unwrap()[0].new);
     }
 }

@@ -21,8 +21,8 @@ use clap::Subcommand;
 Examples:
   burstbook book source add FIELD-7 --ra 123.25 --dec -12.5 --dm 351
   burstbook book candidates --source FIELD-7 --dm-min 300 --dm-max 400 --snr-min 8
-  burstbook book label 12 15 --label burst --comment 'clear sweep'
-  burstbook book promote --label-is burst
+  burstbook book label 12 15 --label astrophysical --comment 'clear sweep'
+  burstbook book promote --label-is astrophysical
   burstbook book summary FIELD-7 --snr-min 8
   burstbook book voevent 3 --out burst-3.xml")]
 pub struct Args {

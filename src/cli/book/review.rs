@@ -25,7 +25,7 @@ fn select(cat: &Catalogue, ids: &[i64], filter: &FilterArgs) -> anyhow::Result<V
 #[derive(clap::Args, Debug)]
 #[command(after_help = "\
 Examples:
-  burstbook book label 12 15 --label burst --comment 'clear sweep'
+  burstbook book label 12 15 --label astrophysical --comment 'clear sweep'
   burstbook book label --source FIELD-7 --dm-max 5 --label rfi --reviewer ana")]
 pub struct LabelArgs {
     /// Candidate ids (combined with the filter flags when both are given).
@@ -100,7 +100,7 @@ Without --to, each candidate goes to the one source whose position lies within
 
 Examples:
   burstbook book promote 12 --to FIELD-7
-  burstbook book promote --label-is burst --radius-deg 0.3 --dm-tol 3")]
+  burstbook book promote --label-is astrophysical --radius-deg 0.3 --dm-tol 3")]
 pub struct PromoteArgs {
     /// Candidate ids (combined with the filter flags when both are given).
     ids: Vec<i64>,
@@ -123,8 +123,7 @@ pub fn promote(cat: &mut Catalogue, a: PromoteArgs) -> anyhow::Result<()> {
         radius_deg: a.radius_deg,
         dm: a.dm_tol,
     };
-    for id in ids {
-        let p = cat.promote(id, a.to.as_deref(), tol)?;
+    for (id, p) in ids.iter().zip(cat.promote_all(&ids, a.to.as_deref(), tol)?) {
         let what = if p.new { "is now" } else { "already was" };
         println!("candidate {id} {what} burst {} of {}", p.burst_id, p.source);
     }
