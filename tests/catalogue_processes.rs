@@ -1,6 +1,9 @@
 //! The catalogue under real processes: killed mid-write, several writers at once,
 //! and every kind of bad catalogue file through the `burstbook` binary.
 
+mod cli_common;
+use cli_common::assert_one_line_failure;
+
 use std::io::{BufRead, BufReader};
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output, Stdio};
@@ -162,15 +165,6 @@ fn small_catalogue(dir: &Path) -> PathBuf {
     db
 }
 
-/// Asserts a failed run: non-zero exit and exactly one stderr line containing `needle`.
-fn assert_one_line_failure(out: &Output, needle: &str) {
-    let err = String::from_utf8_lossy(&out.stderr);
-    assert!(!out.status.success(), "should fail: {err}");
-    assert_eq!(err.trim_end().lines().count(), 1, "not one line: {err}");
-    assert!(err.starts_with("burstbook: error: "), "{err}");
-    assert!(err.contains(needle), "expected {needle:?} in {err}");
-}
-
 #[test]
 fn a_file_that_is_not_sqlite_is_refused_untouched() {
     let dir = tempfile::tempdir().unwrap();
@@ -178,7 +172,7 @@ fn a_file_that_is_not_sqlite_is_refused_untouched() {
     std::fs::write(&db, b"observing log, 2026-11-30: clouds all night\n").unwrap();
     let before = snapshot(&db);
     let out = book(&db, &["source", "add", "X", "--ra", "1", "--dec", "2"]);
-    assert_one_line_failure(&out, "is not an SQLite database");
+    assert_one_line_failure(&out, &["is not an SQLite database"]);
     assert!(String::from_utf8_lossy(&out.stderr).contains("notes.sqlite"));
     assert_eq!(snapshot(&db), before);
 }
@@ -194,7 +188,7 @@ fn a_corrupt_catalogue_is_refused_untouched() {
     }
     std::fs::write(&db, &bytes).unwrap();
     let out = book(&db, &["candidates"]);
-    assert_one_line_failure(&out, "small.sqlite");
+    assert_one_line_failure(&out, &["small.sqlite"]);
     let err = String::from_utf8_lossy(&out.stderr);
     assert!(
         err.contains("corrupt") || err.contains("not an SQLite database"),
@@ -213,7 +207,7 @@ fn a_catalogue_from_a_newer_burstbook_is_refused_untouched() {
     }
     let before = snapshot(&db);
     let out = book(&db, &["source", "add", "X", "--ra", "1", "--dec", "2"]);
-    assert_one_line_failure(&out, "schema version 99, newer than this burstbook");
+    assert_one_line_failure(&out, &["schema version 99, newer than this burstbook"]);
     assert_eq!(snapshot(&db), before);
 }
 
@@ -230,7 +224,7 @@ fn another_programs_database_is_refused_untouched() {
     }
     let before = snapshot(&db);
     let out = book(&db, &["candidates"]);
-    assert_one_line_failure(&out, "not a burstbook catalogue");
+    assert_one_line_failure(&out, &["not a burstbook catalogue"]);
     assert_eq!(snapshot(&db), before);
 }
 
@@ -255,7 +249,7 @@ fn a_locked_catalogue_fails_writes_cleanly_and_still_serves_reads() {
             "2",
         ],
     );
-    assert_one_line_failure(&out, "is locked by another process");
+    assert_one_line_failure(&out, &["is locked by another process"]);
     assert!(
         t.elapsed() < Duration::from_secs(8),
         "waited {:?}",
@@ -284,7 +278,7 @@ fn a_missing_directory_gives_one_clear_line() {
         Path::new("/nonexistent-burstbook-dir/c.sqlite"),
         &["candidates"],
     );
-    assert_one_line_failure(&out, "cannot be opened or created");
+    assert_one_line_failure(&out, &["cannot be opened or created"]);
 }
 
 /// Read-only location. Root ignores file permissions, so when the tests run as
@@ -334,7 +328,7 @@ fn a_read_only_location_is_refused_untouched() {
             return;
         }
     };
-    assert_one_line_failure(&out, "small.sqlite");
+    assert_one_line_failure(&out, &["small.sqlite"]);
     let err = String::from_utf8_lossy(&out.stderr);
     assert!(
         err.contains("read-only") || err.contains("cannot be opened"),

@@ -1,8 +1,10 @@
 //! `burstbook search` end to end: simulated files in both containers, the CSV/JSON
 //! outputs, config-file overrides, and clean failures on bad input.
 
+mod cli_common;
+use cli_common::{assert_one_line_failure, burstbook};
+
 use std::path::Path;
-use std::process::Command;
 
 use burstbook::obs::{self, Container};
 use burstbook::search::output;
@@ -49,13 +51,6 @@ fn simulate(path: &Path, container: Container, seed: u64) {
     sink.finish().unwrap();
 }
 
-fn run(args: &[&str]) -> std::process::Output {
-    Command::new(env!("CARGO_BIN_EXE_burstbook"))
-        .args(args)
-        .output()
-        .unwrap()
-}
-
 #[test]
 fn finds_the_burst_in_both_containers_and_writes_csv_and_json() {
     let dir = tempfile::tempdir().unwrap();
@@ -71,7 +66,7 @@ fn finds_the_burst_in_both_containers_and_writes_csv_and_json() {
     )
     .unwrap();
     let out = dir.path().join("out");
-    let o = run(&[
+    let o = burstbook(&[
         "search",
         native.to_str().unwrap(),
         fits.to_str().unwrap(),
@@ -131,20 +126,17 @@ fn bad_input_fails_with_one_line_naming_the_file() {
     let dir = tempfile::tempdir().unwrap();
     let missing = dir.path().join("nothing.json");
     let out = dir.path().join("out");
-    let o = run(&[
+    let o = burstbook(&[
         "search",
         missing.to_str().unwrap(),
         "--out",
         out.to_str().unwrap(),
     ]);
-    assert!(!o.status.success());
-    let err = String::from_utf8_lossy(&o.stderr);
-    assert_eq!(err.trim().lines().count(), 1, "{err}");
-    assert!(err.contains("nothing.json"), "{err}");
+    assert_one_line_failure(&o, &["nothing.json"]);
 
     let junk = dir.path().join("junk.fits");
     std::fs::write(&junk, b"SIMPLE  = T  this is not a FITS file").unwrap();
-    let o = run(&[
+    let o = burstbook(&[
         "search",
         junk.to_str().unwrap(),
         "--out",
@@ -153,7 +145,7 @@ fn bad_input_fails_with_one_line_naming_the_file() {
     assert!(!o.status.success());
     assert!(String::from_utf8_lossy(&o.stderr).contains("junk.fits"));
 
-    let o = run(&[
+    let o = burstbook(&[
         "search",
         junk.to_str().unwrap(),
         "--out",

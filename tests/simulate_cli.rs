@@ -1,8 +1,10 @@
 //! `burstbook simulate` end to end: files written by the command read back equal to
 //! the in-memory generator, in both containers, and bad input fails cleanly.
 
+mod cli_common;
+use cli_common::{assert_one_line_failure, burstbook};
+
 use std::path::Path;
-use std::process::Command;
 
 use burstbook::obs;
 use burstbook::simulate::{Generator, Scenario, Simulation};
@@ -57,13 +59,6 @@ fn read_all(path: &Path) -> Vec<f32> {
     out
 }
 
-fn run(args: &[&str]) -> std::process::Output {
-    Command::new(env!("CARGO_BIN_EXE_burstbook"))
-        .args(args)
-        .output()
-        .unwrap()
-}
-
 #[test]
 fn files_read_back_equal_to_the_generator() {
     let dir = tempfile::tempdir().unwrap();
@@ -77,7 +72,7 @@ fn files_read_back_equal_to_the_generator() {
         let toml = dir.path().join(format!("{name}.toml"));
         std::fs::write(&toml, &text).unwrap();
         let out = dir.path().join(name);
-        let result = run(&[
+        let result = burstbook(&[
             "simulate",
             toml.to_str().unwrap(),
             "--out",
@@ -134,7 +129,7 @@ fn seed_flag_overrides_the_scenario_seed() {
     let mut samples = Vec::new();
     for (name, seed) in [("a.json", "5"), ("b.json", "5"), ("c.json", "6")] {
         let out = dir.path().join(name);
-        let r = run(&[
+        let r = burstbook(&[
             "simulate",
             toml.to_str().unwrap(),
             "--out",
@@ -161,20 +156,14 @@ fn bad_scenario_fails_with_one_line_naming_the_file() {
     )
     .unwrap();
     let out = dir.path().join("x.json");
-    let r = run(&[
+    let r = burstbook(&[
         "simulate",
         toml.to_str().unwrap(),
         "--out",
         out.to_str().unwrap(),
     ]);
-    assert!(!r.status.success());
-    let err = String::from_utf8_lossy(&r.stderr);
-    assert_eq!(err.trim().lines().count(), 1, "{err}");
-    assert!(
-        err.contains("bad.toml") && err.contains("dispersion"),
-        "{err}"
-    );
-    let missing = run(&[
+    assert_one_line_failure(&r, &["bad.toml", "dispersion"]);
+    let missing = burstbook(&[
         "simulate",
         "/nonexistent/none.toml",
         "--out",

@@ -1,0 +1,26 @@
+//! Helpers shared by the end-to-end tests: run the real binary and check how it fails.
+// Each test crate includes this module and uses its own subset of it.
+#![allow(dead_code)]
+
+use std::ffi::OsStr;
+use std::process::{Command, Output};
+
+/// Runs the built `burstbook` with `args` and waits for it.
+pub fn burstbook<S: AsRef<OsStr>>(args: &[S]) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_burstbook"))
+        .args(args)
+        .output()
+        .expect("the burstbook binary runs")
+}
+
+/// Asserts a failed run: non-zero exit and exactly one stderr line, carrying the
+/// binary's error prefix and every one of `needles` (the file at fault, the problem).
+pub fn assert_one_line_failure(out: &Output, needles: &[&str]) {
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(!out.status.success(), "should fail: {err}");
+    assert_eq!(err.trim_end().lines().count(), 1, "not one line: {err}");
+    assert!(err.starts_with("burstbook: error: "), "{err}");
+    for needle in needles {
+        assert!(err.contains(needle), "expected {needle:?} in {err}");
+    }
+}
