@@ -26,7 +26,7 @@ use super::SearchConfig;
 use super::boxcar::{self, Scratch};
 use super::features::{self, BlockData};
 use super::fluence::fluence_jy_ms;
-use super::normalise::{normalise_channels, normalise_series};
+use super::normalise::{SERIES_SIGMA_VALUES, normalise_channels, normalise_series};
 use super::trials::{self, TrialCount};
 use crate::candidate::Candidate;
 use crate::clean::{self, impulse, user_mask::static_mask, zero_dm};
@@ -388,7 +388,7 @@ impl<'a> Searcher<'a> {
                 .map_init(
                     || (Scratch::default(), Vec::new(), Vec::new()),
                     |(scratch, work, peaks), (d, row)| {
-                        normalise_series(row, baseline, work);
+                        normalise_series(row, baseline, SERIES_SIGMA_VALUES, work);
                         peaks.clear();
                         boxcar::search_series(row, widths, threshold, scratch, peaks);
                         peaks
@@ -418,7 +418,12 @@ impl<'a> Searcher<'a> {
                 *s += v;
             }
         }
-        normalise_series(&mut dm0, self.layout.baseline_len, &mut Vec::new());
+        normalise_series(
+            &mut dm0,
+            self.layout.baseline_len,
+            SERIES_SIGMA_VALUES,
+            &mut Vec::new(),
+        );
         dm0
     }
 
