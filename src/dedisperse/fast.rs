@@ -37,6 +37,11 @@ pub struct FastDedisperser {
     stage1: Vec<f32>,
     /// The block at reduced time resolution, `[channel, time]`, halved step by step.
     coarse: Vec<f32>,
+    /// Where the next halving is written before it replaces `coarse`.
+    halved: Vec<f32>,
+    /// Output buffers handed back by [`FastDedisperser::recycle`], one per step:
+    /// reusing them spares the page faults of fresh allocations in every block.
+    spare: Vec<Vec<f32>>,
 }
 
 /// Per-worker stage-1 scratch: one tile of a sub-band's channels and tree levels.
@@ -68,6 +73,8 @@ impl FastDedisperser {
             steps,
             stage1: Vec::new(),
             coarse: Vec::new(),
+            halved: Vec::new(),
+            spare: Vec::new(),
         }
     }
 
@@ -97,7 +104,9 @@ impl FastDedisperser {
                 coarse_ds = 1;
             }
             while coarse_ds < kernel.tree_ds {
-                halve(input, n_time, coarse_ds, &mut self.coarse, n_chan);
+                let src = if coarse_ds == 1 { input } else { &self.coarse };
+                halve(src, n_time / coarse_ds, &mut self.halved, n_chan);
+                std::mem::swap(&mut self.coarse, &mut self.halved);
                 coarse_ds *= 2;
             }
             let (rows, row_len): (&[f32], usize) = match coarse_ds {
@@ -105,7 +114,13 @@ impl FastDedisperser {
                 ds => (&self.coarse, n_time / ds),
             };
             let n_out = valid / step.downsample;
-            let mut data = vec![0.0f32; step.dms.len() * n_out];
+            let mut data = self
+                .spare
+                .get_mut(out.len())
+                .map(std::mem::take)
+                .unwrap_or_default();
+            data.clear();
+            data.resize(step.dms.len() * n_out, 0.0);
             if n_chan > 0 && n_out > 0 {
                 let chunk = chunk_len(kernel.max_path).div_ceil(kernel.per_out);
                 for t0 in (0..n_out).step_by(chunk) {
@@ -130,6 +145,14 @@ impl FastDedisperser {
     }
 }
 
+impl FastDedisperser {
+    /// Hands back the output of [`FastDedisperser::dedisperse`] once it has been
+    /// used, so that the next block reuses its memory.
+    pub fn recycle(&mut self, outs: Vec<Dedispersed>) {
+        self.spare = outs.into_iter().map(|o| o.data).collect();
+    }
+}
+
 /// Tree samples per chunk for a step whose longest path is `max_path` tree samples.
 pub(crate) fn chunk_len(max_path: usize) -> usize {
     (CHUNK_PER_PATH * max_path).max(MIN_CHUNK)
@@ -143,25 +166,15 @@ struct Source<'a> {
     t0: usize,
 }
 
-/// Halves the time resolution of the block held at `ds` input samples per sample:
-/// from `input` when `ds == 1`, else in place in `coarse` (row `c` at its new
-/// position never overlaps the unread rows after it).
-fn halve(input: &[f32], n_time: usize, ds: usize, coarse: &mut Vec<f32>, n_chan: usize) {
-    let new_len = n_time / (2 * ds);
-    if ds == 1 {
-        grow(coarse, n_chan * new_len);
-        coarse[..n_chan * new_len]
-            .par_chunks_mut(new_len.max(1))
-            .zip(input.par_chunks(n_time.max(1)))
-            .for_each(|(dst, src)| pair_sums(dst, src));
-        return;
-    }
-    let old_len = n_time / ds;
-    for c in 0..n_chan {
-        for j in 0..new_len {
-            coarse[c * new_len + j] = coarse[c * old_len + 2 * j] + coarse[c * old_len + 2 * j + 1];
-        }
-    }
+/// Halves the time resolution of `src` (`[channel, time]`, `row_len` samples per
+/// channel) into `dst`, in parallel over channels; an odd last sample is dropped.
+fn halve(src: &[f32], row_len: usize, dst: &mut Vec<f32>, n_chan: usize) {
+    let new_len = row_len / 2;
+    grow(dst, n_chan * new_len);
+    dst[..n_chan * new_len]
+        .par_chunks_mut(new_len.max(1))
+        .zip(src.par_chunks(row_len.max(1)))
+        .for_each(|(dst, src)| pair_sums(dst, src));
 }
 
 /// `dst[j] = src[2j] + src[2j + 1]`.

@@ -3,8 +3,9 @@
 //!
 //! S/N(t, w) = (Σ_{i=t}^{t+w−1} xᵢ − m_w) / σ_w, where m_w and σ_w are the mean and
 //! standard deviation of the boxcar sums of width w after discarding those beyond 4σ
-//! of the median (σ from 1.4826 × MAD), corrected for the clipping (detection notes
-//! §4; Keane & Petroff 2015, MNRAS 447, 2852, on why the normalisation must be
+//! of the mean (one pass started from the next narrower width's result, see
+//! [`noise_chain`]), and corrected for the clipping (detection notes §4;
+//! Keane & Petroff 2015, MNRAS 447, 2852, on why the normalisation must be
 //! measured). They are measured on at most [`NOISE_SUMS`] sums at evenly spaced
 //! starts: σ_w to about 1/√(2·min(4096, n/w)), as precise as using every sum for the
 //! wide boxcars whose sums overlap anyway, and 1.1 % for the narrow ones.
@@ -16,9 +17,12 @@
 //! At one to four samples the ladder is integer-limited (1, 2, 3, 4 ...), where sample
 //! phase dominates the loss anyway.
 //!
-//! The scan first marks runs of [`SCAN_CHUNK`] starts holding any sum above the
-//! threshold level, in a loop without branches that vectorises; only marked runs are
-//! visited one start at a time. Tests compare it with direct window sums.
+//! The scan works in tiles of starts. It first marks runs of [`SCAN_CHUNK`] starts
+//! holding any sum above the threshold level, in f32 on the tile's prefix sums taken
+//! relative to its first (so they stay small and precise), in a loop without
+//! branches that vectorises, with a margin that keeps every sum the exact test would
+//! pass; only marked runs are then tested one start at a time in f64. Tests compare
+//! it with direct window sums.
 
 use crate::robust::clipped_mean_sigma;
 
@@ -83,16 +87,46 @@ pub const MIN_INDEPENDENT_SUMS: usize = 16;
 /// Most boxcar sums a width's noise is measured on.
 pub const NOISE_SUMS: usize = 4096;
 
-/// Most of those sums the median and MAD (which only set the clipping limits) use.
-const MEDIAN_SUMS: usize = 512;
-
 /// Starts per run of the vectorised threshold test.
 pub const SCAN_CHUNK: usize = 32;
 
-/// Robust mean and σ of the width-`w` boxcar sums over the series whose prefix sums
-/// are `prefix`: clipped moments (4σ) of up to [`NOISE_SUMS`] evenly spaced sums.
-/// `None` when the series is too short for width `w` or has no spread.
-pub fn noise_of(prefix: &[f64], w: usize, scratch: &mut Scratch) -> Option<(f64, f64)> {
+/// Robust mean and σ of the boxcar sums of each width in `chain` (ascending) over a
+/// series of unit robust σ and zero baseline whose prefix sums are `prefix`. Each is
+/// one σ-clipped (4σ) pass over up to [`NOISE_SUMS`] evenly spaced sums, started
+/// from the previous width's result scaled as white noise would scale, (m·w/w′,
+/// σ·√(w/w′)) — for the first width from (0, √w). Each start is thus a robust
+/// estimate of the noise core within a few per cent, and one pass measures the core
+/// as a clipped pass from the median and MAD would, without the sorting (iterating to
+/// a fixed point instead would let many pulses widen σ round by round). `None` from
+/// the first width the series is too short for or has no spread.
+pub fn noise_chain(
+    prefix: &[f64],
+    chain: &[usize],
+    scratch: &mut Scratch,
+) -> Vec<Option<(f64, f64)>> {
+    let mut out = Vec::with_capacity(chain.len());
+    let mut previous: Option<(usize, f64, f64)> = None;
+    for &w in chain {
+        let guess = match previous {
+            Some((pw, m, s)) => (m * w as f64 / pw as f64, s * (w as f64 / pw as f64).sqrt()),
+            None if out.is_empty() => (0.0, (w as f64).sqrt()),
+            None => break,
+        };
+        let noise = sums_noise(prefix, w, guess, scratch);
+        previous = noise.map(|(m, s)| (w, m, s));
+        out.push(noise);
+    }
+    out.resize(chain.len(), None);
+    out
+}
+
+/// One width's noise for [`noise_chain`].
+fn sums_noise(
+    prefix: &[f64],
+    w: usize,
+    guess: (f64, f64),
+    scratch: &mut Scratch,
+) -> Option<(f64, f64)> {
     let n_sums = (prefix.len() - 1).checked_sub(w)? + 1;
     if n_sums < MIN_INDEPENDENT_SUMS * w {
         return None;
@@ -104,8 +138,20 @@ pub fn noise_of(prefix: &[f64], w: usize, scratch: &mut Scratch) -> Option<(f64,
             .step_by(stride)
             .map(|t| (prefix[t + w] - prefix[t]) as f32),
     );
-    let (mean, sigma) = clipped_mean_sigma(&scratch.sums, 4.0, MEDIAN_SUMS, &mut scratch.work);
+    let guess = (guess.0 as f32, guess.1 as f32);
+    let (mean, sigma) = clipped_mean_sigma(&scratch.sums, guess, 4.0, 1);
     (sigma > 0.0).then_some((f64::from(mean), f64::from(sigma)))
+}
+
+/// The chain of widths whose noise [`best_snr_in`] measures on the way to `w`: the
+/// √2 ladder below `w`, then `w` — the default search ladder, so that the S/N it
+/// reports at a searched width is the search's own.
+fn chain_to(w: usize) -> Vec<usize> {
+    let mut chain = width_ladder(w, std::f64::consts::SQRT_2);
+    if chain.last() != Some(&w) {
+        chain.push(w);
+    }
+    chain
 }
 
 /// One above-threshold peak of one series: the best start in a run of consecutive
@@ -125,37 +171,70 @@ pub struct Peak {
 pub struct Scratch {
     prefix: Vec<f64>,
     sums: Vec<f32>,
-    work: Vec<f32>,
-    marks: Vec<bool>,
+    /// One tile of prefix sums relative to the tile's first, in f32.
+    tile: Vec<f32>,
+    /// Per width, the marks of [`mark_chunks`].
+    marks: Vec<Vec<bool>>,
 }
 
-/// Appends to `peaks` every run of S/N ≥ `threshold` for every width in `widths`.
+/// Starts per tile of the threshold test (a multiple of [`SCAN_CHUNK`]): with the
+/// widest boxcar its prefix sums stay in L1 cache.
+const TILE: usize = 128 * SCAN_CHUNK;
+
+/// Appends to `peaks` every run of S/N ≥ `threshold` among the boxcars starting in
+/// `starts`, for every width in `widths`; the noise of each width is measured over
+/// the whole series.
 pub fn search_series(
     series: &[f32],
     widths: &[usize],
     threshold: f32,
+    starts: std::ops::Range<usize>,
     scratch: &mut Scratch,
     peaks: &mut Vec<Peak>,
 ) {
     let mut prefix = std::mem::take(&mut scratch.prefix);
     prefix_sums(series, &mut prefix);
-    for &w in widths {
-        let Some((mean, sigma)) = noise_of(&prefix, w, scratch) else {
-            continue;
-        };
-        let level = mean + f64::from(threshold) * sigma;
-        mark_chunks(&prefix, w, level, &mut scratch.marks);
-        let n_sums = prefix.len() - w;
+    // Per width: (width, mean, σ, level), for the widths the series can measure.
+    let tests: Vec<(usize, f64, f64, f64)> = widths
+        .iter()
+        .zip(noise_chain(&prefix, widths, scratch))
+        .filter_map(|(&w, noise)| {
+            let (mean, sigma) = noise?;
+            Some((w, mean, sigma, mean + f64::from(threshold) * sigma))
+        })
+        .collect();
+    let lo = starts.start;
+    let hi = starts.end.min(prefix.len() - 1);
+    scratch.marks.resize_with(tests.len(), Vec::new);
+    scratch.marks.iter_mut().for_each(Vec::clear);
+    for tile_lo in (lo..hi).step_by(TILE) {
+        let end = (tile_lo + TILE + widths.iter().max().unwrap_or(&0)).min(prefix.len());
+        let origin = prefix[tile_lo];
+        scratch.tile.clear();
+        scratch
+            .tile
+            .extend(prefix[tile_lo..end].iter().map(|&p| (p - origin) as f32));
+        let tile_starts = TILE.min(hi - tile_lo);
+        let largest = scratch.tile.iter().fold(0.0f32, |m, v| m.max(v.abs()));
+        for (&(w, _, _, level), marks) in tests.iter().zip(&mut scratch.marks) {
+            // Eight roundings of the largest value below the level: the f32 test
+            // never misses a sum that the exact f64 test below passes.
+            let margin = 8.0 * f32::EPSILON * (largest + level.abs() as f32);
+            mark_chunks(&scratch.tile, w, tile_starts, level as f32 - margin, marks);
+        }
+    }
+    for (&(w, mean, sigma, level), marks) in tests.iter().zip(&scratch.marks) {
+        let n_sums = (prefix.len() - w).min(hi);
         let mut best: Option<Peak> = None;
         let mut next_chunk = 0;
-        for (chunk, _) in scratch.marks.iter().enumerate().filter(|(_, m)| **m) {
+        for (chunk, _) in marks.iter().enumerate().filter(|(_, m)| **m) {
             // A run open at the end of the previous chunk ended unless this chunk
             // follows it directly (an unmarked chunk starts below the level).
             if chunk != next_chunk {
                 peaks.extend(best.take());
             }
             next_chunk = chunk + 1;
-            let first = chunk * SCAN_CHUNK;
+            let first = lo + chunk * SCAN_CHUNK;
             for t in first..(first + SCAN_CHUNK).min(n_sums) {
                 let sum = prefix[t + w] - prefix[t];
                 if sum >= level {
@@ -177,57 +256,63 @@ pub fn search_series(
     scratch.prefix = prefix;
 }
 
-/// Sets `marks[k]` when any width-`w` sum starting in `k·SCAN_CHUNK..(k+1)·SCAN_CHUNK`
-/// reaches `level`; compiled for AVX2 when the CPU has it.
-fn mark_chunks(prefix: &[f64], w: usize, level: f64, marks: &mut Vec<bool>) {
+/// Appends to `marks` one flag per run of [`SCAN_CHUNK`] starts among the first
+/// `n_starts` of `tile` (prefix sums relative to the tile's first, in f32): set when
+/// any width-`w` sum there reaches `level`; compiled for AVX2 when the CPU has it.
+fn mark_chunks(tile: &[f32], w: usize, n_starts: usize, level: f32, marks: &mut Vec<bool>) {
     #[cfg(target_arch = "x86_64")]
     if std::arch::is_x86_feature_detected!("avx2") {
         // SAFETY: `mark_chunks_avx2` only requires the AVX2 instruction set, which was
         // detected at run time just above; it is otherwise safe code.
-        return unsafe { mark_chunks_avx2(prefix, w, level, marks) };
+        return unsafe { mark_chunks_avx2(tile, w, n_starts, level, marks) };
     }
-    mark_chunks_portable(prefix, w, level, marks)
+    mark_chunks_portable(tile, w, n_starts, level, marks)
 }
 
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "avx2")]
-fn mark_chunks_avx2(prefix: &[f64], w: usize, level: f64, marks: &mut Vec<bool>) {
-    mark_chunks_portable(prefix, w, level, marks)
+fn mark_chunks_avx2(tile: &[f32], w: usize, n_starts: usize, level: f32, marks: &mut Vec<bool>) {
+    mark_chunks_portable(tile, w, n_starts, level, marks)
 }
 
 /// The portable body of [`mark_chunks`]: a branch-free count of the starts at or
 /// above the level in each fixed-size run (plain indexing, so that everything
 /// inlines into the AVX2 build).
 #[inline(always)]
-fn mark_chunks_portable(prefix: &[f64], w: usize, level: f64, marks: &mut Vec<bool>) {
-    let n_sums = prefix.len() - w;
-    marks.clear();
-    marks.resize(n_sums.div_ceil(SCAN_CHUNK), false);
+fn mark_chunks_portable(
+    tile: &[f32],
+    w: usize,
+    n_starts: usize,
+    level: f32,
+    marks: &mut Vec<bool>,
+) {
+    let n_sums = n_starts.min(tile.len().saturating_sub(w));
     let full = n_sums / SCAN_CHUNK;
-    for (c, mark) in marks.iter_mut().enumerate().take(full) {
+    for c in 0..full {
         let t = c * SCAN_CHUNK;
-        let lo: &[f64; SCAN_CHUNK] = prefix[t..t + SCAN_CHUNK].try_into().expect("run length");
-        let hi: &[f64; SCAN_CHUNK] = prefix[t + w..t + w + SCAN_CHUNK]
+        let lo: &[f32; SCAN_CHUNK] = tile[t..t + SCAN_CHUNK].try_into().expect("run length");
+        let hi: &[f32; SCAN_CHUNK] = tile[t + w..t + w + SCAN_CHUNK]
             .try_into()
             .expect("run length");
         let mut hits = 0u32;
         for i in 0..SCAN_CHUNK {
             hits += u32::from(hi[i] - lo[i] >= level);
         }
-        *mark = hits > 0;
+        marks.push(hits > 0);
     }
-    if let Some(mark) = marks.get_mut(full) {
-        *mark = (full * SCAN_CHUNK..n_sums).any(|t| prefix[t + w] - prefix[t] >= level);
+    if n_sums > full * SCAN_CHUNK {
+        marks.push((full * SCAN_CHUNK..n_sums).any(|t| tile[t + w] - tile[t] >= level));
     }
 }
 
 /// The best S/N at width `w` over starts `lo..=hi` (clamped to the series), with the
-/// noise measured over the whole series as in [`search_series`]. 0 when the series
-/// is too short, has no spread, or the range is empty.
+/// noise measured over the whole series as in [`search_series`] with the default
+/// ladder. 0 when the series is too short, has no spread, or the range is empty.
 pub fn best_snr_in(series: &[f32], w: usize, lo: usize, hi: usize, scratch: &mut Scratch) -> f32 {
     let mut prefix = std::mem::take(&mut scratch.prefix);
     prefix_sums(series, &mut prefix);
-    let snr = match noise_of(&prefix, w, scratch) {
+    let noise = noise_chain(&prefix, &chain_to(w), scratch).pop().flatten();
+    let snr = match noise {
         Some((mean, sigma)) => {
             let hi = hi.min(prefix.len() - 1 - w);
             (lo..=hi)
@@ -268,17 +353,24 @@ mod tests {
     }
 
     /// The plain reference search: direct window sums, every start tested in turn,
-    /// with the noise of [`noise_of`].
-    fn search_reference(series: &[f32], widths: &[usize], threshold: f32) -> Vec<Peak> {
+    /// with the noise of [`noise_chain`].
+    fn search_reference(
+        series: &[f32],
+        widths: &[usize],
+        threshold: f32,
+        starts: std::ops::Range<usize>,
+    ) -> Vec<Peak> {
         let mut prefix = Vec::new();
         prefix_sums(series, &mut prefix);
         let mut peaks = Vec::new();
         for &w in widths {
-            let Some((mean, sigma)) = noise_of(&prefix, w, &mut Scratch::default()) else {
+            let noise = noise_chain(&prefix, widths, &mut Scratch::default());
+            let Some((mean, sigma)) = noise[widths.iter().position(|&x| x == w).unwrap()] else {
                 continue;
             };
             let mut best: Option<Peak> = None;
-            for (t, sum) in boxcar_reference(series, w).into_iter().enumerate() {
+            let sums = boxcar_reference(series, w).into_iter().enumerate();
+            for (t, sum) in sums.filter(|(t, _)| starts.contains(t)) {
                 let snr = ((sum - mean) / sigma) as f32;
                 if snr >= threshold {
                     if best.is_none_or(|b| snr > b.snr) {
@@ -320,7 +412,8 @@ mod tests {
     }
 
     // The chunked, vectorised scan against the plain one on random series with
-    // pulses, at a low threshold so that many runs start and end on chunk edges.
+    // pulses, at low thresholds so that many runs start and end on chunk edges, over
+    // whole series and over ranges of starts.
     #[test]
     fn scan_agrees_with_the_reference_on_random_series() {
         let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(31);
@@ -334,17 +427,20 @@ mod tests {
                     *v += 2.5;
                 }
             }
-            for &threshold in &[2.0f32, 3.5, 6.0] {
+            let ranges = [0..n, 0..n + 50, 17..n / 2 + 3, n / 3..n - 1, n..n + 9];
+            for (&threshold, starts) in [2.0f32, 3.5, 6.0, 3.0, 2.0].iter().zip(ranges) {
                 let mut fast = Vec::new();
+                let mut scratch = Scratch::default();
                 search_series(
                     &series,
                     &widths,
                     threshold,
-                    &mut Scratch::default(),
+                    starts.clone(),
+                    &mut scratch,
                     &mut fast,
                 );
-                let reference = search_reference(&series, &widths, threshold);
-                assert_eq!(fast.len(), reference.len(), "n={n} threshold={threshold}");
+                let reference = search_reference(&series, &widths, threshold, starts.clone());
+                assert_eq!(fast.len(), reference.len(), "n={n} {starts:?}");
                 for (a, b) in fast.iter().zip(&reference) {
                     assert_eq!((a.start, a.width), (b.start, b.width), "n={n}");
                     assert!((a.snr - b.snr).abs() < 1e-4, "n={n}: {a:?} vs {b:?}");
@@ -396,7 +492,7 @@ mod tests {
         let series: Vec<f32> = (0..n).map(|_| StandardNormal.sample(&mut rng)).collect();
         let mut prefix = Vec::new();
         prefix_sums(&series, &mut prefix);
-        let (mean, sigma) = noise_of(&prefix, 1, &mut Scratch::default()).unwrap();
+        let (mean, sigma) = noise_chain(&prefix, &[1], &mut Scratch::default())[0].unwrap();
         let s = 3.5;
         let count = prefix
             .windows(2)
@@ -420,7 +516,14 @@ mod tests {
         }
         let mut peaks = Vec::new();
         let widths = width_ladder(64, std::f64::consts::SQRT_2);
-        search_series(&series, &widths, 7.0, &mut Scratch::default(), &mut peaks);
+        search_series(
+            &series,
+            &widths,
+            7.0,
+            0..8192,
+            &mut Scratch::default(),
+            &mut peaks,
+        );
         let best = peaks.iter().max_by(|a, b| a.snr.total_cmp(&b.snr)).unwrap();
         assert_eq!(best.width, 16);
         assert!((best.start as i64 - 4000).abs() <= 1);

@@ -4,17 +4,20 @@
 //!
 //! Block geometry (input samples): D = largest dispersion delay, W = widest boxcar,
 //! M = W + 2·(largest downsampling), a margin for an event's extent around its peak.
-//! Blocks overlap by 2D + W + 2M. A block finds detections wherever its data are
-//! complete, clusters them, and reports a cluster only if its best boxcar starts in the
-//! block's own range `[start + D + M, start + n − D − W − M)` (from the file start for
-//! the first block, to the file end for the last). These ranges tile the file without
-//! gaps or overlaps. The leading D + M samples are not owned because a pulse that
-//! reached the top of the band before the block began leaves its low-frequency tail in
-//! the first D samples, where it can pass for a pulse at a lower DM; the block before
-//! sees that pulse whole. A cluster owned by a block lies entirely inside the block's
-//! complete data as long as it extends less than M around its peak. Memory is set by
-//! the block length, not the file length.
-
+//! Blocks overlap by D + W + 2M. A block owns the boxcar starts
+//! `[start + M, start + n − D − W − M)` (from the file start for the first block, to
+//! the file end for the last); these ranges tile the file without gaps or overlaps.
+//! Every dedispersed series is normalised and its noise measured over the whole
+//! block, but boxcars are only tested where they start within M of the owned range:
+//! a cluster owned by a block then lies entirely inside the tested starts as long as
+//! it extends less than M around its peak, and no work is spent on starts another
+//! block owns. Memory is set by the block length, not the file length.
+//!
+//! A bright pulse also shows at neighbouring trial DMs, earlier at higher DMs and
+//! later at lower ones (its "bow-tie"); within a block such echoes merge into the
+//! pulse's cluster. An echo owned by one block whose pulse is owned by the next (or
+//! the previous) is recognised when the blocks' candidates are gathered: of two
+//! candidates on one bow-tie, only the brighter is kept.
 use std::path::Path;
 
 use indicatif::ProgressBar;
@@ -140,7 +143,7 @@ pub struct BlockLayout {
     pub max_width: usize,
     /// Margin for an event's extent around its peak (M).
     pub margin: usize,
-    /// Rows shared by consecutive blocks, 2D + W + 2M.
+    /// Rows shared by consecutive blocks, D + W + 2M.
     pub overlap: usize,
     /// Rows per block, overlap included.
     pub block_len: usize,
@@ -152,11 +155,7 @@ impl BlockLayout {
     /// The boxcar starts owned by a block of `n_time` rows starting at `start`, as a
     /// half-open range; `first` and `last` extend it to the file's ends.
     pub fn owned_range(&self, start: u64, n_time: usize, first: bool, last: bool) -> (u64, u64) {
-        let lo = if first {
-            0
-        } else {
-            start + (self.max_delay + self.margin) as u64
-        };
+        let lo = if first { 0 } else { start + self.margin as u64 };
         let hi = if last {
             u64::MAX
         } else {
@@ -204,9 +203,10 @@ struct Totals {
 }
 
 impl Totals {
-    /// Adds a block's outcome. A candidate that the previous block already reported
-    /// (the same pulse on its bow-tie, found by both blocks because their S/N
-    /// estimates differ slightly at the boundary) is kept once, with the higher S/N.
+    /// Adds a block's outcome. Of a candidate and one the previous block reported on
+    /// the same bow-tie (a pulse and its echo at another trial DM, or one pulse found
+    /// by both blocks because their S/N estimates differ slightly at the boundary),
+    /// only the one with the higher S/N is kept.
     fn add(&mut self, o: BlockOutcome, sweep: &Sweep, recent_s: f64) {
         let event = |c: &Candidate| Event {
             t_inf_s: c.t_inf_s,
@@ -265,7 +265,7 @@ impl<'a> Searcher<'a> {
             .unwrap_or(1);
         let max_delay = plan.max_delay_samples();
         let margin = max_width + 2 * max_ds;
-        let overlap = 2 * max_delay + max_width + 2 * margin;
+        let overlap = max_delay + max_width + 2 * margin;
         let advance = ((config.block_s / header.tsamp_s).ceil() as usize).max(overlap);
         let layout = BlockLayout {
             max_delay,
@@ -337,7 +337,11 @@ impl<'a> Searcher<'a> {
             Some(kernel) => kernel.dedisperse(norm.view()),
             None => dedisperse::reference::dedisperse(norm.view(), &self.plan),
         };
-        let detections = self.detect(&mut outs, start);
+        let (own_lo, own_hi) = g.owned_range(start, n_time, first, last);
+        // Boxcar starts tested, relative to the block start (see the module docs).
+        let tested = own_lo.saturating_sub(start + g.margin as u64) as usize
+            ..own_hi.saturating_add(g.margin as u64).saturating_sub(start) as usize;
+        let detections = self.detect(&mut outs, start, tested);
         let dm0 = self.dm0_series(&norm, &mask);
         let data = BlockData {
             header: &self.header,
@@ -348,7 +352,6 @@ impl<'a> Searcher<'a> {
             outs: &outs,
             block_start: start,
         };
-        let (own_lo, own_hi) = g.owned_range(start, n_time, first, last);
         let used_bw = (n_chan - n_masked) as f64 * self.header.chan_bw_mhz;
         let time_link = (self.config.cluster.time_link_s / self.header.tsamp_s).round() as u64;
         let clusters =
@@ -358,6 +361,9 @@ impl<'a> Searcher<'a> {
             .filter(|c| (own_lo..own_hi).contains(&c.best.start_sample))
             .map(|c| self.judge(&data, &c, used_bw))
             .collect();
+        if let Some(kernel) = &mut self.fast {
+            kernel.recycle(outs);
+        }
         let searched_hi = (start + n_time.saturating_sub(g.max_delay) as u64).min(own_hi);
         BlockOutcome {
             candidates,
@@ -368,8 +374,14 @@ impl<'a> Searcher<'a> {
         }
     }
 
-    /// Normalises every dedispersed series in place and runs the matched filter on it.
-    fn detect(&self, outs: &mut [dedisperse::Dedispersed], block_start: u64) -> Vec<Detection> {
+    /// Normalises every dedispersed series in place and runs the matched filter on
+    /// the boxcars starting in `tested` (input samples from the block start).
+    fn detect(
+        &self,
+        outs: &mut [dedisperse::Dedispersed],
+        block_start: u64,
+        tested: std::ops::Range<usize>,
+    ) -> Vec<Detection> {
         let threshold = self.config.snr_threshold as f32;
         let mut all = Vec::new();
         for (si, step) in outs.iter_mut().enumerate() {
@@ -381,6 +393,7 @@ impl<'a> Searcher<'a> {
             let baseline = (self.layout.baseline_len / ds).max(1);
             let dms = &step.dms;
             let offset = self.dm_offsets[si];
+            let starts = tested.start / ds..tested.end.div_ceil(ds);
             let found: Vec<Detection> = step
                 .data
                 .par_chunks_mut(n)
@@ -390,7 +403,14 @@ impl<'a> Searcher<'a> {
                     |(scratch, work, peaks), (d, row)| {
                         normalise_series(row, baseline, SERIES_SIGMA_VALUES, work);
                         peaks.clear();
-                        boxcar::search_series(row, widths, threshold, scratch, peaks);
+                        boxcar::search_series(
+                            row,
+                            widths,
+                            threshold,
+                            starts.clone(),
+                            scratch,
+                            peaks,
+                        );
                         peaks
                             .iter()
                             .map(|p| Detection {

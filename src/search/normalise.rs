@@ -6,7 +6,7 @@
 use ndarray::{Array2, ArrayView2};
 use rayon::prelude::*;
 
-use crate::robust::{median_sigma, subtract_piecewise_median_baseline};
+use crate::robust::{Baseline, median_sigma};
 
 /// Values a channel's σ is measured on: σ to about 1.3 %.
 pub const CHANNEL_SIGMA_VALUES: usize = 8192;
@@ -20,8 +20,8 @@ const TILE: usize = 64;
 
 /// Subtracts the running baseline of `series` and divides by its robust σ from at
 /// most about `sigma_values` evenly strided values, falling back to the standard
-/// deviation when the MAD is zero (coarsely quantised data). Returns the σ used; 0
-/// means the series is constant and was set to zero.
+/// deviation when the MAD is zero (coarsely quantised data), in one pass over the
+/// series. Returns the σ used; 0 means the series is constant and was set to zero.
 pub fn normalise_series(
     series: &mut [f32],
     baseline_len: usize,
@@ -31,27 +31,22 @@ pub fn normalise_series(
     if series.is_empty() {
         return 0.0;
     }
-    subtract_piecewise_median_baseline(series, baseline_len, scratch);
+    let baseline = Baseline::piecewise_median(series, baseline_len, scratch);
     let stride = (series.len() / sigma_values.max(1)).max(1);
-    let (_, mut sigma) = median_sigma(series, stride, scratch);
+    let residuals = |t: usize| series[t] - baseline.at(t);
+    let strided: Vec<f32> = (0..series.len()).step_by(stride).map(residuals).collect();
+    let (_, mut sigma) = median_sigma(&strided, 1, scratch);
     if sigma.is_nan() || sigma <= 0.0 {
         let n = series.len() as f64;
-        let mean = series.iter().map(|&v| f64::from(v)).sum::<f64>() / n;
-        let var = series
-            .iter()
-            .map(|&v| (f64::from(v) - mean).powi(2))
-            .sum::<f64>()
-            / n;
-        sigma = var.sqrt() as f32;
+        let all = (0..series.len()).map(|t| f64::from(residuals(t)));
+        let mean = all.clone().sum::<f64>() / n;
+        sigma = (all.map(|v| (v - mean).powi(2)).sum::<f64>() / n).sqrt() as f32;
     }
     if !(sigma > 0.0 && sigma.is_finite()) {
         series.fill(0.0);
         return 0.0;
     }
-    let inv = 1.0 / sigma;
-    for v in series.iter_mut() {
-        *v *= inv;
-    }
+    baseline.subtract_scaled(series, 1.0 / sigma);
     sigma
 }
 
