@@ -23,7 +23,7 @@
 //! * `ds/2os4` the same with its trees at a quarter of the output sample.
 //!
 //! ```text
-//! cargo run --release --example snr_budget -- [COUNT] [SEED] [DM_LO:DM_HI] [W_LO:W_HI_MS]
+//! cargo run --release --example snr_budget -- [COUNT] [SEED] [DM_LO:DM_HI] [W_LO:W_HI_MS] [SMEARING_FRACTION]
 //! ```
 
 use std::f64::consts::SQRT_2;
@@ -118,15 +118,17 @@ fn main() {
     };
     let (dm_lo, dm_hi) = range(2, (500.0, 2000.0));
     let (w_lo, w_hi) = range(3, (0.1, 2.0));
+    let request = PlanRequest {
+        smearing_fraction: args
+            .get(4)
+            .map_or(PlanRequest::default().smearing_fraction, |s| {
+                s.parse().expect("SMEARING_FRACTION")
+            }),
+        ..PlanRequest::default()
+    };
 
     let h = header();
-    let full = DmPlan::build(
-        &h.freqs_mhz,
-        h.chan_bw_mhz,
-        h.tsamp_s,
-        &PlanRequest::default(),
-    )
-    .expect("plan");
+    let full = DmPlan::build(&h.freqs_mhz, h.chan_bw_mhz, h.tsamp_s, &request).expect("plan");
     let trials: Vec<(f64, usize)> = full.trials().collect();
     let max_width = (MAX_WIDTH_S / TSAMP_S).floor() as usize;
     let ladder = |ds: usize| width_ladder((max_width / ds).max(1), SQRT_2);

@@ -299,6 +299,7 @@ fn injected_pulse_snr_agrees_with_reference() {
         min_width_s: 0.0,
         tolerance: 1.25,
         max_downsample: 16,
+        smearing_fraction: 1.0,
     };
     let plan = DmPlan::build(&freqs, bw, tsamp, &req).unwrap();
     let n_time = plan.max_delay_samples() + 2048;
