@@ -17,8 +17,13 @@ out=${4:-/tmp/burstbook-inject-measure}
 dm_range=${5:-0:2000}
 width_range=${6:-0.1:50}
 root=$(cd "$(dirname "$0")/.." && pwd)
-bin="$root/target/release/burstbook"
-(cd "$root" && cargo build --release --quiet)
+# BURSTBOOK_BIN runs another build (e.g. an older commit's) instead of building this one.
+if [[ -n "${BURSTBOOK_BIN:-}" ]]; then
+    bin=$BURSTBOOK_BIN
+else
+    bin="$root/target/release/burstbook"
+    (cd "$root" && cargo build --release --quiet)
+fi
 mkdir -p "$out"
 
 cat > "$out/scenario.toml" <<TOML
