@@ -52,6 +52,7 @@ fn main() {
         min_width_s: 0.0,
         tolerance: 1.25,
         max_downsample: 64,
+        ..PlanRequest::default()
     };
     let plan = DmPlan::build(&freqs, bw, tsamp, &request).expect("valid survey plan");
     let n_time = plan.max_delay_samples() + VALID_SAMPLES;

@@ -5,17 +5,25 @@
 # the given range. Prints completeness at expected S/N ≥ 10 and the median
 # reported/expected S/N by DM and width from injections.csv.
 #
-# usage: scripts/measure-inject.sh [LENGTH_S] [COUNT] [SNR_RANGE] [OUTDIR]
+# usage: scripts/measure-inject.sh [LENGTH_S] [COUNT] [SNR_RANGE] [OUTDIR] [DM_RANGE] [WIDTH_MS_RANGE]
 #   e.g. scripts/measure-inject.sh 60 120 10:20 /tmp/inject-bright
 #        scripts/measure-inject.sh 60 120 4:14 /tmp/inject-curve
+#        scripts/measure-inject.sh 60 100 10:20 /tmp/inject-narrow 500:2000 0.1:2
 set -euo pipefail
 length_s=${1:-60}
 count=${2:-120}
 snr=${3:-10:20}
 out=${4:-/tmp/burstbook-inject-measure}
+dm_range=${5:-0:2000}
+width_range=${6:-0.1:50}
 root=$(cd "$(dirname "$0")/.." && pwd)
-bin="$root/target/release/burstbook"
-(cd "$root" && cargo build --release --quiet)
+# BURSTBOOK_BIN runs another build (e.g. an older commit's) instead of building this one.
+if [[ -n "${BURSTBOOK_BIN:-}" ]]; then
+    bin=$BURSTBOOK_BIN
+else
+    bin="$root/target/release/burstbook"
+    (cd "$root" && cargo build --release --quiet)
+fi
 mkdir -p "$out"
 
 cat > "$out/scenario.toml" <<TOML
@@ -58,7 +66,7 @@ TOML
 
 "$bin" simulate "$out/scenario.toml" --out "$out/quiet.json"
 /usr/bin/time -v "$bin" inject "$out/quiet.json" --config "$out/search.toml" \
-    --count "$count" --seed 11 --dm 0:2000 --width-ms 0.1:50 --snr "$snr" \
+    --count "$count" --seed 11 --dm "$dm_range" --width-ms "$width_range" --snr "$snr" \
     --out "$out/result" --catalogue "$out/book.sqlite" 2> "$out/time.txt"
 grep -E "Elapsed|Maximum resident|User time" "$out/time.txt"
 
@@ -83,6 +91,10 @@ for lo, hi in [(0, 250), (250, 500), (500, 1000), (1000, 1500), (1500, 2000.1)]:
     line(f"DM {lo}-{hi:g}", [r for r in bright if lo <= float(r["dm"]) < hi])
 for lo, hi in [(0.1, 0.5), (0.5, 2), (2, 10), (10, 50.1)]:
     line(f"width {lo}-{hi:g} ms", [r for r in bright if lo <= float(r["width_ms"]) < hi])
+for lo, hi in [(0, 500), (500, 2000.1)]:
+    for wlo, whi in [(0.1, 2), (2, 50.1)]:
+        line(f"DM {lo}-{hi:g}, {wlo}-{whi:g} ms", [r for r in bright
+             if lo <= float(r["dm"]) < hi and wlo <= float(r["width_ms"]) < whi])
 missed = [r for r in bright if not r["f"]]
 for r in missed[:20]:
     print(f"  missed: S/N {r['s']:.1f} DM {float(r['dm']):.0f} width {float(r['width_ms']):.2f} ms t {float(r['t_inf_s']):.2f} s verdict {r['verdict'] or '-'}")

@@ -21,30 +21,41 @@ const SURVEY: [&str; 8] = [
     "64",
 ];
 
-// The survey band at tolerance 1.25 up to DM 1000: about 4603 trials, the continuous
-// count of the Cordes & McLaughlin 2003 (ApJ 596, 1142) step formula (see the planner
-// tests), with the doubling of the time resolution from DM 108.36 on.
+// The survey band at tolerance 1.25 up to DM 1000: about 5017 trials (4603 with
+// smearing fraction 1), the continuous count of the Cordes & McLaughlin 2003 (ApJ
+// 596, 1142) step formula (see the planner tests), with the doubling of the time
+// resolution from DM 216.72 (108.36) on.
 #[test]
 fn json_plan_for_the_survey_band() {
-    let out = plan(&[&SURVEY[..], &["--dm-max", "1000", "--json"]].concat());
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
-    let report: serde_json::Value = serde_json::from_slice(&out.stdout).expect("JSON");
-    let n = report["n_trials"].as_u64().unwrap() as i64;
-    assert!((n - 4603).abs() <= 4, "{n} trials");
-    let steps = report["steps"].as_array().unwrap();
-    assert_eq!(steps[0]["downsample"], 1);
-    assert_eq!(steps[1]["downsample"], 2);
-    assert!((steps[1]["dm_first"].as_f64().unwrap() - 108.4).abs() < 0.1);
-    let cost = &report["cost"];
-    assert!(
-        cost["fast_adds_per_s"].as_f64().unwrap()
-            < cost["reference_adds_per_s"].as_f64().unwrap() / 20.0
-    );
-    assert_eq!(report["plan"]["freqs_mhz"].as_array().unwrap().len(), 1024);
+    for (fraction, trials, first_doubling) in [("0.5", 5017, 216.8), ("1", 4603, 108.4)] {
+        let args = [
+            "--dm-max",
+            "1000",
+            "--smearing-fraction",
+            fraction,
+            "--json",
+        ];
+        let out = plan(&[&SURVEY[..], &args].concat());
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        let report: serde_json::Value = serde_json::from_slice(&out.stdout).expect("JSON");
+        let n = report["n_trials"].as_u64().unwrap() as i64;
+        assert!((n - trials).abs() <= 4, "{n} trials");
+        let steps = report["steps"].as_array().unwrap();
+        assert_eq!(steps[0]["downsample"], 1);
+        assert_eq!(steps[1]["downsample"], 2);
+        let dm_first = steps[1]["dm_first"].as_f64().unwrap();
+        assert!((dm_first - first_doubling).abs() < 0.1, "{dm_first}");
+        let cost = &report["cost"];
+        assert!(
+            cost["fast_adds_per_s"].as_f64().unwrap()
+                < cost["reference_adds_per_s"].as_f64().unwrap() / 20.0
+        );
+        assert_eq!(report["plan"]["freqs_mhz"].as_array().unwrap().len(), 1024);
+    }
 }
 
 #[test]

@@ -55,6 +55,10 @@ pub struct Args {
     /// Largest time-resolution reduction (a power of two).
     #[arg(long, default_value_t = 64)]
     pub max_downsample: usize,
+    /// Largest fraction of the channel smearing one downsampled sample may span
+    /// (1 = coarsest and cheapest).
+    #[arg(long, default_value_t = 0.5)]
+    pub smearing_fraction: f64,
     /// Print the plan, its summary and cost as JSON.
     #[arg(long)]
     pub json: bool,
@@ -68,6 +72,7 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         min_width_s: args.min_width_ms * 1e-3,
         tolerance: args.tolerance,
         max_downsample: args.max_downsample,
+        smearing_fraction: args.smearing_fraction,
     };
     let plan = DmPlan::build(&freqs, chan_bw, tsamp_s, &request).context("planning trial DMs")?;
     let report = plan.report();
@@ -131,11 +136,13 @@ fn format_report(report: &PlanReport, request: &PlanRequest) -> Result<String, s
     )?;
     writeln!(
         out,
-        "DM {}-{} pc cm^-3, tolerance {}, minimum width {} ms: {} trials in {} steps\n",
+        "DM {}-{} pc cm^-3, tolerance {}, minimum width {} ms, smearing fraction {}: \
+         {} trials in {} steps\n",
         request.dm_min,
         request.dm_max,
         request.tolerance,
         request.min_width_s * 1e3,
+        request.smearing_fraction,
         report.n_trials,
         report.steps.len()
     )?;

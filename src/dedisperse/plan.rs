@@ -28,6 +28,13 @@ pub struct PlanRequest {
     pub tolerance: f64,
     /// Largest time-resolution reduction factor (a power of two).
     pub max_downsample: usize,
+    /// Largest fraction of the intra-channel smearing t_chan(DM) at the band centre
+    /// that one downsampled sample may span: the downsampling is the largest power of
+    /// two n with n·t_s ≤ `smearing_fraction`·t_chan. 1 reduces the resolution as soon
+    /// as the smearing allows (cheapest); the default ½ keeps a narrow burst's
+    /// smeared pulse at least two samples long, so it loses little to where it falls
+    /// on the sample grid.
+    pub smearing_fraction: f64,
 }
 
 impl Default for PlanRequest {
@@ -40,6 +47,7 @@ impl Default for PlanRequest {
             min_width_s: 0.0,
             tolerance: 1.25,
             max_downsample: 64,
+            smearing_fraction: 0.5,
         }
     }
 }
@@ -99,8 +107,8 @@ impl DmPlan {
     ///
     /// With B = k(ν_lo⁻² − ν_hi⁻²) the dispersion sweep per unit DM across the band
     /// (edges) and ν_c the band centre (Cordes & McLaughlin 2003, ApJ 596, 1142):
-    /// - downsampling n(DM): smallest power of two with t_chan(DM, ν_c) < 2n·t_s,
-    ///   capped at `max_downsample`;
+    /// - downsampling n(DM): largest power of two with n·t_s ≤ f·t_chan(DM, ν_c)
+    ///   (f = `smearing_fraction`), at least 1 and capped at `max_downsample`;
     /// - W_eff(DM)² = W_int² + (n·t_s)² + t_chan(DM, ν_c)²;
     /// - DM_{i+1} = DM_i + √(tol² − 1)·W_eff(DM_i)/B, since a DM error δDM smears the
     ///   burst by B·δDM, added in quadrature to W_eff.
@@ -111,7 +119,8 @@ impl DmPlan {
     /// # Errors
     /// [`Error::Config`] for an empty band, non-positive sample time or channel width,
     /// a negative or inverted DM range, `tolerance <= 1`, a negative width, a
-    /// `max_downsample` that is not a power of two, or more than ten million trials.
+    /// `max_downsample` that is not a power of two, a `smearing_fraction` that is not
+    /// positive, or more than ten million trials.
     pub fn build(
         freqs_mhz: &[f64],
         chan_bw_mhz: f64,
@@ -191,6 +200,7 @@ pub(crate) struct Planner {
     min_width_s: f64,
     tolerance: f64,
     max_downsample: usize,
+    smearing_fraction: f64,
 }
 
 impl Planner {
@@ -218,6 +228,7 @@ impl Planner {
             min_width_s,
             tolerance,
             max_downsample,
+            smearing_fraction,
         } = *request;
         if !(dm_min.is_finite() && dm_max.is_finite() && 0.0 <= dm_min && dm_min <= dm_max) {
             return bad(format!(
@@ -229,6 +240,11 @@ impl Planner {
         }
         if !(min_width_s.is_finite() && min_width_s >= 0.0) {
             return bad(format!("minimum width must be >= 0, got {min_width_s} s"));
+        }
+        if !(smearing_fraction.is_finite() && smearing_fraction > 0.0) {
+            return bad(format!(
+                "smearing fraction must be positive, got {smearing_fraction}"
+            ));
         }
         if !max_downsample.is_power_of_two() {
             return bad(format!(
@@ -249,6 +265,7 @@ impl Planner {
             min_width_s,
             tolerance,
             max_downsample,
+            smearing_fraction,
         })
     }
 
@@ -257,11 +274,11 @@ impl Planner {
         channel_smearing_s(dm, self.chan_bw_mhz, self.centre_mhz)
     }
 
-    /// Smallest power of two n with t_chan(ν_c) < 2n·t_s, capped.
+    /// Largest power of two n with n·t_s ≤ f·t_chan(ν_c), at least 1, capped.
     pub(crate) fn downsample_at(&self, dm: f64) -> usize {
         let mut n = 1;
         while n < self.max_downsample
-            && self.channel_smearing_s(dm) >= 2.0 * n as f64 * self.tsamp_s
+            && 2.0 * n as f64 * self.tsamp_s <= self.smearing_fraction * self.channel_smearing_s(dm)
         {
             n *= 2;
         }

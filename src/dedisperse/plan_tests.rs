@@ -9,6 +9,8 @@ fn survey_band() -> (Vec<f64>, f64, f64) {
     (freqs, bw, 64e-6)
 }
 
+/// A request with the former, coarsest downsampling (smearing fraction 1), for which
+/// the worked values below were derived.
 fn request(tolerance: f64, min_width_s: f64, dm_max: f64) -> PlanRequest {
     PlanRequest {
         dm_min: 0.0,
@@ -16,6 +18,7 @@ fn request(tolerance: f64, min_width_s: f64, dm_max: f64) -> PlanRequest {
         min_width_s,
         tolerance,
         max_downsample: 64,
+        smearing_fraction: 1.0,
     }
 }
 
@@ -80,8 +83,24 @@ fn downsampling_doubles_where_smearing_reaches_two_samples() {
     assert_eq!(capped.downsample_at(1500.0), 4);
 }
 
+// The default smearing fraction ½: one downsampled sample spans at most half the
+// channel smearing, so each doubling comes at twice the DM (216.72·n) and a narrow
+// burst's smeared pulse covers at least two samples.
+#[test]
+fn default_plan_keeps_two_samples_per_smearing_time() {
+    let p = planner(&PlanRequest {
+        dm_max: 2000.0,
+        ..PlanRequest::default()
+    });
+    for (dm, n) in [(216.72, 2), (433.45, 4), (866.90, 8), (1733.8, 16)] {
+        assert_eq!(p.downsample_at(dm - 0.2), n / 2, "below DM {dm}");
+        assert_eq!(p.downsample_at(dm + 0.2), n, "above DM {dm}");
+    }
+}
+
 // Trial counts: the continuous count ∫dDM/step is 4602.7, 5402.7, 1347.8, 2063.0,
-// 7532.9 and 8842.2 for the cases below (numerical integral of the same formula).
+// 7532.9 and 8842.2 for the cases below (numerical integral of the same formula),
+// and 5017.3 and 5943.7 with the default smearing fraction ½.
 // Discrete stepping evaluates W_eff at the left end of each step, which adds about
 // two trials around the downsampling jumps, and the plan always ends on dm_max.
 #[test]
@@ -103,6 +122,14 @@ fn trial_counts_match_the_continuous_count() {
             "tol {tol} W {w_int} DM<={dm_max}: {n} trials, expected about {want}"
         );
     }
+    for (dm_max, want) in [(1000.0, 5017), (2000.0, 5944)] {
+        let req = PlanRequest {
+            dm_max,
+            ..PlanRequest::default()
+        };
+        let n = DmPlan::build(&freqs, bw, tsamp, &req).unwrap().n_trials() as i64;
+        assert!((n - want).abs() <= 4, "default DM<={dm_max}: {n} trials");
+    }
 }
 
 // Half-way between neighbouring trials (the worst DM error), the Cordes & McLaughlin
@@ -111,8 +138,17 @@ fn trial_counts_match_the_continuous_count() {
 #[test]
 fn peak_loss_half_way_between_trials_stays_within_tolerance() {
     let (freqs, bw, tsamp) = survey_band();
-    for (tol, w_int) in [(1.25, 0.0), (1.25, 1e-3), (1.10, 0.0), (1.5, 2e-4)] {
-        let req = request(tol, w_int, 2000.0);
+    for (tol, w_int, f) in [
+        (1.25, 0.0, 1.0),
+        (1.25, 1e-3, 1.0),
+        (1.10, 0.0, 1.0),
+        (1.5, 2e-4, 1.0),
+        (1.25, 0.0, 0.5),
+    ] {
+        let req = PlanRequest {
+            smearing_fraction: f,
+            ..request(tol, w_int, 2000.0)
+        };
         let plan = DmPlan::build(&freqs, bw, tsamp, &req).unwrap();
         let p = planner(&req);
         let promise = 1.0 / (1.0 + (tol * tol - 1.0) / 4.0).sqrt();
@@ -156,6 +192,7 @@ fn steps_are_grouped_by_downsampling_and_cover_the_range() {
         min_width_s: 0.0,
         tolerance: 1.25,
         max_downsample: 8,
+        smearing_fraction: 1.0,
     };
     let plan = DmPlan::build(&freqs, bw, tsamp, &req).unwrap();
     let ds: Vec<usize> = plan.steps.iter().map(|s| s.downsample).collect();
@@ -197,6 +234,10 @@ fn bad_requests_are_config_errors() {
         },
         PlanRequest {
             min_width_s: f64::NAN,
+            ..good.clone()
+        },
+        PlanRequest {
+            smearing_fraction: 0.0,
             ..good.clone()
         },
     ];

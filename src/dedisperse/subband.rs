@@ -63,7 +63,11 @@ impl StepKernel {
         let mut n_rows = 0;
         for group in order.chunks(SUBBAND_CHANNELS) {
             let freqs: Vec<f64> = group.iter().map(|&c| freqs_mhz[c]).collect();
-            let tree = StepTree::new(&freqs, dms, tsamp_s, tree_ds, longest);
+            let top_offsets: Vec<f64> = dms
+                .iter()
+                .map(|&dm| delay_between_s(dm, freqs[0], f_top) / sample_s)
+                .collect();
+            let tree = StepTree::new(&freqs, dms, &top_offsets, tsamp_s, tree_ds, longest);
             row_base.push(n_rows);
             n_rows += tree.n_top_rows(group.len());
             subbands.push(SubBand {
@@ -77,12 +81,10 @@ impl StepKernel {
         let mut rows = Vec::with_capacity(dms.len() * n_sub);
         let mut offsets = Vec::with_capacity(dms.len() * n_sub);
         let mut max_path = 0;
-        for (k, &dm) in dms.iter().enumerate() {
+        for k in 0..dms.len() {
             for (s, sub) in subbands.iter_mut().enumerate() {
-                let f_sub = freqs_mhz[sub.channels[0]];
-                let (row, internal) = sub.tree.top_row(k);
-                let ideal = (delay_between_s(dm, f_sub, f_top) / sample_s).round() as usize;
-                let offset = ideal.min(longest.saturating_sub(internal));
+                let (row, internal, fitted) = sub.tree.top_row(k);
+                let offset = fitted.min(longest.saturating_sub(internal));
                 sub.max_offset = sub.max_offset.max(offset);
                 max_path = max_path.max(offset + internal);
                 rows.push(row_base[s] + row);

@@ -35,6 +35,9 @@ pub(crate) struct StepTree {
     /// the band has one channel), and that row's total delay.
     pub dm_rows: Vec<usize>,
     pub dm_delays: Vec<usize>,
+    /// For each trial, the delay of the band's top channel from the top of the whole
+    /// band (samples): `top_offsets` rounded to fit the trial's path best.
+    pub dm_offsets: Vec<usize>,
     /// Largest total path delay, downsampled samples.
     pub max_path: usize,
 }
@@ -95,11 +98,14 @@ struct Node {
 impl StepTree {
     /// Builds the tree for trial `dms` (pc cm⁻³, ascending) at `downsample`, for
     /// channel centres `freqs_mhz` in data order, with no path longer than
-    /// `max_total` samples (so that no path reads past the block). An empty band
-    /// yields a tree with no levels whose rows are never read.
+    /// `max_total` samples (so that no path reads past the block). `top_offsets`
+    /// gives, per trial, the ideal delay (samples, not rounded) of this band's highest
+    /// channel from the top of the whole band. An empty band yields a tree with no
+    /// levels whose rows are never read.
     pub(crate) fn new(
         freqs_mhz: &[f64],
         dms: &[f64],
+        top_offsets: &[f64],
         tsamp_s: f64,
         downsample: usize,
         max_total: usize,
@@ -109,6 +115,7 @@ impl StepTree {
                 levels: Vec::new(),
                 dm_rows: vec![0; dms.len()],
                 dm_delays: vec![0; dms.len()],
+                dm_offsets: top_offsets.iter().map(|y| y.round() as usize).collect(),
                 max_path: 0,
             };
         }
@@ -207,26 +214,37 @@ impl StepTree {
             }
         }
 
-        // Each trial takes the better of the two rows around its ideal delay.
+        // Each trial takes, of the two rows around its ideal delay, the one that fits
+        // the dispersion curve best once the node's top is given its best whole-sample
+        // delay from the band top (least squares over the node's channels): a path
+        // whose channels lag on average is moved earlier as a whole.
         let root = &levels[top][0];
-        let dm_d: Vec<usize> = dms
+        let (dm_d, dm_offsets): (Vec<usize>, Vec<usize>) = dms
             .iter()
-            .map(|&dm| {
+            .zip(top_offsets)
+            .map(|(&dm, &y)| {
                 let x = ideal(dm);
-                let (a, b) = (
-                    (x.floor() as usize).min(max_total),
-                    (x.ceil() as usize).min(max_total),
-                );
-                let err = |d: usize| root.fits[d - root.lo].error(&root.shape, x);
-                if top == 0 {
-                    0
-                } else if err(b) < err(a) {
-                    b
-                } else {
-                    a
-                }
+                let rows = (x.floor() as usize).clamp(root.lo, root.hi)
+                    ..=(x.ceil() as usize).clamp(root.lo, root.hi);
+                rows.flat_map(|d| {
+                    let fit = &root.fits[d - root.lo];
+                    let n = root.shape.n;
+                    let bias = fit.sum - x * root.shape.g1;
+                    let best = y - bias / n;
+                    let offsets =
+                        (best.floor().max(0.0) as usize)..=(best.ceil().max(0.0) as usize);
+                    offsets.map(move |o| {
+                        let delta = o as f64 - y;
+                        let err =
+                            fit.error(&root.shape, x) + 2.0 * delta * bias + n * delta * delta;
+                        (err, d, o)
+                    })
+                })
+                .min_by(|a, b| a.0.total_cmp(&b.0))
+                .map(|(_, d, o)| (d, o))
+                .expect("a node offers at least one row")
             })
-            .collect();
+            .unzip();
         mark_used(&mut levels, &dm_d);
         let merges = index_rows(&mut levels, &order);
         let root = &levels[top][0];
@@ -235,6 +253,7 @@ impl StepTree {
             dm_rows: dm_d.iter().map(|&d| root.index[d - root.lo]).collect(),
             max_path: dm_d.iter().copied().max().unwrap_or(0),
             dm_delays: dm_d,
+            dm_offsets,
         }
     }
 
@@ -243,9 +262,9 @@ impl StepTree {
         self.levels.last().map_or(n_chan.min(1), Vec::len)
     }
 
-    /// Row in the last level and total delay used for trial `k`.
-    pub(crate) fn top_row(&self, k: usize) -> (usize, usize) {
-        (self.dm_rows[k], self.dm_delays[k])
+    /// Row in the last level, total delay and delay of the band's top for trial `k`.
+    pub(crate) fn top_row(&self, k: usize) -> (usize, usize, usize) {
+        (self.dm_rows[k], self.dm_delays[k], self.dm_offsets[k])
     }
 
     /// Rows in the largest level (the channel count when there is no level).
