@@ -15,6 +15,9 @@ pub struct Detection {
     pub width_samples: usize,
     /// Position of the trial DM in the plan's ascending list of all trials.
     pub dm_index: usize,
+    /// Trials between the DMs at which a boxcar of this width was tested (1 when
+    /// every trial was): DM links scale with it.
+    pub dm_stride: usize,
     /// Trial DM in pc cm⁻³.
     pub dm: f64,
     /// Matched-filter S/N.
@@ -41,10 +44,12 @@ pub struct Cluster {
     pub size: usize,
 }
 
-/// Whether `a` and `b` are friends.
+/// Whether `a` and `b` are friends: within `dm_link_trials` of the coarser one's
+/// tested trials, and overlapping in time.
 fn linked(a: &Detection, b: &Detection, dm_link_trials: usize, time_link_samples: u64) -> bool {
     let reach2 = (a.width_samples + b.width_samples) as u64 + 2 * time_link_samples;
-    a.dm_index.abs_diff(b.dm_index) <= dm_link_trials && a.centre2().abs_diff(b.centre2()) <= reach2
+    let dm_reach = dm_link_trials * a.dm_stride.max(b.dm_stride).max(1);
+    a.dm_index.abs_diff(b.dm_index) <= dm_reach && a.centre2().abs_diff(b.centre2()) <= reach2
 }
 
 fn find(parent: &mut [usize], mut i: usize) -> usize {
@@ -193,9 +198,29 @@ mod tests {
             start_sample: start,
             width_samples: width,
             dm_index,
+            dm_stride: 1,
             dm: dm_index as f64 * 0.5,
             snr,
         }
+    }
+
+    // A wide boxcar tested every 8th trial links across its own stride, not the
+    // narrow ones' single trials.
+    #[test]
+    fn links_scale_with_the_trial_stride() {
+        let wide = |dm_index: usize| Detection {
+            dm_stride: 8,
+            ..det(1000, 64, dm_index, 9.0)
+        };
+        let c = friends_of_friends(&[wide(0), wide(8), wide(16), det(1000, 4, 60, 8.0)], 3, 2);
+        assert_eq!(c.len(), 2);
+        assert_eq!(c.iter().map(|c| c.size).max(), Some(3));
+        let unstrided = Detection {
+            dm_stride: 1,
+            ..wide(8)
+        };
+        let c = friends_of_friends(&[det(1000, 64, 0, 9.0), unstrided], 3, 2);
+        assert_eq!(c.len(), 2);
     }
 
     #[test]
@@ -240,6 +265,7 @@ mod tests {
                 start_sample: start as u64,
                 width_samples: w,
                 dm_index: dm as usize,
+                dm_stride: 1,
                 dm,
                 snr,
             })

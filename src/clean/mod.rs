@@ -107,10 +107,15 @@ impl CleanConfig {
 /// Returns the number of channels newly masked.
 pub fn flag_channels(raw: ArrayView2<'_, f32>, mask: &mut [bool], config: &CleanConfig) -> usize {
     let before = mask.iter().filter(|&&m| m).count();
-    let stats = channel_stats::ChannelStats::measure(raw);
-    let sk = config
-        .kurtosis
-        .then(|| kurtosis::ChannelKurtosis::measure(raw, config.kurtosis_m));
+    // Two independent passes over the block: one per core.
+    let (stats, sk) = rayon::join(
+        || channel_stats::ChannelStats::measure(raw),
+        || {
+            config
+                .kurtosis
+                .then(|| kurtosis::ChannelKurtosis::measure(raw, config.kurtosis_m))
+        },
+    );
     for _ in 0..config.max_iterations {
         let mut changed = channel_stats::flag_outliers(&stats, mask, config.stat_threshold);
         if let Some(sk) = &sk {

@@ -273,11 +273,14 @@ fn subband_rows(
             let (r, phase) = (i / per_out, i % per_out);
             let src_row = &top[r * width + phase..][..n_j * per_out];
             let dst = &mut dst[j0..j0 + n_j];
-            if per_out == 1 {
-                dst.copy_from_slice(src_row);
-            } else {
-                for (o, group) in dst.iter_mut().zip(src_row.chunks_exact(per_out)) {
-                    *o = group.iter().sum();
+            match per_out {
+                1 => dst.copy_from_slice(src_row),
+                // Every downsampled step (TREE_OVERSAMPLE): a loop that vectorises.
+                2 => pair_sums(dst, src_row),
+                _ => {
+                    for (o, group) in dst.iter_mut().zip(src_row.chunks_exact(per_out)) {
+                        *o = group.iter().sum();
+                    }
                 }
             }
         }

@@ -30,7 +30,7 @@ mod tree;
 
 pub use cost::PlanCost;
 pub use fast::FastDedisperser;
-pub use plan::{DmPlan, DmStep, PlanRequest};
+pub use plan::{DmPlan, DmStep, PlanRequest, boxcar_strides};
 pub use summary::{PlanReport, StepSummary, channel_centres_mhz};
 
 use ndarray::ArrayView2;

@@ -189,6 +189,48 @@ impl DmPlan {
     }
 }
 
+/// How many trials apart boxcars of each width need testing, per plan step:
+/// `strides[i][j]` for plan step `i` and width `widths_s[i][j]` (seconds).
+///
+/// The planner spaces trials so that a DM error of one step widens the narrowest
+/// pulse, of effective width W_eff, by at most the tolerance. The widening adds the
+/// same smearing B·δDM in quadrature to any pulse, so a boxcar of width w — matched
+/// to a pulse of effective width √(W_eff² + w²) — tolerates a spacing larger by
+/// √(1 + (w/W_eff)²) (Cordes & McLaughlin 2003, ApJ 596, 1142). The stride is the
+/// largest power of two within that factor at the step's last, most smeared, trial,
+/// where the factor is smallest; powers of two make the widths tested at any trial a
+/// prefix of the ladder.
+///
+/// # Errors
+/// The request is not a valid plan request for the plan's band.
+pub fn boxcar_strides(
+    plan: &DmPlan,
+    request: &PlanRequest,
+    widths_s: &[Vec<f64>],
+) -> Result<Vec<Vec<usize>>> {
+    let planner = Planner::new(&plan.freqs_mhz, plan.chan_bw_mhz, plan.tsamp_s, request)?;
+    Ok(plan
+        .steps
+        .iter()
+        .zip(widths_s)
+        .map(|(step, widths)| {
+            let last = step.dms.last().copied().unwrap_or(0.0);
+            let w_eff = planner.effective_width_s(last);
+            widths
+                .iter()
+                .map(|&w| {
+                    let factor = (1.0 + (w / w_eff).powi(2)).sqrt();
+                    let mut k = 1;
+                    while (2 * k) as f64 <= factor && 2 * k <= step.dms.len() {
+                        k *= 2;
+                    }
+                    k
+                })
+                .collect()
+        })
+        .collect())
+}
+
 /// The plan formulae for one band and request (see [`DmPlan::build`]).
 #[derive(Debug, Clone)]
 pub(crate) struct Planner {

@@ -248,3 +248,50 @@ fn bad_requests_are_config_errors() {
     assert!(DmPlan::build(&[], bw, tsamp, &good).is_err());
     assert!(DmPlan::build(&freqs, bw, 0.0, &good).is_err());
 }
+
+// Boxcar strides: powers of two, growing with width, 1 for boxcars narrower than the
+// step's effective width; every stride keeps the widening of a pulse as wide as the
+// boxcar within the tolerance over one stride at the step's most smeared trial
+// (the planner's own criterion, Cordes & McLaughlin 2003), and doubling it would not.
+#[test]
+fn boxcar_strides_keep_wide_pulses_within_the_tolerance() {
+    let req = PlanRequest {
+        smearing_fraction: 0.5,
+        ..request(1.25, 0.0, 2000.0)
+    };
+    let (freqs, bw, tsamp) = survey_band();
+    let plan = DmPlan::build(&freqs, bw, tsamp, &req).unwrap();
+    let p = planner(&req);
+    let widths_s: Vec<Vec<f64>> = plan
+        .steps
+        .iter()
+        .map(|s| {
+            (0..12)
+                .map(|k| (s.downsample << k) as f64 * tsamp)
+                .collect()
+        })
+        .collect();
+    let strides = boxcar_strides(&plan, &req, &widths_s).unwrap();
+    let growth = (1.25f64.powi(2) - 1.0).sqrt();
+    for ((step, widths), ks) in plan.steps.iter().zip(&widths_s).zip(&strides) {
+        let last = *step.dms.last().unwrap();
+        let w_eff = p.effective_width_s(last);
+        assert_eq!(
+            ks[0], 1,
+            "one sample is never wider than the effective width"
+        );
+        for (pair, (&w, &k)) in ks.windows(2).zip(widths.iter().zip(ks)) {
+            assert!(k.is_power_of_two() && pair[0] <= pair[1]);
+            let allowed = growth * w_eff.hypot(w) / p.sweep_s_per_dm;
+            assert!(
+                k as f64 * p.step_at(last) <= allowed * (1.0 + 1e-9),
+                "w={w} k={k}"
+            );
+            assert!(2 * k > step.dms.len() || 2.0 * k as f64 * p.step_at(last) > allowed);
+        }
+        assert!(
+            ks.last().unwrap() > &1,
+            "a 2048-sample boxcar spans many trials"
+        );
+    }
+}

@@ -3,7 +3,7 @@
 
 use crate::error::Result;
 use crate::obs::{Block, Header, SampleSource};
-use crate::robust::clipped_mean_sigma;
+use crate::robust::{clipped_mean_sigma, median_sigma};
 use crate::simulate::{Burst, add_burst};
 
 /// Wraps `inner` and adds `bursts` (scaled per channel by `chan_scale`, normally each
@@ -107,7 +107,9 @@ pub fn channel_sigma<S: SampleSource>(source: &mut S, max_rows: usize) -> Result
             }
             column.clear();
             column.extend(data[..filled * n_chan].iter().skip(c).step_by(n_chan));
-            let (_, sigma) = clipped_mean_sigma(&column, 4.0, &mut scratch);
+            // The median and MAD only start one clipped pass over every value.
+            let guess = median_sigma(&column, (column.len() / 2048).max(1), &mut scratch);
+            let (_, sigma) = clipped_mean_sigma(&column, guess, 4.0, 1);
             if sigma > 0.0 { sigma } else { std_dev(&column) }
         })
         .collect())

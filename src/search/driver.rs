@@ -173,6 +173,9 @@ struct Searcher<'a> {
     plan: DmPlan,
     /// Boxcar widths of each plan step, in that step's samples.
     widths: Vec<Vec<usize>>,
+    /// Per step and width, the trials between tests of that width
+    /// ([`dedisperse::boxcar_strides`]).
+    strides: Vec<Vec<usize>>,
     dm_offsets: Vec<usize>,
     static_mask: Vec<bool>,
     layout: BlockLayout,
@@ -256,6 +259,16 @@ impl<'a> Searcher<'a> {
             .iter()
             .map(|s| boxcar::width_ladder((max_width / s.downsample).max(1), config.width_ratio))
             .collect();
+        let widths_s: Vec<Vec<f64>> = widths
+            .iter()
+            .zip(&plan.steps)
+            .map(|(w, s)| {
+                w.iter()
+                    .map(|&w| (w * s.downsample) as f64 * header.tsamp_s)
+                    .collect()
+            })
+            .collect();
+        let strides = dedisperse::boxcar_strides(&plan, &config.plan, &widths_s)?;
         let max_ds = plan.steps.iter().map(|s| s.downsample).max().unwrap_or(1);
         let max_width = widths
             .iter()
@@ -300,6 +313,7 @@ impl<'a> Searcher<'a> {
             config,
             plan,
             widths,
+            strides,
             dm_offsets,
             static_mask,
             layout,
@@ -389,7 +403,7 @@ impl<'a> Searcher<'a> {
             if n == 0 {
                 continue;
             }
-            let widths = &self.widths[si];
+            let (widths, strides) = (&self.widths[si], &self.strides[si]);
             let baseline = (self.layout.baseline_len / ds).max(1);
             let dms = &step.dms;
             let offset = self.dm_offsets[si];
@@ -403,9 +417,11 @@ impl<'a> Searcher<'a> {
                     |(scratch, work, peaks), (d, row)| {
                         normalise_series(row, baseline, SERIES_SIGMA_VALUES, work);
                         peaks.clear();
+                        // The widths due at this trial: a prefix of the ladder.
+                        let due = strides.iter().take_while(|&&k| d % k == 0).count();
                         boxcar::search_series(
                             row,
-                            widths,
+                            &widths[..due],
                             threshold,
                             starts.clone(),
                             scratch,
@@ -417,6 +433,7 @@ impl<'a> Searcher<'a> {
                                 start_sample: block_start + (p.start * ds) as u64,
                                 width_samples: p.width * ds,
                                 dm_index: offset + d,
+                                dm_stride: strides[widths.partition_point(|&w| w < p.width)],
                                 dm: dms[d],
                                 snr: f64::from(p.snr),
                             })
@@ -492,6 +509,7 @@ impl<'a> Searcher<'a> {
         let trials = trials::count(
             &self.plan,
             &self.widths,
+            &self.strides,
             totals.samples_searched,
             h.bandwidth_mhz(),
             0.5 * (h.freq_lo_mhz() + h.freq_hi_mhz()),

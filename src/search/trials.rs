@@ -26,7 +26,7 @@ pub struct TrialTerm {
     pub width: usize,
     /// Boxcar starts searched per trial DM.
     pub starts: f64,
-    /// Trial DMs of the step.
+    /// Trial DMs of the step at which this width was tested.
     pub dm_trials: usize,
     /// Effectively independent DMs at this width.
     pub independent_dms: f64,
@@ -88,10 +88,12 @@ pub fn upcrossing_rate(s: f64, w: usize) -> f64 {
 }
 
 /// Counts trials for `n_samples` searched input samples of a plan whose step `i`
-/// searched the boxcar widths `widths[i]` (in that step's downsampled samples).
+/// searched the boxcar widths `widths[i]` (in that step's downsampled samples), each
+/// at every `strides[i][j]`-th trial.
 pub fn count(
     plan: &DmPlan,
     widths: &[Vec<usize>],
+    strides: &[Vec<usize>],
     n_samples: u64,
     bandwidth_mhz: f64,
     centre_mhz: f64,
@@ -99,17 +101,18 @@ pub fn count(
 ) -> TrialCount {
     let half = cm03_half_zeta();
     let mut terms = Vec::new();
-    for (step, step_widths) in plan.steps.iter().zip(widths) {
+    for ((step, step_widths), step_strides) in plan.steps.iter().zip(widths).zip(strides) {
         let span = step.dms.last().unwrap_or(&0.0) - step.dms.first().unwrap_or(&0.0);
-        for &w in step_widths {
+        for (&w, &stride) in step_widths.iter().zip(step_strides) {
+            let dm_trials = step.dms.len().div_ceil(stride.max(1));
             let width_ms = (w * step.downsample) as f64 * plan.tsamp_s * 1e3;
             // δDM at which ζ reaches its half-S/N value (ζ is linear in δDM).
             let dm_half = half / cm03_zeta(1.0, bandwidth_mhz, width_ms, centre_mhz / 1e3);
             terms.push(TrialTerm {
                 width: w,
                 starts: n_samples as f64 / step.downsample as f64,
-                dm_trials: step.dms.len(),
-                independent_dms: (span / dm_half + 1.0).min(step.dms.len() as f64),
+                dm_trials,
+                independent_dms: (span / dm_half + 1.0).min(dm_trials as f64),
             });
         }
     }
@@ -157,7 +160,15 @@ mod tests {
     #[test]
     fn one_dm_counts_every_start() {
         let plan = DmPlan::uniform(vec![1400.0], 1.0, 1e-3, 0.0, 0.0, 1);
-        let t = count(&plan, &[vec![1, 4]], 1000, 400.0, 1400.0, 5.0);
+        let t = count(
+            &plan,
+            &[vec![1, 4]],
+            &[vec![1, 1]],
+            1000,
+            400.0,
+            1400.0,
+            5.0,
+        );
         assert_eq!(t.raw_trials, 2000.0);
         let expected = 1000.0 * (upcrossing_rate(5.0, 1) + upcrossing_rate(5.0, 4));
         assert!((t.expected_false_alarms - expected).abs() < 1e-15);
