@@ -135,6 +135,32 @@ fn false_alarms_on_pure_noise_match_the_gaussian_tail() {
     );
 }
 
+/// Bursts of `width_s` and S/N `snr`, one per `(dm, offset)` case, the k-th peaking at
+/// the top channel `offset` samples after the edge between block k's owned range and
+/// the next block's.
+fn bursts_at_block_edges(
+    c: &SearchConfig,
+    n: u64,
+    cases: &[(f64, f64)],
+    width_s: f64,
+    snr: f64,
+) -> Vec<Burst> {
+    let h = header(N_CHAN, n, TSAMP);
+    let layout = burstbook::search::block_layout(&h, c).unwrap();
+    let advance = (layout.block_len - layout.overlap) as f64;
+    let first_edge =
+        (layout.block_len - layout.max_delay - layout.max_width - layout.margin) as f64;
+    cases
+        .iter()
+        .enumerate()
+        .map(|(k, &(dm, off))| {
+            let to_top = K_HANDBOOK_S_MHZ2 * dm / h.freqs_mhz[0].powi(2);
+            let top_s = (first_edge + k as f64 * advance + off) * TSAMP;
+            burst(&h, top_s - to_top, dm, width_s, snr)
+        })
+        .collect()
+}
+
 // Bursts whose best boxcar starts within a few samples of the boundary between two
 // blocks' owned ranges are each reported exactly once.
 #[test]
@@ -143,22 +169,8 @@ fn events_at_block_edges_are_reported_once() {
     c.plan.dm_max = 100.0;
     c.block_s = 2.0;
     let n = 13_000u64;
-    let h = header(N_CHAN, n, TSAMP);
-    let layout = burstbook::search::block_layout(&h, &c).unwrap();
-    let advance = (layout.block_len - layout.overlap) as f64;
-    let first_edge =
-        (layout.block_len - layout.max_delay - layout.max_width - layout.margin) as f64;
-    let dm = 60.0;
-    let to_top = K_HANDBOOK_S_MHZ2 * dm / h.freqs_mhz[0].powi(2);
-    let bursts: Vec<Burst> = [-3.0, -1.0, 0.0, 1.0, 3.0]
-        .iter()
-        .enumerate()
-        .map(|(k, off)| {
-            // Peak at the top channel `off` samples after block k's edge.
-            let top_s = (first_edge + k as f64 * advance + off) * TSAMP;
-            burst(&h, top_s - to_top, dm, 4e-3, 25.0)
-        })
-        .collect();
+    let cases = [-3.0, -1.0, 0.0, 1.0, 3.0].map(|off| (60.0, off));
+    let bursts = bursts_at_block_edges(&c, n, &cases, 4e-3, 25.0);
     let r = run(n, 3, &bursts, &c);
     assert!(r.n_blocks >= 6, "{} blocks", r.n_blocks);
     for b in &bursts {
@@ -171,6 +183,32 @@ fn events_at_block_edges_are_reported_once() {
         );
     }
     assert_eq!(r.candidates.len(), bursts.len());
+}
+
+// Bright bursts echo at neighbouring trial DMs, later at lower DMs and earlier at
+// higher ones, by up to the sweep across the band: placed just before and after block
+// edges, such echoes fall into the neighbouring block's owned range. Each burst is
+// still reported once, at its own DM.
+#[test]
+fn bright_bursts_at_block_edges_are_reported_once() {
+    let mut c = config();
+    c.block_s = 2.0;
+    let n = 16_000u64;
+    let cases = [(250.0, -40.0), (250.0, 30.0), (120.0, -8.0), (200.0, 5.0)];
+    let bursts = bursts_at_block_edges(&c, n, &cases, 3e-3, 80.0);
+    let r = run(n, 9, &bursts, &c);
+    for (b, &(dm, _)) in bursts.iter().zip(&cases) {
+        let found = near(&r, b.t_inf_s);
+        assert_eq!(
+            found.len(),
+            1,
+            "burst at {} s: {:#?}",
+            b.t_inf_s,
+            r.candidates
+        );
+        assert!((found[0].dm - dm).abs() < 3.0, "{:?}", found[0]);
+    }
+    assert_eq!(r.candidates.len(), bursts.len(), "{:#?}", r.candidates);
 }
 
 // Narrow-band interference and an undispersed broadband impulse are not called
