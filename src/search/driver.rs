@@ -99,7 +99,7 @@ pub fn search_source(
         searcher.fast = Some(FastDedisperser::new(&searcher.plan));
     }
     let (block_len, n_samples) = (searcher.layout.block_len, searcher.header.n_samples);
-    let mut reader = BlockReader::new(source, block_len, searcher.layout.overlap)?;
+    let reader = BlockReader::new(source, block_len, searcher.layout.overlap)?;
     if let Some(pb) = progress {
         pb.set_length(n_samples);
     }
@@ -107,22 +107,48 @@ pub fn search_source(
     // Candidates of one block can only repeat those within one overlap before them.
     let recent_s = searcher.layout.overlap as f64 * searcher.header.tsamp_s
         + searcher.plan.max_dm() * searcher.sweep.top_s_per_dm;
-    let mut first = true;
-    while let Some(block) = reader.next_block()? {
-        let end = block.start_sample + block.n_time() as u64;
-        // A short block, or one reaching the header's length, ends the file.
-        let last = block.n_time() < block_len || end >= n_samples;
-        let outcome = searcher.block(block, first, last);
-        totals.add(outcome, &searcher.sweep, recent_s);
-        first = false;
-        if let Some(pb) = progress {
-            pb.set_position(end);
+    std::thread::scope(|scope| -> Result<()> {
+        let blocks = prefetch(scope, reader);
+        let mut first = true;
+        for block in blocks {
+            let Some(block) = block? else { break };
+            let end = block.start_sample + block.n_time() as u64;
+            // A short block, or one reaching the header's length, ends the file.
+            let last = block.n_time() < block_len || end >= n_samples;
+            let outcome = searcher.block(block, first, last);
+            totals.add(outcome, &searcher.sweep, recent_s);
+            first = false;
+            if let Some(pb) = progress {
+                pb.set_position(end);
+            }
+            if last {
+                break;
+            }
         }
-        if last {
-            break;
-        }
-    }
+        Ok(())
+    })?;
     Ok(searcher.finish(totals))
+}
+
+/// Reads blocks on a thread of `scope`, one block ahead of the caller, so that
+/// reading and decoding overlap the search of the block before. The thread ends
+/// after the last block or an error, or when the receiver is dropped.
+fn prefetch<'scope>(
+    scope: &'scope std::thread::Scope<'scope, '_>,
+    mut reader: BlockReader<Box<dyn SampleSource>>,
+) -> std::sync::mpsc::IntoIter<Result<Option<Block>>> {
+    // A rendezvous channel: at most one block waits beside the one being searched.
+    let (tx, rx) = std::sync::mpsc::sync_channel(0);
+    scope.spawn(move || {
+        loop {
+            let next = reader.next_block();
+            let more = matches!(next, Ok(Some(_)));
+            if tx.send(next).is_err() || !more {
+                break;
+            }
+        }
+    });
+    rx.into_iter()
 }
 
 /// The block layout a search of a recording with `header` would use.
