@@ -7,6 +7,7 @@
 //! series is normalised again → [`boxcar`] matched filter → [`crate::cluster`] →
 //! features and [`crate::triage`].
 
+mod blocks;
 pub mod boxcar;
 mod config;
 mod driver;
@@ -16,6 +17,7 @@ pub mod normalise;
 pub mod output;
 pub mod trials;
 
+pub use blocks::BlockLayout;
 pub use config::{ClusterConfig, SearchConfig, TriageConfig};
-pub use driver::{BlockLayout, FileResult, block_layout, search_file, search_source};
+pub use driver::{FileResult, block_layout, search_file, search_source};
 pub use trials::TrialCount;

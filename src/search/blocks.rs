@@ -1,0 +1,139 @@
+//! How a recording is cut into blocks, which block owns which event, and how the
+//! blocks' candidates are gathered so that each event is kept once.
+//!
+//! Block geometry (input samples): D = largest dispersion delay, W = widest boxcar,
+//! M = W + 2·(largest downsampling), a margin for an event's extent around its peak.
+//! Blocks overlap by D + W + 2M. A block owns the boxcar starts
+//! `[start + M, start + n − D − W − M)` (from the file start for the first block, to
+//! the file end for the last); these ranges tile the file without gaps or overlaps.
+//! Every dedispersed series is normalised and its noise measured over the whole
+//! block, but boxcars are only tested where they start within M of the owned range:
+//! a cluster owned by a block then lies entirely inside the tested starts as long as
+//! it extends less than M around its peak, and no work is spent on starts another
+//! block owns. Memory is set by the block length, not the file length.
+//!
+//! A bright pulse also shows at neighbouring trial DMs, earlier at higher DMs and
+//! later at lower ones (its "bow-tie"); within a block such echoes merge into the
+//! pulse's cluster. An echo owned by one block whose pulse is owned by the next (or
+//! the previous) is recognised when the blocks' candidates are gathered: of two
+//! candidates on one bow-tie, only the brighter is kept.
+
+use serde::{Deserialize, Serialize};
+
+use crate::candidate::Candidate;
+use crate::cluster::{Event, Sweep};
+use crate::error::Result;
+use crate::obs::{Block, BlockReader, SampleSource};
+
+/// How a recording is cut into blocks (all in input samples; see the module docs).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct BlockLayout {
+    /// Largest dispersion delay across the band over all trials (D).
+    pub max_delay: usize,
+    /// Widest boxcar (W).
+    pub max_width: usize,
+    /// Margin for an event's extent around its peak (M).
+    pub margin: usize,
+    /// Rows shared by consecutive blocks, D + W + 2M.
+    pub overlap: usize,
+    /// Rows per block, overlap included.
+    pub block_len: usize,
+    /// Running-baseline window.
+    pub baseline_len: usize,
+}
+
+impl BlockLayout {
+    /// The boxcar starts owned by a block of `n_time` rows starting at `start`, as a
+    /// half-open range; `first` and `last` extend it to the file's ends.
+    pub fn owned_range(&self, start: u64, n_time: usize, first: bool, last: bool) -> (u64, u64) {
+        let lo = if first { 0 } else { start + self.margin as u64 };
+        let hi = if last {
+            u64::MAX
+        } else {
+            (start + n_time as u64)
+                .saturating_sub((self.max_delay + self.max_width + self.margin) as u64)
+        };
+        (lo, hi)
+    }
+}
+
+/// What one block contributed.
+pub(super) struct BlockOutcome {
+    pub(super) candidates: Vec<Candidate>,
+    pub(super) masked_fraction: f64,
+    pub(super) n_detections: usize,
+    pub(super) samples_searched: u64,
+    /// Rows not shared with the previous block.
+    pub(super) new_samples: u64,
+}
+
+#[derive(Default)]
+pub(super) struct Totals {
+    pub(super) candidates: Vec<Candidate>,
+    pub(super) masked_weighted: f64,
+    pub(super) new_samples: u64,
+    pub(super) n_blocks: usize,
+    pub(super) n_detections: usize,
+    pub(super) samples_searched: u64,
+}
+
+impl Totals {
+    /// Adds a block's outcome. Of a candidate and one the previous block reported on
+    /// the same bow-tie (a pulse and its echo at another trial DM, or one pulse found
+    /// by both blocks because their S/N estimates differ slightly at the boundary),
+    /// only the one with the higher S/N is kept.
+    pub(super) fn add(&mut self, o: BlockOutcome, sweep: &Sweep, recent_s: f64) {
+        let event = |c: &Candidate| Event {
+            t_inf_s: c.t_inf_s,
+            dm: c.dm,
+            width_s: c.width_ms * 1e-3,
+        };
+        for c in o.candidates {
+            let horizon = c.t_inf_s - recent_s;
+            let twin = self
+                .candidates
+                .iter_mut()
+                .rev()
+                .take_while(|p| p.t_inf_s >= horizon)
+                .find(|p| {
+                    let (a, b) = if p.snr >= c.snr {
+                        (&**p, &c)
+                    } else {
+                        (&c, &**p)
+                    };
+                    sweep.on_bow_tie(&event(a), &event(b), 0.0)
+                });
+            match twin {
+                Some(p) if p.snr >= c.snr => {}
+                Some(p) => *p = c,
+                None => self.candidates.push(c),
+            }
+        }
+        self.masked_weighted += o.masked_fraction * o.new_samples as f64;
+        self.new_samples += o.new_samples;
+        self.n_blocks += 1;
+        self.n_detections += o.n_detections;
+        self.samples_searched += o.samples_searched;
+    }
+}
+
+/// Reads blocks on a thread of `scope`, one block ahead of the caller, so that
+/// reading and decoding overlap the search of the block before. The thread ends
+/// after the last block or an error, or when the receiver is dropped.
+pub(super) fn prefetch<'scope>(
+    scope: &'scope std::thread::Scope<'scope, '_>,
+    mut reader: BlockReader<Box<dyn SampleSource>>,
+) -> std::sync::mpsc::IntoIter<Result<Option<Block>>> {
+    // A rendezvous channel: at most one block waits beside the one being searched.
+    let (tx, rx) = std::sync::mpsc::sync_channel(0);
+    scope.spawn(move || {
+        loop {
+            let next = reader.next_block();
+            let more = matches!(next, Ok(Some(_)));
+            if tx.send(next).is_err() || !more {
+                break;
+            }
+        }
+    });
+    rx.into_iter()
+}
