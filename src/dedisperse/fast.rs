@@ -88,14 +88,31 @@ impl FastDedisperser {
     /// # Panics
     /// If `input` has a different channel count from the plan (a caller bug).
     pub fn dedisperse(&mut self, input: ArrayView2<'_, f32>) -> Vec<Dedispersed> {
-        let (n_chan, n_time) = input.dim();
-        assert_eq!(
-            n_chan,
-            self.plan.freqs_mhz.len(),
-            "input channels disagree with the plan"
-        );
+        let n_time = input.ncols();
         let input = input.as_standard_layout();
-        let input = input.as_slice().expect("standard layout is contiguous");
+        let rows = input.as_slice().expect("standard layout is contiguous");
+        self.dedisperse_rows(rows, n_time, n_time)
+    }
+
+    /// [`FastDedisperser::dedisperse`] for channels stored `row_stride` values apart:
+    /// channel c's `n_time` samples are `rows[c·row_stride..][..n_time]`. A block held
+    /// in a larger buffer is thus read in place.
+    ///
+    /// # Panics
+    /// If `rows` does not hold the plan's channels so laid out (a caller bug).
+    pub fn dedisperse_rows(
+        &mut self,
+        rows: &[f32],
+        n_time: usize,
+        row_stride: usize,
+    ) -> Vec<Dedispersed> {
+        let n_chan = self.plan.freqs_mhz.len();
+        assert!(
+            n_time <= row_stride
+                && (n_chan == 0 || rows.len() >= (n_chan - 1) * row_stride + n_time),
+            "input rows disagree with the plan's channels"
+        );
+        let input = rows;
         let valid = n_time.saturating_sub(self.plan.max_delay_samples());
         let mut out = Vec::with_capacity(self.steps.len());
         let mut coarse_ds = 1;
@@ -104,14 +121,17 @@ impl FastDedisperser {
                 coarse_ds = 1;
             }
             while coarse_ds < kernel.tree_ds {
-                let src = if coarse_ds == 1 { input } else { &self.coarse };
-                halve(src, n_time / coarse_ds, &mut self.halved, n_chan);
+                let (src, stride) = match coarse_ds {
+                    1 => (input, row_stride),
+                    ds => (&self.coarse[..], n_time / ds),
+                };
+                halve(src, n_time / coarse_ds, stride, &mut self.halved, n_chan);
                 std::mem::swap(&mut self.coarse, &mut self.halved);
                 coarse_ds *= 2;
             }
-            let (rows, row_len): (&[f32], usize) = match coarse_ds {
-                1 => (input, n_time),
-                ds => (&self.coarse, n_time / ds),
+            let (rows, row_len, row_stride): (&[f32], usize, usize) = match coarse_ds {
+                1 => (input, n_time, row_stride),
+                ds => (&self.coarse, n_time / ds, n_time / ds),
             };
             let n_out = valid / step.downsample;
             let mut data = self
@@ -119,15 +139,24 @@ impl FastDedisperser {
                 .get_mut(out.len())
                 .map(std::mem::take)
                 .unwrap_or_default();
-            data.clear();
-            data.resize(step.dms.len() * n_out, 0.0);
-            if n_chan > 0 && n_out > 0 {
+            let n_values = step.dms.len() * n_out;
+            // Stage 2 writes every output sample, so a reused buffer needs no clearing,
+            // and a fresh one is left to the parallel stage 2 to touch first (zeroing it
+            // here would fault its pages in on one thread).
+            if data.capacity() < n_values {
+                data = vec![0.0; n_values];
+            }
+            data.resize(n_values, 0.0);
+            if n_chan == 0 {
+                data.fill(0.0);
+            } else if n_out > 0 {
                 let chunk = chunk_len(kernel.max_path).div_ceil(kernel.per_out);
                 for t0 in (0..n_out).step_by(chunk) {
                     let len = chunk.min(n_out - t0);
                     let source = Source {
                         rows,
                         row_len,
+                        row_stride,
                         t0: t0 * kernel.per_out,
                     };
                     let stride = stage1(kernel, &source, len, &mut self.stage1);
@@ -158,23 +187,25 @@ pub(crate) fn chunk_len(max_path: usize) -> usize {
     (CHUNK_PER_PATH * max_path).max(MIN_CHUNK)
 }
 
-/// The block at the step's tree resolution (`[channel, row_len]`) and the chunk's
-/// first tree sample.
+/// The block at the step's tree resolution (`row_len` samples per channel, channels
+/// `row_stride` apart) and the chunk's first tree sample.
 struct Source<'a> {
     rows: &'a [f32],
     row_len: usize,
+    row_stride: usize,
     t0: usize,
 }
 
 /// Halves the time resolution of `src` (`[channel, time]`, `row_len` samples per
-/// channel) into `dst`, in parallel over channels; an odd last sample is dropped.
-fn halve(src: &[f32], row_len: usize, dst: &mut Vec<f32>, n_chan: usize) {
+/// channel, channels `row_stride` apart) into `dst` (channels contiguous), in
+/// parallel over channels; an odd last sample is dropped.
+fn halve(src: &[f32], row_len: usize, row_stride: usize, dst: &mut Vec<f32>, n_chan: usize) {
     let new_len = row_len / 2;
     grow(dst, n_chan * new_len);
     dst[..n_chan * new_len]
         .par_chunks_mut(new_len.max(1))
-        .zip(src.par_chunks(row_len.max(1)))
-        .for_each(|(dst, src)| pair_sums(dst, src));
+        .zip(src.par_chunks(row_stride.max(1)))
+        .for_each(|(dst, src)| pair_sums(dst, &src[..row_len]));
 }
 
 /// `dst[j] = src[2j] + src[2j + 1]`.
@@ -248,7 +279,7 @@ fn subband_rows(
         let width = len + halo;
         grow(&mut scratch.channels, n_chan * width);
         for (row, &c) in scratch.channels.chunks_exact_mut(width).zip(&sub.channels) {
-            let chan = &src.rows[c * src.row_len..(c + 1) * src.row_len];
+            let chan = &src.rows[c * src.row_stride..][..src.row_len];
             copy_from(chan, src.t0 + j0 * per_out, row);
         }
         let rows = sub.tree.max_rows(n_chan);
@@ -364,9 +395,13 @@ fn accumulate_rows(acc: &mut [f32], stage1: &[f32], starts: impl Iterator<Item =
     }
 }
 
-/// Grows `buf` to at least `n` values (never shrinks: the scratch is reused).
+/// Grows `buf` to at least `n` values (never shrinks: the scratch is reused). Old
+/// values need not survive, so a buffer too small is replaced by fresh zeroed memory,
+/// whose pages the parallel code that fills it touches first.
 fn grow(buf: &mut Vec<f32>, n: usize) {
-    if buf.len() < n {
+    if buf.capacity() < n {
+        *buf = vec![0.0; n];
+    } else if buf.len() < n {
         buf.resize(n, 0.0);
     }
 }

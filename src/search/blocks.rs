@@ -23,7 +23,7 @@ use serde::{Deserialize, Serialize};
 use crate::candidate::Candidate;
 use crate::cluster::{Event, Sweep};
 use crate::error::Result;
-use crate::obs::{Block, BlockReader, SampleSource};
+use crate::obs::{Block, SampleSource};
 
 /// How a recording is cut into blocks (all in input samples; see the module docs).
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -117,23 +117,57 @@ impl Totals {
     }
 }
 
-/// Reads blocks on a thread of `scope`, one block ahead of the caller, so that
-/// reading and decoding overlap the search of the block before. The thread ends
-/// after the last block or an error, or when the receiver is dropped.
+/// Where [`prefetch`] takes its buffers back for reuse.
+pub(super) type Recycle = std::sync::mpsc::Sender<Vec<f32>>;
+
+/// Reads `source` on a thread of `scope`, one read ahead of the caller, so that
+/// reading and decoding overlap the search: first `first_len` rows, then `next_len`
+/// rows at a time, each as a [`Block`] of new rows only (no overlap). Buffers sent
+/// back on the returned [`Recycle`] are reused, so reads need no fresh memory. A read
+/// shorter than asked is the last. The thread ends after the last read or an error,
+/// or when the receiver is dropped.
 pub(super) fn prefetch<'scope>(
     scope: &'scope std::thread::Scope<'scope, '_>,
-    mut reader: BlockReader<Box<dyn SampleSource>>,
-) -> std::sync::mpsc::IntoIter<Result<Option<Block>>> {
-    // A rendezvous channel: at most one block waits beside the one being searched.
+    mut source: Box<dyn SampleSource>,
+    first_len: usize,
+    next_len: usize,
+) -> (std::sync::mpsc::IntoIter<Result<Option<Block>>>, Recycle) {
+    // A rendezvous channel: at most one read waits beside the one being searched.
     let (tx, rx) = std::sync::mpsc::sync_channel(0);
+    let (recycle, spare) = std::sync::mpsc::channel::<Vec<f32>>();
     scope.spawn(move || {
+        let n_chan = source.header().n_chan();
+        let (mut start_sample, mut want) = (0u64, first_len);
         loop {
-            let next = reader.next_block();
-            let more = matches!(next, Ok(Some(_)));
+            let mut data = spare.try_recv().unwrap_or_default();
+            data.resize(want * n_chan, 0.0);
+            let mut filled = 0;
+            let read = loop {
+                if filled == want {
+                    break Ok(());
+                }
+                match source.read_rows(&mut data[filled * n_chan..]) {
+                    Ok(0) => break Ok(()),
+                    Ok(got) => filled += got,
+                    Err(e) => break Err(e),
+                }
+            };
+            data.truncate(filled * n_chan);
+            let more = read.is_ok() && filled == want;
+            let next = read.map(|()| {
+                (filled > 0).then_some(Block {
+                    start_sample,
+                    overlap: 0,
+                    n_chan,
+                    data,
+                })
+            });
             if tx.send(next).is_err() || !more {
                 break;
             }
+            start_sample += filled as u64;
+            want = next_len;
         }
     });
-    rx.into_iter()
+    (rx.into_iter(), recycle)
 }

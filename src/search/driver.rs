@@ -6,23 +6,24 @@
 use std::path::Path;
 
 use indicatif::ProgressBar;
-use ndarray::Array2;
+use ndarray::ArrayView2;
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
 use super::SearchConfig;
 use super::blocks::{BlockLayout, BlockOutcome, Totals, prefetch};
 use super::boxcar::{self, Scratch};
+use super::channels::{Appended, ChannelBlock};
 use super::features::{self, BlockData};
 use super::fluence::fluence_jy_ms;
-use super::normalise::{SERIES_SIGMA_VALUES, normalise_channels, normalise_series};
+use super::normalise::{SERIES_SIGMA_VALUES, normalise_series};
 use super::trials::{self, TrialCount};
 use crate::candidate::Candidate;
-use crate::clean::{self, impulse, user_mask::static_mask, zero_dm};
+use crate::clean::user_mask::static_mask;
 use crate::cluster::{Cluster, Detection, Sweep, friends_of_friends, merge_dispersion_tails};
 use crate::dedisperse::{self, DmPlan, FastDedisperser, Kernel};
 use crate::error::{Error, Result};
-use crate::obs::{Block, BlockReader, Header, SampleSource};
+use crate::obs::{Header, SampleSource};
 use crate::triage;
 use crate::units::delay_to_infinity_s;
 
@@ -82,24 +83,39 @@ pub fn search_source(
     if config.kernel == Kernel::Fast {
         searcher.fast = Some(FastDedisperser::new(&searcher.plan));
     }
-    let (block_len, n_samples) = (searcher.layout.block_len, searcher.header.n_samples);
-    let reader = BlockReader::new(source, block_len, searcher.layout.overlap)?;
+    let g = searcher.layout.clone();
+    let n_samples = searcher.header.n_samples;
     if let Some(pb) = progress {
         pb.set_length(n_samples);
     }
     let mut totals = Totals::default();
     // Candidates of one block can only repeat those within one overlap before them.
-    let recent_s = searcher.layout.overlap as f64 * searcher.header.tsamp_s
+    let recent_s = g.overlap as f64 * searcher.header.tsamp_s
         + searcher.plan.max_dm() * searcher.sweep.top_s_per_dm;
+    let mut channels = ChannelBlock::new(searcher.header.n_chan(), g.block_len);
     std::thread::scope(|scope| -> Result<()> {
-        let blocks = prefetch(scope, reader);
+        let advance = g.block_len - g.overlap;
+        let (reads, recycle) = prefetch(scope, source, g.block_len, advance);
         let mut first = true;
-        for block in blocks {
-            let Some(block) = block? else { break };
-            let end = block.start_sample + block.n_time() as u64;
-            // A short block, or one reaching the header's length, ends the file.
-            let last = block.n_time() < block_len || end >= n_samples;
-            let outcome = searcher.block(block, first, last);
+        for read in reads {
+            let Some(read) = read? else { break };
+            let asked = if first { g.block_len } else { advance };
+            let end = read.start_sample + read.n_time() as u64;
+            // A short read, or one reaching the header's length, ends the file.
+            let last = read.n_time() < asked || end >= n_samples;
+            let keep = if first { 0 } else { g.overlap };
+            let appended = channels.append(
+                read.view(),
+                read.start_sample,
+                keep,
+                &searcher.static_mask,
+                &config.clean,
+                g.baseline_len,
+            );
+            let new_samples = read.n_time() as u64;
+            // The reader may have ended already; then the buffer is simply dropped.
+            let _ = recycle.send(read.data);
+            let outcome = searcher.block(&channels, first, last, new_samples, appended);
             totals.add(outcome, &searcher.sweep, recent_s);
             first = false;
             if let Some(pb) = progress {
@@ -219,46 +235,39 @@ impl<'a> Searcher<'a> {
         })
     }
 
-    /// Searches one block; its raw samples are released once normalised.
-    fn block(&mut self, block: Block, first: bool, last: bool) -> BlockOutcome {
+    /// Searches the block in `channels`, whose last `new_samples` rows were just
+    /// appended.
+    fn block(
+        &mut self,
+        channels: &ChannelBlock,
+        first: bool,
+        last: bool,
+        new_samples: u64,
+        appended: Appended,
+    ) -> BlockOutcome {
         let g = &self.layout;
-        let cfg = &self.config.clean;
-        let (start, n_time, new_samples) = (
-            block.start_sample,
-            block.n_time(),
-            (block.n_time() - block.overlap) as u64,
-        );
-        let mut mask = self.static_mask.clone();
-        clean::flag_channels(block.view(), &mut mask, cfg);
-        let mut norm = normalise_channels(block.view(), &mut mask, g.baseline_len);
-        drop(block);
-        let n_clipped = impulse::clip(norm.view_mut(), &mask, cfg.clip_threshold);
-        if cfg.zero_dm {
-            zero_dm::apply(norm.view_mut(), &mask);
-        }
+        let (start, n_time) = (channels.start_sample(), channels.n_time());
+        let (norm, mask) = (channels.view(), channels.mask());
         let n_chan = mask.len();
         let n_masked = mask.iter().filter(|&&m| m).count();
-        let masked_fraction = if n_time == 0 {
-            0.0
-        } else {
-            (n_masked * n_time + n_clipped * (n_chan - n_masked)) as f64 / (n_chan * n_time) as f64
-        };
-
         let mut outs = match &mut self.fast {
-            Some(kernel) => kernel.dedisperse(norm.view()),
-            None => dedisperse::reference::dedisperse(norm.view(), &self.plan),
+            Some(kernel) => {
+                let (rows, stride) = channels.rows();
+                kernel.dedisperse_rows(rows, n_time, stride)
+            }
+            None => dedisperse::reference::dedisperse(norm, &self.plan),
         };
         let (own_lo, own_hi) = g.owned_range(start, n_time, first, last);
         // Boxcar starts tested, relative to the block start (see the module docs).
         let tested = own_lo.saturating_sub(start + g.margin as u64) as usize
             ..own_hi.saturating_add(g.margin as u64).saturating_sub(start) as usize;
         let detections = self.detect(&mut outs, start, tested);
-        let dm0 = self.dm0_series(&norm, &mask);
+        let dm0 = self.dm0_series(norm, mask);
         let data = BlockData {
             header: &self.header,
             dm_offsets: &self.dm_offsets,
-            norm: norm.view(),
-            mask: &mask,
+            norm,
+            mask,
             dm0: &dm0,
             outs: &outs,
             block_start: start,
@@ -278,7 +287,7 @@ impl<'a> Searcher<'a> {
         let searched_hi = (start + n_time.saturating_sub(g.max_delay) as u64).min(own_hi);
         BlockOutcome {
             candidates,
-            masked_fraction,
+            masked_fraction: appended.masked_fraction,
             n_detections: detections.len(),
             samples_searched: searched_hi.saturating_sub(own_lo.max(start)),
             new_samples,
@@ -345,7 +354,7 @@ impl<'a> Searcher<'a> {
     }
 
     /// The band sum at DM 0, normalised like a dedispersed series.
-    fn dm0_series(&self, norm: &Array2<f32>, mask: &[bool]) -> Vec<f32> {
+    fn dm0_series(&self, norm: ArrayView2<'_, f32>, mask: &[bool]) -> Vec<f32> {
         let mut dm0 = vec![0.0f32; norm.ncols()];
         for (row, _) in norm.rows().into_iter().zip(mask).filter(|(_, m)| !**m) {
             for (s, &v) in dm0.iter_mut().zip(row.iter()) {

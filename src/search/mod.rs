@@ -9,6 +9,7 @@
 
 mod blocks;
 pub mod boxcar;
+mod channels;
 mod config;
 mod driver;
 mod features;

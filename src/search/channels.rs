@@ -1,0 +1,324 @@
+//! The channel-major block a search works on, kept from one block to the next.
+//!
+//! Consecutive blocks share `overlap` rows. Rather than flag, transpose and normalise
+//! those rows again, the block keeps them: each block starts with the last rows of the
+//! one before, already normalised, and only the newly read rows are flagged (by their
+//! own channel statistics), transposed, normalised and cleaned. Every sample is thus
+//! processed once, by the statistics of the read it arrived in, and the block's
+//! memory is allocated once for the whole recording.
+
+use ndarray::{ArrayView2, ArrayViewMut2, ShapeBuilder, s};
+use rayon::prelude::*;
+
+use super::normalise::{CHANNEL_SIGMA_VALUES, normalise_series};
+use crate::clean::{self, CleanConfig, impulse, zero_dm};
+
+/// Side of the square tiles in which new rows are transposed (16 KiB, in L1 cache).
+const TILE: usize = 64;
+
+/// A block of normalised samples, `[channel, time]`, with room for `capacity` rows.
+pub(super) struct ChannelBlock {
+    n_chan: usize,
+    capacity: usize,
+    /// `[channel, capacity]`; the first `len` values of each channel are valid.
+    data: Vec<f32>,
+    len: usize,
+    /// File index of the first valid row.
+    start_sample: u64,
+    /// Channels masked in the rows appended last.
+    new_mask: Vec<bool>,
+    /// Channels masked anywhere in the block: in the new rows or in the rows kept.
+    mask: Vec<bool>,
+}
+
+/// What appending new rows found.
+pub(super) struct Appended {
+    /// Fraction of the new channel-samples masked or clipped.
+    pub masked_fraction: f64,
+}
+
+impl ChannelBlock {
+    /// An empty block of `n_chan` channels and at most `capacity` rows.
+    pub(super) fn new(n_chan: usize, capacity: usize) -> Self {
+        ChannelBlock {
+            n_chan,
+            capacity,
+            data: vec![0.0; n_chan * capacity],
+            len: 0,
+            start_sample: 0,
+            new_mask: vec![false; n_chan],
+            mask: vec![false; n_chan],
+        }
+    }
+
+    /// Rows in the block.
+    pub(super) fn n_time(&self) -> usize {
+        self.len
+    }
+
+    /// File index of the block's first row.
+    pub(super) fn start_sample(&self) -> u64 {
+        self.start_sample
+    }
+
+    /// Channels masked anywhere in the block.
+    pub(super) fn mask(&self) -> &[bool] {
+        &self.mask
+    }
+
+    /// The normalised samples in place: channel c's are `rows[c·stride..][..n_time()]`
+    /// for the returned `(rows, stride)`.
+    pub(super) fn rows(&self) -> (&[f32], usize) {
+        (&self.data, self.capacity)
+    }
+
+    /// The normalised samples, `[channel, time]`.
+    pub(super) fn view(&self) -> ArrayView2<'_, f32> {
+        let shape = (self.n_chan, self.len).strides((self.capacity, 1));
+        ArrayView2::from_shape(shape, &self.data).expect("rows fit the capacity")
+    }
+
+    /// Keeps the last `keep` rows of the block, drops the rest, and appends `raw`
+    /// (`[time, channel]`, read from file row `start_sample`): its channels are
+    /// flagged starting from `static_mask`, then normalised (`baseline_len` running
+    /// baseline) and cleaned as `config` asks.
+    ///
+    /// # Panics
+    /// If the rows kept and appended exceed the capacity, or `raw` has another
+    /// channel count (caller bugs).
+    pub(super) fn append(
+        &mut self,
+        raw: ArrayView2<'_, f32>,
+        start_sample: u64,
+        keep: usize,
+        static_mask: &[bool],
+        config: &CleanConfig,
+        baseline_len: usize,
+    ) -> Appended {
+        let (m, n_chan) = raw.dim();
+        assert_eq!(
+            n_chan, self.n_chan,
+            "rows disagree with the block's channels"
+        );
+        let keep = keep.min(self.len);
+        assert!(keep + m <= self.capacity, "block capacity exceeded");
+        self.shift_to_front(keep);
+        self.len = keep;
+        self.start_sample = start_sample - keep as u64;
+        let previous_mask = std::mem::replace(&mut self.new_mask, static_mask.to_vec());
+        clean::flag_channels(raw, &mut self.new_mask, config);
+        self.transpose_in(raw);
+        self.normalise_new(keep, m, baseline_len);
+        let mut new = ArrayViewMut2::from_shape((n_chan, self.capacity), &mut self.data[..])
+            .expect("buffer holds n_chan × capacity values")
+            .slice_move(s![.., keep..keep + m]);
+        let n_clipped = impulse::clip(new.view_mut(), &self.new_mask, config.clip_threshold);
+        if config.zero_dm {
+            zero_dm::apply(new, &self.new_mask);
+        }
+        self.len = keep + m;
+        self.mask = if keep > 0 {
+            zip_or(&self.new_mask, &previous_mask)
+        } else {
+            self.new_mask.clone()
+        };
+        let n_masked = self.new_mask.iter().filter(|&&v| v).count();
+        let masked_fraction = if m == 0 || n_chan == 0 {
+            0.0
+        } else {
+            (n_masked * m + n_clipped * (n_chan - n_masked)) as f64 / (n_chan * m) as f64
+        };
+        Appended { masked_fraction }
+    }
+
+    /// Moves rows `len − keep..len` of every channel to the front.
+    fn shift_to_front(&mut self, keep: usize) {
+        let (len, capacity) = (self.len, self.capacity);
+        if keep == len || capacity == 0 {
+            return;
+        }
+        self.data.par_chunks_mut(capacity).for_each(|row| {
+            row.copy_within(len - keep..len, 0);
+        });
+    }
+
+    /// Writes `raw` (`[time, channel]`) after the first `len` rows of every channel,
+    /// in tiles of [`TILE`] channels × [`TILE`] samples so reads and writes stay in
+    /// cache.
+    fn transpose_in(&mut self, raw: ArrayView2<'_, f32>) {
+        let (m, n_chan) = raw.dim();
+        if m == 0 || n_chan == 0 {
+            return;
+        }
+        let raw = raw.as_standard_layout();
+        let raw = raw.as_slice().expect("standard layout is contiguous");
+        let (len, capacity) = (self.len, self.capacity);
+        self.data
+            .par_chunks_mut(TILE * capacity)
+            .enumerate()
+            .for_each(|(g, group)| {
+                let c0 = g * TILE;
+                let n_c = group.len() / capacity;
+                for t0 in (0..m).step_by(TILE) {
+                    for t in t0..(t0 + TILE).min(m) {
+                        let line = &raw[t * n_chan + c0..][..n_c];
+                        for (k, &v) in line.iter().enumerate() {
+                            group[k * capacity + len + t] = v;
+                        }
+                    }
+                }
+            });
+    }
+
+    /// Normalises rows `keep..keep + m` of every channel not in `new_mask` and zeroes
+    /// those of masked channels; a channel found constant joins `new_mask`.
+    fn normalise_new(&mut self, keep: usize, m: usize, baseline_len: usize) {
+        if m == 0 {
+            return;
+        }
+        let capacity = self.capacity;
+        self.data
+            .par_chunks_mut(capacity)
+            .zip(self.new_mask.par_iter_mut())
+            .for_each_init(Vec::new, |scratch, (row, masked)| {
+                let series = &mut row[keep..keep + m];
+                if *masked {
+                    series.fill(0.0);
+                } else if normalise_series(series, baseline_len, CHANNEL_SIGMA_VALUES, scratch)
+                    == 0.0
+                {
+                    *masked = true;
+                }
+            });
+    }
+}
+
+/// Element-wise `a || b`.
+fn zip_or(a: &[bool], b: &[bool]) -> Vec<bool> {
+    a.iter().zip(b).map(|(&x, &y)| x || y).collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use ndarray::Array2;
+    use rand::SeedableRng;
+    use rand_distr::{Distribution, Normal};
+
+    /// No flagging or clipping: the tests look at normalisation and bookkeeping.
+    fn quiet_config() -> CleanConfig {
+        CleanConfig {
+            max_iterations: 0,
+            clip_threshold: 0.0,
+            ..CleanConfig::default()
+        }
+    }
+
+    #[test]
+    fn channels_come_out_zero_mean_unit_variance() {
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(2);
+        let n_time = 20_000;
+        let mut raw = Array2::from_shape_fn((n_time, 5), |(t, c)| {
+            let drift = 0.001 * t as f32; // slow baseline drift
+            let sd = 1.0 + c as f32;
+            100.0 * c as f32 + drift + Normal::new(0.0, sd).unwrap().sample(&mut rng)
+        });
+        raw.column_mut(3).fill(7.0); // constant: masked
+        let mut block = ChannelBlock::new(5, n_time);
+        let mask = [false, false, false, false, true];
+        block.append(raw.view(), 0, 0, &mask, &quiet_config(), 2000);
+        assert_eq!(block.mask(), &[false, false, false, true, true]);
+        let out = block.view();
+        for c in 0..3 {
+            let row = out.row(c);
+            let mean = row.sum() / n_time as f32;
+            let var = row.iter().map(|v| (v - mean).powi(2)).sum::<f32>() / n_time as f32;
+            // The mean is the average of the run medians' errors, 1.25/√n_time each
+            // over all runs together (Gaussian median efficiency, common practice).
+            assert!(
+                mean.abs() < 4.0 * 1.25 / (n_time as f32).sqrt(),
+                "c={c} mean {mean}"
+            );
+            assert!((var - 1.0).abs() < 0.04, "c={c} var {var}");
+        }
+        assert!(out.row(3).iter().all(|&v| v == 0.0));
+    }
+
+    /// Appending in pieces keeps the last rows unchanged and normalises each piece
+    /// on its own: the block equals the concatenation of the pieces normalised alone.
+    #[test]
+    fn kept_rows_are_carried_and_new_rows_normalised_alone() {
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(5);
+        let n_chan = 70; // more than one transpose tile, not a multiple of it
+        let noise = Normal::new(10.0, 2.0).unwrap();
+        let mut piece = |n: usize| Array2::from_shape_fn((n, n_chan), |_| noise.sample(&mut rng));
+        let (first, second) = (piece(3000), piece(2000));
+        let config = quiet_config();
+        let mask = vec![false; n_chan];
+        let alone = |raw: &Array2<f32>| {
+            let mut b = ChannelBlock::new(n_chan, raw.nrows());
+            b.append(raw.view(), 0, 0, &mask, &config, 500);
+            b.view().to_owned()
+        };
+        let (first_alone, second_alone) = (alone(&first), alone(&second));
+        let mut block = ChannelBlock::new(n_chan, 3100);
+        block.append(first.view(), 0, 0, &mask, &config, 500);
+        block.append(second.view(), 3000, 1000, &mask, &config, 500);
+        assert_eq!(block.start_sample(), 2000);
+        assert_eq!(block.n_time(), 3000);
+        let out = block.view();
+        assert_eq!(out.slice(s![.., ..1000]), first_alone.slice(s![.., 2000..]));
+        assert_eq!(out.slice(s![.., 1000..]), second_alone);
+    }
+
+    #[test]
+    fn a_channel_masked_in_the_kept_rows_stays_masked_for_the_block() {
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(9);
+        let noise = Normal::new(0.0, 1.0).unwrap();
+        let mut piece = |n: usize| Array2::from_shape_fn((n, 4), |_| noise.sample(&mut rng));
+        let config = quiet_config();
+        let mut block = ChannelBlock::new(4, 2000);
+        block.append(
+            piece(1000).view(),
+            0,
+            0,
+            &[false, true, false, false],
+            &config,
+            200,
+        );
+        block.append(piece(1000).view(), 1000, 500, &[false; 4], &config, 200);
+        assert_eq!(block.mask(), &[false, true, false, false]);
+        // With nothing kept, the old mask is forgotten.
+        block.append(piece(1000).view(), 2000, 0, &[false; 4], &config, 200);
+        assert_eq!(block.mask(), &[false; 4]);
+    }
+
+    /// The new rows are flagged by their own statistics: a channel gone wild in them
+    /// is masked and zeroed there, its kept rows stay as they were, and the block's
+    /// mask and masked fraction say so.
+    #[test]
+    fn new_rows_are_flagged_on_their_own_statistics() {
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(13);
+        let noise = Normal::new(0.0, 1.0).unwrap();
+        let n_chan = 32;
+        let calm = Array2::from_shape_fn((4000, n_chan), |_| noise.sample(&mut rng));
+        let mut wild = Array2::from_shape_fn((4000, n_chan), |_| noise.sample(&mut rng));
+        wild.column_mut(9).mapv_inplace(|v| 30.0 * v + 50.0);
+        let config = CleanConfig {
+            clip_threshold: 0.0,
+            ..CleanConfig::default()
+        };
+        let mask = vec![false; n_chan];
+        let mut block = ChannelBlock::new(n_chan, 6000);
+        let first = block.append(calm.view(), 0, 0, &mask, &config, 500);
+        assert_eq!(first.masked_fraction, 0.0);
+        let kept_before = block.view().slice(s![9, 2000..]).to_owned();
+        let second = block.append(wild.view(), 4000, 2000, &mask, &config, 500);
+        let expected: Vec<bool> = (0..n_chan).map(|c| c == 9).collect();
+        assert_eq!(block.mask(), &expected[..]);
+        assert!((second.masked_fraction - 1.0 / n_chan as f64).abs() < 1e-12);
+        let out = block.view();
+        assert_eq!(out.slice(s![9, ..2000]), kept_before);
+        assert!(out.slice(s![9, 2000..]).iter().all(|&v| v == 0.0));
+    }
+}
