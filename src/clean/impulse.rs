@@ -14,12 +14,7 @@ pub fn clip(mut data: ArrayViewMut2<'_, f32>, mask: &[bool], threshold: f64) -> 
         return 0;
     }
     let n_time = data.ncols();
-    let mut sums = vec![0.0f32; n_time];
-    for (row, _) in data.rows().into_iter().zip(mask).filter(|(_, m)| !**m) {
-        for (s, &v) in sums.iter_mut().zip(row.iter()) {
-            *s += v;
-        }
-    }
+    let sums = super::band_sum(data.view(), mask);
     let (med, sigma) = median_sigma(&sums, 1, &mut Vec::new());
     if sigma.is_nan() || sigma <= 0.0 {
         return 0;

@@ -13,6 +13,7 @@ pub mod user_mask;
 pub mod zero_dm;
 
 use ndarray::ArrayView2;
+use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
 use crate::error::{Error, Result};
@@ -131,4 +132,47 @@ pub fn flag_channels(raw: ArrayView2<'_, f32>, mask: &mut [bool], config: &Clean
         }
     }
     mask.iter().filter(|&&m| m).count() - before
+}
+
+/// Time samples per parallel task of [`band_sum`].
+const BAND_SUM_SPAN: usize = 4096;
+
+/// The sum over unmasked channels of `data` (`[channel, time]`) at every time sample,
+/// in parallel over spans of time.
+pub fn band_sum(data: ArrayView2<'_, f32>, mask: &[bool]) -> Vec<f32> {
+    let mut sums = vec![0.0f32; data.ncols()];
+    sums.par_chunks_mut(BAND_SUM_SPAN)
+        .enumerate()
+        .for_each(|(i, out)| {
+            let t0 = i * BAND_SUM_SPAN;
+            for (row, _) in data.rows().into_iter().zip(mask).filter(|(_, m)| !**m) {
+                let row = row.slice_move(ndarray::s![t0..t0 + out.len()]);
+                for (s, &v) in out.iter_mut().zip(row.iter()) {
+                    *s += v;
+                }
+            }
+        });
+    sums
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use ndarray::Array2;
+    use rand::{Rng, SeedableRng};
+
+    #[test]
+    fn band_sum_equals_a_plain_sum_over_unmasked_channels() {
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(3);
+        let n_time = 2 * BAND_SUM_SPAN + 123;
+        let data = Array2::from_shape_fn((7, n_time), |_| rng.random::<f32>() - 0.5);
+        let mask = [false, true, false, false, true, false, false];
+        let sums = band_sum(data.view(), &mask);
+        assert_eq!(sums.len(), n_time);
+        for (t, &s) in sums.iter().enumerate() {
+            let plain: f32 = (0..7).filter(|&c| !mask[c]).map(|c| data[[c, t]]).sum();
+            assert_eq!(s, plain, "t = {t}");
+        }
+        assert!(band_sum(data.view(), &[true; 7]).iter().all(|&s| s == 0.0));
+    }
 }

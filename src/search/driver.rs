@@ -19,7 +19,7 @@ use super::fluence::fluence_jy_ms;
 use super::normalise::{SERIES_SIGMA_VALUES, normalise_series};
 use super::trials::{self, TrialCount};
 use crate::candidate::Candidate;
-use crate::clean::user_mask::static_mask;
+use crate::clean::{self, user_mask::static_mask};
 use crate::cluster::{Cluster, Detection, Sweep, friends_of_friends, merge_dispersion_tails};
 use crate::dedisperse::{self, DmPlan, FastDedisperser, Kernel};
 use crate::error::{Error, Result};
@@ -355,12 +355,7 @@ impl<'a> Searcher<'a> {
 
     /// The band sum at DM 0, normalised like a dedispersed series.
     fn dm0_series(&self, norm: ArrayView2<'_, f32>, mask: &[bool]) -> Vec<f32> {
-        let mut dm0 = vec![0.0f32; norm.ncols()];
-        for (row, _) in norm.rows().into_iter().zip(mask).filter(|(_, m)| !**m) {
-            for (s, &v) in dm0.iter_mut().zip(row.iter()) {
-                *s += v;
-            }
-        }
+        let mut dm0 = clean::band_sum(norm, mask);
         normalise_series(
             &mut dm0,
             self.layout.baseline_len,
