@@ -269,16 +269,48 @@ fn mark_chunks(tile: &[f32], w: usize, n_starts: usize, level: f32, marks: &mut 
     mark_chunks_portable(tile, w, n_starts, level, marks)
 }
 
+/// [`mark_chunks_portable`] in AVX2: per run, the running maximum of the sums in
+/// eight lanes, then one comparison of the lanes with the level. A NaN sum never
+/// wins the maximum (`max_ps` returns its second operand then), as it never passes
+/// `>=` in the portable test.
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "avx2")]
 fn mark_chunks_avx2(tile: &[f32], w: usize, n_starts: usize, level: f32, marks: &mut Vec<bool>) {
-    mark_chunks_portable(tile, w, n_starts, level, marks)
+    use std::arch::x86_64::{
+        _CMP_GE_OQ, _mm256_cmp_ps, _mm256_loadu_ps, _mm256_max_ps, _mm256_movemask_ps,
+        _mm256_set1_ps, _mm256_sub_ps,
+    };
+    const LANES: usize = 8;
+    let n_sums = n_starts.min(tile.len().saturating_sub(w));
+    let full = n_sums / SCAN_CHUNK;
+    let level8 = _mm256_set1_ps(level);
+    for c in 0..full {
+        let t = c * SCAN_CHUNK;
+        let lo: &[f32; SCAN_CHUNK] = tile[t..t + SCAN_CHUNK].try_into().expect("run length");
+        let hi: &[f32; SCAN_CHUNK] = tile[t + w..t + w + SCAN_CHUNK]
+            .try_into()
+            .expect("run length");
+        let mut top = _mm256_set1_ps(f32::NEG_INFINITY);
+        for j in (0..SCAN_CHUNK).step_by(LANES) {
+            // SAFETY: `lo` and `hi` hold SCAN_CHUNK values and j + LANES ≤ SCAN_CHUNK,
+            // so each unaligned load reads eight values inside them.
+            let (l, h) = unsafe {
+                (
+                    _mm256_loadu_ps(lo.as_ptr().add(j)),
+                    _mm256_loadu_ps(hi.as_ptr().add(j)),
+                )
+            };
+            top = _mm256_max_ps(_mm256_sub_ps(h, l), top);
+        }
+        marks.push(_mm256_movemask_ps(_mm256_cmp_ps::<_CMP_GE_OQ>(top, level8)) != 0);
+    }
+    if n_sums > full * SCAN_CHUNK {
+        marks.push((full * SCAN_CHUNK..n_sums).any(|t| tile[t + w] - tile[t] >= level));
+    }
 }
 
-/// The portable body of [`mark_chunks`]: a branch-free count of the starts at or
-/// above the level in each fixed-size run (plain indexing, so that everything
-/// inlines into the AVX2 build).
-#[inline(always)]
+/// The plain body of [`mark_chunks`], and its reference: one flag per run of
+/// [`SCAN_CHUNK`] starts, set when any sum there reaches the level.
 fn mark_chunks_portable(
     tile: &[f32],
     w: usize,
@@ -287,21 +319,9 @@ fn mark_chunks_portable(
     marks: &mut Vec<bool>,
 ) {
     let n_sums = n_starts.min(tile.len().saturating_sub(w));
-    let full = n_sums / SCAN_CHUNK;
-    for c in 0..full {
-        let t = c * SCAN_CHUNK;
-        let lo: &[f32; SCAN_CHUNK] = tile[t..t + SCAN_CHUNK].try_into().expect("run length");
-        let hi: &[f32; SCAN_CHUNK] = tile[t + w..t + w + SCAN_CHUNK]
-            .try_into()
-            .expect("run length");
-        let mut hits = 0u32;
-        for i in 0..SCAN_CHUNK {
-            hits += u32::from(hi[i] - lo[i] >= level);
-        }
-        marks.push(hits > 0);
-    }
-    if n_sums > full * SCAN_CHUNK {
-        marks.push((full * SCAN_CHUNK..n_sums).any(|t| tile[t + w] - tile[t] >= level));
+    for first in (0..n_sums).step_by(SCAN_CHUNK) {
+        let last = (first + SCAN_CHUNK).min(n_sums);
+        marks.push((first..last).any(|t| tile[t + w] - tile[t] >= level));
     }
 }
 
@@ -444,6 +464,38 @@ mod tests {
                 for (a, b) in fast.iter().zip(&reference) {
                     assert_eq!((a.start, a.width), (b.start, b.width), "n={n}");
                     assert!((a.snr - b.snr).abs() < 1e-4, "n={n}: {a:?} vs {b:?}");
+                }
+            }
+        }
+    }
+
+    // The marking kernel picked at run time (AVX2 here when the CPU has it) against
+    // the plain one, on random walks with awkward lengths, widths and levels (NaN and
+    // infinite values included), so that runs sit on both sides of the level.
+    #[test]
+    fn marking_kernel_agrees_with_the_plain_one() {
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(37);
+        for &len in &[0usize, 1, 31, 33, 100, 1000, 4877] {
+            let mut walk = 0.0f32;
+            let mut tile: Vec<f32> = (0..len)
+                .map(|_| {
+                    let step: f32 = StandardNormal.sample(&mut rng);
+                    walk += step;
+                    walk
+                })
+                .collect();
+            if len > 50 {
+                tile[len / 2] = f32::NAN;
+                tile[len / 3] = f32::INFINITY;
+            }
+            for &w in &[1usize, 3, 32, 45, 724] {
+                for &level in &[-5.0f32, 0.0, 2.0, 6.0] {
+                    for n_starts in [len, len / 2 + 7] {
+                        let (mut fast, mut plain) = (Vec::new(), Vec::new());
+                        mark_chunks(&tile, w, n_starts, level, &mut fast);
+                        mark_chunks_portable(&tile, w, n_starts, level, &mut plain);
+                        assert_eq!(fast, plain, "len={len} w={w} level={level}");
+                    }
                 }
             }
         }
