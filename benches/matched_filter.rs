@@ -5,8 +5,9 @@
 //! test only a prefix of the ladder; about 3.5 widths per sample on average).
 //!
 //! Run with `cargo bench --bench matched_filter` (release, plain `Instant` timing,
-//! one thread). Reports nanoseconds per series sample, the minimum over repeats
-//! (the machine is shared):
+//! one thread). Reports nanoseconds per series sample, the minimum and the median
+//! over calls of one row each (the machine is shared: the minimum is the
+//! undisturbed cost):
 //! - in cache: the same row again and again (restored from a copy each time; the
 //!   copy alone is timed and reported too);
 //! - out of cache: cycling through rows that together exceed the L3 cache, as the
@@ -52,17 +53,22 @@ fn trial(row: &mut [f32], widths: &[usize], work: &mut (Scratch, Vec<f32>, Vec<P
     boxcar::search_series(row, widths, THRESHOLD, 0..row.len(), scratch, peaks);
 }
 
-/// Minimum over `repeats` of the time of `f`, in ns per sample of `samples`.
-fn min_ns_per_sample(repeats: usize, samples: usize, mut f: impl FnMut()) -> f64 {
-    (0..repeats)
-        .map(|_| {
+/// Each call's time of `f`, in ns per sample of `samples`, sorted.
+fn ns_per_sample(calls: usize, samples: usize, mut f: impl FnMut(usize)) -> Vec<f64> {
+    let mut times: Vec<f64> = (0..calls)
+        .map(|i| {
             let start = Instant::now();
-            f();
-            start.elapsed().as_secs_f64()
+            f(i);
+            start.elapsed().as_secs_f64() * 1e9 / samples as f64
         })
-        .fold(f64::INFINITY, f64::min)
-        * 1e9
-        / samples as f64
+        .collect();
+    times.sort_by(f64::total_cmp);
+    times
+}
+
+/// "min / median" of sorted times.
+fn summary(times: &[f64]) -> String {
+    format!("{:.3} / {:.3}", times[0], times[times.len() / 2])
 }
 
 fn main() {
@@ -75,31 +81,31 @@ fn main() {
     let pristine = row(1);
     let mut work = (Scratch::default(), Vec::new(), Vec::new());
     let mut copy = pristine.clone();
-    let copy_ns = min_ns_per_sample(200, N, || {
+    let copy_ns = ns_per_sample(200, N, |_| {
         copy.copy_from_slice(&pristine);
         std::hint::black_box(&mut copy);
     });
-    println!("series of {N} samples; ladder {ladder:?}; copying a row: {copy_ns:.3} ns/sample");
+    println!("series of {N} samples; ladder {ladder:?}");
+    println!(
+        "ns per sample, min / median over calls (each call one row); copying a row: {}",
+        summary(&copy_ns)
+    );
     let mut rows: Vec<Vec<f32>> = (0..ROWS as u64).map(|s| row(s + 2)).collect();
     for due in [ladder.len(), 3] {
         let widths = &ladder[..due];
-        let in_cache = min_ns_per_sample(200, N, || {
+        let in_cache = ns_per_sample(300, N, |_| {
             copy.copy_from_slice(&pristine);
             trial(&mut copy, widths, &mut work);
         });
         let peaks = work.2.len();
-        let mut out_of_cache = f64::INFINITY;
-        for _ in 0..3 {
-            let pass = min_ns_per_sample(1, N * ROWS, || {
-                for r in &mut rows {
-                    trial(r, widths, &mut work);
-                }
-            });
-            out_of_cache = out_of_cache.min(pass);
-        }
+        let out_of_cache = ns_per_sample(3 * ROWS, N, |i| {
+            trial(&mut rows[i % ROWS], widths, &mut work);
+        });
         println!(
-            "{due:2} widths: in cache {in_cache:.3} ns/sample (copy included), \
-             out of cache {out_of_cache:.3} ns/sample; {peaks} peak(s) in the pulsed row"
+            "{due:2} widths: in cache {} (copy included), out of cache {}; \
+             {peaks} peak(s) in the pulsed row",
+            summary(&in_cache),
+            summary(&out_of_cache)
         );
     }
     let load = std::fs::read_to_string("/proc/loadavg").unwrap_or_default();

@@ -209,13 +209,8 @@ pub fn search_series(
     scratch.marks.iter_mut().for_each(Vec::clear);
     for tile_lo in (lo..hi).step_by(TILE) {
         let end = (tile_lo + TILE + widths.iter().max().unwrap_or(&0)).min(prefix.len());
-        let origin = prefix[tile_lo];
-        scratch.tile.clear();
-        scratch
-            .tile
-            .extend(prefix[tile_lo..end].iter().map(|&p| (p - origin) as f32));
+        let largest = relative_tile(&prefix[tile_lo..end], &mut scratch.tile);
         let tile_starts = TILE.min(hi - tile_lo);
-        let largest = scratch.tile.iter().fold(0.0f32, |m, v| m.max(v.abs()));
         for (&(w, _, _, level), marks) in tests.iter().zip(&mut scratch.marks) {
             // Eight roundings of the largest value below the level: the f32 test
             // never misses a sum that the exact f64 test below passes.
@@ -254,6 +249,29 @@ pub fn search_series(
         peaks.extend(best);
     }
     scratch.prefix = prefix;
+}
+
+/// Lanes of the running maximum in [`relative_tile`].
+const TILE_LANES: usize = 8;
+
+/// Fills `tile` with `prefix` relative to its first value, in f32, and returns the
+/// largest magnitude there, ignoring NaN as `f32::max` does (`if a > m` is one max
+/// instruction in each of [`TILE_LANES`] lanes, where a chain of `f32::max` would
+/// wait on every step).
+fn relative_tile(prefix: &[f64], tile: &mut Vec<f32>) -> f32 {
+    let origin = prefix.first().copied().unwrap_or(0.0);
+    tile.clear();
+    tile.extend(prefix.iter().map(|&p| (p - origin) as f32));
+    let mut top = [0.0f32; TILE_LANES];
+    let lanes = tile.chunks_exact(TILE_LANES);
+    let rest = lanes.remainder().iter().fold(0.0f32, |m, v| m.max(v.abs()));
+    for chunk in lanes {
+        for (m, v) in top.iter_mut().zip(chunk) {
+            let a = v.abs();
+            *m = if a > *m { a } else { *m };
+        }
+    }
+    top.iter().fold(rest, |m, &v| m.max(v))
 }
 
 /// Appends to `marks` one flag per run of [`SCAN_CHUNK`] starts among the first
