@@ -16,7 +16,6 @@
 use std::time::Instant;
 
 use burstbook::search::boxcar::{self, Peak, Scratch};
-use burstbook::search::normalise::{SERIES_SIGMA_VALUES, normalise_series};
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution, StandardNormal};
@@ -46,11 +45,18 @@ fn row(seed: u64) -> Vec<f32> {
 }
 
 /// What the search does for one trial.
-fn trial(row: &mut [f32], widths: &[usize], work: &mut (Scratch, Vec<f32>, Vec<Peak>)) {
-    let (scratch, buffer, peaks) = work;
-    normalise_series(row, BASELINE_LEN, SERIES_SIGMA_VALUES, buffer);
+fn trial(row: &mut [f32], widths: &[usize], work: &mut (Scratch, Vec<Peak>)) {
+    let (scratch, peaks) = work;
     peaks.clear();
-    boxcar::search_series(row, widths, THRESHOLD, 0..row.len(), scratch, peaks);
+    boxcar::search_trial(
+        row,
+        BASELINE_LEN,
+        widths,
+        THRESHOLD,
+        0..row.len(),
+        scratch,
+        peaks,
+    );
 }
 
 /// Each call's time of `f`, in ns per sample of `samples`, sorted.
@@ -79,7 +85,7 @@ fn main() {
     }
     let ladder = boxcar::width_ladder(781, std::f64::consts::SQRT_2);
     let pristine = row(1);
-    let mut work = (Scratch::default(), Vec::new(), Vec::new());
+    let mut work = (Scratch::default(), Vec::new());
     let mut copy = pristine.clone();
     let copy_ns = ns_per_sample(200, N, |_| {
         copy.copy_from_slice(&pristine);
@@ -97,7 +103,7 @@ fn main() {
             copy.copy_from_slice(&pristine);
             trial(&mut copy, widths, &mut work);
         });
-        let peaks = work.2.len();
+        let peaks = work.1.len();
         let out_of_cache = ns_per_sample(3 * ROWS, N, |i| {
             trial(&mut rows[i % ROWS], widths, &mut work);
         });

@@ -182,25 +182,49 @@ impl Baseline {
 
     /// Replaces every value v of `series` by (v − baseline)·`scale` in one pass.
     pub fn subtract_scaled(&self, series: &mut [f32], scale: f32) {
-        let n = series.len();
+        self.subtract_scaled_at(series, 0, scale);
+    }
+
+    /// [`Self::subtract_scaled`] on the samples `first..first + part.len()` of a
+    /// series, held in `part`: applying it to consecutive parts gives the same
+    /// values, bit for bit, as one call on the whole series (inlined, so that callers
+    /// compiled for AVX2 get its loops in AVX2).
+    #[inline(always)]
+    pub fn subtract_scaled_at(&self, part: &mut [f32], first: usize, scale: f32) {
         let Some(&(first_x, first_y)) = self.knots.first() else {
-            return series.iter_mut().for_each(|v| *v *= scale);
+            return part.iter_mut().for_each(|v| *v *= scale);
         };
+        let end = first + part.len();
+        // Samples lo..hi of the series, as indices into `part`.
+        let within =
+            |lo: usize, hi: usize| lo.clamp(first, end) - first..hi.clamp(first, end) - first;
         let flat = |part: &mut [f32], y: f32| part.iter_mut().for_each(|v| *v = (*v - y) * scale);
-        let head = (first_x.floor() as usize + 1).min(n);
-        flat(&mut series[..head], first_y);
+        flat(&mut part[within(0, first_x.floor() as usize + 1)], first_y);
         for pair in self.knots.windows(2) {
             let ((x0, y0), (x1, y1)) = (pair[0], pair[1]);
-            let (lo, hi) = (x0.floor() as usize + 1, (x1.floor() as usize + 1).min(n));
+            let (lo, hi) = (x0.floor() as usize + 1, x1.floor() as usize + 1);
+            let range = within(lo, hi);
+            if range.is_empty() {
+                continue;
+            }
             let slope = ((f64::from(y1) - f64::from(y0)) / (x1 - x0)) as f32;
             let offset = (lo as f64 - x0) as f32;
-            for (i, v) in series[lo..hi].iter_mut().enumerate() {
-                *v = (*v - (y0 + slope * (offset + i as f32))) * scale;
+            // Steps from `lo` of the first sample here.
+            let skip = first + range.start - lo;
+            let line = |k: f32, v: &mut f32| *v = (*v - (y0 + slope * (offset + k))) * scale;
+            let segment = &mut part[range];
+            // Steps counted in i32 convert to f32 eight at a time (the same values as
+            // from usize, which has no packed conversion); a longer segment counts in
+            // usize.
+            match i32::try_from(skip + segment.len()) {
+                Ok(_) => (skip as i32..)
+                    .zip(segment)
+                    .for_each(|(k, v)| line(k as f32, v)),
+                Err(_) => (skip..).zip(segment).for_each(|(k, v)| line(k as f32, v)),
             }
         }
         let (last_x, last_y) = self.knots[self.knots.len() - 1];
-        let tail = (last_x.floor() as usize + 1).min(n);
-        flat(&mut series[tail..], last_y);
+        flat(&mut part[within(last_x.floor() as usize + 1, end)], last_y);
     }
 }
 
@@ -305,6 +329,30 @@ mod tests {
             }
         }
         assert!(s[500] > 1988.0);
+    }
+
+    // Subtracting part by part, at awkward part lengths, gives the values of one
+    // call on the whole series bit for bit; both follow `Baseline::at` closely.
+    #[test]
+    fn baseline_subtracted_in_parts_matches_the_whole() {
+        let s: Vec<f32> = (0..10_007)
+            .map(|i| ((i * 7919) % 1013) as f32 * 0.01 + (i as f32 * 1e-3).sin())
+            .collect();
+        for window in [1usize, 100, 3000, 20_000] {
+            let baseline = Baseline::piecewise_median(&s, window, &mut Vec::new());
+            let mut whole = s.clone();
+            baseline.subtract_scaled(&mut whole, 0.7);
+            for (t, (&v, &raw)) in whole.iter().zip(&s).enumerate() {
+                assert!((v - 0.7 * (raw - baseline.at(t))).abs() < 1e-4, "t={t}");
+            }
+            for part_len in [1usize, 7, 1000, 4096, 10_007] {
+                let mut parts = s.clone();
+                for (p, part) in parts.chunks_mut(part_len).enumerate() {
+                    baseline.subtract_scaled_at(part, p * part_len, 0.7);
+                }
+                assert_eq!(parts, whole, "window {window}, parts of {part_len}");
+            }
+        }
     }
 
     // The median of bin means against the plain median of every sample of each run

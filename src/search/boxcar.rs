@@ -24,7 +24,12 @@
 //! pass; only marked runs are then tested one start at a time in f64. Tests compare
 //! it with direct window sums.
 
+use super::normalise::{SERIES_SIGMA_VALUES, series_level};
 use crate::robust::clipped_mean_sigma;
+
+mod prefix;
+
+pub use prefix::prefix_sums;
 
 /// Boxcar widths `1, round(r), round(r²), …` without repeats, up to `max_width`.
 pub fn width_ladder(max_width: usize, ratio: f64) -> Vec<usize> {
@@ -38,45 +43,6 @@ pub fn width_ladder(max_width: usize, ratio: f64) -> Vec<usize> {
         x *= ratio;
     }
     widths
-}
-
-/// Independent running sums interleaved by [`prefix_sums`].
-const PREFIX_LANES: usize = 4;
-
-/// Prefix sums in f64: `prefix[t]` is the sum of the first `t` values of `series`.
-/// The series is cut into [`PREFIX_LANES`] parts summed side by side (one chain of
-/// dependent additions would leave the adder idle), then each part is offset by the
-/// total of the parts before it.
-pub fn prefix_sums(series: &[f32], prefix: &mut Vec<f64>) {
-    let n = series.len();
-    prefix.clear();
-    prefix.resize(n + 1, 0.0);
-    let part = n / PREFIX_LANES;
-    let mut acc = [0.0f64; PREFIX_LANES];
-    for i in 0..part {
-        for (k, a) in acc.iter_mut().enumerate() {
-            *a += f64::from(series[k * part + i]);
-            prefix[1 + k * part + i] = *a;
-        }
-    }
-    // The remainder continues the last part.
-    let last = &mut acc[PREFIX_LANES - 1];
-    for (i, &v) in series.iter().enumerate().skip(PREFIX_LANES * part) {
-        *last += f64::from(v);
-        prefix[1 + i] = *last;
-    }
-    let mut base = 0.0;
-    for k in 1..PREFIX_LANES {
-        base += acc[k - 1];
-        let end = if k + 1 == PREFIX_LANES {
-            n
-        } else {
-            (k + 1) * part
-        };
-        for p in &mut prefix[1 + k * part..=end] {
-            *p += base;
-        }
-    }
 }
 
 /// Fewest independent boxcar sums (series length / width) from which a width's noise
@@ -166,9 +132,11 @@ pub struct Peak {
     pub snr: f32,
 }
 
-/// Reusable buffers for [`search_series`].
+/// Reusable buffers for [`search_trial`] and [`search_series`].
 #[derive(Default)]
 pub struct Scratch {
+    /// Workspace of the normalisation's medians.
+    work: Vec<f32>,
     prefix: Vec<f64>,
     sums: Vec<f32>,
     /// One tile of prefix sums relative to the tile's first, in f32.
@@ -180,6 +148,33 @@ pub struct Scratch {
 /// Starts per tile of the threshold test (a multiple of [`SCAN_CHUNK`]): with the
 /// widest boxcar its prefix sums stay in L1 cache.
 const TILE: usize = 128 * SCAN_CHUNK;
+
+/// One trial of the search: normalises the dedispersed series `row` in place as
+/// [`super::normalise::normalise_series`] does with [`SERIES_SIGMA_VALUES`] (a
+/// constant row becomes zero), then appends its peaks as [`search_series`] would
+/// find them in the normalised row. The subtraction and the prefix sums share one
+/// pass over the row.
+pub fn search_trial(
+    row: &mut [f32],
+    baseline_len: usize,
+    widths: &[usize],
+    threshold: f32,
+    starts: std::ops::Range<usize>,
+    scratch: &mut Scratch,
+    peaks: &mut Vec<Peak>,
+) {
+    let Some((baseline, sigma)) =
+        series_level(row, baseline_len, SERIES_SIGMA_VALUES, &mut scratch.work)
+    else {
+        // Zero everywhere: no width has any noise to measure, so no peaks.
+        row.fill(0.0);
+        return;
+    };
+    let mut prefix = std::mem::take(&mut scratch.prefix);
+    prefix::normalise_with_prefix(row, &baseline, 1.0 / sigma, &mut prefix);
+    search_prefix(&prefix, widths, threshold, starts, scratch, peaks);
+    scratch.prefix = prefix;
+}
 
 /// Appends to `peaks` every run of S/N ≥ `threshold` among the boxcars starting in
 /// `starts`, for every width in `widths`; the noise of each width is measured over
@@ -194,10 +189,23 @@ pub fn search_series(
 ) {
     let mut prefix = std::mem::take(&mut scratch.prefix);
     prefix_sums(series, &mut prefix);
+    search_prefix(&prefix, widths, threshold, starts, scratch, peaks);
+    scratch.prefix = prefix;
+}
+
+/// [`search_series`] on the series' prefix sums.
+fn search_prefix(
+    prefix: &[f64],
+    widths: &[usize],
+    threshold: f32,
+    starts: std::ops::Range<usize>,
+    scratch: &mut Scratch,
+    peaks: &mut Vec<Peak>,
+) {
     // Per width: (width, mean, σ, level), for the widths the series can measure.
     let tests: Vec<(usize, f64, f64, f64)> = widths
         .iter()
-        .zip(noise_chain(&prefix, widths, scratch))
+        .zip(noise_chain(prefix, widths, scratch))
         .filter_map(|(&w, noise)| {
             let (mean, sigma) = noise?;
             Some((w, mean, sigma, mean + f64::from(threshold) * sigma))
@@ -248,7 +256,6 @@ pub fn search_series(
         }
         peaks.extend(best);
     }
-    scratch.prefix = prefix;
 }
 
 /// Lanes of the running maximum in [`relative_tile`].
@@ -485,6 +492,61 @@ mod tests {
                 }
             }
         }
+    }
+
+    // One trial in one pass against its two steps, normalisation then search, on
+    // drifting series with pulses and on a constant one: the same row and peaks.
+    #[test]
+    fn trial_matches_normalising_then_searching() {
+        use super::super::normalise::normalise_series;
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(47);
+        let widths = width_ladder(100, std::f64::consts::SQRT_2);
+        for &(n, baseline_len) in &[(3001usize, 700usize), (20_011, 5000), (66_000, 15_625)] {
+            let mut row: Vec<f32> = (0..n)
+                .map(|t| {
+                    let noise: f32 = StandardNormal.sample(&mut rng);
+                    4.0 + (t as f32 * 3e-4).sin() + 2.0 * noise
+                })
+                .collect();
+            for k in 1..6 {
+                let at = k * n / 7;
+                row[at..at + 4 * k].iter_mut().for_each(|v| *v += 4.0);
+            }
+            let (mut fast, mut plain) = (row.clone(), row);
+            let (mut fast_peaks, mut plain_peaks) = (Vec::new(), Vec::new());
+            let mut scratch = Scratch::default();
+            search_trial(
+                &mut fast,
+                baseline_len,
+                &widths,
+                5.0,
+                0..n,
+                &mut scratch,
+                &mut fast_peaks,
+            );
+            normalise_series(
+                &mut plain,
+                baseline_len,
+                SERIES_SIGMA_VALUES,
+                &mut Vec::new(),
+            );
+            search_series(&plain, &widths, 5.0, 0..n, &mut scratch, &mut plain_peaks);
+            assert_eq!(fast, plain, "n={n}");
+            assert!(!plain_peaks.is_empty());
+            assert_eq!(fast_peaks, plain_peaks, "n={n}");
+        }
+        let mut flat = vec![3.0f32; 5000];
+        let mut peaks = Vec::new();
+        search_trial(
+            &mut flat,
+            1000,
+            &widths,
+            5.0,
+            0..5000,
+            &mut Scratch::default(),
+            &mut peaks,
+        );
+        assert!(peaks.is_empty() && flat.iter().all(|&v| v == 0.0));
     }
 
     // The marking kernel picked at run time (AVX2 here when the CPU has it) against

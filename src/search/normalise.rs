@@ -28,8 +28,28 @@ pub fn normalise_series(
     sigma_values: usize,
     scratch: &mut Vec<f32>,
 ) -> f32 {
+    match series_level(series, baseline_len, sigma_values, scratch) {
+        Some((baseline, sigma)) => {
+            baseline.subtract_scaled(series, 1.0 / sigma);
+            sigma
+        }
+        None => {
+            series.fill(0.0);
+            0.0
+        }
+    }
+}
+
+/// The running baseline and robust σ that [`normalise_series`] removes, without
+/// changing the series; `None` for an empty or constant series.
+pub fn series_level(
+    series: &[f32],
+    baseline_len: usize,
+    sigma_values: usize,
+    scratch: &mut Vec<f32>,
+) -> Option<(Baseline, f32)> {
     if series.is_empty() {
-        return 0.0;
+        return None;
     }
     let baseline = Baseline::piecewise_median(series, baseline_len, scratch);
     let stride = (series.len() / sigma_values.max(1)).max(1);
@@ -42,12 +62,7 @@ pub fn normalise_series(
         let mean = all.clone().sum::<f64>() / n;
         sigma = (all.map(|v| (v - mean).powi(2)).sum::<f64>() / n).sqrt() as f32;
     }
-    if !(sigma > 0.0 && sigma.is_finite()) {
-        series.fill(0.0);
-        return 0.0;
-    }
-    baseline.subtract_scaled(series, 1.0 / sigma);
-    sigma
+    (sigma > 0.0 && sigma.is_finite()).then_some((baseline, sigma))
 }
 
 /// Transposes a raw block (`[time, channel]`) to `[channel, time]` and normalises

@@ -1,0 +1,170 @@
+//! Prefix sums of a series in f64, block by block: each block of values and its
+//! sums stay in L1 cache, so a series can be normalised and summed in one pass
+//! ([`normalise_with_prefix`]) and the sums are the same, bit for bit, as those of
+//! [`prefix_sums`] over the normalised series.
+
+use crate::robust::Baseline;
+
+/// Values per block; the block's values and sums take 24 KiB.
+const PREFIX_BLOCK: usize = 2048;
+
+/// Independent running sums interleaved by [`prefix_block`].
+const PREFIX_LANES: usize = 4;
+
+/// Prefix sums in f64: `prefix[t]` is the sum of the first `t` values of `series`.
+pub fn prefix_sums(series: &[f32], prefix: &mut Vec<f64>) {
+    resize_prefix(prefix, series.len());
+    let mut carry = 0.0;
+    for (values, sums) in series
+        .chunks(PREFIX_BLOCK)
+        .zip(prefix[1..].chunks_mut(PREFIX_BLOCK))
+    {
+        carry = prefix_block(values, carry, sums);
+    }
+}
+
+/// Replaces every value v of `series` by (v − baseline)·`scale`, as
+/// [`Baseline::subtract_scaled`] does, and writes the prefix sums of the result to
+/// `prefix`, as [`prefix_sums`] would, in one pass; compiled for AVX2 when the CPU
+/// has it.
+pub fn normalise_with_prefix(
+    series: &mut [f32],
+    baseline: &Baseline,
+    scale: f32,
+    prefix: &mut Vec<f64>,
+) {
+    resize_prefix(prefix, series.len());
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx2") {
+        // SAFETY: `normalise_with_prefix_avx2` only requires the AVX2 instruction set,
+        // which was detected at run time just above; it is otherwise safe code.
+        return unsafe { normalise_with_prefix_avx2(series, baseline, scale, prefix) };
+    }
+    normalise_with_prefix_portable(series, baseline, scale, prefix);
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+fn normalise_with_prefix_avx2(
+    series: &mut [f32],
+    baseline: &Baseline,
+    scale: f32,
+    prefix: &mut [f64],
+) {
+    normalise_with_prefix_portable(series, baseline, scale, prefix);
+}
+
+/// The portable body of [`normalise_with_prefix`], on a `prefix` one longer than
+/// `series` whose first value is 0.
+#[inline(always)]
+fn normalise_with_prefix_portable(
+    series: &mut [f32],
+    baseline: &Baseline,
+    scale: f32,
+    prefix: &mut [f64],
+) {
+    let mut carry = 0.0;
+    for (b, (values, sums)) in series
+        .chunks_mut(PREFIX_BLOCK)
+        .zip(prefix[1..].chunks_mut(PREFIX_BLOCK))
+        .enumerate()
+    {
+        baseline.subtract_scaled_at(values, b * PREFIX_BLOCK, scale);
+        carry = prefix_block(values, carry, sums);
+    }
+}
+
+/// Makes `prefix` `n + 1` long with `prefix[0] = 0`; the rest is overwritten by
+/// the callers, so a buffer of the right length is not cleared again.
+fn resize_prefix(prefix: &mut Vec<f64>, n: usize) {
+    prefix.resize(n + 1, 0.0);
+    prefix[0] = 0.0;
+}
+
+/// Writes `carry + values[0] + … + values[i]` to `sums[i]` in f64 and returns the
+/// last (`carry` for no values). The block is cut into [`PREFIX_LANES`] parts summed
+/// side by side (one chain of dependent additions would leave the adder idle), then
+/// each part is offset by `carry` and the totals of the parts before it.
+#[inline(always)]
+fn prefix_block(values: &[f32], carry: f64, sums: &mut [f64]) -> f64 {
+    let n = values.len();
+    let sums = &mut sums[..n];
+    let part = n / PREFIX_LANES;
+    let mut acc = [0.0f64; PREFIX_LANES];
+    for i in 0..part {
+        for (k, a) in acc.iter_mut().enumerate() {
+            *a += f64::from(values[k * part + i]);
+            sums[k * part + i] = *a;
+        }
+    }
+    // The remainder continues the last part.
+    let last = &mut acc[PREFIX_LANES - 1];
+    for (s, &v) in sums.iter_mut().zip(values).skip(PREFIX_LANES * part) {
+        *last += f64::from(v);
+        *s = *last;
+    }
+    let mut base = carry;
+    for (k, total) in acc.iter().enumerate() {
+        let end = if k + 1 == PREFIX_LANES {
+            n
+        } else {
+            (k + 1) * part
+        };
+        sums[k * part..end].iter_mut().for_each(|s| *s += base);
+        base += total;
+    }
+    base
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use rand::SeedableRng;
+    use rand_distr::{Distribution, StandardNormal};
+
+    // Against a plain running sum in f64, over awkward lengths around the block
+    // and part sizes, into a buffer left longer by an earlier call.
+    #[test]
+    fn prefix_sums_agree_with_a_running_sum() {
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(19);
+        let mut prefix = Vec::new();
+        for &n in &[5000usize, 0, 1, 3, 4, 5, 2047, 2048, 2049, 6143, 10_001] {
+            let series: Vec<f32> = (0..n)
+                .map(|_| 3.0 + Distribution::<f32>::sample(&StandardNormal, &mut rng))
+                .collect();
+            prefix_sums(&series, &mut prefix);
+            assert_eq!(prefix.len(), n + 1);
+            let mut running = 0.0f64;
+            assert_eq!(prefix[0], 0.0);
+            for (t, &v) in series.iter().enumerate() {
+                running += f64::from(v);
+                let p = prefix[t + 1];
+                assert!(
+                    (p - running).abs() < 1e-9 * (1.0 + running.abs()),
+                    "n={n} t={t}"
+                );
+            }
+        }
+    }
+
+    // The fused pass against subtracting the baseline, then summing.
+    #[test]
+    fn normalising_with_the_sums_matches_the_two_passes() {
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(21);
+        for &(n, window) in &[(1usize, 1usize), (100, 7), (5000, 1000), (20_011, 3000)] {
+            let series: Vec<f32> = (0..n)
+                .map(|t| {
+                    2.0 + 1e-3 * t as f32 + Distribution::<f32>::sample(&StandardNormal, &mut rng)
+                })
+                .collect();
+            let baseline = Baseline::piecewise_median(&series, window, &mut Vec::new());
+            let (mut fused, mut plain) = (series.clone(), series.clone());
+            let (mut fused_prefix, mut plain_prefix) = (Vec::new(), Vec::new());
+            normalise_with_prefix(&mut fused, &baseline, 0.5, &mut fused_prefix);
+            baseline.subtract_scaled(&mut plain, 0.5);
+            prefix_sums(&plain, &mut plain_prefix);
+            assert_eq!(fused, plain, "n={n}");
+            assert_eq!(fused_prefix, plain_prefix, "n={n}");
+        }
+    }
+}
