@@ -172,7 +172,25 @@ impl Baseline {
     /// The baseline at sample `t`.
     pub fn at(&self, t: usize) -> f32 {
         let x = t as f64;
-        let k = self.knots.partition_point(|knot| knot.0 < x);
+        self.between(self.knots.partition_point(|knot| knot.0 < x), x)
+    }
+
+    /// `series[t] − self.at(t)` for `t = 0, stride, 2·stride, …`, appended to `out`:
+    /// the values of [`Self::at`], walking the knots once instead of searching them
+    /// for every `t`.
+    pub fn strided_residuals(&self, series: &[f32], stride: usize, out: &mut Vec<f32>) {
+        let mut k = 0;
+        for (t, &v) in series.iter().enumerate().step_by(stride.max(1)) {
+            let x = t as f64;
+            while self.knots.get(k).is_some_and(|knot| knot.0 < x) {
+                k += 1;
+            }
+            out.push(v - self.between(k, x));
+        }
+    }
+
+    /// The baseline at `x`, given the first knot `k` at or after it.
+    fn between(&self, k: usize, x: f64) -> f32 {
         match (k.checked_sub(1).map(|i| self.knots[i]), self.knots.get(k)) {
             (Some((x0, y0)), Some(&(x1, y1))) => y0 + ((x - x0) / (x1 - x0)) as f32 * (y1 - y0),
             (Some((_, y)), None) | (None, Some(&(_, y))) => y,
@@ -351,6 +369,26 @@ mod tests {
                     baseline.subtract_scaled_at(part, p * part_len, 0.7);
                 }
                 assert_eq!(parts, whole, "window {window}, parts of {part_len}");
+            }
+        }
+    }
+
+    // The knot walk against `at` at every stride, on awkward lengths and strides.
+    #[test]
+    fn strided_residuals_match_the_baseline_at_each_sample() {
+        let s: Vec<f32> = (0..5003)
+            .map(|i| ((i * 37) % 101) as f32 + i as f32 * 0.01)
+            .collect();
+        for window in [1usize, 333, 5003] {
+            let baseline = Baseline::piecewise_median(&s, window, &mut Vec::new());
+            for stride in [0usize, 1, 2, 7, 1000, 6000] {
+                let mut walked = Vec::new();
+                baseline.strided_residuals(&s, stride, &mut walked);
+                let searched: Vec<f32> = (0..s.len())
+                    .step_by(stride.max(1))
+                    .map(|t| s[t] - baseline.at(t))
+                    .collect();
+                assert_eq!(walked, searched, "window {window} stride {stride}");
             }
         }
     }

@@ -262,10 +262,28 @@ fn search_prefix(
 const TILE_LANES: usize = 8;
 
 /// Fills `tile` with `prefix` relative to its first value, in f32, and returns the
-/// largest magnitude there, ignoring NaN as `f32::max` does (`if a > m` is one max
-/// instruction in each of [`TILE_LANES`] lanes, where a chain of `f32::max` would
-/// wait on every step).
+/// largest magnitude there, ignoring NaN as `f32::max` does; compiled for AVX2 when
+/// the CPU has it.
 fn relative_tile(prefix: &[f64], tile: &mut Vec<f32>) -> f32 {
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx2") {
+        // SAFETY: `relative_tile_avx2` only requires the AVX2 instruction set, which
+        // was detected at run time just above; it is otherwise safe code.
+        return unsafe { relative_tile_avx2(prefix, tile) };
+    }
+    relative_tile_portable(prefix, tile)
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+fn relative_tile_avx2(prefix: &[f64], tile: &mut Vec<f32>) -> f32 {
+    relative_tile_portable(prefix, tile)
+}
+
+/// The portable body of [`relative_tile`]: `if a > m` is one max instruction in each
+/// of [`TILE_LANES`] lanes, where a chain of `f32::max` would wait on every step.
+#[inline(always)]
+fn relative_tile_portable(prefix: &[f64], tile: &mut Vec<f32>) -> f32 {
     let origin = prefix.first().copied().unwrap_or(0.0);
     tile.clear();
     tile.extend(prefix.iter().map(|&p| (p - origin) as f32));
@@ -547,6 +565,38 @@ mod tests {
             &mut peaks,
         );
         assert!(peaks.is_empty() && flat.iter().all(|&v| v == 0.0));
+    }
+
+    // The tile conversion picked at run time against the plain one and against the
+    // plain largest magnitude, NaN and infinity included.
+    #[test]
+    fn tile_conversion_agrees_with_the_plain_one() {
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(53);
+        for &len in &[0usize, 1, 7, 8, 9, 100, 4877] {
+            let mut prefix: Vec<f64> = (0..len)
+                .map(|_| 1e4 + 50.0 * Distribution::<f64>::sample(&StandardNormal, &mut rng))
+                .collect();
+            if len > 50 {
+                prefix[len / 2] = f64::NAN;
+                prefix[len / 3] = f64::INFINITY;
+            }
+            for slice in [&prefix[..], &prefix[..len.min(40)]] {
+                let (mut fast, mut plain) = (Vec::new(), Vec::new());
+                let largest = relative_tile(slice, &mut fast);
+                assert_eq!(
+                    largest.to_bits(),
+                    relative_tile_portable(slice, &mut plain).to_bits()
+                );
+                let origin = slice.first().copied().unwrap_or(0.0);
+                let expected: Vec<f32> = slice.iter().map(|&p| (p - origin) as f32).collect();
+                assert_eq!(
+                    fast.iter().map(|v| v.to_bits()).collect::<Vec<_>>(),
+                    expected.iter().map(|v| v.to_bits()).collect::<Vec<_>>()
+                );
+                let top = expected.iter().fold(0.0f32, |m, v| m.max(v.abs()));
+                assert_eq!(largest, top, "len={len}");
+            }
+        }
     }
 
     // The marking kernel picked at run time (AVX2 here when the CPU has it) against

@@ -53,12 +53,12 @@ pub fn series_level(
     }
     let baseline = Baseline::piecewise_median(series, baseline_len, scratch);
     let stride = (series.len() / sigma_values.max(1)).max(1);
-    let residuals = |t: usize| series[t] - baseline.at(t);
-    let strided: Vec<f32> = (0..series.len()).step_by(stride).map(residuals).collect();
+    let mut strided = Vec::with_capacity(series.len().div_ceil(stride));
+    baseline.strided_residuals(series, stride, &mut strided);
     let (_, mut sigma) = median_sigma(&strided, 1, scratch);
     if sigma.is_nan() || sigma <= 0.0 {
         let n = series.len() as f64;
-        let all = (0..series.len()).map(|t| f64::from(residuals(t)));
+        let all = (0..series.len()).map(|t| f64::from(series[t] - baseline.at(t)));
         let mean = all.clone().sum::<f64>() / n;
         sigma = (all.map(|v| (v - mean).powi(2)).sum::<f64>() / n).sqrt() as f32;
     }
