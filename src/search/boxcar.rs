@@ -19,10 +19,17 @@
 //!
 //! The scan works in tiles of starts. It first marks runs of [`SCAN_CHUNK`] starts
 //! holding any sum above the threshold level, in f32 on the tile's prefix sums taken
-//! relative to its first (so they stay small and precise), in a loop without
-//! branches that vectorises, with a margin that keeps every sum the exact test would
-//! pass; only marked runs are then tested one start at a time in f64. Tests compare
-//! it with direct window sums.
+//! relative to its first (so they stay small and precise), eight starts per AVX2
+//! instruction (a running maximum per run, then one comparison), with a margin that
+//! keeps every sum the exact test would pass; only marked runs are then tested one
+//! start at a time in f64. Tests compare it with direct window sums.
+//!
+//! [`search_trial`] is what the search runs on each dedispersed series: it measures
+//! the baseline and σ of the normalisation, then subtracts, scales and takes the f64
+//! prefix sums in one pass, block by block in L1 cache, so the row is read twice
+//! (baseline, then this pass) instead of three times and the prefix sums are written
+//! once. Every kernel compiled for AVX2 keeps its plain version, and tests compare
+//! the two.
 
 use super::normalise::{SERIES_SIGMA_VALUES, series_level};
 use crate::robust::clipped_mean_sigma;
