@@ -261,6 +261,14 @@ mod tests {
             prefix_sums(&plain, &mut plain_prefix);
             assert_eq!(fused, plain, "n={n}");
             assert_eq!(fused_prefix, plain_prefix, "n={n}");
+            // The portable pass (the one without AVX2) gives the same values, and sums
+            // that differ only by the order of the f64 additions.
+            let mut portable = series.clone();
+            normalise_with_prefix_portable(&mut portable, &baseline, 0.5, &mut fused_prefix);
+            assert_eq!(portable, plain, "n={n}");
+            for (a, b) in fused_prefix.iter().zip(&plain_prefix) {
+                assert!((a - b).abs() < 1e-9 * (1.0 + b.abs()), "n={n}: {a} vs {b}");
+            }
         }
     }
 }
