@@ -224,23 +224,39 @@ impl Baseline {
     }
 
     /// `series[t] − self.at(t)` for `t = 0, stride, 2·stride, …`, appended to `out`:
-    /// the values of [`Self::at`], walking the knots once instead of searching them
-    /// for every `t`.
+    /// the values of [`Self::at`], segment by segment between the knots instead of
+    /// searching them for every `t`, in loops whose divisions vectorise.
     pub fn strided_residuals(&self, series: &[f32], stride: usize, out: &mut Vec<f32>) {
-        let mut k = 0;
-        for (t, &v) in series.iter().enumerate().step_by(stride.max(1)) {
-            let x = t as f64;
-            while self.knots.get(k).is_some_and(|knot| knot.0 < x) {
-                k += 1;
+        let (n, stride, first) = (series.len(), stride.max(1), out.len());
+        out.extend(series.iter().step_by(stride));
+        let values = &mut out[first..];
+        // Knot k's segment: the samples t after k knots (x_{k−1} < t ≤ x_k), here the
+        // strided ones from the i-th on.
+        let mut i = 0;
+        for k in 0..=self.knots.len() {
+            let end_t = self
+                .knots
+                .get(k)
+                .map_or(n, |&(x, _)| (x.floor() as usize + 1).min(n));
+            let end = end_t.div_ceil(stride).max(i);
+            let part = &mut values[i..end];
+            match (k.checked_sub(1).map(|j| self.knots[j]), self.knots.get(k)) {
+                (Some(a), Some(&b)) => (i..end)
+                    .zip(part)
+                    .for_each(|(j, v)| *v -= interpolate(a, b, (j * stride) as f64)),
+                (Some((_, y)), None) | (None, Some(&(_, y))) => {
+                    part.iter_mut().for_each(|v| *v -= y);
+                }
+                (None, None) => {}
             }
-            out.push(v - self.between(k, x));
+            i = end;
         }
     }
 
     /// The baseline at `x`, given the first knot `k` at or after it.
     fn between(&self, k: usize, x: f64) -> f32 {
         match (k.checked_sub(1).map(|i| self.knots[i]), self.knots.get(k)) {
-            (Some((x0, y0)), Some(&(x1, y1))) => y0 + ((x - x0) / (x1 - x0)) as f32 * (y1 - y0),
+            (Some(a), Some(&b)) => interpolate(a, b, x),
             (Some((_, y)), None) | (None, Some(&(_, y))) => y,
             (None, None) => 0.0,
         }
@@ -292,6 +308,12 @@ impl Baseline {
         let (last_x, last_y) = self.knots[self.knots.len() - 1];
         flat(&mut part[within(last_x.floor() as usize + 1, end)], last_y);
     }
+}
+
+/// The straight line through knots `(x0, y0)` and `(x1, y1)` at `x`.
+#[inline(always)]
+fn interpolate((x0, y0): (f64, f32), (x1, y1): (f64, f32), x: f64) -> f32 {
+    y0 + ((x - x0) / (x1 - x0)) as f32 * (y1 - y0)
 }
 
 /// Sum of `values` over eight interleaved accumulators, so the additions vectorise.
