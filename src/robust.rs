@@ -54,9 +54,41 @@ pub fn clipped_mean_sigma(
     clip: f64,
     max_rounds: usize,
 ) -> (f32, f32) {
-    let phi = (-0.5 * clip * clip).exp() / (2.0 * std::f64::consts::PI).sqrt();
-    let inside = statrs::function::erf::erf(clip / std::f64::consts::SQRT_2);
-    let factor = 1.0 - 2.0 * clip * phi / inside;
+    clipped_mean_sigma_with(values, guess, &Clip::new(clip), max_rounds)
+}
+
+/// A clipping limit of ±`sigmas` σ with the variance factor of a Gaussian truncated
+/// there, 1 − 2cφ(c)/(2Φ(c) − 1), for [`clipped_mean_sigma_with`]: callers that clip
+/// many sets at one limit compute the factor (an exp and an erf) once.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Clip {
+    sigmas: f64,
+    variance_factor: f64,
+}
+
+impl Clip {
+    /// The limit ±`sigmas` σ.
+    pub fn new(sigmas: f64) -> Self {
+        let phi = (-0.5 * sigmas * sigmas).exp() / (2.0 * std::f64::consts::PI).sqrt();
+        let inside = statrs::function::erf::erf(sigmas / std::f64::consts::SQRT_2);
+        Clip {
+            sigmas,
+            variance_factor: 1.0 - 2.0 * sigmas * phi / inside,
+        }
+    }
+}
+
+/// [`clipped_mean_sigma`] with the limit and its factor computed beforehand.
+pub fn clipped_mean_sigma_with(
+    values: &[f32],
+    guess: (f32, f32),
+    clip: &Clip,
+    max_rounds: usize,
+) -> (f32, f32) {
+    let Clip {
+        sigmas: clip,
+        variance_factor: factor,
+    } = *clip;
     let (mut centre, mut sigma) = (f64::from(guess.0), f64::from(guess.1));
     for _ in 0..max_rounds {
         if !(sigma > 0.0 && sigma.is_finite()) {

@@ -32,7 +32,7 @@
 //! the two.
 
 use super::normalise::{SERIES_SIGMA_VALUES, series_level};
-use crate::robust::clipped_mean_sigma;
+use crate::robust::{Clip, clipped_mean_sigma_with};
 
 mod prefix;
 
@@ -112,7 +112,9 @@ fn sums_noise(
             .map(|t| (prefix[t + w] - prefix[t]) as f32),
     );
     let guess = (guess.0 as f32, guess.1 as f32);
-    let (mean, sigma) = clipped_mean_sigma(&scratch.sums, guess, 4.0, 1);
+    static NOISE_CLIP: std::sync::OnceLock<Clip> = std::sync::OnceLock::new();
+    let clip = NOISE_CLIP.get_or_init(|| Clip::new(4.0));
+    let (mean, sigma) = clipped_mean_sigma_with(&scratch.sums, guess, clip, 1);
     (sigma > 0.0).then_some((f64::from(mean), f64::from(sigma)))
 }
 
