@@ -61,7 +61,7 @@ pub const MIN_INDEPENDENT_SUMS: usize = 16;
 pub const NOISE_SUMS: usize = 4096;
 
 /// Starts per run of the vectorised threshold test.
-pub const SCAN_CHUNK: usize = 32;
+pub const SCAN_CHUNK: usize = 64;
 
 /// Robust mean and σ of the boxcar sums of each width in `chain` (ascending) over a
 /// series of unit robust σ and zero baseline whose prefix sums are `prefix`. Each is
@@ -156,7 +156,7 @@ pub struct Scratch {
 
 /// Starts per tile of the threshold test (a multiple of [`SCAN_CHUNK`]): with the
 /// widest boxcar its prefix sums stay in L1 cache.
-const TILE: usize = 128 * SCAN_CHUNK;
+const TILE: usize = 64 * SCAN_CHUNK;
 
 /// One trial of the search: normalises the dedispersed series `row` in place as
 /// [`super::normalise::normalise_series`] does with [`SERIES_SIGMA_VALUES`] (a
@@ -614,7 +614,7 @@ mod tests {
     #[test]
     fn marking_kernel_agrees_with_the_plain_one() {
         let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(37);
-        for &len in &[0usize, 1, 31, 33, 100, 1000, 4877] {
+        for &len in &[0usize, 1, 31, 33, 63, 65, 100, 1000, 4877] {
             let mut walk = 0.0f32;
             let mut tile: Vec<f32> = (0..len)
                 .map(|_| {
