@@ -54,9 +54,41 @@ pub fn clipped_mean_sigma(
     clip: f64,
     max_rounds: usize,
 ) -> (f32, f32) {
-    let phi = (-0.5 * clip * clip).exp() / (2.0 * std::f64::consts::PI).sqrt();
-    let inside = statrs::function::erf::erf(clip / std::f64::consts::SQRT_2);
-    let factor = 1.0 - 2.0 * clip * phi / inside;
+    clipped_mean_sigma_with(values, guess, &Clip::new(clip), max_rounds)
+}
+
+/// A clipping limit of ±`sigmas` σ with the variance factor of a Gaussian truncated
+/// there, 1 − 2cφ(c)/(2Φ(c) − 1), for [`clipped_mean_sigma_with`]: callers that clip
+/// many sets at one limit compute the factor (an exp and an erf) once.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Clip {
+    sigmas: f64,
+    variance_factor: f64,
+}
+
+impl Clip {
+    /// The limit ±`sigmas` σ.
+    pub fn new(sigmas: f64) -> Self {
+        let phi = (-0.5 * sigmas * sigmas).exp() / (2.0 * std::f64::consts::PI).sqrt();
+        let inside = statrs::function::erf::erf(sigmas / std::f64::consts::SQRT_2);
+        Clip {
+            sigmas,
+            variance_factor: 1.0 - 2.0 * sigmas * phi / inside,
+        }
+    }
+}
+
+/// [`clipped_mean_sigma`] with the limit and its factor computed beforehand.
+pub fn clipped_mean_sigma_with(
+    values: &[f32],
+    guess: (f32, f32),
+    clip: &Clip,
+    max_rounds: usize,
+) -> (f32, f32) {
+    let Clip {
+        sigmas: clip,
+        variance_factor: factor,
+    } = *clip;
     let (mut centre, mut sigma) = (f64::from(guess.0), f64::from(guess.1));
     for _ in 0..max_rounds {
         if !(sigma > 0.0 && sigma.is_finite()) {
@@ -91,10 +123,47 @@ fn clipped_sums(values: &[f32], centre: f32, limit: f32) -> (u32, f64, f64) {
     clipped_sums_portable(values, centre, limit)
 }
 
+/// [`clipped_sums_portable`] in AVX2 intrinsics, lane for lane the same operations
+/// (so the same sums, bit for bit): the compiler left the portable loop scalar.
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "avx2")]
 fn clipped_sums_avx2(values: &[f32], centre: f32, limit: f32) -> (u32, f64, f64) {
-    clipped_sums_portable(values, centre, limit)
+    use std::arch::x86_64::{
+        _CMP_LE_OQ, _mm256_add_ps, _mm256_and_ps, _mm256_andnot_ps, _mm256_castps_si256,
+        _mm256_cmp_ps, _mm256_loadu_ps, _mm256_mul_ps, _mm256_set1_ps, _mm256_setzero_ps,
+        _mm256_setzero_si256, _mm256_storeu_ps, _mm256_storeu_si256, _mm256_sub_epi32,
+        _mm256_sub_ps,
+    };
+    let (centre8, limit8, sign) = (
+        _mm256_set1_ps(centre),
+        _mm256_set1_ps(limit),
+        _mm256_set1_ps(-0.0),
+    );
+    let (mut n8, mut s1_8, mut s2_8) = (
+        _mm256_setzero_si256(),
+        _mm256_setzero_ps(),
+        _mm256_setzero_ps(),
+    );
+    let chunks = values.chunks_exact(8);
+    let rest = chunks.remainder();
+    for chunk in chunks {
+        // SAFETY: `chunk` holds eight values, so the load reads inside it.
+        let d = _mm256_sub_ps(unsafe { _mm256_loadu_ps(chunk.as_ptr()) }, centre8);
+        // |d| ≤ limit, false for NaN as in the portable test; kept d or +0.0.
+        let keep = _mm256_cmp_ps::<_CMP_LE_OQ>(_mm256_andnot_ps(sign, d), limit8);
+        let d = _mm256_and_ps(keep, d);
+        n8 = _mm256_sub_epi32(n8, _mm256_castps_si256(keep)); // a kept lane is −1
+        s1_8 = _mm256_add_ps(s1_8, d);
+        s2_8 = _mm256_add_ps(s2_8, _mm256_mul_ps(d, d));
+    }
+    let (mut n, mut s1, mut s2) = ([0u32; 8], [0.0f32; 8], [0.0f32; 8]);
+    // SAFETY: each array holds eight lanes of four bytes: the stores write inside them.
+    unsafe {
+        _mm256_storeu_si256(n.as_mut_ptr().cast(), n8);
+        _mm256_storeu_ps(s1.as_mut_ptr(), s1_8);
+        _mm256_storeu_ps(s2.as_mut_ptr(), s2_8);
+    }
+    clipped_sums_finish((n, s1, s2), rest, centre, limit)
 }
 
 /// The portable body of [`clipped_sums`].
@@ -113,6 +182,17 @@ fn clipped_sums_portable(values: &[f32], centre: f32, limit: f32) -> (u32, f64, 
             s2[k] += d * d;
         }
     }
+    clipped_sums_finish((n, s1, s2), rest, centre, limit)
+}
+
+/// Adds up the eight lanes of [`clipped_sums`] in f64 and the values left over.
+#[inline(always)]
+fn clipped_sums_finish(
+    (n, s1, s2): ([u32; 8], [f32; 8], [f32; 8]),
+    rest: &[f32],
+    centre: f32,
+    limit: f32,
+) -> (u32, f64, f64) {
     let (mut count, mut sum, mut squares) = (n.iter().sum::<u32>(), 0.0f64, 0.0f64);
     for k in 0..8 {
         sum += f64::from(s1[k]);
@@ -172,9 +252,43 @@ impl Baseline {
     /// The baseline at sample `t`.
     pub fn at(&self, t: usize) -> f32 {
         let x = t as f64;
-        let k = self.knots.partition_point(|knot| knot.0 < x);
+        self.between(self.knots.partition_point(|knot| knot.0 < x), x)
+    }
+
+    /// `series[t] − self.at(t)` for `t = 0, stride, 2·stride, …`, appended to `out`:
+    /// the values of [`Self::at`], segment by segment between the knots instead of
+    /// searching them for every `t`, in loops whose divisions vectorise.
+    pub fn strided_residuals(&self, series: &[f32], stride: usize, out: &mut Vec<f32>) {
+        let (n, stride, first) = (series.len(), stride.max(1), out.len());
+        out.extend(series.iter().step_by(stride));
+        let values = &mut out[first..];
+        // Knot k's segment: the samples t after k knots (x_{k−1} < t ≤ x_k), here the
+        // strided ones from the i-th on.
+        let mut i = 0;
+        for k in 0..=self.knots.len() {
+            let end_t = self
+                .knots
+                .get(k)
+                .map_or(n, |&(x, _)| (x.floor() as usize + 1).min(n));
+            let end = end_t.div_ceil(stride).max(i);
+            let part = &mut values[i..end];
+            match (k.checked_sub(1).map(|j| self.knots[j]), self.knots.get(k)) {
+                (Some(a), Some(&b)) => (i..end)
+                    .zip(part)
+                    .for_each(|(j, v)| *v -= interpolate(a, b, (j * stride) as f64)),
+                (Some((_, y)), None) | (None, Some(&(_, y))) => {
+                    part.iter_mut().for_each(|v| *v -= y);
+                }
+                (None, None) => {}
+            }
+            i = end;
+        }
+    }
+
+    /// The baseline at `x`, given the first knot `k` at or after it.
+    fn between(&self, k: usize, x: f64) -> f32 {
         match (k.checked_sub(1).map(|i| self.knots[i]), self.knots.get(k)) {
-            (Some((x0, y0)), Some(&(x1, y1))) => y0 + ((x - x0) / (x1 - x0)) as f32 * (y1 - y0),
+            (Some(a), Some(&b)) => interpolate(a, b, x),
             (Some((_, y)), None) | (None, Some(&(_, y))) => y,
             (None, None) => 0.0,
         }
@@ -182,26 +296,56 @@ impl Baseline {
 
     /// Replaces every value v of `series` by (v − baseline)·`scale` in one pass.
     pub fn subtract_scaled(&self, series: &mut [f32], scale: f32) {
-        let n = series.len();
+        self.subtract_scaled_at(series, 0, scale);
+    }
+
+    /// [`Self::subtract_scaled`] on the samples `first..first + part.len()` of a
+    /// series, held in `part`: applying it to consecutive parts gives the same
+    /// values, bit for bit, as one call on the whole series (inlined, so that callers
+    /// compiled for AVX2 get its loops in AVX2).
+    #[inline(always)]
+    pub fn subtract_scaled_at(&self, part: &mut [f32], first: usize, scale: f32) {
         let Some(&(first_x, first_y)) = self.knots.first() else {
-            return series.iter_mut().for_each(|v| *v *= scale);
+            return part.iter_mut().for_each(|v| *v *= scale);
         };
+        let end = first + part.len();
+        // Samples lo..hi of the series, as indices into `part`.
+        let within =
+            |lo: usize, hi: usize| lo.clamp(first, end) - first..hi.clamp(first, end) - first;
         let flat = |part: &mut [f32], y: f32| part.iter_mut().for_each(|v| *v = (*v - y) * scale);
-        let head = (first_x.floor() as usize + 1).min(n);
-        flat(&mut series[..head], first_y);
+        flat(&mut part[within(0, first_x.floor() as usize + 1)], first_y);
         for pair in self.knots.windows(2) {
             let ((x0, y0), (x1, y1)) = (pair[0], pair[1]);
-            let (lo, hi) = (x0.floor() as usize + 1, (x1.floor() as usize + 1).min(n));
+            let (lo, hi) = (x0.floor() as usize + 1, x1.floor() as usize + 1);
+            let range = within(lo, hi);
+            if range.is_empty() {
+                continue;
+            }
             let slope = ((f64::from(y1) - f64::from(y0)) / (x1 - x0)) as f32;
             let offset = (lo as f64 - x0) as f32;
-            for (i, v) in series[lo..hi].iter_mut().enumerate() {
-                *v = (*v - (y0 + slope * (offset + i as f32))) * scale;
+            // Steps from `lo` of the first sample here.
+            let skip = first + range.start - lo;
+            let line = |k: f32, v: &mut f32| *v = (*v - (y0 + slope * (offset + k))) * scale;
+            let segment = &mut part[range];
+            // Steps counted in i32 convert to f32 eight at a time (the same values as
+            // from usize, which has no packed conversion); a longer segment counts in
+            // usize.
+            match i32::try_from(skip + segment.len()) {
+                Ok(_) => (skip as i32..)
+                    .zip(segment)
+                    .for_each(|(k, v)| line(k as f32, v)),
+                Err(_) => (skip..).zip(segment).for_each(|(k, v)| line(k as f32, v)),
             }
         }
         let (last_x, last_y) = self.knots[self.knots.len() - 1];
-        let tail = (last_x.floor() as usize + 1).min(n);
-        flat(&mut series[tail..], last_y);
+        flat(&mut part[within(last_x.floor() as usize + 1, end)], last_y);
     }
+}
+
+/// The straight line through knots `(x0, y0)` and `(x1, y1)` at `x`.
+#[inline(always)]
+fn interpolate((x0, y0): (f64, f32), (x1, y1): (f64, f32), x: f64) -> f32 {
+    y0 + ((x - x0) / (x1 - x0)) as f32 * (y1 - y0)
 }
 
 /// Sum of `values` over eight interleaved accumulators, so the additions vectorise.
@@ -272,6 +416,32 @@ mod tests {
         assert!(clipped_mean_sigma(&v, (1e6, 1.0), 4.0, 6).0.is_nan());
     }
 
+    // The kernel picked at run time against the portable lanes, bit for bit, on
+    // awkward lengths with NaN, infinities and values exactly at the limit.
+    #[test]
+    fn clipped_sums_kernels_agree_bit_for_bit() {
+        use rand::SeedableRng;
+        use rand_distr::{Distribution, StandardNormal};
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(59);
+        let mut v: Vec<f32> = (0..4099)
+            .map(|_| 2.0 * Distribution::<f32>::sample(&StandardNormal, &mut rng))
+            .collect();
+        v[17] = f32::NAN;
+        v[100] = f32::INFINITY;
+        v[101] = f32::NEG_INFINITY;
+        v[200] = 0.5 + 3.0;
+        for len in [0usize, 3, 8, 15, 16, 4099] {
+            for (centre, limit) in [(0.5f32, 3.0f32), (-1.0, 0.1), (0.0, 100.0)] {
+                let (n, s1, s2) = clipped_sums(&v[..len], centre, limit);
+                let (pn, ps1, ps2) = clipped_sums_portable(&v[..len], centre, limit);
+                assert_eq!(
+                    (n, s1.to_bits(), s2.to_bits()),
+                    (pn, ps1.to_bits(), ps2.to_bits())
+                );
+            }
+        }
+    }
+
     // The eight-lane sums against a plain loop, on awkward lengths.
     #[test]
     fn clipped_sums_agree_with_a_plain_loop() {
@@ -305,6 +475,50 @@ mod tests {
             }
         }
         assert!(s[500] > 1988.0);
+    }
+
+    // Subtracting part by part, at awkward part lengths, gives the values of one
+    // call on the whole series bit for bit; both follow `Baseline::at` closely.
+    #[test]
+    fn baseline_subtracted_in_parts_matches_the_whole() {
+        let s: Vec<f32> = (0..10_007)
+            .map(|i| ((i * 7919) % 1013) as f32 * 0.01 + (i as f32 * 1e-3).sin())
+            .collect();
+        for window in [1usize, 100, 3000, 20_000] {
+            let baseline = Baseline::piecewise_median(&s, window, &mut Vec::new());
+            let mut whole = s.clone();
+            baseline.subtract_scaled(&mut whole, 0.7);
+            for (t, (&v, &raw)) in whole.iter().zip(&s).enumerate() {
+                assert!((v - 0.7 * (raw - baseline.at(t))).abs() < 1e-4, "t={t}");
+            }
+            for part_len in [1usize, 7, 1000, 4096, 10_007] {
+                let mut parts = s.clone();
+                for (p, part) in parts.chunks_mut(part_len).enumerate() {
+                    baseline.subtract_scaled_at(part, p * part_len, 0.7);
+                }
+                assert_eq!(parts, whole, "window {window}, parts of {part_len}");
+            }
+        }
+    }
+
+    // The knot walk against `at` at every stride, on awkward lengths and strides.
+    #[test]
+    fn strided_residuals_match_the_baseline_at_each_sample() {
+        let s: Vec<f32> = (0..5003)
+            .map(|i| ((i * 37) % 101) as f32 + i as f32 * 0.01)
+            .collect();
+        for window in [1usize, 333, 5003] {
+            let baseline = Baseline::piecewise_median(&s, window, &mut Vec::new());
+            for stride in [0usize, 1, 2, 7, 1000, 6000] {
+                let mut walked = Vec::new();
+                baseline.strided_residuals(&s, stride, &mut walked);
+                let searched: Vec<f32> = (0..s.len())
+                    .step_by(stride.max(1))
+                    .map(|t| s[t] - baseline.at(t))
+                    .collect();
+                assert_eq!(walked, searched, "window {window} stride {stride}");
+            }
+        }
     }
 
     // The median of bin means against the plain median of every sample of each run

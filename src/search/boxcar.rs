@@ -19,12 +19,26 @@
 //!
 //! The scan works in tiles of starts. It first marks runs of [`SCAN_CHUNK`] starts
 //! holding any sum above the threshold level, in f32 on the tile's prefix sums taken
-//! relative to its first (so they stay small and precise), in a loop without
-//! branches that vectorises, with a margin that keeps every sum the exact test would
-//! pass; only marked runs are then tested one start at a time in f64. Tests compare
-//! it with direct window sums.
+//! relative to its first (so they stay small and precise), eight starts per AVX2
+//! instruction (a running maximum per run, then one comparison), with a margin that
+//! keeps every sum the exact test would pass; only marked runs are then tested one
+//! start at a time in f64. Tests compare it with direct window sums.
+//!
+//! [`search_trial`] is what the search runs on each dedispersed series: it measures
+//! the baseline and σ of the normalisation, then subtracts, scales and takes the f64
+//! prefix sums in one pass, block by block in L1 cache, so the row is read twice
+//! (baseline, then this pass) instead of three times and the prefix sums are written
+//! once. Every kernel compiled for AVX2 keeps its plain version, and tests compare
+//! the two.
 
-use crate::robust::clipped_mean_sigma;
+use super::normalise::{SERIES_SIGMA_VALUES, series_level};
+use crate::robust::{Clip, clipped_mean_sigma_with};
+
+mod mark;
+mod prefix;
+
+use mark::{mark_chunks, relative_tile};
+pub use prefix::prefix_sums;
 
 /// Boxcar widths `1, round(r), round(r²), …` without repeats, up to `max_width`.
 pub fn width_ladder(max_width: usize, ratio: f64) -> Vec<usize> {
@@ -40,45 +54,6 @@ pub fn width_ladder(max_width: usize, ratio: f64) -> Vec<usize> {
     widths
 }
 
-/// Independent running sums interleaved by [`prefix_sums`].
-const PREFIX_LANES: usize = 4;
-
-/// Prefix sums in f64: `prefix[t]` is the sum of the first `t` values of `series`.
-/// The series is cut into [`PREFIX_LANES`] parts summed side by side (one chain of
-/// dependent additions would leave the adder idle), then each part is offset by the
-/// total of the parts before it.
-pub fn prefix_sums(series: &[f32], prefix: &mut Vec<f64>) {
-    let n = series.len();
-    prefix.clear();
-    prefix.resize(n + 1, 0.0);
-    let part = n / PREFIX_LANES;
-    let mut acc = [0.0f64; PREFIX_LANES];
-    for i in 0..part {
-        for (k, a) in acc.iter_mut().enumerate() {
-            *a += f64::from(series[k * part + i]);
-            prefix[1 + k * part + i] = *a;
-        }
-    }
-    // The remainder continues the last part.
-    let last = &mut acc[PREFIX_LANES - 1];
-    for (i, &v) in series.iter().enumerate().skip(PREFIX_LANES * part) {
-        *last += f64::from(v);
-        prefix[1 + i] = *last;
-    }
-    let mut base = 0.0;
-    for k in 1..PREFIX_LANES {
-        base += acc[k - 1];
-        let end = if k + 1 == PREFIX_LANES {
-            n
-        } else {
-            (k + 1) * part
-        };
-        for p in &mut prefix[1 + k * part..=end] {
-            *p += base;
-        }
-    }
-}
-
 /// Fewest independent boxcar sums (series length / width) from which a width's noise
 /// is measured; with fewer, σ would be uncertain by more than about 1/√(2·16) = 18 %
 /// and the width is skipped.
@@ -88,7 +63,7 @@ pub const MIN_INDEPENDENT_SUMS: usize = 16;
 pub const NOISE_SUMS: usize = 4096;
 
 /// Starts per run of the vectorised threshold test.
-pub const SCAN_CHUNK: usize = 32;
+pub const SCAN_CHUNK: usize = 64;
 
 /// Robust mean and σ of the boxcar sums of each width in `chain` (ascending) over a
 /// series of unit robust σ and zero baseline whose prefix sums are `prefix`. Each is
@@ -139,7 +114,9 @@ fn sums_noise(
             .map(|t| (prefix[t + w] - prefix[t]) as f32),
     );
     let guess = (guess.0 as f32, guess.1 as f32);
-    let (mean, sigma) = clipped_mean_sigma(&scratch.sums, guess, 4.0, 1);
+    static NOISE_CLIP: std::sync::OnceLock<Clip> = std::sync::OnceLock::new();
+    let clip = NOISE_CLIP.get_or_init(|| Clip::new(4.0));
+    let (mean, sigma) = clipped_mean_sigma_with(&scratch.sums, guess, clip, 1);
     (sigma > 0.0).then_some((f64::from(mean), f64::from(sigma)))
 }
 
@@ -166,9 +143,11 @@ pub struct Peak {
     pub snr: f32,
 }
 
-/// Reusable buffers for [`search_series`].
+/// Reusable buffers for [`search_trial`] and [`search_series`].
 #[derive(Default)]
 pub struct Scratch {
+    /// Workspace of the normalisation's medians.
+    work: Vec<f32>,
     prefix: Vec<f64>,
     sums: Vec<f32>,
     /// One tile of prefix sums relative to the tile's first, in f32.
@@ -179,7 +158,34 @@ pub struct Scratch {
 
 /// Starts per tile of the threshold test (a multiple of [`SCAN_CHUNK`]): with the
 /// widest boxcar its prefix sums stay in L1 cache.
-const TILE: usize = 128 * SCAN_CHUNK;
+const TILE: usize = 64 * SCAN_CHUNK;
+
+/// One trial of the search: normalises the dedispersed series `row` in place as
+/// [`super::normalise::normalise_series`] does with [`SERIES_SIGMA_VALUES`] (a
+/// constant row becomes zero), then appends its peaks as [`search_series`] would
+/// find them in the normalised row. The subtraction and the prefix sums share one
+/// pass over the row.
+pub fn search_trial(
+    row: &mut [f32],
+    baseline_len: usize,
+    widths: &[usize],
+    threshold: f32,
+    starts: std::ops::Range<usize>,
+    scratch: &mut Scratch,
+    peaks: &mut Vec<Peak>,
+) {
+    let Some((baseline, sigma)) =
+        series_level(row, baseline_len, SERIES_SIGMA_VALUES, &mut scratch.work)
+    else {
+        // Zero everywhere: no width has any noise to measure, so no peaks.
+        row.fill(0.0);
+        return;
+    };
+    let mut prefix = std::mem::take(&mut scratch.prefix);
+    prefix::normalise_with_prefix(row, &baseline, 1.0 / sigma, &mut prefix);
+    search_prefix(&prefix, widths, threshold, starts, scratch, peaks);
+    scratch.prefix = prefix;
+}
 
 /// Appends to `peaks` every run of S/N ≥ `threshold` among the boxcars starting in
 /// `starts`, for every width in `widths`; the noise of each width is measured over
@@ -194,10 +200,23 @@ pub fn search_series(
 ) {
     let mut prefix = std::mem::take(&mut scratch.prefix);
     prefix_sums(series, &mut prefix);
+    search_prefix(&prefix, widths, threshold, starts, scratch, peaks);
+    scratch.prefix = prefix;
+}
+
+/// [`search_series`] on the series' prefix sums.
+fn search_prefix(
+    prefix: &[f64],
+    widths: &[usize],
+    threshold: f32,
+    starts: std::ops::Range<usize>,
+    scratch: &mut Scratch,
+    peaks: &mut Vec<Peak>,
+) {
     // Per width: (width, mean, σ, level), for the widths the series can measure.
     let tests: Vec<(usize, f64, f64, f64)> = widths
         .iter()
-        .zip(noise_chain(&prefix, widths, scratch))
+        .zip(noise_chain(prefix, widths, scratch))
         .filter_map(|(&w, noise)| {
             let (mean, sigma) = noise?;
             Some((w, mean, sigma, mean + f64::from(threshold) * sigma))
@@ -209,13 +228,8 @@ pub fn search_series(
     scratch.marks.iter_mut().for_each(Vec::clear);
     for tile_lo in (lo..hi).step_by(TILE) {
         let end = (tile_lo + TILE + widths.iter().max().unwrap_or(&0)).min(prefix.len());
-        let origin = prefix[tile_lo];
-        scratch.tile.clear();
-        scratch
-            .tile
-            .extend(prefix[tile_lo..end].iter().map(|&p| (p - origin) as f32));
+        let largest = relative_tile(&prefix[tile_lo..end], &mut scratch.tile);
         let tile_starts = TILE.min(hi - tile_lo);
-        let largest = scratch.tile.iter().fold(0.0f32, |m, v| m.max(v.abs()));
         for (&(w, _, _, level), marks) in tests.iter().zip(&mut scratch.marks) {
             // Eight roundings of the largest value below the level: the f32 test
             // never misses a sum that the exact f64 test below passes.
@@ -252,56 +266,6 @@ pub fn search_series(
             }
         }
         peaks.extend(best);
-    }
-    scratch.prefix = prefix;
-}
-
-/// Appends to `marks` one flag per run of [`SCAN_CHUNK`] starts among the first
-/// `n_starts` of `tile` (prefix sums relative to the tile's first, in f32): set when
-/// any width-`w` sum there reaches `level`; compiled for AVX2 when the CPU has it.
-fn mark_chunks(tile: &[f32], w: usize, n_starts: usize, level: f32, marks: &mut Vec<bool>) {
-    #[cfg(target_arch = "x86_64")]
-    if std::arch::is_x86_feature_detected!("avx2") {
-        // SAFETY: `mark_chunks_avx2` only requires the AVX2 instruction set, which was
-        // detected at run time just above; it is otherwise safe code.
-        return unsafe { mark_chunks_avx2(tile, w, n_starts, level, marks) };
-    }
-    mark_chunks_portable(tile, w, n_starts, level, marks)
-}
-
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx2")]
-fn mark_chunks_avx2(tile: &[f32], w: usize, n_starts: usize, level: f32, marks: &mut Vec<bool>) {
-    mark_chunks_portable(tile, w, n_starts, level, marks)
-}
-
-/// The portable body of [`mark_chunks`]: a branch-free count of the starts at or
-/// above the level in each fixed-size run (plain indexing, so that everything
-/// inlines into the AVX2 build).
-#[inline(always)]
-fn mark_chunks_portable(
-    tile: &[f32],
-    w: usize,
-    n_starts: usize,
-    level: f32,
-    marks: &mut Vec<bool>,
-) {
-    let n_sums = n_starts.min(tile.len().saturating_sub(w));
-    let full = n_sums / SCAN_CHUNK;
-    for c in 0..full {
-        let t = c * SCAN_CHUNK;
-        let lo: &[f32; SCAN_CHUNK] = tile[t..t + SCAN_CHUNK].try_into().expect("run length");
-        let hi: &[f32; SCAN_CHUNK] = tile[t + w..t + w + SCAN_CHUNK]
-            .try_into()
-            .expect("run length");
-        let mut hits = 0u32;
-        for i in 0..SCAN_CHUNK {
-            hits += u32::from(hi[i] - lo[i] >= level);
-        }
-        marks.push(hits > 0);
-    }
-    if n_sums > full * SCAN_CHUNK {
-        marks.push((full * SCAN_CHUNK..n_sums).any(|t| tile[t + w] - tile[t] >= level));
     }
 }
 
@@ -447,6 +411,61 @@ mod tests {
                 }
             }
         }
+    }
+
+    // One trial in one pass against its two steps, normalisation then search, on
+    // drifting series with pulses and on a constant one: the same row and peaks.
+    #[test]
+    fn trial_matches_normalising_then_searching() {
+        use super::super::normalise::normalise_series;
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(47);
+        let widths = width_ladder(100, std::f64::consts::SQRT_2);
+        for &(n, baseline_len) in &[(3001usize, 700usize), (20_011, 5000), (66_000, 15_625)] {
+            let mut row: Vec<f32> = (0..n)
+                .map(|t| {
+                    let noise: f32 = StandardNormal.sample(&mut rng);
+                    4.0 + (t as f32 * 3e-4).sin() + 2.0 * noise
+                })
+                .collect();
+            for k in 1..6 {
+                let at = k * n / 7;
+                row[at..at + 4 * k].iter_mut().for_each(|v| *v += 4.0);
+            }
+            let (mut fast, mut plain) = (row.clone(), row);
+            let (mut fast_peaks, mut plain_peaks) = (Vec::new(), Vec::new());
+            let mut scratch = Scratch::default();
+            search_trial(
+                &mut fast,
+                baseline_len,
+                &widths,
+                5.0,
+                0..n,
+                &mut scratch,
+                &mut fast_peaks,
+            );
+            normalise_series(
+                &mut plain,
+                baseline_len,
+                SERIES_SIGMA_VALUES,
+                &mut Vec::new(),
+            );
+            search_series(&plain, &widths, 5.0, 0..n, &mut scratch, &mut plain_peaks);
+            assert_eq!(fast, plain, "n={n}");
+            assert!(!plain_peaks.is_empty());
+            assert_eq!(fast_peaks, plain_peaks, "n={n}");
+        }
+        let mut flat = vec![3.0f32; 5000];
+        let mut peaks = Vec::new();
+        search_trial(
+            &mut flat,
+            1000,
+            &widths,
+            5.0,
+            0..5000,
+            &mut Scratch::default(),
+            &mut peaks,
+        );
+        assert!(peaks.is_empty() && flat.iter().all(|&v| v == 0.0));
     }
 
     /// Efficiency of a centred boxcar of width `b` (in FWHM units) on a Gaussian pulse

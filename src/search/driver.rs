@@ -319,14 +319,14 @@ impl<'a> Searcher<'a> {
                 .par_chunks_mut(n)
                 .enumerate()
                 .map_init(
-                    || (Scratch::default(), Vec::new(), Vec::new()),
-                    |(scratch, work, peaks), (d, row)| {
-                        normalise_series(row, baseline, SERIES_SIGMA_VALUES, work);
+                    || (Scratch::default(), Vec::new()),
+                    |(scratch, peaks), (d, row)| {
                         peaks.clear();
                         // The widths due at this trial: a prefix of the ladder.
                         let due = strides.iter().take_while(|&&k| d % k == 0).count();
-                        boxcar::search_series(
+                        boxcar::search_trial(
                             row,
+                            baseline,
                             &widths[..due],
                             threshold,
                             starts.clone(),

@@ -22,24 +22,39 @@ pub fn normalise_series(
     sigma_values: usize,
     scratch: &mut Vec<f32>,
 ) -> f32 {
+    match series_level(series, baseline_len, sigma_values, scratch) {
+        Some((baseline, sigma)) => {
+            baseline.subtract_scaled(series, 1.0 / sigma);
+            sigma
+        }
+        None => {
+            series.fill(0.0);
+            0.0
+        }
+    }
+}
+
+/// The running baseline and robust σ that [`normalise_series`] removes, without
+/// changing the series; `None` for an empty or constant series.
+pub fn series_level(
+    series: &[f32],
+    baseline_len: usize,
+    sigma_values: usize,
+    scratch: &mut Vec<f32>,
+) -> Option<(Baseline, f32)> {
     if series.is_empty() {
-        return 0.0;
+        return None;
     }
     let baseline = Baseline::piecewise_median(series, baseline_len, scratch);
     let stride = (series.len() / sigma_values.max(1)).max(1);
-    let residuals = |t: usize| series[t] - baseline.at(t);
-    let strided: Vec<f32> = (0..series.len()).step_by(stride).map(residuals).collect();
+    let mut strided = Vec::with_capacity(series.len().div_ceil(stride));
+    baseline.strided_residuals(series, stride, &mut strided);
     let (_, mut sigma) = median_sigma(&strided, 1, scratch);
     if sigma.is_nan() || sigma <= 0.0 {
         let n = series.len() as f64;
-        let all = (0..series.len()).map(|t| f64::from(residuals(t)));
+        let all = (0..series.len()).map(|t| f64::from(series[t] - baseline.at(t)));
         let mean = all.clone().sum::<f64>() / n;
         sigma = (all.map(|v| (v - mean).powi(2)).sum::<f64>() / n).sqrt() as f32;
     }
-    if !(sigma > 0.0 && sigma.is_finite()) {
-        series.fill(0.0);
-        return 0.0;
-    }
-    baseline.subtract_scaled(series, 1.0 / sigma);
-    sigma
+    (sigma > 0.0 && sigma.is_finite()).then_some((baseline, sigma))
 }
