@@ -147,8 +147,10 @@ pub fn band_sum(data: ArrayView2<'_, f32>, mask: &[bool]) -> Vec<f32> {
             let t0 = i * BAND_SUM_SPAN;
             for (row, _) in data.rows().into_iter().zip(mask).filter(|(_, m)| !**m) {
                 let row = row.slice_move(ndarray::s![t0..t0 + out.len()]);
-                for (s, &v) in out.iter_mut().zip(row.iter()) {
-                    *s += v;
+                // A contiguous row is summed as a slice, which vectorises.
+                match row.as_slice() {
+                    Some(row) => out.iter_mut().zip(row).for_each(|(s, &v)| *s += v),
+                    None => out.iter_mut().zip(row).for_each(|(s, &v)| *s += v),
                 }
             }
         });

@@ -39,13 +39,16 @@ pub struct FastDedisperser {
     coarse: Vec<f32>,
     /// Where the next halving is written before it replaces `coarse`.
     halved: Vec<f32>,
+    /// Stage-1 tile scratch, one per sub-band of the widest step: kept, so that no
+    /// block allocates (and faults in) fresh tree levels.
+    tiles: Vec<TileScratch>,
     /// Output buffers handed back by [`FastDedisperser::recycle`], one per step:
     /// reusing them spares the page faults of fresh allocations in every block.
     spare: Vec<Vec<f32>>,
 }
 
-/// Per-worker stage-1 scratch: one tile of a sub-band's channels and tree levels.
-#[derive(Default)]
+/// Stage-1 scratch of one sub-band: one tile of its channels and tree levels.
+#[derive(Debug, Clone, Default)]
 struct TileScratch {
     channels: Vec<f32>,
     levels: [Vec<f32>; 2],
@@ -74,6 +77,7 @@ impl FastDedisperser {
             stage1: Vec::new(),
             coarse: Vec::new(),
             halved: Vec::new(),
+            tiles: Vec::new(),
             spare: Vec::new(),
         }
     }
@@ -159,7 +163,7 @@ impl FastDedisperser {
                         row_stride,
                         t0: t0 * kernel.per_out,
                     };
-                    let stride = stage1(kernel, &source, len, &mut self.stage1);
+                    let stride = stage1(kernel, &source, len, &mut self.stage1, &mut self.tiles);
                     stage2(kernel, &self.stage1, stride, t0, len, &mut data, n_out);
                 }
             }
@@ -220,7 +224,13 @@ fn pair_sums(dst: &mut [f32], src: &[f32]) {
 /// `per_out` as the sums of `per_out` tree samples starting at `per_out·j + φ`, so
 /// stage 2 runs at the output rate while delays keep the tree's resolution. Layout
 /// `[row · per_out + φ, stride]`; returns the stride (output samples).
-fn stage1(kernel: &StepKernel, src: &Source<'_>, len: usize, buf: &mut Vec<f32>) -> usize {
+fn stage1(
+    kernel: &StepKernel,
+    src: &Source<'_>,
+    len: usize,
+    buf: &mut Vec<f32>,
+    tiles: &mut Vec<TileScratch>,
+) -> usize {
     let per_out = kernel.per_out;
     let need = |max_offset: usize| len + max_offset / per_out + 1;
     let max_offset = kernel
@@ -239,17 +249,22 @@ fn stage1(kernel: &StepKernel, src: &Source<'_>, len: usize, buf: &mut Vec<f32>)
         slabs.push(slab);
         rest = tail;
     }
-    kernel.subbands.par_iter().zip(slabs).for_each_init(
-        TileScratch::default,
-        |scratch, (sub, slab)| {
+    if tiles.len() < kernel.subbands.len() {
+        tiles.resize_with(kernel.subbands.len(), TileScratch::default);
+    }
+    kernel
+        .subbands
+        .par_iter()
+        .zip(slabs)
+        .zip(tiles.par_iter_mut())
+        .for_each(|((sub, slab), scratch)| {
             let rows = Phased {
                 slab,
                 stride,
                 per_out,
             };
             subband_rows(sub, src, need(sub.max_offset), rows, scratch)
-        },
-    );
+        });
     stride
 }
 
