@@ -127,6 +127,10 @@ pub fn search_source(
         }
         Ok(())
     })?;
+    // Unmapping the kernel's and the block's gigabytes takes a noticeable fraction of
+    // a second; it need not delay the result.
+    let buffers = (searcher.fast.take(), channels);
+    std::thread::spawn(move || drop(buffers));
     Ok(searcher.finish(totals))
 }
 
