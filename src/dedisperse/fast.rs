@@ -70,11 +70,21 @@ impl FastDedisperser {
                     max_delay,
                 )
             })
-            .collect();
+            .collect::<Vec<StepKernel>>();
+        // The largest stage-1 buffer any step needs, reserved now as untouched zero
+        // pages: growing it step by step would fault in each smaller size first.
+        let stage1_len = steps
+            .iter()
+            .map(|k| {
+                let chunk = chunk_len(k.max_path).div_ceil(k.per_out);
+                k.n_rows() * k.per_out * stage1_stride(k, chunk)
+            })
+            .max()
+            .unwrap_or(0);
         FastDedisperser {
             plan: plan.clone(),
             steps,
-            stage1: Vec::new(),
+            stage1: vec![0.0; stage1_len],
             coarse: Vec::new(),
             halved: Vec::new(),
             tiles: Vec::new(),
@@ -233,13 +243,7 @@ fn stage1(
 ) -> usize {
     let per_out = kernel.per_out;
     let need = |max_offset: usize| len + max_offset / per_out + 1;
-    let max_offset = kernel
-        .subbands
-        .iter()
-        .map(|s| s.max_offset)
-        .max()
-        .unwrap_or(0);
-    let stride = need(max_offset);
+    let stride = stage1_stride(kernel, len);
     grow(buf, kernel.n_rows() * per_out * stride);
     let mut slabs = Vec::with_capacity(kernel.subbands.len());
     let mut rest = &mut buf[..];
@@ -266,6 +270,18 @@ fn stage1(
             subband_rows(sub, src, need(sub.max_offset), rows, scratch)
         });
     stride
+}
+
+/// Output samples per stage-1 row for a chunk of `len` output samples: the chunk
+/// plus the largest sub-band delay (at the output rate) and one sample for the phases.
+fn stage1_stride(kernel: &StepKernel, len: usize) -> usize {
+    let max_offset = kernel
+        .subbands
+        .iter()
+        .map(|s| s.max_offset)
+        .max()
+        .unwrap_or(0);
+    len + max_offset / kernel.per_out + 1
 }
 
 /// A sub-band's share of the stage-1 buffer.
