@@ -207,7 +207,7 @@ fn zip_or(a: &[bool], b: &[bool]) -> Vec<bool> {
 mod tests {
     use super::*;
     use ndarray::Array2;
-    use rand::SeedableRng;
+    use rand::{Rng, SeedableRng};
     use rand_distr::{Distribution, Normal};
 
     /// No flagging or clipping: the tests look at normalisation and bookkeeping.
@@ -325,5 +325,28 @@ mod tests {
         let out = block.view();
         assert_eq!(out.slice(s![9, ..2000]), kept_before);
         assert!(out.slice(s![9, 2000..]).iter().all(|&v| v == 0.0));
+    }
+
+    /// The tiled transpose against plain indexing, behind kept rows, with channel and
+    /// time counts that are not multiples of the tiles.
+    #[test]
+    fn transpose_equals_plain_indexing() {
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(21);
+        let (n_chan, m, kept) = (TRANSPOSE_CHANNELS + 13, 3 * TRANSPOSE_TIMES + 5, 7);
+        let raw = Array2::from_shape_fn((m, n_chan), |_| rng.random::<f32>());
+        let mut block = ChannelBlock::new(n_chan, kept + m + 2);
+        block.len = kept;
+        block.transpose_in(raw.view());
+        for c in 0..n_chan {
+            let row = &block.data[c * block.capacity..][..block.capacity];
+            assert!(row[..kept].iter().all(|&v| v == 0.0), "kept rows untouched");
+            for t in 0..m {
+                assert_eq!(row[kept + t], raw[[t, c]], "channel {c}, sample {t}");
+            }
+            assert!(
+                row[kept + m..].iter().all(|&v| v == 0.0),
+                "nothing written past"
+            );
+        }
     }
 }
