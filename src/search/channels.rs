@@ -35,6 +35,8 @@ pub(super) struct ChannelBlock {
 
 /// What appending new rows found.
 pub(super) struct Appended {
+    /// Rows appended.
+    pub new_samples: u64,
     /// Fraction of the new channel-samples masked or clipped.
     pub masked_fraction: f64,
 }
@@ -130,7 +132,10 @@ impl ChannelBlock {
         } else {
             (n_masked * m + n_clipped * (n_chan - n_masked)) as f64 / (n_chan * m) as f64
         };
-        Appended { masked_fraction }
+        Appended {
+            new_samples: m as u64,
+            masked_fraction,
+        }
     }
 
     /// Moves rows `len − keep..len` of every channel to the front.

@@ -112,10 +112,9 @@ pub fn search_source(
                 &config.clean,
                 g.baseline_len,
             );
-            let new_samples = read.n_time() as u64;
             // The reader may have ended already; then the buffer is simply dropped.
             let _ = recycle.send(read.data);
-            let outcome = searcher.block(&channels, first, last, new_samples, appended);
+            let outcome = searcher.block(&channels, first, last, appended);
             totals.add(outcome, &searcher.sweep, recent_s);
             first = false;
             if let Some(pb) = progress {
@@ -239,14 +238,12 @@ impl<'a> Searcher<'a> {
         })
     }
 
-    /// Searches the block in `channels`, whose last `new_samples` rows were just
-    /// appended.
+    /// Searches the block in `channels`, whose last rows were just `appended`.
     fn block(
         &mut self,
         channels: &ChannelBlock,
         first: bool,
         last: bool,
-        new_samples: u64,
         appended: Appended,
     ) -> BlockOutcome {
         let g = &self.layout;
@@ -294,7 +291,7 @@ impl<'a> Searcher<'a> {
             masked_fraction: appended.masked_fraction,
             n_detections: detections.len(),
             samples_searched: searched_hi.saturating_sub(own_lo.max(start)),
-            new_samples,
+            new_samples: appended.new_samples,
         }
     }
 
