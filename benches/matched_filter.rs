@@ -8,8 +8,8 @@
 //! one thread). Reports nanoseconds per series sample, the minimum and the median
 //! over calls of one row each (the machine is shared: the minimum is the
 //! undisturbed cost):
-//! - in cache: the same row again and again (restored from a copy each time; the
-//!   copy alone is timed and reported too);
+//! - in cache: the same row again and again (a plain copy of a row is timed too,
+//!   as a yardstick of memory speed);
 //! - out of cache: cycling through rows that together exceed the L3 cache, as the
 //!   search reads the dedisperser's output from main memory.
 
@@ -45,7 +45,7 @@ fn row(seed: u64) -> Vec<f32> {
 }
 
 /// What the search does for one trial.
-fn trial(row: &mut [f32], widths: &[usize], work: &mut (Scratch, Vec<Peak>)) {
+fn trial(row: &[f32], widths: &[usize], work: &mut (Scratch, Vec<Peak>)) {
     let (scratch, peaks) = work;
     peaks.clear();
     boxcar::search_trial(
@@ -96,19 +96,16 @@ fn main() {
         "ns per sample, min / median over calls (each call one row); copying a row: {}",
         summary(&copy_ns)
     );
-    let mut rows: Vec<Vec<f32>> = (0..ROWS as u64).map(|s| row(s + 2)).collect();
+    let rows: Vec<Vec<f32>> = (0..ROWS as u64).map(|s| row(s + 2)).collect();
     for due in [ladder.len(), 3] {
         let widths = &ladder[..due];
-        let in_cache = ns_per_sample(300, N, |_| {
-            copy.copy_from_slice(&pristine);
-            trial(&mut copy, widths, &mut work);
-        });
+        let in_cache = ns_per_sample(300, N, |_| trial(&pristine, widths, &mut work));
         let peaks = work.1.len();
         let out_of_cache = ns_per_sample(3 * ROWS, N, |i| {
-            trial(&mut rows[i % ROWS], widths, &mut work);
+            trial(&rows[i % ROWS], widths, &mut work);
         });
         println!(
-            "{due:2} widths: in cache {} (copy included), out of cache {}; \
+            "{due:2} widths: in cache {}, out of cache {}; \
              {peaks} peak(s) in the pulsed row",
             summary(&in_cache),
             summary(&out_of_cache)

@@ -16,7 +16,7 @@ use super::boxcar::{self, Scratch};
 use super::channels::{Appended, ChannelBlock};
 use super::features::{self, BlockData};
 use super::fluence::fluence_jy_ms;
-use super::normalise::{SERIES_SIGMA_VALUES, normalise_series};
+use super::normalise::{NormalisedSeries, SERIES_SIGMA_VALUES, normalise_series};
 use super::trials::{self, TrialCount};
 use crate::candidate::Candidate;
 use crate::clean::{self, user_mask::static_mask};
@@ -251,7 +251,7 @@ impl<'a> Searcher<'a> {
         let (norm, mask) = (channels.view(), channels.mask());
         let n_chan = mask.len();
         let n_masked = mask.iter().filter(|&&m| m).count();
-        let mut outs = match &mut self.fast {
+        let outs = match &mut self.fast {
             Some(kernel) => {
                 let (rows, stride) = channels.rows();
                 kernel.dedisperse_rows(rows, n_time, stride)
@@ -262,15 +262,16 @@ impl<'a> Searcher<'a> {
         // Boxcar starts tested, relative to the block start (see the module docs).
         let tested = own_lo.saturating_sub(start + g.margin as u64) as usize
             ..own_hi.saturating_add(g.margin as u64).saturating_sub(start) as usize;
-        let detections = self.detect(&mut outs, start, tested);
+        let detections = self.detect(&outs, start, tested);
         let dm0 = self.dm0_series(norm, mask);
+        let series = NormalisedSeries::new(&outs, g.baseline_len);
         let data = BlockData {
             header: &self.header,
             dm_offsets: &self.dm_offsets,
             norm,
             mask,
             dm0: &dm0,
-            outs: &outs,
+            series: &series,
             block_start: start,
         };
         let used_bw = (n_chan - n_masked) as f64 * self.header.chan_bw_mhz;
@@ -278,10 +279,11 @@ impl<'a> Searcher<'a> {
         let clusters =
             friends_of_friends(&detections, self.config.cluster.dm_link_trials, time_link);
         let candidates = merge_dispersion_tails(clusters, &self.sweep, time_link as f64)
-            .into_iter()
+            .into_par_iter()
             .filter(|c| (own_lo..own_hi).contains(&c.best.start_sample))
             .map(|c| self.judge(&data, &c, used_bw))
             .collect();
+        drop(series);
         if let Some(kernel) = &mut self.fast {
             kernel.recycle(outs);
         }
@@ -295,17 +297,17 @@ impl<'a> Searcher<'a> {
         }
     }
 
-    /// Normalises every dedispersed series in place and runs the matched filter on
-    /// the boxcars starting in `tested` (input samples from the block start).
+    /// Runs the matched filter on every dedispersed series, normalised on the way,
+    /// over the boxcars starting in `tested` (input samples from the block start).
     fn detect(
         &self,
-        outs: &mut [dedisperse::Dedispersed],
+        outs: &[dedisperse::Dedispersed],
         block_start: u64,
         tested: std::ops::Range<usize>,
     ) -> Vec<Detection> {
         let threshold = self.config.snr_threshold as f32;
         let mut all = Vec::new();
-        for (si, step) in outs.iter_mut().enumerate() {
+        for (si, step) in outs.iter().enumerate() {
             let (n, ds) = (step.n_time, step.downsample);
             if n == 0 {
                 continue;
@@ -317,7 +319,7 @@ impl<'a> Searcher<'a> {
             let starts = tested.start / ds..tested.end.div_ceil(ds);
             let found: Vec<Detection> = step
                 .data
-                .par_chunks_mut(n)
+                .par_chunks(n)
                 .enumerate()
                 .map_init(
                     || (Scratch::default(), Vec::new()),

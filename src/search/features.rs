@@ -6,9 +6,10 @@
 use ndarray::ArrayView2;
 
 use super::boxcar::{Scratch, best_snr_in};
+use super::normalise::NormalisedSeries;
 use crate::candidate::TriageFeatures;
 use crate::cluster::Detection;
-use crate::dedisperse::{Dedispersed, channel_delays};
+use crate::dedisperse::channel_delays;
 use crate::obs::Header;
 use crate::triage::{band_fraction, cm03_peak_ratio, cm03_zeta, modulation_index};
 use crate::units::delay_between_s;
@@ -28,8 +29,8 @@ pub(super) struct BlockData<'a> {
     pub mask: &'a [bool],
     /// Normalised band sum (DM 0) at input resolution.
     pub dm0: &'a [f32],
-    /// Normalised dedispersed series.
-    pub outs: &'a [Dedispersed],
+    /// Dedispersed series, normalised when read.
+    pub series: &'a NormalisedSeries<'a>,
     pub block_start: u64,
 }
 
@@ -87,7 +88,7 @@ impl BlockData<'_> {
     fn dm_curve_misfit(&self, d: &Detection, t0_in: usize, band: SignalBand) -> f64 {
         let tsamp = self.header.tsamp_s;
         let step_index = self.dm_offsets.partition_point(|&o| o <= d.dm_index) - 1;
-        let step = &self.outs[step_index];
+        let step = self.series.step(step_index);
         let ds = step.downsample;
         let (t0, w) = (t0_in / ds, (d.width_samples / ds).max(1));
         let reach = CURVE_MAX_ZETA / band.zeta(1.0, d.width_samples, tsamp);
@@ -99,7 +100,8 @@ impl BlockData<'_> {
             }
             let shift = self.sweep_samples(dm - d.dm).div_ceil(ds);
             let lo = t0.saturating_sub(shift + w);
-            let snr = best_snr_in(step.row(r), w, lo, t0 + shift + w, &mut scratch);
+            let row = self.series.row(step_index, r);
+            let snr = best_snr_in(row, w, lo, t0 + shift + w, &mut scratch);
             let expected = cm03_peak_ratio(band.zeta(dm - d.dm, d.width_samples, tsamp));
             points.push((f64::from(snr), expected));
         }

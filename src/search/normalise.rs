@@ -3,6 +3,9 @@
 //! (1.4826 × MAD), so every channel, and later every dedispersed series, has zero
 //! mean and unit variance in its noise (common practice).
 
+use std::sync::OnceLock;
+
+use crate::dedisperse::Dedispersed;
 use crate::robust::{Baseline, median_sigma};
 
 /// Values a channel's σ is measured on: σ to about 1.3 %.
@@ -57,4 +60,80 @@ pub fn series_level(
         sigma = (all.map(|v| (v - mean).powi(2)).sum::<f64>() / n).sqrt() as f32;
     }
     (sigma > 0.0 && sigma.is_finite()).then_some((baseline, sigma))
+}
+
+/// A block's dedispersed series, each normalised as the matched filter normalised it
+/// ([`normalise_series`] with [`SERIES_SIGMA_VALUES`]) on first use: the filter
+/// leaves the series as they are, and triage reads only the few near a candidate.
+/// Shared by threads; each series is normalised once.
+pub struct NormalisedSeries<'a> {
+    outs: &'a [Dedispersed],
+    /// Baseline window in input samples.
+    baseline_len: usize,
+    rows: Vec<Vec<OnceLock<Vec<f32>>>>,
+}
+
+impl<'a> NormalisedSeries<'a> {
+    /// The series of every step of `outs`, normalised over `baseline_len` input
+    /// samples (divided by each step's downsampling) when first read.
+    pub fn new(outs: &'a [Dedispersed], baseline_len: usize) -> Self {
+        let rows = outs
+            .iter()
+            .map(|o| (0..o.dms.len()).map(|_| OnceLock::new()).collect())
+            .collect();
+        NormalisedSeries {
+            outs,
+            baseline_len,
+            rows,
+        }
+    }
+
+    /// Step `step` as the kernel produced it (trial DMs, downsampling, raw series).
+    pub fn step(&self, step: usize) -> &'a Dedispersed {
+        &self.outs[step]
+    }
+
+    /// Trial `r` of step `step`, normalised.
+    pub fn row(&self, step: usize, r: usize) -> &[f32] {
+        self.rows[step][r].get_or_init(|| {
+            let out = &self.outs[step];
+            let mut row = out.row(r).to_vec();
+            let baseline = (self.baseline_len / out.downsample).max(1);
+            normalise_series(&mut row, baseline, SERIES_SIGMA_VALUES, &mut Vec::new());
+            row
+        })
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    // Each series read through the lazy view equals the series normalised directly,
+    // at the step's own baseline, and the raw output is left untouched.
+    #[test]
+    fn lazily_normalised_rows_match_direct_normalisation() {
+        let raw = |n: usize, k: usize| -> Vec<f32> {
+            (0..n)
+                .map(|t| 5.0 + ((t * (7 + k)) % 23) as f32 + 0.01 * t as f32)
+                .collect()
+        };
+        let step = |downsample: usize, n: usize| Dedispersed {
+            dms: vec![10.0, 20.0, 30.0],
+            downsample,
+            n_time: n,
+            data: (0..3).flat_map(|k| raw(n, k)).collect(),
+        };
+        let outs = vec![step(1, 4000), step(4, 1000)];
+        let series = NormalisedSeries::new(&outs, 1200);
+        for (s, out) in outs.iter().enumerate() {
+            for r in 0..3 {
+                let mut direct = out.row(r).to_vec();
+                let baseline = 1200 / out.downsample;
+                normalise_series(&mut direct, baseline, SERIES_SIGMA_VALUES, &mut Vec::new());
+                assert_eq!(series.row(s, r), &direct[..], "step {s} row {r}");
+                assert_eq!(out.row(r), &raw(out.n_time, r)[..]);
+            }
+        }
+    }
 }
