@@ -52,6 +52,8 @@ pub struct FastDedisperser {
 struct TileScratch {
     channels: Vec<f32>,
     levels: [Vec<f32>; 2],
+    /// One top row of a tile, before it is stored per phase.
+    row: Vec<f32>,
 }
 
 impl FastDedisperser {
@@ -291,12 +293,20 @@ struct Phased<'a> {
     per_out: usize,
 }
 
+impl Phased<'_> {
+    /// Phase `phase` of top row `r`.
+    fn row_mut(&mut self, r: usize, phase: usize) -> &mut [f32] {
+        let i = r * self.per_out + phase;
+        &mut self.slab[i * self.stride..(i + 1) * self.stride]
+    }
+}
+
 /// One sub-band's phased top rows for output samples `0..need`, tile by tile.
 fn subband_rows(
     sub: &SubBand,
     src: &Source<'_>,
     need: usize,
-    out: Phased<'_>,
+    mut out: Phased<'_>,
     scratch: &mut TileScratch,
 ) {
     let halo = sub.tree.max_path;
@@ -313,11 +323,23 @@ fn subband_rows(
             let chan = &src.rows[c * src.row_stride..][..src.row_len];
             copy_from(chan, src.t0 + j0 * per_out, row);
         }
-        let rows = sub.tree.max_rows(n_chan);
+        let tile = TopTile {
+            j0,
+            n_j,
+            per_out,
+            width,
+        };
+        let Some((top, below)) = sub.tree.levels.split_last() else {
+            // A one-channel sub-band: its channel is its only row.
+            store_phases(&scratch.channels[..len], &mut out, 0, &tile);
+            continue;
+        };
+        // The top level goes straight to `out`; the levels below alternate.
+        let rows = below.iter().map(Vec::len).fold(n_chan, usize::max);
         let [even, odd] = &mut scratch.levels;
         grow(even, rows * width);
         grow(odd, rows * width);
-        for (l, merges) in sub.tree.levels.iter().enumerate() {
+        for (l, merges) in below.iter().enumerate() {
             let (from, to): (&[f32], &mut [f32]) = match l {
                 0 => (&scratch.channels, even),
                 _ if l % 2 == 1 => (even, odd),
@@ -325,24 +347,94 @@ fn subband_rows(
             };
             run_level(merges, from, to, width, len);
         }
-        let top: &[f32] = match sub.tree.levels.len() {
+        let from: &[f32] = match below.len() {
             0 => &scratch.channels,
             n if n % 2 == 1 => even,
             _ => odd,
         };
-        let dst_rows = out.slab.chunks_exact_mut(out.stride);
-        for (i, dst) in dst_rows.enumerate() {
-            let (r, phase) = (i / per_out, i % per_out);
-            let src_row = &top[r * width + phase..][..n_j * per_out];
-            let dst = &mut dst[j0..j0 + n_j];
-            match per_out {
-                1 => dst.copy_from_slice(src_row),
-                // Every downsampled step (TREE_OVERSAMPLE): a loop that vectorises.
-                2 => pair_sums(dst, src_row),
-                _ => {
-                    for (o, group) in dst.iter_mut().zip(src_row.chunks_exact(per_out)) {
-                        *o = group.iter().sum();
-                    }
+        top_level(top, from, &tile, &mut out, &mut scratch.row);
+    }
+}
+
+/// Where one tile of the top level goes: output samples `j0..j0 + n_j` of the phased
+/// rows, from tree rows of `width` values apart in the level below.
+struct TopTile {
+    j0: usize,
+    n_j: usize,
+    per_out: usize,
+    width: usize,
+}
+
+/// The top level of one tile, merged row by row straight into the stage-1 buffer (a
+/// row never leaves L1 before it is stored: the level as a whole would not fit in
+/// L2); compiled for AVX2 when the CPU has it.
+fn top_level(
+    merges: &[Merge],
+    src: &[f32],
+    tile: &TopTile,
+    out: &mut Phased<'_>,
+    row: &mut Vec<f32>,
+) {
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx2") {
+        // SAFETY: `top_level_avx2` only requires the AVX2 instruction set, which was
+        // detected at run time just above; it is otherwise safe code.
+        return unsafe { top_level_avx2(merges, src, tile, out, row) };
+    }
+    top_level_rows(merges, src, tile, out, row)
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+fn top_level_avx2(
+    merges: &[Merge],
+    src: &[f32],
+    tile: &TopTile,
+    out: &mut Phased<'_>,
+    row: &mut Vec<f32>,
+) {
+    top_level_rows(merges, src, tile, out, row)
+}
+
+/// The portable body of [`top_level`]. Top rows need no samples beyond the tile
+/// (their reach is 0): `n_j·per_out + per_out − 1` tree samples, the last phase's.
+#[inline(always)]
+fn top_level_rows(
+    merges: &[Merge],
+    src: &[f32],
+    tile: &TopTile,
+    out: &mut Phased<'_>,
+    row: &mut Vec<f32>,
+) {
+    let (j0, n_j, per_out) = (tile.j0, tile.n_j, tile.per_out);
+    let len = n_j * per_out + per_out - 1;
+    grow(row, len);
+    for (r, m) in merges.iter().enumerate() {
+        if per_out == 1 {
+            // One phase: the merge is the stored row.
+            merge_row(m, src, tile.width, &mut out.row_mut(r, 0)[j0..j0 + n_j]);
+        } else {
+            merge_row(m, src, tile.width, &mut row[..len]);
+            store_phases(&row[..len], out, r, tile);
+        }
+    }
+}
+
+/// Stores tree samples `row` as the phases of top row `r` over the tile's output
+/// samples: phase φ's sample j sums `row[per_out·j + φ ..][..per_out]`.
+#[inline(always)]
+fn store_phases(row: &[f32], out: &mut Phased<'_>, r: usize, tile: &TopTile) {
+    let (j0, n_j, per_out) = (tile.j0, tile.n_j, tile.per_out);
+    for phase in 0..per_out {
+        let src_row = &row[phase..][..n_j * per_out];
+        let dst = &mut out.row_mut(r, phase)[j0..j0 + n_j];
+        match per_out {
+            1 => dst.copy_from_slice(src_row),
+            // Every downsampled step (TREE_OVERSAMPLE): a loop that vectorises.
+            2 => pair_sums(dst, src_row),
+            _ => {
+                for (o, group) in dst.iter_mut().zip(src_row.chunks_exact(per_out)) {
+                    *o = group.iter().sum();
                 }
             }
         }
@@ -470,16 +562,24 @@ fn run_level_avx2(merges: &[Merge], src: &[f32], dst: &mut [f32], stride: usize,
 fn merge_rows(merges: &[Merge], src: &[f32], dst: &mut [f32], stride: usize, len: usize) {
     for (out, m) in dst.chunks_exact_mut(stride).zip(merges) {
         let n = (len + m.reach).min(stride - m.shift);
-        let upper = &src[m.upper * stride..][..n];
-        match m.lower {
-            Some(l) => {
-                let lower = &src[l * stride + m.shift..][..n];
-                for ((o, x), y) in out[..n].iter_mut().zip(upper).zip(lower) {
-                    *o = x + y;
-                }
+        merge_row(m, src, stride, &mut out[..n]);
+    }
+}
+
+/// `out[t] = upper[t] + lower[t + shift]` for the rows of `m` in `src` (rows `stride`
+/// values apart), or a copy of the upper row when there is no lower one.
+#[inline(always)]
+fn merge_row(m: &Merge, src: &[f32], stride: usize, out: &mut [f32]) {
+    let n = out.len();
+    let upper = &src[m.upper * stride..][..n];
+    match m.lower {
+        Some(l) => {
+            let lower = &src[l * stride + m.shift..][..n];
+            for ((o, x), y) in out.iter_mut().zip(upper).zip(lower) {
+                *o = x + y;
             }
-            None => out[..n].copy_from_slice(upper),
         }
+        None => out.copy_from_slice(upper),
     }
 }
 

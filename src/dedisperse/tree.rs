@@ -267,11 +267,6 @@ impl StepTree {
         (self.dm_rows[k], self.dm_delays[k], self.dm_offsets[k])
     }
 
-    /// Rows in the largest level (the channel count when there is no level).
-    pub(crate) fn max_rows(&self, n_chan: usize) -> usize {
-        self.levels.iter().map(Vec::len).fold(n_chan, usize::max)
-    }
-
     /// Additions per output sample: one per merged row.
     pub(crate) fn adds_per_sample(&self) -> usize {
         self.levels
