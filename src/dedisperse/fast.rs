@@ -318,41 +318,123 @@ fn subband_rows(
         // The last phase reads one tree sample past the tile.
         let len = n_j * per_out + per_out - 1;
         let width = len + halo;
-        grow(&mut scratch.channels, n_chan * width);
-        for (row, &c) in scratch.channels.chunks_exact_mut(width).zip(&sub.channels) {
-            let chan = &src.rows[c * src.row_stride..][..src.row_len];
-            copy_from(chan, src.t0 + j0 * per_out, row);
-        }
+        let start = src.t0 + j0 * per_out;
         let tile = TopTile {
             j0,
             n_j,
             per_out,
             width,
         };
-        let Some((top, below)) = sub.tree.levels.split_last() else {
-            // A one-channel sub-band: its channel is its only row.
-            store_phases(&scratch.channels[..len], &mut out, 0, &tile);
-            continue;
-        };
-        // The top level goes straight to `out`; the levels below alternate.
-        let rows = below.iter().map(Vec::len).fold(n_chan, usize::max);
-        let [even, odd] = &mut scratch.levels;
-        grow(even, rows * width);
-        grow(odd, rows * width);
-        for (l, merges) in below.iter().enumerate() {
-            let (from, to): (&[f32], &mut [f32]) = match l {
-                0 => (&scratch.channels, even),
-                _ if l % 2 == 1 => (even, odd),
-                _ => (odd, even),
+        if start + width <= src.row_len {
+            // The usual tile: the first level reads the block's channels in place.
+            let channels = InBlock {
+                src,
+                channels: &sub.channels,
+                start,
+                width,
             };
-            run_level(merges, from, to, width, len);
+            tile_rows(sub, &channels, &tile, &mut out, scratch);
+        } else {
+            // A tile reaching past the block: channels copied, zero beyond its end.
+            let mut copied = std::mem::take(&mut scratch.channels);
+            grow(&mut copied, n_chan * width);
+            for (row, &c) in copied.chunks_exact_mut(width).zip(&sub.channels) {
+                copy_from(&src.rows[c * src.row_stride..][..src.row_len], start, row);
+            }
+            let channels = Contiguous {
+                data: &copied,
+                stride: width,
+            };
+            tile_rows(sub, &channels, &tile, &mut out, scratch);
+            scratch.channels = copied;
         }
-        let from: &[f32] = match below.len() {
-            0 => &scratch.channels,
-            n if n % 2 == 1 => even,
-            _ => odd,
-        };
-        top_level(top, from, &tile, &mut out, &mut scratch.row);
+    }
+}
+
+/// The tree of one tile, from its channels (`channels.row(i)`: the sub-band's i-th
+/// channel from the tile's first tree sample) to its top rows in `out`.
+fn tile_rows(
+    sub: &SubBand,
+    channels: &impl Below,
+    tile: &TopTile,
+    out: &mut Phased<'_>,
+    scratch: &mut TileScratch,
+) {
+    let len = tile.n_j * tile.per_out + tile.per_out - 1;
+    let width = tile.width;
+    let Some((top, below)) = sub.tree.levels.split_last() else {
+        // A one-channel sub-band: its channel is its only row.
+        return store_phases(&channels.row(0)[..len], out, 0, tile);
+    };
+    // The top level goes straight to `out`; the levels below alternate.
+    let rows = below.iter().map(Vec::len).max().unwrap_or(0);
+    let [even, odd] = &mut scratch.levels;
+    grow(even, rows * width);
+    grow(odd, rows * width);
+    for (l, merges) in below.iter().enumerate() {
+        match l {
+            0 => run_level(merges, channels, even, width, len),
+            _ if l % 2 == 1 => run_level(merges, &Contiguous::new(even, width), odd, width, len),
+            _ => run_level(merges, &Contiguous::new(odd, width), even, width, len),
+        }
+    }
+    match below.len() {
+        0 => top_level(top, channels, tile, out, &mut scratch.row),
+        n if n % 2 == 1 => top_level(
+            top,
+            &Contiguous::new(even, width),
+            tile,
+            out,
+            &mut scratch.row,
+        ),
+        _ => top_level(
+            top,
+            &Contiguous::new(odd, width),
+            tile,
+            out,
+            &mut scratch.row,
+        ),
+    }
+}
+
+/// The rows a tree level reads, each `width` tree samples from the tile's start.
+trait Below {
+    fn row(&self, i: usize) -> &[f32];
+}
+
+/// Rows stored one after another, `stride` values apart.
+struct Contiguous<'a> {
+    data: &'a [f32],
+    stride: usize,
+}
+
+impl<'a> Contiguous<'a> {
+    fn new(data: &'a [f32], stride: usize) -> Self {
+        Contiguous { data, stride }
+    }
+}
+
+impl Below for Contiguous<'_> {
+    #[inline(always)]
+    fn row(&self, i: usize) -> &[f32] {
+        &self.data[i * self.stride..(i + 1) * self.stride]
+    }
+}
+
+/// A sub-band's channels read where they lie in the block (no copy), for a tile
+/// that ends inside the block.
+struct InBlock<'a> {
+    src: &'a Source<'a>,
+    channels: &'a [usize],
+    start: usize,
+    width: usize,
+}
+
+impl Below for InBlock<'_> {
+    #[inline(always)]
+    fn row(&self, i: usize) -> &[f32] {
+        let at = self.channels[i] * self.src.row_stride + self.start;
+        &self.src.rows[at..at + self.width]
     }
 }
 
@@ -370,7 +452,7 @@ struct TopTile {
 /// L2); compiled for AVX2 when the CPU has it.
 fn top_level(
     merges: &[Merge],
-    src: &[f32],
+    src: &impl Below,
     tile: &TopTile,
     out: &mut Phased<'_>,
     row: &mut Vec<f32>,
@@ -388,7 +470,7 @@ fn top_level(
 #[target_feature(enable = "avx2")]
 fn top_level_avx2(
     merges: &[Merge],
-    src: &[f32],
+    src: &impl Below,
     tile: &TopTile,
     out: &mut Phased<'_>,
     row: &mut Vec<f32>,
@@ -401,7 +483,7 @@ fn top_level_avx2(
 #[inline(always)]
 fn top_level_rows(
     merges: &[Merge],
-    src: &[f32],
+    src: &impl Below,
     tile: &TopTile,
     out: &mut Phased<'_>,
     row: &mut Vec<f32>,
@@ -412,9 +494,9 @@ fn top_level_rows(
     for (r, m) in merges.iter().enumerate() {
         if per_out == 1 {
             // One phase: the merge is the stored row.
-            merge_row(m, src, tile.width, &mut out.row_mut(r, 0)[j0..j0 + n_j]);
+            merge_row(m, src, &mut out.row_mut(r, 0)[j0..j0 + n_j]);
         } else {
-            merge_row(m, src, tile.width, &mut row[..len]);
+            merge_row(m, src, &mut row[..len]);
             store_phases(&row[..len], out, r, tile);
         }
     }
@@ -541,7 +623,7 @@ fn copy_from(chan: &[f32], start: usize, row: &mut [f32]) {
 
 /// One tree level over a tile: each output row over the samples it must supply;
 /// compiled for AVX2 when the CPU has it.
-fn run_level(merges: &[Merge], src: &[f32], dst: &mut [f32], stride: usize, len: usize) {
+fn run_level(merges: &[Merge], src: &impl Below, dst: &mut [f32], stride: usize, len: usize) {
     #[cfg(target_arch = "x86_64")]
     if std::arch::is_x86_feature_detected!("avx2") {
         // SAFETY: `run_level_avx2` only requires the AVX2 instruction set, which was
@@ -553,28 +635,28 @@ fn run_level(merges: &[Merge], src: &[f32], dst: &mut [f32], stride: usize, len:
 
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "avx2")]
-fn run_level_avx2(merges: &[Merge], src: &[f32], dst: &mut [f32], stride: usize, len: usize) {
+fn run_level_avx2(merges: &[Merge], src: &impl Below, dst: &mut [f32], stride: usize, len: usize) {
     merge_rows(merges, src, dst, stride, len)
 }
 
 /// The portable body of [`run_level`].
 #[inline(always)]
-fn merge_rows(merges: &[Merge], src: &[f32], dst: &mut [f32], stride: usize, len: usize) {
+fn merge_rows(merges: &[Merge], src: &impl Below, dst: &mut [f32], stride: usize, len: usize) {
     for (out, m) in dst.chunks_exact_mut(stride).zip(merges) {
         let n = (len + m.reach).min(stride - m.shift);
-        merge_row(m, src, stride, &mut out[..n]);
+        merge_row(m, src, &mut out[..n]);
     }
 }
 
-/// `out[t] = upper[t] + lower[t + shift]` for the rows of `m` in `src` (rows `stride`
-/// values apart), or a copy of the upper row when there is no lower one.
+/// `out[t] = upper[t] + lower[t + shift]` for the rows of `m` in `src`, or a copy of
+/// the upper row when there is no lower one.
 #[inline(always)]
-fn merge_row(m: &Merge, src: &[f32], stride: usize, out: &mut [f32]) {
+fn merge_row(m: &Merge, src: &impl Below, out: &mut [f32]) {
     let n = out.len();
-    let upper = &src[m.upper * stride..][..n];
+    let upper = &src.row(m.upper)[..n];
     match m.lower {
         Some(l) => {
-            let lower = &src[l * stride + m.shift..][..n];
+            let lower = &src.row(l)[m.shift..][..n];
             for ((o, x), y) in out.iter_mut().zip(upper).zip(lower) {
                 *o = x + y;
             }
