@@ -23,14 +23,14 @@ impl ChannelStats {
         let (n_time, n_chan) = raw.dim();
         let mut s1 = vec![0.0f64; n_chan];
         let mut s2 = vec![0.0f64; n_chan];
-        for row in raw.rows() {
-            for ((a, b), &v) in s1.iter_mut().zip(s2.iter_mut()).zip(row.iter()) {
-                let v = f64::from(v);
-                *a += v;
-                *b += v * v;
-            }
-        }
-        let n = n_time.max(1) as f64;
+        add_power_sums(raw, &mut s1, &mut s2);
+        Self::from_sums(&s1, &s2, n_time)
+    }
+
+    /// The statistics of `n` samples per channel whose sums are `s1` = Σx and
+    /// `s2` = Σx².
+    pub fn from_sums(s1: &[f64], s2: &[f64], n: usize) -> Self {
+        let n = n.max(1) as f64;
         let mean: Vec<f64> = s1.iter().map(|s| s / n).collect();
         let std = s2
             .iter()
@@ -38,6 +38,18 @@ impl ChannelStats {
             .map(|(s, m)| (s / n - m * m).max(0.0).sqrt())
             .collect();
         ChannelStats { mean, std }
+    }
+}
+
+/// Adds each channel's Σx to `s1` and Σx² to `s2` over the rows of `raw`
+/// (`[time, channel]`), in f64.
+pub fn add_power_sums(raw: ArrayView2<'_, f32>, s1: &mut [f64], s2: &mut [f64]) {
+    for row in raw.rows() {
+        for ((a, b), &v) in s1.iter_mut().zip(s2.iter_mut()).zip(row.iter()) {
+            let v = f64::from(v);
+            *a += v;
+            *b += v * v;
+        }
     }
 }
 

@@ -9,9 +9,11 @@
 //! thresholds are asymmetric: quantiles of the Pearson type III curve (a shifted gamma
 //! distribution) with those first three moments.
 
-use ndarray::ArrayView2;
+use ndarray::{ArrayView2, s};
+use rayon::prelude::*;
 use statrs::distribution::{ContinuousCDF, Gamma, Normal};
 
+use super::channel_stats::{ChannelStats, add_power_sums};
 use crate::robust::median_in_place;
 
 /// Variance of SK for Gaussian noise with `m` samples and shape `nd` = N·d.
@@ -61,21 +63,40 @@ pub struct ChannelKurtosis {
 }
 
 impl ChannelKurtosis {
-    /// Measures a raw block (`[time, channel]`); a block shorter than `m` is one run.
+    /// Measures a raw block (`[time, channel]`) in parallel over runs; a block
+    /// shorter than `m` is one run.
     pub fn measure(raw: ArrayView2<'_, f32>, m: usize) -> Self {
         let (n_time, n_chan) = raw.dim();
         let m = m.min(n_time).max(1);
         let n_runs = n_time / m;
-        let mut sums = vec![(0.0, 0.0); n_runs * n_chan];
-        for (t, row) in raw.rows().into_iter().take(n_runs * m).enumerate() {
-            let run = &mut sums[(t / m) * n_chan..(t / m + 1) * n_chan];
-            for (s, &v) in run.iter_mut().zip(row.iter()) {
-                let v = f64::from(v);
-                s.0 += v;
-                s.1 += v * v;
+        let mut s1 = vec![0.0; n_runs * n_chan];
+        let mut s2 = vec![0.0; n_runs * n_chan];
+        s1.par_chunks_mut(n_chan.max(1))
+            .zip(s2.par_chunks_mut(n_chan.max(1)))
+            .enumerate()
+            .for_each(|(r, (s1, s2))| {
+                add_power_sums(raw.slice(s![r * m..(r + 1) * m, ..]), s1, s2);
+            });
+        let sums = s1.into_iter().zip(s2).collect();
+        ChannelKurtosis { m, n_chan, sums }
+    }
+
+    /// Each channel's mean and standard deviation over the whole of `raw`, the block
+    /// these sums were measured on: the runs' sums plus the samples after the last
+    /// run, so the block is read once for both tests.
+    pub fn channel_stats(&self, raw: ArrayView2<'_, f32>) -> ChannelStats {
+        let n_time = raw.nrows();
+        let mut s1 = vec![0.0; self.n_chan];
+        let mut s2 = vec![0.0; self.n_chan];
+        for run in self.sums.chunks_exact(self.n_chan.max(1)) {
+            for ((a, b), &(r1, r2)) in s1.iter_mut().zip(s2.iter_mut()).zip(run) {
+                *a += r1;
+                *b += r2;
             }
         }
-        ChannelKurtosis { m, n_chan, sums }
+        let covered = self.sums.len() / self.n_chan.max(1) * self.m;
+        add_power_sums(raw.slice(s![covered.min(n_time).., ..]), &mut s1, &mut s2);
+        ChannelStats::from_sums(&s1, &s2, n_time)
     }
 
     fn runs(&self, c: usize) -> impl Iterator<Item = (f64, f64)> + '_ {
@@ -143,7 +164,7 @@ impl ChannelKurtosis {
 mod tests {
     use super::*;
     use ndarray::Array2;
-    use rand::SeedableRng;
+    use rand::{Rng, SeedableRng};
     use rand_distr::{Distribution, Gamma as GammaDist};
 
     // Closed-form moments (Nita & Gary 2010, MNRAS 406, L60), values recomputed here:
@@ -203,5 +224,31 @@ mod tests {
         let mut mask = vec![false; n_chan];
         assert_eq!(sk.flag(&mut mask, None, 0.0013499, 0.25), 1);
         assert!(mask[9]);
+    }
+
+    // The whole-block statistics derived from the run sums equal those measured
+    // directly, with a tail of samples after the last whole run and without.
+    #[test]
+    fn channel_stats_from_runs_equal_a_direct_measurement() {
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(5);
+        for n_time in [100usize, 1024, 1500, 3000] {
+            let raw = Array2::from_shape_fn((n_time, 7), |(_, c)| {
+                c as f32 + rng.random::<f32>() * (1.0 + c as f32)
+            });
+            let direct = ChannelStats::measure(raw.view());
+            let derived = ChannelKurtosis::measure(raw.view(), 512).channel_stats(raw.view());
+            for (a, b) in direct.mean.iter().zip(&derived.mean) {
+                assert!(
+                    (a - b).abs() < 1e-9 * (1.0 + a.abs()),
+                    "n={n_time}: {a} vs {b}"
+                );
+            }
+            for (a, b) in direct.std.iter().zip(&derived.std) {
+                assert!(
+                    (a - b).abs() < 1e-9 * (1.0 + a.abs()),
+                    "n={n_time}: {a} vs {b}"
+                );
+            }
+        }
     }
 }

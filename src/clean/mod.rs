@@ -108,15 +108,14 @@ impl CleanConfig {
 /// Returns the number of channels newly masked.
 pub fn flag_channels(raw: ArrayView2<'_, f32>, mask: &mut [bool], config: &CleanConfig) -> usize {
     let before = mask.iter().filter(|&&m| m).count();
-    // Two independent passes over the block: one per core.
-    let (stats, sk) = rayon::join(
-        || channel_stats::ChannelStats::measure(raw),
-        || {
-            config
-                .kurtosis
-                .then(|| kurtosis::ChannelKurtosis::measure(raw, config.kurtosis_m))
-        },
-    );
+    // One pass over the block serves both tests when kurtosis is on.
+    let sk = config
+        .kurtosis
+        .then(|| kurtosis::ChannelKurtosis::measure(raw, config.kurtosis_m));
+    let stats = match &sk {
+        Some(sk) => sk.channel_stats(raw),
+        None => channel_stats::ChannelStats::measure(raw),
+    };
     for _ in 0..config.max_iterations {
         let mut changed = channel_stats::flag_outliers(&stats, mask, config.stat_threshold);
         if let Some(sk) = &sk {
