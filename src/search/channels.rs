@@ -11,7 +11,8 @@ use ndarray::{ArrayView2, ArrayViewMut2, ShapeBuilder, s};
 use rayon::prelude::*;
 
 use super::normalise::{CHANNEL_SIGMA_VALUES, normalise_series};
-use crate::clean::{self, CleanConfig, impulse, zero_dm};
+use crate::clean::impulse::{self, DispersionProbe};
+use crate::clean::{self, CleanConfig, zero_dm};
 
 /// Channels per parallel task of the transpose.
 const TRANSPOSE_CHANNELS: usize = 128;
@@ -31,6 +32,8 @@ pub(super) struct ChannelBlock {
     new_mask: Vec<bool>,
     /// Channels masked anywhere in the block: in the new rows or in the rows kept.
     mask: Vec<bool>,
+    /// Tells low-DM pulses from impulses before clipping.
+    probe: DispersionProbe,
 }
 
 /// What appending new rows found.
@@ -42,7 +45,8 @@ pub(super) struct Appended {
 }
 
 impl ChannelBlock {
-    /// An empty block of `n_chan` channels and at most `capacity` rows.
+    /// An empty block of `n_chan` channels and at most `capacity` rows, whose
+    /// impulse clipping spares nothing (see [`ChannelBlock::with_probe`]).
     pub(super) fn new(n_chan: usize, capacity: usize) -> Self {
         ChannelBlock {
             n_chan,
@@ -52,7 +56,14 @@ impl ChannelBlock {
             start_sample: 0,
             new_mask: vec![false; n_chan],
             mask: vec![false; n_chan],
+            probe: DispersionProbe::none(n_chan),
         }
+    }
+
+    /// The block with impulse clipping that spares the samples `probe` finds on
+    /// dispersed pulses.
+    pub(super) fn with_probe(self, probe: DispersionProbe) -> Self {
+        ChannelBlock { probe, ..self }
     }
 
     /// Rows in the block.
@@ -116,7 +127,12 @@ impl ChannelBlock {
         let mut new = ArrayViewMut2::from_shape((n_chan, self.capacity), &mut self.data[..])
             .expect("buffer holds n_chan × capacity values")
             .slice_move(s![.., keep..keep + m]);
-        let n_clipped = impulse::clip(new.view_mut(), &self.new_mask, config.clip_threshold);
+        let n_clipped = impulse::clip(
+            new.view_mut(),
+            &self.new_mask,
+            config.clip_threshold,
+            &self.probe,
+        );
         if config.zero_dm {
             zero_dm::apply(new, &self.new_mask);
         }

@@ -19,7 +19,7 @@ use super::fluence::fluence_jy_ms;
 use super::normalise::{NormalisedSeries, SERIES_SIGMA_VALUES, normalise_series};
 use super::trials::{self, TrialCount};
 use crate::candidate::Candidate;
-use crate::clean::{self, user_mask::static_mask};
+use crate::clean::{self, impulse::DispersionProbe, user_mask::static_mask};
 use crate::cluster::{Cluster, Detection, Sweep, friends_of_friends, merge_dispersion_tails};
 use crate::dedisperse::{self, DmPlan, FastDedisperser, Kernel};
 use crate::error::{Error, Result};
@@ -92,7 +92,9 @@ pub fn search_source(
     // Candidates of one block can only repeat those within one overlap before them.
     let recent_s = g.overlap as f64 * searcher.header.tsamp_s
         + searcher.plan.max_dm() * searcher.sweep.top_s_per_dm;
-    let mut channels = ChannelBlock::new(searcher.header.n_chan(), g.block_len);
+    let h = &searcher.header;
+    let probe = DispersionProbe::new(&h.freqs_mhz, h.tsamp_s);
+    let mut channels = ChannelBlock::new(h.n_chan(), g.block_len).with_probe(probe);
     std::thread::scope(|scope| -> Result<()> {
         let advance = g.block_len - g.overlap;
         let (reads, recycle) = prefetch(scope, source, g.block_len, advance);
