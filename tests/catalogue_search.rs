@@ -166,8 +166,11 @@ fn a_file_already_searched_is_skipped_unless_searched_again() {
     let (f1, f2) = (simulate(dir.path(), 1), simulate(dir.path(), 2));
     let csv_path = dir.path().join("results/candidates.csv");
 
-    let text = run_ok(&mut search(&[f1.clone()], dir.path(), &db));
-    assert!(line_of(&text, &f1).contains("recorded in catalogue"), "{text}");
+    let text = run_ok(&mut search(std::slice::from_ref(&f1), dir.path(), &db));
+    assert!(
+        line_of(&text, &f1).contains("recorded in catalogue"),
+        "{text}"
+    );
     let (_, _, n1) = contents(&db);
     let first_csv = std::fs::read_to_string(&csv_path).unwrap();
 
@@ -176,7 +179,10 @@ fn a_file_already_searched_is_skipped_unless_searched_again() {
     let skip = line_of(&text, &f1);
     assert!(skip.contains("skipped") && skip.contains("run 1"), "{text}");
     assert!(skip.contains("--search-again"), "{skip}");
-    assert!(line_of(&text, &f2).contains("recorded in catalogue"), "{text}");
+    assert!(
+        line_of(&text, &f2).contains("recorded in catalogue"),
+        "{text}"
+    );
     let (n_obs, n_runs, n_cands) = contents(&db);
     assert_eq!((n_obs, n_runs), (2, 2));
     let mixed_csv = std::fs::read_to_string(&csv_path).unwrap();
@@ -203,8 +209,11 @@ fn a_file_already_searched_is_skipped_unless_searched_again() {
     assert_eq!(std::fs::read_to_string(&csv_path).unwrap(), mixed_csv);
 
     // Another configuration is another search, recorded as a second run.
-    let text = run_ok(search(&[f1.clone()], dir.path(), &db).args(["--snr", "8"]));
-    assert!(line_of(&text, &f1).contains("recorded in catalogue"), "{text}");
+    let text = run_ok(search(std::slice::from_ref(&f1), dir.path(), &db).args(["--snr", "8"]));
+    assert!(
+        line_of(&text, &f1).contains("recorded in catalogue"),
+        "{text}"
+    );
     assert_eq!(contents(&db).1, 3);
 }
 

@@ -3,7 +3,7 @@
 
 use rusqlite::{OptionalExtension, params};
 
-use super::{Catalogue, CandidateFilter, ObservationRecord, RecordOutcome, RunRecord};
+use super::{CandidateFilter, Catalogue, ObservationRecord, RecordOutcome, RunRecord};
 use crate::candidate::Candidate;
 use crate::error::{Error, Result};
 use crate::search::{FileResult, SearchConfig};

@@ -26,8 +26,8 @@ mod voevent;
 
 pub use bursts::{BurstTiming, CompletenessRecord};
 pub use exposure::{ExposureInterval, exposure_hours, merge_intervals};
-pub use query::{Bounds, BurstFilter, BurstRow, CandidateFilter, CandidateRow};
 pub use from_search::EarlierRun;
+pub use query::{Bounds, BurstFilter, BurstRow, CandidateFilter, CandidateRow};
 pub use record::{ObservationRecord, RecordOutcome, RunRecord, config_hash, content_hash};
 pub use review::{AssignTolerance, Label, Promotion};
 pub use schema::{APPLICATION_ID, SCHEMA_VERSION};
