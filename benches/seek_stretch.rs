@@ -10,9 +10,10 @@ use std::path::Path;
 use std::time::Instant;
 
 use burstbook::candidate::{Candidate, TriageFeatures, Verdict};
-use burstbook::obs::{Container, Header, Site, UtcEpoch};
+use burstbook::obs::{Container, Header};
 use burstbook::report::candidate_data::{self, Cut};
 use burstbook::report::candidate_figure_from_file;
+use burstbook::simulate::Scenario;
 
 const N_CHAN: usize = 256;
 const TSAMP_S: f64 = 1e-3;
@@ -21,32 +22,19 @@ const EVENT_T_S: f64 = 3590.0;
 const DM: f64 = 500.0;
 const REPEATS: usize = 5;
 
+/// The recording, described as a `burstbook simulate` scenario (only its header is used).
 fn header() -> Header {
-    let bw = 400.0 / N_CHAN as f64;
-    let site = Site {
-        name: "Bench Dish".into(),
-        lon_deg: 0.0,
-        lat_deg: 40.0,
-        height_m: 0.0,
-    };
-    Header {
-        source: "BENCH-1".into(),
-        telescope: site.name.clone(),
-        ra_deg: 0.0,
-        dec_deg: 0.0,
-        site,
-        start: UtcEpoch::new(60000, 0.0),
-        tsamp_s: TSAMP_S,
-        freqs_mhz: (0..N_CHAN)
-            .map(|i| 1600.0 - bw * (i as f64 + 0.5))
-            .collect(),
-        chan_bw_mhz: bw,
-        weights: vec![1.0; N_CHAN],
-        n_samples: (DURATION_S / TSAMP_S) as u64,
-        nbits: 8,
-        sefd_jy: None,
-        beam: None,
-    }
+    let bw_mhz = 400.0 / N_CHAN as f64;
+    let scenario = format!(
+        "[observation]\nsource = \"BENCH-1\"\ntelescope = \"Bench Dish\"\nra_deg = 0.0\n\
+         dec_deg = 0.0\nstart_mjd = 60000.0\nlength_s = {DURATION_S}\ntsamp_s = {TSAMP_S}\n\
+         [site]\nname = \"Bench Dish\"\nlon_deg = 0.0\nlat_deg = 40.0\nheight_m = 0.0\n\
+         [band]\nfirst_chan_mhz = {}\nchan_step_mhz = {}\nn_chan = {N_CHAN}\n\
+         [noise]\nnbits = 8\nmean = 96.0\nsigma = 12.0\n",
+        1600.0 - bw_mhz / 2.0,
+        -bw_mhz
+    );
+    Scenario::parse(&scenario).unwrap().header()
 }
 
 /// Writes a cheap deterministic pattern (the timing does not depend on the values).
