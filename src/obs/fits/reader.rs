@@ -359,6 +359,7 @@ impl SampleSource for FitsReader {
         }
         Ok(done)
     }
+
     /// Seeks: every `SUBINT` row but the last holds `NSBLK` samples, so the row
     /// holding the target sample is found by division, and only it is read.
     fn skip_rows(&mut self, n: u64) -> Result<u64> {
