@@ -114,13 +114,14 @@ fn a_killed_search_keeps_finished_files_and_a_rerun_records_the_rest() {
     );
     let text = String::from_utf8(out.stdout).unwrap();
     assert_eq!(
-        text.matches("already in catalogue").count() as i64,
+        text.matches(": skipped, the catalogue").count() as i64,
         n_runs,
-        "{text}"
+        "the files recorded before the kill are not searched again: {text}"
     );
     let (n_obs, n_runs, n_cands) = contents(&db);
     assert_eq!((n_obs, n_runs), (3, 3));
-    // The catalogue holds exactly the candidates the complete search wrote out.
+    // The catalogue holds exactly the candidates written out, the skipped files' taken
+    // from it.
     let csv = std::fs::read_to_string(dir.path().join("results/candidates.csv")).unwrap();
     assert_eq!(n_cands, csv.lines().count() as i64 - 1);
     assert!(n_cands >= 3, "each file has a 30-sigma burst");
@@ -138,6 +139,82 @@ fn a_killed_search_keeps_finished_files_and_a_rerun_records_the_rest() {
         .unwrap();
     assert!(snr > 0.0);
     assert!((hours - 3.0 * 6.0 / 3600.0).abs() < 1e-6, "{hours}");
+}
+
+fn run_ok(cmd: &mut Command) -> String {
+    let out = cmd.output().unwrap();
+    let text = String::from_utf8(out.stdout).unwrap();
+    assert!(
+        out.status.success(),
+        "{text}{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    text
+}
+
+fn line_of<'a>(text: &'a str, file: &Path) -> &'a str {
+    let name = file.display().to_string();
+    text.lines()
+        .find(|l| l.starts_with(&format!("{name}: ")))
+        .unwrap_or_else(|| panic!("no line for {name} in {text}"))
+}
+
+#[test]
+fn a_file_already_searched_is_skipped_unless_searched_again() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("survey.sqlite");
+    let (f1, f2) = (simulate(dir.path(), 1), simulate(dir.path(), 2));
+    let csv_path = dir.path().join("results/candidates.csv");
+
+    let text = run_ok(&mut search(std::slice::from_ref(&f1), dir.path(), &db));
+    assert!(
+        line_of(&text, &f1).contains("recorded in catalogue"),
+        "{text}"
+    );
+    let (_, _, n1) = contents(&db);
+    let first_csv = std::fs::read_to_string(&csv_path).unwrap();
+
+    // f1 again beside a new file: f1 is skipped, its candidates come from the catalogue.
+    let text = run_ok(&mut search(&[f1.clone(), f2.clone()], dir.path(), &db));
+    let skip = line_of(&text, &f1);
+    assert!(skip.contains("skipped") && skip.contains("run 1"), "{text}");
+    assert!(skip.contains("--search-again"), "{skip}");
+    assert!(
+        line_of(&text, &f2).contains("recorded in catalogue"),
+        "{text}"
+    );
+    let (n_obs, n_runs, n_cands) = contents(&db);
+    assert_eq!((n_obs, n_runs), (2, 2));
+    let mixed_csv = std::fs::read_to_string(&csv_path).unwrap();
+    assert_eq!(mixed_csv.lines().count() as i64 - 1, n_cands);
+    assert!(
+        mixed_csv.starts_with(&first_csv),
+        "f1's rows from the catalogue equal those its search wrote"
+    );
+    let json: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(dir.path().join("results/candidates.json")).unwrap(),
+    )
+    .unwrap();
+    assert_eq!(json["skipped"][0]["run_id"], 1);
+    assert_eq!(json["skipped"][0]["n_candidates"], n1);
+    assert_eq!(json["files"].as_array().unwrap().len(), 1, "f2 only");
+
+    // Forced: both are searched, nothing is recorded twice, and the fresh outputs
+    // equal those that came partly from the catalogue.
+    let text = run_ok(search(&[f1.clone(), f2.clone()], dir.path(), &db).arg("--search-again"));
+    for f in [&f1, &f2] {
+        assert!(line_of(&text, f).contains("already in catalogue"), "{text}");
+    }
+    assert_eq!(contents(&db), (2, 2, n_cands));
+    assert_eq!(std::fs::read_to_string(&csv_path).unwrap(), mixed_csv);
+
+    // Another configuration is another search, recorded as a second run.
+    let text = run_ok(search(std::slice::from_ref(&f1), dir.path(), &db).args(["--snr", "8"]));
+    assert!(
+        line_of(&text, &f1).contains("recorded in catalogue"),
+        "{text}"
+    );
+    assert_eq!(contents(&db).1, 3);
 }
 
 #[test]

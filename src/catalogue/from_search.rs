@@ -1,21 +1,37 @@
-//! Recording what `burstbook search` found for one file.
+//! Recording what `burstbook search` found for one file, and finding an earlier
+//! finished search of the same content with the same configuration.
 
-use std::path::Path;
+use rusqlite::{OptionalExtension, params};
 
-use super::{Catalogue, ObservationRecord, RecordOutcome, RunRecord};
+use super::{CandidateFilter, Catalogue, ObservationRecord, RecordOutcome, RunRecord};
+use crate::candidate::Candidate;
 use crate::error::{Error, Result};
 use crate::search::{FileResult, SearchConfig};
 
+/// A finished search run already in the catalogue.
+#[derive(Debug, Clone, PartialEq)]
+pub struct EarlierRun {
+    /// Its `search_run` id.
+    pub run_id: i64,
+    /// Path of the observation when it was first recorded.
+    pub recorded_path: String,
+    /// When the run finished (ISO 8601 UTC).
+    pub finished_utc: String,
+    /// Version of the burstbook that searched.
+    pub burstbook_version: String,
+    /// Its candidates, in time order.
+    pub candidates: Vec<Candidate>,
+}
+
 impl Catalogue {
-    /// Records the search of the file at `path` (hashing its bytes) with
+    /// Records the search of `obs` (see [`ObservationRecord::from_file`]) with
     /// `config`, which started at `started_utc` (see [`super::now_utc`]).
     ///
     /// # Errors
-    /// The file cannot be read for hashing, or an SQLite failure (then nothing
-    /// was written).
+    /// An SQLite failure (then nothing was written).
     pub fn record_file_result(
         &mut self,
-        path: &Path,
+        obs: &ObservationRecord,
         result: &FileResult,
         config: &SearchConfig,
         started_utc: String,
@@ -23,7 +39,6 @@ impl Catalogue {
         let json = |what: &str, e: serde_json::Error| {
             Error::Config(format!("{what} not serialisable: {e}"))
         };
-        let obs = ObservationRecord::from_file(path, &result.header)?;
         let mut run = RunRecord::finished_now(
             config.to_json(),
             serde_json::to_string(&result.plan).map_err(|e| json("DM plan", e))?,
@@ -32,6 +47,118 @@ impl Catalogue {
         );
         run.fraction_masked = Some(result.fraction_masked);
         run.samples_searched = Some(result.samples_searched);
-        self.record_search(&obs, &run, &result.candidates)
+        self.record_search(obs, &run, &result.candidates)
+    }
+
+    /// The complete run, if any, of the content hashed `content_sha256` with the
+    /// configuration hashed `config_sha256` (as [`SearchConfig::hash`] gives), with
+    /// its candidates. The catalogue holds at most one per pair.
+    ///
+    /// # Errors
+    /// An SQLite failure.
+    pub fn finished_run(
+        &self,
+        content_sha256: &str,
+        config_sha256: &str,
+    ) -> Result<Option<EarlierRun>> {
+        let found = self
+            .conn()
+            .query_row(
+                "SELECT r.id, o.path, r.finished_utc, r.burstbook_version
+                 FROM search_run r JOIN observation o ON o.id = r.observation_id
+                 WHERE o.content_sha256 = ?1 AND r.config_sha256 = ?2
+                   AND r.status = 'complete'",
+                params![content_sha256, config_sha256],
+                |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?)),
+            )
+            .optional()
+            .map_err(|e| self.err(e))?;
+        let Some((run_id, recorded_path, finished_utc, burstbook_version)) = found else {
+            return Ok(None);
+        };
+        let ids = self
+            .conn()
+            .prepare("SELECT id FROM candidate WHERE run_id = ?1")
+            .and_then(|mut s| {
+                s.query_map([run_id], |r| r.get(0))?
+                    .collect::<rusqlite::Result<Vec<i64>>>()
+            })
+            .map_err(|e| self.err(e))?;
+        let mut candidates: Vec<Candidate> = if ids.is_empty() {
+            Vec::new()
+        } else {
+            let filter = CandidateFilter {
+                ids,
+                ..Default::default()
+            };
+            self.candidates(&filter)?
+                .into_iter()
+                .map(|row| row.candidate)
+                .collect()
+        };
+        candidates.sort_by(|a, b| a.t_inf_s.total_cmp(&b.t_inf_s));
+        Ok(Some(EarlierRun {
+            run_id,
+            recorded_path,
+            finished_utc,
+            burstbook_version,
+            candidates,
+        }))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::catalogue::config_hash;
+    use crate::catalogue::synthetic::{candidates, observation, run};
+
+    #[test]
+    fn finds_only_the_same_content_and_configuration() {
+        let dir = tempfile::tempdir().unwrap();
+        let mut cat = Catalogue::open(&dir.path().join("c.sqlite")).unwrap();
+        let obs = observation("A", 1);
+        let mut cands = candidates(&obs, 4, 3);
+        let searched = run(8.0);
+        let outcome = cat.record_search(&obs, &searched, &cands).unwrap();
+        let RecordOutcome::Inserted { run_id } = outcome else {
+            panic!("{outcome:?}")
+        };
+        let config = config_hash(&searched.config_json).unwrap();
+        let found = cat
+            .finished_run(&obs.content_sha256, &config)
+            .unwrap()
+            .unwrap();
+        assert_eq!(found.run_id, run_id);
+        assert_eq!(found.recorded_path, obs.path);
+        assert_eq!(found.finished_utc, searched.finished_utc);
+        cands.sort_by(|a, b| a.t_inf_s.total_cmp(&b.t_inf_s));
+        assert_eq!(found.candidates, cands, "every candidate, every field");
+
+        let other_config = config_hash(&run(6.0).config_json).unwrap();
+        assert_ne!(other_config, config);
+        assert!(
+            cat.finished_run(&obs.content_sha256, &other_config)
+                .unwrap()
+                .is_none()
+        );
+        let other_content = observation("A", 2);
+        assert!(
+            cat.finished_run(&other_content.content_sha256, &config)
+                .unwrap()
+                .is_none()
+        );
+    }
+
+    #[test]
+    fn a_run_without_candidates_is_found_with_none() {
+        let dir = tempfile::tempdir().unwrap();
+        let mut cat = Catalogue::open(&dir.path().join("c.sqlite")).unwrap();
+        let obs = observation("B", 1);
+        let searched = run(8.0);
+        cat.record_search(&obs, &searched, &[]).unwrap();
+        let config = config_hash(&searched.config_json).unwrap();
+        let found = cat.finished_run(&obs.content_sha256, &config).unwrap();
+        assert!(found.unwrap().candidates.is_empty());
     }
 }

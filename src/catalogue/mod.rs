@@ -26,6 +26,7 @@ mod voevent;
 
 pub use bursts::{BurstTiming, CompletenessRecord};
 pub use exposure::{ExposureInterval, exposure_hours, merge_intervals};
+pub use from_search::EarlierRun;
 pub use query::{Bounds, BurstFilter, BurstRow, CandidateFilter, CandidateRow};
 pub use record::{ObservationRecord, RecordOutcome, RunRecord, config_hash, content_hash};
 pub use review::{AssignTolerance, Label, Promotion};

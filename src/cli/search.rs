@@ -3,8 +3,9 @@
 use std::path::PathBuf;
 
 use anyhow::Context;
-use burstbook::catalogue::{Catalogue, RecordOutcome};
-use burstbook::search::{self, FileResult, SearchConfig, output};
+use burstbook::catalogue::{Catalogue, ObservationRecord, RecordOutcome};
+use burstbook::search::output::{self, FileOutcome};
+use burstbook::search::{self, SearchConfig};
 
 /// Arguments of `search`.
 #[derive(clap::Args, Debug)]
@@ -12,7 +13,14 @@ use burstbook::search::{self, FileResult, SearchConfig, output};
   burstbook search demo-data/*.json --out results
   burstbook search obs.fits --out results --dm-max 500 --snr 8 --mask-mhz 1270:1290
   burstbook search obs.json --out results --config search.toml --zero-dm
-  burstbook search demo-data/demo.json --out results --catalogue survey.sqlite")]
+  burstbook search demo-data/demo.json --out results --catalogue survey.sqlite
+  burstbook search demo-data/demo.json --out results --search-again
+
+A file whose content the catalogue already holds a finished search of, with the same
+configuration, is not searched again: one line says so, and its candidates are taken
+from the catalogue into the outputs. --search-again searches it anyway; the catalogue
+keeps its earlier run (review labels and bursts refer to those candidates), so nothing
+is recorded twice.")]
 pub struct Args {
     /// Observation files (.json native header or FITS search mode).
     #[arg(required = true)]
@@ -50,9 +58,13 @@ pub struct Args {
     /// Catalogue that records each searched file [default: $BURSTBOOK_CATALOGUE, else ./burstbook.sqlite].
     #[arg(long, value_name = "PATH")]
     pub catalogue: Option<PathBuf>,
-    /// Do not record the search in a catalogue.
+    /// Do not record the search in a catalogue (nor skip files already in one).
     #[arg(long, conflicts_with = "catalogue")]
     pub no_catalogue: bool,
+    /// Search every file, even one the catalogue holds a finished search of with the
+    /// same configuration (that earlier run stays; nothing is recorded twice).
+    #[arg(long)]
+    pub search_again: bool,
     /// Candidates listed in the terminal summary.
     #[arg(long, default_value_t = 10)]
     pub top: usize,
@@ -106,37 +118,70 @@ pub fn run(args: Args) -> anyhow::Result<()> {
             args.catalogue.as_deref(),
         ))?),
     };
-    let mut results = Vec::new();
+    let config_hash = config.hash();
+    let mut files = Vec::new();
     for path in &args.files {
         let started_utc = burstbook::catalogue::now_utc();
         let source = burstbook::obs::open(path)?;
         let label = path.display().to_string();
+        // Hashed before searching: the hash both finds an earlier search and records this one.
+        let record = match catalogue {
+            Some(_) => Some(ObservationRecord::from_file(path, source.header())?),
+            None => None,
+        };
+        if let (Some(cat), Some(obs), false) = (&catalogue, &record, args.search_again)
+            && let Some(earlier) = cat.finished_run(&obs.content_sha256, &config_hash)?
+        {
+            println!(
+                "{label}: skipped, the catalogue {} holds a finished search of this content \
+                 with this configuration (run {} finished {}, candidates: {}{}); --search-again searches it anyway",
+                cat.path().display(),
+                earlier.run_id,
+                earlier.finished_utc,
+                earlier.candidates.len(),
+                match earlier.recorded_path == label {
+                    true => String::new(),
+                    false => format!(", recorded as {}", earlier.recorded_path),
+                },
+            );
+            files.push(FileOutcome::skipped(label, earlier));
+            continue;
+        }
         let bar = burstbook::progress::bar(source.header().n_samples, &label);
         let result = search::search_source(source, &label, &config, Some(&bar))?;
         bar.finish_and_clear();
-        if let Some(cat) = catalogue.as_mut() {
+        if let (Some(cat), Some(obs)) = (catalogue.as_mut(), &record) {
             // One transaction per file: a killed search keeps every file finished so far.
-            let outcome = cat.record_file_result(path, &result, &config, started_utc)?;
-            let what = match outcome {
-                RecordOutcome::Inserted { .. } => "recorded in",
-                RecordOutcome::AlreadyPresent { .. } => "already in",
-            };
-            println!("{label}: {what} catalogue {}", cat.path().display());
+            let outcome = cat.record_file_result(obs, &result, &config, started_utc)?;
+            match outcome {
+                RecordOutcome::Inserted { .. } => {
+                    println!("{label}: recorded in catalogue {}", cat.path().display())
+                }
+                RecordOutcome::AlreadyPresent { run_id } => println!(
+                    "{label}: already in catalogue {} as run {run_id}, which is kept \
+                     (this search is in the outputs only)",
+                    cat.path().display()
+                ),
+            }
         }
-        results.push(result);
+        files.push(FileOutcome::Searched(Box::new(result)));
     }
     let csv = args.out.join("candidates.csv");
     let json = args.out.join("candidates.json");
-    output::write_csv(&csv, &results)?;
-    output::write_json(&json, &results, &config)?;
-    print_summary(&results, args.top);
+    output::write_csv(&csv, &files)?;
+    output::write_json(&json, &files, &config)?;
+    print_summary(&files, args.top);
     println!("wrote {} and {}", csv.display(), json.display());
     Ok(())
 }
 
-fn print_summary(results: &[FileResult], top: usize) {
+fn print_summary(files: &[FileOutcome], top: usize) {
     use burstbook::Verdict;
-    for r in results {
+    let searched = files.iter().filter_map(|f| match f {
+        FileOutcome::Searched(r) => Some(&**r),
+        FileOutcome::Skipped { .. } => None,
+    });
+    for r in searched {
         let count = |v: Verdict| r.candidates.iter().filter(|c| c.verdict == v).count();
         println!(
             "{}: {:.1} s, {:.1} % masked, {} DM trials, {:.2e} effective trials \
@@ -152,7 +197,7 @@ fn print_summary(results: &[FileResult], top: usize) {
             count(Verdict::Rfi),
         );
     }
-    let mut all: Vec<_> = results.iter().flat_map(|r| &r.candidates).collect();
+    let mut all: Vec<_> = files.iter().flat_map(FileOutcome::candidates).collect();
     all.sort_by(|a, b| b.snr.total_cmp(&a.snr));
     if all.is_empty() {
         return;

@@ -73,6 +73,13 @@ impl<S: SampleSource> SampleSource for InjectingSource<S> {
         filled.copy_from_slice(&self.scratch.data);
         Ok(rows)
     }
+
+    /// Bursts are added to rows as they are read, so skipped rows need none.
+    fn skip_rows(&mut self, n: u64) -> Result<u64> {
+        let skipped = self.inner.skip_rows(n)?;
+        self.next_row += skipped;
+        Ok(skipped)
+    }
 }
 
 /// Each channel's noise σ estimated from the first `max_rows` rows of `source`: the
@@ -90,14 +97,7 @@ pub fn channel_sigma<S: SampleSource>(source: &mut S, max_rows: usize) -> Result
     let n_chan = header.n_chan();
     let want = max_rows.min(header.n_samples as usize).max(1);
     let mut data = vec![0.0f32; want * n_chan];
-    let mut filled = 0;
-    while filled < want {
-        let got = source.read_rows(&mut data[filled * n_chan..])?;
-        if got == 0 {
-            break;
-        }
-        filled += got;
-    }
+    let filled = crate::obs::fill_rows(source, &mut data)?;
     let mut column = Vec::with_capacity(filled);
     let mut scratch = Vec::new();
     Ok((0..n_chan)
@@ -178,6 +178,19 @@ mod tests {
         }
         assert_eq!(got, whole.data);
         assert_ne!(got, raw, "the bursts were added");
+    }
+
+    #[test]
+    fn skips_match_reading_with_bursts_after_the_skip() {
+        use crate::obs::{assert_skips_match_reading, awkward_skips};
+        let header = crate::simulate::test_header(12, 3001);
+        let data: Vec<f32> = (0..3001 * 12).map(|i| (i % 17) as f32).collect();
+        let bursts = [burst(0.02, 30.0), burst(0.1, 80.0)];
+        let open = || {
+            let inner = MemorySource::new(header.clone(), data.clone());
+            InjectingSource::new(inner, &bursts, vec![1.0; 12])
+        };
+        assert_skips_match_reading(&open, &awkward_skips(3001, 400));
     }
 
     #[test]

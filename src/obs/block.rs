@@ -50,7 +50,38 @@ pub trait SampleSource: Send {
     /// # Errors
     /// Truncated or corrupt data, or an I/O failure, naming the file.
     fn read_rows(&mut self, out: &mut [f32]) -> Result<usize>;
+
+    /// Moves past the next `n` rows without returning them and says how many were
+    /// passed: fewer than `n` only when the data ends first (0 once at the end), so
+    /// skipping past the end is not an error. The next [`read_rows`](Self::read_rows)
+    /// continues from there.
+    ///
+    /// This default reads and discards, at most [`SKIP_CHUNK_VALUES`] values at a time;
+    /// sources that can seek override it. It is also the plain reference the overrides
+    /// are tested against.
+    ///
+    /// # Errors
+    /// Whatever reading (or seeking) the source reports.
+    fn skip_rows(&mut self, n: u64) -> Result<u64> {
+        let n_chan = self.header().n_chan().max(1);
+        let chunk_rows = (SKIP_CHUNK_VALUES / n_chan).max(1) as u64;
+        let mut scratch = vec![0.0; n.min(chunk_rows) as usize * n_chan];
+        let mut skipped = 0;
+        while skipped < n {
+            let want = (n - skipped).min(chunk_rows) as usize;
+            let got = self.read_rows(&mut scratch[..want * n_chan])?;
+            if got == 0 {
+                break;
+            }
+            skipped += got as u64;
+        }
+        Ok(skipped)
+    }
 }
+
+/// Values (rows × channels) the default [`SampleSource::skip_rows`] reads per call,
+/// which bounds its memory to 4 MiB.
+pub const SKIP_CHUNK_VALUES: usize = 1 << 20;
 
 impl<S: SampleSource + ?Sized> SampleSource for Box<S> {
     fn header(&self) -> &Header {
@@ -59,6 +90,28 @@ impl<S: SampleSource + ?Sized> SampleSource for Box<S> {
     fn read_rows(&mut self, out: &mut [f32]) -> Result<usize> {
         (**self).read_rows(out)
     }
+    fn skip_rows(&mut self, n: u64) -> Result<u64> {
+        (**self).skip_rows(n)
+    }
+}
+
+/// Reads rows into `out` until it is full or the data ends, and returns the number of
+/// whole rows written (`out.len()` must be a multiple of `n_chan`).
+///
+/// # Errors
+/// Whatever the source reports.
+pub fn fill_rows<S: SampleSource + ?Sized>(source: &mut S, out: &mut [f32]) -> Result<usize> {
+    let n_chan = source.header().n_chan();
+    let want = out.len() / n_chan;
+    let mut filled = 0;
+    while filled < want {
+        let got = source.read_rows(&mut out[filled * n_chan..])?;
+        if got == 0 {
+            break;
+        }
+        filled += got;
+    }
+    Ok(filled)
 }
 
 /// Cuts a [`SampleSource`] into blocks of at most `block_len` rows where each block
@@ -112,15 +165,9 @@ impl<S: SampleSource> BlockReader<S> {
         let carried_rows = self.carry.len() / n_chan;
         let mut data = std::mem::take(&mut self.carry);
         data.resize(self.block_len * n_chan, 0.0);
-        let mut filled = carried_rows;
-        while filled < self.block_len {
-            let got = self.source.read_rows(&mut data[filled * n_chan..])?;
-            if got == 0 {
-                self.finished = true;
-                break;
-            }
-            filled += got;
-        }
+        let filled =
+            carried_rows + fill_rows(&mut self.source, &mut data[carried_rows * n_chan..])?;
+        self.finished = filled < self.block_len;
         data.truncate(filled * n_chan);
         if filled == carried_rows {
             // Nothing new arrived: the carried rows were already delivered.
@@ -181,6 +228,12 @@ impl SampleSource for MemorySource {
         self.pos_rows += rows;
         Ok(rows)
     }
+    fn skip_rows(&mut self, n: u64) -> Result<u64> {
+        let remaining = self.header.n_samples - self.pos_rows as u64;
+        let skipped = n.min(remaining);
+        self.pos_rows += skipped as usize;
+        Ok(skipped)
+    }
 }
 
 /// Something that accepts an observation's rows in time order and writes them out.
@@ -199,9 +252,91 @@ pub trait SampleSink {
 }
 
 #[cfg(test)]
-mod tests {
+pub(crate) mod tests {
     use super::*;
     use crate::obs::header::tests::test_header;
+
+    /// Hides a source's own `skip_rows`, so the default (read and discard) is used.
+    pub(crate) struct ReadOnly<S>(pub S);
+
+    impl<S: SampleSource> SampleSource for ReadOnly<S> {
+        fn header(&self) -> &Header {
+            self.0.header()
+        }
+        fn read_rows(&mut self, out: &mut [f32]) -> Result<usize> {
+            self.0.read_rows(out)
+        }
+    }
+
+    /// Checks that for every `(read_first, skip)` pair, reading `read_first` rows,
+    /// skipping `skip` and reading the rest (a few rows per call) gives exactly the
+    /// rows reading everything gives from there, that the skip reports how many rows
+    /// it passed, and that a further skip at the end passes none. `open` opens the
+    /// same data afresh each time.
+    pub(crate) fn assert_skips_match_reading<S: SampleSource>(
+        open: &dyn Fn() -> S,
+        pairs: &[(u64, u64)],
+    ) {
+        let mut reference = open();
+        let n_chan = reference.header().n_chan();
+        let n = reference.header().n_samples;
+        let all = crate::obs::read_all(&mut reference, 1000).unwrap();
+        assert_eq!(all.len() as u64, n * n_chan as u64);
+        for &(read_first, skip) in pairs {
+            let mut src = open();
+            let mut head = vec![0.0; read_first as usize * n_chan];
+            let got = fill_rows(&mut src, &mut head).unwrap() as u64;
+            assert_eq!(got, read_first.min(n));
+            let skipped = src.skip_rows(skip).unwrap();
+            assert_eq!(skipped, skip.min(n - got), "read {read_first}, skip {skip}");
+            let at = (got + skipped) as usize;
+            let rest = crate::obs::read_all(&mut src, 3).unwrap();
+            assert_eq!(rest, all[at * n_chan..], "read {read_first}, skip {skip}");
+            assert_eq!(src.skip_rows(1).unwrap(), 0, "nothing left to skip");
+        }
+    }
+
+    /// Offsets worth checking in data of `n` rows stored in pieces of `piece` rows:
+    /// start, inside and at the edges of a piece, the last row, the end and past it.
+    pub(crate) fn awkward_skips(n: u64, piece: u64) -> Vec<(u64, u64)> {
+        let mut pairs = vec![
+            (0, 0),
+            (0, 1),
+            (0, piece - 1),
+            (0, piece),
+            (0, piece + piece / 2 + 1),
+            (0, n - 1),
+            (0, n),
+            (0, n + 5),
+            (0, u64::MAX),
+            (1, piece / 2),
+            (piece / 2 + 1, 1),
+            (piece / 2 + 1, piece),
+            (n - 2, 1),
+            (n, 3),
+        ];
+        pairs.retain(|&(r, s)| r <= n && s <= n + 5 || s == u64::MAX);
+        pairs
+    }
+
+    #[test]
+    fn memory_and_default_skips_match_reading() {
+        let (n_chan, n) = (3, 50);
+        assert_skips_match_reading(&|| ramp_source(n_chan, n), &awkward_skips(n, 16));
+        assert_skips_match_reading(&|| ReadOnly(ramp_source(n_chan, n)), &awkward_skips(n, 16));
+    }
+
+    #[test]
+    fn default_skip_crosses_several_chunks() {
+        // More rows than one chunk holds, so the loop runs several times.
+        let n_chan = 1024;
+        let n = (3 * SKIP_CHUNK_VALUES / n_chan + 7) as u64;
+        let mut src = ReadOnly(ramp_source(n_chan, n));
+        assert_eq!(src.skip_rows(n - 2).unwrap(), n - 2);
+        let mut row = vec![0.0; n_chan];
+        assert_eq!(src.read_rows(&mut row).unwrap(), 1);
+        assert_eq!(row[0], ((n - 2) * n_chan as u64) as f32);
+    }
 
     fn ramp_source(n_chan: usize, n_time: u64) -> MemorySource {
         let h = test_header(n_chan, n_time);

@@ -13,7 +13,11 @@ pub mod native;
 mod npy;
 pub mod stats;
 
-pub use block::{Block, BlockReader, MemorySource, SampleSink, SampleSource};
+#[cfg(test)]
+pub(crate) use block::tests::{assert_skips_match_reading, awkward_skips};
+pub use block::{
+    Block, BlockReader, MemorySource, SKIP_CHUNK_VALUES, SampleSink, SampleSource, fill_rows,
+};
 pub use header::{Header, Site, UtcEpoch};
 
 use std::path::Path;

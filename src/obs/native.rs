@@ -243,6 +243,18 @@ impl SampleSource for NativeReader {
         self.rows_read += rows as u64;
         Ok(rows)
     }
+
+    /// Seeks: rows are fixed-size, so row `k` starts `k` row lengths into the data.
+    fn skip_rows(&mut self, n: u64) -> Result<u64> {
+        let skipped = n.min(self.header.n_samples - self.rows_read);
+        // Fits: the file size was checked against the shape when it was opened.
+        let bytes = skipped * self.header.n_chan() as u64 * self.dtype.size() as u64;
+        self.file
+            .seek_relative(bytes as i64)
+            .map_err(|e| Error::io(&self.data_path, e))?;
+        self.rows_read += skipped;
+        Ok(skipped)
+    }
 }
 
 /// Writes a native observation: the JSON header at once, the samples as rows arrive.
@@ -361,6 +373,26 @@ mod tests {
         let mut r = NativeReader::open(path, false).unwrap();
         let all = crate::obs::read_all(&mut r, 5).unwrap();
         (r.header().clone(), all)
+    }
+
+    #[test]
+    fn skips_match_reading() {
+        use crate::obs::{assert_skips_match_reading, awkward_skips};
+        let dir = tempfile::tempdir().unwrap();
+        let (n_chan, n) = (16, 5000u64);
+        for nbits in [8u32, 32] {
+            let mut h = test_header(n_chan, n);
+            h.nbits = nbits;
+            let data: Vec<f32> = (0..n_chan * n as usize).map(|i| (i % 251) as f32).collect();
+            let path = dir.path().join(format!("skip{nbits}.json"));
+            write(&path, &h, &data).unwrap();
+            // Pieces of one 64 KiB read buffer: skips land inside it and beyond it.
+            let buffer_rows = (1 << 16) / (n_chan as u64 * nbits as u64 / 8);
+            assert_skips_match_reading(
+                &|| NativeReader::open(&path, false).unwrap(),
+                &awkward_skips(n, buffer_rows),
+            );
+        }
     }
 
     #[test]

@@ -4,33 +4,20 @@
 use ndarray::Array2;
 
 use crate::error::Result;
-use crate::obs::{Block, BlockReader, SampleSource};
+use crate::obs::{Block, SampleSource, fill_rows};
 
-/// Rows read per block while seeking; the memory bound of [`read_stretch`].
-const SEEK_BLOCK_ROWS: usize = 4096;
-
-/// Reads samples `start..start + len` (`[time, channel]`) of `source` into a [`Block`].
+/// Reads samples `start..start + len` (`[time, channel]`) of `source` into a [`Block`],
+/// skipping to `start` with [`SampleSource::skip_rows`] (a seek for the file readers).
 /// Rows past the end of the file are NaN, which [`normalise`] treats as missing.
 ///
 /// # Errors
 /// Whatever the source reports (truncated or corrupt data, I/O).
-pub fn read_stretch<S: SampleSource>(source: S, start: u64, len: usize) -> Result<Block> {
+pub fn read_stretch<S: SampleSource>(mut source: S, start: u64, len: usize) -> Result<Block> {
     let n_chan = source.header().n_chan();
     let mut data = vec![f32::NAN; len * n_chan];
-    let end = start + len as u64;
-    let mut reader = BlockReader::new(source, SEEK_BLOCK_ROWS, 0)?;
-    while let Some(block) = reader.next_block()? {
-        let b0 = block.start_sample;
-        let b1 = b0 + block.n_time() as u64;
-        if b0 >= end {
-            break;
-        }
-        let (lo, hi) = (b0.max(start), b1.min(end));
-        if lo < hi {
-            let src = &block.data[(lo - b0) as usize * n_chan..(hi - b0) as usize * n_chan];
-            data[(lo - start) as usize * n_chan..(hi - start) as usize * n_chan]
-                .copy_from_slice(src);
-        }
+    if source.skip_rows(start)? == start {
+        // Rows after the last one read keep their NaN.
+        fill_rows(&mut source, &mut data)?;
     }
     Ok(Block {
         start_sample: start,
@@ -109,6 +96,10 @@ mod tests {
         let b = read_stretch(src, 9995, 10).unwrap();
         assert_eq!(b.row(4)[2], data[9999 * 3 + 2]);
         assert!(b.row(5).iter().all(|x| x.is_nan()), "past the end is NaN");
+        let src = MemorySource::new(test_header(n_chan, n_time), data);
+        let b = read_stretch(src, 20_000, 4).unwrap();
+        assert_eq!((b.start_sample, b.n_time()), (20_000, 4));
+        assert!(b.data.iter().all(|x| x.is_nan()), "wholly past the end");
     }
 
     #[test]

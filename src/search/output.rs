@@ -7,6 +7,7 @@ use serde::{Deserialize, Serialize};
 
 use super::{FileResult, SearchConfig};
 use crate::candidate::{Candidate, TriageFeatures, Verdict};
+use crate::catalogue::EarlierRun;
 use crate::error::{Error, Result};
 
 /// The cells of one CSV row in [`CSV_COLUMNS`] order: a [`Candidate`] with its
@@ -68,24 +69,66 @@ impl<'a> From<&'a FileResult> for FileSummary<'a> {
     }
 }
 
+/// One file given to a search command: searched now, or not searched again because
+/// the catalogue holds a finished search of the same content and configuration.
+#[derive(Debug, Clone)]
+pub enum FileOutcome {
+    /// Searched by this command.
+    Searched(Box<FileResult>),
+    /// Skipped; made by [`FileOutcome::skipped`].
+    Skipped { file: String, earlier: EarlierRun },
+}
+
+impl FileOutcome {
+    /// The file named `file` now, not searched again because of `earlier`. Its
+    /// candidates are renamed to `file`: the content may have been recorded under
+    /// another path, and outputs should lead to where it is now.
+    pub fn skipped(file: String, mut earlier: EarlierRun) -> FileOutcome {
+        for c in &mut earlier.candidates {
+            c.file.clone_from(&file);
+        }
+        FileOutcome::Skipped { file, earlier }
+    }
+
+    /// The file's candidates in time order, from this search or the earlier one.
+    pub fn candidates(&self) -> &[Candidate] {
+        match self {
+            FileOutcome::Searched(r) => &r.candidates,
+            FileOutcome::Skipped { earlier, .. } => &earlier.candidates,
+        }
+    }
+}
+
+/// A skipped file as listed in the JSON output.
+#[derive(Debug, Serialize)]
+struct SkippedSummary<'a> {
+    file: &'a str,
+    /// The catalogue's `search_run` id whose candidates are listed.
+    run_id: i64,
+    finished_utc: &'a str,
+    n_candidates: usize,
+}
+
 #[derive(Serialize)]
 struct JsonOut<'a> {
     config_hash: String,
     config: &'a SearchConfig,
     files: Vec<FileSummary<'a>>,
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    skipped: Vec<SkippedSummary<'a>>,
     candidates: Vec<&'a Candidate>,
 }
 
-/// Writes every candidate of `results` (in the given file order, each file in time
+/// Writes every candidate of `files` (in the given file order, each file in time
 /// order) to `path` as CSV.
 ///
 /// # Errors
 /// The file cannot be written.
-pub fn write_csv(path: &Path, results: &[FileResult]) -> Result<()> {
+pub fn write_csv(path: &Path, files: &[FileOutcome]) -> Result<()> {
     let io = |e: csv::Error| Error::io(path, std::io::Error::other(e));
     let mut w = csv::Writer::from_path(path).map_err(io)?;
     w.write_record(CSV_COLUMNS).map_err(io)?;
-    for c in results.iter().flat_map(|r| &r.candidates) {
+    for c in files.iter().flat_map(FileOutcome::candidates) {
         w.write_record(csv_cells(c)).map_err(io)?;
     }
     w.flush().map_err(|e| Error::io(path, e))
@@ -111,17 +154,36 @@ pub const CSV_COLUMNS: [&str; 16] = [
     "fluence_jy_ms",
 ];
 
-/// Writes the configuration, its hash, per-file summaries and all candidates to
-/// `path` as pretty JSON.
+/// Writes the configuration, its hash, summaries of the files searched, the files
+/// skipped (`skipped`, only when there are some) and all candidates to `path` as
+/// pretty JSON.
 ///
 /// # Errors
 /// The file cannot be written.
-pub fn write_json(path: &Path, results: &[FileResult], config: &SearchConfig) -> Result<()> {
+pub fn write_json(path: &Path, files: &[FileOutcome], config: &SearchConfig) -> Result<()> {
     let out = JsonOut {
         config_hash: config.hash(),
         config,
-        files: results.iter().map(FileSummary::from).collect(),
-        candidates: results.iter().flat_map(|r| &r.candidates).collect(),
+        files: files
+            .iter()
+            .filter_map(|f| match f {
+                FileOutcome::Searched(r) => Some(FileSummary::from(&**r)),
+                FileOutcome::Skipped { .. } => None,
+            })
+            .collect(),
+        skipped: files
+            .iter()
+            .filter_map(|f| match f {
+                FileOutcome::Searched(_) => None,
+                FileOutcome::Skipped { file, earlier } => Some(SkippedSummary {
+                    file,
+                    run_id: earlier.run_id,
+                    finished_utc: &earlier.finished_utc,
+                    n_candidates: earlier.candidates.len(),
+                }),
+            })
+            .collect(),
+        candidates: files.iter().flat_map(FileOutcome::candidates).collect(),
     };
     let text = serde_json::to_string_pretty(&out).expect("search results always serialise");
     std::fs::write(path, text).map_err(|e| Error::io(path, e))

@@ -20,6 +20,8 @@ pub struct FitsReader {
     header: Header,
     layout: Layout,
     file: BufReader<File>,
+    /// File offset of the first `SUBINT` row.
+    data_start: u64,
     n_rows: u64,
     rows_loaded: u64,
     allow_non_finite: bool,
@@ -100,6 +102,7 @@ impl FitsReader {
             row_bytes: vec![0; layout.row_bytes],
             layout,
             file,
+            data_start,
             n_rows,
             rows_loaded: 0,
             allow_non_finite,
@@ -112,13 +115,14 @@ impl FitsReader {
             offset: Vec::new(),
             weights: Vec::new(),
         };
-        reader.complete_header(data_start)?;
+        reader.complete_header()?;
         Ok(reader)
     }
 
     /// Fills in what only the rows tell: frequencies and weights (first row) and
     /// the true length of the last row (its `TSUBINT`). Leaves the file at row 0.
-    fn complete_header(&mut self, data_start: u64) -> Result<()> {
+    fn complete_header(&mut self) -> Result<()> {
+        let data_start = self.data_start;
         let path = self.path.clone();
         let bad = |m: String| Error::bad_input(&path, m);
         let l = self.layout.clone();
@@ -354,5 +358,85 @@ impl SampleSource for FitsReader {
             }
         }
         Ok(done)
+    }
+
+    /// Seeks: every `SUBINT` row but the last holds `NSBLK` samples, so the row
+    /// holding the target sample is found by division, and only it is read.
+    fn skip_rows(&mut self, n: u64) -> Result<u64> {
+        let nc = self.header.n_chan();
+        let skipped = n.min(self.header.n_samples - self.delivered);
+        let buffered = (self.samples.len() / nc - self.pos) as u64;
+        if skipped <= buffered {
+            self.pos += skipped as usize;
+            self.delivered += skipped;
+            return Ok(skipped);
+        }
+        let target = self.delivered + skipped;
+        self.samples.clear();
+        self.pos = 0;
+        if target == self.header.n_samples {
+            self.rows_loaded = self.n_rows;
+            self.delivered = target;
+            return Ok(skipped);
+        }
+        let nsblk = self.layout.nsblk as u64;
+        let row = target / nsblk;
+        let row_bytes = self.layout.row_bytes as u64;
+        // Relative, so a target still inside the read buffer costs no system call.
+        let ahead = (row - self.rows_loaded) * row_bytes;
+        self.file
+            .seek_relative(ahead as i64)
+            .map_err(|e| Error::io(&self.path, e))?;
+        self.rows_loaded = row;
+        self.delivered = row * nsblk;
+        let into_row = (target - self.delivered) as usize;
+        if into_row > 0 {
+            let mut samples = std::mem::take(&mut self.samples);
+            samples.resize(self.next_row_len() * nc, 0.0);
+            let result = self.read_row_into(&mut samples);
+            self.samples = samples;
+            result?;
+            self.pos = into_row;
+            self.delivered = target;
+        }
+        Ok(skipped)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::obs::SampleSink;
+    use crate::obs::fits::FitsWriter;
+    use crate::obs::header::tests::test_header;
+    use crate::obs::{assert_skips_match_reading, awkward_skips};
+
+    #[test]
+    fn skips_match_reading() {
+        let dir = tempfile::tempdir().unwrap();
+        // 16-sample subints; 203 samples leave a short last one.
+        for (nbits, n, nsblk) in [(8u32, 203u64, 16usize), (4, 96, 16), (32, 203, 16)] {
+            let mut h = test_header(6, n);
+            h.nbits = nbits;
+            h.weights[2] = 0.0;
+            let max = if nbits == 32 { 1000 } else { (1 << nbits) - 1 };
+            let data: Vec<f32> = (0..6 * n as usize)
+                .map(|i| {
+                    if i % 6 == 2 {
+                        0.0
+                    } else {
+                        (i * 7 % (max + 1)) as f32
+                    }
+                })
+                .collect();
+            let path = dir.path().join(format!("skip{nbits}.fits"));
+            let mut w = Box::new(FitsWriter::create_with_nsblk(&path, &h, nsblk).unwrap());
+            w.write_rows(&data).unwrap();
+            w.finish().unwrap();
+            assert_skips_match_reading(
+                &|| FitsReader::open(&path, false).unwrap(),
+                &awkward_skips(n, nsblk as u64),
+            );
+        }
     }
 }
