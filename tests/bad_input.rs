@@ -1,8 +1,9 @@
 //! Broken observations give one clear typed error naming the file, never a panic:
 //! through the library and through the `burstbook` binary.
 
+mod cli_common;
+
 use std::path::{Path, PathBuf};
-use std::process::Command;
 
 use burstbook::Error;
 use burstbook::obs::{self, Container, Header, Site, UtcEpoch};
@@ -313,30 +314,11 @@ fn writers_reject_what_they_cannot_store() {
     assert_bad(e, &path, "sample time");
 }
 
-/// Runs `burstbook inspect FILE`; returns (success, stderr).
-fn inspect(file: &Path) -> (bool, String) {
-    let out = Command::new(env!("CARGO_BIN_EXE_burstbook"))
-        .arg("inspect")
-        .arg(file)
-        .output()
-        .unwrap();
-    (out.status.success(), String::from_utf8(out.stderr).unwrap())
-}
-
+/// `burstbook inspect FILE` fails with one line naming the file and the problem.
 fn assert_one_line_failure(file: &Path, needle: &str) {
-    let (ok, stderr) = inspect(file);
-    assert!(!ok, "exit status must be non-zero for {}", file.display());
-    assert_eq!(stderr.lines().count(), 1, "one line: {stderr}");
-    assert!(
-        stderr.contains(&file.display().to_string()),
-        "names file: {stderr}"
-    );
-    assert_eq!(
-        stderr.matches(needle).count(),
-        1,
-        "'{needle}' once in: {stderr}"
-    );
-    assert!(!stderr.contains("panicked"), "{stderr}");
+    let out = cli_common::burstbook(&[Path::new("inspect"), file]);
+    cli_common::assert_one_line_failure(&out, &[&file.display().to_string(), needle]);
+    assert!(!String::from_utf8_lossy(&out.stderr).contains("panicked"));
 }
 
 #[test]
@@ -349,11 +331,9 @@ fn binary_reports_bad_input_in_one_line() {
     let (json, npy) = native_pair(dir.path(), "short", 8);
     let bytes = std::fs::read(&npy).unwrap();
     std::fs::write(&npy, &bytes[..bytes.len() - 1]).unwrap();
-    let (ok, stderr) = inspect(&json);
-    assert!(
-        !ok && stderr.lines().count() == 1 && stderr.contains("truncated"),
-        "{stderr}"
-    );
+    // The error names the data file, the one at fault.
+    let out = cli_common::burstbook(&[Path::new("inspect"), &json]);
+    cli_common::assert_one_line_failure(&out, &[&npy.display().to_string(), "truncated"]);
     let fits = fits_file(dir.path(), "bits", 8, 1.0);
     patch_card(&fits, "NBITS", "NBITS   =                   12");
     assert_one_line_failure(&fits, "NBITS = 12");
@@ -365,11 +345,7 @@ fn binary_reports_bad_input_in_one_line() {
 fn binary_inspects_a_good_file() {
     let dir = tempfile::tempdir().unwrap();
     let fits = fits_file(dir.path(), "good", 8, 7.0);
-    let out = Command::new(env!("CARGO_BIN_EXE_burstbook"))
-        .args(["inspect", "--json"])
-        .arg(&fits)
-        .output()
-        .unwrap();
+    let out = cli_common::burstbook(&[Path::new("inspect"), Path::new("--json"), &fits]);
     assert!(out.status.success());
     let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
     assert_eq!(v["statistics"]["data"]["mean"], 7.0);

@@ -76,6 +76,9 @@ fn finds_the_burst_in_both_containers_and_writes_csv_and_json() {
         config.to_str().unwrap(),
         "--snr",
         "7.5",
+        // Not the default ./burstbook.sqlite: a test must not leave state behind.
+        "--catalogue",
+        dir.path().join("cat.sqlite").to_str().unwrap(),
     ]);
     let stdout = String::from_utf8_lossy(&o.stdout);
     assert!(
@@ -131,6 +134,7 @@ fn bad_input_fails_with_one_line_naming_the_file() {
         missing.to_str().unwrap(),
         "--out",
         out.to_str().unwrap(),
+        "--no-catalogue",
     ]);
     assert_one_line_failure(&o, &["nothing.json"]);
 
@@ -141,6 +145,7 @@ fn bad_input_fails_with_one_line_naming_the_file() {
         junk.to_str().unwrap(),
         "--out",
         out.to_str().unwrap(),
+        "--no-catalogue",
     ]);
     assert!(!o.status.success());
     assert!(String::from_utf8_lossy(&o.stderr).contains("junk.fits"));
@@ -154,6 +159,7 @@ fn bad_input_fails_with_one_line_naming_the_file() {
         "50",
         "--dm-max",
         "10",
+        "--no-catalogue",
     ]);
     assert!(!o.status.success());
     assert!(String::from_utf8_lossy(&o.stderr).contains("DM range"));

@@ -3,7 +3,7 @@
 use serde::Serialize;
 
 use super::DmPlan;
-use super::fast::chunk_len;
+use super::fast::{chunk_len, stage1_len};
 use super::subband::StepKernel;
 
 /// What executing a [`DmPlan`] costs, per second of data.
@@ -15,7 +15,8 @@ pub struct PlanCost {
     /// Additions per second of data by the fast kernel: sub-band tree merges (with
     /// the chunk overlap), phase sums and per-trial sub-band sums, and downsampling.
     pub fast_adds_per_s: f64,
-    /// Scratch memory of the fast kernel (the stage-1 rows of one chunk), bytes.
+    /// Scratch memory of the fast kernel (the stage-1 rows of one chunk, the
+    /// kernel's own buffer size), bytes.
     pub fast_scratch_bytes: f64,
     /// Dedispersed output, bytes per second of data (f32, all steps).
     pub output_bytes_per_s: f64,
@@ -47,8 +48,7 @@ impl DmPlan {
             fast += kernel.stage1_adds_per_sample() as f64 * overlap * per_s / tree_ds;
             fast += kernel.stage2_adds_per_sample() as f64 * per_s / ds;
             fast += n_chan * (tree_ds - 1.0) / tree_ds * per_s;
-            let rows = (kernel.n_rows() * kernel.per_out) as f64;
-            scratch = scratch.max(rows * (chunk + kernel.max_path as f64) / ds * tree_ds * 4.0);
+            scratch = scratch.max(stage1_len(&kernel) as f64 * 4.0);
             output += step.dms.len() as f64 * per_s / ds * 4.0;
         }
         PlanCost {

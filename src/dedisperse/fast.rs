@@ -75,14 +75,7 @@ impl FastDedisperser {
             .collect::<Vec<StepKernel>>();
         // The largest stage-1 buffer any step needs, reserved now as untouched zero
         // pages: growing it step by step would fault in each smaller size first.
-        let stage1_len = steps
-            .iter()
-            .map(|k| {
-                let chunk = chunk_len(k.max_path).div_ceil(k.per_out);
-                k.n_rows() * k.per_out * stage1_stride(k, chunk)
-            })
-            .max()
-            .unwrap_or(0);
+        let stage1_len = steps.iter().map(stage1_len).max().unwrap_or(0);
         FastDedisperser {
             plan: plan.clone(),
             steps,
@@ -201,6 +194,12 @@ impl FastDedisperser {
 /// Tree samples per chunk for a step whose longest path is `max_path` tree samples.
 pub(crate) fn chunk_len(max_path: usize) -> usize {
     (CHUNK_PER_PATH * max_path).max(MIN_CHUNK)
+}
+
+/// Values of the stage-1 buffer for a whole chunk of the step `kernel`.
+pub(crate) fn stage1_len(kernel: &StepKernel) -> usize {
+    let chunk = chunk_len(kernel.max_path).div_ceil(kernel.per_out);
+    kernel.n_rows() * kernel.per_out * stage1_stride(kernel, chunk)
 }
 
 /// The block at the step's tree resolution (`row_len` samples per channel, channels

@@ -376,3 +376,18 @@ fn strided_rows_equal_the_contiguous_block() {
     kernel.recycle(first);
     assert_eq!(kernel.dedisperse_rows(&rows, n_time, row_stride), expected);
 }
+
+// The cost model's scratch is the kernel's own stage-1 buffer, which the first block
+// never needs to grow.
+#[test]
+fn cost_scratch_is_the_stage1_buffer() {
+    let (freqs, bw) = band(97, 1200.0, 1600.0, false);
+    let plan = DmPlan::build(&freqs, bw, 1e-3, &PlanRequest::default()).unwrap();
+    let mut fast = FastDedisperser::new(&plan);
+    let reserved = fast.stage1.len();
+    assert_eq!(plan.cost().fast_scratch_bytes, (reserved * 4) as f64);
+    let mut rng = ChaCha8Rng::seed_from_u64(5);
+    let input = noise(97, plan.max_delay_samples() + 3000, &mut rng);
+    fast.dedisperse(input.view());
+    assert_eq!(fast.stage1.len(), reserved);
+}
