@@ -223,7 +223,9 @@ fn halve(src: &[f32], row_len: usize, row_stride: usize, dst: &mut Vec<f32>, n_c
         .for_each(|(dst, src)| pair_sums(dst, &src[..row_len]));
 }
 
-/// `dst[j] = src[2j] + src[2j + 1]`.
+/// `dst[j] = src[2j] + src[2j + 1]` (inlined into each caller, so it vectorises for
+/// the caller's instruction set).
+#[inline(always)]
 fn pair_sums(dst: &mut [f32], src: &[f32]) {
     for (o, pair) in dst.iter_mut().zip(src.chunks_exact(2)) {
         *o = pair[0] + pair[1];
@@ -311,19 +313,16 @@ fn subband_rows(
     let halo = sub.tree.max_path;
     let n_chan = sub.channels.len();
     let per_out = out.per_out;
-    let tile = STAGE1_TILE / per_out;
-    for j0 in (0..need).step_by(tile) {
-        let n_j = tile.min(need - j0);
-        // The last phase reads one tree sample past the tile.
-        let len = n_j * per_out + per_out - 1;
-        let width = len + halo;
-        let start = src.t0 + j0 * per_out;
-        let tile = TopTile {
+    let tile_len = STAGE1_TILE / per_out;
+    for j0 in (0..need).step_by(tile_len) {
+        let mut tile = TopTile {
             j0,
-            n_j,
+            n_j: tile_len.min(need - j0),
             per_out,
-            width,
+            width: 0,
         };
+        tile.width = tile.len() + halo;
+        let (start, width) = (src.t0 + j0 * per_out, tile.width);
         if start + width <= src.row_len {
             // The usual tile: the first level reads the block's channels in place.
             let channels = InBlock {
@@ -359,8 +358,7 @@ fn tile_rows(
     out: &mut Phased<'_>,
     scratch: &mut TileScratch,
 ) {
-    let len = tile.n_j * tile.per_out + tile.per_out - 1;
-    let width = tile.width;
+    let (len, width) = (tile.len(), tile.width);
     let Some((top, below)) = sub.tree.levels.split_last() else {
         // A one-channel sub-band: its channel is its only row.
         return store_phases(&channels.row(0)[..len], out, 0, tile);
@@ -379,20 +377,11 @@ fn tile_rows(
     }
     match below.len() {
         0 => top_level(top, channels, tile, out, &mut scratch.row),
-        n if n % 2 == 1 => top_level(
-            top,
-            &Contiguous::new(even, width),
-            tile,
-            out,
-            &mut scratch.row,
-        ),
-        _ => top_level(
-            top,
-            &Contiguous::new(odd, width),
-            tile,
-            out,
-            &mut scratch.row,
-        ),
+        n => {
+            let last: &[f32] = if n % 2 == 1 { even } else { odd };
+            let last = Contiguous::new(last, width);
+            top_level(top, &last, tile, out, &mut scratch.row)
+        }
     }
 }
 
@@ -446,6 +435,13 @@ struct TopTile {
     width: usize,
 }
 
+impl TopTile {
+    /// Tree samples the top rows need: the last phase reads one past the tile.
+    fn len(&self) -> usize {
+        self.n_j * self.per_out + self.per_out - 1
+    }
+}
+
 /// The top level of one tile, merged row by row straight into the stage-1 buffer (a
 /// row never leaves L1 before it is stored: the level as a whole would not fit in
 /// L2); compiled for AVX2 when the CPU has it.
@@ -487,11 +483,10 @@ fn top_level_rows(
     out: &mut Phased<'_>,
     row: &mut Vec<f32>,
 ) {
-    let (j0, n_j, per_out) = (tile.j0, tile.n_j, tile.per_out);
-    let len = n_j * per_out + per_out - 1;
+    let (j0, n_j, len) = (tile.j0, tile.n_j, tile.len());
     grow(row, len);
     for (r, m) in merges.iter().enumerate() {
-        if per_out == 1 {
+        if tile.per_out == 1 {
             // One phase: the merge is the stored row.
             merge_row(m, src, &mut out.row_mut(r, 0)[j0..j0 + n_j]);
         } else {
