@@ -9,7 +9,7 @@
 //! when one of them collects clearly more than the undispersed sum
 //! ([`PROTECT_RATIO`]), the sample belongs to a dispersed pulse and is kept.
 
-use ndarray::{ArrayView2, ArrayViewMut2};
+use ndarray::{ArrayView2, ArrayViewMut2, s};
 use rayon::prelude::*;
 
 use crate::robust::median_sigma;
@@ -105,7 +105,7 @@ impl DispersionProbe {
                 continue;
             }
             let part = &mut sums[self.part_of[c] * n..][..n];
-            let row = row.slice_move(ndarray::s![span.clone()]);
+            let row = row.slice_move(s![span.clone()]);
             part.iter_mut().zip(row).for_each(|(s, &v)| *s += v);
         }
         sums
@@ -138,27 +138,31 @@ impl DispersionProbe {
     }
 }
 
-/// Zeroes every time sample of `data` (`[channel, time]`, normalised) whose sum over
-/// unmasked channels exceeds `threshold` robust σ of all such sums, unless `probe`
-/// finds it on a dispersed pulse. Returns the number of samples zeroed;
-/// `threshold == 0` disables clipping.
+/// Zeroes every time sample of `data` (`[channel, time]`, normalised) from `first`
+/// on whose sum over unmasked channels exceeds `threshold` robust σ of all such sums,
+/// unless `probe` finds it on a dispersed pulse. The samples before `first` (rows
+/// kept from the previous block, already clipped) are only looked at by the probe,
+/// so a pulse that began there is still seen as dispersed. Returns the number of
+/// samples zeroed; `threshold == 0` disables clipping.
 pub fn clip(
     mut data: ArrayViewMut2<'_, f32>,
+    first: usize,
     mask: &[bool],
     threshold: f64,
     probe: &DispersionProbe,
 ) -> usize {
-    if threshold == 0.0 {
+    let n_time = data.ncols();
+    if threshold == 0.0 || first >= n_time {
         return 0;
     }
-    let n_time = data.ncols();
-    let sums = super::band_sum(data.view(), mask);
+    let sums = super::band_sum(data.slice(s![.., first..]), mask);
     let (med, sigma) = median_sigma(&sums, 1, &mut Vec::new());
     if sigma.is_nan() || sigma <= 0.0 {
         return 0;
     }
-    let hot: Vec<usize> = (0..n_time)
+    let hot: Vec<usize> = (0..sums.len())
         .filter(|&t| f64::from((sums[t] - med) / sigma) > threshold)
+        .map(|t| first + t)
         .collect();
     let hot = spare_dispersed(data.view(), mask, probe, hot);
     for mut row in data.rows_mut() {
@@ -221,14 +225,26 @@ mod tests {
         for c in 0..32 {
             d[[c, 1234]] += 5.0; // band sum S/N ≈ 5·32/√32 ≈ 28
         }
-        let n = clip(d.view_mut(), &[false; 32], 6.0, &DispersionProbe::none(32));
+        let n = clip(
+            d.view_mut(),
+            0,
+            &[false; 32],
+            6.0,
+            &DispersionProbe::none(32),
+        );
         assert_eq!(
             n, 1,
             "Gaussian noise exceeds 6σ with probability 1e-9 per sample"
         );
         assert!(d.column(1234).iter().all(|&v| v == 0.0));
         assert_eq!(
-            clip(d.view_mut(), &[false; 32], 0.0, &DispersionProbe::none(32)),
+            clip(
+                d.view_mut(),
+                0,
+                &[false; 32],
+                0.0,
+                &DispersionProbe::none(32)
+            ),
             0
         );
     }
@@ -257,7 +273,7 @@ mod tests {
                         d[[c, t]] += 0.6; // band sum ≈ 0.6·256/16 ≈ 9.6σ per sample
                     }
                 }
-                let n = clip(d.view_mut(), &[false; 256], 6.0, &probe);
+                let n = clip(d.view_mut(), 0, &[false; 256], 6.0, &probe);
                 assert!(n >= len, "seed {seed}, impulse of {len}: {n} clipped");
                 assert!((2000..2000 + len).all(|t| d.column(t).iter().all(|&v| v == 0.0)));
             }
@@ -270,7 +286,7 @@ mod tests {
                     }
                 }
                 let before = d.clone();
-                let n = clip(d.view_mut(), &[false; 256], 6.0, &probe);
+                let n = clip(d.view_mut(), 0, &[false; 256], 6.0, &probe);
                 assert_eq!(n, 0, "seed {seed}, DM {dm}: a dispersed pulse was clipped");
                 assert_eq!(d, before);
             }
@@ -291,5 +307,35 @@ mod tests {
         assert_eq!(few.n_parts, 3);
         assert_eq!(DispersionProbe::new(&freqs[..1], tsamp).reach(), 0);
         assert_eq!(DispersionProbe::new(&[], tsamp).reach(), 0);
+    }
+
+    // Only samples from `first` on are tested and zeroed: an impulse in the rows kept
+    // from the previous block stays, one in the new rows goes; a low-DM pulse whose
+    // sweep began in the kept rows is kept whole.
+    #[test]
+    fn only_new_rows_are_clipped_while_the_probe_sees_the_kept_ones() {
+        let (freqs, tsamp) = band();
+        let probe = DispersionProbe::new(&freqs, tsamp);
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(3);
+        let noise = Array2::from_shape_fn((256, 4000), |_| StandardNormal.sample(&mut rng));
+        let first = 2000;
+        let mut d = noise.clone();
+        for mut row in d.rows_mut() {
+            row[1998] += 0.6;
+            row[2001] += 0.6;
+        }
+        assert_eq!(clip(d.view_mut(), first, &[false; 256], 6.0, &probe), 1);
+        assert!(d.column(1998).iter().all(|&v| v != 0.0));
+        assert!(d.column(2001).iter().all(|&v| v == 0.0));
+        let mut d = noise;
+        for (c, &f) in freqs.iter().enumerate() {
+            let t = 1995 + (delay_between_s(4.0, f, freqs[0]) / tsamp).round() as usize;
+            for v in d.row_mut(c).iter_mut().skip(t).take(2) {
+                *v += 6.0;
+            }
+        }
+        let before = d.clone();
+        assert_eq!(clip(d.view_mut(), first, &[false; 256], 6.0, &probe), 0);
+        assert_eq!(d, before);
     }
 }

@@ -124,17 +124,18 @@ impl ChannelBlock {
         clean::flag_channels(raw, &mut self.new_mask, config);
         self.transpose_in(raw);
         self.normalise_new(keep, m, baseline_len);
-        let mut new = ArrayViewMut2::from_shape((n_chan, self.capacity), &mut self.data[..])
+        let mut block = ArrayViewMut2::from_shape((n_chan, self.capacity), &mut self.data[..])
             .expect("buffer holds n_chan × capacity values")
-            .slice_move(s![.., keep..keep + m]);
+            .slice_move(s![.., ..keep + m]);
         let n_clipped = impulse::clip(
-            new.view_mut(),
+            block.view_mut(),
+            keep,
             &self.new_mask,
             config.clip_threshold,
             &self.probe,
         );
         if config.zero_dm {
-            zero_dm::apply(new, &self.new_mask);
+            zero_dm::apply(block.slice_move(s![.., keep..]), &self.new_mask);
         }
         self.len = keep + m;
         self.mask = if keep > 0 {
