@@ -17,6 +17,7 @@ out=${4:-/tmp/burstbook-inject-measure}
 dm_range=${5:-0:2000}
 width_range=${6:-0.1:50}
 root=$(cd "$(dirname "$0")/.." && pwd)
+# SMEARING_FRACTION sets [plan] smearing_fraction (default 0.5, the search's default).
 # BURSTBOOK_BIN runs another build (e.g. an older commit's) instead of building this one.
 if [[ -n "${BURSTBOOK_BIN:-}" ]]; then
     bin=$BURSTBOOK_BIN
@@ -62,6 +63,7 @@ dm_max = 2000.0
 min_width_s = 0.0
 tolerance = 1.25
 max_downsample = 64
+smearing_fraction = ${SMEARING_FRACTION:-0.5}
 TOML
 
 "$bin" simulate "$out/scenario.toml" --out "$out/quiet.json"
