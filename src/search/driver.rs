@@ -253,7 +253,7 @@ impl<'a> Searcher<'a> {
         let (norm, mask) = (channels.view(), channels.mask());
         let n_chan = mask.len();
         let n_masked = mask.iter().filter(|&&m| m).count();
-        let outs = match &mut self.fast {
+        let mut outs = match &mut self.fast {
             Some(kernel) => {
                 let (rows, stride) = channels.rows();
                 kernel.dedisperse_rows(rows, n_time, stride)
@@ -266,7 +266,7 @@ impl<'a> Searcher<'a> {
             ..own_hi.saturating_add(g.margin as u64).saturating_sub(start) as usize;
         let detections = self.detect(&outs, start, tested);
         let dm0 = self.dm0_series(norm, mask);
-        let series = NormalisedSeries::new(&outs, g.baseline_len);
+        let series = NormalisedSeries::new(&mut outs, g.baseline_len);
         let data = BlockData {
             header: &self.header,
             dm_offsets: &self.dm_offsets,
@@ -371,7 +371,7 @@ impl<'a> Searcher<'a> {
     }
 
     /// Measures a cluster's features, triages it and turns it into a candidate.
-    fn judge(&self, data: &BlockData<'_>, c: &Cluster, used_bw_mhz: f64) -> Candidate {
+    fn judge(&self, data: &BlockData<'_, '_>, c: &Cluster, used_bw_mhz: f64) -> Candidate {
         let measured = features::measure(data, &c.best);
         let expectation = triage::Expectation {
             snr: c.best.snr,

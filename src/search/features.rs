@@ -19,8 +19,9 @@ const N_SUBBANDS: usize = 16;
 /// The DM-curve is sampled out to the DM error where the expected ratio is ≈ 0.18.
 const CURVE_MAX_ZETA: f64 = 5.0;
 
-/// Everything of one processed block that feature measurement reads.
-pub(super) struct BlockData<'a> {
+/// Everything of one processed block that feature measurement reads (`'s`: the
+/// block's dedispersed series, lent to [`NormalisedSeries`]).
+pub(super) struct BlockData<'a, 's> {
     pub header: &'a Header,
     /// Global index of the first trial of each plan step.
     pub dm_offsets: &'a [usize],
@@ -30,7 +31,7 @@ pub(super) struct BlockData<'a> {
     /// Normalised band sum (DM 0) at input resolution.
     pub dm0: &'a [f32],
     /// Dedispersed series, normalised when read.
-    pub series: &'a NormalisedSeries<'a>,
+    pub series: &'a NormalisedSeries<'s>,
     pub block_start: u64,
 }
 
@@ -59,7 +60,7 @@ impl SignalBand {
     }
 }
 
-impl BlockData<'_> {
+impl BlockData<'_, '_> {
     /// Sweep across the band in input samples for `dm`.
     fn sweep_samples(&self, dm: f64) -> usize {
         let h = self.header;
@@ -88,13 +89,12 @@ impl BlockData<'_> {
     fn dm_curve_misfit(&self, d: &Detection, t0_in: usize, band: SignalBand) -> f64 {
         let tsamp = self.header.tsamp_s;
         let step_index = self.dm_offsets.partition_point(|&o| o <= d.dm_index) - 1;
-        let step = self.series.step(step_index);
-        let ds = step.downsample;
+        let ds = self.series.downsample(step_index);
         let (t0, w) = (t0_in / ds, (d.width_samples / ds).max(1));
         let reach = CURVE_MAX_ZETA / band.zeta(1.0, d.width_samples, tsamp);
         let mut scratch = Scratch::default();
         let mut points = Vec::new();
-        for (r, &dm) in step.dms.iter().enumerate() {
+        for (r, &dm) in self.series.dms(step_index).iter().enumerate() {
             if (dm - d.dm).abs() > reach {
                 continue;
             }
@@ -129,7 +129,7 @@ fn subbands(unit: &[f64], freqs_mhz: &[f64]) -> (Vec<f64>, Vec<f64>) {
 }
 
 /// Measures the triage features of detection `d` (the best member of a cluster).
-pub(super) fn measure(b: &BlockData<'_>, d: &Detection) -> Measured {
+pub(super) fn measure(b: &BlockData<'_, '_>, d: &Detection) -> Measured {
     let h = b.header;
     let t0 = (d.start_sample - b.block_start) as usize;
     let w = d.width_samples;

@@ -3,7 +3,7 @@
 //! (1.4826 × MAD), so every channel, and later every dedispersed series, has zero
 //! mean and unit variance in its noise (common practice).
 
-use std::sync::OnceLock;
+use std::sync::{Mutex, OnceLock};
 
 use crate::dedisperse::Dedispersed;
 use crate::robust::{Baseline, median_sigma};
@@ -62,44 +62,76 @@ pub fn series_level(
     (sigma > 0.0 && sigma.is_finite()).then_some((baseline, sigma))
 }
 
-/// A block's dedispersed series, each normalised as the matched filter normalised it
-/// ([`normalise_series`] with [`SERIES_SIGMA_VALUES`]) on first use: the filter
-/// leaves the series as they are, and triage reads only the few near a candidate.
-/// Shared by threads; each series is normalised once.
+/// A block's dedispersed series, each normalised in place as the matched filter
+/// normalised it ([`normalise_series`] with [`SERIES_SIGMA_VALUES`]) when first
+/// read: the filter leaves the series as they are, and triage reads only the few
+/// near a candidate. Shared by threads; each series is normalised once, in its own
+/// memory (no copies).
 pub struct NormalisedSeries<'a> {
-    outs: &'a [Dedispersed],
+    steps: Vec<StepSeries<'a>>,
     /// Baseline window in input samples.
     baseline_len: usize,
-    rows: Vec<Vec<OnceLock<Vec<f32>>>>,
+}
+
+/// One plan step's series for [`NormalisedSeries`].
+struct StepSeries<'a> {
+    dms: &'a [f64],
+    downsample: usize,
+    rows: Vec<LazyRow<'a>>,
+}
+
+/// A series not yet normalised (`raw`, taken by the first reader) or normalised.
+struct LazyRow<'a> {
+    raw: Mutex<Option<&'a mut [f32]>>,
+    normalised: OnceLock<&'a [f32]>,
 }
 
 impl<'a> NormalisedSeries<'a> {
-    /// The series of every step of `outs`, normalised over `baseline_len` input
+    /// The series of every step of `outs`, to be normalised over `baseline_len` input
     /// samples (divided by each step's downsampling) when first read.
-    pub fn new(outs: &'a [Dedispersed], baseline_len: usize) -> Self {
-        let rows = outs
-            .iter()
-            .map(|o| (0..o.dms.len()).map(|_| OnceLock::new()).collect())
+    pub fn new(outs: &'a mut [Dedispersed], baseline_len: usize) -> Self {
+        let steps = outs
+            .iter_mut()
+            .map(|out| StepSeries {
+                dms: &out.dms,
+                downsample: out.downsample,
+                rows: out
+                    .data
+                    .chunks_mut(out.n_time.max(1))
+                    .take(out.dms.len())
+                    .map(|row| LazyRow {
+                        raw: Mutex::new(Some(row)),
+                        normalised: OnceLock::new(),
+                    })
+                    .collect(),
+            })
             .collect();
         NormalisedSeries {
-            outs,
+            steps,
             baseline_len,
-            rows,
         }
     }
 
-    /// Step `step` as the kernel produced it (trial DMs, downsampling, raw series).
-    pub fn step(&self, step: usize) -> &'a Dedispersed {
-        &self.outs[step]
+    /// Trial DMs of step `step`, pc cm⁻³.
+    pub fn dms(&self, step: usize) -> &'a [f64] {
+        self.steps[step].dms
+    }
+
+    /// Input samples per sample of step `step`.
+    pub fn downsample(&self, step: usize) -> usize {
+        self.steps[step].downsample
     }
 
     /// Trial `r` of step `step`, normalised.
-    pub fn row(&self, step: usize, r: usize) -> &[f32] {
-        self.rows[step][r].get_or_init(|| {
-            let out = &self.outs[step];
-            let mut row = out.row(r).to_vec();
-            let baseline = (self.baseline_len / out.downsample).max(1);
-            normalise_series(&mut row, baseline, SERIES_SIGMA_VALUES, &mut Vec::new());
+    pub fn row(&self, step: usize, r: usize) -> &'a [f32] {
+        let s = &self.steps[step];
+        let lazy = &s.rows[r];
+        lazy.normalised.get_or_init(|| {
+            let raw = lazy.raw.lock().map(|mut raw| raw.take());
+            // Only the one initialiser takes the row, so it is always there.
+            let row = raw.ok().flatten().unwrap_or_default();
+            let baseline = (self.baseline_len / s.downsample).max(1);
+            normalise_series(row, baseline, SERIES_SIGMA_VALUES, &mut Vec::new());
             row
         })
     }
@@ -110,7 +142,7 @@ mod tests {
     use super::*;
 
     // Each series read through the lazy view equals the series normalised directly,
-    // at the step's own baseline, and the raw output is left untouched.
+    // at the step's own baseline, however often and in whatever order it is read.
     #[test]
     fn lazily_normalised_rows_match_direct_normalisation() {
         let raw = |n: usize, k: usize| -> Vec<f32> {
@@ -124,15 +156,28 @@ mod tests {
             n_time: n,
             data: (0..3).flat_map(|k| raw(n, k)).collect(),
         };
-        let outs = vec![step(1, 4000), step(4, 1000)];
-        let series = NormalisedSeries::new(&outs, 1200);
-        for (s, out) in outs.iter().enumerate() {
-            for r in 0..3 {
-                let mut direct = out.row(r).to_vec();
-                let baseline = 1200 / out.downsample;
-                normalise_series(&mut direct, baseline, SERIES_SIGMA_VALUES, &mut Vec::new());
-                assert_eq!(series.row(s, r), &direct[..], "step {s} row {r}");
-                assert_eq!(out.row(r), &raw(out.n_time, r)[..]);
+        let mut outs = vec![step(1, 4000), step(4, 1000)];
+        let direct: Vec<Vec<Vec<f32>>> = outs
+            .iter()
+            .map(|out| {
+                (0..3)
+                    .map(|r| {
+                        let mut row = out.row(r).to_vec();
+                        let baseline = 1200 / out.downsample;
+                        normalise_series(&mut row, baseline, SERIES_SIGMA_VALUES, &mut Vec::new());
+                        row
+                    })
+                    .collect()
+            })
+            .collect();
+        let series = NormalisedSeries::new(&mut outs, 1200);
+        assert_eq!(
+            (series.dms(1), series.downsample(1)),
+            (&[10.0, 20.0, 30.0][..], 4)
+        );
+        for (s, rows) in direct.iter().enumerate() {
+            for r in [2, 0, 1, 2] {
+                assert_eq!(series.row(s, r), &rows[r][..], "step {s} row {r}");
             }
         }
     }
