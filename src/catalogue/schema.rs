@@ -60,22 +60,20 @@ pub(crate) fn apply_from(tx: &Connection, from: i64) -> Result<()> {
         .map_err(|e| cat_err(tx, e))
 }
 
+/// The file's schema version, application id and table count, read in one
+/// statement so they come from one snapshot: read one by one, a process creating
+/// the catalogue could commit between them, and a half-seen fresh file (tables but
+/// no id yet) would be refused as foreign.
 fn read_identity(cat: &Catalogue) -> Result<(i64, i64, i64)> {
-    let c = cat.conn();
-    let version = c
-        .query_row("PRAGMA user_version", [], |r| r.get(0))
-        .map_err(|e| cat.err(e))?;
-    let app_id = c
-        .query_row("PRAGMA application_id", [], |r| r.get(0))
-        .map_err(|e| cat.err(e))?;
-    let n_tables = c
+    cat.conn()
         .query_row(
-            "SELECT count(*) FROM sqlite_master WHERE type = 'table'",
+            "SELECT (SELECT user_version FROM pragma_user_version), \
+                    (SELECT application_id FROM pragma_application_id), \
+                    (SELECT count(*) FROM sqlite_master WHERE type = 'table')",
             [],
-            |r| r.get(0),
+            |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)),
         )
-        .map_err(|e| cat.err(e))?;
-    Ok((version, app_id, n_tables))
+        .map_err(|e| cat.err(e))
 }
 
 /// Refuses a foreign SQLite file or one from a newer burstbook; reads only.
