@@ -3,7 +3,7 @@
 use serde::Serialize;
 
 use super::DmPlan;
-use super::fast::{chunk_len, stage1_len};
+use super::fast::{Bf16, chunk_len, stage1_len};
 use super::subband::StepKernel;
 
 /// What executing a [`DmPlan`] costs, per second of data.
@@ -48,7 +48,7 @@ impl DmPlan {
             fast += kernel.stage1_adds_per_sample() as f64 * overlap * per_s / tree_ds;
             fast += kernel.stage2_adds_per_sample() as f64 * per_s / ds;
             fast += n_chan * (tree_ds - 1.0) / tree_ds * per_s;
-            scratch = scratch.max(stage1_len(&kernel) as f64 * 4.0);
+            scratch = scratch.max((stage1_len(&kernel) * size_of::<Bf16>()) as f64);
             output += step.dms.len() as f64 * per_s / ds * 4.0;
         }
         PlanCost {

