@@ -3,7 +3,7 @@
 
 mod common;
 
-use burstbook::search::{FileResult, SearchConfig, search_source};
+use burstbook::search::{FileResult, SearchConfig, Workspace, search_source, search_source_in};
 use burstbook::simulate::{Burst, expected_snr};
 use burstbook::{Candidate, Verdict};
 use common::{K_HANDBOOK_S_MHZ2, add, burst, gaussian_noise, header, noise, source};
@@ -301,5 +301,36 @@ fn short_and_empty_recordings_yield_no_candidates() {
         assert!(r.candidates.is_empty(), "n={n}");
         let searchable = n.saturating_sub(r.layout.max_delay as u64);
         assert_eq!(r.samples_searched, searchable, "n={n}");
+    }
+}
+
+// A workspace carries buffers, not state: recordings searched one after another
+// through one workspace (two of one shape, one of another shape in between, and a
+// reference-kernel search that leaves the fast kernel's buffers alone) give exactly
+// what fresh searches give.
+#[test]
+fn a_reused_workspace_changes_no_result() {
+    let c = config();
+    let mut reference = config();
+    reference.kernel = burstbook::dedisperse::Kernel::Reference;
+    let recording = |n_chan: usize, n: u64, seed: u64, dm: f64| {
+        let h = header(n_chan, n, TSAMP);
+        let mut data = noise(&h, seed);
+        add(&h, &mut data, &burst(&h, 2.5, dm, 4e-3, 30.0));
+        (h, data)
+    };
+    let runs = [
+        (recording(N_CHAN, 9_000, 21, 120.0), &c),
+        (recording(N_CHAN, 6_000, 22, 240.0), &c),
+        (recording(N_CHAN / 2, 7_000, 23, 60.0), &c),
+        (recording(N_CHAN, 5_000, 24, 200.0), &reference),
+        (recording(N_CHAN, 9_000, 21, 120.0), &c),
+    ];
+    let mut workspace = Workspace::default();
+    for ((h, data), config) in runs {
+        let fresh = search_source(source(h.clone(), data.clone()), "r", config, None).unwrap();
+        let reused = search_source_in(&mut workspace, source(h, data), "r", config, None).unwrap();
+        assert!(!fresh.candidates.is_empty());
+        assert_eq!(reused, fresh);
     }
 }

@@ -120,6 +120,8 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     };
     let config_hash = config.hash();
     let mut files = Vec::new();
+    // Recordings of one shape reuse one set of buffers.
+    let mut workspace = search::Workspace::default();
     for path in &args.files {
         let started_utc = burstbook::catalogue::now_utc();
         let source = burstbook::obs::open(path)?;
@@ -148,7 +150,7 @@ pub fn run(args: Args) -> anyhow::Result<()> {
             continue;
         }
         let bar = burstbook::progress::bar(source.header().n_samples, &label);
-        let result = search::search_source(source, &label, &config, Some(&bar))?;
+        let result = search::search_source_in(&mut workspace, source, &label, &config, Some(&bar))?;
         bar.finish_and_clear();
         if let (Some(cat), Some(obs)) = (catalogue.as_mut(), &record) {
             // One transaction per file: a killed search keeps every file finished so far.

@@ -46,12 +46,19 @@ pub(super) struct Appended {
 
 impl ChannelBlock {
     /// An empty block of `n_chan` channels and at most `capacity` rows, whose
-    /// impulse clipping spares nothing (see [`ChannelBlock::with_probe`]).
-    pub(super) fn new(n_chan: usize, capacity: usize) -> Self {
+    /// impulse clipping spares nothing (see [`ChannelBlock::with_probe`]). It lives in
+    /// `buffer` (from [`ChannelBlock::into_buffer`]) when that has the block's size,
+    /// so its memory is not faulted in again; rows past the block's length are never
+    /// read, so the old values need no clearing.
+    pub(super) fn new(buffer: Vec<f32>, n_chan: usize, capacity: usize) -> Self {
+        let data = match buffer.len() == n_chan * capacity {
+            true => buffer,
+            false => vec![0.0; n_chan * capacity],
+        };
         ChannelBlock {
             n_chan,
             capacity,
-            data: vec![0.0; n_chan * capacity],
+            data,
             len: 0,
             start_sample: 0,
             new_mask: vec![false; n_chan],
@@ -64,6 +71,11 @@ impl ChannelBlock {
     /// dispersed pulses.
     pub(super) fn with_probe(self, probe: DispersionProbe) -> Self {
         ChannelBlock { probe, ..self }
+    }
+
+    /// The block's memory, for [`ChannelBlock::new`].
+    pub(super) fn into_buffer(self) -> Vec<f32> {
+        self.data
     }
 
     /// Rows in the block.
@@ -251,7 +263,7 @@ mod tests {
             100.0 * c as f32 + drift + Normal::new(0.0, sd).unwrap().sample(&mut rng)
         });
         raw.column_mut(3).fill(7.0); // constant: masked
-        let mut block = ChannelBlock::new(5, n_time);
+        let mut block = ChannelBlock::new(Vec::new(), 5, n_time);
         let mask = [false, false, false, false, true];
         block.append(raw.view(), 0, 0, &mask, &quiet_config(), 2000);
         assert_eq!(block.mask(), &[false, false, false, true, true]);
@@ -283,12 +295,12 @@ mod tests {
         let config = quiet_config();
         let mask = vec![false; n_chan];
         let alone = |raw: &Array2<f32>| {
-            let mut b = ChannelBlock::new(n_chan, raw.nrows());
+            let mut b = ChannelBlock::new(Vec::new(), n_chan, raw.nrows());
             b.append(raw.view(), 0, 0, &mask, &config, 500);
             b.view().to_owned()
         };
         let (first_alone, second_alone) = (alone(&first), alone(&second));
-        let mut block = ChannelBlock::new(n_chan, 3100);
+        let mut block = ChannelBlock::new(Vec::new(), n_chan, 3100);
         block.append(first.view(), 0, 0, &mask, &config, 500);
         block.append(second.view(), 3000, 1000, &mask, &config, 500);
         assert_eq!(block.start_sample(), 2000);
@@ -304,7 +316,7 @@ mod tests {
         let noise = Normal::new(0.0, 1.0).unwrap();
         let mut piece = |n: usize| Array2::from_shape_fn((n, 4), |_| noise.sample(&mut rng));
         let config = quiet_config();
-        let mut block = ChannelBlock::new(4, 2000);
+        let mut block = ChannelBlock::new(Vec::new(), 4, 2000);
         block.append(
             piece(1000).view(),
             0,
@@ -336,7 +348,7 @@ mod tests {
             ..CleanConfig::default()
         };
         let mask = vec![false; n_chan];
-        let mut block = ChannelBlock::new(n_chan, 6000);
+        let mut block = ChannelBlock::new(Vec::new(), n_chan, 6000);
         let first = block.append(calm.view(), 0, 0, &mask, &config, 500);
         assert_eq!(first.masked_fraction, 0.0);
         let kept_before = block.view().slice(s![9, 2000..]).to_owned();
@@ -356,7 +368,7 @@ mod tests {
         let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(21);
         let (n_chan, m, kept) = (TRANSPOSE_CHANNELS + 13, 3 * TRANSPOSE_TIMES + 5, 7);
         let raw = Array2::from_shape_fn((m, n_chan), |_| rng.random::<f32>());
-        let mut block = ChannelBlock::new(n_chan, kept + m + 2);
+        let mut block = ChannelBlock::new(Vec::new(), n_chan, kept + m + 2);
         block.len = kept;
         block.transpose_in(raw.view());
         for c in 0..n_chan {

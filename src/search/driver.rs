@@ -76,12 +76,42 @@ pub fn search_source(
     config: &SearchConfig,
     progress: Option<&ProgressBar>,
 ) -> Result<FileResult> {
+    let mut workspace = Workspace::default();
+    let result = search_source_in(&mut workspace, source, label, config, progress);
+    // Unmapping the kernel's and the block's gigabytes takes a noticeable fraction of
+    // a second; it need not delay the result.
+    std::thread::spawn(move || drop(workspace));
+    result
+}
+
+/// The buffers of a search, kept from one recording to the next by
+/// [`search_source_in`]: a search of many recordings of one shape (channels,
+/// sampling, plan) faults its gigabytes of memory in once instead of once per file.
+#[derive(Default)]
+pub struct Workspace {
+    fast: Option<FastDedisperser>,
+    channels: Vec<f32>,
+}
+
+/// [`search_source`] with the buffers of `workspace`, left there for the next search.
+/// The result does not depend on what the workspace held.
+///
+/// # Errors
+/// As [`search_source`].
+pub fn search_source_in(
+    workspace: &mut Workspace,
+    source: Box<dyn SampleSource>,
+    label: &str,
+    config: &SearchConfig,
+    progress: Option<&ProgressBar>,
+) -> Result<FileResult> {
     config.validate()?;
     let header = source.header().clone();
     header.validate().map_err(|m| Error::bad_input(label, m))?;
     let mut searcher = Searcher::new(header, config, label)?;
     if config.kernel == Kernel::Fast {
-        searcher.fast = Some(FastDedisperser::new(&searcher.plan));
+        let kept = workspace.fast.take().filter(|k| k.plan() == &searcher.plan);
+        searcher.fast = Some(kept.unwrap_or_else(|| FastDedisperser::new(&searcher.plan)));
     }
     let g = searcher.layout.clone();
     let n_samples = searcher.header.n_samples;
@@ -94,7 +124,8 @@ pub fn search_source(
         + searcher.plan.max_dm() * searcher.sweep.top_s_per_dm;
     let h = &searcher.header;
     let probe = DispersionProbe::new(&h.freqs_mhz, h.tsamp_s);
-    let mut channels = ChannelBlock::new(h.n_chan(), g.block_len).with_probe(probe);
+    let buffer = std::mem::take(&mut workspace.channels);
+    let mut channels = ChannelBlock::new(buffer, h.n_chan(), g.block_len).with_probe(probe);
     std::thread::scope(|scope| -> Result<()> {
         let advance = g.block_len - g.overlap;
         let (reads, recycle) = prefetch(scope, source, g.block_len, advance);
@@ -128,10 +159,8 @@ pub fn search_source(
         }
         Ok(())
     })?;
-    // Unmapping the kernel's and the block's gigabytes takes a noticeable fraction of
-    // a second; it need not delay the result.
-    let buffers = (searcher.fast.take(), channels);
-    std::thread::spawn(move || drop(buffers));
+    workspace.fast = searcher.fast.take().or(workspace.fast.take());
+    workspace.channels = channels.into_buffer();
     Ok(searcher.finish(totals))
 }
 

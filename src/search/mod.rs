@@ -20,5 +20,7 @@ pub mod trials;
 
 pub use blocks::BlockLayout;
 pub use config::{ClusterConfig, SearchConfig, TriageConfig};
-pub use driver::{FileResult, block_layout, search_file, search_source};
+pub use driver::{
+    FileResult, Workspace, block_layout, search_file, search_source, search_source_in,
+};
 pub use trials::TrialCount;
