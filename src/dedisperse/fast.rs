@@ -8,8 +8,8 @@
 //! Stage-1 rows are stored as bfloat16 (8 significant bits): half the bytes written
 //! by stage 1 and read by stage 2, the kernel's largest memory stream. Each stored
 //! value is off by at most 2⁻⁸ of itself; for noise-dominated rows that adds about
-//! 10⁻⁵ of the series variance, and it moves a bright pulse's sum by ≲ 0.1 %
-//! (independent errors over the sub-bands).
+//! 5 × 10⁻⁶ of the series variance, and it moves a bright pulse's sum by ≲ 0.1 %
+//! (independent errors over the sub-bands; docs/dedisperse.md).
 //!
 //! Hot loops run over equal-length slices so they vectorise, and never allocate:
 //! scratch buffers live in the [`FastDedisperser`] or per rayon worker.
@@ -448,9 +448,9 @@ impl TopTile {
     }
 }
 
-/// The top level of one tile, merged row by row straight into the stage-1 buffer (a
-/// row never leaves L1 before it is stored: the level as a whole would not fit in
-/// L2); compiled for AVX2 when the CPU has it.
+/// The top level of one tile, merged row by row into one L1-resident row and stored
+/// from there, per phase and as bfloat16, into the stage-1 buffer (the level as a
+/// whole would not fit in L2); compiled for AVX2 when the CPU has it.
 fn top_level(
     merges: &[Merge],
     src: &impl Below,
