@@ -404,9 +404,10 @@ fn cost_scratch_is_the_stage1_buffer() {
     assert_eq!(fast.stage1.len(), reserved);
 }
 
-// Rounding to bfloat16 against the `half` crate's conversion (round to nearest, ties
-// to even) on random finite values of every magnitude, and the relative error bound
-// the kernel's tests rely on.
+// Rounding to bfloat16 against a general-purpose library's conversion (the `half`
+// crate, version 2.7.1 in Cargo.lock; round to nearest, ties to even) on random
+// finite values of every magnitude, and the relative error bound the kernel's tests
+// rely on.
 #[test]
 fn bf16_rounding_matches_the_half_crate() {
     let mut rng = ChaCha8Rng::seed_from_u64(16);
