@@ -136,6 +136,11 @@ impl FastDedisperser {
                 coarse_ds = 1;
             }
             while coarse_ds < kernel.tree_ds {
+                // The first halving is the largest: it goes to whichever buffer is
+                // larger, so that no later block reallocates (and faults in) one.
+                if coarse_ds == 1 && self.halved.capacity() < self.coarse.capacity() {
+                    std::mem::swap(&mut self.coarse, &mut self.halved);
+                }
                 let (src, stride) = match coarse_ds {
                     1 => (input, row_stride),
                     ds => (&self.coarse[..], n_time / ds),

@@ -389,6 +389,33 @@ fn strided_rows_equal_the_contiguous_block() {
     assert_eq!(kernel.dedisperse_rows(&rows, n_time, row_stride), expected);
 }
 
+// Blocks after the first reuse the halving buffers: with three halvings (steps down
+// to ×16) the first halving of a block must not land in the smaller buffer, which
+// would be reallocated, and faulted in afresh, for every block.
+#[test]
+fn later_blocks_reuse_the_halving_buffers() {
+    let mut rng = ChaCha8Rng::seed_from_u64(78);
+    let (freqs, bw) = band(16, 1200.0, 1600.0, false);
+    let mut plan = awkward_plan(freqs, bw, 1e-3, 11.0, 400.0);
+    plan.steps.push(DmStep {
+        dms: vec![420.0, 450.0],
+        downsample: 16,
+    });
+    let input = noise(16, plan.max_delay_samples() + 640, &mut rng);
+    let mut kernel = FastDedisperser::new(&plan);
+    let buffers = |k: &FastDedisperser| {
+        let mut p = [k.coarse.as_ptr(), k.halved.as_ptr()];
+        p.sort();
+        p
+    };
+    let first = kernel.dedisperse(input.view());
+    let after_first = buffers(&kernel);
+    kernel.recycle(first);
+    let second = kernel.dedisperse(input.view());
+    assert_eq!(buffers(&kernel), after_first);
+    assert_eq!(second, dedisperse_fast(&input, &plan));
+}
+
 // The cost model's scratch is the kernel's own stage-1 buffer, which the first block
 // never needs to grow.
 #[test]
