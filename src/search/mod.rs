@@ -16,6 +16,7 @@ mod features;
 pub mod fluence;
 pub mod normalise;
 pub mod output;
+mod transpose;
 pub mod trials;
 
 pub use blocks::BlockLayout;
