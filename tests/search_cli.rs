@@ -87,6 +87,19 @@ fn finds_the_burst_in_both_containers_and_writes_csv_and_json() {
         String::from_utf8_lossy(&o.stderr)
     );
     assert!(stdout.contains("astrophysical"), "{stdout}");
+    // Each file's throughput, as data seconds per wall-clock second.
+    for file in [&native, &fits] {
+        let line = stdout
+            .lines()
+            .find(|l| l.starts_with(file.to_str().unwrap()) && l.contains(" searched "))
+            .unwrap_or_else(|| panic!("no timing line for {}: {stdout}", file.display()));
+        let rate: f64 = line
+            .rsplit_once('(')
+            .and_then(|(_, r)| r.strip_suffix("x real time)"))
+            .and_then(|r| r.parse().ok())
+            .unwrap_or_else(|| panic!("unreadable timing line {line}"));
+        assert!(rate > 0.0, "{line}");
+    }
 
     let mut reader = csv::Reader::from_path(out.join("candidates.csv")).unwrap();
     let headers = reader.headers().unwrap().clone();

@@ -150,8 +150,10 @@ pub fn run(args: Args) -> anyhow::Result<()> {
             continue;
         }
         let bar = burstbook::progress::bar(source.header().n_samples, &label);
+        let clock = std::time::Instant::now();
         let result = search::search_source_in(&mut workspace, source, &label, &config, Some(&bar))?;
         bar.finish_and_clear();
+        let wall_s = clock.elapsed().as_secs_f64();
         if let (Some(cat), Some(obs)) = (catalogue.as_mut(), &record) {
             // One transaction per file: a killed search keeps every file finished so far.
             let outcome = cat.record_file_result(obs, &result, &config, started_utc)?;
@@ -166,6 +168,11 @@ pub fn run(args: Args) -> anyhow::Result<()> {
                 ),
             }
         }
+        println!(
+            "{label}: searched {:.1} s of data in {wall_s:.1} s ({:.1}x real time)",
+            result.header.duration_s(),
+            result.header.duration_s() / wall_s.max(1e-9)
+        );
         files.push(FileOutcome::Searched(Box::new(result)));
     }
     let csv = args.out.join("candidates.csv");
