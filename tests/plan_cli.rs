@@ -80,3 +80,30 @@ fn text_plan_and_bad_input() {
     assert!(!out.status.success());
     assert!(String::from_utf8_lossy(&out.stderr).contains("give an observation file"));
 }
+
+// Without flags, `plan` shows the plan `search` would use: the same DM range and
+// tolerance as a search configuration with no `[plan]` table.
+#[test]
+fn defaults_are_the_search_defaults() {
+    let defaults = burstbook::search::SearchConfig::default().plan;
+    let out = plan(&[&SURVEY[..], &["--json"]].concat());
+    assert!(out.status.success());
+    let report: serde_json::Value = serde_json::from_slice(&out.stdout).expect("JSON");
+    let steps = report["plan"]["steps"].as_array().unwrap();
+    let dms: Vec<f64> = steps
+        .iter()
+        .flat_map(|s| {
+            s["dms"]
+                .as_array()
+                .unwrap()
+                .iter()
+                .map(|d| d.as_f64().unwrap())
+        })
+        .collect();
+    assert_eq!(dms.first().copied(), Some(defaults.dm_min));
+    assert_eq!(dms.last().copied(), Some(defaults.dm_max));
+    let (freqs_mhz, chan_bw_mhz) = burstbook::dedisperse::channel_centres_mhz(1200.0, 1600.0, 1024);
+    let planned =
+        burstbook::dedisperse::DmPlan::build(&freqs_mhz, chan_bw_mhz, 64e-6, &defaults).unwrap();
+    assert_eq!(report["n_trials"].as_u64(), Some(planned.n_trials() as u64));
+}

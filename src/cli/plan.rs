@@ -41,23 +41,23 @@ pub struct Args {
     #[arg(long, requires = "freq_lo_mhz")]
     pub tsamp_us: Option<f64>,
     /// Lowest trial DM in pc cm⁻³.
-    #[arg(long, default_value_t = 0.0)]
+    #[arg(long, default_value_t = PlanRequest::default().dm_min)]
     pub dm_min: f64,
-    /// Highest trial DM in pc cm⁻³.
-    #[arg(long, default_value_t = 1000.0)]
+    /// Highest trial DM in pc cm⁻³ (the search's default).
+    #[arg(long, default_value_t = PlanRequest::default().dm_max)]
     pub dm_max: f64,
     /// Allowed growth of the effective width from one trial to the next (> 1).
-    #[arg(long, default_value_t = 1.25)]
+    #[arg(long, default_value_t = PlanRequest::default().tolerance)]
     pub tolerance: f64,
     /// Narrowest intrinsic burst width searched, in ms.
     #[arg(long, default_value_t = 0.0)]
     pub min_width_ms: f64,
     /// Largest time-resolution reduction (a power of two).
-    #[arg(long, default_value_t = 64)]
+    #[arg(long, default_value_t = PlanRequest::default().max_downsample)]
     pub max_downsample: usize,
     /// Largest fraction of the channel smearing one downsampled sample may span
     /// (1 = coarsest and cheapest).
-    #[arg(long, default_value_t = 0.5)]
+    #[arg(long, default_value_t = PlanRequest::default().smearing_fraction)]
     pub smearing_fraction: f64,
     /// Print the plan, its summary and cost as JSON.
     #[arg(long)]
