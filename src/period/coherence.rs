@@ -103,7 +103,15 @@ pub fn z2n_scan_fap(z: f64, n: usize, band_hz: f64, var_t_s2: f64) -> f64 {
     let nf = n as f64;
     let lambda = 4.0 * PI * PI * var_t_s2 * (nf + 1.0) * (2.0 * nf + 1.0) / 6.0;
     let tau = band_hz * (2.0 * lambda * z / PI).sqrt() * chi2(2 * n).pdf(z);
-    (1.0 - (1.0 - p1) * (-tau).exp()).clamp(0.0, 1.0)
+    fap_with_upcrossings(p1, tau)
+}
+
+/// 1 − (1 − p₁)·e^{−τ}: chance that the level is reached at the band's start
+/// (probability `p1`) or crossed upwards within it (Poisson with mean `tau`), written
+/// as (1 − e^{−τ}) + p₁·e^{−τ} so that tiny values keep their digits instead of
+/// cancelling to 0.
+pub fn fap_with_upcrossings(p1: f64, tau: f64) -> f64 {
+    (-(-tau).exp_m1() + p1 * (-tau).exp()).clamp(0.0, 1.0)
 }
 
 /// False-alarm probability of the largest H found by scanning a band `band_hz` wide.
@@ -189,6 +197,21 @@ mod tests {
             (frac - 0.01).abs() < 3.0 * (0.01f64 * 0.99 / sets as f64).sqrt(),
             "{frac}"
         );
+    }
+
+    #[test]
+    fn scan_fap_keeps_tiny_values() {
+        // A strong pulsar's Z²ₙ: the scan FAP is tiny but not below the single-trial
+        // probability (it was computed as 1 − (1 − p₁)e^{−τ} and cancelled to 0).
+        for (z, n) in [(60.0, 1), (300.0, 4), (983.38, 20)] {
+            let p = z2n_p_single(z, n);
+            let fap = z2n_scan_fap(z, n, 2.0e3, 4.3e6);
+            assert!(
+                p > 0.0 && fap >= p && fap < 1e-3,
+                "z {z}: p {p:e}, FAP {fap:e}"
+            );
+        }
+        assert_eq!(fap_with_upcrossings(1e-200, 3e-200), 4e-200);
     }
 
     #[test]

@@ -7,6 +7,8 @@ use std::f64::consts::PI;
 
 use statrs::function::gamma::ln_gamma;
 
+use super::coherence::fap_with_upcrossings;
+
 /// Power at each of `freqs` for samples `y` ± `dy` at times `t` (frequency in inverse
 /// time units of `t`). Powers lie in [0, 1]; a degenerate frequency gives 0.
 ///
@@ -83,8 +85,7 @@ pub fn fap_baluev(z: f64, f_max: f64, t: &[f64], dy: &[f64]) -> f64 {
     let w = f_max * (4.0 * PI * weighted_var(t, dy)).sqrt();
     let tau =
         baluev_gamma(n - 1.0) * w * (1.0 - z).powf(0.5 * (n - 4.0)) * (0.5 * (n - 1.0) * z).sqrt();
-    let p1 = fap_single(z, t.len());
-    (-(-tau).exp_m1() + p1 * (-tau).exp()).clamp(0.0, 1.0)
+    fap_with_upcrossings(fap_single(z, t.len()), tau)
 }
 
 #[cfg(test)]

@@ -7,7 +7,7 @@ use anyhow::Context;
 use burstbook::period::activity::{ActivityConfig, ActivityResult, search_activity};
 use burstbook::progress;
 
-use super::{BurstInputs, create, print_json};
+use super::{BurstInputs, Probability, create, print_json};
 
 #[derive(clap::Args, Debug)]
 pub struct Args {
@@ -102,16 +102,22 @@ fn print_activity(r: &ActivityResult) {
         r.period_days, r.period_err_days, r.epoch_mjd
     );
     println!(
-        "  folded χ² = {:.2} ({} dof, single-trial p = {:.2e}); Monte Carlo FAP = {:.4} ({} sets, real exposure)",
-        r.fold.chi2, r.fold.dof, r.chi2_p_single, r.fap, r.config.sims
+        "  folded χ² = {:.2} ({} dof, single-trial p = {}); Monte Carlo FAP = {:.4} ({} sets, real exposure)",
+        r.fold.chi2,
+        r.fold.dof,
+        Probability(r.chi2_p_single, 2),
+        r.fap,
+        r.config.sims
     );
     println!(
         "  all bursts within {:.3} of a cycle (centre phase {:.3}); half within {:.3}; window FAP = {:.4}",
         r.window_fraction, r.centre_phase, r.half_window_fraction, r.window_fap
     );
     println!(
-        "  Lomb–Scargle of session rates: best {:.4} d, power {:.3}, Baluev FAP {:.2e}",
-        r.ls_period_days, r.ls_power, r.ls_fap
+        "  Lomb–Scargle of session rates: best {:.4} d, power {:.3}, Baluev FAP {}",
+        r.ls_period_days,
+        r.ls_power,
+        Probability(r.ls_fap, 2)
     );
     println!(
         "{:>5} {:>8} {:>10} {:>9}",

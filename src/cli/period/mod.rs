@@ -13,6 +13,19 @@ use burstbook::catalogue::Catalogue;
 use burstbook::period::from_catalogue::SourceArrivals;
 use burstbook::period::times::{ArrivalTimes, Exposure, read_arrival_csv, read_exposure_csv};
 
+/// A probability in e-notation with `.1` digits; below 1e-300, where the tail
+/// functions underflow to 0, as "<1e-300" rather than a false exact zero.
+pub(crate) struct Probability(pub f64, pub usize);
+
+impl std::fmt::Display for Probability {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self.0 {
+            p if p < 1e-300 => f.pad("<1e-300"),
+            p => f.pad(&format!("{p:.*e}", self.1)),
+        }
+    }
+}
+
 /// Arguments of `period`.
 #[derive(clap::Args, Debug)]
 pub struct Args {

@@ -8,7 +8,7 @@ use burstbook::period::rotation::{RotationConfig, RotationResult, search_rotatio
 use burstbook::period::times::{ArrivalTimes, read_arrival_csv};
 use burstbook::progress;
 
-use super::{SourceInput, create, print_json};
+use super::{Probability, SourceInput, create, print_json};
 
 #[derive(clap::Args, Debug)]
 pub struct Args {
@@ -83,12 +83,16 @@ pub fn run(a: Args) -> anyhow::Result<()> {
             a.pdot, h.n_toas
         );
         println!(
-            "  Z²_{} = {:.3}   chance p = {:.3e}",
-            h.harmonics, h.z2n, h.z2n_p
+            "  Z²_{} = {:.3}   chance p = {}",
+            h.harmonics,
+            h.z2n,
+            Probability(h.z2n_p, 3)
         );
         println!(
-            "  H = {:.3} (m = {})   chance p = exp(-0.4 H) = {:.3e}",
-            h.h.h, h.h.harmonics, h.h_p
+            "  H = {:.3} (m = {})   chance p = exp(-0.4 H) = {}",
+            h.h.h,
+            h.h.harmonics,
+            Probability(h.h_p, 3)
         );
         if let Some(t) = &h.timing {
             println!(
@@ -137,22 +141,24 @@ fn print_rotation(r: &RotationResult, toas: &ArrivalTimes) {
     );
     for (i, c) in r.candidates.iter().enumerate().take(10) {
         println!(
-            "{:>3} {:>16.10} {:>9.2} {:>10.2e} {:>10.2e} {:>8.2} {:>3} {:>10.2e}{}",
+            "{:>3} {:>16.10} {:>9.2} {:>10} {:>10} {:>8.2} {:>3} {:>10}{}",
             i,
             c.period_s,
             c.z2n,
-            c.z2n_p_single,
-            c.z2n_fap,
+            Probability(c.z2n_p_single, 2),
+            Probability(c.z2n_fap, 2),
             c.h.h,
             c.h.harmonics,
-            c.h_fap,
+            Probability(c.h_fap, 2),
             if i == r.best { "  <- chosen" } else { "" }
         );
     }
     println!("  * H FAP is a union bound; optimistic for small N (see docs/period.md).");
     println!(
-        "Best period: {:.12} ± {:.2e} s   FAP = {:.3e}",
-        r.period_s, r.period_err_s, r.fap
+        "Best period: {:.12} ± {:.2e} s   FAP = {}",
+        r.period_s,
+        r.period_err_s,
+        Probability(r.fap, 3)
     );
     if let Some(t) = &r.timing {
         println!(

@@ -9,7 +9,7 @@ use burstbook::period::powerlaw::fit_power_law;
 use burstbook::period::times::read_number_csv;
 use burstbook::period::waiting::waiting_time_stats;
 
-use super::{BurstInputs, print_json};
+use super::{BurstInputs, Probability, print_json};
 
 #[derive(clap::Args, Debug)]
 pub struct Args {
@@ -74,8 +74,9 @@ pub fn run(a: Args) -> anyhow::Result<()> {
         w.k, w.k_err, w.rate_per_day, w.rate_err_per_day, w.log_likelihood
     );
     println!(
-        "  likelihood ratio {:.2}: chance under Poisson p = {:.3e} (k < 1 means clustering)",
-        waiting.likelihood_ratio, waiting.poisson_p
+        "  likelihood ratio {:.2}: chance under Poisson p = {} (k < 1 means clustering)",
+        waiting.likelihood_ratio,
+        Probability(waiting.poisson_p, 3)
     );
     println!(
         "Power law of {values_from}: dN/dS ∝ S^-α above S_min = {:.4} ({}; {} values): α = {:.3} ± {:.3} \
