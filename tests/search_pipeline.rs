@@ -3,6 +3,7 @@
 
 mod common;
 
+use burstbook::dedisperse::Kernel;
 use burstbook::search::{FileResult, SearchConfig, Workspace, search_source, search_source_in};
 use burstbook::simulate::{Burst, expected_snr};
 use burstbook::{Candidate, Verdict};
@@ -282,13 +283,53 @@ fn fast_and_reference_kernels_agree() {
     ];
     let mut c = config();
     let fast = run(n, 11, &bursts, &c);
-    c.kernel = burstbook::dedisperse::Kernel::Reference;
+    c.kernel = Kernel::Reference;
     let reference = run(n, 11, &bursts, &c);
     assert_eq!(fast.candidates.len(), bursts.len());
     assert_eq!(reference.candidates.len(), bursts.len());
     for (f, r) in fast.candidates.iter().zip(&reference.candidates) {
         assert!((f.snr / r.snr - 1.0).abs() < 0.1, "{} vs {}", f.snr, r.snr);
         assert!((f.dm - r.dm).abs() < 10.0 && (f.t_inf_s - r.t_inf_s).abs() < 0.02);
+    }
+}
+
+// The file's last block has no successor, so each plan step runs to the last sample
+// its own highest DM can dedisperse: a low-DM burst that arrives after the plan's
+// largest sweep from the end is still found, by both kernels, with its usual S/N.
+// (Each block otherwise stops every step where the highest trial DM stops, and
+// before this a burst here went unsearched.)
+#[test]
+fn low_dm_bursts_near_the_end_of_a_file_are_found() {
+    let n = 8_000;
+    let h = header(N_CHAN, n, TSAMP);
+    let mut c = config();
+    c.plan.dm_max = 1000.0;
+    let plan =
+        burstbook::dedisperse::DmPlan::build(&h.freqs_mhz, h.chan_bw_mhz, TSAMP, &c.plan).unwrap();
+    let (d_all, d_low) = (plan.max_delay_samples(), plan.step_delay_samples(0));
+    assert!(
+        plan.steps.len() > 1 && d_low + 200 < d_all,
+        "{d_low} vs {d_all}"
+    );
+    // Arrival at the top channel half-way between the two limits, at a low DM.
+    let dm = 0.5 * plan.steps[0].dms.last().unwrap();
+    let t_top_s = (n as usize - (d_all + d_low) / 2) as f64 * TSAMP;
+    let t_inf_s = t_top_s - K_HANDBOOK_S_MHZ2 * dm / 1600f64.powi(2);
+    let bursts = [burst(&h, t_inf_s, dm, 4e-3, 20.0)];
+    let expected = expected_snr(&h, &bursts[0]);
+    for kernel in [Kernel::Fast, Kernel::Reference] {
+        c.kernel = kernel;
+        let r = run(n, 17, &bursts, &c);
+        let found = near(&r, t_inf_s);
+        assert_eq!(found.len(), 1, "{kernel:?}: {:#?}", r.candidates);
+        let f = found[0];
+        assert!(
+            f.snr > 0.85 * expected - 2.0 && (f.dm - dm).abs() < 0.1 * dm,
+            "{kernel:?}: S/N {} (expected {expected}), DM {} (true {dm})",
+            f.snr,
+            f.dm
+        );
+        assert_eq!(f.verdict, Verdict::Astrophysical, "{:?}", f.reasons);
     }
 }
 

@@ -19,7 +19,7 @@ use rayon::prelude::*;
 
 use super::subband::{StepKernel, SubBand};
 use super::tree::Merge;
-use super::{Dedispersed, DmPlan};
+use super::{Dedispersed, DmPlan, Extent};
 
 /// Output samples per chunk as a multiple of the step's longest path, so that the
 /// chunk overlap costs stage 1 at most 25 % extra work.
@@ -65,17 +65,19 @@ struct TileScratch {
 impl FastDedisperser {
     /// Plans sub-bands, trees and delays for every step of `plan`.
     pub fn new(plan: &DmPlan) -> Self {
-        let max_delay = plan.max_delay_samples();
+        // Each step's paths are capped at its own largest delay, so that with
+        // `Extent::PerStep` no output reads past the block.
         let steps = plan
             .steps
             .iter()
-            .map(|s| {
+            .enumerate()
+            .map(|(i, s)| {
                 StepKernel::new(
                     &plan.freqs_mhz,
                     &s.dms,
                     plan.tsamp_s,
                     s.downsample,
-                    max_delay,
+                    plan.step_delay_samples(i),
                 )
             })
             .collect::<Vec<StepKernel>>();
@@ -98,7 +100,8 @@ impl FastDedisperser {
         &self.plan
     }
 
-    /// Dedisperses `input` (`[channel, time]`, conventions of [`super`]) for every step.
+    /// Dedisperses `input` (`[channel, time]`, conventions of [`super`]) for every step,
+    /// every step to the common end ([`Extent::Common`]).
     ///
     /// # Panics
     /// If `input` has a different channel count from the plan (a caller bug).
@@ -106,12 +109,13 @@ impl FastDedisperser {
         let n_time = input.ncols();
         let input = input.as_standard_layout();
         let rows = input.as_slice().expect("standard layout is contiguous");
-        self.dedisperse_rows(rows, n_time, n_time)
+        self.dedisperse_rows(rows, n_time, n_time, Extent::Common)
     }
 
     /// [`FastDedisperser::dedisperse`] for channels stored `row_stride` values apart:
-    /// channel c's `n_time` samples are `rows[c·row_stride..][..n_time]`. A block held
-    /// in a larger buffer is thus read in place.
+    /// channel c's `n_time` samples are `rows[c·row_stride..][..n_time]` (a block held
+    /// in a larger buffer is thus read in place), each step's output running as far
+    /// as `extent` says.
     ///
     /// # Panics
     /// If `rows` does not hold the plan's channels so laid out (a caller bug).
@@ -120,6 +124,7 @@ impl FastDedisperser {
         rows: &[f32],
         n_time: usize,
         row_stride: usize,
+        extent: Extent,
     ) -> Vec<Dedispersed> {
         let n_chan = self.plan.freqs_mhz.len();
         assert!(
@@ -128,7 +133,6 @@ impl FastDedisperser {
             "input rows disagree with the plan's channels"
         );
         let input = rows;
-        let valid = n_time.saturating_sub(self.plan.max_delay_samples());
         let mut out = Vec::with_capacity(self.steps.len());
         let mut coarse_ds = 1;
         for (step, kernel) in self.plan.steps.iter().zip(&self.steps) {
@@ -153,7 +157,7 @@ impl FastDedisperser {
                 1 => (input, n_time, row_stride),
                 ds => (&self.coarse, n_time / ds, n_time / ds),
             };
-            let n_out = valid / step.downsample;
+            let n_out = self.plan.valid_samples(out.len(), n_time, extent);
             let mut data = self
                 .spare
                 .get_mut(out.len())
@@ -646,8 +650,8 @@ fn from_bf16(h: Bf16) -> f32 {
 }
 
 /// `row` = `chan[start..]`, zero past the end of the block. Paths never reach past
-/// the block (their length is capped at the plan's largest delay), so the zero tail a
-/// chunk's last tile may carry is never summed into a valid output.
+/// the block (their length is capped at their step's largest delay), so the zero tail
+/// a chunk's last tile may carry is never summed into a valid output.
 fn copy_from(chan: &[f32], start: usize, row: &mut [f32]) {
     let avail = chan.get(start..).unwrap_or(&[]);
     let n = avail.len().min(row.len());

@@ -109,6 +109,7 @@ fn fast_kernel_matches_its_paths_and_tracks_the_reference() {
         (97, false, 2100),
     ];
     let (mut sq, mut n, mut worst) = (0.0, 0usize, 0.0f64);
+    let mut further = 0;
     for (n_chan, ascending, extra) in cases {
         let (freqs, bw) = band(n_chan, 1200.0, 1600.0, ascending);
         let tsamp = 1e-3;
@@ -119,45 +120,65 @@ fn fast_kernel_matches_its_paths_and_tracks_the_reference() {
             input.row_mut(n_chan / 3).fill(0.0);
         }
         let mut fast = FastDedisperser::new(&plan);
-        let got = fast.dedisperse(input.view());
-        let want = reference::dedisperse(input.view(), &plan);
-        let f_top = freqs.iter().copied().fold(f64::MIN, f64::max);
-        for (s, (g, w)) in got.iter().zip(&want).enumerate() {
-            assert_eq!(
-                (&g.dms, g.downsample, g.n_time),
-                (&w.dms, w.downsample, w.n_time)
-            );
-            let tree_ds = tree_downsample(g.downsample);
-            for (k, &dm) in g.dms.iter().enumerate() {
-                let delays = fast.steps[s].path_delays(k, n_chan);
-                for (c, &d) in delays.iter().enumerate() {
-                    let ideal = delay_between_s(dm, freqs[c], f_top) / (tsamp * tree_ds as f64);
-                    let e = d as f64 - ideal;
-                    (sq, n, worst) = (sq + e * e, n + 1, worst.max(e.abs()));
-                }
-                let per_out = g.downsample / tree_ds;
-                let along = sum_along(&input, &delays, tree_ds, per_out, g.n_time);
-                let magnitudes =
-                    sum_along(&input.mapv(f32::abs), &delays, tree_ds, per_out, g.n_time);
-                let scale = ((n_chan * g.downsample) as f32).sqrt();
-                for (t, ((&a, &b), &m)) in g.row(k).iter().zip(&along).zip(&magnitudes).enumerate()
-                {
-                    assert!(
-                        (a - b).abs() <= bf16_bound(m) + 1e-4 * scale,
-                        "{n_chan} ch DM {dm} t {t}: {a} vs {b}"
-                    );
-                }
-                if n_chan > 4 && g.n_time > 20 {
-                    let r = correlation(g.row(k), w.row(k));
-                    assert!(
-                        r > 0.4,
-                        "{n_chan} ch, DM {dm}, ds {}: correlation {r}",
-                        g.downsample
-                    );
+        // Both extents: with `PerStep` the lower steps run further, to the end of
+        // the input along their own paths (`sum_along` would panic past it).
+        for extent in [Extent::Common, Extent::PerStep] {
+            let rows = input.as_slice().expect("contiguous");
+            let got = fast.dedisperse_rows(rows, n_time, n_time, extent);
+            let want = reference::dedisperse_over(input.view(), &plan, extent);
+            let shorter = plan.step_delay_samples(0) + plan.steps[0].downsample;
+            if extent == Extent::PerStep && shorter <= plan.max_delay_samples() {
+                let common = plan.valid_samples(0, n_time, Extent::Common);
+                assert!(
+                    got[0].n_time > common,
+                    "{n_chan} ch: the first step runs further"
+                );
+                further += 1;
+            }
+            let f_top = freqs.iter().copied().fold(f64::MIN, f64::max);
+            for (s, (g, w)) in got.iter().zip(&want).enumerate() {
+                assert_eq!(
+                    (&g.dms, g.downsample, g.n_time),
+                    (&w.dms, w.downsample, w.n_time)
+                );
+                assert_eq!(g.n_time, plan.valid_samples(s, n_time, extent));
+                let tree_ds = tree_downsample(g.downsample);
+                for (k, &dm) in g.dms.iter().enumerate() {
+                    let delays = fast.steps[s].path_delays(k, n_chan);
+                    for (c, &d) in delays.iter().enumerate() {
+                        let ideal = delay_between_s(dm, freqs[c], f_top) / (tsamp * tree_ds as f64);
+                        let e = d as f64 - ideal;
+                        (sq, n, worst) = (sq + e * e, n + 1, worst.max(e.abs()));
+                    }
+                    let per_out = g.downsample / tree_ds;
+                    let along = sum_along(&input, &delays, tree_ds, per_out, g.n_time);
+                    let magnitudes =
+                        sum_along(&input.mapv(f32::abs), &delays, tree_ds, per_out, g.n_time);
+                    let scale = ((n_chan * g.downsample) as f32).sqrt();
+                    for (t, ((&a, &b), &m)) in
+                        g.row(k).iter().zip(&along).zip(&magnitudes).enumerate()
+                    {
+                        assert!(
+                            (a - b).abs() <= bf16_bound(m) + 1e-4 * scale,
+                            "{n_chan} ch DM {dm} t {t}: {a} vs {b}"
+                        );
+                    }
+                    if n_chan > 4 && g.n_time > 20 {
+                        let r = correlation(g.row(k), w.row(k));
+                        assert!(
+                            r > 0.4,
+                            "{n_chan} ch, DM {dm}, ds {}: correlation {r}",
+                            g.downsample
+                        );
+                    }
                 }
             }
         }
     }
+    assert!(
+        further >= 4,
+        "only {further} cases test the longer first step"
+    );
     let rms = (sq / n as f64).sqrt();
     assert!(
         rms <= 0.6 && worst <= 2.5,
@@ -383,10 +404,13 @@ fn strided_rows_equal_the_contiguous_block() {
     }
     let expected = dedisperse_fast(&input, &plan);
     let mut kernel = FastDedisperser::new(&plan);
-    let first = kernel.dedisperse_rows(&rows, n_time, row_stride);
+    let first = kernel.dedisperse_rows(&rows, n_time, row_stride, Extent::Common);
     assert_eq!(first, expected);
     kernel.recycle(first);
-    assert_eq!(kernel.dedisperse_rows(&rows, n_time, row_stride), expected);
+    assert_eq!(
+        kernel.dedisperse_rows(&rows, n_time, row_stride, Extent::Common),
+        expected
+    );
 }
 
 // Blocks after the first reuse the halving buffers: with three halvings (steps down

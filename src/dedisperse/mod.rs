@@ -9,7 +9,11 @@
 //!   input at `t * downsample + delay_c(dm_d)` after summing `downsample` adjacent
 //!   samples, i.e. time is the arrival at the top channel, in downsampled samples
 //!   from the block start;
-//! - every step yields `(n_time - plan.max_delay_samples()) / downsample` valid samples.
+//! - a step yields the output samples whose sweep lies inside the input:
+//!   `(n_time - plan.max_delay_samples()) / downsample` for every step with
+//!   [`Extent::Common`] (a block that another follows), or with [`Extent::PerStep`]
+//!   `(n_time - plan.step_delay_samples(step)) / downsample`, so that low-DM steps
+//!   reach the end of a file's last block ([`DmPlan::valid_samples`]).
 //!
 //! Kernels: [`reference`](mod@reference) (per-channel shifts, the plain check) and
 //! [`FastDedisperser`]: merge trees inside 64-channel sub-bands (after the FDMT,
@@ -34,6 +38,15 @@ pub use plan::{DmPlan, DmStep, PlanRequest, boxcar_strides};
 pub use summary::{PlanReport, StepSummary, channel_centres_mhz};
 
 use ndarray::ArrayView2;
+
+/// How far each step's output runs (see the conventions above).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Extent {
+    /// Every step up to the last sample the plan's highest DM can reach.
+    Common,
+    /// Each step up to the last sample its own highest DM can reach.
+    PerStep,
+}
 
 /// Which dedispersion kernel to run.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default, serde::Serialize, serde::Deserialize)]

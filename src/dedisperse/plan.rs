@@ -2,7 +2,7 @@
 
 use serde::{Deserialize, Serialize};
 
-use super::channel_delays;
+use super::{Extent, channel_delays};
 use crate::error::{Error, Result};
 use crate::units::{DISPERSION_CONSTANT_S_MHZ2, channel_smearing_s};
 
@@ -182,7 +182,26 @@ impl DmPlan {
     /// Largest channel delay in input samples over all trials: the rows a block must
     /// carry beyond its last valid output sample.
     pub fn max_delay_samples(&self) -> usize {
-        channel_delays(&self.freqs_mhz, self.max_dm(), self.tsamp_s)
+        self.delay_samples(self.max_dm())
+    }
+
+    /// Largest channel delay in input samples over the trials of step `step`.
+    pub fn step_delay_samples(&self, step: usize) -> usize {
+        let dm = self.steps[step].dms.iter().copied().fold(0.0, f64::max);
+        self.delay_samples(dm)
+    }
+
+    /// Valid output samples of step `step` for a block of `n_time` input samples.
+    pub fn valid_samples(&self, step: usize, n_time: usize, extent: Extent) -> usize {
+        let delay = match extent {
+            Extent::Common => self.max_delay_samples(),
+            Extent::PerStep => self.step_delay_samples(step),
+        };
+        n_time.saturating_sub(delay) / self.steps[step].downsample
+    }
+
+    fn delay_samples(&self, dm: f64) -> usize {
+        channel_delays(&self.freqs_mhz, dm, self.tsamp_s)
             .into_iter()
             .max()
             .unwrap_or(0)

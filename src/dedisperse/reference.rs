@@ -3,25 +3,38 @@
 
 use ndarray::ArrayView2;
 
-use super::{Dedispersed, DmPlan, channel_delays};
+use super::{Dedispersed, DmPlan, Extent, channel_delays};
 
-/// Dedisperses `input` (`[channel, time]`) for every step of `plan`.
+/// Dedisperses `input` (`[channel, time]`) for every step of `plan`, every step to
+/// the common end ([`Extent::Common`]).
 ///
 /// # Panics
 /// If `input` has a different channel count from the plan (a caller bug).
 pub fn dedisperse(input: ArrayView2<'_, f32>, plan: &DmPlan) -> Vec<Dedispersed> {
+    dedisperse_over(input, plan, Extent::Common)
+}
+
+/// [`dedisperse`] with each step's output running as far as `extent` says.
+///
+/// # Panics
+/// As [`dedisperse`].
+pub fn dedisperse_over(
+    input: ArrayView2<'_, f32>,
+    plan: &DmPlan,
+    extent: Extent,
+) -> Vec<Dedispersed> {
     let (n_chan, n_time) = input.dim();
     assert_eq!(
         n_chan,
         plan.freqs_mhz.len(),
         "input channels disagree with the plan"
     );
-    let valid = n_time.saturating_sub(plan.max_delay_samples());
     plan.steps
         .iter()
-        .map(|step| {
+        .enumerate()
+        .map(|(i, step)| {
             let ds = step.downsample;
-            let n_out = valid / ds;
+            let n_out = plan.valid_samples(i, n_time, extent);
             let mut data = vec![0.0f32; step.dms.len() * n_out];
             for (d, &dm) in step.dms.iter().enumerate() {
                 let delays = channel_delays(&plan.freqs_mhz, dm, plan.tsamp_s);

@@ -21,7 +21,7 @@ use super::trials::{self, TrialCount};
 use crate::candidate::Candidate;
 use crate::clean::{self, impulse::DispersionProbe, user_mask::static_mask};
 use crate::cluster::{Cluster, Detection, Sweep, friends_of_friends, merge_dispersion_tails};
-use crate::dedisperse::{self, DmPlan, FastDedisperser, Kernel};
+use crate::dedisperse::{self, DmPlan, Extent, FastDedisperser, Kernel};
 use crate::error::{Error, Result};
 use crate::obs::{Header, SampleSource};
 use crate::triage;
@@ -282,12 +282,19 @@ impl<'a> Searcher<'a> {
         let (norm, mask) = (channels.view(), channels.mask());
         let n_chan = mask.len();
         let n_masked = mask.iter().filter(|&&m| m).count();
+        // No block follows the last one: each step runs to the last sample its own
+        // highest DM reaches, so low DMs are searched to the end of the file.
+        let extent = if last {
+            Extent::PerStep
+        } else {
+            Extent::Common
+        };
         let mut outs = match &mut self.fast {
             Some(kernel) => {
                 let (rows, stride) = channels.rows();
-                kernel.dedisperse_rows(rows, n_time, stride)
+                kernel.dedisperse_rows(rows, n_time, stride, extent)
             }
-            None => dedisperse::reference::dedisperse(norm, &self.plan),
+            None => dedisperse::reference::dedisperse_over(norm, &self.plan, extent),
         };
         let (own_lo, own_hi) = g.owned_range(start, n_time, first, last);
         // Boxcar starts tested, relative to the block start (see the module docs).
