@@ -334,15 +334,31 @@ fn low_dm_bursts_near_the_end_of_a_file_are_found() {
 }
 
 // Recordings shorter than one dispersion sweep, or empty, are searched without error
-// (nothing can be found in them).
+// (nothing can be found in them); those shorter than the highest DM's sweep are
+// searched at the lower DMs whose sweep fits.
 #[test]
 fn short_and_empty_recordings_yield_no_candidates() {
-    for n in [0u64, 1, 50, 400] {
+    let mut partly = 0;
+    for n in [0u64, 1, 50, 250, 400] {
         let r = run(n, 13, &[], &config());
         assert!(r.candidates.is_empty(), "n={n}");
         let searchable = n.saturating_sub(r.layout.max_delay as u64);
         assert_eq!(r.samples_searched, searchable, "n={n}");
+        let reached = r.highest_dm_searched();
+        if n as usize > r.layout.max_delay {
+            assert_eq!(reached, Some(r.plan.max_dm()), "n={n}");
+        } else {
+            assert!(
+                reached.is_none_or(|dm| dm < r.plan.max_dm()),
+                "n={n}: {reached:?}"
+            );
+            partly += usize::from(reached.is_some());
+        }
     }
+    assert!(
+        partly > 0,
+        "no recording was searched at its lower DMs only"
+    );
 }
 
 // A workspace carries buffers, not state: recordings searched one after another

@@ -205,6 +205,18 @@ fn print_summary(files: &[FileOutcome], top: usize) {
             count(Verdict::Unsure),
             count(Verdict::Rfi),
         );
+        let max_dm = r.plan.max_dm();
+        match r.highest_dm_searched() {
+            Some(dm) if dm >= max_dm => {}
+            Some(dm) => println!(
+                "  note: {} is shorter than the sweep at DM {max_dm:.0}: searched only up to DM {dm:.1}",
+                r.file
+            ),
+            None => println!(
+                "  note: {} is shorter than every trial's sweep: nothing was searched",
+                r.file
+            ),
+        }
     }
     let mut all: Vec<_> = files.iter().flat_map(FileOutcome::candidates).collect();
     all.sort_by(|a, b| b.snr.total_cmp(&a.snr));

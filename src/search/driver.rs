@@ -52,6 +52,19 @@ pub struct FileResult {
     pub layout: BlockLayout,
 }
 
+impl FileResult {
+    /// The highest trial DM (pc cm⁻³) searched anywhere in the recording: below the
+    /// plan's highest when the recording is shorter than that DM's sweep. `None` if
+    /// the recording is too short for any trial.
+    pub fn highest_dm_searched(&self) -> Option<f64> {
+        let n = usize::try_from(self.header.n_samples).unwrap_or(usize::MAX);
+        (0..self.plan.steps.len())
+            .filter(|&i| self.plan.valid_samples(i, n, Extent::PerStep) > 0)
+            .filter_map(|i| self.plan.steps[i].dms.iter().copied().reduce(f64::max))
+            .reduce(f64::max)
+    }
+}
+
 /// Searches the recording at `path` (any format [`crate::obs::open`] reads).
 ///
 /// # Errors
