@@ -87,6 +87,9 @@ timed() { # $1 = label, rest = command; prints wall seconds and peak RSS
   echo "$wall $rss"
 }
 
+# Machines of one kind differ: print what this one is, so results can be compared.
+echo "cpu: $(awk -F': ' '/model name/ {print $2; exit}' /proc/cpuinfo)," \
+  "$(awk -F': ' '/cpu MHz/ {print $2; exit}' /proc/cpuinfo) MHz"
 echo "load average before: $(cut -d' ' -f1-3 /proc/loadavg); cores: $(nproc)"
 evict_then_read "$work/long.npy"
 read -r wall rss < <(timed full $bin search "$work/long.json" --out "$work/out-full" \
