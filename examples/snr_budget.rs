@@ -99,6 +99,7 @@ fn paired(outs: &[dedisperse::Dedispersed], both: bool) -> Vec<dedisperse::Dedis
                     dms: s.dms.clone(),
                     downsample: s.downsample * phases,
                     n_time,
+                    row_lens: vec![n_time; s.dms.len()],
                     data,
                 }
             })

@@ -293,11 +293,11 @@ fn fast_and_reference_kernels_agree() {
     }
 }
 
-// The file's last block has no successor, so each plan step runs to the last sample
-// its own highest DM can dedisperse: a low-DM burst that arrives after the plan's
-// largest sweep from the end is still found, by both kernels, with its usual S/N.
-// (Each block otherwise stops every step where the highest trial DM stops, and
-// before this a burst here went unsearched.)
+// The file's last block has no successor, so each trial runs to the last sample its
+// own delays can dedisperse: a low-DM burst that arrives after the sweep of its plan
+// step's highest DM (and so after the plan's highest) from the end is still found,
+// by both kernels, with its usual S/N. (Each block otherwise stops every trial where
+// the highest trial DM stops; before, a burst here went unsearched.)
 #[test]
 fn low_dm_bursts_near_the_end_of_a_file_are_found() {
     let n = 8_000;
@@ -306,14 +306,14 @@ fn low_dm_bursts_near_the_end_of_a_file_are_found() {
     c.plan.dm_max = 1000.0;
     let plan =
         burstbook::dedisperse::DmPlan::build(&h.freqs_mhz, h.chan_bw_mhz, TSAMP, &c.plan).unwrap();
-    let (d_all, d_low) = (plan.max_delay_samples(), plan.step_delay_samples(0));
-    assert!(
-        plan.steps.len() > 1 && d_low + 200 < d_all,
-        "{d_low} vs {d_all}"
-    );
-    // Arrival at the top channel half-way between the two limits, at a low DM.
     let dm = 0.5 * plan.steps[0].dms.last().unwrap();
-    let t_top_s = (n as usize - (d_all + d_low) / 2) as f64 * TSAMP;
+    let (own, step) = (plan.delay_samples(dm), plan.step_delay_samples(0));
+    assert!(
+        own + 40 < step && step < plan.max_delay_samples(),
+        "{own} vs {step}"
+    );
+    // Arrival at the top channel half-way between the burst's own limit and its step's.
+    let t_top_s = (n as usize - (own + step) / 2) as f64 * TSAMP;
     let t_inf_s = t_top_s - K_HANDBOOK_S_MHZ2 * dm / 1600f64.powi(2);
     let bursts = [burst(&h, t_inf_s, dm, 4e-3, 20.0)];
     let expected = expected_snr(&h, &bursts[0]);

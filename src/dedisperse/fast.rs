@@ -19,7 +19,7 @@ use rayon::prelude::*;
 
 use super::subband::{StepKernel, SubBand};
 use super::tree::Merge;
-use super::{Dedispersed, DmPlan, Extent};
+use super::{Dedispersed, DmPlan, DmStep, Extent};
 
 /// Output samples per chunk as a multiple of the step's longest path, so that the
 /// chunk overlap costs stage 1 at most 25 % extra work.
@@ -65,8 +65,8 @@ struct TileScratch {
 impl FastDedisperser {
     /// Plans sub-bands, trees and delays for every step of `plan`.
     pub fn new(plan: &DmPlan) -> Self {
-        // Each step's paths are capped at its own largest delay, so that with
-        // `Extent::PerStep` no output reads past the block.
+        // Each step's paths are capped at its own largest delay, as the reference's
+        // are by rounding: no step reaches further than its highest DM.
         let steps = plan
             .steps
             .iter()
@@ -157,7 +157,8 @@ impl FastDedisperser {
                 1 => (input, n_time, row_stride),
                 ds => (&self.coarse, n_time / ds, n_time / ds),
             };
-            let n_out = self.plan.valid_samples(out.len(), n_time, extent);
+            let row_lens = row_lens(&self.plan, step, kernel, n_time, extent);
+            let n_out = row_lens.iter().copied().max().unwrap_or(0);
             let mut data = self
                 .spare
                 .get_mut(out.len())
@@ -191,6 +192,7 @@ impl FastDedisperser {
                 dms: step.dms.clone(),
                 downsample: step.downsample,
                 n_time: n_out,
+                row_lens,
                 data,
             });
         }
@@ -203,6 +205,32 @@ impl FastDedisperser {
     /// used, so that the next block reuses its memory.
     pub fn recycle(&mut self, outs: Vec<Dedispersed>) {
         self.spare = outs.into_iter().map(|o| o.data).collect();
+    }
+}
+
+/// Valid output samples of each trial of `step` for a block of `n_time` input
+/// samples. Per trial, the outputs whose path stays in the block: output `t` reads
+/// tree samples up to `per_out·(t + 1) + path − 1`, and the block holds
+/// `n_time / tree_ds` of them.
+fn row_lens(
+    plan: &DmPlan,
+    step: &DmStep,
+    kernel: &StepKernel,
+    n_time: usize,
+    extent: Extent,
+) -> Vec<usize> {
+    match extent {
+        Extent::Common => {
+            vec![plan.valid_samples(0.0, step.downsample, n_time, extent); step.dms.len()]
+        }
+        Extent::PerTrial => {
+            let tree_len = n_time / kernel.tree_ds;
+            kernel
+                .trial_paths
+                .iter()
+                .map(|&path| tree_len.saturating_sub(path) / kernel.per_out)
+                .collect()
+        }
     }
 }
 

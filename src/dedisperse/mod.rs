@@ -9,11 +9,12 @@
 //!   input at `t * downsample + delay_c(dm_d)` after summing `downsample` adjacent
 //!   samples, i.e. time is the arrival at the top channel, in downsampled samples
 //!   from the block start;
-//! - a step yields the output samples whose sweep lies inside the input:
-//!   `(n_time - plan.max_delay_samples()) / downsample` for every step with
-//!   [`Extent::Common`] (a block that another follows), or with [`Extent::PerStep`]
-//!   `(n_time - plan.step_delay_samples(step)) / downsample`, so that low-DM steps
-//!   reach the end of a file's last block ([`DmPlan::valid_samples`]).
+//! - a trial yields the output samples whose sweep lies inside the input: with
+//!   [`Extent::Common`] (a block that another follows) every trial the
+//!   `(n_time - plan.max_delay_samples()) / downsample` that the plan's highest DM
+//!   allows; with [`Extent::PerTrial`] each trial as many as its own delays allow, so
+//!   that low DMs reach the end of a file's last block. [`Dedispersed::row`] is a
+//!   trial's valid samples; rows are stored `n_time` apart.
 //!
 //! Kernels: [`reference`](mod@reference) (per-channel shifts, the plain check) and
 //! [`FastDedisperser`]: merge trees inside 64-channel sub-bands (after the FDMT,
@@ -39,13 +40,13 @@ pub use summary::{PlanReport, StepSummary, channel_centres_mhz};
 
 use ndarray::ArrayView2;
 
-/// How far each step's output runs (see the conventions above).
+/// How far each trial's output runs (see the conventions above).
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum Extent {
-    /// Every step up to the last sample the plan's highest DM can reach.
+    /// Every trial up to the last sample the plan's highest DM can reach.
     Common,
-    /// Each step up to the last sample its own highest DM can reach.
-    PerStep,
+    /// Each trial up to the last sample its own delays reach.
+    PerTrial,
 }
 
 /// Which dedispersion kernel to run.
@@ -79,16 +80,18 @@ pub struct Dedispersed {
     pub dms: Vec<f64>,
     /// Input samples summed into each output sample.
     pub downsample: usize,
-    /// Samples per row.
+    /// Samples stored per row: the longest row.
     pub n_time: usize,
-    /// Series, `[dm, time]` row-major.
+    /// Valid samples of each row (≤ `n_time`; all equal with [`Extent::Common`]).
+    pub row_lens: Vec<usize>,
+    /// Series, `[dm, time]` row-major; past a row's length, values mean nothing.
     pub data: Vec<f32>,
 }
 
 impl Dedispersed {
-    /// Row `d` (the series at `dms[d]`).
+    /// Row `d`: the valid samples of the series at `dms[d]`.
     pub fn row(&self, d: usize) -> &[f32] {
-        &self.data[d * self.n_time..(d + 1) * self.n_time]
+        &self.data[d * self.n_time..][..self.row_lens[d]]
     }
 }
 

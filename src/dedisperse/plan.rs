@@ -185,26 +185,33 @@ impl DmPlan {
         self.delay_samples(self.max_dm())
     }
 
-    /// Largest channel delay in input samples over the trials of step `step`.
-    pub fn step_delay_samples(&self, step: usize) -> usize {
-        let dm = self.steps[step].dms.iter().copied().fold(0.0, f64::max);
-        self.delay_samples(dm)
-    }
-
-    /// Valid output samples of step `step` for a block of `n_time` input samples.
-    pub fn valid_samples(&self, step: usize, n_time: usize, extent: Extent) -> usize {
+    /// Valid output samples of a trial at `dm` with `downsample`, for a block of
+    /// `n_time` input samples, with exactly rounded delays (the reference kernel's).
+    pub fn valid_samples(
+        &self,
+        dm: f64,
+        downsample: usize,
+        n_time: usize,
+        extent: Extent,
+    ) -> usize {
         let delay = match extent {
             Extent::Common => self.max_delay_samples(),
-            Extent::PerStep => self.step_delay_samples(step),
+            Extent::PerTrial => self.delay_samples(dm),
         };
-        n_time.saturating_sub(delay) / self.steps[step].downsample
+        n_time.saturating_sub(delay) / downsample
     }
 
-    fn delay_samples(&self, dm: f64) -> usize {
+    /// Largest channel delay in input samples at `dm`.
+    pub fn delay_samples(&self, dm: f64) -> usize {
         channel_delays(&self.freqs_mhz, dm, self.tsamp_s)
             .into_iter()
             .max()
             .unwrap_or(0)
+    }
+
+    /// Largest channel delay in input samples over the trials of step `step`.
+    pub fn step_delay_samples(&self, step: usize) -> usize {
+        self.delay_samples(self.steps[step].dms.iter().copied().fold(0.0, f64::max))
     }
 }
 

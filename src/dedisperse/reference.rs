@@ -31,14 +31,18 @@ pub fn dedisperse_over(
     );
     plan.steps
         .iter()
-        .enumerate()
-        .map(|(i, step)| {
+        .map(|step| {
             let ds = step.downsample;
-            let n_out = plan.valid_samples(i, n_time, extent);
+            let row_lens: Vec<usize> = step
+                .dms
+                .iter()
+                .map(|&dm| plan.valid_samples(dm, ds, n_time, extent))
+                .collect();
+            let n_out = row_lens.iter().copied().max().unwrap_or(0);
             let mut data = vec![0.0f32; step.dms.len() * n_out];
             for (d, &dm) in step.dms.iter().enumerate() {
                 let delays = channel_delays(&plan.freqs_mhz, dm, plan.tsamp_s);
-                let row = &mut data[d * n_out..(d + 1) * n_out];
+                let row = &mut data[d * n_out..][..row_lens[d]];
                 for (c, &delay) in delays.iter().enumerate() {
                     let chan = input.row(c);
                     for (t, out) in row.iter_mut().enumerate() {
@@ -51,6 +55,7 @@ pub fn dedisperse_over(
                 dms: step.dms.clone(),
                 downsample: ds,
                 n_time: n_out,
+                row_lens,
                 data,
             }
         })

@@ -39,6 +39,8 @@ pub(crate) struct StepKernel {
     pub offsets: Vec<usize>,
     /// Largest total path over all trials, tree samples.
     pub max_path: usize,
+    /// Each trial's longest path (its largest channel delay), tree samples.
+    pub trial_paths: Vec<usize>,
 }
 
 impl StepKernel {
@@ -80,17 +82,18 @@ impl StepKernel {
         let n_sub = subbands.len();
         let mut rows = Vec::with_capacity(dms.len() * n_sub);
         let mut offsets = Vec::with_capacity(dms.len() * n_sub);
-        let mut max_path = 0;
-        for k in 0..dms.len() {
+        let mut trial_paths = vec![0; dms.len()];
+        for (k, trial_path) in trial_paths.iter_mut().enumerate() {
             for (s, sub) in subbands.iter_mut().enumerate() {
                 let (row, internal, fitted) = sub.tree.top_row(k);
                 let offset = fitted.min(longest.saturating_sub(internal));
                 sub.max_offset = sub.max_offset.max(offset);
-                max_path = max_path.max(offset + internal);
+                *trial_path = (*trial_path).max(offset + internal);
                 rows.push(row_base[s] + row);
                 offsets.push(offset);
             }
         }
+        let max_path = trial_paths.iter().copied().max().unwrap_or(0);
         StepKernel {
             tree_ds,
             per_out: downsample / tree_ds,
@@ -98,6 +101,7 @@ impl StepKernel {
             rows,
             offsets,
             max_path,
+            trial_paths,
         }
     }
 

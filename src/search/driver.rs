@@ -58,9 +58,12 @@ impl FileResult {
     /// the recording is too short for any trial.
     pub fn highest_dm_searched(&self) -> Option<f64> {
         let n = usize::try_from(self.header.n_samples).unwrap_or(usize::MAX);
-        (0..self.plan.steps.len())
-            .filter(|&i| self.plan.valid_samples(i, n, Extent::PerStep) > 0)
-            .filter_map(|i| self.plan.steps[i].dms.iter().copied().reduce(f64::max))
+        let plan = &self.plan;
+        plan.steps
+            .iter()
+            .flat_map(|s| s.dms.iter().map(move |&dm| (dm, s.downsample)))
+            .filter(|&(dm, ds)| plan.valid_samples(dm, ds, n, Extent::PerTrial) > 0)
+            .map(|(dm, _)| dm)
             .reduce(f64::max)
     }
 }
@@ -295,10 +298,10 @@ impl<'a> Searcher<'a> {
         let (norm, mask) = (channels.view(), channels.mask());
         let n_chan = mask.len();
         let n_masked = mask.iter().filter(|&&m| m).count();
-        // No block follows the last one: each step runs to the last sample its own
-        // highest DM reaches, so low DMs are searched to the end of the file.
+        // No block follows the last one: each trial runs to the last sample its own
+        // delays reach, so low DMs are searched to the end of the file.
         let extent = if last {
-            Extent::PerStep
+            Extent::PerTrial
         } else {
             Extent::Common
         };
@@ -371,6 +374,8 @@ impl<'a> Searcher<'a> {
             let found: Vec<Detection> = step
                 .data
                 .par_chunks(n)
+                .zip(&step.row_lens)
+                .map(|(row, &len)| &row[..len])
                 .enumerate()
                 .map_init(
                     || (Scratch::default(), Vec::new()),

@@ -98,9 +98,9 @@ impl<'a> NormalisedSeries<'a> {
                 rows: out
                     .data
                     .chunks_mut(out.n_time.max(1))
-                    .take(out.dms.len())
-                    .map(|row| LazyRow {
-                        raw: Mutex::new(Some(row)),
+                    .zip(&out.row_lens)
+                    .map(|(row, &len)| LazyRow {
+                        raw: Mutex::new(Some(&mut row[..len])),
                         normalised: OnceLock::new(),
                     })
                     .collect(),
@@ -154,6 +154,7 @@ mod tests {
             dms: vec![10.0, 20.0, 30.0],
             downsample,
             n_time: n,
+            row_lens: vec![n; 3],
             data: (0..3).flat_map(|k| raw(n, k)).collect(),
         };
         let mut outs = vec![step(1, 4000), step(4, 1000)];
