@@ -29,18 +29,16 @@ fn demo_sets_give_json_with_the_promised_fields() {
             .status
             .success()
     );
+    let rotation = [
+        "period",
+        "rotation",
+        "--min-period-s",
+        "0.3",
+        "--max-period-s",
+        "0.6",
+    ];
     let r = json(&burstbook(
-        &[
-            "period",
-            "rotation",
-            "--min-period-s",
-            "0.3",
-            "--max-period-s",
-            "0.6",
-            "--json",
-            "--periodogram-out",
-            "pg.csv",
-        ],
+        &[&rotation[..], &["--json", "--periodogram-out", "pg.csv"]].concat(),
         d,
     ));
     let p = r["period_s"].as_f64().unwrap();
@@ -55,17 +53,7 @@ fn demo_sets_give_json_with_the_promised_fields() {
     assert!(pg.starts_with("freq_hz,period_s,z2n\n") && pg.lines().count() > 100);
 
     // In the table, probabilities below the floating-point range read "<1e-300".
-    let text = burstbook(
-        &[
-            "period",
-            "rotation",
-            "--min-period-s",
-            "0.3",
-            "--max-period-s",
-            "0.6",
-        ],
-        d,
-    );
+    let text = burstbook(&rotation, d);
     let text = String::from_utf8_lossy(&text.stdout);
     let chosen = text
         .lines()
