@@ -187,6 +187,7 @@ impl DmPlan {
 
     /// Valid output samples of a trial at `dm` with `downsample`, for a block of
     /// `n_time` input samples, with exactly rounded delays (the reference kernel's).
+    /// With [`Extent::Common`] every trial gets the same, whatever its `dm`.
     pub fn valid_samples(
         &self,
         dm: f64,
