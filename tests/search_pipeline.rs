@@ -353,6 +353,14 @@ fn short_and_empty_recordings_yield_no_candidates() {
                 "n={n}: {reached:?}"
             );
             partly += usize::from(reached.is_some());
+            // What was searched counts as trials, though no sample was searched at
+            // every DM.
+            assert_eq!(
+                reached.is_some(),
+                r.trials.effective_trials > 0.0,
+                "n={n}: {:?}",
+                r.trials
+            );
         }
     }
     assert!(

@@ -62,7 +62,10 @@ pub(super) struct BlockOutcome {
     pub(super) candidates: Vec<Candidate>,
     pub(super) masked_fraction: f64,
     pub(super) n_detections: usize,
+    /// Owned input samples searched at every trial DM.
     pub(super) samples_searched: u64,
+    /// Per plan step, owned input samples searched, averaged over the step's trials.
+    pub(super) step_samples: Vec<f64>,
     /// Rows not shared with the previous block.
     pub(super) new_samples: u64,
 }
@@ -75,6 +78,7 @@ pub(super) struct Totals {
     pub(super) n_blocks: usize,
     pub(super) n_detections: usize,
     pub(super) samples_searched: u64,
+    pub(super) step_samples: Vec<f64>,
 }
 
 impl Totals {
@@ -114,6 +118,12 @@ impl Totals {
         self.n_blocks += 1;
         self.n_detections += o.n_detections;
         self.samples_searched += o.samples_searched;
+        if self.step_samples.len() < o.step_samples.len() {
+            self.step_samples.resize(o.step_samples.len(), 0.0);
+        }
+        for (total, n) in self.step_samples.iter_mut().zip(o.step_samples) {
+            *total += n;
+        }
     }
 }
 

@@ -338,15 +338,33 @@ impl<'a> Searcher<'a> {
             .map(|c| self.judge(&data, &c, used_bw))
             .collect();
         drop(series);
+        // Owned input samples searched up to sample `end` of the block.
+        let searched = |end: usize| {
+            (start + end as u64)
+                .min(own_hi)
+                .saturating_sub(own_lo.max(start))
+        };
+        // Per step, the mean over its trials: in the last block low DMs reach further.
+        let step_samples = outs
+            .iter()
+            .map(|o| {
+                let total: u64 = o
+                    .row_lens
+                    .iter()
+                    .map(|&len| searched(len * o.downsample))
+                    .sum();
+                total as f64 / o.row_lens.len().max(1) as f64
+            })
+            .collect();
         if let Some(kernel) = &mut self.fast {
             kernel.recycle(outs);
         }
-        let searched_hi = (start + n_time.saturating_sub(g.max_delay) as u64).min(own_hi);
         BlockOutcome {
             candidates,
             masked_fraction: appended.masked_fraction,
             n_detections: detections.len(),
-            samples_searched: searched_hi.saturating_sub(own_lo.max(start)),
+            samples_searched: searched(n_time.saturating_sub(g.max_delay)),
+            step_samples,
             new_samples: appended.new_samples,
         }
     }
@@ -470,7 +488,7 @@ impl<'a> Searcher<'a> {
             &self.plan,
             &self.widths,
             &self.strides,
-            totals.samples_searched,
+            &totals.step_samples,
             h.bandwidth_mhz(),
             0.5 * (h.freq_lo_mhz() + h.freq_hi_mhz()),
             self.config.snr_threshold,

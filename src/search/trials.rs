@@ -87,21 +87,24 @@ pub fn upcrossing_rate(s: f64, w: usize) -> f64 {
     gaussian_tail(s) - joint_tail(s, rho)
 }
 
-/// Counts trials for `n_samples` searched input samples of a plan whose step `i`
-/// searched the boxcar widths `widths[i]` (in that step's downsampled samples), each
-/// at every `strides[i][j]`-th trial.
+/// Counts trials of a plan whose step `i` searched `step_samples[i]` input samples
+/// per trial (missing: none) with the boxcar widths `widths[i]` (in that step's
+/// downsampled samples), each at every `strides[i][j]`-th trial.
 pub fn count(
     plan: &DmPlan,
     widths: &[Vec<usize>],
     strides: &[Vec<usize>],
-    n_samples: u64,
+    step_samples: &[f64],
     bandwidth_mhz: f64,
     centre_mhz: f64,
     threshold: f64,
 ) -> TrialCount {
     let half = cm03_half_zeta();
     let mut terms = Vec::new();
-    for ((step, step_widths), step_strides) in plan.steps.iter().zip(widths).zip(strides) {
+    for (i, ((step, step_widths), step_strides)) in
+        plan.steps.iter().zip(widths).zip(strides).enumerate()
+    {
+        let n_samples = step_samples.get(i).copied().unwrap_or(0.0);
         let span = step.dms.last().unwrap_or(&0.0) - step.dms.first().unwrap_or(&0.0);
         for (&w, &stride) in step_widths.iter().zip(step_strides) {
             let dm_trials = step.dms.len().div_ceil(stride.max(1));
@@ -110,7 +113,7 @@ pub fn count(
             let dm_half = half / cm03_zeta(1.0, bandwidth_mhz, width_ms, centre_mhz / 1e3);
             terms.push(TrialTerm {
                 width: w,
-                starts: n_samples as f64 / step.downsample as f64,
+                starts: n_samples / step.downsample as f64,
                 dm_trials,
                 independent_dms: (span / dm_half + 1.0).min(dm_trials as f64),
             });
@@ -164,7 +167,7 @@ mod tests {
             &plan,
             &[vec![1, 4]],
             &[vec![1, 1]],
-            1000,
+            &[1000.0],
             400.0,
             1400.0,
             5.0,
