@@ -13,8 +13,9 @@ use burstbook::catalogue::Catalogue;
 use burstbook::period::from_catalogue::SourceArrivals;
 use burstbook::period::times::{ArrivalTimes, Exposure, read_arrival_csv, read_exposure_csv};
 
-/// A probability in e-notation with `.1` digits; below 1e-300, where the tail
-/// functions underflow to 0, as "<1e-300" rather than a false exact zero.
+/// A probability (`.0`) in e-notation with `.1` digits after the point; below
+/// 1e-300, where the tail functions underflow to 0, as "<1e-300" rather than a false
+/// exact zero.
 pub(crate) struct Probability(pub f64, pub usize);
 
 impl std::fmt::Display for Probability {
