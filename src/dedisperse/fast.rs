@@ -1,7 +1,8 @@
 //! The fast kernel. Per plan step and time chunk:
 //! 1. stage 1: inside each sub-band of 64 adjacent channels, the
 //!    merge tree of [`super::tree`] over short time tiles, so a sub-band's levels stay
-//!    in cache; in parallel over sub-bands;
+//!    in cache, in 16-bit fixed point ([`super::fixed`]: half the bytes of f32, and
+//!    the levels are bound by memory traffic); in parallel over sub-bands;
 //! 2. stage 2: for each trial DM, the sum of one stage-1 row per sub-band at that
 //!    sub-band's own rounded delay; in parallel over blocks of trials.
 //!
@@ -17,6 +18,7 @@
 use ndarray::ArrayView2;
 use rayon::prelude::*;
 
+use super::fixed::{Quantum, quantise_tile};
 use super::subband::{StepKernel, SubBand};
 use super::tree::Merge;
 use super::{Dedispersed, DmPlan, DmStep, Extent};
@@ -27,7 +29,7 @@ const CHUNK_PER_PATH: usize = 4;
 /// Smallest chunk, tree samples.
 const MIN_CHUNK: usize = 2048;
 /// Stage-1 time tile, tree samples (a multiple of every `per_out`): a sub-band's tree
-/// levels stay in L2/L3.
+/// levels stay in L2/L3. With 16-bit levels 1024 and 4096 were no faster (measured).
 const STAGE1_TILE: usize = 2048;
 /// Stage-2 work unit: trials per task, and time tile in output samples.
 const STAGE2_DMS: usize = 16;
@@ -53,13 +55,14 @@ pub struct FastDedisperser {
     spare: Vec<Vec<f32>>,
 }
 
-/// Stage-1 scratch of one sub-band: one tile of its channels and tree levels.
+/// Stage-1 scratch of one sub-band: one tile of its channels and tree levels, in
+/// 16-bit fixed point.
 #[derive(Debug, Clone, Default)]
 struct TileScratch {
-    channels: Vec<f32>,
-    levels: [Vec<f32>; 2],
+    channels: Vec<i16>,
+    levels: [Vec<i16>; 2],
     /// One top row of a tile, before it is stored per phase.
-    row: Vec<f32>,
+    row: Vec<i16>,
 }
 
 impl FastDedisperser {
@@ -345,8 +348,40 @@ impl Phased<'_> {
     }
 }
 
-/// One sub-band's phased top rows for output samples `0..need`, tile by tile.
+/// One sub-band's phased top rows for output samples `0..need`, tile by tile: each
+/// tile's channels quantised to 16-bit fixed point ([`super::fixed`]), then its tree.
+/// Compiled for AVX2 when the CPU has it (every loop below is inlined into it).
 fn subband_rows(
+    sub: &SubBand,
+    src: &Source<'_>,
+    need: usize,
+    out: Phased<'_>,
+    scratch: &mut TileScratch,
+) {
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx2") {
+        // SAFETY: `subband_rows_avx2` only requires the AVX2 instruction set, which
+        // was detected at run time just above; it is otherwise safe code.
+        return unsafe { subband_rows_avx2(sub, src, need, out, scratch) };
+    }
+    subband_tiles(sub, src, need, out, scratch)
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+fn subband_rows_avx2(
+    sub: &SubBand,
+    src: &Source<'_>,
+    need: usize,
+    out: Phased<'_>,
+    scratch: &mut TileScratch,
+) {
+    subband_tiles(sub, src, need, out, scratch)
+}
+
+/// The portable body of [`subband_rows`].
+#[inline(always)]
+fn subband_tiles(
     sub: &SubBand,
     src: &Source<'_>,
     need: usize,
@@ -363,40 +398,28 @@ fn subband_rows(
             n_j: tile_len.min(need - j0),
             per_out,
             width: 0,
+            quantum: 0.0,
         };
         tile.width = tile.len() + halo;
         let (start, width) = (src.t0 + j0 * per_out, tile.width);
-        if start + width <= src.row_len {
-            // The usual tile: the first level reads the block's channels in place.
-            let channels = InBlock {
-                src,
-                channels: &sub.channels,
-                start,
-                width,
-            };
-            tile_rows(sub, &channels, &tile, &mut out, scratch);
-        } else {
-            // A tile reaching past the block: channels copied, zero beyond its end.
-            let mut copied = std::mem::take(&mut scratch.channels);
-            grow(&mut copied, n_chan * width);
-            for (row, &c) in copied.chunks_exact_mut(width).zip(&sub.channels) {
-                copy_from(&src.rows[c * src.row_stride..][..src.row_len], start, row);
-            }
-            let channels = Contiguous {
-                data: &copied,
-                stride: width,
-            };
-            tile_rows(sub, &channels, &tile, &mut out, scratch);
-            scratch.channels = copied;
-        }
+        let mut channels = std::mem::take(&mut scratch.channels);
+        grow(&mut channels, n_chan * width);
+        let rows = sub
+            .channels
+            .iter()
+            .map(|&c| &src.rows[c * src.row_stride..][..src.row_len]);
+        tile.quantum = quantise_tile(rows, start, width, &mut channels[..n_chan * width]);
+        tile_rows(sub, &Level::new(&channels, width), &tile, &mut out, scratch);
+        scratch.channels = channels;
     }
 }
 
-/// The tree of one tile, from its channels (`channels.row(i)`: the sub-band's i-th
-/// channel from the tile's first tree sample) to its top rows in `out`.
+/// The tree of one tile, from its quantised channels (`channels.row(i)`: the
+/// sub-band's i-th channel from the tile's first tree sample) to its top rows in `out`.
+#[inline(always)]
 fn tile_rows(
     sub: &SubBand,
-    channels: &impl Below,
+    channels: &Level<'_>,
     tile: &TopTile,
     out: &mut Phased<'_>,
     scratch: &mut TileScratch,
@@ -413,69 +436,46 @@ fn tile_rows(
     grow(odd, rows * width);
     for (l, merges) in below.iter().enumerate() {
         match l {
-            0 => run_level(merges, channels, even, width, len),
-            _ if l % 2 == 1 => run_level(merges, &Contiguous::new(even, width), odd, width, len),
-            _ => run_level(merges, &Contiguous::new(odd, width), even, width, len),
+            0 => merge_rows(merges, channels, even, width, len),
+            _ if l % 2 == 1 => merge_rows(merges, &Level::new(even, width), odd, width, len),
+            _ => merge_rows(merges, &Level::new(odd, width), even, width, len),
         }
     }
-    match below.len() {
-        0 => top_level(top, channels, tile, out, &mut scratch.row),
-        n => {
-            let last: &[f32] = if n % 2 == 1 { even } else { odd };
-            let last = Contiguous::new(last, width);
-            top_level(top, &last, tile, out, &mut scratch.row)
-        }
-    }
+    let last = match below.len() {
+        0 => *channels,
+        n => Level::new(if n % 2 == 1 { even } else { odd }, width),
+    };
+    top_level(top, &last, tile, out, &mut scratch.row)
 }
 
-/// The rows a tree level reads, each `width` tree samples from the tile's start.
-trait Below {
-    fn row(&self, i: usize) -> &[f32];
-}
-
-/// Rows stored one after another, `stride` values apart.
-struct Contiguous<'a> {
-    data: &'a [f32],
+/// The rows of one tree level (or of the quantised channels), stored one after
+/// another `stride` values apart.
+#[derive(Clone, Copy)]
+struct Level<'a> {
+    data: &'a [i16],
     stride: usize,
 }
 
-impl<'a> Contiguous<'a> {
-    fn new(data: &'a [f32], stride: usize) -> Self {
-        Contiguous { data, stride }
+impl<'a> Level<'a> {
+    fn new(data: &'a [i16], stride: usize) -> Self {
+        Level { data, stride }
     }
-}
 
-impl Below for Contiguous<'_> {
     #[inline(always)]
-    fn row(&self, i: usize) -> &[f32] {
+    fn row(&self, i: usize) -> &'a [i16] {
         &self.data[i * self.stride..(i + 1) * self.stride]
     }
 }
 
-/// A sub-band's channels read where they lie in the block (no copy), for a tile
-/// that ends inside the block.
-struct InBlock<'a> {
-    src: &'a Source<'a>,
-    channels: &'a [usize],
-    start: usize,
-    width: usize,
-}
-
-impl Below for InBlock<'_> {
-    #[inline(always)]
-    fn row(&self, i: usize) -> &[f32] {
-        let at = self.channels[i] * self.src.row_stride + self.start;
-        &self.src.rows[at..at + self.width]
-    }
-}
-
 /// Where one tile of the top level goes: output samples `j0..j0 + n_j` of the phased
-/// rows, from tree rows of `width` values apart in the level below.
+/// rows, from tree rows of `width` values apart in the level below, whose values are
+/// in units of `quantum`.
 struct TopTile {
     j0: usize,
     n_j: usize,
     per_out: usize,
     width: usize,
+    quantum: Quantum,
 }
 
 impl TopTile {
@@ -487,44 +487,15 @@ impl TopTile {
 
 /// The top level of one tile, merged row by row into one L1-resident row and stored
 /// from there, per phase and as bfloat16, into the stage-1 buffer (the level as a
-/// whole would not fit in L2); compiled for AVX2 when the CPU has it.
+/// whole would not fit in L2). Top rows need no samples beyond the tile (their reach
+/// is 0): `n_j·per_out + per_out − 1` tree samples, the last phase's.
+#[inline(always)]
 fn top_level(
     merges: &[Merge],
-    src: &impl Below,
+    src: &Level<'_>,
     tile: &TopTile,
     out: &mut Phased<'_>,
-    row: &mut Vec<f32>,
-) {
-    #[cfg(target_arch = "x86_64")]
-    if std::arch::is_x86_feature_detected!("avx2") {
-        // SAFETY: `top_level_avx2` only requires the AVX2 instruction set, which was
-        // detected at run time just above; it is otherwise safe code.
-        return unsafe { top_level_avx2(merges, src, tile, out, row) };
-    }
-    top_level_rows(merges, src, tile, out, row)
-}
-
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx2")]
-fn top_level_avx2(
-    merges: &[Merge],
-    src: &impl Below,
-    tile: &TopTile,
-    out: &mut Phased<'_>,
-    row: &mut Vec<f32>,
-) {
-    top_level_rows(merges, src, tile, out, row)
-}
-
-/// The portable body of [`top_level`]. Top rows need no samples beyond the tile
-/// (their reach is 0): `n_j·per_out + per_out − 1` tree samples, the last phase's.
-#[inline(always)]
-fn top_level_rows(
-    merges: &[Merge],
-    src: &impl Below,
-    tile: &TopTile,
-    out: &mut Phased<'_>,
-    row: &mut Vec<f32>,
+    row: &mut Vec<i16>,
 ) {
     let len = tile.len();
     grow(row, len);
@@ -535,10 +506,12 @@ fn top_level_rows(
 }
 
 /// Stores tree samples `row` as the phases of top row `r` over the tile's output
-/// samples: phase φ's sample j sums `row[per_out·j + φ ..][..per_out]`.
+/// samples: phase φ's sample j sums `row[per_out·j + φ ..][..per_out]`, converted
+/// from fixed point.
 #[inline(always)]
-fn store_phases(row: &[f32], out: &mut Phased<'_>, r: usize, tile: &TopTile) {
-    let (j0, n_j, per_out) = (tile.j0, tile.n_j, tile.per_out);
+fn store_phases(row: &[i16], out: &mut Phased<'_>, r: usize, tile: &TopTile) {
+    let (j0, n_j, per_out, q) = (tile.j0, tile.n_j, tile.per_out, tile.quantum);
+    let value = |x: i16| f32::from(x);
     for phase in 0..per_out {
         let src_row = &row[phase..][..n_j * per_out];
         let dst = &mut out.row_mut(r, phase)[j0..j0 + n_j];
@@ -546,16 +519,16 @@ fn store_phases(row: &[f32], out: &mut Phased<'_>, r: usize, tile: &TopTile) {
             1 => dst
                 .iter_mut()
                 .zip(src_row)
-                .for_each(|(o, &x)| *o = to_bf16(x)),
+                .for_each(|(o, &x)| *o = to_bf16(value(x) * q)),
             // Every downsampled step (TREE_OVERSAMPLE): a loop that vectorises.
             2 => {
                 for (o, pair) in dst.iter_mut().zip(src_row.chunks_exact(2)) {
-                    *o = to_bf16(pair[0] + pair[1]);
+                    *o = to_bf16((value(pair[0]) + value(pair[1])) * q);
                 }
             }
             _ => {
                 for (o, group) in dst.iter_mut().zip(src_row.chunks_exact(per_out)) {
-                    *o = to_bf16(group.iter().sum());
+                    *o = to_bf16(group.iter().map(|&x| value(x)).sum::<f32>() * q);
                 }
             }
         }
@@ -677,37 +650,9 @@ fn from_bf16(h: Bf16) -> f32 {
     f32::from_bits(u32::from(h) << 16)
 }
 
-/// `row` = `chan[start..]`, zero past the end of the block. Paths never reach past
-/// the block (their length is capped at their step's largest delay), so the zero tail
-/// a chunk's last tile may carry is never summed into a valid output.
-fn copy_from(chan: &[f32], start: usize, row: &mut [f32]) {
-    let avail = chan.get(start..).unwrap_or(&[]);
-    let n = avail.len().min(row.len());
-    row[..n].copy_from_slice(&avail[..n]);
-    row[n..].fill(0.0);
-}
-
-/// One tree level over a tile: each output row over the samples it must supply;
-/// compiled for AVX2 when the CPU has it.
-fn run_level(merges: &[Merge], src: &impl Below, dst: &mut [f32], stride: usize, len: usize) {
-    #[cfg(target_arch = "x86_64")]
-    if std::arch::is_x86_feature_detected!("avx2") {
-        // SAFETY: `run_level_avx2` only requires the AVX2 instruction set, which was
-        // detected at run time just above; it is otherwise safe code.
-        return unsafe { run_level_avx2(merges, src, dst, stride, len) };
-    }
-    merge_rows(merges, src, dst, stride, len)
-}
-
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx2")]
-fn run_level_avx2(merges: &[Merge], src: &impl Below, dst: &mut [f32], stride: usize, len: usize) {
-    merge_rows(merges, src, dst, stride, len)
-}
-
-/// The portable body of [`run_level`].
+/// One tree level over a tile: each output row over the samples it must supply.
 #[inline(always)]
-fn merge_rows(merges: &[Merge], src: &impl Below, dst: &mut [f32], stride: usize, len: usize) {
+fn merge_rows(merges: &[Merge], src: &Level<'_>, dst: &mut [i16], stride: usize, len: usize) {
     for (out, m) in dst.chunks_exact_mut(stride).zip(merges) {
         let n = (len + m.reach).min(stride - m.shift);
         merge_row(m, src, &mut out[..n]);
@@ -715,16 +660,17 @@ fn merge_rows(merges: &[Merge], src: &impl Below, dst: &mut [f32], stride: usize
 }
 
 /// `out[t] = upper[t] + lower[t + shift]` for the rows of `m` in `src`, or a copy of
-/// the upper row when there is no lower one.
+/// the upper row when there is no lower one. The adds saturate, which only infinite
+/// input can reach ([`super::fixed`]).
 #[inline(always)]
-fn merge_row(m: &Merge, src: &impl Below, out: &mut [f32]) {
+fn merge_row(m: &Merge, src: &Level<'_>, out: &mut [i16]) {
     let n = out.len();
     let upper = &src.row(m.upper)[..n];
     match m.lower {
         Some(l) => {
             let lower = &src.row(l)[m.shift..][..n];
             for ((o, x), y) in out.iter_mut().zip(upper).zip(lower) {
-                *o = x + y;
+                *o = x.saturating_add(*y);
             }
         }
         None => out.copy_from_slice(upper),

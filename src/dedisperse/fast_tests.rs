@@ -1,7 +1,7 @@
 //! The fast kernel against the reference kernel and the tree's own traced paths.
 
 use super::*;
-use crate::dedisperse::subband::tree_downsample;
+use crate::dedisperse::subband::{SUBBAND_CHANNELS, tree_downsample};
 use crate::dedisperse::{DmStep, PlanRequest, reference};
 use crate::units::{channel_smearing_s, delay_between_s};
 use ndarray::Array2;
@@ -19,12 +19,26 @@ fn band(n_chan: usize, lo: f64, hi: f64, ascending: bool) -> (Vec<f64>, f64) {
     (f, bw)
 }
 
-/// The most the stage-1 rows' bfloat16 rounding can move an output whose paths sum
-/// the absolute input values to `magnitude` ([`sum_along`] of `|input|`): each stored
-/// value is rounded with relative error ≤ 2⁻⁸ and is at most the sum of the absolute
-/// values it adds up.
-fn bf16_bound(magnitude: f32) -> f32 {
-    magnitude * 2f32.powi(-8) * 1.001
+/// The most stage 1's number formats can move an output whose paths sum the absolute
+/// input values to `magnitude` ([`sum_along`] of `|input|`) when its tree values
+/// carry at most `fixed` of fixed-point error in all ([`fixed_error`]): each stored
+/// bfloat16 value is rounded with relative error ≤ 2⁻⁸ and is at most the sum of the
+/// absolute values it adds up.
+fn stored_bound(magnitude: f32, fixed: f32) -> f32 {
+    (magnitude + fixed) * 2f32.powi(-8) * 1.001 + fixed
+}
+
+/// The most the 16-bit tiles' rounding can move one output of a step at `tree_ds`
+/// that sums `per_out` tree samples of each of `n_chan` channels: half a quantum per
+/// value, a quantum being at most the largest tree-sample magnitude (`tree_ds` input
+/// samples of at most `peak`) over the fixed-point limit of a full sub-band.
+fn fixed_error(n_chan: usize, tree_ds: usize, per_out: usize, peak: f32) -> f32 {
+    let limit = (32767 / n_chan.min(SUBBAND_CHANNELS)) as f32;
+    (n_chan * per_out) as f32 * 0.5 * tree_ds as f32 * peak / limit
+}
+
+fn peak(input: &Array2<f32>) -> f32 {
+    input.iter().fold(0.0, |m, x| m.max(x.abs()))
 }
 
 fn noise(n_chan: usize, n_time: usize, rng: &mut ChaCha8Rng) -> Array2<f32> {
@@ -160,11 +174,12 @@ fn fast_kernel_matches_its_paths_and_tracks_the_reference() {
                     let magnitudes =
                         sum_along(&input.mapv(f32::abs), &delays, tree_ds, per_out, len);
                     let scale = ((n_chan * g.downsample) as f32).sqrt();
+                    let fixed = fixed_error(n_chan, tree_ds, per_out, peak(&input));
                     for (t, ((&a, &b), &m)) in
                         g.row(k).iter().zip(&along).zip(&magnitudes).enumerate()
                     {
                         assert!(
-                            (a - b).abs() <= bf16_bound(m) + 1e-4 * scale,
+                            (a - b).abs() <= stored_bound(m, fixed) + 1e-4 * scale,
                             "{n_chan} ch DM {dm} t {t}: {a} vs {b}"
                         );
                     }
@@ -228,8 +243,9 @@ fn fast_kernel_equals_reference_at_zero_dm() {
     let got = dedisperse_fast(&input, &plan);
     let want = reference::dedisperse(input.view(), &plan);
     let magnitudes = sum_along(&input.mapv(f32::abs), &[0; 37], 1, 1, 333);
+    let fixed = fixed_error(37, 1, 1, peak(&input));
     for ((a, b), m) in got[0].data.iter().zip(&want[0].data).zip(magnitudes) {
-        assert!((a - b).abs() <= bf16_bound(m) + 1e-4, "{a} vs {b}");
+        assert!((a - b).abs() <= stored_bound(m, fixed) + 1e-4, "{a} vs {b}");
     }
 }
 

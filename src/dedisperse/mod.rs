@@ -27,6 +27,7 @@
 
 mod cost;
 mod fast;
+mod fixed;
 mod plan;
 pub mod reference;
 mod subband;
