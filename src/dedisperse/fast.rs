@@ -315,8 +315,9 @@ fn stage1(
                 slab,
                 stride,
                 per_out,
+                need: need(sub.max_offset),
             };
-            subband_rows(sub, src, need(sub.max_offset), rows, scratch)
+            subband_rows(sub, src, rows, scratch)
         });
     stride
 }
@@ -338,6 +339,8 @@ struct Phased<'a> {
     slab: &'a mut [Bf16],
     stride: usize,
     per_out: usize,
+    /// Output samples of each row that stage 2 reads.
+    need: usize,
 }
 
 impl Phased<'_> {
@@ -348,47 +351,29 @@ impl Phased<'_> {
     }
 }
 
-/// One sub-band's phased top rows for output samples `0..need`, tile by tile: each
+/// One sub-band's phased top rows for output samples `0..out.need`, tile by tile: each
 /// tile's channels quantised to 16-bit fixed point ([`super::fixed`]), then its tree.
 /// Compiled for AVX2 when the CPU has it (every loop below is inlined into it).
-fn subband_rows(
-    sub: &SubBand,
-    src: &Source<'_>,
-    need: usize,
-    out: Phased<'_>,
-    scratch: &mut TileScratch,
-) {
+fn subband_rows(sub: &SubBand, src: &Source<'_>, out: Phased<'_>, scratch: &mut TileScratch) {
     #[cfg(target_arch = "x86_64")]
     if std::arch::is_x86_feature_detected!("avx2") {
         // SAFETY: `subband_rows_avx2` only requires the AVX2 instruction set, which
         // was detected at run time just above; it is otherwise safe code.
-        return unsafe { subband_rows_avx2(sub, src, need, out, scratch) };
+        return unsafe { subband_rows_avx2(sub, src, out, scratch) };
     }
-    subband_tiles(sub, src, need, out, scratch)
+    subband_tiles(sub, src, out, scratch)
 }
 
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "avx2")]
-fn subband_rows_avx2(
-    sub: &SubBand,
-    src: &Source<'_>,
-    need: usize,
-    out: Phased<'_>,
-    scratch: &mut TileScratch,
-) {
-    subband_tiles(sub, src, need, out, scratch)
+fn subband_rows_avx2(sub: &SubBand, src: &Source<'_>, out: Phased<'_>, scr: &mut TileScratch) {
+    subband_tiles(sub, src, out, scr)
 }
 
 /// The portable body of [`subband_rows`].
 #[inline(always)]
-fn subband_tiles(
-    sub: &SubBand,
-    src: &Source<'_>,
-    need: usize,
-    mut out: Phased<'_>,
-    scratch: &mut TileScratch,
-) {
-    let halo = sub.tree.max_path;
+fn subband_tiles(sub: &SubBand, src: &Source<'_>, mut out: Phased<'_>, scratch: &mut TileScratch) {
+    let (halo, need) = (sub.tree.max_path, out.need);
     let n_chan = sub.channels.len();
     let per_out = out.per_out;
     let tile_len = STAGE1_TILE / per_out;
