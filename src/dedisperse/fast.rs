@@ -393,6 +393,9 @@ fn subband_tiles(sub: &SubBand, src: &Source<'_>, mut out: Phased<'_>, scratch: 
             .channels
             .iter()
             .map(|&c| &src.rows[c * src.row_stride..][..src.row_len]);
+        // Zero past the block's end: paths never reach there (each is capped at its
+        // step's largest delay), so a chunk's last tile sums none of it into a valid
+        // output.
         tile.quantum = quantise_tile(rows, start, width, &mut channels[..n_chan * width]);
         tile_rows(sub, &Level::new(&channels, width), &tile, &mut out, scratch);
         scratch.channels = channels;
