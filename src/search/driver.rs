@@ -317,7 +317,20 @@ impl<'a> Searcher<'a> {
         let tested = own_lo.saturating_sub(start + g.margin as u64) as usize
             ..own_hi.saturating_add(g.margin as u64).saturating_sub(start) as usize;
         let detections = self.detect(&outs, start, tested);
-        let dm0 = self.dm0_series(norm, mask);
+        let time_link = (self.config.cluster.time_link_s / self.header.tsamp_s).round() as u64;
+        let clusters =
+            friends_of_friends(&detections, self.config.cluster.dm_link_trials, time_link);
+        let owned: Vec<_> = merge_dispersion_tails(clusters, &self.sweep, time_link as f64)
+            .into_iter()
+            .filter(|c| (own_lo..own_hi).contains(&c.best.start_sample))
+            .collect();
+        // The DM-0 series serves only the triage of candidates, and most blocks of a
+        // long recording have none: a full pass over the block saved.
+        let dm0 = if owned.is_empty() {
+            Vec::new()
+        } else {
+            self.dm0_series(norm, mask)
+        };
         let series = NormalisedSeries::new(&mut outs, g.baseline_len);
         let data = BlockData {
             header: &self.header,
@@ -329,12 +342,8 @@ impl<'a> Searcher<'a> {
             block_start: start,
         };
         let used_bw = (n_chan - n_masked) as f64 * self.header.chan_bw_mhz;
-        let time_link = (self.config.cluster.time_link_s / self.header.tsamp_s).round() as u64;
-        let clusters =
-            friends_of_friends(&detections, self.config.cluster.dm_link_trials, time_link);
-        let candidates = merge_dispersion_tails(clusters, &self.sweep, time_link as f64)
+        let candidates = owned
             .into_par_iter()
-            .filter(|c| (own_lo..own_hi).contains(&c.best.start_sample))
             .map(|c| self.judge(&data, &c, used_bw))
             .collect();
         drop(series);
