@@ -18,7 +18,8 @@
 //!
 //! Kernels: [`reference`](mod@reference) (per-channel shifts, the plain check) and
 //! [`FastDedisperser`]: merge trees inside 64-channel sub-bands (after the FDMT,
-//! Zackay & Ofek 2017, ApJ 835, 11), then per-trial sums of one row per sub-band.
+//! Zackay & Ofek 2017, ApJ 835, 11; in 16-bit fixed point, one quantum per time
+//! tile), then per-trial sums of one row per sub-band.
 //! Its delays are rounded along the trees — at half the output sample for
 //! downsampled steps — so per-channel delays differ from the exact ones by about 0.42
 //! tree samples rms (at most 2) instead of the reference's 0.29 (at most 0.5); every
