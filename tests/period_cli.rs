@@ -85,6 +85,42 @@ fn demo_sets_give_json_with_the_promised_fields() {
     assert!(s["power_law"]["alpha"].as_f64().unwrap() > 1.0);
 }
 
+// A strong period beats every null set, so its Monte Carlo FAPs sit at the floor
+// 1/(K + 1); the table gains the two columns.
+#[test]
+fn null_sets_give_monte_carlo_faps() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    assert!(burstbook(&["period", "synth"], d).status.success());
+    let rotation = [
+        "period",
+        "rotation",
+        "--min-period-s",
+        "0.3",
+        "--max-period-s",
+        "0.6",
+        "--sims",
+        "4",
+        "--seed",
+        "3",
+    ];
+    let r = json(&burstbook(&[&rotation[..], &["--json"]].concat(), d));
+    assert_eq!(r["null"]["sets"].as_u64(), Some(4));
+    assert_eq!(r["null"]["seed"].as_u64(), Some(3));
+    assert!((r["null"]["jitter_s"].as_f64().unwrap() - 12.0).abs() < 1e-9);
+    let best = r["best"].as_u64().unwrap() as usize;
+    let chosen = &r["candidates"][best]["null_faps"];
+    assert_eq!(chosen["z2n"].as_f64(), Some(0.2), "{chosen}");
+    assert_eq!(chosen["h"].as_f64(), Some(0.2), "{chosen}");
+
+    let text = burstbook(&rotation, d);
+    let text = String::from_utf8_lossy(&text.stdout);
+    assert!(
+        text.contains("MC(Z2n)") && text.contains("MC FAP = 0.2000"),
+        "{text}"
+    );
+}
+
 #[test]
 fn bad_input_is_one_line_naming_the_file() {
     let dir = tempfile::tempdir().unwrap();

@@ -3,6 +3,7 @@
 //! of the false-alarm probabilities on sets without any period.
 
 use burstbook::period::activity::{ActivityConfig, search_activity};
+use burstbook::period::null_sets::NullFaps;
 use burstbook::period::rotation::{RotationConfig, search_rotation, test_period};
 use burstbook::period::synth::{
     RotatingSource, activity_cycle, irregular_sessions, rng, uniform_over_exposure,
@@ -137,5 +138,53 @@ fn rotation_fap_is_calibrated_on_sets_without_period() {
             "Z² FAP too conservative at {x}: {}",
             fz[i]
         );
+    }
+}
+
+#[test]
+fn monte_carlo_faps_are_calibrated_for_few_arrivals() {
+    // The sets of the test above (30 arrivals, three 1000-s sessions), each searched
+    // with 19 null sets of its own. A Monte Carlo FAP takes the values k/20; if it is
+    // calibrated, P(FAP ≤ 2/20) = 0.1 and P(FAP ≤ 10/20) = 0.5, within a 3σ binomial
+    // margin. This is where the H union bound fails (≈ 0.16 at 0.1), so the test tells
+    // the two apart.
+    let sets = 300;
+    let sessions = [(0.0, 1000.0), (2000.0, 3000.0), (4000.0, 5000.0)];
+    let cfg = RotationConfig {
+        min_period_s: 0.5,
+        max_period_s: 1.0,
+        divisor_tol_cycles: 0.0,
+        null_sets: 19,
+        ..Default::default()
+    };
+    let results: Vec<(f64, f64)> = (0..sets)
+        .map(|s| {
+            let t = uniform_over_exposure(&sessions, 30, &mut rng(77, s));
+            let cfg = RotationConfig {
+                seed: s,
+                ..cfg.clone()
+            };
+            let r = search_rotation(&t, &cfg, &|_| {}).unwrap();
+            let min = |stat: fn(&NullFaps) -> f64| {
+                let faps = r.candidates.iter().filter_map(|c| c.null_faps.as_ref());
+                faps.map(stat).fold(1.0, f64::min)
+            };
+            (min(|f| f.z2n), min(|f| f.h))
+        })
+        .collect();
+    let z: Vec<f64> = results.iter().map(|r| r.0).collect();
+    let h: Vec<f64> = results.iter().map(|r| r.1).collect();
+    // Just above k/20, so that FAPs of exactly k/20 count.
+    let levels = [0.1 + 1e-9, 0.5 + 1e-9];
+    let (fz, fh) = (null_fractions(&levels, &z), null_fractions(&levels, &h));
+    eprintln!("Monte Carlo FAP fractions at or below [0.1, 0.5]: Z² {fz:?}; H {fh:?}");
+    for (i, x) in [0.1, 0.5].into_iter().enumerate() {
+        let margin = 3.0 * (x * (1.0 - x) / sets as f64).sqrt();
+        for (name, f) in [("Z²", fz[i]), ("H", fh[i])] {
+            assert!(
+                (f - x).abs() <= margin,
+                "{name} Monte Carlo FAP at {x}: {f}"
+            );
+        }
     }
 }

@@ -3,7 +3,8 @@
 //! * Rotation periods (ms–s): [`rotation::search_rotation`] scans Z²ₙ over trial
 //!   frequencies ([`scan`]), applies the H-test to the strongest peaks
 //!   ([`coherence`]), cross-checks with the common-divisor method ([`divisor`]) and
-//!   refines by phase-connected timing ([`timing`]).
+//!   refines by phase-connected timing ([`timing`]); optional Monte Carlo FAPs come
+//!   from null sets of the same arrivals ([`null_sets`]).
 //! * Activity cycles (days–months): [`activity::search_activity`] folds bursts and
 //!   exposure ([`fold`]), with Lomb–Scargle of session rates ([`lomb`]) and Monte Carlo
 //!   significance that keeps the real exposure.
@@ -20,6 +21,7 @@ pub mod divisor;
 pub mod fold;
 pub mod from_catalogue;
 pub mod lomb;
+pub mod null_sets;
 pub mod powerlaw;
 pub mod rotation;
 pub mod scan;

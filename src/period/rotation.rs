@@ -5,7 +5,9 @@
 //! [`z2n_scan_fap`] over the searched band (an upcrossing count, so no number of
 //! "independent" frequencies is assumed; it corresponds to about B·√(4π·Var t)·√(z/2)
 //! trials). The Fourier count B·T is reported for reference. The H-test is evaluated
-//! at the strongest Z²ₙ peaks; its FAP is the union bound [`h_scan_fap`].
+//! at the strongest Z²ₙ peaks; its FAP is the union bound [`h_scan_fap`]. With
+//! `null_sets` > 0 both also get Monte Carlo FAPs from null sets searched the same
+//! way ([`super::null_sets`]), calibrated for any number of arrivals.
 
 use serde::Serialize;
 
@@ -13,6 +15,7 @@ use super::coherence::{
     HTest, h_p_single, h_scan_fap, h_test, phases, variance, z2n, z2n_p_single, z2n_scan_fap,
 };
 use super::divisor::{DivisorResult, common_divisor_period};
+use super::null_sets::{NULL_JITTER_PERIODS, NullCalibration, NullFaps, null_maxima};
 use super::scan::{FrequencyGrid, Periodogram, centre, z2n_grid};
 use super::timing::{TimingSolution, fit_phase_connected};
 use crate::error::{Error, Result};
@@ -47,6 +50,10 @@ pub struct RotationConfig {
     pub harmonic_family_fraction: f64,
     /// Most points kept in the plotted periodogram.
     pub max_periodogram_points: usize,
+    /// Null sets searched for Monte Carlo FAPs ([`super::null_sets`]); 0 skips them.
+    pub null_sets: usize,
+    /// Seed of the null sets.
+    pub seed: u64,
 }
 
 impl Default for RotationConfig {
@@ -62,6 +69,8 @@ impl Default for RotationConfig {
             divisor_tol_cycles: 0.05,
             harmonic_family_fraction: 0.8,
             max_periodogram_points: 200_000,
+            null_sets: 0,
+            seed: 1,
         }
     }
 }
@@ -85,6 +94,8 @@ pub struct RotationCandidate {
     pub h_p_single: f64,
     /// H false-alarm probability over the scan (union bound, [`h_scan_fap`]).
     pub h_fap: f64,
+    /// Monte Carlo FAPs of its Z²ₙ and H from the null sets, if searched.
+    pub null_faps: Option<NullFaps>,
 }
 
 /// Outcome of [`search_rotation`].
@@ -115,6 +126,8 @@ pub struct RotationResult {
     pub period_err_s: f64,
     /// False-alarm probability of the chosen peak (Z²ₙ scan bound).
     pub fap: f64,
+    /// The null sets searched for Monte Carlo FAPs, if any.
+    pub null: Option<NullCalibration>,
     /// Decimated Z²ₙ periodogram (not written to JSON; see the CSV export).
     #[serde(skip)]
     pub periodogram: Periodogram,
@@ -162,39 +175,35 @@ pub fn search_rotation(
             span_s / 86_400.0
         )));
     }
-    let scan = z2n_grid(
-        &toas,
-        &grid,
-        cfg.harmonics,
-        cfg.max_periodogram_points,
-        cfg.candidates,
-        on_progress,
-    );
     let band_hz = 1.0 / cfg.min_period_s - 1.0 / cfg.max_period_s;
-    let var_t = variance(&toas);
-    let mut candidates: Vec<RotationCandidate> = scan
-        .peaks
-        .iter()
-        .map(|&(j, _)| refine(&toas, grid.freq(j), grid.df_hz, cfg, band_hz, span_s, var_t))
-        .collect();
-    candidates.sort_by(|a, b| b.z2n.total_cmp(&a.z2n));
-    let strongest = candidates[0].clone();
-    let best = match sub_harmonic(&toas, &strongest, cfg, &grid, band_hz, span_s, var_t) {
-        None => 0,
-        Some(c) => match candidates
-            .iter()
-            .position(|x| (x.freq_hz - c.freq_hz).abs() < grid.df_hz)
-        {
-            Some(i) => {
-                candidates[i] = c;
-                i
-            }
-            None => {
-                candidates.push(c);
-                candidates.len() - 1
-            }
-        },
-    };
+    let scan = scan_candidates(&toas, cfg, &grid, on_progress);
+    let null = (cfg.null_sets > 0).then(|| {
+        let jitter_s = NULL_JITTER_PERIODS * cfg.max_period_s;
+        null_maxima(
+            &toas,
+            cfg.null_sets,
+            cfg.seed,
+            jitter_s,
+            on_progress,
+            |t, progress| {
+                let found = scan_candidates(t, cfg, &grid, progress).candidates;
+                let max = |stat: fn(&RotationCandidate) -> f64| {
+                    found.iter().map(stat).fold(f64::NEG_INFINITY, f64::max)
+                };
+                (max(|c| c.z2n), max(|c| c.h.h))
+            },
+        )
+    });
+    let ScannedCandidates {
+        mut candidates,
+        best,
+        periodogram,
+    } = scan;
+    if let Some(null) = &null {
+        for c in &mut candidates {
+            c.null_faps = Some(null.faps(c.z2n, c.h.h));
+        }
+    }
     let chosen = &candidates[best];
     let timing = fit_phase_connected(&toas, chosen.period_s, cfg.fit_pdot)
         .ok()
@@ -213,14 +222,71 @@ pub fn search_rotation(
         grid,
         independent_frequencies: band_hz * span_s,
         fap: chosen.z2n_fap,
+        null,
         best,
         candidates,
         timing,
         divisor,
         period_s,
         period_err_s,
-        periodogram: scan.periodogram,
+        periodogram,
     })
+}
+
+/// The refined peaks of one scan, strongest Z²ₙ first, and the chosen one.
+struct ScannedCandidates {
+    candidates: Vec<RotationCandidate>,
+    best: usize,
+    periodogram: Periodogram,
+}
+
+/// Scans merged, sorted `toas` over `grid`, refines and scores the strongest peaks,
+/// and chooses among them (the strongest, or a nearly as strong sub-harmonic of it).
+fn scan_candidates(
+    toas: &[f64],
+    cfg: &RotationConfig,
+    grid: &FrequencyGrid,
+    on_progress: &(dyn Fn(u64) + Sync),
+) -> ScannedCandidates {
+    let scan = z2n_grid(
+        toas,
+        grid,
+        cfg.harmonics,
+        cfg.max_periodogram_points,
+        cfg.candidates,
+        on_progress,
+    );
+    let band_hz = 1.0 / cfg.min_period_s - 1.0 / cfg.max_period_s;
+    let span_s = toas[toas.len() - 1] - toas[0];
+    let var_t = variance(toas);
+    let mut candidates: Vec<RotationCandidate> = scan
+        .peaks
+        .iter()
+        .map(|&(j, _)| refine(toas, grid.freq(j), grid.df_hz, cfg, band_hz, span_s, var_t))
+        .collect();
+    candidates.sort_by(|a, b| b.z2n.total_cmp(&a.z2n));
+    let strongest = candidates[0].clone();
+    let best = match sub_harmonic(toas, &strongest, cfg, grid, band_hz, span_s, var_t) {
+        None => 0,
+        Some(c) => match candidates
+            .iter()
+            .position(|x| (x.freq_hz - c.freq_hz).abs() < grid.df_hz)
+        {
+            Some(i) => {
+                candidates[i] = c;
+                i
+            }
+            None => {
+                candidates.push(c);
+                candidates.len() - 1
+            }
+        },
+    };
+    ScannedCandidates {
+        candidates,
+        best,
+        periodogram: scan.periodogram,
+    }
 }
 
 /// The fundamental below the strongest peak f: every harmonic of a narrow pulse is as
@@ -326,6 +392,7 @@ fn candidate_at(
         h,
         h_p_single: h_p_single(h.h),
         h_fap: h_scan_fap(h.h, band_hz, var_t),
+        null_faps: None,
     }
 }
 

@@ -40,7 +40,8 @@ enum PeriodCommand {
     #[command(after_help = "Examples:\n  burstbook period rotation\n  \
         burstbook period rotation --toas toas.csv --min-period-s 0.05 --max-period-s 10 --json\n  \
         burstbook period rotation --toas toas.csv --period-s 0.41370 --fit-pdot\n  \
-        burstbook period rotation --source FIELD-7 --catalogue survey.sqlite --max-period-s 2")]
+        burstbook period rotation --source FIELD-7 --catalogue survey.sqlite --max-period-s 2\n  \
+        burstbook period rotation --toas toas.csv --min-period-s 0.5 --max-period-s 2 --sims 200 --seed 7")]
     Rotation(rotation::Args),
     /// Search bursts and observing sessions for an activity cycle (days–months).
     #[command(after_help = "Examples:\n  burstbook period activity\n  \

@@ -41,6 +41,13 @@ pub struct Args {
     /// Tolerance of the common-divisor check, cycles (0 turns it off).
     #[arg(long, default_value_t = 0.05)]
     divisor_tol: f64,
+    /// Null sets (the arrivals each moved at random over 20 longest periods) searched
+    /// the same way, for Monte Carlo FAPs of Z²ₙ and H; each costs one more scan.
+    #[arg(long, default_value_t = 0)]
+    sims: usize,
+    /// Seed of the null sets.
+    #[arg(long, default_value_t = 1)]
+    seed: u64,
     /// Test this period instead of searching (no trials), s.
     #[arg(long)]
     period_s: Option<f64>,
@@ -71,6 +78,8 @@ pub fn run(a: Args) -> anyhow::Result<()> {
         merge_gap_s: a.merge_gap_s,
         fit_pdot: a.fit_pdot,
         divisor_tol_cycles: a.divisor_tol,
+        null_sets: a.sims,
+        seed: a.seed,
         ..Default::default()
     };
     if let Some(p) = a.period_s {
@@ -107,7 +116,8 @@ pub fn run(a: Args) -> anyhow::Result<()> {
         &cfg,
     )
     .len;
-    let bar = progress::bar(grid_len as u64, "Z² scan");
+    let scans = 1 + a.sims as u64;
+    let bar = progress::bar(grid_len as u64 * scans, "Z² scans");
     let r = search_rotation(&toas.t_s, &cfg, &|n| bar.inc(n)).with_context(|| what.clone())?;
     bar.finish_and_clear();
     if let Some(path) = &a.periodogram_out {
@@ -135,13 +145,21 @@ fn print_rotation(r: &RotationResult, toas: &ArrivalTimes) {
         "{} arrivals over {:.1} s; {} trial frequencies (step {:.3e} Hz, ~{:.0} independent)",
         r.n_toas, r.span_s, r.grid.len, r.grid.df_hz, r.independent_frequencies
     );
+    let mc_header = match r.null {
+        Some(_) => format!(" {:>9} {:>9}", "MC(Z2n)", "MC(H)"),
+        None => String::new(),
+    };
     println!(
-        "{:>3} {:>16} {:>9} {:>10} {:>10} {:>8} {:>3} {:>10}",
+        "{:>3} {:>16} {:>9} {:>10} {:>10} {:>8} {:>3} {:>10}{mc_header}",
         "#", "period_s", "Z2n", "p_single", "FAP(Z2n)", "H", "m", "FAP(H)*"
     );
     for (i, c) in r.candidates.iter().enumerate().take(10) {
+        let mc = match c.null_faps {
+            Some(f) => format!(" {:>9.4} {:>9.4}", f.z2n, f.h),
+            None => String::new(),
+        };
         println!(
-            "{:>3} {:>16.10} {:>9.2} {:>10} {:>10} {:>8.2} {:>3} {:>10}{}",
+            "{:>3} {:>16.10} {:>9.2} {:>10} {:>10} {:>8.2} {:>3} {:>10}{mc}{}",
             i,
             c.period_s,
             c.z2n,
@@ -154,8 +172,22 @@ fn print_rotation(r: &RotationResult, toas: &ArrivalTimes) {
         );
     }
     println!("  * H FAP is a union bound; optimistic for small N (see docs/period.md).");
+    if let Some(null) = &r.null {
+        println!(
+            "  MC: share of {} null sets (arrivals moved at random over {:.0} s, seed {}) \
+             whose strongest value reaches it; at least 1/{}.",
+            null.sets,
+            null.jitter_s,
+            null.seed,
+            null.sets + 1
+        );
+    }
+    let chosen_mc = match r.candidates[r.best].null_faps {
+        Some(f) => format!("   MC FAP = {:.4} (H: {:.4})", f.z2n, f.h),
+        None => String::new(),
+    };
     println!(
-        "Best period: {:.12} ± {:.2e} s   FAP = {}",
+        "Best period: {:.12} ± {:.2e} s   FAP = {}{chosen_mc}",
         r.period_s,
         r.period_err_s,
         Probability(r.fap, 3)
