@@ -171,7 +171,9 @@ fn print_rotation(r: &RotationResult, toas: &ArrivalTimes) {
             if i == r.best { "  <- chosen" } else { "" }
         );
     }
-    println!("  * H FAP is a union bound; optimistic for small N (see docs/period.md).");
+    println!(
+        "  * H FAP is a union bound, optimistic for small N; --sims K gives Monte Carlo FAPs."
+    );
     if let Some(null) = &r.null {
         println!(
             "  MC: share of {} null sets (arrivals moved at random over {:.0} s, seed {}) \
