@@ -276,9 +276,46 @@ fn a_locked_catalogue_fails_writes_cleanly_and_still_serves_reads() {
 fn a_missing_directory_gives_one_clear_line() {
     let out = book(
         Path::new("/nonexistent-burstbook-dir/c.sqlite"),
-        &["candidates"],
+        &["source", "add", "NEW", "--ra", "1", "--dec", "2"],
     );
     assert_one_line_failure(&out, &["cannot be opened or created"]);
+}
+
+/// A command that only reads or annotates must not answer from (and leave behind)
+/// a new, empty catalogue at a mistyped path: `check` used to say "ok".
+#[test]
+fn reading_a_missing_catalogue_creates_nothing() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("typo.sqlite");
+    for args in [
+        &["check"][..],
+        &["candidates"],
+        &["source", "list"],
+        &["exposure", "export"],
+        &["label", "1", "--label", "rfi"],
+    ] {
+        let out = book(&db, args);
+        assert_one_line_failure(
+            &out,
+            &["typo.sqlite", "does not exist; nothing was created"],
+        );
+        assert!(!db.exists(), "{args:?} created {}", db.display());
+    }
+    let out = Command::new(BIN)
+        .args(["period", "stats", "--source", "X", "--catalogue"])
+        .arg(&db)
+        .output()
+        .unwrap();
+    assert_one_line_failure(&out, &["does not exist"]);
+    assert!(!db.exists());
+    // Adding a source is how a catalogue is begun by hand.
+    let out = book(&db, &["source", "add", "NEW", "--ra", "1", "--dec", "2"]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    assert!(db.exists());
 }
 
 /// Read-only location. Root ignores file permissions, so when the tests run as

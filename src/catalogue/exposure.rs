@@ -129,10 +129,14 @@ impl Catalogue {
                         ),
                     ));
                 };
+                // An interval already held, from a run or imported, is not added again:
+                // exporting a run's exposure and importing it back adds nothing.
                 added += tx
                     .execute(
-                        "INSERT OR IGNORE INTO exposure (source_id, start_mjd, end_mjd, snr_threshold)
-                         VALUES (?1, ?2, ?3, ?4)",
+                        "INSERT INTO exposure (source_id, start_mjd, end_mjd, snr_threshold)
+                         SELECT ?1, ?2, ?3, ?4 WHERE NOT EXISTS (SELECT 1 FROM exposure
+                             WHERE source_id = ?1 AND start_mjd = ?2 AND end_mjd = ?3
+                             AND snr_threshold IS ?4)",
                         params![id, row.start_mjd, row.end_mjd, row.snr_threshold],
                     )
                     .map_err(e)?;
@@ -280,6 +284,25 @@ mod tests {
         // threshold is unknown, as for the second row.
         let strict = cat.merged_exposure("SRC-A", Some(6.5)).unwrap();
         assert!((exposure_hours(&strict) - 6.0).abs() < 1e-9);
+    }
+
+    #[test]
+    fn a_runs_exposure_exported_and_imported_back_adds_nothing() {
+        use crate::catalogue::synthetic::{candidates, observation, run};
+        let dir = tempfile::tempdir().unwrap();
+        let mut cat = Catalogue::open(&dir.path().join("c.sqlite")).unwrap();
+        let obs = observation("FIELD-7", 3);
+        cat.record_search(&obs, &run(7.0), &candidates(&obs, 5, 3))
+            .unwrap();
+        let before = cat.exposure(None).unwrap();
+        assert_eq!(before.len(), 1);
+        assert!(before[0].run_id.is_some());
+        let mut out = Vec::new();
+        cat.export_exposure_csv(None, &mut out).unwrap();
+        // The imported copy (run_id NULL) used to be a second row of the same interval.
+        let p = Path::new("round-trip.csv");
+        assert_eq!(cat.import_exposure_csv(p, out.as_slice()).unwrap(), (0, 1));
+        assert_eq!(cat.exposure(None).unwrap(), before);
     }
 
     #[test]

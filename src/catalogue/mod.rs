@@ -104,6 +104,21 @@ impl Catalogue {
         Ok(cat)
     }
 
+    /// [`Catalogue::open`] for commands that read or annotate what a search recorded:
+    /// a missing file is an error and nothing is created, so a mistyped path is not
+    /// answered from a new, empty catalogue (nor left behind as one).
+    ///
+    /// # Errors
+    /// As [`Catalogue::open`], and [`Error::Catalogue`] when `path` does not exist.
+    pub fn open_existing(path: &Path, lock_wait: Duration) -> Result<Catalogue> {
+        match std::fs::symlink_metadata(path) {
+            Err(e) if e.kind() == std::io::ErrorKind::NotFound => {
+                Err(catalogue_error(path, MISSING_MSG))
+            }
+            _ => Catalogue::open_with_lock_wait(path, lock_wait),
+        }
+    }
+
     /// The catalogue path chosen by flag, then `BURSTBOOK_CATALOGUE`, then
     /// `burstbook.sqlite` in the working directory.
     pub fn resolve_path(flag: Option<&Path>) -> PathBuf {
@@ -303,6 +318,8 @@ fn is_busy_error(e: &Error) -> bool {
 }
 
 const LOCKED_MSG: &str = "is locked by another process";
+const MISSING_MSG: &str = "does not exist; nothing was created (a catalogue is made by \
+                           `burstbook search` or `burstbook book source add`)";
 const READ_ONLY_MSG: &str = "is read-only here (file or directory not writable, or a read-only file system); nothing was changed";
 
 pub(crate) fn catalogue_error(path: &Path, msg: impl Into<String>) -> Error {

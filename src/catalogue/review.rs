@@ -1,7 +1,7 @@
 //! Human review: labels kept as history, and promotion of candidates to bursts of a
 //! source (by hand or by position and DM).
 
-use rusqlite::{OptionalExtension, Transaction, params};
+use rusqlite::{Connection, OptionalExtension, Transaction, params};
 use serde::Serialize;
 
 use super::{Catalogue, SourceRecord, catalogue_error};
@@ -137,15 +137,23 @@ impl Catalogue {
         let chosen = ids
             .iter()
             .map(|&id| match source {
-                Some(name) => self.source(name),
-                None => self.match_source(id, tol),
+                Some(name) => self.source(name).map(Some),
+                // A burst already stays as it is, so it needs no match (the sources
+                // may have changed since, and re-running a promotion must not fail).
+                None if existing_burst(self.conn(), id)
+                    .map_err(|e| self.err(e))?
+                    .is_some() =>
+                {
+                    Ok(None)
+                }
+                None => self.match_source(id, tol).map(Some),
             })
             .collect::<Result<Vec<_>>>()?;
         let path = self.path().to_path_buf();
         self.write(|tx| {
             ids.iter()
                 .zip(&chosen)
-                .map(|(&id, src)| promote_in(tx, id, src))
+                .map(|(&id, src)| promote_in(tx, id, src.as_ref()))
                 .collect::<rusqlite::Result<Vec<_>>>()
                 .map_err(|e| super::sql_error(&path, e))
         })
@@ -194,21 +202,33 @@ impl Catalogue {
     }
 }
 
-fn promote_in(tx: &Transaction<'_>, id: i64, source: &SourceRecord) -> rusqlite::Result<Promotion> {
-    let existing: Option<(i64, String)> = tx
-        .query_row(
-            "SELECT b.id, s.name FROM burst b JOIN source s ON s.id = b.source_id WHERE b.candidate_id = ?1",
-            [id],
-            |r| Ok((r.get(0)?, r.get(1)?)),
-        )
-        .optional()?;
-    if let Some((burst_id, source)) = existing {
+/// The burst id and source name of candidate `id`, if it is a burst.
+fn existing_burst(conn: &Connection, id: i64) -> rusqlite::Result<Option<(i64, String)>> {
+    conn.query_row(
+        "SELECT b.id, s.name FROM burst b JOIN source s ON s.id = b.source_id WHERE b.candidate_id = ?1",
+        [id],
+        |r| Ok((r.get(0)?, r.get(1)?)),
+    )
+    .optional()
+}
+
+/// Promotes `id` to `source`; a candidate already a burst is left as it is (`source`
+/// is `None` only for those, and bursts are never deleted).
+fn promote_in(
+    tx: &Transaction<'_>,
+    id: i64,
+    source: Option<&SourceRecord>,
+) -> rusqlite::Result<Promotion> {
+    if let Some((burst_id, source)) = existing_burst(tx, id)? {
         return Ok(Promotion {
             burst_id,
             source,
             new: false,
         });
     }
+    let Some(source) = source else {
+        return Err(rusqlite::Error::QueryReturnedNoRows);
+    };
     let n = tx.execute(
         "INSERT INTO burst (candidate_id, source_id, mjd_utc, snr, width_ms, dm, fluence_jy_ms, promoted_utc)
          SELECT id, ?2, mjd_inf, snr, width_ms, dm, fluence_jy_ms, ?3 FROM candidate WHERE id = ?1",
@@ -305,6 +325,10 @@ mod tests {
             .unwrap();
         let err = cat.promote(ids[1], None, AssignTolerance { dm: 1e4, ..TOL });
         assert!(err.unwrap_err().to_string().contains("several sources"));
+        // A burst already made needs no match: re-running a promotion by position
+        // after the sources changed leaves it as it is instead of failing.
+        let again = cat.promote(ids[0], None, TOL).unwrap();
+        assert_eq!((again.burst_id, again.new), (p.burst_id, false));
         // A batch with one candidate that cannot be promoted promotes none of them,
         // though the other alone goes in.
         let before = cat.bursts(&BurstFilter::default()).unwrap().len();

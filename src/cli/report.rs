@@ -3,7 +3,7 @@
 use std::path::{Path, PathBuf};
 
 use anyhow::{Context, bail};
-use burstbook::catalogue::Catalogue;
+use burstbook::catalogue::{Catalogue, DEFAULT_LOCK_WAIT};
 use burstbook::report::html::{ObsSection, ReportOptions, write_report};
 use burstbook::report::load::{group_by_observation, load_candidates};
 use burstbook::report::source::source_report;
@@ -57,7 +57,7 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         (Some(path), None) => (from_search(path, &args.obs)?, Vec::new()),
         (None, Some(source)) => {
             let path = Catalogue::resolve_path(args.catalogue.as_deref());
-            let cat = Catalogue::open(&path)?;
+            let cat = Catalogue::open_existing(&path, DEFAULT_LOCK_WAIT)?;
             source_report(&cat, source, args.obs_dir.as_deref())?
         }
         _ => bail!("give either a search output or --source"),

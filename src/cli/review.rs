@@ -4,7 +4,7 @@ use std::path::PathBuf;
 use std::sync::atomic::AtomicBool;
 
 use anyhow::Context;
-use burstbook::catalogue::{Bounds, CandidateFilter, Catalogue};
+use burstbook::catalogue::{Bounds, CandidateFilter, Catalogue, DEFAULT_LOCK_WAIT};
 use burstbook::report::review::{CatalogueStore, LabelStore, ReviewServer};
 
 /// Arguments of `review`.
@@ -45,7 +45,7 @@ pub struct Args {
 
 pub fn run(args: Args) -> anyhow::Result<()> {
     let path = Catalogue::resolve_path(args.catalogue.as_deref());
-    let catalogue = Catalogue::open(&path)?;
+    let catalogue = Catalogue::open_existing(&path, DEFAULT_LOCK_WAIT)?;
     let filter = CandidateFilter {
         source: args.source,
         bounds: Bounds {

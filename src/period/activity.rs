@@ -18,6 +18,13 @@ use super::lomb::{fap_baluev, lomb_scargle};
 use super::synth::{rng, uniform_over_exposure};
 use crate::error::{Error, Result};
 
+/// Largest exposure-fold table (trial periods × phase bins) a search builds: 2²⁶ cells,
+/// 512 MiB, rescanned by every Monte Carlo set.
+pub const MAX_FOLD_CELLS: usize = 1 << 26;
+
+/// Farthest from the data's reference day a forecast may start, days (~2700 years).
+pub const MAX_FORECAST_OFFSET_DAYS: f64 = 1e6;
+
 /// Settings of an activity search. Times are in days.
 #[derive(Clone, Debug, Serialize)]
 pub struct ActivityConfig {
@@ -165,7 +172,17 @@ impl TrialGrid {
         }
         let (f_lo, f_hi) = (1.0 / p_max, 1.0 / cfg.min_period_days);
         let df = 1.0 / (cfg.oversample * span);
-        let n = ((f_hi - f_lo) / df).floor() as usize + 1;
+        // Counted in f64 first: an extreme setting must be refused, not wrap or abort.
+        let n_f = ((f_hi - f_lo) / df).floor() + 1.0;
+        let cells = n_f * cfg.bins as f64;
+        if !cells.is_finite() || cells > MAX_FOLD_CELLS as f64 {
+            return Err(Error::Config(format!(
+                "{n_f:.3e} trial periods × {} phase bins is beyond {MAX_FOLD_CELLS}; raise the \
+                 minimum period, lower the oversampling or use fewer bins",
+                cfg.bins
+            )));
+        }
+        let n = n_f as usize;
         let periods: Vec<f64> = (0..n).map(|j| 1.0 / (f_lo + j as f64 * df)).collect();
         let exposure = periods
             .par_iter()
@@ -218,6 +235,15 @@ pub fn search_activity(
         return Err(Error::Config(
             "an activity search needs ≥ 3 bursts and ≥ 1 session".into(),
         ));
+    }
+    if let Some(after) = cfg.after_day
+        && (!after.is_finite() || after.abs() > MAX_FORECAST_OFFSET_DAYS)
+    {
+        return Err(Error::Config(format!(
+            "forecast start MJD {:.4e} is not within {MAX_FORECAST_OFFSET_DAYS:.0e} days of \
+             the data (reference MJD {ref_mjd})",
+            ref_mjd as f64 + after
+        )));
     }
     let outside = t_days
         .iter()
@@ -398,8 +424,10 @@ fn forecast(
     ref_mjd: i64,
 ) -> Vec<ActiveWindow> {
     let n_mid = mean_t / period;
+    // Cycle `first` ends at or after `after` up to rounding, so at most one is dropped:
+    // a bounded range, whatever the arithmetic gives.
     let first = ((after / period) - window.start - window.width).ceil() as i64;
-    (first..)
+    (first..first.saturating_add(count as i64 + 2))
         .map(|n| {
             let start = (n as f64 + window.start) * period;
             let end = start + window.width * period;
@@ -416,4 +444,67 @@ fn forecast(
             nominal_end_mjd: ref_mjd as f64 + end,
         })
         .collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    const BURSTS: [f64; 4] = [0.1, 10.2, 20.3, 35.3];
+    const SESSIONS: [(f64, f64); 5] = [
+        (0.0, 0.5),
+        (10.0, 10.5),
+        (20.0, 20.5),
+        (35.0, 35.5),
+        (40.0, 40.5),
+    ];
+
+    fn run(cfg: ActivityConfig) -> Result<ActivityResult> {
+        search_activity(&BURSTS, &SESSIONS, 60_000, &cfg, &|_| {})
+    }
+
+    #[test]
+    fn a_forecast_start_that_is_not_a_nearby_day_is_refused() {
+        // Before the check, NaN (and 1e300) never satisfied `end > after` and the
+        // forecast looped for ever.
+        for after in [f64::NAN, f64::INFINITY, 1e300, -2e6] {
+            let cfg = ActivityConfig {
+                sims: 0,
+                after_day: Some(after),
+                ..Default::default()
+            };
+            let err = run(cfg).unwrap_err().to_string();
+            assert!(err.contains("forecast start"), "{after}: {err}");
+        }
+        let cfg = ActivityConfig {
+            sims: 0,
+            after_day: Some(1e5),
+            ..Default::default()
+        };
+        let windows = run(cfg).unwrap().next_windows;
+        assert_eq!(windows.len(), 3);
+        assert!(windows.iter().all(|w| w.nominal_end_mjd > 60_000.0 + 1e5));
+    }
+
+    #[test]
+    fn a_fold_table_too_large_to_build_is_refused() {
+        // Before the check these aborted on allocation (or wrapped the count to 0).
+        for cfg in [
+            ActivityConfig {
+                min_period_days: 1e-9,
+                ..Default::default()
+            },
+            ActivityConfig {
+                oversample: 1e300,
+                ..Default::default()
+            },
+            ActivityConfig {
+                bins: 1 << 40,
+                ..Default::default()
+            },
+        ] {
+            let err = run(cfg).unwrap_err().to_string();
+            assert!(err.contains("is beyond"), "{err}");
+        }
+    }
 }

@@ -57,6 +57,7 @@ fn alpha_and_ks(sorted_tail: &[f64], s_min: f64) -> (f64, f64, f64) {
 /// least 5 in the tail); `n_boot` simulated sets (seeded) give a goodness-of-fit p.
 ///
 /// # Errors
+/// [`Error::Config`] if a given `s_min` is not a finite positive number;
 /// [`Error::Numerical`] if fewer than 2 positive values lie above S_min or all equal.
 pub fn fit_power_law(
     values: &[f64],
@@ -67,6 +68,14 @@ pub fn fit_power_law(
     let mut v: Vec<f64> = values.iter().cloned().filter(|x| *x > 0.0).collect();
     v.sort_by(f64::total_cmp);
     let chosen = s_min.is_none();
+    if let Some(s) = s_min
+        && !(s.is_finite() && s > 0.0)
+    {
+        // ln(S/0) is infinite: the fit would report α = 1 ± 0 as if it were a result.
+        return Err(Error::Config(format!(
+            "S_min must be a finite number > 0, got {s}"
+        )));
+    }
     let s_min = match s_min {
         Some(s) => s,
         None => {
@@ -84,8 +93,10 @@ pub fn fit_power_law(
     let (alpha, ks, sum_ln) = alpha_and_ks(&tail, s_min);
     if tail.len() < 2 || sum_ln <= 0.0 || !alpha.is_finite() {
         return Err(Error::Numerical(format!(
-            "a power-law fit needs ≥ 2 distinct values above S_min = {s_min}, got {}",
-            tail.len()
+            "a power-law fit needs ≥ 2 values at or above S_min = {s_min}, not all equal to \
+             it; got {} ({} above it)",
+            tail.len(),
+            tail.iter().filter(|&&x| x > s_min).count()
         )));
     }
     let n = tail.len() as f64;
@@ -144,5 +155,19 @@ mod tests {
         let f = fit_power_law(&s, Some(2.0), 0, 0).unwrap();
         // True α = 2.5; σ = 1.5/√4000 ≈ 0.024: allow 4σ.
         assert!((f.alpha - 2.5).abs() < 4.0 * f.alpha_err, "{}", f.alpha);
+    }
+
+    #[test]
+    fn a_lower_limit_that_is_not_positive_is_refused() {
+        // With S_min = 0 every ln(S/S_min) is infinite and α came out as 1 ± 0.
+        let s = [1.1, 1.3, 1.5, 2.0, 2.2];
+        for s_min in [0.0, -1.0, f64::NAN, f64::INFINITY] {
+            let err = fit_power_law(&s, Some(s_min), 10, 1).unwrap_err();
+            assert!(matches!(err, Error::Config(_)), "{s_min}: {err}");
+        }
+        let err = fit_power_law(&[2.0; 4], None, 0, 0)
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("got 4 (0 above it)"), "{err}");
     }
 }

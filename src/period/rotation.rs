@@ -23,6 +23,9 @@ use crate::error::{Error, Result};
 /// Largest grid searched: for 200 arrivals, about 30 min of CPU (bench: 7 s per 3.1e7).
 pub const MAX_TRIALS: usize = 1 << 33;
 
+/// A phase-connected solution of a search is kept only below this residual rms, cycles.
+pub const MAX_TIMING_RMS_CYCLES: f64 = 0.25;
+
 /// Largest k tried when looking for the fundamental f/k below the strongest peak.
 pub const MAX_SUB_HARMONIC: usize = 1000;
 
@@ -118,6 +121,8 @@ pub struct RotationResult {
     pub best: usize,
     /// Phase-connected solution started from the chosen peak, if it could be fitted.
     pub timing: Option<TimingSolution>,
+    /// Why there is no `timing` (too few arrivals, residuals too large ...).
+    pub timing_failure: Option<String>,
     /// Common-divisor result, if enabled and found.
     pub divisor: Option<DivisorResult>,
     /// Reported period, s: the timing solution's if fitted, else the peak's.
@@ -133,6 +138,24 @@ pub struct RotationResult {
     pub periodogram: Periodogram,
 }
 
+/// The settings a search and a hypothesis test share: a NaN here would not fail
+/// any comparison below, it would only give NaN or misleading results.
+fn validate_common(cfg: &RotationConfig) -> Result<()> {
+    let ok = (1..=20).contains(&cfg.harmonics)
+        && cfg.merge_gap_s.is_finite()
+        && cfg.merge_gap_s >= 0.0
+        && cfg.divisor_tol_cycles.is_finite()
+        && cfg.divisor_tol_cycles >= 0.0;
+    if !ok {
+        return Err(Error::Config(format!(
+            "need 1 ≤ harmonics ≤ 20 (got {}), a finite merge gap ≥ 0 s (got {}) and a \
+             finite divisor tolerance ≥ 0 cycles (got {})",
+            cfg.harmonics, cfg.merge_gap_s, cfg.divisor_tol_cycles
+        )));
+    }
+    Ok(())
+}
+
 fn validate(toas: &[f64], cfg: &RotationConfig) -> Result<()> {
     if toas.len() < 3 {
         return Err(Error::Config(format!(
@@ -142,12 +165,15 @@ fn validate(toas: &[f64], cfg: &RotationConfig) -> Result<()> {
     }
     let ok = cfg.min_period_s > 0.0
         && cfg.max_period_s > cfg.min_period_s
-        && (1..=20).contains(&cfg.harmonics)
+        && cfg.max_period_s.is_finite()
         && cfg.oversample >= 1.0
-        && cfg.candidates >= 1;
+        && cfg.oversample.is_finite()
+        && cfg.candidates >= 1
+        && cfg.harmonic_family_fraction > 0.0
+        && cfg.harmonic_family_fraction <= 1.0;
     if !ok {
         return Err(Error::Config(
-            "need 0 < min period < max period, 1 ≤ harmonics ≤ 20, oversample ≥ 1".into(),
+            "need 0 < min period < max period < ∞, 1 ≤ oversample < ∞".into(),
         ));
     }
     Ok(())
@@ -163,6 +189,7 @@ pub fn search_rotation(
     cfg: &RotationConfig,
     on_progress: &(dyn Fn(u64) + Sync),
 ) -> Result<RotationResult> {
+    validate_common(cfg)?;
     let toas = merged(t_s, cfg.merge_gap_s);
     validate(&toas, cfg)?;
     let span_s = toas[toas.len() - 1] - toas[0];
@@ -205,9 +232,17 @@ pub fn search_rotation(
         }
     }
     let chosen = &candidates[best];
-    let timing = fit_phase_connected(&toas, chosen.period_s, cfg.fit_pdot)
-        .ok()
-        .filter(|s| s.rms_cycles < 0.25);
+    let (timing, timing_failure) = match fit_phase_connected(&toas, chosen.period_s, cfg.fit_pdot) {
+        Ok(s) if s.rms_cycles < MAX_TIMING_RMS_CYCLES => (Some(s), None),
+        Ok(s) => (
+            None,
+            Some(format!(
+                "residual rms {:.3} cycles, above {MAX_TIMING_RMS_CYCLES}",
+                s.rms_cycles
+            )),
+        ),
+        Err(e) => (None, Some(e.to_string())),
+    };
     let divisor = (cfg.divisor_tol_cycles > 0.0)
         .then(|| common_divisor_period(&toas, cfg.min_period_s, cfg.divisor_tol_cycles, 10_000_000))
         .flatten();
@@ -226,6 +261,7 @@ pub fn search_rotation(
         best,
         candidates,
         timing,
+        timing_failure,
         divisor,
         period_s,
         period_err_s,
@@ -415,28 +451,42 @@ pub struct HypothesisResult {
     pub h_p: f64,
     /// Phase-connected fit started from the stated period (residuals, pulse numbers).
     pub timing: Option<TimingSolution>,
+    /// Why there is no `timing` (e.g. too few arrivals for the parameters).
+    pub timing_failure: Option<String>,
 }
 
 /// Tests one period (and optional Ṗ) without searching.
 ///
 /// # Errors
-/// [`Error::Config`] for fewer than 3 arrivals or a non-positive period.
+/// [`Error::Config`] for fewer than 3 arrivals, a period that is not finite and
+/// positive, a Ṗ that is not finite, or bad shared settings.
 pub fn test_period(
     t_s: &[f64],
     period_s: f64,
     pdot: f64,
     cfg: &RotationConfig,
 ) -> Result<HypothesisResult> {
+    validate_common(cfg)?;
+    if !(period_s.is_finite() && period_s > 0.0 && pdot.is_finite()) {
+        return Err(Error::Config(format!(
+            "need a finite period > 0 s and a finite Ṗ, got P = {period_s}, Ṗ = {pdot}"
+        )));
+    }
     let toas = merged(t_s, cfg.merge_gap_s);
-    if toas.len() < 3 || period_s <= 0.0 || !(1..=20).contains(&cfg.harmonics) {
-        return Err(Error::Config(
-            "need at least 3 arrival times, a positive period and 1 ≤ harmonics ≤ 20".into(),
-        ));
+    if toas.len() < 3 {
+        return Err(Error::Config(format!(
+            "need at least 3 arrival times, got {}",
+            toas.len()
+        )));
     }
     let f = 1.0 / period_s;
     let ph = phases(&toas, centre(&toas), f, -pdot * f * f);
     let z = z2n(&ph, cfg.harmonics);
     let h = h_test(&ph);
+    let (timing, timing_failure) = match fit_phase_connected(&toas, period_s, cfg.fit_pdot) {
+        Ok(s) => (Some(s), None),
+        Err(e) => (None, Some(e.to_string())),
+    };
     Ok(HypothesisResult {
         period_s,
         n_toas: toas.len(),
@@ -445,6 +495,75 @@ pub fn test_period(
         z2n_p: z2n_p_single(z, cfg.harmonics),
         h,
         h_p: h_p_single(h.h),
-        timing: fit_phase_connected(&toas, period_s, cfg.fit_pdot).ok(),
+        timing,
+        timing_failure,
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Four arrivals an exact number of 0.3-s turns apart.
+    const TOAS: [f64; 4] = [0.0, 4320.0, 8640.0, 12960.0];
+
+    #[test]
+    fn settings_that_are_not_numbers_are_refused() {
+        // NaN fails no `<=` test: each of these used to run and print NaN or a
+        // misleading answer with exit status 0.
+        for (p, pdot) in [(f64::NAN, 0.0), (f64::INFINITY, 0.0), (0.3, f64::NAN)] {
+            let err = test_period(&TOAS, p, pdot, &RotationConfig::default()).unwrap_err();
+            assert!(err.to_string().contains("finite period"), "{err}");
+        }
+        for cfg in [
+            RotationConfig {
+                merge_gap_s: f64::NAN,
+                ..Default::default()
+            },
+            RotationConfig {
+                divisor_tol_cycles: f64::NAN,
+                ..Default::default()
+            },
+        ] {
+            assert!(test_period(&TOAS, 0.3, 0.0, &cfg).is_err());
+            assert!(search_rotation(&TOAS, &cfg, &|_| {}).is_err());
+        }
+        let cfg = RotationConfig {
+            max_period_s: f64::INFINITY,
+            ..Default::default()
+        };
+        assert!(search_rotation(&TOAS, &cfg, &|_| {}).is_err());
+    }
+
+    #[test]
+    fn a_grid_beyond_counting_is_refused_not_indexed() {
+        // A grid length that wrapped to 0 left no peak and the search panicked.
+        for cfg in [
+            RotationConfig {
+                min_period_s: 1e-300,
+                ..Default::default()
+            },
+            RotationConfig {
+                oversample: 1e300,
+                ..Default::default()
+            },
+        ] {
+            let err = search_rotation(&TOAS, &cfg, &|_| {}).unwrap_err();
+            assert!(err.to_string().contains("is beyond"), "{err}");
+        }
+    }
+
+    #[test]
+    fn a_timing_fit_that_cannot_be_made_says_why() {
+        let cfg = RotationConfig {
+            fit_pdot: true,
+            ..Default::default()
+        };
+        let h = test_period(&TOAS[..3], 0.3, 0.0, &cfg).unwrap();
+        assert!(h.timing.is_none());
+        let why = h.timing_failure.unwrap();
+        assert!(why.contains("needs more than 3 arrival times"), "{why}");
+        let h = test_period(&TOAS, 0.3, 0.0, &cfg).unwrap();
+        assert!(h.timing.is_some() && h.timing_failure.is_none());
+    }
 }

@@ -33,7 +33,8 @@ impl FrequencyGrid {
         oversample: f64,
     ) -> Self {
         let df_hz = 1.0 / (oversample * harmonics as f64 * span_s.max(f64::MIN_POSITIVE));
-        let len = ((f_max_hz - f_min_hz) / df_hz).floor() as usize + 1;
+        // `as` saturates; the +1 must too, or a huge band wraps to an empty grid.
+        let len = (((f_max_hz - f_min_hz) / df_hz).floor() as usize).saturating_add(1);
         FrequencyGrid {
             f0_hz: f_min_hz,
             df_hz,
@@ -324,5 +325,13 @@ mod tests {
         let g = FrequencyGrid::for_span(0.1, 20.0, 1000.0, 2, 3.0);
         assert!((g.df_hz - 1.0 / 6000.0).abs() < 1e-15);
         assert!(g.freq(g.len - 1) <= 20.0 && g.freq(g.len) > 20.0);
+    }
+
+    #[test]
+    fn an_enormous_band_saturates_the_grid_length() {
+        // The count saturates at usize::MAX; the +1 after it used to wrap to an
+        // empty grid, which the search then indexed.
+        let g = FrequencyGrid::for_span(0.1, 1e300, 1000.0, 2, 3.0);
+        assert_eq!(g.len, usize::MAX);
     }
 }

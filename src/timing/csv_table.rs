@@ -46,6 +46,13 @@ pub fn barycentre_csv(bary: &Barycentrer, input: &Path, output: &Path) -> Result
     {
         return Err(bad(format!("already has a column `{clash}`")));
     }
+    if same_file(input, output) {
+        // Creating the output would truncate the input while it is being read.
+        return Err(bad(format!(
+            "is also the output {}; write the output to another file",
+            output.display()
+        )));
+    }
     let out_file = std::fs::File::create(output).map_err(|e| Error::io(output, e))?;
     let mut writer = csv::Writer::from_writer(out_file);
     // Keep the I/O kind (a closed pipe must stay recognisable as one).
@@ -87,6 +94,15 @@ pub fn barycentre_csv(bary: &Barycentrer, input: &Path, output: &Path) -> Result
     }
     writer.flush().map_err(|e| Error::io(output, e))?;
     Ok(summary)
+}
+
+/// Whether `a` and `b` name one existing file (through links or other spellings).
+fn same_file(a: &Path, b: &Path) -> bool {
+    use std::os::unix::fs::MetadataExt;
+    match (std::fs::metadata(a), std::fs::metadata(b)) {
+        (Ok(x), Ok(y)) => x.dev() == y.dev() && x.ino() == y.ino(),
+        _ => false,
+    }
 }
 
 /// Parses a decimal MJD such as `60123.456789012345` into day + seconds without
@@ -144,5 +160,34 @@ mod tests {
             sec: 86_399.999_999_999_99,
         };
         assert_eq!(format_mjd(late, 6), "60124.000000");
+    }
+
+    #[test]
+    fn the_input_is_never_its_own_output() {
+        // Writing over the input truncated it after the reader's first buffer:
+        // a 3000-row file came back with 827 rows and an error.
+        let dir = tempfile::tempdir().unwrap();
+        let input = dir.path().join("toas.csv");
+        let text: String = std::iter::once("mjd_utc\n".to_string())
+            .chain((0..3000).map(|i| format!("{}\n", 60000.5 + i as f64 * 1e-3)))
+            .collect();
+        std::fs::write(&input, &text).unwrap();
+        let link = dir.path().join("link.csv");
+        std::fs::hard_link(&input, &link).unwrap();
+        let site = crate::obs::Site {
+            name: "test".into(),
+            lon_deg: 10.0,
+            lat_deg: 45.0,
+            height_m: 500.0,
+        };
+        let bary =
+            Barycentrer::new(&site, 201.37, -43.02, crate::timing::Ephemeris::Embedded).unwrap();
+        for output in [&input, &link, &dir.path().join(".").join("toas.csv")] {
+            let err = barycentre_csv(&bary, &input, output)
+                .unwrap_err()
+                .to_string();
+            assert!(err.contains("toas.csv: is also the output"), "{err}");
+        }
+        assert_eq!(std::fs::read_to_string(&input).unwrap(), text);
     }
 }

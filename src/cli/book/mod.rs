@@ -73,7 +73,16 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     // The library's errors already name the catalogue file.
     let wait = std::time::Duration::try_from_secs_f64(args.lock_wait)
         .map_err(|_| anyhow::anyhow!("--lock-wait must be a non-negative number of seconds"))?;
-    let open = || Catalogue::open_with_lock_wait(&path, wait);
+    // Only these make a catalogue where there is none; the rest read or annotate
+    // one, and a mistyped path must not be answered from a new, empty file.
+    let creates = matches!(
+        args.command,
+        Command::Source(sources::SourceCommand::Add { .. }) | Command::FillSynthetic(_)
+    );
+    let open = || match creates {
+        true => Catalogue::open_with_lock_wait(&path, wait),
+        false => Catalogue::open_existing(&path, wait),
+    };
     match args.command {
         Command::Candidates(a) => query::candidates(&open()?, a),
         Command::Bursts(a) => query::bursts(&open()?, a),

@@ -9,7 +9,7 @@ mod synth;
 use std::path::{Path, PathBuf};
 
 use anyhow::Context;
-use burstbook::catalogue::Catalogue;
+use burstbook::catalogue::{Catalogue, DEFAULT_LOCK_WAIT};
 use burstbook::period::from_catalogue::SourceArrivals;
 use burstbook::period::times::{ArrivalTimes, Exposure, read_arrival_csv, read_exposure_csv};
 
@@ -79,7 +79,10 @@ impl SourceInput {
         let Some(source) = &self.source else {
             return Ok(None);
         };
-        let cat = Catalogue::open(&Catalogue::resolve_path(self.catalogue.as_deref()))?;
+        let cat = Catalogue::open_existing(
+            &Catalogue::resolve_path(self.catalogue.as_deref()),
+            DEFAULT_LOCK_WAIT,
+        )?;
         let arrivals = SourceArrivals::load(&cat, source)?;
         for w in &arrivals.warnings {
             eprintln!("burstbook: warning: {source}: {w}");

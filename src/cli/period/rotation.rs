@@ -109,6 +109,9 @@ pub fn run(a: Args) -> anyhow::Result<()> {
                 t.period_s, t.period_err_s, t.rms_s, t.rms_cycles
             );
         }
+        if let Some(why) = &h.timing_failure {
+            println!("  no timing fit: {why}");
+        }
         return Ok(());
     }
     let grid_len = burstbook::period::rotation::rotation_grid(
@@ -206,8 +209,9 @@ fn print_rotation(r: &RotationResult, toas: &ArrivalTimes) {
         if let (Some(pd), Some(e)) = (t.pdot, t.pdot_err) {
             println!("  Ṗ = {pd:.3e} ± {e:.1e}");
         }
-    } else {
-        println!("  no phase-connected solution (residuals above 0.25 cycles)");
+    }
+    if let Some(why) = &r.timing_failure {
+        println!("  no phase-connected solution: {why}");
     }
     match &r.divisor {
         Some(d) => println!(

@@ -3,7 +3,7 @@
 use std::path::PathBuf;
 
 use anyhow::Context;
-use burstbook::catalogue::Catalogue;
+use burstbook::catalogue::{Catalogue, DEFAULT_LOCK_WAIT};
 use burstbook::period::from_catalogue::source_fluences_jy_ms;
 use burstbook::period::powerlaw::fit_power_law;
 use burstbook::period::times::read_number_csv;
@@ -43,7 +43,7 @@ pub fn run(a: Args) -> anyhow::Result<()> {
     let (values, values_from) = match (&a.values, &a.input.catalogue.source) {
         (None, Some(source)) => {
             let path = Catalogue::resolve_path(a.input.catalogue.catalogue.as_deref());
-            let cat = Catalogue::open(&path)?;
+            let cat = Catalogue::open_existing(&path, DEFAULT_LOCK_WAIT)?;
             let what = format!("fluence_jy_ms of {}", a.input.catalogue.describe());
             (source_fluences_jy_ms(&cat, source)?, what)
         }
