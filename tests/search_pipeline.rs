@@ -364,6 +364,36 @@ fn a_low_dm_burst_on_a_bright_bursts_smeared_sweep_is_kept() {
     }
 }
 
+// A stretch of zero-filled rows (lost data, 7σ below the level of every channel) is
+// set aside: the bursts on either side of it are found at their DMs and nothing else
+// is reported. (Before, its edges came out as bright broadband "pulses" at every DM,
+// and the baseline it dragged down buried a burst near it.)
+#[test]
+fn zero_filled_dropouts_raise_no_candidates() {
+    let n = 12_000;
+    let h = header(N_CHAN, n, TSAMP);
+    let mut data = noise(&h, 29);
+    data[5_000 * N_CHAN..6_500 * N_CHAN].fill(0.0);
+    let bursts = [
+        burst(&h, 2.0, 100.0, 2e-3, 15.0),
+        burst(&h, 7.0, 200.0, 2e-3, 15.0),
+    ];
+    let r = run_on(data, n, &bursts, &config());
+    assert_eq!(r.candidates.len(), bursts.len(), "{:#?}", r.candidates);
+    for (b, c) in bursts.iter().zip(&r.candidates) {
+        assert!(
+            (c.t_inf_s - b.t_inf_s).abs() < 0.01 && (c.dm - b.dm).abs() < 0.1 * b.dm,
+            "{c:#?}"
+        );
+    }
+    // 1500 of 12 000 rows were lost.
+    assert!(
+        (r.fraction_masked - 0.125).abs() < 0.01,
+        "{}",
+        r.fraction_masked
+    );
+}
+
 // Recordings shorter than one dispersion sweep, or empty, are searched without error
 // (nothing can be found in them); those shorter than the highest DM's sweep are
 // searched at the lower DMs whose sweep fits.
