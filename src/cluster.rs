@@ -131,7 +131,8 @@ pub struct Sweep {
 /// DM D and arrival t_inf, dedispersed at a trial DM d, shows up around
 /// t_inf + (D − d)·k⟨ν⁻²⟩ with its width grown by the residual sweep |D − d|·k(ν_lo⁻² −
 /// ν_hi⁻²) (detection notes §9: the time linking scale is the width plus the
-/// mis-dedispersion shift). Bright pulses break into such fragments wherever a DM
+/// mis-dedispersion shift), and no brighter than that smearing allows
+/// ([`Sweep::on_bow_tie`]). Bright pulses break into such fragments wherever a DM
 /// gap interrupts the friends-of-friends chain. Clusters are taken in decreasing S/N;
 /// output is in time order of the best member.
 pub fn merge_dispersion_tails(
@@ -145,6 +146,7 @@ pub fn merge_dispersion_tails(
             - d.dm * sweep.top_s_per_dm,
         dm: d.dm,
         width_s: d.width_samples as f64 * sweep.tsamp_s,
+        snr: d.snr,
     };
     let slack_s = slack_samples * sweep.tsamp_s;
     let mut leaders: Vec<Cluster> = Vec::new();
@@ -174,17 +176,34 @@ pub struct Event {
     pub dm: f64,
     /// Boxcar width in seconds.
     pub width_s: f64,
+    /// Matched-filter S/N.
+    pub snr: f64,
 }
+
+/// How much brighter than the even-smear estimate of [`Sweep::on_bow_tie`] an echo
+/// may be. Delays go as ν⁻², so a pulse dedispersed at a wrong DM is smeared
+/// unevenly (more of the band arrives per unit time near its top), and a band-limited
+/// pulse is smeared over only its own part of the sweep: 3 covers a pulse whose
+/// channels span a ninth of the band's sweep (common practice: a generous bound, so
+/// that real echoes still merge).
+const ECHO_SNR_MARGIN: f64 = 3.0;
 
 impl Sweep {
     /// Whether `other` could be `leader` seen at a different trial DM: a pulse at DM
     /// D seen at trial d appears at t_inf + (D − d)·k⟨ν⁻²⟩, widened by the residual
-    /// sweep |D − d|·k(ν_lo⁻² − ν_hi⁻²).
+    /// sweep |D − d|·k(ν_lo⁻² − ν_hi⁻²) to W_eff = √(W² + sweep²) — and, its fluence
+    /// spread over W_eff, a boxcar matched to it keeps about √(W/W_eff) of its S/N
+    /// (radiometer scaling, common practice). So `other` must also be no brighter
+    /// than [`ECHO_SNR_MARGIN`] times that: a fainter pulse of its own at a DM far
+    /// from the leader's, where the leader's echo is far below the threshold, is not
+    /// an echo even if it lies within the smeared sweep.
     pub fn on_bow_tie(&self, leader: &Event, other: &Event, slack_s: f64) -> bool {
         let ddm = leader.dm - other.dm;
         let smeared = leader.width_s.hypot(ddm.abs() * self.band_s_per_dm);
         let reach = 0.5 * (smeared + other.width_s) + slack_s;
+        let kept = (ECHO_SNR_MARGIN * (leader.width_s / smeared).sqrt()).min(1.0);
         (other.t_inf_s - leader.t_inf_s - ddm * self.mean_s_per_dm).abs() <= reach
+            && other.snr <= leader.snr * kept
     }
 }
 
@@ -279,6 +298,39 @@ mod tests {
         assert_eq!(merged.len(), 2);
         assert_eq!(merged[0].best, main.best);
         assert_eq!((merged[0].size, merged[0].dm_hi), (2, 150.0));
+    }
+
+    // Far from the leader's DM its echo is smeared over the whole residual sweep and
+    // far below the threshold: a narrow, fainter pulse of its own that happens to lie
+    // within that sweep stays a candidate, unless the leader is bright enough for its
+    // echo to reach the other's S/N.
+    #[test]
+    fn a_distinct_pulse_within_a_faint_smeared_echo_is_not_merged() {
+        let sweep = Sweep {
+            tsamp_s: 1e-3,
+            top_s_per_dm: 4.148808e3 / 1600f64.powi(2),
+            mean_s_per_dm: 4.148808e3 / (1200.0 * 1600.0),
+            band_s_per_dm: 4.148808e3 * (1200f64.powi(-2) - 1600f64.powi(-2)),
+        };
+        let event = |dm: f64, t_inf_s: f64, width_s: f64, snr: f64| Event {
+            t_inf_s,
+            dm,
+            width_s,
+            snr,
+        };
+        // DM 1200, 16 ms, S/N 12: at DM 40 its echo lies 1160·k⟨ν⁻²⟩ = 2.507 s later,
+        // spread over 1.46 s, keeping √(16 ms / 1.46 s) ≈ 0.10 of its S/N.
+        let leader = event(1200.0, 10.0, 16e-3, 12.0);
+        let other = event(40.0, 10.0 + 2.507 + 0.3, 1e-3, 10.0);
+        assert!(!sweep.on_bow_tie(&leader, &other, 0.0));
+        let bright = Event {
+            snr: 100.0,
+            ..leader
+        };
+        assert!(sweep.on_bow_tie(&bright, &other, 0.0));
+        // Near the leader's DM the bound is the leader's S/N itself.
+        let near = event(1190.0, 10.0 + 10.0 * sweep.mean_s_per_dm, 16e-3, 11.9);
+        assert!(sweep.on_bow_tie(&leader, &near, 0.0));
     }
 
     /// Reference: every pair tested, components by repeated relabelling.

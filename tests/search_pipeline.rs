@@ -333,6 +333,67 @@ fn low_dm_bursts_near_the_end_of_a_file_are_found() {
     }
 }
 
+// A faint, narrow burst at low DM that falls within the smeared sweep of a brighter
+// high-DM burst (its "bow-tie", where that burst's echo at low trial DMs would lie)
+// is still its own candidate: the echo there is spread over the whole residual sweep
+// and far too faint to be detected. (Before, it was merged into the bright burst and
+// lost.)
+#[test]
+fn a_low_dm_burst_on_a_bright_bursts_smeared_sweep_is_kept() {
+    let n = 10_000;
+    let h = header(N_CHAN, n, TSAMP);
+    let mut c = config();
+    c.plan.dm_max = 1300.0;
+    // At trial DM 40 the DM-1200 burst would appear 1160·k⟨ν⁻²⟩ = 2.51 s later
+    // (⟨ν⁻²⟩ ≈ 1/(1200 × 1600) MHz⁻²), smeared over 1160·k(ν_lo⁻² − ν_hi⁻²) = 1.46 s.
+    let late_s = 1160.0 * K_HANDBOOK_S_MHZ2 / (1200.0 * 1600.0);
+    let bursts = [
+        burst(&h, 2.0, 1200.0, 10e-3, 20.0),
+        burst(&h, 2.0 + late_s + 0.2, 40.0, 1e-3, 14.0),
+    ];
+    let r = run(n, 23, &bursts, &c);
+    for b in &bursts {
+        let found = near(&r, b.t_inf_s);
+        assert!(
+            found.iter().any(|f| (f.dm - b.dm).abs() < 0.1 * b.dm),
+            "DM {} at {} s: {:#?}",
+            b.dm,
+            b.t_inf_s,
+            r.candidates
+        );
+    }
+}
+
+// A stretch of zero-filled rows (lost data, 7σ below the level of every channel) is
+// set aside: the bursts on either side of it are found at their DMs and nothing else
+// is reported. (Before, its edges came out as bright broadband "pulses" at every DM,
+// and the baseline it dragged down buried a burst near it.)
+#[test]
+fn zero_filled_dropouts_raise_no_candidates() {
+    let n = 12_000;
+    let h = header(N_CHAN, n, TSAMP);
+    let mut data = noise(&h, 29);
+    data[5_000 * N_CHAN..6_500 * N_CHAN].fill(0.0);
+    let bursts = [
+        burst(&h, 2.0, 100.0, 2e-3, 15.0),
+        burst(&h, 7.0, 200.0, 2e-3, 15.0),
+    ];
+    let r = run_on(data, n, &bursts, &config());
+    assert_eq!(r.candidates.len(), bursts.len(), "{:#?}", r.candidates);
+    for (b, c) in bursts.iter().zip(&r.candidates) {
+        assert!(
+            (c.t_inf_s - b.t_inf_s).abs() < 0.01 && (c.dm - b.dm).abs() < 0.1 * b.dm,
+            "{c:#?}"
+        );
+    }
+    // 1500 of 12 000 rows were lost.
+    assert!(
+        (r.fraction_masked - 0.125).abs() < 0.01,
+        "{}",
+        r.fraction_masked
+    );
+}
+
 // Recordings shorter than one dispersion sweep, or empty, are searched without error
 // (nothing can be found in them); those shorter than the highest DM's sweep are
 // searched at the lower DMs whose sweep fits.

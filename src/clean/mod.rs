@@ -2,11 +2,13 @@
 //! (`true` = masked) per block.
 //!
 //! Order within a block (see `search::driver`): user and header masks
-//! ([`user_mask`]) → iterated channel statistics ([`channel_stats`]) and spectral
+//! ([`user_mask`]) → rows of dropped (zero-filled) data set aside ([`dropout`]) →
+//! iterated channel statistics ([`channel_stats`]) and spectral
 //! kurtosis ([`kurtosis`]) on the raw samples → per-channel normalisation → clipping
 //! of strong broadband impulses ([`impulse`]) → optional zero-DM filter ([`zero_dm`]).
 
 pub mod channel_stats;
+pub mod dropout;
 pub mod impulse;
 pub mod kurtosis;
 pub mod user_mask;

@@ -91,6 +91,7 @@ impl Totals {
             t_inf_s: c.t_inf_s,
             dm: c.dm,
             width_s: c.width_ms * 1e-3,
+            snr: c.snr,
         };
         for c in o.candidates {
             let horizon = c.t_inf_s - recent_s;

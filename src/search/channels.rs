@@ -7,7 +7,10 @@
 //! processed once, by the statistics of the read it arrived in, and the block's
 //! memory is allocated once for the whole recording.
 
-use ndarray::{ArrayView2, ArrayViewMut2, ShapeBuilder, s};
+use ndarray::{ArrayView2, ArrayViewMut2, Axis, ShapeBuilder, s};
+use rand::SeedableRng;
+use rand_chacha::ChaCha8Rng;
+use rand_distr::{Distribution, StandardNormal};
 use rayon::prelude::*;
 
 use super::normalise::{CHANNEL_SIGMA_VALUES, normalise_series};
@@ -104,7 +107,9 @@ impl ChannelBlock {
     /// Keeps the last `keep` rows of the block, drops the rest, and appends `raw`
     /// (`[time, channel]`, read from file row `start_sample`): its channels are
     /// flagged starting from `static_mask`, then normalised (`baseline_len` running
-    /// baseline) and cleaned as `config` asks.
+    /// baseline) and cleaned as `config` asks. Rows of dropped data
+    /// ([`clean::dropout`]) are left out of the flagging and normalisation, filled
+    /// with noise and counted as masked.
     ///
     /// # Panics
     /// If the rows kept and appended exceed the capacity, or `raw` has another
@@ -129,9 +134,22 @@ impl ChannelBlock {
         self.len = keep;
         self.start_sample = start_sample - keep as u64;
         let previous_mask = std::mem::replace(&mut self.new_mask, static_mask.to_vec());
-        clean::flag_channels(raw, &mut self.new_mask, config);
+        let dropped = clean::dropout::dropped_rows(raw, static_mask);
+        // The rows holding data, when some were dropped.
+        let live: Option<Vec<usize>> = (!dropped.is_empty()).then(|| {
+            (0..m)
+                .filter(|t| dropped.binary_search(t).is_err())
+                .collect()
+        });
+        match &live {
+            None => clean::flag_channels(raw, &mut self.new_mask, config),
+            Some(live) => {
+                let rows = raw.select(Axis(0), live);
+                clean::flag_channels(rows.view(), &mut self.new_mask, config)
+            }
+        };
         self.transpose_in(raw);
-        self.normalise_new(keep, m, baseline_len);
+        self.normalise_new(keep, m, baseline_len, live.as_deref());
         let mut block = ArrayViewMut2::from_shape((n_chan, self.capacity), &mut self.data[..])
             .expect("buffer holds n_chan × capacity values")
             .slice_move(s![.., ..keep + m]);
@@ -155,7 +173,8 @@ impl ChannelBlock {
         let masked_fraction = if m == 0 || n_chan == 0 {
             0.0
         } else {
-            (n_masked * m + n_clipped * (n_chan - n_masked)) as f64 / (n_chan * m) as f64
+            (n_masked * m + (n_clipped + dropped.len()) * (n_chan - n_masked)) as f64
+                / (n_chan * m) as f64
         };
         Appended {
             new_samples: m as u64,
@@ -186,25 +205,66 @@ impl ChannelBlock {
     }
 
     /// Normalises rows `keep..keep + m` of every channel not in `new_mask` and zeroes
-    /// those of masked channels; a channel found constant joins `new_mask`.
-    fn normalise_new(&mut self, keep: usize, m: usize, baseline_len: usize) {
+    /// those of masked channels; a channel found constant joins `new_mask`. If `live`
+    /// lists the new rows that hold data (counted from `keep`), only those are
+    /// normalised, as one series, and the others (dropped data) are filled with unit
+    /// Gaussian noise, seeded by their file row and channel. Zeros there would be
+    /// stretches without noise in every dedispersed series, and where they fill more
+    /// than half a series its robust σ collapses and every boxcar's S/N blows up;
+    /// noise keeps each series' statistics those of live data, and the rows are
+    /// counted as masked. (Replacing flagged samples by noise of the channel's
+    /// statistics: common practice.)
+    fn normalise_new(
+        &mut self,
+        keep: usize,
+        m: usize,
+        baseline_len: usize,
+        live: Option<&[usize]>,
+    ) {
         if m == 0 {
             return;
         }
         let capacity = self.capacity;
+        let first_row = self.start_sample + keep as u64;
         self.data
             .par_chunks_mut(capacity)
             .zip(self.new_mask.par_iter_mut())
-            .for_each_init(Vec::new, |scratch, (row, masked)| {
-                let series = &mut row[keep..keep + m];
-                if *masked {
-                    series.fill(0.0);
-                } else if normalise_series(series, baseline_len, CHANNEL_SIGMA_VALUES, scratch)
-                    == 0.0
-                {
-                    *masked = true;
-                }
-            });
+            .enumerate()
+            .for_each_init(
+                || (Vec::new(), Vec::new()),
+                |(scratch, values), (c, (row, masked))| {
+                    let series = &mut row[keep..keep + m];
+                    if *masked {
+                        series.fill(0.0);
+                        return;
+                    }
+                    let sigma = match live {
+                        None => {
+                            normalise_series(series, baseline_len, CHANNEL_SIGMA_VALUES, scratch)
+                        }
+                        Some(live) => {
+                            values.clear();
+                            values.extend(live.iter().map(|&t| series[t]));
+                            let sigma = normalise_series(
+                                values,
+                                baseline_len,
+                                CHANNEL_SIGMA_VALUES,
+                                scratch,
+                            );
+                            let mut rng = ChaCha8Rng::seed_from_u64(first_row);
+                            rng.set_stream(c as u64);
+                            series
+                                .iter_mut()
+                                .for_each(|v| *v = StandardNormal.sample(&mut rng));
+                            live.iter()
+                                .zip(values.iter())
+                                .for_each(|(&t, &v)| series[t] = v);
+                            sigma
+                        }
+                    };
+                    *masked |= sigma == 0.0;
+                },
+            );
     }
 }
 
@@ -306,6 +366,58 @@ mod tests {
         // With nothing kept, the old mask is forgotten.
         block.append(piece(1000).view(), 2000, 0, &[false; 4], &config, 200);
         assert_eq!(block.mask(), &[false; 4]);
+    }
+
+    /// Zero-filled rows of lost data, here more than half the new rows, are set
+    /// aside and counted as masked; the other rows come out zero mean, unit variance,
+    /// and no channel is masked for them (with the dropped rows in, the MAD was zero
+    /// and the spectral-kurtosis test masked every channel). The dropped rows hold
+    /// unit noise, the same each time.
+    #[test]
+    fn dropped_rows_are_set_aside() {
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(17);
+        let (n_time, n_chan) = (6000, 32);
+        let noise = Normal::new(96.0f32, 12.0).unwrap();
+        let mut raw = Array2::from_shape_fn((n_time, n_chan), |_| noise.sample(&mut rng).round());
+        let dropped = 1000..4500;
+        raw.slice_mut(s![dropped.clone(), ..]).fill(0.0);
+        let mask = vec![false; n_chan];
+        let append = || {
+            let mut block = ChannelBlock::new(Vec::new(), n_chan, n_time);
+            let appended = block.append(raw.view(), 0, 0, &mask, &CleanConfig::default(), 500);
+            (block, appended)
+        };
+        let (block, appended) = append();
+        assert_eq!(block.mask(), &mask[..]);
+        let fraction = dropped.len() as f64 / n_time as f64;
+        assert!(
+            (appended.masked_fraction - fraction).abs() < 0.01,
+            "{}",
+            appended.masked_fraction
+        );
+        let out = block.view();
+        let (live, lost): (Vec<usize>, Vec<usize>) =
+            (0..n_time).partition(|t| !dropped.contains(t));
+        for c in 0..n_chan {
+            for rows in [&live, &lost] {
+                let n = rows.len() as f32;
+                let mean = rows.iter().map(|&t| out[[c, t]]).sum::<f32>() / n;
+                let var = rows
+                    .iter()
+                    .map(|&t| (out[[c, t]] - mean).powi(2))
+                    .sum::<f32>()
+                    / n;
+                assert!(
+                    mean.abs() < 0.1 && (var - 1.0).abs() < 0.1,
+                    "c={c}: {mean} {var}"
+                );
+            }
+        }
+        // Channels' fills are independent: the band sum over lost rows has N× the variance.
+        let sums: Vec<f32> = lost.iter().map(|&t| out.column(t).sum()).collect();
+        let var = sums.iter().map(|v| v * v).sum::<f32>() / sums.len() as f32;
+        assert!((var / n_chan as f32 - 1.0).abs() < 0.1, "{var}");
+        assert_eq!(append().0.view(), out);
     }
 
     /// The new rows are flagged by their own statistics: a channel gone wild in them
