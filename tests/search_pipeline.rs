@@ -394,6 +394,27 @@ fn zero_filled_dropouts_raise_no_candidates() {
     );
 }
 
+// A block longer than the recording holds no more than the recording: a huge
+// `block_s` costs no memory (it aborted on an allocation of 1e6 s of samples) and
+// finds what the default finds.
+#[test]
+fn blocks_are_no_longer_than_the_recording() {
+    let n = 6_000;
+    let h = header(N_CHAN, n, TSAMP);
+    let mut huge = config();
+    huge.block_s = 1e6;
+    let layout = burstbook::search::block_layout(&h, &huge).unwrap();
+    assert!(
+        layout.block_len <= layout.overlap + n as usize,
+        "{layout:?}"
+    );
+    let bursts = [burst(&h, 3.0, 150.0, 4e-3, 20.0)];
+    let (a, b) = (run(n, 31, &bursts, &huge), run(n, 31, &bursts, &config()));
+    assert_eq!(a.candidates.len(), 1, "{:#?}", a.candidates);
+    assert_eq!(b.candidates.len(), 1, "{:#?}", b.candidates);
+    assert!((a.candidates[0].dm - b.candidates[0].dm).abs() < 10.0);
+}
+
 // Recordings shorter than one dispersion sweep, or empty, are searched without error
 // (nothing can be found in them); those shorter than the highest DM's sweep are
 // searched at the lower DMs whose sweep fits.

@@ -242,7 +242,10 @@ impl<'a> Searcher<'a> {
         let max_delay = plan.max_delay_samples();
         let margin = max_width + 2 * max_ds;
         let overlap = max_delay + max_width + 2 * margin;
-        let advance = ((config.block_s / header.tsamp_s).ceil() as usize).max(overlap);
+        // New rows per block, never more than the recording holds: a longer block
+        // would only allocate memory no read can fill (`--block-s 1e6` aborted).
+        let wanted = (config.block_s / header.tsamp_s).ceil();
+        let advance = (wanted.min(header.n_samples.max(1) as f64) as usize).max(overlap);
         let layout = BlockLayout {
             max_delay,
             max_width,
