@@ -263,14 +263,19 @@ mod tests {
         assert_eq!((big.dm_lo, big.dm_hi), (10.0, 14.5));
     }
 
-    #[test]
-    fn a_fragment_on_the_bow_tie_merges_and_a_distant_event_does_not() {
-        let sweep = Sweep {
+    /// The sweep of a 1200–1600 MHz band sampled at 1 ms.
+    fn sweep_1200_1600() -> Sweep {
+        Sweep {
             tsamp_s: 1e-3,
             top_s_per_dm: 4.148808e3 / 1600f64.powi(2),
             mean_s_per_dm: 4.148808e3 / (1200.0 * 1600.0),
             band_s_per_dm: 4.148808e3 * (1200f64.powi(-2) - 1600f64.powi(-2)),
-        };
+        }
+    }
+
+    #[test]
+    fn a_fragment_on_the_bow_tie_merges_and_a_distant_event_does_not() {
+        let sweep = sweep_1200_1600();
         let cluster = |d: Detection| Cluster {
             best: d,
             dm_lo: d.dm,
@@ -306,12 +311,7 @@ mod tests {
     // echo to reach the other's S/N.
     #[test]
     fn a_distinct_pulse_within_a_faint_smeared_echo_is_not_merged() {
-        let sweep = Sweep {
-            tsamp_s: 1e-3,
-            top_s_per_dm: 4.148808e3 / 1600f64.powi(2),
-            mean_s_per_dm: 4.148808e3 / (1200.0 * 1600.0),
-            band_s_per_dm: 4.148808e3 * (1200f64.powi(-2) - 1600f64.powi(-2)),
-        };
+        let sweep = sweep_1200_1600();
         let event = |dm: f64, t_inf_s: f64, width_s: f64, snr: f64| Event {
             t_inf_s,
             dm,
