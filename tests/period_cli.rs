@@ -3,6 +3,16 @@
 use std::path::Path;
 use std::process::Command;
 
+/// A rotation search over periods around the demo rotator's.
+const ROTATION_NEAR_DEMO: [&str; 6] = [
+    "period",
+    "rotation",
+    "--min-period-s",
+    "0.3",
+    "--max-period-s",
+    "0.6",
+];
+
 fn burstbook(args: &[&str], dir: &Path) -> std::process::Output {
     Command::new(env!("CARGO_BIN_EXE_burstbook"))
         .args(args)
@@ -29,14 +39,7 @@ fn demo_sets_give_json_with_the_promised_fields() {
             .status
             .success()
     );
-    let rotation = [
-        "period",
-        "rotation",
-        "--min-period-s",
-        "0.3",
-        "--max-period-s",
-        "0.6",
-    ];
+    let rotation = ROTATION_NEAR_DEMO;
     let r = json(&burstbook(
         &[&rotation[..], &["--json", "--periodogram-out", "pg.csv"]].concat(),
         d,
@@ -92,18 +95,7 @@ fn null_sets_give_monte_carlo_faps() {
     let dir = tempfile::tempdir().unwrap();
     let d = dir.path();
     assert!(burstbook(&["period", "synth"], d).status.success());
-    let rotation = [
-        "period",
-        "rotation",
-        "--min-period-s",
-        "0.3",
-        "--max-period-s",
-        "0.6",
-        "--sims",
-        "4",
-        "--seed",
-        "3",
-    ];
+    let rotation = [&ROTATION_NEAR_DEMO[..], &["--sims", "4", "--seed", "3"]].concat();
     let r = json(&burstbook(&[&rotation[..], &["--json"]].concat(), d));
     assert_eq!(r["null"]["sets"].as_u64(), Some(4));
     assert_eq!(r["null"]["seed"].as_u64(), Some(3));
