@@ -166,10 +166,17 @@ impl Header {
                 self.freqs_mhz.len()
             ));
         }
-        if !(self.ra_deg.is_finite() && self.dec_deg.is_finite() && self.dec_deg.abs() <= 90.0) {
+        if !((0.0..=360.0).contains(&self.ra_deg) && self.dec_deg.abs() <= 90.0) {
             return Err(format!(
-                "bad sky position ra={} dec={}",
+                "bad sky position ra={} dec={} (need 0 <= ra <= 360, |dec| <= 90 degrees)",
                 self.ra_deg, self.dec_deg
+            ));
+        }
+        let site = &self.site;
+        if !(site.lat_deg.abs() <= 90.0 && site.lon_deg.is_finite() && site.height_m.is_finite()) {
+            return Err(format!(
+                "bad site lon={} lat={} height={} m (need |lat| <= 90 degrees)",
+                site.lon_deg, site.lat_deg, site.height_m
             ));
         }
         if !self.start.sec.is_finite() {
@@ -241,8 +248,24 @@ pub(crate) mod tests {
         bad.freqs_mhz.clear();
         bad.weights.clear();
         assert!(bad.validate().unwrap_err().contains("zero channels"));
-        let mut bad = h;
+        let mut bad = h.clone();
         bad.weights.pop();
         assert!(bad.validate().unwrap_err().contains("weights"));
+        for (ra, dec) in [(400.0, 0.0), (-1.0, 0.0), (f64::NAN, 0.0), (10.0, 91.0)] {
+            let mut bad = h.clone();
+            (bad.ra_deg, bad.dec_deg) = (ra, dec);
+            assert!(
+                bad.validate().unwrap_err().contains("sky position"),
+                "{ra} {dec}"
+            );
+        }
+        for (lon, lat) in [(0.0, 100.0), (0.0, f64::NAN), (f64::INFINITY, 0.0)] {
+            let mut bad = h.clone();
+            (bad.site.lon_deg, bad.site.lat_deg) = (lon, lat);
+            assert!(
+                bad.validate().unwrap_err().contains("bad site"),
+                "{lon} {lat}"
+            );
+        }
     }
 }
