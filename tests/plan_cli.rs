@@ -76,6 +76,22 @@ fn text_plan_and_bad_input() {
         "{err}"
     );
 
+    // For a file, no trial beyond the sweep its 60 s can hold (the demo band's
+    // centres 1200.78–1599.22 MHz sweep 1.255 ms per unit DM: DM ≈ 47 800).
+    let out = plan(&["demo-data/demo.json", "--dm-max", "1e9", "--json"]);
+    assert!(out.status.success());
+    let report: serde_json::Value = serde_json::from_slice(&out.stdout).expect("JSON");
+    let last = report["plan"]["steps"].as_array().unwrap().last().unwrap()["dms"]
+        .as_array()
+        .unwrap()
+        .last()
+        .unwrap()
+        .as_f64()
+        .unwrap();
+    assert!((last - 47_803.0).abs() < 1.0, "{last}");
+    let out = plan(&["demo-data/demo.json", "--dm-max", "1e9"]);
+    assert!(String::from_utf8_lossy(&out.stdout).contains("up to DM 47803.0"));
+
     let out = plan(&[]);
     assert!(!out.status.success());
     assert!(String::from_utf8_lossy(&out.stderr).contains("give an observation file"));

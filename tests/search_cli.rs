@@ -176,4 +176,19 @@ fn bad_input_fails_with_one_line_naming_the_file() {
     ]);
     assert!(!o.status.success());
     assert!(String::from_utf8_lossy(&o.stderr).contains("DM range"));
+
+    // A search beyond its memory limit is refused up front, naming the file.
+    let fine = dir.path().join("fine.json");
+    simulate(&fine, Container::Native, 3);
+    let o = burstbook(&[
+        "search",
+        fine.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+        "--memory-limit-gib",
+        "0.00001",
+        "--no-catalogue",
+    ]);
+    assert_one_line_failure(&o, &["fine.json", "--memory-limit-gib"]);
+    assert!(!out.join("candidates.csv").exists());
 }

@@ -415,6 +415,53 @@ fn blocks_are_no_longer_than_the_recording() {
     assert!((a.candidates[0].dm - b.candidates[0].dm).abs() < 10.0);
 }
 
+// A highest DM far beyond any sweep the recording can hold (10⁹ pc cm⁻³ sized the
+// kernel at terabytes and aborted) is cut to the DM whose sweep spans the recording;
+// the burst is found as before, and a search too large for its memory limit is
+// refused before anything is allocated.
+#[test]
+fn dm_range_is_cut_to_the_recording_and_memory_is_checked() {
+    let n = 6_000;
+    let h = header(N_CHAN, n, TSAMP);
+    let mut huge = config();
+    huge.plan.dm_max = 1e9;
+    let bursts = [burst(&h, 3.0, 150.0, 4e-3, 20.0)];
+    let r = run(n, 37, &bursts, &huge);
+    // k (ν_lo⁻² − ν_hi⁻²) over the channel centres (Lorimer & Kramer 2005).
+    let (lo, hi) = (h.freq_lo_mhz(), h.freq_hi_mhz());
+    let fit = h.duration_s() / (K_HANDBOOK_S_MHZ2 * (lo.powi(-2) - hi.powi(-2)));
+    let top = r.plan.max_dm();
+    assert!(
+        (top - fit).abs() < 1e-3 * fit,
+        "plan ends at {top}, sweep fits {fit}"
+    );
+    assert!(r.highest_dm_searched().is_some_and(|dm| dm <= top));
+    assert_eq!(r.candidates.len(), 1, "{:#?}", r.candidates);
+    assert!(
+        (r.candidates[0].dm - 150.0).abs() < 15.0,
+        "{:#?}",
+        r.candidates
+    );
+
+    let mut tight = config();
+    tight.memory_limit_gib = Some(1e-4);
+    let h2 = header(N_CHAN, n, TSAMP);
+    let e = search_source(
+        source(h2.clone(), noise(&h2, 1)),
+        "tight.json",
+        &tight,
+        None,
+    )
+    .unwrap_err()
+    .to_string();
+    assert!(
+        e.starts_with("tight.json: ") && e.contains("GiB of memory"),
+        "{e}"
+    );
+    tight.memory_limit_gib = Some(1.0);
+    assert!(search_source(source(h2.clone(), noise(&h2, 1)), "r", &tight, None).is_ok());
+}
+
 // Recordings shorter than one dispersion sweep, or empty, are searched without error
 // (nothing can be found in them); those shorter than the highest DM's sweep are
 // searched at the lower DMs whose sweep fits.

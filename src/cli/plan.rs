@@ -65,8 +65,8 @@ pub struct Args {
 }
 
 pub fn run(args: Args) -> anyhow::Result<()> {
-    let (freqs, chan_bw, tsamp_s) = band(&args)?;
-    let request = PlanRequest {
+    let (freqs, chan_bw, tsamp_s, duration_s) = band(&args)?;
+    let asked = PlanRequest {
         dm_min: args.dm_min,
         dm_max: args.dm_max,
         min_width_s: args.min_width_ms * 1e-3,
@@ -74,12 +74,25 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         max_downsample: args.max_downsample,
         smearing_fraction: args.smearing_fraction,
     };
+    // As a search of the file would: no trial beyond the sweep the file can hold.
+    let request = match duration_s {
+        Some(d) => asked.within_sweep(&freqs, d),
+        None => asked.clone(),
+    };
     let plan = DmPlan::build(&freqs, chan_bw, tsamp_s, &request).context("planning trial DMs")?;
     let report = plan.report();
     let text = if args.json {
         serde_json::to_string_pretty(&report)? + "\n"
     } else {
-        format_report(&report, &request)?
+        let mut text = format_report(&report, &request)?;
+        if let Some(d) = duration_s.filter(|_| request.dm_max < asked.dm_max) {
+            text += &format!(
+                "Note: the recording's {d:.1} s hold whole sweeps only up to DM {:.1}; \
+                 the plan stops there, as a search of it does.\n",
+                request.dm_max
+            );
+        }
+        text
     };
     // A closed pipe (e.g. `| head`) is not an error worth reporting.
     match std::io::stdout().lock().write_all(text.as_bytes()) {
@@ -88,13 +101,19 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     }
 }
 
-/// Channel centres (MHz), channel width (MHz) and sample time (s) from the file or flags.
-fn band(args: &Args) -> anyhow::Result<(Vec<f64>, f64, f64)> {
+/// Channel centres (MHz), channel width (MHz), sample time (s) and, for a file, its
+/// length (s), from the file or flags.
+fn band(args: &Args) -> anyhow::Result<(Vec<f64>, f64, f64, Option<f64>)> {
     if let Some(path) = &args.file {
         let source = burstbook::obs::open(path)
             .with_context(|| format!("reading the header of {}", path.display()))?;
         let h = source.header();
-        return Ok((h.freqs_mhz.clone(), h.chan_bw_mhz, h.tsamp_s));
+        return Ok((
+            h.freqs_mhz.clone(),
+            h.chan_bw_mhz,
+            h.tsamp_s,
+            Some(h.duration_s()),
+        ));
     }
     match (
         args.freq_lo_mhz,
@@ -107,7 +126,7 @@ fn band(args: &Args) -> anyhow::Result<(Vec<f64>, f64, f64)> {
                 bail!("need 0 < --freq-lo-mhz < --freq-hi-mhz, --channels > 0 and --tsamp-us > 0");
             }
             let (freqs, bw) = channel_centres_mhz(lo, hi, n);
-            Ok((freqs, bw, ts * 1e-6))
+            Ok((freqs, bw, ts * 1e-6, None))
         }
         _ => bail!(
             "give an observation file, or --freq-lo-mhz, --freq-hi-mhz, --channels and --tsamp-us"

@@ -55,6 +55,10 @@ pub struct Args {
     /// New samples per block in seconds.
     #[arg(long)]
     pub block_s: Option<f64>,
+    /// Memory the search may use, in GiB [default: 90 % of physical memory]. A search
+    /// whose blocks and plan would need more is refused before it starts.
+    #[arg(long, value_name = "GIB")]
+    pub memory_limit_gib: Option<f64>,
     /// Catalogue that records each searched file [default: $BURSTBOOK_CATALOGUE, else ./burstbook.sqlite].
     #[arg(long, value_name = "PATH")]
     pub catalogue: Option<PathBuf>,
@@ -100,6 +104,7 @@ fn config(args: &Args) -> anyhow::Result<SearchConfig> {
     if let Some(v) = args.block_s {
         c.block_s = v;
     }
+    c.memory_limit_gib = args.memory_limit_gib.or(c.memory_limit_gib);
     c.clean.zero_dm |= args.zero_dm;
     c.clean.kurtosis &= !args.no_kurtosis;
     c.clean.masks_mhz.extend(&args.mask_mhz);
@@ -179,12 +184,14 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     let json = args.out.join("candidates.json");
     output::write_csv(&csv, &files)?;
     output::write_json(&json, &files, &config)?;
-    print_summary(&files, args.top);
+    print_summary(&files, args.top, config.plan.dm_max);
     println!("wrote {} and {}", csv.display(), json.display());
     Ok(())
 }
 
-fn print_summary(files: &[FileOutcome], top: usize) {
+/// Prints per-file totals and the `top` brightest candidates; `dm_max` is the highest
+/// DM asked for, which a short recording may not reach.
+fn print_summary(files: &[FileOutcome], top: usize, dm_max: f64) {
     use burstbook::Verdict;
     let searched = files.iter().filter_map(|f| match f {
         FileOutcome::Searched(r) => Some(&**r),
@@ -205,11 +212,10 @@ fn print_summary(files: &[FileOutcome], top: usize) {
             count(Verdict::Unsure),
             count(Verdict::Rfi),
         );
-        let max_dm = r.plan.max_dm();
         match r.highest_dm_searched() {
-            Some(dm) if dm >= max_dm => {}
+            Some(dm) if dm >= dm_max => {}
             Some(dm) => println!(
-                "  note: {} is shorter than the sweep at DM {max_dm:.0}: searched only up to DM {dm:.1}",
+                "  note: {} is shorter than the sweep at DM {dm_max:.0}: searched only up to DM {dm:.1}",
                 r.file
             ),
             None => println!(

@@ -52,6 +52,25 @@ impl Default for PlanRequest {
     }
 }
 
+impl PlanRequest {
+    /// The request with `dm_max` lowered, if need be, to the DM whose sweep across
+    /// the channel centres `freqs_mhz` spans `duration_s`: a recording that long holds
+    /// no whole sweep at any higher DM, so those trials could search nothing, and
+    /// planning them would size the kernel for nothing (a `dm_max` of 10⁹ asked for
+    /// terabytes). Never below `dm_min`; unchanged for an empty or degenerate band.
+    pub fn within_sweep(&self, freqs_mhz: &[f64], duration_s: f64) -> PlanRequest {
+        let lo = freqs_mhz.iter().copied().fold(f64::INFINITY, f64::min);
+        let hi = freqs_mhz.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+        let sweep_s_per_dm = crate::units::delay_between_s(1.0, lo, hi);
+        let mut capped = self.clone();
+        if sweep_s_per_dm.is_finite() && sweep_s_per_dm > 0.0 && duration_s >= 0.0 {
+            let fit = duration_s / sweep_s_per_dm;
+            capped.dm_max = self.dm_max.min(fit).max(self.dm_min);
+        }
+        capped
+    }
+}
+
 /// A run of trial DMs searched at one time resolution.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct DmStep {

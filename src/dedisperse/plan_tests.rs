@@ -295,3 +295,38 @@ fn boxcar_strides_keep_wide_pulses_within_the_tolerance() {
         );
     }
 }
+
+// The sweep across the survey's channel centres is 4.148808e3 s MHz² · DM ·
+// (ν_lo⁻² − ν_hi⁻²) (Lorimer & Kramer 2005), with centres 1200.195 and 1599.805 MHz:
+// 1.2592 ms per unit DM, so 10 s of data hold whole sweeps up to DM ≈ 7942.
+#[test]
+fn within_sweep_cuts_the_dm_range_at_the_recordings_length() {
+    let (freqs, _, _) = survey_band();
+    let (lo, hi) = (freqs[1023], freqs[0]);
+    let per_dm = 4.148808e3 * (lo.powi(-2) - hi.powi(-2));
+    assert!((per_dm - 1.2592e-3).abs() < 1e-7, "{per_dm}");
+    let huge = request(1.25, 0.0, 1e9);
+    let cut = huge.within_sweep(&freqs, 10.0);
+    assert!((cut.dm_max - 10.0 / per_dm).abs() < 1e-6, "{}", cut.dm_max);
+    assert!((cut.dm_max - 7942.0).abs() < 1.0, "{}", cut.dm_max);
+    assert_eq!(
+        PlanRequest {
+            dm_max: 1e9,
+            ..cut.clone()
+        },
+        huge
+    );
+    // A recording long enough changes nothing; one shorter than the lowest DM's
+    // sweep keeps a single trial at dm_min.
+    assert_eq!(
+        request(1.25, 0.0, 2000.0).within_sweep(&freqs, 10.0),
+        request(1.25, 0.0, 2000.0)
+    );
+    let high = PlanRequest {
+        dm_min: 500.0,
+        ..request(1.25, 0.0, 2000.0)
+    };
+    assert_eq!(high.within_sweep(&freqs, 0.1).dm_max, 500.0);
+    // One channel has no sweep to cut by.
+    assert_eq!(huge.within_sweep(&[1400.0], 10.0), huge);
+}

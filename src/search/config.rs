@@ -81,6 +81,11 @@ pub struct SearchConfig {
     pub cluster: ClusterConfig,
     /// Triage verdict thresholds.
     pub triage: TriageConfig,
+    /// Memory the search may use, GiB (`None`: 90 % of physical memory; see
+    /// [`super::memory`]). A resource, not a setting of the science: it is neither
+    /// read from TOML nor part of [`Self::to_json`] and [`Self::hash`].
+    #[serde(skip)]
+    pub memory_limit_gib: Option<f64>,
 }
 
 impl Default for SearchConfig {
@@ -96,6 +101,7 @@ impl Default for SearchConfig {
             clean: CleanConfig::default(),
             cluster: ClusterConfig::default(),
             triage: TriageConfig::default(),
+            memory_limit_gib: None,
         }
     }
 }
@@ -171,6 +177,11 @@ impl SearchConfig {
                 "block length must be positive, got {} s",
                 self.block_s
             ));
+        }
+        if let Some(gib) = self.memory_limit_gib
+            && !(gib.is_finite() && gib > 0.0)
+        {
+            return bad(format!("memory limit must be positive, got {gib} GiB"));
         }
         self.clean.validate()
     }

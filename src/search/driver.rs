@@ -16,6 +16,7 @@ use super::boxcar::{self, Scratch};
 use super::channels::{Appended, ChannelBlock};
 use super::features::{self, BlockData};
 use super::fluence::fluence_jy_ms;
+use super::memory;
 use super::normalise::{NormalisedSeries, SERIES_SIGMA_VALUES, normalise_series};
 use super::trials::{self, TrialCount};
 use crate::candidate::Candidate;
@@ -210,11 +211,15 @@ struct Searcher<'a> {
 
 impl<'a> Searcher<'a> {
     fn new(header: Header, config: &'a SearchConfig, label: &'a str) -> Result<Self> {
+        // Trials whose sweep outlasts the recording could search nothing.
+        let request = config
+            .plan
+            .within_sweep(&header.freqs_mhz, header.duration_s());
         let plan = DmPlan::build(
             &header.freqs_mhz,
             header.chan_bw_mhz,
             header.tsamp_s,
-            &config.plan,
+            &request,
         )?;
         let max_width = ((config.max_width_s / header.tsamp_s).floor() as usize).max(1);
         let widths: Vec<Vec<usize>> = plan
@@ -231,7 +236,7 @@ impl<'a> Searcher<'a> {
                     .collect()
             })
             .collect();
-        let strides = dedisperse::boxcar_strides(&plan, &config.plan, &widths_s)?;
+        let strides = dedisperse::boxcar_strides(&plan, &request, &widths_s)?;
         let max_ds = plan.steps.iter().map(|s| s.downsample).max().unwrap_or(1);
         let max_width = widths
             .iter()
@@ -254,6 +259,9 @@ impl<'a> Searcher<'a> {
             block_len: overlap + advance,
             baseline_len: ((config.baseline_s / header.tsamp_s).round() as usize).max(1),
         };
+        let limit = memory::limit_bytes(config.memory_limit_gib);
+        memory::check(&layout, &plan, header.n_chan(), header.tsamp_s, limit)
+            .map_err(|m| Error::bad_input(label, m))?;
         let dm_offsets = plan
             .steps
             .iter()

@@ -1,0 +1,136 @@
+//! What a search will hold in memory, estimated before any of it is allocated, so
+//! that a request too large for the machine (a huge DM range, a block of hours)
+//! gets one clear error instead of an aborted allocation.
+
+use super::blocks::BlockLayout;
+use crate::dedisperse::DmPlan;
+
+const GIB: f64 = (1u64 << 30) as f64;
+
+/// Bytes a search of blocks laid out as `layout` over `n_chan` channels holds at
+/// once (f32 samples throughout):
+/// - the channel-major block itself;
+/// - two reads of up to a block each (one being filled while one waits);
+/// - the fast kernel's halved copies of the block for its coarser steps (at most
+///   half a block each for the current and the next halving);
+/// - every step's dedispersed output for one block;
+/// - the kernel's stage-1 scratch ([`DmPlan::cost`]).
+///
+/// Thread-local scratch of the matched filter is small beside these and left out.
+pub fn estimate_bytes(layout: &BlockLayout, plan: &DmPlan, n_chan: usize) -> f64 {
+    let block_values = (layout.block_len * n_chan) as f64;
+    let outputs: f64 = plan
+        .steps
+        .iter()
+        .map(|s| (s.dms.len() * (layout.block_len / s.downsample)) as f64)
+        .sum();
+    let f32_bytes = size_of::<f32>() as f64;
+    (4.0 * block_values + outputs) * f32_bytes + plan.cost().fast_scratch_bytes
+}
+
+/// Refuses a search needing more than `limit_bytes` (`None`: no limit).
+///
+/// # Errors
+/// When the estimate exceeds the limit: a message naming the need, what drives it
+/// and what to change (the caller names the recording).
+pub fn check(
+    layout: &BlockLayout,
+    plan: &DmPlan,
+    n_chan: usize,
+    tsamp_s: f64,
+    limit_bytes: Option<f64>,
+) -> Result<(), String> {
+    let need = estimate_bytes(layout, plan, n_chan);
+    match limit_bytes {
+        Some(limit) if need > limit => Err(format!(
+            "the search would need about {:.2} GiB of memory, more than the limit of {:.2} GiB: \
+             its blocks span {:.1} s (the sweep at DM {:.1} alone is {:.1} s) and its plan has {} \
+             trial DMs; lower the highest DM, shorten the blocks, or raise --memory-limit-gib",
+            need / GIB,
+            limit / GIB,
+            layout.block_len as f64 * tsamp_s,
+            plan.max_dm(),
+            layout.max_delay as f64 * tsamp_s,
+            plan.n_trials(),
+        )),
+        _ => Ok(()),
+    }
+}
+
+/// The default memory limit: 90 % of the machine's physical memory where it can be
+/// read (`MemTotal` of `/proc/meminfo` on Linux), otherwise none.
+pub fn default_limit_bytes() -> Option<f64> {
+    let text = std::fs::read_to_string("/proc/meminfo").ok()?;
+    parse_mem_total_bytes(&text).map(|b| 0.9 * b)
+}
+
+/// `MemTotal` of a `/proc/meminfo` text, in bytes.
+fn parse_mem_total_bytes(meminfo: &str) -> Option<f64> {
+    let line = meminfo.lines().find(|l| l.starts_with("MemTotal:"))?;
+    let mut words = line["MemTotal:".len()..].split_whitespace();
+    let value: f64 = words.next()?.parse().ok()?;
+    match words.next() {
+        Some("kB") => Some(value * 1024.0),
+        _ => None,
+    }
+}
+
+/// A limit in GiB as bytes, or the default when `None`.
+pub fn limit_bytes(limit_gib: Option<f64>) -> Option<f64> {
+    match limit_gib {
+        Some(gib) => Some(gib * GIB),
+        None => default_limit_bytes(),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn layout(block_len: usize, max_delay: usize) -> BlockLayout {
+        BlockLayout {
+            max_delay,
+            max_width: 1,
+            margin: 3,
+            overlap: max_delay + 7,
+            block_len,
+            baseline_len: 10,
+        }
+    }
+
+    #[test]
+    fn estimate_counts_block_reads_and_outputs() {
+        let freqs: Vec<f64> = (0..16).map(|i| 1600.0 - 25.0 * i as f64).collect();
+        let plan = DmPlan::uniform(freqs, 25.0, 1e-3, 0.0, 100.0, 10);
+        let bytes = estimate_bytes(&layout(1000, 300), &plan, 16);
+        // 4 block copies of 16 × 1000 f32 and 10 trials × 1000 outputs, plus scratch.
+        let floor = (4.0 * 16_000.0 + 10_000.0) * 4.0;
+        let scratch = plan.cost().fast_scratch_bytes;
+        assert_eq!(bytes, floor + scratch);
+        assert!(scratch > 0.0);
+    }
+
+    #[test]
+    fn check_refuses_beyond_the_limit_with_the_reason() {
+        let freqs: Vec<f64> = (0..16).map(|i| 1600.0 - 25.0 * i as f64).collect();
+        let plan = DmPlan::uniform(freqs, 25.0, 1e-3, 0.0, 100.0, 10);
+        let l = layout(1000, 300);
+        let need = estimate_bytes(&l, &plan, 16);
+        assert!(check(&l, &plan, 16, 1e-3, Some(need)).is_ok());
+        assert!(check(&l, &plan, 16, 1e-3, None).is_ok());
+        let e = check(&l, &plan, 16, 1e-3, Some(need / 2.0)).unwrap_err();
+        assert!(
+            e.contains("--memory-limit-gib") && e.contains("DM 100.0"),
+            "{e}"
+        );
+    }
+
+    #[test]
+    fn reads_mem_total() {
+        let text = "MemTotal:       24576000 kB\nMemFree:         1000 kB\n";
+        assert_eq!(parse_mem_total_bytes(text), Some(24_576_000.0 * 1024.0));
+        assert_eq!(parse_mem_total_bytes("MemFree: 3 kB\n"), None);
+        assert_eq!(parse_mem_total_bytes("MemTotal: lots\n"), None);
+        assert_eq!(limit_bytes(Some(2.0)), Some(2.0 * GIB));
+    }
+}
