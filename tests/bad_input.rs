@@ -146,7 +146,7 @@ fn native_unsupported_dtype() {
 fn native_wrong_json_types_and_values() {
     let dir = tempfile::tempdir().unwrap();
     type Edit = fn(&mut serde_json::Value);
-    let cases: [(&str, Edit, &str); 6] = [
+    let cases: [(&str, Edit, &str); 7] = [
         (
             "type",
             |v| v["sample_time_s"] = "fast".into(),
@@ -168,6 +168,11 @@ fn native_wrong_json_types_and_values() {
             "missing field `ra_deg`",
         ),
         ("format", |v| v["format"] = "other".into(), "\"format\""),
+        (
+            "hertz",
+            |v| v["channels"]["first_mhz"] = 1.4e9.into(),
+            "outside the radio window",
+        ),
         (
             "badchan",
             |v| v["bad_channels"] = serde_json::json!([9]),

@@ -4,6 +4,12 @@ use serde::{Deserialize, Serialize};
 
 use crate::units::SECONDS_PER_DAY;
 
+/// Channel centres a header may hold, MHz: from below the ionosphere's cutoff (about
+/// 10 MHz) to the top of the submillimetre band (1 THz), `common practice`. Anything
+/// outside is a unit or encoding mistake (Hz or GHz for MHz, a garbled value), and
+/// would make dispersion delays absurd (1e-300 MHz sized the plan at terabytes).
+const RADIO_WINDOW_MHZ: std::ops::RangeInclusive<f64> = 1.0..=1.0e6;
+
 /// An observing site on the WGS84 ellipsoid.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct Site {
@@ -149,14 +155,25 @@ impl Header {
         if let Some(f) = self
             .freqs_mhz
             .iter()
-            .find(|f| !(f.is_finite() && **f > 0.0))
+            .find(|f| !RADIO_WINDOW_MHZ.contains(*f))
         {
-            return Err(format!("channel frequency must be positive, got {f}"));
+            return Err(format!(
+                "channel frequency {f} MHz is outside the radio window of {} MHz to {} MHz",
+                RADIO_WINDOW_MHZ.start(),
+                RADIO_WINDOW_MHZ.end()
+            ));
         }
         if !(self.chan_bw_mhz.is_finite() && self.chan_bw_mhz > 0.0) {
             return Err(format!(
                 "channel width must be positive, got {}",
                 self.chan_bw_mhz
+            ));
+        }
+        if self.freq_lo_mhz() - self.chan_bw_mhz / 2.0 <= 0.0 {
+            return Err(format!(
+                "channel width {} MHz puts the lowest channel ({} MHz) below 0 MHz",
+                self.chan_bw_mhz,
+                self.freq_lo_mhz()
             ));
         }
         if self.weights.len() != self.freqs_mhz.len() {
@@ -251,6 +268,14 @@ pub(crate) mod tests {
         let mut bad = h.clone();
         bad.weights.pop();
         assert!(bad.validate().unwrap_err().contains("weights"));
+        for f in [1e-300, 0.5, 0.0, -1400.0, 2e6, 1e308, f64::NAN] {
+            let mut bad = h.clone();
+            bad.freqs_mhz[3] = f;
+            assert!(bad.validate().unwrap_err().contains("radio window"), "{f}");
+        }
+        let mut bad = h.clone();
+        bad.chan_bw_mhz = 4000.0;
+        assert!(bad.validate().unwrap_err().contains("below 0 MHz"));
         for (ra, dec) in [(400.0, 0.0), (-1.0, 0.0), (f64::NAN, 0.0), (10.0, 91.0)] {
             let mut bad = h.clone();
             (bad.ra_deg, bad.dec_deg) = (ra, dec);
