@@ -394,6 +394,37 @@ fn zero_filled_dropouts_raise_no_candidates() {
     );
 }
 
+// Lost packets of one part of the band: half the channels zero-filled for 1.5 s are
+// set aside like whole rows. (Before, the sub-band's edges raised a dozen candidates
+// at DMs 2–300.)
+#[test]
+fn zero_filled_partial_band_dropouts_raise_no_candidates() {
+    let n = 12_000;
+    let h = header(N_CHAN, n, TSAMP);
+    let mut data = noise(&h, 29);
+    for t in 5_000..6_500 {
+        data[t * N_CHAN + 8..t * N_CHAN + 24].fill(0.0);
+    }
+    let bursts = [
+        burst(&h, 2.0, 100.0, 2e-3, 15.0),
+        burst(&h, 7.0, 200.0, 2e-3, 15.0),
+    ];
+    let r = run_on(data, n, &bursts, &config());
+    assert_eq!(r.candidates.len(), bursts.len(), "{:#?}", r.candidates);
+    for (b, c) in bursts.iter().zip(&r.candidates) {
+        assert!(
+            (c.t_inf_s - b.t_inf_s).abs() < 0.01 && (c.dm - b.dm).abs() < 0.1 * b.dm,
+            "{c:#?}"
+        );
+    }
+    // 1500 of 12 000 rows were lost in half the channels.
+    assert!(
+        (r.fraction_masked - 0.0625).abs() < 0.01,
+        "{}",
+        r.fraction_masked
+    );
+}
+
 // A block longer than the recording holds no more than the recording: a huge
 // `block_s` costs no memory (it aborted on an allocation of 1e6 s of samples) and
 // finds what the default finds.

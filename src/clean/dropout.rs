@@ -8,26 +8,142 @@
 //! (`search::channels`), counted as masked. Recognising lost data by zero fill is
 //! common practice.
 
+use std::ops::Range;
+
 use ndarray::ArrayView2;
 
-/// Unmasked channels a row needs before "all exactly zero" means dropped data: with
-/// fewer, an all-zero row is too likely in real low-bit data (for 1-bit samples
-/// 2⁻ⁿ of the rows of n channels are all zero; 1.5 × 10⁻⁵ at 16).
+/// Fewest channels a zero run needs to count as dropped data: in real low-bit data
+/// shorter runs of exact zeros are too likely (for 1-bit samples 2⁻ⁿ of the runs of
+/// n channels are zero; 1.5 × 10⁻⁵ at 16).
 pub const MIN_CHANNELS: usize = 16;
 
-/// Indices of the rows of `raw` (`[time, channel]`) in which every channel not in
-/// `mask` holds exactly zero; none if fewer than [`MIN_CHANNELS`] are unmasked.
-pub fn dropped_rows(raw: ArrayView2<'_, f32>, mask: &[bool]) -> Vec<usize> {
-    let unmasked: Vec<usize> = (0..mask.len()).filter(|&c| !mask[c]).collect();
-    if unmasked.len() < MIN_CHANNELS {
+/// Zero runs that noise alone may make per read, at most: the run length is chosen
+/// so that a read of independent samples, each zero as often as in the read, holds
+/// fewer than this many by chance.
+const CHANCE_RUNS_PER_READ: f64 = 1e-3;
+
+/// Dropped data: rows `rows` of channels `chans` (indices into a read) are exactly
+/// zero. Channels in `chans` that were masked may hold anything.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Dropout {
+    /// Rows of the read.
+    pub rows: Range<usize>,
+    /// Channels, from the first to one past the last of the zero run.
+    pub chans: Range<usize>,
+}
+
+/// The dropped data of `raw` (`[time, channel]`): in each row, the runs of
+/// consecutive channels not in `mask` that are all exactly zero and long enough
+/// that noise would not make them (at least [`MIN_CHANNELS`], longer when zeros are
+/// common in the read, but never more than every such channel, so a whole row of
+/// zeros always counts), merged over consecutive rows. Lost packets of one part of
+/// the band thus show as a rectangle, and of the whole band as whole rows. A
+/// channel that is zero throughout the read is a dead channel, not lost data: it is
+/// left to the channel flagging (it is constant) and never part of a run.
+pub fn dropouts(raw: ArrayView2<'_, f32>, mask: &[bool]) -> Vec<Dropout> {
+    let (n_rows, n_chan) = raw.dim();
+    let dead: Vec<bool> = (0..n_chan)
+        .map(|c| mask[c] || raw.column(c).iter().all(|&v| v == 0.0))
+        .collect();
+    let live: Vec<usize> = (0..n_chan).filter(|&c| !dead[c]).collect();
+    if live.len() < MIN_CHANNELS || n_rows == 0 {
         return Vec::new();
     }
-    raw.rows()
+    // A run of at least MIN_CHANNELS live channels holds one whose place among them
+    // is a multiple of MIN_CHANNELS: only rows with a zero there can hold a run, so
+    // most reads are cleared by a look at one sample in MIN_CHANNELS.
+    let probes: Vec<usize> = live.iter().copied().step_by(MIN_CHANNELS).collect();
+    let suspects: Vec<usize> = (0..n_rows)
+        .filter(|&t| probes.iter().any(|&c| raw[[t, c]] == 0.0))
+        .collect();
+    if suspects.is_empty() {
+        return Vec::new();
+    }
+    let zeros = raw
+        .rows()
         .into_iter()
-        .enumerate()
-        .filter(|(_, row)| unmasked.iter().all(|&c| row[c] == 0.0))
-        .map(|(t, _)| t)
-        .collect()
+        .map(|row| live.iter().filter(|&&c| row[c] == 0.0).count())
+        .sum::<usize>();
+    let cells = n_rows * live.len();
+    let min_run = min_run(zeros as f64 / cells as f64, cells).clamp(MIN_CHANNELS, live.len());
+    let mut found: Vec<Dropout> = Vec::new();
+    // Rectangles that reached the row before.
+    let mut open: Vec<usize> = Vec::new();
+    for t in suspects {
+        let row = raw.row(t);
+        let mut still_open = Vec::new();
+        let mut run_start = None;
+        for (i, &c) in live.iter().enumerate() {
+            let zero = row[c] == 0.0;
+            if zero && run_start.is_none() {
+                run_start = Some(i);
+            }
+            let run_ends = !zero || i + 1 == live.len();
+            if let (true, Some(first)) = (run_ends, run_start) {
+                let last = if zero { i } else { i - 1 };
+                if last + 1 - first >= min_run {
+                    let chans = live[first]..live[last] + 1;
+                    let extends = open
+                        .iter()
+                        .copied()
+                        .find(|&k| found[k].chans == chans && found[k].rows.end == t);
+                    match extends {
+                        Some(k) => {
+                            found[k].rows.end = t + 1;
+                            still_open.push(k);
+                        }
+                        None => {
+                            still_open.push(found.len());
+                            found.push(Dropout {
+                                rows: t..t + 1,
+                                chans,
+                            });
+                        }
+                    }
+                }
+                run_start = None;
+            }
+        }
+        open = still_open;
+    }
+    found
+}
+
+/// Shortest zero run that `cells` independent samples, each zero with probability
+/// `p_zero`, make fewer than [`CHANCE_RUNS_PER_READ`] times (about `cells` starts,
+/// each beginning a run of `n` with probability `p_zero`ⁿ).
+fn min_run(p_zero: f64, cells: usize) -> usize {
+    if p_zero >= 1.0 {
+        return usize::MAX;
+    }
+    let n = (CHANCE_RUNS_PER_READ / cells as f64).ln() / p_zero.ln();
+    n.ceil().max(1.0) as usize
+}
+
+/// The rows of a read of `n_rows` rows in no dropout, ascending.
+pub fn untouched_rows(dropouts: &[Dropout], n_rows: usize) -> Vec<usize> {
+    let mut touched = vec![false; n_rows];
+    for d in dropouts {
+        touched[d.rows.clone()].fill(true);
+    }
+    (0..n_rows).filter(|&t| !touched[t]).collect()
+}
+
+/// The rows of channel `chan` in no dropout, ascending; `None` when none of its
+/// rows is in one.
+pub fn live_rows(dropouts: &[Dropout], chan: usize, n_rows: usize) -> Option<Vec<usize>> {
+    let covering: Vec<&Dropout> = dropouts
+        .iter()
+        .filter(|d| d.chans.contains(&chan))
+        .collect();
+    if covering.is_empty() {
+        return None;
+    }
+    Some(
+        (0..n_rows)
+            .filter(|t| covering.iter().all(|d| !d.rows.contains(t)))
+            .collect(),
+    )
 }
 
 #[cfg(test)]
@@ -36,19 +152,76 @@ mod tests {
     use ndarray::Array2;
 
     #[test]
-    fn only_rows_zero_in_every_unmasked_channel_are_dropped() {
+    fn whole_rows_of_zeros_in_every_unmasked_channel_are_dropped() {
         let n_chan = MIN_CHANNELS + 1;
         let mut raw = Array2::from_elem((6, n_chan), 96.0f32);
         raw.row_mut(1).fill(0.0);
         raw.row_mut(2).fill(0.0);
-        raw[[2, 5]] = 1.0; // one channel holds data: not dropped
+        raw[[2, 5]] = 1.0; // one channel holds data: runs of 5 and 11, too short
         raw.row_mut(4).fill(0.0);
         raw[[4, 0]] = 7.0; // only a masked channel holds data
         let mut mask = vec![false; n_chan];
         mask[0] = true;
-        assert_eq!(dropped_rows(raw.view(), &mask), vec![1, 4]);
+        let all = 1..n_chan;
+        assert_eq!(
+            dropouts(raw.view(), &mask),
+            vec![
+                Dropout {
+                    rows: 1..2,
+                    chans: all.clone()
+                },
+                Dropout {
+                    rows: 4..5,
+                    chans: all
+                }
+            ]
+        );
+        assert_eq!(
+            untouched_rows(&dropouts(raw.view(), &mask), 6),
+            vec![0, 2, 3, 5]
+        );
         // Too few channels to tell lost data from low-bit samples.
         mask[1] = true;
-        assert!(dropped_rows(raw.view(), &mask).is_empty());
+        assert!(dropouts(raw.view(), &mask).is_empty());
+    }
+
+    #[test]
+    fn a_zero_filled_sub_band_is_one_rectangle_and_dead_channels_are_not_data() {
+        let n_chan = 64;
+        let mut raw = Array2::from_shape_fn((100, n_chan), |(t, c)| (1 + (t + c) % 5) as f32);
+        for t in 30..70 {
+            raw.row_mut(t).slice_mut(ndarray::s![16..48]).fill(0.0);
+        }
+        raw.column_mut(40).fill(0.0); // dead throughout: not part of a run
+        let mask = vec![false; n_chan];
+        let found = dropouts(raw.view(), &mask);
+        assert_eq!(
+            found,
+            vec![Dropout {
+                rows: 30..70,
+                chans: 16..48
+            }]
+        );
+        assert_eq!(live_rows(&found, 5, 100), None);
+        let live = live_rows(&found, 20, 100).unwrap();
+        assert_eq!(live.len(), 60);
+        assert!(!live.contains(&30) && live.contains(&70));
+        // Ten zero channels are too short a run to be lost data.
+        let mut short = Array2::from_elem((50, n_chan), 3.0f32);
+        short.row_mut(10).slice_mut(ndarray::s![0..10]).fill(0.0);
+        assert!(dropouts(short.view(), &mask).is_empty());
+    }
+
+    // With half the samples zero (1-bit data), runs of 16 zeros happen by chance
+    // (2⁻¹⁶ per start): the run needed grows to log₂(cells / 10⁻³) ≈ 26.6 → 27 for
+    // a read of 10⁵ cells, and a noise read of that kind yields no dropout.
+    #[test]
+    fn common_zeros_need_longer_runs() {
+        assert_eq!(min_run(0.5, 100_000), 27);
+        assert_eq!(min_run(1e-3, 100_000), 3);
+        use rand::{Rng, SeedableRng};
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(3);
+        let raw = Array2::from_shape_fn((4_000, 64), |_| f32::from(rng.random::<bool>()));
+        assert!(dropouts(raw.view(), &[false; 64]).is_empty());
     }
 }

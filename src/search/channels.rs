@@ -134,22 +134,16 @@ impl ChannelBlock {
         self.len = keep;
         self.start_sample = start_sample - keep as u64;
         let previous_mask = std::mem::replace(&mut self.new_mask, static_mask.to_vec());
-        let dropped = clean::dropout::dropped_rows(raw, static_mask);
-        // The rows holding data, when some were dropped.
-        let live: Option<Vec<usize>> = (!dropped.is_empty()).then(|| {
-            (0..m)
-                .filter(|t| dropped.binary_search(t).is_err())
-                .collect()
-        });
-        match &live {
-            None => clean::flag_channels(raw, &mut self.new_mask, config),
-            Some(live) => {
-                let rows = raw.select(Axis(0), live);
-                clean::flag_channels(rows.view(), &mut self.new_mask, config)
-            }
-        };
+        let dropouts = clean::dropout::dropouts(raw, static_mask);
+        // Channels are flagged on the rows without dropped data.
+        if dropouts.is_empty() {
+            clean::flag_channels(raw, &mut self.new_mask, config);
+        } else {
+            let rows = raw.select(Axis(0), &clean::dropout::untouched_rows(&dropouts, m));
+            clean::flag_channels(rows.view(), &mut self.new_mask, config);
+        }
         self.transpose_in(raw);
-        self.normalise_new(keep, m, baseline_len, live.as_deref());
+        self.normalise_new(keep, m, baseline_len, &dropouts);
         let mut block = ArrayViewMut2::from_shape((n_chan, self.capacity), &mut self.data[..])
             .expect("buffer holds n_chan × capacity values")
             .slice_move(s![.., ..keep + m]);
@@ -170,10 +164,14 @@ impl ChannelBlock {
             self.new_mask.clone()
         };
         let n_masked = self.new_mask.iter().filter(|&&v| v).count();
+        let n_dropped: usize = dropouts
+            .iter()
+            .map(|d| d.rows.len() * d.chans.clone().filter(|&c| !self.new_mask[c]).count())
+            .sum();
         let masked_fraction = if m == 0 || n_chan == 0 {
             0.0
         } else {
-            (n_masked * m + (n_clipped + dropped.len()) * (n_chan - n_masked)) as f64
+            (n_masked * m + n_clipped * (n_chan - n_masked) + n_dropped) as f64
                 / (n_chan * m) as f64
         };
         Appended {
@@ -205,21 +203,21 @@ impl ChannelBlock {
     }
 
     /// Normalises rows `keep..keep + m` of every channel not in `new_mask` and zeroes
-    /// those of masked channels; a channel found constant joins `new_mask`. If `live`
-    /// lists the new rows that hold data (counted from `keep`), only those are
-    /// normalised, as one series, and the others (dropped data) are filled with unit
-    /// Gaussian noise, seeded by their file row and channel. Zeros there would be
-    /// stretches without noise in every dedispersed series, and where they fill more
-    /// than half a series its robust σ collapses and every boxcar's S/N blows up;
-    /// noise keeps each series' statistics those of live data, and the rows are
-    /// counted as masked. (Replacing flagged samples by noise of the channel's
-    /// statistics: common practice.)
+    /// those of masked channels; a channel found constant joins `new_mask`. A
+    /// channel with rows in `dropouts` (counted from `keep`) has only its other rows
+    /// normalised, as one series, and the dropped ones filled with unit Gaussian
+    /// noise, seeded by their file row and channel. Zeros there would be stretches
+    /// without noise in every dedispersed series, and where they fill more than half
+    /// a series its robust σ collapses and every boxcar's S/N blows up; noise keeps
+    /// each series' statistics those of live data, and the samples are counted as
+    /// masked. (Replacing flagged samples by noise of the channel's statistics:
+    /// common practice.)
     fn normalise_new(
         &mut self,
         keep: usize,
         m: usize,
         baseline_len: usize,
-        live: Option<&[usize]>,
+        dropouts: &[clean::dropout::Dropout],
     ) {
         if m == 0 {
             return;
@@ -238,7 +236,7 @@ impl ChannelBlock {
                         series.fill(0.0);
                         return;
                     }
-                    let sigma = match live {
+                    let sigma = match clean::dropout::live_rows(dropouts, c, m) {
                         None => {
                             normalise_series(series, baseline_len, CHANNEL_SIGMA_VALUES, scratch)
                         }
@@ -368,56 +366,66 @@ mod tests {
         assert_eq!(block.mask(), &[false; 4]);
     }
 
-    /// Zero-filled rows of lost data, here more than half the new rows, are set
-    /// aside and counted as masked; the other rows come out zero mean, unit variance,
-    /// and no channel is masked for them (with the dropped rows in, the MAD was zero
-    /// and the spectral-kurtosis test masked every channel). The dropped rows hold
-    /// unit noise, the same each time.
+    /// Zero-filled lost data, here more than half the new rows of the whole band or
+    /// of a sub-band, is set aside and counted as masked; the other samples come out
+    /// zero mean, unit variance, and no channel is masked for them (with the dropped
+    /// rows in, the MAD was zero and the spectral-kurtosis test masked every
+    /// channel). The dropped samples hold unit noise, the same each time.
     #[test]
-    fn dropped_rows_are_set_aside() {
+    fn dropped_data_is_set_aside() {
         let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(17);
         let (n_time, n_chan) = (6000, 32);
         let noise = Normal::new(96.0f32, 12.0).unwrap();
-        let mut raw = Array2::from_shape_fn((n_time, n_chan), |_| noise.sample(&mut rng).round());
+        let clean = Array2::from_shape_fn((n_time, n_chan), |_| noise.sample(&mut rng).round());
         let dropped = 1000..4500;
-        raw.slice_mut(s![dropped.clone(), ..]).fill(0.0);
-        let mask = vec![false; n_chan];
-        let append = || {
-            let mut block = ChannelBlock::new(Vec::new(), n_chan, n_time);
-            let appended = block.append(raw.view(), 0, 0, &mask, &CleanConfig::default(), 500);
-            (block, appended)
-        };
-        let (block, appended) = append();
-        assert_eq!(block.mask(), &mask[..]);
-        let fraction = dropped.len() as f64 / n_time as f64;
-        assert!(
-            (appended.masked_fraction - fraction).abs() < 0.01,
-            "{}",
-            appended.masked_fraction
-        );
-        let out = block.view();
-        let (live, lost): (Vec<usize>, Vec<usize>) =
-            (0..n_time).partition(|t| !dropped.contains(t));
-        for c in 0..n_chan {
-            for rows in [&live, &lost] {
-                let n = rows.len() as f32;
-                let mean = rows.iter().map(|&t| out[[c, t]]).sum::<f32>() / n;
-                let var = rows
-                    .iter()
-                    .map(|&t| (out[[c, t]] - mean).powi(2))
-                    .sum::<f32>()
-                    / n;
-                assert!(
-                    mean.abs() < 0.1 && (var - 1.0).abs() < 0.1,
-                    "c={c}: {mean} {var}"
-                );
+        for band in [0..n_chan, 8..24] {
+            let mut raw = clean.clone();
+            raw.slice_mut(s![dropped.clone(), band.clone()]).fill(0.0);
+            let mask = vec![false; n_chan];
+            let append = || {
+                let mut block = ChannelBlock::new(Vec::new(), n_chan, n_time);
+                let appended = block.append(raw.view(), 0, 0, &mask, &CleanConfig::default(), 500);
+                (block, appended)
+            };
+            let (block, appended) = append();
+            assert_eq!(block.mask(), &mask[..], "{band:?}");
+            let fraction = (dropped.len() * band.len()) as f64 / (n_time * n_chan) as f64;
+            assert!(
+                (appended.masked_fraction - fraction).abs() < 0.01,
+                "{band:?}: {}",
+                appended.masked_fraction
+            );
+            let out = block.view();
+            let (live, lost): (Vec<usize>, Vec<usize>) =
+                (0..n_time).partition(|t| !dropped.contains(t));
+            for c in 0..n_chan {
+                for rows in [&live, &lost] {
+                    let n = rows.len() as f32;
+                    let mean = rows.iter().map(|&t| out[[c, t]]).sum::<f32>() / n;
+                    let var = rows
+                        .iter()
+                        .map(|&t| (out[[c, t]] - mean).powi(2))
+                        .sum::<f32>()
+                        / n;
+                    assert!(
+                        mean.abs() < 0.1 && (var - 1.0).abs() < 0.1,
+                        "{band:?} c={c}: {mean} {var}"
+                    );
+                }
+            }
+            // Channels' fills are independent: the band sum over lost rows has N× the
+            // variance.
+            let sums: Vec<f32> = lost.iter().map(|&t| out.column(t).sum()).collect();
+            let var = sums.iter().map(|v| v * v).sum::<f32>() / sums.len() as f32;
+            assert!((var / n_chan as f32 - 1.0).abs() < 0.1, "{band:?}: {var}");
+            assert_eq!(append().0.view(), out);
+            // Channels outside the lost sub-band keep their own samples.
+            if band.start > 0 {
+                let mut whole = ChannelBlock::new(Vec::new(), n_chan, n_time);
+                whole.append(clean.view(), 0, 0, &mask, &CleanConfig::default(), 500);
+                assert_eq!(whole.view().row(0), out.row(0));
             }
         }
-        // Channels' fills are independent: the band sum over lost rows has N× the variance.
-        let sums: Vec<f32> = lost.iter().map(|&t| out.column(t).sum()).collect();
-        let var = sums.iter().map(|v| v * v).sum::<f32>() / sums.len() as f32;
-        assert!((var / n_chan as f32 - 1.0).abs() < 0.1, "{var}");
-        assert_eq!(append().0.view(), out);
     }
 
     /// The new rows are flagged by their own statistics: a channel gone wild in them
