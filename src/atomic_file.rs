@@ -177,11 +177,11 @@ pub fn commit_csv(writer: csv::Writer<AtomicFile>) -> Result<()> {
 }
 
 #[cfg(test)]
-mod tests {
+pub(crate) mod tests {
     use super::*;
 
     /// Names in `dir`, sorted.
-    fn listing(dir: &Path) -> Vec<String> {
+    pub(crate) fn listing(dir: &Path) -> Vec<String> {
         let mut names: Vec<String> = std::fs::read_dir(dir)
             .unwrap()
             .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
