@@ -6,7 +6,7 @@ use anyhow::Context;
 use burstbook::catalogue::Catalogue;
 use clap::Subcommand;
 
-use super::output::sink;
+use super::output::write_out;
 
 #[derive(Subcommand, Debug)]
 pub enum ExposureCommand {
@@ -46,8 +46,7 @@ pub fn run(cat: &mut Catalogue, c: ExposureCommand) -> anyhow::Result<()> {
             Ok(())
         }
         ExposureCommand::Export { source, out } => {
-            cat.export_exposure_csv(source.as_deref(), sink(&out)?)?;
-            Ok(())
+            write_out(&out, |w| Ok(cat.export_exposure_csv(source.as_deref(), w)?))
         }
     }
 }
