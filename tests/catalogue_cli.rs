@@ -220,3 +220,41 @@ fn listings_written_to_a_file_match_standard_output() {
     ]);
     cli_common::assert_one_line_failure(&out, &[missing.to_str().unwrap(), "No such file"]);
 }
+
+#[test]
+fn exposure_exported_to_a_file_imports_into_another_catalogue_unchanged() {
+    let dir = tempfile::tempdir().unwrap();
+    let (here, there) = (
+        dir.path().join("here.sqlite"),
+        dir.path().join("there.sqlite"),
+    );
+    book(
+        &here,
+        &[
+            "fill-synthetic",
+            "--source",
+            "FIELD-7",
+            "--observations",
+            "3",
+        ],
+    );
+    let file = dir.path().join("exposure.csv");
+    book(
+        &here,
+        &["exposure", "export", "--out", file.to_str().unwrap()],
+    );
+    let exported = std::fs::read_to_string(&file).unwrap();
+    assert!(
+        exported.starts_with("source,start_mjd,end_mjd,snr_threshold,fluence_limit_jy_ms\n"),
+        "{exported}"
+    );
+    book(
+        &there,
+        &[
+            "source", "add", "FIELD-7", "--ra", "123.25", "--dec", "-12.5",
+        ],
+    );
+    let msg = book(&there, &["exposure", "import", file.to_str().unwrap()]);
+    assert!(msg.contains("imported 3 interval(s)"), "{msg}");
+    assert_eq!(book(&there, &["exposure", "export"]), exported);
+}
