@@ -6,8 +6,10 @@
 //! (an error, a full disk, a killed process) leaves any older file at that name as it
 //! was, and dropping an uncommitted file removes the temporary one.
 //!
-//! Destinations that are not regular files (`/dev/stdout`, a pipe) cannot be replaced
-//! by a rename and are written in place, as a stream.
+//! Destinations that are not regular files (a pipe, a terminal), and any path under
+//! `/dev` or `/proc`, are written in place, as a stream, appending: `/dev/stdout` may
+//! lead to a file the shell opened with `>>`, which a rename would replace and a
+//! truncating open would empty.
 
 use std::fs::{File, OpenOptions};
 use std::io::{self, BufWriter, Write};
@@ -38,7 +40,7 @@ enum Destination {
         temp: NamedTempFile,
         target: PathBuf,
     },
-    /// A device or pipe, written directly.
+    /// A device or pipe, written directly (appending).
     Stream(File),
 }
 
@@ -56,7 +58,10 @@ impl AtomicFile {
         let io_err = |e| Error::io(path, e);
         let dest = match std::fs::metadata(path) {
             // A directory also lands here, so it fails now and not after all the work.
-            Ok(meta) if !meta.is_file() => Destination::Stream(File::create(path).map_err(io_err)?),
+            Ok(meta) if !meta.is_file() || is_special(path) => {
+                let file = OpenOptions::new().append(true).open(path);
+                Destination::Stream(file.map_err(io_err)?)
+            }
             existing => {
                 let target = match &existing {
                     Ok(_) => std::fs::canonicalize(path).map_err(io_err)?,
@@ -103,6 +108,12 @@ impl AtomicFile {
         }
         Ok(())
     }
+}
+
+/// Whether `path` is spelt under `/dev` or `/proc`, whose links (`/dev/stdout`,
+/// `/proc/self/fd/1`) stand for a descriptor of this process, not a file to replace.
+fn is_special(path: &Path) -> bool {
+    std::path::absolute(path).is_ok_and(|p| p.starts_with("/dev") || p.starts_with("/proc"))
 }
 
 /// Opens a new hidden file beside `target`, named after it so a leftover one (from a
