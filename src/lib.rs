@@ -8,6 +8,7 @@
 //! (periodicity tests) → `report` (plots, HTML, review). `simulate` makes
 //! synthetic recordings for tests and demos.
 
+pub mod atomic_file;
 pub mod candidate;
 pub mod catalogue;
 pub mod clean;

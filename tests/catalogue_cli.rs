@@ -1,5 +1,7 @@
 //! The `burstbook book` commands end to end, as an observer would use them.
 
+mod cli_common;
+
 use std::path::Path;
 use std::process::Command;
 
@@ -181,4 +183,78 @@ fn review_promote_summarise_and_export() {
     }
     drop(cat);
     assert!(book(&db, &["check"]).contains("ok (3 observations, 3 runs, 120 candidates)"));
+}
+
+#[test]
+fn listings_written_to_a_file_match_standard_output() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("c.sqlite");
+    book(
+        &db,
+        &["fill-synthetic", "--observations", "2", "--candidates", "5"],
+    );
+    let shown = book(&db, &["candidates", "--format", "csv"]);
+    let file = dir.path().join("candidates.csv");
+    std::fs::write(&file, "an older listing\n").unwrap();
+    let printed = book(
+        &db,
+        &[
+            "candidates",
+            "--format",
+            "csv",
+            "--out",
+            file.to_str().unwrap(),
+        ],
+    );
+    assert_eq!(printed, "");
+    assert_eq!(std::fs::read_to_string(&file).unwrap(), shown);
+
+    let missing = dir.path().join("no-such-dir").join("c.csv");
+    let out = cli_common::burstbook(&[
+        "book",
+        "--catalogue",
+        db.to_str().unwrap(),
+        "candidates",
+        "--out",
+        missing.to_str().unwrap(),
+    ]);
+    cli_common::assert_one_line_failure(&out, &[missing.to_str().unwrap(), "No such file"]);
+}
+
+#[test]
+fn exposure_exported_to_a_file_imports_into_another_catalogue_unchanged() {
+    let dir = tempfile::tempdir().unwrap();
+    let (here, there) = (
+        dir.path().join("here.sqlite"),
+        dir.path().join("there.sqlite"),
+    );
+    book(
+        &here,
+        &[
+            "fill-synthetic",
+            "--source",
+            "FIELD-7",
+            "--observations",
+            "3",
+        ],
+    );
+    let file = dir.path().join("exposure.csv");
+    book(
+        &here,
+        &["exposure", "export", "--out", file.to_str().unwrap()],
+    );
+    let exported = std::fs::read_to_string(&file).unwrap();
+    assert!(
+        exported.starts_with("source,start_mjd,end_mjd,snr_threshold,fluence_limit_jy_ms\n"),
+        "{exported}"
+    );
+    book(
+        &there,
+        &[
+            "source", "add", "FIELD-7", "--ra", "123.25", "--dec", "-12.5",
+        ],
+    );
+    let msg = book(&there, &["exposure", "import", file.to_str().unwrap()]);
+    assert!(msg.contains("imported 3 interval(s)"), "{msg}");
+    assert_eq!(book(&there, &["exposure", "export"]), exported);
 }

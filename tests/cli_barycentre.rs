@@ -75,3 +75,31 @@ fn bad_input_gives_one_line_naming_the_file() {
         assert!(err.contains("in.csv") && err.contains(problem), "{err}");
     }
 }
+
+#[test]
+fn out_dev_stdout_appends_to_a_redirected_file() {
+    // `--out /dev/stdout >> log.csv` must add to the log, not replace it.
+    let dir = tempfile::tempdir().unwrap();
+    let input = dir.path().join("in.csv");
+    std::fs::write(&input, "mjd_utc\n60000.5\n").unwrap();
+    let log = dir.path().join("log.csv");
+    std::fs::write(&log, "earlier lines\n").unwrap();
+    let append = std::fs::OpenOptions::new().append(true).open(&log).unwrap();
+    let out = Command::new(env!("CARGO_BIN_EXE_burstbook"))
+        .args(["barycentre", "--ra-deg", "10", "--dec-deg", "20"])
+        .args(["--site", "10,45,100", "--out", "/dev/stdout", "--in"])
+        .arg(&input)
+        .stdout(append)
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let text = std::fs::read_to_string(&log).unwrap();
+    assert!(
+        text.starts_with("earlier lines\nmjd_utc,mjd_tdb,correction_s\n60000.5,"),
+        "{text}"
+    );
+}

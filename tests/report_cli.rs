@@ -92,7 +92,10 @@ fn missing_observation_is_one_clear_error() {
         .unwrap();
     assert!(!out.status.success());
     let err = String::from_utf8_lossy(&out.stderr);
-    assert!(err.contains("gone.json") && err.contains("--obs"), "{err}");
+    assert!(
+        err.contains("gone.json") && err.contains("--obs FILE") && !err.contains("--obs-dir"),
+        "{err}"
+    );
     assert_eq!(err.lines().count(), 1, "{err}");
 }
 
@@ -150,6 +153,44 @@ fn source_report_from_the_catalogue_has_timeline_and_figures() {
         err.contains("NOBODY") && err.contains("book.sqlite"),
         "{err}"
     );
+
+    // Files moved since the search: the error suggests the option `--source` takes,
+    // and that option finds them.
+    let moved = dir.path().join("moved");
+    std::fs::create_dir(&moved).unwrap();
+    for ext in ["json", "npy"] {
+        let from = obs.with_extension(ext);
+        std::fs::rename(&from, moved.join(from.file_name().unwrap())).unwrap();
+    }
+    let report = |extra: &[&std::ffi::OsStr]| {
+        Command::new(env!("CARGO_BIN_EXE_burstbook"))
+            .args(["report", "--source", "TESTSRC-A", "--catalogue"])
+            .arg(&db)
+            .arg("--out")
+            .arg(&out)
+            .args(extra)
+            .output()
+            .unwrap()
+    };
+    let lost = report(&[]);
+    let err = String::from_utf8_lossy(&lost.stderr);
+    assert!(!lost.status.success());
+    assert_eq!(err.lines().count(), 1, "{err}");
+    assert!(
+        err.contains("night2.json") && err.contains("--obs-dir DIR") && !err.contains("--obs FILE"),
+        "{err}"
+    );
+    let found = report(&["--obs-dir".as_ref(), moved.as_os_str()]);
+    assert!(
+        found.status.success(),
+        "{}",
+        String::from_utf8_lossy(&found.stderr)
+    );
+    // `--obs` would be ignored here, so it is refused.
+    let moved_obs = moved.join("night2.json");
+    let refused = report(&["--obs".as_ref(), moved_obs.as_os_str()]);
+    assert!(!refused.status.success());
+    assert!(String::from_utf8_lossy(&refused.stderr).contains("--obs"));
 }
 
 #[test]

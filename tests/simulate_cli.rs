@@ -172,3 +172,26 @@ fn bad_scenario_fails_with_one_line_naming_the_file() {
     assert!(!missing.status.success());
     assert!(String::from_utf8_lossy(&missing.stderr).contains("none.toml"));
 }
+
+#[test]
+fn an_output_in_a_missing_directory_is_one_line_naming_it() {
+    let dir = tempfile::tempdir().unwrap();
+    let toml = dir.path().join("s.toml");
+    std::fs::write(&toml, SCENARIO.replace("NBITS", "8")).unwrap();
+    for name in ["x.json", "x.fits"] {
+        let out = dir.path().join("no-such-dir").join(name);
+        let r = burstbook(&[
+            "simulate",
+            toml.to_str().unwrap(),
+            "--out",
+            out.to_str().unwrap(),
+        ]);
+        assert_one_line_failure(&r, &[out.to_str().unwrap(), "No such file"]);
+    }
+    let mut left: Vec<_> = std::fs::read_dir(dir.path())
+        .unwrap()
+        .map(|e| e.unwrap().file_name())
+        .collect();
+    left.sort();
+    assert_eq!(left, ["s.toml"]);
+}

@@ -1,7 +1,7 @@
 //! Exposure: the time each source was searched, from our own runs and imported
-//! from CSV (`source,start_mjd,end_mjd[,snr_threshold]`) for searches done
-//! elsewhere. Overlaps are merged before anything is summed, so the same hour
-//! searched twice counts once.
+//! from CSV (`source,start_mjd,end_mjd[,snr_threshold[,fluence_limit_jy_ms]]`) for
+//! searches done elsewhere. Overlaps are merged before anything is summed, so the
+//! same hour searched twice counts once.
 
 use std::io::{Read, Write};
 use std::path::Path;
@@ -96,9 +96,11 @@ impl Catalogue {
         Ok(merge_intervals(spans))
     }
 
-    /// Imports exposure CSV (`source,start_mjd,end_mjd[,snr_threshold]`, optional
-    /// header row) in one transaction. Sources must exist. Rows already present are
-    /// skipped. Returns (rows added, rows already present).
+    /// Imports exposure CSV (`source,start_mjd,end_mjd[,snr_threshold[,fluence_limit_jy_ms]]`,
+    /// optional header row) in one transaction. Sources must exist. A row whose
+    /// interval is already held with the same threshold is skipped (the held row,
+    /// fluence limit included, is kept as it is). Returns (rows added, rows already
+    /// present).
     ///
     /// # Errors
     /// [`Error::BadInput`] naming the line of the first bad row (then nothing is
@@ -133,11 +135,18 @@ impl Catalogue {
                 // exporting a run's exposure and importing it back adds nothing.
                 added += tx
                     .execute(
-                        "INSERT INTO exposure (source_id, start_mjd, end_mjd, snr_threshold)
-                         SELECT ?1, ?2, ?3, ?4 WHERE NOT EXISTS (SELECT 1 FROM exposure
+                        "INSERT INTO exposure
+                             (source_id, start_mjd, end_mjd, snr_threshold, fluence_limit_jy_ms)
+                         SELECT ?1, ?2, ?3, ?4, ?5 WHERE NOT EXISTS (SELECT 1 FROM exposure
                              WHERE source_id = ?1 AND start_mjd = ?2 AND end_mjd = ?3
                              AND snr_threshold IS ?4)",
-                        params![id, row.start_mjd, row.end_mjd, row.snr_threshold],
+                        params![
+                            id,
+                            row.start_mjd,
+                            row.end_mjd,
+                            row.snr_threshold,
+                            row.fluence_limit_jy_ms
+                        ],
                     )
                     .map_err(e)?;
             }
@@ -145,22 +154,25 @@ impl Catalogue {
         })
     }
 
-    /// Writes exposure as CSV in the import format, optionally of one source.
+    /// Writes exposure as CSV in the import format, optionally of one source: every
+    /// field of [`ExposureInterval`] but `run_id`, which names a run of this
+    /// catalogue only (an imported interval is one searched elsewhere).
     ///
     /// # Errors
     /// A write failure or an SQLite failure.
     pub fn export_exposure_csv(&self, source: Option<&str>, out: impl Write) -> Result<()> {
         let mut w = csv::Writer::from_writer(out);
         let werr = |e: csv::Error| Error::Config(format!("writing exposure CSV: {e}"));
-        w.write_record(["source", "start_mjd", "end_mjd", "snr_threshold"])
-            .map_err(werr)?;
+        w.write_record(EXPORT_COLUMNS).map_err(werr)?;
+        // Shortest text that parses back to the same f64, so a re-import matches.
+        let opt = |v: Option<f64>| v.map(|x| x.to_string()).unwrap_or_default();
         for e in self.exposure(source)? {
             w.write_record([
                 e.source,
-                // Shortest text that parses back to the same f64, so a re-import matches.
                 e.start_mjd.to_string(),
                 e.end_mjd.to_string(),
-                e.snr_threshold.map(|t| t.to_string()).unwrap_or_default(),
+                opt(e.snr_threshold),
+                opt(e.fluence_limit_jy_ms),
             ])
             .map_err(werr)?;
         }
@@ -169,12 +181,23 @@ impl Catalogue {
     }
 }
 
+/// Columns of the exported CSV; an import takes the first three, or four (files
+/// exported before the fluence limit was), or all five.
+const EXPORT_COLUMNS: [&str; 5] = [
+    "source",
+    "start_mjd",
+    "end_mjd",
+    "snr_threshold",
+    "fluence_limit_jy_ms",
+];
+
 #[derive(Debug, Clone, PartialEq)]
 struct ExposureRow {
     source: String,
     start_mjd: f64,
     end_mjd: f64,
     snr_threshold: Option<f64>,
+    fluence_limit_jy_ms: Option<f64>,
 }
 
 /// Parses and checks every row before anything is written; rows keep their line number.
@@ -194,9 +217,9 @@ fn parse_exposure_csv(path: &Path, reader: impl Read) -> Result<Vec<(u64, Exposu
         if rows.is_empty() && rec.get(0) == Some("source") {
             continue; // header row
         }
-        if !(3..=4).contains(&rec.len()) {
+        if !(3..=EXPORT_COLUMNS.len()).contains(&rec.len()) {
             return Err(bad(format!(
-                "expected source,start_mjd,end_mjd[,snr_threshold], got {} fields",
+                "expected source,start_mjd,end_mjd[,snr_threshold[,fluence_limit_jy_ms]], got {} fields",
                 rec.len()
             )));
         }
@@ -214,10 +237,13 @@ fn parse_exposure_csv(path: &Path, reader: impl Read) -> Result<Vec<(u64, Exposu
                 "end_mjd {end_mjd} is not after start_mjd {start_mjd}"
             )));
         }
-        let snr_threshold = match rec.get(3) {
-            Some("") | None => None,
-            Some(_) => Some(num(3, "snr_threshold")?),
+        // An empty or absent optional column is an unknown value.
+        let optional = |i: usize| match rec.get(i) {
+            Some("") | None => Ok(None),
+            Some(_) => num(i, EXPORT_COLUMNS[i]).map(Some),
         };
+        let snr_threshold = optional(3)?;
+        let fluence_limit_jy_ms = optional(4)?;
         if rec[0].is_empty() {
             return Err(bad("empty source name".into()));
         }
@@ -228,6 +254,7 @@ fn parse_exposure_csv(path: &Path, reader: impl Read) -> Result<Vec<(u64, Exposu
                 start_mjd,
                 end_mjd,
                 snr_threshold,
+                fluence_limit_jy_ms,
             },
         ));
     }
@@ -252,18 +279,22 @@ mod tests {
         assert!((exposure_hours(&m) - 2.75 * 24.0).abs() < 1e-12);
     }
 
-    fn cat_with_source() -> (tempfile::TempDir, Catalogue) {
-        let dir = tempfile::tempdir().unwrap();
-        let mut cat = Catalogue::open(&dir.path().join("c.sqlite")).unwrap();
+    fn add_source(cat: &mut Catalogue, name: &str) {
         let s = SourceRecord {
             id: 0,
-            name: "SRC-A".into(),
+            name: name.into(),
             ra_deg: 1.0,
             dec_deg: 2.0,
             dm_ref: None,
             notes: String::new(),
         };
         cat.upsert_source(&s).unwrap();
+    }
+
+    fn cat_with_source() -> (tempfile::TempDir, Catalogue) {
+        let dir = tempfile::tempdir().unwrap();
+        let mut cat = Catalogue::open(&dir.path().join("c.sqlite")).unwrap();
+        add_source(&mut cat, "SRC-A");
         (dir, cat)
     }
 
@@ -306,6 +337,62 @@ mod tests {
     }
 
     #[test]
+    fn export_then_import_elsewhere_keeps_every_field() {
+        use crate::catalogue::CompletenessRecord;
+        use crate::catalogue::synthetic::{observation, run};
+        let dir = tempfile::tempdir().unwrap();
+        let mut here = Catalogue::open(&dir.path().join("here.sqlite")).unwrap();
+        let obs = observation("FIELD-7", 3);
+        let searched = run(7.0);
+        here.record_search(&obs, &searched, &[]).unwrap();
+        let completeness = CompletenessRecord {
+            config_json: searched.config_json.clone(),
+            snr50: None,
+            snr90: None,
+            fluence50_jy_ms: Some(0.4),
+            fluence90_jy_ms: Some(0.9),
+            result_json: "{}".into(),
+        };
+        here.record_completeness(&obs, &completeness).unwrap();
+        let csv = "FIELD-7,60010.5,60010.75,8,2.5\nFIELD-7,60011,60011.125\n";
+        let p = Path::new("in.csv");
+        assert_eq!(here.import_exposure_csv(p, csv.as_bytes()).unwrap(), (2, 0));
+        let held = here.exposure(None).unwrap();
+        assert_eq!(held.len(), 3);
+        assert_eq!(held[0].fluence_limit_jy_ms, Some(0.9), "{held:?}");
+        let mut exported = Vec::new();
+        here.export_exposure_csv(None, &mut exported).unwrap();
+
+        let mut there = Catalogue::open(&dir.path().join("there.sqlite")).unwrap();
+        add_source(&mut there, "FIELD-7");
+        let p = Path::new("exported.csv");
+        assert_eq!(
+            there.import_exposure_csv(p, exported.as_slice()).unwrap(),
+            (3, 0)
+        );
+        // Everything but the run, which belongs to the other catalogue.
+        let expected: Vec<ExposureInterval> = held
+            .into_iter()
+            .map(|e| ExposureInterval { run_id: None, ..e })
+            .collect();
+        assert_eq!(there.exposure(None).unwrap(), expected);
+
+        // A file exported before the fluence limit was (four columns) still imports,
+        // and its rows are the intervals already held, limits kept.
+        let older: String = String::from_utf8(exported)
+            .unwrap()
+            .lines()
+            .map(|l| format!("{}\n", &l[..l.rfind(',').unwrap()]))
+            .collect();
+        assert!(older.starts_with("source,start_mjd,end_mjd,snr_threshold\n"));
+        assert_eq!(
+            there.import_exposure_csv(p, older.as_bytes()).unwrap(),
+            (0, 3)
+        );
+        assert_eq!(there.exposure(None).unwrap(), expected);
+    }
+
+    #[test]
     fn a_bad_row_imports_nothing_and_names_its_line() {
         let (_d, mut cat) = cat_with_source();
         let p = Path::new("bad.csv");
@@ -317,6 +404,11 @@ mod tests {
             ),
             ("SRC-A,600x0,60001\n", "line 1: start_mjd"),
             ("SRC-A,60000\n", "line 1: expected"),
+            ("SRC-A,60000,60001,7,1,2\n", "line 1: expected"),
+            (
+                "SRC-A,60000,60001,,0.5x\n",
+                "line 1: fluence_limit_jy_ms \"0.5x\"",
+            ),
         ] {
             let err = cat
                 .import_exposure_csv(p, csv.as_bytes())

@@ -122,8 +122,7 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     if !result.rows.is_empty() {
         output::write_curve_png(&png, &result, &config)?;
     }
-    std::fs::write(&json, output::summary_json(&result, &config))
-        .with_context(|| format!("cannot write {}", json.display()))?;
+    burstbook::atomic_file::write(&json, output::summary_json(&result, &config))?;
     if !args.no_catalogue {
         let path = Catalogue::resolve_path(args.catalogue.as_deref());
         let mut cat = Catalogue::open(&path)?;

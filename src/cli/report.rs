@@ -5,7 +5,7 @@ use std::path::{Path, PathBuf};
 use anyhow::{Context, bail};
 use burstbook::catalogue::{Catalogue, DEFAULT_LOCK_WAIT};
 use burstbook::report::html::{ObsSection, ReportOptions, write_report};
-use burstbook::report::load::{group_by_observation, load_candidates};
+use burstbook::report::load::{ObsLookup, group_by_observation, load_candidates};
 use burstbook::report::source::source_report;
 
 /// Arguments of `report`.
@@ -36,7 +36,8 @@ pub struct Args {
     pub obs_dir: Option<PathBuf>,
     /// Observation files, matched to candidates by file name ahead of the recorded
     /// paths; a single file also serves candidates whose recorded path does not resolve.
-    #[arg(long = "obs", num_args = 1..)]
+    /// Not with --source, which takes --obs-dir.
+    #[arg(long = "obs", num_args = 1.., conflicts_with = "source")]
     pub obs: Vec<PathBuf>,
     /// Output folder for index.html and the PNGs.
     #[arg(long, default_value = "out/report")]
@@ -80,7 +81,7 @@ fn from_search(candidates: &Path, obs: &[PathBuf]) -> anyhow::Result<Vec<ObsSect
     } else {
         candidates.parent()
     };
-    let mut groups = group_by_observation(cands, search_dir, obs)?;
+    let mut groups = group_by_observation(cands, search_dir, ObsLookup::Files(obs))?;
     // Observations given but without candidates still get an overview.
     for p in obs {
         if !groups.iter().any(|(g, _)| g == p) {

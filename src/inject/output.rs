@@ -7,6 +7,7 @@ use std::path::Path;
 use serde::Serialize;
 
 use super::run::{InjectionResult, InjectionRow};
+use crate::atomic_file::{self, AtomicFile};
 use crate::catalogue::{Catalogue, CompletenessRecord, ObservationRecord};
 use crate::error::{Error, Result};
 use crate::search::SearchConfig;
@@ -20,11 +21,11 @@ fn csv_err(path: &Path) -> impl Fn(csv::Error) -> Error + '_ {
 /// # Errors
 /// The file cannot be written.
 pub fn write_rows_csv(path: &Path, rows: &[InjectionRow]) -> Result<()> {
-    let mut w = csv::Writer::from_path(path).map_err(csv_err(path))?;
+    let mut w = csv::Writer::from_writer(AtomicFile::create(path)?);
     for r in rows {
         w.serialize(r).map_err(csv_err(path))?;
     }
-    w.flush().map_err(|e| Error::io(path, e))
+    atomic_file::commit_csv(w)
 }
 
 #[derive(Serialize)]
@@ -46,7 +47,7 @@ struct CurveRow {
 /// The file cannot be written.
 pub fn write_curve_csv(path: &Path, result: &InjectionResult) -> Result<()> {
     let s = &result.summary;
-    let mut w = csv::Writer::from_path(path).map_err(csv_err(path))?;
+    let mut w = csv::Writer::from_writer(AtomicFile::create(path)?);
     for b in &s.by_snr {
         w.serialize(CurveRow {
             snr_lo: b.lo,
@@ -60,7 +61,7 @@ pub fn write_curve_csv(path: &Path, result: &InjectionResult) -> Result<()> {
         })
         .map_err(csv_err(path))?;
     }
-    w.flush().map_err(|e| Error::io(path, e))
+    atomic_file::commit_csv(w)
 }
 
 #[derive(Serialize)]

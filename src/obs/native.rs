@@ -3,7 +3,7 @@
 //! The layout is documented for users in `docs/formats.md`.
 
 use std::fs::File;
-use std::io::{BufReader, BufWriter, Read, Write};
+use std::io::{BufReader, Read, Write};
 use std::path::{Path, PathBuf};
 
 use serde::{Deserialize, Serialize};
@@ -11,6 +11,7 @@ use serde::{Deserialize, Serialize};
 use super::codec::{check_complete, check_finite, check_room, check_whole_rows, quantise};
 use super::npy::{self, Dtype};
 use super::{Header, SampleSink, SampleSource, Site, UtcEpoch};
+use crate::atomic_file::AtomicFile;
 use crate::error::{Error, Result};
 
 const FORMAT_NAME: &str = "burstbook.observation";
@@ -257,10 +258,13 @@ impl SampleSource for NativeReader {
     }
 }
 
-/// Writes a native observation: the JSON header at once, the samples as rows arrive.
+/// Writes a native observation: the samples as rows arrive, both files under their
+/// final names only once every row is written (the header last, so a reader never
+/// finds a new header beside old samples).
 pub struct NativeWriter {
+    header_file: AtomicFile,
     data_path: PathBuf,
-    file: BufWriter<File>,
+    file: AtomicFile,
     dtype: Dtype,
     nbits: u32,
     n_chan: usize,
@@ -271,7 +275,8 @@ pub struct NativeWriter {
 }
 
 impl NativeWriter {
-    /// Creates `path` (which must end in `.json`) and `NAME.npy` beside it.
+    /// Starts writing `path` (which must end in `.json`) and `NAME.npy` beside it;
+    /// both take their names at [`SampleSink::finish`].
     ///
     /// `header.nbits` picks the stored type: 8 → `uint8`, 16 → `uint16`,
     /// 32 → `float32`. Integer types store values rounded and clamped to their range.
@@ -304,13 +309,16 @@ impl NativeWriter {
         let json = JsonHeader::from_header(header, data_name.to_string())
             .map_err(|m| Error::bad_input(path, m))?;
         let text = serde_json::to_string_pretty(&json).expect("header serialises") + "\n";
-        std::fs::write(path, text).map_err(|e| Error::io(path, e))?;
-        let file = File::create(&data_path).map_err(|e| Error::io(&data_path, e))?;
-        let mut file = BufWriter::with_capacity(1 << 16, file);
+        let mut header_file = AtomicFile::create(path)?;
+        header_file
+            .write_all(text.as_bytes())
+            .map_err(|e| Error::io(path, e))?;
+        let mut file = AtomicFile::create(&data_path)?;
         let n_chan = header.n_chan();
         file.write_all(&npy::header_bytes(dtype, header.n_samples, n_chan as u64))
             .map_err(|e| Error::io(&data_path, e))?;
         Ok(NativeWriter {
+            header_file,
             data_path,
             file,
             dtype,
@@ -348,11 +356,10 @@ impl SampleSink for NativeWriter {
         Ok(())
     }
 
-    fn finish(mut self: Box<Self>) -> Result<()> {
-        self.file
-            .flush()
-            .map_err(|e| Error::io(&self.data_path, e))?;
-        check_complete(&self.data_path, self.rows_written, self.n_samples)
+    fn finish(self: Box<Self>) -> Result<()> {
+        check_complete(&self.data_path, self.rows_written, self.n_samples)?;
+        self.file.commit()?;
+        self.header_file.commit()
     }
 }
 
@@ -445,5 +452,30 @@ mod tests {
         assert!(e.to_string().contains("1 rows written"), "{e}");
         let e = write(&dir.path().join("nan.json"), &h, &[1.0, f32::NAN, 0.0, 0.0]).unwrap_err();
         assert!(e.to_string().contains("NaN"), "{e}");
+    }
+
+    #[test]
+    fn a_failed_write_leaves_the_old_pair_whole_and_nothing_else() {
+        let dir = tempfile::tempdir().unwrap();
+        let mut h = test_header(2, 3);
+        h.nbits = 8;
+        let path = dir.path().join("obs.json");
+        write(&path, &h, &[1.0, 2.0, 3.0, 4.0, 5.0, 6.0]).unwrap();
+        let before = |ext: &str| std::fs::read(path.with_extension(ext)).unwrap();
+        let (json, npy) = (before("json"), before("npy"));
+        let listing = || crate::atomic_file::tests::listing(dir.path());
+        // A longer recording that fails on its last row, then one stopped short.
+        let mut longer = test_header(2, 40);
+        longer.nbits = 8;
+        let mut rows = vec![9.0; 80];
+        rows[79] = f32::NAN;
+        write(&path, &longer, &rows).unwrap_err();
+        write(&path, &longer, &rows[..10]).unwrap_err();
+        assert_eq!(before("json"), json);
+        assert_eq!(before("npy"), npy);
+        assert_eq!(read_all(&path).1, [1.0, 2.0, 3.0, 4.0, 5.0, 6.0]);
+        assert_eq!(listing(), ["obs.json", "obs.npy"]);
+        write(&dir.path().join("new.json"), &longer, &rows[..10]).unwrap_err();
+        assert_eq!(listing(), ["obs.json", "obs.npy"]);
     }
 }

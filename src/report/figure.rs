@@ -96,7 +96,7 @@ impl Figure {
     /// # Errors
     /// [`Error::Io`] naming `path`.
     pub fn save_png(&self, path: &Path) -> Result<()> {
-        std::fs::write(path, self.to_png()).map_err(|e| Error::io(path, e))
+        crate::atomic_file::write(path, self.to_png())
     }
 }
 

@@ -102,7 +102,7 @@ pub fn write_report(
         v = env!("CARGO_PKG_VERSION"),
     );
     let index = out_dir.join("index.html");
-    std::fs::write(&index, page).map_err(|e| Error::io(&index, e))?;
+    crate::atomic_file::write(&index, page)?;
     Ok(index)
 }
 

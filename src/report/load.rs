@@ -51,17 +51,30 @@ pub fn load_candidates(path: &Path) -> Result<Vec<Candidate>> {
     }
 }
 
-/// Groups candidates by observation and finds each observation's file: the entry of
-/// `obs_files` with the same file name, else the path recorded in the candidate if it
-/// exists (relative paths are tried from `search_dir` as well), else the only entry
-/// of `obs_files`.
+/// Where observation files are looked for by name, ahead of the paths recorded in the
+/// candidates. It also decides which option a missing file's error suggests, since
+/// `report` takes files for a search output and a folder for a catalogue source.
+#[derive(Debug, Clone, Copy)]
+pub enum ObsLookup<'a> {
+    /// Files given one by one (`report --obs FILE...`); a single one also serves
+    /// candidates whose recorded path does not resolve.
+    Files(&'a [PathBuf]),
+    /// A folder holding moved files (`report --source NAME --obs-dir DIR`), if given.
+    Dir(Option<&'a Path>),
+}
+
+/// Groups candidates by observation and finds each observation's file: by file name
+/// in `lookup`, else the path recorded in the candidate if it exists (relative paths
+/// are tried from `search_dir` as well), else the only file of
+/// [`ObsLookup::Files`].
 ///
 /// # Errors
-/// [`Error::Config`] naming a recorded file that none of these resolve.
+/// [`Error::Config`] naming a recorded file that none of these resolve and the
+/// option that would supply it.
 pub fn group_by_observation(
     cands: Vec<Candidate>,
     search_dir: Option<&Path>,
-    obs_files: &[PathBuf],
+    lookup: ObsLookup,
 ) -> Result<Vec<(PathBuf, Vec<Candidate>)>> {
     let mut groups: BTreeMap<String, Vec<Candidate>> = BTreeMap::new();
     for c in cands {
@@ -69,15 +82,19 @@ pub fn group_by_observation(
     }
     groups
         .into_iter()
-        .map(|(file, cs)| Ok((resolve(&file, search_dir, obs_files)?, cs)))
+        .map(|(file, cs)| Ok((resolve(&file, search_dir, lookup)?, cs)))
         .collect()
 }
 
-fn resolve(file: &str, search_dir: Option<&Path>, obs_files: &[PathBuf]) -> Result<PathBuf> {
+fn resolve(file: &str, search_dir: Option<&Path>, lookup: ObsLookup) -> Result<PathBuf> {
     let recorded = Path::new(file);
     let name = recorded.file_name();
-    if let Some(p) = obs_files.iter().find(|p| p.file_name() == name) {
-        return Ok(p.clone());
+    let by_name = match lookup {
+        ObsLookup::Files(files) => files.iter().find(|p| p.file_name() == name).cloned(),
+        ObsLookup::Dir(dir) => dir.zip(name).map(|(d, n)| d.join(n)).filter(|p| p.exists()),
+    };
+    if let Some(p) = by_name {
+        return Ok(p);
     }
     if recorded.exists() {
         return Ok(recorded.to_path_buf());
@@ -85,12 +102,18 @@ fn resolve(file: &str, search_dir: Option<&Path>, obs_files: &[PathBuf]) -> Resu
     if let Some(p) = search_dir.map(|d| d.join(recorded)).filter(|p| p.exists()) {
         return Ok(p);
     }
-    match obs_files {
-        [only] => Ok(only.clone()),
-        _ => Err(Error::Config(format!(
-            "cannot find observation {file:?} named in the candidates; pass it with --obs"
-        ))),
-    }
+    let hint = match lookup {
+        ObsLookup::Files([only]) => return Ok(only.clone()),
+        ObsLookup::Files(_) => "; pass it with --obs FILE".to_string(),
+        ObsLookup::Dir(None) => "; pass the folder it was moved to with --obs-dir DIR".to_string(),
+        ObsLookup::Dir(Some(d)) => format!(
+            ", nor in {}; pass the folder holding it with --obs-dir DIR",
+            d.display()
+        ),
+    };
+    Err(Error::Config(format!(
+        "cannot find observation {file:?} named in the candidates{hint}"
+    )))
 }
 
 #[cfg(test)]
@@ -142,11 +165,50 @@ a/obs2.json,3.0,60000.2,20,10,40,8,7.1,30,rfi,bright at DM 0,0.9,0.5,0.1,2.0,1.2
             PathBuf::from("/data/obs2.json"),
             PathBuf::from("/data/obs1.json"),
         ];
-        let groups = group_by_observation(cs.clone(), None, &given).unwrap();
+        let groups = group_by_observation(cs.clone(), None, ObsLookup::Files(&given)).unwrap();
         assert_eq!(groups[0].0, PathBuf::from("/data/obs1.json"));
         assert_eq!(groups[1].0, PathBuf::from("/data/obs2.json"));
-        let err = group_by_observation(cs, None, &[]).unwrap_err().to_string();
-        assert!(err.contains("--obs"), "{err}");
+        let only = [PathBuf::from("/data/obs1.json")];
+        let groups = group_by_observation(cs.clone(), None, ObsLookup::Files(&only)).unwrap();
+        assert!(
+            groups.iter().all(|(p, _)| p == &only[0]),
+            "one file serves all"
+        );
+        let err = group_by_observation(cs, None, ObsLookup::Files(&[]))
+            .unwrap_err()
+            .to_string();
+        assert!(
+            err.contains("a/obs1.json") && err.contains("--obs FILE"),
+            "{err}"
+        );
+    }
+
+    #[test]
+    fn a_source_report_looks_in_its_folder_and_suggests_one() {
+        let cs = load_candidates_from_str();
+        let err = group_by_observation(cs.clone(), None, ObsLookup::Dir(None))
+            .unwrap_err()
+            .to_string();
+        assert!(
+            err.contains("--obs-dir DIR") && !err.contains("--obs FILE"),
+            "{err}"
+        );
+        // A folder holding one of the two observations: that one is found by name,
+        // the other is missing (never stood in for by the one found).
+        let dir = tempfile::tempdir().unwrap();
+        std::fs::write(dir.path().join("obs1.json"), "{}").unwrap();
+        let err = group_by_observation(cs.clone(), None, ObsLookup::Dir(Some(dir.path())))
+            .unwrap_err()
+            .to_string();
+        assert!(
+            err.contains("a/obs2.json") && err.contains("--obs-dir DIR"),
+            "{err}"
+        );
+        assert!(err.contains(&dir.path().display().to_string()), "{err}");
+        std::fs::write(dir.path().join("obs2.json"), "{}").unwrap();
+        let groups = group_by_observation(cs, None, ObsLookup::Dir(Some(dir.path()))).unwrap();
+        assert_eq!(groups[0].0, dir.path().join("obs1.json"));
+        assert_eq!(groups[1].0, dir.path().join("obs2.json"));
     }
 
     fn load_candidates_from_str() -> Vec<Candidate> {

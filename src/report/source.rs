@@ -2,12 +2,12 @@
 //! the activity-cycle figures of its confirmed bursts against its sessions (or just
 //! their timeline when there are too few for a search).
 
-use std::path::{Path, PathBuf};
+use std::path::Path;
 
 use super::activity::activity_figures;
 use super::figure::CaptionedFigure;
 use super::html::ObsSection;
-use super::load::group_by_observation;
+use super::load::{ObsLookup, group_by_observation};
 use super::periodicity::timeline_figure;
 use crate::catalogue::{BurstFilter, CandidateFilter, Catalogue};
 use crate::error::{Error, Result};
@@ -36,19 +36,10 @@ pub fn source_report(
             msg: format!("has no candidates or exposure for source {source:?}"),
         });
     }
-    let in_dir: Vec<PathBuf> = match obs_dir {
-        Some(dir) => cands
-            .iter()
-            .filter_map(|r| Path::new(&r.candidate.file).file_name())
-            .map(|name| dir.join(name))
-            .filter(|p| p.exists())
-            .collect(),
-        None => Vec::new(),
-    };
     let groups = group_by_observation(
         cands.into_iter().map(|r| r.candidate).collect(),
         None,
-        &in_dir,
+        ObsLookup::Dir(obs_dir),
     )?;
     let sections = groups
         .into_iter()

@@ -6,6 +6,7 @@ use std::path::Path;
 use serde::{Deserialize, Serialize};
 
 use super::{FileResult, SearchConfig};
+use crate::atomic_file::{self, AtomicFile};
 use crate::candidate::{Candidate, TriageFeatures, Verdict};
 use crate::catalogue::EarlierRun;
 use crate::error::{Error, Result};
@@ -126,12 +127,12 @@ struct JsonOut<'a> {
 /// The file cannot be written.
 pub fn write_csv(path: &Path, files: &[FileOutcome]) -> Result<()> {
     let io = |e: csv::Error| Error::io(path, std::io::Error::other(e));
-    let mut w = csv::Writer::from_path(path).map_err(io)?;
+    let mut w = csv::Writer::from_writer(AtomicFile::create(path)?);
     w.write_record(CSV_COLUMNS).map_err(io)?;
     for c in files.iter().flat_map(FileOutcome::candidates) {
         w.write_record(csv_cells(c)).map_err(io)?;
     }
-    w.flush().map_err(|e| Error::io(path, e))
+    atomic_file::commit_csv(w)
 }
 
 /// Column names of `candidates.csv`, in order.
@@ -186,7 +187,7 @@ pub fn write_json(path: &Path, files: &[FileOutcome], config: &SearchConfig) -> 
         candidates: files.iter().flat_map(FileOutcome::candidates).collect(),
     };
     let text = serde_json::to_string_pretty(&out).expect("search results always serialise");
-    std::fs::write(path, text).map_err(|e| Error::io(path, e))
+    atomic_file::write(path, text)
 }
 
 /// A `candidates.csv` row as the search writes it (features flattened, reasons joined

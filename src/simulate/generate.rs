@@ -10,6 +10,7 @@ use rand_distr::{Exp1, StandardNormal};
 use super::burst::add_burst;
 use super::noise::quantise;
 use super::plan::{Simulation, TruthRow};
+use crate::atomic_file::{self, AtomicFile};
 use crate::error::{Error, Result};
 use crate::obs::{Block, SampleSink};
 
@@ -124,9 +125,9 @@ pub fn truth_path(obs_path: &Path) -> PathBuf {
 /// [`Error::Io`] naming `path`.
 pub fn write_truth(path: &Path, truth: &[TruthRow]) -> Result<()> {
     let to_err = |e: csv::Error| Error::bad_input(path, e.to_string());
-    let mut w = csv::Writer::from_path(path).map_err(to_err)?;
+    let mut w = csv::Writer::from_writer(AtomicFile::create(path)?);
     for row in truth {
         w.serialize(row).map_err(to_err)?;
     }
-    w.flush().map_err(|e| Error::io(path, e))
+    atomic_file::commit_csv(w)
 }

@@ -3,6 +3,7 @@
 use std::path::Path;
 
 use super::{Barycentrer, TdbEpoch, TimingWarning};
+use crate::atomic_file::{self, AtomicFile};
 use crate::error::{Error, Result};
 use crate::obs::UtcEpoch;
 use crate::units::SECONDS_PER_DAY;
@@ -47,14 +48,13 @@ pub fn barycentre_csv(bary: &Barycentrer, input: &Path, output: &Path) -> Result
         return Err(bad(format!("already has a column `{clash}`")));
     }
     if same_file(input, output) {
-        // Creating the output would truncate the input while it is being read.
+        // The output would replace the input table, losing the user's original.
         return Err(bad(format!(
             "is also the output {}; write the output to another file",
             output.display()
         )));
     }
-    let out_file = std::fs::File::create(output).map_err(|e| Error::io(output, e))?;
-    let mut writer = csv::Writer::from_writer(out_file);
+    let mut writer = csv::Writer::from_writer(AtomicFile::create(output)?);
     // Keep the I/O kind (a closed pipe must stay recognisable as one).
     let write_err = |e: csv::Error| {
         let io = match e.into_kind() {
@@ -92,7 +92,7 @@ pub fn barycentre_csv(bary: &Barycentrer, input: &Path, output: &Path) -> Result
         writer.write_record(&record).map_err(write_err)?;
         summary.rows += 1;
     }
-    writer.flush().map_err(|e| Error::io(output, e))?;
+    atomic_file::commit_csv(writer)?;
     Ok(summary)
 }
 
@@ -162,6 +162,41 @@ mod tests {
         assert_eq!(format_mjd(late, 6), "60124.000000");
     }
 
+    fn test_barycentrer() -> Barycentrer {
+        let site = crate::obs::Site {
+            name: "test".into(),
+            lon_deg: 10.0,
+            lat_deg: 45.0,
+            height_m: 500.0,
+        };
+        Barycentrer::new(&site, 201.37, -43.02, crate::timing::Ephemeris::Embedded).unwrap()
+    }
+
+    #[test]
+    fn a_bad_row_late_in_the_table_leaves_the_old_output_whole() {
+        let dir = tempfile::tempdir().unwrap();
+        let input = dir.path().join("toas.csv");
+        // Far more rows than one write buffer before the bad one, so a file written
+        // in place would already hold a partial table.
+        let text: String = std::iter::once("mjd_utc\n".to_string())
+            .chain((0..5000).map(|i| format!("{}\n", 60000.5 + i as f64 * 1e-3)))
+            .chain(std::iter::once("not-an-mjd\n".to_string()))
+            .collect();
+        std::fs::write(&input, &text).unwrap();
+        let output = dir.path().join("out.csv");
+        std::fs::write(&output, "previous results\n").unwrap();
+        let err = barycentre_csv(&test_barycentrer(), &input, &output).unwrap_err();
+        assert!(err.to_string().contains("line 5002"), "{err}");
+        assert_eq!(
+            std::fs::read_to_string(&output).unwrap(),
+            "previous results\n"
+        );
+        assert_eq!(
+            crate::atomic_file::tests::listing(dir.path()),
+            ["out.csv", "toas.csv"]
+        );
+    }
+
     #[test]
     fn the_input_is_never_its_own_output() {
         // Writing over the input truncated it after the reader's first buffer:
@@ -174,14 +209,7 @@ mod tests {
         std::fs::write(&input, &text).unwrap();
         let link = dir.path().join("link.csv");
         std::fs::hard_link(&input, &link).unwrap();
-        let site = crate::obs::Site {
-            name: "test".into(),
-            lon_deg: 10.0,
-            lat_deg: 45.0,
-            height_m: 500.0,
-        };
-        let bary =
-            Barycentrer::new(&site, 201.37, -43.02, crate::timing::Ephemeris::Embedded).unwrap();
+        let bary = test_barycentrer();
         for output in [&input, &link, &dir.path().join(".").join("toas.csv")] {
             let err = barycentre_csv(&bary, &input, output)
                 .unwrap_err()

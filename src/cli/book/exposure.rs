@@ -6,14 +6,16 @@ use anyhow::Context;
 use burstbook::catalogue::Catalogue;
 use clap::Subcommand;
 
-use super::output::sink;
+use super::output::write_out;
 
 #[derive(Subcommand, Debug)]
 pub enum ExposureCommand {
-    /// Import intervals searched elsewhere: CSV rows `source,start_mjd,end_mjd[,snr_threshold]`.
+    /// Import intervals searched elsewhere: CSV rows
+    /// `source,start_mjd,end_mjd[,snr_threshold[,fluence_limit_jy_ms]]`.
     #[command(after_help = "\
-The sources must already exist. A header row and #-comments are allowed. Rows
-already present are skipped, so importing the same file twice adds nothing.
+The sources must already exist. A header row and #-comments are allowed. An empty
+threshold or fluence limit is unknown. Rows already present (same source, interval
+and threshold) are skipped, so importing the same file twice adds nothing.
 A bad row imports nothing and names its line.
 
 Example:
@@ -46,8 +48,7 @@ pub fn run(cat: &mut Catalogue, c: ExposureCommand) -> anyhow::Result<()> {
             Ok(())
         }
         ExposureCommand::Export { source, out } => {
-            cat.export_exposure_csv(source.as_deref(), sink(&out)?)?;
-            Ok(())
+            write_out(&out, |w| Ok(cat.export_exposure_csv(source.as_deref(), w)?))
         }
     }
 }

@@ -3,7 +3,7 @@
 use std::io::Write;
 use std::path::PathBuf;
 
-use anyhow::Context;
+use burstbook::atomic_file::AtomicFile;
 use serde::Serialize;
 
 /// How listings are written.
@@ -17,14 +17,25 @@ pub enum Format {
     Json,
 }
 
-/// Where listings go: `--out FILE` or standard output.
-pub fn sink(out: &Option<PathBuf>) -> anyhow::Result<Box<dyn Write>> {
-    Ok(match out {
-        Some(p) => Box::new(std::io::BufWriter::new(
-            std::fs::File::create(p).with_context(|| format!("creating {}", p.display()))?,
-        )),
-        None => Box::new(std::io::stdout().lock()),
-    })
+/// Runs `write` on where listings go: `--out FILE` (which appears only if `write`
+/// succeeds) or standard output.
+pub fn write_out(
+    out: &Option<PathBuf>,
+    write: impl FnOnce(&mut dyn Write) -> anyhow::Result<()>,
+) -> anyhow::Result<()> {
+    match out {
+        Some(path) => {
+            let mut file = AtomicFile::create(path)?;
+            write(&mut file)?;
+            file.commit()?;
+        }
+        None => {
+            let mut stdout = std::io::stdout().lock();
+            write(&mut stdout)?;
+            stdout.flush()?;
+        }
+    }
+    Ok(())
 }
 
 /// Writes `rows` in `format`: `cells` gives the table/CSV cells, serde the JSON.

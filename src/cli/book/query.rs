@@ -6,7 +6,7 @@ use burstbook::Verdict;
 use burstbook::catalogue::{Bounds, BurstFilter, CandidateFilter, Catalogue};
 use burstbook::search::output::{CSV_COLUMNS, csv_cells};
 
-use super::output::{Format, opt, sink, write_rows};
+use super::output::{Format, opt, write_out, write_rows};
 
 /// DM, S/N and time ranges shared by the candidate and burst listings.
 #[derive(clap::Args, Debug, Clone, Default)]
@@ -109,33 +109,34 @@ pub fn candidates(cat: &Catalogue, a: CandidatesArgs) -> anyhow::Result<()> {
     let mut filter = a.filter.to_filter(&[]);
     filter.limit = a.limit;
     let rows = cat.candidates(&filter)?;
-    let mut out = sink(&a.out)?;
-    if a.format == Format::Table {
-        return write_rows(&mut out, a.format, CANDIDATE_TABLE, &rows, |r| {
-            vec![
+    write_out(&a.out, |out| {
+        if a.format == Format::Table {
+            return write_rows(out, a.format, CANDIDATE_TABLE, &rows, |r| {
+                vec![
+                    r.id.to_string(),
+                    r.source.clone(),
+                    format!("{:.8}", r.candidate.mjd_inf),
+                    format!("{:.2}", r.candidate.dm),
+                    format!("{:.1}", r.candidate.snr),
+                    format!("{:.2}", r.candidate.width_ms),
+                    r.candidate.verdict.to_string(),
+                    r.label.clone().unwrap_or_default(),
+                    r.burst_id.map(|b| b.to_string()).unwrap_or_default(),
+                ]
+            });
+        }
+        let headers: Vec<&str> = CANDIDATE_KEYS.into_iter().chain(CSV_COLUMNS).collect();
+        write_rows(out, a.format, &headers, &rows, |r| {
+            let mut cells = vec![
                 r.id.to_string(),
+                r.run_id.to_string(),
                 r.source.clone(),
-                format!("{:.8}", r.candidate.mjd_inf),
-                format!("{:.2}", r.candidate.dm),
-                format!("{:.1}", r.candidate.snr),
-                format!("{:.2}", r.candidate.width_ms),
-                r.candidate.verdict.to_string(),
                 r.label.clone().unwrap_or_default(),
                 r.burst_id.map(|b| b.to_string()).unwrap_or_default(),
-            ]
-        });
-    }
-    let headers: Vec<&str> = CANDIDATE_KEYS.into_iter().chain(CSV_COLUMNS).collect();
-    write_rows(&mut out, a.format, &headers, &rows, |r| {
-        let mut cells = vec![
-            r.id.to_string(),
-            r.run_id.to_string(),
-            r.source.clone(),
-            r.label.clone().unwrap_or_default(),
-            r.burst_id.map(|b| b.to_string()).unwrap_or_default(),
-        ];
-        cells.extend(csv_cells(&r.candidate));
-        cells
+            ];
+            cells.extend(csv_cells(&r.candidate));
+            cells
+        })
     })
 }
 
@@ -194,19 +195,21 @@ pub fn bursts(cat: &Catalogue, a: BurstsArgs) -> anyhow::Result<()> {
             v.map(|x| x.to_string()).unwrap_or_default()
         }
     };
-    write_rows(&mut sink(&a.out)?, a.format, BURST_COLUMNS, &rows, |b| {
-        vec![
-            b.id.to_string(),
-            b.candidate_id.to_string(),
-            b.source.clone(),
-            num(b.mjd_utc, 8),
-            onum(b.toa_tdb_mjd, 10),
-            num(b.dm, 2),
-            num(b.snr, 1),
-            num(b.width_ms, 2),
-            onum(b.fluence_jy_ms, 3),
-            b.site.clone(),
-            b.file.clone(),
-        ]
+    write_out(&a.out, |out| {
+        write_rows(out, a.format, BURST_COLUMNS, &rows, |b| {
+            vec![
+                b.id.to_string(),
+                b.candidate_id.to_string(),
+                b.source.clone(),
+                num(b.mjd_utc, 8),
+                onum(b.toa_tdb_mjd, 10),
+                num(b.dm, 2),
+                num(b.snr, 1),
+                num(b.width_ms, 2),
+                onum(b.fluence_jy_ms, 3),
+                b.site.clone(),
+                b.file.clone(),
+            ]
+        })
     })
 }

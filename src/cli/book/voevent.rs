@@ -1,11 +1,10 @@
 //! `book voevent`.
 
-use std::io::Write;
 use std::path::PathBuf;
 
 use burstbook::catalogue::{Catalogue, VoEventOptions, voevent_xml};
 
-use super::output::sink;
+use super::output::write_out;
 
 /// Arguments of `book voevent`.
 #[derive(clap::Args, Debug)]
@@ -45,8 +44,8 @@ pub fn run(cat: &Catalogue, a: VoeventArgs) -> anyhow::Result<()> {
         role: a.role,
     };
     let date = chrono::Utc::now().format("%Y-%m-%dT%H:%M:%S").to_string();
-    let mut out = sink(&a.out)?;
-    writeln!(out, "{}", voevent_xml(&packet, &opt, &date))?;
-    out.flush()?;
-    Ok(())
+    write_out(&a.out, |out| {
+        writeln!(out, "{}", voevent_xml(&packet, &opt, &date))?;
+        Ok(())
+    })
 }

@@ -78,8 +78,7 @@ pub fn run(a: Args) -> anyhow::Result<()> {
                 p.period_days[i], p.chi2[i], p.window_fraction[i], p.ls_power[i]
             )?;
         }
-        w.flush()
-            .with_context(|| format!("writing {}", path.display()))?;
+        w.commit()?;
     }
     if a.json {
         return print_json(&r);

@@ -9,6 +9,7 @@ mod synth;
 use std::path::{Path, PathBuf};
 
 use anyhow::Context;
+use burstbook::atomic_file::AtomicFile;
 use burstbook::catalogue::{Catalogue, DEFAULT_LOCK_WAIT};
 use burstbook::period::from_catalogue::SourceArrivals;
 use burstbook::period::times::{ArrivalTimes, Exposure, read_arrival_csv, read_exposure_csv};
@@ -160,10 +161,10 @@ fn print_json<T: serde::Serialize>(value: &T) -> anyhow::Result<()> {
     Ok(())
 }
 
-fn create(path: &Path) -> anyhow::Result<std::io::BufWriter<std::fs::File>> {
+/// Starts writing `path`, creating its directory; the file appears at `commit`.
+fn create(path: &Path) -> anyhow::Result<AtomicFile> {
     if let Some(dir) = path.parent().filter(|d| !d.as_os_str().is_empty()) {
         std::fs::create_dir_all(dir).with_context(|| format!("creating {}", dir.display()))?;
     }
-    let f = std::fs::File::create(path).with_context(|| format!("creating {}", path.display()))?;
-    Ok(std::io::BufWriter::new(f))
+    Ok(AtomicFile::create(path)?)
 }

@@ -139,8 +139,7 @@ fn write_rotation_periodogram(path: &Path, r: &RotationResult) -> anyhow::Result
     for (f, z) in r.periodogram.freq_hz.iter().zip(&r.periodogram.power) {
         writeln!(w, "{f:.12},{:.12},{z}", 1.0 / f)?;
     }
-    w.flush()
-        .with_context(|| format!("writing {}", path.display()))
+    Ok(w.commit()?)
 }
 
 fn print_rotation(r: &RotationResult, toas: &ArrivalTimes) {

@@ -35,7 +35,7 @@ pub fn run(a: Args) -> anyhow::Result<()> {
     for t in &toas {
         writeln!(w, "{}", mjd_text(ref_mjd, t / 86_400.0))?;
     }
-    w.flush()?;
+    w.commit()?;
     let sessions = irregular_sessions(90, 300.0, 0.125, &mut r);
     let bursts = activity_cycle(23.7, 0.3, 0.4, 8.0, &sessions, &mut r);
     let mut w = create(&a.out_dir.join("repeater_bursts.csv"))?;
@@ -45,13 +45,13 @@ pub fn run(a: Args) -> anyhow::Result<()> {
         let s = 0.5 * (1.0 - rand::Rng::random::<f64>(&mut r)).powf(-1.0 / 1.3);
         writeln!(w, "{},{s:.4}", mjd_text(ref_mjd, *t))?;
     }
-    w.flush()?;
+    w.commit()?;
     let mut w = create(&a.out_dir.join("repeater_exposure.csv"))?;
     writeln!(w, "start_mjd,end_mjd")?;
     for (s, e) in &sessions {
         writeln!(w, "{},{}", mjd_text(ref_mjd, *s), mjd_text(ref_mjd, *e))?;
     }
-    w.flush()?;
+    w.commit()?;
     println!(
         "wrote {} rotator arrivals and {} repeater bursts in {} sessions to {}",
         toas.len(),

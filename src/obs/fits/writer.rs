@@ -2,12 +2,12 @@
 //! samples of 1, 2, 4, 8 or 16 bits, or 32-bit floats, with unit scale and zero
 //! offset so stored integers are the sample values themselves.
 
-use std::fs::File;
-use std::io::{BufWriter, Write};
+use std::io::Write;
 use std::path::{Path, PathBuf};
 
 use super::bits::Encoding;
 use super::cards::{BLOCK, CardWriter};
+use crate::atomic_file::AtomicFile;
 use crate::error::{Error, Result};
 use crate::obs::codec::{check_complete, check_finite, check_room, check_whole_rows, quantise};
 use crate::obs::geodesy::{format_sexagesimal, geodetic_to_itrf_m};
@@ -21,10 +21,10 @@ const MAX_NSBLK: usize = 4096;
 ///
 /// A last row with fewer than `NSBLK` samples is padded with zeros and its
 /// `TSUBINT` records the real duration, which the reader uses to recover the
-/// exact sample count.
+/// exact sample count. The file takes its name only at [`SampleSink::finish`].
 pub struct FitsWriter {
     path: PathBuf,
-    file: BufWriter<File>,
+    file: AtomicFile,
     n_chan: usize,
     nsblk: usize,
     nbits: u32,
@@ -85,10 +85,9 @@ impl FitsWriter {
                 .iter()
                 .for_each(|v| row_constants.extend(v.to_be_bytes()));
         }
-        let file = File::create(path).map_err(|e| Error::io(path, e))?;
         let mut w = FitsWriter {
             path: path.to_path_buf(),
-            file: BufWriter::with_capacity(1 << 16, file),
+            file: AtomicFile::create(path)?,
             n_chan,
             nsblk,
             nbits: header.nbits,
@@ -221,8 +220,8 @@ impl SampleSink for FitsWriter {
         let pad = (data.div_ceil(BLOCK as u64) * BLOCK as u64 - data) as usize;
         self.file
             .write_all(&vec![0u8; pad])
-            .and_then(|_| self.file.flush())
-            .map_err(|e| Error::io(&self.path, e))
+            .map_err(|e| Error::io(&self.path, e))?;
+        self.file.commit()
     }
 }
 
@@ -280,14 +279,19 @@ mod tests {
     use rand::{Rng, SeedableRng};
     use rand_chacha::ChaCha8Rng;
 
+    /// Writes `data` to `path` in pieces of five rows.
+    fn write_file(path: &Path, h: &Header, nsblk: usize, data: &[f32]) -> Result<()> {
+        let mut w = Box::new(FitsWriter::create_with_nsblk(path, h, nsblk)?);
+        for chunk in data.chunks(h.n_chan() * 5) {
+            w.write_rows(chunk)?;
+        }
+        w.finish()
+    }
+
     fn round_trip(h: &Header, nsblk: usize, data: &[f32]) -> (Header, Vec<f32>) {
         let dir = tempfile::tempdir().unwrap();
         let path = dir.path().join("t.fits");
-        let mut w = Box::new(FitsWriter::create_with_nsblk(&path, h, nsblk).unwrap());
-        for chunk in data.chunks(h.n_chan() * 5) {
-            w.write_rows(chunk).unwrap();
-        }
-        w.finish().unwrap();
+        write_file(&path, h, nsblk, data).unwrap();
         assert_eq!(std::fs::metadata(&path).unwrap().len() % BLOCK as u64, 0);
         let mut r = FitsReader::open(&path, false).unwrap();
         // Whole rows at once (decoded in place) ...
@@ -367,5 +371,25 @@ mod tests {
             .err()
             .unwrap();
         assert!(e.to_string().contains("not 12"), "{e}");
+    }
+
+    #[test]
+    fn a_failed_write_keeps_the_old_file_and_leaves_nothing_else() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("old.fits");
+        let mut h = test_header(2, 2);
+        h.nbits = 8;
+        write_file(&path, &h, 4, &[1.0, 2.0, 3.0, 4.0]).unwrap();
+        let old = std::fs::read(&path).unwrap();
+        let mut longer = test_header(2, 64);
+        longer.nbits = 8;
+        let mut data = vec![7.0; 128];
+        data[127] = f32::NAN;
+        let e = write_file(&path, &longer, 4, &data).unwrap_err();
+        assert!(e.to_string().contains("NaN"), "{e}");
+        write_file(&path, &longer, 4, &data[..8]).unwrap_err();
+        write_file(&dir.path().join("new.fits"), &longer, 4, &data[..8]).unwrap_err();
+        assert_eq!(std::fs::read(&path).unwrap(), old);
+        assert_eq!(crate::atomic_file::tests::listing(dir.path()), ["old.fits"]);
     }
 }
