@@ -34,3 +34,60 @@ fn closing_stdout_early_is_quiet_and_successful() {
     assert!(!stderr.contains("panicked"), "{stderr}");
     assert!(!stderr.contains("error"), "{stderr}");
 }
+
+// The same for a catalogue listing written by the library (`book exposure export`).
+#[test]
+fn exposure_export_to_a_closed_pipe_is_quiet() {
+    let dir = tempfile::tempdir().unwrap();
+    let catalogue = dir.path().join("c.sqlite");
+    let input = dir.path().join("exposure.csv");
+    let rows: String = (0..20_000)
+        .map(|i| {
+            format!(
+                "Made-Up Source 9,{},{},7\n",
+                61000.0 + f64::from(i) * 0.01,
+                61000.005 + f64::from(i) * 0.01
+            )
+        })
+        .collect();
+    std::fs::write(
+        &input,
+        format!("source,start_mjd,end_mjd,snr_threshold\n{rows}"),
+    )
+    .unwrap();
+    let book = |args: &[&str]| {
+        let mut c = Command::new(env!("CARGO_BIN_EXE_burstbook"));
+        c.arg("book").arg("--catalogue").arg(&catalogue).args(args);
+        c
+    };
+    let mut add = book(&[
+        "source",
+        "add",
+        "Made-Up Source 9",
+        "--ra",
+        "45",
+        "--dec",
+        "12.5",
+    ]);
+    assert!(add.output().unwrap().status.success());
+    let import = book(&["exposure", "import"]).arg(&input).output().unwrap();
+    assert!(
+        import.status.success(),
+        "{}",
+        String::from_utf8_lossy(&import.stderr)
+    );
+    let mut child = book(&["exposure", "export"])
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("burstbook runs");
+    let mut first = String::new();
+    BufReader::new(child.stdout.take().expect("stdout piped"))
+        .read_line(&mut first)
+        .expect("one line");
+    assert!(first.starts_with("source,"), "{first}");
+    let out = child.wait_with_output().expect("burstbook exits");
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(out.status.success(), "exit {:?}: {stderr}", out.status);
+    assert!(!stderr.contains("error"), "{stderr}");
+}

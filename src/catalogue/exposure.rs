@@ -162,8 +162,7 @@ impl Catalogue {
     /// A write failure or an SQLite failure.
     pub fn export_exposure_csv(&self, source: Option<&str>, out: impl Write) -> Result<()> {
         let mut w = csv::Writer::from_writer(out);
-        let werr = |e: csv::Error| Error::Config(format!("writing exposure CSV: {e}"));
-        w.write_record(EXPORT_COLUMNS).map_err(werr)?;
+        w.write_record(EXPORT_COLUMNS).map_err(csv_write_error)?;
         // Shortest text that parses back to the same f64, so a re-import matches.
         let opt = |v: Option<f64>| v.map(|x| x.to_string()).unwrap_or_default();
         for e in self.exposure(source)? {
@@ -174,10 +173,22 @@ impl Catalogue {
                 opt(e.snr_threshold),
                 opt(e.fluence_limit_jy_ms),
             ])
-            .map_err(werr)?;
+            .map_err(csv_write_error)?;
         }
-        w.flush()
-            .map_err(|e| Error::Config(format!("writing exposure CSV: {e}")))
+        w.flush().map_err(|e| Error::io(EXPORT_OUTPUT, e))
+    }
+}
+
+/// What export errors name: the writer may be a file or a pipe.
+const EXPORT_OUTPUT: &str = "exposure CSV output";
+
+/// An export write error; an I/O error keeps its kind, so a reader that stopped
+/// early (a closed pipe) stays recognisable to the caller.
+fn csv_write_error(e: csv::Error) -> Error {
+    let message = e.to_string();
+    match e.into_kind() {
+        csv::ErrorKind::Io(io) => Error::io(EXPORT_OUTPUT, io),
+        _ => Error::Config(format!("writing exposure CSV: {message}")),
     }
 }
 
