@@ -98,9 +98,10 @@ impl Catalogue {
 
     /// Imports exposure CSV (`source,start_mjd,end_mjd[,snr_threshold[,fluence_limit_jy_ms]]`,
     /// optional header row) in one transaction. Sources must exist. A row whose
-    /// interval is already held with the same threshold is skipped (the held row,
-    /// fluence limit included, is kept as it is). Returns (rows added, rows already
-    /// present).
+    /// interval is already held with the same threshold is not added again; if the
+    /// held row has no fluence limit and the file gives one, it takes the file's
+    /// (nothing known is dropped), and a held limit the file gives differently is
+    /// kept and counted.
     ///
     /// # Errors
     /// [`Error::BadInput`] naming the line of the first bad row (then nothing is
@@ -109,12 +110,12 @@ impl Catalogue {
         &mut self,
         csv_path: &Path,
         reader: impl Read,
-    ) -> Result<(usize, usize)> {
+    ) -> Result<ExposureImport> {
         let rows = parse_exposure_csv(csv_path, reader)?;
         let path = self.path().to_path_buf();
         self.write(|tx| {
             let e = |e| super::sql_error(&path, e);
-            let mut added = 0;
+            let mut counts = ExposureImport::default();
             for (line, row) in &rows {
                 let id: Option<i64> = rusqlite::OptionalExtension::optional(tx.query_row(
                     "SELECT id FROM source WHERE name = ?1",
@@ -131,15 +132,24 @@ impl Catalogue {
                         ),
                     ));
                 };
+                let key = params![id, row.start_mjd, row.end_mjd, row.snr_threshold];
                 // An interval already held, from a run or imported, is not added again:
                 // exporting a run's exposure and importing it back adds nothing.
-                added += tx
-                    .execute(
+                let held: Vec<Option<f64>> = tx
+                    .prepare_cached(
+                        "SELECT fluence_limit_jy_ms FROM exposure WHERE source_id = ?1
+                         AND start_mjd = ?2 AND end_mjd = ?3 AND snr_threshold IS ?4",
+                    )
+                    .and_then(|mut q| {
+                        q.query_map(key, |r| r.get(0))?
+                            .collect::<rusqlite::Result<_>>()
+                    })
+                    .map_err(e)?;
+                if held.is_empty() {
+                    tx.execute(
                         "INSERT INTO exposure
                              (source_id, start_mjd, end_mjd, snr_threshold, fluence_limit_jy_ms)
-                         SELECT ?1, ?2, ?3, ?4, ?5 WHERE NOT EXISTS (SELECT 1 FROM exposure
-                             WHERE source_id = ?1 AND start_mjd = ?2 AND end_mjd = ?3
-                             AND snr_threshold IS ?4)",
+                         VALUES (?1, ?2, ?3, ?4, ?5)",
                         params![
                             id,
                             row.start_mjd,
@@ -149,8 +159,26 @@ impl Catalogue {
                         ],
                     )
                     .map_err(e)?;
+                    counts.added += 1;
+                    continue;
+                }
+                counts.present += 1;
+                let Some(limit) = row.fluence_limit_jy_ms else {
+                    continue;
+                };
+                if held.iter().all(Option::is_none) {
+                    tx.execute(
+                        "UPDATE exposure SET fluence_limit_jy_ms = ?5 WHERE source_id = ?1
+                         AND start_mjd = ?2 AND end_mjd = ?3 AND snr_threshold IS ?4",
+                        params![id, row.start_mjd, row.end_mjd, row.snr_threshold, limit],
+                    )
+                    .map_err(e)?;
+                    counts.limits_filled += 1;
+                } else if held.iter().flatten().any(|&h| h != limit) {
+                    counts.limits_kept += 1;
+                }
             }
-            Ok((added, rows.len() - added))
+            Ok(counts)
         })
     }
 
@@ -190,6 +218,19 @@ fn csv_write_error(e: csv::Error) -> Error {
         csv::ErrorKind::Io(io) => Error::io(EXPORT_OUTPUT, io),
         _ => Error::Config(format!("writing exposure CSV: {message}")),
     }
+}
+
+/// What [`Catalogue::import_exposure_csv`] did with a file's rows.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub struct ExposureImport {
+    /// Intervals added.
+    pub added: usize,
+    /// Intervals already held (same source, start, end and threshold).
+    pub present: usize,
+    /// Of those, held without a fluence limit and given the file's.
+    pub limits_filled: usize,
+    /// Of those, holding a fluence limit the file gives differently (the held one is kept).
+    pub limits_kept: usize,
 }
 
 /// Columns of the exported CSV; an import takes the first three, or four (files
@@ -302,6 +343,15 @@ mod tests {
         cat.upsert_source(&s).unwrap();
     }
 
+    /// Rows added and already present, no fluence limit filled or kept.
+    fn counts(added: usize, present: usize) -> ExposureImport {
+        ExposureImport {
+            added,
+            present,
+            ..Default::default()
+        }
+    }
+
     fn cat_with_source() -> (tempfile::TempDir, Catalogue) {
         let dir = tempfile::tempdir().unwrap();
         let mut cat = Catalogue::open(&dir.path().join("c.sqlite")).unwrap();
@@ -314,12 +364,21 @@ mod tests {
         let (_d, mut cat) = cat_with_source();
         let csv = "source,start_mjd,end_mjd,snr_threshold\nSRC-A,60000.0,60000.5,7\n# a comment\nSRC-A, 60001.0 ,60001.25\n";
         let p = Path::new("in.csv");
-        assert_eq!(cat.import_exposure_csv(p, csv.as_bytes()).unwrap(), (2, 0));
-        assert_eq!(cat.import_exposure_csv(p, csv.as_bytes()).unwrap(), (0, 2));
+        assert_eq!(
+            cat.import_exposure_csv(p, csv.as_bytes()).unwrap(),
+            counts(2, 0)
+        );
+        assert_eq!(
+            cat.import_exposure_csv(p, csv.as_bytes()).unwrap(),
+            counts(0, 2)
+        );
         let mut out = Vec::new();
         cat.export_exposure_csv(Some("SRC-A"), &mut out).unwrap();
         let text = String::from_utf8(out).unwrap();
-        assert_eq!(cat.import_exposure_csv(p, text.as_bytes()).unwrap(), (0, 2));
+        assert_eq!(
+            cat.import_exposure_csv(p, text.as_bytes()).unwrap(),
+            counts(0, 2)
+        );
         let merged = cat.merged_exposure("SRC-A", Some(7.0)).unwrap();
         assert!((exposure_hours(&merged) - 18.0).abs() < 1e-9);
         // A search complete only above S/N 7 does not count at S/N 6.5... unless its
@@ -343,7 +402,10 @@ mod tests {
         cat.export_exposure_csv(None, &mut out).unwrap();
         // The imported copy (run_id NULL) used to be a second row of the same interval.
         let p = Path::new("round-trip.csv");
-        assert_eq!(cat.import_exposure_csv(p, out.as_slice()).unwrap(), (0, 1));
+        assert_eq!(
+            cat.import_exposure_csv(p, out.as_slice()).unwrap(),
+            counts(0, 1)
+        );
         assert_eq!(cat.exposure(None).unwrap(), before);
     }
 
@@ -367,7 +429,10 @@ mod tests {
         here.record_completeness(&obs, &completeness).unwrap();
         let csv = "FIELD-7,60010.5,60010.75,8,2.5\nFIELD-7,60011,60011.125\n";
         let p = Path::new("in.csv");
-        assert_eq!(here.import_exposure_csv(p, csv.as_bytes()).unwrap(), (2, 0));
+        assert_eq!(
+            here.import_exposure_csv(p, csv.as_bytes()).unwrap(),
+            counts(2, 0)
+        );
         let held = here.exposure(None).unwrap();
         assert_eq!(held.len(), 3);
         assert_eq!(held[0].fluence_limit_jy_ms, Some(0.9), "{held:?}");
@@ -379,7 +444,7 @@ mod tests {
         let p = Path::new("exported.csv");
         assert_eq!(
             there.import_exposure_csv(p, exported.as_slice()).unwrap(),
-            (3, 0)
+            counts(3, 0)
         );
         // Everything but the run, which belongs to the other catalogue.
         let expected: Vec<ExposureInterval> = held
@@ -398,9 +463,31 @@ mod tests {
         assert!(older.starts_with("source,start_mjd,end_mjd,snr_threshold\n"));
         assert_eq!(
             there.import_exposure_csv(p, older.as_bytes()).unwrap(),
-            (0, 3)
+            counts(0, 3)
         );
         assert_eq!(there.exposure(None).unwrap(), expected);
+
+        // A held interval without a limit takes the file's; a held limit the file
+        // gives differently is kept, and both are counted.
+        let again = "FIELD-7,60011,60011.125,,1.5\nFIELD-7,60010.5,60010.75,8,9.9\n";
+        let done = there.import_exposure_csv(p, again.as_bytes()).unwrap();
+        let want = ExposureImport {
+            limits_filled: 1,
+            limits_kept: 1,
+            ..counts(0, 2)
+        };
+        assert_eq!(done, want);
+        let limits: Vec<Option<f64>> = there
+            .exposure(None)
+            .unwrap()
+            .iter()
+            .map(|e| e.fluence_limit_jy_ms)
+            .collect();
+        assert!(
+            limits.contains(&Some(1.5)) && limits.contains(&Some(2.5)),
+            "{limits:?}"
+        );
+        assert!(!limits.contains(&Some(9.9)), "{limits:?}");
     }
 
     #[test]

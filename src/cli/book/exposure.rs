@@ -43,8 +43,24 @@ pub fn run(cat: &mut Catalogue, c: ExposureCommand) -> anyhow::Result<()> {
         ExposureCommand::Import { file } => {
             let f = std::fs::File::open(&file)
                 .with_context(|| format!("opening {}", file.display()))?;
-            let (added, present) = cat.import_exposure_csv(&file, std::io::BufReader::new(f))?;
-            println!("imported {added} interval(s); {present} already present");
+            let done = cat.import_exposure_csv(&file, std::io::BufReader::new(f))?;
+            print!(
+                "imported {} interval(s); {} already present",
+                done.added, done.present
+            );
+            if done.limits_filled > 0 {
+                print!(
+                    "; {} given the file's fluence limit, held without one",
+                    done.limits_filled
+                );
+            }
+            if done.limits_kept > 0 {
+                print!(
+                    "; {} keep their own fluence limit, which the file gives differently",
+                    done.limits_kept
+                );
+            }
+            println!();
             Ok(())
         }
         ExposureCommand::Export { source, out } => {
