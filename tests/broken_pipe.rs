@@ -4,6 +4,27 @@
 use std::io::{BufRead, BufReader};
 use std::process::{Command, Stdio};
 
+/// Runs `command`, reads the first line of its output and closes the pipe, as
+/// `head -1` would; asserts that it still exits successfully and quietly, and
+/// returns that line.
+fn first_line_then_close(command: &mut Command) -> String {
+    let mut child = command
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("burstbook runs");
+    let mut first = String::new();
+    BufReader::new(child.stdout.take().expect("stdout piped"))
+        .read_line(&mut first)
+        .expect("one line");
+    let out = child.wait_with_output().expect("burstbook exits");
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(out.status.success(), "exit {:?}: {stderr}", out.status);
+    assert!(!stderr.contains("panicked"), "{stderr}");
+    assert!(!stderr.contains("error"), "{stderr}");
+    first
+}
+
 #[test]
 fn closing_stdout_early_is_quiet_and_successful() {
     // Far more output than a pipe buffers, so the writer really meets a closed pipe.
@@ -13,26 +34,14 @@ fn closing_stdout_early_is_quiet_and_successful() {
         .map(|i| format!("{}\n", 60000.0 + f64::from(i) * 1e-3))
         .collect();
     std::fs::write(&input, format!("mjd_utc\n{rows}")).unwrap();
-    let mut child = Command::new(env!("CARGO_BIN_EXE_burstbook"))
-        .args(["barycentre", "--ra-deg", "10", "--dec-deg", "20"])
-        .args(["--site", "10,45,100", "--out", "/dev/stdout"])
-        .arg("--in")
-        .arg(&input)
-        .stdout(Stdio::piped())
-        .stderr(Stdio::piped())
-        .spawn()
-        .expect("burstbook runs");
-    let mut first = String::new();
-    BufReader::new(child.stdout.take().expect("stdout piped"))
-        .read_line(&mut first)
-        .expect("one line");
+    let first = first_line_then_close(
+        Command::new(env!("CARGO_BIN_EXE_burstbook"))
+            .args(["barycentre", "--ra-deg", "10", "--dec-deg", "20"])
+            .args(["--site", "10,45,100", "--out", "/dev/stdout"])
+            .arg("--in")
+            .arg(&input),
+    );
     assert!(!first.is_empty());
-    // The reading end is dropped here, as `head -1` would.
-    let out = child.wait_with_output().expect("burstbook exits");
-    let stderr = String::from_utf8_lossy(&out.stderr);
-    assert!(out.status.success(), "exit {:?}: {stderr}", out.status);
-    assert!(!stderr.contains("panicked"), "{stderr}");
-    assert!(!stderr.contains("error"), "{stderr}");
 }
 
 // The same for a catalogue listing written by the library (`book exposure export`).
@@ -43,11 +52,8 @@ fn exposure_export_to_a_closed_pipe_is_quiet() {
     let input = dir.path().join("exposure.csv");
     let rows: String = (0..20_000)
         .map(|i| {
-            format!(
-                "Made-Up Source 9,{},{},7\n",
-                61000.0 + f64::from(i) * 0.01,
-                61000.005 + f64::from(i) * 0.01
-            )
+            let start = 61000.0 + f64::from(i) * 0.01;
+            format!("Made-Up Source 9,{start},{},7\n", start + 0.005)
         })
         .collect();
     std::fs::write(
@@ -60,7 +66,7 @@ fn exposure_export_to_a_closed_pipe_is_quiet() {
         c.arg("book").arg("--catalogue").arg(&catalogue).args(args);
         c
     };
-    let mut add = book(&[
+    let add = [
         "source",
         "add",
         "Made-Up Source 9",
@@ -68,26 +74,14 @@ fn exposure_export_to_a_closed_pipe_is_quiet() {
         "45",
         "--dec",
         "12.5",
-    ]);
-    assert!(add.output().unwrap().status.success());
+    ];
+    assert!(book(&add).output().unwrap().status.success());
     let import = book(&["exposure", "import"]).arg(&input).output().unwrap();
     assert!(
         import.status.success(),
         "{}",
         String::from_utf8_lossy(&import.stderr)
     );
-    let mut child = book(&["exposure", "export"])
-        .stdout(Stdio::piped())
-        .stderr(Stdio::piped())
-        .spawn()
-        .expect("burstbook runs");
-    let mut first = String::new();
-    BufReader::new(child.stdout.take().expect("stdout piped"))
-        .read_line(&mut first)
-        .expect("one line");
+    let first = first_line_then_close(&mut book(&["exposure", "export"]));
     assert!(first.starts_with("source,"), "{first}");
-    let out = child.wait_with_output().expect("burstbook exits");
-    let stderr = String::from_utf8_lossy(&out.stderr);
-    assert!(out.status.success(), "exit {:?}: {stderr}", out.status);
-    assert!(!stderr.contains("error"), "{stderr}");
 }
