@@ -217,7 +217,7 @@ impl Catalogue {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::catalogue::synthetic::{candidates, observation, run};
+    use crate::catalogue::synthetic::{candidates, fluence_completeness, observation, run};
     use crate::catalogue::{AssignTolerance, CandidateFilter};
 
     #[test]
@@ -298,14 +298,7 @@ mod tests {
         let (searched, other) = (run(7.0), run(9.0));
         cat.record_search(&obs, &searched, &[]).unwrap();
         cat.record_search(&obs, &other, &[]).unwrap();
-        let rec = CompletenessRecord {
-            config_json: searched.config_json.clone(),
-            snr50: None,
-            snr90: None,
-            fluence50_jy_ms: Some(0.4),
-            fluence90_jy_ms: Some(0.9),
-            result_json: "{}".into(),
-        };
+        let rec = fluence_completeness(&searched);
         cat.record_completeness(&obs, &rec).unwrap();
         let mut limits: Vec<_> = cat
             .exposure(Some("ECHO"))

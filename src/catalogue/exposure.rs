@@ -411,21 +411,13 @@ mod tests {
 
     #[test]
     fn export_then_import_elsewhere_keeps_every_field() {
-        use crate::catalogue::CompletenessRecord;
-        use crate::catalogue::synthetic::{observation, run};
+        use crate::catalogue::synthetic::{fluence_completeness, observation, run};
         let dir = tempfile::tempdir().unwrap();
         let mut here = Catalogue::open(&dir.path().join("here.sqlite")).unwrap();
         let obs = observation("FIELD-7", 3);
         let searched = run(7.0);
         here.record_search(&obs, &searched, &[]).unwrap();
-        let completeness = CompletenessRecord {
-            config_json: searched.config_json.clone(),
-            snr50: None,
-            snr90: None,
-            fluence50_jy_ms: Some(0.4),
-            fluence90_jy_ms: Some(0.9),
-            result_json: "{}".into(),
-        };
+        let completeness = fluence_completeness(&searched);
         here.record_completeness(&obs, &completeness).unwrap();
         let csv = "FIELD-7,60010.5,60010.75,8,2.5\nFIELD-7,60011,60011.125\n";
         let p = Path::new("in.csv");

@@ -6,7 +6,7 @@ use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use sha2::{Digest, Sha256};
 
-use super::{ObservationRecord, RunRecord};
+use super::{CompletenessRecord, ObservationRecord, RunRecord};
 use crate::candidate::{Candidate, TriageFeatures, Verdict};
 use crate::obs::{Header, Site, UtcEpoch};
 
@@ -84,6 +84,19 @@ pub fn candidates(obs: &ObservationRecord, n: usize, seed: u64) -> Vec<Candidate
             }
         })
         .collect()
+}
+
+/// A completeness result of `run`'s configuration with fluences 0.4 and 0.9 Jy ms
+/// at 50 % and 90 % completeness, and no S/N levels.
+pub fn fluence_completeness(run: &RunRecord) -> CompletenessRecord {
+    CompletenessRecord {
+        config_json: run.config_json.clone(),
+        snr50: None,
+        snr90: None,
+        fluence50_jy_ms: Some(0.4),
+        fluence90_jy_ms: Some(0.9),
+        result_json: "{}".into(),
+    }
 }
 
 /// A run record whose configuration differs only by its S/N threshold.
