@@ -10,7 +10,7 @@
 
 use std::ops::Range;
 
-use ndarray::ArrayView2;
+use ndarray::{ArrayView1, ArrayView2};
 use rayon::prelude::*;
 
 /// Fewest channels a zero run needs to count as dropped data: in real low-bit data
@@ -63,54 +63,61 @@ pub fn dropouts(raw: ArrayView2<'_, f32>, mask: &[bool]) -> Vec<Dropout> {
     if suspects.is_empty() {
         return Vec::new();
     }
-    let zeros = raw
-        .rows()
-        .into_iter()
-        .map(|row| live.iter().filter(|&&c| row[c] == 0.0).count())
-        .sum::<usize>();
+    let zeros: usize = (0..n_rows)
+        .into_par_iter()
+        .map(|t| live.iter().filter(|&&c| raw[[t, c]] == 0.0).count())
+        .sum();
     let cells = n_rows * live.len();
     let min_run = min_run(zeros as f64 / cells as f64, cells).clamp(MIN_CHANNELS, live.len());
+    let runs: Vec<(usize, Vec<Range<usize>>)> = suspects
+        .into_par_iter()
+        .map(|t| (t, zero_runs(raw.row(t), &live, min_run)))
+        .collect();
     let mut found: Vec<Dropout> = Vec::new();
     // Rectangles that reached the row before.
     let mut open: Vec<usize> = Vec::new();
-    for t in suspects {
-        let row = raw.row(t);
+    for (t, row_runs) in runs {
         let mut still_open = Vec::new();
-        let mut run_start = None;
-        for (i, &c) in live.iter().enumerate() {
-            let zero = row[c] == 0.0;
-            if zero && run_start.is_none() {
-                run_start = Some(i);
-            }
-            let run_ends = !zero || i + 1 == live.len();
-            if let (true, Some(first)) = (run_ends, run_start) {
-                let last = if zero { i } else { i - 1 };
-                if last + 1 - first >= min_run {
-                    let chans = live[first]..live[last] + 1;
-                    let extends = open
-                        .iter()
-                        .copied()
-                        .find(|&k| found[k].chans == chans && found[k].rows.end == t);
-                    match extends {
-                        Some(k) => {
-                            found[k].rows.end = t + 1;
-                            still_open.push(k);
-                        }
-                        None => {
-                            still_open.push(found.len());
-                            found.push(Dropout {
-                                rows: t..t + 1,
-                                chans,
-                            });
-                        }
-                    }
+        for chans in row_runs {
+            let extends = open
+                .iter()
+                .copied()
+                .find(|&k| found[k].chans == chans && found[k].rows.end == t);
+            match extends {
+                Some(k) => {
+                    found[k].rows.end = t + 1;
+                    still_open.push(k);
                 }
-                run_start = None;
+                None => {
+                    still_open.push(found.len());
+                    found.push(Dropout {
+                        rows: t..t + 1,
+                        chans,
+                    });
+                }
             }
         }
         open = still_open;
     }
     found
+}
+
+/// The runs of at least `min_run` consecutive `live` channels that are exactly zero
+/// in `row`, as channel ranges from the run's first to one past its last channel.
+fn zero_runs(row: ArrayView1<'_, f32>, live: &[usize], min_run: usize) -> Vec<Range<usize>> {
+    let mut runs = Vec::new();
+    let mut first = 0;
+    for (i, &c) in live.iter().enumerate() {
+        if row[c] != 0.0 {
+            first = i + 1;
+        } else if i + 1 == live.len() || row[live[i + 1]] != 0.0 {
+            // The run first..=i ends here.
+            if i + 1 - first >= min_run {
+                runs.push(live[first]..c + 1);
+            }
+        }
+    }
+    runs
 }
 
 /// Shortest zero run that `cells` independent samples, each zero with probability
@@ -214,6 +221,16 @@ mod tests {
         let mut short = Array2::from_elem((50, n_chan), 3.0f32);
         short.row_mut(10).slice_mut(ndarray::s![0..10]).fill(0.0);
         assert!(dropouts(short.view(), &mask).is_empty());
+    }
+
+    #[test]
+    fn zero_runs_span_masked_channels_and_reach_the_band_edges() {
+        let row = ndarray::arr1(&[0.0f32, 0.0, 5.0, 0.0, 9.0, 0.0, 0.0, 0.0]);
+        // Channel 4 is masked: the run 3..8 passes over it.
+        let live = [0, 1, 2, 3, 5, 6, 7];
+        assert_eq!(zero_runs(row.view(), &live, 2), vec![0..2, 3..8]);
+        assert_eq!(zero_runs(row.view(), &live, 4), vec![3..8]);
+        assert!(zero_runs(row.view(), &live, 5).is_empty());
     }
 
     // With half the samples zero (1-bit data), runs of 16 zeros happen by chance
