@@ -9,6 +9,17 @@ pub const DISPERSION_CONSTANT_S_MHZ2: f64 = 4.148808e3;
 /// Seconds in a day.
 pub const SECONDS_PER_DAY: f64 = 86_400.0;
 
+/// (`mjd` + d, `sec` − d · 86400) for the whole number of days d that leaves the
+/// seconds in `[0, 86400)`: for time scales without leap seconds (TT, TDB). The day
+/// count saturates for absurd `sec`.
+pub fn whole_days(mjd: i64, sec: f64) -> (i64, f64) {
+    let days = (sec / SECONDS_PER_DAY).floor();
+    (
+        mjd.saturating_add(days as i64),
+        sec - days * SECONDS_PER_DAY,
+    )
+}
+
 /// Dispersion delay in seconds of `freq_mhz` relative to infinite frequency for `dm`
 /// in pc cm⁻³.
 pub fn delay_to_infinity_s(dm: f64, freq_mhz: f64) -> f64 {

@@ -540,3 +540,28 @@ fn a_reused_workspace_changes_no_result() {
         assert_eq!(reused, fresh);
     }
 }
+
+// A recording that starts at 2016-12-31 23:59:00 UTC runs through the leap second
+// 23:59:60: a burst after it arrives one second earlier by the clock than 86400-s
+// days would say. astropy 8.0.2 (tests/fixtures/timing/leap_second_astropy.csv) puts
+// the start + 61 s at 2017-01-01 00:00:00 exactly, MJD 57754.
+#[test]
+fn arrival_mjd_counts_a_leap_second_inside_the_recording() {
+    let n = 70_000;
+    let mut h = header(N_CHAN, n, TSAMP);
+    h.start = burstbook::obs::UtcEpoch::new(57_753, 86_340.0);
+    let t_inf_s = 65.0;
+    let mut data = noise(&h, 23);
+    add(&h, &mut data, &burst(&h, t_inf_s, 150.0, 4e-3, 25.0));
+    let r = search_source(source(h, data), "synthetic", &config(), None).unwrap();
+    let found = near(&r, t_inf_s);
+    assert_eq!(found.len(), 1, "{:#?}", r.candidates);
+    let c = found[0];
+    let expected_mjd = 57_754.0 + (c.t_inf_s - 61.0) / 86_400.0;
+    // 1e-10 day is 9 µs; the 86400-s days of before were 1 s (1.2e-5 day) late.
+    assert!(
+        (c.mjd_inf - expected_mjd).abs() < 1e-10,
+        "MJD {} against {expected_mjd}",
+        c.mjd_inf
+    );
+}

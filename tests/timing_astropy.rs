@@ -1,13 +1,15 @@
 //! Barycentric corrections against astropy 8.0.2 with the JPL DE421 ephemeris
 //! (jplephem 2.24, numpy 2.4.6, pyerfa 2.0.1.5): fixture and generating script in
 //! `tests/fixtures/timing/`. Also checks the embedded Earth/TDB tables against direct
-//! DE421 / ERFA dtdb values written by `scripts/timing/make_ephemeris_tables.py`.
+//! DE421 / ERFA dtdb values written by `scripts/timing/make_ephemeris_tables.py`, and
+//! UTC arithmetic across leap seconds against astropy 8.0.2 (pyerfa 2.0.1.5).
 
 use burstbook::obs::{Site, UtcEpoch};
 use burstbook::timing::{Barycentrer, Ephemeris, TimingWarning, ephemeris};
 
 const FIXTURE: &str = "tests/fixtures/timing/barycentre_astropy_de421.csv";
 const EPHEMERIS_CHECK: &str = "tests/fixtures/timing/ephemeris_check.csv";
+const LEAP_SECONDS: &str = "tests/fixtures/timing/leap_second_astropy.csv";
 
 fn rows(path: &str) -> Vec<Vec<f64>> {
     let mut reader = csv::ReaderBuilder::new()
@@ -97,4 +99,33 @@ fn embedded_tables_match_de421_and_dtdb() {
     assert!(pos < 0.05); // km; the fit's own worst case is 28 m
     assert!(dt < 10e-9);
     assert!(sun < 0.1); // km; fit worst case 89 m
+}
+
+/// Adding SI seconds to a UTC epoch counts the leap seconds passed over, an instant
+/// inside one is 23:59:60.x of its day, and the floating MJD of a leap-second day is
+/// astropy's quasi-MJD (fraction = seconds / 86401). Before, a day was always 86400 s,
+/// which put every time after a leap second inside an observation 1 s late.
+#[test]
+fn utc_arithmetic_across_leap_seconds_matches_astropy() {
+    let table = rows(LEAP_SECONDS);
+    assert_eq!(table.len(), 60);
+    let mut inside_leap_second = 0;
+    for r in &table {
+        let (start, offset_s) = (UtcEpoch::new(r[0] as i64, r[1]), r[2]);
+        let (end_mjd, end_sec, quasi_mjd) = (r[3] as i64, r[4], r[5]);
+        let end = start.plus_seconds(offset_s);
+        let case = format!("{start:?} + {offset_s} s = {end:?}, astropy {end_mjd} + {end_sec} s");
+        assert_eq!(end.mjd, end_mjd, "{case}");
+        assert!((end.sec - end_sec).abs() < 1e-6, "{case}");
+        // 1e-11 day is 0.9 µs, the resolution of an f64 MJD near 57 000.
+        assert!((end.to_mjd_f64() - quasi_mjd).abs() < 1e-11, "{case}");
+        let back = UtcEpoch::from_mjd_f64(quasi_mjd);
+        assert_eq!(back.mjd, end_mjd, "{case}");
+        assert!((back.sec - end_sec).abs() < 2e-6, "{case}");
+        inside_leap_second += usize::from(end_sec >= 86_400.0);
+    }
+    assert!(
+        inside_leap_second >= 2,
+        "the fixture must reach inside a leap second"
+    );
 }

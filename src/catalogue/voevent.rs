@@ -12,7 +12,7 @@ use serde::Serialize;
 
 use super::{BurstFilter, Catalogue, catalogue_error};
 use crate::error::{Error, Result};
-use crate::obs::Header;
+use crate::obs::{Header, UtcEpoch};
 
 /// Who publishes, and how precise the position is.
 #[derive(Debug, Clone, PartialEq)]
@@ -62,11 +62,9 @@ pub struct BurstPacket {
 }
 
 /// ISO 8601 UTC with microseconds (no time-zone suffix, as VOEvent ISOTime uses)
-/// for a UTC MJD; 86400-s days (MJD 40587 = 1970-01-01, common practice).
+/// for a UTC (quasi-)MJD, leap seconds included ([`UtcEpoch::to_iso`]).
 pub fn mjd_to_iso(mjd: f64) -> String {
-    let micros = ((mjd - 40587.0) * 86_400e6).round() as i64;
-    let t = chrono::DateTime::from_timestamp_micros(micros).unwrap_or_default();
-    t.format("%Y-%m-%dT%H:%M:%S%.6f").to_string()
+    UtcEpoch::from_mjd_f64(mjd).to_iso()
 }
 
 /// Writes the packet. Pure: same inputs, same bytes (except `date_utc`).

@@ -44,7 +44,7 @@ pub fn run(args: Args) -> anyhow::Result<()> {
             "file": args.file,
             "container": container,
             "header": header,
-            "start_utc": utc_string(&header),
+            "start_utc": header.start.to_iso(),
             "duration_s": header.duration_s(),
             "statistics": stats,
         });
@@ -63,14 +63,6 @@ fn emit(text: &str) -> anyhow::Result<()> {
         Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => Ok(()),
         other => Ok(other?),
     }
-}
-
-/// The start as an ISO-8601 UTC string (days of 86400 s).
-fn utc_string(h: &Header) -> String {
-    let mjd_epoch = chrono::NaiveDate::from_ymd_opt(1858, 11, 17).expect("valid date");
-    let date = mjd_epoch + chrono::Days::new(h.start.mjd.max(0) as u64);
-    let hms = geodesy::format_sexagesimal(h.start.sec / 3600.0, 6, false);
-    format!("{date}T{hms}")
 }
 
 fn write_header(out: &mut String, file: &std::path::Path, container: Container, h: &Header) {
@@ -109,7 +101,7 @@ fn write_header(out: &mut String, file: &std::path::Path, container: Container, 
     );
     row(
         "start",
-        format!("{} UTC (MJD {:.9})", utc_string(h), h.start.to_mjd_f64()),
+        format!("{} UTC (MJD {:.9})", h.start.to_iso(), h.start.to_mjd_f64()),
     );
     row("tsamp", format!("{} µs", h.tsamp_s * 1e6));
     row(

@@ -2,7 +2,8 @@
 
 use serde::{Deserialize, Serialize};
 
-use crate::units::SECONDS_PER_DAY;
+use crate::timing::leap::{tai_minus_utc_s, utc_day_length_s};
+use crate::units::{SECONDS_PER_DAY, whole_days};
 
 /// Channel centres a header may hold, MHz: from below the ionosphere's cutoff (about
 /// 10 MHz) to the top of the submillimetre band (1 THz), `common practice`. Anything
@@ -29,37 +30,83 @@ pub struct Site {
 pub struct UtcEpoch {
     /// Integer modified Julian date of the UTC day.
     pub mjd: i64,
-    /// Seconds since the start of that UTC day, in `[0, 86400)` (86401 on a leap-second day).
+    /// Seconds since the start of that UTC day, in `[0, 86400)`, or `[0, 86401)` on a
+    /// day that ends with a leap second ([`utc_day_length_s`]).
     pub sec: f64,
 }
 
 impl UtcEpoch {
-    /// Builds an epoch, normalising `sec` into `[0, 86400)` by moving whole days.
-    ///
-    /// Days are treated as 86400 s long; leap seconds inside an observation are
-    /// ignored here and handled by the timing stage.
+    /// The instant `sec` SI seconds after the start of UTC day `mjd` (negative:
+    /// before), with whole UTC days moved out of `sec`. A day that ends with a leap
+    /// second is 86401 s long, so `new(57753, 86400.5)` is 2016-12-31 23:59:60.5 and
+    /// `new(57753, 86401.5)` is 2017-01-01 00:00:00.5 (IERS Bulletin C; before 1972 all
+    /// days count 86400 s). A non-finite `sec` is kept as it is.
     pub fn new(mjd: i64, sec: f64) -> Self {
-        let days = (sec / SECONDS_PER_DAY).floor();
-        UtcEpoch {
-            mjd: mjd + days as i64,
-            sec: sec - days * SECONDS_PER_DAY,
+        if !sec.is_finite() {
+            return UtcEpoch { mjd, sec };
         }
+        let (mut day, mut sec) = whole_days(mjd, sec);
+        if !(0.0..SECONDS_PER_DAY).contains(&sec) {
+            return UtcEpoch { mjd: day, sec }; // the day count saturated
+        }
+        // The leap seconds that ended the days passed over: TAI − UTC grew by them.
+        let tai_minus_utc = |d: i64| tai_minus_utc_s(d).map_or(0.0, f64::from);
+        sec -= tai_minus_utc(day) - tai_minus_utc(mjd);
+        while sec < 0.0 {
+            day -= 1;
+            sec += utc_day_length_s(day);
+        }
+        while sec >= utc_day_length_s(day) {
+            sec -= utc_day_length_s(day);
+            day += 1;
+        }
+        UtcEpoch { mjd: day, sec }
     }
 
-    /// The epoch `offset_s` seconds later (86400-s days).
+    /// The epoch `offset_s` SI seconds later (leap seconds included).
     pub fn plus_seconds(self, offset_s: f64) -> Self {
         UtcEpoch::new(self.mjd, self.sec + offset_s)
     }
 
-    /// The epoch as a floating-point MJD (about 1 µs resolution near MJD 60000).
+    /// The epoch as a floating-point MJD (about 1 µs resolution near MJD 60000). On a
+    /// leap-second day the fraction is seconds / 86401, so the day's MJDs stay below
+    /// the next day's, as in the quasi-MJD of ERFA and astropy.
     pub fn to_mjd_f64(self) -> f64 {
-        self.mjd as f64 + self.sec / SECONDS_PER_DAY
+        self.mjd as f64 + self.sec / utc_day_length_s(self.mjd)
     }
 
-    /// Splits a floating-point MJD into integer day and seconds.
+    /// Splits a floating-point (quasi-)MJD into integer day and seconds, the inverse
+    /// of [`UtcEpoch::to_mjd_f64`].
     pub fn from_mjd_f64(mjd: f64) -> Self {
         let day = mjd.floor();
-        UtcEpoch::new(day as i64, (mjd - day) * SECONDS_PER_DAY)
+        UtcEpoch::new(day as i64, (mjd - day) * utc_day_length_s(day as i64))
+    }
+
+    /// ISO 8601 to the microsecond, without a zone suffix (`2016-12-31T23:59:60.500000`
+    /// inside a leap second); `MJD d + s s` for a day outside the calendar's range.
+    pub fn to_iso(self) -> String {
+        let day_us = (utc_day_length_s(self.mjd) * 1e6) as i64;
+        let us = (self.sec * 1e6).round() as i64;
+        // Rounding may carry into the next day.
+        let (mjd, us) = if us >= day_us {
+            (self.mjd + 1, us - day_us)
+        } else {
+            (self.mjd, us)
+        };
+        let mjd_zero = chrono::NaiveDate::from_ymd_opt(1858, 11, 17).expect("valid date");
+        let Some(date) = mjd_zero.checked_add_signed(chrono::TimeDelta::days(mjd)) else {
+            return format!("MJD {} + {} s", self.mjd, self.sec);
+        };
+        // A leap second is the 61st second of the day's last minute.
+        let minute = (us / 60_000_000).min(24 * 60 - 1);
+        let us = us - minute * 60_000_000;
+        format!(
+            "{date}T{:02}:{:02}:{:02}.{:06}",
+            minute / 60,
+            minute % 60,
+            us / 1_000_000,
+            us % 1_000_000
+        )
     }
 }
 
@@ -251,6 +298,25 @@ pub(crate) mod tests {
         let back = UtcEpoch::from_mjd_f64(e.to_mjd_f64());
         assert_eq!(back.mjd, 59999);
         assert!((back.sec - 86_399.0).abs() < 1e-5);
+        // Kept as they are, not a panic or a wrapped day count.
+        assert!(UtcEpoch::new(60000, f64::NAN).sec.is_nan());
+        assert_eq!(UtcEpoch::new(60000, f64::INFINITY).mjd, 60000);
+        assert!(UtcEpoch::new(60000, 1e300).sec.is_finite());
+    }
+
+    /// Leap seconds from IERS Bulletin C: one ended 2016-12-31 (MJD 57753).
+    #[test]
+    fn iso_strings_show_the_leap_second() {
+        let iso = |mjd, sec| UtcEpoch::new(mjd, sec).to_iso();
+        assert_eq!(iso(51544, 43200.0), "2000-01-01T12:00:00.000000");
+        assert_eq!(iso(40587, 0.0), "1970-01-01T00:00:00.000000");
+        assert_eq!(iso(57753, 86399.25), "2016-12-31T23:59:59.250000");
+        assert_eq!(iso(57753, 86400.5), "2016-12-31T23:59:60.500000");
+        assert_eq!(iso(57753, 86401.5), "2017-01-01T00:00:00.500000");
+        // Rounding to the microsecond carries into the next day.
+        // MJD 60000 is 2023-02-25 (from memory; the two epochs above fix the count).
+        assert_eq!(iso(60000, 86399.9999996), "2023-02-26T00:00:00.000000");
+        assert_eq!(iso(0, 0.0), "1858-11-17T00:00:00.000000");
     }
 
     #[test]

@@ -458,7 +458,7 @@ mod tests {
         let cand = Candidate {
             file: "synthetic.json".into(),
             t_inf_s,
-            mjd_inf: h.start.to_mjd_f64() + t_inf_s / 86_400.0,
+            mjd_inf: h.start.plus_seconds(t_inf_s).to_mjd_f64(),
             dm: DM,
             dm_lo: 298.0,
             dm_hi: 302.5,

@@ -2,6 +2,7 @@
 
 use std::path::Path;
 
+use super::leap::utc_day_length_s;
 use super::{Barycentrer, TdbEpoch, TimingWarning};
 use crate::atomic_file::{self, AtomicFile};
 use crate::error::{Error, Result};
@@ -121,9 +122,10 @@ pub fn parse_mjd(text: &str) -> Option<UtcEpoch> {
     } else {
         format!("0.{frac}").parse().ok()?
     };
+    // A quasi-MJD, as [`UtcEpoch::to_mjd_f64`] writes it.
     Some(UtcEpoch {
         mjd: day,
-        sec: frac * SECONDS_PER_DAY,
+        sec: frac * utc_day_length_s(day),
     })
 }
 
@@ -147,6 +149,11 @@ mod tests {
         assert_eq!(t.mjd, 60123);
         assert!((t.sec - 0.456789012345 * 86400.0).abs() < 1e-9);
         assert_eq!(parse_mjd("60000").unwrap().sec, 0.0);
+        // A quasi-MJD of a leap-second day: 23:59:60.5 on 2016-12-31 (astropy 8.0.2,
+        // tests/fixtures/timing/leap_second_astropy.csv).
+        let leap = parse_mjd("57753.999994213030732").unwrap();
+        assert_eq!(leap.mjd, 57753);
+        assert!((leap.sec - 86_400.5).abs() < 1e-6, "{}", leap.sec);
         for bad in ["", "abc", "60000.1e3", "-5.5", "1.2.3", ".5"] {
             assert!(parse_mjd(bad).is_none(), "{bad}");
         }

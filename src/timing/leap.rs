@@ -53,7 +53,7 @@ pub fn tai_minus_utc_s(mjd: i64) -> Option<i32> {
 
 /// Length of the UTC day `mjd` in seconds: 86401 on a day that ends with a leap second.
 pub fn utc_day_length_s(mjd: i64) -> f64 {
-    match (tai_minus_utc_s(mjd), tai_minus_utc_s(mjd + 1)) {
+    match (tai_minus_utc_s(mjd), tai_minus_utc_s(mjd.saturating_add(1))) {
         (Some(today), Some(tomorrow)) => 86_400.0 + f64::from(tomorrow - today),
         _ => 86_400.0,
     }

@@ -31,7 +31,7 @@ pub use spk::SpkEphemeris;
 
 use crate::error::{Error, Result};
 use crate::obs::{Site, UtcEpoch};
-use crate::units::{SECONDS_PER_DAY, delay_to_infinity_s};
+use crate::units::{SECONDS_PER_DAY, delay_to_infinity_s, whole_days};
 use geometry::{
     C_KM_S, dot, itrs_to_gcrs, npb_matrix, roemer_delay_s, shapiro_delay_s, source_direction,
 };
@@ -46,10 +46,9 @@ pub struct TdbEpoch {
 }
 
 impl TdbEpoch {
-    /// Builds an epoch, moving whole days out of `sec` (TDB days are all 86400 s; the
-    /// normalisation is [`UtcEpoch::new`]'s).
+    /// Builds an epoch, moving whole days out of `sec` (TDB days are all 86400 s).
     pub fn new(mjd: i64, sec: f64) -> Self {
-        let UtcEpoch { mjd, sec } = UtcEpoch::new(mjd, sec);
+        let (mjd, sec) = whole_days(mjd, sec);
         TdbEpoch { mjd, sec }
     }
 

@@ -33,28 +33,15 @@ fn parts_add_up_and_tdb_is_utc_plus_correction() {
 #[test]
 fn leap_second_is_continuous_in_tdb() {
     // 2016-12-31 had 86401 UTC seconds; the instant after 23:59:60 is 2017-01-01 00:00:00.
-    // inside the leap second itself (UtcEpoch::new would fold it into the next day)
-    let before = utc_to_barycentric_tdb(
-        UtcEpoch {
-            mjd: 57_753,
-            sec: 86_400.5,
-        },
-        &site(),
-        83.6,
-        22.0,
-    )
-    .unwrap();
+    // `inside` is 23:59:60.5, one SI second before `after`.
+    let inside = UtcEpoch::new(57_753, 86_400.5);
+    assert_eq!(inside.mjd, 57_753);
+    let before = utc_to_barycentric_tdb(inside, &site(), 83.6, 22.0).unwrap();
     let after = convert(57_754, 0.5);
     // Topocentric TDB (before the light-time terms) advances by exactly one second.
     let at_site =
         |utc: UtcEpoch, r: &BaryResult| TdbEpoch::new(utc.mjd, utc.sec + r.tdb_minus_utc_s);
-    let dt = at_site(UtcEpoch::new(57_754, 0.5), &after).seconds_since(at_site(
-        UtcEpoch {
-            mjd: 57_753,
-            sec: 86_400.5,
-        },
-        &before,
-    ));
+    let dt = at_site(inside.plus_seconds(1.0), &after).seconds_since(at_site(inside, &before));
     assert!((dt - 1.0).abs() < 1e-9, "{dt}");
     assert_eq!(
         (after.tdb_minus_utc_s - before.tdb_minus_utc_s).round(),
