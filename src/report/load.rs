@@ -87,19 +87,7 @@ pub fn group_by_observation(
 }
 
 fn resolve(file: &str, search_dir: Option<&Path>, lookup: ObsLookup) -> Result<PathBuf> {
-    let recorded = Path::new(file);
-    let name = recorded.file_name();
-    let by_name = match lookup {
-        ObsLookup::Files(files) => files.iter().find(|p| p.file_name() == name).cloned(),
-        ObsLookup::Dir(dir) => dir.zip(name).map(|(d, n)| d.join(n)).filter(|p| p.exists()),
-    };
-    if let Some(p) = by_name {
-        return Ok(p);
-    }
-    if recorded.exists() {
-        return Ok(recorded.to_path_buf());
-    }
-    if let Some(p) = search_dir.map(|d| d.join(recorded)).filter(|p| p.exists()) {
+    if let Some(p) = locate(file, search_dir, lookup) {
         return Ok(p);
     }
     let hint = match lookup {
@@ -114,6 +102,20 @@ fn resolve(file: &str, search_dir: Option<&Path>, lookup: ObsLookup) -> Result<P
     Err(Error::Config(format!(
         "cannot find observation {file:?} named in the candidates{hint}"
     )))
+}
+
+/// The observation file recorded as `file`: by file name in `lookup`, else the
+/// recorded path if it exists (a relative one is tried from `search_dir` as well).
+pub fn locate(file: &str, search_dir: Option<&Path>, lookup: ObsLookup) -> Option<PathBuf> {
+    let recorded = Path::new(file);
+    let name = recorded.file_name();
+    let by_name = match lookup {
+        ObsLookup::Files(files) => files.iter().find(|p| p.file_name() == name).cloned(),
+        ObsLookup::Dir(dir) => dir.zip(name).map(|(d, n)| d.join(n)).filter(|p| p.exists()),
+    };
+    by_name
+        .or_else(|| recorded.exists().then(|| recorded.to_path_buf()))
+        .or_else(|| search_dir.map(|d| d.join(recorded)).filter(|p| p.exists()))
 }
 
 #[cfg(test)]

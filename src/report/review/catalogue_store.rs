@@ -6,6 +6,7 @@ use std::path::PathBuf;
 use super::store::{LabelStore, ReviewItem, ReviewLabel};
 use crate::catalogue::{CandidateFilter, Catalogue};
 use crate::error::Result;
+use crate::report::load::{ObsLookup, locate};
 
 /// Reviews the catalogue's candidates that match `filter`, highest S/N first.
 pub struct CatalogueStore {
@@ -13,7 +14,8 @@ pub struct CatalogueStore {
     pub filter: CandidateFilter,
     /// Name recorded with every label.
     pub reviewer: String,
-    /// Folder to look in (by file name) when a recorded observation path is gone.
+    /// Folder holding moved observation files, looked in by file name ahead of the
+    /// recorded paths, as `report --obs-dir` does.
     pub obs_dir: Option<PathBuf>,
 }
 
@@ -24,11 +26,8 @@ impl LabelStore for CatalogueStore {
         Ok(rows
             .into_iter()
             .map(|r| {
-                let recorded = PathBuf::from(&r.candidate.file);
-                let obs_path = match (&self.obs_dir, recorded.file_name()) {
-                    (Some(dir), Some(name)) if !recorded.exists() => Some(dir.join(name)),
-                    _ => None,
-                };
+                let lookup = ObsLookup::Dir(self.obs_dir.as_deref());
+                let obs_path = locate(&r.candidate.file, None, lookup);
                 ReviewItem {
                     id: r.id,
                     candidate: r.candidate,
@@ -42,5 +41,45 @@ impl LabelStore for CatalogueStore {
     fn record(&mut self, id: i64, label: ReviewLabel, comment: &str) -> Result<()> {
         self.catalogue
             .label(&[id], label.as_str(), &self.reviewer, comment)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::catalogue::synthetic::{candidates, observation, run};
+
+    /// A moved observation is found in the folder by name, as `report --obs-dir` finds
+    /// it; without the folder the recorded path stands.
+    #[test]
+    fn moved_observations_are_found_in_the_folder_by_name() {
+        let dir = tempfile::tempdir().unwrap();
+        let obs = observation("SRC", 3);
+        let mut cands = candidates(&obs, 2, 3);
+        let gone = dir.path().join("gone").join("scan.json");
+        cands
+            .iter_mut()
+            .for_each(|c| c.file = gone.display().to_string());
+        let mut catalogue = Catalogue::open(&dir.path().join("c.sqlite")).unwrap();
+        catalogue.record_search(&obs, &run(7.0), &cands).unwrap();
+        let moved = dir.path().join("moved");
+        std::fs::create_dir(&moved).unwrap();
+        std::fs::write(moved.join("scan.json"), "{}").unwrap();
+        let mut store = CatalogueStore {
+            catalogue,
+            filter: CandidateFilter::default(),
+            reviewer: "tester".into(),
+            obs_dir: Some(moved.clone()),
+        };
+        let items = store.items().unwrap();
+        assert_eq!(items.len(), 2);
+        assert!(
+            items
+                .iter()
+                .all(|i| i.observation() == moved.join("scan.json"))
+        );
+        store.obs_dir = None;
+        let items = store.items().unwrap();
+        assert!(items.iter().all(|i| i.observation() == gone));
     }
 }
