@@ -8,8 +8,8 @@ use std::path::Path;
 
 use crate::error::{Error, Result};
 
-/// Seconds in one day (of the time scale the MJDs are on, here TDB).
-pub const SECONDS_PER_DAY: f64 = 86_400.0;
+/// Seconds in one day of the time scale the MJDs are on, here TDB (no leap seconds).
+pub use crate::units::SECONDS_PER_DAY;
 
 /// Sorted barycentric (TDB) arrival times: seconds after midnight of `ref_mjd`.
 #[derive(Clone, Debug, PartialEq)]
