@@ -565,3 +565,26 @@ fn arrival_mjd_counts_a_leap_second_inside_the_recording() {
         c.mjd_inf
     );
 }
+
+// Where the time went: every stage ran, and the stages add up to no more than the
+// whole search.
+#[test]
+fn stage_times_cover_the_search() {
+    let clock = std::time::Instant::now();
+    let r = run(6_000, 29, &[], &config());
+    let wall_s = clock.elapsed().as_secs_f64();
+    let t = r.seconds;
+    let stages = [
+        t.reading,
+        t.cleaning,
+        t.dedispersion,
+        t.matched_filter,
+        t.triage,
+    ];
+    assert!(stages.iter().all(|&s| s >= 0.0), "{t:?}");
+    assert!(
+        t.cleaning > 0.0 && t.dedispersion > 0.0 && t.matched_filter > 0.0,
+        "{t:?}"
+    );
+    assert!(stages.iter().sum::<f64>() <= wall_s, "{t:?} in {wall_s} s");
+}

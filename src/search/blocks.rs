@@ -57,6 +57,32 @@ impl BlockLayout {
     }
 }
 
+/// Wall-clock seconds a search spent in each stage, summed over its blocks: where the
+/// time of a slow search goes. Stages run one after another, each on every core.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Serialize, Deserialize)]
+pub struct StageSeconds {
+    /// Waiting for the reader thread (reading and decoding run alongside the search).
+    pub reading: f64,
+    /// Excision, transposition and normalisation of the new rows.
+    pub cleaning: f64,
+    /// The dedispersion kernel.
+    pub dedispersion: f64,
+    /// Normalising the dedispersed series and the boxcar search.
+    pub matched_filter: f64,
+    /// Clustering, features and verdicts.
+    pub triage: f64,
+}
+
+impl StageSeconds {
+    fn add(&mut self, o: &StageSeconds) {
+        self.reading += o.reading;
+        self.cleaning += o.cleaning;
+        self.dedispersion += o.dedispersion;
+        self.matched_filter += o.matched_filter;
+        self.triage += o.triage;
+    }
+}
+
 /// What one block contributed.
 pub(super) struct BlockOutcome {
     pub(super) candidates: Vec<Candidate>,
@@ -68,6 +94,7 @@ pub(super) struct BlockOutcome {
     pub(super) step_samples: Vec<f64>,
     /// Rows not shared with the previous block.
     pub(super) new_samples: u64,
+    pub(super) seconds: StageSeconds,
 }
 
 #[derive(Default)]
@@ -79,6 +106,7 @@ pub(super) struct Totals {
     pub(super) n_detections: usize,
     pub(super) samples_searched: u64,
     pub(super) step_samples: Vec<f64>,
+    pub(super) seconds: StageSeconds,
 }
 
 impl Totals {
@@ -125,6 +153,7 @@ impl Totals {
         for (total, n) in self.step_samples.iter_mut().zip(o.step_samples) {
             *total += n;
         }
+        self.seconds.add(&o.seconds);
     }
 }
 

@@ -4,6 +4,7 @@
 //! exactly once. Memory is set by the block length, not the file length.
 
 use std::path::Path;
+use std::time::Instant;
 
 use indicatif::ProgressBar;
 use ndarray::ArrayView2;
@@ -11,7 +12,7 @@ use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
 use super::SearchConfig;
-use super::blocks::{BlockLayout, BlockOutcome, Totals, prefetch};
+use super::blocks::{BlockLayout, BlockOutcome, StageSeconds, Totals, prefetch};
 use super::boxcar::{self, Scratch};
 use super::channels::{Appended, ChannelBlock};
 use super::features::{self, BlockData};
@@ -51,6 +52,9 @@ pub struct FileResult {
     pub trials: TrialCount,
     /// How the recording was cut into blocks.
     pub layout: BlockLayout,
+    /// Where the search's wall-clock time went.
+    #[serde(default)]
+    pub seconds: StageSeconds,
 }
 
 impl FileResult {
@@ -147,8 +151,10 @@ pub fn search_source_in(
         let advance = g.block_len - g.overlap;
         let (reads, recycle) = prefetch(scope, source, g.block_len, advance);
         let mut first = true;
+        let mut clock = Instant::now();
         for read in reads {
             let Some(read) = read? else { break };
+            let reading = lap(&mut clock);
             let asked = if first { g.block_len } else { advance };
             let end = read.start_sample + read.n_time() as u64;
             // A short read, or one reaching the header's length, ends the file.
@@ -164,7 +170,10 @@ pub fn search_source_in(
             );
             // The reader may have ended already; then the buffer is simply dropped.
             let _ = recycle.send(read.data);
-            let outcome = searcher.block(&channels, first, last, appended);
+            let cleaning = lap(&mut clock);
+            let mut outcome = searcher.block(&channels, first, last, appended);
+            outcome.seconds.reading = reading;
+            outcome.seconds.cleaning = cleaning;
             totals.add(outcome, &searcher.sweep, recent_s);
             first = false;
             if let Some(pb) = progress {
@@ -173,6 +182,7 @@ pub fn search_source_in(
             if last {
                 break;
             }
+            clock = Instant::now();
         }
         Ok(())
     })?;
@@ -309,6 +319,8 @@ impl<'a> Searcher<'a> {
         let (norm, mask) = (channels.view(), channels.mask());
         let n_chan = mask.len();
         let n_masked = mask.iter().filter(|&&m| m).count();
+        let mut clock = Instant::now();
+        let mut seconds = StageSeconds::default();
         // No block follows the last one: each trial runs to the last sample its own
         // delays reach, so low DMs are searched to the end of the file.
         let extent = if last {
@@ -327,7 +339,9 @@ impl<'a> Searcher<'a> {
         // Boxcar starts tested, relative to the block start (see the module docs).
         let tested = own_lo.saturating_sub(start + g.margin as u64) as usize
             ..own_hi.saturating_add(g.margin as u64).saturating_sub(start) as usize;
+        seconds.dedispersion = lap(&mut clock);
         let detections = self.detect(&outs, start, tested);
+        seconds.matched_filter = lap(&mut clock);
         let time_link = (self.config.cluster.time_link_s / self.header.tsamp_s).round() as u64;
         let clusters =
             friends_of_friends(&detections, self.config.cluster.dm_link_trials, time_link);
@@ -379,6 +393,7 @@ impl<'a> Searcher<'a> {
         if let Some(kernel) = &mut self.fast {
             kernel.recycle(outs);
         }
+        seconds.triage = lap(&mut clock);
         BlockOutcome {
             candidates,
             masked_fraction: appended.masked_fraction,
@@ -386,6 +401,7 @@ impl<'a> Searcher<'a> {
             samples_searched: searched(n_time.saturating_sub(g.max_delay)),
             step_samples,
             new_samples: appended.new_samples,
+            seconds,
         }
     }
 
@@ -528,6 +544,15 @@ impl<'a> Searcher<'a> {
             n_detections: totals.n_detections,
             trials,
             layout: self.layout,
+            seconds: totals.seconds,
         }
     }
+}
+
+/// Seconds since `clock`, which is reset to now.
+fn lap(clock: &mut Instant) -> f64 {
+    let now = Instant::now();
+    let seconds = now.duration_since(*clock).as_secs_f64();
+    *clock = now;
+    seconds
 }

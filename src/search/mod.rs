@@ -20,7 +20,7 @@ pub mod output;
 mod transpose;
 pub mod trials;
 
-pub use blocks::BlockLayout;
+pub use blocks::{BlockLayout, StageSeconds};
 pub use config::{ClusterConfig, SearchConfig, TriageConfig};
 pub use driver::{
     FileResult, Workspace, block_layout, search_file, search_source, search_source_in,
