@@ -1,8 +1,12 @@
 //! A reader that stops early (`burstbook ... | head`) must not turn into an error
 //! message or a panic (common practice for command-line tools).
 
+mod common;
+
 use std::io::{BufRead, BufReader};
 use std::process::{Command, Stdio};
+
+use burstbook::obs::{self, Container};
 
 /// Runs `command`, reads the first line of its output and closes the pipe, as
 /// `head -1` would; asserts that it still exits successfully and quietly, and
@@ -84,4 +88,32 @@ fn exposure_export_to_a_closed_pipe_is_quiet() {
     );
     let first = first_line_then_close(&mut book(&["exposure", "export"]));
     assert!(first.starts_with("source,"), "{first}");
+}
+
+// A search whose terminal is closed early still finishes its work: every file is
+// searched and the outputs are written (before, the next line printed panicked).
+#[test]
+fn a_search_whose_reader_has_gone_still_writes_its_outputs() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut files = Vec::new();
+    // Several files, so that lines are still printed long after the pipe closed.
+    for seed in 0..4 {
+        let h = common::header(32, 6000, 1e-3);
+        let path = dir.path().join(format!("scan{seed}.json"));
+        let mut sink = obs::create(&path, &h, Container::Native).unwrap();
+        sink.write_rows(&common::noise(&h, seed)).unwrap();
+        sink.finish().unwrap();
+        files.push(path);
+    }
+    let out = dir.path().join("out");
+    let first = first_line_then_close(
+        Command::new(env!("CARGO_BIN_EXE_burstbook"))
+            .args(["search", "--no-catalogue", "--dm-max", "300", "--out"])
+            .arg(&out)
+            .args(&files),
+    );
+    assert!(first.contains("scan0.json"), "{first}");
+    let csv = std::fs::read_to_string(out.join("candidates.csv")).unwrap();
+    assert!(csv.starts_with("file,"), "{csv}");
+    assert!(out.join("candidates.json").exists());
 }

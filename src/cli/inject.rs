@@ -127,48 +127,54 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         let path = Catalogue::resolve_path(args.catalogue.as_deref());
         let mut cat = Catalogue::open(&path)?;
         output::record(&mut cat, &args.file, &result, &config)?;
-        println!("recorded completeness in {}", path.display());
+        say!("recorded completeness in {}", path.display())?;
     }
-    print_summary(&result);
-    println!(
+    print_summary(&result)?;
+    say!(
         "wrote {}, {}, {} and {}",
         rows.display(),
         curve.display(),
         png.display(),
         json.display()
-    );
+    )?;
     Ok(())
 }
 
-fn print_summary(r: &inject::InjectionResult) {
+fn print_summary(r: &inject::InjectionResult) -> std::io::Result<()> {
     let s = &r.summary;
     let opt = |v: Option<f64>| v.map_or("-".to_string(), |x| format!("{x:.2}"));
-    println!(
+    say!(
         "{}: {} bursts in {} passes ({} candidates of the untouched data excluded); \
          {} recovered, {} detected with any verdict",
-        r.file, s.n_injected, r.n_passes, r.original_candidates, s.n_found, s.n_detected
-    );
-    println!(
+        r.file,
+        s.n_injected,
+        r.n_passes,
+        r.original_candidates,
+        s.n_found,
+        s.n_detected
+    )?;
+    say!(
         "completeness 50 % at S/N {} and 90 % at S/N {} (probit fit; interpolated {} and {})",
         opt(s.snr50),
         opt(s.snr90),
         opt(s.snr50_interpolated),
         opt(s.snr90_interpolated)
-    );
+    )?;
     if s.fluence50_jy_ms.is_some() {
-        println!(
+        say!(
             "in fluence: 50 % at {} Jy ms, 90 % at {} Jy ms",
             opt(s.fluence50_jy_ms),
             opt(s.fluence90_jy_ms)
-        );
+        )?;
     }
     let b = &s.bright;
-    println!(
+    say!(
         "expected S/N >= {}: {} of {} recovered ({} %), median reported/expected S/N {}",
         b.min_expected_snr,
         b.n_found,
         b.n,
         opt(b.fraction.map(|f| 100.0 * f)),
         opt(b.median_snr_ratio)
-    );
+    )?;
+    Ok(())
 }

@@ -1,6 +1,14 @@
 //! Command-line front end: one file per subcommand, each parsing its flags into
 //! library calls. No science happens here.
 
+/// `println!` for the terminal lines of a command, through [`say_line`]: evaluates to
+/// an `io::Result<()>` for `?`.
+macro_rules! say {
+    ($($arg:tt)*) => {
+        $crate::cli::say_line(format_args!($($arg)*))
+    };
+}
+
 mod barycentre;
 mod book;
 mod inject;
@@ -44,6 +52,18 @@ enum Command {
     Plan(plan::Args),
     /// Periodicity tests on burst arrival times: rotation, activity cycles, statistics.
     Period(period::Args),
+}
+
+/// Writes one line to standard output. A reader that has gone (`burstbook search … |
+/// head`) is not an error: the command carries on (a search still writes its files
+/// and catalogue) and its later lines are dropped. Any other failure is returned.
+pub fn say_line(line: std::fmt::Arguments<'_>) -> std::io::Result<()> {
+    use std::io::Write;
+    let mut out = std::io::stdout().lock();
+    match out.write_fmt(line).and_then(|()| out.write_all(b"\n")) {
+        Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => Ok(()),
+        other => other,
+    }
 }
 
 /// Runs the chosen subcommand.

@@ -69,7 +69,7 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         neighbourhood_s: args.neighbourhood_s,
     };
     let index = write_report(&args.out, &sections, &opts, &lead).context("writing the report")?;
-    println!("{}", index.display());
+    say!("{}", index.display())?;
     Ok(())
 }
 

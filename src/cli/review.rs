@@ -67,14 +67,14 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     };
     let n = store.items()?.len();
     let server = ReviewServer::bind(args.port)?;
-    println!(
+    say!(
         "{n} candidates to review from {}\nopen {}  (press q on the page to finish)",
         path.display(),
         server.url()
-    );
+    )?;
     server
         .run(&mut store, &AtomicBool::new(false))
         .context("review server")?;
-    println!("review finished");
+    say!("review finished")?;
     Ok(())
 }

@@ -139,7 +139,7 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         if let (Some(cat), Some(obs), false) = (&catalogue, &record, args.search_again)
             && let Some(earlier) = cat.finished_run(&obs.content_sha256, &config_hash)?
         {
-            println!(
+            say!(
                 "{label}: skipped, the catalogue {} holds a finished search of this content \
                  with this configuration (run {} finished {}, candidates: {}{}); --search-again searches it anyway",
                 cat.path().display(),
@@ -150,7 +150,7 @@ pub fn run(args: Args) -> anyhow::Result<()> {
                     true => String::new(),
                     false => format!(", recorded as {}", earlier.recorded_path),
                 },
-            );
+            )?;
             files.push(FileOutcome::skipped(label, earlier));
             continue;
         }
@@ -164,34 +164,44 @@ pub fn run(args: Args) -> anyhow::Result<()> {
             let outcome = cat.record_file_result(obs, &result, &config, started_utc)?;
             match outcome {
                 RecordOutcome::Inserted { .. } => {
-                    println!("{label}: recorded in catalogue {}", cat.path().display())
+                    say!("{label}: recorded in catalogue {}", cat.path().display())?
                 }
-                RecordOutcome::AlreadyPresent { run_id } => println!(
+                RecordOutcome::AlreadyPresent { run_id } => say!(
                     "{label}: already in catalogue {} as run {run_id}, which is kept \
                      (this search is in the outputs only)",
                     cat.path().display()
-                ),
+                )?,
             }
         }
-        println!(
+        say!(
             "{label}: searched {:.1} s of data in {wall_s:.1} s ({:.1}x real time)",
             result.header.duration_s(),
             result.header.duration_s() / wall_s.max(1e-9)
-        );
+        )?;
+        let t = &result.seconds;
+        say!(
+            "{label}: wall time by stage: reading {:.1} s, cleaning {:.1} s, dedispersion {:.1} s, \
+             matched filter {:.1} s, triage {:.1} s",
+            t.reading,
+            t.cleaning,
+            t.dedispersion,
+            t.matched_filter,
+            t.triage
+        )?;
         files.push(FileOutcome::Searched(Box::new(result)));
     }
     let csv = args.out.join("candidates.csv");
     let json = args.out.join("candidates.json");
     output::write_csv(&csv, &files)?;
     output::write_json(&json, &files, &config)?;
-    print_summary(&files, args.top, config.plan.dm_max);
-    println!("wrote {} and {}", csv.display(), json.display());
+    print_summary(&files, args.top, config.plan.dm_max)?;
+    say!("wrote {} and {}", csv.display(), json.display())?;
     Ok(())
 }
 
 /// Prints per-file totals and the `top` brightest candidates; `dm_max` is the highest
 /// DM asked for, which a short recording may not reach.
-fn print_summary(files: &[FileOutcome], top: usize, dm_max: f64) {
+fn print_summary(files: &[FileOutcome], top: usize, dm_max: f64) -> std::io::Result<()> {
     use burstbook::Verdict;
     let searched = files.iter().filter_map(|f| match f {
         FileOutcome::Searched(r) => Some(&**r),
@@ -199,7 +209,7 @@ fn print_summary(files: &[FileOutcome], top: usize, dm_max: f64) {
     });
     for r in searched {
         let count = |v: Verdict| r.candidates.iter().filter(|c| c.verdict == v).count();
-        println!(
+        say!(
             "{}: {:.1} s, {:.1} % masked, {} DM trials, {:.2e} effective trials \
              ({:.2} false alarms expected); candidates: {} astrophysical, {} unsure, {} rfi",
             r.file,
@@ -211,32 +221,42 @@ fn print_summary(files: &[FileOutcome], top: usize, dm_max: f64) {
             count(Verdict::Astrophysical),
             count(Verdict::Unsure),
             count(Verdict::Rfi),
-        );
+        )?;
         match r.highest_dm_searched() {
             Some(dm) if dm >= dm_max => {}
-            Some(dm) => println!(
+            Some(dm) => say!(
                 "  note: {} is shorter than the sweep at DM {dm_max:.0}: searched only up to DM {dm:.1}",
                 r.file
-            ),
-            None => println!(
+            )?,
+            None => say!(
                 "  note: {} is shorter than every trial's sweep: nothing was searched",
                 r.file
-            ),
+            )?,
         }
     }
     let mut all: Vec<_> = files.iter().flat_map(FileOutcome::candidates).collect();
     all.sort_by(|a, b| b.snr.total_cmp(&a.snr));
     if all.is_empty() {
-        return;
+        return Ok(());
     }
-    println!(
+    say!(
         "{:>8} {:>12} {:>9} {:>9} {:>14}  file",
-        "S/N", "t_inf (s)", "DM", "width ms", "verdict"
-    );
+        "S/N",
+        "t_inf (s)",
+        "DM",
+        "width ms",
+        "verdict"
+    )?;
     for c in all.iter().take(top) {
-        println!(
+        say!(
             "{:>8.1} {:>12.4} {:>9.2} {:>9.3} {:>14}  {}",
-            c.snr, c.t_inf_s, c.dm, c.width_ms, c.verdict, c.file
-        );
+            c.snr,
+            c.t_inf_s,
+            c.dm,
+            c.width_ms,
+            c.verdict,
+            c.file
+        )?;
     }
+    Ok(())
 }

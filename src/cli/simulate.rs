@@ -60,7 +60,7 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         .iter()
         .filter(|r| r.kind == simulate::TruthKind::Burst)
         .count();
-    println!(
+    say!(
         "wrote {} ({} channels × {} samples, {:.1} s) with {} bursts and {} interference rows; truth in {}",
         args.out.display(),
         sim.header.n_chan(),
@@ -69,6 +69,6 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         n_bursts,
         sim.truth.len() - n_bursts,
         truth.display()
-    );
+    )?;
     Ok(())
 }

@@ -40,7 +40,7 @@ pub fn run(cat: &mut Catalogue, a: BarycentreArgs) -> anyhow::Result<()> {
         for w in warnings {
             eprintln!("burstbook: warning: {name}: {w}");
         }
-        println!("{name}: {} barycentric TOA(s) stored", toas.len());
+        say!("{name}: {} barycentric TOA(s) stored", toas.len())?;
     }
     Ok(())
 }

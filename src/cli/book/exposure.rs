@@ -44,23 +44,23 @@ pub fn run(cat: &mut Catalogue, c: ExposureCommand) -> anyhow::Result<()> {
             let f = std::fs::File::open(&file)
                 .with_context(|| format!("opening {}", file.display()))?;
             let done = cat.import_exposure_csv(&file, std::io::BufReader::new(f))?;
-            print!(
+            let mut line = format!(
                 "imported {} interval(s); {} already present",
                 done.added, done.present
             );
             if done.limits_filled > 0 {
-                print!(
+                line += &format!(
                     "; {} given the file's fluence limit, held without one",
                     done.limits_filled
                 );
             }
             if done.limits_kept > 0 {
-                print!(
+                line += &format!(
                     "; {} keep their own fluence limit, which the file gives differently",
                     done.limits_kept
                 );
             }
-            println!();
+            say!("{line}")?;
             Ok(())
         }
         ExposureCommand::Export { source, out } => {

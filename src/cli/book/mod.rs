@@ -96,13 +96,13 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         Command::Voevent(a) => voevent::run(&open()?, a),
         Command::Check => {
             let c = open()?.verify()?;
-            println!(
+            say!(
                 "{}: ok ({} observations, {} runs, {} candidates)",
                 path.display(),
                 c.observations,
                 c.runs,
                 c.candidates
-            );
+            )?;
             Ok(())
         }
         Command::FillSynthetic(a) => synthetic::run(&mut open()?, a),

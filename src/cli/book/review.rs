@@ -50,7 +50,7 @@ pub fn label(cat: &mut Catalogue, a: LabelArgs) -> anyhow::Result<()> {
         .or_else(|| std::env::var("USER").ok())
         .unwrap_or_else(|| "unknown".into());
     cat.label(&ids, &a.label, &reviewer, &a.comment)?;
-    println!("labelled {} candidate(s) {:?}", ids.len(), a.label);
+    say!("labelled {} candidate(s) {:?}", ids.len(), a.label)?;
     Ok(())
 }
 
@@ -125,7 +125,7 @@ pub fn promote(cat: &mut Catalogue, a: PromoteArgs) -> anyhow::Result<()> {
     };
     for (id, p) in ids.iter().zip(cat.promote_all(&ids, a.to.as_deref(), tol)?) {
         let what = if p.new { "is now" } else { "already was" };
-        println!("candidate {id} {what} burst {} of {}", p.burst_id, p.source);
+        say!("candidate {id} {what} burst {} of {}", p.burst_id, p.source)?;
     }
     Ok(())
 }

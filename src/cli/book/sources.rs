@@ -54,11 +54,11 @@ pub fn run(cat: &mut Catalogue, c: SourceCommand) -> anyhow::Result<()> {
                 notes,
             };
             let (id, new) = cat.upsert_source(&rec)?;
-            println!(
+            say!(
                 "{} source {} (id {id})",
                 if new { "added" } else { "updated" },
                 rec.name
-            );
+            )?;
             Ok(())
         }
         SourceCommand::List { format } => {

@@ -83,45 +83,53 @@ pub fn run(a: Args) -> anyhow::Result<()> {
     if a.json {
         return print_json(&r);
     }
-    print_activity(&r);
+    print_activity(&r)?;
     Ok(())
 }
 
-fn print_activity(r: &ActivityResult) {
-    println!(
+fn print_activity(r: &ActivityResult) -> std::io::Result<()> {
+    say!(
         "{} bursts in {} sessions ({:.2} d on source over {:.1} d); {} trial periods",
         r.n_bursts,
         r.n_sessions,
         r.exposure_days,
         r.span_days,
         r.periodogram.period_days.len()
-    );
-    println!(
+    )?;
+    say!(
         "Best period: {:.4} ± {:.4} d (epoch of phase 0: MJD {})",
-        r.period_days, r.period_err_days, r.epoch_mjd
-    );
-    println!(
+        r.period_days,
+        r.period_err_days,
+        r.epoch_mjd
+    )?;
+    say!(
         "  folded χ² = {:.2} ({} dof, single-trial p = {}); Monte Carlo FAP = {:.4} ({} sets, real exposure)",
         r.fold.chi2,
         r.fold.dof,
         Probability(r.chi2_p_single, 2),
         r.fap,
         r.config.sims
-    );
-    println!(
+    )?;
+    say!(
         "  all bursts within {:.3} of a cycle (centre phase {:.3}); half within {:.3}; window FAP = {:.4}",
-        r.window_fraction, r.centre_phase, r.half_window_fraction, r.window_fap
-    );
-    println!(
+        r.window_fraction,
+        r.centre_phase,
+        r.half_window_fraction,
+        r.window_fap
+    )?;
+    say!(
         "  Lomb–Scargle of session rates: best {:.4} d, power {:.3}, Baluev FAP {}",
         r.ls_period_days,
         r.ls_power,
         Probability(r.ls_fap, 2)
-    );
-    println!(
+    )?;
+    say!(
         "{:>5} {:>8} {:>10} {:>9}",
-        "bin", "bursts", "expected", "exp_days"
-    );
+        "bin",
+        "bursts",
+        "expected",
+        "exp_days"
+    )?;
     for (j, ((c, e), x)) in r
         .profile
         .counts
@@ -130,13 +138,18 @@ fn print_activity(r: &ActivityResult) {
         .zip(&r.profile.exposure_days)
         .enumerate()
     {
-        println!("{j:>5} {c:>8} {e:>10.2} {x:>9.3}");
+        say!("{j:>5} {c:>8} {e:>10.2} {x:>9.3}")?;
     }
-    println!("Next active windows (MJD, widened by the period uncertainty):");
+    say!("Next active windows (MJD, widened by the period uncertainty):")?;
     for w in &r.next_windows {
-        println!(
+        say!(
             "  cycle {:>5}: {:.2} – {:.2}   (nominal {:.2} – {:.2})",
-            w.cycle, w.start_mjd, w.end_mjd, w.nominal_start_mjd, w.nominal_end_mjd
-        );
+            w.cycle,
+            w.start_mjd,
+            w.end_mjd,
+            w.nominal_start_mjd,
+            w.nominal_end_mjd
+        )?;
     }
+    Ok(())
 }

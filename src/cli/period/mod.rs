@@ -157,7 +157,7 @@ pub fn run(args: Args) -> anyhow::Result<()> {
 }
 
 fn print_json<T: serde::Serialize>(value: &T) -> anyhow::Result<()> {
-    println!("{}", serde_json::to_string_pretty(value)?);
+    say!("{}", serde_json::to_string_pretty(value)?)?;
     Ok(())
 }
 

@@ -87,30 +87,34 @@ pub fn run(a: Args) -> anyhow::Result<()> {
         if a.json {
             return print_json(&h);
         }
-        println!(
+        say!(
             "Hypothesis P = {p} s (Ṗ = {}) on {} arrivals",
-            a.pdot, h.n_toas
-        );
-        println!(
+            a.pdot,
+            h.n_toas
+        )?;
+        say!(
             "  Z²_{} = {:.3}   chance p = {}",
             h.harmonics,
             h.z2n,
             Probability(h.z2n_p, 3)
-        );
-        println!(
+        )?;
+        say!(
             "  H = {:.3} (m = {})   chance p = exp(-0.4 H) = {}",
             h.h.h,
             h.h.harmonics,
             Probability(h.h_p, 3)
-        );
+        )?;
         if let Some(t) = &h.timing {
-            println!(
+            say!(
                 "  timing fit: P = {:.12} ± {:.2e} s, residual rms {:.3e} s ({:.4} cycles)",
-                t.period_s, t.period_err_s, t.rms_s, t.rms_cycles
-            );
+                t.period_s,
+                t.period_err_s,
+                t.rms_s,
+                t.rms_cycles
+            )?;
         }
         if let Some(why) = &h.timing_failure {
-            println!("  no timing fit: {why}");
+            say!("  no timing fit: {why}")?;
         }
         return Ok(());
     }
@@ -129,7 +133,7 @@ pub fn run(a: Args) -> anyhow::Result<()> {
     if a.json {
         return print_json(&r);
     }
-    print_rotation(&r, &toas);
+    print_rotation(&r, &toas)?;
     Ok(())
 }
 
@@ -142,25 +146,36 @@ fn write_rotation_periodogram(path: &Path, r: &RotationResult) -> anyhow::Result
     Ok(w.commit()?)
 }
 
-fn print_rotation(r: &RotationResult, toas: &ArrivalTimes) {
-    println!(
+fn print_rotation(r: &RotationResult, toas: &ArrivalTimes) -> std::io::Result<()> {
+    say!(
         "{} arrivals over {:.1} s; {} trial frequencies (step {:.3e} Hz, ~{:.0} independent)",
-        r.n_toas, r.span_s, r.grid.len, r.grid.df_hz, r.independent_frequencies
-    );
+        r.n_toas,
+        r.span_s,
+        r.grid.len,
+        r.grid.df_hz,
+        r.independent_frequencies
+    )?;
     let mc_header = match r.null {
         Some(_) => format!(" {:>9} {:>9}", "MC(Z2n)", "MC(H)"),
         None => String::new(),
     };
-    println!(
+    say!(
         "{:>3} {:>16} {:>9} {:>10} {:>10} {:>8} {:>3} {:>10}{mc_header}",
-        "#", "period_s", "Z2n", "p_single", "FAP(Z2n)", "H", "m", "FAP(H)*"
-    );
+        "#",
+        "period_s",
+        "Z2n",
+        "p_single",
+        "FAP(Z2n)",
+        "H",
+        "m",
+        "FAP(H)*"
+    )?;
     for (i, c) in r.candidates.iter().enumerate().take(10) {
         let mc = match c.null_faps {
             Some(f) => format!(" {:>9.4} {:>9.4}", f.z2n, f.h),
             None => String::new(),
         };
-        println!(
+        say!(
             "{:>3} {:>16.10} {:>9.2} {:>10} {:>10} {:>8.2} {:>3} {:>10}{mc}{}",
             i,
             c.period_s,
@@ -171,52 +186,54 @@ fn print_rotation(r: &RotationResult, toas: &ArrivalTimes) {
             c.h.harmonics,
             Probability(c.h_fap, 2),
             if i == r.best { "  <- chosen" } else { "" }
-        );
+        )?;
     }
-    println!(
-        "  * H FAP is a union bound, optimistic for small N; --sims K gives Monte Carlo FAPs."
-    );
+    say!("  * H FAP is a union bound, optimistic for small N; --sims K gives Monte Carlo FAPs.")?;
     if let Some(null) = &r.null {
-        println!(
+        say!(
             "  MC: share of {} null sets (arrivals moved at random over {:.0} s, seed {}) \
              whose strongest value reaches it; at least 1/{}.",
             null.sets,
             null.jitter_s,
             null.seed,
             null.sets + 1
-        );
+        )?;
     }
     let chosen_mc = match r.candidates[r.best].null_faps {
         Some(f) => format!("   MC FAP = {:.4} (H: {:.4})", f.z2n, f.h),
         None => String::new(),
     };
-    println!(
+    say!(
         "Best period: {:.12} ± {:.2e} s   FAP = {}{chosen_mc}",
         r.period_s,
         r.period_err_s,
         Probability(r.fap, 3)
-    );
+    )?;
     if let Some(t) = &r.timing {
-        println!(
+        say!(
             "  phase-connected: epoch MJD {:.12}, residual rms {:.3e} s ({:.4} cycles), pulses {}..{}",
             toas.mjd_of(t.epoch_s),
             t.rms_s,
             t.rms_cycles,
             t.pulse_numbers.first().unwrap_or(&0),
             t.pulse_numbers.last().unwrap_or(&0)
-        );
+        )?;
         if let (Some(pd), Some(e)) = (t.pdot, t.pdot_err) {
-            println!("  Ṗ = {pd:.3e} ± {e:.1e}");
+            say!("  Ṗ = {pd:.3e} ± {e:.1e}")?;
         }
     }
     if let Some(why) = &r.timing_failure {
-        println!("  no phase-connected solution: {why}");
+        say!("  no phase-connected solution: {why}")?;
     }
     match &r.divisor {
-        Some(d) => println!(
+        Some(d) => say!(
             "Common divisor: P = {:.12} s (smallest gap {:.6} s = {} turns), chance ≈ {:.1e}; P/k also fits",
-            d.solution.period_s, d.smallest_gap_s, d.turns_in_smallest_gap, d.chance_probability
-        ),
-        None => println!("Common divisor: no period ≥ the minimum connects all arrivals"),
+            d.solution.period_s,
+            d.smallest_gap_s,
+            d.turns_in_smallest_gap,
+            d.chance_probability
+        )?,
+        None => say!("Common divisor: no period ≥ the minimum connects all arrivals")?,
     }
+    Ok(())
 }

@@ -61,24 +61,35 @@ pub fn run(a: Args) -> anyhow::Result<()> {
         return print_json(&serde_json::json!({ "waiting": waiting, "power_law": power }));
     }
     let (p, w) = (&waiting.poisson, &waiting.weibull);
-    println!(
+    say!(
         "{} bursts in {} sessions, {:.3} d on source ({} outside sessions ignored)",
-        waiting.n_bursts, waiting.n_sessions, waiting.exposure_days, waiting.n_outside
-    );
-    println!(
+        waiting.n_bursts,
+        waiting.n_sessions,
+        waiting.exposure_days,
+        waiting.n_outside
+    )?;
+    say!(
         "Poisson: rate {:.3} ± {:.3} /d (68% limits {:.3}–{:.3}), ln L = {:.3}",
-        p.rate_per_day, p.rate_err_per_day, p.rate_lo_per_day, p.rate_hi_per_day, p.log_likelihood
-    );
-    println!(
+        p.rate_per_day,
+        p.rate_err_per_day,
+        p.rate_lo_per_day,
+        p.rate_hi_per_day,
+        p.log_likelihood
+    )?;
+    say!(
         "Weibull: k = {:.3} ± {:.3}, rate {:.3} ± {:.3} /d, ln L = {:.3}",
-        w.k, w.k_err, w.rate_per_day, w.rate_err_per_day, w.log_likelihood
-    );
-    println!(
+        w.k,
+        w.k_err,
+        w.rate_per_day,
+        w.rate_err_per_day,
+        w.log_likelihood
+    )?;
+    say!(
         "  likelihood ratio {:.2}: chance under Poisson p = {} (k < 1 means clustering)",
         waiting.likelihood_ratio,
         Probability(waiting.poisson_p, 3)
-    );
-    println!(
+    )?;
+    say!(
         "Power law of {values_from}: dN/dS ∝ S^-α above S_min = {:.4} ({}; {} values): α = {:.3} ± {:.3} \
          (n−1 form {:.3}), cumulative γ = {:.3}, KS D = {:.3}, fit p = {}",
         power.s_min,
@@ -94,6 +105,6 @@ pub fn run(a: Args) -> anyhow::Result<()> {
         power.gamma_cumulative,
         power.ks_distance,
         power.gof_p.map_or("-".to_string(), |p| format!("{p:.3}"))
-    );
+    )?;
     Ok(())
 }

@@ -52,13 +52,13 @@ pub fn run(a: Args) -> anyhow::Result<()> {
         writeln!(w, "{},{}", mjd_text(ref_mjd, *s), mjd_text(ref_mjd, *e))?;
     }
     w.commit()?;
-    println!(
+    say!(
         "wrote {} rotator arrivals and {} repeater bursts in {} sessions to {}",
         toas.len(),
         bursts.len(),
         sessions.len(),
         a.out_dir.display()
-    );
+    )?;
     Ok(())
 }
 
