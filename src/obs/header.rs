@@ -89,12 +89,13 @@ impl UtcEpoch {
         let us = (self.sec * 1e6).round() as i64;
         // Rounding may carry into the next day.
         let (mjd, us) = if us >= day_us {
-            (self.mjd + 1, us - day_us)
+            (self.mjd.saturating_add(1), us - day_us)
         } else {
             (self.mjd, us)
         };
         let mjd_zero = chrono::NaiveDate::from_ymd_opt(1858, 11, 17).expect("valid date");
-        let Some(date) = mjd_zero.checked_add_signed(chrono::TimeDelta::days(mjd)) else {
+        let date = chrono::TimeDelta::try_days(mjd).and_then(|d| mjd_zero.checked_add_signed(d));
+        let Some(date) = date else {
             return format!("MJD {} + {} s", self.mjd, self.sec);
         };
         // A leap second is the 61st second of the day's last minute.
@@ -317,6 +318,9 @@ pub(crate) mod tests {
         // MJD 60000 is 2023-02-25 (from memory; the two epochs above fix the count).
         assert_eq!(iso(60000, 86399.9999996), "2023-02-26T00:00:00.000000");
         assert_eq!(iso(0, 0.0), "1858-11-17T00:00:00.000000");
+        // Beyond the calendar: said plainly, not a panic.
+        assert!(iso(i64::MAX, 86399.9999999).starts_with("MJD "));
+        assert!(iso(-(1 << 40), 0.0).starts_with("MJD "));
     }
 
     #[test]
