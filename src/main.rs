@@ -2,6 +2,7 @@
 
 mod cli;
 
+use std::io::Write;
 use std::process::ExitCode;
 
 use clap::Parser;
@@ -21,7 +22,8 @@ fn main() -> ExitCode {
                     line = format!("{line}: {cause}");
                 }
             }
-            eprintln!("burstbook: error: {line}");
+            // Nowhere left to report a closed standard error; the exit code still tells.
+            let _ = writeln!(std::io::stderr(), "burstbook: error: {line}");
             ExitCode::FAILURE
         }
     }

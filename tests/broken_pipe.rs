@@ -117,3 +117,31 @@ fn a_search_whose_reader_has_gone_still_writes_its_outputs() {
     assert!(csv.starts_with("file,"), "{csv}");
     assert!(out.join("candidates.json").exists());
 }
+
+// A closed standard error (the reader of `2>&1 | head` gone) drops the closing note
+// instead of panicking; the work is done and the exit is clean.
+#[test]
+fn a_closed_standard_error_drops_the_note() {
+    let dir = tempfile::tempdir().unwrap();
+    let (input, output) = (dir.path().join("times.csv"), dir.path().join("tdb.csv"));
+    let rows: String = (0..20_000)
+        .map(|i| format!("{}\n", 60000.0 + f64::from(i) * 1e-3))
+        .collect();
+    std::fs::write(&input, format!("mjd_utc\n{rows}")).unwrap();
+    let mut child = Command::new(env!("CARGO_BIN_EXE_burstbook"))
+        .args(["barycentre", "--ra-deg", "10", "--dec-deg", "20"])
+        .args(["--site", "10,45,100", "--in"])
+        .arg(&input)
+        .arg("--out")
+        .arg(&output)
+        .stdout(Stdio::null())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("burstbook runs");
+    // Close the read end now, long before the 20 000 rows are converted.
+    drop(child.stderr.take());
+    let status = child.wait().expect("burstbook exits");
+    assert!(status.success(), "exit {status:?}");
+    let written = std::fs::read_to_string(&output).unwrap();
+    assert_eq!(written.lines().count(), 20_001);
+}

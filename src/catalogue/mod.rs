@@ -277,7 +277,10 @@ fn check_sqlite_magic(path: &Path) -> Result<()> {
 }
 
 fn log_once_non_wal(path: &Path, mode: &str) {
-    eprintln!(
+    use std::io::Write;
+    // A closed standard error drops the warning rather than panicking.
+    let _ = writeln!(
+        std::io::stderr(),
         "burstbook: warning: catalogue {} uses journal mode {mode}, not WAL; concurrent writers will wait longer",
         path.display()
     );

@@ -74,9 +74,9 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     let bary = Barycentrer::new(&args.site, args.ra_deg, args.dec_deg, ephemeris)?;
     let summary = barycentre_csv(&bary, &args.input, &args.output)?;
     for warning in &summary.warnings {
-        eprintln!("burstbook: warning: {warning}");
+        note!("burstbook: warning: {warning}");
     }
-    eprintln!(
+    note!(
         "barycentre: {} rows written to {}",
         summary.rows,
         args.output.display()

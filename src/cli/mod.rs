@@ -9,6 +9,15 @@ macro_rules! say {
     };
 }
 
+/// `eprintln!` for warnings and notes: a closed standard error (`2>&1 | head`) drops
+/// them instead of panicking, as there is nowhere left to report it.
+macro_rules! note {
+    ($($arg:tt)*) => {{
+        use std::io::Write as _;
+        let _ = writeln!(std::io::stderr().lock(), $($arg)*);
+    }};
+}
+
 mod barycentre;
 mod book;
 mod inject;

@@ -38,7 +38,7 @@ pub fn run(cat: &mut Catalogue, a: BarycentreArgs) -> anyhow::Result<()> {
         }
         cat.set_barycentric_toas(&toas)?;
         for w in warnings {
-            eprintln!("burstbook: warning: {name}: {w}");
+            note!("burstbook: warning: {name}: {w}");
         }
         say!("{name}: {} barycentric TOA(s) stored", toas.len())?;
     }

@@ -86,10 +86,10 @@ impl SourceInput {
         )?;
         let arrivals = SourceArrivals::load(&cat, source)?;
         for w in &arrivals.warnings {
-            eprintln!("burstbook: warning: {source}: {w}");
+            note!("burstbook: warning: {source}: {w}");
         }
         if arrivals.computed > 0 {
-            eprintln!(
+            note!(
                 "burstbook: note: {} of {} barycentric arrival times of {source} computed now \
                  (store them with `burstbook book barycentre {source}`)",
                 arrivals.computed,
