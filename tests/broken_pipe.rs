@@ -1,6 +1,9 @@
 //! A reader that stops early (`burstbook ... | head`) must not turn into an error
 //! message or a panic (common practice for command-line tools).
 
+mod cli_common;
+use cli_common::assert_success;
+
 mod common;
 
 use std::io::{BufRead, BufReader};
@@ -81,11 +84,7 @@ fn exposure_export_to_a_closed_pipe_is_quiet() {
     ];
     assert!(book(&add).output().unwrap().status.success());
     let import = book(&["exposure", "import"]).arg(&input).output().unwrap();
-    assert!(
-        import.status.success(),
-        "{}",
-        String::from_utf8_lossy(&import.stderr)
-    );
+    assert_success(&import);
     let first = first_line_then_close(&mut book(&["exposure", "export"]));
     assert!(first.starts_with("source,"), "{first}");
 }

@@ -2,7 +2,7 @@
 //! and every kind of bad catalogue file through the `burstbook` binary.
 
 mod cli_common;
-use cli_common::assert_one_line_failure;
+use cli_common::{assert_one_line_failure, assert_success};
 
 use std::io::{BufRead, BufReader};
 use std::path::{Path, PathBuf};
@@ -93,11 +93,7 @@ fn a_killed_writer_leaves_whole_runs_and_a_rerun_completes_them() {
             .map(String::as_str)
             .collect::<Vec<_>>(),
     );
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    assert_success(&out);
     let text = String::from_utf8(out.stdout).unwrap();
     assert_eq!(text.matches("present").count() as i64, runs, "{text}");
     assert_eq!(
@@ -128,11 +124,7 @@ fn concurrent_writers_neither_lose_nor_duplicate() {
     let mut inserted = Vec::new();
     for c in children {
         let out = c.wait_with_output().unwrap();
-        assert!(
-            out.status.success(),
-            "{}",
-            String::from_utf8_lossy(&out.stderr)
-        );
+        assert_success(&out);
         for line in String::from_utf8(out.stdout).unwrap().lines() {
             if let Some(seed) = line.strip_suffix(" inserted") {
                 inserted.push(seed.parse::<u64>().unwrap());
@@ -257,11 +249,7 @@ fn a_locked_catalogue_fails_writes_cleanly_and_still_serves_reads() {
     );
     // Readers are not blocked by a writer (WAL).
     let list = book(&db, &["source", "list", "--format", "csv"]);
-    assert!(
-        list.status.success(),
-        "{}",
-        String::from_utf8_lossy(&list.stderr)
-    );
+    assert_success(&list);
     holder.execute_batch("ROLLBACK").unwrap();
     drop(holder);
     let names =
@@ -310,11 +298,7 @@ fn reading_a_missing_catalogue_creates_nothing() {
     assert!(!db.exists());
     // Adding a source is how a catalogue is begun by hand.
     let out = book(&db, &["source", "add", "NEW", "--ra", "1", "--dec", "2"]);
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    assert_success(&out);
     assert!(db.exists());
 }
 

@@ -1,6 +1,9 @@
 //! `burstbook search` recording into the catalogue, with a real search process
 //! killed part-way through its files and then run again.
 
+mod cli_common;
+use cli_common::assert_success;
+
 use std::io::{BufRead, BufReader};
 use std::path::{Path, PathBuf};
 use std::process::{Command, Stdio};
@@ -57,11 +60,7 @@ fn simulate(dir: &Path, seed: u64) -> PathBuf {
         .args(["--seed", &seed.to_string()])
         .output()
         .unwrap();
-    assert!(
-        st.status.success(),
-        "{}",
-        String::from_utf8_lossy(&st.stderr)
-    );
+    assert_success(&st);
     out
 }
 
@@ -107,11 +106,7 @@ fn a_killed_search_keeps_finished_files_and_a_rerun_records_the_rest() {
     assert!((1..3).contains(&n_runs), "killed too late: {n_runs} runs");
 
     let out = search(&files, dir.path(), &db).output().unwrap();
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    assert_success(&out);
     let text = String::from_utf8(out.stdout).unwrap();
     assert_eq!(
         text.matches(": skipped, the catalogue").count() as i64,
@@ -230,11 +225,7 @@ fn search_without_catalogue_writes_none() {
         .args(["--dm-max", "200", "--no-catalogue"])
         .output()
         .unwrap();
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    assert_success(&out);
     // Without the flag the default would be ./burstbook.sqlite in the working directory.
     assert!(!dir.path().join("burstbook.sqlite").exists());
 }

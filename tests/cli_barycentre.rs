@@ -1,5 +1,8 @@
 //! End-to-end: `burstbook barycentre` on small CSV files.
 
+mod cli_common;
+use cli_common::assert_success;
+
 use std::process::Command;
 
 use burstbook::obs::{Site, UtcEpoch};
@@ -28,11 +31,7 @@ fn adds_tdb_columns_and_keeps_the_others() {
         "# bursts\nname,mjd_utc,snr\nb1,60123.456789012345,9.5\nb2,58000,12\n",
         &["--site", "-70.25,-30.5,2400"],
     );
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    assert_success(&out);
     let text = std::fs::read_to_string(dir.path().join("out.csv")).unwrap();
     let lines: Vec<&str> = text.lines().collect();
     assert_eq!(lines[0], "name,mjd_utc,snr,mjd_tdb,correction_s");
@@ -92,11 +91,7 @@ fn out_dev_stdout_appends_to_a_redirected_file() {
         .stdout(append)
         .output()
         .unwrap();
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    assert_success(&out);
     let text = std::fs::read_to_string(&log).unwrap();
     assert!(
         text.starts_with("earlier lines\nmjd_utc,mjd_tdb,correction_s\n60000.5,"),

@@ -1,5 +1,8 @@
 //! End-to-end runs of `burstbook period ...` on freshly written demo sets.
 
+mod cli_common;
+use cli_common::assert_success;
+
 use std::path::Path;
 use std::process::Command;
 
@@ -22,11 +25,7 @@ fn burstbook(args: &[&str], dir: &Path) -> std::process::Output {
 }
 
 fn json(out: &std::process::Output) -> serde_json::Value {
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    assert_success(out);
     serde_json::from_slice(&out.stdout).expect("JSON on stdout")
 }
 

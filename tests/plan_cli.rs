@@ -1,5 +1,8 @@
 //! `burstbook plan` end to end: band flags in, plan and cost out.
 
+mod cli_common;
+use cli_common::assert_success;
+
 use std::process::Command;
 
 fn plan(args: &[&str]) -> std::process::Output {
@@ -36,11 +39,7 @@ fn json_plan_for_the_survey_band() {
             "--json",
         ];
         let out = plan(&[&SURVEY[..], &args].concat());
-        assert!(
-            out.status.success(),
-            "{}",
-            String::from_utf8_lossy(&out.stderr)
-        );
+        assert_success(&out);
         let report: serde_json::Value = serde_json::from_slice(&out.stdout).expect("JSON");
         let n = report["n_trials"].as_u64().unwrap() as i64;
         assert!((n - trials).abs() <= 4, "{n} trials");

@@ -1,6 +1,9 @@
 //! End to end: a synthetic observation on disk and a candidates.csv as the search
 //! writes it → `burstbook report` → a self-contained folder whose figures show the burst.
 
+mod cli_common;
+use cli_common::assert_success;
+
 use std::process::Command;
 
 mod report_common;
@@ -129,11 +132,7 @@ fn source_report_from_the_catalogue_has_timeline_and_figures() {
         .arg(&out)
         .output()
         .unwrap();
-    assert!(
-        run.status.success(),
-        "{}",
-        String::from_utf8_lossy(&run.stderr)
-    );
+    assert_success(&run);
     let html = std::fs::read_to_string(out.join("index.html")).unwrap();
     assert!(html.contains("lead00.png"), "timeline of sessions shown");
     assert!(html.contains("obs00-cand0000.png") && html.contains("night2.json"));
@@ -181,11 +180,7 @@ fn source_report_from_the_catalogue_has_timeline_and_figures() {
         "{err}"
     );
     let found = report(&["--obs-dir".as_ref(), moved.as_os_str()]);
-    assert!(
-        found.status.success(),
-        "{}",
-        String::from_utf8_lossy(&found.stderr)
-    );
+    assert_success(&found);
     // `--obs` would be ignored here, so it is refused.
     let moved_obs = moved.join("night2.json");
     let refused = report(&["--obs".as_ref(), moved_obs.as_os_str()]);

@@ -2,7 +2,7 @@
 //! the in-memory generator, in both containers, and bad input fails cleanly.
 
 mod cli_common;
-use cli_common::{assert_one_line_failure, burstbook};
+use cli_common::{assert_one_line_failure, assert_success, burstbook};
 
 use std::path::Path;
 
@@ -78,11 +78,7 @@ fn files_read_back_equal_to_the_generator() {
             "--out",
             out.to_str().unwrap(),
         ]);
-        assert!(
-            result.status.success(),
-            "{}",
-            String::from_utf8_lossy(&result.stderr)
-        );
+        assert_success(&result);
 
         let sim = Simulation::new(&Scenario::parse(&text).unwrap(), 77).unwrap();
         let mut generator = Generator::new(&sim);

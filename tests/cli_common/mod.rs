@@ -13,6 +13,16 @@ pub fn burstbook<S: AsRef<OsStr>>(args: &[S]) -> Output {
         .expect("the burstbook binary runs")
 }
 
+/// Asserts a successful run, showing its standard error if not.
+pub fn assert_success(out: &Output) {
+    assert!(
+        out.status.success(),
+        "exit {:?}: {}",
+        out.status,
+        String::from_utf8_lossy(&out.stderr)
+    );
+}
+
 /// Asserts a failed run: non-zero exit and exactly one stderr line, carrying the
 /// binary's error prefix and every one of `needles` (the file at fault, the problem).
 pub fn assert_one_line_failure(out: &Output, needles: &[&str]) {
