@@ -167,14 +167,7 @@ impl FastDedisperser {
                 .get_mut(out.len())
                 .map(std::mem::take)
                 .unwrap_or_default();
-            let n_values = step.dms.len() * n_out;
-            // Stage 2 writes every output sample, so a reused buffer needs no clearing,
-            // and a fresh one is left to the parallel stage 2 to touch first (zeroing it
-            // here would fault its pages in on one thread).
-            if data.capacity() < n_values {
-                data = vec![0.0; n_values];
-            }
-            data.resize(n_values, 0.0);
+            fit_output(&mut data, step.dms.len() * n_out);
             if n_chan == 0 {
                 data.fill(0.0);
             } else if n_out > 0 {
@@ -606,6 +599,25 @@ fn accumulate_rows(acc: &mut [f32], stage1: &[Bf16], starts: impl Iterator<Item 
         }
         first = false;
     }
+}
+
+/// Makes the output buffer `data` hold `n_values` samples. Stage 2 writes every
+/// output sample, so a reused buffer needs no clearing, and a fresh one is left to
+/// the parallel stage 2 to touch first (zeroing it here would fault its pages in on
+/// one thread). A reused buffer too small — the last block of a file, whose low-DM
+/// trials run to its end — is grown in place: its pages, faulted in already, are
+/// kept (a large block's buffer is its own mapping, which the allocator extends
+/// without copying), and only the new tail is touched, in parallel. Replacing it
+/// instead faulted in the whole buffer again, a second or more of CPU per gigabyte
+/// on a virtual machine (measured).
+fn fit_output(data: &mut Vec<f32>, n_values: usize) {
+    if data.capacity() == 0 {
+        *data = vec![0.0; n_values];
+    } else if data.len() < n_values {
+        data.reserve_exact(n_values - data.len());
+        data.par_extend(rayon::iter::repeat_n(0.0, n_values - data.len()));
+    }
+    data.truncate(n_values);
 }
 
 /// Grows `buf` to at least `n` values (never shrinks: the scratch is reused). Old

@@ -434,6 +434,32 @@ fn strided_rows_equal_the_contiguous_block() {
     );
 }
 
+// The last block of a file (every trial to its own end) needs larger outputs than
+// the blocks before it: the recycled buffers grow in place, keeping the samples
+// (and pages) they hold, and every block still equals a fresh dedisperser's.
+#[test]
+fn a_larger_last_block_grows_the_recycled_outputs() {
+    let mut data: Vec<f32> = (1..=5).map(|v| v as f32).collect();
+    fit_output(&mut data, 8);
+    assert_eq!(data, [1.0, 2.0, 3.0, 4.0, 5.0, 0.0, 0.0, 0.0]);
+    fit_output(&mut data, 3);
+    assert_eq!(data, [1.0, 2.0, 3.0]);
+
+    let mut rng = ChaCha8Rng::seed_from_u64(79);
+    let (freqs, bw) = band(16, 1200.0, 1600.0, false);
+    let plan = awkward_plan(freqs, bw, 1e-3, 11.0, 400.0);
+    let input = noise(16, plan.max_delay_samples() + 640, &mut rng);
+    let rows = input.as_slice().unwrap();
+    let n_time = input.ncols();
+    let fresh = |extent| FastDedisperser::new(&plan).dedisperse_rows(rows, n_time, n_time, extent);
+    let mut kernel = FastDedisperser::new(&plan);
+    for extent in [Extent::Common, Extent::PerTrial, Extent::Common] {
+        let out = kernel.dedisperse_rows(rows, n_time, n_time, extent);
+        assert_eq!(out, fresh(extent));
+        kernel.recycle(out);
+    }
+}
+
 // Blocks after the first reuse the halving buffers: with three halvings (steps down
 // to ×16) the first halving of a block must not land in the smaller buffer, which
 // would be reallocated, and faulted in afresh, for every block.
