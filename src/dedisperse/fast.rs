@@ -606,10 +606,10 @@ fn accumulate_rows(acc: &mut [f32], stage1: &[Bf16], starts: impl Iterator<Item 
 /// the parallel stage 2 to touch first (zeroing it here would fault its pages in on
 /// one thread). A reused buffer too small — the last block of a file, whose low-DM
 /// trials run to its end — is grown in place: its pages, faulted in already, are
-/// kept (a large block's buffer is its own mapping, which the allocator extends
-/// without copying), and only the new tail is touched, in parallel. Replacing it
-/// instead faulted in the whole buffer again, a second or more of CPU per gigabyte
-/// on a virtual machine (measured).
+/// kept (a large buffer is its own mapping, which glibc's `realloc` remaps without
+/// copying), and only the new tail is touched, in parallel. Replacing it instead
+/// faulted in the whole buffer again: a quarter of a 30 s survey search's page
+/// faults, 1–5 s of CPU per gigabyte on our virtual machines (docs/benchmarks.md).
 fn fit_output(data: &mut Vec<f32>, n_values: usize) {
     if data.capacity() == 0 {
         *data = vec![0.0; n_values];
