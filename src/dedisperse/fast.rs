@@ -18,6 +18,7 @@
 use ndarray::ArrayView2;
 use rayon::prelude::*;
 
+use super::direct::{DirectLevel, sum_taps};
 use super::fixed::{Quantum, quantise_tile};
 use super::subband::{StepKernel, SubBand};
 use super::tree::Merge;
@@ -380,8 +381,10 @@ fn subband_tiles(sub: &SubBand, src: &Source<'_>, mut out: Phased<'_>, scratch: 
         };
         tile.width = tile.len() + halo;
         let (start, width) = (src.t0 + j0 * per_out, tile.width);
+        // One more row than the channels: zeros, which pad the direct sums.
         let mut channels = std::mem::take(&mut scratch.channels);
-        grow(&mut channels, n_chan * width);
+        grow(&mut channels, (n_chan + 1) * width);
+        channels[n_chan * width..(n_chan + 1) * width].fill(0);
         let rows = sub
             .channels
             .iter()
@@ -410,23 +413,49 @@ fn tile_rows(
         // A one-channel sub-band: its channel is its only row.
         return store_phases(&channels.row(0)[..len], out, 0, tile);
     };
-    // The top level goes straight to `out`; the levels below alternate.
+    // The top level goes straight to `out`; the direct level and the levels above it
+    // alternate between two buffers.
     let rows = below.iter().map(Vec::len).max().unwrap_or(0);
-    let [even, odd] = &mut scratch.levels;
-    grow(even, rows * width);
-    grow(odd, rows * width);
-    for (l, merges) in below.iter().enumerate() {
-        match l {
-            0 => merge_rows(merges, channels, even, width, len),
-            _ if l % 2 == 1 => merge_rows(merges, &Level::new(even, width), odd, width, len),
-            _ => merge_rows(merges, &Level::new(odd, width), even, width, len),
-        }
+    let [mut level, mut next] = std::mem::take(&mut scratch.levels);
+    grow(&mut level, rows * width);
+    grow(&mut next, rows * width);
+    let direct = &sub.direct;
+    if direct.depth > 0 {
+        direct_rows(direct, channels, &mut level, width, len);
+    }
+    for (l, merges) in below.iter().enumerate().skip(direct.depth) {
+        let src = if l == 0 {
+            *channels
+        } else {
+            Level::new(&level, width)
+        };
+        merge_rows(merges, &src, &mut next, width, len);
+        std::mem::swap(&mut level, &mut next);
     }
     let last = match below.len() {
         0 => *channels,
-        n => Level::new(if n % 2 == 1 { even } else { odd }, width),
+        _ => Level::new(&level, width),
     };
-    top_level(top, &last, tile, out, &mut scratch.row)
+    top_level(top, &last, tile, out, &mut scratch.row);
+    scratch.levels = [level, next];
+}
+
+/// The direct level of a tile (`dst`, rows `stride` apart) from its channels: each
+/// row over the samples it must supply, as the tree's merges would make it.
+#[inline(always)]
+fn direct_rows(
+    direct: &DirectLevel,
+    channels: &Level<'_>,
+    dst: &mut [i16],
+    stride: usize,
+    len: usize,
+) {
+    let rows = direct.taps.iter().zip(&direct.reach).zip(&direct.max_delay);
+    for (out, ((taps, &reach), &max_delay)) in dst.chunks_exact_mut(stride).zip(rows) {
+        let n = (len + reach).min(stride - max_delay);
+        let inputs = taps.map(|(c, delay)| &channels.row(c)[delay..][..n]);
+        sum_taps(&mut out[..n], &inputs);
+    }
 }
 
 /// The rows of one tree level (or of the quantised channels), stored one after

@@ -61,24 +61,27 @@ fn to_fixed(x: f32, scale: f32) -> i16 {
     ((v + 12_582_912.0).to_bits() as i32 - 0x4B40_0000) as i16
 }
 
-/// The largest finite |x| of `values` (0 if none), in eight lanes so it vectorises.
+/// The largest finite |x| of `values` (0 if none). On the bits: clearing the sign
+/// leaves |x|, whose bits order like its value, and the finite ones lie below
+/// infinity's; integer compares and maxima in 16 lanes vectorise to a third of the
+/// float compare-and-blend loop's instructions.
 #[inline(always)]
 fn peak_abs(values: &[f32]) -> f32 {
-    let finite_max = |m: f32, x: f32| {
-        let a = x.abs();
-        if a > m && a < f32::INFINITY { a } else { m }
+    const INFINITY_BITS: u32 = 0x7f80_0000;
+    let finite_abs = |x: f32| {
+        let a = x.to_bits() & 0x7fff_ffff;
+        if a < INFINITY_BITS { a } else { 0 }
     };
-    let mut lanes = [0.0f32; 8];
-    let chunks = values.chunks_exact(8);
+    let mut lanes = [0u32; 16];
+    let chunks = values.chunks_exact(16);
     let rest = chunks.remainder();
     for chunk in chunks {
-        for k in 0..8 {
-            lanes[k] = finite_max(lanes[k], chunk[k]);
+        for k in 0..16 {
+            lanes[k] = lanes[k].max(finite_abs(chunk[k]));
         }
     }
-    rest.iter()
-        .chain(&lanes)
-        .fold(0.0, |m, &x| finite_max(m, x))
+    let peak = rest.iter().map(|&x| finite_abs(x)).chain(lanes).max();
+    f32::from_bits(peak.unwrap_or(0))
 }
 
 #[cfg(test)]
@@ -133,5 +136,36 @@ mod tests {
         let q = quantise_tile([&chan[..]].into_iter(), 0, 4, &mut out);
         assert_eq!(q, 2.0 / 32767.0);
         assert_eq!(out, [16384, 32767, 0, -32767]);
+    }
+
+    // The bit-level peak against a plain float fold, on random lengths with
+    // non-finite values, signed zeros and subnormals mixed in.
+    #[test]
+    fn peak_abs_equals_a_plain_fold_over_finite_values() {
+        let mut rng = ChaCha8Rng::seed_from_u64(69);
+        let specials = [
+            f32::NAN,
+            f32::INFINITY,
+            f32::NEG_INFINITY,
+            -0.0,
+            1e-40,
+            -1e-42,
+            f32::MAX,
+            f32::MIN,
+        ];
+        for case in 0..200 {
+            let len = rng.random_range(0..70);
+            let values: Vec<f32> = (0..len)
+                .map(|_| match rng.random_range(0..8) {
+                    0 => specials[rng.random_range(0..specials.len())],
+                    _ => rng.random_range(-1e3f32..1e3) * (case as f32 + 1.0),
+                })
+                .collect();
+            let plain = values
+                .iter()
+                .filter(|x| x.is_finite())
+                .fold(0.0f32, |m, x| m.max(x.abs()));
+            assert_eq!(peak_abs(&values).to_bits(), plain.to_bits(), "{values:?}");
+        }
     }
 }

@@ -27,6 +27,7 @@
 //! noise equals the reference's. See `docs/dedisperse.md`.
 
 mod cost;
+mod direct;
 mod fast;
 mod fixed;
 mod plan;

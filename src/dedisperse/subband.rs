@@ -2,6 +2,7 @@
 //! adjacent channels (stage 1), then, per trial DM, a sum of one row of every
 //! sub-band at that sub-band's own rounded delay (stage 2).
 
+use super::direct::DirectLevel;
 use super::tree::StepTree;
 use crate::units::delay_between_s;
 
@@ -18,11 +19,13 @@ pub(crate) fn tree_downsample(downsample: usize) -> usize {
     (downsample / TREE_OVERSAMPLE).max(1)
 }
 
-/// One sub-band: its channels (data order) and its tree over those channels.
+/// One sub-band: its channels (data order), its tree over those channels and the
+/// tree's bottom levels as direct sums.
 #[derive(Debug, Clone)]
 pub(crate) struct SubBand {
     pub channels: Vec<usize>,
     pub tree: StepTree,
+    pub direct: DirectLevel,
     /// Largest stage-2 delay of its top, tree samples.
     pub max_offset: usize,
 }
@@ -74,6 +77,7 @@ impl StepKernel {
             n_rows += tree.n_top_rows(group.len());
             subbands.push(SubBand {
                 channels: group.to_vec(),
+                direct: DirectLevel::new(&tree, group.len()),
                 tree,
                 max_offset: 0,
             });
@@ -113,9 +117,12 @@ impl StepKernel {
             .sum()
     }
 
-    /// Stage-1 additions per tree sample (tree merges).
+    /// Stage-1 additions per tree sample (direct sums and tree merges).
     pub(crate) fn stage1_adds_per_sample(&self) -> usize {
-        self.subbands.iter().map(|s| s.tree.adds_per_sample()).sum()
+        self.subbands
+            .iter()
+            .map(|s| s.direct.adds + s.tree.adds_per_sample(s.direct.depth))
+            .sum()
     }
 
     /// Stage-2 additions per output sample: phase sums and per-trial sub-band sums.

@@ -267,13 +267,24 @@ impl StepTree {
         (self.dm_rows[k], self.dm_delays[k], self.dm_offsets[k])
     }
 
-    /// Additions per output sample: one per merged row.
-    pub(crate) fn adds_per_sample(&self) -> usize {
+    /// Additions per output sample of the levels above the first `skip`: one per
+    /// merged row.
+    pub(crate) fn adds_per_sample(&self, skip: usize) -> usize {
         self.levels
             .iter()
+            .skip(skip)
             .flatten()
             .filter(|m| m.lower.is_some())
             .count()
+    }
+
+    /// The channels on the path of every row of level `depth` (≥ 1; level 1 merges
+    /// channels): per row, each channel's index and its delay from the row's top, so
+    /// that `row[t] = Σ channel[t + delay]`.
+    pub(crate) fn taps(&self, depth: usize) -> Vec<Vec<(usize, usize)>> {
+        (0..self.levels[depth - 1].len())
+            .map(|r| trace(&self.levels[..depth], r))
+            .collect()
     }
 
     /// The delay (downsampled samples) this tree applies to each channel (data order)
@@ -281,21 +292,27 @@ impl StepTree {
     #[cfg(test)]
     pub(crate) fn path_delays(&self, k: usize, n_chan: usize) -> Vec<usize> {
         let mut delays = vec![0; n_chan];
-        let mut frontier = vec![(self.dm_rows[k], 0usize)];
-        for level in self.levels.iter().rev() {
-            frontier = frontier
-                .into_iter()
-                .flat_map(|(r, t)| {
-                    let m = level[r];
-                    std::iter::once((m.upper, t)).chain(m.lower.map(|l| (l, t + m.shift)))
-                })
-                .collect();
-        }
-        for (c, t) in frontier {
+        for (c, t) in trace(&self.levels, self.dm_rows[k]) {
             delays[c] = t;
         }
         delays
     }
+}
+
+/// Row `row` of the last of `levels` traced back to the channels: each channel on its
+/// path and that channel's delay from the row's top.
+fn trace(levels: &[Vec<Merge>], row: usize) -> Vec<(usize, usize)> {
+    let mut frontier = vec![(row, 0usize)];
+    for level in levels.iter().rev() {
+        frontier = frontier
+            .into_iter()
+            .flat_map(|(r, t)| {
+                let m = level[r];
+                std::iter::once((m.upper, t)).chain(m.lower.map(|l| (l, t + m.shift)))
+            })
+            .collect();
+    }
+    frontier
 }
 
 /// Level 0 holds one node per channel (frequency order); each next level pairs
