@@ -2,7 +2,8 @@
 //! 1. stage 1: inside each sub-band of 64 adjacent channels, the
 //!    merge tree of [`super::tree`] over short time tiles, so a sub-band's levels stay
 //!    in cache, in 16-bit fixed point ([`super::fixed`]: half the bytes of f32, and
-//!    the levels are bound by memory traffic); in parallel over sub-bands;
+//!    the levels are bound by memory traffic), its bottom levels summed straight
+//!    from the channels ([`super::direct`]); in parallel over sub-bands;
 //! 2. stage 2: for each trial DM, the sum of one stage-1 row per sub-band at that
 //!    sub-band's own rounded delay; in parallel over blocks of trials.
 //!
