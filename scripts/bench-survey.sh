@@ -79,15 +79,20 @@ for p in sys.argv[1:]:
   cat "$1" > /dev/null
 }
 
-timed() { # $1 = label, rest = command; prints wall seconds and peak RSS
+# Prints wall seconds, peak RSS (KiB), and user and system CPU seconds: the wall time
+# of a shared virtual machine drifts, and the CPU seconds say whether the work did
+# too (system CPU is mostly first-touch page faults).
+timed() { # $1 = label, rest = command
   local label="$1"
   shift
   /usr/bin/time -v -o "$work/time.txt" "$@" > "$work/$label.log"
-  local wall rss
+  local wall rss user sys
   wall=$(awk -F': ' '/Elapsed \(wall clock\)/ {n = split($2, p, ":"); s = 0;
     for (i = 1; i <= n; i++) s = s * 60 + p[i]; print s}' "$work/time.txt")
   rss=$(awk -F': ' '/Maximum resident set size/ {print $2}' "$work/time.txt")
-  echo "$wall $rss"
+  user=$(awk -F': ' '/User time/ {print $2}' "$work/time.txt")
+  sys=$(awk -F': ' '/System time/ {print $2}' "$work/time.txt")
+  echo "$wall $rss $user $sys"
 }
 
 # Machines of one kind differ: print what this one is, so results can be compared.
@@ -95,10 +100,11 @@ echo "cpu: $(awk -F': ' '/model name/ {print $2; exit}' /proc/cpuinfo)," \
   "$(awk -F': ' '/cpu MHz/ {print $2; exit}' /proc/cpuinfo) MHz"
 echo "load average before: $(cut -d' ' -f1-3 /proc/loadavg); cores: $(nproc)"
 evict_then_read "$work/long.npy"
-read -r wall rss < <(timed full $bin search "$work/long.json" --out "$work/out-full" \
+read -r wall rss user sys < <(timed full $bin search "$work/long.json" --out "$work/out-full" \
   --dm-min 0 --dm-max 2000 --max-width-ms 50 --no-catalogue)
 echo "full search, ${length_s} s, DM 0-2000, widths to 50 ms, fast kernel: wall ${wall} s," \
-  "real-time factor $(echo "scale=3; ${length_s} / ${wall}" | bc), peak RSS ${rss} KiB"
+  "real-time factor $(echo "scale=3; ${length_s} / ${wall}" | bc), peak RSS ${rss} KiB," \
+  "CPU ${user} s user + ${sys} s system"
 grep -i "candidates\|trials\|by stage" "$work/full.log" | head -5 || true
 # A survey searches many files of one shape; the search reuses its buffers between
 # them, so three files (other seeds) in one command show the steady per-file rate.
@@ -108,16 +114,17 @@ for seed in 8 9; do
 done
 evict_then_read "$work/long.npy"
 cat "$work/more8.npy" "$work/more9.npy" > /dev/null
-read -r wall rss < <(timed three $bin search "$work/long.json" "$work/more8.json" \
+read -r wall rss user sys < <(timed three $bin search "$work/long.json" "$work/more8.json" \
   "$work/more9.json" --out "$work/out-three" --dm-min 0 --dm-max 2000 --max-width-ms 50 \
   --no-catalogue)
 echo "three ${length_s} s files in one search: wall ${wall} s, real-time factor" \
-  "$(echo "scale=3; 3 * ${length_s} / ${wall}" | bc), peak RSS ${rss} KiB"
+  "$(echo "scale=3; 3 * ${length_s} / ${wall}" | bc), peak RSS ${rss} KiB," \
+  "CPU ${user} s user + ${sys} s system"
 rm -f "$work"/more*.npy
 if (( short_s > 0 )); then
   for kernel in fast reference; do
     evict_then_read "$work/short.npy"
-    read -r wall rss < <(timed "$kernel" $bin search "$work/short.json" --out "$work/out-$kernel" \
+    read -r wall rss _ _ < <(timed "$kernel" $bin search "$work/short.json" --out "$work/out-$kernel" \
       --config "$work/$kernel.toml" --dm-min 0 --dm-max 500 --max-width-ms 50 --no-catalogue)
     echo "short search, ${short_s} s, DM 0-500, widths to 50 ms, $kernel kernel: wall ${wall} s," \
       "peak RSS ${rss} KiB"
