@@ -2,8 +2,8 @@
 //! the channels.
 //!
 //! Level by level, each merge reads two rows and writes one, and a level of a tile
-//! (a few hundred rows of a few thousand samples) overflows L2: the lowest levels
-//! cost most of stage 1 in memory traffic, not arithmetic. A row of level
+//! (a few hundred rows of a few thousand samples) overflows L2, so each level costs
+//! memory traffic more than arithmetic. A row of level
 //! [`DIRECT_DEPTH`] sums the [`DIRECT_TAPS`] channels of its node, each at its path's
 //! delay; those channels' rows of a tile fit in L1, so summing them directly costs
 //! more adds (the levels below no longer share partial sums) but writes only the one
@@ -24,7 +24,7 @@ pub(crate) struct DirectLevel {
     /// Tree levels this level replaces (0: none, the tree starts from the channels).
     pub depth: usize,
     /// Per row, [`DIRECT_TAPS`] (channel row, delay) pairs; a node with fewer channels
-    /// is padded with the all-zero row `zero_row` at delay 0.
+    /// is padded with row `n_chan` (one past the channels, all zeros) at delay 0.
     pub taps: Vec<[(usize, usize); DIRECT_TAPS]>,
     /// Per row, samples needed beyond the tile (the tree row's reach) and its largest
     /// delay.
