@@ -21,6 +21,7 @@ use rayon::prelude::*;
 
 use super::direct::{DirectLevel, sum_taps};
 use super::fixed::{Quantum, quantise_tile};
+use super::isa::{Isa, IsaLevel};
 use super::subband::{StepKernel, SubBand};
 use super::tree::Merge;
 use super::{Dedispersed, DmPlan, DmStep, Extent};
@@ -55,6 +56,8 @@ pub struct FastDedisperser {
     /// Output buffers handed back by [`FastDedisperser::recycle`], one per step:
     /// reusing them spares the page faults of fresh allocations in every block.
     spare: Vec<Vec<f32>>,
+    /// The instruction set the kernel's loops run in.
+    isa: Isa,
 }
 
 /// Stage-1 scratch of one sub-band: one tile of its channels and tree levels, in
@@ -97,7 +100,14 @@ impl FastDedisperser {
             halved: Vec::new(),
             tiles: Vec::new(),
             spare: Vec::new(),
+            isa: Isa::detect(),
         }
+    }
+
+    /// The same dedisperser running its loops in `isa` (tests compare them).
+    #[cfg(test)]
+    pub(crate) fn with_isa(self, isa: Isa) -> Self {
+        FastDedisperser { isa, ..self }
     }
 
     /// The plan this dedisperser executes.
@@ -182,8 +192,10 @@ impl FastDedisperser {
                         row_stride,
                         t0: t0 * kernel.per_out,
                     };
-                    let stride = stage1(kernel, &source, len, &mut self.stage1, &mut self.tiles);
-                    stage2(kernel, &self.stage1, stride, t0, len, &mut data, n_out);
+                    let (isa, buf) = (self.isa, &mut self.stage1);
+                    let stride = stage1(kernel, &source, len, buf, &mut self.tiles, isa);
+                    let chunk = t0..t0 + len;
+                    stage2(kernel, &self.stage1, stride, chunk, &mut data, n_out, isa);
                 }
             }
             out.push(Dedispersed {
@@ -284,6 +296,7 @@ fn stage1(
     len: usize,
     buf: &mut Vec<Bf16>,
     tiles: &mut Vec<TileScratch>,
+    isa: Isa,
 ) -> usize {
     let per_out = kernel.per_out;
     let need = |max_offset: usize| len + max_offset / per_out + 1;
@@ -312,7 +325,7 @@ fn stage1(
                 per_out,
                 need: need(sub.max_offset),
             };
-            subband_rows(sub, src, rows, scratch)
+            subband_rows(sub, src, rows, scratch, isa)
         });
     stride
 }
@@ -348,21 +361,36 @@ impl Phased<'_> {
 
 /// One sub-band's phased top rows for output samples `0..out.need`, tile by tile: each
 /// tile's channels quantised to 16-bit fixed point ([`super::fixed`]), then its tree.
-/// Compiled for AVX2 when the CPU has it (every loop below is inlined into it).
-fn subband_rows(sub: &SubBand, src: &Source<'_>, out: Phased<'_>, scratch: &mut TileScratch) {
-    #[cfg(target_arch = "x86_64")]
-    if std::arch::is_x86_feature_detected!("avx2") {
-        // SAFETY: `subband_rows_avx2` only requires the AVX2 instruction set, which
-        // was detected at run time just above; it is otherwise safe code.
-        return unsafe { subband_rows_avx2(sub, src, out, scratch) };
+/// Compiled for `isa` (every loop below is inlined into it).
+fn subband_rows(
+    sub: &SubBand,
+    src: &Source<'_>,
+    out: Phased<'_>,
+    scratch: &mut TileScratch,
+    isa: Isa,
+) {
+    match isa.level() {
+        // SAFETY: each `_avx*` function only requires its instruction set, which the
+        // CPU has because an `Isa` is only made by detecting it (`isa.rs`); the
+        // functions are otherwise safe code.
+        #[cfg(target_arch = "x86_64")]
+        IsaLevel::Avx512 => unsafe { subband_rows_avx512(sub, src, out, scratch) },
+        #[cfg(target_arch = "x86_64")]
+        IsaLevel::Avx2 => unsafe { subband_rows_avx2(sub, src, out, scratch) },
+        _ => subband_tiles(sub, src, out, scratch),
     }
-    subband_tiles(sub, src, out, scratch)
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2,avx512f,avx512bw,avx512vl")]
+fn subband_rows_avx512(sub: &SubBand, src: &Source<'_>, out: Phased<'_>, s: &mut TileScratch) {
+    subband_tiles(sub, src, out, s)
 }
 
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "avx2")]
-fn subband_rows_avx2(sub: &SubBand, src: &Source<'_>, out: Phased<'_>, scr: &mut TileScratch) {
-    subband_tiles(sub, src, out, scr)
+fn subband_rows_avx2(sub: &SubBand, src: &Source<'_>, out: Phased<'_>, s: &mut TileScratch) {
+    subband_tiles(sub, src, out, s)
 }
 
 /// The portable body of [`subband_rows`].
@@ -552,11 +580,12 @@ fn stage2(
     kernel: &StepKernel,
     stage1: &[Bf16],
     stride: usize,
-    t0: usize,
-    len: usize,
+    chunk: std::ops::Range<usize>,
     data: &mut [f32],
     n_out: usize,
+    isa: Isa,
 ) {
+    let (t0, len) = (chunk.start, chunk.len());
     let n_sub = kernel.subbands.len();
     let per_out = kernel.per_out;
     data.par_chunks_mut(n_out * STAGE2_DMS)
@@ -570,22 +599,28 @@ fn stage2(
                         let (row, offset) = (kernel.rows[i], kernel.offsets[i]);
                         (row * per_out + offset % per_out) * stride + offset / per_out + a
                     });
-                    accumulate(&mut row[t0 + a..t0 + a + tile], stage1, paths);
+                    accumulate(&mut row[t0 + a..t0 + a + tile], stage1, paths, isa);
                 }
             }
         });
 }
 
 /// `acc` = sum of the `acc.len()` samples of `stage1` starting at each of `starts`,
-/// compiled for AVX2 when the CPU has it (twice the adds per cycle of the baseline
-/// SSE2 build).
-fn accumulate(acc: &mut [f32], stage1: &[Bf16], starts: impl Iterator<Item = usize>) {
-    #[cfg(target_arch = "x86_64")]
-    if std::arch::is_x86_feature_detected!("avx2") {
-        // SAFETY: `accumulate_avx2` only requires the AVX2 instruction set, which
-        // was detected at run time just above; it is otherwise safe code.
-        return unsafe { accumulate_avx2(acc, stage1, starts) };
+/// compiled for `isa` (AVX2 makes twice the adds per cycle of the baseline SSE2 build).
+fn accumulate(acc: &mut [f32], stage1: &[Bf16], starts: impl Iterator<Item = usize>, isa: Isa) {
+    match isa.level() {
+        // SAFETY: as in `subband_rows`: the CPU has the instruction set of `isa`.
+        #[cfg(target_arch = "x86_64")]
+        IsaLevel::Avx512 => unsafe { accumulate_avx512(acc, stage1, starts) },
+        #[cfg(target_arch = "x86_64")]
+        IsaLevel::Avx2 => unsafe { accumulate_avx2(acc, stage1, starts) },
+        _ => accumulate_rows(acc, stage1, starts),
     }
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2,avx512f,avx512bw,avx512vl")]
+fn accumulate_avx512(acc: &mut [f32], stage1: &[Bf16], starts: impl Iterator<Item = usize>) {
     accumulate_rows(acc, stage1, starts)
 }
 

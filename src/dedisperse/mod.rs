@@ -30,6 +30,7 @@ mod cost;
 mod direct;
 mod fast;
 mod fixed;
+mod isa;
 mod plan;
 pub mod reference;
 mod subband;
