@@ -7,8 +7,13 @@
 //! [`noise_chain`]), and corrected for the clipping (detection notes §4;
 //! Keane & Petroff 2015, MNRAS 447, 2852, on why the normalisation must be
 //! measured). They are measured on at most [`NOISE_SUMS`] sums at evenly spaced
-//! starts: σ_w to about 1/√(2·min(4096, n/w)), as precise as using every sum for the
-//! wide boxcars whose sums overlap anyway, and 1.1 % for the narrow ones.
+//! starts, at most w/4 apart: σ_w to about 1/√(2·min(4096, n/w)), 1.1 % for the
+//! narrow boxcars. For wide ones, sums w/4 apart overlap by 3/4, and the variance of
+//! the variance they give is 2·Σ_k ρ(k/4)²/N with ρ(x) = max(0, 1 − |x|) over
+//! N = 4n/w sums: 1.375·w/n, against 1.333·w/n from every sum (Bartlett 1946,
+//! J. R. Stat. Soc. Suppl. 8, 27, on the variance of sample covariances of a
+//! correlated series; from memory). So σ_w is 1.6 % less precise, relatively, at a quarter of
+//! the work or less.
 //!
 //! Widths grow geometrically by `ratio` (default √2). For a Gaussian pulse the best
 //! boxcar is 1.19 FWHM wide and reaches 0.943 of the ideal matched filter; with a √2
@@ -66,7 +71,8 @@ pub const SCAN_CHUNK: usize = 64;
 
 /// Robust mean and σ of the boxcar sums of each width in `chain` (ascending) over a
 /// series of unit robust σ and zero baseline whose prefix sums are `prefix`. Each is
-/// one σ-clipped (4σ) pass over up to [`NOISE_SUMS`] evenly spaced sums, started
+/// one σ-clipped (4σ) pass over up to [`NOISE_SUMS`] evenly spaced sums (at most
+/// w/4 apart, see the module docs), started
 /// from the previous width's result scaled as white noise would scale, (m·w/w′,
 /// σ·√(w/w′)) — for the first width from (0, √w). Each start is thus a robust
 /// estimate of the noise core within a few per cent, and one pass measures the core
@@ -105,7 +111,7 @@ fn sums_noise(
     if n_sums < MIN_INDEPENDENT_SUMS * w {
         return None;
     }
-    let stride = n_sums.div_ceil(NOISE_SUMS).max(1);
+    let stride = n_sums.div_ceil(NOISE_SUMS).max(w / 4).max(1);
     scratch.sums.clear();
     scratch.sums.extend(
         (0..n_sums)
@@ -522,6 +528,39 @@ mod tests {
         assert!(
             (count - expected).abs() < 4.0 * sd,
             "{count} vs {expected} ± {sd}"
+        );
+    }
+
+    // A wide boxcar's noise, measured on sums w/4 apart, scatters over noise
+    // realisations as the overlap model of the module docs predicts (Bartlett 1946):
+    // relative σ of σ_w = ½·√(1.375·w/n), here 7.3 %. Sums 2w apart would give 12.5 %.
+    #[test]
+    fn wide_boxcar_noise_is_as_precise_as_overlapping_sums_allow() {
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(29);
+        let (n, w, seeds) = (16384, 256, 300);
+        let chain = width_ladder(w, std::f64::consts::SQRT_2);
+        assert_eq!(chain.last(), Some(&w));
+        let mut scratch = Scratch::default();
+        let ratios: Vec<f64> = (0..seeds)
+            .map(|_| {
+                let series: Vec<f32> = (0..n).map(|_| StandardNormal.sample(&mut rng)).collect();
+                let mut prefix = Vec::new();
+                prefix_sums(&series, &mut prefix);
+                let (_, sigma) = noise_chain(&prefix, &chain, &mut scratch)
+                    .pop()
+                    .unwrap()
+                    .unwrap();
+                sigma / (w as f64).sqrt()
+            })
+            .collect();
+        let mean = ratios.iter().sum::<f64>() / seeds as f64;
+        let sd =
+            (ratios.iter().map(|r| (r - mean).powi(2)).sum::<f64>() / (seeds - 1) as f64).sqrt();
+        let predicted = 0.5 * (1.375 * w as f64 / n as f64).sqrt();
+        assert!((mean - 1.0).abs() < 0.03, "mean σ_w/√w {mean}");
+        assert!(
+            (0.85..1.2).contains(&(sd / predicted)),
+            "scatter {sd} against {predicted} predicted"
         );
     }
 

@@ -11,9 +11,10 @@ use crate::robust::{Baseline, median_sigma};
 /// Values a channel's σ is measured on: σ to about 1.3 %.
 pub const CHANNEL_SIGMA_VALUES: usize = 8192;
 
-/// Values a dedispersed series' σ is measured on: it only sets the scale, since the
-/// matched filter measures the noise of every boxcar width itself.
-pub const SERIES_SIGMA_VALUES: usize = 2048;
+/// Values a dedispersed series' σ is measured on: it only sets the scale (to about
+/// 6 %), since the matched filter measures the noise of every boxcar width itself;
+/// 2048 values cost the filter 3–8 % more time for nothing (measured).
+pub const SERIES_SIGMA_VALUES: usize = 512;
 
 /// Subtracts the running baseline of `series` and divides by its robust σ from at
 /// most about `sigma_values` evenly strided values, falling back to the standard
