@@ -135,7 +135,12 @@ fn review_promote_summarise_and_export() {
     assert!(bursts_csv.starts_with("id,candidate_id,source,mjd_utc,toa_tdb_mjd,dm,snr"));
 
     // Exposure: 3 one-hour observations (the first 01:00-02:00 UTC on MJD 60000)
-    // plus 01:30-03:30 imported: 3 + 2 - 0.5 overlapping = 4.5 hours.
+    // plus 01:30-03:30 imported: 3 + 2 - 0.5 overlapping = 4.5 hours of recording.
+    // At the source's DM 350 each observation's window for arrival times at infinite
+    // frequency starts 0.56944 s early (delay to its top channel, 1596.875 MHz) and
+    // ends 1.00316 s early (bottom channel, 1203.125 MHz; dispersion constant of
+    // Lorimer & Kramer 2005): the first gains 0.56944 s before 01:00, the other two
+    // lose the 0.43372 s sweep each.
     let csv_path = dir.path().join("exposure.csv");
     std::fs::write(
         &csv_path,
@@ -154,7 +159,7 @@ fn review_promote_summarise_and_export() {
     let s = &summary[0];
     assert_eq!(s["n_bursts"].as_u64().unwrap() as usize, bursts.len());
     assert!(
-        (s["exposure_hours"].as_f64().unwrap() - 4.5).abs() < 1e-6,
+        (s["exposure_hours"].as_f64().unwrap() - (4.5 - 0.29799 / 3600.0)).abs() < 1e-7,
         "{s}"
     );
 

@@ -11,6 +11,7 @@ use serde::Serialize;
 
 use super::Catalogue;
 use crate::error::{Error, Result};
+use crate::units::{SECONDS_PER_DAY, delay_to_infinity_s};
 
 /// One stored exposure interval.
 #[derive(Debug, Clone, PartialEq, Serialize)]
@@ -41,6 +42,20 @@ pub fn merge_intervals(mut spans: Vec<(f64, f64)>) -> Vec<(f64, f64)> {
         }
     }
     out
+}
+
+/// The arrival times at infinite frequency (UTC MJD) of the bursts at `dm`
+/// (pc cm⁻³) whose whole sweep over channels `freq_lo_mhz..=freq_hi_mhz` lies in a
+/// recording spanning `[start_mjd, end_mjd)`: the span moved earlier by the delay to
+/// the top channel and shortened by the sweep across the band. Empty (end ≤ start,
+/// dropped when merged) for a recording shorter than the sweep.
+pub fn sweep_window(
+    (start_mjd, end_mjd): (f64, f64),
+    dm: f64,
+    (freq_lo_mhz, freq_hi_mhz): (f64, f64),
+) -> (f64, f64) {
+    let days = |f| delay_to_infinity_s(dm, f) / SECONDS_PER_DAY;
+    (start_mjd - days(freq_hi_mhz), end_mjd - days(freq_lo_mhz))
 }
 
 /// Total hours covered by merged MJD intervals.
@@ -81,18 +96,49 @@ impl Catalogue {
     /// Merged exposure of `source` by searches complete at `snr_min`: intervals
     /// whose threshold is at most `snr_min`, or unknown. `None` takes every interval.
     ///
+    /// The times are arrival times at infinite frequency (UTC MJD), as a burst's
+    /// `mjd_inf` is. A search of a recording finds a burst whose whole sweep lies in
+    /// it, so when the source has a reference DM, each interval of our own runs
+    /// becomes `[start − d(f_hi), end − d(f_lo)]`, with d the delay at that DM to the
+    /// recording's highest and lowest channel ([`sweep_window`]). Imported intervals,
+    /// and those of a source with no reference DM, are taken as they are.
+    ///
     /// # Errors
     /// An SQLite failure.
     pub fn merged_exposure(&self, source: &str, snr_min: Option<f64>) -> Result<Vec<(f64, f64)>> {
-        let spans = self
-            .exposure(Some(source))?
-            .into_iter()
-            .filter(|e| match (snr_min, e.snr_threshold) {
-                (Some(s), Some(t)) => t <= s,
-                _ => true,
+        let mut stmt = self
+            .conn()
+            .prepare(
+                "SELECT e.start_mjd, e.end_mjd, e.snr_threshold, s.dm_ref, o.freq_lo_mhz, o.freq_hi_mhz
+                 FROM exposure e JOIN source s ON s.id = e.source_id
+                 LEFT JOIN search_run r ON r.id = e.run_id
+                 LEFT JOIN observation o ON o.id = r.observation_id
+                 WHERE s.name = ?1",
+            )
+            .map_err(|e| self.err(e))?;
+        let rows = stmt
+            .query_map([source], |r| {
+                let span: (f64, f64) = (r.get(0)?, r.get(1)?);
+                let threshold: Option<f64> = r.get(2)?;
+                let dm: Option<f64> = r.get(3)?;
+                let band: Option<(f64, f64)> = match (r.get(4)?, r.get(5)?) {
+                    (Some(lo), Some(hi)) => Some((lo, hi)),
+                    _ => None,
+                };
+                let span = match (dm, band) {
+                    (Some(dm), Some(band)) => sweep_window(span, dm, band),
+                    _ => span,
+                };
+                Ok((span, threshold))
             })
-            .map(|e| (e.start_mjd, e.end_mjd))
-            .collect();
+            .map_err(|e| self.err(e))?;
+        let mut spans = Vec::new();
+        for row in rows {
+            let (span, threshold) = row.map_err(|e| self.err(e))?;
+            if snr_min.zip(threshold).is_none_or(|(s, t)| t <= s) {
+                spans.push(span);
+            }
+        }
         Ok(merge_intervals(spans))
     }
 
@@ -385,6 +431,55 @@ mod tests {
         // threshold is unknown, as for the second row.
         let strict = cat.merged_exposure("SRC-A", Some(6.5)).unwrap();
         assert!((exposure_hours(&strict) - 6.0).abs() < 1e-9);
+    }
+
+    // A source with a reference DM: our run's interval moves to arrival times at
+    // infinite frequency and shrinks by the sweep (delays from the dispersion constant
+    // of Lorimer & Kramer 2005, 4.148808e3 s MHz² pc⁻¹ cm³: 0.81349 s to the top
+    // channel at 1596.875 MHz and 1.43308 s to the bottom one at 1203.125 MHz, for
+    // DM 500); an imported interval is taken as it is, and so is every interval
+    // once the source has no reference DM.
+    #[test]
+    fn a_runs_exposure_is_the_window_its_search_could_find_bursts_in() {
+        use crate::catalogue::synthetic::{candidates, observation, run};
+        let dir = tempfile::tempdir().unwrap();
+        let mut cat = Catalogue::open(&dir.path().join("c.sqlite")).unwrap();
+        let mut source = SourceRecord {
+            id: 0,
+            name: "FIELD-7".into(),
+            ra_deg: 1.0,
+            dec_deg: 2.0,
+            dm_ref: Some(500.0),
+            notes: String::new(),
+        };
+        cat.upsert_source(&source).unwrap();
+        let obs = observation("FIELD-7", 3);
+        let (start, end) = obs.span_mjd();
+        cat.record_search(&obs, &run(7.0), &candidates(&obs, 5, 3))
+            .unwrap();
+        let imported = "FIELD-7,60010.0,60010.5\n";
+        cat.import_exposure_csv(Path::new("x.csv"), imported.as_bytes())
+            .unwrap();
+        let day = 86_400.0;
+        let merged = cat.merged_exposure("FIELD-7", None).unwrap();
+        assert_eq!(merged.len(), 2);
+        assert!(((start - merged[0].0) * day - 0.813_489).abs() < 1e-5);
+        assert!(((end - merged[0].1) * day - 1.433_085).abs() < 1e-5);
+        assert_eq!(merged[1], (60010.0, 60010.5));
+        // The stored rows, and so exports, keep the recording's span.
+        assert_eq!(cat.exposure(None).unwrap()[0].start_mjd, start);
+        source.dm_ref = None;
+        cat.upsert_source(&source).unwrap();
+        let merged = cat.merged_exposure("FIELD-7", None).unwrap();
+        assert_eq!(merged, vec![(start, end), (60010.0, 60010.5)]);
+    }
+
+    #[test]
+    fn a_recording_shorter_than_the_sweep_has_no_window() {
+        // 0.5 s against a sweep of 0.630 s over 1200–1600 MHz at DM 500.
+        let w = sweep_window((60000.0, 60000.0 + 0.5 / 86_400.0), 500.0, (1200.0, 1600.0));
+        assert!(w.1 <= w.0, "{w:?}");
+        assert!(merge_intervals(vec![w]).is_empty());
     }
 
     #[test]

@@ -25,7 +25,9 @@ pub mod synthetic;
 mod voevent;
 
 pub use bursts::{BurstTiming, CompletenessRecord};
-pub use exposure::{ExposureImport, ExposureInterval, exposure_hours, merge_intervals};
+pub use exposure::{
+    ExposureImport, ExposureInterval, exposure_hours, merge_intervals, sweep_window,
+};
 pub use from_search::EarlierRun;
 pub use query::{Bounds, BurstFilter, BurstRow, CandidateFilter, CandidateRow};
 pub use record::{ObservationRecord, RecordOutcome, RunRecord, config_hash, content_hash};
