@@ -175,6 +175,59 @@ pub fn write(path: &Path, contents: impl AsRef<[u8]>) -> Result<()> {
     file.commit()
 }
 
+/// A folder of files that appear together or not at all. They are written into a
+/// hidden staging folder inside `dir` ([`StagedDir::path`]); [`StagedDir::commit`]
+/// renames each into `dir`, the one named `last` after all the others (a report's
+/// index, which so never names a figure not yet in place). Dropping an uncommitted
+/// one removes the staging folder and leaves `dir` as it was: a report that fails
+/// half-way does not mix its figures into the one before.
+pub struct StagedDir {
+    dir: PathBuf,
+    staging: tempfile::TempDir,
+}
+
+impl StagedDir {
+    /// Creates `dir` if needed, and an empty staging folder in it.
+    ///
+    /// # Errors
+    /// [`Error::Io`] naming `dir`.
+    pub fn create(dir: &Path) -> Result<StagedDir> {
+        std::fs::create_dir_all(dir).map_err(|e| Error::io(dir, e))?;
+        let staging = tempfile::Builder::new()
+            .prefix(".burstbook-staging-")
+            .tempdir_in(dir)
+            .map_err(|e| Error::io(dir, e))?;
+        Ok(StagedDir {
+            dir: dir.to_path_buf(),
+            staging,
+        })
+    }
+
+    /// The staging folder to write the files into.
+    pub fn path(&self) -> &Path {
+        self.staging.path()
+    }
+
+    /// Moves every staged file into the folder, `last` last, and removes the staging
+    /// folder; returns the final path of `last`.
+    ///
+    /// # Errors
+    /// [`Error::Io`] naming the file that could not be moved.
+    pub fn commit(self, last: &str) -> Result<PathBuf> {
+        let staged = self.staging.path();
+        let mut names: Vec<std::ffi::OsString> = std::fs::read_dir(staged)
+            .and_then(|entries| entries.map(|e| e.map(|e| e.file_name())).collect())
+            .map_err(|e| Error::io(staged, e))?;
+        // Sorted for a repeatable order; `last` sorts after everything.
+        names.sort_by_key(|n| (n == last, n.clone()));
+        for name in names {
+            let to = self.dir.join(&name);
+            std::fs::rename(staged.join(&name), &to).map_err(|e| Error::io(&to, e))?;
+        }
+        Ok(self.dir.join(last))
+    }
+}
+
 /// Flushes a CSV writer into its [`AtomicFile`] and commits it.
 ///
 /// # Errors
@@ -208,6 +261,37 @@ pub(crate) mod tests {
         f.write_all(first).map_err(|e| Error::io(path, e))?;
         f.flush().map_err(|e| Error::io(path, e))?;
         Err(Error::Numerical("stopped midway".into()))
+    }
+
+    #[test]
+    fn a_staged_folder_appears_whole_at_commit_or_not_at_all() {
+        let dir = tempfile::tempdir().unwrap();
+        let out = dir.path().join("report");
+        std::fs::create_dir(&out).unwrap();
+        std::fs::write(out.join("index.html"), "old").unwrap();
+        std::fs::write(out.join("a.png"), "old a").unwrap();
+        // Failing half-way: nothing changes, and no staging folder is left.
+        {
+            let staged = StagedDir::create(&out).unwrap();
+            write(&staged.path().join("a.png"), "new a").unwrap();
+            assert_eq!(
+                listing(&out).len(),
+                3,
+                "the staging folder is hidden inside"
+            );
+        }
+        assert_eq!(listing(&out), ["a.png", "index.html"]);
+        assert_eq!(std::fs::read_to_string(out.join("a.png")).unwrap(), "old a");
+        // Committed: every file replaced or added, the staging folder gone.
+        let staged = StagedDir::create(&out).unwrap();
+        for (name, text) in [("index.html", "new"), ("a.png", "new a"), ("b.png", "b")] {
+            write(&staged.path().join(name), text).unwrap();
+        }
+        let index = staged.commit("index.html").unwrap();
+        assert_eq!(index, out.join("index.html"));
+        assert_eq!(listing(&out), ["a.png", "b.png", "index.html"]);
+        assert_eq!(std::fs::read_to_string(&index).unwrap(), "new");
+        assert_eq!(std::fs::read_to_string(out.join("a.png")).unwrap(), "new a");
     }
 
     #[test]

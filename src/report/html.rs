@@ -8,7 +8,7 @@ use super::candidate_plot::{Detection, candidate_figure_from_file};
 use super::figure::CaptionedFigure;
 use super::overview::{bandpass, overview_figure};
 use crate::candidate::Candidate;
-use crate::error::{Error, Result};
+use crate::error::Result;
 use crate::obs::Header;
 
 /// One observation and its candidates.
@@ -57,7 +57,8 @@ impl Default for ReportOptions {
     }
 }
 
-/// Writes `out_dir/index.html` and every PNG it shows; returns the index path.
+/// Writes `out_dir/index.html` and every PNG it shows, all or none of them (see
+/// [`crate::atomic_file::StagedDir`]); returns the index path.
 /// `lead_figures` (caption, figure) are shown first, e.g. a source's timeline.
 ///
 /// # Errors
@@ -68,7 +69,10 @@ pub fn write_report(
     opts: &ReportOptions,
     lead_figures: &[CaptionedFigure],
 ) -> Result<PathBuf> {
-    std::fs::create_dir_all(out_dir).map_err(|e| Error::io(out_dir, e))?;
+    // Everything is drawn into a staging folder first: a report that fails
+    // half-way leaves the one before as it was.
+    let staged = crate::atomic_file::StagedDir::create(out_dir)?;
+    let out_dir = staged.path();
     let mut lead = String::new();
     for (i, (caption, fig)) in lead_figures.iter().enumerate() {
         let name = format!("lead{i:02}.png");
@@ -101,9 +105,8 @@ pub fn write_report(
         t = esc(&opts.title),
         v = env!("CARGO_PKG_VERSION"),
     );
-    let index = out_dir.join("index.html");
-    crate::atomic_file::write(&index, page)?;
-    Ok(index)
+    crate::atomic_file::write(&out_dir.join("index.html"), page)?;
+    staged.commit("index.html")
 }
 
 fn write_section(
