@@ -1,7 +1,8 @@
 //! Which vector instruction set the fast kernel's loops are compiled for, chosen at
 //! run time. The loops are plain Rust that the compiler vectorises; compiling them
 //! once more with AVX-512 (32 sixteen-bit lanes instead of 16) made the kernel
-//! 7–18 % faster on a 2-core Xeon (docs/benchmarks.md, 2026-12-03). Every choice
+//! benchmark 5–10 % faster, median against median, on a 2-core Xeon
+//! (docs/benchmarks.md, 2026-12-03; single runs overlap). Every choice
 //! gives the same output, bit for bit: the loops add lane by lane along time, in the
 //! same order whatever the vector width.
 
