@@ -16,6 +16,7 @@ pub mod cluster;
 pub mod dedisperse;
 pub mod error;
 pub mod inject;
+mod isa;
 pub mod obs;
 pub mod period;
 pub mod progress;

@@ -21,10 +21,10 @@ use rayon::prelude::*;
 
 use super::direct::{DirectLevel, sum_taps};
 use super::fixed::{Quantum, quantise_tile};
-use super::isa::{Isa, IsaLevel};
 use super::subband::{StepKernel, SubBand};
 use super::tree::Merge;
 use super::{Dedispersed, DmPlan, DmStep, Extent};
+use crate::isa::{Isa, IsaLevel};
 
 /// Output samples per chunk as a multiple of the step's longest path, so that the
 /// chunk overlap costs stage 1 at most 25 % extra work.
@@ -371,7 +371,7 @@ fn subband_rows(
 ) {
     match isa.level() {
         // SAFETY: each `_avx*` function only requires its instruction set, which the
-        // CPU has because an `Isa` is only made by detecting it (`isa.rs`); the
+        // CPU has because an `Isa` is only made by detecting it (`crate::isa`); the
         // functions are otherwise safe code.
         #[cfg(target_arch = "x86_64")]
         IsaLevel::Avx512 => unsafe { subband_rows_avx512(sub, src, out, scratch) },

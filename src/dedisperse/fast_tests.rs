@@ -1,9 +1,9 @@
 //! The fast kernel against the reference kernel and the tree's own traced paths.
 
 use super::*;
-use crate::dedisperse::isa::Isa;
 use crate::dedisperse::subband::{SUBBAND_CHANNELS, tree_downsample};
 use crate::dedisperse::{DmStep, PlanRequest, reference};
+use crate::isa::Isa;
 use crate::units::{channel_smearing_s, delay_between_s};
 use ndarray::Array2;
 use rand::{Rng, SeedableRng};

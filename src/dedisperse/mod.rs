@@ -30,7 +30,6 @@ mod cost;
 mod direct;
 mod fast;
 mod fixed;
-mod isa;
 mod plan;
 pub mod reference;
 mod subband;

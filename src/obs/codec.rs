@@ -50,7 +50,7 @@ pub fn check_finite(path: &Path, rows: &[f32], n_chan: usize, first_row: u64) ->
 /// # Errors
 /// [`Error::BadInput`] naming `path`.
 pub fn check_whole_rows(path: &Path, rows: &[f32], n_chan: usize) -> Result<()> {
-    if rows.len() % n_chan == 0 {
+    if rows.len().is_multiple_of(n_chan) {
         Ok(())
     } else {
         Err(Error::bad_input(

@@ -119,7 +119,7 @@ impl StatsAccumulator {
             } else {
                 self.add_row_reference(row);
             }
-            if (first_row + t as u64) % self.stride == 0 {
+            if (first_row + t as u64).is_multiple_of(self.stride) {
                 for (kept, &v) in self.kept.iter_mut().zip(row) {
                     if v.is_finite() {
                         kept.push(v);

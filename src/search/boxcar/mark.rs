@@ -1,23 +1,38 @@
 //! The f32 threshold marking of [`super::search_series`]: a tile of prefix sums
 //! relative to its first value, and per width the runs of [`SCAN_CHUNK`] starts
-//! holding any sum at or above a level. Each kernel is compiled for AVX2 when the
-//! CPU has it and keeps its plain version; the tests compare the two.
+//! holding any sum at or above a level. Each kernel runs in the widest instruction
+//! set the CPU has ([`Isa`]: AVX-512, AVX2) and keeps its plain version; the tests
+//! compare them.
 
 use super::SCAN_CHUNK;
+use crate::isa::{Isa, IsaLevel};
 
-/// Lanes of the running maximum in [`relative_tile`].
-const TILE_LANES: usize = 8;
+/// Lanes of the running maximum in [`relative_tile`] (one AVX-512 register, two AVX2).
+const TILE_LANES: usize = 16;
 
 /// Fills `tile` with `prefix` relative to its first value, in f32, and returns the
-/// largest magnitude there, ignoring NaN as `f32::max` does; compiled for AVX2 when
-/// the CPU has it.
+/// largest magnitude there, ignoring NaN as `f32::max` does.
 pub(super) fn relative_tile(prefix: &[f64], tile: &mut Vec<f32>) -> f32 {
-    #[cfg(target_arch = "x86_64")]
-    if std::arch::is_x86_feature_detected!("avx2") {
-        // SAFETY: `relative_tile_avx2` only requires the AVX2 instruction set, which
-        // was detected at run time just above; it is otherwise safe code.
-        return unsafe { relative_tile_avx2(prefix, tile) };
+    relative_tile_in(Isa::detect(), prefix, tile)
+}
+
+/// [`relative_tile`] compiled for `isa`.
+fn relative_tile_in(isa: Isa, prefix: &[f64], tile: &mut Vec<f32>) -> f32 {
+    match isa.level() {
+        // SAFETY: each `_avx*` function only requires its instruction set, which the
+        // CPU has because an `Isa` is only made by detecting it (`crate::isa`); the
+        // functions are otherwise safe code.
+        #[cfg(target_arch = "x86_64")]
+        IsaLevel::Avx512 => unsafe { relative_tile_avx512(prefix, tile) },
+        #[cfg(target_arch = "x86_64")]
+        IsaLevel::Avx2 => unsafe { relative_tile_avx2(prefix, tile) },
+        _ => relative_tile_portable(prefix, tile),
     }
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2,avx512f,avx512bw,avx512vl")]
+fn relative_tile_avx512(prefix: &[f64], tile: &mut Vec<f32>) -> f32 {
     relative_tile_portable(prefix, tile)
 }
 
@@ -48,7 +63,7 @@ fn relative_tile_portable(prefix: &[f64], tile: &mut Vec<f32>) -> f32 {
 
 /// Appends to `marks` one flag per run of [`SCAN_CHUNK`] starts among the first
 /// `n_starts` of `tile` (prefix sums relative to the tile's first, in f32): set when
-/// any width-`w` sum there reaches `level`; compiled for AVX2 when the CPU has it.
+/// any width-`w` sum there reaches `level`.
 pub(super) fn mark_chunks(
     tile: &[f32],
     w: usize,
@@ -56,13 +71,64 @@ pub(super) fn mark_chunks(
     level: f32,
     marks: &mut Vec<bool>,
 ) {
-    #[cfg(target_arch = "x86_64")]
-    if std::arch::is_x86_feature_detected!("avx2") {
-        // SAFETY: `mark_chunks_avx2` only requires the AVX2 instruction set, which was
-        // detected at run time just above; it is otherwise safe code.
-        return unsafe { mark_chunks_avx2(tile, w, n_starts, level, marks) };
+    mark_chunks_in(Isa::detect(), tile, w, n_starts, level, marks)
+}
+
+/// [`mark_chunks`] in `isa`.
+fn mark_chunks_in(
+    isa: Isa,
+    tile: &[f32],
+    w: usize,
+    n_starts: usize,
+    level: f32,
+    marks: &mut Vec<bool>,
+) {
+    match isa.level() {
+        // SAFETY: as in `relative_tile_in`: the CPU has the instruction set of `isa`.
+        #[cfg(target_arch = "x86_64")]
+        IsaLevel::Avx512 => unsafe { mark_chunks_avx512(tile, w, n_starts, level, marks) },
+        #[cfg(target_arch = "x86_64")]
+        IsaLevel::Avx2 => unsafe { mark_chunks_avx2(tile, w, n_starts, level, marks) },
+        _ => mark_chunks_portable(tile, w, n_starts, level, marks),
     }
-    mark_chunks_portable(tile, w, n_starts, level, marks)
+}
+
+/// [`mark_chunks_avx2`] in sixteen AVX-512 lanes: the comparison gives a mask
+/// directly. `max_ps` treats NaN as in AVX2.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx512f")]
+fn mark_chunks_avx512(tile: &[f32], w: usize, n_starts: usize, level: f32, marks: &mut Vec<bool>) {
+    use std::arch::x86_64::{
+        _CMP_GE_OQ, _mm512_cmp_ps_mask, _mm512_loadu_ps, _mm512_max_ps, _mm512_set1_ps,
+        _mm512_sub_ps,
+    };
+    const LANES: usize = 16;
+    let n_sums = n_starts.min(tile.len().saturating_sub(w));
+    let full = n_sums / SCAN_CHUNK;
+    let level16 = _mm512_set1_ps(level);
+    for c in 0..full {
+        let t = c * SCAN_CHUNK;
+        let lo: &[f32; SCAN_CHUNK] = tile[t..t + SCAN_CHUNK].try_into().expect("run length");
+        let hi: &[f32; SCAN_CHUNK] = tile[t + w..t + w + SCAN_CHUNK]
+            .try_into()
+            .expect("run length");
+        let mut top = _mm512_set1_ps(f32::NEG_INFINITY);
+        for j in (0..SCAN_CHUNK).step_by(LANES) {
+            // SAFETY: `lo` and `hi` hold SCAN_CHUNK values and j + LANES ≤ SCAN_CHUNK,
+            // so each unaligned load reads sixteen values inside them.
+            let (l, h) = unsafe {
+                (
+                    _mm512_loadu_ps(lo.as_ptr().add(j)),
+                    _mm512_loadu_ps(hi.as_ptr().add(j)),
+                )
+            };
+            top = _mm512_max_ps(_mm512_sub_ps(h, l), top);
+        }
+        marks.push(_mm512_cmp_ps_mask::<_CMP_GE_OQ>(top, level16) != 0);
+    }
+    if n_sums > full * SCAN_CHUNK {
+        marks.push((full * SCAN_CHUNK..n_sums).any(|t| tile[t + w] - tile[t] >= level));
+    }
 }
 
 /// [`mark_chunks_portable`] in AVX2: per run, the running maximum of the sums in
@@ -127,7 +193,7 @@ mod tests {
     use rand::SeedableRng;
     use rand_distr::{Distribution, StandardNormal};
 
-    // The tile conversion picked at run time against the plain one and against the
+    // The tile conversion in every instruction set the CPU has against the plain one and against the
     // plain largest magnitude, NaN and infinity included.
     #[test]
     fn tile_conversion_agrees_with_the_plain_one() {
@@ -140,9 +206,12 @@ mod tests {
                 prefix[len / 2] = f64::NAN;
                 prefix[len / 3] = f64::INFINITY;
             }
-            for slice in [&prefix[..], &prefix[..len.min(40)]] {
+            for (slice, isa) in [&prefix[..], &prefix[..len.min(40)]]
+                .into_iter()
+                .flat_map(|s| Isa::available().into_iter().map(move |isa| (s, isa)))
+            {
                 let (mut fast, mut plain) = (Vec::new(), Vec::new());
-                let largest = relative_tile(slice, &mut fast);
+                let largest = relative_tile_in(isa, slice, &mut fast);
                 assert_eq!(
                     largest.to_bits(),
                     relative_tile_portable(slice, &mut plain).to_bits()
@@ -159,8 +228,7 @@ mod tests {
         }
     }
 
-    // The marking kernel picked at run time (AVX2 here when the CPU has it) against
-    // the plain one, on random walks with awkward lengths, widths and levels (NaN and
+    // The marking kernel in every instruction set the CPU has against the plain one, on random walks with awkward lengths, widths and levels (NaN and
     // infinite values included), so that runs sit on both sides of the level.
     #[test]
     fn marking_kernel_agrees_with_the_plain_one() {
@@ -180,11 +248,14 @@ mod tests {
             }
             for &w in &[1usize, 3, 32, 45, 724] {
                 for &level in &[-5.0f32, 0.0, 2.0, 6.0] {
-                    for n_starts in [len, len / 2 + 7] {
+                    for (n_starts, isa) in [len, len / 2 + 7]
+                        .into_iter()
+                        .flat_map(|n| Isa::available().into_iter().map(move |isa| (n, isa)))
+                    {
                         let (mut fast, mut plain) = (Vec::new(), Vec::new());
-                        mark_chunks(&tile, w, n_starts, level, &mut fast);
+                        mark_chunks_in(isa, &tile, w, n_starts, level, &mut fast);
                         mark_chunks_portable(&tile, w, n_starts, level, &mut plain);
-                        assert_eq!(fast, plain, "len={len} w={w} level={level}");
+                        assert_eq!(fast, plain, "len={len} w={w} level={level} {isa:?}");
                     }
                 }
             }

@@ -1,14 +1,14 @@
-//! Which vector instruction set the fast kernel's loops are compiled for, chosen at
-//! run time. The loops are plain Rust that the compiler vectorises; compiling them
-//! once more with AVX-512 (32 sixteen-bit lanes instead of 16) made the kernel
-//! benchmark 5–10 % faster, median against median, on a 2-core Xeon
-//! (docs/benchmarks.md, 2026-12-03; single runs overlap). Every choice
-//! gives the same output, bit for bit: the loops add lane by lane along time, in the
-//! same order whatever the vector width.
+//! Which vector instruction set the hot loops run in, chosen at run time: the fast
+//! dedispersion kernel's plain loops, which the compiler vectorises, and the matched
+//! filter's marking. Built once more for AVX-512 (32 sixteen-bit lanes instead of 16),
+//! the kernel benchmark ran 5–10 % faster, median against median, on a 2-core Xeon
+//! (docs/benchmarks.md, 2026-12-03; single runs overlap). Every choice gives the same
+//! output, bit for bit: the loops work lane by lane, in the same order whatever the
+//! vector width, and tests compare every set the CPU has.
 
 /// A vector instruction set this CPU has. Only [`Isa::detect`] and
 /// [`Isa::available`] make one, so holding an `Isa` proves that the CPU can run code
-/// compiled for it (what the kernel's `unsafe` dispatch relies on).
+/// compiled for it (what every `unsafe` dispatch on it relies on).
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub(crate) struct Isa(IsaLevel);
 
@@ -24,11 +24,14 @@ pub(crate) enum IsaLevel {
 }
 
 impl Isa {
-    /// The widest instruction set this CPU has.
+    /// The widest instruction set this CPU has (detected once).
     pub(crate) fn detect() -> Isa {
-        *Isa::available()
-            .last()
-            .expect("the portable level is always available")
+        static WIDEST: std::sync::OnceLock<Isa> = std::sync::OnceLock::new();
+        *WIDEST.get_or_init(|| {
+            *Isa::available()
+                .last()
+                .expect("the portable level is always available")
+        })
     }
 
     /// Every instruction set this CPU has, narrowest first (for tests comparing them).
