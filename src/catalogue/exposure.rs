@@ -121,15 +121,11 @@ impl Catalogue {
                 let span: (f64, f64) = (r.get(0)?, r.get(1)?);
                 let threshold: Option<f64> = r.get(2)?;
                 let dm: Option<f64> = r.get(3)?;
-                let band: Option<(f64, f64)> = match (r.get(4)?, r.get(5)?) {
-                    (Some(lo), Some(hi)) => Some((lo, hi)),
-                    _ => None,
-                };
-                let span = match (dm, band) {
-                    (Some(dm), Some(band)) => sweep_window(span, dm, band),
-                    _ => span,
-                };
-                Ok((span, threshold))
+                let band = r.get::<_, Option<f64>>(4)?.zip(r.get::<_, Option<f64>>(5)?);
+                let window = dm
+                    .zip(band)
+                    .map_or(span, |(dm, b)| sweep_window(span, dm, b));
+                Ok((window, threshold))
             })
             .map_err(|e| self.err(e))?;
         let mut spans = Vec::new();

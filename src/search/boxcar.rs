@@ -12,8 +12,8 @@
 //! the variance they give is 2·Σ_k ρ(k/4)²/N with ρ(x) = max(0, 1 − |x|) over
 //! N = 4n/w sums: 1.375·w/n, against 1.333·w/n from every sum (Bartlett 1946,
 //! J. R. Stat. Soc. Suppl. 8, 27, on the variance of sample covariances of a
-//! correlated series; from memory). So σ_w is 1.6 % less precise, relatively, at a quarter of
-//! the work or less.
+//! correlated series; from memory). So σ_w is 1.6 % less precise, relatively, at a
+//! quarter of the work or less.
 //!
 //! Widths grow geometrically by `ratio` (default √2). For a Gaussian pulse the best
 //! boxcar is 1.19 FWHM wide and reaches 0.943 of the ideal matched filter; with a √2
