@@ -93,83 +93,65 @@ fn mark_chunks_in(
     }
 }
 
-/// [`mark_chunks_avx2`] in sixteen AVX-512 lanes: the comparison gives a mask
-/// directly. `max_ps` treats NaN as in AVX2.
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx512f")]
-fn mark_chunks_avx512(tile: &[f32], w: usize, n_starts: usize, level: f32, marks: &mut Vec<bool>) {
-    use std::arch::x86_64::{
-        _CMP_GE_OQ, _mm512_cmp_ps_mask, _mm512_loadu_ps, _mm512_max_ps, _mm512_set1_ps,
-        _mm512_sub_ps,
-    };
-    const LANES: usize = 16;
-    let n_sums = n_starts.min(tile.len().saturating_sub(w));
-    let full = n_sums / SCAN_CHUNK;
-    let level16 = _mm512_set1_ps(level);
-    for c in 0..full {
-        let t = c * SCAN_CHUNK;
-        let lo: &[f32; SCAN_CHUNK] = tile[t..t + SCAN_CHUNK].try_into().expect("run length");
-        let hi: &[f32; SCAN_CHUNK] = tile[t + w..t + w + SCAN_CHUNK]
-            .try_into()
-            .expect("run length");
-        let mut top = _mm512_set1_ps(f32::NEG_INFINITY);
-        for j in (0..SCAN_CHUNK).step_by(LANES) {
-            // SAFETY: `lo` and `hi` hold SCAN_CHUNK values and j + LANES ≤ SCAN_CHUNK,
-            // so each unaligned load reads sixteen values inside them.
-            let (l, h) = unsafe {
-                (
-                    _mm512_loadu_ps(lo.as_ptr().add(j)),
-                    _mm512_loadu_ps(hi.as_ptr().add(j)),
-                )
-            };
-            top = _mm512_max_ps(_mm512_sub_ps(h, l), top);
+/// Defines `$name`, [`mark_chunks_portable`] in the vector instructions of
+/// `$feature`: per run, the running maximum of the sums in `$lanes` lanes, then one
+/// comparison of the lanes with the level (`$reached`). A NaN sum never wins the
+/// maximum (`max_ps` returns its second operand then), as it never passes `>=` in the
+/// portable test. The AVX2 and AVX-512 versions differ only in the intrinsics.
+macro_rules! simd_mark_chunks {
+    ($name:ident, $feature:literal, $lanes:literal, $set1:ident, $load:ident, $sub:ident,
+     $max:ident, |$top:ident, $level:ident| $reached:expr) => {
+        #[cfg(target_arch = "x86_64")]
+        #[target_feature(enable = $feature)]
+        fn $name(tile: &[f32], w: usize, n_starts: usize, level: f32, marks: &mut Vec<bool>) {
+            use std::arch::x86_64::*;
+            let n_sums = n_starts.min(tile.len().saturating_sub(w));
+            let full = n_sums / SCAN_CHUNK;
+            let $level = $set1(level);
+            for c in 0..full {
+                let t = c * SCAN_CHUNK;
+                let lo: &[f32; SCAN_CHUNK] =
+                    tile[t..t + SCAN_CHUNK].try_into().expect("run length");
+                let hi: &[f32; SCAN_CHUNK] = tile[t + w..t + w + SCAN_CHUNK]
+                    .try_into()
+                    .expect("run length");
+                let mut $top = $set1(f32::NEG_INFINITY);
+                for j in (0..SCAN_CHUNK).step_by($lanes) {
+                    // SAFETY: `lo` and `hi` hold SCAN_CHUNK values and
+                    // j + $lanes ≤ SCAN_CHUNK, so each unaligned load of $lanes values
+                    // stays inside them.
+                    let (l, h) = unsafe { ($load(lo.as_ptr().add(j)), $load(hi.as_ptr().add(j))) };
+                    $top = $max($sub(h, l), $top);
+                }
+                marks.push($reached);
+            }
+            if n_sums > full * SCAN_CHUNK {
+                marks.push((full * SCAN_CHUNK..n_sums).any(|t| tile[t + w] - tile[t] >= level));
+            }
         }
-        marks.push(_mm512_cmp_ps_mask::<_CMP_GE_OQ>(top, level16) != 0);
-    }
-    if n_sums > full * SCAN_CHUNK {
-        marks.push((full * SCAN_CHUNK..n_sums).any(|t| tile[t + w] - tile[t] >= level));
-    }
+    };
 }
 
-/// [`mark_chunks_portable`] in AVX2: per run, the running maximum of the sums in
-/// eight lanes, then one comparison of the lanes with the level. A NaN sum never
-/// wins the maximum (`max_ps` returns its second operand then), as it never passes
-/// `>=` in the portable test.
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx2")]
-fn mark_chunks_avx2(tile: &[f32], w: usize, n_starts: usize, level: f32, marks: &mut Vec<bool>) {
-    use std::arch::x86_64::{
-        _CMP_GE_OQ, _mm256_cmp_ps, _mm256_loadu_ps, _mm256_max_ps, _mm256_movemask_ps,
-        _mm256_set1_ps, _mm256_sub_ps,
-    };
-    const LANES: usize = 8;
-    let n_sums = n_starts.min(tile.len().saturating_sub(w));
-    let full = n_sums / SCAN_CHUNK;
-    let level8 = _mm256_set1_ps(level);
-    for c in 0..full {
-        let t = c * SCAN_CHUNK;
-        let lo: &[f32; SCAN_CHUNK] = tile[t..t + SCAN_CHUNK].try_into().expect("run length");
-        let hi: &[f32; SCAN_CHUNK] = tile[t + w..t + w + SCAN_CHUNK]
-            .try_into()
-            .expect("run length");
-        let mut top = _mm256_set1_ps(f32::NEG_INFINITY);
-        for j in (0..SCAN_CHUNK).step_by(LANES) {
-            // SAFETY: `lo` and `hi` hold SCAN_CHUNK values and j + LANES ≤ SCAN_CHUNK,
-            // so each unaligned load reads eight values inside them.
-            let (l, h) = unsafe {
-                (
-                    _mm256_loadu_ps(lo.as_ptr().add(j)),
-                    _mm256_loadu_ps(hi.as_ptr().add(j)),
-                )
-            };
-            top = _mm256_max_ps(_mm256_sub_ps(h, l), top);
-        }
-        marks.push(_mm256_movemask_ps(_mm256_cmp_ps::<_CMP_GE_OQ>(top, level8)) != 0);
-    }
-    if n_sums > full * SCAN_CHUNK {
-        marks.push((full * SCAN_CHUNK..n_sums).any(|t| tile[t + w] - tile[t] >= level));
-    }
-}
+simd_mark_chunks!(
+    mark_chunks_avx512,
+    "avx512f",
+    16,
+    _mm512_set1_ps,
+    _mm512_loadu_ps,
+    _mm512_sub_ps,
+    _mm512_max_ps,
+    |top, level16| _mm512_cmp_ps_mask::<_CMP_GE_OQ>(top, level16) != 0
+);
+simd_mark_chunks!(
+    mark_chunks_avx2,
+    "avx2",
+    8,
+    _mm256_set1_ps,
+    _mm256_loadu_ps,
+    _mm256_sub_ps,
+    _mm256_max_ps,
+    |top, level8| _mm256_movemask_ps(_mm256_cmp_ps::<_CMP_GE_OQ>(top, level8)) != 0
+);
 
 /// The plain body of [`mark_chunks`], and its reference: one flag per run of
 /// [`SCAN_CHUNK`] starts, set when any sum there reaches the level.
