@@ -1,6 +1,7 @@
 //! Which vector instruction set the hot loops run in, chosen at run time: the fast
 //! dedispersion kernel's plain loops, which the compiler vectorises, and the matched
-//! filter's marking. Built once more for AVX-512 (32 sixteen-bit lanes instead of 16),
+//! filter's marking; kernels with only an AVX2 build ask [`Isa::cpu_has`] (the period
+//! scan, which also needs FMA, detects both itself). Built once more for AVX-512 (32 sixteen-bit lanes instead of 16),
 //! the kernel benchmark ran 5–10 % faster, median against median, on a 2-core Xeon
 //! (docs/benchmarks.md, 2026-12-03; single runs overlap). Every choice gives the same
 //! output, bit for bit: the loops work lane by lane, in the same order whatever the
@@ -48,6 +49,12 @@ impl Isa {
             }
         }
         levels
+    }
+
+    /// Whether the widest instruction set this CPU has includes `level` (AVX-512 CPUs
+    /// have AVX2): for the kernels that only have an AVX2 build.
+    pub(crate) fn cpu_has(level: IsaLevel) -> bool {
+        Isa::detect().level() >= level
     }
 
     /// The instruction set's level, to dispatch on.

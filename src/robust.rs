@@ -115,9 +115,9 @@ pub fn clipped_mean_sigma_with(
 /// compiled for AVX2 when the CPU has it.
 fn clipped_sums(values: &[f32], centre: f32, limit: f32) -> (u32, f64, f64) {
     #[cfg(target_arch = "x86_64")]
-    if std::arch::is_x86_feature_detected!("avx2") {
+    if crate::isa::Isa::cpu_has(crate::isa::IsaLevel::Avx2) {
         // SAFETY: `clipped_sums_avx2` only requires the AVX2 instruction set, which
-        // was detected at run time just above; it is otherwise safe code.
+        // `crate::isa` detected on this CPU; it is otherwise safe code.
         return unsafe { clipped_sums_avx2(values, centre, limit) };
     }
     clipped_sums_portable(values, centre, limit)

@@ -29,7 +29,7 @@ pub(super) struct Columns {
 /// Writes `raw` (`m` rows of `n_chan` samples) into `data` as `into` lays it out.
 pub(super) fn transpose_in(raw: &[f32], n_chan: usize, data: &mut [f32], into: Columns) {
     #[cfg(target_arch = "x86_64")]
-    let avx2 = std::arch::is_x86_feature_detected!("avx2");
+    let avx2 = crate::isa::Isa::cpu_has(crate::isa::IsaLevel::Avx2);
     #[cfg(not(target_arch = "x86_64"))]
     let avx2 = false;
     transpose_with(raw, n_chan, data, into, avx2);
@@ -182,7 +182,7 @@ mod tests {
             let capacity = offset + m + 2;
             let into = Columns { capacity, offset };
             #[cfg(target_arch = "x86_64")]
-            let paths = [false, std::arch::is_x86_feature_detected!("avx2")];
+            let paths = [false, crate::isa::Isa::cpu_has(crate::isa::IsaLevel::Avx2)];
             #[cfg(not(target_arch = "x86_64"))]
             let paths = [false];
             for avx2 in paths {

@@ -20,9 +20,9 @@ pub fn prefix_sums(series: &[f32], prefix: &mut Vec<f64>) {
         .zip(prefix[1..].chunks_mut(PREFIX_BLOCK))
     {
         #[cfg(target_arch = "x86_64")]
-        if std::arch::is_x86_feature_detected!("avx2") {
+        if crate::isa::Isa::cpu_has(crate::isa::IsaLevel::Avx2) {
             // SAFETY: `prefix_block_avx2` only requires the AVX2 instruction set, which
-            // was detected at run time just above.
+            // `crate::isa` detected on this CPU.
             carry = unsafe { prefix_block_avx2(values, carry, sums) };
             continue;
         }
@@ -38,9 +38,9 @@ pub fn prefix_sums(series: &[f32], prefix: &mut Vec<f64>) {
 pub fn normalised_prefix(series: &[f32], baseline: &Baseline, scale: f32, prefix: &mut Vec<f64>) {
     resize_prefix(prefix, series.len());
     #[cfg(target_arch = "x86_64")]
-    if std::arch::is_x86_feature_detected!("avx2") {
+    if crate::isa::Isa::cpu_has(crate::isa::IsaLevel::Avx2) {
         // SAFETY: `normalised_prefix_avx2` only requires the AVX2 instruction set,
-        // which was detected at run time just above; it is otherwise safe code.
+        // which `crate::isa` detected on this CPU; it is otherwise safe code.
         return unsafe { normalised_prefix_avx2(series, baseline, scale, prefix) };
     }
     normalised_prefix_portable(series, baseline, scale, prefix);
@@ -217,7 +217,7 @@ mod tests {
     #[cfg(target_arch = "x86_64")]
     #[test]
     fn avx2_block_sums_agree_with_the_plain_ones() {
-        if !std::arch::is_x86_feature_detected!("avx2") {
+        if !crate::isa::Isa::cpu_has(crate::isa::IsaLevel::Avx2) {
             return;
         }
         let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(23);
