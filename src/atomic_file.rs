@@ -180,21 +180,25 @@ pub fn write(path: &Path, contents: impl AsRef<[u8]>) -> Result<()> {
 /// renames each into `dir`, the one named `last` after all the others (a report's
 /// index, which so never names a figure not yet in place). Dropping an uncommitted
 /// one removes the staging folder and leaves `dir` as it was: a report that fails
-/// half-way does not mix its figures into the one before.
+/// half-way does not mix its figures into the one before. A process killed before
+/// either leaves its staging folder behind; the next [`StagedDir::create`] in the same
+/// place removes those untouched for [`STALE_STAGING`].
 pub struct StagedDir {
     dir: PathBuf,
     staging: tempfile::TempDir,
 }
 
 impl StagedDir {
-    /// Creates `dir` if needed, and an empty staging folder in it.
+    /// Creates `dir` if needed, and an empty staging folder in it; removes staging
+    /// folders that killed runs left in `dir` (see [`STALE_STAGING`]).
     ///
     /// # Errors
     /// [`Error::Io`] naming `dir`.
     pub fn create(dir: &Path) -> Result<StagedDir> {
         std::fs::create_dir_all(dir).map_err(|e| Error::io(dir, e))?;
+        remove_stale_staging(dir);
         let staging = tempfile::Builder::new()
-            .prefix(".burstbook-staging-")
+            .prefix(STAGING_PREFIX)
             .tempdir_in(dir)
             .map_err(|e| Error::io(dir, e))?;
         Ok(StagedDir {
@@ -225,6 +229,35 @@ impl StagedDir {
             std::fs::rename(staged.join(&name), &to).map_err(|e| Error::io(&to, e))?;
         }
         Ok(self.dir.join(last))
+    }
+}
+
+const STAGING_PREFIX: &str = ".burstbook-staging-";
+
+/// How long a staging folder must go unmodified before another run may take it for
+/// the leftover of a killed one. A live run adds a file to its folder every few
+/// seconds (each figure), so an hour without one means no run owns it.
+pub const STALE_STAGING: std::time::Duration = std::time::Duration::from_secs(3600);
+
+/// Best effort: a leftover that cannot be removed (permissions, a race with another
+/// cleaner) only stays hidden where it was.
+fn remove_stale_staging(dir: &Path) {
+    let Ok(entries) = std::fs::read_dir(dir) else {
+        return;
+    };
+    for entry in entries.flatten() {
+        let stale = entry
+            .file_name()
+            .to_string_lossy()
+            .starts_with(STAGING_PREFIX)
+            && entry.metadata().is_ok_and(|m| {
+                m.is_dir()
+                    && m.modified()
+                        .is_ok_and(|t| t.elapsed().is_ok_and(|age| age > STALE_STAGING))
+            });
+        if stale {
+            let _ = std::fs::remove_dir_all(entry.path());
+        }
     }
 }
 
@@ -292,6 +325,29 @@ pub(crate) mod tests {
         assert_eq!(listing(&out), ["a.png", "b.png", "index.html"]);
         assert_eq!(std::fs::read_to_string(&index).unwrap(), "new");
         assert_eq!(std::fs::read_to_string(out.join("a.png")).unwrap(), "new a");
+    }
+
+    #[test]
+    fn a_killed_runs_staging_folder_is_removed_once_stale() {
+        let dir = tempfile::tempdir().unwrap();
+        let age_folder = |name: &str, age: std::time::Duration| {
+            let path = dir.path().join(name);
+            std::fs::create_dir(&path).unwrap();
+            std::fs::write(path.join("a.png"), "half-drawn").unwrap();
+            let when = std::time::SystemTime::now() - age;
+            std::fs::File::open(&path)
+                .unwrap()
+                .set_modified(when)
+                .unwrap();
+        };
+        let hour = STALE_STAGING;
+        age_folder(".burstbook-staging-killed", hour * 2);
+        age_folder(".burstbook-staging-live", hour / 2);
+        age_folder("old-figures", hour * 2);
+        let staged = StagedDir::create(dir.path()).unwrap();
+        let mut left = listing(dir.path());
+        left.retain(|n| !staged.path().ends_with(n));
+        assert_eq!(left, [".burstbook-staging-live", "old-figures"]);
     }
 
     #[test]

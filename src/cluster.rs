@@ -194,7 +194,7 @@ impl Sweep {
     /// sweep |D − d|·k(ν_lo⁻² − ν_hi⁻²) to W_eff = √(W² + sweep²) — and, its fluence
     /// spread over W_eff, a boxcar matched to it keeps about √(W/W_eff) of its S/N
     /// (radiometer scaling, common practice). So `other` must also be no brighter
-    /// than [`ECHO_SNR_MARGIN`] times that: a fainter pulse of its own at a DM far
+    /// than `ECHO_SNR_MARGIN` (3) times that: a fainter pulse of its own at a DM far
     /// from the leader's, where the leader's echo is far below the threshold, is not
     /// an echo even if it lies within the smeared sweep.
     pub fn on_bow_tie(&self, leader: &Event, other: &Event, slack_s: f64) -> bool {
