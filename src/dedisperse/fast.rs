@@ -46,10 +46,9 @@ pub struct FastDedisperser {
     steps: Vec<StepKernel>,
     /// Stage-1 rows of the current chunk, `[row, time]`, as bfloat16 bits ([`Bf16`]).
     stage1: Vec<Bf16>,
-    /// The block at reduced time resolution, `[channel, time]`, halved step by step.
+    /// The block at reduced time resolution, `[channel, time]`, halved step by step
+    /// in place: channels stay half a block apart whatever the resolution.
     coarse: Vec<f32>,
-    /// Where the next halving is written before it replaces `coarse`.
-    halved: Vec<f32>,
     /// Stage-1 tile scratch, one per sub-band of the widest step: kept, so that no
     /// block allocates (and faults in) fresh tree levels.
     tiles: Vec<TileScratch>,
@@ -97,7 +96,6 @@ impl FastDedisperser {
             steps,
             stage1: vec![0; stage1_len],
             coarse: Vec::new(),
-            halved: Vec::new(),
             tiles: Vec::new(),
             spare: Vec::new(),
             isa: Isa::detect(),
@@ -154,23 +152,20 @@ impl FastDedisperser {
             if kernel.tree_ds < coarse_ds {
                 coarse_ds = 1;
             }
+            let coarse_stride = n_time / 2;
             while coarse_ds < kernel.tree_ds {
-                // The first halving is the largest: it goes to whichever buffer is
-                // larger, so that no later block reallocates (and faults in) one.
-                if coarse_ds == 1 && self.halved.capacity() < self.coarse.capacity() {
-                    std::mem::swap(&mut self.coarse, &mut self.halved);
+                match coarse_ds {
+                    1 => halve(input, n_time, row_stride, &mut self.coarse, n_chan),
+                    ds => {
+                        let rows = &mut self.coarse[..n_chan * coarse_stride];
+                        halve_in_place(rows, n_time / ds, coarse_stride);
+                    }
                 }
-                let (src, stride) = match coarse_ds {
-                    1 => (input, row_stride),
-                    ds => (&self.coarse[..], n_time / ds),
-                };
-                halve(src, n_time / coarse_ds, stride, &mut self.halved, n_chan);
-                std::mem::swap(&mut self.coarse, &mut self.halved);
                 coarse_ds *= 2;
             }
             let (rows, row_len, row_stride): (&[f32], usize, usize) = match coarse_ds {
                 1 => (input, n_time, row_stride),
-                ds => (&self.coarse, n_time / ds, n_time / ds),
+                ds => (&self.coarse, n_time / ds, coarse_stride),
             };
             let row_lens = row_lens(&self.plan, step, kernel, n_time, extent);
             let n_out = row_lens.iter().copied().max().unwrap_or(0);
@@ -274,6 +269,23 @@ fn halve(src: &[f32], row_len: usize, row_stride: usize, dst: &mut Vec<f32>, n_c
         .par_chunks_mut(new_len.max(1))
         .zip(src.par_chunks(row_stride.max(1)))
         .for_each(|(dst, src)| pair_sums(dst, &src[..row_len]));
+}
+
+/// Halves the time resolution of every channel of `rows` (channels `row_stride`
+/// apart, `row_len` samples each) within the channel's own place, in parallel over
+/// channels; an odd last sample is dropped.
+fn halve_in_place(rows: &mut [f32], row_len: usize, row_stride: usize) {
+    // Each chunk copies its inputs 2·j0.. out before writing its outputs j0..j0 + n,
+    // and no output reaches a later chunk's inputs (j0 + n ≤ 2·(j0 + n)).
+    const CHUNK: usize = 256;
+    rows.par_chunks_mut(row_stride.max(1)).for_each(|row| {
+        let mut pairs = [0.0f32; 2 * CHUNK];
+        for j0 in (0..row_len / 2).step_by(CHUNK) {
+            let n = CHUNK.min(row_len / 2 - j0);
+            pairs[..2 * n].copy_from_slice(&row[2 * j0..2 * (j0 + n)]);
+            pair_sums(&mut row[j0..j0 + n], &pairs[..2 * n]);
+        }
+    });
 }
 
 /// `dst[j] = src[2j] + src[2j + 1]` (inlined into each caller, so it vectorises for

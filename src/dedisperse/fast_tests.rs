@@ -501,11 +501,10 @@ fn a_larger_last_block_grows_the_recycled_outputs() {
     }
 }
 
-// Blocks after the first reuse the halving buffers: with three halvings (steps down
-// to ×16) the first halving of a block must not land in the smaller buffer, which
-// would be reallocated, and faulted in afresh, for every block.
+// Blocks after the first reuse the halving buffer: with three halvings (steps down
+// to ×16), the later two in place, it is allocated (and faulted in) once.
 #[test]
-fn later_blocks_reuse_the_halving_buffers() {
+fn later_blocks_reuse_the_halving_buffer() {
     let mut rng = ChaCha8Rng::seed_from_u64(78);
     let (freqs, bw) = band(16, 1200.0, 1600.0, false);
     let mut plan = awkward_plan(freqs, bw, 1e-3, 11.0, 400.0);
@@ -515,11 +514,7 @@ fn later_blocks_reuse_the_halving_buffers() {
     });
     let input = noise(16, plan.max_delay_samples() + 640, &mut rng);
     let mut kernel = FastDedisperser::new(&plan);
-    let buffers = |k: &FastDedisperser| {
-        let mut p = [k.coarse.as_ptr(), k.halved.as_ptr()];
-        p.sort();
-        p
-    };
+    let buffers = |k: &FastDedisperser| (k.coarse.as_ptr(), k.coarse.capacity());
     let first = kernel.dedisperse(input.view());
     let after_first = buffers(&kernel);
     kernel.recycle(first);
@@ -567,6 +562,33 @@ fn bf16_rounding_matches_the_half_crate() {
         let back = from_bf16(got);
         if back.is_finite() && x.is_normal() {
             assert!(((back - x) / x).abs() <= 2f32.powi(-8), "{x} -> {back}");
+        }
+    }
+}
+
+// In-place halving against plain pair sums (the reference: `halve` into a fresh
+// buffer, which reads its source untouched), repeated as the kernel does for ever coarser
+// steps, for rows shorter and longer than a chunk and odd lengths.
+#[test]
+fn halving_in_place_equals_halving_into_a_copy() {
+    let mut rng = ChaCha8Rng::seed_from_u64(91);
+    for n_time in [3, 7, 511, 512, 1025, 2 * 1024 + 3] {
+        let n_chan = 5;
+        let stride = n_time / 2;
+        let input: Vec<f32> = (0..n_chan * n_time).map(|_| rng.random()).collect();
+        let mut in_place = Vec::new();
+        halve(&input, n_time, n_time, &mut in_place, n_chan);
+        let mut copied = in_place.clone();
+        let mut len = stride;
+        while len >= 2 {
+            halve_in_place(&mut in_place, len, stride);
+            let mut next = Vec::new();
+            halve(&copied, len, len, &mut next, n_chan);
+            len /= 2;
+            for c in 0..n_chan {
+                assert_eq!(in_place[c * stride..][..len], next[c * len..][..len]);
+            }
+            copied = next;
         }
     }
 }
