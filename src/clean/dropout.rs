@@ -233,6 +233,69 @@ mod tests {
         assert!(zero_runs(row.view(), &live, 5).is_empty());
     }
 
+    // The probes (one live channel in MIN_CHANNELS) against a plain scan of every
+    // channel of every row: seeded reads with zero rectangles of random size (many
+    // too short to count), a masked and a dead channel, must mark the same cells.
+    #[test]
+    fn probed_scan_marks_what_a_plain_scan_of_every_row_marks() {
+        use rand::{Rng, SeedableRng};
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(17);
+        for _ in 0..40 {
+            let n_chan = rng.random_range(MIN_CHANNELS..100);
+            let n_rows = rng.random_range(1..300);
+            let mut raw =
+                Array2::from_shape_fn((n_rows, n_chan), |_| f32::from(rng.random_range(1u8..=9)));
+            for _ in 0..rng.random_range(0..6) {
+                let (c0, t0) = (rng.random_range(0..n_chan), rng.random_range(0..n_rows));
+                let c1 = rng.random_range(c0..=n_chan);
+                let t1 = rng.random_range(t0..=n_rows.min(t0 + 40));
+                raw.slice_mut(ndarray::s![t0..t1, c0..c1]).fill(0.0);
+            }
+            let mut mask = vec![false; n_chan];
+            mask[rng.random_range(0..n_chan)] = true;
+            raw.column_mut(rng.random_range(0..n_chan)).fill(0.0);
+            let mut found = Array2::from_elem((n_rows, n_chan), false);
+            for d in dropouts(raw.view(), &mask) {
+                found.slice_mut(ndarray::s![d.rows, d.chans]).fill(true);
+            }
+            // Plain: every row, every channel, the same run length rule.
+            let live: Vec<usize> = (0..n_chan)
+                .filter(|&c| !mask[c] && raw.column(c).iter().any(|&v| v != 0.0))
+                .collect();
+            let mut expected = Array2::from_elem((n_rows, n_chan), false);
+            if live.len() >= MIN_CHANNELS {
+                let zeros = live
+                    .iter()
+                    .map(|&c| raw.column(c).iter().filter(|&&v| v == 0.0).count())
+                    .sum::<usize>();
+                let cells = n_rows * live.len();
+                let min_run =
+                    min_run(zeros as f64 / cells as f64, cells).clamp(MIN_CHANNELS, live.len());
+                for t in 0..n_rows {
+                    let mut run: Vec<usize> = Vec::new();
+                    for &c in live.iter().chain([&usize::MAX]) {
+                        if c != usize::MAX && raw[[t, c]] == 0.0 {
+                            run.push(c);
+                            continue;
+                        }
+                        if run.len() >= min_run {
+                            let span = run[0]..run[run.len() - 1] + 1;
+                            expected.slice_mut(ndarray::s![t, span]).fill(true);
+                        }
+                        run.clear();
+                    }
+                }
+            }
+            // Masked and dead channels inside a run may be covered or not.
+            let free: Vec<usize> = (0..n_chan).filter(|c| !live.contains(c)).collect();
+            for &c in &free {
+                found.column_mut(c).fill(false);
+                expected.column_mut(c).fill(false);
+            }
+            assert_eq!(found, expected);
+        }
+    }
+
     // With half the samples zero (1-bit data), runs of 16 zeros happen by chance
     // (2⁻¹⁶ per start): the run needed grows to log₂(cells / 10⁻³) ≈ 26.6 → 27 for
     // a read of 10⁵ cells, and a noise read of that kind yields no dropout.
