@@ -5,10 +5,8 @@ mod cli;
 use std::io::Write;
 use std::process::ExitCode;
 
-use clap::Parser;
-
 fn main() -> ExitCode {
-    let args = cli::Cli::parse();
+    let args = cli::Cli::parse_args();
     match cli::run(args) {
         Ok(()) => ExitCode::SUCCESS,
         // A reader that stopped early (`| head`) is not an error of ours.

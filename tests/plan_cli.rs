@@ -122,3 +122,45 @@ fn defaults_are_the_search_defaults() {
         burstbook::dedisperse::DmPlan::build(&freqs_mhz, chan_bw_mhz, 64e-6, &defaults).unwrap();
     assert_eq!(report["n_trials"].as_u64(), Some(planned.n_trials() as u64));
 }
+
+// Requests in the wrong unit or of absurd size are refused in one line before any
+// tree is sized for them (a 1e-9 µs sample once asked for 4.8 TB); a negative value
+// given as `--flag -5` reaches the command's own check, in nested subcommands too.
+#[test]
+fn absurd_or_negative_requests_get_one_line() {
+    let band = |lo: &str, hi: &str, chans: &str, us: &str| {
+        let args = [
+            "--freq-lo-mhz",
+            lo,
+            "--freq-hi-mhz",
+            hi,
+            "--channels",
+            chans,
+            "--tsamp-us",
+            us,
+        ];
+        plan(&args)
+    };
+    let cases = [
+        (band("1200", "1600", "256", "1e-9"), "is the sample time"),
+        (
+            band("1200", "1600", "100000000", "64"),
+            "is the channel count right",
+        ),
+        (
+            band("1.2e9", "1.6e9", "256", "1024"),
+            "outside the radio window",
+        ),
+        (
+            plan(&[&SURVEY[..], &["--dm-max", "-5"]].concat()),
+            "0 <= dm_min <= dm_max, got 0..-5",
+        ),
+        (
+            cli_common::burstbook(&["period", "rotation", "--min-period-s", "-1"]),
+            "min period",
+        ),
+    ];
+    for (out, needle) in cases {
+        cli_common::assert_one_line_failure(&out, &[needle]);
+    }
+}

@@ -29,7 +29,7 @@ mod review;
 mod search;
 mod simulate;
 
-use clap::{Parser, Subcommand};
+use clap::{CommandFactory, FromArgMatches, Parser, Subcommand};
 
 /// Find dispersed radio bursts, catalogue them, and time them.
 #[derive(Parser, Debug)]
@@ -37,6 +37,22 @@ use clap::{Parser, Subcommand};
 pub struct Cli {
     #[command(subcommand)]
     command: Command,
+}
+
+impl Cli {
+    /// Parses the process arguments. A value such as `--dm-max -5` is taken as the
+    /// number it is (so the command's own check explains what is wrong with it),
+    /// not as an unknown flag, in every subcommand.
+    pub fn parse_args() -> Cli {
+        let matches = negative_numbers_everywhere(Cli::command()).get_matches();
+        Cli::from_arg_matches(&matches).unwrap_or_else(|e| e.exit())
+    }
+}
+
+fn negative_numbers_everywhere(command: clap::Command) -> clap::Command {
+    command
+        .allow_negative_numbers(true)
+        .mut_subcommands(negative_numbers_everywhere)
 }
 
 #[derive(Subcommand, Debug)]

@@ -4,10 +4,20 @@ use serde::{Deserialize, Serialize};
 
 use super::{Extent, channel_delays};
 use crate::error::{Error, Result};
+use crate::obs::RADIO_WINDOW_MHZ;
 use crate::units::{DISPERSION_CONSTANT_S_MHZ2, channel_smearing_s};
 
 /// More trials than this is almost certainly a mistaken request.
 const MAX_TRIALS: usize = 10_000_000;
+
+/// More channels than this is almost certainly a mistaken request (search backends
+/// record thousands to tens of thousands; common practice).
+const MAX_CHANNELS: usize = 1 << 20;
+
+/// A sweep across the band longer than this many samples cannot be held in any
+/// block (with 64 channels of f32 it is half a terabyte): a sample time or band in
+/// the wrong unit, caught before any tree is sized for it.
+const MAX_SWEEP_SAMPLES: f64 = (1u64 << 31) as f64;
 
 /// What the user asks of a DM plan; [`DmPlan`] is what the planner makes of it.
 /// Keys missing from a serialised request (e.g. a partial `[plan]` table of a search
@@ -302,6 +312,20 @@ impl Planner {
         if freqs_mhz.is_empty() || freqs_mhz.iter().any(|f| !(f.is_finite() && *f > 0.0)) {
             return bad("the band needs at least one positive channel frequency".into());
         }
+        if freqs_mhz.len() > MAX_CHANNELS {
+            return bad(format!(
+                "{} channels is more than {MAX_CHANNELS}: is the channel count right?",
+                freqs_mhz.len()
+            ));
+        }
+        if let Some(f) = freqs_mhz.iter().find(|f| !RADIO_WINDOW_MHZ.contains(*f)) {
+            return bad(format!(
+                "channel frequency {f} MHz is outside the radio window of {} to {} MHz \
+                 (frequencies are in MHz)",
+                RADIO_WINDOW_MHZ.start(),
+                RADIO_WINDOW_MHZ.end()
+            ));
+        }
         if !(chan_bw_mhz.is_finite() && chan_bw_mhz != 0.0) {
             return bad(format!(
                 "channel width must be non-zero, got {chan_bw_mhz} MHz"
@@ -345,11 +369,20 @@ impl Planner {
         if lo <= 0.0 {
             return bad(format!("band edge {lo} MHz is not positive"));
         }
+        let sweep_s_per_dm = DISPERSION_CONSTANT_S_MHZ2 * (lo.powi(-2) - hi.powi(-2));
+        let sweep_samples = dm_max * sweep_s_per_dm / tsamp_s;
+        if sweep_samples > MAX_SWEEP_SAMPLES {
+            return bad(format!(
+                "the sweep at DM {dm_max} across {lo:.3}–{hi:.3} MHz spans {sweep_samples:.3e} \
+                 samples of {tsamp_s:e} s, more than {MAX_SWEEP_SAMPLES:.3e}: is the sample \
+                 time (or the DM range) right?"
+            ));
+        }
         Ok(Planner {
             tsamp_s,
             chan_bw_mhz: chan_bw_mhz.abs(),
             centre_mhz: (lo + hi) / 2.0,
-            sweep_s_per_dm: DISPERSION_CONSTANT_S_MHZ2 * (lo.powi(-2) - hi.powi(-2)),
+            sweep_s_per_dm,
             min_width_s,
             tolerance,
             max_downsample,

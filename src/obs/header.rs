@@ -9,7 +9,7 @@ use crate::units::{SECONDS_PER_DAY, whole_days};
 /// 10 MHz) to the top of the submillimetre band (1 THz), `common practice`. Anything
 /// outside is a unit or encoding mistake (Hz or GHz for MHz, a garbled value), and
 /// would make dispersion delays absurd (1e-300 MHz sized the plan at terabytes).
-const RADIO_WINDOW_MHZ: std::ops::RangeInclusive<f64> = 1.0..=1.0e6;
+pub(crate) const RADIO_WINDOW_MHZ: std::ops::RangeInclusive<f64> = 1.0..=1.0e6;
 
 /// An observing site on the WGS84 ellipsoid.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]

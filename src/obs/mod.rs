@@ -18,6 +18,7 @@ pub(crate) use block::tests::{assert_skips_match_reading, awkward_skips};
 pub use block::{
     Block, BlockReader, MemorySource, SKIP_CHUNK_VALUES, SampleSink, SampleSource, fill_rows,
 };
+pub(crate) use header::RADIO_WINDOW_MHZ;
 pub use header::{Header, Site, UtcEpoch};
 
 use std::path::Path;
