@@ -37,6 +37,20 @@ pub enum Error {
     Numerical(String),
 }
 
+/// A TOML parse error of `text` on one line: where (line and column, 1-based) and
+/// what, without the source excerpt the error's own display draws over several lines.
+pub fn toml_message(text: &str, error: &toml::de::Error) -> String {
+    match error.span() {
+        Some(span) => {
+            let before = &text[..span.start.min(text.len())];
+            let line = before.matches('\n').count() + 1;
+            let column = before.len() - before.rfind('\n').map_or(0, |i| i + 1) + 1;
+            format!("line {line}, column {column}: {}", error.message())
+        }
+        None => error.message().to_string(),
+    }
+}
+
 impl Error {
     /// Shorthand for [`Error::BadInput`].
     pub fn bad_input(path: impl Into<PathBuf>, msg: impl Into<String>) -> Self {

@@ -98,6 +98,12 @@ impl CleanConfig {
                 "kurtosis_tail_probability must be in (0, 0.5)".into(),
             ));
         }
+        if !(self.kurtosis_flag_fraction > 0.0 && self.kurtosis_flag_fraction <= 1.0) {
+            return Err(Error::Config(format!(
+                "kurtosis_flag_fraction must be in (0, 1], got {}",
+                self.kurtosis_flag_fraction
+            )));
+        }
         if self.clip_threshold.is_nan() || self.clip_threshold < 0.0 {
             return Err(Error::Config("clip_threshold must be >= 0".into()));
         }

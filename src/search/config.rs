@@ -6,7 +6,7 @@ use sha2::{Digest, Sha256};
 
 use crate::clean::CleanConfig;
 use crate::dedisperse::{Kernel, PlanRequest};
-use crate::error::{Error, Result};
+use crate::error::{Error, Result, toml_message};
 
 /// How detections are merged into candidates (see [`crate::cluster`]).
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -114,8 +114,11 @@ impl SearchConfig {
     pub fn from_toml_file(path: &std::path::Path) -> Result<Self> {
         let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
         let config: SearchConfig =
-            toml::from_str(&text).map_err(|e| Error::bad_input(path, e.to_string()))?;
-        config.validate()?;
+            toml::from_str(&text).map_err(|e| Error::bad_input(path, toml_message(&text, &e)))?;
+        config.validate().map_err(|e| match e {
+            Error::Config(msg) => Error::bad_input(path, msg),
+            other => other,
+        })?;
         Ok(config)
     }
 
@@ -183,7 +186,49 @@ impl SearchConfig {
         {
             return bad(format!("memory limit must be positive, got {gib} GiB"));
         }
-        self.clean.validate()
+        self.clean.validate()?;
+        self.cluster.validate()?;
+        self.triage.validate()
+    }
+}
+
+impl ClusterConfig {
+    /// # Errors
+    /// [`Error::Config`] for a negative or non-finite time slack.
+    pub fn validate(&self) -> Result<()> {
+        if !(self.time_link_s.is_finite() && self.time_link_s >= 0.0) {
+            return Err(Error::Config(format!(
+                "[cluster] time_link_s must be >= 0, got {}",
+                self.time_link_s
+            )));
+        }
+        Ok(())
+    }
+}
+
+impl TriageConfig {
+    /// # Errors
+    /// [`Error::Config`] for a threshold outside the range its quantity can take: the
+    /// DM-0 ratios and the band fraction lie in [0, 1], the misfit is positive.
+    pub fn validate(&self) -> Result<()> {
+        let fractions = [
+            ("max_dm0_excess", self.max_dm0_excess),
+            ("ambiguous_dm0_ratio", self.ambiguous_dm0_ratio),
+            ("min_band_fraction", self.min_band_fraction),
+        ];
+        if let Some((name, value)) = fractions.iter().find(|(_, v)| !(0.0..=1.0).contains(v)) {
+            return Err(Error::Config(format!(
+                "[triage] {name} must be in [0, 1], got {value}"
+            )));
+        }
+        // Infinite: the shape test never calls a candidate interference.
+        if self.max_dm_curve_misfit.is_nan() || self.max_dm_curve_misfit <= 0.0 {
+            return Err(Error::Config(format!(
+                "[triage] max_dm_curve_misfit must be > 0, got {}",
+                self.max_dm_curve_misfit
+            )));
+        }
+        Ok(())
     }
 }
 
@@ -240,5 +285,62 @@ mod tests {
         let mut c = SearchConfig::default();
         c.baseline_s = c.max_width_s;
         assert!(c.validate().is_err());
+    }
+
+    // Every problem of a configuration file comes back on one line naming the file:
+    // where a TOML error is (without the excerpt the parser draws over several
+    // lines), and which value is out of the range its quantity can take.
+    #[test]
+    fn file_errors_name_the_file_and_the_place_on_one_line() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("bad.toml");
+        let cases = [
+            (
+                "snr_threshold = 8.0\nbogus = 1\n",
+                "line 2, column 1: unknown field `bogus`",
+            ),
+            (
+                "snr_threshold = \"high\"\n",
+                "line 1, column 17: invalid type",
+            ),
+            ("[triage\n", "line 1, column 8"),
+            (
+                "[triage]\nmin_band_fraction = 5.0\n",
+                "min_band_fraction must be in [0, 1]",
+            ),
+            (
+                "[triage]\nmax_dm0_excess = nan\n",
+                "max_dm0_excess must be in [0, 1], got NaN",
+            ),
+            (
+                "[triage]\nmax_dm_curve_misfit = 0.0\n",
+                "max_dm_curve_misfit must be > 0",
+            ),
+            (
+                "[cluster]\ntime_link_s = -1.0\n",
+                "time_link_s must be >= 0",
+            ),
+            (
+                "[clean]\nkurtosis_flag_fraction = 2.0\n",
+                "kurtosis_flag_fraction must be in (0, 1]",
+            ),
+            (
+                "[plan]\ndm_min = 500.0\ndm_max = 100.0\n",
+                "DM range 500..100",
+            ),
+        ];
+        for (text, needle) in cases {
+            std::fs::write(&path, text).unwrap();
+            let e = SearchConfig::from_toml_file(&path).unwrap_err().to_string();
+            assert!(e.starts_with(&format!("{}: ", path.display())), "{e}");
+            assert!(e.contains(needle) && !e.contains('\n'), "{text:?}: {e}");
+        }
+        // The limits themselves are allowed: an infinite misfit turns the test off.
+        std::fs::write(
+            &path,
+            "[triage]\nmax_dm_curve_misfit = inf\nmin_band_fraction = 0.0\n",
+        )
+        .unwrap();
+        assert!(SearchConfig::from_toml_file(&path).is_ok());
     }
 }
