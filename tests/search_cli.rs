@@ -66,10 +66,13 @@ fn finds_the_burst_in_both_containers_and_writes_csv_and_json() {
     )
     .unwrap();
     let out = dir.path().join("out");
+    // The native file named twice: searched and listed once.
+    let again = dir.path().join(".").join("a.json");
     let o = burstbook(&[
         "search",
         native.to_str().unwrap(),
         fits.to_str().unwrap(),
+        again.to_str().unwrap(),
         "--out",
         out.to_str().unwrap(),
         "--config",
@@ -87,6 +90,11 @@ fn finds_the_burst_in_both_containers_and_writes_csv_and_json() {
         String::from_utf8_lossy(&o.stderr)
     );
     assert!(stdout.contains("astrophysical"), "{stdout}");
+    let stderr = String::from_utf8_lossy(&o.stderr);
+    assert!(
+        stderr.contains(&format!("{}: listed more than once", again.display())),
+        "{stderr}"
+    );
     // Each file's throughput, as data seconds per wall-clock second.
     for file in [&native, &fits] {
         let line = stdout

@@ -127,7 +127,7 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     let mut files = Vec::new();
     // Recordings of one shape reuse one set of buffers.
     let mut workspace = search::Workspace::default();
-    for path in &args.files {
+    for path in distinct_files(&args.files) {
         let started_utc = burstbook::catalogue::now_utc();
         let source = burstbook::obs::open(path)?;
         let label = path.display().to_string();
@@ -159,6 +159,12 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         let result = search::search_source_in(&mut workspace, source, &label, &config, Some(&bar))?;
         bar.finish_and_clear();
         let wall_s = clock.elapsed().as_secs_f64();
+        if result.fraction_masked >= 1.0 {
+            note!(
+                "{label}: every channel was masked throughout (flagged, --mask-mhz or zero \
+                 weights): nothing in it was searched"
+            );
+        }
         if let (Some(cat), Some(obs)) = (catalogue.as_mut(), &record) {
             // One transaction per file: a killed search keeps every file finished so far.
             let outcome = cat.record_file_result(obs, &result, &config, started_utc)?;
@@ -201,6 +207,24 @@ pub fn run(args: Args) -> anyhow::Result<()> {
 
 /// Prints per-file totals and the `top` brightest candidates; `dm_max` is the highest
 /// DM asked for, which a short recording may not reach.
+/// `paths` without the repeats of a file named twice (by the same or another path
+/// to it), which would list its candidates twice; each repeat gets a note.
+fn distinct_files(paths: &[PathBuf]) -> Vec<&PathBuf> {
+    let mut seen = std::collections::HashSet::new();
+    paths
+        .iter()
+        .filter(|path| {
+            // A path that cannot be resolved is kept: opening it reports the problem.
+            let key = std::fs::canonicalize(path).unwrap_or_else(|_| path.to_path_buf());
+            let first = seen.insert(key);
+            if !first {
+                note!("{}: listed more than once; searched once", path.display());
+            }
+            first
+        })
+        .collect()
+}
+
 fn print_summary(files: &[FileOutcome], top: usize, dm_max: f64) -> std::io::Result<()> {
     use burstbook::Verdict;
     let searched = files.iter().filter_map(|f| match f {
