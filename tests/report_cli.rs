@@ -8,7 +8,7 @@ use std::process::Command;
 
 mod report_common;
 
-use report_common::{DM, TSAMP_S, header, write_observation};
+use report_common::{DM, N_TIME, TSAMP_S, header, mjd_at, write_observation};
 
 #[test]
 fn report_from_search_csv_is_self_contained_and_shows_the_burst() {
@@ -20,9 +20,11 @@ fn report_from_search_csv_is_self_contained_and_shows_the_burst() {
     let csv = format!(
         "file,t_inf_s,mjd_inf,dm,dm_lo,dm_hi,width_ms,snr,cluster_size,verdict,reasons,\
          snr_dm0_ratio,dm_curve_misfit,band_fraction,modulation_index,fluence_jy_ms\n\
-         {o},{t_inf},60100.05,{DM},248,252,3,25.0,9,astrophysical,peaks away from DM 0,0.1,0.05,0.9,0.3,\n\
-         {o},6.2,60100.06,12,0,30,16,7.5,40,rfi,bright at DM 0 <&>,0.95,0.6,0.2,2.5,\n",
-        o = obs.display()
+         {o},{t_inf},{m1},{DM},248,252,3,25.0,9,astrophysical,peaks away from DM 0,0.1,0.05,0.9,0.3,\n\
+         {o},6.2,{m2},12,0,30,16,7.5,40,rfi,bright at DM 0 <&>,0.95,0.6,0.2,2.5,\n",
+        o = obs.display(),
+        m1 = mjd_at(t_inf),
+        m2 = mjd_at(6.2),
     );
     std::fs::write(search.join("candidates.csv"), csv).unwrap();
     let out = dir.path().join("report");
@@ -102,6 +104,43 @@ fn missing_observation_is_one_clear_error() {
     assert_eq!(err.lines().count(), 1, "{err}");
 }
 
+// A single `--obs` file also serves candidates whose recorded path does not resolve,
+// but only if it can be their recording: one that starts elsewhere, or ends before
+// a candidate arrives, is refused in one line naming it, and no report is written.
+#[test]
+fn a_file_that_cannot_hold_the_candidates_is_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    let obs = dir.path().join("night3.json");
+    write_observation(&obs);
+    let duration = N_TIME as f64 * TSAMP_S;
+    for (t, mjd, needle) in [
+        (
+            2.0,
+            mjd_at(2.0) + 1.0,
+            "found in a recording starting at MJD",
+        ),
+        (duration + 1.0, mjd_at(duration + 1.0), "arrives at t = 9"),
+    ] {
+        let csv = format!(
+            "file,t_inf_s,mjd_inf,dm,dm_lo,dm_hi,width_ms,snr,cluster_size,verdict,reasons,\
+             snr_dm0_ratio,dm_curve_misfit,band_fraction,modulation_index,fluence_jy_ms\n\
+             elsewhere/other.json,{t},{mjd},{DM},248,252,3,25.0,9,astrophysical,,0.1,0.05,0.9,0.3,\n"
+        );
+        std::fs::write(dir.path().join("candidates.csv"), csv).unwrap();
+        let out = dir.path().join("r");
+        let run = Command::new(env!("CARGO_BIN_EXE_burstbook"))
+            .args(["report", dir.path().to_str().unwrap(), "--obs"])
+            .arg(&obs)
+            .arg("--out")
+            .arg(&out)
+            .output()
+            .unwrap();
+        let name = obs.display().to_string();
+        cli_common::assert_one_line_failure(&run, &[&name, needle, "give its own file"]);
+        assert!(!out.join("index.html").exists());
+    }
+}
+
 #[test]
 fn source_report_from_the_catalogue_has_timeline_and_figures() {
     use burstbook::catalogue::{Catalogue, ObservationRecord, synthetic};
@@ -111,8 +150,9 @@ fn source_report_from_the_catalogue_has_timeline_and_figures() {
     let csv = format!(
         "file,t_inf_s,mjd_inf,dm,dm_lo,dm_hi,width_ms,snr,cluster_size,verdict,reasons,\
          snr_dm0_ratio,dm_curve_misfit,band_fraction,modulation_index,fluence_jy_ms\n\
-         {o},{t_inf},60100.05,{DM},248,252,3,25.0,9,astrophysical,,0.1,0.05,0.9,0.3,\n",
-        o = obs.display()
+         {o},{t_inf},{m},{DM},248,252,3,25.0,9,astrophysical,,0.1,0.05,0.9,0.3,\n",
+        o = obs.display(),
+        m = mjd_at(t_inf),
     );
     std::fs::write(dir.path().join("candidates.csv"), csv).unwrap();
     let cands =

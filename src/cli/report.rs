@@ -90,8 +90,7 @@ fn from_search(candidates: &Path, obs: &[PathBuf]) -> anyhow::Result<Vec<ObsSect
     }
     groups
         .into_iter()
-        .map(|(path, cs)| {
-            ObsSection::new(&path, cs).with_context(|| format!("opening {}", path.display()))
-        })
+        // The library's errors name the file already.
+        .map(|(path, cs)| Ok(ObsSection::new(&path, cs)?))
         .collect()
 }

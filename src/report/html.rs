@@ -8,8 +8,9 @@ use super::candidate_plot::{Detection, candidate_figure_from_file};
 use super::figure::CaptionedFigure;
 use super::overview::{bandpass, overview_figure};
 use crate::candidate::Candidate;
-use crate::error::Result;
+use crate::error::{Error, Result};
 use crate::obs::Header;
+use crate::units::SECONDS_PER_DAY;
 
 /// One observation and its candidates.
 #[derive(Debug, Clone)]
@@ -21,12 +22,43 @@ pub struct ObsSection {
 }
 
 impl ObsSection {
-    /// Opens `obs_path` for its header.
+    /// Opens `obs_path` for its header, and checks that it can be the recording the
+    /// candidates were found in: each candidate's `mjd_inf` less its `t_inf_s` is the
+    /// start of its recording, which must be this file's start (to [`SAME_START_S`]),
+    /// and no candidate arrives after the file ends.
     ///
     /// # Errors
-    /// The file cannot be opened.
+    /// The file cannot be opened, starts elsewhere or ends too soon
+    /// ([`Error::BadInput`] naming it).
     pub fn new(obs_path: &Path, candidates: Vec<Candidate>) -> Result<Self> {
         let header = crate::obs::open(obs_path)?.header().clone();
+        let start_mjd = header.start.to_mjd_f64();
+        if let Some(c) = candidates.iter().find(|c| {
+            let found_in = c.mjd_inf - c.t_inf_s / SECONDS_PER_DAY;
+            !((found_in - start_mjd).abs() * SECONDS_PER_DAY <= SAME_START_S)
+        }) {
+            return Err(Error::bad_input(
+                obs_path,
+                format!(
+                    "starts at MJD {start_mjd:.6}, but the candidate of {} at t = {} s was \
+                     found in a recording starting at MJD {:.6}; give its own file",
+                    c.file,
+                    c.t_inf_s,
+                    c.mjd_inf - c.t_inf_s / SECONDS_PER_DAY
+                ),
+            ));
+        }
+        if let Some(c) = candidates.iter().find(|c| c.t_inf_s > header.duration_s()) {
+            return Err(Error::bad_input(
+                obs_path,
+                format!(
+                    "lasts {:.3} s, but the candidate of {} arrives at t = {} s; give its own file",
+                    header.duration_s(),
+                    c.file,
+                    c.t_inf_s
+                ),
+            ));
+        }
         Ok(ObsSection {
             obs_path: obs_path.to_path_buf(),
             header,
@@ -34,6 +66,11 @@ impl ObsSection {
         })
     }
 }
+
+/// How far apart (seconds) two recordings' starts may be and still be taken for one
+/// recording: far above the rounding of `mjd_inf` (written to full f64 precision,
+/// ~1 µs at today's MJDs), far below the gap between two separate recordings.
+pub const SAME_START_S: f64 = 0.01;
 
 /// Report settings.
 #[derive(Debug, Clone)]

@@ -49,6 +49,12 @@ pub fn header() -> Header {
 
 /// Writes a native observation with one bright dispersed burst; returns the
 /// candidate's t_inf_s.
+/// MJD of `t_s` seconds after the start of [`header`]'s recording (a candidate's
+/// `mjd_inf` for its `t_inf_s`).
+pub fn mjd_at(t_s: f64) -> f64 {
+    header().start.plus_seconds(t_s).to_mjd_f64()
+}
+
 pub fn write_observation(path: &Path) -> f64 {
     let h = header();
     let mut rng = ChaCha8Rng::seed_from_u64(5);
