@@ -35,7 +35,8 @@ impl ObsSection {
         let start_mjd = header.start.to_mjd_f64();
         if let Some(c) = candidates.iter().find(|c| {
             let found_in = c.mjd_inf - c.t_inf_s / SECONDS_PER_DAY;
-            !((found_in - start_mjd).abs() * SECONDS_PER_DAY <= SAME_START_S)
+            let apart_s = (found_in - start_mjd).abs() * SECONDS_PER_DAY;
+            apart_s.is_nan() || apart_s > SAME_START_S
         }) {
             return Err(Error::bad_input(
                 obs_path,
