@@ -130,8 +130,8 @@ pub struct Sweep {
 /// Merges into each cluster the fainter clusters that lie on its "bow-tie": a pulse at
 /// DM D and arrival t_inf, dedispersed at a trial DM d, shows up around
 /// t_inf + (D − d)·k⟨ν⁻²⟩ with its width grown by the residual sweep |D − d|·k(ν_lo⁻² −
-/// ν_hi⁻²) (detection notes §9: the time linking scale is the width plus the
-/// mis-dedispersion shift), and no brighter than that smearing allows
+/// ν_hi⁻²) (derived here from the cold-plasma delay, Lorimer & Kramer 2005: the time
+/// linking scale is the width plus the mis-dedispersion shift), and no brighter than that smearing allows
 /// ([`Sweep::on_bow_tie`]). Bright pulses break into such fragments wherever a DM
 /// gap interrupts the friends-of-friends chain. Clusters are taken in decreasing S/N;
 /// output is in time order of the best member.

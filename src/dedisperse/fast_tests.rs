@@ -254,7 +254,7 @@ fn dedisperse_fast(input: &Array2<f32>, plan: &DmPlan) -> Vec<Dedispersed> {
     FastDedisperser::new(plan).dedisperse(input.view())
 }
 
-// Toy case after Zackay & Ofek 2017 (ApJ 835, 11), as set up in the detection notes:
+// Toy case after Zackay & Ofek 2017 (ApJ 835, 11), set up here:
 // 64 channels over 1200–1600 MHz, 256 delays, 2048 samples. A burst along the curve
 // with a total delay of 200 samples arriving at sample 500 (unit-fluence Gaussian of
 // 0.3 samples FWHM, smeared across each channel's own sweep) must peak within one

@@ -4,8 +4,8 @@
 //! S/N(t, w) = (Σ_{i=t}^{t+w−1} xᵢ − m_w) / σ_w, where m_w and σ_w are the mean and
 //! standard deviation of the boxcar sums of width w after discarding those beyond 4σ
 //! of the mean (one pass started from the next narrower width's result, see
-//! [`noise_chain`]), and corrected for the clipping (detection notes §4;
-//! Keane & Petroff 2015, MNRAS 447, 2852, on why the normalisation must be
+//! [`noise_chain`]), and corrected for the clipping (by the variance of a normal
+//! distribution truncated at ±4σ, derived here; Keane & Petroff 2015, MNRAS 447, 2852, on why the normalisation must be
 //! measured). They are measured on at most [`NOISE_SUMS`] sums at evenly spaced
 //! starts, at most w/4 apart: σ_w to about 1/√(2·min(4096, n/w)), 1.1 % for the
 //! narrow boxcars. For wide ones, sums w/4 apart overlap by 3/4, and the variance of
@@ -486,7 +486,7 @@ mod tests {
 
     // The best boxcar is 1.189 FWHM with efficiency 0.94345; over all pulse widths the
     // best rung of a √2 ladder keeps at least 0.9333 and a ladder of 2 keeps 0.9043
-    // (recomputed from the formula above; detection notes §4).
+    // (derived here from the formula above).
     #[test]
     fn sqrt2_ladder_worst_case_loss_for_gaussians() {
         let (best_b, optimum) = (1..=20000)

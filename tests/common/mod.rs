@@ -1,5 +1,6 @@
 //! Test data for the search tests: Gamma-distributed power noise (mean 1, N·d = 50,
-//! as detected channelised data; detection notes §6) with bursts from the simulator.
+//! as detected channelised data: σ/μ = 1/√(n_p·Δν·t_s) by the radiometer equation,
+//! Lorimer & Kramer 2005) with bursts from the simulator.
 #![allow(dead_code)]
 
 use burstbook::obs::{Block, Header, MemorySource, SampleSource, Site, UtcEpoch};

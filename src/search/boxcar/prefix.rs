@@ -218,6 +218,7 @@ mod tests {
     #[test]
     fn avx2_block_sums_agree_with_the_plain_ones() {
         if !crate::isa::Isa::cpu_has(crate::isa::IsaLevel::Avx2) {
+            eprintln!("SKIPPED avx2_block_sums_agree_with_the_plain_ones: this CPU has no AVX2");
             return;
         }
         let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(23);
