@@ -352,13 +352,25 @@ mod tests {
         }
     }
 
+    // Each cluster, as (size, best member, DM range), against the components of the
+    // brute-force pairing, with trial strides of 1–8 so the strided links are tested.
     #[test]
     fn matches_brute_force_pairs_on_random_detections() {
         let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(31);
+        let summary = |c: &Cluster| {
+            (
+                c.size,
+                c.best.start_sample,
+                c.best.dm_index,
+                c.dm_lo,
+                c.dm_hi,
+            )
+        };
         for n in [0usize, 1, 2, 37, 200] {
             let d: Vec<Detection> = (0..n)
-                .map(|_| {
-                    det(
+                .map(|_| Detection {
+                    dm_stride: 1 << rng.random_range(0..4),
+                    ..det(
                         rng.random_range(0..2000),
                         1 << rng.random_range(0..5),
                         rng.random_range(0..40),
@@ -367,20 +379,34 @@ mod tests {
                 })
                 .collect();
             let labels = reference_labels(&d, 2, 3);
-            let mut sizes: Vec<usize> = {
-                let mut m = std::collections::HashMap::new();
-                for l in &labels {
-                    *m.entry(*l).or_insert(0usize) += 1;
-                }
-                m.into_values().collect()
-            };
-            sizes.sort_unstable();
-            let mut got: Vec<usize> = friends_of_friends(&d, 2, 3)
-                .iter()
-                .map(|c| c.size)
+            let mut expected: Vec<_> = (0..n)
+                .filter(|&i| labels[i] == i)
+                .map(|root| {
+                    let members: Vec<&Detection> = (0..n)
+                        .filter(|&j| labels[j] == root)
+                        .map(|j| &d[j])
+                        .collect();
+                    let best = **members
+                        .iter()
+                        .max_by(|a, b| a.snr.total_cmp(&b.snr))
+                        .unwrap();
+                    let dm =
+                        |f: fn(f64, f64) -> f64, from| members.iter().map(|m| m.dm).fold(from, f);
+                    summary(&Cluster {
+                        best,
+                        dm_lo: dm(f64::min, f64::INFINITY),
+                        dm_hi: dm(f64::max, f64::NEG_INFINITY),
+                        size: members.len(),
+                    })
+                })
                 .collect();
-            got.sort_unstable();
-            assert_eq!(got, sizes, "n={n}");
+            let mut got: Vec<_> = friends_of_friends(&d, 2, 3).iter().map(summary).collect();
+            let order = |a: &(usize, u64, usize, f64, f64), b: &(usize, u64, usize, f64, f64)| {
+                a.partial_cmp(b).unwrap()
+            };
+            expected.sort_by(order);
+            got.sort_by(order);
+            assert_eq!(got, expected, "n={n}");
         }
     }
 }
