@@ -401,12 +401,18 @@ mod tests {
         assert!(periodogram_figure(&bad).is_err());
     }
 
+    // Over 0.1–7.9 s (a factor 79) the axis is logarithmic: the ring of a peak at
+    // 1 s sits at 0.53 of the panel's width, not at 0.12 as on a linear axis.
     #[test]
     fn log_axis_is_used_for_wide_period_ranges() {
-        let periods: Vec<f64> = (0..200)
-            .map(|i| 10f64.powf(-1.0 + i as f64 * 0.02))
+        let (lo, hi) = (0.1f64, 7.9f64);
+        let periods: Vec<f64> = (0..400)
+            .map(|i| lo * (hi / lo).powf(i as f64 / 399.0))
             .collect();
-        let stat: Vec<f64> = periods.iter().map(|p| p.ln().sin() + 2.0).collect();
+        let stat: Vec<f64> = periods
+            .iter()
+            .map(|&p| 2.0 + 30.0 * (-(p.ln() / 0.01).powi(2)).exp())
+            .collect();
         let p = Periodogram {
             periods: &periods,
             statistic: &stat,
@@ -415,7 +421,18 @@ mod tests {
             fap_levels: &[],
         };
         let fig = periodogram_figure(&p).unwrap();
-        assert!(fig.panels.contains_key("periodogram"));
+        let r = fig.panels["periodogram"];
+        let blue = |px: [u8; 3]| px[2] > 150 && px[0] < 80;
+        let log_x = x_of(r, 1f64.ln(), lo.ln(), hi.ln());
+        let linear_x = x_of(r, 1.0, lo, hi);
+        assert!(
+            (log_x - 8..=log_x + 8).any(|x| column_has(&fig, x, r, blue)),
+            "peak ring at the logarithmic position"
+        );
+        assert!(
+            !(linear_x - 8..=linear_x + 8).any(|x| column_has(&fig, x, r, blue)),
+            "nothing at the linear position"
+        );
     }
 
     #[test]
