@@ -5,21 +5,52 @@
 /// (common practice; e.g. Rousseeuw & Croux 1993, JASA 88, 1273).
 pub const MAD_TO_SIGMA: f64 = 1.482_602_218_505_602;
 
-/// Median of `values`, reordering them; NaN for an empty slice.
-pub fn median_in_place(values: &mut [f32]) -> f32 {
+/// Median of `values` (`f32` or `f64`), reordering them; NaN for an empty slice.
+pub fn median_in_place<T: Real>(values: &mut [T]) -> T {
     if values.is_empty() {
-        return f32::NAN;
+        return T::NAN;
     }
     let (n, mid) = (values.len(), values.len() / 2);
-    let (below, m, _) = values.select_nth_unstable_by(mid, f32::total_cmp);
+    let (below, m, _) = values.select_nth_unstable_by(mid, T::total_cmp);
     let upper = *m;
     if n % 2 == 1 {
         upper
     } else {
-        let lower = below.iter().copied().fold(f32::NEG_INFINITY, f32::max);
-        0.5 * (lower + upper)
+        let lower = below.iter().copied().fold(T::NEG_INFINITY, T::max);
+        T::HALF * (lower + upper)
     }
 }
+
+/// The floating-point types [`median_in_place`] works on: `f32` and `f64`.
+pub trait Real: Copy + std::ops::Add<Output = Self> + std::ops::Mul<Output = Self> {
+    /// Not a number.
+    const NAN: Self;
+    /// −∞.
+    const NEG_INFINITY: Self;
+    /// 0.5.
+    const HALF: Self;
+    /// The type's `total_cmp`.
+    fn total_cmp(&self, other: &Self) -> std::cmp::Ordering;
+    /// The type's `max` (the other value when one is NaN).
+    fn max(self, other: Self) -> Self;
+}
+
+macro_rules! impl_real {
+    ($($t:ty),*) => {$(
+        impl Real for $t {
+            const NAN: Self = <$t>::NAN;
+            const NEG_INFINITY: Self = <$t>::NEG_INFINITY;
+            const HALF: Self = 0.5;
+            fn total_cmp(&self, other: &Self) -> std::cmp::Ordering {
+                <$t>::total_cmp(self, other)
+            }
+            fn max(self, other: Self) -> Self {
+                <$t>::max(self, other)
+            }
+        }
+    )*};
+}
+impl_real!(f32, f64);
 
 /// Median and robust σ (1.4826 × MAD) of every `stride`-th value of `values`.
 ///
@@ -367,9 +398,37 @@ mod tests {
 
     #[test]
     fn median_of_odd_and_even_lengths() {
-        assert_eq!(median_in_place(&mut [3.0, 1.0, 2.0]), 2.0);
-        assert_eq!(median_in_place(&mut [4.0, 1.0, 3.0, 2.0]), 2.5);
-        assert!(median_in_place(&mut []).is_nan());
+        assert_eq!(median_in_place(&mut [3.0f32, 1.0, 2.0]), 2.0);
+        assert_eq!(median_in_place(&mut [4.0f32, 1.0, 3.0, 2.0]), 2.5);
+        assert!(median_in_place::<f32>(&mut []).is_nan());
+        assert_eq!(median_in_place(&mut [3.0f64, 1.0, 2.0]), 2.0);
+        assert_eq!(median_in_place(&mut [4.0f64, 1.0, 3.0, 2.0]), 2.5);
+        assert!(median_in_place::<f64>(&mut []).is_nan());
+    }
+
+    // Against sorting a copy, on seeded random sets of every length up to 40 with
+    // repeated values, for both types.
+    #[test]
+    fn median_matches_the_sorted_middle() {
+        use rand::{Rng, SeedableRng};
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(47);
+        for n in 1..=40usize {
+            for _ in 0..20 {
+                let v: Vec<f64> = (0..n)
+                    .map(|_| f64::from(rng.random_range(-9i32..10)))
+                    .collect();
+                let mut sorted = v.clone();
+                sorted.sort_by(f64::total_cmp);
+                let want = if n % 2 == 1 {
+                    sorted[n / 2]
+                } else {
+                    0.5 * (sorted[n / 2 - 1] + sorted[n / 2])
+                };
+                assert_eq!(median_in_place(&mut v.clone()), want, "{v:?}");
+                let mut v32: Vec<f32> = v.iter().map(|&x| x as f32).collect();
+                assert_eq!(f64::from(median_in_place(&mut v32)), want, "{v:?}");
+            }
+        }
     }
 
     #[test]

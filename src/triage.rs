@@ -60,10 +60,11 @@ pub fn modulation_index(spectrum: &[f64], noise_var: f64) -> f64 {
 }
 
 /// Fraction of the band carrying the signal, from sub-band S/Ns (each with unit
-/// noise): ((Σs)² − n) / (n (Σs² − n)), the squared equal-weight efficiency with the
-/// noise bias removed, which is f for a flat signal filling a fraction f of the
-/// sub-bands (detection notes §4). Clamped to [0, 1]; 1 when the signal is too weak to
-/// tell.
+/// noise): ((Σs)² − n) / (n (Σs² − n)), the square of the equal-weight efficiency
+/// η = Σs/√(n Σs²) with the noise bias removed (unit noise adds n to the expectations
+/// of both (Σs)² and Σs²). Derived here: a flat signal of S/N A in a fraction f of the
+/// n sub-bands has Σs = f n A and Σs² = f n A², so η² = f² n² A² / (n f n A²) = f.
+/// Clamped to [0, 1]; 1 when the signal is too weak to tell.
 pub fn band_fraction(subband_snr: &[f64]) -> f64 {
     let n = subband_snr.len() as f64;
     let sum: f64 = subband_snr.iter().sum();
@@ -141,8 +142,11 @@ pub fn verdict(
 mod tests {
     use super::*;
 
-    // Cordes & McLaughlin 2003 (ApJ 596, 1142) curve at Δν = 400 MHz, ν = 1.4 GHz,
-    // W = 1 ms; values recomputed from the formula (detection notes §3).
+    // The curve at Δν = 400 MHz, ν = 1.4 GHz, W = 1 ms: values recomputed from the
+    // formula of Cordes & McLaughlin 2003 (ApJ 596, 1142), ζ = 6.91e-3 δDM Δν/(W ν³)
+    // and (√π/2) erf(ζ)/ζ, with an independent erf. The ratio halves at ζ = 1.74871,
+    // i.e. at δDM = 1.73606 here (the half-power DM error the trial count and the
+    // report use, `cm03_half_zeta() / cm03_zeta(1.0, …)`).
     #[test]
     fn cm03_worked_values() {
         for &(ddm, zeta, ratio) in &[
@@ -153,9 +157,15 @@ mod tests {
         ] {
             let z = cm03_zeta(ddm, 400.0, 1.0, 1.4);
             assert!((z - zeta).abs() < 1e-4, "{z}");
+            assert_eq!(z, cm03_zeta(-ddm, 400.0, 1.0, 1.4), "symmetric in δDM");
             assert!((cm03_peak_ratio(z) - ratio).abs() < 1e-4);
         }
-        assert!((cm03_half_zeta() - 1.7487).abs() < 1e-4);
+        assert_eq!(cm03_peak_ratio(0.0), 1.0);
+        let half = cm03_half_zeta();
+        assert!((half - 1.74871).abs() < 1e-5, "{half}");
+        assert!((cm03_peak_ratio(half) - 0.5).abs() < 1e-12);
+        let half_dm = half / cm03_zeta(1.0, 400.0, 1.0, 1.4);
+        assert!((half_dm - 1.73606).abs() < 1e-5, "{half_dm}");
     }
 
     // All signal in one of N = 1024 channels: m_I = √(N − 1) = 31.984

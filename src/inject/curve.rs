@@ -152,18 +152,9 @@ pub fn bin(edges: &[f64], values: &[f64], found: &[bool], ratio: &[Option<f64>])
         .collect()
 }
 
-/// Median of `v` (reordered), `None` when empty.
+/// Median of `v` (reordered; [`crate::robust::median_in_place`]), `None` when empty.
 pub fn median(v: &mut [f64]) -> Option<f64> {
-    if v.is_empty() {
-        return None;
-    }
-    v.sort_by(f64::total_cmp);
-    let m = v.len() / 2;
-    Some(if v.len() % 2 == 1 {
-        v[m]
-    } else {
-        0.5 * (v[m - 1] + v[m])
-    })
+    (!v.is_empty()).then(|| crate::robust::median_in_place(v))
 }
 
 /// `n` equal bins spanning `[lo, hi]` (log-spaced if `log`), as `n + 1` edges.
@@ -222,6 +213,7 @@ mod tests {
         assert_eq!(b[0].fraction, Some(0.5));
         assert!((b[0].fraction_err.unwrap() - 0.5f64.powi(2).sqrt() / 2f64.sqrt()).abs() < 1e-12);
         assert_eq!(b[1].median_snr_ratio, Some(1.0));
+        assert_eq!(median(&mut []), None);
         let l = edges(1.0, 100.0, 2, true);
         assert!((l[1] - 10.0).abs() < 1e-9);
     }

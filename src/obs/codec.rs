@@ -106,6 +106,79 @@ mod tests {
         assert_eq!(quantise(0.6, 1), 1.0);
     }
 
+    // The exponent test against a plain `is_finite` on seeded random slices of every
+    // length up to 69: finite values of every kind (±0, subnormals, the smallest
+    // normals, ±MAX, random bit patterns) with ±Inf or a NaN (several payloads, quiet
+    // and signalling, either sign) at every position, alone or mixed.
+    #[test]
+    fn all_finite_matches_is_finite() {
+        use rand::{Rng, SeedableRng};
+        use rand_chacha::ChaCha8Rng;
+        let finite_kinds = [
+            0.0,
+            -0.0,
+            f32::from_bits(1),
+            f32::from_bits(0x8000_0001),
+            f32::from_bits(0x007f_ffff),
+            f32::from_bits(0x807f_ffff),
+            f32::MIN_POSITIVE,
+            -f32::MIN_POSITIVE,
+            f32::MAX,
+            f32::MIN,
+        ];
+        let non_finite = [
+            f32::INFINITY,
+            f32::NEG_INFINITY,
+            f32::NAN,
+            -f32::NAN,
+            f32::from_bits(0x7f80_0001),
+            f32::from_bits(0x7fbf_ffff),
+            f32::from_bits(0x7fc0_1234),
+            f32::from_bits(0x7fff_ffff),
+            f32::from_bits(0xff80_0001),
+            f32::from_bits(0xffff_ffff),
+        ];
+        let finite = |rng: &mut ChaCha8Rng| loop {
+            let v = if rng.random_bool(0.25) {
+                finite_kinds[rng.random_range(0..finite_kinds.len())]
+            } else {
+                f32::from_bits(rng.random())
+            };
+            if v.is_finite() {
+                return v;
+            }
+        };
+        let reference = |v: &[f32]| v.iter().all(|x| x.is_finite());
+        let mut rng = ChaCha8Rng::seed_from_u64(67);
+        let mut outcomes = [0usize; 2];
+        for len in 0..70usize {
+            let clean: Vec<f32> = (0..len).map(|_| finite(&mut rng)).collect();
+            assert!(all_finite(&clean), "{clean:?}");
+            for pos in 0..len {
+                for &bad in &non_finite {
+                    let mut v: Vec<f32> = (0..len).map(|_| finite(&mut rng)).collect();
+                    v[pos] = bad;
+                    assert!(!all_finite(&v), "{bad} at {pos} of {len}");
+                }
+            }
+            for _ in 0..50 {
+                let v: Vec<f32> = (0..len)
+                    .map(|_| {
+                        if rng.random_range(0..len.max(1)) == 0 {
+                            non_finite[rng.random_range(0..non_finite.len())]
+                        } else {
+                            finite(&mut rng)
+                        }
+                    })
+                    .collect();
+                let want = reference(&v);
+                assert_eq!(all_finite(&v), want, "{v:?}");
+                outcomes[usize::from(want)] += 1;
+            }
+        }
+        assert!(outcomes.iter().all(|&n| n > 500), "{outcomes:?}");
+    }
+
     #[test]
     fn finite_check_names_sample_and_channel() {
         let p = Path::new("x.npy");

@@ -21,24 +21,26 @@ fn prime_vertical_radius_m(lat: f64) -> f64 {
     WGS84_A_M / (1.0 - e2() * lat.sin().powi(2)).sqrt()
 }
 
-/// Earth-fixed `[x, y, z]` in metres of a geodetic position (the standard closed
-/// form, Torge & Müller 2012, *Geodesy*, 4th ed., §4.2.1, section from memory;
-/// checked against astropy in `tests/formats_fixtures.rs`).
+/// Earth-fixed `[x, y, z]` in metres of a geodetic position on the WGS84 ellipsoid:
+/// the standard closed form as ERFA's `gd2gc` computes it (checked against astropy in
+/// `tests/formats_fixtures.rs`). Non-finite input gives non-finite output.
 pub fn geodetic_to_itrf_m(lon_deg: f64, lat_deg: f64, height_m: f64) -> [f64; 3] {
-    let (lon, lat) = (lon_deg.to_radians(), lat_deg.to_radians());
-    let n = prime_vertical_radius_m(lat);
-    [
-        (n + height_m) * lat.cos() * lon.cos(),
-        (n + height_m) * lat.cos() * lon.sin(),
-        (n * (1.0 - e2()) + height_m) * lat.sin(),
-    ]
+    erfa::transform::geodetic_to_geocentric(
+        erfa::Ellipsoid::WGS84,
+        lon_deg.to_radians(),
+        lat_deg.to_radians(),
+        height_m,
+    )
+    // ERFA refuses only cos²φ + (1 − f)² sin²φ ≤ 0, which the WGS84 flattening never
+    // gives (the sum is at least (1 − f)²; a NaN sum is passed through as NaN).
+    .unwrap_or([f64::NAN; 3])
 }
 
 /// Geodetic `(lon_deg, lat_deg, height_m)` of an Earth-fixed position in metres.
 ///
 /// Fixed-point iteration on tan φ = (z + e²N sin φ)/p, with the height from
 /// h = p cos φ + z sin φ − a²/N, which stays well conditioned at the poles
-/// (same source). Converges to < 1e-12 rad in a few steps for
+/// (Torge & Müller 2012, *Geodesy*, 4th ed., §4.2.1, section from memory). Converges to < 1e-12 rad in a few steps for
 /// points near the Earth's surface.
 pub fn itrf_to_geodetic(xyz_m: [f64; 3]) -> (f64, f64, f64) {
     let [x, y, z] = xyz_m;
@@ -134,6 +136,19 @@ mod tests {
             assert!((lat2 - lat).abs() < 1e-11, "{lat} {lat2}");
             assert!((h2 - h).abs() < 1e-6, "{h} {h2}");
         }
+        // On the equator x = a; at a pole z = b + h with b = a(1 − f) (derived here).
+        assert_eq!(geodetic_to_itrf_m(0.0, 0.0, 0.0), [WGS84_A_M, 0.0, 0.0]);
+        let pole = geodetic_to_itrf_m(30.0, -90.0, 12.0);
+        assert!(
+            (pole[2] + WGS84_A_M * (1.0 - WGS84_F) + 12.0).abs() < 1e-6,
+            "{pole:?}"
+        );
+        assert!(pole[0].abs() < 1e-6 && pole[1].abs() < 1e-6, "{pole:?}");
+        assert!(
+            geodetic_to_itrf_m(0.0, f64::NAN, 0.0)
+                .iter()
+                .all(|v| v.is_nan())
+        );
     }
 
     #[test]

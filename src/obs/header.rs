@@ -260,9 +260,9 @@ impl Header {
 pub(crate) mod tests {
     use super::*;
 
-    /// A small valid header for tests: `n_chan` channels descending from 1600 MHz.
+    /// A small valid header for tests: `n_chan` channels descending over 1600–1200 MHz
+    /// ([`band`]), 64 µs samples.
     pub(crate) fn test_header(n_chan: usize, n_samples: u64) -> Header {
-        let bw = 400.0 / n_chan as f64;
         Header {
             source: "TEST".into(),
             telescope: "Test Dish".into(),
@@ -276,16 +276,22 @@ pub(crate) mod tests {
             },
             start: UtcEpoch::new(60000, 0.0),
             tsamp_s: 64e-6,
-            freqs_mhz: (0..n_chan)
-                .map(|i| 1600.0 - bw * (i as f64 + 0.5))
-                .collect(),
-            chan_bw_mhz: bw,
+            freqs_mhz: band(n_chan),
+            chan_bw_mhz: 400.0 / n_chan as f64,
             weights: vec![1.0; n_chan],
             n_samples,
             nbits: 32,
             sefd_jy: None,
             beam: None,
         }
+    }
+
+    /// Centres of `n_chan` equal channels descending over 1600–1200 MHz.
+    pub(crate) fn band(n_chan: usize) -> Vec<f64> {
+        let bw = 400.0 / n_chan as f64;
+        (0..n_chan)
+            .map(|i| 1600.0 - bw * (i as f64 + 0.5))
+            .collect()
     }
 
     #[test]

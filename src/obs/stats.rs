@@ -7,6 +7,7 @@ use serde::Serialize;
 use super::codec::all_finite;
 use super::{BlockReader, Header, SampleSource};
 use crate::error::Result;
+use crate::robust::{MAD_TO_SIGMA, median_in_place};
 
 /// Samples per channel kept (evenly spaced in time) for the robust statistics.
 pub const ROBUST_SUBSAMPLE: usize = 2048;
@@ -16,9 +17,6 @@ pub const OUTLIER_SIGMA: f64 = 5.0;
 /// Fewer unmasked channels than this give no meaningful band median/MAD, so the
 /// outlier test is skipped (common practice).
 pub const MIN_CHANNELS_FOR_OUTLIERS: usize = 8;
-/// MAD → standard deviation for Gaussian data: 1/Φ⁻¹(3/4) = 1.4826 (Rousseeuw & Croux
-/// 1993, JASA 88, 1273).
-const MAD_TO_SIGMA: f64 = 1.482_602_218_505_602;
 
 /// Statistics of all samples together.
 #[derive(Debug, Clone, PartialEq, Serialize)]
@@ -246,25 +244,12 @@ fn moments(n: u64, sum: f64, sum_sq: f64) -> (f64, f64) {
     (mean, (sum_sq / n as f64 - mean * mean).max(0.0))
 }
 
-fn median(values: &mut [f64]) -> f64 {
-    if values.is_empty() {
-        return f64::NAN;
-    }
-    values.sort_by(f64::total_cmp);
-    let m = values.len() / 2;
-    if values.len() % 2 == 1 {
-        values[m]
-    } else {
-        0.5 * (values[m - 1] + values[m])
-    }
-}
-
 /// Median and 1.4826 × MAD.
 fn median_and_robust_std(values: &mut [f32]) -> (f64, f64) {
     let mut v: Vec<f64> = values.iter().map(|&x| x as f64).collect();
-    let med = median(&mut v);
+    let med = median_in_place(&mut v);
     let mut dev: Vec<f64> = v.iter().map(|x| (x - med).abs()).collect();
-    (med, MAD_TO_SIGMA * median(&mut dev))
+    (med, MAD_TO_SIGMA * median_in_place(&mut dev))
 }
 
 /// Channels masked in the file, with non-finite samples, constant, or whose mean or
@@ -279,9 +264,9 @@ fn find_bad_channels(channels: &[ChannelStats]) -> Vec<BadChannel> {
             .filter(|x| x.is_finite())
             .collect();
         let (med, sigma) = {
-            let med = median(&mut v);
+            let med = median_in_place(&mut v);
             let mut dev: Vec<f64> = v.iter().map(|x| (x - med).abs()).collect();
-            (med, MAD_TO_SIGMA * median(&mut dev))
+            (med, MAD_TO_SIGMA * median_in_place(&mut dev))
         };
         // A floor so identical channels with one deviant still give a finite scale.
         (med, sigma.max(1e-6 * med.abs().max(1.0)))
@@ -434,12 +419,5 @@ mod tests {
                 assert_eq!((a.median, a.robust_std), (b.median, b.robust_std));
             }
         }
-    }
-
-    #[test]
-    fn median_of_even_and_odd_counts() {
-        assert_eq!(median(&mut [3.0, 1.0, 2.0]), 2.0);
-        assert_eq!(median(&mut [4.0, 1.0, 2.0, 3.0]), 2.5);
-        assert!(median(&mut []).is_nan());
     }
 }

@@ -1,14 +1,9 @@
 //! S/N against trial DM: measured on a re-read stretch, and the curve expected for a
 //! real dispersed pulse (Cordes & McLaughlin 2003, ApJ 596, 1142, eq. 12–13).
 
-use statrs::function::erf::erf;
-
 use super::stretch::{Normalised, robust_location_scale};
 use crate::dedisperse::{DmPlan, reference};
-
-/// ζ at which the Cordes & McLaughlin peak ratio falls to one half (solved numerically
-/// from (√π/2)·erf(ζ)/ζ = 0.5).
-const ZETA_HALF: f64 = 1.7487;
+use crate::triage::{cm03_half_zeta, cm03_peak_ratio, cm03_zeta};
 
 /// Measured S/N at each trial DM.
 #[derive(Debug, Clone, PartialEq)]
@@ -20,21 +15,16 @@ pub struct DmCurve {
 }
 
 /// Peak-S/N ratio of a Gaussian pulse of FWHM `width_ms` dedispersed with a DM error
-/// `delta_dm` (pc cm⁻³) over `bw_mhz` centred on `freq_ghz`:
-/// ζ = 6.91×10⁻³ δDM Δν_MHz / (W_ms ν_GHz³), ratio = (√π/2) erf(ζ)/ζ
-/// (Cordes & McLaughlin 2003, ApJ 596, 1142).
+/// `delta_dm` (pc cm⁻³) over `bw_mhz` centred on `freq_ghz`: the Cordes & McLaughlin
+/// (2003, ApJ 596, 1142) curve of [`crate::triage::cm03_peak_ratio`].
 pub fn expected_ratio(delta_dm: f64, bw_mhz: f64, freq_ghz: f64, width_ms: f64) -> f64 {
-    let zeta = 6.91e-3 * delta_dm.abs() * bw_mhz / (width_ms * freq_ghz.powi(3));
-    if zeta < 1e-9 {
-        1.0
-    } else {
-        std::f64::consts::PI.sqrt() / 2.0 * erf(zeta) / zeta
-    }
+    cm03_peak_ratio(cm03_zeta(delta_dm, bw_mhz, width_ms, freq_ghz))
 }
 
-/// DM error (pc cm⁻³) that halves the expected peak (same formula, ζ = 1.7487).
+/// DM error (pc cm⁻³) that halves the expected peak: ζ is linear in δDM, so it is
+/// [`cm03_half_zeta`] over ζ at δDM = 1.
 pub fn half_power_delta_dm(bw_mhz: f64, freq_ghz: f64, width_ms: f64) -> f64 {
-    ZETA_HALF * width_ms * freq_ghz.powi(3) / (6.91e-3 * bw_mhz)
+    cm03_half_zeta() / cm03_zeta(1.0, bw_mhz, width_ms, freq_ghz)
 }
 
 /// DM range for the curve: `dm ± 4` half-power widths,
@@ -90,24 +80,25 @@ mod tests {
     use crate::report::stretch::normalise;
     use crate::report::waterfall::tests::{Pulse, band, noisy_burst};
 
-    // Check values derived from the Cordes & McLaughlin (2003, ApJ 596, 1142) formula for
-    // Δν = 400 MHz, ν = 1.4 GHz, W = 1 ms (ζ = 0.50364 at δDM = 0.5).
+    // The report's argument order (frequency before width) reaches the triage curve
+    // unswapped: at 1.4 GHz and 3 ms, δDM = 5 gives ζ = 1.68 and a ratio of 0.52; a
+    // swap would compute ζ for 3 GHz and 1.4 ms, 4.6 times smaller, and a ratio of
+    // 0.96. The half-power DM error halves the peak.
     #[test]
-    fn expected_ratio_matches_cordes_mclaughlin() {
-        for (ddm, want) in [
-            (0.5, 0.92151),
-            (1.0, 0.74406),
-            (2.0, 0.43798),
-            (10.0, 0.08798),
-        ] {
-            let got = expected_ratio(ddm, 400.0, 1.4, 1.0);
-            assert!((got - want).abs() < 1e-4, "δDM {ddm}: {got} vs {want}");
-            assert_eq!(got, expected_ratio(-ddm, 400.0, 1.4, 1.0), "symmetric");
+    fn expected_ratio_is_the_triage_curve_in_report_order() {
+        let (bw, freq_ghz, width_ms) = (400.0, 1.4, 3.0);
+        for ddm in [-7.0, 0.0, 0.5, 5.0, 40.0] {
+            let want = cm03_peak_ratio(cm03_zeta(ddm, bw, width_ms, freq_ghz));
+            assert_eq!(
+                expected_ratio(ddm, bw, freq_ghz, width_ms),
+                want,
+                "δDM {ddm}"
+            );
         }
-        assert_eq!(expected_ratio(0.0, 400.0, 1.4, 1.0), 1.0);
-        let half = half_power_delta_dm(400.0, 1.4, 1.0);
-        assert!((half - 1.736).abs() < 1e-3, "{half}");
-        assert!((expected_ratio(half, 400.0, 1.4, 1.0) - 0.5).abs() < 1e-4);
+        let half = half_power_delta_dm(bw, freq_ghz, width_ms);
+        assert!((expected_ratio(half, bw, freq_ghz, width_ms) - 0.5).abs() < 1e-12);
+        assert!((expected_ratio(-half, bw, freq_ghz, width_ms) - 0.5).abs() < 1e-12);
+        assert!(expected_ratio(5.0, bw, freq_ghz, width_ms) < 0.9);
     }
 
     #[test]

@@ -52,7 +52,9 @@ pub fn bandpass_gains(header: &Header, spec: &BandpassSpec) -> Result<Vec<f64>> 
 }
 
 /// Converts a value to what an `nbits` file stores: 8-bit values are rounded and
-/// clipped to the digitiser range 0–255; 32-bit values pass unchanged.
+/// clipped to the digitiser range 0–255; 32-bit values pass unchanged. The rounding
+/// is done in f64, before the conversion to f32, which could otherwise move a value
+/// just below a half onto it and round it up.
 pub fn quantise(value: f64, nbits: u32) -> f32 {
     if nbits == 8 {
         value.round().clamp(0.0, 255.0) as f32
@@ -96,5 +98,12 @@ mod tests {
         assert_eq!(quantise(-3.0, 8), 0.0);
         assert_eq!(quantise(300.0, 8), 255.0);
         assert_eq!(quantise(96.4, 32), 96.4);
+        // 2.4999999999 becomes 2.5 in f32: rounding after the conversion would give 3.
+        assert_eq!(2.499_999_999_9f64 as f32, 2.5);
+        assert_eq!(quantise(2.499_999_999_9, 8), 2.0);
+        assert_eq!(quantise(254.499_999, 8), 254.0);
+        assert_eq!(quantise(f64::INFINITY, 8), 255.0);
+        assert_eq!(quantise(f64::NEG_INFINITY, 8), 0.0);
+        assert!(quantise(f64::NAN, 8).is_nan());
     }
 }

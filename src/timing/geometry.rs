@@ -3,6 +3,7 @@
 
 use crate::error::{Error, Result};
 use crate::obs::Site;
+use crate::obs::geodesy::geodetic_to_itrf_m;
 
 /// Speed of light in km s⁻¹ (SI definition of the metre).
 pub const C_KM_S: f64 = 299_792.458;
@@ -12,7 +13,7 @@ pub const C_KM_S: f64 = 299_792.458;
 pub const SUN_GM_OVER_C3_S: f64 = 1.327_124_4e20 / (299_792_458.0 * 299_792_458.0 * 299_792_458.0);
 
 /// Geocentric terrestrial (ITRS) position of `site` in km from its WGS84 geodetic
-/// coordinates (ERFA `gd2gc`).
+/// coordinates ([`geodetic_to_itrf_m`], ERFA `gd2gc`).
 ///
 /// # Errors
 /// [`Error::Config`] for a latitude outside ±90° or non-finite coordinates.
@@ -26,14 +27,7 @@ pub fn site_itrs_km(site: &Site) -> Result<[f64; 3]> {
             site.lon_deg, site.lat_deg, site.height_m
         )));
     }
-    let xyz_m = erfa::transform::geodetic_to_geocentric(
-        erfa::Ellipsoid::WGS84,
-        site.lon_deg.to_radians(),
-        site.lat_deg.to_radians(),
-        site.height_m,
-    )
-    .map_err(|e| Error::Config(format!("site: {e}")))?;
-    Ok(xyz_m.map(|m| m / 1000.0))
+    Ok(geodetic_to_itrf_m(site.lon_deg, site.lat_deg, site.height_m).map(|m| m / 1000.0))
 }
 
 /// Bias–precession–nutation matrix (GCRS → true equator and equinox of date) at TT
