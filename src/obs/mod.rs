@@ -19,6 +19,8 @@ pub use block::{
     Block, BlockReader, MemorySource, SKIP_CHUNK_VALUES, SampleSink, SampleSource, fill_rows,
 };
 pub(crate) use header::RADIO_WINDOW_MHZ;
+#[cfg(test)]
+pub(crate) use header::tests::{band, test_header};
 pub use header::{Header, Site, UtcEpoch};
 
 use std::path::Path;

@@ -155,39 +155,7 @@ pub(crate) mod tests {
         }
     }
 
-    /// A valid header for tests: `n_chan` channels descending over 1600–1200 MHz.
-    pub(crate) fn test_header(n_chan: usize, n_samples: u64) -> crate::obs::Header {
-        use crate::obs::{Header, Site, UtcEpoch};
-        let site = Site {
-            name: "Test Dish".into(),
-            lon_deg: 10.0,
-            lat_deg: 45.0,
-            height_m: 100.0,
-        };
-        Header {
-            source: "TEST".into(),
-            telescope: site.name.clone(),
-            ra_deg: 10.0,
-            dec_deg: 20.0,
-            site,
-            start: UtcEpoch::new(60000, 0.0),
-            tsamp_s: 64e-6,
-            freqs_mhz: band(n_chan),
-            chan_bw_mhz: 400.0 / n_chan as f64,
-            weights: vec![1.0; n_chan],
-            n_samples,
-            nbits: 32,
-            sefd_jy: None,
-            beam: None,
-        }
-    }
-
-    pub(crate) fn band(n_chan: usize) -> Vec<f64> {
-        let bw = 400.0 / n_chan as f64;
-        (0..n_chan)
-            .map(|i| 1600.0 - bw * (i as f64 + 0.5))
-            .collect()
-    }
+    pub(crate) use crate::obs::{band, test_header};
 
     #[test]
     fn dedispersed_burst_lines_up_in_every_band_at_its_time() {
