@@ -570,8 +570,10 @@ fn arrival_mjd_counts_a_leap_second_inside_the_recording() {
     );
 }
 
-// Where the time went: every stage ran, and the stages add up to no more than the
-// whole search.
+// Where the time went: the stages every block passes through took time, and the
+// stages add up to no more than the whole search (a stage counted twice, or a
+// clock not restarted between blocks, breaks that). How much of the wall time they
+// cover is left to the benchmarks: a timed bound would flake on a shared machine.
 #[test]
 fn stage_times_cover_the_search() {
     let clock = std::time::Instant::now();
@@ -585,7 +587,6 @@ fn stage_times_cover_the_search() {
         t.matched_filter,
         t.triage,
     ];
-    assert!(stages.iter().all(|&s| s >= 0.0), "{t:?}");
     assert!(
         t.cleaning > 0.0 && t.dedispersion > 0.0 && t.matched_filter > 0.0,
         "{t:?}"
