@@ -171,3 +171,42 @@ pub(super) fn measure(b: &BlockData<'_, '_>, d: &Detection) -> Measured {
         dm0_noise_snr: (2.0 * window_trials.ln()).sqrt(),
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    // Runs cover the band once, in order, as evenly as the channel count allows;
+    // each run's S/N is its sum over √(its channels) (unit noise per channel) and its
+    // frequency the mean of its channels.
+    #[test]
+    fn subbands_split_the_band_evenly_with_unit_noise_snrs() {
+        for n_chan in [1usize, 5, 16, 40, 1024] {
+            let unit: Vec<f64> = (0..n_chan).map(|c| (c % 7) as f64 - 2.0).collect();
+            let freqs: Vec<f64> = (0..n_chan).map(|c| 1600.0 - c as f64).collect();
+            let (snr, freq) = subbands(&unit, &freqs);
+            assert_eq!(snr.len(), n_chan.min(N_SUBBANDS));
+            let mut first = 0;
+            for (k, (&s, &f)) in snr.iter().zip(&freq).enumerate() {
+                let end = (k + 1) * n_chan / snr.len();
+                let run = first..end;
+                assert!(
+                    run.len() >= n_chan / N_SUBBANDS && run.len() <= n_chan.div_ceil(N_SUBBANDS)
+                );
+                let n = run.len() as f64;
+                let sum: f64 = unit[run.clone()].iter().sum();
+                assert!(
+                    (s - sum / n.sqrt()).abs() < 1e-12,
+                    "n_chan {n_chan} run {k}"
+                );
+                let mean_f = freqs[run].iter().sum::<f64>() / n;
+                assert!((f - mean_f).abs() < 1e-9);
+                first = end;
+            }
+            assert_eq!(first, n_chan, "every channel in one run");
+        }
+        // A flat signal of S/N 1 per channel over the whole band: every run sums to √n.
+        let (snr, _) = subbands(&[1.0; 64], &[1400.0; 64]);
+        assert!(snr.iter().all(|&s| (s - 2.0).abs() < 1e-12), "{snr:?}");
+    }
+}
