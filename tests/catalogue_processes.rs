@@ -302,6 +302,37 @@ fn reading_a_missing_catalogue_creates_nothing() {
     assert!(db.exists());
 }
 
+/// A table or column of the recorded schema version gone: `check` used to say "ok"
+/// and `source add` to write, while `label` failed with a raw SQL message.
+#[test]
+fn a_catalogue_missing_a_table_or_column_is_refused_untouched() {
+    for (damage, missing) in [
+        ("DROP TABLE review_label", "table review_label"),
+        (
+            "ALTER TABLE search_run DROP COLUMN samples_searched",
+            "column search_run.samples_searched",
+        ),
+    ] {
+        let dir = tempfile::tempdir().unwrap();
+        let db = small_catalogue(dir.path());
+        Connection::open(&db)
+            .unwrap()
+            .execute_batch(damage)
+            .unwrap();
+        let before = snapshot(&db);
+        let needle = format!("is missing {missing} (damaged?)");
+        for args in [
+            &["check"][..],
+            &["candidates"],
+            &["label", "1", "--label", "rfi"],
+            &["source", "add", "NEW", "--ra", "1", "--dec", "2"],
+        ] {
+            assert_one_line_failure(&book(&db, args), &["small.sqlite", &needle]);
+            assert_eq!(snapshot(&db), before, "{args:?} wrote");
+        }
+    }
+}
+
 /// Read-only location. Root ignores file permissions, so when the tests run as
 /// root the binary is run as user `nobody` through util-linux `setpriv`.
 #[test]
