@@ -302,6 +302,40 @@ fn reading_a_missing_catalogue_creates_nothing() {
     assert!(db.exists());
 }
 
+/// A file truncated to nothing (a full disk, a bad copy) is no catalogue to read
+/// from: `check` used to turn it into a new one and say "ok".
+#[test]
+fn reading_an_empty_file_leaves_it_empty() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("empty.sqlite");
+    std::fs::write(&db, b"").unwrap();
+    let needles = ["empty.sqlite", "is an empty file (0 bytes)"];
+    for args in [
+        &["check"][..],
+        &["candidates"],
+        &["history", "1"],
+        &["label", "1", "--label", "rfi"],
+        &["exposure", "export"],
+        &["summary"],
+    ] {
+        assert_one_line_failure(&book(&db, args), &needles);
+        assert_eq!(std::fs::metadata(&db).unwrap().len(), 0, "{args:?} wrote");
+    }
+    let out = Command::new(BIN)
+        .args(["review", "--catalogue"])
+        .arg(&db)
+        .output()
+        .unwrap();
+    assert_one_line_failure(&out, &needles);
+    assert_eq!(std::fs::metadata(&db).unwrap().len(), 0);
+    // Adding a source begins a catalogue, in an empty file as where there is none.
+    assert_success(&book(
+        &db,
+        &["source", "add", "NEW", "--ra", "1", "--dec", "2"],
+    ));
+    assert_success(&book(&db, &["check"]));
+}
+
 /// A table or column of the recorded schema version gone: `check` used to say "ok"
 /// and `source add` to write, while `label` failed with a raw SQL message.
 #[test]

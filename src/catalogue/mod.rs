@@ -107,18 +107,23 @@ impl Catalogue {
     }
 
     /// [`Catalogue::open`] for commands that read or annotate what a search recorded:
-    /// a missing file is an error and nothing is created, so a mistyped path is not
-    /// answered from a new, empty catalogue (nor left behind as one).
+    /// a missing or empty (0-byte) file is an error and nothing is created, so a
+    /// mistyped path or a truncated file is not answered from a new, empty catalogue
+    /// (nor turned into one).
     ///
     /// # Errors
-    /// As [`Catalogue::open`], and [`Error::Catalogue`] when `path` does not exist.
+    /// As [`Catalogue::open`], and [`Error::Catalogue`] when `path` does not exist
+    /// or is an empty file.
     pub fn open_existing(path: &Path, lock_wait: Duration) -> Result<Catalogue> {
-        match std::fs::symlink_metadata(path) {
-            Err(e) if e.kind() == std::io::ErrorKind::NotFound => {
-                Err(catalogue_error(path, MISSING_MSG))
-            }
-            _ => Catalogue::open_with_lock_wait(path, lock_wait),
+        if let Err(e) = std::fs::symlink_metadata(path)
+            && e.kind() == std::io::ErrorKind::NotFound
+        {
+            return Err(catalogue_error(path, MISSING_MSG));
         }
+        if std::fs::metadata(path).is_ok_and(|m| m.is_file() && m.len() == 0) {
+            return Err(catalogue_error(path, EMPTY_MSG));
+        }
+        Catalogue::open_with_lock_wait(path, lock_wait)
     }
 
     /// The catalogue path chosen by flag, then `BURSTBOOK_CATALOGUE`, then
@@ -325,6 +330,8 @@ fn is_busy_error(e: &Error) -> bool {
 const LOCKED_MSG: &str = "is locked by another process";
 const MISSING_MSG: &str = "does not exist; nothing was created (a catalogue is made by \
                            `burstbook search` or `burstbook book source add`)";
+const EMPTY_MSG: &str = "is an empty file (0 bytes), not a catalogue; left as it is (a catalogue \
+                         is made by `burstbook search` or `burstbook book source add`)";
 const READ_ONLY_MSG: &str = "is read-only here (file or directory not writable, or a read-only file system); nothing was changed";
 
 pub(crate) fn catalogue_error(path: &Path, msg: impl Into<String>) -> Error {
