@@ -336,6 +336,31 @@ fn reading_an_empty_file_leaves_it_empty() {
     assert_success(&book(&db, &["check"]));
 }
 
+/// Damage on pages a write does not read (the source and observation indexes):
+/// `candidates` refused the file, but `label` used to write into it.
+#[test]
+fn a_write_is_refused_on_a_file_damaged_where_it_does_not_look() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = small_catalogue(dir.path());
+    let mut bytes = snapshot(&db);
+    let page = usize::from(u16::from_be_bytes([bytes[16], bytes[17]]));
+    for (i, b) in bytes.iter_mut().enumerate().skip(2 * page).take(3 * page) {
+        *b = (i * 7919 % 251) as u8;
+    }
+    std::fs::write(&db, &bytes).unwrap();
+    let csv = dir.path().join("exposure.csv");
+    std::fs::write(&csv, "SYNTH-1,60100,60100.1\n").unwrap();
+    for args in [
+        &["label", "1", "--label", "rfi"][..],
+        &["promote", "1", "--to", "SYNTH-1"],
+        &["source", "add", "NEW", "--ra", "1", "--dec", "2"],
+        &["exposure", "import", csv.to_str().unwrap()],
+    ] {
+        assert_one_line_failure(&book(&db, args), &["small.sqlite", "is corrupt"]);
+        assert_eq!(snapshot(&db), bytes, "{args:?} wrote");
+    }
+}
+
 /// A table or column of the recorded schema version gone: `check` used to say "ok"
 /// and `source add` to write, while `label` failed with a raw SQL message.
 #[test]

@@ -59,6 +59,8 @@ pub struct Catalogue {
     conn: Connection,
     path: PathBuf,
     lock_wait: Duration,
+    /// Whether SQLite's quick check has passed on this connection (before the first write).
+    sound: bool,
 }
 
 impl Catalogue {
@@ -88,6 +90,7 @@ impl Catalogue {
             conn,
             path: path.to_path_buf(),
             lock_wait,
+            sound: false,
         };
         cat.conn
             .busy_timeout(lock_wait)
@@ -165,10 +168,17 @@ impl Catalogue {
 
     /// Runs `work` inside one `BEGIN IMMEDIATE` transaction, committing on
     /// success and retrying the whole transaction while the database is busy.
+    /// The first write on a connection runs [`Catalogue::check_sound`] before it,
+    /// so a damaged file is refused unchanged rather than written into where its
+    /// damage happens not to lie.
     pub(crate) fn write<T>(
         &mut self,
         mut work: impl FnMut(&Transaction<'_>) -> Result<T>,
     ) -> Result<T> {
+        if !self.sound {
+            self.check_sound()?;
+            self.sound = true;
+        }
         let start = std::time::Instant::now();
         let mut attempt = 0;
         loop {
@@ -188,6 +198,26 @@ impl Catalogue {
                 }
                 other => return other,
             }
+        }
+    }
+
+    /// SQLite's `PRAGMA quick_check` (every page and record well formed; indexes
+    /// are not compared with their tables, which `book check` does): reads the whole
+    /// file once, changes nothing.
+    ///
+    /// # Errors
+    /// [`Error::Catalogue`] saying the file is corrupt, with SQLite's first finding.
+    fn check_sound(&self) -> Result<()> {
+        let findings: Vec<String> = retry_busy(&self.path, self.lock_wait, || {
+            let mut stmt = self.conn.prepare("PRAGMA quick_check")?;
+            stmt.query_map([], |r| r.get(0))?.collect()
+        })?;
+        match findings.first().map(String::as_str) {
+            Some("ok") | None => Ok(()),
+            Some(first) => Err(catalogue_error(
+                &self.path,
+                format!("is corrupt (SQLite's quick check: {first}); nothing was changed"),
+            )),
         }
     }
 
