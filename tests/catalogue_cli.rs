@@ -369,3 +369,41 @@ fn bad_flag_values_and_unknown_ids_are_refused_in_one_line() {
         "{xml}"
     );
 }
+
+/// Impossible exposure (a threshold or limit not above 0, an MJD far outside any
+/// observing era) used to import and then swamp the summary.
+#[test]
+fn impossible_exposure_rows_are_refused_naming_file_and_line() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("c.sqlite");
+    book(
+        &db,
+        &[
+            "source", "add", "FIELD-7", "--ra", "123.25", "--dec", "-12.5",
+        ],
+    );
+    let before = std::fs::read(&db).unwrap();
+    for (row, needle) in [
+        (
+            "FIELD-7,61000,61000.1,-3",
+            "line 2: snr_threshold -3 must be above 0",
+        ),
+        (
+            "FIELD-7,61000,61000.1,7,-1",
+            "line 2: fluence_limit_jy_ms -1 must be above 0",
+        ),
+        (
+            "FIELD-7,61000,99999999",
+            "line 2: end_mjd 99999999 is outside the plausible MJD range 40000..=100000",
+        ),
+    ] {
+        let csv = dir.path().join("x.csv");
+        std::fs::write(&csv, format!("source,start_mjd,end_mjd\n{row}\n")).unwrap();
+        book_fails(
+            &db,
+            &["exposure", "import", csv.to_str().unwrap()],
+            &["x.csv: ", needle, "nothing imported"],
+        );
+    }
+    assert!(std::fs::read(&db).unwrap() == before);
+}
