@@ -263,3 +263,147 @@ fn exposure_exported_to_a_file_imports_into_another_catalogue_unchanged() {
     assert!(msg.contains("imported 3 interval(s)"), "{msg}");
     assert_eq!(book(&there, &["exposure", "export"]), exported);
 }
+
+/// Runs `burstbook book --catalogue DB ARGS...` and asserts one line of failure
+/// carrying every needle.
+fn book_fails(db: &Path, args: &[&str], needles: &[&str]) {
+    let out = Command::new(BIN)
+        .arg("book")
+        .arg("--catalogue")
+        .arg(db)
+        .args(args)
+        .output()
+        .unwrap();
+    cli_common::assert_one_line_failure(&out, needles);
+}
+
+/// NaN and empty ranges used to select nothing and exit 0, an unknown id gave an
+/// empty history or a raw SQLite message, and a VOEvent took any radius and IVORN.
+#[test]
+fn bad_flag_values_and_unknown_ids_are_refused_in_one_line() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("c.sqlite");
+    book(&db, &["fill-synthetic", "--source", "FIELD-7"]);
+    book(
+        &db,
+        &[
+            "source", "add", "FIELD-7", "--ra", "123.25", "--dec", "-12.5",
+        ],
+    );
+    book(&db, &["promote", "1", "--to", "FIELD-7"]);
+    let before = std::fs::read(&db).unwrap();
+    let dm_inverted = ["--dm-min", "500", "--dm-max", "100"];
+    let inverted = "--dm-min 500 is above --dm-max 100";
+    for (args, needle) in [
+        (&["candidates"][..], inverted),
+        (&["bursts"], inverted),
+        (&["label", "--label", "rfi"], inverted),
+        (&["promote", "--to", "FIELD-7"], inverted),
+    ] {
+        book_fails(&db, &[args, &dm_inverted].concat(), &[needle]);
+    }
+    for (args, needle) in [
+        (
+            &["candidates", "--mjd-min", "nan"][..],
+            "--mjd-min NaN is not a finite number",
+        ),
+        (
+            &["candidates", "--snr-min", "nan"],
+            "--snr-min NaN is not a finite number",
+        ),
+        (
+            &["bursts", "--mjd-max", "inf"],
+            "--mjd-max inf is not a finite number",
+        ),
+        (
+            &["summary", "--snr-min", "nan"],
+            "--snr-min NaN is not a finite number",
+        ),
+        (&["history", "999"], "has no candidate 999"),
+        (
+            &["promote", "999", "--to", "FIELD-7"],
+            "has no candidate 999; nothing promoted",
+        ),
+        (
+            &["promote", "2", "--radius-deg=-1"],
+            "--radius-deg -1 must not be negative",
+        ),
+        (
+            &["promote", "2", "--dm-tol", "nan"],
+            "--dm-tol NaN is not a finite number",
+        ),
+        (
+            &["voevent", "1", "--position-error-deg=-1"],
+            "--position-error-deg -1 must be a radius above 0",
+        ),
+        (
+            &["voevent", "1", "--position-error-deg", "nan"],
+            "--position-error-deg NaN must be a radius",
+        ),
+        (
+            &["voevent", "1", "--ivorn-root", "not an ivorn"],
+            "--ivorn-root \"not an ivorn\" must be an IVORN",
+        ),
+        (
+            &["voevent", "1", "--ivorn-root", "ivo://"],
+            "--ivorn-root \"ivo://\" must be an IVORN",
+        ),
+    ] {
+        book_fails(&db, args, &[needle]);
+    }
+    assert!(std::fs::read(&db).unwrap() == before, "a refusal wrote");
+    // A radius in range and an IVORN with an authority are fine.
+    let xml = book(
+        &db,
+        &[
+            "voevent",
+            "1",
+            "--position-error-deg",
+            "180",
+            "--ivorn-root",
+            "ivo://example.invalid/survey",
+        ],
+    );
+    assert!(
+        xml.contains("ivo://example.invalid/survey#burst-1"),
+        "{xml}"
+    );
+}
+
+/// Impossible exposure (a threshold or limit not above 0, an MJD far outside any
+/// observing era) used to import and then swamp the summary.
+#[test]
+fn impossible_exposure_rows_are_refused_naming_file_and_line() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("c.sqlite");
+    book(
+        &db,
+        &[
+            "source", "add", "FIELD-7", "--ra", "123.25", "--dec", "-12.5",
+        ],
+    );
+    let before = std::fs::read(&db).unwrap();
+    for (row, needle) in [
+        (
+            "FIELD-7,61000,61000.1,-3",
+            "line 2: snr_threshold -3 must be above 0",
+        ),
+        (
+            "FIELD-7,61000,61000.1,7,-1",
+            "line 2: fluence_limit_jy_ms -1 must be above 0",
+        ),
+        (
+            "FIELD-7,61000,99999999",
+            "line 2: end_mjd 99999999 is outside the plausible MJD range 40000..=100000",
+        ),
+    ] {
+        let csv = dir.path().join("x.csv");
+        std::fs::write(&csv, format!("source,start_mjd,end_mjd\n{row}\n")).unwrap();
+        book_fails(
+            &db,
+            &["exposure", "import", csv.to_str().unwrap()],
+            &["x.csv: ", needle, "nothing imported"],
+        );
+    }
+    assert!(std::fs::read(&db).unwrap() == before);
+}

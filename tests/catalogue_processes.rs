@@ -302,6 +302,96 @@ fn reading_a_missing_catalogue_creates_nothing() {
     assert!(db.exists());
 }
 
+/// A file truncated to nothing (a full disk, a bad copy) is no catalogue to read
+/// from: `check` used to turn it into a new one and say "ok".
+#[test]
+fn reading_an_empty_file_leaves_it_empty() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("empty.sqlite");
+    std::fs::write(&db, b"").unwrap();
+    let needles = ["empty.sqlite", "is an empty file (0 bytes)"];
+    for args in [
+        &["check"][..],
+        &["candidates"],
+        &["history", "1"],
+        &["label", "1", "--label", "rfi"],
+        &["exposure", "export"],
+        &["summary"],
+    ] {
+        assert_one_line_failure(&book(&db, args), &needles);
+        assert_eq!(std::fs::metadata(&db).unwrap().len(), 0, "{args:?} wrote");
+    }
+    let out = Command::new(BIN)
+        .args(["review", "--catalogue"])
+        .arg(&db)
+        .output()
+        .unwrap();
+    assert_one_line_failure(&out, &needles);
+    assert_eq!(std::fs::metadata(&db).unwrap().len(), 0);
+    // Adding a source begins a catalogue, in an empty file as where there is none.
+    assert_success(&book(
+        &db,
+        &["source", "add", "NEW", "--ra", "1", "--dec", "2"],
+    ));
+    assert_success(&book(&db, &["check"]));
+}
+
+/// Damage on pages a write does not read (the source and observation indexes):
+/// `candidates` refused the file, but `label` used to write into it.
+#[test]
+fn a_write_is_refused_on_a_file_damaged_where_it_does_not_look() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = small_catalogue(dir.path());
+    let mut bytes = snapshot(&db);
+    let page = usize::from(u16::from_be_bytes([bytes[16], bytes[17]]));
+    for (i, b) in bytes.iter_mut().enumerate().skip(2 * page).take(3 * page) {
+        *b = (i * 7919 % 251) as u8;
+    }
+    std::fs::write(&db, &bytes).unwrap();
+    let csv = dir.path().join("exposure.csv");
+    std::fs::write(&csv, "SYNTH-1,60100,60100.1\n").unwrap();
+    for args in [
+        &["label", "1", "--label", "rfi"][..],
+        &["promote", "1", "--to", "SYNTH-1"],
+        &["source", "add", "NEW", "--ra", "1", "--dec", "2"],
+        &["exposure", "import", csv.to_str().unwrap()],
+    ] {
+        assert_one_line_failure(&book(&db, args), &["small.sqlite", "is corrupt"]);
+        assert_eq!(snapshot(&db), bytes, "{args:?} wrote");
+    }
+}
+
+/// A table or column of the recorded schema version gone: `check` used to say "ok"
+/// and `source add` to write, while `label` failed with a raw SQL message.
+#[test]
+fn a_catalogue_missing_a_table_or_column_is_refused_untouched() {
+    for (damage, missing) in [
+        ("DROP TABLE review_label", "table review_label"),
+        (
+            "ALTER TABLE search_run DROP COLUMN samples_searched",
+            "column search_run.samples_searched",
+        ),
+    ] {
+        let dir = tempfile::tempdir().unwrap();
+        let db = small_catalogue(dir.path());
+        Connection::open(&db)
+            .unwrap()
+            .execute_batch(damage)
+            .unwrap();
+        let before = snapshot(&db);
+        let needle = format!("is missing {missing} (damaged?)");
+        for args in [
+            &["check"][..],
+            &["candidates"],
+            &["label", "1", "--label", "rfi"],
+            &["source", "add", "NEW", "--ra", "1", "--dec", "2"],
+        ] {
+            assert_one_line_failure(&book(&db, args), &["small.sqlite", &needle]);
+            assert_eq!(snapshot(&db), before, "{args:?} wrote");
+        }
+    }
+}
+
 /// Read-only location. Root ignores file permissions, so when the tests run as
 /// root the binary is run as user `nobody` through util-linux `setpriv`.
 #[test]

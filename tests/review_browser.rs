@@ -6,6 +6,7 @@
 //! `npm ci --prefix tests/browser` (playwright-core; fails with instructions when
 //! missing, because then the test would silently prove nothing).
 
+mod cli_common;
 mod report_common;
 
 use std::io::{Read, Write};
@@ -325,4 +326,54 @@ fn review_command_serves_the_catalogue_and_stops_on_quit() {
     assert_eq!(code, 200);
     assert!(child.wait().unwrap().success());
     assert_eq!(lines.next().unwrap().unwrap(), "review finished");
+}
+
+/// Runs `burstbook review ARGS...`, killing it (and failing) if it is still
+/// serving after 30 s: a review with nothing to show used to serve for ever.
+fn review_exits(args: &[&std::ffi::OsStr]) -> std::process::Output {
+    let mut child = Command::new(env!("CARGO_BIN_EXE_burstbook"))
+        .arg("review")
+        .args(args)
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    let start = std::time::Instant::now();
+    while child.try_wait().unwrap().is_none() {
+        if start.elapsed() > std::time::Duration::from_secs(30) {
+            child.kill().unwrap();
+            let _ = child.wait();
+            panic!("review {args:?} was still running after 30 s");
+        }
+        thread::sleep(std::time::Duration::from_millis(50));
+    }
+    child.wait_with_output().unwrap()
+}
+
+#[test]
+fn review_with_nothing_to_review_or_a_nan_filter_stops_at_once() {
+    let dir = tempfile::tempdir().unwrap();
+    let obs = dir.path().join("quiet-night.json");
+    let t_inf = report_common::write_observation(&obs);
+    drop(catalogue_with_four(dir.path(), &obs, t_inf));
+    let db = dir.path().join("review.sqlite");
+    let arg = std::ffi::OsStr::new;
+    cli_common::assert_one_line_failure(
+        &review_exits(&[
+            arg("--catalogue"),
+            db.as_os_str(),
+            arg("--source"),
+            arg("No Such"),
+        ]),
+        &["review.sqlite: nothing to review (0 candidates match"],
+    );
+    cli_common::assert_one_line_failure(
+        &review_exits(&[
+            arg("--catalogue"),
+            db.as_os_str(),
+            arg("--snr-min"),
+            arg("nan"),
+        ]),
+        &["--snr-min NaN is not a finite number"],
+    );
 }

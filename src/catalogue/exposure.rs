@@ -294,6 +294,12 @@ struct ExposureRow {
     fluence_limit_jy_ms: Option<f64>,
 }
 
+/// MJDs an imported interval may have: 40000 (1968 May 24) to 100000 (2132 September 1),
+/// from the first digitally recorded pulsar searches to a century ahead. A value
+/// outside is a typing or unit error (a JD, seconds, a year), and would swamp the
+/// exposure and rate limits.
+pub const PLAUSIBLE_MJD: std::ops::RangeInclusive<f64> = 40_000.0..=100_000.0;
+
 /// Parses and checks every row before anything is written; rows keep their line number.
 fn parse_exposure_csv(path: &Path, reader: impl Read) -> Result<Vec<(u64, ExposureRow)>> {
     let mut r = csv::ReaderBuilder::new()
@@ -324,17 +330,34 @@ fn parse_exposure_csv(path: &Path, reader: impl Read) -> Result<Vec<(u64, Exposu
                 .filter(|v| v.is_finite())
                 .ok_or_else(|| bad(format!("{what} {s:?} is not a finite number")))
         };
-        let start_mjd = num(1, "start_mjd")?;
-        let end_mjd = num(2, "end_mjd")?;
+        let mjd = |i: usize| -> Result<f64> {
+            let v = num(i, EXPORT_COLUMNS[i])?;
+            if PLAUSIBLE_MJD.contains(&v) {
+                Ok(v)
+            } else {
+                Err(bad(format!(
+                    "{} {v} is outside the plausible MJD range {}..={} (years 1968 to 2132)",
+                    EXPORT_COLUMNS[i],
+                    PLAUSIBLE_MJD.start(),
+                    PLAUSIBLE_MJD.end()
+                )))
+            }
+        };
+        let start_mjd = mjd(1)?;
+        let end_mjd = mjd(2)?;
         if end_mjd <= start_mjd {
             return Err(bad(format!(
                 "end_mjd {end_mjd} is not after start_mjd {start_mjd}"
             )));
         }
-        // An empty or absent optional column is an unknown value.
+        // An empty or absent optional column is an unknown value; a known one is a
+        // threshold or limit, so above 0.
         let optional = |i: usize| match rec.get(i) {
             Some("") | None => Ok(None),
-            Some(_) => num(i, EXPORT_COLUMNS[i]).map(Some),
+            Some(_) => match num(i, EXPORT_COLUMNS[i])? {
+                v if v > 0.0 => Ok(Some(v)),
+                v => Err(bad(format!("{} {v} must be above 0", EXPORT_COLUMNS[i]))),
+            },
         };
         let snr_threshold = optional(3)?;
         let fluence_limit_jy_ms = optional(4)?;
@@ -590,6 +613,27 @@ mod tests {
                 "SRC-A,60000,60001,,0.5x\n",
                 "line 1: fluence_limit_jy_ms \"0.5x\"",
             ),
+            (
+                "SRC-A,60000,60001\nSRC-A,61000,61000.1,-3\n",
+                "line 2: snr_threshold -3 must be above 0",
+            ),
+            (
+                "SRC-A,60000,60001,0\n",
+                "line 1: snr_threshold 0 must be above 0",
+            ),
+            (
+                "SRC-A,61000,61000.1,7,-1\n",
+                "line 1: fluence_limit_jy_ms -1 must be above 0",
+            ),
+            (
+                "SRC-A,61000,99999999\n",
+                "line 1: end_mjd 99999999 is outside the plausible MJD range",
+            ),
+            (
+                "SRC-A,2451545,2451546\n",
+                "line 1: start_mjd 2451545 is outside",
+            ),
+            ("SRC-A,-5,1\n", "line 1: start_mjd -5 is outside"),
         ] {
             let err = cat
                 .import_exposure_csv(p, csv.as_bytes())

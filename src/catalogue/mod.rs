@@ -26,7 +26,7 @@ mod voevent;
 
 pub use bursts::{BurstTiming, CompletenessRecord};
 pub use exposure::{
-    ExposureImport, ExposureInterval, exposure_hours, merge_intervals, sweep_window,
+    ExposureImport, ExposureInterval, PLAUSIBLE_MJD, exposure_hours, merge_intervals, sweep_window,
 };
 pub use from_search::EarlierRun;
 pub use query::{Bounds, BurstFilter, BurstRow, CandidateFilter, CandidateRow};
@@ -59,6 +59,8 @@ pub struct Catalogue {
     conn: Connection,
     path: PathBuf,
     lock_wait: Duration,
+    /// Whether SQLite's quick check has passed on this connection (before the first write).
+    sound: bool,
 }
 
 impl Catalogue {
@@ -88,6 +90,7 @@ impl Catalogue {
             conn,
             path: path.to_path_buf(),
             lock_wait,
+            sound: false,
         };
         cat.conn
             .busy_timeout(lock_wait)
@@ -107,18 +110,23 @@ impl Catalogue {
     }
 
     /// [`Catalogue::open`] for commands that read or annotate what a search recorded:
-    /// a missing file is an error and nothing is created, so a mistyped path is not
-    /// answered from a new, empty catalogue (nor left behind as one).
+    /// a missing or empty (0-byte) file is an error and nothing is created, so a
+    /// mistyped path or a truncated file is not answered from a new, empty catalogue
+    /// (nor turned into one).
     ///
     /// # Errors
-    /// As [`Catalogue::open`], and [`Error::Catalogue`] when `path` does not exist.
+    /// As [`Catalogue::open`], and [`Error::Catalogue`] when `path` does not exist
+    /// or is an empty file.
     pub fn open_existing(path: &Path, lock_wait: Duration) -> Result<Catalogue> {
-        match std::fs::symlink_metadata(path) {
-            Err(e) if e.kind() == std::io::ErrorKind::NotFound => {
-                Err(catalogue_error(path, MISSING_MSG))
-            }
-            _ => Catalogue::open_with_lock_wait(path, lock_wait),
+        if let Err(e) = std::fs::symlink_metadata(path)
+            && e.kind() == std::io::ErrorKind::NotFound
+        {
+            return Err(catalogue_error(path, MISSING_MSG));
         }
+        if std::fs::metadata(path).is_ok_and(|m| m.is_file() && m.len() == 0) {
+            return Err(catalogue_error(path, EMPTY_MSG));
+        }
+        Catalogue::open_with_lock_wait(path, lock_wait)
     }
 
     /// The catalogue path chosen by flag, then `BURSTBOOK_CATALOGUE`, then
@@ -160,10 +168,17 @@ impl Catalogue {
 
     /// Runs `work` inside one `BEGIN IMMEDIATE` transaction, committing on
     /// success and retrying the whole transaction while the database is busy.
+    /// The first write on a connection runs [`Catalogue::check_sound`] before it,
+    /// so a damaged file is refused unchanged rather than written into where its
+    /// damage happens not to lie.
     pub(crate) fn write<T>(
         &mut self,
         mut work: impl FnMut(&Transaction<'_>) -> Result<T>,
     ) -> Result<T> {
+        if !self.sound {
+            self.check_sound()?;
+            self.sound = true;
+        }
         let start = std::time::Instant::now();
         let mut attempt = 0;
         loop {
@@ -183,6 +198,26 @@ impl Catalogue {
                 }
                 other => return other,
             }
+        }
+    }
+
+    /// SQLite's `PRAGMA quick_check` (every page and record well formed; indexes
+    /// are not compared with their tables, which `book check` does): reads the whole
+    /// file once, changes nothing.
+    ///
+    /// # Errors
+    /// [`Error::Catalogue`] saying the file is corrupt, with SQLite's first finding.
+    fn check_sound(&self) -> Result<()> {
+        let findings: Vec<String> = retry_busy(&self.path, self.lock_wait, || {
+            let mut stmt = self.conn.prepare("PRAGMA quick_check")?;
+            stmt.query_map([], |r| r.get(0))?.collect()
+        })?;
+        match findings.first().map(String::as_str) {
+            Some("ok") | None => Ok(()),
+            Some(first) => Err(catalogue_error(
+                &self.path,
+                format!("is corrupt (SQLite's quick check: {first}); nothing was changed"),
+            )),
         }
     }
 
@@ -325,6 +360,8 @@ fn is_busy_error(e: &Error) -> bool {
 const LOCKED_MSG: &str = "is locked by another process";
 const MISSING_MSG: &str = "does not exist; nothing was created (a catalogue is made by \
                            `burstbook search` or `burstbook book source add`)";
+const EMPTY_MSG: &str = "is an empty file (0 bytes), not a catalogue; left as it is (a catalogue \
+                         is made by `burstbook search` or `burstbook book source add`)";
 const READ_ONLY_MSG: &str = "is read-only here (file or directory not writable, or a read-only file system); nothing was changed";
 
 pub(crate) fn catalogue_error(path: &Path, msg: impl Into<String>) -> Error {

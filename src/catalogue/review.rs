@@ -1,6 +1,8 @@
 //! Human review: labels kept as history, and promotion of candidates to bursts of a
 //! source (by hand or by position and DM).
 
+use std::path::Path;
+
 use rusqlite::{Connection, OptionalExtension, Transaction, params};
 use serde::Serialize;
 
@@ -55,26 +57,17 @@ impl Catalogue {
         let path = self.path().to_path_buf();
         let now = super::now_utc();
         self.write(|tx| {
-            let e = |e| super::sql_error(&path, e);
-            let mut exists = tx
-                .prepare_cached("SELECT 1 FROM candidate WHERE id = ?1")
-                .map_err(e)?;
             let mut insert = tx
                 .prepare_cached(
                     "INSERT INTO review_label (candidate_id, label, reviewer, labelled_utc, comment)
                      VALUES (?1, ?2, ?3, ?4, ?5)",
                 )
-                .map_err(e)?;
+                .map_err(|e| super::sql_error(&path, e))?;
             for &id in ids {
-                if !exists.exists([id]).map_err(e)? {
-                    return Err(catalogue_error(
-                        &path,
-                        format!("has no candidate {id}; nothing labelled"),
-                    ));
-                }
+                require_candidate(tx, &path, id, "; nothing labelled")?;
                 insert
                     .execute(params![id, label, reviewer, now, comment])
-                    .map_err(e)?;
+                    .map_err(|e| super::sql_error(&path, e))?;
             }
             Ok(())
         })
@@ -83,8 +76,9 @@ impl Catalogue {
     /// Every label given to candidate `id`, oldest first.
     ///
     /// # Errors
-    /// An SQLite failure.
+    /// An id that is not in the catalogue, or an SQLite failure.
     pub fn label_history(&self, id: i64) -> Result<Vec<Label>> {
+        require_candidate(self.conn(), self.path(), id, "")?;
         let mut stmt = self
             .conn()
             .prepare(
@@ -134,6 +128,9 @@ impl Catalogue {
         source: Option<&str>,
         tol: AssignTolerance,
     ) -> Result<Vec<Promotion>> {
+        for &id in ids {
+            require_candidate(self.conn(), self.path(), id, "; nothing promoted")?;
+        }
         let chosen = ids
             .iter()
             .map(|&id| match source {
@@ -199,6 +196,23 @@ impl Catalogue {
                 ),
             )),
         }
+    }
+}
+
+/// Refuses an `id` that is not a candidate of the catalogue at `path`; `then` ends
+/// the message (what was therefore not done).
+fn require_candidate(conn: &Connection, path: &Path, id: i64, then: &str) -> Result<()> {
+    let found = conn
+        .prepare_cached("SELECT 1 FROM candidate WHERE id = ?1")
+        .and_then(|mut q| q.exists([id]))
+        .map_err(|e| super::sql_error(path, e))?;
+    if found {
+        Ok(())
+    } else {
+        Err(catalogue_error(
+            path,
+            format!("has no candidate {id}{then}"),
+        ))
     }
 }
 
@@ -291,6 +305,9 @@ mod tests {
         // An unknown id labels nothing at all.
         assert!(cat.label(&[ids[5], 999_999], "burst", "ana", "").is_err());
         assert!(cat.label_history(ids[5]).unwrap().is_empty());
+        // Nor has an unknown id a history (it used to be an empty one).
+        let err = cat.label_history(999_999).unwrap_err().to_string();
+        assert!(err.ends_with("has no candidate 999999"), "{err}");
     }
 
     #[test]
@@ -332,8 +349,13 @@ mod tests {
         // A batch with one candidate that cannot be promoted promotes none of them,
         // though the other alone goes in.
         let before = cat.bursts(&BurstFilter::default()).unwrap().len();
-        let err = cat.promote_all(&[ids[2], i64::MAX], Some("FAR"), TOL);
-        assert!(err.is_err(), "an unknown candidate fails the batch");
+        let err = cat.promote_all(&[ids[2], 999_999], Some("FAR"), TOL);
+        assert!(
+            err.unwrap_err()
+                .to_string()
+                .ends_with("has no candidate 999999; nothing promoted"),
+            "an unknown candidate fails the batch, named"
+        );
         assert_eq!(cat.bursts(&BurstFilter::default()).unwrap().len(), before);
         assert!(cat.promote_all(&[ids[2]], Some("FAR"), TOL).unwrap()[0].new);
     }

@@ -76,7 +76,44 @@ fn read_identity(cat: &Catalogue) -> Result<(i64, i64, i64)> {
         .map_err(|e| cat.err(e))
 }
 
-/// Refuses a foreign SQLite file or one from a newer burstbook; reads only.
+/// Every (table, column) of a database, tables in name order and columns in
+/// declaration order; SQLite's own tables left out.
+const COLUMNS_SQL: &str = "SELECT m.name, p.name FROM sqlite_master m, pragma_table_info(m.name) p \
+     WHERE m.type = 'table' AND m.name NOT LIKE 'sqlite_%' ORDER BY m.name, p.cid";
+
+fn columns(conn: &Connection) -> rusqlite::Result<Vec<(String, String)>> {
+    let mut stmt = conn.prepare(COLUMNS_SQL)?;
+    stmt.query_map([], |r| Ok((r.get(0)?, r.get(1)?)))?
+        .collect()
+}
+
+/// Refuses a catalogue lacking a table or column that its recorded schema `version`
+/// has: the expected ones come from the migrations up to `version`, applied to an
+/// empty in-memory database. Migrations only ever add, so a catalogue that another
+/// process upgrades meanwhile still has them all.
+fn check_tables(cat: &Catalogue, version: i64) -> Result<()> {
+    let reference = Connection::open_in_memory().map_err(|e| cat.err(e))?;
+    for sql in MIGRATIONS.iter().take(version.max(0) as usize) {
+        reference.execute_batch(sql).map_err(|e| cat.err(e))?;
+    }
+    let expected = columns(&reference).map_err(|e| cat.err(e))?;
+    let held = columns(cat.conn()).map_err(|e| cat.err(e))?;
+    let Some((table, column)) = expected.iter().find(|c| !held.contains(c)) else {
+        return Ok(());
+    };
+    let missing = if held.iter().any(|(t, _)| t == table) {
+        format!("column {table}.{column}")
+    } else {
+        format!("table {table}")
+    };
+    Err(catalogue_error(
+        cat.path(),
+        format!("is missing {missing} (damaged?); refusing to use it"),
+    ))
+}
+
+/// Refuses a foreign SQLite file, one from a newer burstbook, and one lacking a
+/// table or column of its schema version; reads only.
 pub(crate) fn check_identity(cat: &Catalogue) -> Result<()> {
     let (version, app_id, n_tables) = read_identity(cat)?;
     let fresh = version == 0 && app_id == 0 && n_tables == 0;
@@ -95,7 +132,7 @@ pub(crate) fn check_identity(cat: &Catalogue) -> Result<()> {
             ),
         ));
     }
-    Ok(())
+    check_tables(cat, version)
 }
 
 #[cfg(test)]
@@ -120,5 +157,51 @@ mod tests {
             )
             .unwrap();
         assert_eq!(n, 1);
+    }
+
+    #[test]
+    fn a_missing_table_or_column_of_the_recorded_version_is_named() {
+        let dir = tempfile::tempdir().unwrap();
+        for (version, damage, expected) in [
+            (
+                SCHEMA_VERSION,
+                "DROP TABLE review_label",
+                Some("table review_label"),
+            ),
+            (
+                SCHEMA_VERSION,
+                "ALTER TABLE exposure DROP COLUMN fluence_limit_jy_ms",
+                Some("column exposure.fluence_limit_jy_ms"),
+            ),
+            // Version 1 had no labels: nothing is missing, and opening upgrades it.
+            (1, "DROP TABLE IF EXISTS review_label", None),
+        ] {
+            let path = dir
+                .path()
+                .join(format!("v{version}-{}.sqlite", damage.len()));
+            let conn = Connection::open(&path).unwrap();
+            for (i, sql) in MIGRATIONS.iter().take(version as usize).enumerate() {
+                conn.execute_batch(sql).unwrap();
+                conn.pragma_update(None, "user_version", i as i64 + 1)
+                    .unwrap();
+            }
+            conn.pragma_update(None, "application_id", APPLICATION_ID)
+                .unwrap();
+            conn.execute_batch(damage).unwrap();
+            drop(conn);
+            let opened = Catalogue::open(&path);
+            match expected {
+                Some(missing) => {
+                    let err = opened.err().expect("refused").to_string();
+                    assert!(
+                        err.contains(&format!("is missing {missing} (damaged?)")),
+                        "{err}"
+                    );
+                }
+                None => {
+                    opened.unwrap();
+                }
+            }
+        }
     }
 }

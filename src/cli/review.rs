@@ -3,9 +3,11 @@
 use std::path::PathBuf;
 use std::sync::atomic::AtomicBool;
 
-use anyhow::Context;
+use anyhow::{Context, bail};
 use burstbook::catalogue::{Bounds, CandidateFilter, Catalogue, DEFAULT_LOCK_WAIT};
 use burstbook::report::review::{CatalogueStore, LabelStore, ReviewServer};
+
+use super::book::flags;
 
 /// Arguments of `review`.
 #[derive(clap::Args, Debug)]
@@ -44,6 +46,7 @@ pub struct Args {
 }
 
 pub fn run(args: Args) -> anyhow::Result<()> {
+    flags::finite_if_given("--snr-min", args.snr_min)?;
     let path = Catalogue::resolve_path(args.catalogue.as_deref());
     let catalogue = Catalogue::open_existing(&path, DEFAULT_LOCK_WAIT)?;
     let filter = CandidateFilter {
@@ -66,6 +69,17 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         obs_dir: args.obs_dir,
     };
     let n = store.items()?.len();
+    if n == 0 {
+        bail!(
+            "catalogue {}: nothing to review (0 candidates match{})",
+            path.display(),
+            if args.all {
+                ""
+            } else {
+                " without a label; --all includes labelled ones"
+            }
+        );
+    }
     let server = ReviewServer::bind(args.port)?;
     say!(
         "{n} candidates to review from {}\nopen {}  (press q on the page to finish)",

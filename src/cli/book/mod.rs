@@ -2,6 +2,7 @@
 
 mod barycentre;
 mod exposure;
+pub mod flags;
 mod output;
 mod query;
 mod review;

@@ -6,6 +6,7 @@ use burstbook::Verdict;
 use burstbook::catalogue::{Bounds, BurstFilter, CandidateFilter, Catalogue};
 use burstbook::search::output::{CSV_COLUMNS, csv_cells};
 
+use super::flags;
 use super::output::{Format, opt, write_out, write_rows};
 
 /// DM, S/N and time ranges shared by the candidate and burst listings.
@@ -29,14 +30,19 @@ pub struct BoundsArgs {
 }
 
 impl BoundsArgs {
-    fn to_bounds(&self) -> Bounds {
-        Bounds {
+    /// The library bounds, refusing a NaN or infinite value and a minimum above
+    /// its maximum.
+    fn to_bounds(&self) -> anyhow::Result<Bounds> {
+        flags::range(("--dm-min", self.dm_min), ("--dm-max", self.dm_max))?;
+        flags::finite_if_given("--snr-min", self.snr_min)?;
+        flags::range(("--mjd-min", self.mjd_min), ("--mjd-max", self.mjd_max))?;
+        Ok(Bounds {
             dm_min: self.dm_min,
             dm_max: self.dm_max,
             snr_min: self.snr_min,
             mjd_min: self.mjd_min,
             mjd_max: self.mjd_max,
-        }
+        })
     }
 }
 
@@ -62,20 +68,24 @@ fn parse_verdict(s: &str) -> Result<Verdict, String> {
 
 impl FilterArgs {
     /// The library filter for these flags plus explicit ids.
-    pub fn to_filter(&self, ids: &[i64]) -> CandidateFilter {
-        CandidateFilter {
+    ///
+    /// # Errors
+    /// A bound refused by [`BoundsArgs::to_bounds`].
+    pub fn to_filter(&self, ids: &[i64]) -> anyhow::Result<CandidateFilter> {
+        Ok(CandidateFilter {
             source: self.source.clone(),
-            bounds: self.bounds.to_bounds(),
+            bounds: self.bounds.to_bounds()?,
             verdict: self.verdict,
             label: self.label_is.clone(),
             ids: ids.to_vec(),
             limit: None,
-        }
+        })
     }
 
-    /// Whether any flag narrows the selection.
+    /// Whether no flag narrows the selection (a refused bound does narrow it).
     pub fn is_empty(&self) -> bool {
-        self.to_filter(&[]) == CandidateFilter::default()
+        self.to_filter(&[])
+            .is_ok_and(|f| f == CandidateFilter::default())
     }
 }
 
@@ -106,7 +116,7 @@ const CANDIDATE_TABLE: &[&str] = &[
 const CANDIDATE_KEYS: [&str; 5] = ["id", "run_id", "source", "label", "burst_id"];
 
 pub fn candidates(cat: &Catalogue, a: CandidatesArgs) -> anyhow::Result<()> {
-    let mut filter = a.filter.to_filter(&[]);
+    let mut filter = a.filter.to_filter(&[])?;
     filter.limit = a.limit;
     let rows = cat.candidates(&filter)?;
     write_out(&a.out, |out| {
@@ -178,7 +188,7 @@ const BURST_COLUMNS: &[&str] = &[
 pub fn bursts(cat: &Catalogue, a: BurstsArgs) -> anyhow::Result<()> {
     let rows = cat.bursts(&BurstFilter {
         source: a.source,
-        bounds: a.bounds.to_bounds(),
+        bounds: a.bounds.to_bounds()?,
     })?;
     let table = a.format == Format::Table;
     let num = |v: f64, digits: usize| {

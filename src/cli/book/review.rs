@@ -3,6 +3,7 @@
 use anyhow::bail;
 use burstbook::catalogue::{AssignTolerance, Catalogue};
 
+use super::flags;
 use super::output::{Format, write_rows};
 use super::query::FilterArgs;
 
@@ -15,7 +16,7 @@ fn select(cat: &Catalogue, ids: &[i64], filter: &FilterArgs) -> anyhow::Result<V
         return Ok(ids.to_vec());
     }
     Ok(cat
-        .candidates(&filter.to_filter(ids))?
+        .candidates(&filter.to_filter(ids)?)?
         .iter()
         .map(|r| r.id)
         .collect())
@@ -118,6 +119,8 @@ pub struct PromoteArgs {
 }
 
 pub fn promote(cat: &mut Catalogue, a: PromoteArgs) -> anyhow::Result<()> {
+    flags::non_negative("--radius-deg", a.radius_deg)?;
+    flags::non_negative("--dm-tol", a.dm_tol)?;
     let ids = select(cat, &a.ids, &a.filter)?;
     let tol = AssignTolerance {
         radius_deg: a.radius_deg,

@@ -2,6 +2,7 @@
 
 use burstbook::catalogue::Catalogue;
 
+use super::flags;
 use super::output::{Format, opt, write_rows};
 
 /// Arguments of `book summary`.
@@ -29,6 +30,7 @@ pub struct SummaryArgs {
 }
 
 pub fn run(cat: &Catalogue, a: SummaryArgs) -> anyhow::Result<()> {
+    flags::finite_if_given("--snr-min", a.snr_min)?;
     let names = if a.sources.is_empty() {
         cat.sources()?.into_iter().map(|s| s.name).collect()
     } else {

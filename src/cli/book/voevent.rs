@@ -2,6 +2,7 @@
 
 use std::path::PathBuf;
 
+use anyhow::bail;
 use burstbook::catalogue::{Catalogue, VoEventOptions, voevent_xml};
 
 use super::output::write_out;
@@ -33,6 +34,25 @@ pub struct VoeventArgs {
 }
 
 pub fn run(cat: &Catalogue, a: VoeventArgs) -> anyhow::Result<()> {
+    // A packet is meant for publication: refuse what its readers cannot use.
+    let r = a.position_error_deg;
+    if !(r > 0.0 && r <= 180.0) {
+        bail!("--position-error-deg {r} must be a radius above 0 and at most 180 degrees");
+    }
+    let authority = a
+        .ivorn_root
+        .strip_prefix("ivo://")
+        .and_then(|rest| rest.split('/').next())
+        .unwrap_or_default();
+    if authority.is_empty()
+        || a.ivorn_root
+            .contains(|c: char| c == '#' || c.is_whitespace())
+    {
+        bail!(
+            "--ivorn-root {:?} must be an IVORN: ivo:// then an authority and path, without '#' or spaces",
+            a.ivorn_root
+        );
+    }
     let packet = cat.burst_packet(a.burst)?;
     let opt = VoEventOptions {
         ivorn_root: a.ivorn_root,
