@@ -3,7 +3,7 @@
 use std::path::PathBuf;
 use std::sync::atomic::AtomicBool;
 
-use anyhow::{Context, bail};
+use anyhow::Context;
 use burstbook::catalogue::{Bounds, CandidateFilter, Catalogue, DEFAULT_LOCK_WAIT};
 use burstbook::report::review::{CatalogueStore, LabelStore, ReviewServer};
 
@@ -69,8 +69,9 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         obs_dir: args.obs_dir,
     };
     let n = store.items()?.len();
+    // Everything already labelled is a finished review, not an error.
     if n == 0 {
-        bail!(
+        say!(
             "catalogue {}: nothing to review (0 candidates match{})",
             path.display(),
             if args.all {
@@ -78,7 +79,8 @@ pub fn run(args: Args) -> anyhow::Result<()> {
             } else {
                 " without a label; --all includes labelled ones"
             }
-        );
+        )?;
+        return Ok(());
     }
     let server = ReviewServer::bind(args.port)?;
     say!(
