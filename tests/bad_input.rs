@@ -190,6 +190,68 @@ fn native_wrong_json_types_and_values() {
 }
 
 #[test]
+fn native_absurd_times() {
+    let dir = tempfile::tempdir().unwrap();
+    type Edit = fn(&mut serde_json::Value);
+    let cases: [(&str, Edit, &str); 6] = [
+        (
+            "tiny",
+            |v| v["sample_time_s"] = 1e-300.into(),
+            "sample time 1e-300 s is outside 1e-9 s to 100 s",
+        ),
+        (
+            "huge",
+            |v| v["sample_time_s"] = 1e300.into(),
+            "is outside 1e-9 s to 100 s",
+        ),
+        (
+            "late",
+            |v| v["start_sec"] = 1e9.into(),
+            "start_sec = 1e9 is not a time of day",
+        ),
+        (
+            "early",
+            |v| v["start_sec"] = (-1.0).into(),
+            "start_sec = -1 is not a time of day",
+        ),
+        (
+            "mjdneg",
+            |v| v["start_mjd"] = (-100).into(),
+            "start_mjd = -100 is not a plausible MJD",
+        ),
+        (
+            "mjdhuge",
+            |v| v["start_mjd"] = 600_000.into(),
+            "start_mjd = 600000 is not a plausible MJD",
+        ),
+    ];
+    for (name, edit, needle) in cases {
+        let (json, _) = native_pair(dir.path(), name, 8);
+        edit_json(&json, edit);
+        assert_bad(open_and_read(&json), &json, needle);
+    }
+    // The second of a leap second is a time of day (MJD 57753 ended with one).
+    let (json, _) = native_pair(dir.path(), "leap", 8);
+    edit_json(&json, |v| {
+        v["start_mjd"] = 57753.into();
+        v["start_sec"] = 86400.5.into();
+    });
+    let src = obs::open(&json).unwrap();
+    assert_eq!(src.header().start.to_iso(), "2016-12-31T23:59:60.500000");
+    // A tiny sample time used to make `search` spin forever sizing its boxcars.
+    let (json, _) = native_pair(dir.path(), "spin", 8);
+    edit_json(&json, |v| v["sample_time_s"] = 1e-300.into());
+    let out = cli_common::burstbook(&[
+        Path::new("search"),
+        &json,
+        Path::new("--no-catalogue"),
+        Path::new("--out"),
+        &dir.path().join("out"),
+    ]);
+    cli_common::assert_one_line_failure(&out, &[&json.display().to_string(), "sample time"]);
+}
+
+#[test]
 fn native_zero_channels() {
     let dir = tempfile::tempdir().unwrap();
     let (json, npy) = native_pair(dir.path(), "a", 8);
@@ -272,6 +334,33 @@ fn fits_unsupported_or_inconsistent_keywords() {
         ("NAXIS2", "NAXIS2  =  9223372036854775807", "truncated"),
         ("NSBLK", "NSBLK   =  9223372036854775807", "DATA holds"),
         ("TFORM7", "TFORM7  = '9223372036854775807E'", "too large"),
+    ];
+    for (key, card, needle) in cases {
+        let path = fits_file(dir.path(), key, 8, 1.0);
+        patch_card(&path, key, card);
+        assert_bad(open_and_read(&path), &path, needle);
+    }
+}
+
+#[test]
+fn fits_absurd_start() {
+    let dir = tempfile::tempdir().unwrap();
+    let cases = [
+        (
+            "STT_SMJD",
+            "STT_SMJD=           1000000000",
+            "STT_SMJD + STT_OFFS = 1.0000000005e9 is not a time of day",
+        ),
+        (
+            "STT_OFFS",
+            "STT_OFFS=                -20.0",
+            "STT_SMJD + STT_OFFS = -10 is not a time of day",
+        ),
+        (
+            "STT_IMJD",
+            "STT_IMJD=                 -100",
+            "STT_IMJD = -100 is not a plausible MJD",
+        ),
     ];
     for (key, card, needle) in cases {
         let path = fits_file(dir.path(), key, 8, 1.0);

@@ -85,7 +85,11 @@ impl JsonHeader {
             ra_deg: self.ra_deg,
             dec_deg: self.dec_deg,
             site: self.site.clone(),
-            start: UtcEpoch::new(self.start_mjd, self.start_sec),
+            start: UtcEpoch::checked_start(
+                self.start_mjd,
+                self.start_sec,
+                ["start_mjd", "start_sec"],
+            )?,
             tsamp_s: self.sample_time_s,
             freqs_mhz: (0..c.count)
                 .map(|i| c.first_mhz + c.step_mhz * i as f64)

@@ -302,7 +302,11 @@ fn header_from_primary(p: &Cards) -> Result<Header, String> {
         telescope,
         ra_deg: angle("RA")? * 15.0,
         dec_deg: angle("DEC")?,
-        start: UtcEpoch::new(p.int("STT_IMJD")?, start_sec),
+        start: UtcEpoch::checked_start(
+            p.int("STT_IMJD")?,
+            start_sec,
+            ["STT_IMJD", "STT_SMJD + STT_OFFS"],
+        )?,
         // Filled from the SUBINT table by `complete_header`.
         tsamp_s: 0.0,
         freqs_mhz: Vec::new(),
