@@ -6,7 +6,7 @@ mod cli_common;
 use std::path::{Path, PathBuf};
 
 use burstbook::Error;
-use burstbook::obs::{self, Container, Header, Site, UtcEpoch};
+use burstbook::obs::{self, Container, Header, SampleSink, Site, UtcEpoch};
 
 fn header(n_chan: usize, n_samples: u64, nbits: u32) -> Header {
     Header {
@@ -369,6 +369,132 @@ fn fits_absurd_start() {
     }
 }
 
+/// A FITS file of 10 samples in `SUBINT` rows of 4, 4 and (padded) 2.
+fn fits_rows(dir: &Path, name: &str) -> PathBuf {
+    let path = dir.join(format!("{name}.fits"));
+    let h = header(4, 10, 8);
+    let mut sink = obs::fits::FitsWriter::create_with_nsblk(&path, &h, 4).unwrap();
+    sink.write_rows(&[5.0; 40]).unwrap();
+    Box::new(sink).finish().unwrap();
+    path
+}
+
+/// Byte offset of `SUBINT` row `row` (from 0) in a file this crate wrote: the table
+/// data starts at the block after the second `END` card, in rows of `NAXIS1` bytes.
+/// Within a row the writer puts `TSUBINT` (8 bytes), `OFFS_SUB` (8), `DAT_FREQ`
+/// (8 per channel), `DAT_WTS` (4 per channel), then the rest.
+fn fits_row_start(bytes: &[u8], row: usize) -> usize {
+    let card = |key: &str| {
+        (0..bytes.len())
+            .step_by(80)
+            .filter(|&i| bytes[i..].starts_with(format!("{key:<8}").as_bytes()))
+            .collect::<Vec<_>>()
+    };
+    let data = (card("END")[1] / 2880 + 1) * 2880;
+    let at = card("NAXIS1")[0];
+    let text = std::str::from_utf8(&bytes[at + 10..at + 30]).unwrap();
+    data + row * text.trim().parse::<usize>().unwrap()
+}
+
+/// Overwrites the bytes at `at` in `path` with `value`.
+fn patch_bytes(path: &Path, at: impl FnOnce(&[u8]) -> usize, value: &[u8]) {
+    let mut bytes = std::fs::read(path).unwrap();
+    let at = at(&bytes);
+    bytes[at..at + value.len()].copy_from_slice(value);
+    std::fs::write(path, bytes).unwrap();
+}
+
+#[test]
+fn fits_last_row_duration_must_be_one() {
+    let dir = tempfile::tempdir().unwrap();
+    let good = fits_rows(dir.path(), "good");
+    assert_eq!(obs::open(&good).unwrap().header().n_samples, 10);
+    let cases = [
+        (-5.0, "SUBINT row 3 of 3: TSUBINT = -5 is not a duration"),
+        (
+            f64::NAN,
+            "SUBINT row 3 of 3: TSUBINT = NaN is not a duration",
+        ),
+        (f64::INFINITY, "TSUBINT = inf is not a duration"),
+        (0.0, "TSUBINT = 0 s is less than half a sample"),
+        (4e-4, "TSUBINT = 0.0004 s is less than half a sample"),
+    ];
+    for (i, (tsubint, needle)) in cases.into_iter().enumerate() {
+        let path = fits_rows(dir.path(), &format!("t{i}"));
+        patch_bytes(&path, |b| fits_row_start(b, 2), &tsubint.to_be_bytes());
+        assert_bad(open_and_read(&path), &path, needle);
+    }
+    let path = fits_rows(dir.path(), "cli");
+    patch_bytes(&path, |b| fits_row_start(b, 2), &(-5f64).to_be_bytes());
+    assert_one_line_failure(&path, "TSUBINT = -5 is not a duration");
+}
+
+#[test]
+fn fits_channel_frequencies_must_be_a_steady_band() {
+    let dir = tempfile::tempdir().unwrap();
+    // The header's band is 1400, 1399, 1398, 1397 MHz with CHAN_BW 1 MHz.
+    let freq = |b: &[u8]| fits_row_start(b, 0) + 16;
+    let cases: [(&[f64; 4], &str); 4] = [
+        (
+            &[1400.0, 1300.0, 1500.0, 1397.0],
+            "DAT_FREQ is not evenly spaced: channel 1 is 1300 MHz after 1400 MHz, expected 1399 MHz",
+        ),
+        (
+            &[1400.0, 1398.0, 1399.0, 1397.0],
+            "channel 1 is 1398 MHz after 1400 MHz",
+        ),
+        (
+            &[1400.0, 1398.0, 1396.0, 1394.0],
+            "DAT_FREQ steps by -2 MHz but CHAN_BW is -1 MHz",
+        ),
+        (
+            &[1400.0, 1399.0, f64::NAN, 1397.0],
+            "outside the radio window",
+        ),
+    ];
+    for (i, (freqs, needle)) in cases.into_iter().enumerate() {
+        let path = fits_file(dir.path(), &format!("f{i}"), 8, 1.0);
+        let bytes: Vec<u8> = freqs.iter().flat_map(|f| f.to_be_bytes()).collect();
+        patch_bytes(&path, freq, &bytes);
+        assert_bad(open_and_read(&path), &path, needle);
+    }
+    // Centres half a percent of a channel off a steady step are not a disagreement.
+    let path = fits_file(dir.path(), "rounded", 8, 1.0);
+    let freqs: [f64; 4] = [1400.0, 1399.005, 1397.995, 1397.0];
+    let bytes: Vec<u8> = freqs.iter().flat_map(|f| f.to_be_bytes()).collect();
+    patch_bytes(&path, freq, &bytes);
+    assert!(obs::open(&path).is_ok());
+    let path = fits_file(dir.path(), "cli", 8, 1.0);
+    patch_bytes(&path, freq, &1500f64.to_be_bytes());
+    assert_one_line_failure(&path, "DAT_FREQ is not evenly spaced: channel 1");
+}
+
+#[test]
+fn fits_weights_must_be_weights() {
+    let dir = tempfile::tempdir().unwrap();
+    // Row 2 (of 3): found when that row is read.
+    let wts = |b: &[u8]| fits_row_start(b, 1) + 16 + 8 * 4 + 4;
+    for (w, needle) in [
+        (
+            f32::NAN,
+            "SUBINT row 2: DAT_WTS of channel 1 is NaN, not a weight",
+        ),
+        (-1.0, "DAT_WTS of channel 1 is -1, not a weight"),
+        (f32::INFINITY, "DAT_WTS of channel 1 is inf, not a weight"),
+    ] {
+        let path = fits_rows(dir.path(), "w");
+        patch_bytes(&path, wts, &w.to_be_bytes());
+        assert_bad(open_and_read(&path), &path, needle);
+    }
+    let path = fits_rows(dir.path(), "first");
+    patch_bytes(
+        &path,
+        |b| fits_row_start(b, 0) + 16 + 8 * 4,
+        &f32::NAN.to_be_bytes(),
+    );
+    assert_one_line_failure(&path, "SUBINT row 1: DAT_WTS of channel 0 is NaN");
+}
+
 #[test]
 fn fits_nan_samples() {
     let dir = tempfile::tempdir().unwrap();
@@ -406,6 +532,14 @@ fn writers_reject_what_they_cannot_store() {
     h.tsamp_s = -1.0;
     let e = obs::create(&path, &h, Container::Native).err().unwrap();
     assert_bad(e, &path, "sample time");
+    let mut h = header(4, 10, 8);
+    h.freqs_mhz[2] = 1390.0;
+    let e = obs::create(&path, &h, Container::Native).err().unwrap();
+    assert_bad(
+        e,
+        &path,
+        "the native format needs evenly spaced channels: channel 2 is 1390 MHz after 1399 MHz",
+    );
 }
 
 /// `burstbook inspect FILE` fails with one line naming the file and the problem.

@@ -318,6 +318,32 @@ fn readable(v: f64) -> String {
     }
 }
 
+/// The steady step between channel centres `freqs_mhz` (MHz, data order), from the
+/// first channel to the last; `None` for a single channel.
+///
+/// # Errors
+/// The first channel further than `tol_mhz` from where that step puts it (a band out
+/// of order, or with a gap), as a message naming it.
+pub(crate) fn even_step_mhz(freqs_mhz: &[f64], tol_mhz: f64) -> Result<Option<f64>, String> {
+    let [first, .., last] = freqs_mhz[..] else {
+        return Ok(None);
+    };
+    let step = (last - first) / (freqs_mhz.len() - 1) as f64;
+    for (i, pair) in freqs_mhz.windows(2).enumerate() {
+        let expected = first + step * (i + 1) as f64;
+        let off = (pair[1] - expected).abs();
+        if off.is_nan() || off > tol_mhz {
+            return Err(format!(
+                "channel {} is {} MHz after {} MHz, expected {expected} MHz",
+                i + 1,
+                pair[1],
+                pair[0]
+            ));
+        }
+    }
+    Ok(Some(step))
+}
+
 #[cfg(test)]
 pub(crate) mod tests {
     use super::*;

@@ -9,6 +9,7 @@ use std::path::{Path, PathBuf};
 use serde::{Deserialize, Serialize};
 
 use super::codec::{check_complete, check_finite, check_room, check_whole_rows, quantise};
+use super::header::even_step_mhz;
 use super::npy::{self, Dtype};
 use super::{Header, SampleSink, SampleSource, Site, UtcEpoch};
 use crate::atomic_file::AtomicFile;
@@ -108,18 +109,10 @@ impl JsonHeader {
     /// The JSON form of `header`, whose samples live in `data`.
     fn from_header(header: &Header, data: String) -> Result<JsonHeader, String> {
         let f = &header.freqs_mhz;
-        let step_mhz = if f.len() > 1 {
-            (f[f.len() - 1] - f[0]) / (f.len() - 1) as f64
-        } else {
-            header.chan_bw_mhz
-        };
         let tol = 1e-6 * header.chan_bw_mhz;
-        if f.iter()
-            .enumerate()
-            .any(|(i, &fi)| (fi - (f[0] + step_mhz * i as f64)).abs() > tol)
-        {
-            return Err("the native format needs evenly spaced channels".into());
-        }
+        let step_mhz = even_step_mhz(f, tol)
+            .map_err(|m| format!("the native format needs evenly spaced channels: {m}"))?
+            .unwrap_or(header.chan_bw_mhz);
         if (step_mhz.abs() - header.chan_bw_mhz).abs() > tol {
             return Err(format!(
                 "channel width {} MHz differs from the channel spacing {} MHz; the native format ties them",
