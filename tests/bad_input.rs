@@ -496,6 +496,33 @@ fn fits_weights_must_be_weights() {
 }
 
 #[test]
+fn fits_header_text_must_be_whole() {
+    let dir = tempfile::tempdir().unwrap();
+    // The primary header's END card blanked: the reader must not run on into the
+    // SUBINT header and take its cards as the primary's.
+    let path = fits_file(dir.path(), "noend", 8, 1.0);
+    patch_card(&path, "END", "");
+    assert_bad(
+        open_and_read(&path),
+        &path,
+        "is XTENSION: the header unit before it has no END card",
+    );
+    assert_one_line_failure(&path, "no END card");
+    // A NUL byte inside a card.
+    let path = fits_file(dir.path(), "nul", 8, 1.0);
+    patch_bytes(
+        &path,
+        |b| b.windows(8).position(|w| w == b"TELESCOP").unwrap() + 20,
+        &[0],
+    );
+    assert_bad(
+        open_and_read(&path),
+        &path,
+        "holds byte 0x00 at column 21, but a FITS header is printable ASCII only",
+    );
+}
+
+#[test]
 fn fits_nan_samples() {
     let dir = tempfile::tempdir().unwrap();
     let path = fits_file(dir.path(), "nan", 32, 12345.5);
