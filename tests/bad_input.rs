@@ -252,6 +252,25 @@ fn native_absurd_times() {
 }
 
 #[test]
+fn native_empty_or_misplaced_data() {
+    let dir = tempfile::tempdir().unwrap();
+    let (json, npy) = native_pair(dir.path(), "a", 8);
+    let mut bytes = std::fs::read(&npy).unwrap();
+    bytes.truncate(bytes.len() - 40); // drop the samples
+    let at = bytes.windows(7).position(|w| w == b"(10, 4)").unwrap();
+    bytes[at..at + 7].copy_from_slice(b"( 0, 4)");
+    std::fs::write(&npy, bytes).unwrap();
+    assert_bad(open_and_read(&json), &npy, "no samples");
+    let out = cli_common::burstbook(&[Path::new("inspect"), &json]);
+    cli_common::assert_one_line_failure(&out, &[&npy.display().to_string(), "no samples"]);
+
+    let (json, npy) = native_pair(dir.path(), "b", 8);
+    std::fs::remove_file(&npy).unwrap();
+    std::fs::create_dir(&npy).unwrap();
+    assert_bad(open_and_read(&json), &npy, "is a directory");
+}
+
+#[test]
 fn native_zero_channels() {
     let dir = tempfile::tempdir().unwrap();
     let (json, npy) = native_pair(dir.path(), "a", 8);

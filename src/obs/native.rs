@@ -170,10 +170,23 @@ impl NativeReader {
             .map_err(|e| Error::bad_input(path, format!("bad JSON header: {e}")))?;
         let data_path = path.parent().unwrap_or(Path::new("")).join(&json.data);
         let file = File::open(&data_path).map_err(|e| Error::io(&data_path, e))?;
-        let file_len = file.metadata().map_err(|e| Error::io(&data_path, e))?.len();
+        let meta = file.metadata().map_err(|e| Error::io(&data_path, e))?;
+        if meta.is_dir() {
+            return Err(Error::bad_input(
+                &data_path,
+                "is a directory, not a .npy file",
+            ));
+        }
+        let file_len = meta.len();
         let mut file = BufReader::with_capacity(1 << 16, file);
         let npy = npy::read_header(&mut file).map_err(|m| Error::bad_input(&data_path, m))?;
         let [n_samples, n_chan] = npy.shape;
+        if n_samples == 0 {
+            return Err(Error::bad_input(
+                &data_path,
+                format!("no samples: the array's shape is (0, {n_chan})"),
+            ));
+        }
         if n_chan != json.channels.count as u64 {
             return Err(Error::bad_input(
                 path,
