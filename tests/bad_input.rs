@@ -6,7 +6,7 @@ mod cli_common;
 use std::path::{Path, PathBuf};
 
 use burstbook::Error;
-use burstbook::obs::{self, Container, Header, Site, UtcEpoch};
+use burstbook::obs::{self, Container, Header, SampleSink, Site, UtcEpoch};
 
 fn header(n_chan: usize, n_samples: u64, nbits: u32) -> Header {
     Header {
@@ -190,6 +190,87 @@ fn native_wrong_json_types_and_values() {
 }
 
 #[test]
+fn native_absurd_times() {
+    let dir = tempfile::tempdir().unwrap();
+    type Edit = fn(&mut serde_json::Value);
+    let cases: [(&str, Edit, &str); 6] = [
+        (
+            "tiny",
+            |v| v["sample_time_s"] = 1e-300.into(),
+            "sample time 1e-300 s is outside 1e-9 s to 100 s",
+        ),
+        (
+            "huge",
+            |v| v["sample_time_s"] = 1e300.into(),
+            "is outside 1e-9 s to 100 s",
+        ),
+        (
+            "late",
+            |v| v["start_sec"] = 1e9.into(),
+            "start_sec = 1e9 is not a time of day",
+        ),
+        (
+            "early",
+            |v| v["start_sec"] = (-1.0).into(),
+            "start_sec = -1 is not a time of day",
+        ),
+        (
+            "mjdneg",
+            |v| v["start_mjd"] = (-100).into(),
+            "start_mjd = -100 is not a plausible MJD",
+        ),
+        (
+            "mjdhuge",
+            |v| v["start_mjd"] = 600_000.into(),
+            "start_mjd = 600000 is not a plausible MJD",
+        ),
+    ];
+    for (name, edit, needle) in cases {
+        let (json, _) = native_pair(dir.path(), name, 8);
+        edit_json(&json, edit);
+        assert_bad(open_and_read(&json), &json, needle);
+    }
+    // The second of a leap second is a time of day (MJD 57753 ended with one).
+    let (json, _) = native_pair(dir.path(), "leap", 8);
+    edit_json(&json, |v| {
+        v["start_mjd"] = 57753.into();
+        v["start_sec"] = 86400.5.into();
+    });
+    let src = obs::open(&json).unwrap();
+    assert_eq!(src.header().start.to_iso(), "2016-12-31T23:59:60.500000");
+    // A tiny sample time used to make `search` spin forever sizing its boxcars.
+    let (json, _) = native_pair(dir.path(), "spin", 8);
+    edit_json(&json, |v| v["sample_time_s"] = 1e-300.into());
+    let out = cli_common::burstbook(&[
+        Path::new("search"),
+        &json,
+        Path::new("--no-catalogue"),
+        Path::new("--out"),
+        &dir.path().join("out"),
+    ]);
+    cli_common::assert_one_line_failure(&out, &[&json.display().to_string(), "sample time"]);
+}
+
+#[test]
+fn native_empty_or_misplaced_data() {
+    let dir = tempfile::tempdir().unwrap();
+    let (json, npy) = native_pair(dir.path(), "a", 8);
+    let mut bytes = std::fs::read(&npy).unwrap();
+    bytes.truncate(bytes.len() - 40); // drop the samples
+    let at = bytes.windows(7).position(|w| w == b"(10, 4)").unwrap();
+    bytes[at..at + 7].copy_from_slice(b"( 0, 4)");
+    std::fs::write(&npy, bytes).unwrap();
+    assert_bad(open_and_read(&json), &npy, "no samples");
+    let out = cli_common::burstbook(&[Path::new("inspect"), &json]);
+    cli_common::assert_one_line_failure(&out, &[&npy.display().to_string(), "no samples"]);
+
+    let (json, npy) = native_pair(dir.path(), "b", 8);
+    std::fs::remove_file(&npy).unwrap();
+    std::fs::create_dir(&npy).unwrap();
+    assert_bad(open_and_read(&json), &npy, "is a directory");
+}
+
+#[test]
 fn native_zero_channels() {
     let dir = tempfile::tempdir().unwrap();
     let (json, npy) = native_pair(dir.path(), "a", 8);
@@ -281,6 +362,186 @@ fn fits_unsupported_or_inconsistent_keywords() {
 }
 
 #[test]
+fn fits_absurd_start() {
+    let dir = tempfile::tempdir().unwrap();
+    let cases = [
+        (
+            "STT_SMJD",
+            "STT_SMJD=           1000000000",
+            "STT_SMJD + STT_OFFS = 1.0000000005e9 is not a time of day",
+        ),
+        (
+            "STT_OFFS",
+            "STT_OFFS=                -20.0",
+            "STT_SMJD + STT_OFFS = -10 is not a time of day",
+        ),
+        (
+            "STT_IMJD",
+            "STT_IMJD=                 -100",
+            "STT_IMJD = -100 is not a plausible MJD",
+        ),
+    ];
+    for (key, card, needle) in cases {
+        let path = fits_file(dir.path(), key, 8, 1.0);
+        patch_card(&path, key, card);
+        assert_bad(open_and_read(&path), &path, needle);
+    }
+}
+
+/// A FITS file of 10 samples in `SUBINT` rows of 4, 4 and (padded) 2.
+fn fits_rows(dir: &Path, name: &str) -> PathBuf {
+    let path = dir.join(format!("{name}.fits"));
+    let h = header(4, 10, 8);
+    let mut sink = obs::fits::FitsWriter::create_with_nsblk(&path, &h, 4).unwrap();
+    sink.write_rows(&[5.0; 40]).unwrap();
+    Box::new(sink).finish().unwrap();
+    path
+}
+
+/// Byte offset of `SUBINT` row `row` (from 0) in a file this crate wrote: the table
+/// data starts at the block after the second `END` card, in rows of `NAXIS1` bytes.
+/// Within a row the writer puts `TSUBINT` (8 bytes), `OFFS_SUB` (8), `DAT_FREQ`
+/// (8 per channel), `DAT_WTS` (4 per channel), then the rest.
+fn fits_row_start(bytes: &[u8], row: usize) -> usize {
+    let card = |key: &str| {
+        (0..bytes.len())
+            .step_by(80)
+            .filter(|&i| bytes[i..].starts_with(format!("{key:<8}").as_bytes()))
+            .collect::<Vec<_>>()
+    };
+    let data = (card("END")[1] / 2880 + 1) * 2880;
+    let at = card("NAXIS1")[0];
+    let text = std::str::from_utf8(&bytes[at + 10..at + 30]).unwrap();
+    data + row * text.trim().parse::<usize>().unwrap()
+}
+
+/// Overwrites the bytes at `at` in `path` with `value`.
+fn patch_bytes(path: &Path, at: impl FnOnce(&[u8]) -> usize, value: &[u8]) {
+    let mut bytes = std::fs::read(path).unwrap();
+    let at = at(&bytes);
+    bytes[at..at + value.len()].copy_from_slice(value);
+    std::fs::write(path, bytes).unwrap();
+}
+
+#[test]
+fn fits_last_row_duration_must_be_one() {
+    let dir = tempfile::tempdir().unwrap();
+    let good = fits_rows(dir.path(), "good");
+    assert_eq!(obs::open(&good).unwrap().header().n_samples, 10);
+    let cases = [
+        (-5.0, "SUBINT row 3 of 3: TSUBINT = -5 is not a duration"),
+        (
+            f64::NAN,
+            "SUBINT row 3 of 3: TSUBINT = NaN is not a duration",
+        ),
+        (f64::INFINITY, "TSUBINT = inf is not a duration"),
+        (0.0, "TSUBINT = 0 s is less than half a sample"),
+        (4e-4, "TSUBINT = 0.0004 s is less than half a sample"),
+    ];
+    for (i, (tsubint, needle)) in cases.into_iter().enumerate() {
+        let path = fits_rows(dir.path(), &format!("t{i}"));
+        patch_bytes(&path, |b| fits_row_start(b, 2), &tsubint.to_be_bytes());
+        assert_bad(open_and_read(&path), &path, needle);
+    }
+    let path = fits_rows(dir.path(), "cli");
+    patch_bytes(&path, |b| fits_row_start(b, 2), &(-5f64).to_be_bytes());
+    assert_one_line_failure(&path, "TSUBINT = -5 is not a duration");
+}
+
+#[test]
+fn fits_channel_frequencies_must_be_a_steady_band() {
+    let dir = tempfile::tempdir().unwrap();
+    // The header's band is 1400, 1399, 1398, 1397 MHz with CHAN_BW 1 MHz.
+    let freq = |b: &[u8]| fits_row_start(b, 0) + 16;
+    let cases: [(&[f64; 4], &str); 4] = [
+        (
+            &[1400.0, 1300.0, 1500.0, 1397.0],
+            "DAT_FREQ is not evenly spaced: channel 1 is 1300 MHz after 1400 MHz, expected 1399 MHz",
+        ),
+        (
+            &[1400.0, 1398.0, 1399.0, 1397.0],
+            "channel 1 is 1398 MHz after 1400 MHz",
+        ),
+        (
+            &[1400.0, 1398.0, 1396.0, 1394.0],
+            "DAT_FREQ steps by -2 MHz but CHAN_BW is -1 MHz",
+        ),
+        (
+            &[1400.0, 1399.0, f64::NAN, 1397.0],
+            "outside the radio window",
+        ),
+    ];
+    for (i, (freqs, needle)) in cases.into_iter().enumerate() {
+        let path = fits_file(dir.path(), &format!("f{i}"), 8, 1.0);
+        let bytes: Vec<u8> = freqs.iter().flat_map(|f| f.to_be_bytes()).collect();
+        patch_bytes(&path, freq, &bytes);
+        assert_bad(open_and_read(&path), &path, needle);
+    }
+    // Centres half a percent of a channel off a steady step are not a disagreement.
+    let path = fits_file(dir.path(), "rounded", 8, 1.0);
+    let freqs: [f64; 4] = [1400.0, 1399.005, 1397.995, 1397.0];
+    let bytes: Vec<u8> = freqs.iter().flat_map(|f| f.to_be_bytes()).collect();
+    patch_bytes(&path, freq, &bytes);
+    assert!(obs::open(&path).is_ok());
+    let path = fits_file(dir.path(), "cli", 8, 1.0);
+    patch_bytes(&path, freq, &1500f64.to_be_bytes());
+    assert_one_line_failure(&path, "DAT_FREQ is not evenly spaced: channel 1");
+}
+
+#[test]
+fn fits_weights_must_be_weights() {
+    let dir = tempfile::tempdir().unwrap();
+    // Row 2 (of 3): found when that row is read.
+    let wts = |b: &[u8]| fits_row_start(b, 1) + 16 + 8 * 4 + 4;
+    for (w, needle) in [
+        (
+            f32::NAN,
+            "SUBINT row 2: DAT_WTS of channel 1 is NaN, not a weight",
+        ),
+        (-1.0, "DAT_WTS of channel 1 is -1, not a weight"),
+        (f32::INFINITY, "DAT_WTS of channel 1 is inf, not a weight"),
+    ] {
+        let path = fits_rows(dir.path(), "w");
+        patch_bytes(&path, wts, &w.to_be_bytes());
+        assert_bad(open_and_read(&path), &path, needle);
+    }
+    let path = fits_rows(dir.path(), "first");
+    patch_bytes(
+        &path,
+        |b| fits_row_start(b, 0) + 16 + 8 * 4,
+        &f32::NAN.to_be_bytes(),
+    );
+    assert_one_line_failure(&path, "SUBINT row 1: DAT_WTS of channel 0 is NaN");
+}
+
+#[test]
+fn fits_header_text_must_be_whole() {
+    let dir = tempfile::tempdir().unwrap();
+    // The primary header's END card blanked: the reader must not run on into the
+    // SUBINT header and take its cards as the primary's.
+    let path = fits_file(dir.path(), "noend", 8, 1.0);
+    patch_card(&path, "END", "");
+    assert_bad(
+        open_and_read(&path),
+        &path,
+        "is XTENSION: the header unit before it has no END card",
+    );
+    assert_one_line_failure(&path, "no END card");
+    // A NUL byte inside a card.
+    let path = fits_file(dir.path(), "nul", 8, 1.0);
+    patch_bytes(
+        &path,
+        |b| b.windows(8).position(|w| w == b"TELESCOP").unwrap() + 20,
+        &[0],
+    );
+    assert_bad(
+        open_and_read(&path),
+        &path,
+        "holds byte 0x00 at column 21, but a FITS header is printable ASCII only",
+    );
+}
+
+#[test]
 fn fits_nan_samples() {
     let dir = tempfile::tempdir().unwrap();
     let path = fits_file(dir.path(), "nan", 32, 12345.5);
@@ -317,6 +578,14 @@ fn writers_reject_what_they_cannot_store() {
     h.tsamp_s = -1.0;
     let e = obs::create(&path, &h, Container::Native).err().unwrap();
     assert_bad(e, &path, "sample time");
+    let mut h = header(4, 10, 8);
+    h.freqs_mhz[2] = 1390.0;
+    let e = obs::create(&path, &h, Container::Native).err().unwrap();
+    assert_bad(
+        e,
+        &path,
+        "the native format needs evenly spaced channels: channel 2 is 1390 MHz after 1399 MHz",
+    );
 }
 
 /// `burstbook inspect FILE` fails with one line naming the file and the problem.

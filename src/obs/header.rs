@@ -11,6 +11,22 @@ use crate::units::{SECONDS_PER_DAY, whole_days};
 /// would make dispersion delays absurd (1e-300 MHz sized the plan at terabytes).
 pub(crate) const RADIO_WINDOW_MHZ: std::ops::RangeInclusive<f64> = 1.0..=1.0e6;
 
+/// Sample times a header may hold, seconds: from 1 ns (Nyquist sampling of 500 MHz of
+/// band, the fastest any recorder writes) to 100 s (slow dynamic spectra at imaging
+/// cadence), `common practice`. Anything outside is a unit mistake or a garbled value
+/// (1e-300 s made `search` build a boxcar width ladder of `usize::MAX` samples).
+const SAMPLE_TIME_S: std::ops::RangeInclusive<f64> = 1e-9..=100.0;
+
+/// Start days a header may hold, MJD: 40000 (1968, before any digital recording of
+/// this kind) to 100000 (2132), `common practice`. Anything outside is a garbled or
+/// mistyped date (MJD -100 is in 1858).
+pub(crate) const PLAUSIBLE_MJD: std::ops::RangeInclusive<i64> = 40_000..=100_000;
+
+/// Seconds into a UTC day a start time may give: 86401 on a day that ends with a leap
+/// second, so anything at or past 86401 (or negative) belongs to another day and is a
+/// garbled value (1e9 s moved a start by 31 years).
+const SECONDS_OF_DAY: std::ops::Range<f64> = 0.0..86_401.0;
+
 /// An observing site on the WGS84 ellipsoid.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct Site {
@@ -61,6 +77,32 @@ impl UtcEpoch {
             day += 1;
         }
         UtcEpoch { mjd: day, sec }
+    }
+
+    /// The start of a recording as headers store it, `sec` seconds into UTC day `mjd`,
+    /// checked: `40000 <= mjd <= 100000` and `0 <= sec < 86401`. `names` are the
+    /// header's words for the two values, used in the message.
+    ///
+    /// # Errors
+    /// A message naming the value that is out of range.
+    pub fn checked_start(mjd: i64, sec: f64, names: [&str; 2]) -> Result<Self, String> {
+        if !PLAUSIBLE_MJD.contains(&mjd) {
+            return Err(format!(
+                "{} = {mjd} is not a plausible MJD (need {} to {})",
+                names[0],
+                PLAUSIBLE_MJD.start(),
+                PLAUSIBLE_MJD.end()
+            ));
+        }
+        if !SECONDS_OF_DAY.contains(&sec) {
+            return Err(format!(
+                "{} = {} is not a time of day (need 0 <= seconds < {})",
+                names[1],
+                readable(sec),
+                SECONDS_OF_DAY.end
+            ));
+        }
+        Ok(UtcEpoch::new(mjd, sec))
     }
 
     /// The epoch `offset_s` SI seconds later (leap seconds included).
@@ -200,6 +242,14 @@ impl Header {
                 self.tsamp_s
             ));
         }
+        if !SAMPLE_TIME_S.contains(&self.tsamp_s) {
+            return Err(format!(
+                "sample time {} s is outside {:e} s to {} s (a unit mistake?)",
+                readable(self.tsamp_s),
+                SAMPLE_TIME_S.start(),
+                SAMPLE_TIME_S.end()
+            ));
+        }
         if let Some(f) = self
             .freqs_mhz
             .iter()
@@ -244,9 +294,11 @@ impl Header {
                 site.lon_deg, site.lat_deg, site.height_m
             ));
         }
-        if !self.start.sec.is_finite() {
-            return Err("start time is not finite".into());
-        }
+        UtcEpoch::checked_start(
+            self.start.mjd,
+            self.start.sec,
+            ["start MJD", "start second"],
+        )?;
         if let Some(s) = self.sefd_jy
             && !(s.is_finite() && s > 0.0)
         {
@@ -254,6 +306,42 @@ impl Header {
         }
         Ok(())
     }
+}
+
+/// `v` as written, or in exponent form when that would take more than a few digits
+/// (1e-300, not 300 zeros).
+fn readable(v: f64) -> String {
+    if (1e-4..1e7).contains(&v.abs()) || v == 0.0 {
+        v.to_string()
+    } else {
+        format!("{v:e}")
+    }
+}
+
+/// The steady step between channel centres `freqs_mhz` (MHz, data order), from the
+/// first channel to the last; `None` for a single channel.
+///
+/// # Errors
+/// The first channel further than `tol_mhz` from where that step puts it (a band out
+/// of order, or with a gap), as a message naming it.
+pub(crate) fn even_step_mhz(freqs_mhz: &[f64], tol_mhz: f64) -> Result<Option<f64>, String> {
+    let [first, .., last] = freqs_mhz[..] else {
+        return Ok(None);
+    };
+    let step = (last - first) / (freqs_mhz.len() - 1) as f64;
+    for (i, pair) in freqs_mhz.windows(2).enumerate() {
+        let expected = first + step * (i + 1) as f64;
+        let off = (pair[1] - expected).abs();
+        if off.is_nan() || off > tol_mhz {
+            return Err(format!(
+                "channel {} is {} MHz after {} MHz, expected {expected} MHz",
+                i + 1,
+                pair[1],
+                pair[0]
+            ));
+        }
+    }
+    Ok(Some(step))
 }
 
 #[cfg(test)]
@@ -368,5 +456,45 @@ pub(crate) mod tests {
                 "{lon} {lat}"
             );
         }
+    }
+}
+
+#[cfg(test)]
+mod bound_tests {
+    use super::tests::test_header;
+    use super::*;
+
+    #[test]
+    fn validate_bounds_sample_time_and_start() {
+        let h = test_header(8, 100);
+        for t in [1e-9, 1e-3, 100.0] {
+            let mut ok = h.clone();
+            ok.tsamp_s = t;
+            assert!(ok.validate().is_ok(), "{t}");
+        }
+        for t in [1e-300, 9e-10, 100.5, 1e300] {
+            let mut bad = h.clone();
+            bad.tsamp_s = t;
+            let msg = bad.validate().unwrap_err();
+            assert!(msg.contains("is outside 1e-9 s to 100 s"), "{t}: {msg}");
+        }
+        for (mjd, sec) in [(-100, 0.0), (39_999, 0.0), (100_001, 0.0), (i64::MIN, 0.0)] {
+            let mut bad = h.clone();
+            bad.start = UtcEpoch { mjd, sec };
+            let msg = bad.validate().unwrap_err();
+            assert!(msg.contains("not a plausible MJD"), "{mjd}: {msg}");
+        }
+        for sec in [-0.5, 86_401.0, 1e9, f64::NAN, f64::INFINITY] {
+            let mut bad = h.clone();
+            bad.start = UtcEpoch { mjd: 60_000, sec };
+            let msg = bad.validate().unwrap_err();
+            assert!(msg.contains("not a time of day"), "{sec}: {msg}");
+        }
+        // The second of a leap second, and the last day in range, are fine.
+        let e = UtcEpoch::checked_start(57_753, 86_400.5, ["d", "s"]).unwrap();
+        assert_eq!((e.mjd, e.sec), (57_753, 86_400.5));
+        assert!(UtcEpoch::checked_start(100_000, 0.0, ["d", "s"]).is_ok());
+        let msg = UtcEpoch::checked_start(60_000, 1e9, ["day", "start_sec"]).unwrap_err();
+        assert!(msg.starts_with("start_sec = 1e9 is not"), "{msg}");
     }
 }

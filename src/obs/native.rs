@@ -9,6 +9,7 @@ use std::path::{Path, PathBuf};
 use serde::{Deserialize, Serialize};
 
 use super::codec::{check_complete, check_finite, check_room, check_whole_rows, quantise};
+use super::header::even_step_mhz;
 use super::npy::{self, Dtype};
 use super::{Header, SampleSink, SampleSource, Site, UtcEpoch};
 use crate::atomic_file::AtomicFile;
@@ -85,7 +86,11 @@ impl JsonHeader {
             ra_deg: self.ra_deg,
             dec_deg: self.dec_deg,
             site: self.site.clone(),
-            start: UtcEpoch::new(self.start_mjd, self.start_sec),
+            start: UtcEpoch::checked_start(
+                self.start_mjd,
+                self.start_sec,
+                ["start_mjd", "start_sec"],
+            )?,
             tsamp_s: self.sample_time_s,
             freqs_mhz: (0..c.count)
                 .map(|i| c.first_mhz + c.step_mhz * i as f64)
@@ -104,18 +109,10 @@ impl JsonHeader {
     /// The JSON form of `header`, whose samples live in `data`.
     fn from_header(header: &Header, data: String) -> Result<JsonHeader, String> {
         let f = &header.freqs_mhz;
-        let step_mhz = if f.len() > 1 {
-            (f[f.len() - 1] - f[0]) / (f.len() - 1) as f64
-        } else {
-            header.chan_bw_mhz
-        };
         let tol = 1e-6 * header.chan_bw_mhz;
-        if f.iter()
-            .enumerate()
-            .any(|(i, &fi)| (fi - (f[0] + step_mhz * i as f64)).abs() > tol)
-        {
-            return Err("the native format needs evenly spaced channels".into());
-        }
+        let step_mhz = even_step_mhz(f, tol)
+            .map_err(|m| format!("the native format needs evenly spaced channels: {m}"))?
+            .unwrap_or(header.chan_bw_mhz);
         if (step_mhz.abs() - header.chan_bw_mhz).abs() > tol {
             return Err(format!(
                 "channel width {} MHz differs from the channel spacing {} MHz; the native format ties them",
@@ -173,10 +170,23 @@ impl NativeReader {
             .map_err(|e| Error::bad_input(path, format!("bad JSON header: {e}")))?;
         let data_path = path.parent().unwrap_or(Path::new("")).join(&json.data);
         let file = File::open(&data_path).map_err(|e| Error::io(&data_path, e))?;
-        let file_len = file.metadata().map_err(|e| Error::io(&data_path, e))?.len();
+        let meta = file.metadata().map_err(|e| Error::io(&data_path, e))?;
+        if meta.is_dir() {
+            return Err(Error::bad_input(
+                &data_path,
+                "is a directory, not a .npy file",
+            ));
+        }
+        let file_len = meta.len();
         let mut file = BufReader::with_capacity(1 << 16, file);
         let npy = npy::read_header(&mut file).map_err(|m| Error::bad_input(&data_path, m))?;
         let [n_samples, n_chan] = npy.shape;
+        if n_samples == 0 {
+            return Err(Error::bad_input(
+                &data_path,
+                format!("no samples: the array's shape is (0, {n_chan})"),
+            ));
+        }
         if n_chan != json.channels.count as u64 {
             return Err(Error::bad_input(
                 path,

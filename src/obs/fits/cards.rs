@@ -34,7 +34,8 @@ impl Cards {
     /// (no further header unit).
     ///
     /// # Errors
-    /// A message for truncation, non-ASCII bytes, a missing `END` or an unreadable value.
+    /// A message for truncation, bytes that are not printable ASCII, a missing `END`
+    /// (including one that runs into the next header unit) or an unreadable value.
     pub fn read(r: &mut impl Read) -> Result<Option<Cards>, String> {
         let mut block = [0u8; BLOCK];
         let mut cards = Cards::default();
@@ -44,13 +45,27 @@ impl Cards {
                 false => return Err("file ends inside a header (no END card)".into()),
                 true => {}
             }
-            if !block.is_ascii() {
-                return Err("header contains non-ASCII bytes (not a FITS file?)".into());
-            }
-            for card in block.chunks_exact(CARD) {
+            for (j, card) in block.chunks_exact(CARD).enumerate() {
+                let number = n * (BLOCK / CARD) + j + 1;
+                // The FITS Standard allows only printable ASCII (0x20 to 0x7E) in a header.
+                if let Some(at) = card.iter().position(|b| !(0x20..=0x7e).contains(b)) {
+                    return Err(format!(
+                        "header card {number} holds byte 0x{:02x} at column {}, \
+                         but a FITS header is printable ASCII only",
+                        card[at],
+                        at + 1
+                    ));
+                }
                 let card = std::str::from_utf8(card).expect("ASCII checked");
-                if card[..8].trim_end() == "END" {
+                let key = card[..8].trim_end();
+                if key == "END" {
                     return Ok(Some(cards));
+                }
+                // SIMPLE and XTENSION are only ever the first card of a header unit.
+                if number > 1 && (key == "SIMPLE" || key == "XTENSION") {
+                    return Err(format!(
+                        "header card {number} is {key}: the header unit before it has no END card"
+                    ));
                 }
                 cards.push_card(card)?;
             }
@@ -289,12 +304,12 @@ mod tests {
     fn written_header_reads_back() {
         let long = "A'long".repeat(30);
         let mut w = CardWriter::default();
+        w.logical("SIMPLE", true, "");
         w.str("SRC_NAME", &long, "source");
         w.str("SHORT", "x", "");
         w.int("NAXIS", -3, "count");
         w.real("TBIN", 6.4e-5, "s");
         w.real("BIG", 1.0e300, "");
-        w.logical("SIMPLE", true, "");
         let bytes = w.finish();
         assert_eq!(bytes.len() % BLOCK, 0);
         let cards = Cards::read(&mut bytes.as_slice()).unwrap().unwrap();

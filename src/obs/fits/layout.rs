@@ -111,16 +111,30 @@ impl Layout {
         })
     }
 
-    /// Samples stored in the row whose `TSUBINT` is `tsubint_s`: the whole row unless
-    /// a shorter duration says the row is padded (as this crate writes a last,
-    /// partial row).
-    pub fn samples_in_row(&self, tsubint_s: f64) -> usize {
+    /// Samples stored in the row whose `TSUBINT` is `tsubint_s`: `round(TSUBINT /
+    /// TBIN)` when that is shorter than a whole row (a padded row, as this crate
+    /// writes a last, partial one), else `NSBLK`.
+    ///
+    /// # Errors
+    /// A negative or non-finite `TSUBINT`, or one that rounds to no samples: the
+    /// padding would otherwise be read as data.
+    pub fn samples_in_row(&self, tsubint_s: f64) -> Result<usize, String> {
+        if !(tsubint_s.is_finite() && tsubint_s >= 0.0) {
+            return Err(format!("TSUBINT = {tsubint_s} is not a duration"));
+        }
         let n = (tsubint_s / self.tbin_s).round();
-        if n.is_finite() && n >= 1.0 && n < self.nsblk as f64 {
+        if n < 1.0 {
+            return Err(format!(
+                "TSUBINT = {tsubint_s} s is less than half a sample of TBIN = {} s, \
+                 so the row would hold no samples",
+                self.tbin_s
+            ));
+        }
+        Ok(if n < self.nsblk as f64 {
             n as usize
         } else {
             self.nsblk
-        }
+        })
     }
 }
 

@@ -12,6 +12,7 @@ use super::table::Column;
 use crate::error::{Error, Result};
 use crate::obs::codec::check_finite;
 use crate::obs::geodesy::{parse_sexagesimal, site_from_itrf};
+use crate::obs::header::even_step_mhz;
 use crate::obs::{Header, SampleSource, UtcEpoch};
 
 /// Streams rows from a FITS search-mode file. Memory is one `SUBINT` row.
@@ -136,6 +137,7 @@ impl FitsReader {
                 col.read_f64(&self.row_bytes, 1, &mut self.scratch)
                     .map_err(&bad)?;
                 l.samples_in_row(self.scratch[0])
+                    .map_err(|m| bad(format!("SUBINT row {0} of {0}: {m}", self.n_rows)))?
             }
             None => l.nsblk,
         };
@@ -155,7 +157,7 @@ impl FitsReader {
             None if freqs.len() > 1 => (freqs[1] - freqs[0]).abs(),
             None => return Err(bad("keyword CHAN_BW is missing".into())),
         };
-        self.load_weights()?;
+        self.load_weights(1)?;
         let h = &mut self.header;
         h.freqs_mhz = freqs;
         h.chan_bw_mhz = chan_bw;
@@ -163,25 +165,51 @@ impl FitsReader {
         h.tsamp_s = l.tbin_s;
         h.nbits = l.nbits;
         h.n_samples = (self.n_rows - 1) * l.nsblk as u64 + last_len as u64;
-        h.validate().map_err(bad)
+        h.validate().map_err(&bad)?;
+        // 1 % of a channel, plus the rounding of DAT_FREQ stored as 32-bit floats.
+        let tol = 0.01 * chan_bw + h.freq_hi_mhz() * f64::from(f32::EPSILON);
+        let step = even_step_mhz(&h.freqs_mhz, tol)
+            .map_err(|m| bad(format!("DAT_FREQ is not evenly spaced: {m}")))?;
+        if let Some(step) = step
+            && (step.abs() - chan_bw).abs() > tol
+        {
+            return Err(bad(format!(
+                "DAT_FREQ steps by {step} MHz but CHAN_BW is {} MHz",
+                l.chan_bw_mhz.unwrap_or(chan_bw)
+            )));
+        }
+        Ok(())
     }
 
-    /// Reads `DAT_WTS`, `DAT_SCL`, `DAT_OFFS` of the row in `row_bytes` into
-    /// per-channel weights and per-(pol, channel) scale and offset, with `ZERO_OFF`
-    /// folded in: value = raw × scale + offset.
-    fn load_weights(&mut self) -> Result<()> {
+    /// Reads `DAT_WTS`, `DAT_SCL`, `DAT_OFFS` of the row in `row_bytes` (SUBINT row
+    /// `row`, counted from 1) into per-channel weights and per-(pol, channel) scale
+    /// and offset, with `ZERO_OFF` folded in: value = raw × scale + offset.
+    ///
+    /// A weight that is NaN, infinite or negative is refused rather than guessed at:
+    /// a corrupt weight column says nothing reliable about the rest of the row.
+    fn load_weights(&mut self, row: u64) -> Result<()> {
         let l = &self.layout;
         let n = l.n_chan * l.npol;
         let bad = |m: String| Error::bad_input(&self.path, m);
         let s = &mut self.scratch;
-        let row = &self.row_bytes;
+        let row_bytes = &self.row_bytes;
+        read_or(l.wts.as_ref(), row_bytes, l.n_chan, 1.0, s).map_err(bad)?;
+        if let Some((c, w)) = s
+            .iter()
+            .enumerate()
+            .find(|(_, w)| !(w.is_finite() && **w >= 0.0))
+        {
+            return Err(bad(format!(
+                "SUBINT row {row}: DAT_WTS of channel {c} is {w}, not a weight \
+                 (0 masks a channel, a positive value keeps it)"
+            )));
+        }
         self.weights.clear();
-        read_or(l.wts.as_ref(), row, l.n_chan, 1.0, s).map_err(bad)?;
         self.weights.extend(s.iter().map(|&w| w as f32));
-        read_or(l.scl.as_ref(), row, n, 1.0, s).map_err(bad)?;
+        read_or(l.scl.as_ref(), row_bytes, n, 1.0, s).map_err(bad)?;
         self.scale.clear();
         self.scale.extend(s.iter().map(|&v| v as f32));
-        read_or(l.offs.as_ref(), row, n, 0.0, s).map_err(bad)?;
+        read_or(l.offs.as_ref(), row_bytes, n, 0.0, s).map_err(bad)?;
         self.offset.clear();
         let zero = l.zero_off;
         self.offset.extend(
@@ -212,11 +240,11 @@ impl FitsReader {
         self.file.read_exact(&mut self.row_bytes).map_err(|e| {
             Error::bad_input(
                 &self.path,
-                format!("cannot read SUBINT row {}: {e}", self.rows_loaded),
+                format!("cannot read SUBINT row {}: {e}", self.rows_loaded + 1),
             )
         })?;
         self.rows_loaded += 1;
-        self.load_weights()?;
+        self.load_weights(self.rows_loaded)?;
         let l = &self.layout;
         let (nc, np) = (l.n_chan, l.npol);
         let n_time = dest.len() / nc;
@@ -302,7 +330,11 @@ fn header_from_primary(p: &Cards) -> Result<Header, String> {
         telescope,
         ra_deg: angle("RA")? * 15.0,
         dec_deg: angle("DEC")?,
-        start: UtcEpoch::new(p.int("STT_IMJD")?, start_sec),
+        start: UtcEpoch::checked_start(
+            p.int("STT_IMJD")?,
+            start_sec,
+            ["STT_IMJD", "STT_SMJD + STT_OFFS"],
+        )?,
         // Filled from the SUBINT table by `complete_header`.
         tsamp_s: 0.0,
         freqs_mhz: Vec::new(),
