@@ -9,6 +9,12 @@ pub const DISPERSION_CONSTANT_S_MHZ2: f64 = 4.148808e3;
 /// Seconds in a day.
 pub const SECONDS_PER_DAY: f64 = 86_400.0;
 
+/// MJDs a recording or an interval of one may have: 40000 (1968 May 24, before any
+/// digitally recorded search of this kind) to 100000 (2132 September 1),
+/// `common practice`. A value outside is a garbled date or a unit slip (a JD,
+/// seconds, a year: MJD −100 is in 1858), and would swamp exposure and rate limits.
+pub const PLAUSIBLE_MJD: std::ops::RangeInclusive<f64> = 40_000.0..=100_000.0;
+
 /// (`mjd` + d, `sec` − d · 86400) for the whole number of days d that leaves the
 /// seconds in `[0, 86400)`: for time scales without leap seconds (TT, TDB). The day
 /// count saturates for absurd `sec`.

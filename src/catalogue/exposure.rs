@@ -11,7 +11,7 @@ use serde::Serialize;
 
 use super::Catalogue;
 use crate::error::{Error, Result};
-use crate::units::{SECONDS_PER_DAY, delay_to_infinity_s};
+use crate::units::{PLAUSIBLE_MJD, SECONDS_PER_DAY, delay_to_infinity_s};
 
 /// One stored exposure interval.
 #[derive(Debug, Clone, PartialEq, Serialize)]
@@ -293,12 +293,6 @@ struct ExposureRow {
     snr_threshold: Option<f64>,
     fluence_limit_jy_ms: Option<f64>,
 }
-
-/// MJDs an imported interval may have: 40000 (1968 May 24) to 100000 (2132 September 1),
-/// from the first digitally recorded pulsar searches to a century ahead. A value
-/// outside is a typing or unit error (a JD, seconds, a year), and would swamp the
-/// exposure and rate limits.
-pub const PLAUSIBLE_MJD: std::ops::RangeInclusive<f64> = 40_000.0..=100_000.0;
 
 /// Parses and checks every row before anything is written; rows keep their line number.
 fn parse_exposure_csv(path: &Path, reader: impl Read) -> Result<Vec<(u64, ExposureRow)>> {

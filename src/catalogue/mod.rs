@@ -26,7 +26,7 @@ mod voevent;
 
 pub use bursts::{BurstTiming, CompletenessRecord};
 pub use exposure::{
-    ExposureImport, ExposureInterval, PLAUSIBLE_MJD, exposure_hours, merge_intervals, sweep_window,
+    ExposureImport, ExposureInterval, exposure_hours, merge_intervals, sweep_window,
 };
 pub use from_search::EarlierRun;
 pub use query::{Bounds, BurstFilter, BurstRow, CandidateFilter, CandidateRow};

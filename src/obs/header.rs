@@ -3,7 +3,7 @@
 use serde::{Deserialize, Serialize};
 
 use crate::timing::leap::{tai_minus_utc_s, utc_day_length_s};
-use crate::units::{SECONDS_PER_DAY, whole_days};
+use crate::units::{PLAUSIBLE_MJD, SECONDS_PER_DAY, whole_days};
 
 /// Channel centres a header may hold, MHz: from below the ionosphere's cutoff (about
 /// 10 MHz) to the top of the submillimetre band (1 THz), `common practice`. Anything
@@ -16,11 +16,6 @@ pub(crate) const RADIO_WINDOW_MHZ: std::ops::RangeInclusive<f64> = 1.0..=1.0e6;
 /// cadence), `common practice`. Anything outside is a unit mistake or a garbled value
 /// (1e-300 s made `search` build a boxcar width ladder of `usize::MAX` samples).
 const SAMPLE_TIME_S: std::ops::RangeInclusive<f64> = 1e-9..=100.0;
-
-/// Start days a header may hold, MJD: 40000 (1968, before any digital recording of
-/// this kind) to 100000 (2132), `common practice`. Anything outside is a garbled or
-/// mistyped date (MJD -100 is in 1858).
-pub(crate) const PLAUSIBLE_MJD: std::ops::RangeInclusive<i64> = 40_000..=100_000;
 
 /// Seconds into a UTC day a start time may give: 86401 on a day that ends with a leap
 /// second, so anything at or past 86401 (or negative) belongs to another day and is a
@@ -86,7 +81,7 @@ impl UtcEpoch {
     /// # Errors
     /// A message naming the value that is out of range.
     pub fn checked_start(mjd: i64, sec: f64, names: [&str; 2]) -> Result<Self, String> {
-        if !PLAUSIBLE_MJD.contains(&mjd) {
+        if !PLAUSIBLE_MJD.contains(&(mjd as f64)) {
             return Err(format!(
                 "{} = {mjd} is not a plausible MJD (need {} to {})",
                 names[0],
