@@ -177,7 +177,10 @@ impl Catalogue {
     /// If the same content was already recorded with the same configuration hash,
     /// nothing is written and [`RecordOutcome::AlreadyPresent`] is returned. The
     /// observation's source is added to `source` (header position, no reference
-    /// DM) if not yet known, and the searched span becomes exposure for it.
+    /// DM) if not yet known, and the searched span becomes exposure for it — unless
+    /// the run masked everything (`fraction_masked` 1): a dead receiver or a mask
+    /// over the whole band searched nothing, and counting its time would tighten the
+    /// source's rate limits with no data behind them.
     ///
     /// # Errors
     /// Invalid configuration JSON, or an SQLite failure (then nothing is written).
@@ -208,7 +211,8 @@ impl Catalogue {
             let run_id =
                 insert_run(tx, obs_id, &config_sha, run, candidates.len()).map_err(&err)?;
             insert_candidates(tx, run_id, candidates).map_err(&err)?;
-            insert_exposure(tx, obs, run_id, run.snr_threshold).map_err(&err)?;
+            let searched_nothing = run.fraction_masked.is_some_and(|f| f >= 1.0);
+            insert_exposure(tx, obs, run_id, run.snr_threshold, searched_nothing).map_err(&err)?;
             Ok(RecordOutcome::Inserted { run_id })
         })
     }
@@ -319,6 +323,7 @@ fn insert_exposure(
     obs: &ObservationRecord,
     run_id: i64,
     snr_threshold: Option<f64>,
+    searched_nothing: bool,
 ) -> rusqlite::Result<()> {
     let h = &obs.header;
     tx.execute(
@@ -326,8 +331,8 @@ fn insert_exposure(
         params![h.source, h.ra_deg, h.dec_deg],
     )?;
     let (start, end) = obs.span_mjd();
-    if end <= start {
-        return Ok(()); // an empty recording adds no exposure
+    if end <= start || searched_nothing {
+        return Ok(()); // an empty or wholly masked recording adds no exposure
     }
     tx.execute(
         "INSERT OR IGNORE INTO exposure (source_id, start_mjd, end_mjd, snr_threshold, run_id)
@@ -425,6 +430,25 @@ mod tests {
             )
             .unwrap();
         assert_eq!(stats, (Some(0.125), Some(3_686_400)));
+    }
+
+    // A run that masked every channel-sample searched nothing: recorded (so it is
+    // not searched again with that configuration), but its span is no exposure. One
+    // that masked nearly everything still counts.
+    #[test]
+    fn a_wholly_masked_run_adds_no_exposure() {
+        let dir = tempfile::tempdir().unwrap();
+        let mut cat = Catalogue::open(&dir.path().join("c.sqlite")).unwrap();
+        let obs = observation("A", 1);
+        let mut dead = run(8.0);
+        dead.fraction_masked = Some(1.0);
+        let outcome = cat.record_search(&obs, &dead, &[]).unwrap();
+        assert!(matches!(outcome, RecordOutcome::Inserted { .. }));
+        assert!(cat.exposure(None).unwrap().is_empty());
+        let mut nearly = run(7.0);
+        nearly.fraction_masked = Some(0.99);
+        cat.record_search(&obs, &nearly, &[]).unwrap();
+        assert_eq!(cat.exposure(None).unwrap().len(), 1);
     }
 
     // A full disk is simulated with SQLite's page limit, which fails a write with the

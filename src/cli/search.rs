@@ -162,7 +162,7 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         if result.fraction_masked >= 1.0 {
             note!(
                 "{label}: every channel was masked throughout (flagged, --mask-mhz or zero \
-                 weights): nothing in it was searched"
+                 weights): nothing in it was searched, and it adds no exposure"
             );
         }
         if let (Some(cat), Some(obs)) = (catalogue.as_mut(), &record) {
