@@ -102,6 +102,18 @@ fn missing_observation_is_one_clear_error() {
         "{err}"
     );
     assert_eq!(err.lines().count(), 1, "{err}");
+    for bad in ["-5", "nan"] {
+        let out = Command::new(env!("CARGO_BIN_EXE_burstbook"))
+            .args([
+                "report",
+                dir.path().to_str().unwrap(),
+                "--neighbourhood-s",
+                bad,
+            ])
+            .output()
+            .unwrap();
+        cli_common::assert_one_line_failure(&out, &["--neighbourhood-s must be a finite"]);
+    }
 }
 
 // A single `--obs` file also serves candidates whose recorded path does not resolve,

