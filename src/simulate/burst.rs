@@ -110,9 +110,10 @@ impl Burst {
         let (lo, hi) = shape.support_s();
         let t0 = self.t_inf_s + delay_to_infinity_s(self.dm, f_hi) + lo;
         let t1 = self.t_inf_s + delay_to_infinity_s(self.dm, f_lo) + hi;
+        // Saturating: an absurd burst (checked by the callers) must not overflow.
         (
-            (t0 / header.tsamp_s).floor() as i64 - 1,
-            (t1 / header.tsamp_s).ceil() as i64 + 1,
+            ((t0 / header.tsamp_s).floor() as i64).saturating_sub(1),
+            ((t1 / header.tsamp_s).ceil() as i64).saturating_add(1),
         )
     }
 }
