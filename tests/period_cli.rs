@@ -1,7 +1,7 @@
 //! End-to-end runs of `burstbook period ...` on freshly written demo sets.
 
 mod cli_common;
-use cli_common::assert_success;
+use cli_common::{assert_one_line_failure, assert_success};
 
 use std::path::Path;
 use std::process::Command;
@@ -124,5 +124,37 @@ fn bad_input_is_one_line_naming_the_file() {
     assert!(
         err.contains("t.csv") && err.contains("no column 'mjd'"),
         "{err}"
+    );
+}
+
+/// A forecast stops, with a note, once the window widened by the period uncertainty
+/// is longer than the period (100 million windows used to fill gigabytes), asks for
+/// no more than 1000 windows, and no Monte Carlo sets print "not computed", not NaN.
+#[test]
+fn activity_forecasts_stop_where_they_stop_meaning_anything() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    assert!(burstbook(&["period", "synth"], d).status.success());
+    let activity = ["period", "activity", "--sims", "0"];
+    let out = burstbook(&[&activity[..], &["--forecast", "1000"]].concat(), d);
+    assert_success(&out);
+    let text = String::from_utf8_lossy(&out.stdout);
+    let windows = text
+        .lines()
+        .filter(|l| l.trim_start().starts_with("cycle"))
+        .count();
+    assert!((1..1000).contains(&windows), "{windows} windows: {text}");
+    assert!(text.contains("stopped at cycle"), "{text}");
+    assert!(text.contains("Monte Carlo FAP not computed"), "{text}");
+    assert!(!text.contains("NaN"), "{text}");
+    let a = json(&burstbook(
+        &[&activity[..], &["--forecast", "1000", "--json"]].concat(),
+        d,
+    ));
+    assert_eq!(a["next_windows"].as_array().unwrap().len(), windows);
+    assert!(a["forecast_stopped_at_cycle"].as_i64().is_some());
+    assert_one_line_failure(
+        &burstbook(&[&activity[..], &["--forecast", "100000000"]].concat(), d),
+        &["--forecast 100000000 is beyond 1000 windows"],
     );
 }
