@@ -57,6 +57,8 @@ pub fn run(a: Args) -> anyhow::Result<()> {
         forecast: a.forecast,
         after_day: a.after_mjd.map(|m| m - toas.ref_mjd as f64),
     };
+    // Opened before the search, so a bad path fails at once rather than after it.
+    let periodogram = a.periodogram_out.as_deref().map(create).transpose()?;
     let bar = progress::bar(a.sims as u64, "simulations");
     let r = search_activity(
         &toas.days(),
@@ -67,8 +69,7 @@ pub fn run(a: Args) -> anyhow::Result<()> {
     )
     .with_context(|| a.input.describe())?;
     bar.finish_and_clear();
-    if let Some(path) = &a.periodogram_out {
-        let mut w = create(path)?;
+    if let Some(mut w) = periodogram {
         writeln!(w, "period_days,chi2,window_fraction,ls_power")?;
         let p = &r.periodogram;
         for i in 0..p.period_days.len() {
