@@ -1,7 +1,7 @@
 //! End-to-end: `burstbook barycentre` on small CSV files.
 
 mod cli_common;
-use cli_common::assert_success;
+use cli_common::{assert_one_line_failure, assert_success};
 
 use std::process::Command;
 
@@ -66,6 +66,11 @@ fn bad_input_gives_one_line_naming_the_file() {
         ("time,snr\n60000.5,3\n", "no column named `mjd_utc`"),
         ("mjd_utc\n60000.5\nsoon\n", "`soon` is not an MJD"),
         ("mjd_utc\n30000.5\n", "before 1972"),
+        // Which of two `mjd_utc` columns holds the times is a guess: the first was used.
+        (
+            "mjd_utc,mjd_utc\n61011.3125,61012\n",
+            "2 columns are named `mjd_utc` (columns 1 and 2)",
+        ),
     ] {
         let out = run(dir.path(), input, &["--site", "10,45,500"]);
         assert!(!out.status.success());
@@ -97,4 +102,24 @@ fn out_dev_stdout_appends_to_a_redirected_file() {
         text.starts_with("earlier lines\nmjd_utc,mjd_tdb,correction_s\n60000.5,"),
         "{text}"
     );
+}
+
+/// An RA outside [0, 360) is refused rather than wrapped (400° gave the answer for 40°).
+#[test]
+fn a_right_ascension_outside_a_circle_is_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    let input = dir.path().join("in.csv");
+    std::fs::write(&input, "mjd_utc\n60000.5\n").unwrap();
+    for ra in ["400", "360", "-10"] {
+        let out = Command::new(env!("CARGO_BIN_EXE_burstbook"))
+            .args(["barycentre", "--ra-deg", ra, "--dec-deg", "41"])
+            .args(["--site", "10,45,100", "--out"])
+            .arg(dir.path().join("out.csv"))
+            .arg("--in")
+            .arg(&input)
+            .output()
+            .unwrap();
+        assert_one_line_failure(&out, &[&format!("RA {ra}°"), "RA must be in [0, 360)"]);
+    }
+    assert!(!dir.path().join("out.csv").exists());
 }

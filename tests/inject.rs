@@ -2,6 +2,9 @@
 //! completeness curve against the Gaussian-noise prediction, the S/N scale of bright
 //! bursts, the untouched input file, the outputs and the catalogue record.
 
+mod cli_common;
+use cli_common::{assert_one_line_failure, burstbook};
+
 use std::path::{Path, PathBuf};
 
 use burstbook::catalogue::{Catalogue, content_hash};
@@ -14,15 +17,20 @@ use statrs::distribution::{ContinuousCDF, Normal};
 /// 16 channels over 1200–1600 MHz, 512 µs, Gaussian noise (mean 10, σ 2, so the
 /// bursts must be scaled by the data's σ), no bursts, no interference.
 fn noise_observation(dir: &Path, length_s: f64) -> PathBuf {
+    observation(dir, "quiet.json", length_s, "")
+}
+
+/// [`noise_observation`] named `name`, with `band_extra` added to its `[band]` table.
+fn observation(dir: &Path, name: &str, length_s: f64, band_extra: &str) -> PathBuf {
     let text = format!(
         "[observation]\nsource = \"Quiet Field\"\ntelescope = \"Paper Dish\"\nra_deg = 50.0\n\
          dec_deg = 10.0\nstart_mjd = 61200.25\nlength_s = {length_s}\ntsamp_s = 512e-6\n\
          [site]\nname = \"Paper Dish\"\nlon_deg = 5.0\nlat_deg = 40.0\nheight_m = 300.0\n\
-         [band]\nfirst_chan_mhz = 1587.5\nchan_step_mhz = -25.0\nn_chan = 16\n\
+         [band]\nfirst_chan_mhz = 1587.5\nchan_step_mhz = -25.0\nn_chan = 16\n{band_extra}\n\
          [noise]\nnbits = 32\nmean = 10.0\nsigma = 2.0\nsefd_jy = 30.0\n"
     );
     let sim = Simulation::new(&Scenario::parse(&text).unwrap(), 21).unwrap();
-    let path = dir.join("quiet.json");
+    let path = dir.join(name);
     let mut sink = obs::create(&path, &sim.header, Container::Native).unwrap();
     write_observation(&sim, sink.as_mut()).unwrap();
     sink.finish().unwrap();
@@ -167,19 +175,25 @@ fn completeness_follows_the_gaussian_prediction_and_input_is_untouched() {
     );
 }
 
-/// The command writes its three outputs, records the levels in the catalogue named
-/// by `--catalogue`, and refuses a missing file with one line naming it.
-#[test]
-fn command_writes_outputs_and_records_in_the_catalogue() {
-    let dir = tempfile::tempdir().unwrap();
-    let path = noise_observation(dir.path(), 6.0);
-    let toml = dir.path().join("search.toml");
+/// A search configuration for the short test files: DM 0–30, boxcars to 16 ms.
+fn search_toml(dir: &Path) -> PathBuf {
+    let toml = dir.join("search.toml");
     std::fs::write(
         &toml,
         "snr_threshold = 6.0\nmax_width_s = 0.016\nbaseline_s = 0.5\n\
          [plan]\ndm_min = 0.0\ndm_max = 30.0\nmin_width_s = 0.0\ntolerance = 1.25\nmax_downsample = 8\n",
     )
     .unwrap();
+    toml
+}
+
+/// The command writes its three outputs, records the levels in the catalogue named
+/// by `--catalogue`, and refuses a missing file with one line naming it.
+#[test]
+fn command_writes_outputs_and_records_in_the_catalogue() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = noise_observation(dir.path(), 6.0);
+    let toml = search_toml(dir.path());
     let out = dir.path().join("out");
     let cat = dir.path().join("book.sqlite");
     let bin = env!("CARGO_BIN_EXE_burstbook");
@@ -238,4 +252,56 @@ fn command_writes_outputs_and_records_in_the_catalogue() {
         err.contains("nowhere.json") && err.lines().count() <= 2,
         "{err}"
     );
+}
+
+/// Settings that cannot give a completeness measurement are refused in one line
+/// naming the flag or the file: no bursts, a bright level that is not a
+/// number, a DM range whose sweeps cannot fit the file (this one used to hang,
+/// modelling sweeps of years), and a file with every channel masked.
+#[test]
+fn impossible_injections_are_one_line_refusals() {
+    let dir = tempfile::tempdir().unwrap();
+    let quiet = noise_observation(dir.path(), 2.0);
+    let all_channels: Vec<String> = (0..16).map(|c| c.to_string()).collect();
+    let masked = observation(
+        dir.path(),
+        "masked.json",
+        2.0,
+        &format!("masked_channels = [{}]", all_channels.join(", ")),
+    );
+    let toml = search_toml(dir.path());
+    let out = dir.path().join("out");
+    let (quiet, masked) = (quiet.to_str().unwrap(), masked.to_str().unwrap());
+    for (file, extra, needles) in [
+        (
+            quiet,
+            &["--count", "0"][..],
+            &["--count must be at least 1"][..],
+        ),
+        (quiet, &["--bright-snr", "nan"], &["--bright-snr", "NaN"]),
+        (
+            quiet,
+            &["--count", "10", "--dm", "0:1e9"],
+            &[quiet, "DM 1000000000.0", "longer than the searched part"],
+        ),
+        (
+            quiet,
+            &["--count", "10", "--width-ms", "1000:100000"],
+            &[
+                quiet,
+                "width 100000.000 ms",
+                "longer than the searched part",
+            ],
+        ),
+        (
+            masked,
+            &["--count", "5"],
+            &[masked, "every channel is masked"],
+        ),
+    ] {
+        let mut args = vec!["inject", file, "--no-catalogue", "--config"];
+        args.extend([toml.to_str().unwrap(), "--out", out.to_str().unwrap()]);
+        args.extend(extra);
+        assert_one_line_failure(&burstbook(&args), needles);
+    }
 }

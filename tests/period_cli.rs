@@ -1,7 +1,7 @@
 //! End-to-end runs of `burstbook period ...` on freshly written demo sets.
 
 mod cli_common;
-use cli_common::assert_success;
+use cli_common::{assert_one_line_failure, assert_success};
 
 use std::path::Path;
 use std::process::Command;
@@ -124,5 +124,101 @@ fn bad_input_is_one_line_naming_the_file() {
     assert!(
         err.contains("t.csv") && err.contains("no column 'mjd'"),
         "{err}"
+    );
+}
+
+/// Bad arrival times, sessions and values are refused in one line naming the file,
+/// the line and the value as written (sessions used to be shown in days relative to
+/// the data, fluences ≤ 0 were dropped silently, a binary file printed a Rust
+/// structure, 1e15 was taken for an MJD, and a merge left "got 1" unexplained).
+#[test]
+fn bad_arrival_files_are_named_with_line_and_value() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    assert!(burstbook(&["period", "synth"], d).status.success());
+    std::fs::write(d.join("toas.csv"), "mjd\n61001.35\n61004.7\n61008.5\n").unwrap();
+    std::fs::write(
+        d.join("inverted.csv"),
+        "start_mjd,end_mjd\n# sessions\n61001.3,61001.4\n61001.4,61001.3\n",
+    )
+    .unwrap();
+    std::fs::write(d.join("v.csv"), "fluence_jy_ms\n2.5\n-1.0\n3\n").unwrap();
+    std::fs::write(d.join("binary.csv"), [0xff, 0xfe, 0x00, 0x81, b'\n', 0xc3]).unwrap();
+    std::fs::write(
+        d.join("same.csv"),
+        "mjd\n61000.5\n61000.5\n61000.5\n61000.5\n",
+    )
+    .unwrap();
+    std::fs::write(d.join("huge.csv"), "mjd\n61000.5\n61000.7\n1e15\n").unwrap();
+    let stats = ["period", "stats", "--boot", "5"];
+    for (args, needles) in [
+        (
+            &["period", "activity", "--sims", "0", "--toas", "toas.csv"][..],
+            &[
+                "inverted.csv",
+                "line 4: end_mjd 61001.3 is not after start_mjd 61001.4",
+            ][..],
+        ),
+        (
+            &[&stats[..], &["--values", "v.csv"]].concat(),
+            &["v.csv", "line 3: fluence_jy_ms -1.0 must be > 0"],
+        ),
+        (
+            &["period", "rotation", "--toas", "binary.csv"],
+            &["binary.csv", "line 1: not text (invalid UTF-8)"],
+        ),
+        (
+            &["period", "rotation", "--toas", "same.csv"],
+            &[
+                "same.csv",
+                "4 read, 1 left after merging arrivals closer than",
+            ],
+        ),
+        (
+            &["period", "rotation", "--toas", "huge.csv"],
+            &["huge.csv", "line 4: '1e15' is not an MJD"],
+        ),
+        (
+            &["period", "rotation", "--periodogram-out", "toas.csv/p.csv"],
+            &["toas.csv/p.csv", "toas.csv is a file, not a directory"],
+        ),
+    ] {
+        let mut args = args.to_vec();
+        if args[1] == "activity" {
+            args.extend(["--exposure", "inverted.csv"]);
+        }
+        assert_one_line_failure(&burstbook(&args, d), needles);
+    }
+}
+
+/// A forecast stops, with a note, once the window widened by the period uncertainty
+/// is longer than the period (100 million windows used to fill gigabytes), asks for
+/// no more than 1000 windows, and no Monte Carlo sets print "not computed", not NaN.
+#[test]
+fn activity_forecasts_stop_where_they_stop_meaning_anything() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    assert!(burstbook(&["period", "synth"], d).status.success());
+    let activity = ["period", "activity", "--sims", "0"];
+    let out = burstbook(&[&activity[..], &["--forecast", "1000"]].concat(), d);
+    assert_success(&out);
+    let text = String::from_utf8_lossy(&out.stdout);
+    let windows = text
+        .lines()
+        .filter(|l| l.trim_start().starts_with("cycle"))
+        .count();
+    assert!((1..1000).contains(&windows), "{windows} windows: {text}");
+    assert!(text.contains("stopped at cycle"), "{text}");
+    assert!(text.contains("Monte Carlo FAP not computed"), "{text}");
+    assert!(!text.contains("NaN"), "{text}");
+    let a = json(&burstbook(
+        &[&activity[..], &["--forecast", "1000", "--json"]].concat(),
+        d,
+    ));
+    assert_eq!(a["next_windows"].as_array().unwrap().len(), windows);
+    assert!(a["forecast_stopped_at_cycle"].as_i64().is_some());
+    assert_one_line_failure(
+        &burstbook(&[&activity[..], &["--forecast", "100000000"]].concat(), d),
+        &["--forecast 100000000 is beyond 1000 windows"],
     );
 }

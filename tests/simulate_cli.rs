@@ -191,3 +191,89 @@ fn an_output_in_a_missing_directory_is_one_line_naming_it() {
     left.sort();
     assert_eq!(left, ["s.toml"]);
 }
+
+/// Scenarios that cannot be written as stated are refused in one line naming the
+/// scenario, and nothing is written: a file far larger than the free disk space
+/// (1e12 s used to start writing tens of petabytes), a carrier outside the band
+/// (it used to be listed in the truth table though not in the data), a zero width
+/// range (the bound used to print as a 300-digit number) and a reversed top hat.
+#[test]
+fn impossible_scenarios_are_one_line_refusals_naming_the_scenario() {
+    let dir = tempfile::tempdir().unwrap();
+    let toml = dir.path().join("s.toml");
+    let out = dir.path().join("x.json");
+    let good = SCENARIO.replace("NBITS", "8");
+    for (scenario, needles) in [
+        (
+            good.replace("length_s = 1.5", "length_s = 1e12"),
+            &["needs 128.0 PB", "free"][..],
+        ),
+        (
+            format!("{good}[[rfi.narrowband]]\nfreq_mhz = 5000.0\nstrength = 3.0\n"),
+            &["rfi.narrowband 1: 5000 MHz is outside the band 1200–1600 MHz"],
+        ),
+        (
+            format!(
+                "{good}[random_bursts]\ncount = 2\nt_range_s = [0.1, 1.0]\n\
+                 dm_range = [10.0, 20.0]\nwidth_ms_range = [0.0, 2.0]\nsnr_range = [8.0, 9.0]\n"
+            ),
+            &["random_bursts.width_ms_range must be [low, high] with 0 < low ≤ high"],
+        ),
+        (
+            good.replace(
+                "snr = 20.0",
+                "snr = 20.0\nspectrum = { kind = \"top_hat\", lo_mhz = 1600.0, hi_mhz = 1500.0 }",
+            ),
+            &["burst 1: spectrum top_hat lo_mhz must be < hi_mhz"],
+        ),
+    ] {
+        std::fs::write(&toml, scenario).unwrap();
+        let r = burstbook(&[
+            "simulate",
+            toml.to_str().unwrap(),
+            "--out",
+            out.to_str().unwrap(),
+        ]);
+        assert_one_line_failure(&r, &[&["s.toml"], needles].concat());
+        assert!(!String::from_utf8_lossy(&r.stderr).contains("00000000"));
+        let left: Vec<_> = std::fs::read_dir(dir.path()).unwrap().collect();
+        assert_eq!(left.len(), 1, "files written: {left:?}");
+    }
+}
+
+/// `--format fits` with a `.json` name wrote a FITS file the tool then read as a
+/// native header and could not open; the mismatch is refused before writing.
+#[test]
+fn a_format_the_name_contradicts_is_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    let toml = dir.path().join("s.toml");
+    std::fs::write(&toml, SCENARIO.replace("NBITS", "8")).unwrap();
+    for (name, format, needle) in [
+        ("y.json", "fits", "--format fits needs a NAME.fits"),
+        ("y.fits", "native", "--format native needs a NAME.json"),
+    ] {
+        let out = dir.path().join(name);
+        let r = burstbook(&[
+            "simulate",
+            toml.to_str().unwrap(),
+            "--out",
+            out.to_str().unwrap(),
+            "--format",
+            format,
+        ]);
+        assert_one_line_failure(&r, &[out.to_str().unwrap(), needle]);
+        assert!(!out.exists());
+    }
+    // A name that implies no container takes the one asked for, readable by its bytes.
+    let out = dir.path().join("y.sim");
+    let r = burstbook(&[
+        "simulate",
+        toml.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+        "--format",
+        "fits",
+    ]);
+    assert_success(&r);
+    assert_success(&burstbook(&["inspect", out.to_str().unwrap()]));
+}

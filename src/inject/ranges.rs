@@ -123,6 +123,20 @@ impl InjectionRanges {
         }
     }
 
+    /// The burst of largest extent in time the ranges allow (highest DM, widest pulse,
+    /// most scattering), at `t_inf_s` = 0 and unit amplitude: every drawn burst fits
+    /// wherever this one does.
+    pub fn widest(&self) -> Burst {
+        Burst {
+            t_inf_s: 0.0,
+            dm: self.dm[1],
+            width_s: self.width_ms[1] * 1e-3,
+            scatter_1ghz_s: self.scatter_ms_1ghz.map_or(0.0, |r| r[1] * 1e-3),
+            spectrum: Spectrum::PowerLaw { index: 0.0 },
+            amplitude: 1.0,
+        }
+    }
+
     /// Draws one burst (at `t_inf_s` = 0) from `rng`.
     ///
     /// # Errors

@@ -9,11 +9,11 @@ use serde::Serialize;
 
 use super::matching::{Matcher, Target};
 use super::ranges::{Drawn, InjectionRanges};
-use super::schedule::place;
+use super::schedule::{arrival_room, place};
 use super::source::{InjectingSource, channel_sigma};
 use super::summary::{Summary, summarise};
 use crate::candidate::{Candidate, Verdict};
-use crate::error::Result;
+use crate::error::{Error, Result};
 use crate::obs::{Header, SampleSource};
 use crate::search::{SearchConfig, search_source};
 use crate::simulate::Burst;
@@ -47,6 +47,28 @@ impl Default for InjectOptions {
             count_rfi_as_found: false,
             bright_snr: 10.0,
         }
+    }
+}
+
+impl InjectOptions {
+    /// Checks the settings that do not depend on the file (the ranges are checked
+    /// against its header by [`InjectionRanges::validate`]).
+    ///
+    /// # Errors
+    /// [`Error::Config`] for no bursts or a bright-S/N level that is not a number > 0.
+    pub fn validate(&self) -> Result<()> {
+        if self.count == 0 {
+            return Err(Error::Config(
+                "--count must be at least 1: there is nothing to measure without bursts".into(),
+            ));
+        }
+        if !(self.bright_snr.is_finite() && self.bright_snr > 0.0) {
+            return Err(Error::Config(format!(
+                "--bright-snr must be a finite expected S/N > 0, got {}",
+                self.bright_snr
+            )));
+        }
+        Ok(())
     }
 }
 
@@ -137,8 +159,15 @@ where
     F: Fn() -> Result<Box<dyn SampleSource>> + Sync,
 {
     config.validate()?;
+    options.validate()?;
     let first = open()?;
     let header = first.header().clone();
+    if header.weights.iter().all(|&w| w == 0.0) {
+        return Err(Error::bad_input(
+            label,
+            "every channel is masked (weight 0): there is no band to inject bursts into",
+        ));
+    }
     options.ranges.validate(&header)?;
     let untouched = search_source(first, label, config, None)?;
     if let Some(pb) = progress {
@@ -146,11 +175,17 @@ where
     }
     let sigma = channel_sigma(&mut open()?, options.sigma_rows)?;
 
+    let layout = &untouched.layout;
+    // The search looks for pulse starts only where every trial DM can be dedispersed.
+    let start_limit = header.n_samples as i64 - (layout.max_delay + layout.margin) as i64;
+    // Refused here, before any burst is modelled: the widest burst the ranges allow
+    // must fit (a DM far beyond the file would otherwise model a sweep of years).
+    arrival_room(&options.ranges.widest(), &header, start_limit)
+        .map_err(|msg| Error::bad_input(label, msg))?;
     let mut rng = ChaCha8Rng::seed_from_u64(options.seed);
     let drawn: Vec<Drawn> = (0..options.count)
         .map(|_| options.ranges.draw(&header, &mut rng))
         .collect::<Result<_>>()?;
-    let layout = &untouched.layout;
     let time_link = (config.cluster.time_link_s / header.tsamp_s).ceil() as i64;
     let guard = (layout.margin as i64) + time_link;
     let busy: Vec<(i64, i64)> = untouched
@@ -159,8 +194,6 @@ where
         .map(|c| candidate_span(c, &header))
         .collect();
     let bursts: Vec<Burst> = drawn.iter().map(|d| d.burst).collect();
-    // The search looks for pulse starts only where every trial DM can be dedispersed.
-    let start_limit = header.n_samples as i64 - (layout.max_delay + layout.margin) as i64;
     let placed = place(&bursts, &header, guard, &busy, start_limit, &mut rng)?;
     let n_passes = placed.iter().map(|p| p.pass + 1).max().unwrap_or(0);
     if let Some(pb) = progress {

@@ -44,24 +44,10 @@ pub fn place(
     start_limit: i64,
     rng: &mut ChaCha8Rng,
 ) -> Result<Vec<Placed>> {
-    let n = header.n_samples as i64;
     let mut passes: Vec<Vec<(i64, i64)>> = Vec::new();
     let mut placed = Vec::with_capacity(bursts.len());
     for (index, b) in bursts.iter().enumerate() {
-        let at_zero = Burst { t_inf_s: 0.0, ..*b };
-        let (a, e) = at_zero.sample_span(header);
-        // Whole samples of freedom, kept one sample inside so rounding cannot spill.
-        let (lo, hi) = (-a + 1, (n - e).min(start_limit - a) - 1);
-        if hi <= lo {
-            return Err(Error::Config(format!(
-                "a burst at DM {:.1} of width {:.3} ms spans {} samples with its sweep, \
-                 longer than the searched part of the file ({n} samples, pulse starts \
-                 searched before sample {start_limit})",
-                b.dm,
-                b.width_s * 1e3,
-                e - a
-            )));
-        }
+        let (lo, hi) = arrival_room(b, header, start_limit).map_err(Error::Config)?;
         let free = |intervals: &[(i64, i64)], s: (i64, i64)| {
             intervals
                 .iter()
@@ -99,6 +85,44 @@ pub fn place(
         });
     }
     Ok(placed)
+}
+
+/// The range `[lo, hi)` of arrival times, in samples at infinite frequency, that keeps
+/// `burst` (its `t_inf_s` ignored) wholly inside the file and starting before sample
+/// `start_limit`; kept one sample inside so rounding cannot spill. Costs a few
+/// arithmetic operations, so it can vet a burst before anything is computed from it.
+///
+/// # Errors
+/// A one-line message when no such time exists: the sweep (plus the pulse) is longer
+/// than the searched part of the file.
+pub fn arrival_room(
+    burst: &Burst,
+    header: &Header,
+    start_limit: i64,
+) -> std::result::Result<(i64, i64), String> {
+    let n = header.n_samples as i64;
+    let at_zero = Burst {
+        t_inf_s: 0.0,
+        ..*burst
+    };
+    let (a, e) = at_zero.sample_span(header);
+    let (lo, hi) = (
+        1i64.saturating_sub(a),
+        n.saturating_sub(e)
+            .min(start_limit.saturating_sub(a))
+            .saturating_sub(1),
+    );
+    if hi <= lo {
+        return Err(format!(
+            "a burst at DM {:.1} of width {:.3} ms spans {} samples with its sweep, \
+             longer than the searched part of the file ({n} samples, pulse starts \
+             searched before sample {start_limit})",
+            burst.dm,
+            burst.width_s * 1e3,
+            e.saturating_sub(a)
+        ));
+    }
+    Ok((lo, hi))
 }
 
 #[cfg(test)]

@@ -25,6 +25,10 @@ pub const MAX_FOLD_CELLS: usize = 1 << 26;
 /// Farthest from the data's reference day a forecast may start, days (~2700 years).
 pub const MAX_FORECAST_OFFSET_DAYS: f64 = 1e6;
 
+/// Most forecast windows a search lists; in practice the widening by the period
+/// uncertainty ends a forecast much sooner (see [`ActivityResult::forecast_stopped_at_cycle`]).
+pub const MAX_FORECAST_WINDOWS: usize = 1000;
+
 /// Settings of an activity search. Times are in days.
 #[derive(Clone, Debug, Serialize)]
 pub struct ActivityConfig {
@@ -144,6 +148,10 @@ pub struct ActivityResult {
     pub ls_fap: f64,
     /// Forecast active windows.
     pub next_windows: Vec<ActiveWindow>,
+    /// The cycle at which the forecast stopped short of the windows asked for: its
+    /// window, widened by the period uncertainty, would be longer than the period, so
+    /// it and every later one would cover every day.
+    pub forecast_stopped_at_cycle: Option<i64>,
     /// Folded counts and exposure at the best period.
     pub profile: FoldedProfile,
     /// Curves over the trial periods.
@@ -236,6 +244,12 @@ pub fn search_activity(
             "an activity search needs ≥ 3 bursts and ≥ 1 session".into(),
         ));
     }
+    if cfg.forecast > MAX_FORECAST_WINDOWS {
+        return Err(Error::Config(format!(
+            "--forecast {} is beyond {MAX_FORECAST_WINDOWS} windows",
+            cfg.forecast
+        )));
+    }
     if let Some(after) = cfg.after_day
         && (!after.is_finite() || after.abs() > MAX_FORECAST_OFFSET_DAYS)
     {
@@ -291,6 +305,15 @@ pub fn search_activity(
     let after = cfg
         .after_day
         .unwrap_or(sessions_days.last().map_or(0.0, |s| s.1));
+    let (next_windows, forecast_stopped_at_cycle) = forecast(
+        &window,
+        period,
+        period_err,
+        mean_t,
+        after,
+        cfg.forecast,
+        ref_mjd,
+    );
     Ok(ActivityResult {
         config: cfg.clone(),
         n_bursts: t_days.len(),
@@ -311,15 +334,8 @@ pub fn search_activity(
         ls_period_days: 1.0 / freqs[ls_best],
         ls_power: ls[ls_best],
         ls_fap: fap_baluev(ls[ls_best], f_max, &rate_t, &rate_err),
-        next_windows: forecast(
-            &window,
-            period,
-            period_err,
-            mean_t,
-            after,
-            cfg.forecast,
-            ref_mjd,
-        ),
+        next_windows,
+        forecast_stopped_at_cycle,
         profile: FoldedProfile {
             counts,
             exposure_days: exposure,
@@ -413,7 +429,8 @@ fn session_rates(t: &[f64], sessions: &[(f64, f64)]) -> (Vec<f64>, Vec<f64>, Vec
 }
 
 /// The next `count` active windows ending after `after` (days), widened by the period
-/// uncertainty times the number of cycles from the data's mean time.
+/// uncertainty times the number of cycles from the data's mean time; stops early, at
+/// the cycle returned, once a widened window is longer than the period.
 fn forecast(
     window: &PhaseWindow,
     period: f64,
@@ -422,28 +439,34 @@ fn forecast(
     after: f64,
     count: usize,
     ref_mjd: i64,
-) -> Vec<ActiveWindow> {
+) -> (Vec<ActiveWindow>, Option<i64>) {
     let n_mid = mean_t / period;
     // Cycle `first` ends at or after `after` up to rounding, so at most one is dropped:
     // a bounded range, whatever the arithmetic gives.
     let first = ((after / period) - window.start - window.width).ceil() as i64;
-    (first..first.saturating_add(count as i64 + 2))
-        .map(|n| {
-            let start = (n as f64 + window.start) * period;
-            let end = start + window.width * period;
-            let widen = (n as f64 - n_mid).abs() * period_err;
-            (n, start, end, widen)
-        })
-        .filter(|&(_, _, end, _)| end > after)
-        .take(count)
-        .map(|(cycle, start, end, widen)| ActiveWindow {
-            cycle,
+    let mut windows = Vec::with_capacity(count);
+    for n in first..first.saturating_add(count as i64 + 2) {
+        if windows.len() == count {
+            break;
+        }
+        let start = (n as f64 + window.start) * period;
+        let end = start + window.width * period;
+        if end <= after {
+            continue;
+        }
+        let widen = (n as f64 - n_mid).abs() * period_err;
+        if end - start + 2.0 * widen > period {
+            return (windows, Some(n));
+        }
+        windows.push(ActiveWindow {
+            cycle: n,
             start_mjd: ref_mjd as f64 + start - widen,
             end_mjd: ref_mjd as f64 + end + widen,
             nominal_start_mjd: ref_mjd as f64 + start,
             nominal_end_mjd: ref_mjd as f64 + end,
-        })
-        .collect()
+        });
+    }
+    (windows, None)
 }
 
 #[cfg(test)]
@@ -476,14 +499,47 @@ mod tests {
             let err = run(cfg).unwrap_err().to_string();
             assert!(err.contains("forecast start"), "{after}: {err}");
         }
+        // 10⁵ days on, the window widened by the period uncertainty is longer than
+        // the period: nothing is listed, and the stop is said.
         let cfg = ActivityConfig {
             sims: 0,
             after_day: Some(1e5),
             ..Default::default()
         };
-        let windows = run(cfg).unwrap().next_windows;
-        assert_eq!(windows.len(), 3);
-        assert!(windows.iter().all(|w| w.nominal_end_mjd > 60_000.0 + 1e5));
+        let r = run(cfg).unwrap();
+        assert!(r.next_windows.is_empty());
+        let stop = r.forecast_stopped_at_cycle.unwrap();
+        assert!((stop as f64 * r.period_days - 1e5).abs() < 2.0 * r.period_days);
+    }
+
+    #[test]
+    fn a_forecast_stops_once_its_windows_outgrow_the_period() {
+        // 100 million windows were listed, a window 11 million days wide among them.
+        let cfg = ActivityConfig {
+            sims: 0,
+            after_day: Some(50.0),
+            forecast: MAX_FORECAST_WINDOWS,
+            ..Default::default()
+        };
+        let r = run(cfg.clone()).unwrap();
+        let stop = r.forecast_stopped_at_cycle.unwrap();
+        let last = r.next_windows.last().unwrap();
+        assert_eq!(last.cycle + 1, stop);
+        assert!(r.next_windows.len() > 3 && r.next_windows.len() < MAX_FORECAST_WINDOWS);
+        for w in &r.next_windows {
+            assert!(w.nominal_end_mjd > 60_050.0, "{w:?}");
+            assert!(w.end_mjd - w.start_mjd <= r.period_days, "{w:?}");
+        }
+        let few = run(ActivityConfig { forecast: 3, ..cfg }).unwrap();
+        assert_eq!(few.next_windows.len(), 3);
+        assert_eq!(few.forecast_stopped_at_cycle, None);
+        let too_many = ActivityConfig {
+            sims: 0,
+            forecast: MAX_FORECAST_WINDOWS + 1,
+            ..Default::default()
+        };
+        let err = run(too_many).unwrap_err().to_string();
+        assert!(err.contains("is beyond 1000 windows"), "{err}");
     }
 
     #[test]

@@ -156,13 +156,7 @@ fn validate_common(cfg: &RotationConfig) -> Result<()> {
     Ok(())
 }
 
-fn validate(toas: &[f64], cfg: &RotationConfig) -> Result<()> {
-    if toas.len() < 3 {
-        return Err(Error::Config(format!(
-            "a period search needs at least 3 arrival times, got {}",
-            toas.len()
-        )));
-    }
+fn validate(cfg: &RotationConfig) -> Result<()> {
     let ok = cfg.min_period_s > 0.0
         && cfg.max_period_s > cfg.min_period_s
         && cfg.max_period_s.is_finite()
@@ -190,8 +184,8 @@ pub fn search_rotation(
     on_progress: &(dyn Fn(u64) + Sync),
 ) -> Result<RotationResult> {
     validate_common(cfg)?;
-    let toas = merged(t_s, cfg.merge_gap_s);
-    validate(&toas, cfg)?;
+    validate(cfg)?;
+    let toas = merged(t_s, cfg.merge_gap_s)?;
     let span_s = toas[toas.len() - 1] - toas[0];
     let grid = rotation_grid(&toas, cfg);
     if grid.len > MAX_TRIALS {
@@ -359,15 +353,35 @@ pub fn rotation_grid(t_s: &[f64], cfg: &RotationConfig) -> FrequencyGrid {
     )
 }
 
-fn merged(t_s: &[f64], gap_s: f64) -> Vec<f64> {
+/// `t_s` sorted, with arrivals closer than `gap_s` merged; at least 3 must be left.
+///
+/// # Errors
+/// [`Error::Config`] saying how many were given and how many the merging left.
+fn merged(t_s: &[f64], gap_s: f64) -> Result<Vec<f64>> {
     let mut sorted = t_s.to_vec();
     sorted.sort_by(f64::total_cmp);
-    super::times::ArrivalTimes {
+    let left = super::times::ArrivalTimes {
         ref_mjd: 0,
         t_s: sorted,
     }
     .merge_closer_than(gap_s)
-    .t_s
+    .t_s;
+    if left.len() < 3 {
+        let counts = if left.len() < t_s.len() {
+            format!(
+                "{} read, {} left after merging arrivals closer than the merge gap of \
+                 {gap_s} s (--merge-gap-s)",
+                t_s.len(),
+                left.len()
+            )
+        } else {
+            format!("got {}", t_s.len())
+        };
+        return Err(Error::Config(format!(
+            "a period test needs at least 3 arrival times: {counts}"
+        )));
+    }
+    Ok(left)
 }
 
 /// Maximises f ↦ stat(f) on a local grid of `steps` points either side of `f0`.
@@ -472,13 +486,7 @@ pub fn test_period(
             "need a finite period > 0 s and a finite Ṗ, got P = {period_s}, Ṗ = {pdot}"
         )));
     }
-    let toas = merged(t_s, cfg.merge_gap_s);
-    if toas.len() < 3 {
-        return Err(Error::Config(format!(
-            "need at least 3 arrival times, got {}",
-            toas.len()
-        )));
-    }
+    let toas = merged(t_s, cfg.merge_gap_s)?;
     let f = 1.0 / period_s;
     let ph = phases(&toas, centre(&toas), f, -pdot * f * f);
     let z = z2n(&ph, cfg.harmonics);

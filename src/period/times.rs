@@ -134,12 +134,15 @@ impl Exposure {
         if sessions_days.is_empty() {
             return Err(Error::Config("no observing sessions".into()));
         }
-        if let Some(bad) = sessions_days
+        if let Some((a, b)) = sessions_days
             .iter()
             .find(|(a, b)| !(a.is_finite() && b.is_finite() && b > a))
         {
+            let mjd = |d: f64| ref_mjd as f64 + d;
             return Err(Error::Config(format!(
-                "observing session {bad:?} must have finite start < end"
+                "observing session from MJD {} to MJD {} must have finite start < end",
+                mjd(*a),
+                mjd(*b)
             )));
         }
         sessions_days.sort_by(|x, y| x.0.total_cmp(&y.0));
@@ -181,38 +184,52 @@ impl Exposure {
     }
 }
 
+/// MJDs at or beyond this day (the year 4596) are taken for a wrong unit or a typo.
+pub const MAX_MJD: i64 = 1_000_000;
+
 /// Parses an MJD written in decimal into (integer day, fraction) without rounding the
 /// fraction through a large f64.
 ///
 /// # Errors
-/// A message if the text is not a finite non-negative number.
+/// A message if the text is not a number in [0, [`MAX_MJD`]).
 pub fn parse_mjd_text(text: &str) -> std::result::Result<(i64, f64), String> {
     let s = text.trim();
-    let bad = || format!("'{s}' is not an MJD");
+    let bad = || format!("'{s}' is not an MJD (expected 0 ≤ MJD < {MAX_MJD})");
+    let (day, frac) = parse_non_negative_mjd(s).ok_or_else(bad)?;
+    if day >= MAX_MJD {
+        return Err(bad());
+    }
+    Ok((day, frac))
+}
+
+/// `s` as (integer day, fraction), if it is a finite number ≥ 0.
+fn parse_non_negative_mjd(s: &str) -> Option<(i64, f64)> {
     let plain = !s.is_empty() && s.chars().all(|c| c.is_ascii_digit() || c == '.');
     if plain {
         let (int, frac) = s.split_once('.').unwrap_or((s, ""));
-        let day: i64 = if int.is_empty() {
-            0
-        } else {
-            int.parse().map_err(|_| bad())?
-        };
+        let day: i64 = if int.is_empty() { 0 } else { int.parse().ok()? };
         let frac: f64 = if frac.is_empty() {
             0.0
         } else {
-            format!("0.{frac}").parse().map_err(|_| bad())?
+            format!("0.{frac}").parse().ok()?
         };
-        return Ok((day, frac));
+        return Some((day, frac));
     }
-    let value: f64 = s.parse().map_err(|_| bad())?;
+    let value: f64 = s.parse().ok()?;
     if !value.is_finite() || value < 0.0 {
-        return Err(bad());
+        return None;
     }
-    Ok((value.floor() as i64, value - value.floor()))
+    Some((value.floor() as i64, value - value.floor()))
 }
 
-/// Reads the named columns of a CSV file with a header row as text, one Vec per row.
-fn read_columns(path: &Path, names: &[&str]) -> Result<Vec<Vec<String>>> {
+/// One data row of a CSV file: its line in the file and the requested cells as text.
+struct Row {
+    line: u64,
+    cells: Vec<String>,
+}
+
+/// Reads the named columns of a CSV file with a header row as text.
+fn read_columns(path: &Path, names: &[&str]) -> Result<Vec<Row>> {
     let mut reader = csv::ReaderBuilder::new()
         .trim(csv::Trim::All)
         .comment(Some(b'#'))
@@ -234,11 +251,13 @@ fn read_columns(path: &Path, names: &[&str]) -> Result<Vec<Vec<String>>> {
     let mut rows = Vec::new();
     for record in reader.records() {
         let record = record.map_err(|e| csv_error(path, e))?;
-        rows.push(
-            idx.iter()
+        rows.push(Row {
+            line: record.position().map_or(0, |p| p.line()),
+            cells: idx
+                .iter()
                 .map(|&i| record.get(i).unwrap_or("").to_string())
                 .collect(),
-        );
+        });
     }
     if rows.is_empty() {
         return Err(Error::bad_input(path, "no data rows"));
@@ -247,14 +266,23 @@ fn read_columns(path: &Path, names: &[&str]) -> Result<Vec<Vec<String>>> {
 }
 
 fn csv_error(path: &Path, e: csv::Error) -> Error {
+    let msg = e.to_string();
     match e.into_kind() {
         csv::ErrorKind::Io(io) => Error::io(path, io),
-        other => Error::bad_input(path, format!("CSV: {other:?}")),
+        csv::ErrorKind::Utf8 { pos, .. } => Error::bad_input(
+            path,
+            format!(
+                "line {}: not text (invalid UTF-8); expected a CSV table",
+                pos.map_or(1, |p| p.line())
+            ),
+        ),
+        _ => Error::bad_input(path, msg),
     }
 }
 
-fn parse_mjd_cell(path: &Path, row: usize, text: &str) -> Result<(i64, f64)> {
-    parse_mjd_text(text).map_err(|m| Error::bad_input(path, format!("data row {}: {m}", row + 1)))
+fn parse_mjd_cell(path: &Path, row: &Row, column: usize) -> Result<(i64, f64)> {
+    parse_mjd_text(&row.cells[column])
+        .map_err(|m| Error::bad_input(path, format!("line {}: {m}", row.line)))
 }
 
 /// Reads arrival times from the MJD column `column` of a CSV file (barycentric TDB).
@@ -265,8 +293,7 @@ pub fn read_arrival_csv(path: &Path, column: &str) -> Result<ArrivalTimes> {
     let rows = read_columns(path, &[column])?;
     let parts = rows
         .iter()
-        .enumerate()
-        .map(|(i, r)| parse_mjd_cell(path, i, &r[0]))
+        .map(|r| parse_mjd_cell(path, r, 0))
         .collect::<Result<Vec<_>>>()?;
     ArrivalTimes::from_day_fraction(&parts).map_err(|e| Error::bad_input(path, e.to_string()))
 }
@@ -275,32 +302,49 @@ pub fn read_arrival_csv(path: &Path, column: &str) -> Result<ArrivalTimes> {
 /// from `ref_mjd`.
 ///
 /// # Errors
-/// [`Error::Io`] / [`Error::BadInput`] naming the file.
+/// [`Error::Io`] / [`Error::BadInput`] naming the file and line: a bad MJD, or a
+/// session that does not end after it starts.
 pub fn read_exposure_csv(path: &Path, ref_mjd: i64) -> Result<Exposure> {
     let rows = read_columns(path, &["start_mjd", "end_mjd"])?;
     let mut sessions = Vec::with_capacity(rows.len());
-    for (i, r) in rows.iter().enumerate() {
-        let (d0, f0) = parse_mjd_cell(path, i, &r[0])?;
-        let (d1, f1) = parse_mjd_cell(path, i, &r[1])?;
+    for r in &rows {
+        let (d0, f0) = parse_mjd_cell(path, r, 0)?;
+        let (d1, f1) = parse_mjd_cell(path, r, 1)?;
+        if (d1, f1) <= (d0, f0) {
+            return Err(Error::bad_input(
+                path,
+                format!(
+                    "line {}: end_mjd {} is not after start_mjd {}",
+                    r.line, r.cells[1], r.cells[0]
+                ),
+            ));
+        }
         sessions.push(((d0 - ref_mjd) as f64 + f0, (d1 - ref_mjd) as f64 + f1));
     }
     Exposure::new(ref_mjd, sessions).map_err(|e| Error::bad_input(path, e.to_string()))
 }
 
-/// Reads a column of finite numbers (e.g. fluence in Jy ms) from a CSV file.
+/// Reads a column of finite numbers > 0 (fluences, energies) from a CSV file.
 ///
 /// # Errors
-/// [`Error::Io`] / [`Error::BadInput`] naming the file.
-pub fn read_number_csv(path: &Path, column: &str) -> Result<Vec<f64>> {
+/// [`Error::Io`] / [`Error::BadInput`] naming the file, and the line of a value that
+/// is not a number > 0 (a power law has no zero or negative values; none is dropped).
+pub fn read_positive_csv(path: &Path, column: &str) -> Result<Vec<f64>> {
     let rows = read_columns(path, &[column])?;
     rows.iter()
-        .enumerate()
-        .map(|(i, r)| match r[0].parse::<f64>() {
-            Ok(v) if v.is_finite() => Ok(v),
-            _ => Err(Error::bad_input(
-                path,
-                format!("data row {}: '{}' is not a number", i + 1, r[0]),
-            )),
+        .map(|r| {
+            let text = &r.cells[0];
+            match text.parse::<f64>() {
+                Ok(v) if v.is_finite() && v > 0.0 => Ok(v),
+                Ok(v) if v.is_finite() => Err(Error::bad_input(
+                    path,
+                    format!("line {}: {column} {text} must be > 0", r.line),
+                )),
+                _ => Err(Error::bad_input(
+                    path,
+                    format!("line {}: '{text}' is not a number", r.line),
+                )),
+            }
         })
         .collect()
 }

@@ -49,6 +49,35 @@ impl Spectrum {
         }
     }
 
+    /// Checks that the shape is a real one: a finite index, a finite centre and a
+    /// width > 0, or a top hat with `lo_mhz` < `hi_mhz`.
+    ///
+    /// # Errors
+    /// A one-line message naming the bad value.
+    pub fn check(&self) -> Result<(), String> {
+        match *self {
+            Spectrum::PowerLaw { index } if !index.is_finite() => {
+                Err(format!("power_law index must be finite, got {index}"))
+            }
+            Spectrum::Gaussian {
+                centre_mhz,
+                fwhm_mhz,
+            } if !(centre_mhz.is_finite() && fwhm_mhz.is_finite() && fwhm_mhz > 0.0) => {
+                Err(format!(
+                    "gaussian needs a finite centre_mhz and fwhm_mhz > 0, got {centre_mhz} and {fwhm_mhz}"
+                ))
+            }
+            Spectrum::TopHat { lo_mhz, hi_mhz }
+                if !(lo_mhz.is_finite() && hi_mhz.is_finite() && lo_mhz < hi_mhz) =>
+            {
+                Err(format!(
+                    "top_hat lo_mhz must be < hi_mhz, got lo_mhz {lo_mhz} and hi_mhz {hi_mhz}"
+                ))
+            }
+            _ => Ok(()),
+        }
+    }
+
     /// A short description without commas (for CSV), e.g. `power_law(index=-1.5)`.
     pub fn describe(&self) -> String {
         match *self {
@@ -110,9 +139,10 @@ impl Burst {
         let (lo, hi) = shape.support_s();
         let t0 = self.t_inf_s + delay_to_infinity_s(self.dm, f_hi) + lo;
         let t1 = self.t_inf_s + delay_to_infinity_s(self.dm, f_lo) + hi;
+        // Saturating: an absurd burst (checked by the callers) must not overflow.
         (
-            (t0 / header.tsamp_s).floor() as i64 - 1,
-            (t1 / header.tsamp_s).ceil() as i64 + 1,
+            ((t0 / header.tsamp_s).floor() as i64).saturating_sub(1),
+            ((t1 / header.tsamp_s).ceil() as i64).saturating_add(1),
         )
     }
 }

@@ -118,6 +118,13 @@ impl Simulation {
         Ok(sim)
     }
 
+    /// Bytes of samples the observation holds (`nbits` per sample), without the
+    /// container's headers: what writing it needs on disk, near enough.
+    pub fn sample_bytes(&self) -> u128 {
+        let h = &self.header;
+        u128::from(h.n_samples) * h.n_chan() as u128 * u128::from(h.nbits) / 8
+    }
+
     fn add_burst(
         &mut self,
         burst: Burst,

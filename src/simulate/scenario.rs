@@ -311,7 +311,8 @@ impl Scenario {
         if let Some(s) = n.sefd_jy {
             positive("noise.sefd_jy", s)?;
         }
-        self.header().validate()?;
+        let header = self.header();
+        header.validate()?;
         let length = o.length_s;
         for (i, b) in self.bursts.iter().enumerate() {
             let what = format!("burst {}", i + 1);
@@ -319,21 +320,24 @@ impl Scenario {
             if !(b.dm.is_finite() && b.dm >= 0.0) || b.scatter_ms_1ghz < 0.0 {
                 return Err(format!("{what}: dm and scatter_ms_1ghz must be ≥ 0"));
             }
+            b.spectrum
+                .check()
+                .map_err(|m| format!("{what}: spectrum {m}"))?;
             self.check_amplitude(&what, b.snr, b.fluence_jy_ms)?;
         }
         if let Some(r) = &self.random_bursts {
-            ordered("random_bursts.t_range_s", r.t_range_s, 0.0)?;
-            ordered("random_bursts.dm_range", r.dm_range, 0.0)?;
+            ordered("random_bursts.t_range_s", r.t_range_s, Low::AtLeastZero)?;
+            ordered("random_bursts.dm_range", r.dm_range, Low::AtLeastZero)?;
             ordered(
                 "random_bursts.width_ms_range",
                 r.width_ms_range,
-                f64::MIN_POSITIVE,
+                Low::AboveZero,
             )?;
             if let Some(s) = r.scatter_ms_1ghz_range {
-                ordered("random_bursts.scatter_ms_1ghz_range", s, f64::MIN_POSITIVE)?;
+                ordered("random_bursts.scatter_ms_1ghz_range", s, Low::AboveZero)?;
             }
             if let Some(f) = r.fluence_jy_ms_range {
-                ordered("random_bursts.fluence_jy_ms_range", f, f64::MIN_POSITIVE)?;
+                ordered("random_bursts.fluence_jy_ms_range", f, Low::AboveZero)?;
             }
             self.check_amplitude(
                 "random_bursts",
@@ -344,8 +348,19 @@ impl Scenario {
                 return Err("random_bursts.band_limited_fraction must be in 0–1".into());
             }
         }
+        let half = header.chan_bw_mhz / 2.0;
+        let (band_lo, band_hi) = (header.freq_lo_mhz() - half, header.freq_hi_mhz() + half);
         for (i, nb) in self.rfi.narrowband.iter().enumerate() {
             positive(&format!("rfi.narrowband {} strength", i + 1), nb.strength)?;
+            // Like a burst outside the observation: a carrier the data cannot hold
+            // must not be listed in the truth table.
+            if !(band_lo..=band_hi).contains(&nb.freq_mhz) {
+                return Err(format!(
+                    "rfi.narrowband {}: {} MHz is outside the band {band_lo}–{band_hi} MHz",
+                    i + 1,
+                    nb.freq_mhz
+                ));
+            }
         }
         for (i, p) in self.rfi.impulse.iter().enumerate() {
             check_burst_like(&format!("rfi.impulse {}", i + 1), p.t_s, p.width_ms, length)?;
@@ -356,10 +371,18 @@ impl Scenario {
             check_burst_like(&what, t.first_s, t.width_ms, length)?;
             positive(&format!("{what} period_s"), t.period_s)?;
             positive(&format!("{what} snr"), t.snr)?;
-            if t.freq_lo_mhz.is_some() != t.freq_hi_mhz.is_some() {
-                return Err(format!(
-                    "{what}: give both freq_lo_mhz and freq_hi_mhz or neither"
-                ));
+            match (t.freq_lo_mhz, t.freq_hi_mhz) {
+                (Some(lo_mhz), Some(hi_mhz)) => {
+                    Spectrum::TopHat { lo_mhz, hi_mhz }.check().map_err(|_| {
+                        format!("{what}: freq_lo_mhz {lo_mhz} must be < freq_hi_mhz {hi_mhz}")
+                    })?
+                }
+                (None, None) => {}
+                _ => {
+                    return Err(format!(
+                        "{what}: give both freq_lo_mhz and freq_hi_mhz or neither"
+                    ));
+                }
             }
         }
         Ok(())
@@ -390,13 +413,22 @@ fn positive(what: &str, v: f64) -> Result<(), String> {
     }
 }
 
-fn ordered(what: &str, r: [f64; 2], min: f64) -> Result<(), String> {
-    if r[0].is_finite() && r[1].is_finite() && r[0] >= min && r[0] <= r[1] {
+/// The lower end a range may take.
+#[derive(Clone, Copy)]
+enum Low {
+    AtLeastZero,
+    AboveZero,
+}
+
+fn ordered(what: &str, r: [f64; 2], low: Low) -> Result<(), String> {
+    let (low_ok, rule) = match low {
+        Low::AtLeastZero => (r[0] >= 0.0, "0 ≤ low ≤ high"),
+        Low::AboveZero => (r[0] > 0.0, "0 < low ≤ high"),
+    };
+    if r[0].is_finite() && r[1].is_finite() && low_ok && r[0] <= r[1] {
         Ok(())
     } else {
-        Err(format!(
-            "{what} must be [low, high] with {min} ≤ low ≤ high, got {r:?}"
-        ))
+        Err(format!("{what} must be [low, high] with {rule}, got {r:?}"))
     }
 }
 

@@ -38,10 +38,26 @@ pub fn barycentre_csv(bary: &Barycentrer, input: &Path, output: &Path) -> Result
         .headers()
         .map_err(|e| bad(format!("cannot read the CSV header: {e}")))?
         .clone();
-    let column = headers
-        .iter()
-        .position(|h| h.trim() == MJD_UTC_COLUMN)
-        .ok_or_else(|| bad(format!("no column named `{MJD_UTC_COLUMN}` in the header")))?;
+    let columns: Vec<usize> = (0..headers.len())
+        .filter(|&i| headers[i].trim() == MJD_UTC_COLUMN)
+        .collect();
+    let column = match columns[..] {
+        [only] => only,
+        [] => {
+            return Err(bad(format!(
+                "no column named `{MJD_UTC_COLUMN}` in the header"
+            )));
+        }
+        [..] => {
+            // Which one holds the times is anyone's guess.
+            let numbers: Vec<String> = columns.iter().map(|i| (i + 1).to_string()).collect();
+            return Err(bad(format!(
+                "{} columns are named `{MJD_UTC_COLUMN}` (columns {}); keep one",
+                columns.len(),
+                numbers.join(" and ")
+            )));
+        }
+    };
     if let Some(clash) = headers
         .iter()
         .find(|h| matches!(h.trim(), "mjd_tdb" | "correction_s"))

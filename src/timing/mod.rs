@@ -146,9 +146,11 @@ impl Barycentrer {
     /// # Errors
     /// [`Error::Config`] for a site off the Earth or a position out of range.
     pub fn new(site: &Site, ra_deg: f64, dec_deg: f64, ephemeris: Ephemeris) -> Result<Self> {
-        if !ra_deg.is_finite() || !(-90.0..=90.0).contains(&dec_deg) {
+        // An RA of 400° is not silently read as 40°: a wrong unit or a typo.
+        if !((0.0..360.0).contains(&ra_deg) && (-90.0..=90.0).contains(&dec_deg)) {
             return Err(Error::Config(format!(
-                "sky position RA {ra_deg}°, Dec {dec_deg}° is out of range"
+                "sky position RA {ra_deg}°, Dec {dec_deg}° is out of range \
+                 (RA must be in [0, 360), Dec in [-90, 90] degrees)"
             )));
         }
         Ok(Barycentrer {

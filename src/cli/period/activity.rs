@@ -57,6 +57,8 @@ pub fn run(a: Args) -> anyhow::Result<()> {
         forecast: a.forecast,
         after_day: a.after_mjd.map(|m| m - toas.ref_mjd as f64),
     };
+    // Opened before the search, so a bad path fails at once rather than after it.
+    let periodogram = a.periodogram_out.as_deref().map(create).transpose()?;
     let bar = progress::bar(a.sims as u64, "simulations");
     let r = search_activity(
         &toas.days(),
@@ -67,8 +69,7 @@ pub fn run(a: Args) -> anyhow::Result<()> {
     )
     .with_context(|| a.input.describe())?;
     bar.finish_and_clear();
-    if let Some(path) = &a.periodogram_out {
-        let mut w = create(path)?;
+    if let Some(mut w) = periodogram {
         writeln!(w, "period_days,chi2,window_fraction,ls_power")?;
         let p = &r.periodogram;
         for i in 0..p.period_days.len() {
@@ -102,20 +103,31 @@ fn print_activity(r: &ActivityResult) -> std::io::Result<()> {
         r.period_err_days,
         r.epoch_mjd
     )?;
+    // No Monte Carlo sets, no false-alarm probabilities (the library gives NaN).
+    let (fap, window_fap) = match r.config.sims {
+        0 => (
+            "Monte Carlo FAP not computed (--sims 0)".to_string(),
+            "window FAP not computed".to_string(),
+        ),
+        sets => (
+            format!(
+                "Monte Carlo FAP = {:.4} ({sets} sets, real exposure)",
+                r.fap
+            ),
+            format!("window FAP = {:.4}", r.window_fap),
+        ),
+    };
     say!(
-        "  folded χ² = {:.2} ({} dof, single-trial p = {}); Monte Carlo FAP = {:.4} ({} sets, real exposure)",
+        "  folded χ² = {:.2} ({} dof, single-trial p = {}); {fap}",
         r.fold.chi2,
         r.fold.dof,
-        Probability(r.chi2_p_single, 2),
-        r.fap,
-        r.config.sims
+        Probability(r.chi2_p_single, 2)
     )?;
     say!(
-        "  all bursts within {:.3} of a cycle (centre phase {:.3}); half within {:.3}; window FAP = {:.4}",
+        "  all bursts within {:.3} of a cycle (centre phase {:.3}); half within {:.3}; {window_fap}",
         r.window_fraction,
         r.centre_phase,
-        r.half_window_fraction,
-        r.window_fap
+        r.half_window_fraction
     )?;
     say!(
         "  Lomb–Scargle of session rates: best {:.4} d, power {:.3}, Baluev FAP {}",
@@ -149,6 +161,12 @@ fn print_activity(r: &ActivityResult) -> std::io::Result<()> {
             w.end_mjd,
             w.nominal_start_mjd,
             w.nominal_end_mjd
+        )?;
+    }
+    if let Some(cycle) = r.forecast_stopped_at_cycle {
+        say!(
+            "  (stopped at cycle {cycle}: widened by the period uncertainty, its window is longer \
+             than the period, so it and every later one would cover every day)"
         )?;
     }
     Ok(())

@@ -163,8 +163,24 @@ fn print_json<T: serde::Serialize>(value: &T) -> anyhow::Result<()> {
 
 /// Starts writing `path`, creating its directory; the file appears at `commit`.
 fn create(path: &Path) -> anyhow::Result<AtomicFile> {
-    if let Some(dir) = path.parent().filter(|d| !d.as_os_str().is_empty()) {
-        std::fs::create_dir_all(dir).with_context(|| format!("creating {}", dir.display()))?;
+    if let Some(dir) = path.parent().filter(|d| !d.as_os_str().is_empty())
+        && let Err(e) = std::fs::create_dir_all(dir)
+    {
+        // Name the path given, and a file standing where a folder must be.
+        if let Some(file) = dir.ancestors().find(|a| a.is_file()) {
+            anyhow::bail!(
+                "{}: {} is a file, not a directory",
+                path.display(),
+                file.display()
+            );
+        }
+        return Err(e).with_context(|| {
+            format!(
+                "{}: creating its directory {}",
+                path.display(),
+                dir.display()
+            )
+        });
     }
     Ok(AtomicFile::create(path)?)
 }

@@ -1,9 +1,10 @@
 //! `burstbook period rotation`: rotation-period search or a stated-period test.
 
 use std::io::Write;
-use std::path::{Path, PathBuf};
+use std::path::PathBuf;
 
 use anyhow::Context;
+use burstbook::atomic_file::AtomicFile;
 use burstbook::period::rotation::{RotationConfig, RotationResult, search_rotation, test_period};
 use burstbook::period::times::{ArrivalTimes, read_arrival_csv};
 use burstbook::progress;
@@ -118,6 +119,8 @@ pub fn run(a: Args) -> anyhow::Result<()> {
         }
         return Ok(());
     }
+    // Opened before the search, so a bad path fails at once rather than after it.
+    let periodogram = a.periodogram_out.as_deref().map(create).transpose()?;
     let grid_len = burstbook::period::rotation::rotation_grid(
         &toas.merge_closer_than(cfg.merge_gap_s).t_s,
         &cfg,
@@ -127,8 +130,8 @@ pub fn run(a: Args) -> anyhow::Result<()> {
     let bar = progress::bar(grid_len as u64 * scans, "Z² scans");
     let r = search_rotation(&toas.t_s, &cfg, &|n| bar.inc(n)).with_context(|| what.clone())?;
     bar.finish_and_clear();
-    if let Some(path) = &a.periodogram_out {
-        write_rotation_periodogram(path, &r)?;
+    if let Some(w) = periodogram {
+        write_rotation_periodogram(w, &r)?;
     }
     if a.json {
         return print_json(&r);
@@ -137,8 +140,7 @@ pub fn run(a: Args) -> anyhow::Result<()> {
     Ok(())
 }
 
-fn write_rotation_periodogram(path: &Path, r: &RotationResult) -> anyhow::Result<()> {
-    let mut w = create(path)?;
+fn write_rotation_periodogram(mut w: AtomicFile, r: &RotationResult) -> anyhow::Result<()> {
     writeln!(w, "freq_hz,period_s,z2n")?;
     for (f, z) in r.periodogram.freq_hz.iter().zip(&r.periodogram.power) {
         writeln!(w, "{f:.12},{:.12},{z}", 1.0 / f)?;

@@ -6,7 +6,7 @@ use anyhow::Context;
 use burstbook::catalogue::{Catalogue, DEFAULT_LOCK_WAIT};
 use burstbook::period::from_catalogue::source_fluences_jy_ms;
 use burstbook::period::powerlaw::fit_power_law;
-use burstbook::period::times::read_number_csv;
+use burstbook::period::times::read_positive_csv;
 use burstbook::period::waiting::waiting_time_stats;
 
 use super::{BurstInputs, Probability, print_json};
@@ -52,7 +52,7 @@ pub fn run(a: Args) -> anyhow::Result<()> {
                 .clone()
                 .unwrap_or_else(|| PathBuf::from("demo-data/period/repeater_bursts.csv"));
             let what = format!("{} of {}", a.value_column, path.display());
-            (read_number_csv(&path, &a.value_column)?, what)
+            (read_positive_csv(&path, &a.value_column)?, what)
         }
     };
     let power =
