@@ -238,7 +238,7 @@ impl Scenario {
     /// # Errors
     /// A TOML error, an unknown key or an inconsistent value.
     pub fn parse(text: &str) -> Result<Scenario, String> {
-        let s: Scenario = toml::from_str(text).map_err(|e| e.to_string().replace('\n', " "))?;
+        let s: Scenario = toml::from_str(text).map_err(|e| crate::error::toml_message(text, &e))?;
         s.check()?;
         Ok(s)
     }
