@@ -7,15 +7,20 @@ use std::process::Command;
 
 const BIN: &str = env!("CARGO_BIN_EXE_burstbook");
 
-/// Runs `burstbook book --catalogue DB ARGS...`, asserts success, returns stdout.
-fn book(db: &Path, args: &[&str]) -> String {
-    let out = Command::new(BIN)
+/// Runs `burstbook book --catalogue DB ARGS...`.
+fn run_book(db: &Path, args: &[&str]) -> std::process::Output {
+    Command::new(BIN)
         .arg("book")
         .arg("--catalogue")
         .arg(db)
         .args(args)
         .output()
-        .unwrap();
+        .unwrap()
+}
+
+/// Runs `burstbook book --catalogue DB ARGS...`, asserts success, returns stdout.
+fn book(db: &Path, args: &[&str]) -> String {
+    let out = run_book(db, args);
     assert!(
         out.status.success(),
         "book {args:?}: {}",
@@ -267,14 +272,7 @@ fn exposure_exported_to_a_file_imports_into_another_catalogue_unchanged() {
 /// Runs `burstbook book --catalogue DB ARGS...` and asserts one line of failure
 /// carrying every needle.
 fn book_fails(db: &Path, args: &[&str], needles: &[&str]) {
-    let out = Command::new(BIN)
-        .arg("book")
-        .arg("--catalogue")
-        .arg(db)
-        .args(args)
-        .output()
-        .unwrap();
-    cli_common::assert_one_line_failure(&out, needles);
+    cli_common::assert_one_line_failure(&run_book(db, args), needles);
 }
 
 /// NaN and empty ranges used to select nothing and exit 0, an unknown id gave an

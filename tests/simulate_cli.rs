@@ -59,6 +59,18 @@ fn read_all(path: &Path) -> Vec<f32> {
     out
 }
 
+/// Runs `burstbook simulate TOML --out OUT EXTRA...`.
+fn simulate(toml: &Path, out: &Path, extra: &[&str]) -> std::process::Output {
+    let mut args = vec![
+        "simulate",
+        toml.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+    ];
+    args.extend_from_slice(extra);
+    burstbook(&args)
+}
+
 #[test]
 fn files_read_back_equal_to_the_generator() {
     let dir = tempfile::tempdir().unwrap();
@@ -72,12 +84,7 @@ fn files_read_back_equal_to_the_generator() {
         let toml = dir.path().join(format!("{name}.toml"));
         std::fs::write(&toml, &text).unwrap();
         let out = dir.path().join(name);
-        let result = burstbook(&[
-            "simulate",
-            toml.to_str().unwrap(),
-            "--out",
-            out.to_str().unwrap(),
-        ]);
+        let result = simulate(&toml, &out, &[]);
         assert_success(&result);
 
         let sim = Simulation::new(&Scenario::parse(&text).unwrap(), 77).unwrap();
@@ -125,14 +132,7 @@ fn seed_flag_overrides_the_scenario_seed() {
     let mut samples = Vec::new();
     for (name, seed) in [("a.json", "5"), ("b.json", "5"), ("c.json", "6")] {
         let out = dir.path().join(name);
-        let r = burstbook(&[
-            "simulate",
-            toml.to_str().unwrap(),
-            "--out",
-            out.to_str().unwrap(),
-            "--seed",
-            seed,
-        ]);
+        let r = simulate(&toml, &out, &["--seed", seed]);
         assert!(r.status.success());
         samples.push(std::fs::read(out.with_extension("npy")).unwrap());
     }
@@ -152,12 +152,7 @@ fn bad_scenario_fails_with_one_line_naming_the_file() {
     )
     .unwrap();
     let out = dir.path().join("x.json");
-    let r = burstbook(&[
-        "simulate",
-        toml.to_str().unwrap(),
-        "--out",
-        out.to_str().unwrap(),
-    ]);
+    let r = simulate(&toml, &out, &[]);
     assert_one_line_failure(&r, &["bad.toml", "dispersion"]);
     let missing = burstbook(&[
         "simulate",
@@ -176,12 +171,7 @@ fn an_output_in_a_missing_directory_is_one_line_naming_it() {
     std::fs::write(&toml, SCENARIO.replace("NBITS", "8")).unwrap();
     for name in ["x.json", "x.fits"] {
         let out = dir.path().join("no-such-dir").join(name);
-        let r = burstbook(&[
-            "simulate",
-            toml.to_str().unwrap(),
-            "--out",
-            out.to_str().unwrap(),
-        ]);
+        let r = simulate(&toml, &out, &[]);
         assert_one_line_failure(&r, &[out.to_str().unwrap(), "No such file"]);
     }
     let mut left: Vec<_> = std::fs::read_dir(dir.path())
@@ -228,12 +218,7 @@ fn impossible_scenarios_are_one_line_refusals_naming_the_scenario() {
         ),
     ] {
         std::fs::write(&toml, scenario).unwrap();
-        let r = burstbook(&[
-            "simulate",
-            toml.to_str().unwrap(),
-            "--out",
-            out.to_str().unwrap(),
-        ]);
+        let r = simulate(&toml, &out, &[]);
         assert_one_line_failure(&r, &[&["s.toml"], needles].concat());
         assert!(!String::from_utf8_lossy(&r.stderr).contains("00000000"));
         let left: Vec<_> = std::fs::read_dir(dir.path()).unwrap().collect();
@@ -253,27 +238,13 @@ fn a_format_the_name_contradicts_is_refused() {
         ("y.fits", "native", "--format native needs a NAME.json"),
     ] {
         let out = dir.path().join(name);
-        let r = burstbook(&[
-            "simulate",
-            toml.to_str().unwrap(),
-            "--out",
-            out.to_str().unwrap(),
-            "--format",
-            format,
-        ]);
+        let r = simulate(&toml, &out, &["--format", format]);
         assert_one_line_failure(&r, &[out.to_str().unwrap(), needle]);
         assert!(!out.exists());
     }
     // A name that implies no container takes the one asked for, readable by its bytes.
     let out = dir.path().join("y.sim");
-    let r = burstbook(&[
-        "simulate",
-        toml.to_str().unwrap(),
-        "--out",
-        out.to_str().unwrap(),
-        "--format",
-        "fits",
-    ]);
+    let r = simulate(&toml, &out, &["--format", "fits"]);
     assert_success(&r);
     assert_success(&burstbook(&["inspect", out.to_str().unwrap()]));
 }
