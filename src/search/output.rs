@@ -212,12 +212,46 @@ struct CsvRow {
     fluence_jy_ms: Option<f64>,
 }
 
+/// Columns without which a CSV is not search output at all (every column is then
+/// checked row by row).
+const REQUIRED_COLUMNS: [&str; 10] = [
+    "file",
+    "t_inf_s",
+    "mjd_inf",
+    "dm",
+    "dm_lo",
+    "dm_hi",
+    "width_ms",
+    "snr",
+    "cluster_size",
+    "verdict",
+];
+
 /// Reads `candidates.csv` text back into candidates (the inverse of [`write_csv`]).
 ///
 /// # Errors
-/// [`Error::BadInput`] naming `path` and the row at fault.
+/// [`Error::BadInput`] naming `path` and the row at fault, or a file without the
+/// columns of search output (an empty one included).
 pub fn parse_csv(path: &Path, text: &str) -> Result<Vec<Candidate>> {
     let mut reader = csv::Reader::from_reader(text.as_bytes());
+    // A search with no candidates still writes the header row: a file without the
+    // columns is not search output (an emptied or foreign file), not "no candidates".
+    let headers = reader
+        .headers()
+        .map_err(|e| Error::bad_input(path, format!("not readable as CSV: {e}")))?;
+    if let Some(missing) = REQUIRED_COLUMNS
+        .iter()
+        .find(|c| !headers.iter().any(|h| h == **c))
+    {
+        let what = match text.trim().is_empty() {
+            true => "is empty".to_string(),
+            false => format!("has no column {missing:?}"),
+        };
+        return Err(Error::bad_input(
+            path,
+            format!("{what}: not a candidates file written by `burstbook search`"),
+        ));
+    }
     reader
         .deserialize::<CsvRow>()
         .enumerate()
@@ -295,5 +329,25 @@ mod tests {
         assert_eq!(cell("cluster_size"), "7");
         assert_eq!(cell("mjd_inf").parse::<f64>().unwrap(), c.mjd_inf);
         assert_eq!(cell("band_fraction").parse::<f64>().unwrap(), 1e-7);
+    }
+
+    // A search with no candidates writes the header row and reads back as none; an
+    // emptied file or another CSV is refused, naming the file, not taken for "none".
+    #[test]
+    fn only_search_output_reads_as_candidates() {
+        let path = Path::new("out/candidates.csv");
+        let header = CSV_COLUMNS.join(",") + "\n";
+        assert!(parse_csv(path, &header).unwrap().is_empty());
+        for (text, needle) in [
+            ("", "is empty"),
+            ("  \n", "is empty"),
+            ("time,flux\n1,2\n", "has no column \"file\""),
+        ] {
+            let e = parse_csv(path, text).unwrap_err().to_string();
+            assert!(
+                e.starts_with("out/candidates.csv: ") && e.contains(needle),
+                "{e}"
+            );
+        }
     }
 }
