@@ -212,20 +212,9 @@ struct CsvRow {
     fluence_jy_ms: Option<f64>,
 }
 
-/// Columns without which a CSV is not search output at all (every column is then
-/// checked row by row).
-const REQUIRED_COLUMNS: [&str; 10] = [
-    "file",
-    "t_inf_s",
-    "mjd_inf",
-    "dm",
-    "dm_lo",
-    "dm_hi",
-    "width_ms",
-    "snr",
-    "cluster_size",
-    "verdict",
-];
+/// The leading columns of [`CSV_COLUMNS`] without which a CSV is not search output at
+/// all (every column is then checked row by row).
+const IDENTIFYING_COLUMNS: usize = 10;
 
 /// Reads `candidates.csv` text back into candidates (the inverse of [`write_csv`]).
 ///
@@ -239,10 +228,8 @@ pub fn parse_csv(path: &Path, text: &str) -> Result<Vec<Candidate>> {
     let headers = reader
         .headers()
         .map_err(|e| Error::bad_input(path, format!("not readable as CSV: {e}")))?;
-    if let Some(missing) = REQUIRED_COLUMNS
-        .iter()
-        .find(|c| !headers.iter().any(|h| h == **c))
-    {
+    let required = &CSV_COLUMNS[..IDENTIFYING_COLUMNS];
+    if let Some(missing) = required.iter().find(|c| !headers.iter().any(|h| h == **c)) {
         let what = match text.trim().is_empty() {
             true => "is empty".to_string(),
             false => format!("has no column {missing:?}"),
