@@ -28,6 +28,7 @@
 
 use std::f64::consts::SQRT_2;
 
+use burstbook::dedisperse::bf16::to_bf16;
 use burstbook::dedisperse::{self, DmPlan, DmStep, Kernel, PlanRequest};
 use burstbook::obs::{Block, Header};
 use burstbook::search::boxcar::width_ladder;
@@ -62,9 +63,9 @@ fn best_snr(outs: &[dedisperse::Dedispersed], widths: &dyn Fn(usize) -> Vec<usiz
     for step in outs {
         let ws = widths(step.downsample);
         for d in 0..step.dms.len() {
-            let row = step.row(d);
+            let row = step.row_f32(d);
             let mut prefix = vec![0.0f64];
-            for &v in row {
+            for &v in &row {
                 prefix.push(prefix.last().unwrap() + f64::from(v));
             }
             for &w in &ws {
@@ -88,12 +89,12 @@ fn paired(outs: &[dedisperse::Dedispersed], both: bool) -> Vec<dedisperse::Dedis
                 let n_time = (s.n_time - p) / phases;
                 let mut data = Vec::with_capacity(s.dms.len() * n_time);
                 for d in 0..s.dms.len() {
-                    let row = s.row(d);
-                    data.extend((0..n_time).map(|t| {
-                        row[p + phases * t..p + phases * (t + 1)]
-                            .iter()
-                            .sum::<f32>()
-                    }));
+                    let row = s.row_f32(d);
+                    data.extend(
+                        (0..n_time).map(|t| {
+                            to_bf16(row[p + phases * t..p + phases * (t + 1)].iter().sum())
+                        }),
+                    );
                 }
                 dedisperse::Dedispersed {
                     dms: s.dms.clone(),

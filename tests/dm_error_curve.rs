@@ -35,7 +35,7 @@ fn peak_ratio_follows_cordes_mclaughlin() {
     let mut plan = DmPlan::uniform(h.freqs_mhz.clone(), h.chan_bw_mhz, tsamp, 0.0, 0.0, 1);
     plan.steps[0].dms = dms;
     let out = &reference::dedisperse(input.view(), &plan)[0];
-    let peak = |d: usize| out.row(d).iter().copied().fold(f32::MIN, f32::max) as f64;
+    let peak = |d: usize| out.row_f32(d).into_iter().fold(f32::MIN, f32::max) as f64;
     let at_true = peak(0);
     for (i, &z) in zetas.iter().enumerate() {
         let measured = peak(i + 1) / at_true;

@@ -3,7 +3,8 @@
 use serde::Serialize;
 
 use super::DmPlan;
-use super::fast::{Bf16, chunk_len, stage1_len};
+use super::bf16::Bf16;
+use super::fast::{chunk_len, stage1_len};
 use super::subband::StepKernel;
 
 /// What executing a [`DmPlan`] costs, per second of data.

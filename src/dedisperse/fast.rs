@@ -7,11 +7,9 @@
 //! 2. stage 2: for each trial DM, the sum of one stage-1 row per sub-band at that
 //!    sub-band's own rounded delay; in parallel over blocks of trials.
 //!
-//! Stage-1 rows are stored as bfloat16 (8 significant bits): half the bytes written
-//! by stage 1 and read by stage 2, the kernel's largest memory stream. Each stored
-//! value is off by at most 2⁻⁸ of itself; for noise-dominated rows that adds about
-//! 5 × 10⁻⁶ of the series variance, and it moves a bright pulse's sum by ≲ 0.1 %
-//! (independent errors over the sub-bands; docs/dedisperse.md).
+//! Stage-1 rows and the output series are stored as bfloat16 ([`super::bf16`]): half
+//! the bytes of f32 for the kernel's two largest memory streams. Stage 2 sums in f32
+//! over a tile held in L1 and rounds once, as it stores.
 //!
 //! Hot loops run over equal-length slices so they vectorise, and never allocate:
 //! scratch buffers live in the [`FastDedisperser`] or per rayon worker.
@@ -19,6 +17,7 @@
 use ndarray::ArrayView2;
 use rayon::prelude::*;
 
+use super::bf16::{self, Bf16, from_bf16, to_bf16};
 use super::direct::{DirectLevel, sum_taps};
 use super::fixed::{Quantum, quantise_tile};
 use super::subband::{StepKernel, SubBand};
@@ -54,7 +53,7 @@ pub struct FastDedisperser {
     tiles: Vec<TileScratch>,
     /// Output buffers handed back by [`FastDedisperser::recycle`], one per step:
     /// reusing them spares the page faults of fresh allocations in every block.
-    spare: Vec<Vec<f32>>,
+    spare: Vec<Vec<Bf16>>,
     /// The instruction set the kernel's loops run in.
     isa: Isa,
 }
@@ -176,7 +175,7 @@ impl FastDedisperser {
                 .unwrap_or_default();
             fit_output(&mut data, step.dms.len() * n_out);
             if n_chan == 0 {
-                data.fill(0.0);
+                data.fill(0);
             } else if n_out > 0 {
                 let chunk = chunk_len(kernel.max_path).div_ceil(kernel.per_out);
                 for t0 in (0..n_out).step_by(chunk) {
@@ -593,7 +592,7 @@ fn stage2(
     stage1: &[Bf16],
     stride: usize,
     chunk: std::ops::Range<usize>,
-    data: &mut [f32],
+    data: &mut [Bf16],
     n_out: usize,
     isa: Isa,
 ) {
@@ -603,6 +602,7 @@ fn stage2(
     data.par_chunks_mut(n_out * STAGE2_DMS)
         .enumerate()
         .for_each(|(block, series)| {
+            let mut acc = [0.0f32; STAGE2_TILE];
             for a in (0..len).step_by(STAGE2_TILE) {
                 let tile = STAGE2_TILE.min(len - a);
                 for (j, row) in series.chunks_exact_mut(n_out).enumerate() {
@@ -611,10 +611,35 @@ fn stage2(
                         let (row, offset) = (kernel.rows[i], kernel.offsets[i]);
                         (row * per_out + offset % per_out) * stride + offset / per_out + a
                     });
-                    accumulate(&mut row[t0 + a..t0 + a + tile], stage1, paths, isa);
+                    accumulate(&mut acc[..tile], stage1, paths, isa);
+                    store(&acc[..tile], &mut row[t0 + a..t0 + a + tile], isa);
                 }
             }
         });
+}
+
+/// `out` = `acc` rounded to bfloat16, compiled for `isa`.
+fn store(acc: &[f32], out: &mut [Bf16], isa: Isa) {
+    match isa.level() {
+        // SAFETY: as in `subband_rows`: the CPU has the instruction set of `isa`.
+        #[cfg(target_arch = "x86_64")]
+        IsaLevel::Avx512 => unsafe { store_avx512(acc, out) },
+        #[cfg(target_arch = "x86_64")]
+        IsaLevel::Avx2 => unsafe { store_avx2(acc, out) },
+        _ => bf16::encode(acc, out),
+    }
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2,avx512f,avx512bw,avx512vl")]
+fn store_avx512(acc: &[f32], out: &mut [Bf16]) {
+    bf16::encode(acc, out)
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+fn store_avx2(acc: &[f32], out: &mut [Bf16]) {
+    bf16::encode(acc, out)
 }
 
 /// `acc` = sum of the `acc.len()` samples of `stage1` starting at each of `starts`,
@@ -687,12 +712,12 @@ fn accumulate_rows(acc: &mut [f32], stage1: &[Bf16], starts: impl Iterator<Item 
 /// copying), and only the new tail is touched, in parallel. Replacing it instead
 /// faulted in the whole buffer again: a quarter of a 30 s survey search's page
 /// faults, 1–5 s of CPU per gigabyte on our virtual machines (docs/benchmarks.md).
-fn fit_output(data: &mut Vec<f32>, n_values: usize) {
+fn fit_output(data: &mut Vec<Bf16>, n_values: usize) {
     if data.capacity() == 0 {
-        *data = vec![0.0; n_values];
+        *data = vec![0; n_values];
     } else if data.len() < n_values {
         data.reserve_exact(n_values - data.len());
-        data.par_extend(rayon::iter::repeat_n(0.0, n_values - data.len()));
+        data.par_extend(rayon::iter::repeat_n(0, n_values - data.len()));
     }
     data.truncate(n_values);
 }
@@ -706,25 +731,6 @@ fn grow<T: Copy + Default>(buf: &mut Vec<T>, n: usize) {
     } else if buf.len() < n {
         buf.resize(n, T::default());
     }
-}
-
-/// The bits of a bfloat16 number: the upper half of an f32's (same sign and
-/// exponent, 8 significant bits).
-pub(crate) type Bf16 = u16;
-
-/// `x` rounded to the nearest bfloat16 (ties to even); relative error ≤ 2⁻⁸. Equal to
-/// the `half` crate's conversion (tested), but branch-free so that the loops storing
-/// stage-1 rows vectorise: 2.6× faster than `half` in a plain loop (measured).
-#[inline(always)]
-fn to_bf16(x: f32) -> Bf16 {
-    let bits = x.to_bits();
-    (bits.wrapping_add(0x7fff + ((bits >> 16) & 1)) >> 16) as Bf16
-}
-
-/// The f32 equal to bfloat16 `h`.
-#[inline(always)]
-fn from_bf16(h: Bf16) -> f32 {
-    f32::from_bits(u32::from(h) << 16)
 }
 
 /// One tree level over a tile: each output row over the samples it must supply.

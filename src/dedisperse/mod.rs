@@ -26,6 +26,7 @@
 //! output sample still sums exactly `downsample` input samples per channel, so its
 //! noise equals the reference's. See `docs/dedisperse.md`.
 
+pub mod bf16;
 mod cost;
 mod direct;
 mod fast;
@@ -42,6 +43,8 @@ pub use plan::{DmPlan, DmStep, PlanRequest, boxcar_strides};
 pub use summary::{PlanReport, StepSummary, channel_centres_mhz};
 
 use ndarray::ArrayView2;
+
+use bf16::Bf16;
 
 /// How far each trial's output runs (see the conventions above).
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -87,14 +90,22 @@ pub struct Dedispersed {
     pub n_time: usize,
     /// Valid samples of each row (≤ `n_time`; all equal with [`Extent::Common`]).
     pub row_lens: Vec<usize>,
-    /// Series, `[dm, time]` row-major; past a row's length, values mean nothing.
-    pub data: Vec<f32>,
+    /// Series, `[dm, time]` row-major, as bfloat16 ([`bf16`]); past a row's length,
+    /// values mean nothing.
+    pub data: Vec<Bf16>,
 }
 
 impl Dedispersed {
-    /// Row `d`: the valid samples of the series at `dms[d]`.
-    pub fn row(&self, d: usize) -> &[f32] {
+    /// Row `d`: the valid samples of the series at `dms[d]`, as stored.
+    pub fn row(&self, d: usize) -> &[Bf16] {
         &self.data[d * self.n_time..][..self.row_lens[d]]
+    }
+
+    /// Row `d` as f32.
+    pub fn row_f32(&self, d: usize) -> Vec<f32> {
+        let mut out = Vec::new();
+        bf16::decode_into(self.row(d), &mut out);
+        out
     }
 }
 

@@ -3,7 +3,7 @@
 
 use ndarray::ArrayView2;
 
-use super::{Dedispersed, DmPlan, Extent, channel_delays};
+use super::{Dedispersed, DmPlan, Extent, bf16, channel_delays};
 
 /// Dedisperses `input` (`[channel, time]`) for every step of `plan`, every step to
 /// the common end ([`Extent::Common`]).
@@ -39,10 +39,10 @@ pub fn dedisperse_over(
                 .map(|&dm| plan.valid_samples(dm, ds, n_time, extent))
                 .collect();
             let n_out = row_lens.iter().copied().max().unwrap_or(0);
-            let mut data = vec![0.0f32; step.dms.len() * n_out];
+            let mut data = vec![0; step.dms.len() * n_out];
             for (d, &dm) in step.dms.iter().enumerate() {
                 let delays = channel_delays(&plan.freqs_mhz, dm, plan.tsamp_s);
-                let row = &mut data[d * n_out..][..row_lens[d]];
+                let mut row = vec![0.0f32; row_lens[d]];
                 for (c, &delay) in delays.iter().enumerate() {
                     let chan = input.row(c);
                     for (t, out) in row.iter_mut().enumerate() {
@@ -50,6 +50,8 @@ pub fn dedisperse_over(
                         *out += (start..start + ds).map(|i| chan[i]).sum::<f32>();
                     }
                 }
+                // Stored as every kernel stores its series.
+                bf16::encode(&row, &mut data[d * n_out..][..row_lens[d]]);
             }
             Dedispersed {
                 dms: step.dms.clone(),
@@ -83,10 +85,10 @@ mod tests {
         let series = &out[0];
         assert_eq!(series.n_time, 50);
         assert_eq!(
-            series.row(1)[10],
+            series.row_f32(1)[10],
             16.0,
             "all channels line up at the true DM"
         );
-        assert!(series.row(0)[10] < 16.0 && series.row(2)[10] < 16.0);
+        assert!(series.row_f32(0)[10] < 16.0 && series.row_f32(2)[10] < 16.0);
     }
 }

@@ -53,7 +53,12 @@ pub fn measure(
     for step in &out {
         for (d, &dm) in step.dms.iter().enumerate() {
             dms.push(dm);
-            snr.push(best_boxcar_snr(step.row(d), width, expected_start, search));
+            snr.push(best_boxcar_snr(
+                &step.row_f32(d),
+                width,
+                expected_start,
+                search,
+            ));
         }
     }
     DmCurve { dms, snr }

@@ -23,7 +23,7 @@ use super::trials::{self, TrialCount};
 use crate::candidate::Candidate;
 use crate::clean::{self, impulse::DispersionProbe, user_mask::static_mask};
 use crate::cluster::{Cluster, Detection, Sweep, friends_of_friends, merge_dispersion_tails};
-use crate::dedisperse::{self, DmPlan, Extent, FastDedisperser, Kernel};
+use crate::dedisperse::{self, DmPlan, Extent, FastDedisperser, Kernel, bf16};
 use crate::error::{Error, Result};
 use crate::obs::{Header, SampleSource};
 use crate::triage;
@@ -328,7 +328,7 @@ impl<'a> Searcher<'a> {
         } else {
             Extent::Common
         };
-        let mut outs = match &mut self.fast {
+        let outs = match &mut self.fast {
             Some(kernel) => {
                 let (rows, stride) = channels.rows();
                 kernel.dedisperse_rows(rows, n_time, stride, extent)
@@ -356,7 +356,7 @@ impl<'a> Searcher<'a> {
         } else {
             self.dm0_series(norm, mask)
         };
-        let series = NormalisedSeries::new(&mut outs, g.baseline_len);
+        let series = NormalisedSeries::new(&outs, g.baseline_len);
         let data = BlockData {
             header: &self.header,
             dm_offsets: &self.dm_offsets,
@@ -432,13 +432,14 @@ impl<'a> Searcher<'a> {
                 .map(|(row, &len)| &row[..len])
                 .enumerate()
                 .map_init(
-                    || (Scratch::default(), Vec::new()),
-                    |(scratch, peaks), (d, row)| {
+                    || (Scratch::default(), Vec::new(), Vec::new()),
+                    |(scratch, peaks, decoded), (d, row)| {
                         peaks.clear();
+                        bf16::decode_into(row, decoded);
                         // The widths due at this trial: a prefix of the ladder.
                         let due = strides.iter().take_while(|&&k| d % k == 0).count();
                         boxcar::search_trial(
-                            row,
+                            decoded,
                             baseline,
                             &widths[..due],
                             threshold,

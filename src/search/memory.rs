@@ -4,16 +4,17 @@
 
 use super::blocks::BlockLayout;
 use crate::dedisperse::DmPlan;
+use crate::dedisperse::bf16::Bf16;
 
 const GIB: f64 = (1u64 << 30) as f64;
 
 /// Bytes a search of blocks laid out as `layout` over `n_chan` channels holds at
-/// once (f32 samples throughout):
-/// - the channel-major block itself;
-/// - two reads of up to a block each (one being filled while one waits);
+/// once:
+/// - the channel-major block itself (f32);
+/// - two reads of up to a block each (one being filled while one waits; f32);
 /// - the fast kernel's copy of the block at half resolution, halved further in
-///   place for its coarser steps (half a block);
-/// - every step's dedispersed output for one block;
+///   place for its coarser steps (half a block; f32);
+/// - every step's dedispersed output for one block (bfloat16);
 /// - the kernel's stage-1 scratch ([`DmPlan::cost`]).
 ///
 /// Thread-local scratch of the matched filter is small beside these and left out.
@@ -24,8 +25,8 @@ pub fn estimate_bytes(layout: &BlockLayout, plan: &DmPlan, n_chan: usize) -> f64
         .iter()
         .map(|s| (s.dms.len() * (layout.block_len / s.downsample)) as f64)
         .sum();
-    let f32_bytes = size_of::<f32>() as f64;
-    (3.5 * block_values + outputs) * f32_bytes + plan.cost().fast_scratch_bytes
+    let (f32_bytes, bf16_bytes) = (size_of::<f32>() as f64, size_of::<Bf16>() as f64);
+    3.5 * block_values * f32_bytes + outputs * bf16_bytes + plan.cost().fast_scratch_bytes
 }
 
 /// Refuses a search needing more than `limit_bytes` (`None`: no limit).
@@ -103,8 +104,9 @@ mod tests {
         let freqs: Vec<f64> = (0..16).map(|i| 1600.0 - 25.0 * i as f64).collect();
         let plan = DmPlan::uniform(freqs, 25.0, 1e-3, 0.0, 100.0, 10);
         let bytes = estimate_bytes(&layout(1000, 300), &plan, 16);
-        // 3.5 block copies of 16 × 1000 f32 and 10 trials × 1000 outputs, plus scratch.
-        let floor = (3.5 * 16_000.0 + 10_000.0) * 4.0;
+        // 3.5 block copies of 16 × 1000 f32 and 10 trials × 1000 bfloat16 outputs,
+        // plus scratch.
+        let floor = 3.5 * 16_000.0 * 4.0 + 10_000.0 * 2.0;
         let scratch = plan.cost().fast_scratch_bytes;
         assert_eq!(bytes, floor + scratch);
         assert!(scratch > 0.0);

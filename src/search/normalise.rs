@@ -3,7 +3,7 @@
 //! (1.4826 × MAD), so every channel, and later every dedispersed series, has zero
 //! mean and unit variance in its noise (common practice).
 
-use std::sync::{Mutex, OnceLock};
+use std::sync::OnceLock;
 
 use crate::dedisperse::Dedispersed;
 use crate::robust::{Baseline, median_sigma};
@@ -63,11 +63,10 @@ pub fn series_level(
     (sigma > 0.0 && sigma.is_finite()).then_some((baseline, sigma))
 }
 
-/// A block's dedispersed series, each normalised in place as the matched filter
+/// A block's dedispersed series, each decoded and normalised as the matched filter
 /// normalised it ([`normalise_series`] with [`SERIES_SIGMA_VALUES`]) when first
 /// read: the filter leaves the series as they are, and triage reads only the few
-/// near a candidate. Shared by threads; each series is normalised once, in its own
-/// memory (no copies).
+/// near a candidate. Shared by threads; each series is normalised once.
 pub struct NormalisedSeries<'a> {
     steps: Vec<StepSeries<'a>>,
     /// Baseline window in input samples.
@@ -76,35 +75,19 @@ pub struct NormalisedSeries<'a> {
 
 /// One plan step's series for [`NormalisedSeries`].
 struct StepSeries<'a> {
-    dms: &'a [f64],
-    downsample: usize,
-    rows: Vec<LazyRow<'a>>,
-}
-
-/// A series not yet normalised (`raw`, taken by the first reader) or normalised.
-struct LazyRow<'a> {
-    raw: Mutex<Option<&'a mut [f32]>>,
-    normalised: OnceLock<&'a [f32]>,
+    out: &'a Dedispersed,
+    normalised: Vec<OnceLock<Vec<f32>>>,
 }
 
 impl<'a> NormalisedSeries<'a> {
     /// The series of every step of `outs`, to be normalised over `baseline_len` input
     /// samples (divided by each step's downsampling) when first read.
-    pub fn new(outs: &'a mut [Dedispersed], baseline_len: usize) -> Self {
+    pub fn new(outs: &'a [Dedispersed], baseline_len: usize) -> Self {
         let steps = outs
-            .iter_mut()
+            .iter()
             .map(|out| StepSeries {
-                dms: &out.dms,
-                downsample: out.downsample,
-                rows: out
-                    .data
-                    .chunks_mut(out.n_time.max(1))
-                    .zip(&out.row_lens)
-                    .map(|(row, &len)| LazyRow {
-                        raw: Mutex::new(Some(&mut row[..len])),
-                        normalised: OnceLock::new(),
-                    })
-                    .collect(),
+                out,
+                normalised: (0..out.dms.len()).map(|_| OnceLock::new()).collect(),
             })
             .collect();
         NormalisedSeries {
@@ -115,24 +98,21 @@ impl<'a> NormalisedSeries<'a> {
 
     /// Trial DMs of step `step`, pc cm⁻³.
     pub fn dms(&self, step: usize) -> &'a [f64] {
-        self.steps[step].dms
+        &self.steps[step].out.dms
     }
 
     /// Input samples per sample of step `step`.
     pub fn downsample(&self, step: usize) -> usize {
-        self.steps[step].downsample
+        self.steps[step].out.downsample
     }
 
     /// Trial `r` of step `step`, normalised.
-    pub fn row(&self, step: usize, r: usize) -> &'a [f32] {
+    pub fn row(&self, step: usize, r: usize) -> &[f32] {
         let s = &self.steps[step];
-        let lazy = &s.rows[r];
-        lazy.normalised.get_or_init(|| {
-            let raw = lazy.raw.lock().map(|mut raw| raw.take());
-            // Only the one initialiser takes the row, so it is always there.
-            let row = raw.ok().flatten().unwrap_or_default();
-            let baseline = (self.baseline_len / s.downsample).max(1);
-            normalise_series(row, baseline, SERIES_SIGMA_VALUES, &mut Vec::new());
+        s.normalised[r].get_or_init(|| {
+            let mut row = s.out.row_f32(r);
+            let baseline = (self.baseline_len / s.out.downsample).max(1);
+            normalise_series(&mut row, baseline, SERIES_SIGMA_VALUES, &mut Vec::new());
             row
         })
     }
@@ -141,6 +121,7 @@ impl<'a> NormalisedSeries<'a> {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::dedisperse::bf16::to_bf16;
 
     // Each series read through the lazy view equals the series normalised directly,
     // at the step's own baseline, however often and in whatever order it is read.
@@ -156,15 +137,15 @@ mod tests {
             downsample,
             n_time: n,
             row_lens: vec![n; 3],
-            data: (0..3).flat_map(|k| raw(n, k)).collect(),
+            data: (0..3).flat_map(|k| raw(n, k)).map(to_bf16).collect(),
         };
-        let mut outs = vec![step(1, 4000), step(4, 1000)];
+        let outs = vec![step(1, 4000), step(4, 1000)];
         let direct: Vec<Vec<Vec<f32>>> = outs
             .iter()
             .map(|out| {
                 (0..3)
                     .map(|r| {
-                        let mut row = out.row(r).to_vec();
+                        let mut row = out.row_f32(r);
                         let baseline = 1200 / out.downsample;
                         normalise_series(&mut row, baseline, SERIES_SIGMA_VALUES, &mut Vec::new());
                         row
@@ -172,7 +153,7 @@ mod tests {
                     .collect()
             })
             .collect();
-        let series = NormalisedSeries::new(&mut outs, 1200);
+        let series = NormalisedSeries::new(&outs, 1200);
         assert_eq!(
             (series.dms(1), series.downsample(1)),
             (&[10.0, 20.0, 30.0][..], 4)
