@@ -248,9 +248,11 @@ fn print_summary(files: &[FileOutcome], top: usize, dm_max: f64) -> std::io::Res
         )?;
         match r.highest_dm_searched() {
             Some(dm) if dm >= dm_max => {}
+            // `readable`: a --dm-max of 1e300 is not written out in 301 digits.
             Some(dm) => say!(
-                "  note: {} is shorter than the sweep at DM {dm_max:.0}: searched only up to DM {dm:.1}",
-                r.file
+                "  note: {} is shorter than the sweep at DM {}: searched only up to DM {dm:.1}",
+                r.file,
+                burstbook::units::readable(dm_max)
             )?,
             None => say!(
                 "  note: {} is shorter than every trial's sweep: nothing was searched",

@@ -3,7 +3,7 @@
 use serde::{Deserialize, Serialize};
 
 use crate::timing::leap::{tai_minus_utc_s, utc_day_length_s};
-use crate::units::{PLAUSIBLE_MJD, SECONDS_PER_DAY, whole_days};
+use crate::units::{PLAUSIBLE_MJD, SECONDS_PER_DAY, readable, whole_days};
 
 /// Channel centres a header may hold, MHz: from below the ionosphere's cutoff (about
 /// 10 MHz) to the top of the submillimetre band (1 THz), `common practice`. Anything
@@ -300,16 +300,6 @@ impl Header {
             return Err(format!("SEFD must be positive, got {s}"));
         }
         Ok(())
-    }
-}
-
-/// `v` as written, or in exponent form when that would take more than a few digits
-/// (1e-300, not 300 zeros).
-fn readable(v: f64) -> String {
-    if (1e-4..1e7).contains(&v.abs()) || v == 0.0 {
-        v.to_string()
-    } else {
-        format!("{v:e}")
     }
 }
 
