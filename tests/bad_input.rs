@@ -146,7 +146,7 @@ fn native_unsupported_dtype() {
 fn native_wrong_json_types_and_values() {
     let dir = tempfile::tempdir().unwrap();
     type Edit = fn(&mut serde_json::Value);
-    let cases: [(&str, Edit, &str); 7] = [
+    let cases: [(&str, Edit, &str); 8] = [
         (
             "type",
             |v| v["sample_time_s"] = "fast".into(),
@@ -177,6 +177,12 @@ fn native_wrong_json_types_and_values() {
             "badchan",
             |v| v["bad_channels"] = serde_json::json!([9]),
             "bad channel 9",
+        ),
+        // Barycentring refuses 360°, so the header does too.
+        (
+            "ra360",
+            |v| v["ra_deg"] = 360.0.into(),
+            "RA must be in [0, 360)",
         ),
     ];
     for (name, edit, needle) in cases {
