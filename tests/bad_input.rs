@@ -459,7 +459,7 @@ fn fits_channel_frequencies_must_be_a_steady_band() {
     let dir = tempfile::tempdir().unwrap();
     // The header's band is 1400, 1399, 1398, 1397 MHz with CHAN_BW 1 MHz.
     let freq = |b: &[u8]| fits_row_start(b, 0) + 16;
-    let cases: [(&[f64; 4], &str); 4] = [
+    let cases: [(&[f64; 4], &str); 5] = [
         (
             &[1400.0, 1300.0, 1500.0, 1397.0],
             "DAT_FREQ is not evenly spaced: channel 1 is 1300 MHz after 1400 MHz, expected 1399 MHz",
@@ -475,6 +475,12 @@ fn fits_channel_frequencies_must_be_a_steady_band() {
         (
             &[1400.0, 1399.0, f64::NAN, 1397.0],
             "outside the radio window",
+        ),
+        // Steady, but the other way from what CHAN_BW's sign says.
+        (
+            &[1397.0, 1398.0, 1399.0, 1400.0],
+            "CHAN_BW = -1 MHz says the channels descend in frequency but DAT_FREQ ascends \
+             (1397 to 1400 MHz)",
         ),
     ];
     for (i, (freqs, needle)) in cases.into_iter().enumerate() {
@@ -492,6 +498,12 @@ fn fits_channel_frequencies_must_be_a_steady_band() {
     let path = fits_file(dir.path(), "cli", 8, 1.0);
     patch_bytes(&path, freq, &1500f64.to_be_bytes());
     assert_one_line_failure(&path, "DAT_FREQ is not evenly spaced: channel 1");
+    let path = fits_file(dir.path(), "sign", 8, 1.0);
+    patch_card(&path, "CHAN_BW", "CHAN_BW =                  1.0");
+    assert_one_line_failure(
+        &path,
+        "CHAN_BW = 1 MHz says the channels ascend in frequency but DAT_FREQ descends",
+    );
 }
 
 #[test]
