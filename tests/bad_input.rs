@@ -257,6 +257,37 @@ fn native_absurd_times() {
     cli_common::assert_one_line_failure(&out, &[&json.display().to_string(), "sample time"]);
 }
 
+/// `search A B` checks B before searching A: a bad file late in the list stopped the
+/// run only after the files before it had been searched (and catalogued).
+#[test]
+fn search_checks_every_file_before_searching_any() {
+    let dir = tempfile::tempdir().unwrap();
+    let (good, _) = native_pair(dir.path(), "good", 8);
+    let (bad, _) = native_pair(dir.path(), "bad", 8);
+    edit_json(&bad, |v| v["sample_time_s"] = (-1e-3).into());
+    let out_dir = dir.path().join("out");
+    let catalogue = dir.path().join("survey.sqlite");
+    let search = |files: &[&Path]| {
+        let flags = [
+            Path::new("--catalogue"),
+            &catalogue,
+            Path::new("--out"),
+            &out_dir,
+        ];
+        cli_common::burstbook(&[&[Path::new("search")], files, &flags[..]].concat())
+    };
+    let out = search(&[&good, &bad]);
+    cli_common::assert_one_line_failure(
+        &out,
+        &[&bad.display().to_string(), "sample time must be positive"],
+    );
+    let said = String::from_utf8_lossy(&out.stdout);
+    assert!(said.is_empty(), "nothing searched, yet: {said}");
+    assert!(!out_dir.exists() && !catalogue.exists());
+    // The good file alone is searched: the failure above was the bad one's.
+    cli_common::assert_success(&search(&[&good]));
+}
+
 #[test]
 fn native_empty_or_misplaced_data() {
     let dir = tempfile::tempdir().unwrap();
