@@ -674,3 +674,41 @@ fn binary_inspects_a_good_file() {
     assert_eq!(v["statistics"]["data"]["mean"], 7.0);
     assert_eq!(v["header"]["n_samples"], 10);
 }
+
+/// Clap's own usage errors take one line too, with clap's exit code 2, and a
+/// negative number for a flag that takes none says what the flag takes.
+#[test]
+fn usage_errors_are_one_line() {
+    let cases: [(&[&str], &str); 6] = [
+        (
+            &["search", "a.json", "--out", "o", "--top", "-1"],
+            "invalid value '-1' for '--top <TOP>': must be a whole number >= 0 (try '--help')",
+        ),
+        (
+            &["period", "activity", "--seed", "-1"],
+            "'--seed <SEED>': must be a whole number >= 0",
+        ),
+        (
+            &["period", "stats", "--seed", "1.5"],
+            "'--seed <SEED>': must be a whole number (try",
+        ),
+        (
+            &["search", "--out", "o"],
+            "the following required arguments were not provided: <FILES>... (try '--help')",
+        ),
+        (
+            &["search", "a.json", "--out", "o", "--dmmax", "3"],
+            "unexpected argument '--dmmax' found; tip: a similar argument exists: '--dm-max'",
+        ),
+        (&["bogus"], "unrecognized subcommand 'bogus'"),
+    ];
+    for (args, needle) in cases {
+        let out = cli_common::burstbook(args);
+        cli_common::assert_one_line_failure(&out, &[needle]);
+        assert_eq!(out.status.code(), Some(2), "{args:?}");
+    }
+    // Help is still clap's, in full, and a success.
+    let out = cli_common::burstbook(&["search", "--help"]);
+    cli_common::assert_success(&out);
+    assert!(String::from_utf8_lossy(&out.stdout).contains("Usage: burstbook search"));
+}
