@@ -1,4 +1,5 @@
-//! Physical constants and the cold-plasma dispersion law, each with its source.
+//! Physical constants and the cold-plasma dispersion law, each with its source; and
+//! how a number given by a user is written back in a message.
 
 /// Dispersion constant k in s MHz² pc⁻¹ cm³: Δt = k · DM · (ν₁⁻² − ν₂⁻²).
 ///
@@ -24,6 +25,16 @@ pub fn whole_days(mjd: i64, sec: f64) -> (i64, f64) {
         mjd.saturating_add(days as i64),
         sec - days * SECONDS_PER_DAY,
     )
+}
+
+/// `v` as written, or in exponent form when that would take more than a few digits
+/// (1e-300 and 1e300, not 300 digits).
+pub fn readable(v: f64) -> String {
+    if (1e-4..1e7).contains(&v.abs()) || v == 0.0 {
+        v.to_string()
+    } else {
+        format!("{v:e}")
+    }
 }
 
 /// Dispersion delay in seconds of `freq_mhz` relative to infinite frequency for `dm`
@@ -59,6 +70,17 @@ mod tests {
         assert!((d - 0.630_244_3).abs() < 1e-6, "{d}");
         let d = delay_between_s(1.0, 400.0, 800.0);
         assert!((d - 0.019_447_54).abs() < 1e-8, "{d}");
+    }
+
+    #[test]
+    fn readable_numbers_are_short() {
+        assert_eq!(readable(2000.0), "2000");
+        assert_eq!(readable(0.5), "0.5");
+        assert_eq!(readable(-3.0), "-3");
+        assert_eq!(readable(0.0), "0");
+        assert_eq!(readable(1e300), "1e300");
+        assert_eq!(readable(1e-300), "1e-300");
+        assert_eq!(readable(f64::INFINITY), "inf");
     }
 
     // Cordes & McLaughlin 2003 (ApJ 596, 1142) quote 8.3 µs · DM · Δν_MHz / ν_GHz³;

@@ -146,7 +146,7 @@ fn native_unsupported_dtype() {
 fn native_wrong_json_types_and_values() {
     let dir = tempfile::tempdir().unwrap();
     type Edit = fn(&mut serde_json::Value);
-    let cases: [(&str, Edit, &str); 7] = [
+    let cases: [(&str, Edit, &str); 8] = [
         (
             "type",
             |v| v["sample_time_s"] = "fast".into(),
@@ -177,6 +177,12 @@ fn native_wrong_json_types_and_values() {
             "badchan",
             |v| v["bad_channels"] = serde_json::json!([9]),
             "bad channel 9",
+        ),
+        // Barycentring refuses 360°, so the header does too.
+        (
+            "ra360",
+            |v| v["ra_deg"] = 360.0.into(),
+            "RA must be in [0, 360)",
         ),
     ];
     for (name, edit, needle) in cases {
@@ -249,6 +255,37 @@ fn native_absurd_times() {
         &dir.path().join("out"),
     ]);
     cli_common::assert_one_line_failure(&out, &[&json.display().to_string(), "sample time"]);
+}
+
+/// `search A B` checks B before searching A: a bad file late in the list stopped the
+/// run only after the files before it had been searched (and catalogued).
+#[test]
+fn search_checks_every_file_before_searching_any() {
+    let dir = tempfile::tempdir().unwrap();
+    let (good, _) = native_pair(dir.path(), "good", 8);
+    let (bad, _) = native_pair(dir.path(), "bad", 8);
+    edit_json(&bad, |v| v["sample_time_s"] = (-1e-3).into());
+    let out_dir = dir.path().join("out");
+    let catalogue = dir.path().join("survey.sqlite");
+    let search = |files: &[&Path]| {
+        let flags = [
+            Path::new("--catalogue"),
+            &catalogue,
+            Path::new("--out"),
+            &out_dir,
+        ];
+        cli_common::burstbook(&[&[Path::new("search")], files, &flags[..]].concat())
+    };
+    let out = search(&[&good, &bad]);
+    cli_common::assert_one_line_failure(
+        &out,
+        &[&bad.display().to_string(), "sample time must be positive"],
+    );
+    let said = String::from_utf8_lossy(&out.stdout);
+    assert!(said.is_empty(), "nothing searched, yet: {said}");
+    assert!(!out_dir.exists() && !catalogue.exists());
+    // The good file alone is searched: the failure above was the bad one's.
+    cli_common::assert_success(&search(&[&good]));
 }
 
 #[test]
@@ -453,7 +490,7 @@ fn fits_channel_frequencies_must_be_a_steady_band() {
     let dir = tempfile::tempdir().unwrap();
     // The header's band is 1400, 1399, 1398, 1397 MHz with CHAN_BW 1 MHz.
     let freq = |b: &[u8]| fits_row_start(b, 0) + 16;
-    let cases: [(&[f64; 4], &str); 4] = [
+    let cases: [(&[f64; 4], &str); 5] = [
         (
             &[1400.0, 1300.0, 1500.0, 1397.0],
             "DAT_FREQ is not evenly spaced: channel 1 is 1300 MHz after 1400 MHz, expected 1399 MHz",
@@ -469,6 +506,12 @@ fn fits_channel_frequencies_must_be_a_steady_band() {
         (
             &[1400.0, 1399.0, f64::NAN, 1397.0],
             "outside the radio window",
+        ),
+        // Steady, but the other way from what CHAN_BW's sign says.
+        (
+            &[1397.0, 1398.0, 1399.0, 1400.0],
+            "CHAN_BW = -1 MHz says the channels descend in frequency but DAT_FREQ ascends \
+             (1397 to 1400 MHz)",
         ),
     ];
     for (i, (freqs, needle)) in cases.into_iter().enumerate() {
@@ -486,6 +529,12 @@ fn fits_channel_frequencies_must_be_a_steady_band() {
     let path = fits_file(dir.path(), "cli", 8, 1.0);
     patch_bytes(&path, freq, &1500f64.to_be_bytes());
     assert_one_line_failure(&path, "DAT_FREQ is not evenly spaced: channel 1");
+    let path = fits_file(dir.path(), "sign", 8, 1.0);
+    patch_card(&path, "CHAN_BW", "CHAN_BW =                  1.0");
+    assert_one_line_failure(
+        &path,
+        "CHAN_BW = 1 MHz says the channels ascend in frequency but DAT_FREQ descends",
+    );
 }
 
 #[test]
@@ -624,4 +673,42 @@ fn binary_inspects_a_good_file() {
     let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
     assert_eq!(v["statistics"]["data"]["mean"], 7.0);
     assert_eq!(v["header"]["n_samples"], 10);
+}
+
+/// Clap's own usage errors take one line too, with clap's exit code 2, and a
+/// negative number for a flag that takes none says what the flag takes.
+#[test]
+fn usage_errors_are_one_line() {
+    let cases: [(&[&str], &str); 6] = [
+        (
+            &["search", "a.json", "--out", "o", "--top", "-1"],
+            "invalid value '-1' for '--top <TOP>': must be a whole number >= 0 (try '--help')",
+        ),
+        (
+            &["period", "activity", "--seed", "-1"],
+            "'--seed <SEED>': must be a whole number >= 0",
+        ),
+        (
+            &["period", "stats", "--seed", "1.5"],
+            "'--seed <SEED>': must be a whole number (try",
+        ),
+        (
+            &["search", "--out", "o"],
+            "the following required arguments were not provided: <FILES>... (try '--help')",
+        ),
+        (
+            &["search", "a.json", "--out", "o", "--dmmax", "3"],
+            "unexpected argument '--dmmax' found; tip: a similar argument exists: '--dm-max'",
+        ),
+        (&["bogus"], "unrecognized subcommand 'bogus'"),
+    ];
+    for (args, needle) in cases {
+        let out = cli_common::burstbook(args);
+        cli_common::assert_one_line_failure(&out, &[needle]);
+        assert_eq!(out.status.code(), Some(2), "{args:?}");
+    }
+    // Help is still clap's, in full, and a success.
+    let out = cli_common::burstbook(&["search", "--help"]);
+    cli_common::assert_success(&out);
+    assert!(String::from_utf8_lossy(&out.stdout).contains("Usage: burstbook search"));
 }

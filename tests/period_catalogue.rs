@@ -144,3 +144,39 @@ fn unknown_source_and_mixed_inputs_are_refused_in_one_line() {
         stderr(&out)
     );
 }
+
+/// Catalogue fluences that are not > 0 cannot be in a power law: the fit leaves them
+/// out and says how many (it dropped them silently).
+#[test]
+fn power_law_counts_the_fluences_it_leaves_out() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("survey.sqlite");
+    build_catalogue(&db, dir.path());
+    let sql = rusqlite::Connection::open(&db).unwrap();
+    let set = "UPDATE burst SET fluence_jy_ms = ?1 WHERE rowid = \
+               (SELECT rowid FROM burst WHERE fluence_jy_ms > 0 LIMIT 1)";
+    for fluence in [0.0, -1.5] {
+        assert_eq!(sql.execute(set, [fluence]).unwrap(), 1);
+    }
+    drop(sql);
+    let db = db.to_str().unwrap();
+    let stats = [
+        "period",
+        "stats",
+        "--boot",
+        "0",
+        "--source",
+        SOURCE,
+        "--catalogue",
+        db,
+    ];
+    let s = json(&burstbook(&stats, &["--json"]));
+    assert_eq!(s["power_law"]["n_excluded"], 2);
+    let out = burstbook(&stats, &[]);
+    assert!(out.status.success(), "{}", stderr(&out));
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(
+        text.contains(" values; 2 not > 0 left out): α = "),
+        "{text}"
+    );
+}

@@ -200,3 +200,32 @@ fn bad_input_fails_with_one_line_naming_the_file() {
     assert_one_line_failure(&o, &["fine.json", "--memory-limit-gib"]);
     assert!(!out.join("candidates.csv").exists());
 }
+
+/// A huge --dm-max is searched up to what the recording holds, and the note saying
+/// so writes the asked DM shortly (it printed all 301 digits of 1e300).
+#[test]
+fn the_note_for_a_huge_dm_max_is_short() {
+    let dir = tempfile::tempdir().unwrap();
+    let file = dir.path().join("a.json");
+    simulate(&file, Container::Native, 4);
+    let o = burstbook(&[
+        "search",
+        file.to_str().unwrap(),
+        "--out",
+        dir.path().join("out").to_str().unwrap(),
+        "--dm-max",
+        "1e300",
+        "--no-catalogue",
+    ]);
+    cli_common::assert_success(&o);
+    let text = String::from_utf8_lossy(&o.stdout);
+    let note = text
+        .lines()
+        .find(|l| l.contains("is shorter than the sweep"))
+        .unwrap_or_else(|| panic!("no note in {text}"));
+    assert!(
+        note.contains("the sweep at DM 1e300: searched only up to DM "),
+        "{note}"
+    );
+    assert!(note.len() < 200, "{note}");
+}

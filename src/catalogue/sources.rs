@@ -5,6 +5,7 @@ use serde::Serialize;
 
 use super::{Catalogue, catalogue_error};
 use crate::error::{Error, Result};
+use crate::obs::check_sky_position;
 
 /// A source in the catalogue.
 #[derive(Debug, Clone, PartialEq, Serialize)]
@@ -37,18 +38,7 @@ impl SourceRecord {
         if self.name.trim().is_empty() {
             return Err(Error::Config("source name is empty".into()));
         }
-        if !(self.ra_deg.is_finite() && (0.0..360.0).contains(&self.ra_deg)) {
-            return Err(Error::Config(format!(
-                "RA must be in [0, 360) degrees, got {}",
-                self.ra_deg
-            )));
-        }
-        if !(self.dec_deg.is_finite() && self.dec_deg.abs() <= 90.0) {
-            return Err(Error::Config(format!(
-                "Dec must be in [-90, 90] degrees, got {}",
-                self.dec_deg
-            )));
-        }
+        check_sky_position(self.ra_deg, self.dec_deg).map_err(Error::Config)?;
         if let Some(dm) = self.dm_ref
             && !(dm.is_finite() && dm >= 0.0)
         {

@@ -43,9 +43,26 @@ impl Cli {
     /// Parses the process arguments. A value such as `--dm-max -5` is taken as the
     /// number it is (so the command's own check explains what is wrong with it),
     /// not as an unknown flag, in every subcommand.
+    ///
+    /// Help and version are printed as clap prints them; a usage error exits with
+    /// clap's code (2) after one line, as every other error is reported.
     pub fn parse_args() -> Cli {
-        let matches = negative_numbers_everywhere(Cli::command()).get_matches();
-        Cli::from_arg_matches(&matches).unwrap_or_else(|e| e.exit())
+        negative_numbers_everywhere(Cli::command())
+            .try_get_matches()
+            .and_then(|matches| Cli::from_arg_matches(&matches))
+            .unwrap_or_else(|e| {
+                use clap::error::ErrorKind::*;
+                let help = [
+                    DisplayHelp,
+                    DisplayVersion,
+                    DisplayHelpOnMissingArgumentOrSubcommand,
+                ];
+                if help.contains(&e.kind()) {
+                    e.exit()
+                }
+                note!("burstbook: error: {} (try '--help')", usage_error_line(&e));
+                std::process::exit(e.exit_code())
+            })
     }
 }
 
@@ -53,6 +70,49 @@ fn negative_numbers_everywhere(command: clap::Command) -> clap::Command {
     command
         .allow_negative_numbers(true)
         .mut_subcommands(negative_numbers_everywhere)
+}
+
+/// Clap's message for a usage error on one line, without its usage block and help
+/// hint. A value that is not a whole number, for a flag that takes one, says so
+/// instead of the parser's "invalid digit found in string".
+fn usage_error_line(e: &clap::Error) -> String {
+    use clap::error::{ContextKind, ContextValue};
+    let context = |kind| match e.get(kind) {
+        Some(ContextValue::String(s)) => Some(s.as_str()),
+        _ => None,
+    };
+    let not_whole = std::error::Error::source(e)
+        .and_then(|s| s.downcast_ref::<std::num::ParseIntError>())
+        .is_some_and(|p| *p.kind() == std::num::IntErrorKind::InvalidDigit);
+    if let (true, Some(value), Some(flag)) = (
+        not_whole,
+        context(ContextKind::InvalidValue),
+        context(ContextKind::InvalidArg),
+    ) {
+        // A negative whole number failed, so the flag takes none.
+        let at_least_0 = match value.parse::<i128>() {
+            Ok(_) => " >= 0",
+            Err(_) => "",
+        };
+        return format!("invalid value '{value}' for '{flag}': must be a whole number{at_least_0}");
+    }
+    let text = e.to_string();
+    let mut line = String::new();
+    let parts = text
+        .lines()
+        .map(str::trim)
+        .take_while(|l| !(l.starts_with("Usage:") || l.starts_with("For more information")))
+        .filter(|l| !l.is_empty());
+    for part in parts {
+        // "… not provided:" runs on into its list; other lines are separate remarks.
+        let sep = match () {
+            _ if line.is_empty() => "",
+            _ if line.ends_with(':') => " ",
+            _ => "; ",
+        };
+        line = format!("{line}{sep}{part}");
+    }
+    line.strip_prefix("error: ").unwrap_or(&line).to_string()
 }
 
 #[derive(Subcommand, Debug)]

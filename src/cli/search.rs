@@ -114,6 +114,9 @@ fn config(args: &Args) -> anyhow::Result<SearchConfig> {
 
 pub fn run(args: Args) -> anyhow::Result<()> {
     let config = config(&args)?;
+    let paths = distinct_files(&args.files);
+    // Every file checked before any is searched, or a bad one stops the run late.
+    search::check_files(&paths, &config)?;
     std::fs::create_dir_all(&args.out)
         .with_context(|| format!("cannot create output directory {}", args.out.display()))?;
     // Opened first, so a bad catalogue stops us before hours of searching.
@@ -127,7 +130,7 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     let mut files = Vec::new();
     // Recordings of one shape reuse one set of buffers.
     let mut workspace = search::Workspace::default();
-    for path in distinct_files(&args.files) {
+    for path in paths {
         let started_utc = burstbook::catalogue::now_utc();
         let source = burstbook::obs::open(path)?;
         let label = path.display().to_string();
@@ -205,8 +208,6 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     Ok(())
 }
 
-/// Prints per-file totals and the `top` brightest candidates; `dm_max` is the highest
-/// DM asked for, which a short recording may not reach.
 /// `paths` without the repeats of a file named twice (by the same or another path
 /// to it), which would list its candidates twice; each repeat gets a note.
 fn distinct_files(paths: &[PathBuf]) -> Vec<&PathBuf> {
@@ -225,6 +226,8 @@ fn distinct_files(paths: &[PathBuf]) -> Vec<&PathBuf> {
         .collect()
 }
 
+/// Prints per-file totals and the `top` brightest candidates; `dm_max` is the highest
+/// DM asked for, which a short recording may not reach.
 fn print_summary(files: &[FileOutcome], top: usize, dm_max: f64) -> std::io::Result<()> {
     use burstbook::Verdict;
     let searched = files.iter().filter_map(|f| match f {
@@ -248,9 +251,11 @@ fn print_summary(files: &[FileOutcome], top: usize, dm_max: f64) -> std::io::Res
         )?;
         match r.highest_dm_searched() {
             Some(dm) if dm >= dm_max => {}
+            // `readable`: a --dm-max of 1e300 is not written out in 301 digits.
             Some(dm) => say!(
-                "  note: {} is shorter than the sweep at DM {dm_max:.0}: searched only up to DM {dm:.1}",
-                r.file
+                "  note: {} is shorter than the sweep at DM {}: searched only up to DM {dm:.1}",
+                r.file,
+                burstbook::units::readable(dm_max)
             )?,
             None => say!(
                 "  note: {} is shorter than every trial's sweep: nothing was searched",

@@ -3,7 +3,7 @@
 use serde::{Deserialize, Serialize};
 
 use crate::timing::leap::{tai_minus_utc_s, utc_day_length_s};
-use crate::units::{PLAUSIBLE_MJD, SECONDS_PER_DAY, whole_days};
+use crate::units::{PLAUSIBLE_MJD, SECONDS_PER_DAY, readable, whole_days};
 
 /// Channel centres a header may hold, MHz: from below the ionosphere's cutoff (about
 /// 10 MHz) to the top of the submillimetre band (1 THz), `common practice`. Anything
@@ -276,12 +276,7 @@ impl Header {
                 self.freqs_mhz.len()
             ));
         }
-        if !((0.0..=360.0).contains(&self.ra_deg) && self.dec_deg.abs() <= 90.0) {
-            return Err(format!(
-                "bad sky position ra={} dec={} (need 0 <= ra <= 360, |dec| <= 90 degrees)",
-                self.ra_deg, self.dec_deg
-            ));
-        }
+        check_sky_position(self.ra_deg, self.dec_deg)?;
         let site = &self.site;
         if !(site.lat_deg.abs() <= 90.0 && site.lon_deg.is_finite() && site.height_m.is_finite()) {
             return Err(format!(
@@ -303,14 +298,21 @@ impl Header {
     }
 }
 
-/// `v` as written, or in exponent form when that would take more than a few digits
-/// (1e-300, not 300 zeros).
-fn readable(v: f64) -> String {
-    if (1e-4..1e7).contains(&v.abs()) || v == 0.0 {
-        v.to_string()
-    } else {
-        format!("{v:e}")
+/// Checks an ICRS position, in degrees: RA in [0, 360), Dec in [−90, 90]. One check
+/// for headers, sources and barycentring, so a position one accepts the others do not
+/// refuse. Out of range is refused, never wrapped: RA 400° is a typo or a unit slip,
+/// not 40°, and 360° is written 0°.
+///
+/// # Errors
+/// A message giving the position and the ranges.
+pub fn check_sky_position(ra_deg: f64, dec_deg: f64) -> Result<(), String> {
+    if (0.0..360.0).contains(&ra_deg) && (-90.0..=90.0).contains(&dec_deg) {
+        return Ok(());
     }
+    Err(format!(
+        "sky position RA {ra_deg}°, Dec {dec_deg}° is out of range \
+         (RA must be in [0, 360), Dec in [-90, 90] degrees)"
+    ))
 }
 
 /// The steady step between channel centres `freqs_mhz` (MHz, data order), from the
@@ -435,7 +437,15 @@ pub(crate) mod tests {
         let mut bad = h.clone();
         bad.chan_bw_mhz = 4000.0;
         assert!(bad.validate().unwrap_err().contains("below 0 MHz"));
-        for (ra, dec) in [(400.0, 0.0), (-1.0, 0.0), (f64::NAN, 0.0), (10.0, 91.0)] {
+        // RA 360° passed here but barycentring refused it: one range for both.
+        for (ra, dec) in [
+            (400.0, 0.0),
+            (360.0, 0.0),
+            (-1.0, 0.0),
+            (f64::NAN, 0.0),
+            (10.0, 91.0),
+            (10.0, f64::NAN),
+        ] {
             let mut bad = h.clone();
             (bad.ra_deg, bad.dec_deg) = (ra, dec);
             assert!(

@@ -21,7 +21,7 @@ pub use block::{
 pub(crate) use header::RADIO_WINDOW_MHZ;
 #[cfg(test)]
 pub(crate) use header::tests::{band, test_header};
-pub use header::{Header, Site, UtcEpoch};
+pub use header::{Header, Site, UtcEpoch, check_sky_position};
 
 use std::path::Path;
 

@@ -21,6 +21,9 @@ pub struct PowerLawFit {
     pub s_min_chosen: bool,
     /// Values ≥ S_min.
     pub n_tail: usize,
+    /// Values left out for not being finite and > 0: a power law has no such values,
+    /// and a catalogue fluence can be one (a burst whose S/N said nothing).
+    pub n_excluded: usize,
     /// Differential index α̂ (maximum likelihood).
     pub alpha: f64,
     /// 1σ of α̂: (α̂ − 1)/√n.
@@ -59,13 +62,20 @@ fn alpha_and_ks(sorted_tail: &[f64], s_min: f64) -> (f64, f64, f64) {
 /// # Errors
 /// [`Error::Config`] if a given `s_min` is not a finite positive number;
 /// [`Error::Numerical`] if fewer than 2 positive values lie above S_min or all equal.
+/// Values that are not finite and > 0 are left out and counted in
+/// [`PowerLawFit::n_excluded`].
 pub fn fit_power_law(
     values: &[f64],
     s_min: Option<f64>,
     n_boot: usize,
     seed: u64,
 ) -> Result<PowerLawFit> {
-    let mut v: Vec<f64> = values.iter().cloned().filter(|x| *x > 0.0).collect();
+    let mut v: Vec<f64> = values
+        .iter()
+        .copied()
+        .filter(|x| x.is_finite() && *x > 0.0)
+        .collect();
+    let n_excluded = values.len() - v.len();
     v.sort_by(f64::total_cmp);
     let chosen = s_min.is_none();
     if let Some(s) = s_min
@@ -119,6 +129,7 @@ pub fn fit_power_law(
         s_min,
         s_min_chosen: chosen,
         n_tail: tail.len(),
+        n_excluded,
         alpha,
         alpha_err: (alpha - 1.0) / n.sqrt(),
         alpha_unbiased: 1.0 + (n - 1.0) / sum_ln,
@@ -155,6 +166,20 @@ mod tests {
         let f = fit_power_law(&s, Some(2.0), 0, 0).unwrap();
         // True α = 2.5; σ = 1.5/√4000 ≈ 0.024: allow 4σ.
         assert!((f.alpha - 2.5).abs() < 4.0 * f.alpha_err, "{}", f.alpha);
+    }
+
+    #[test]
+    fn values_that_are_not_positive_are_left_out_and_counted() {
+        let s = [1.1, 1.3, 1.5, 2.0, 2.2, 3.1, 4.0, 5.5, 8.0, 15.0];
+        let clean = fit_power_law(&s, None, 0, 0).unwrap();
+        assert_eq!(clean.n_excluded, 0);
+        let with_bad = [&s[..], &[0.0, -2.5, f64::NAN, f64::INFINITY]].concat();
+        let f = fit_power_law(&with_bad, None, 0, 0).unwrap();
+        assert_eq!(f.n_excluded, 4);
+        assert_eq!(
+            (f.alpha, f.s_min, f.n_tail),
+            (clean.alpha, clean.s_min, clean.n_tail)
+        );
     }
 
     #[test]

@@ -48,16 +48,21 @@ pub fn activity_figures(
         &exposure_h,
         "h",
         &format!(
-            "folded at {:.4} ± {:.4} d from MJD {:.3}; χ² = {:.1}, Monte Carlo FAP {:.4}",
-            r.period_days, r.period_err_days, r.epoch_mjd, r.fold.chi2, r.fap
+            "folded at {:.4} ± {:.4} d from MJD {:.3}; χ² = {:.1}, {}",
+            r.period_days,
+            r.period_err_days,
+            r.epoch_mjd,
+            r.fold.chi2,
+            monte_carlo_fap(r)
         ),
     )?;
     let timeline = timeline_figure(sessions_mjd, bursts_mjd, &active_windows(r, sessions_mjd))?;
     Ok(vec![
         (
             format!(
-                "Activity periodogram: best {:.4} d (Monte Carlo FAP {:.4} with the real exposure)",
-                r.period_days, r.fap
+                "Activity periodogram: best {:.4} d ({})",
+                r.period_days,
+                monte_carlo_fap(r)
             ),
             periodogram,
         ),
@@ -70,6 +75,16 @@ pub fn activity_figures(
             timeline,
         ),
     ])
+}
+
+/// The Monte Carlo FAP of the best period as the figures give it. Without simulations
+/// the search has none (its `fap` is NaN): "not computed", as `period activity --sims 0`
+/// says, not "NaN".
+fn monte_carlo_fap(r: &ActivityResult) -> String {
+    match r.config.sims {
+        0 => "Monte Carlo FAP not computed (no simulations)".into(),
+        sets => format!("Monte Carlo FAP {:.4} ({sets} sets, real exposure)", r.fap),
+    }
 }
 
 /// χ² values with the [`LEVELS_P`] upper-tail probabilities for `dof` degrees of freedom.
@@ -121,10 +136,9 @@ mod tests {
         assert!((l[1].0 - 27.877).abs() < 2e-3, "{}", l[1].0);
     }
 
-    #[test]
-    fn figures_for_a_periodic_source_show_bursts_inside_active_windows() {
-        // Daily 6-hour sessions for 80 days; bursts only in the first 3 days of a
-        // 16-day cycle.
+    /// Daily 6-hour sessions for 80 days, bursts only in the first 3 days of a 16-day
+    /// cycle, searched with `sims` simulations: the result, sessions and bursts (MJD).
+    fn sixteen_day_cycle(sims: usize) -> (ActivityResult, Vec<(f64, f64)>, Vec<f64>) {
         let ref_mjd = 60000;
         let sessions: Vec<(f64, f64)> = (0..80).map(|d| (d as f64, d as f64 + 0.25)).collect();
         let bursts: Vec<f64> = (0..80)
@@ -132,18 +146,23 @@ mod tests {
             .map(|d| d as f64 + 0.1)
             .collect();
         let cfg = ActivityConfig {
-            sims: 20,
+            sims,
             max_period_days: Some(30.0),
             ..ActivityConfig::default()
         };
         let r = search_activity(&bursts, &sessions, ref_mjd, &cfg, &|_| {}).unwrap();
-        assert!((r.period_days - 16.0).abs() < 0.5, "{}", r.period_days);
         let to_mjd = |d: f64| ref_mjd as f64 + d;
-        let sessions_mjd: Vec<(f64, f64)> = sessions
+        let sessions_mjd = sessions
             .iter()
             .map(|&(a, b)| (to_mjd(a), to_mjd(b)))
             .collect();
-        let bursts_mjd: Vec<f64> = bursts.iter().map(|&d| to_mjd(d)).collect();
+        (r, sessions_mjd, bursts.iter().map(|&d| to_mjd(d)).collect())
+    }
+
+    #[test]
+    fn figures_for_a_periodic_source_show_bursts_inside_active_windows() {
+        let (r, sessions_mjd, bursts_mjd) = sixteen_day_cycle(20);
+        assert!((r.period_days - 16.0).abs() < 0.5, "{}", r.period_days);
         let windows = active_windows(&r, &sessions_mjd);
         for b in &bursts_mjd {
             assert!(
@@ -159,5 +178,18 @@ mod tests {
             figs.iter()
                 .all(|(caption, f)| !caption.is_empty() && f.width >= 1000)
         );
+        assert!(figs[0].0.contains("Monte Carlo FAP 0."), "{}", figs[0].0);
+    }
+
+    /// Without simulations the FAP is "not computed", never "NaN" (the library's value).
+    #[test]
+    fn without_simulations_the_fap_is_not_computed() {
+        let (r, sessions_mjd, bursts_mjd) = sixteen_day_cycle(0);
+        assert!(r.fap.is_nan());
+        let fap = monte_carlo_fap(&r);
+        assert_eq!(fap, "Monte Carlo FAP not computed (no simulations)");
+        let figs = activity_figures(&r, &sessions_mjd, &bursts_mjd).unwrap();
+        assert!(figs[0].0.contains(&fap), "{}", figs[0].0);
+        assert!(figs.iter().all(|(caption, _)| !caption.contains("NaN")));
     }
 }

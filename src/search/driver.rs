@@ -200,6 +200,25 @@ pub fn block_layout(header: &Header, config: &SearchConfig) -> Result<BlockLayou
     Ok(Searcher::new(header.clone(), config, "")?.layout)
 }
 
+/// Opens each recording and checks it could be searched with `config` (its header,
+/// the plan for it, the memory that needs) without reading a sample. A search of many
+/// files runs this first: a bad file late in the list then stops it before any is
+/// searched, not after hours spent on the files before it.
+///
+/// # Errors
+/// The first file that cannot be opened or searched, named, or an invalid configuration.
+pub fn check_files<P: AsRef<Path>>(paths: &[P], config: &SearchConfig) -> Result<()> {
+    config.validate()?;
+    for path in paths {
+        let path = path.as_ref();
+        // Opening validates the header; the file is closed again at once, so a long
+        // list holds no handles.
+        let source = crate::obs::open(path)?;
+        Searcher::new(source.header().clone(), config, &path.display().to_string())?;
+    }
+    Ok(())
+}
+
 struct Searcher<'a> {
     label: &'a str,
     header: Header,

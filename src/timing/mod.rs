@@ -30,7 +30,7 @@ pub use ephemeris::Ephemeris;
 pub use spk::SpkEphemeris;
 
 use crate::error::{Error, Result};
-use crate::obs::{Site, UtcEpoch};
+use crate::obs::{Site, UtcEpoch, check_sky_position};
 use crate::units::{SECONDS_PER_DAY, delay_to_infinity_s, whole_days};
 use geometry::{
     C_KM_S, dot, itrs_to_gcrs, npb_matrix, roemer_delay_s, shapiro_delay_s, source_direction,
@@ -146,13 +146,7 @@ impl Barycentrer {
     /// # Errors
     /// [`Error::Config`] for a site off the Earth or a position out of range.
     pub fn new(site: &Site, ra_deg: f64, dec_deg: f64, ephemeris: Ephemeris) -> Result<Self> {
-        // An RA of 400° is not silently read as 40°: a wrong unit or a typo.
-        if !((0.0..360.0).contains(&ra_deg) && (-90.0..=90.0).contains(&dec_deg)) {
-            return Err(Error::Config(format!(
-                "sky position RA {ra_deg}°, Dec {dec_deg}° is out of range \
-                 (RA must be in [0, 360), Dec in [-90, 90] degrees)"
-            )));
-        }
+        check_sky_position(ra_deg, dec_deg).map_err(Error::Config)?;
         Ok(Barycentrer {
             site_itrs_km: geometry::site_itrs_km(site)?,
             direction: source_direction(ra_deg, dec_deg),

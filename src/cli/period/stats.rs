@@ -90,7 +90,7 @@ pub fn run(a: Args) -> anyhow::Result<()> {
         Probability(waiting.poisson_p, 3)
     )?;
     say!(
-        "Power law of {values_from}: dN/dS ∝ S^-α above S_min = {:.4} ({}; {} values): α = {:.3} ± {:.3} \
+        "Power law of {values_from}: dN/dS ∝ S^-α above S_min = {:.4} ({}; {} values{}): α = {:.3} ± {:.3} \
          (n−1 form {:.3}), cumulative γ = {:.3}, KS D = {:.3}, fit p = {}",
         power.s_min,
         if power.s_min_chosen {
@@ -99,6 +99,10 @@ pub fn run(a: Args) -> anyhow::Result<()> {
             "given"
         },
         power.n_tail,
+        match power.n_excluded {
+            0 => String::new(),
+            n => format!("; {n} not > 0 left out"),
+        },
         power.alpha,
         power.alpha_err,
         power.alpha_unbiased,

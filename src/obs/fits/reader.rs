@@ -178,6 +178,22 @@ impl FitsReader {
                 l.chan_bw_mhz.unwrap_or(chan_bw)
             )));
         }
+        // The sign of CHAN_BW and the order of DAT_FREQ both say which way the band
+        // runs; if they disagree, one is wrong, and trusting the wrong one would
+        // dedisperse against the sweep and find nothing: refused, not guessed.
+        if let (Some(bw), Some(step)) = (l.chan_bw_mhz, step)
+            && (bw > 0.0) != (step > 0.0)
+        {
+            let way = |v: f64| if v > 0.0 { "ascend" } else { "descend" };
+            return Err(bad(format!(
+                "CHAN_BW = {bw} MHz says the channels {} in frequency but DAT_FREQ {}s \
+                 ({} to {} MHz): which order the data are in is unclear",
+                way(bw),
+                way(step),
+                h.freqs_mhz[0],
+                h.freqs_mhz[h.freqs_mhz.len() - 1]
+            )));
+        }
         Ok(())
     }
 

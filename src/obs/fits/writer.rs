@@ -248,11 +248,14 @@ fn primary_header(h: &Header) -> Vec<u8> {
     c.real("ANT_Y", y, "ITRF Y (m)");
     c.real("ANT_Z", z, "ITRF Z (m)");
     c.str("SRC_NAME", &h.source, "");
-    c.str(
-        "RA",
-        &format_sexagesimal(h.ra_deg / 15.0, 6, false),
-        "hh:mm:ss",
-    );
+    // An RA a hair under 360° rounds to 24:00:00, which reads back as 360°, out of
+    // range: write the same direction as 00:00:00.
+    let ra = format_sexagesimal(h.ra_deg / 15.0, 6, false);
+    let ra = match ra.strip_prefix("24:") {
+        Some(rest) => format!("00:{rest}"),
+        None => ra,
+    };
+    c.str("RA", &ra, "hh:mm:ss");
     c.str("DEC", &format_sexagesimal(h.dec_deg, 5, true), "dd:mm:ss");
     c.int("STT_IMJD", h.start.mjd, "start day (UTC MJD)");
     c.int("STT_SMJD", sec_whole as i64, "start second of day");
@@ -332,6 +335,15 @@ mod tests {
             assert!((back.site.lon_deg - h.site.lon_deg).abs() < 1e-9);
             assert!((back.site.height_m - h.site.height_m).abs() < 1e-4);
         }
+    }
+
+    #[test]
+    fn right_ascension_just_under_a_circle_reads_back() {
+        let mut h = test_header(4, 8);
+        h.nbits = 8;
+        h.ra_deg = 360.0 - 1e-12;
+        let (back, _) = round_trip(&h, 8, &[1.0; 32]);
+        assert_eq!(back.ra_deg, 0.0);
     }
 
     #[test]
