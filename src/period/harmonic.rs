@@ -57,7 +57,7 @@ pub struct SubHarmonic {
     pub accepted: bool,
 }
 
-/// The trial the check settles on and the steps it took.
+/// The trial the check settles on and the tests it made.
 pub(super) struct Pick {
     pub index: usize,
     pub tests: Vec<SubHarmonic>,
@@ -164,9 +164,9 @@ pub(super) fn resolve(
     Pick { index: best, tests }
 }
 
-/// Width in frequency (1/day) of the χ² peak at trial `best`: full width above the
-/// median level plus half the peak's height over it (common practice), at least one
-/// grid step.
+/// Width in frequency (1/day) of the χ² peak at trial `best`: its full width where it
+/// stands half its height above the median level (common practice), at least one grid
+/// step.
 pub(super) fn peak_fwhm_per_day(periods: &[f64], chi2: &[f64], best: usize) -> f64 {
     let mut sorted = chi2.to_vec();
     sorted.sort_by(f64::total_cmp);
