@@ -76,10 +76,32 @@ fn demo_sets_give_json_with_the_promised_fields() {
     for key in ["period_days", "period_err_days", "fap", "window_fraction"] {
         assert!(a[key].as_f64().is_some(), "{key} missing");
     }
+    // The seed-4 set (19 bursts of the 23.7-day cycle) folds best at twice the period;
+    // the sub-harmonic check finds its two cycles alike and reports the half, within
+    // three of its errors of the true cycle, with the scan's own pick beside it.
+    let (p, dp) = (
+        a["period_days"].as_f64().unwrap(),
+        a["period_err_days"].as_f64().unwrap(),
+    );
+    assert!((p - 23.7).abs() < 3.0 * dp, "{p} ± {dp} d");
+    let h = &a["harmonic"];
+    assert_eq!(h["changed"].as_bool(), Some(true), "{h}");
+    let scan = h["scan_period_days"].as_f64().unwrap();
+    assert!((scan - 47.4).abs() < 3.0 * h["scan_period_err_days"].as_f64().unwrap());
+    assert!(h["scan_chi2"].as_f64().unwrap() > a["fold"]["chi2"].as_f64().unwrap());
+    assert!(h["scan_fap"].as_f64().is_some());
+    let first = &h["sub_harmonics"][0];
+    assert_eq!(first["k"].as_u64(), Some(2));
+    assert_eq!(first["accepted"].as_bool(), Some(true));
+    assert!(first["p"].as_f64().unwrap() > 0.05, "{first}");
+    let text = burstbook(&["period", "activity", "--sims", "0"], d);
+    let text = String::from_utf8_lossy(&text.stdout);
+    assert!(
+        text.contains("sub-harmonic check: the scan scored 47.0"),
+        "{text}"
+    );
     // The committed demo set (32 bursts, active for 30 % of a 23.7-day cycle): the
-    // cycle is found within three of its own errors. (The seed-4 set above, with 19
-    // bursts, folds best at twice the period, at a Monte Carlo FAP of 0.08: see
-    // docs/period.md.)
+    // cycle is found within three of its own errors, and kept.
     let root = env!("CARGO_MANIFEST_DIR");
     let demo = json(&burstbook(
         &[
@@ -100,6 +122,7 @@ fn demo_sets_give_json_with_the_promised_fields() {
         demo["period_err_days"].as_f64().unwrap(),
     );
     assert!((p - 23.7).abs() < 3.0 * dp, "{p} ± {dp} d");
+    assert_eq!(demo["harmonic"]["changed"].as_bool(), Some(false));
     assert_eq!(a["next_windows"].as_array().unwrap().len(), 3);
     assert!(a["next_windows"][0]["start_mjd"].as_f64().unwrap() > 61_000.0);
 

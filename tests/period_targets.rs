@@ -3,6 +3,7 @@
 //! of the false-alarm probabilities on sets without any period.
 
 use burstbook::period::activity::{ActivityConfig, search_activity};
+use burstbook::period::harmonic::CYCLE_ALPHA;
 use burstbook::period::null_sets::NullFaps;
 use burstbook::period::rotation::{RotationConfig, search_rotation, test_period};
 use burstbook::period::synth::{
@@ -86,6 +87,37 @@ fn activity_cycle_is_recovered_from_forty_bursts_with_irregular_cadence() {
     assert_eq!(w.len(), 3);
     assert!(w[0].nominal_end_mjd > 60_000.0 + sessions.last().unwrap().1);
     assert!((w[1].nominal_start_mjd - w[0].nominal_start_mjd - res.period_days).abs() < 1e-9);
+}
+
+#[test]
+fn a_cycle_with_bursts_in_every_other_window_is_not_halved() {
+    // Active 15 % of a 47.4-day cycle: bursts in every other window of a 23.7-day
+    // cycle, as if the demo repeater skipped alternate windows. Sessions and rate as
+    // the demo's, twice the rate while active.
+    let mut r = rng(1, 7);
+    let sessions = irregular_sessions(90, 300.0, 0.125, &mut r);
+    let period = 47.4;
+    let bursts = activity_cycle(period, 0.15, 0.4, 16.0, &sessions, &mut r);
+    assert!((20..=35).contains(&bursts.len()), "{} bursts", bursts.len());
+    let cfg = ActivityConfig {
+        sims: 19,
+        ..Default::default()
+    };
+    let res = search_activity(&bursts, &sessions, 60_000, &cfg, &|_| {}).unwrap();
+    assert!(
+        (res.period_days - period).abs() < 3.0 * res.period_err_days,
+        "P = {} ± {}",
+        res.period_days,
+        res.period_err_days
+    );
+    // Half the period was considered and rejected: its two cycles differ.
+    let h = &res.harmonic;
+    assert!(!h.changed);
+    let half = &h.sub_harmonics[0];
+    assert_eq!(half.k, 2);
+    assert!((half.period_days - period / 2.0).abs() < 1.0, "{half:?}");
+    assert!(!half.accepted && half.p <= CYCLE_ALPHA, "{half:?}");
+    assert_eq!(res.fap, 1.0 / 20.0);
 }
 
 /// Counts FAPs below each level over `sets` null sets; returns fractions.

@@ -6,14 +6,19 @@
 //! exposure: the same number of bursts placed at a constant rate inside the observing
 //! sessions, the *whole* scan rerun, the maximum χ² (and narrowest window) recorded.
 //! This accounts for the number of trial periods and for the window function at once.
-//! A Lomb–Scargle periodogram of per-session burst rates is given alongside.
+//! The scan's best period may be a multiple of the true one; [`super::harmonic`] takes
+//! a sub-harmonic when the data do not need the longer period, in the data and in
+//! every Monte Carlo set alike. A Lomb–Scargle periodogram of per-session burst rates
+//! is given alongside.
 
+use rand_chacha::ChaCha8Rng;
 use rayon::prelude::*;
 use serde::Serialize;
 
 use super::fold::{
     FoldTest, PhaseWindow, fold_counts, fold_exposure, fold_test, narrowest_window, phase,
 };
+use super::harmonic::{Pick, SubHarmonic, peak_fwhm_per_day, resolve};
 use super::lomb::{fap_baluev, lomb_scargle};
 use super::synth::{rng, uniform_over_exposure};
 use crate::error::{Error, Result};
@@ -28,6 +33,9 @@ pub const MAX_FORECAST_OFFSET_DAYS: f64 = 1e6;
 /// Most forecast windows a search lists; in practice the widening by the period
 /// uncertainty ends a forecast much sooner (see [`ActivityResult::forecast_stopped_at_cycle`]).
 pub const MAX_FORECAST_WINDOWS: usize = 1000;
+
+/// Random stream of the data's sub-harmonic check; Monte Carlo set s uses stream s.
+const CHECK_STREAM: u64 = u64::MAX;
 
 /// Settings of an activity search. Times are in days.
 #[derive(Clone, Debug, Serialize)]
@@ -104,6 +112,24 @@ pub struct ActiveWindow {
     pub nominal_end_mjd: f64,
 }
 
+/// What the sub-harmonic check ([`super::harmonic`]) did to the scan's best period.
+#[derive(Clone, Debug, Serialize)]
+pub struct HarmonicCheck {
+    /// Whether the reported period is a sub-harmonic of the scan's best.
+    pub changed: bool,
+    /// Period of the largest folded χ² over the scan, days.
+    pub scan_period_days: f64,
+    /// Its 1σ uncertainty from the χ² peak width, days.
+    pub scan_period_err_days: f64,
+    /// Its folded χ².
+    pub scan_chi2: f64,
+    /// Monte Carlo false-alarm probability of the largest χ² over the scan, with no
+    /// check (NaN without sets).
+    pub scan_fap: f64,
+    /// The sub-harmonics considered, in order.
+    pub sub_harmonics: Vec<SubHarmonic>,
+}
+
 /// Outcome of [`search_activity`].
 #[derive(Clone, Debug, Serialize)]
 pub struct ActivityResult {
@@ -119,7 +145,7 @@ pub struct ActivityResult {
     pub span_days: f64,
     /// Epoch of phase 0, MJD.
     pub epoch_mjd: f64,
-    /// Best period, days.
+    /// Best period after the sub-harmonic check, days.
     pub period_days: f64,
     /// Its 1σ uncertainty from the χ² peak width (FWHM/2.355), days — common practice.
     pub period_err_days: f64,
@@ -127,8 +153,11 @@ pub struct ActivityResult {
     pub fold: FoldTest,
     /// Single-trial χ² chance probability (ignores the search; for reference).
     pub chi2_p_single: f64,
-    /// Monte Carlo false-alarm probability of the maximum χ² over the scan.
+    /// Monte Carlo false-alarm probability of the folded χ² at the best period: the
+    /// sets' χ² at the period each one's scan and sub-harmonic check settle on.
     pub fap: f64,
+    /// The sub-harmonic check: the scan's own best period, its χ² and FAP, the tests.
+    pub harmonic: HarmonicCheck,
     /// Monte Carlo probability that some trial period packs all bursts into a window
     /// as narrow as the observed narrowest one (over the scan).
     pub window_fap: f64,
@@ -160,13 +189,25 @@ pub struct ActivityResult {
 }
 
 /// Per-trial exposure folds, reused by every Monte Carlo set.
-struct TrialGrid {
+struct TrialGrid<'a> {
+    sessions: &'a [(f64, f64)],
+    bins: usize,
     periods: Vec<f64>,
     exposure: Vec<Vec<f64>>,
 }
 
-impl TrialGrid {
-    fn new(sessions: &[(f64, f64)], cfg: &ActivityConfig, span: f64) -> Result<Self> {
+/// One burst set scanned over the grid, and the trial the sub-harmonic check picks.
+struct Scan {
+    tests: Vec<FoldTest>,
+    chi2: Vec<f64>,
+    windows: Vec<f64>,
+    /// Trial of the largest χ².
+    scan_best: usize,
+    pick: Pick,
+}
+
+impl<'a> TrialGrid<'a> {
+    fn new(sessions: &'a [(f64, f64)], cfg: &ActivityConfig, span: f64) -> Result<Self> {
         let p_max = cfg.max_period_days.unwrap_or(0.5 * span);
         if !(cfg.min_period_days > 0.0
             && p_max > cfg.min_period_days
@@ -200,12 +241,41 @@ impl TrialGrid {
                 e
             })
             .collect();
-        Ok(TrialGrid { periods, exposure })
+        Ok(TrialGrid {
+            sessions,
+            bins: cfg.bins,
+            periods,
+            exposure,
+        })
     }
 
-    /// (χ², all-burst window width) at every trial for burst times `t`.
-    fn scan(&self, t: &[f64], bins: usize) -> (Vec<FoldTest>, Vec<f64>) {
-        let mut counts = vec![0u32; bins];
+    /// Fold tests and all-burst window widths at every trial for burst times `t`, the
+    /// largest χ² and the sub-harmonic check's pick (drawing from `rng`).
+    fn scan(&self, t: &[f64], rng: &mut ChaCha8Rng) -> Scan {
+        let (tests, windows) = self.fold_all(t);
+        let chi2: Vec<f64> = tests.iter().map(|t| t.chi2).collect();
+        let scan_best = argmax(&chi2);
+        let pick = resolve(
+            &self.periods,
+            &chi2,
+            scan_best,
+            t,
+            self.sessions,
+            self.bins,
+            rng,
+        );
+        Scan {
+            tests,
+            chi2,
+            windows,
+            scan_best,
+            pick,
+        }
+    }
+
+    /// (fold test, all-burst window width) at every trial.
+    fn fold_all(&self, t: &[f64]) -> (Vec<FoldTest>, Vec<f64>) {
+        let mut counts = vec![0u32; self.bins];
         let mut ph = vec![0.0; t.len()];
         self.periods
             .iter()
@@ -270,21 +340,24 @@ pub fn search_activity(
     }
     let span = sessions_days.last().map_or(0.0, |s| s.1) - sessions_days[0].0;
     let grid = TrialGrid::new(sessions_days, cfg, span)?;
-    let (tests, windows) = grid.scan(t_days, cfg.bins);
-    let chi2: Vec<f64> = tests.iter().map(|t| t.chi2).collect();
-    let best = argmax(&chi2);
-    let min_window = windows.iter().cloned().fold(f64::INFINITY, f64::min);
-    let (fap, window_fap) = monte_carlo(
-        &grid,
-        sessions_days,
-        t_days.len(),
-        cfg,
-        chi2[best],
-        min_window,
-        on_progress,
-    );
+    let Scan {
+        tests,
+        chi2,
+        windows,
+        scan_best,
+        pick,
+    } = grid.scan(t_days, &mut rng(cfg.seed, CHECK_STREAM));
+    let best = pick.index;
+    let observed = Extremes {
+        scan_chi2: chi2[scan_best],
+        pick_chi2: chi2[best],
+        window: windows.iter().cloned().fold(f64::INFINITY, f64::min),
+    };
+    let faps = monte_carlo(&grid, t_days.len(), cfg, &observed, on_progress);
+    let sigma =
+        |i: usize| peak_fwhm_per_day(&grid.periods, &chi2, i) / 2.355 * grid.periods[i].powi(2);
     let period = grid.periods[best];
-    let period_err = peak_sigma(&grid.periods, &chi2, best);
+    let period_err = sigma(best);
     let mut ph: Vec<f64> = t_days.iter().map(|&t| phase(t, period, 0.0)).collect();
     let window = narrowest_window(&mut ph, t_days.len());
     let half = narrowest_window(&mut ph, t_days.len().div_ceil(2));
@@ -325,8 +398,16 @@ pub fn search_activity(
         period_err_days: period_err,
         fold: tests[best],
         chi2_p_single: tests[best].chi2_p(),
-        fap,
-        window_fap,
+        fap: faps.pick_chi2,
+        harmonic: HarmonicCheck {
+            changed: best != scan_best,
+            scan_period_days: grid.periods[scan_best],
+            scan_period_err_days: sigma(scan_best),
+            scan_chi2: chi2[scan_best],
+            scan_fap: faps.scan_chi2,
+            sub_harmonics: pick.tests,
+        },
+        window_fap: faps.window,
         window,
         window_fraction: window.width,
         centre_phase: window.centre(),
@@ -356,60 +437,49 @@ fn argmax(v: &[f64]) -> usize {
         .unwrap_or(0)
 }
 
-/// Monte Carlo (max-χ² FAP, narrowest-window FAP), each (1 + hits)/(1 + sims).
-fn monte_carlo(
-    grid: &TrialGrid,
-    sessions: &[(f64, f64)],
-    n: usize,
-    cfg: &ActivityConfig,
-    chi2_obs: f64,
-    window_obs: f64,
-    on_progress: &(dyn Fn(u64) + Sync),
-) -> (f64, f64) {
-    if cfg.sims == 0 {
-        return (f64::NAN, f64::NAN);
-    }
-    let (hits_chi2, hits_window) = (0..cfg.sims as u64)
-        .into_par_iter()
-        .map(|s| {
-            let t = uniform_over_exposure(sessions, n, &mut rng(cfg.seed, s));
-            let (tests, windows) = grid.scan(&t, cfg.bins);
-            on_progress(1);
-            let max_chi2 = tests.iter().map(|t| t.chi2).fold(0.0, f64::max);
-            let min_window = windows.iter().cloned().fold(f64::INFINITY, f64::min);
-            (
-                (max_chi2 >= chi2_obs) as usize,
-                (min_window <= window_obs) as usize,
-            )
-        })
-        .reduce(|| (0, 0), |a, b| (a.0 + b.0, a.1 + b.1));
-    let denom = cfg.sims as f64 + 1.0;
-    (
-        (hits_chi2 as f64 + 1.0) / denom,
-        (hits_window as f64 + 1.0) / denom,
-    )
+/// The statistics a Monte Carlo set is compared on: the largest χ² over the scan, the
+/// χ² at the sub-harmonic check's pick, the narrowest all-burst window over the scan.
+/// Observed values in, false-alarm probabilities out.
+struct Extremes {
+    scan_chi2: f64,
+    pick_chi2: f64,
+    window: f64,
 }
 
-/// σ of the period from the χ² peak: FWHM above the median level / 2.355, in period.
-fn peak_sigma(periods: &[f64], chi2: &[f64], best: usize) -> f64 {
-    let mut sorted = chi2.to_vec();
-    sorted.sort_by(f64::total_cmp);
-    let base = sorted[sorted.len() / 2];
-    let half = base + 0.5 * (chi2[best] - base);
-    let mut lo = best;
-    while lo > 0 && chi2[lo - 1] > half {
-        lo -= 1;
+/// Monte Carlo FAPs of the observed [`Extremes`], each (1 + hits)/(1 + sims); NaN
+/// without sets. Each set goes through the same scan and sub-harmonic check.
+fn monte_carlo(
+    grid: &TrialGrid,
+    n: usize,
+    cfg: &ActivityConfig,
+    observed: &Extremes,
+    on_progress: &(dyn Fn(u64) + Sync),
+) -> Extremes {
+    let hits = (0..cfg.sims as u64)
+        .into_par_iter()
+        .map(|s| {
+            let mut r = rng(cfg.seed, s);
+            let t = uniform_over_exposure(grid.sessions, n, &mut r);
+            let scan = grid.scan(&t, &mut r);
+            on_progress(1);
+            let min_window = scan.windows.iter().cloned().fold(f64::INFINITY, f64::min);
+            [
+                scan.chi2[scan.scan_best] >= observed.scan_chi2,
+                scan.chi2[scan.pick.index] >= observed.pick_chi2,
+                min_window <= observed.window,
+            ]
+            .map(usize::from)
+        })
+        .reduce(|| [0; 3], |a, b| [a[0] + b[0], a[1] + b[1], a[2] + b[2]]);
+    let fap = |h: usize| match cfg.sims {
+        0 => f64::NAN,
+        sets => (h as f64 + 1.0) / (sets as f64 + 1.0),
+    };
+    Extremes {
+        scan_chi2: fap(hits[0]),
+        pick_chi2: fap(hits[1]),
+        window: fap(hits[2]),
     }
-    let mut hi = best;
-    while hi + 1 < chi2.len() && chi2[hi + 1] > half {
-        hi += 1;
-    }
-    // Crossings taken half-way between the last point above and the first below.
-    let f = |i: usize| 1.0 / periods[i.min(periods.len() - 1)];
-    let f_lo = 0.5 * (f(lo) + f(lo.saturating_sub(1)));
-    let f_hi = 0.5 * (f(hi) + f(hi + 1));
-    let fwhm = (f_hi - f_lo).abs().max((f(1) - f(0)).abs());
-    fwhm / 2.355 * periods[best].powi(2)
 }
 
 /// Per-session burst rates (per day) at session mid-times, with Gehrels (1986, ApJ

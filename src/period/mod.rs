@@ -6,8 +6,9 @@
 //!   refines by phase-connected timing ([`timing`]); optional Monte Carlo FAPs come
 //!   from null sets of the same arrivals ([`null_sets`]).
 //! * Activity cycles (days–months): [`activity::search_activity`] folds bursts and
-//!   exposure ([`fold`]), with Lomb–Scargle of session rates ([`lomb`]) and Monte Carlo
-//!   significance that keeps the real exposure.
+//!   exposure ([`fold`]), checks whether a sub-harmonic of the best period explains
+//!   the bursts as well ([`harmonic`]), with Lomb–Scargle of session rates ([`lomb`])
+//!   and Monte Carlo significance that keeps the real exposure.
 //! * Burst statistics: waiting times ([`waiting`]) and power-law indices ([`powerlaw`]).
 //! * [`synth`] makes seeded synthetic sets for tests, benchmarks and demos.
 //!
@@ -20,6 +21,7 @@ pub mod coherence;
 pub mod divisor;
 pub mod fold;
 pub mod from_catalogue;
+pub mod harmonic;
 pub mod lomb;
 pub mod null_sets;
 pub mod powerlaw;

@@ -57,10 +57,20 @@ pub fn activity_figures(
         ),
     )?;
     let timeline = timeline_figure(sessions_mjd, bursts_mjd, &active_windows(r, sessions_mjd))?;
+    // A sub-harmonic reported instead of the scan's highest peak is said beside it.
+    let h = &r.harmonic;
+    let scan_best = if h.changed {
+        format!(
+            "; the highest peak, {:.4} d, is a multiple with alike cycles",
+            h.scan_period_days
+        )
+    } else {
+        String::new()
+    };
     Ok(vec![
         (
             format!(
-                "Activity periodogram: best {:.4} d ({})",
+                "Activity periodogram: best {:.4} d ({}{scan_best})",
                 r.period_days,
                 monte_carlo_fap(r)
             ),

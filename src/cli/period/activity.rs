@@ -117,6 +117,7 @@ fn print_activity(r: &ActivityResult) -> std::io::Result<()> {
             format!("window FAP = {:.4}", r.window_fap),
         ),
     };
+    print_harmonic_check(r)?;
     say!(
         "  folded χ² = {:.2} ({} dof, single-trial p = {}); {fap}",
         r.fold.chi2,
@@ -170,4 +171,38 @@ fn print_activity(r: &ActivityResult) -> std::io::Result<()> {
         )?;
     }
     Ok(())
+}
+
+/// What the sub-harmonic check did: the scan's own best period and score when it was
+/// replaced, else the sub-harmonics the data ruled out.
+fn print_harmonic_check(r: &ActivityResult) -> std::io::Result<()> {
+    let h = &r.harmonic;
+    let tried = |t: &burstbook::period::harmonic::SubHarmonic| {
+        format!("P/{} = {:.4} d, p = {:.3}", t.k, t.period_days, t.p)
+    };
+    if h.changed {
+        let t = h.sub_harmonics.last().expect("a change comes from a test");
+        let fap = match r.config.sims {
+            0 => "no Monte Carlo".to_string(),
+            _ => format!("Monte Carlo FAP {:.4}", h.scan_fap),
+        };
+        say!(
+            "  sub-harmonic check: the scan scored {:.4} ± {:.4} d best (χ² = {:.2}, {fap}); \
+             its {} cycles do not differ ({}), so its 1/{} is reported",
+            h.scan_period_days,
+            h.scan_period_err_days,
+            h.scan_chi2,
+            t.k,
+            tried(t),
+            t.k
+        )
+    } else if h.sub_harmonics.is_empty() {
+        say!("  sub-harmonic check: no P/2 or P/3 within the scanned periods")
+    } else {
+        let tests: Vec<String> = h.sub_harmonics.iter().map(tried).collect();
+        say!(
+            "  sub-harmonic check: kept; the cycles of its sub-harmonics differ ({})",
+            tests.join("; ")
+        )
+    }
 }
