@@ -2,7 +2,7 @@
 //! sources): recovery of a rotation period and of an activity cycle, and calibration
 //! of the false-alarm probabilities on sets without any period.
 
-use burstbook::period::activity::{ActivityConfig, search_activity};
+use burstbook::period::activity::{ActivityConfig, ActivityResult, search_activity};
 use burstbook::period::harmonic::CYCLE_ALPHA;
 use burstbook::period::null_sets::NullFaps;
 use burstbook::period::rotation::{RotationConfig, search_rotation, test_period};
@@ -67,12 +67,7 @@ fn activity_cycle_is_recovered_from_forty_bursts_with_irregular_cadence() {
         ..Default::default()
     };
     let res = search_activity(&bursts, &sessions, 60_000, &cfg, &|_| {}).unwrap();
-    assert!(
-        (res.period_days - period).abs() < 3.0 * res.period_err_days,
-        "P = {} ± {}",
-        res.period_days,
-        res.period_err_days
-    );
+    assert_period_within_3_sigma(&res, period);
     // No simulated set reached the observed χ²: FAP at the Monte Carlo floor 1/201.
     assert!(res.fap < 0.01, "fap {}", res.fap);
     assert!(res.window_fap < 0.01, "window fap {}", res.window_fap);
@@ -104,12 +99,7 @@ fn a_cycle_with_bursts_in_every_other_window_is_not_halved() {
         ..Default::default()
     };
     let res = search_activity(&bursts, &sessions, 60_000, &cfg, &|_| {}).unwrap();
-    assert!(
-        (res.period_days - period).abs() < 3.0 * res.period_err_days,
-        "P = {} ± {}",
-        res.period_days,
-        res.period_err_days
-    );
+    assert_period_within_3_sigma(&res, period);
     // Half the period was considered and rejected: its two cycles differ.
     let h = &res.harmonic;
     assert!(!h.changed);
@@ -118,6 +108,16 @@ fn a_cycle_with_bursts_in_every_other_window_is_not_halved() {
     assert!((half.period_days - period / 2.0).abs() < 1.0, "{half:?}");
     assert!(!half.accepted && half.p <= CYCLE_ALPHA, "{half:?}");
     assert_eq!(res.fap, 1.0 / 20.0);
+}
+
+/// The activity search's period lies within three of its own σ of `period` (days).
+fn assert_period_within_3_sigma(res: &ActivityResult, period: f64) {
+    assert!(
+        (res.period_days - period).abs() < 3.0 * res.period_err_days,
+        "P = {} ± {}",
+        res.period_days,
+        res.period_err_days
+    );
 }
 
 /// Counts FAPs below each level over `sets` null sets; returns fractions.
