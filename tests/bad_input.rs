@@ -288,6 +288,53 @@ fn search_checks_every_file_before_searching_any() {
     cli_common::assert_success(&search(&[&good]));
 }
 
+// A file whose header passes but whose samples fail part-way (a NaN) is reported
+// and left out; the other files are still searched and written, and the command
+// fails so no script takes the run for complete. Alone, it fails as before, in one
+// line, and writes no outputs (an empty list would read as "no candidates").
+#[test]
+fn a_file_failing_part_way_does_not_stop_the_others() {
+    let dir = tempfile::tempdir().unwrap();
+    let (good, _) = native_pair(dir.path(), "good", 8);
+    let (nan, npy) = native_pair(dir.path(), "nan", 32);
+    let mut bytes = std::fs::read(&npy).unwrap();
+    let n = bytes.len();
+    bytes[n - 24..n - 20].copy_from_slice(&f32::NAN.to_le_bytes());
+    std::fs::write(&npy, &bytes).unwrap();
+    let out_dir = dir.path().join("out");
+    let search = |files: &[&Path]| {
+        let flags = [Path::new("--no-catalogue"), Path::new("--out"), &out_dir];
+        cli_common::burstbook(&[&[Path::new("search")], files, &flags[..]].concat())
+    };
+    let out = search(&[&nan, &good]);
+    assert!(!out.status.success());
+    let err = String::from_utf8_lossy(&out.stderr);
+    // (The tiny good file also gets the note that all of it is masked.)
+    let errors: Vec<&str> = err
+        .lines()
+        .filter(|l| l.starts_with("burstbook: error: "))
+        .collect();
+    assert_eq!(errors.len(), 2, "{err}");
+    assert!(errors[0].contains("sample 8 of channel 2 is NaN"), "{err}");
+    assert!(
+        errors[1].contains("1 of 2 files could not be searched"),
+        "{err}"
+    );
+    let said = String::from_utf8_lossy(&out.stdout);
+    assert!(said.contains("good.json: searched"), "{said}");
+    let json: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out_dir.join("candidates.json")).unwrap())
+            .unwrap();
+    assert_eq!(json["files"].as_array().unwrap().len(), 1);
+    assert_eq!(json["failed"][0]["file"], nan.display().to_string());
+    assert!(out_dir.join("candidates.csv").exists());
+
+    std::fs::remove_dir_all(&out_dir).unwrap();
+    let out = search(&[&nan]);
+    cli_common::assert_one_line_failure(&out, &[&npy.display().to_string(), "NaN"]);
+    assert!(!out_dir.join("candidates.csv").exists());
+}
+
 #[test]
 fn native_empty_or_misplaced_data() {
     let dir = tempfile::tempdir().unwrap();

@@ -130,13 +130,34 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     let mut files = Vec::new();
     // Recordings of one shape reuse one set of buffers.
     let mut workspace = search::Workspace::default();
+    // A file that fails part-way (its header passed, a later sample did not) is
+    // reported and the others are searched all the same; a catalogue error stops all.
+    let several = paths.len() > 1;
+    let fail = |files: &mut Vec<FileOutcome>, file: String, error: String| {
+        if several {
+            note!("burstbook: error: {error}; the other files are searched all the same");
+        }
+        files.push(FileOutcome::Failed { file, error });
+    };
     for path in paths {
         let started_utc = burstbook::catalogue::now_utc();
-        let source = burstbook::obs::open(path)?;
         let label = path.display().to_string();
+        let source = match burstbook::obs::open(path) {
+            Ok(source) => source,
+            Err(e) => {
+                fail(&mut files, label, e.to_string());
+                continue;
+            }
+        };
         // Hashed before searching: the hash both finds an earlier search and records this one.
         let record = match catalogue {
-            Some(_) => Some(ObservationRecord::from_file(path, source.header())?),
+            Some(_) => match ObservationRecord::from_file(path, source.header()) {
+                Ok(record) => Some(record),
+                Err(e) => {
+                    fail(&mut files, label, e.to_string());
+                    continue;
+                }
+            },
             None => None,
         };
         if let (Some(cat), Some(obs), false) = (&catalogue, &record, args.search_again)
@@ -159,8 +180,15 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         }
         let bar = burstbook::progress::bar(source.header().n_samples, &label);
         let clock = std::time::Instant::now();
-        let result = search::search_source_in(&mut workspace, source, &label, &config, Some(&bar))?;
+        let result = search::search_source_in(&mut workspace, source, &label, &config, Some(&bar));
         bar.finish_and_clear();
+        let result = match result {
+            Ok(result) => result,
+            Err(e) => {
+                fail(&mut files, label, e.to_string());
+                continue;
+            }
+        };
         let wall_s = clock.elapsed().as_secs_f64();
         if result.fraction_masked >= 1.0 {
             note!(
@@ -199,13 +227,37 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         )?;
         files.push(FileOutcome::Searched(Box::new(result)));
     }
+    let failed: Vec<(&str, &str)> = files
+        .iter()
+        .filter_map(|f| match f {
+            FileOutcome::Failed { file, error } => Some((file.as_str(), error.as_str())),
+            _ => None,
+        })
+        .collect();
+    // With nothing searched, outputs are not replaced by empty ones.
+    match failed[..] {
+        [(_, error)] if !several => anyhow::bail!("{error}"),
+        _ if failed.len() == files.len() => {
+            anyhow::bail!("none of the {} files could be searched", files.len())
+        }
+        _ => {}
+    }
     let csv = args.out.join("candidates.csv");
     let json = args.out.join("candidates.json");
     output::write_csv(&csv, &files)?;
     output::write_json(&json, &files, &config)?;
     print_summary(&files, args.top, config.plan.dm_max)?;
     say!("wrote {} and {}", csv.display(), json.display())?;
-    Ok(())
+    match failed.len() {
+        0 => Ok(()),
+        n => anyhow::bail!(
+            "{n} of {} files could not be searched ({}): the errors are above and under \
+             \"failed\" in {}",
+            files.len(),
+            failed.iter().map(|f| f.0).collect::<Vec<_>>().join(", "),
+            json.display()
+        ),
+    }
 }
 
 /// `paths` without the repeats of a file named twice (by the same or another path
@@ -232,7 +284,7 @@ fn print_summary(files: &[FileOutcome], top: usize, dm_max: f64) -> std::io::Res
     use burstbook::Verdict;
     let searched = files.iter().filter_map(|f| match f {
         FileOutcome::Searched(r) => Some(&**r),
-        FileOutcome::Skipped { .. } => None,
+        _ => None,
     });
     for r in searched {
         let count = |v: Verdict| r.candidates.iter().filter(|c| c.verdict == v).count();

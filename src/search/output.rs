@@ -78,6 +78,9 @@ pub enum FileOutcome {
     Searched(Box<FileResult>),
     /// Skipped; made by [`FileOutcome::skipped`].
     Skipped { file: String, earlier: EarlierRun },
+    /// Could not be read or searched to its end (`error` says why); it has no
+    /// candidates, and the other files are searched all the same.
+    Failed { file: String, error: String },
 }
 
 impl FileOutcome {
@@ -96,8 +99,16 @@ impl FileOutcome {
         match self {
             FileOutcome::Searched(r) => &r.candidates,
             FileOutcome::Skipped { earlier, .. } => &earlier.candidates,
+            FileOutcome::Failed { .. } => &[],
         }
     }
+}
+
+/// A file that could not be searched, as listed in the JSON output.
+#[derive(Debug, Serialize)]
+struct FailedSummary<'a> {
+    file: &'a str,
+    error: &'a str,
 }
 
 /// A skipped file as listed in the JSON output.
@@ -117,6 +128,8 @@ struct JsonOut<'a> {
     files: Vec<FileSummary<'a>>,
     #[serde(skip_serializing_if = "Vec::is_empty")]
     skipped: Vec<SkippedSummary<'a>>,
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    failed: Vec<FailedSummary<'a>>,
     candidates: Vec<&'a Candidate>,
 }
 
@@ -156,8 +169,8 @@ pub const CSV_COLUMNS: [&str; 16] = [
 ];
 
 /// Writes the configuration, its hash, summaries of the files searched, the files
-/// skipped (`skipped`, only when there are some) and all candidates to `path` as
-/// pretty JSON.
+/// skipped (`skipped`) and those that could not be searched (`failed`; each only
+/// when there are some) and all candidates to `path` as pretty JSON.
 ///
 /// # Errors
 /// The file cannot be written.
@@ -169,19 +182,26 @@ pub fn write_json(path: &Path, files: &[FileOutcome], config: &SearchConfig) -> 
             .iter()
             .filter_map(|f| match f {
                 FileOutcome::Searched(r) => Some(FileSummary::from(&**r)),
-                FileOutcome::Skipped { .. } => None,
+                _ => None,
             })
             .collect(),
         skipped: files
             .iter()
             .filter_map(|f| match f {
-                FileOutcome::Searched(_) => None,
                 FileOutcome::Skipped { file, earlier } => Some(SkippedSummary {
                     file,
                     run_id: earlier.run_id,
                     finished_utc: &earlier.finished_utc,
                     n_candidates: earlier.candidates.len(),
                 }),
+                _ => None,
+            })
+            .collect(),
+        failed: files
+            .iter()
+            .filter_map(|f| match f {
+                FileOutcome::Failed { file, error } => Some(FailedSummary { file, error }),
+                _ => None,
             })
             .collect(),
         candidates: files.iter().flat_map(FileOutcome::candidates).collect(),
