@@ -347,7 +347,7 @@ impl<'a> Searcher<'a> {
         } else {
             Extent::Common
         };
-        let outs = match &mut self.fast {
+        let mut outs = match &mut self.fast {
             Some(kernel) => {
                 let (rows, stride) = channels.rows();
                 kernel.dedisperse_rows(rows, n_time, stride, extent)
@@ -375,7 +375,7 @@ impl<'a> Searcher<'a> {
         } else {
             self.dm0_series(norm, mask)
         };
-        let series = NormalisedSeries::new(&outs, g.baseline_len);
+        let series = NormalisedSeries::new(&mut outs, g.baseline_len);
         let data = BlockData {
             header: &self.header,
             dm_offsets: &self.dm_offsets,

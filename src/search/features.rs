@@ -94,14 +94,15 @@ impl BlockData<'_, '_> {
         let reach = CURVE_MAX_ZETA / band.zeta(1.0, d.width_samples, tsamp);
         let mut scratch = Scratch::default();
         let mut points = Vec::new();
+        let mut row = Vec::new();
         for (r, &dm) in self.series.dms(step_index).iter().enumerate() {
             if (dm - d.dm).abs() > reach {
                 continue;
             }
             let shift = self.sweep_samples(dm - d.dm).div_ceil(ds);
             let lo = t0.saturating_sub(shift + w);
-            let row = self.series.row(step_index, r);
-            let snr = best_snr_in(row, w, lo, t0 + shift + w, &mut scratch);
+            self.series.row_into(step_index, r, &mut row);
+            let snr = best_snr_in(&row, w, lo, t0 + shift + w, &mut scratch);
             let expected = cm03_peak_ratio(band.zeta(dm - d.dm, d.width_samples, tsamp));
             points.push((f64::from(snr), expected));
         }

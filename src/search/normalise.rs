@@ -3,9 +3,10 @@
 //! (1.4826 × MAD), so every channel, and later every dedispersed series, has zero
 //! mean and unit variance in its noise (common practice).
 
-use std::sync::OnceLock;
+use std::sync::{Mutex, OnceLock};
 
 use crate::dedisperse::Dedispersed;
+use crate::dedisperse::bf16::{self, Bf16};
 use crate::robust::{Baseline, median_sigma};
 
 /// Values a channel's σ is measured on: σ to about 1.3 %.
@@ -63,10 +64,12 @@ pub fn series_level(
     (sigma > 0.0 && sigma.is_finite()).then_some((baseline, sigma))
 }
 
-/// A block's dedispersed series, each decoded and normalised as the matched filter
-/// normalised it ([`normalise_series`] with [`SERIES_SIGMA_VALUES`]) when first
-/// read: the filter leaves the series as they are, and triage reads only the few
-/// near a candidate. Shared by threads; each series is normalised once.
+/// A block's dedispersed series, each normalised as the matched filter normalised it
+/// ([`normalise_series`] with [`SERIES_SIGMA_VALUES`]) when first read, and stored
+/// back in place as bfloat16: the filter leaves the series as they are, and triage
+/// reads only those near a candidate. In place, so that however many series triage
+/// reads, the block needs no memory beyond its output. Shared by threads; each
+/// series is normalised once.
 pub struct NormalisedSeries<'a> {
     steps: Vec<StepSeries<'a>>,
     /// Baseline window in input samples.
@@ -75,19 +78,35 @@ pub struct NormalisedSeries<'a> {
 
 /// One plan step's series for [`NormalisedSeries`].
 struct StepSeries<'a> {
-    out: &'a Dedispersed,
-    normalised: Vec<OnceLock<Vec<f32>>>,
+    dms: &'a [f64],
+    downsample: usize,
+    rows: Vec<LazyRow<'a>>,
+}
+
+/// A series not yet normalised (`raw`, taken by the first reader) or normalised.
+struct LazyRow<'a> {
+    raw: Mutex<Option<&'a mut [Bf16]>>,
+    normalised: OnceLock<&'a [Bf16]>,
 }
 
 impl<'a> NormalisedSeries<'a> {
     /// The series of every step of `outs`, to be normalised over `baseline_len` input
     /// samples (divided by each step's downsampling) when first read.
-    pub fn new(outs: &'a [Dedispersed], baseline_len: usize) -> Self {
+    pub fn new(outs: &'a mut [Dedispersed], baseline_len: usize) -> Self {
         let steps = outs
-            .iter()
+            .iter_mut()
             .map(|out| StepSeries {
-                out,
-                normalised: (0..out.dms.len()).map(|_| OnceLock::new()).collect(),
+                dms: &out.dms,
+                downsample: out.downsample,
+                rows: out
+                    .data
+                    .chunks_mut(out.n_time.max(1))
+                    .zip(&out.row_lens)
+                    .map(|(row, &len)| LazyRow {
+                        raw: Mutex::new(Some(&mut row[..len])),
+                        normalised: OnceLock::new(),
+                    })
+                    .collect(),
             })
             .collect();
         NormalisedSeries {
@@ -98,33 +117,40 @@ impl<'a> NormalisedSeries<'a> {
 
     /// Trial DMs of step `step`, pc cm⁻³.
     pub fn dms(&self, step: usize) -> &'a [f64] {
-        &self.steps[step].out.dms
+        self.steps[step].dms
     }
 
     /// Input samples per sample of step `step`.
     pub fn downsample(&self, step: usize) -> usize {
-        self.steps[step].out.downsample
+        self.steps[step].downsample
     }
 
-    /// Trial `r` of step `step`, normalised.
-    pub fn row(&self, step: usize, r: usize) -> &[f32] {
+    /// Trial `r` of step `step`, normalised, into `out`.
+    pub fn row_into(&self, step: usize, r: usize, out: &mut Vec<f32>) {
         let s = &self.steps[step];
-        s.normalised[r].get_or_init(|| {
-            let mut row = s.out.row_f32(r);
-            let baseline = (self.baseline_len / s.out.downsample).max(1);
-            normalise_series(&mut row, baseline, SERIES_SIGMA_VALUES, &mut Vec::new());
+        let lazy = &s.rows[r];
+        let stored = lazy.normalised.get_or_init(|| {
+            let raw = lazy.raw.lock().map(|mut raw| raw.take());
+            // Only the one initialiser takes the row, so it is always there.
+            let row = raw.ok().flatten().unwrap_or_default();
+            bf16::decode_into(row, out);
+            let baseline = (self.baseline_len / s.downsample).max(1);
+            normalise_series(out, baseline, SERIES_SIGMA_VALUES, &mut Vec::new());
+            bf16::encode(out, row);
             row
-        })
+        });
+        bf16::decode_into(stored, out);
     }
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::dedisperse::bf16::to_bf16;
+    use crate::dedisperse::bf16::{from_bf16, to_bf16};
 
     // Each series read through the lazy view equals the series normalised directly,
-    // at the step's own baseline, however often and in whatever order it is read.
+    // at the step's own baseline, then stored as bfloat16, however often and in
+    // whatever order it is read.
     #[test]
     fn lazily_normalised_rows_match_direct_normalisation() {
         let raw = |n: usize, k: usize| -> Vec<f32> {
@@ -139,7 +165,7 @@ mod tests {
             row_lens: vec![n; 3],
             data: (0..3).flat_map(|k| raw(n, k)).map(to_bf16).collect(),
         };
-        let outs = vec![step(1, 4000), step(4, 1000)];
+        let mut outs = vec![step(1, 4000), step(4, 1000)];
         let direct: Vec<Vec<Vec<f32>>> = outs
             .iter()
             .map(|out| {
@@ -148,19 +174,23 @@ mod tests {
                         let mut row = out.row_f32(r);
                         let baseline = 1200 / out.downsample;
                         normalise_series(&mut row, baseline, SERIES_SIGMA_VALUES, &mut Vec::new());
-                        row
+                        row.iter()
+                            .map(|&v| from_bf16(to_bf16(v)))
+                            .collect::<Vec<f32>>()
                     })
                     .collect()
             })
             .collect();
-        let series = NormalisedSeries::new(&outs, 1200);
+        let series = NormalisedSeries::new(&mut outs, 1200);
         assert_eq!(
             (series.dms(1), series.downsample(1)),
             (&[10.0, 20.0, 30.0][..], 4)
         );
+        let mut row = Vec::new();
         for (s, rows) in direct.iter().enumerate() {
             for r in [2, 0, 1, 2] {
-                assert_eq!(series.row(s, r), &rows[r][..], "step {s} row {r}");
+                series.row_into(s, r, &mut row);
+                assert_eq!(row, rows[r], "step {s} row {r}");
             }
         }
     }
