@@ -30,7 +30,9 @@ pub fn decode_into(row: &[Bf16], out: &mut Vec<f32>) {
     out.extend(row.iter().map(|&h| from_bf16(h)));
 }
 
-/// `values` rounded to bfloat16 into `out` (equal lengths).
+/// `values` rounded to bfloat16 into `out` (equal lengths). Inlined, so that it runs
+/// in the instruction set of the kernel loop that calls it.
+#[inline(always)]
 pub fn encode(values: &[f32], out: &mut [Bf16]) {
     for (o, &v) in out.iter_mut().zip(values) {
         *o = to_bf16(v);

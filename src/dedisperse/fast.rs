@@ -611,63 +611,68 @@ fn stage2(
                         let (row, offset) = (kernel.rows[i], kernel.offsets[i]);
                         (row * per_out + offset % per_out) * stride + offset / per_out + a
                     });
-                    accumulate(&mut acc[..tile], stage1, paths, isa);
-                    store(&acc[..tile], &mut row[t0 + a..t0 + a + tile], isa);
+                    let out = &mut row[t0 + a..t0 + a + tile];
+                    sum_and_store(&mut acc[..tile], out, stage1, paths, isa);
                 }
             }
         });
 }
 
-/// `out` = `acc` rounded to bfloat16, compiled for `isa`.
-fn store(acc: &[f32], out: &mut [Bf16], isa: Isa) {
-    match isa.level() {
-        // SAFETY: as in `subband_rows`: the CPU has the instruction set of `isa`.
-        #[cfg(target_arch = "x86_64")]
-        IsaLevel::Avx512 => unsafe { store_avx512(acc, out) },
-        #[cfg(target_arch = "x86_64")]
-        IsaLevel::Avx2 => unsafe { store_avx2(acc, out) },
-        _ => bf16::encode(acc, out),
-    }
-}
-
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx2,avx512f,avx512bw,avx512vl")]
-fn store_avx512(acc: &[f32], out: &mut [Bf16]) {
-    bf16::encode(acc, out)
-}
-
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx2")]
-fn store_avx2(acc: &[f32], out: &mut [Bf16]) {
-    bf16::encode(acc, out)
-}
-
 /// `acc` = sum of the `acc.len()` samples of `stage1` starting at each of `starts`,
-/// compiled for `isa` (AVX2 makes twice the adds per cycle of the baseline SSE2 build).
-fn accumulate(acc: &mut [f32], stage1: &[Bf16], starts: impl Iterator<Item = usize>, isa: Isa) {
+/// then `out` = `acc` rounded to bfloat16; compiled for `isa` (AVX2 makes twice the
+/// adds per cycle of the baseline SSE2 build).
+fn sum_and_store(
+    acc: &mut [f32],
+    out: &mut [Bf16],
+    stage1: &[Bf16],
+    starts: impl Iterator<Item = usize>,
+    isa: Isa,
+) {
     match isa.level() {
         // SAFETY: as in `subband_rows`: the CPU has the instruction set of `isa`.
         #[cfg(target_arch = "x86_64")]
-        IsaLevel::Avx512 => unsafe { accumulate_avx512(acc, stage1, starts) },
+        IsaLevel::Avx512 => unsafe { sum_and_store_avx512(acc, out, stage1, starts) },
         #[cfg(target_arch = "x86_64")]
-        IsaLevel::Avx2 => unsafe { accumulate_avx2(acc, stage1, starts) },
-        _ => accumulate_rows(acc, stage1, starts),
+        IsaLevel::Avx2 => unsafe { sum_and_store_avx2(acc, out, stage1, starts) },
+        _ => sum_and_store_rows(acc, out, stage1, starts),
     }
 }
 
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "avx2,avx512f,avx512bw,avx512vl")]
-fn accumulate_avx512(acc: &mut [f32], stage1: &[Bf16], starts: impl Iterator<Item = usize>) {
-    accumulate_rows(acc, stage1, starts)
+fn sum_and_store_avx512(
+    acc: &mut [f32],
+    out: &mut [Bf16],
+    stage1: &[Bf16],
+    starts: impl Iterator<Item = usize>,
+) {
+    sum_and_store_rows(acc, out, stage1, starts)
 }
 
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "avx2")]
-fn accumulate_avx2(acc: &mut [f32], stage1: &[Bf16], starts: impl Iterator<Item = usize>) {
-    accumulate_rows(acc, stage1, starts)
+fn sum_and_store_avx2(
+    acc: &mut [f32],
+    out: &mut [Bf16],
+    stage1: &[Bf16],
+    starts: impl Iterator<Item = usize>,
+) {
+    sum_and_store_rows(acc, out, stage1, starts)
 }
 
-/// The portable body of [`accumulate`]: four rows per pass over `acc`, the first
+/// The portable body of [`sum_and_store`].
+#[inline(always)]
+fn sum_and_store_rows(
+    acc: &mut [f32],
+    out: &mut [Bf16],
+    stage1: &[Bf16],
+    starts: impl Iterator<Item = usize>,
+) {
+    accumulate_rows(acc, stage1, starts);
+    bf16::encode(acc, out);
+}
+
+/// The sums of [`sum_and_store`]: four rows per pass over `acc`, the first
 /// pass writing it (16 rows take four passes, not a copy and six more).
 #[inline(always)]
 fn accumulate_rows(acc: &mut [f32], stage1: &[Bf16], starts: impl Iterator<Item = usize>) {
