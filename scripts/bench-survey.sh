@@ -9,6 +9,8 @@
 #      once with kernel = "fast" and once with kernel = "reference": the speed-up.
 # Every search runs with --no-catalogue so only the search is timed. The generated
 # files are deleted on exit. Run it once on a quiet machine; it prints the load.
+# SMEARING_FRACTION sets [plan] smearing_fraction of part 1 (default 0.5, the
+# search's default; 1 is the cheapest plan, at some S/N of narrow bursts).
 # Usage: scripts/bench-survey.sh [LENGTH_S] [SHORT_S]
 set -euo pipefail
 cd "$(dirname "$0")/.."
@@ -64,6 +66,7 @@ if (( short_s > 0 )); then
   $bin simulate "$work/short.toml" --out "$work/short.json" > /dev/null
 fi
 echo 'kernel = "fast"' > "$work/fast.toml"
+printf '[plan]\nsmearing_fraction = %s\n' "${SMEARING_FRACTION:-0.5}" > "$work/survey.toml"
 echo 'kernel = "reference"' > "$work/reference.toml"
 
 # Files just written fill the page cache, and a search allocating gigabytes then
@@ -101,8 +104,9 @@ echo "cpu: $(awk -F': ' '/model name/ {print $2; exit}' /proc/cpuinfo)," \
 echo "load average before: $(cut -d' ' -f1-3 /proc/loadavg); cores: $(nproc)"
 evict_then_read "$work/long.npy"
 read -r wall rss user sys < <(timed full $bin search "$work/long.json" --out "$work/out-full" \
-  --dm-min 0 --dm-max 2000 --max-width-ms 50 --no-catalogue)
-echo "full search, ${length_s} s, DM 0-2000, widths to 50 ms, fast kernel: wall ${wall} s," \
+  --config "$work/survey.toml" --dm-min 0 --dm-max 2000 --max-width-ms 50 --no-catalogue)
+echo "full search, ${length_s} s, DM 0-2000, widths to 50 ms, fast kernel," \
+  "smearing fraction ${SMEARING_FRACTION:-0.5}: wall ${wall} s," \
   "real-time factor $(echo "scale=3; ${length_s} / ${wall}" | bc), peak RSS ${rss} KiB," \
   "CPU ${user} s user + ${sys} s system"
 grep -i "candidates\|trials\|by stage" "$work/full.log" | head -5 || true
@@ -115,8 +119,8 @@ done
 evict_then_read "$work/long.npy"
 cat "$work/more8.npy" "$work/more9.npy" > /dev/null
 read -r wall rss user sys < <(timed three $bin search "$work/long.json" "$work/more8.json" \
-  "$work/more9.json" --out "$work/out-three" --dm-min 0 --dm-max 2000 --max-width-ms 50 \
-  --no-catalogue)
+  "$work/more9.json" --out "$work/out-three" --config "$work/survey.toml" --dm-min 0 \
+  --dm-max 2000 --max-width-ms 50 --no-catalogue)
 echo "three ${length_s} s files in one search: wall ${wall} s, real-time factor" \
   "$(echo "scale=3; 3 * ${length_s} / ${wall}" | bc), peak RSS ${rss} KiB," \
   "CPU ${user} s user + ${sys} s system"

@@ -1,7 +1,7 @@
 #!/usr/bin/env bash
 # Injection-recovery measurement on a simulated noise-only observation with a
-# realistic band: 256 channels over 1200–1600 MHz, 256 µs, 8-bit (mean 96, σ 12),
-# SEFD 28 Jy. Bursts: DM 0–2000, widths 0.1–50 ms (log-uniform), S/N uniform in
+# realistic band: 256 channels over 1200–1600 MHz, 256 µs (N_CHAN, TSAMP_US below),
+# 8-bit (mean 96, σ 12), SEFD 28 Jy. Bursts: DM 0–2000, widths 0.1–50 ms (log-uniform), S/N uniform in
 # the given range. Prints completeness at expected S/N ≥ 10 and the median
 # reported/expected S/N by DM and width from injections.csv.
 #
@@ -18,6 +18,8 @@ dm_range=${5:-0:2000}
 width_range=${6:-0.1:50}
 root=$(cd "$(dirname "$0")/.." && pwd)
 # SMEARING_FRACTION sets [plan] smearing_fraction (default 0.5, the search's default).
+# N_CHAN (default 256) and TSAMP_US (default 256) set the channels across the same
+# 400 MHz band and the sample time: N_CHAN=1024 TSAMP_US=64 is the reference survey.
 # BURSTBOOK_BIN runs another build (e.g. an older commit's) instead of building this one.
 if [[ -n "${BURSTBOOK_BIN:-}" ]]; then
     bin=$BURSTBOOK_BIN
@@ -26,6 +28,10 @@ else
     (cd "$root" && cargo build --release --quiet)
 fi
 mkdir -p "$out"
+n_chan=${N_CHAN:-256}
+tsamp_us=${TSAMP_US:-256}
+chan_mhz=$(python3 -c "print(400 / $n_chan)")
+first_mhz=$(python3 -c "print(1600 - 200 / $n_chan)")
 
 cat > "$out/scenario.toml" <<TOML
 seed = 77
@@ -36,16 +42,16 @@ ra_deg = 200.0
 dec_deg = -20.0
 start_mjd = 61300.0
 length_s = $length_s
-tsamp_s = 256e-6
+tsamp_s = ${tsamp_us}e-6
 [site]
 name = "Measuring Dish"
 lon_deg = 15.0
 lat_deg = -30.0
 height_m = 500.0
 [band]
-first_chan_mhz = 1599.21875
-chan_step_mhz = -1.5625
-n_chan = 256
+first_chan_mhz = $first_mhz
+chan_step_mhz = -$chan_mhz
+n_chan = $n_chan
 [noise]
 nbits = 8
 mean = 96.0
