@@ -6,6 +6,8 @@
 
 use ndarray::ArrayView2;
 
+use crate::obs::Sample;
+
 use crate::robust::{MAD_TO_SIGMA, median_in_place};
 
 /// Per-channel mean and standard deviation of one block.
@@ -19,7 +21,7 @@ pub struct ChannelStats {
 
 impl ChannelStats {
     /// Measures a raw block laid out `[time, channel]`.
-    pub fn measure(raw: ArrayView2<'_, f32>) -> Self {
+    pub fn measure<T: Sample>(raw: ArrayView2<'_, T>) -> Self {
         let (n_time, n_chan) = raw.dim();
         let mut s1 = vec![0.0f64; n_chan];
         let mut s2 = vec![0.0f64; n_chan];
@@ -43,10 +45,10 @@ impl ChannelStats {
 
 /// Adds each channel's Σx to `s1` and Σx² to `s2` over the rows of `raw`
 /// (`[time, channel]`), in f64.
-pub fn add_power_sums(raw: ArrayView2<'_, f32>, s1: &mut [f64], s2: &mut [f64]) {
+pub fn add_power_sums<T: Sample>(raw: ArrayView2<'_, T>, s1: &mut [f64], s2: &mut [f64]) {
     for row in raw.rows() {
         for ((a, b), &v) in s1.iter_mut().zip(s2.iter_mut()).zip(row.iter()) {
-            let v = f64::from(v);
+            let v = f64::from(v.into());
             *a += v;
             *b += v * v;
         }

@@ -13,6 +13,8 @@ use std::ops::Range;
 use ndarray::{ArrayView1, ArrayView2};
 use rayon::prelude::*;
 
+use crate::obs::Sample;
+
 /// Fewest channels a zero run needs to count as dropped data: in real low-bit data
 /// shorter runs of exact zeros are too likely (for 1-bit samples 2⁻ⁿ of the runs of
 /// n channels are zero; 1.5 × 10⁻⁵ at 16).
@@ -41,10 +43,10 @@ pub struct Dropout {
 /// the band thus show as a rectangle, and of the whole band as whole rows. A
 /// channel that is zero throughout the read is a dead channel, not lost data: it is
 /// left to the channel flagging (it is constant) and never part of a run.
-pub fn dropouts(raw: ArrayView2<'_, f32>, mask: &[bool]) -> Vec<Dropout> {
+pub fn dropouts<T: Sample>(raw: ArrayView2<'_, T>, mask: &[bool]) -> Vec<Dropout> {
     let (n_rows, n_chan) = raw.dim();
     let dead: Vec<bool> = (0..n_chan)
-        .map(|c| mask[c] || raw.column(c).iter().all(|&v| v == 0.0))
+        .map(|c| mask[c] || raw.column(c).iter().all(|&v| is_zero(v)))
         .collect();
     let live: Vec<usize> = (0..n_chan).filter(|&c| !dead[c]).collect();
     if live.len() < MIN_CHANNELS || n_rows == 0 {
@@ -58,14 +60,14 @@ pub fn dropouts(raw: ArrayView2<'_, f32>, mask: &[bool]) -> Vec<Dropout> {
     // reference-survey search, profiled), so they run on every core.
     let suspects: Vec<usize> = (0..n_rows)
         .into_par_iter()
-        .filter(|&t| probes.iter().any(|&c| raw[[t, c]] == 0.0))
+        .filter(|&t| probes.iter().any(|&c| is_zero(raw[[t, c]])))
         .collect();
     if suspects.is_empty() {
         return Vec::new();
     }
     let zeros: usize = (0..n_rows)
         .into_par_iter()
-        .map(|t| live.iter().filter(|&&c| raw[[t, c]] == 0.0).count())
+        .map(|t| live.iter().filter(|&&c| is_zero(raw[[t, c]])).count())
         .sum();
     let cells = n_rows * live.len();
     let min_run = min_run(zeros as f64 / cells as f64, cells).clamp(MIN_CHANNELS, live.len());
@@ -104,13 +106,17 @@ pub fn dropouts(raw: ArrayView2<'_, f32>, mask: &[bool]) -> Vec<Dropout> {
 
 /// The runs of at least `min_run` consecutive `live` channels that are exactly zero
 /// in `row`, as channel ranges from the run's first to one past its last channel.
-fn zero_runs(row: ArrayView1<'_, f32>, live: &[usize], min_run: usize) -> Vec<Range<usize>> {
+fn zero_runs<T: Sample>(
+    row: ArrayView1<'_, T>,
+    live: &[usize],
+    min_run: usize,
+) -> Vec<Range<usize>> {
     let mut runs = Vec::new();
     let mut first = 0;
     for (i, &c) in live.iter().enumerate() {
-        if row[c] != 0.0 {
+        if !is_zero(row[c]) {
             first = i + 1;
-        } else if i + 1 == live.len() || row[live[i + 1]] != 0.0 {
+        } else if i + 1 == live.len() || !is_zero(row[live[i + 1]]) {
             // The run first..=i ends here.
             if i + 1 - first >= min_run {
                 runs.push(live[first]..c + 1);
@@ -118,6 +124,11 @@ fn zero_runs(row: ArrayView1<'_, f32>, live: &[usize], min_run: usize) -> Vec<Ra
         }
     }
     runs
+}
+
+/// Whether a sample is exactly zero, the fill of lost data.
+fn is_zero<T: Sample>(v: T) -> bool {
+    v.into() == 0.0
 }
 
 /// Shortest zero run that `cells` independent samples, each zero with probability

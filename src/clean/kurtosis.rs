@@ -14,6 +14,7 @@ use rayon::prelude::*;
 use statrs::distribution::{ContinuousCDF, Gamma, Normal};
 
 use super::channel_stats::{ChannelStats, add_power_sums};
+use crate::obs::Sample;
 use crate::robust::median_in_place;
 
 /// Variance of SK for Gaussian noise with `m` samples and shape `nd` = N·d.
@@ -65,7 +66,7 @@ pub struct ChannelKurtosis {
 impl ChannelKurtosis {
     /// Measures a raw block (`[time, channel]`) in parallel over runs; a block
     /// shorter than `m` is one run.
-    pub fn measure(raw: ArrayView2<'_, f32>, m: usize) -> Self {
+    pub fn measure<T: Sample>(raw: ArrayView2<'_, T>, m: usize) -> Self {
         let (n_time, n_chan) = raw.dim();
         let m = m.min(n_time).max(1);
         let n_runs = n_time / m;
@@ -84,7 +85,7 @@ impl ChannelKurtosis {
     /// Each channel's mean and standard deviation over the whole of `raw`, the block
     /// these sums were measured on: the runs' sums plus the samples after the last
     /// run, so the block is read once for both tests.
-    pub fn channel_stats(&self, raw: ArrayView2<'_, f32>) -> ChannelStats {
+    pub fn channel_stats<T: Sample>(&self, raw: ArrayView2<'_, T>) -> ChannelStats {
         let n_time = raw.nrows();
         let mut s1 = vec![0.0; self.n_chan];
         let mut s2 = vec![0.0; self.n_chan];

@@ -19,6 +19,7 @@ use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
 use crate::error::{Error, Result};
+use crate::obs::Sample;
 
 /// Settings of every excision step.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -114,7 +115,11 @@ impl CleanConfig {
 /// Flags channels of a raw block (`[time, channel]`) by their statistics and spectral
 /// kurtosis, repeating until nothing new is flagged or `max_iterations` is reached.
 /// Returns the number of channels newly masked.
-pub fn flag_channels(raw: ArrayView2<'_, f32>, mask: &mut [bool], config: &CleanConfig) -> usize {
+pub fn flag_channels<T: Sample>(
+    raw: ArrayView2<'_, T>,
+    mask: &mut [bool],
+    config: &CleanConfig,
+) -> usize {
     let before = mask.iter().filter(|&&m| m).count();
     // One pass over the block serves both tests when kurtosis is on.
     let sk = config

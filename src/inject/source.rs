@@ -43,6 +43,8 @@ impl<S: SampleSource> InjectingSource<S> {
     }
 }
 
+/// Rows come only as f32 ([`SampleSource::byte_rows`] stays `None`): bursts change
+/// the values, which then are no longer stored bytes.
 impl<S: SampleSource> SampleSource for InjectingSource<S> {
     fn header(&self) -> &Header {
         self.inner.header()

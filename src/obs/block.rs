@@ -37,6 +37,28 @@ impl Block {
     }
 }
 
+/// A type a read's rows can hold: `u8`, the stored bytes of 8-bit data whose values
+/// are the bytes themselves ([`SampleSource::byte_rows`]), or `f32`, decoded values
+/// ([`SampleSource::read_rows`]). What reads the rows (the search's cleaning and
+/// transpose) is generic over it, so both kinds of read share one implementation.
+pub trait Sample: Copy + Default + Send + Sync + Into<f32> + 'static {}
+
+impl Sample for u8 {}
+impl Sample for f32 {}
+
+/// A source whose samples are stored as single unsigned bytes, read without decoding.
+pub trait ByteRows {
+    /// Fills the start of `out` with the next whole rows (each `n_chan` bytes, as
+    /// stored) and returns how many rows were written; 0 means the end of the data.
+    /// It reads from the same position as [`SampleSource::read_rows`].
+    ///
+    /// `out.len()` must be a multiple of `n_chan`.
+    ///
+    /// # Errors
+    /// Truncated data or an I/O failure, naming the file.
+    fn read_byte_rows(&mut self, out: &mut [u8]) -> Result<usize>;
+}
+
 /// Something that yields an observation's rows in time order.
 pub trait SampleSource: Send {
     /// The observation's header.
@@ -50,6 +72,15 @@ pub trait SampleSource: Send {
     /// # Errors
     /// Truncated or corrupt data, or an I/O failure, naming the file.
     fn read_rows(&mut self, out: &mut [f32]) -> Result<usize>;
+
+    /// The rows as their stored bytes, when every sample is one unsigned byte whose
+    /// value is the sample; `None` (this default) when samples need decoding or are
+    /// changed on the way (scaled, injected into), and rows come only as f32 from
+    /// [`read_rows`](Self::read_rows). A byte read holds a quarter of the memory of
+    /// an f32 one and skips the decoding pass.
+    fn byte_rows(&mut self) -> Option<&mut dyn ByteRows> {
+        None
+    }
 
     /// Moves past the next `n` rows without returning them and says how many were
     /// passed: fewer than `n` only when the data ends first (0 once at the end), so
@@ -90,6 +121,9 @@ impl<S: SampleSource + ?Sized> SampleSource for Box<S> {
     fn read_rows(&mut self, out: &mut [f32]) -> Result<usize> {
         (**self).read_rows(out)
     }
+    fn byte_rows(&mut self) -> Option<&mut dyn ByteRows> {
+        (**self).byte_rows()
+    }
     fn skip_rows(&mut self, n: u64) -> Result<u64> {
         (**self).skip_rows(n)
     }
@@ -102,10 +136,25 @@ impl<S: SampleSource + ?Sized> SampleSource for Box<S> {
 /// Whatever the source reports.
 pub fn fill_rows<S: SampleSource + ?Sized>(source: &mut S, out: &mut [f32]) -> Result<usize> {
     let n_chan = source.header().n_chan();
+    fill_with(|rows| source.read_rows(rows), n_chan, out)
+}
+
+/// Calls `read` (which fills the start of its argument with whole rows of `n_chan`
+/// values and returns how many, 0 at the end of the data) until `out` is full or the
+/// data ends, and returns the number of whole rows written (`out.len()` must be a
+/// multiple of `n_chan`).
+///
+/// # Errors
+/// The first error `read` reports.
+pub fn fill_with<T>(
+    mut read: impl FnMut(&mut [T]) -> Result<usize>,
+    n_chan: usize,
+    out: &mut [T],
+) -> Result<usize> {
     let want = out.len() / n_chan;
     let mut filled = 0;
     while filled < want {
-        let got = source.read_rows(&mut out[filled * n_chan..])?;
+        let got = read(&mut out[filled * n_chan..])?;
         if got == 0 {
             break;
         }

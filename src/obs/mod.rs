@@ -16,7 +16,8 @@ pub mod stats;
 #[cfg(test)]
 pub(crate) use block::tests::{assert_skips_match_reading, awkward_skips};
 pub use block::{
-    Block, BlockReader, MemorySource, SKIP_CHUNK_VALUES, SampleSink, SampleSource, fill_rows,
+    Block, BlockReader, ByteRows, MemorySource, SKIP_CHUNK_VALUES, Sample, SampleSink,
+    SampleSource, fill_rows, fill_with,
 };
 pub(crate) use header::RADIO_WINDOW_MHZ;
 #[cfg(test)]

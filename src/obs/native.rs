@@ -11,7 +11,7 @@ use serde::{Deserialize, Serialize};
 use super::codec::{check_complete, check_finite, check_room, check_whole_rows, quantise};
 use super::header::even_step_mhz;
 use super::npy::{self, Dtype};
-use super::{Header, SampleSink, SampleSource, Site, UtcEpoch};
+use super::{ByteRows, Header, SampleSink, SampleSource, Site, UtcEpoch};
 use crate::atomic_file::AtomicFile;
 use crate::error::{Error, Result};
 
@@ -230,6 +230,41 @@ impl NativeReader {
     }
 }
 
+impl NativeReader {
+    /// Whole rows the next read into room for `values` samples gets.
+    fn rows_that_fit(&self, values: usize) -> usize {
+        (values / self.header.n_chan()).min((self.header.n_samples - self.rows_read) as usize)
+    }
+}
+
+/// Reads exactly `bytes.len()` stored bytes from `file`, whose first row is row
+/// `first_row` of the data in `data_path`.
+fn read_stored(
+    file: &mut BufReader<File>,
+    data_path: &Path,
+    first_row: u64,
+    bytes: &mut [u8],
+) -> Result<()> {
+    file.read_exact(bytes)
+        .map_err(|e| Error::bad_input(data_path, format!("cannot read sample {first_row}: {e}")))
+}
+
+/// `uint8` samples are their bytes: a byte read is the stored data as it is.
+impl ByteRows for NativeReader {
+    fn read_byte_rows(&mut self, out: &mut [u8]) -> Result<usize> {
+        let rows = self.rows_that_fit(out.len());
+        let n = rows * self.header.n_chan();
+        read_stored(
+            &mut self.file,
+            &self.data_path,
+            self.rows_read,
+            &mut out[..n],
+        )?;
+        self.rows_read += rows as u64;
+        Ok(rows)
+    }
+}
+
 impl SampleSource for NativeReader {
     fn header(&self) -> &Header {
         &self.header
@@ -237,15 +272,15 @@ impl SampleSource for NativeReader {
 
     fn read_rows(&mut self, out: &mut [f32]) -> Result<usize> {
         let n_chan = self.header.n_chan();
-        let rows = (out.len() / n_chan).min((self.header.n_samples - self.rows_read) as usize);
+        let rows = self.rows_that_fit(out.len());
         let n = rows * n_chan;
         self.bytes.resize(n * self.dtype.size(), 0);
-        self.file.read_exact(&mut self.bytes).map_err(|e| {
-            Error::bad_input(
-                &self.data_path,
-                format!("cannot read sample {}: {e}", self.rows_read),
-            )
-        })?;
+        read_stored(
+            &mut self.file,
+            &self.data_path,
+            self.rows_read,
+            &mut self.bytes,
+        )?;
         self.dtype.decode(&self.bytes, &mut out[..n]);
         // Integer samples are always finite.
         if self.dtype == Dtype::F32 && !self.allow_non_finite {
@@ -253,6 +288,10 @@ impl SampleSource for NativeReader {
         }
         self.rows_read += rows as u64;
         Ok(rows)
+    }
+
+    fn byte_rows(&mut self) -> Option<&mut dyn ByteRows> {
+        (self.dtype == Dtype::U8).then_some(self as &mut dyn ByteRows)
     }
 
     /// Seeks: rows are fixed-size, so row `k` starts `k` row lengths into the data.
@@ -431,6 +470,38 @@ mod tests {
             for (a, b) in back.freqs_mhz.iter().zip(&h.freqs_mhz) {
                 assert!((a - b).abs() < 1e-9);
             }
+        }
+    }
+
+    /// Byte reads of `uint8` data give the decoded values' bytes, from the same
+    /// position as f32 reads (here alternating); other types offer no byte reads.
+    #[test]
+    fn uint8_rows_read_as_bytes_are_the_decoded_values() {
+        let dir = tempfile::tempdir().unwrap();
+        let (n_chan, n) = (5, 23);
+        let data: Vec<f32> = (0..n_chan * n).map(|i| (i * 7 % 251) as f32).collect();
+        for nbits in [8, 16, 32] {
+            let mut h = test_header(n_chan, n as u64);
+            h.nbits = nbits;
+            let path = dir.path().join(format!("bytes{nbits}.json"));
+            write(&path, &h, &data).unwrap();
+            let mut r = NativeReader::open(&path, false).unwrap();
+            assert_eq!(r.byte_rows().is_some(), nbits == 8, "{nbits} bits");
+            if nbits != 8 {
+                continue;
+            }
+            let mut back = Vec::new();
+            let (mut bytes, mut floats) = (vec![0u8; 3 * n_chan], vec![0.0f32; 4 * n_chan]);
+            loop {
+                let got = r.byte_rows().unwrap().read_byte_rows(&mut bytes).unwrap();
+                back.extend(bytes[..got * n_chan].iter().map(|&b| f32::from(b)));
+                let more = r.read_rows(&mut floats).unwrap();
+                back.extend_from_slice(&floats[..more * n_chan]);
+                if got + more == 0 {
+                    break;
+                }
+            }
+            assert_eq!(back, data);
         }
     }
 

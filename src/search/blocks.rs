@@ -18,12 +18,14 @@
 //! the previous) is recognised when the blocks' candidates are gathered: of two
 //! candidates on one bow-tie, only the brighter is kept.
 
+use ndarray::ArrayView2;
 use serde::{Deserialize, Serialize};
 
+use super::channels::NewRows;
 use crate::candidate::Candidate;
 use crate::cluster::{Event, Sweep};
 use crate::error::Result;
-use crate::obs::{Block, SampleSource};
+use crate::obs::{Sample, SampleSource, fill_with};
 
 /// How a recording is cut into blocks (all in input samples; see the module docs).
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -157,57 +159,154 @@ impl Totals {
     }
 }
 
+/// A read's samples: decoded values, or the stored bytes of 8-bit data
+/// ([`SampleSource::byte_rows`]), a quarter of the memory.
+pub(super) enum ReadRows {
+    F32(Vec<f32>),
+    U8(Vec<u8>),
+}
+
+impl ReadRows {
+    /// The buffer, if it holds f32.
+    fn floats(self) -> Option<Vec<f32>> {
+        match self {
+            ReadRows::F32(v) => Some(v),
+            ReadRows::U8(_) => None,
+        }
+    }
+
+    /// The buffer, if it holds bytes.
+    fn bytes(self) -> Option<Vec<u8>> {
+        match self {
+            ReadRows::U8(v) => Some(v),
+            ReadRows::F32(_) => None,
+        }
+    }
+}
+
+/// New rows from [`prefetch`], `[time, channel]`, the first being file row
+/// `start_sample`.
+pub(super) struct Read {
+    pub(super) start_sample: u64,
+    n_chan: usize,
+    pub(super) rows: ReadRows,
+}
+
+impl Read {
+    /// The rows, for [`super::channels::ChannelBlock::append`].
+    pub(super) fn view(&self) -> NewRows<'_> {
+        match &self.rows {
+            ReadRows::F32(v) => NewRows::F32(rows_view(v, self.n_chan)),
+            ReadRows::U8(v) => NewRows::U8(rows_view(v, self.n_chan)),
+        }
+    }
+
+    /// Number of rows.
+    pub(super) fn n_time(&self) -> usize {
+        self.view().dim().0
+    }
+}
+
+/// `values` as rows of `n_chan`.
+fn rows_view<T>(values: &[T], n_chan: usize) -> ArrayView2<'_, T> {
+    ArrayView2::from_shape((values.len() / n_chan, n_chan), values).expect("reads hold whole rows")
+}
+
+/// Bytes per sample of the reads [`prefetch`] makes of `source`: one where it hands
+/// out 8-bit rows as stored, four (f32) otherwise.
+pub(super) fn read_sample_bytes(source: &mut dyn SampleSource) -> usize {
+    match source.byte_rows() {
+        Some(_) => size_of::<u8>(),
+        None => size_of::<f32>(),
+    }
+}
+
 /// Where [`prefetch`] takes its buffers back for reuse.
-pub(super) type Recycle = std::sync::mpsc::Sender<Vec<f32>>;
+pub(super) type Recycle = std::sync::mpsc::Sender<ReadRows>;
 
 /// Reads `source` on a thread of `scope`, one read ahead of the caller, so that
 /// reading and decoding overlap the search: first `first_len` rows, then `next_len`
-/// rows at a time, each as a [`Block`] of new rows only (no overlap). Buffers sent
-/// back on the returned [`Recycle`] are reused, so reads need no fresh memory. A read
-/// shorter than asked is the last. The thread ends after the last read or an error,
-/// or when the receiver is dropped.
+/// rows at a time, each as a [`Read`] of new rows only. A source that hands out
+/// 8-bit rows as stored ([`SampleSource::byte_rows`]) is read as bytes, any other
+/// as f32. Buffers sent back on the returned [`Recycle`] are reused, so reads need
+/// no fresh memory. A read shorter than asked is the last. The thread ends after
+/// the last read or an error, or when the receiver is dropped.
 pub(super) fn prefetch<'scope>(
     scope: &'scope std::thread::Scope<'scope, '_>,
     mut source: Box<dyn SampleSource>,
     first_len: usize,
     next_len: usize,
-) -> (std::sync::mpsc::IntoIter<Result<Option<Block>>>, Recycle) {
+) -> (std::sync::mpsc::IntoIter<Result<Option<Read>>>, Recycle) {
     // A rendezvous channel: at most one read waits beside the one being searched.
     let (tx, rx) = std::sync::mpsc::sync_channel(0);
-    let (recycle, spare) = std::sync::mpsc::channel::<Vec<f32>>();
+    let (recycle, spare) = std::sync::mpsc::channel();
     scope.spawn(move || {
-        let n_chan = source.header().n_chan();
-        let (mut start_sample, mut want) = (0u64, first_len);
-        loop {
-            let mut data = spare.try_recv().unwrap_or_default();
-            data.resize(want * n_chan, 0.0);
-            let mut filled = 0;
-            let read = loop {
-                if filled == want {
-                    break Ok(());
-                }
-                match source.read_rows(&mut data[filled * n_chan..]) {
-                    Ok(0) => break Ok(()),
-                    Ok(got) => filled += got,
-                    Err(e) => break Err(e),
-                }
-            };
-            data.truncate(filled * n_chan);
-            let more = read.is_ok() && filled == want;
-            let next = read.map(|()| {
-                (filled > 0).then_some(Block {
-                    start_sample,
-                    overlap: 0,
-                    n_chan,
-                    data,
-                })
-            });
-            if tx.send(next).is_err() || !more {
-                break;
+        let reads = Reads {
+            n_chan: source.header().n_chan(),
+            first_len,
+            next_len,
+            tx,
+            spare,
+        };
+        match source.byte_rows() {
+            Some(bytes) => {
+                reads.run(
+                    |out| bytes.read_byte_rows(out),
+                    ReadRows::U8,
+                    ReadRows::bytes,
+                );
             }
-            start_sample += filled as u64;
-            want = next_len;
+            None => reads.run(|out| source.read_rows(out), ReadRows::F32, ReadRows::floats),
         }
     });
     (rx.into_iter(), recycle)
+}
+
+/// The reader thread of [`prefetch`], but for its source.
+struct Reads {
+    n_chan: usize,
+    first_len: usize,
+    next_len: usize,
+    tx: std::sync::mpsc::SyncSender<Result<Option<Read>>>,
+    spare: std::sync::mpsc::Receiver<ReadRows>,
+}
+
+impl Reads {
+    /// Sends reads made by `read` (whole rows into the start of its argument, 0 at
+    /// the end) into buffers of `T` until the data ends, an error, or the receiver
+    /// is gone; `wrap` makes a buffer a read, `unwrap` takes a spare one back.
+    fn run<T: Sample>(
+        self,
+        mut read: impl FnMut(&mut [T]) -> Result<usize>,
+        wrap: fn(Vec<T>) -> ReadRows,
+        unwrap: fn(ReadRows) -> Option<Vec<T>>,
+    ) {
+        let n_chan = self.n_chan;
+        let (mut start_sample, mut want) = (0u64, self.first_len);
+        loop {
+            let mut data = self
+                .spare
+                .try_recv()
+                .ok()
+                .and_then(unwrap)
+                .unwrap_or_default();
+            data.resize(want * n_chan, T::default());
+            let filled = fill_with(&mut read, n_chan, &mut data);
+            let got = *filled.as_ref().unwrap_or(&0);
+            data.truncate(got * n_chan);
+            let more = filled.is_ok() && got == want;
+            let next = filled.map(|_| {
+                (got > 0).then(|| Read {
+                    start_sample,
+                    n_chan,
+                    rows: wrap(data),
+                })
+            });
+            if self.tx.send(next).is_err() || !more {
+                break;
+            }
+            start_sample += got as u64;
+            want = self.next_len;
+        }
+    }
 }

@@ -14,7 +14,7 @@ use rand_distr::{Distribution, StandardNormal};
 use rayon::prelude::*;
 
 use super::normalise::{CHANNEL_SIGMA_VALUES, normalise_series};
-use super::transpose::{self, Columns};
+use super::transpose::{self, Columns, Widen};
 use crate::clean::impulse::{self, DispersionProbe};
 use crate::clean::{self, CleanConfig, zero_dm};
 
@@ -33,6 +33,30 @@ pub(super) struct ChannelBlock {
     mask: Vec<bool>,
     /// Tells low-DM pulses from impulses before clipping.
     probe: DispersionProbe,
+}
+
+/// New rows for [`ChannelBlock::append`], `[time, channel]`: decoded samples, or the
+/// stored bytes of 8-bit data (widened to f32 only in the transpose).
+#[derive(Clone, Copy)]
+pub(super) enum NewRows<'a> {
+    F32(ArrayView2<'a, f32>),
+    U8(ArrayView2<'a, u8>),
+}
+
+impl<'a> From<ArrayView2<'a, f32>> for NewRows<'a> {
+    fn from(rows: ArrayView2<'a, f32>) -> Self {
+        NewRows::F32(rows)
+    }
+}
+
+impl NewRows<'_> {
+    /// `(rows, channels)`.
+    pub(super) fn dim(&self) -> (usize, usize) {
+        match self {
+            NewRows::F32(rows) => rows.dim(),
+            NewRows::U8(rows) => rows.dim(),
+        }
+    }
 }
 
 /// What appending new rows found.
@@ -105,7 +129,8 @@ impl ChannelBlock {
     }
 
     /// Keeps the last `keep` rows of the block, drops the rest, and appends `raw`
-    /// (`[time, channel]`, read from file row `start_sample`): its channels are
+    /// (`[time, channel]`, f32 or bytes, read from file row `start_sample`): its
+    /// channels are
     /// flagged starting from `static_mask`, then normalised (`baseline_len` running
     /// baseline) and cleaned as `config` asks. Rows of dropped data
     /// ([`clean::dropout`]) are left out of the flagging and normalisation, filled
@@ -114,15 +139,16 @@ impl ChannelBlock {
     /// # Panics
     /// If the rows kept and appended exceed the capacity, or `raw` has another
     /// channel count (caller bugs).
-    pub(super) fn append(
+    pub(super) fn append<'a>(
         &mut self,
-        raw: ArrayView2<'_, f32>,
+        raw: impl Into<NewRows<'a>>,
         start_sample: u64,
         keep: usize,
         static_mask: &[bool],
         config: &CleanConfig,
         baseline_len: usize,
     ) -> Appended {
+        let raw = raw.into();
         let (m, n_chan) = raw.dim();
         assert_eq!(
             n_chan, self.n_chan,
@@ -134,15 +160,10 @@ impl ChannelBlock {
         self.len = keep;
         self.start_sample = start_sample - keep as u64;
         let previous_mask = std::mem::replace(&mut self.new_mask, static_mask.to_vec());
-        let dropouts = clean::dropout::dropouts(raw, static_mask);
-        // Channels are flagged on the rows without dropped data.
-        if dropouts.is_empty() {
-            clean::flag_channels(raw, &mut self.new_mask, config);
-        } else {
-            let rows = raw.select(Axis(0), &clean::dropout::untouched_rows(&dropouts, m));
-            clean::flag_channels(rows.view(), &mut self.new_mask, config);
-        }
-        self.transpose_in(raw);
+        let dropouts = match raw {
+            NewRows::F32(rows) => self.flag_and_transpose_in(rows, static_mask, config),
+            NewRows::U8(rows) => self.flag_and_transpose_in(rows, static_mask, config),
+        };
         self.normalise_new(keep, m, baseline_len, &dropouts);
         let mut block = ArrayViewMut2::from_shape((n_chan, self.capacity), &mut self.data[..])
             .expect("buffer holds n_chan × capacity values")
@@ -191,8 +212,32 @@ impl ChannelBlock {
         });
     }
 
+    /// Finds the dropped data of `raw` (`[time, channel]`), flags its channels in
+    /// `new_mask` on the rows without any, and writes it after the first `len` rows
+    /// of every channel. Returns the dropped data.
+    fn flag_and_transpose_in<T: Widen>(
+        &mut self,
+        raw: ArrayView2<'_, T>,
+        static_mask: &[bool],
+        config: &CleanConfig,
+    ) -> Vec<clean::dropout::Dropout> {
+        let dropouts = clean::dropout::dropouts(raw, static_mask);
+        if dropouts.is_empty() {
+            clean::flag_channels(raw, &mut self.new_mask, config);
+        } else {
+            let untouched = clean::dropout::untouched_rows(&dropouts, raw.nrows());
+            clean::flag_channels(
+                raw.select(Axis(0), &untouched).view(),
+                &mut self.new_mask,
+                config,
+            );
+        }
+        self.transpose_in(raw);
+        dropouts
+    }
+
     /// Writes `raw` (`[time, channel]`) after the first `len` rows of every channel.
-    fn transpose_in(&mut self, raw: ArrayView2<'_, f32>) {
+    fn transpose_in<T: Widen>(&mut self, raw: ArrayView2<'_, T>) {
         let raw = raw.as_standard_layout();
         let raw = raw.as_slice().expect("standard layout is contiguous");
         let into = Columns {

@@ -12,7 +12,7 @@ use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
 use super::SearchConfig;
-use super::blocks::{BlockLayout, BlockOutcome, StageSeconds, Totals, prefetch};
+use super::blocks::{BlockLayout, BlockOutcome, StageSeconds, Totals, prefetch, read_sample_bytes};
 use super::boxcar::{self, Scratch};
 use super::channels::{Appended, ChannelBlock};
 use super::features::{self, BlockData};
@@ -121,7 +121,7 @@ pub struct Workspace {
 /// As [`search_source`].
 pub fn search_source_in(
     workspace: &mut Workspace,
-    source: Box<dyn SampleSource>,
+    mut source: Box<dyn SampleSource>,
     label: &str,
     config: &SearchConfig,
     progress: Option<&ProgressBar>,
@@ -129,7 +129,8 @@ pub fn search_source_in(
     config.validate()?;
     let header = source.header().clone();
     header.validate().map_err(|m| Error::bad_input(label, m))?;
-    let mut searcher = Searcher::new(header, config, label)?;
+    let read_bytes = read_sample_bytes(&mut *source);
+    let mut searcher = Searcher::new(header, read_bytes, config, label)?;
     if config.kernel == Kernel::Fast {
         let kept = workspace.fast.take().filter(|k| k.plan() == &searcher.plan);
         searcher.fast = Some(kept.unwrap_or_else(|| FastDedisperser::new(&searcher.plan)));
@@ -169,7 +170,7 @@ pub fn search_source_in(
                 g.baseline_len,
             );
             // The reader may have ended already; then the buffer is simply dropped.
-            let _ = recycle.send(read.data);
+            let _ = recycle.send(read.rows);
             let cleaning = lap(&mut clock);
             let mut outcome = searcher.block(&channels, first, last, appended);
             outcome.seconds.reading = reading;
@@ -197,7 +198,8 @@ pub fn search_source_in(
 /// An invalid configuration.
 pub fn block_layout(header: &Header, config: &SearchConfig) -> Result<BlockLayout> {
     config.validate()?;
-    Ok(Searcher::new(header.clone(), config, "")?.layout)
+    // Reads of f32, the larger kind: a layout allowed for them is allowed for any.
+    Ok(Searcher::new(header.clone(), size_of::<f32>(), config, "")?.layout)
 }
 
 /// Opens each recording and checks it could be searched with `config` (its header,
@@ -213,8 +215,10 @@ pub fn check_files<P: AsRef<Path>>(paths: &[P], config: &SearchConfig) -> Result
         let path = path.as_ref();
         // Opening validates the header; the file is closed again at once, so a long
         // list holds no handles.
-        let source = crate::obs::open(path)?;
-        Searcher::new(source.header().clone(), config, &path.display().to_string())?;
+        let mut source = crate::obs::open(path)?;
+        let read_bytes = read_sample_bytes(&mut *source);
+        let label = path.display().to_string();
+        Searcher::new(source.header().clone(), read_bytes, config, &label)?;
     }
     Ok(())
 }
@@ -239,7 +243,14 @@ struct Searcher<'a> {
 }
 
 impl<'a> Searcher<'a> {
-    fn new(header: Header, config: &'a SearchConfig, label: &'a str) -> Result<Self> {
+    /// The search of a recording with `header` read `read_bytes` bytes per sample
+    /// (see [`read_sample_bytes`]), once its memory need is checked.
+    fn new(
+        header: Header,
+        read_bytes: usize,
+        config: &'a SearchConfig,
+        label: &'a str,
+    ) -> Result<Self> {
         // Trials whose sweep outlasts the recording could search nothing.
         let request = config
             .plan
@@ -289,8 +300,15 @@ impl<'a> Searcher<'a> {
             baseline_len: ((config.baseline_s / header.tsamp_s).round() as usize).max(1),
         };
         let limit = memory::limit_bytes(config.memory_limit_gib);
-        memory::check(&layout, &plan, header.n_chan(), header.tsamp_s, limit)
-            .map_err(|m| Error::bad_input(label, m))?;
+        memory::check(
+            &layout,
+            &plan,
+            header.n_chan(),
+            read_bytes,
+            header.tsamp_s,
+            limit,
+        )
+        .map_err(|m| Error::bad_input(label, m))?;
         let dm_offsets = plan
             .steps
             .iter()

@@ -8,17 +8,23 @@ use crate::dedisperse::bf16::Bf16;
 
 const GIB: f64 = (1u64 << 30) as f64;
 
-/// Bytes a search of blocks laid out as `layout` over `n_chan` channels holds at
-/// once:
+/// Bytes a search of blocks laid out as `layout` over `n_chan` channels, read
+/// `read_bytes` bytes per sample (1 for 8-bit data read as stored, 4 for f32),
+/// holds at once:
 /// - the channel-major block itself (f32);
-/// - two reads of up to a block each (one being filled while one waits; f32);
+/// - two reads of up to a block each (one being filled while one waits);
 /// - the fast kernel's copy of the block at half resolution, halved further in
 ///   place for its coarser steps (half a block; f32);
 /// - every step's dedispersed output for one block (bfloat16);
 /// - the kernel's stage-1 scratch ([`DmPlan::cost`]).
 ///
 /// Thread-local scratch of the matched filter is small beside these and left out.
-pub fn estimate_bytes(layout: &BlockLayout, plan: &DmPlan, n_chan: usize) -> f64 {
+pub fn estimate_bytes(
+    layout: &BlockLayout,
+    plan: &DmPlan,
+    n_chan: usize,
+    read_bytes: usize,
+) -> f64 {
     let block_values = (layout.block_len * n_chan) as f64;
     let outputs: f64 = plan
         .steps
@@ -26,7 +32,8 @@ pub fn estimate_bytes(layout: &BlockLayout, plan: &DmPlan, n_chan: usize) -> f64
         .map(|s| (s.dms.len() * (layout.block_len / s.downsample)) as f64)
         .sum();
     let (f32_bytes, bf16_bytes) = (size_of::<f32>() as f64, size_of::<Bf16>() as f64);
-    3.5 * block_values * f32_bytes + outputs * bf16_bytes + plan.cost().fast_scratch_bytes
+    let reads = 2.0 * block_values * read_bytes as f64;
+    1.5 * block_values * f32_bytes + reads + outputs * bf16_bytes + plan.cost().fast_scratch_bytes
 }
 
 /// Refuses a search needing more than `limit_bytes` (`None`: no limit).
@@ -38,10 +45,11 @@ pub fn check(
     layout: &BlockLayout,
     plan: &DmPlan,
     n_chan: usize,
+    read_bytes: usize,
     tsamp_s: f64,
     limit_bytes: Option<f64>,
 ) -> Result<(), String> {
-    let need = estimate_bytes(layout, plan, n_chan);
+    let need = estimate_bytes(layout, plan, n_chan, read_bytes);
     match limit_bytes {
         Some(limit) if need > limit => Err(format!(
             "the search would need about {:.2} GiB of memory, more than the limit of {:.2} GiB: \
@@ -103,13 +111,15 @@ mod tests {
     fn estimate_counts_block_reads_and_outputs() {
         let freqs: Vec<f64> = (0..16).map(|i| 1600.0 - 25.0 * i as f64).collect();
         let plan = DmPlan::uniform(freqs, 25.0, 1e-3, 0.0, 100.0, 10);
-        let bytes = estimate_bytes(&layout(1000, 300), &plan, 16);
-        // 3.5 block copies of 16 × 1000 f32 and 10 trials × 1000 bfloat16 outputs,
-        // plus scratch.
-        let floor = 3.5 * 16_000.0 * 4.0 + 10_000.0 * 2.0;
         let scratch = plan.cost().fast_scratch_bytes;
-        assert_eq!(bytes, floor + scratch);
         assert!(scratch > 0.0);
+        // 1.5 block copies of 16 × 1000 f32, two reads of 16 × 1000 samples, and
+        // 10 trials × 1000 bfloat16 outputs, plus scratch.
+        for (read_bytes, reads) in [(4, 2.0 * 16_000.0 * 4.0), (1, 2.0 * 16_000.0)] {
+            let bytes = estimate_bytes(&layout(1000, 300), &plan, 16, read_bytes);
+            let floor = 1.5 * 16_000.0 * 4.0 + reads + 10_000.0 * 2.0;
+            assert_eq!(bytes, floor + scratch, "{read_bytes}-byte reads");
+        }
     }
 
     #[test]
@@ -117,10 +127,12 @@ mod tests {
         let freqs: Vec<f64> = (0..16).map(|i| 1600.0 - 25.0 * i as f64).collect();
         let plan = DmPlan::uniform(freqs, 25.0, 1e-3, 0.0, 100.0, 10);
         let l = layout(1000, 300);
-        let need = estimate_bytes(&l, &plan, 16);
-        assert!(check(&l, &plan, 16, 1e-3, Some(need)).is_ok());
-        assert!(check(&l, &plan, 16, 1e-3, None).is_ok());
-        let e = check(&l, &plan, 16, 1e-3, Some(need / 2.0)).unwrap_err();
+        let need = estimate_bytes(&l, &plan, 16, 4);
+        assert!(check(&l, &plan, 16, 4, 1e-3, Some(need)).is_ok());
+        assert!(check(&l, &plan, 16, 4, 1e-3, None).is_ok());
+        // Byte reads need less: a limit too small for f32 reads can do for them.
+        assert!(check(&l, &plan, 16, 1, 1e-3, Some(need - 1.0)).is_ok());
+        let e = check(&l, &plan, 16, 4, 1e-3, Some(need / 2.0)).unwrap_err();
         assert!(
             e.contains("--memory-limit-gib") && e.contains("DM 100.0"),
             "{e}"

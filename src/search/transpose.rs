@@ -10,8 +10,18 @@
 //! of both loops on a survey-sized block (1024 channels × 65 536 samples); in the
 //! search, a survey block's append fell from about 0.22 to 0.19 s
 //! (docs/benchmarks.md).
+//!
+//! A read holds either decoded f32 samples or the stored bytes of 8-bit data
+//! ([`crate::obs::ByteRows`]); bytes are widened to f32 here, in the registers of
+//! the 8 × 8 blocks (or one at a time in the plain copy), so 8-bit data is never
+//! held as f32 in time-major order.
+
+#[cfg(target_arch = "x86_64")]
+use std::arch::x86_64::__m256;
 
 use rayon::prelude::*;
+
+use crate::obs::Sample;
 
 /// Channels per parallel task.
 const GROUP_CHANNELS: usize = 128;
@@ -26,8 +36,47 @@ pub(super) struct Columns {
     pub offset: usize,
 }
 
+/// A sample type the transpose reads: widened to f32 one value at a time (`Into`)
+/// or eight at a time into an AVX2 register.
+pub(super) trait Widen: Sample {
+    /// The eight values from `src` on, as the f32 lanes of a register.
+    ///
+    /// # Safety
+    /// The CPU has AVX2, and `src..src + 8` lie inside one slice of `Self`.
+    #[cfg(target_arch = "x86_64")]
+    unsafe fn load8(src: *const Self) -> __m256;
+}
+
+impl Widen for f32 {
+    #[cfg(target_arch = "x86_64")]
+    #[inline]
+    #[target_feature(enable = "avx2")]
+    unsafe fn load8(src: *const f32) -> __m256 {
+        // SAFETY: the caller promises eight f32 from `src` inside one slice;
+        // `loadu` has no alignment requirement.
+        unsafe { std::arch::x86_64::_mm256_loadu_ps(src) }
+    }
+}
+
+impl Widen for u8 {
+    #[cfg(target_arch = "x86_64")]
+    #[inline]
+    #[target_feature(enable = "avx2")]
+    unsafe fn load8(src: *const u8) -> __m256 {
+        use std::arch::x86_64::{
+            __m128i, _mm_loadl_epi64, _mm256_cvtepi32_ps, _mm256_cvtepu8_epi32,
+        };
+        // SAFETY: `_mm_loadl_epi64` reads the 8 bytes from `src` (the rest of the
+        // register is zeroed), which the caller promises lie inside one slice; it has
+        // no alignment requirement.
+        let bytes = unsafe { _mm_loadl_epi64(src.cast::<__m128i>()) };
+        // Zero-extended to i32, then converted exactly (every byte is an f32).
+        _mm256_cvtepi32_ps(_mm256_cvtepu8_epi32(bytes))
+    }
+}
+
 /// Writes `raw` (`m` rows of `n_chan` samples) into `data` as `into` lays it out.
-pub(super) fn transpose_in(raw: &[f32], n_chan: usize, data: &mut [f32], into: Columns) {
+pub(super) fn transpose_in<T: Widen>(raw: &[T], n_chan: usize, data: &mut [f32], into: Columns) {
     #[cfg(target_arch = "x86_64")]
     let avx2 = crate::isa::Isa::cpu_has(crate::isa::IsaLevel::Avx2);
     #[cfg(not(target_arch = "x86_64"))]
@@ -37,7 +86,7 @@ pub(super) fn transpose_in(raw: &[f32], n_chan: usize, data: &mut [f32], into: C
 
 /// [`transpose_in`], through the AVX2 tiles when `avx2` (the caller has detected the
 /// instruction set) and the plain ones otherwise.
-fn transpose_with(raw: &[f32], n_chan: usize, data: &mut [f32], into: Columns, avx2: bool) {
+fn transpose_with<T: Widen>(raw: &[T], n_chan: usize, data: &mut [f32], into: Columns, avx2: bool) {
     if n_chan == 0 || raw.is_empty() || into.capacity == 0 {
         return;
     }
@@ -67,8 +116,8 @@ fn transpose_with(raw: &[f32], n_chan: usize, data: &mut [f32], into: Columns, a
 }
 
 /// One channel group's share of the transpose.
-struct Tile<'a> {
-    raw: &'a [f32],
+struct Tile<'a, T> {
+    raw: &'a [T],
     n_chan: usize,
     /// The group's first channel, and its channel count.
     c0: usize,
@@ -76,7 +125,7 @@ struct Tile<'a> {
     into: Columns,
 }
 
-impl Tile<'_> {
+impl<T: Widen> Tile<'_, T> {
     /// Copies samples `times` of the group's channels `channels`, one at a time.
     fn copy_plain(
         &self,
@@ -88,7 +137,7 @@ impl Tile<'_> {
         for k in channels {
             let row = &mut group[k * capacity + offset..][times.clone()];
             for (out, t) in row.iter_mut().zip(times.clone()) {
-                *out = self.raw[t * self.n_chan + self.c0 + k];
+                *out = self.raw[t * self.n_chan + self.c0 + k].into();
             }
         }
     }
@@ -114,23 +163,24 @@ impl Tile<'_> {
 }
 
 /// Transposes the 8 × 8 block whose row i is `src[i·src_stride..][..8]` into
-/// `dst[j·dst_stride..][..8]` (row j of the result is column j of the block).
+/// `dst[j·dst_stride..][..8]` (row j of the result is column j of the block),
+/// widening the samples to f32 as they are loaded.
 ///
 /// # Panics
 /// If either slice is too short for its eight rows.
 #[cfg(target_arch = "x86_64")]
 #[inline]
 #[target_feature(enable = "avx2")]
-fn block8(src: &[f32], src_stride: usize, dst: &mut [f32], dst_stride: usize) {
+fn block8<T: Widen>(src: &[T], src_stride: usize, dst: &mut [f32], dst_stride: usize) {
     use std::arch::x86_64::{
-        __m256, _mm256_loadu_ps, _mm256_permute2f128_ps, _mm256_shuffle_ps, _mm256_storeu_ps,
-        _mm256_unpackhi_ps, _mm256_unpacklo_ps,
+        _mm256_permute2f128_ps, _mm256_shuffle_ps, _mm256_storeu_ps, _mm256_unpackhi_ps,
+        _mm256_unpacklo_ps,
     };
     assert!(src.len() >= 7 * src_stride + 8 && dst.len() >= 7 * dst_stride + 8);
     // SAFETY: by the assertion, row i's eight values `i·src_stride..i·src_stride + 8`
-    // (i < 8) lie inside `src`.
+    // (i < 8) lie inside `src`, and this function runs only where AVX2 is enabled.
     let r: [__m256; 8] =
-        std::array::from_fn(|i| unsafe { _mm256_loadu_ps(src.as_ptr().add(i * src_stride)) });
+        std::array::from_fn(|i| unsafe { T::load8(src.as_ptr().add(i * src_stride)) });
     // Interleave pairs of rows, then pairs of pairs: lanes hold 4 × 4 sub-blocks.
     let lo = |a, b| _mm256_unpacklo_ps(a, b);
     let hi = |a, b| _mm256_unpackhi_ps(a, b);
@@ -170,15 +220,15 @@ fn block8(src: &[f32], src_stride: usize, dst: &mut [f32], dst_stride: usize) {
 mod tests {
     use super::*;
     use rand::{Rng, SeedableRng};
+    use rand_chacha::ChaCha8Rng;
 
-    /// Both paths against plain indexing on random values, with channel and time
-    /// counts that are not multiples of the tiles or blocks, behind kept samples
-    /// that must stay untouched.
-    #[test]
-    fn both_paths_equal_plain_indexing() {
-        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(21);
+    /// Both paths against plain indexing on random samples of type `T`, with channel
+    /// and time counts that are not multiples of the tiles or blocks, behind kept
+    /// samples that must stay untouched.
+    fn both_paths_equal_plain_indexing<T: Widen>(seed: u64, draw: impl Fn(&mut ChaCha8Rng) -> T) {
+        let mut rng = ChaCha8Rng::seed_from_u64(seed);
         for &(n_chan, m, offset) in &[(141, 53, 7), (8, 16, 0), (5, 3, 2), (256, 40, 1)] {
-            let raw: Vec<f32> = (0..m * n_chan).map(|_| rng.random::<f32>()).collect();
+            let raw: Vec<T> = (0..m * n_chan).map(|_| draw(&mut rng)).collect();
             let capacity = offset + m + 2;
             let into = Columns { capacity, offset };
             #[cfg(target_arch = "x86_64")]
@@ -192,11 +242,23 @@ mod tests {
                     let row = &data[c * capacity..][..capacity];
                     assert!(row[..offset].iter().all(|&v| v == 0.0), "kept untouched");
                     for t in 0..m {
-                        assert_eq!(row[offset + t], raw[t * n_chan + c], "{n_chan} {c} {t}");
+                        let expected: f32 = raw[t * n_chan + c].into();
+                        assert_eq!(row[offset + t], expected, "{avx2} {n_chan} {c} {t}");
                     }
                     assert!(row[offset + m..].iter().all(|&v| v == 0.0), "nothing past");
                 }
             }
         }
+    }
+
+    #[test]
+    fn f32_reads_land_in_place_on_both_paths() {
+        both_paths_equal_plain_indexing(21, |rng| rng.random::<f32>());
+    }
+
+    /// Random bytes widen to themselves on both paths.
+    #[test]
+    fn byte_reads_are_widened_in_place_on_both_paths() {
+        both_paths_equal_plain_indexing(22, |rng| rng.random::<u8>());
     }
 }

@@ -367,6 +367,14 @@ fn header_from_primary(p: &Cards) -> Result<Header, String> {
     })
 }
 
+/// No byte reads ([`SampleSource::byte_rows`] stays `None`), even for 8-bit data: a
+/// sample's value is its stored integer times a scale plus an offset, both per
+/// channel and per `SUBINT` row (`DAT_SCL`, `DAT_OFFS`, `ZERO_OFF`; a zero `DAT_WTS`
+/// zeroes a channel), and two polarisations may be summed. Our own writer stores
+/// those columns in every row, so whether a file's bytes are its values could only
+/// be known by reading every row first, and a byte read that carried each row's
+/// scales into the transpose would be a second decoder to keep in step with
+/// [`FitsReader::read_row_into`]: such files take the f32 path.
 impl SampleSource for FitsReader {
     fn header(&self) -> &Header {
         &self.header
