@@ -298,6 +298,20 @@ fn impossible_injections_are_one_line_refusals() {
             &["--count", "5"],
             &[masked, "every channel is masked"],
         ),
+        (
+            quiet,
+            &["--memory-limit-gib", "-1"],
+            &["memory limit must be positive, got -1 GiB"],
+        ),
+        (
+            quiet,
+            &["--count", "5", "--memory-limit-gib", "1e-6"],
+            &[
+                quiet,
+                "the search would need about",
+                "more than the limit of",
+            ],
+        ),
     ] {
         let mut args = vec!["inject", file, "--no-catalogue", "--config"];
         args.extend([toml.to_str().unwrap(), "--out", out.to_str().unwrap()]);

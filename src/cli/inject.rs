@@ -64,6 +64,10 @@ pub struct Args {
     /// Count recovered bursts that triage calls interference as found.
     #[arg(long)]
     pub count_rfi: bool,
+    /// Memory the searches may use together, in GiB [default: 90 % of physical
+    /// memory]: passes run side by side only as far as it holds them.
+    #[arg(long, value_name = "GIB")]
+    pub memory_limit_gib: Option<f64>,
     /// Catalogue file [default: $BURSTBOOK_CATALOGUE, else ./burstbook.sqlite].
     #[arg(long, value_name = "PATH")]
     pub catalogue: Option<PathBuf>,
@@ -82,10 +86,11 @@ fn parse_pair(s: &str) -> Result<[f64; 2], String> {
 }
 
 pub fn run(args: Args) -> anyhow::Result<()> {
-    let config = match &args.config {
+    let mut config = match &args.config {
         Some(p) => SearchConfig::from_toml_file(p)?,
         None => SearchConfig::default(),
     };
+    config.memory_limit_gib = args.memory_limit_gib;
     let brightness = match (args.snr, args.fluence_jy_ms) {
         (_, Some(f)) => Brightness::FluenceJyMs(f),
         (Some(s), None) => Brightness::Snr(s),

@@ -15,7 +15,7 @@ use super::summary::{Summary, summarise};
 use crate::candidate::{Candidate, Verdict};
 use crate::error::{Error, Result};
 use crate::obs::{Header, SampleSource};
-use crate::search::{SearchConfig, search_source};
+use crate::search::{SearchConfig, memory, search_source};
 use crate::simulate::Burst;
 use crate::units::delay_to_infinity_s;
 
@@ -201,41 +201,56 @@ where
     }
 
     let matcher = Matcher::new(&untouched.plan, &header);
-    let per_pass: Vec<Vec<InjectionRow>> = (0..n_passes)
-        .into_par_iter()
-        .map(|pass| {
-            let mine: Vec<_> = placed.iter().filter(|p| p.pass == pass).collect();
-            let pass_bursts: Vec<Burst> = mine.iter().map(|p| p.burst).collect();
-            let source = InjectingSource::new(open()?, &pass_bursts, sigma.clone());
-            let result = search_source(Box::new(source), label, config, None)?;
-            let targets: Vec<Target> = mine
-                .iter()
-                .map(|p| Target {
-                    burst: p.burst,
-                    width_s: drawn[p.index].ideal_width_samples as f64 * header.tsamp_s,
-                })
-                .collect();
-            let hits = matcher.recover(&targets, &result.candidates, &untouched.candidates);
-            if let Some(pb) = progress {
-                pb.inc(1);
-            }
-            Ok(mine
-                .iter()
-                .zip(hits)
-                .map(|(p, hit)| {
-                    row(
-                        p.index,
-                        pass,
-                        &p.burst,
-                        &drawn[p.index],
-                        &header,
-                        hit,
-                        options,
-                    )
-                })
-                .collect())
-        })
-        .collect::<Result<_>>()?;
+    // Passes run side by side (their serial parts then overlap), but only as many as
+    // the memory limit holds: each search checks its own need against the limit, not
+    // its neighbours'. The untouched search read f32 too, so its layout and plan are
+    // each pass's.
+    let need = memory::estimate_bytes(layout, &untouched.plan, header.n_chan(), size_of::<f32>());
+    let side_by_side = concurrent_passes(
+        need,
+        memory::limit_bytes(config.memory_limit_gib),
+        rayon::current_num_threads(),
+    );
+    let passes: Vec<usize> = (0..n_passes).collect();
+    let mut per_pass: Vec<Vec<InjectionRow>> = Vec::with_capacity(n_passes);
+    for group in passes.chunks(side_by_side) {
+        let rows: Vec<Vec<InjectionRow>> = group
+            .par_iter()
+            .map(|&pass| {
+                let mine: Vec<_> = placed.iter().filter(|p| p.pass == pass).collect();
+                let pass_bursts: Vec<Burst> = mine.iter().map(|p| p.burst).collect();
+                let source = InjectingSource::new(open()?, &pass_bursts, sigma.clone());
+                let result = search_source(Box::new(source), label, config, None)?;
+                let targets: Vec<Target> = mine
+                    .iter()
+                    .map(|p| Target {
+                        burst: p.burst,
+                        width_s: drawn[p.index].ideal_width_samples as f64 * header.tsamp_s,
+                    })
+                    .collect();
+                let hits = matcher.recover(&targets, &result.candidates, &untouched.candidates);
+                if let Some(pb) = progress {
+                    pb.inc(1);
+                }
+                Ok(mine
+                    .iter()
+                    .zip(hits)
+                    .map(|(p, hit)| {
+                        row(
+                            p.index,
+                            pass,
+                            &p.burst,
+                            &drawn[p.index],
+                            &header,
+                            hit,
+                            options,
+                        )
+                    })
+                    .collect())
+            })
+            .collect::<Result<_>>()?;
+        per_pass.extend(rows);
+    }
     let mut rows: Vec<InjectionRow> = per_pass.into_iter().flatten().collect();
     rows.sort_by_key(|r| r.index);
     let summary = summarise(&rows, header.sefd_jy.is_some(), options.bright_snr);
@@ -250,6 +265,14 @@ where
         rows,
         summary,
     })
+}
+
+/// How many searches of `need_bytes` each may run at once within `limit_bytes`
+/// (`None`: no limit) on `threads` threads: at least one (a single search that does
+/// not fit is refused by the search itself), at most one per thread.
+fn concurrent_passes(need_bytes: f64, limit_bytes: Option<f64>, threads: usize) -> usize {
+    let fit = limit_bytes.map_or(usize::MAX, |limit| (limit / need_bytes).floor() as usize);
+    fit.min(threads).max(1)
 }
 
 /// [`inject_source`] on a file any reader of [`crate::obs::open`] understands.
@@ -312,5 +335,24 @@ fn row(
         reported_dm: hit.map(|c| c.dm),
         reported_t_inf_s: hit.map(|c| c.t_inf_s),
         reported_width_ms: hit.map(|c| c.width_ms),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn passes_run_side_by_side_only_as_memory_allows() {
+        const GIB: f64 = (1u64 << 30) as f64;
+        // Two threads, plenty of memory: one pass per thread.
+        assert_eq!(concurrent_passes(2.2 * GIB, Some(21.6 * GIB), 2), 2);
+        assert_eq!(concurrent_passes(2.2 * GIB, None, 8), 8);
+        // Room for one search but not two: one at a time.
+        assert_eq!(concurrent_passes(2.2 * GIB, Some(3.0 * GIB), 2), 1);
+        // Room for three of eight threads.
+        assert_eq!(concurrent_passes(1.0 * GIB, Some(3.5 * GIB), 8), 3);
+        // Not even one fits: still one (the search itself refuses it).
+        assert_eq!(concurrent_passes(4.0 * GIB, Some(3.0 * GIB), 2), 1);
     }
 }

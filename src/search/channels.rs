@@ -130,9 +130,8 @@ impl ChannelBlock {
 
     /// Keeps the last `keep` rows of the block, drops the rest, and appends `raw`
     /// (`[time, channel]`, f32 or bytes, read from file row `start_sample`): its
-    /// channels are
-    /// flagged starting from `static_mask`, then normalised (`baseline_len` running
-    /// baseline) and cleaned as `config` asks. Rows of dropped data
+    /// channels are flagged starting from `static_mask`, then normalised
+    /// (`baseline_len` running baseline) and cleaned as `config` asks. Rows of dropped data
     /// ([`clean::dropout`]) are left out of the flagging and normalisation, filled
     /// with noise and counted as masked.
     ///
