@@ -10,7 +10,7 @@ use std::path::{Path, PathBuf};
 use burstbook::catalogue::{Catalogue, content_hash};
 use burstbook::inject::{self, Brightness, InjectOptions, InjectionRanges, output};
 use burstbook::obs::{self, Container};
-use burstbook::search::SearchConfig;
+use burstbook::search::{self, SearchConfig, memory};
 use burstbook::simulate::{Scenario, Simulation, write_observation};
 use statrs::distribution::{ContinuousCDF, Normal};
 
@@ -22,12 +22,24 @@ fn noise_observation(dir: &Path, length_s: f64) -> PathBuf {
 
 /// [`noise_observation`] named `name`, with `band_extra` added to its `[band]` table.
 fn observation(dir: &Path, name: &str, length_s: f64, band_extra: &str) -> PathBuf {
+    let noise = "nbits = 32\nmean = 10.0\nsigma = 2.0";
+    observation_with_noise(dir, name, length_s, band_extra, noise)
+}
+
+/// [`observation`] with `noise` as its `[noise]` table's bits, mean and σ.
+fn observation_with_noise(
+    dir: &Path,
+    name: &str,
+    length_s: f64,
+    band_extra: &str,
+    noise: &str,
+) -> PathBuf {
     let text = format!(
         "[observation]\nsource = \"Quiet Field\"\ntelescope = \"Paper Dish\"\nra_deg = 50.0\n\
          dec_deg = 10.0\nstart_mjd = 61200.25\nlength_s = {length_s}\ntsamp_s = 512e-6\n\
          [site]\nname = \"Paper Dish\"\nlon_deg = 5.0\nlat_deg = 40.0\nheight_m = 300.0\n\
          [band]\nfirst_chan_mhz = 1587.5\nchan_step_mhz = -25.0\nn_chan = 16\n{band_extra}\n\
-         [noise]\nnbits = 32\nmean = 10.0\nsigma = 2.0\nsefd_jy = 30.0\n"
+         [noise]\n{noise}\nsefd_jy = 30.0\n"
     );
     let sim = Simulation::new(&Scenario::parse(&text).unwrap(), 21).unwrap();
     let path = dir.join(name);
@@ -252,6 +264,40 @@ fn command_writes_outputs_and_records_in_the_catalogue() {
         err.contains("nowhere.json") && err.lines().count() <= 2,
         "{err}"
     );
+}
+
+/// 8-bit data is searched as its stored bytes (a quarter of the memory of f32 reads),
+/// but injection adds bursts to decoded rows, so its passes read f32. The untouched
+/// search reads as the passes do: a memory limit that a byte read fits and an f32
+/// read does not refuses the run before any search (the progress bar has counted
+/// none), not after the untouched search of the whole file.
+#[test]
+fn memory_limit_for_eight_bit_data_is_checked_at_the_passes_reads_first() {
+    const GIB: f64 = (1u64 << 30) as f64;
+    let dir = tempfile::tempdir().unwrap();
+    let noise = "nbits = 8\nmean = 96.0\nsigma = 12.0";
+    let path = observation_with_noise(dir.path(), "bytes.json", 12.0, "", noise);
+    let mut config = config(7.0);
+    let plain = search::search_file(&path, &config, None).unwrap();
+    let n_chan = plain.header.n_chan();
+    let as_bytes = memory::estimate_bytes(&plain.layout, &plain.plan, n_chan, 1);
+    let as_f32 = memory::estimate_bytes(&plain.layout, &plain.plan, n_chan, 4);
+    assert!(as_bytes < as_f32);
+    config.memory_limit_gib = Some(0.5 * (as_bytes + as_f32) / GIB);
+    search::search_file(&path, &config, None).expect("a byte read fits the limit");
+
+    let options = InjectOptions {
+        count: 4,
+        ranges: InjectionRanges {
+            dm: [5.0, 45.0],
+            ..InjectionRanges::default()
+        },
+        ..InjectOptions::default()
+    };
+    let searches = indicatif::ProgressBar::hidden();
+    let err = inject::inject_file(&path, &config, &options, Some(&searches)).unwrap_err();
+    assert!(err.to_string().contains("GiB of memory"), "{err}");
+    assert_eq!(searches.position(), 0);
 }
 
 /// Settings that cannot give a completeness measurement are refused in one line

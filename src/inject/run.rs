@@ -169,7 +169,13 @@ where
         ));
     }
     options.ranges.validate(&header)?;
-    let untouched = search_source(first, label, config, None)?;
+    // The untouched search reads through the same wrapper as the passes (with no
+    // bursts, so its rows are the file's): a file the search could read as bytes is
+    // then read as f32 by every search, and a memory limit that only a byte read
+    // fits refuses the run here rather than after the untouched search.
+    let n_chan = header.n_chan();
+    let plain = InjectingSource::new(first, &[], vec![0.0; n_chan]);
+    let untouched = search_source(Box::new(plain), label, config, None)?;
     if let Some(pb) = progress {
         pb.inc(1);
     }
@@ -201,11 +207,11 @@ where
     }
 
     let matcher = Matcher::new(&untouched.plan, &header);
-    // Passes run side by side (their serial parts then overlap), but only as many as
-    // the memory limit holds: each search checks its own need against the limit, not
-    // its neighbours'. The untouched search read f32 too, so its layout and plan are
-    // each pass's.
-    let need = memory::estimate_bytes(layout, &untouched.plan, header.n_chan(), size_of::<f32>());
+    // Passes run side by side on machines with threads to spare (their serial parts
+    // then overlap), but only as many as the memory limit holds: each search checks
+    // its own need against the limit, not its neighbours'. The untouched search read
+    // f32 too, so its layout and plan are each pass's.
+    let need = memory::estimate_bytes(layout, &untouched.plan, n_chan, size_of::<f32>());
     let side_by_side = concurrent_passes(
         need,
         memory::limit_bytes(config.memory_limit_gib),
@@ -267,12 +273,19 @@ where
     })
 }
 
+/// Threads one pass is given before another runs beside it. A search keeps about two
+/// threads busy (1.85 CPU seconds a second on two cores), and two passes side by side
+/// on two threads were slower than one after the other: 48–57 s against 40–48 s wall
+/// for 30 bursts on the reference survey band, with 3–5× the system time, as the two
+/// searches' fresh buffers faulted in together (docs/inject.md).
+const THREADS_PER_PASS: usize = 2;
+
 /// How many searches of `need_bytes` each may run at once within `limit_bytes`
 /// (`None`: no limit) on `threads` threads: at least one (a single search that does
-/// not fit is refused by the search itself), at most one per thread.
+/// not fit is refused by the search itself), at most one per [`THREADS_PER_PASS`].
 fn concurrent_passes(need_bytes: f64, limit_bytes: Option<f64>, threads: usize) -> usize {
     let fit = limit_bytes.map_or(usize::MAX, |limit| (limit / need_bytes).floor() as usize);
-    fit.min(threads).max(1)
+    fit.min(threads / THREADS_PER_PASS).max(1)
 }
 
 /// [`inject_source`] on a file any reader of [`crate::obs::open`] understands.
@@ -345,12 +358,14 @@ mod tests {
     #[test]
     fn passes_run_side_by_side_only_as_memory_allows() {
         const GIB: f64 = (1u64 << 30) as f64;
-        // Two threads, plenty of memory: one pass per thread.
-        assert_eq!(concurrent_passes(2.2 * GIB, Some(21.6 * GIB), 2), 2);
-        assert_eq!(concurrent_passes(2.2 * GIB, None, 8), 8);
+        // Two threads, plenty of memory: one pass at a time.
+        assert_eq!(concurrent_passes(2.2 * GIB, Some(21.6 * GIB), 2), 1);
+        assert_eq!(concurrent_passes(2.2 * GIB, None, 1), 1);
+        // Eight threads, no limit: one pass per two threads.
+        assert_eq!(concurrent_passes(2.2 * GIB, None, 8), 4);
         // Room for one search but not two: one at a time.
-        assert_eq!(concurrent_passes(2.2 * GIB, Some(3.0 * GIB), 2), 1);
-        // Room for three of eight threads.
+        assert_eq!(concurrent_passes(2.2 * GIB, Some(3.0 * GIB), 4), 1);
+        // Room for three searches of eight threads' four.
         assert_eq!(concurrent_passes(1.0 * GIB, Some(3.5 * GIB), 8), 3);
         // Not even one fits: still one (the search itself refuses it).
         assert_eq!(concurrent_passes(4.0 * GIB, Some(3.0 * GIB), 2), 1);
