@@ -188,6 +188,20 @@ pub struct ActivityResult {
     pub periodogram: ActivityPeriodogram,
 }
 
+impl ActivityResult {
+    /// The Monte Carlo FAP of the best period in words, as the terminal and the report
+    /// give it: without simulations there is none (`fap` is NaN), and it says so.
+    pub fn fap_text(&self) -> String {
+        match self.config.sims {
+            0 => "Monte Carlo FAP not computed (no simulations)".into(),
+            sets => format!(
+                "Monte Carlo FAP {:.4} ({sets} sets, real exposure)",
+                self.fap
+            ),
+        }
+    }
+}
+
 /// Per-trial exposure folds, reused by every Monte Carlo set.
 struct TrialGrid<'a> {
     sessions: &'a [(f64, f64)],

@@ -53,7 +53,7 @@ pub fn activity_figures(
             r.period_err_days,
             r.epoch_mjd,
             r.fold.chi2,
-            monte_carlo_fap(r)
+            r.fap_text()
         ),
     )?;
     let timeline = timeline_figure(sessions_mjd, bursts_mjd, &active_windows(r, sessions_mjd))?;
@@ -72,7 +72,7 @@ pub fn activity_figures(
             format!(
                 "Activity periodogram: best {:.4} d ({}{scan_best})",
                 r.period_days,
-                monte_carlo_fap(r)
+                r.fap_text()
             ),
             periodogram,
         ),
@@ -85,16 +85,6 @@ pub fn activity_figures(
             timeline,
         ),
     ])
-}
-
-/// The Monte Carlo FAP of the best period as the figures give it. Without simulations
-/// the search has none (its `fap` is NaN): "not computed", as `period activity --sims 0`
-/// says, not "NaN".
-fn monte_carlo_fap(r: &ActivityResult) -> String {
-    match r.config.sims {
-        0 => "Monte Carlo FAP not computed (no simulations)".into(),
-        sets => format!("Monte Carlo FAP {:.4} ({sets} sets, real exposure)", r.fap),
-    }
 }
 
 /// χ² values with the [`LEVELS_P`] upper-tail probabilities for `dof` degrees of freedom.
@@ -196,7 +186,7 @@ mod tests {
     fn without_simulations_the_fap_is_not_computed() {
         let (r, sessions_mjd, bursts_mjd) = sixteen_day_cycle(0);
         assert!(r.fap.is_nan());
-        let fap = monte_carlo_fap(&r);
+        let fap = r.fap_text();
         assert_eq!(fap, "Monte Carlo FAP not computed (no simulations)");
         let figs = activity_figures(&r, &sessions_mjd, &bursts_mjd).unwrap();
         assert!(figs[0].0.contains(&fap), "{}", figs[0].0);

@@ -104,18 +104,10 @@ fn print_activity(r: &ActivityResult) -> std::io::Result<()> {
         r.epoch_mjd
     )?;
     // No Monte Carlo sets, no false-alarm probabilities (the library gives NaN).
-    let (fap, window_fap) = match r.config.sims {
-        0 => (
-            "Monte Carlo FAP not computed (--sims 0)".to_string(),
-            "window FAP not computed".to_string(),
-        ),
-        sets => (
-            format!(
-                "Monte Carlo FAP = {:.4} ({sets} sets, real exposure)",
-                r.fap
-            ),
-            format!("window FAP = {:.4}", r.window_fap),
-        ),
+    let fap = r.fap_text();
+    let window_fap = match r.config.sims {
+        0 => "window FAP not computed".to_string(),
+        _ => format!("window FAP = {:.4}", r.window_fap),
     };
     print_harmonic_check(r)?;
     say!(
