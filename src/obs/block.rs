@@ -41,10 +41,24 @@ impl Block {
 /// are the bytes themselves ([`SampleSource::byte_rows`]), or `f32`, decoded values
 /// ([`SampleSource::read_rows`]). What reads the rows (the search's cleaning and
 /// transpose) is generic over it, so both kinds of read share one implementation.
-pub trait Sample: Copy + Default + Send + Sync + Into<f32> + 'static {}
+pub trait Sample: Copy + Default + Send + Sync + Into<f32> + 'static {
+    /// Adds each channel's Σx to `s1` and Σx² to `s2` over the rows of `raw`
+    /// (`[time, channel]`): the channel statistics' pass over every read, chosen by
+    /// type because bytes sum exactly, and faster, in integers.
+    fn add_power_sums(raw: ArrayView2<'_, Self>, s1: &mut [f64], s2: &mut [f64]);
+}
 
-impl Sample for u8 {}
-impl Sample for f32 {}
+impl Sample for u8 {
+    fn add_power_sums(raw: ArrayView2<'_, Self>, s1: &mut [f64], s2: &mut [f64]) {
+        crate::clean::channel_stats::byte_power_sums(raw, s1, s2);
+    }
+}
+
+impl Sample for f32 {
+    fn add_power_sums(raw: ArrayView2<'_, Self>, s1: &mut [f64], s2: &mut [f64]) {
+        crate::clean::channel_stats::float_power_sums(raw, s1, s2);
+    }
+}
 
 /// A source whose samples are stored as single unsigned bytes, read without decoding.
 pub trait ByteRows {
