@@ -107,7 +107,7 @@ fn print_activity(r: &ActivityResult) -> std::io::Result<()> {
     let fap = r.fap_text();
     let window_fap = match r.config.sims {
         0 => "window FAP not computed".to_string(),
-        _ => format!("window FAP = {:.4}", r.window_fap),
+        _ => format!("window FAP {:.4}", r.window_fap),
     };
     print_harmonic_check(r)?;
     say!(
