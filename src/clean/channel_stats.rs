@@ -45,31 +45,28 @@ impl ChannelStats {
 
 /// Adds each channel's Σx to `s1` and Σx² to `s2` over the rows of `raw`
 /// (`[time, channel]`): in integers for bytes, in f64 otherwise
-/// ([`Sample::add_power_sums`]).
+/// ([`Sample::add_power_sums`]); compiled for AVX2 when the CPU has it.
 pub fn add_power_sums<T: Sample>(raw: ArrayView2<'_, T>, s1: &mut [f64], s2: &mut [f64]) {
+    #[cfg(target_arch = "x86_64")]
+    if crate::isa::Isa::cpu_has(crate::isa::IsaLevel::Avx2) {
+        // SAFETY: `add_power_sums_avx2` only requires the AVX2 instruction set, which
+        // `crate::isa` detected on this CPU; it is otherwise safe code.
+        return unsafe { add_power_sums_avx2(raw, s1, s2) };
+    }
     T::add_power_sums(raw, s1, s2);
 }
 
-/// [`add_power_sums`] in f64 for any sample type (the plain version the byte sums
-/// are tested against); compiled for AVX2 when the CPU has it.
-pub(crate) fn float_power_sums<T: Sample>(raw: ArrayView2<'_, T>, s1: &mut [f64], s2: &mut [f64]) {
-    #[cfg(target_arch = "x86_64")]
-    if crate::isa::Isa::cpu_has(crate::isa::IsaLevel::Avx2) {
-        // SAFETY: `float_power_sums_avx2` only requires the AVX2 instruction set, which
-        // `crate::isa` detected on this CPU; it is otherwise safe code.
-        return unsafe { float_power_sums_avx2(raw, s1, s2) };
-    }
-    float_power_sums_body(raw, s1, s2);
-}
-
+/// [`add_power_sums`] built for AVX2: the sample type's sums are inlined into it.
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "avx2")]
-fn float_power_sums_avx2<T: Sample>(raw: ArrayView2<'_, T>, s1: &mut [f64], s2: &mut [f64]) {
-    float_power_sums_body(raw, s1, s2);
+fn add_power_sums_avx2<T: Sample>(raw: ArrayView2<'_, T>, s1: &mut [f64], s2: &mut [f64]) {
+    T::add_power_sums(raw, s1, s2);
 }
 
+/// The plain sums in f64 for any sample type: what f32 reads use, and what the byte
+/// sums are tested against.
 #[inline(always)]
-fn float_power_sums_body<T: Sample>(raw: ArrayView2<'_, T>, s1: &mut [f64], s2: &mut [f64]) {
+pub(crate) fn float_power_sums<T: Sample>(raw: ArrayView2<'_, T>, s1: &mut [f64], s2: &mut [f64]) {
     let raw = raw.as_standard_layout();
     for row in standard_rows(&raw.view()) {
         for ((a, b), &v) in s1.iter_mut().zip(s2.iter_mut()).zip(row) {
@@ -95,25 +92,9 @@ const BYTE_ROWS_PER_U32_SUM: usize = 65_536;
 /// [`add_power_sums`] for bytes: exact sums in u32 (squares in u16, 255² < 2¹⁶), over
 /// at most [`BYTE_ROWS_PER_U32_SUM`] rows at a time, then added in f64 — equal to the
 /// f64 sums, which are exact for integers this small, at about a third of their
-/// cost (docs/benchmarks.md); compiled for AVX2 when the CPU has it.
-pub(crate) fn byte_power_sums(raw: ArrayView2<'_, u8>, s1: &mut [f64], s2: &mut [f64]) {
-    #[cfg(target_arch = "x86_64")]
-    if crate::isa::Isa::cpu_has(crate::isa::IsaLevel::Avx2) {
-        // SAFETY: `byte_power_sums_avx2` only requires the AVX2 instruction set, which
-        // `crate::isa` detected on this CPU; it is otherwise safe code.
-        return unsafe { byte_power_sums_avx2(raw, s1, s2) };
-    }
-    byte_power_sums_body(raw, s1, s2);
-}
-
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx2")]
-fn byte_power_sums_avx2(raw: ArrayView2<'_, u8>, s1: &mut [f64], s2: &mut [f64]) {
-    byte_power_sums_body(raw, s1, s2);
-}
-
+/// cost (docs/benchmarks.md).
 #[inline(always)]
-fn byte_power_sums_body(raw: ArrayView2<'_, u8>, s1: &mut [f64], s2: &mut [f64]) {
+pub(crate) fn byte_power_sums(raw: ArrayView2<'_, u8>, s1: &mut [f64], s2: &mut [f64]) {
     let n_chan = s1.len();
     let (mut sum, mut sum_sq) = (vec![0u32; n_chan], vec![0u32; n_chan]);
     let raw = raw.as_standard_layout();
@@ -237,7 +218,7 @@ mod tests {
         let strided = bytes.slice(ndarray::s![..;3, ..]);
         for raw in [bytes.view(), strided, bytes.slice(ndarray::s![..700, ..])] {
             let (mut plain1, mut plain2) = (vec![0.5; n_chan], vec![0.25; n_chan]);
-            float_power_sums_body(raw, &mut plain1, &mut plain2);
+            float_power_sums(raw, &mut plain1, &mut plain2);
             let (mut int1, mut int2) = (vec![0.5; n_chan], vec![0.25; n_chan]);
             add_power_sums(raw, &mut int1, &mut int2);
             assert_eq!((&int1, &int2), (&plain1, &plain2));
@@ -254,7 +235,7 @@ mod tests {
         let normal = Normal::new(3.0f32, 2.0).unwrap();
         let floats = Array2::from_shape_fn((3000, n_chan), |_| normal.sample(&mut rng));
         let (mut plain1, mut plain2) = (vec![0.0; n_chan], vec![0.0; n_chan]);
-        float_power_sums_body(floats.view(), &mut plain1, &mut plain2);
+        float_power_sums(floats.view(), &mut plain1, &mut plain2);
         let (mut fast1, mut fast2) = (vec![0.0; n_chan], vec![0.0; n_chan]);
         add_power_sums(floats.view(), &mut fast1, &mut fast2);
         assert_eq!((fast1, fast2), (plain1, plain2));

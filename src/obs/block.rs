@@ -43,18 +43,22 @@ impl Block {
 /// transpose) is generic over it, so both kinds of read share one implementation.
 pub trait Sample: Copy + Default + Send + Sync + Into<f32> + 'static {
     /// Adds each channel's Σx to `s1` and Σx² to `s2` over the rows of `raw`
-    /// (`[time, channel]`): the channel statistics' pass over every read, chosen by
-    /// type because bytes sum exactly, and faster, in integers.
+    /// (`[time, channel]`), in the build's baseline instruction set: the channel
+    /// statistics' pass over every read, chosen by type because bytes sum exactly,
+    /// and faster, in integers. Call `clean::channel_stats::add_power_sums`, which
+    /// runs it in AVX2 where the CPU has it.
     fn add_power_sums(raw: ArrayView2<'_, Self>, s1: &mut [f64], s2: &mut [f64]);
 }
 
 impl Sample for u8 {
+    #[inline(always)]
     fn add_power_sums(raw: ArrayView2<'_, Self>, s1: &mut [f64], s2: &mut [f64]) {
         crate::clean::channel_stats::byte_power_sums(raw, s1, s2);
     }
 }
 
 impl Sample for f32 {
+    #[inline(always)]
     fn add_power_sums(raw: ArrayView2<'_, Self>, s1: &mut [f64], s2: &mut [f64]) {
         crate::clean::channel_stats::float_power_sums(raw, s1, s2);
     }
