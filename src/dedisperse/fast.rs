@@ -672,39 +672,66 @@ fn sum_and_store_rows(
     bf16::encode(acc, out);
 }
 
-/// The sums of [`sum_and_store`]: four rows per pass over `acc`, the first
-/// pass writing it (16 rows take four passes, not a copy and six more).
+/// The sums of [`sum_and_store`]: eight rows per pass over `acc`, the first pass
+/// writing it, then four, then one at a time (16 rows take two passes, not a copy and
+/// fifteen more; eight a pass were about 5 % faster on the kernel than four,
+/// docs/benchmarks.md). Rows are added pairwise in a fixed order, so every
+/// instruction set gives the same sums.
 #[inline(always)]
 fn accumulate_rows(acc: &mut [f32], stage1: &[Bf16], starts: impl Iterator<Item = usize>) {
     let n = acc.len();
     let mut rows = starts.map(|s| &stage1[s..s + n]);
+    let f = |&x: &Bf16| from_bf16(x);
     let mut first = true;
     loop {
-        match (rows.next(), rows.next(), rows.next(), rows.next()) {
-            (Some(a), Some(b), Some(c), Some(d)) => {
-                let quads = acc.iter_mut().zip(a).zip(b).zip(c).zip(d);
-                let f = |&x: &Bf16| from_bf16(x);
-                if first {
-                    quads.for_each(|((((o, a), b), c), d)| *o = (f(a) + f(b)) + (f(c) + f(d)));
-                } else {
-                    quads.for_each(|((((o, a), b), c), d)| *o += (f(a) + f(b)) + (f(c) + f(d)));
-                }
-            }
-            (a, b, c, _) => {
-                let mut tail = [a, b, c].into_iter().flatten();
-                match tail.next() {
-                    Some(r) if first => acc.iter_mut().zip(r).for_each(|(o, &x)| *o = from_bf16(x)),
-                    Some(r) => acc.iter_mut().zip(r).for_each(|(o, &x)| *o += from_bf16(x)),
-                    None if first => acc.fill(0.0),
-                    None => {}
-                }
-                for r in tail {
-                    acc.iter_mut().zip(r).for_each(|(o, &x)| *o += from_bf16(x));
-                }
-                return;
-            }
+        let mut group: [&[Bf16]; 8] = [&[]; 8];
+        let mut k = 0;
+        while let Some(row) = (k < group.len()).then(|| rows.next()).flatten() {
+            group[k] = row;
+            k += 1;
         }
-        first = false;
+        if let [a, b, c, d, e, g, h, i] = group
+            && k == group.len()
+        {
+            let eights = acc
+                .iter_mut()
+                .zip(a.iter().zip(b))
+                .zip(c.iter().zip(d))
+                .zip(e.iter().zip(g))
+                .zip(h.iter().zip(i));
+            let sum = |((a, b), (c, d)), ((e, g), (h, i))| {
+                ((f(a) + f(b)) + (f(c) + f(d))) + ((f(e) + f(g)) + (f(h) + f(i)))
+            };
+            if first {
+                eights.for_each(|((((o, ab), cd), eg), hi)| *o = sum((ab, cd), (eg, hi)));
+            } else {
+                eights.for_each(|((((o, ab), cd), eg), hi)| *o += sum((ab, cd), (eg, hi)));
+            }
+            first = false;
+            continue;
+        }
+        let mut rest = &group[..k];
+        if let Some(([a, b, c, d], after)) = rest.split_first_chunk::<4>() {
+            let quads = acc.iter_mut().zip(*a).zip(*b).zip(*c).zip(*d);
+            if first {
+                quads.for_each(|((((o, a), b), c), d)| *o = (f(a) + f(b)) + (f(c) + f(d)));
+            } else {
+                quads.for_each(|((((o, a), b), c), d)| *o += (f(a) + f(b)) + (f(c) + f(d)));
+            }
+            (first, rest) = (false, after);
+        }
+        for row in rest {
+            if first {
+                acc.iter_mut().zip(*row).for_each(|(o, x)| *o = f(x));
+            } else {
+                acc.iter_mut().zip(*row).for_each(|(o, x)| *o += f(x));
+            }
+            first = false;
+        }
+        if first {
+            acc.fill(0.0);
+        }
+        return;
     }
 }
 
