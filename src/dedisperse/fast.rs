@@ -674,8 +674,8 @@ fn sum_and_store_rows(
 
 /// The sums of [`sum_and_store`]: eight rows per pass over `acc`, the first pass
 /// writing it, then four, then one at a time (16 rows take two passes, not a copy and
-/// fifteen more; eight a pass were about 5 % faster on the kernel than four,
-/// docs/benchmarks.md). Rows are added pairwise in a fixed order, so every
+/// fifteen more; with eight a pass stage 2 took about 8 % less of the survey search
+/// than with four, docs/benchmarks.md). Rows are added pairwise in a fixed order, so every
 /// instruction set gives the same sums.
 #[inline(always)]
 fn accumulate_rows(acc: &mut [f32], stage1: &[Bf16], starts: impl Iterator<Item = usize>) {
