@@ -33,8 +33,24 @@ use clap::{CommandFactory, FromArgMatches, Parser, Subcommand};
 
 /// Find dispersed radio bursts, catalogue them, and time them.
 #[derive(Parser, Debug)]
-#[command(name = "burstbook", version, about, long_about = None)]
+#[command(
+    name = "burstbook",
+    version,
+    about,
+    long_about = None,
+    after_help = "Examples:
+  burstbook search demo-data/demo.json --out demo-out
+  burstbook --threads 1 inject demo-data/demo.json --count 50 --out inject-out
+
+Every command has its own --help with examples."
+)]
 pub struct Cli {
+    /// Worker threads (default: one per core, or RAYON_NUM_THREADS). Results do not
+    /// depend on it.
+    // A search also keeps one thread reading ahead, which mostly waits on the disk.
+    #[arg(long, global = true, value_name = "N",
+          value_parser = clap::value_parser!(u16).range(1..))]
+    threads: Option<u16>,
     #[command(subcommand)]
     command: Command,
 }
@@ -153,6 +169,12 @@ pub fn say_line(line: std::fmt::Arguments<'_>) -> std::io::Result<()> {
 
 /// Runs the chosen subcommand.
 pub fn run(cli: Cli) -> anyhow::Result<()> {
+    if let Some(n) = cli.threads {
+        rayon::ThreadPoolBuilder::new()
+            .num_threads(usize::from(n))
+            .build_global()
+            .map_err(|e| anyhow::anyhow!("cannot start {n} worker threads: {e}"))?;
+    }
     match cli.command {
         Command::Inspect(a) => inspect::run(a),
         Command::Report(a) => report::run(a),

@@ -15,6 +15,7 @@ use burstbook::search::{self, SearchConfig};
   burstbook search obs.json --out results --config search.toml --zero-dm
   burstbook search demo-data/demo.json --out results --catalogue survey.sqlite
   burstbook search demo-data/demo.json --out results --search-again
+  burstbook search obs.fits --out results --threads 1     # one worker on a shared machine
 
 A file whose content the catalogue already holds a finished search of, with the same
 configuration, is not searched again: one line says so, and its candidates are taken
