@@ -374,7 +374,7 @@ fn header_from_primary(p: &Cards) -> Result<Header, String> {
 /// those columns in every row, so whether a file's bytes are its values could only
 /// be known by reading every row first, and a byte read that carried each row's
 /// scales into the transpose would be a second decoder to keep in step with
-/// [`FitsReader::read_row_into`]: such files take the f32 path.
+/// `FitsReader::read_row_into`: such files take the f32 path.
 impl SampleSource for FitsReader {
     fn header(&self) -> &Header {
         &self.header
