@@ -411,3 +411,32 @@ fn demo_scenario_fits_the_repository_budget() {
     let bytes = h.n_chan() as u64 * h.n_samples * u64::from(h.nbits) / 8;
     assert!(bytes < 20_000_000, "{bytes} bytes");
 }
+
+// A burst whose sweep runs past the end of the recording: its scenario S/N sets its
+// brightness as if whole, its truth row gives the S/N of the part recorded (as
+// `recorded_snr` computes it), and one note names it. A burst wholly inside keeps
+// its scenario S/N and gets no note.
+#[test]
+fn truth_gives_the_recorded_snr_of_a_burst_cut_by_the_file_end() {
+    let bursts = "[[burst]]\nt_inf_s = 0.5\ndm = 100.0\nwidth_ms = 2.0\nsnr = 20.0\n\
+                  [[burst]]\nt_inf_s = 1.5\ndm = 300.0\nwidth_ms = 2.0\nsnr = 20.0\n";
+    // DM 300 arrives at 1.5 + 0.49 s at 1600 MHz and 1.5 + 0.86 s at 1200 MHz: a 2.2 s
+    // recording cuts the lower part of its sweep.
+    let sim = Simulation::new(&scenario(2.2, 32, true, bursts), 1).unwrap();
+    let snr = |i: usize| sim.truth[i].expected_snr.unwrap();
+    assert!((snr(0) - 20.0).abs() < 1e-6, "{}", snr(0));
+    let recorded = burstbook::simulate::recorded_snr(&sim.header, &sim.pulses[1]);
+    assert!((snr(1) - recorded).abs() < 1e-12);
+    assert!(snr(1) > 1.0 && snr(1) < 19.0, "{}", snr(1));
+    assert!((expected_snr(&sim.header, &sim.pulses[1]) - 20.0).abs() < 1e-6);
+    assert_eq!(sim.notes.len(), 1, "{:?}", sim.notes);
+    assert!(
+        sim.notes[0].starts_with("burst 2 (t_inf 1.5 s, DM 300)"),
+        "{}",
+        sim.notes[0]
+    );
+    // The same recording 1 s longer holds the whole sweep.
+    let sim = Simulation::new(&scenario(3.2, 32, true, bursts), 1).unwrap();
+    assert!((sim.truth[1].expected_snr.unwrap() - 20.0).abs() < 1e-6);
+    assert!(sim.notes.is_empty(), "{:?}", sim.notes);
+}

@@ -248,3 +248,28 @@ fn a_format_the_name_contradicts_is_refused() {
     assert_success(&r);
     assert_success(&burstbook(&["inspect", out.to_str().unwrap()]));
 }
+
+#[test]
+fn a_burst_past_the_end_of_the_recording_gets_a_note() {
+    let dir = tempfile::tempdir().unwrap();
+    let run = |t_inf: &str| {
+        let toml = dir.path().join(format!("s{t_inf}.toml"));
+        let text = SCENARIO
+            .replace("NBITS", "8")
+            .replace("t_inf_s = 0.4", &format!("t_inf_s = {t_inf}"));
+        std::fs::write(&toml, text).unwrap();
+        let r = simulate(&toml, &dir.path().join("o.json"), &[]);
+        assert_success(&r);
+        String::from_utf8(r.stderr).unwrap()
+    };
+    // DM 300 arrives 0.49–0.86 s after t_inf across 1600–1200 MHz: from 0.4 s its
+    // sweep ends by 1.3 s of the 1.5 s recording, from 0.8 s it does not.
+    assert_eq!(run("0.4"), "");
+    let err = run("0.8");
+    assert_eq!(err.lines().count(), 1, "{err}");
+    assert!(
+        err.contains("burst 1 (t_inf 0.8 s, DM 300) runs past the recording")
+            && err.contains("(20.00 whole)"),
+        "{err}"
+    );
+}

@@ -64,6 +64,9 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         sim.truth.len() - n_bursts,
         truth.display()
     )?;
+    for line in &sim.notes {
+        note!("  note: {}: {line}", args.scenario.display());
+    }
     Ok(())
 }
 

@@ -62,7 +62,7 @@ pub use scenario::{
 };
 pub use snr::{
     BoxcarPeak, N_POL, amplitude_from_fluence, boxcar_snr, dedispersed_signal, expected_snr,
-    expected_snr_detail, fluence_from_amplitude, with_expected_snr,
+    expected_snr_detail, fluence_from_amplitude, recorded_snr, with_expected_snr,
 };
 
 /// A small header for tests: `n_chan` channels descending from 1600 MHz over 400 MHz,

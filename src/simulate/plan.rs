@@ -7,7 +7,9 @@ use serde::Serialize;
 
 use super::burst::{Burst, Spectrum};
 use super::scenario::{RandomBurstsSpec, Scenario};
-use super::snr::{amplitude_from_fluence, expected_snr, fluence_from_amplitude, with_expected_snr};
+use super::snr::{
+    amplitude_from_fluence, expected_snr, fluence_from_amplitude, recorded_snr, with_expected_snr,
+};
 use crate::error::Result;
 use crate::obs::Header;
 
@@ -75,6 +77,9 @@ pub struct Simulation {
     pub carriers: Vec<Carrier>,
     pub truth: Vec<TruthRow>,
     pub seed: u64,
+    /// One line for each burst the recording does not wholly hold (its sweep runs
+    /// past an end of the file): its truth row gives the S/N of the part recorded.
+    pub notes: Vec<String>,
 }
 
 impl Simulation {
@@ -93,9 +98,10 @@ impl Simulation {
             carriers: Vec::new(),
             truth: Vec::new(),
             seed,
+            notes: Vec::new(),
         };
         let sefd = scenario.noise.sefd_jy;
-        for b in &scenario.bursts {
+        for (i, b) in scenario.bursts.iter().enumerate() {
             let burst = Burst {
                 t_inf_s: b.t_inf_s,
                 dm: b.dm,
@@ -104,14 +110,24 @@ impl Simulation {
                 spectrum: b.spectrum,
                 amplitude: 1.0,
             };
-            sim.add_burst(burst, b.snr, b.fluence_jy_ms.zip(sefd))?;
+            sim.add_burst(
+                &format!("burst {}", i + 1),
+                burst,
+                b.snr,
+                b.fluence_jy_ms.zip(sefd),
+            )?;
         }
         if let Some(r) = &scenario.random_bursts {
             let mut rng = ChaCha8Rng::seed_from_u64(seed);
             rng.set_stream(BURST_STREAM);
-            for _ in 0..r.count {
+            for i in 0..r.count {
                 let (burst, snr, fluence) = draw_burst(&mut rng, r, &sim.header);
-                sim.add_burst(burst, snr, fluence.zip(sefd))?;
+                sim.add_burst(
+                    &format!("random burst {}", i + 1),
+                    burst,
+                    snr,
+                    fluence.zip(sefd),
+                )?;
             }
         }
         sim.add_rfi(scenario)?;
@@ -125,8 +141,12 @@ impl Simulation {
         u128::from(h.n_samples) * h.n_chan() as u128 * u128::from(h.nbits) / 8
     }
 
+    /// Adds `burst` (called `what` in a note). Its truth row's expected S/N is that of
+    /// the part the recording holds; a scenario's S/N or fluence sets the burst's
+    /// brightness as if it were wholly recorded.
     fn add_burst(
         &mut self,
+        what: &str,
         burst: Burst,
         snr: Option<f64>,
         fluence: Option<(f64, f64)>,
@@ -145,7 +165,7 @@ impl Simulation {
             width_ms: Some(burst.width_s * 1e3),
             scatter_ms_1ghz: Some(burst.scatter_1ghz_s * 1e3),
             spectrum: Some(burst.spectrum.describe()),
-            expected_snr: Some(expected_snr(&self.header, &burst)),
+            expected_snr: Some(self.recorded_snr(what, &burst)),
             fluence_jy_ms: self
                 .header
                 .sefd_jy
@@ -155,6 +175,33 @@ impl Simulation {
         self.truth.push(row);
         self.pulses.push(burst);
         Ok(())
+    }
+
+    /// The expected S/N of the part of `burst` the recording holds, with a note in
+    /// [`Simulation::notes`] if that is less than the whole burst's.
+    fn recorded_snr(&mut self, what: &str, burst: &Burst) -> f64 {
+        let h = &self.header;
+        let whole = expected_snr(h, burst);
+        let (first, end) = burst.sample_span(h);
+        if first >= 0 && end <= h.n_samples as i64 {
+            return whole;
+        }
+        let recorded = recorded_snr(h, burst);
+        // Tails far below the noise are not worth a note.
+        if recorded < whole - 0.01 {
+            let t = |sample: i64| sample as f64 * h.tsamp_s;
+            self.notes.push(format!(
+                "{what} (t_inf {} s, DM {}) runs past the recording: its signal spans \
+                 {:.3}–{:.3} s of 0–{:.3} s; the truth gives the S/N of the part \
+                 recorded, {recorded:.2} ({whole:.2} whole)",
+                burst.t_inf_s,
+                burst.dm,
+                t(first),
+                t(end),
+                t(h.n_samples as i64),
+            ));
+        }
+        recorded
     }
 
     fn add_rfi(&mut self, scenario: &Scenario) -> Result<()> {

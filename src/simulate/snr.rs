@@ -13,6 +13,8 @@
 //! It is the S/N an ideal incoherent search (exact DM, exact per-channel delays, every
 //! integer width) would report on noise of unit variance; the file's edges are ignored.
 //! A real search with integer delays, a DM grid and a width ladder gets somewhat less.
+//! [`recorded_snr`] is the same for the part of a burst a recording holds: a burst
+//! whose sweep runs past either end of the file loses the channels' samples outside it.
 
 use super::burst::{Burst, ChannelModel};
 use crate::error::{Error, Result};
@@ -83,13 +85,28 @@ pub fn boxcar_snr(series: &[f64], n_chan: usize) -> BoxcarPeak {
 /// The ideally dedispersed, channel-summed signal of `burst` in σ units, and the
 /// file sample index of its first element. Empty if every channel is masked.
 pub fn dedispersed_signal(header: &Header, burst: &Burst) -> (i64, Vec<f64>) {
-    let models: Vec<ChannelModel> = (0..header.n_chan())
+    dedispersed(header, burst, Edges::Ignored)
+}
+
+/// Whether a channel's signal counts outside the recording's samples.
+#[derive(Clone, Copy, PartialEq)]
+enum Edges {
+    Ignored,
+    /// Only samples `[0, n_samples)` of each channel, as recorded, count.
+    Recording,
+}
+
+fn dedispersed(header: &Header, burst: &Burst, edges: Edges) -> (i64, Vec<f64>) {
+    let (models, shifts_samples): (Vec<ChannelModel>, Vec<f64>) = (0..header.n_chan())
         .filter(|&c| header.weights[c] != 0.0)
         .map(|c| {
             let shift = delay_to_infinity_s(burst.dm, header.freqs_mhz[c]);
-            ChannelModel::new(header, burst, c, shift)
+            (
+                ChannelModel::new(header, burst, c, shift),
+                shift / header.tsamp_s,
+            )
         })
-        .collect();
+        .unzip();
     let spans: Vec<(i64, i64)> = models
         .iter()
         .map(|m| m.sample_span(header.tsamp_s))
@@ -102,10 +119,20 @@ pub fn dedispersed_signal(header: &Header, burst: &Burst) -> (i64, Vec<f64>) {
     };
     let mut chan = vec![0.0f32; (end - first) as usize];
     let mut sum = vec![0.0f64; chan.len()];
-    for (m, &(f, e)) in models.iter().zip(&spans) {
+    let recorded = 0.0..header.n_samples as f64;
+    for ((m, &(f, e)), &shift) in models.iter().zip(&spans).zip(&shifts_samples) {
         let part = &mut chan[..(e - f) as usize];
         part.fill(0.0);
         m.add_into(header.tsamp_s, f, part, 1, 1.0);
+        if edges == Edges::Recording {
+            // Dedispersed sample f + i was recorded at file sample f + i + shift (its
+            // middle decides, so each edge is right to a sample).
+            for (i, v) in part.iter_mut().enumerate() {
+                if !recorded.contains(&((f + i as i64) as f64 + 0.5 + shift)) {
+                    *v = 0.0;
+                }
+            }
+        }
         let offset = (f - first) as usize;
         for (s, &v) in sum[offset..].iter_mut().zip(part.iter()) {
             *s += f64::from(v);
@@ -117,8 +144,12 @@ pub fn dedispersed_signal(header: &Header, burst: &Burst) -> (i64, Vec<f64>) {
 /// Expected S/N of `burst` in data described by `header` (see the module docs for
 /// the exact definition), with the best boxcar in samples from the file start.
 pub fn expected_snr_detail(header: &Header, burst: &Burst) -> (BoxcarPeak, i64) {
+    snr_detail(header, burst, Edges::Ignored)
+}
+
+fn snr_detail(header: &Header, burst: &Burst, edges: Edges) -> (BoxcarPeak, i64) {
     let n_unmasked = header.weights.iter().filter(|&&w| w != 0.0).count();
-    let (first, series) = dedispersed_signal(header, burst);
+    let (first, series) = dedispersed(header, burst, edges);
     if n_unmasked == 0 {
         return (
             BoxcarPeak {
@@ -136,6 +167,13 @@ pub fn expected_snr_detail(header: &Header, burst: &Burst) -> (BoxcarPeak, i64) 
 /// Expected S/N of `burst` in data described by `header`: see the module docs.
 pub fn expected_snr(header: &Header, burst: &Burst) -> f64 {
     expected_snr_detail(header, burst).0.snr
+}
+
+/// Expected S/N of the part of `burst` that a recording described by `header` holds:
+/// as [`expected_snr`], with each channel's signal outside samples `[0, n_samples)`
+/// left out. Equal to [`expected_snr`] for a burst wholly inside the recording.
+pub fn recorded_snr(header: &Header, burst: &Burst) -> f64 {
+    snr_detail(header, burst, Edges::Recording).0.snr
 }
 
 /// `burst` with its amplitude set so that its expected S/N is `target_snr`.
@@ -209,6 +247,65 @@ mod tests {
         h.weights[..12].fill(0.0);
         let snr = expected_snr(&h, &pulse(0.0, 10.5 * h.tsamp_s, 7.5));
         assert!((snr - 7.5 * 2.0).abs() < 1e-4, "{snr}");
+    }
+
+    // Without dispersion every channel is cut at the same sample, so the recorded S/N
+    // is the best boxcar of the whole signal truncated at the file's end (exactly).
+    #[test]
+    fn recorded_snr_is_the_whole_signal_cut_at_the_file_end() {
+        let h = test_header(8, 100);
+        for centre in [90.5, 99.5, 100.0, 101.5] {
+            // FWHM 4 samples: a Gaussian's ±7σ support spans 24 samples.
+            let b = pulse(4.0 * h.tsamp_s, centre * h.tsamp_s, 5.0);
+            let (first, series) = dedispersed_signal(&h, &b);
+            let kept = (100 - first).clamp(0, series.len() as i64) as usize;
+            let direct = boxcar_snr(&series[..kept], 8).snr;
+            let recorded = recorded_snr(&h, &b);
+            assert!(
+                (recorded - direct).abs() < 1e-9,
+                "{centre}: {recorded} vs {direct}"
+            );
+            assert!(recorded <= expected_snr(&h, &b) + 1e-12);
+        }
+        // Wholly inside: equal; half of a symmetric pulse past the end: 1/√2 of the
+        // S/N or less (half the signal, at best over half the width).
+        let inside = pulse(4.0 * h.tsamp_s, 50.0 * h.tsamp_s, 5.0);
+        assert_eq!(recorded_snr(&h, &inside), expected_snr(&h, &inside));
+        let half = pulse(4.0 * h.tsamp_s, 100.0 * h.tsamp_s, 5.0);
+        let ratio = recorded_snr(&h, &half) / expected_snr(&h, &half);
+        assert!(
+            ratio > 0.5 && ratio <= std::f64::consts::FRAC_1_SQRT_2 + 1e-9,
+            "{ratio}"
+        );
+    }
+
+    // A dispersed burst arrives last in the lowest channels: as it moves past the end
+    // its recorded S/N falls from the whole to nothing; before the start nothing at all.
+    #[test]
+    fn recorded_snr_of_a_sweep_past_the_end_falls_to_zero() {
+        let h = test_header(64, 2000);
+        let dm = 30.0;
+        let sweep_samples =
+            (delay_to_infinity_s(dm, 1200.0) - delay_to_infinity_s(dm, 1600.0)) / h.tsamp_s;
+        assert!(
+            (500.0..900.0).contains(&sweep_samples),
+            "the sweep spans many samples: {sweep_samples}"
+        );
+        let at = |top_arrival: f64| Burst {
+            t_inf_s: top_arrival * h.tsamp_s - delay_to_infinity_s(dm, 1600.0),
+            dm,
+            ..pulse(2.0 * h.tsamp_s, 0.0, 5.0)
+        };
+        let whole = expected_snr(&h, &at(1000.0));
+        assert!((recorded_snr(&h, &at(1000.0)) - whole).abs() < 1e-9);
+        let mut last = whole;
+        for top in [1500.0, 1700.0, 1900.0, 1990.0] {
+            let r = recorded_snr(&h, &at(top));
+            assert!(r < last && r > 0.0, "top arrival {top}: {r} after {last}");
+            last = r;
+        }
+        assert_eq!(recorded_snr(&h, &at(2050.0)), 0.0);
+        assert_eq!(recorded_snr(&h, &at(-1000.0)), 0.0);
     }
 
     // An unresolved pulse split evenly across two samples keeps 1/√2 of the aligned
