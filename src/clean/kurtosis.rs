@@ -104,9 +104,18 @@ impl ChannelKurtosis {
         self.sums.iter().skip(c).step_by(self.n_chan).copied()
     }
 
-    /// Whether channel `c` looks like detected power (every run has a positive mean).
+    /// Whether channel `c` looks like detected power: in every run a positive mean at
+    /// least √½ of the standard deviation. Power summed from N·d ≥ 1 spectra has
+    /// mean²/variance = N·d ≥ 1 (Gamma-distributed); data with its offset removed
+    /// (zero-mean noise) has about 1/M, so SK, which needs the power's own offset, is
+    /// not applied to it. (Testing only the sign let one channel in 2^runs of
+    /// zero-mean noise through, and SK then masked it.)
     fn is_power(&self, c: usize) -> bool {
-        self.runs(c).all(|(s1, _)| s1 > 0.0)
+        let m = self.m as f64;
+        self.runs(c).all(|(s1, s2)| {
+            let mean = s1 / m;
+            mean > 0.0 && 2.0 * mean * mean >= s2 / m - mean * mean
+        })
     }
 
     /// Median over power-like unmasked channels of the median over runs of mean²/variance,
@@ -225,6 +234,27 @@ mod tests {
         let mut mask = vec![false; n_chan];
         assert_eq!(sk.flag(&mut mask, None, 0.0013499, 0.25), 1);
         assert!(mask[9]);
+    }
+
+    // Zero-mean noise (data whose offset was removed) is not power: no channel is
+    // tested, so none is masked, however few runs a block has. Testing the sign of
+    // the runs' means alone passed one channel in 2^runs (1 in 16 here) to SK, which
+    // then masked it; power-like channels are still tested.
+    #[test]
+    fn zero_mean_noise_is_not_taken_for_power() {
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(9);
+        let n_chan = 512;
+        let zero_mean = Array2::from_shape_fn((2048, n_chan), |_| {
+            Distribution::<f32>::sample(&rand_distr::StandardNormal, &mut rng)
+        });
+        let sk = ChannelKurtosis::measure(zero_mean.view(), 512);
+        let mut mask = vec![false; n_chan];
+        assert_eq!(sk.flag(&mut mask, Some(1.0), 0.0013499, 0.25), 0);
+        assert!((0..n_chan).all(|c| !sk.is_power(c)));
+        // The same noise on an offset of 8σ is power-like (mean²/variance 64).
+        let offset = zero_mean.mapv(|x| x + 8.0);
+        let sk = ChannelKurtosis::measure(offset.view(), 512);
+        assert!((0..n_chan).all(|c| sk.is_power(c)));
     }
 
     // The whole-block statistics derived from the run sums equal those measured
