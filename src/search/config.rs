@@ -171,7 +171,9 @@ impl SearchConfig {
         }
         if self.baseline_s.is_nan() || self.baseline_s < 2.0 * self.max_width_s {
             return bad(format!(
-                "baseline window {} s must be at least twice the widest boxcar {} s",
+                "baseline window {} s must be at least twice the widest boxcar {} s \
+                 (raise baseline_s in the configuration file, 1 s by default, \
+                 or search narrower boxcars)",
                 self.baseline_s, self.max_width_s
             ));
         }
