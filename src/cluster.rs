@@ -120,19 +120,15 @@ pub struct Sweep {
     pub tsamp_s: f64,
     /// k/ν² of the highest channel (detections are timed there).
     pub top_s_per_dm: f64,
-    /// k·⟨ν⁻²⟩ over the channels: a pulse dedispersed with a DM error δ appears, on
-    /// average over the band, at this delay times δ.
-    pub mean_s_per_dm: f64,
     /// k(ν_lo⁻² − ν_hi⁻²): the sweep across the band per unit DM.
     pub band_s_per_dm: f64,
 }
 
 /// Merges into each cluster the fainter clusters that lie on its "bow-tie": a pulse at
-/// DM D and arrival t_inf, dedispersed at a trial DM d, shows up around
-/// t_inf + (D − d)·k⟨ν⁻²⟩ with its width grown by the residual sweep |D − d|·k(ν_lo⁻² −
-/// ν_hi⁻²) (derived here from the cold-plasma delay, Lorimer & Kramer 2005: the time
-/// linking scale is the width plus the mis-dedispersion shift), and no brighter than that smearing allows
-/// ([`Sweep::on_bow_tie`]). Bright pulses break into such fragments wherever a DM
+/// DM D and arrival t_inf, dedispersed at a trial DM d, is smeared over the residual
+/// sweep from t_inf + (D − d)·kν_hi⁻² to t_inf + (D − d)·kν_lo⁻² (derived here from
+/// the cold-plasma delay, Lorimer & Kramer 2005), and no brighter than that smearing
+/// allows ([`Sweep::on_bow_tie`]). Bright pulses break into such fragments wherever a DM
 /// gap interrupts the friends-of-friends chain. Clusters are taken in decreasing S/N;
 /// output is in time order of the best member.
 pub fn merge_dispersion_tails(
@@ -190,19 +186,28 @@ const ECHO_SNR_MARGIN: f64 = 3.0;
 
 impl Sweep {
     /// Whether `other` could be `leader` seen at a different trial DM: a pulse at DM
-    /// D seen at trial d appears at t_inf + (D − d)·k⟨ν⁻²⟩, widened by the residual
-    /// sweep |D − d|·k(ν_lo⁻² − ν_hi⁻²) to W_eff = √(W² + sweep²) — and, its fluence
-    /// spread over W_eff, a boxcar matched to it keeps about √(W/W_eff) of its S/N
-    /// (radiometer scaling, common practice). So `other` must also be no brighter
-    /// than `ECHO_SNR_MARGIN` (3) times that: a fainter pulse of its own at a DM far
-    /// from the leader's, where the leader's echo is far below the threshold, is not
-    /// an echo even if it lies within the smeared sweep.
+    /// D seen at trial d, timed at the top of the band, has each channel's signal at
+    /// t_inf + (D − d)·kν⁻², so it spreads from (D − d)·kν_hi⁻² to (D − d)·kν_lo⁻²
+    /// after t_inf; `other` must start within half the two widths of that span. The
+    /// residual sweep |D − d|·k(ν_lo⁻² − ν_hi⁻²) widens the pulse to W_eff =
+    /// √(W² + sweep²) — and, its fluence spread over W_eff, a boxcar matched to it keeps
+    /// about √(W/W_eff) of its S/N (radiometer scaling, common practice). So `other`
+    /// must also be no brighter than `ECHO_SNR_MARGIN` (3) times that: a fainter pulse
+    /// of its own at a DM far from the leader's, where the leader's echo is far below
+    /// the threshold, is not an echo even if it lies within the smeared sweep.
+    ///
+    /// (A window centred on the band's mean ν⁻² missed the low-frequency end of the
+    /// span, where a very bright pulse left echoes as candidates of their own.)
     pub fn on_bow_tie(&self, leader: &Event, other: &Event, slack_s: f64) -> bool {
         let ddm = leader.dm - other.dm;
         let smeared = leader.width_s.hypot(ddm.abs() * self.band_s_per_dm);
-        let reach = 0.5 * (smeared + other.width_s) + slack_s;
         let kept = (ECHO_SNR_MARGIN * (leader.width_s / smeared).sqrt()).min(1.0);
-        (other.t_inf_s - leader.t_inf_s - ddm * self.mean_s_per_dm).abs() <= reach
+        let top = ddm * self.top_s_per_dm;
+        let bottom = ddm * (self.top_s_per_dm + self.band_s_per_dm);
+        let margin = 0.5 * (leader.width_s + other.width_s) + slack_s;
+        let dt = other.t_inf_s - leader.t_inf_s;
+        dt >= top.min(bottom) - margin
+            && dt <= top.max(bottom) + margin
             && other.snr <= leader.snr * kept
     }
 }
@@ -268,7 +273,6 @@ mod tests {
         Sweep {
             tsamp_s: 1e-3,
             top_s_per_dm: 4.148808e3 / 1600f64.powi(2),
-            mean_s_per_dm: 4.148808e3 / (1200.0 * 1600.0),
             band_s_per_dm: 4.148808e3 * (1200f64.powi(-2) - 1600f64.powi(-2)),
         }
     }
@@ -295,7 +299,7 @@ mod tests {
             })
         };
         let main = at(100.0, 10_000.0, 4, 20.0);
-        // Seen at DM 150 it appears 50·k⟨ν⁻²⟩ = 108 samples earlier in t_inf.
+        // Seen at DM 150 it spreads over 50·kν⁻² = 81–144 samples earlier in t_inf.
         let fragment = at(150.0, 10_000.0 - 108.0, 32, 7.5);
         let elsewhere = at(150.0, 10_400.0, 4, 9.0);
         let merged =
@@ -318,7 +322,7 @@ mod tests {
             width_s,
             snr,
         };
-        // DM 1200, 16 ms, S/N 12: at DM 40 its echo lies 1160·k⟨ν⁻²⟩ = 2.507 s later,
+        // DM 1200, 16 ms, S/N 12: at DM 40 its echo lies 1160·kν⁻² = 1.88–3.34 s later,
         // spread over 1.46 s, keeping √(16 ms / 1.46 s) ≈ 0.10 of its S/N.
         let leader = event(1200.0, 10.0, 16e-3, 12.0);
         let other = event(40.0, 10.0 + 2.507 + 0.3, 1e-3, 10.0);
@@ -329,8 +333,49 @@ mod tests {
         };
         assert!(sweep.on_bow_tie(&bright, &other, 0.0));
         // Near the leader's DM the bound is the leader's S/N itself.
-        let near = event(1190.0, 10.0 + 10.0 * sweep.mean_s_per_dm, 16e-3, 11.9);
+        let near = event(
+            1190.0,
+            10.0 + 10.0 * 4.148808e3 / (1200.0 * 1600.0),
+            16e-3,
+            11.9,
+        );
         assert!(sweep.on_bow_tie(&leader, &near, 0.0));
+    }
+
+    // A pulse of S/N 965 (DM 499.98, 2 ms; measured on a simulated 256-channel file)
+    // left echoes of S/N 11 at DM 400.59 and 601.11, each near the low-frequency end of
+    // its smear, 0.2836 s after and 0.2884 s before the pulse: the smear spans
+    // 99.39·kν⁻² = 0.161–0.286 s and 101.13·kν⁻² = 0.164–0.291 s. Both merge; one
+    // placed 10 ms beyond the end of the span does not.
+    #[test]
+    fn echoes_at_the_low_frequency_end_of_the_smear_merge() {
+        let sweep = sweep_1200_1600();
+        let event = |dm: f64, t_inf_s: f64, width_s: f64, snr: f64| Event {
+            t_inf_s,
+            dm,
+            width_s,
+            snr,
+        };
+        let leader = event(499.98, 5.0001, 2.048e-3, 965.4);
+        let later = event(400.59, 5.2837, 1.024e-3, 11.3);
+        let earlier = event(601.11, 4.7117, 1.024e-3, 10.6);
+        assert!(sweep.on_bow_tie(&leader, &later, 0.0));
+        assert!(sweep.on_bow_tie(&leader, &earlier, 0.0));
+        // The span's two ends for the later echo, and 10 ms past either.
+        let ddm = leader.dm - later.dm;
+        let (top, bottom) = (
+            ddm * sweep.top_s_per_dm,
+            ddm * (sweep.top_s_per_dm + sweep.band_s_per_dm),
+        );
+        let margin = 0.5 * (leader.width_s + later.width_s);
+        let at = |dt: f64| Event {
+            t_inf_s: leader.t_inf_s + dt,
+            ..later
+        };
+        assert!(sweep.on_bow_tie(&leader, &at(top), 0.0));
+        assert!(sweep.on_bow_tie(&leader, &at(bottom), 0.0));
+        assert!(!sweep.on_bow_tie(&leader, &at(top - margin - 0.010), 0.0));
+        assert!(!sweep.on_bow_tie(&leader, &at(bottom + margin + 0.010), 0.0));
     }
 
     /// Reference: every pair tested, components by repeated relabelling.

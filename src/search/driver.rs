@@ -323,8 +323,6 @@ impl<'a> Searcher<'a> {
         let sweep = Sweep {
             tsamp_s: header.tsamp_s,
             top_s_per_dm: inv_f2(header.freq_hi_mhz()),
-            mean_s_per_dm: header.freqs_mhz.iter().map(|&f| inv_f2(f)).sum::<f64>()
-                / header.n_chan() as f64,
             band_s_per_dm: inv_f2(header.freq_lo_mhz()) - inv_f2(header.freq_hi_mhz()),
         };
         let static_mask = static_mask(&header.freqs_mhz, &header.weights, &config.clean.masks_mhz);
