@@ -440,3 +440,28 @@ fn truth_gives_the_recorded_snr_of_a_burst_cut_by_the_file_end() {
     assert!((sim.truth[1].expected_snr.unwrap() - 20.0).abs() < 1e-6);
     assert!(sim.notes.is_empty(), "{:?}", sim.notes);
 }
+
+// 8-bit samples around 96 ± 12 hold at most 13.25 σ above the mean: a burst whose
+// brightest samples exceed that gets a note (its expected S/N ignores the clipping);
+// a faint one, or the same bright one in float samples, does not.
+#[test]
+fn a_burst_that_saturates_eight_bit_samples_gets_a_note() {
+    let bright = "[[burst]]\nt_inf_s = 0.5\ndm = 100.0\nwidth_ms = 2.0\nsnr = 1000.0\n";
+    let faint = bright.replace("snr = 1000.0", "snr = 20.0");
+    let notes = |nbits: u32, bursts: &str| {
+        Simulation::new(&scenario(2.0, nbits, true, bursts), 1)
+            .unwrap()
+            .notes
+    };
+    let saturated = notes(8, bright);
+    assert_eq!(saturated.len(), 1, "{saturated:?}");
+    assert!(
+        saturated[0].starts_with(
+            "burst 1 (t_inf 0.5 s, DM 100) saturates the 8-bit samples in 64 of 64 channels"
+        ) && saturated[0].contains("where 255 is 13.2 σ above it"),
+        "{}",
+        saturated[0]
+    );
+    assert!(notes(8, &faint).is_empty());
+    assert!(notes(32, bright).is_empty());
+}

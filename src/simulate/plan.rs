@@ -8,7 +8,8 @@ use serde::Serialize;
 use super::burst::{Burst, Spectrum};
 use super::scenario::{RandomBurstsSpec, Scenario};
 use super::snr::{
-    amplitude_from_fluence, expected_snr, fluence_from_amplitude, recorded_snr, with_expected_snr,
+    amplitude_from_fluence, expected_snr, fluence_from_amplitude, peak_per_channel, recorded_snr,
+    with_expected_snr,
 };
 use crate::error::Result;
 use crate::obs::Header;
@@ -172,9 +173,38 @@ impl Simulation {
                 .map(|sefd| fluence_from_amplitude(&self.header, sefd, burst.amplitude)),
             ..self.empty_row(TruthKind::Burst, burst.t_inf_s)
         };
+        self.note_saturation(what, &burst);
         self.truth.push(row);
         self.pulses.push(burst);
         Ok(())
+    }
+
+    /// A note in [`Simulation::notes`] if `burst`'s brightest samples exceed what
+    /// 8-bit samples hold (255, where [`super::quantise`] clips them): the file then
+    /// holds less than the truth's expected S/N, which ignores quantisation.
+    fn note_saturation(&mut self, what: &str, burst: &Burst) {
+        if self.header.nbits != 8 {
+            return;
+        }
+        // Headroom of each channel in its own σ, from its mean to the top code.
+        let headroom = |c: usize| (255.0 - self.chan_mean[c]) / self.chan_sigma[c];
+        let over: Vec<(usize, f64)> = peak_per_channel(&self.header, burst)
+            .into_iter()
+            .filter(|&(c, peak)| peak > headroom(c))
+            .collect();
+        let Some(&(c, peak)) = over.iter().max_by(|a, b| a.1.total_cmp(&b.1)) else {
+            return;
+        };
+        self.notes.push(format!(
+            "{what} (t_inf {} s, DM {}) saturates the 8-bit samples in {} of {} channels: \
+             its brightest sample is {peak:.1} σ above the mean where 255 is {:.1} σ \
+             above it, so the file holds less than the truth's expected S/N",
+            burst.t_inf_s,
+            burst.dm,
+            over.len(),
+            self.header.weights.iter().filter(|&&w| w != 0.0).count(),
+            headroom(c),
+        ));
     }
 
     /// The expected S/N of the part of `burst` the recording holds, with a note in

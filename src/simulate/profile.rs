@@ -71,8 +71,10 @@ impl Emg {
                     0.0
                 }
             }
+            // A delta arrives at 0, not before it: its area lies in the sample that
+            // starts at 0 (samples are [start, end)), not in the one that ends there.
             (false, false) => {
-                if x_s >= 0.0 {
+                if x_s > 0.0 {
                     1.0
                 } else {
                     0.0

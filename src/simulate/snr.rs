@@ -141,6 +141,24 @@ fn dedispersed(header: &Header, burst: &Burst, edges: Edges) -> (i64, Vec<f64>) 
     (first, sum)
 }
 
+/// The largest value the noise-free signal of `burst` reaches in any sample of each
+/// channel as recorded (not dedispersed), in units of that channel's noise σ, with
+/// the channel's index; masked channels are left out.
+pub(crate) fn peak_per_channel(header: &Header, burst: &Burst) -> Vec<(usize, f64)> {
+    let mut samples = Vec::new();
+    (0..header.n_chan())
+        .filter(|&c| header.weights[c] != 0.0)
+        .map(|c| {
+            let model = ChannelModel::new(header, burst, c, 0.0);
+            let (first, end) = model.sample_span(header.tsamp_s);
+            samples.clear();
+            samples.resize((end - first).max(0) as usize, 0.0);
+            model.add_into(header.tsamp_s, first, &mut samples, 1, 1.0);
+            (c, samples.iter().copied().fold(0.0f32, f32::max).into())
+        })
+        .collect()
+}
+
 /// Expected S/N of `burst` in data described by `header` (see the module docs for
 /// the exact definition), with the best boxcar in samples from the file start.
 pub fn expected_snr_detail(header: &Header, burst: &Burst) -> (BoxcarPeak, i64) {
@@ -247,6 +265,35 @@ mod tests {
         h.weights[..12].fill(0.0);
         let snr = expected_snr(&h, &pulse(0.0, 10.5 * h.tsamp_s, 7.5));
         assert!((snr - 7.5 * 2.0).abs() < 1e-4, "{snr}");
+    }
+
+    // An unresolved pulse inside one sample puts its whole amplitude there (the
+    // one-sample S/N above); split across two samples, half in each.
+    #[test]
+    fn peak_per_channel_of_an_unresolved_pulse_is_its_amplitude() {
+        let h = test_header(4, 100);
+        for (c, peak) in peak_per_channel(&h, &pulse(0.0, 10.5 * h.tsamp_s, 7.5)) {
+            assert!((peak - 7.5).abs() < 1e-5, "channel {c}: {peak}");
+        }
+        let split = peak_per_channel(&h, &pulse(1e-4 * h.tsamp_s, 10.0 * h.tsamp_s, 7.5));
+        assert!(
+            split.iter().all(|&(_, p)| (p - 3.75).abs() < 1e-5),
+            "{split:?}"
+        );
+        // A delta on a sample boundary lies wholly in the sample that starts there
+        // (it was lost: no sample got it, and no S/N could be set for it).
+        let h1 = test_header(1, 100);
+        for at in [10.0, 37.0, 0.0] {
+            let delta = pulse(0.0, at * h1.tsamp_s, 7.5);
+            let (first, series) = dedispersed_signal(&h1, &delta);
+            let i = usize::try_from(at as i64 - first).unwrap();
+            assert!((series[i] - 7.5).abs() < 1e-5, "at {at}: {series:?}");
+            assert!((expected_snr(&h1, &delta) - 7.5).abs() < 1e-5);
+        }
+        let mut masked = h.clone();
+        masked.weights[1] = 0.0;
+        let peaks = peak_per_channel(&masked, &pulse(0.0, 10.5 * h.tsamp_s, 7.5));
+        assert_eq!(peaks.iter().map(|p| p.0).collect::<Vec<_>>(), [0, 2, 3]);
     }
 
     // Without dispersion every channel is cut at the same sample, so the recorded S/N
