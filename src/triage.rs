@@ -129,6 +129,19 @@ pub fn verdict(
             )],
         );
     }
+    // A weak undispersed pulse peaks at a small DM > 0 by chance about as often as at
+    // 0 (its S/N barely changes while the sweep is shorter than its width): only a
+    // DM-0 S/N clearly below the peak shows dispersion.
+    let dm0_snr = f.snr_dm0_ratio * snr;
+    if snr - dm0_snr < config.min_dm0_snr_gap {
+        return (
+            Verdict::Unsure,
+            vec![format!(
+                "S/N {dm0_snr:.1} at DM 0 against {snr:.1} at DM {dm:.1}: not clearly dispersed (a gap of {:.1} is needed)",
+                config.min_dm0_snr_gap
+            )],
+        );
+    }
     (
         Verdict::Astrophysical,
         vec![format!(
@@ -235,5 +248,29 @@ mod tests {
         let (v, reasons) = verdict(&flat, &e, &cfg);
         assert_eq!(v, Verdict::Rfi);
         assert!(reasons[0].contains("DM 0"), "{reasons:?}");
+        // Measured on a simulated band-limited pulse at DM 0 (5 ms, 1250–1350 MHz in a
+        // 1200–1600 MHz band): best at DM 10.4, 4 ms, S/N 8.36, DM-0 ratio 0.664, an
+        // expected ratio of 0.68 there (band fraction 0.37). Within the noise of an
+        // undispersed pulse (5.55 against 8.36 at DM 0), so not astrophysical; a
+        // stronger pulse with the same ratio is.
+        let chance = TriageFeatures {
+            snr_dm0_ratio: 0.664,
+            band_fraction: 0.37,
+            ..good
+        };
+        let chance_e = Expectation {
+            snr: 8.36,
+            dm: 10.4,
+            dm0_ratio: 0.68,
+            dm0_noise_snr: 2.5,
+        };
+        let (v, reasons) = verdict(&chance, &chance_e, &cfg);
+        assert_eq!(v, Verdict::Unsure);
+        assert!(reasons[0].contains("not clearly dispersed"), "{reasons:?}");
+        let strong_e = Expectation {
+            snr: 12.0,
+            ..chance_e
+        };
+        assert_eq!(verdict(&chance, &strong_e, &cfg).0, Verdict::Astrophysical);
     }
 }

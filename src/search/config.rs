@@ -38,6 +38,9 @@ pub struct TriageConfig {
     /// Expected DM-0 ratio above which the DM is too low to tell a pulse from
     /// undispersed interference.
     pub ambiguous_dm0_ratio: f64,
+    /// Smallest gap between a candidate's S/N and its S/N at DM 0 for it to count as
+    /// dispersed; a smaller gap is within the noise of an undispersed pulse.
+    pub min_dm0_snr_gap: f64,
     /// RMS misfit of the S/N-versus-DM curve above which the candidate is interference.
     pub max_dm_curve_misfit: f64,
     /// Band fraction below which the signal is called narrow-band interference.
@@ -49,6 +52,7 @@ impl Default for TriageConfig {
         TriageConfig {
             max_dm0_excess: 0.25,
             ambiguous_dm0_ratio: 0.7,
+            min_dm0_snr_gap: 3.0,
             max_dm_curve_misfit: 0.25,
             min_band_fraction: 0.15,
         }
