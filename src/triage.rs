@@ -85,8 +85,9 @@ pub struct Expectation {
     pub dm: f64,
     /// DM-0 S/N ratio expected from smearing alone (Cordes & McLaughlin 2003).
     pub dm0_ratio: f64,
-    /// Typical largest noise S/N in the DM-0 search window; a weak pulse's DM-0 S/N
-    /// does not fall below it.
+    /// Typical largest noise S/N in the DM-0 search window, or the best DM-0 S/N of
+    /// the weaker of the two windows beside it if higher (undispersed interference
+    /// all around); a pulse's DM-0 S/N does not fall below it.
     pub dm0_noise_snr: f64,
 }
 

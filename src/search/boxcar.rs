@@ -282,20 +282,34 @@ fn search_prefix(
 /// noise measured over the whole series as in [`search_series`] with the default
 /// ladder. 0 when the series is too short, has no spread, or the range is empty.
 pub fn best_snr_in(series: &[f32], w: usize, lo: usize, hi: usize, scratch: &mut Scratch) -> f32 {
+    best_snrs_in(series, w, &[(lo, hi)], scratch)[0]
+}
+
+/// [`best_snr_in`] for each range `(lo, hi)` of `ranges`, the noise measured once.
+pub fn best_snrs_in(
+    series: &[f32],
+    w: usize,
+    ranges: &[(usize, usize)],
+    scratch: &mut Scratch,
+) -> Vec<f32> {
     let mut prefix = std::mem::take(&mut scratch.prefix);
     prefix_sums(series, &mut prefix);
     let noise = noise_chain(&prefix, &chain_to(w), scratch).pop().flatten();
-    let snr = match noise {
-        Some((mean, sigma)) => {
-            let hi = hi.min(prefix.len() - 1 - w);
-            (lo..=hi)
-                .map(|t| ((prefix[t + w] - prefix[t] - mean) / sigma) as f32)
-                .fold(f32::NEG_INFINITY, f32::max)
-        }
-        None => f32::NEG_INFINITY,
+    let best = |&(lo, hi): &(usize, usize)| {
+        let snr = match noise {
+            Some((mean, sigma)) => {
+                let hi = hi.min(prefix.len() - 1 - w);
+                (lo..=hi)
+                    .map(|t| ((prefix[t + w] - prefix[t] - mean) / sigma) as f32)
+                    .fold(f32::NEG_INFINITY, f32::max)
+            }
+            None => f32::NEG_INFINITY,
+        };
+        if snr.is_finite() { snr } else { 0.0 }
     };
+    let out = ranges.iter().map(best).collect();
     scratch.prefix = prefix;
-    if snr.is_finite() { snr } else { 0.0 }
+    out
 }
 
 #[cfg(test)]

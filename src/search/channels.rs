@@ -164,6 +164,13 @@ impl ChannelBlock {
             NewRows::U8(rows) => self.flag_and_transpose_in(rows, static_mask, config),
         };
         self.normalise_new(keep, m, baseline_len, &dropouts);
+        // A channel flagged in the new rows leaves the whole block, the rows kept from
+        // the previous block included: otherwise the search would still sum its kept
+        // rows (interference that got it flagged, seen before the flag) while triage,
+        // which leaves out every channel masked anywhere in the block, would not.
+        for c in (0..n_chan).filter(|&c| self.new_mask[c] && !previous_mask[c]) {
+            self.data[c * self.capacity..][..keep].fill(0.0);
+        }
         let mut block = ArrayViewMut2::from_shape((n_chan, self.capacity), &mut self.data[..])
             .expect("buffer holds n_chan × capacity values")
             .slice_move(s![.., ..keep + m]);
@@ -473,8 +480,9 @@ mod tests {
     }
 
     /// The new rows are flagged by their own statistics: a channel gone wild in them
-    /// is masked and zeroed there, its kept rows stay as they were, and the block's
-    /// mask and masked fraction say so.
+    /// is masked and zeroed there and in the rows kept from the previous block (the
+    /// search and its triage then leave it out alike), the other channels' kept rows
+    /// stay as they were, and the block's mask and masked fraction say so.
     #[test]
     fn new_rows_are_flagged_on_their_own_statistics() {
         let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(13);
@@ -491,13 +499,16 @@ mod tests {
         let mut block = ChannelBlock::new(Vec::new(), n_chan, 6000);
         let first = block.append(calm.view(), 0, 0, &mask, &config, 500);
         assert_eq!(first.masked_fraction, 0.0);
-        let kept_before = block.view().slice(s![9, 2000..]).to_owned();
+        let kept_before = block.view().slice(s![.., 2000..]).to_owned();
+        assert!(kept_before.row(9).iter().any(|&v| v != 0.0));
         let second = block.append(wild.view(), 4000, 2000, &mask, &config, 500);
         let expected: Vec<bool> = (0..n_chan).map(|c| c == 9).collect();
         assert_eq!(block.mask(), &expected[..]);
         assert!((second.masked_fraction - 1.0 / n_chan as f64).abs() < 1e-12);
         let out = block.view();
-        assert_eq!(out.slice(s![9, ..2000]), kept_before);
-        assert!(out.slice(s![9, 2000..]).iter().all(|&v| v == 0.0));
+        assert!(out.row(9).iter().all(|&v| v == 0.0));
+        for c in (0..n_chan).filter(|&c| c != 9) {
+            assert_eq!(out.slice(s![c, ..2000]), kept_before.row(c));
+        }
     }
 }

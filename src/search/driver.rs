@@ -389,7 +389,7 @@ impl<'a> Searcher<'a> {
         let dm0 = if owned.is_empty() {
             Vec::new()
         } else {
-            self.dm0_series(norm, mask)
+            self.dm0_series(norm)
         };
         let series = NormalisedSeries::new(&mut outs, g.baseline_len);
         let data = BlockData {
@@ -502,9 +502,12 @@ impl<'a> Searcher<'a> {
         all
     }
 
-    /// The band sum at DM 0, normalised like a dedispersed series.
-    fn dm0_series(&self, norm: ArrayView2<'_, f32>, mask: &[bool]) -> Vec<f32> {
-        let mut dm0 = clean::band_sum(norm, mask);
+    /// The band sum at DM 0, normalised like a dedispersed series. It sums the block as
+    /// the kernel does (a flagged channel's samples are zero), not only the channels
+    /// unmasked throughout the block: leaving out a channel whose unflagged rows the
+    /// kernel summed made undispersed interference in it look dispersed.
+    fn dm0_series(&self, norm: ArrayView2<'_, f32>) -> Vec<f32> {
+        let mut dm0 = clean::band_sum(norm, &self.static_mask);
         normalise_series(
             &mut dm0,
             self.layout.baseline_len,

@@ -5,7 +5,7 @@
 
 use ndarray::ArrayView2;
 
-use super::boxcar::{Scratch, best_snr_in};
+use super::boxcar::{Scratch, best_snr_in, best_snrs_in};
 use super::normalise::NormalisedSeries;
 use crate::candidate::TriageFeatures;
 use crate::cluster::Detection;
@@ -158,7 +158,24 @@ pub(super) fn measure(b: &BlockData<'_, '_>, d: &Detection) -> Measured {
     let mut scratch = Scratch::default();
     let lo = t0.saturating_sub(w);
     let sweep = b.sweep_samples(d.dm);
-    let snr0 = best_snr_in(b.dm0, w, lo, t0 + sweep + w, &mut scratch);
+    // The pulse's own window, and one of the same length on each side of it: where
+    // undispersed interference fills the DM-0 series (an impulse train), the weaker
+    // neighbour's best sets the level a dispersed pulse's window reaches anyway.
+    let hi = t0 + sweep + w;
+    let span = hi - lo + 1;
+    let mut ranges = vec![(lo, hi)];
+    if lo >= span {
+        ranges.push((lo - span, lo - 1));
+    }
+    if hi + span + w < b.dm0.len() {
+        ranges.push((hi + 1, hi + span));
+    }
+    let snrs = best_snrs_in(b.dm0, w, &ranges, &mut scratch);
+    let snr0 = snrs[0];
+    let background = snrs[1..]
+        .iter()
+        .map(|&s| f64::from(s))
+        .fold(f64::INFINITY, f64::min);
     let window_trials = ((sweep + 2 * w) as f64 / w as f64).max(2.0);
 
     Measured {
@@ -169,7 +186,13 @@ pub(super) fn measure(b: &BlockData<'_, '_>, d: &Detection) -> Measured {
             modulation_index: modulation_index(&unit, 1.0),
         },
         expected_dm0_ratio: cm03_peak_ratio(band.zeta(d.dm, w, h.tsamp_s)),
-        dm0_noise_snr: (2.0 * window_trials.ln()).sqrt(),
+        dm0_noise_snr: (2.0 * window_trials.ln())
+            .sqrt()
+            .max(if background.is_finite() {
+                background
+            } else {
+                0.0
+            }),
     }
 }
 
