@@ -335,7 +335,7 @@ fn sub_harmonic(
     let k_max = ((strongest.freq_hz / grid.f0_hz).floor() as usize).min(MAX_SUB_HARMONIC);
     (2..=k_max).rev().find_map(|k| {
         let kf = k as f64;
-        let (f, z) = refine_z(toas, strongest.freq_hz / kf, grid.df_hz / kf, cfg.harmonics);
+        let (f, z) = refine_z(toas, strongest.freq_hz / kf, grid.df_hz / kf, cfg);
         (z >= cfg.harmonic_family_fraction * strongest.z2n)
             .then(|| candidate_at(toas, f, z, cfg, band_hz, span_s, var_t))
     })
@@ -384,23 +384,39 @@ fn merged(t_s: &[f64], gap_s: f64) -> Result<Vec<f64>> {
     Ok(left)
 }
 
-/// Maximises f ↦ stat(f) on a local grid of `steps` points either side of `f0`.
-fn local_max(f0: f64, step: f64, steps: i32, stat: impl Fn(f64) -> f64) -> (f64, f64) {
+/// The searched band [1/max period, 1/min period], Hz.
+fn band(cfg: &RotationConfig) -> (f64, f64) {
+    (1.0 / cfg.max_period_s, 1.0 / cfg.min_period_s)
+}
+
+/// Maximises f ↦ stat(f) on a local grid of `steps` points either side of `f0`,
+/// each point held inside `cfg`'s band: next to a band edge a step of a coarse grid
+/// (arrivals spanning less than a trial period) would otherwise reach zero or negative
+/// frequencies, where every arrival has the same phase.
+fn local_max(
+    f0: f64,
+    step: f64,
+    steps: i32,
+    cfg: &RotationConfig,
+    stat: impl Fn(f64) -> f64,
+) -> (f64, f64) {
+    let (lo, hi) = band(cfg);
     (-steps..=steps)
         .map(|i| {
-            let f = f0 + i as f64 * step;
+            let f = (f0 + i as f64 * step).clamp(lo, hi);
             (f, stat(f))
         })
         .max_by(|a, b| a.1.total_cmp(&b.1))
         .expect("non-empty local grid")
 }
 
-/// Z²ₙ maximised near `f_grid` (±1 grid step, then 8× finer around the best).
-fn refine_z(toas: &[f64], f_grid: f64, df: f64, n: usize) -> (f64, f64) {
+/// Z²ₙ maximised near `f_grid` (±1 grid step, then 8× finer around the best), within
+/// the searched band.
+fn refine_z(toas: &[f64], f_grid: f64, df: f64, cfg: &RotationConfig) -> (f64, f64) {
     let t_ref = centre(toas);
-    let z_of = |f: f64| z2n(&phases(toas, t_ref, f, 0.0), n);
-    let (f1, _) = local_max(f_grid, df / 8.0, 8, z_of);
-    local_max(f1, df / 64.0, 8, z_of)
+    let z_of = |f: f64| z2n(&phases(toas, t_ref, f, 0.0), cfg.harmonics);
+    let (f1, _) = local_max(f_grid, df / 8.0, 8, cfg, z_of);
+    local_max(f1, df / 64.0, 8, cfg, z_of)
 }
 
 fn refine(
@@ -412,7 +428,7 @@ fn refine(
     span_s: f64,
     var_t: f64,
 ) -> RotationCandidate {
-    let (fz, z) = refine_z(toas, f_grid, df, cfg.harmonics);
+    let (fz, z) = refine_z(toas, f_grid, df, cfg);
     candidate_at(toas, fz, z, cfg, band_hz, span_s, var_t)
 }
 
@@ -431,7 +447,7 @@ fn candidate_at(
     let n = cfg.harmonics;
     let h_of = |f: f64| h_test(&phases(toas, t_ref, f, 0.0)).h;
     let h_step = 1.0 / (4.0 * 20.0 * span_s.max(f64::MIN_POSITIVE));
-    let (fh, _) = local_max(fz, h_step, 8, h_of);
+    let (fh, _) = local_max(fz, h_step, 8, cfg, h_of);
     let h = h_test(&phases(toas, t_ref, fh, 0.0));
     RotationCandidate {
         freq_hz: fz,
@@ -559,6 +575,23 @@ mod tests {
             let err = search_rotation(&TOAS, &cfg, &|_| {}).unwrap_err();
             assert!(err.to_string().contains("is beyond"), "{err}");
         }
+    }
+
+    #[test]
+    fn arrivals_within_one_trial_period_keep_every_pick_in_the_band() {
+        // Five arrivals within 0.81 s, searched up to 10 s: the grid step (0.21 Hz)
+        // is wider than the lowest trial frequency, and refining the peak there
+        // reached a negative frequency (a period of −2130 s was reported).
+        let toas = [0.0, 0.0864, 0.216, 0.69984, 0.80352];
+        let cfg = RotationConfig::default();
+        let r = search_rotation(&toas, &cfg, &|_| {}).unwrap();
+        for c in &r.candidates {
+            assert!(
+                (cfg.min_period_s..=cfg.max_period_s).contains(&c.period_s),
+                "{c:?}"
+            );
+        }
+        assert!((cfg.min_period_s..=cfg.max_period_s).contains(&r.period_s));
     }
 
     #[test]
