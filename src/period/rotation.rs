@@ -353,10 +353,13 @@ pub fn rotation_grid(t_s: &[f64], cfg: &RotationConfig) -> FrequencyGrid {
     )
 }
 
-/// `t_s` sorted, with arrivals closer than `gap_s` merged; at least 3 must be left.
+/// `t_s` sorted, with arrivals closer than `gap_s` merged; at least 3 must be left,
+/// not all at one instant (with no merge gap, identical times stay apart: every phase
+/// is then the same at every frequency, and Z²ₙ is at its maximum).
 ///
 /// # Errors
-/// [`Error::Config`] saying how many were given and how many the merging left.
+/// [`Error::Config`] saying how many were given and how many the merging left, or
+/// that they are all the same instant.
 fn merged(t_s: &[f64], gap_s: f64) -> Result<Vec<f64>> {
     let mut sorted = t_s.to_vec();
     sorted.sort_by(f64::total_cmp);
@@ -379,6 +382,12 @@ fn merged(t_s: &[f64], gap_s: f64) -> Result<Vec<f64>> {
         };
         return Err(Error::Config(format!(
             "a period test needs at least 3 arrival times: {counts}"
+        )));
+    }
+    if left[0] == left[left.len() - 1] {
+        return Err(Error::Config(format!(
+            "a period test needs arrival times spread in time: all {} are the same instant",
+            left.len()
         )));
     }
     Ok(left)
@@ -592,6 +601,29 @@ mod tests {
             );
         }
         assert!((cfg.min_period_s..=cfg.max_period_s).contains(&r.period_s));
+    }
+
+    #[test]
+    fn arrivals_all_at_one_instant_are_refused() {
+        // With --merge-gap-s 0 four identical times were searched over a grid step of
+        // 7e306 Hz and reported a period of 0 s; tested at a stated period they
+        // gave the largest Z²ₙ possible, p = 0.003.
+        let cfg = RotationConfig {
+            merge_gap_s: 0.0,
+            ..Default::default()
+        };
+        let toas = [5.0; 4];
+        let err = search_rotation(&toas, &cfg, &|_| {}).unwrap_err();
+        assert!(
+            err.to_string().contains("all 4 are the same instant"),
+            "{err}"
+        );
+        let err = test_period(&toas, 0.3, 0.0, &cfg).unwrap_err();
+        assert!(
+            err.to_string().contains("all 4 are the same instant"),
+            "{err}"
+        );
+        assert!(search_rotation(&[5.0, 5.0, 6.0], &cfg, &|_| {}).is_ok());
     }
 
     #[test]
