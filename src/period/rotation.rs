@@ -498,7 +498,9 @@ pub struct HypothesisResult {
 ///
 /// # Errors
 /// [`Error::Config`] for fewer than 3 arrivals, a period that is not finite and
-/// positive, a Ṗ that is not finite, or bad shared settings.
+/// positive or is longer than the arrivals' span (their phases then cover less than
+/// one turn and would all but agree: five arrivals within 0.8 s gave p = 5e-4 at
+/// P = 10⁶ s), a Ṗ that is not finite, or bad shared settings.
 pub fn test_period(
     t_s: &[f64],
     period_s: f64,
@@ -512,6 +514,13 @@ pub fn test_period(
         )));
     }
     let toas = merged(t_s, cfg.merge_gap_s)?;
+    let span_s = toas[toas.len() - 1] - toas[0];
+    if period_s > span_s {
+        return Err(Error::Config(format!(
+            "the arrivals span {span_s} s, less than the stated period of {period_s} s: \
+             their phases lie within one turn, where Z²ₙ and H have no chance probability"
+        )));
+    }
     let f = 1.0 / period_s;
     let ph = phases(&toas, centre(&toas), f, -pdot * f * f);
     let z = z2n(&ph, cfg.harmonics);
@@ -624,6 +633,17 @@ mod tests {
             "{err}"
         );
         assert!(search_rotation(&[5.0, 5.0, 6.0], &cfg, &|_| {}).is_ok());
+    }
+
+    #[test]
+    fn a_stated_period_longer_than_the_span_is_refused() {
+        let cfg = RotationConfig::default();
+        let err = test_period(&TOAS, 12_961.0, 0.0, &cfg).unwrap_err();
+        assert!(
+            err.to_string().contains("less than the stated period"),
+            "{err}"
+        );
+        assert!(test_period(&TOAS, 12_960.0, 0.0, &cfg).is_ok());
     }
 
     #[test]
