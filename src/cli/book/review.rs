@@ -50,8 +50,8 @@ pub fn label(cat: &mut Catalogue, a: LabelArgs) -> anyhow::Result<()> {
         .reviewer
         .or_else(|| std::env::var("USER").ok())
         .unwrap_or_else(|| "unknown".into());
-    cat.label(&ids, &a.label, &reviewer, &a.comment)?;
-    say!("labelled {} candidate(s) {:?}", ids.len(), a.label)?;
+    let n = cat.label(&ids, &a.label, &reviewer, &a.comment)?;
+    say!("labelled {n} candidate(s) {:?}", a.label)?;
     Ok(())
 }
 
