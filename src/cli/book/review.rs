@@ -130,5 +130,8 @@ pub fn promote(cat: &mut Catalogue, a: PromoteArgs) -> anyhow::Result<()> {
         let what = if p.new { "is now" } else { "already was" };
         say!("candidate {id} {what} burst {} of {}", p.burst_id, p.source)?;
     }
+    if ids.is_empty() {
+        say!("no candidate matches; nothing promoted")?;
+    }
     Ok(())
 }
