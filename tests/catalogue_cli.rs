@@ -130,6 +130,12 @@ fn review_promote_summarise_and_export() {
             "--notes", "test",
         ],
     );
+    // A filter that matches nothing says so (it used to print nothing at all).
+    let msg = book(
+        &db,
+        &["promote", "--label-is", "never-given", "--dm-tol", "300"],
+    );
+    assert_eq!(msg, "no candidate matches; nothing promoted\n");
     book(&db, &["promote", "--label-is", "burst", "--dm-tol", "300"]);
     let bursts = json(&book(
         &db,

@@ -58,9 +58,12 @@ pub fn sweep_window(
     (start_mjd - days(freq_hi_mhz), end_mjd - days(freq_lo_mhz))
 }
 
-/// Total hours covered by merged MJD intervals.
+/// Total hours covered by merged MJD intervals (0 for none: a float `sum` of nothing
+/// is −0, which `book summary` printed as `-0.000`).
 pub fn exposure_hours(merged: &[(f64, f64)]) -> f64 {
-    merged.iter().map(|(a, b)| (b - a) * 24.0).sum()
+    merged
+        .iter()
+        .fold(0.0, |hours, (a, b)| hours + (b - a) * 24.0)
 }
 
 impl Catalogue {
@@ -416,6 +419,14 @@ mod tests {
         let mut cat = Catalogue::open(&dir.path().join("c.sqlite")).unwrap();
         add_source(&mut cat, "SRC-A");
         (dir, cat)
+    }
+
+    #[test]
+    fn a_source_without_exposure_has_zero_hours_not_minus_zero() {
+        let (_d, cat) = cat_with_source();
+        let s = cat.summary("SRC-A", None, 0.95).unwrap();
+        assert_eq!(format!("{:.3}", s.exposure_hours), "0.000");
+        assert_eq!(s.rate_per_hour, None);
     }
 
     #[test]

@@ -45,12 +45,20 @@ pub struct Promotion {
 }
 
 impl Catalogue {
-    /// Appends the same label to each candidate in `ids`, in one transaction.
+    /// Appends the same label to each candidate in `ids`, in one transaction, once
+    /// per candidate however often its id is given (`book label 1 1` wrote two
+    /// identical history rows); returns how many candidates were labelled.
     ///
     /// # Errors
     /// An id that is not in the catalogue (then nothing is labelled), an empty
     /// label, or an SQLite failure.
-    pub fn label(&mut self, ids: &[i64], label: &str, reviewer: &str, comment: &str) -> Result<()> {
+    pub fn label(
+        &mut self,
+        ids: &[i64],
+        label: &str,
+        reviewer: &str,
+        comment: &str,
+    ) -> Result<usize> {
         if label.trim().is_empty() {
             return Err(Error::Config("label is empty".into()));
         }
@@ -63,13 +71,14 @@ impl Catalogue {
                      VALUES (?1, ?2, ?3, ?4, ?5)",
                 )
                 .map_err(|e| super::sql_error(&path, e))?;
-            for &id in ids {
+            let mut done = std::collections::HashSet::new();
+            for &id in ids.iter().filter(|&&id| done.insert(id)) {
                 require_candidate(tx, &path, id, "; nothing labelled")?;
                 insert
                     .execute(params![id, label, reviewer, now, comment])
                     .map_err(|e| super::sql_error(&path, e))?;
             }
-            Ok(())
+            Ok(done.len())
         })
     }
 
@@ -302,6 +311,9 @@ mod tests {
         assert_eq!(cat.candidates(&f("burst")).unwrap().len(), 2);
         assert_eq!(cat.candidates(&f("rfi")).unwrap().len(), 1);
         assert_eq!(cat.candidates(&f("none")).unwrap().len(), ids.len() - 3);
+        // An id given twice is labelled once.
+        assert_eq!(cat.label(&[ids[4], ids[4]], "burst", "ana", "").unwrap(), 1);
+        assert_eq!(cat.label_history(ids[4]).unwrap().len(), 1);
         // An unknown id labels nothing at all.
         assert!(cat.label(&[ids[5], 999_999], "burst", "ana", "").is_err());
         assert!(cat.label_history(ids[5]).unwrap().is_empty());

@@ -52,11 +52,16 @@ pub struct SourceSummary {
     pub snr_min: Option<f64>,
     /// Bursts at or above the threshold.
     pub n_bursts: u64,
+    /// Of those, bursts whose arrival lies outside every exposure interval counted
+    /// (promoted to this source from another pointing's search, or found by a run
+    /// with a higher threshold): they are left out of the rate, which counts
+    /// bursts against the time in which they were searched for.
+    pub n_outside_exposure: u64,
     /// Hours searched with a threshold at or below `snr_min` (overlaps merged).
     pub exposure_hours: f64,
     /// Confidence level of the rate interval.
     pub confidence: f64,
-    /// Bursts per hour (`None` without exposure).
+    /// Bursts inside the exposure per hour (`None` without exposure).
     pub rate_per_hour: Option<f64>,
     /// Lower and upper rate limits per hour (`None` without exposure).
     pub rate_interval_per_hour: Option<PoissonInterval>,
@@ -70,7 +75,8 @@ pub struct SourceSummary {
 
 impl Catalogue {
     /// Summarises `source`, counting bursts with S/N ≥ `snr_min` against the
-    /// exposure searched at least that deep (see [`Catalogue::merged_exposure`]).
+    /// exposure searched at least that deep (see [`Catalogue::merged_exposure`]);
+    /// the rate counts only the bursts that arrived inside that exposure.
     ///
     /// # Errors
     /// Unknown source, a bad confidence level, or an SQLite failure.
@@ -88,8 +94,17 @@ impl Catalogue {
                 ..Default::default()
             },
         })?;
-        let hours = exposure_hours(&self.merged_exposure(source, snr_min)?);
-        let n = bursts.len() as u64;
+        let windows = self.merged_exposure(source, snr_min)?;
+        let hours = exposure_hours(&windows);
+        let searched = self.bursts_in_own_exposure(source, snr_min)?;
+        let n_outside = bursts
+            .iter()
+            .filter(|b| {
+                !searched.contains(&b.id)
+                    && !windows.iter().any(|&(a, e)| (a..=e).contains(&b.mjd_utc))
+            })
+            .count() as u64;
+        let n = bursts.len() as u64 - n_outside;
         let interval = poisson_interval(n, confidence)?;
         let per_hour = (hours > 0.0).then_some(hours);
         let fluences: Vec<f64> = bursts.iter().filter_map(|b| b.fluence_jy_ms).collect();
@@ -101,7 +116,8 @@ impl Catalogue {
         Ok(SourceSummary {
             source: source.into(),
             snr_min,
-            n_bursts: n,
+            n_bursts: bursts.len() as u64,
+            n_outside_exposure: n_outside,
             exposure_hours: hours,
             confidence,
             rate_per_hour: per_hour.map(|h| n as f64 / h),
@@ -120,9 +136,85 @@ impl Catalogue {
     }
 }
 
+impl Catalogue {
+    /// Ids of `source`'s bursts found by a run whose exposure row, of this source and
+    /// with a threshold ≤ `snr_min` (or none), is counted: inside the exposure by
+    /// construction, even where the source has no reference DM and an early burst's
+    /// arrival at infinite frequency precedes its recording's start.
+    fn bursts_in_own_exposure(&self, source: &str, snr_min: Option<f64>) -> Result<Vec<i64>> {
+        let mut stmt = self
+            .conn()
+            .prepare(
+                "SELECT DISTINCT b.id FROM burst b
+                 JOIN source s ON s.id = b.source_id
+                 JOIN candidate c ON c.id = b.candidate_id
+                 JOIN exposure e ON e.run_id = c.run_id AND e.source_id = b.source_id
+                 WHERE s.name = ?1 AND (?2 IS NULL OR e.snr_threshold IS NULL OR e.snr_threshold <= ?2)",
+            )
+            .map_err(|e| self.err(e))?;
+        let ids = stmt
+            .query_map(rusqlite::params![source, snr_min], |r| r.get(0))
+            .map_err(|e| self.err(e))?
+            .collect::<rusqlite::Result<Vec<i64>>>()
+            .map_err(|e| self.err(e))?;
+        Ok(ids)
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Bursts count in the rate only when their search's exposure is counted: one
+    /// promoted to a source observed elsewhere is left out (it was counted against
+    /// another source's hour: 2 per hour), and one whose arrival at infinite frequency
+    /// precedes its recording's start by 0.5 s (DM 900: delay 1.46 s to the top
+    /// channel, dispersion constant of Lorimer & Kramer 2005) is kept.
+    #[test]
+    fn the_rate_counts_the_bursts_inside_the_exposure() {
+        use crate::catalogue::synthetic::{candidates, observation, run};
+        use crate::catalogue::{AssignTolerance, SourceRecord};
+        let dir = tempfile::tempdir().unwrap();
+        let mut cat = Catalogue::open(&dir.path().join("c.sqlite")).unwrap();
+        let other = SourceRecord {
+            id: 0,
+            name: "OTHER".into(),
+            ra_deg: 10.0,
+            dec_deg: 10.0,
+            dm_ref: None,
+            notes: String::new(),
+        };
+        cat.upsert_source(&other).unwrap();
+        let obs = observation("FIELD-7", 3);
+        let start = obs.span_mjd().0;
+        let mut cands = candidates(&obs, 3, 3);
+        cands[0].t_inf_s = -0.5;
+        cands[0].mjd_inf = start - 0.5 / 86_400.0;
+        cands[0].dm = 900.0;
+        cat.record_search(&obs, &run(7.0), &cands).unwrap();
+        cat.import_exposure_csv(
+            std::path::Path::new("x.csv"),
+            "OTHER,60010.0,60010.5\n".as_bytes(),
+        )
+        .unwrap();
+        let tol = AssignTolerance {
+            radius_deg: 0.5,
+            dm: 5.0,
+        };
+        for (id, to) in [(1, "FIELD-7"), (2, "FIELD-7"), (3, "OTHER")] {
+            cat.promote(id, Some(to), tol).unwrap();
+        }
+        let field = cat.summary("FIELD-7", None, 0.95).unwrap();
+        assert_eq!((field.n_bursts, field.n_outside_exposure), (2, 0));
+        assert!(
+            (field.rate_per_hour.unwrap() - 2.0).abs() < 1e-9,
+            "{field:?}"
+        );
+        let other = cat.summary("OTHER", None, 0.95).unwrap();
+        assert_eq!((other.n_bursts, other.n_outside_exposure), (1, 1));
+        assert_eq!(other.rate_per_hour, Some(0.0), "{other:?}");
+        assert_eq!(other.rate_interval_per_hour.unwrap().lower, 0.0);
+    }
 
     /// Every row of the scipy fixture (tests/fixtures/poisson/make_limits.py,
     /// scipy 1.17.1) to 1e-8 relative.

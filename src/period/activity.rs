@@ -228,8 +228,15 @@ impl<'a> TrialGrid<'a> {
             && cfg.bins >= 2
             && cfg.oversample >= 1.0)
         {
+            // A default the user never gave is named, with where it came from.
+            let max = match cfg.max_period_days {
+                Some(_) => format!("max period ({p_max})"),
+                None => format!(
+                    "max period ({p_max:.4}, by default half the sessions' span of {span:.4})"
+                ),
+            };
             return Err(Error::Config(format!(
-                "need 0 < min period ({}) < max period ({p_max}) days, ≥ 2 bins, oversample ≥ 1",
+                "need 0 < min period ({}) < {max} days, ≥ 2 bins, oversample ≥ 1",
                 cfg.min_period_days
             )));
         }
@@ -568,6 +575,23 @@ mod tests {
 
     fn run(cfg: ActivityConfig) -> Result<ActivityResult> {
         search_activity(&BURSTS, &SESSIONS, 60_000, &cfg, &|_| {})
+    }
+
+    #[test]
+    fn sessions_too_short_for_the_default_longest_period_say_where_it_came_from() {
+        // One 0.5-day session: the longest period defaults to 0.25 d, below the
+        // shortest (1.5 d), and the message named a max period nobody had given.
+        let cfg = ActivityConfig {
+            sims: 0,
+            ..Default::default()
+        };
+        let err = search_activity(&[0.1, 0.2, 0.3], &SESSIONS[..1], 60_000, &cfg, &|_| {})
+            .unwrap_err()
+            .to_string();
+        assert!(
+            err.contains("max period (0.2500, by default half the sessions' span of 0.5000)"),
+            "{err}"
+        );
     }
 
     #[test]

@@ -335,7 +335,7 @@ fn sub_harmonic(
     let k_max = ((strongest.freq_hz / grid.f0_hz).floor() as usize).min(MAX_SUB_HARMONIC);
     (2..=k_max).rev().find_map(|k| {
         let kf = k as f64;
-        let (f, z) = refine_z(toas, strongest.freq_hz / kf, grid.df_hz / kf, cfg.harmonics);
+        let (f, z) = refine_z(toas, strongest.freq_hz / kf, grid.df_hz / kf, cfg);
         (z >= cfg.harmonic_family_fraction * strongest.z2n)
             .then(|| candidate_at(toas, f, z, cfg, band_hz, span_s, var_t))
     })
@@ -353,10 +353,13 @@ pub fn rotation_grid(t_s: &[f64], cfg: &RotationConfig) -> FrequencyGrid {
     )
 }
 
-/// `t_s` sorted, with arrivals closer than `gap_s` merged; at least 3 must be left.
+/// `t_s` sorted, with arrivals closer than `gap_s` merged; at least 3 must be left,
+/// not all at one instant (with no merge gap, identical times stay apart: every phase
+/// is then the same at every frequency, and Z²ₙ is at its maximum).
 ///
 /// # Errors
-/// [`Error::Config`] saying how many were given and how many the merging left.
+/// [`Error::Config`] saying how many were given and how many the merging left, or
+/// that they are all the same instant.
 fn merged(t_s: &[f64], gap_s: f64) -> Result<Vec<f64>> {
     let mut sorted = t_s.to_vec();
     sorted.sort_by(f64::total_cmp);
@@ -381,26 +384,48 @@ fn merged(t_s: &[f64], gap_s: f64) -> Result<Vec<f64>> {
             "a period test needs at least 3 arrival times: {counts}"
         )));
     }
+    if left[0] == left[left.len() - 1] {
+        return Err(Error::Config(format!(
+            "a period test needs arrival times spread in time: all {} are the same instant",
+            left.len()
+        )));
+    }
     Ok(left)
 }
 
-/// Maximises f ↦ stat(f) on a local grid of `steps` points either side of `f0`.
-fn local_max(f0: f64, step: f64, steps: i32, stat: impl Fn(f64) -> f64) -> (f64, f64) {
+/// The searched band [1/max period, 1/min period], Hz.
+fn band(cfg: &RotationConfig) -> (f64, f64) {
+    (1.0 / cfg.max_period_s, 1.0 / cfg.min_period_s)
+}
+
+/// Maximises f ↦ stat(f) on a local grid of `steps` points either side of `f0`,
+/// each point held inside `cfg`'s band: next to a band edge a step of a coarse grid
+/// (arrivals spanning less than a trial period) would otherwise reach zero or negative
+/// frequencies, where every arrival has the same phase.
+fn local_max(
+    f0: f64,
+    step: f64,
+    steps: i32,
+    cfg: &RotationConfig,
+    stat: impl Fn(f64) -> f64,
+) -> (f64, f64) {
+    let (lo, hi) = band(cfg);
     (-steps..=steps)
         .map(|i| {
-            let f = f0 + i as f64 * step;
+            let f = (f0 + i as f64 * step).clamp(lo, hi);
             (f, stat(f))
         })
         .max_by(|a, b| a.1.total_cmp(&b.1))
         .expect("non-empty local grid")
 }
 
-/// Z²ₙ maximised near `f_grid` (±1 grid step, then 8× finer around the best).
-fn refine_z(toas: &[f64], f_grid: f64, df: f64, n: usize) -> (f64, f64) {
+/// Z²ₙ maximised near `f_grid` (±1 grid step, then 8× finer around the best), within
+/// the searched band.
+fn refine_z(toas: &[f64], f_grid: f64, df: f64, cfg: &RotationConfig) -> (f64, f64) {
     let t_ref = centre(toas);
-    let z_of = |f: f64| z2n(&phases(toas, t_ref, f, 0.0), n);
-    let (f1, _) = local_max(f_grid, df / 8.0, 8, z_of);
-    local_max(f1, df / 64.0, 8, z_of)
+    let z_of = |f: f64| z2n(&phases(toas, t_ref, f, 0.0), cfg.harmonics);
+    let (f1, _) = local_max(f_grid, df / 8.0, 8, cfg, z_of);
+    local_max(f1, df / 64.0, 8, cfg, z_of)
 }
 
 fn refine(
@@ -412,7 +437,7 @@ fn refine(
     span_s: f64,
     var_t: f64,
 ) -> RotationCandidate {
-    let (fz, z) = refine_z(toas, f_grid, df, cfg.harmonics);
+    let (fz, z) = refine_z(toas, f_grid, df, cfg);
     candidate_at(toas, fz, z, cfg, band_hz, span_s, var_t)
 }
 
@@ -431,7 +456,7 @@ fn candidate_at(
     let n = cfg.harmonics;
     let h_of = |f: f64| h_test(&phases(toas, t_ref, f, 0.0)).h;
     let h_step = 1.0 / (4.0 * 20.0 * span_s.max(f64::MIN_POSITIVE));
-    let (fh, _) = local_max(fz, h_step, 8, h_of);
+    let (fh, _) = local_max(fz, h_step, 8, cfg, h_of);
     let h = h_test(&phases(toas, t_ref, fh, 0.0));
     RotationCandidate {
         freq_hz: fz,
@@ -473,7 +498,9 @@ pub struct HypothesisResult {
 ///
 /// # Errors
 /// [`Error::Config`] for fewer than 3 arrivals, a period that is not finite and
-/// positive, a Ṗ that is not finite, or bad shared settings.
+/// positive or is longer than the arrivals' span (their phases then cover less than
+/// one turn and would all but agree: five arrivals within 0.8 s gave p = 5e-4 at
+/// P = 10⁶ s), a Ṗ that is not finite, or bad shared settings.
 pub fn test_period(
     t_s: &[f64],
     period_s: f64,
@@ -487,6 +514,13 @@ pub fn test_period(
         )));
     }
     let toas = merged(t_s, cfg.merge_gap_s)?;
+    let span_s = toas[toas.len() - 1] - toas[0];
+    if period_s > span_s {
+        return Err(Error::Config(format!(
+            "the arrivals span {span_s} s, less than the stated period of {period_s} s: \
+             their phases lie within one turn, where Z²ₙ and H have no chance probability"
+        )));
+    }
     let f = 1.0 / period_s;
     let ph = phases(&toas, centre(&toas), f, -pdot * f * f);
     let z = z2n(&ph, cfg.harmonics);
@@ -559,6 +593,57 @@ mod tests {
             let err = search_rotation(&TOAS, &cfg, &|_| {}).unwrap_err();
             assert!(err.to_string().contains("is beyond"), "{err}");
         }
+    }
+
+    #[test]
+    fn arrivals_within_one_trial_period_keep_every_pick_in_the_band() {
+        // Five arrivals within 0.81 s, searched up to 10 s: the grid step (0.21 Hz)
+        // is wider than the lowest trial frequency, and refining the peak there
+        // reached a negative frequency (a period of −2130 s was reported).
+        let toas = [0.0, 0.0864, 0.216, 0.69984, 0.80352];
+        let cfg = RotationConfig::default();
+        let r = search_rotation(&toas, &cfg, &|_| {}).unwrap();
+        for c in &r.candidates {
+            assert!(
+                (cfg.min_period_s..=cfg.max_period_s).contains(&c.period_s),
+                "{c:?}"
+            );
+        }
+        assert!((cfg.min_period_s..=cfg.max_period_s).contains(&r.period_s));
+    }
+
+    #[test]
+    fn arrivals_all_at_one_instant_are_refused() {
+        // With --merge-gap-s 0 four identical times were searched over a grid step of
+        // 7e306 Hz and reported a period of 0 s; tested at a stated period they
+        // gave the largest Z²ₙ possible, p = 0.003.
+        let cfg = RotationConfig {
+            merge_gap_s: 0.0,
+            ..Default::default()
+        };
+        let toas = [5.0; 4];
+        let err = search_rotation(&toas, &cfg, &|_| {}).unwrap_err();
+        assert!(
+            err.to_string().contains("all 4 are the same instant"),
+            "{err}"
+        );
+        let err = test_period(&toas, 0.3, 0.0, &cfg).unwrap_err();
+        assert!(
+            err.to_string().contains("all 4 are the same instant"),
+            "{err}"
+        );
+        assert!(search_rotation(&[5.0, 5.0, 6.0], &cfg, &|_| {}).is_ok());
+    }
+
+    #[test]
+    fn a_stated_period_longer_than_the_span_is_refused() {
+        let cfg = RotationConfig::default();
+        let err = test_period(&TOAS, 12_961.0, 0.0, &cfg).unwrap_err();
+        assert!(
+            err.to_string().contains("less than the stated period"),
+            "{err}"
+        );
+        assert!(test_period(&TOAS, 12_960.0, 0.0, &cfg).is_ok());
     }
 
     #[test]

@@ -131,6 +131,11 @@ pub fn write_report(
     for (i, s) in sections.iter().enumerate() {
         body += &write_section(out_dir, i, s, opts, &bar)?;
     }
+    if sections.is_empty() {
+        // Without it, a search that found nothing gave a page that could as well be
+        // a report that failed to draw.
+        body += "<p><strong>No candidates</strong>: there is nothing to plot.</p>";
+    }
     bar.finish_and_clear();
     let page = format!(
         "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">\
@@ -290,6 +295,15 @@ th{background:#f3f3f3}img{max-width:100%;height:auto;border:1px solid #eee}\
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn a_report_without_candidates_says_so() {
+        let dir = tempfile::tempdir().unwrap();
+        let out = dir.path().join("report");
+        let index = write_report(&out, &[], &ReportOptions::default(), &[]).unwrap();
+        let page = std::fs::read_to_string(index).unwrap();
+        assert!(page.contains("No candidates"), "{page}");
+    }
 
     #[test]
     fn escapes_markup() {

@@ -13,6 +13,11 @@ use super::TimingWarning;
 use super::chebyshev::ChebTable;
 use super::spk::SpkEphemeris;
 
+/// First MJD (2100-01-01) past the span 1900–2100 that the analytic `epv00` Earth is
+/// fitted to (ERFA documentation of `eraEpv00`, from memory): beyond it no stated
+/// accuracy holds, so conversions stop there.
+pub const ANALYTIC_EARTH_END_MJD: i64 = 88_069;
+
 /// Astronomical unit in km (IAU 2012 Resolution B2).
 const AU_KM: f64 = 149_597_870.700;
 

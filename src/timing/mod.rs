@@ -173,15 +173,18 @@ impl Barycentrer {
     /// Converts one topocentric UTC arrival time.
     ///
     /// # Errors
-    /// [`Error::Config`] for a time before 1972-01-01 (UTC with rubber seconds) or a
+    /// [`Error::Config`] for a time before 1972-01-01 (UTC with rubber seconds), from
+    /// 2100-01-01 on ([`ephemeris::ANALYTIC_EARTH_END_MJD`]: the end of the analytic
+    /// Earth model's span, where its warning's error bound would no longer hold) or a
     /// non-finite time.
     pub fn convert(&self, utc: UtcEpoch) -> Result<BaryResult> {
         let mut warnings = Vec::new();
         let tai_minus_utc = leap::tai_minus_utc_s(utc.mjd)
-            .filter(|_| utc.sec.is_finite())
+            .filter(|_| utc.sec.is_finite() && utc.mjd < ephemeris::ANALYTIC_EARTH_END_MJD)
             .ok_or_else(|| {
                 Error::Config(format!(
-                    "UTC MJD {} + {} s is not supported (before 1972-01-01 or not finite)",
+                    "UTC MJD {} + {} s is not supported (before 1972-01-01, after 2099-12-31 \
+                     where the analytic Earth model ends, or not finite)",
                     utc.mjd, utc.sec
                 ))
             })?;

@@ -50,7 +50,7 @@ fn leap_second_is_continuous_in_tdb() {
 }
 
 #[test]
-fn times_before_1972_are_refused_and_late_ones_warn() {
+fn times_before_1972_or_after_2099_are_refused_and_late_ones_warn() {
     let early = utc_to_barycentric_tdb(UtcEpoch::new(41_000, 0.0), &site(), 0.0, 0.0);
     assert!(matches!(early, Err(Error::Config(_))));
     let late = convert(leap::LEAP_TABLE_VALID_UNTIL_MJD + 1, 0.0);
@@ -62,6 +62,17 @@ fn times_before_1972_are_refused_and_late_ones_warn() {
     let beyond = convert(75_000, 0.0);
     assert_eq!(beyond.warnings.len(), 3);
     assert!(beyond.warnings[2].to_string().contains("epv00"));
+    // 2099-12-31 is the last day of epv00's span; MJD 999999 used to convert with
+    // its warning's "errors up to ~45 µs".
+    let last = convert(88_068, 86_399.0);
+    assert!(last.warnings[2].to_string().contains("epv00"));
+    for mjd in [88_069, 999_999] {
+        let after = utc_to_barycentric_tdb(UtcEpoch::new(mjd, 0.0), &site(), 0.0, 0.0);
+        assert!(
+            matches!(&after, Err(Error::Config(m)) if m.contains("after 2099-12-31")),
+            "{after:?}"
+        );
+    }
 }
 
 #[test]

@@ -50,8 +50,8 @@ pub fn label(cat: &mut Catalogue, a: LabelArgs) -> anyhow::Result<()> {
         .reviewer
         .or_else(|| std::env::var("USER").ok())
         .unwrap_or_else(|| "unknown".into());
-    cat.label(&ids, &a.label, &reviewer, &a.comment)?;
-    say!("labelled {} candidate(s) {:?}", ids.len(), a.label)?;
+    let n = cat.label(&ids, &a.label, &reviewer, &a.comment)?;
+    say!("labelled {n} candidate(s) {:?}", a.label)?;
     Ok(())
 }
 
@@ -129,6 +129,9 @@ pub fn promote(cat: &mut Catalogue, a: PromoteArgs) -> anyhow::Result<()> {
     for (id, p) in ids.iter().zip(cat.promote_all(&ids, a.to.as_deref(), tol)?) {
         let what = if p.new { "is now" } else { "already was" };
         say!("candidate {id} {what} burst {} of {}", p.burst_id, p.source)?;
+    }
+    if ids.is_empty() {
+        say!("no candidate matches; nothing promoted")?;
     }
     Ok(())
 }

@@ -10,7 +10,8 @@ use super::output::{Format, opt, write_rows};
 #[command(after_help = "\
 Counts bursts with S/N >= --snr-min against the exposure searched at least that
 deep (intervals with a threshold <= --snr-min, or none recorded), overlaps merged.
-The rate interval uses exact Poisson limits (Gehrels 1986, ApJ 303, 336).
+Bursts that arrived outside that exposure are counted in outside_exposure and left
+out of the rate. The rate interval uses exact Poisson limits (Gehrels 1986, ApJ 303, 336).
 
 Examples:
   burstbook book summary
@@ -43,6 +44,7 @@ pub fn run(cat: &Catalogue, a: SummaryArgs) -> anyhow::Result<()> {
     let headers = [
         "source",
         "bursts",
+        "outside_exposure",
         "exposure_h",
         "rate_per_h",
         "rate_lo_per_h",
@@ -61,6 +63,7 @@ pub fn run(cat: &Catalogue, a: SummaryArgs) -> anyhow::Result<()> {
             vec![
                 s.source.clone(),
                 s.n_bursts.to_string(),
+                s.n_outside_exposure.to_string(),
                 format!("{:.3}", s.exposure_hours),
                 opt(s.rate_per_hour, 4),
                 opt(s.rate_interval_per_hour.map(|r| r.lower), 4),

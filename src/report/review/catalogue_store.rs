@@ -41,6 +41,7 @@ impl LabelStore for CatalogueStore {
     fn record(&mut self, id: i64, label: ReviewLabel, comment: &str) -> Result<()> {
         self.catalogue
             .label(&[id], label.as_str(), &self.reviewer, comment)
+            .map(|_| ())
     }
 }
 
