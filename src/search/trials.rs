@@ -128,9 +128,15 @@ pub fn count(
         terms,
     };
     t.expected_false_alarms = t.expected_at(threshold);
-    t.effective_trials = t.expected_false_alarms / gaussian_tail(threshold);
+    // Q(s) underflows f64 near 38σ (0/0 made the count NaN for --snr 40); the ratio
+    // barely changes with s that far out, so it is taken at 30σ there.
+    let s = threshold.min(EFFECTIVE_TRIALS_MAX_SNR);
+    t.effective_trials = t.expected_at(s) / gaussian_tail(s);
     t
 }
+
+/// Highest threshold at which the effective trials are evaluated.
+const EFFECTIVE_TRIALS_MAX_SNR: f64 = 30.0;
 
 #[cfg(test)]
 mod tests {
@@ -176,5 +182,15 @@ mod tests {
         let expected = 1000.0 * (upcrossing_rate(5.0, 1) + upcrossing_rate(5.0, 4));
         assert!((t.expected_false_alarms - expected).abs() < 1e-15);
         assert!((t.expected_at(5.0) - t.expected_false_alarms).abs() < 1e-18);
+        // With no correlation (w = 1) the effective trials are the starts times
+        // 1 − Q(s), whatever the threshold; they were NaN above ~38σ.
+        for s in [5.0, 30.0, 40.0, 1e3] {
+            let t = count(&plan, &[vec![1]], &[vec![1]], &[1000.0], 400.0, 1400.0, s);
+            assert!(
+                (t.effective_trials / 1000.0 - 1.0).abs() < 1e-6,
+                "{s}: {t:?}"
+            );
+            assert!(t.expected_false_alarms.is_finite() && t.expected_false_alarms >= 0.0);
+        }
     }
 }
