@@ -268,6 +268,16 @@ mod tests {
         assert_eq!((big.dm_lo, big.dm_hi), (10.0, 14.5));
     }
 
+    /// A pulse at `dm` arriving at `t_inf_s`, `width_s` wide, of S/N `snr`.
+    fn event(dm: f64, t_inf_s: f64, width_s: f64, snr: f64) -> Event {
+        Event {
+            t_inf_s,
+            dm,
+            width_s,
+            snr,
+        }
+    }
+
     /// The sweep of a 1200–1600 MHz band sampled at 1 ms.
     fn sweep_1200_1600() -> Sweep {
         Sweep {
@@ -316,12 +326,6 @@ mod tests {
     #[test]
     fn a_distinct_pulse_within_a_faint_smeared_echo_is_not_merged() {
         let sweep = sweep_1200_1600();
-        let event = |dm: f64, t_inf_s: f64, width_s: f64, snr: f64| Event {
-            t_inf_s,
-            dm,
-            width_s,
-            snr,
-        };
         // DM 1200, 16 ms, S/N 12: at DM 40 its echo lies 1160·kν⁻² = 1.88–3.34 s later,
         // spread over 1.46 s, keeping √(16 ms / 1.46 s) ≈ 0.10 of its S/N.
         let leader = event(1200.0, 10.0, 16e-3, 12.0);
@@ -350,12 +354,6 @@ mod tests {
     #[test]
     fn echoes_at_the_low_frequency_end_of_the_smear_merge() {
         let sweep = sweep_1200_1600();
-        let event = |dm: f64, t_inf_s: f64, width_s: f64, snr: f64| Event {
-            t_inf_s,
-            dm,
-            width_s,
-            snr,
-        };
         let leader = event(499.98, 5.0001, 2.048e-3, 965.4);
         let later = event(400.59, 5.2837, 1.024e-3, 11.3);
         let earlier = event(601.11, 4.7117, 1.024e-3, 10.6);

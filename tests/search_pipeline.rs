@@ -663,20 +663,8 @@ fn eight_bit_data_read_as_bytes_finds_what_decoded_reads_find() {
 /// be unsure or rfi, and every burst still astrophysical.
 #[test]
 fn impulse_trains_under_changing_masks_are_not_called_astrophysical() {
-    use burstbook::obs::{MemorySource, SampleSink};
-    use burstbook::simulate::{Scenario, Simulation, TruthKind, write_observation};
-
-    #[derive(Default)]
-    struct Rows(Vec<f32>);
-    impl SampleSink for Rows {
-        fn write_rows(&mut self, rows: &[f32]) -> burstbook::Result<()> {
-            self.0.extend_from_slice(rows);
-            Ok(())
-        }
-        fn finish(self: Box<Self>) -> burstbook::Result<()> {
-            Ok(())
-        }
-    }
+    use burstbook::obs::MemorySource;
+    use burstbook::simulate::{Scenario, Simulation, TruthKind};
 
     let scenario = Scenario::parse(
         r#"
@@ -724,9 +712,8 @@ snr_range = [14.0, 20.0]
     .unwrap();
     for seed in [1, 3] {
         let sim = Simulation::new(&scenario, seed).unwrap();
-        let mut rows = Rows::default();
-        write_observation(&sim, &mut rows).unwrap();
-        let source = Box::new(MemorySource::new(sim.header.clone(), rows.0));
+        let rows = common::simulated_rows(&sim);
+        let source = Box::new(MemorySource::new(sim.header.clone(), rows));
         let r = search_source(source, "trains", &SearchConfig::default(), None).unwrap();
         let bursts: Vec<f64> = sim
             .truth

@@ -1,28 +1,15 @@
 //! End-to-end checks of the simulator through its public API: determinism, where
 //! bursts and interference land, S/N recovered by a plain search, scenario errors.
 
+mod common;
+
 use burstbook::dedisperse::channel_delays;
-use burstbook::obs::{Block, BlockReader, Header, MemorySource, SampleSink};
+use burstbook::obs::{Block, BlockReader, Header, MemorySource};
 use burstbook::simulate::{
     Burst, Generator, Scenario, Simulation, Spectrum, TruthKind, add_burst, boxcar_snr,
-    expected_snr, write_observation, write_truth,
+    expected_snr, write_truth,
 };
-
-/// Collects rows in memory (stands in for a file writer).
-#[derive(Default)]
-struct VecSink {
-    rows: Vec<f32>,
-}
-
-impl SampleSink for VecSink {
-    fn write_rows(&mut self, rows: &[f32]) -> burstbook::Result<()> {
-        self.rows.extend_from_slice(rows);
-        Ok(())
-    }
-    fn finish(self: Box<Self>) -> burstbook::Result<()> {
-        Ok(())
-    }
-}
+use common::simulated_rows;
 
 /// A small scenario: 64 channels, 1 ms, `length_s`, float samples of unit σ around 0
 /// (or 8-bit around 96 ± 12), plus `extra` TOML.
@@ -66,14 +53,6 @@ sefd_jy = 20.0
     )
 }
 
-fn all_rows(sim: &Simulation) -> Vec<f32> {
-    let mut sink = VecSink::default();
-    write_observation(sim, &mut sink).unwrap();
-    let rows = std::mem::take(&mut sink.rows);
-    Box::new(sink).finish().unwrap();
-    rows
-}
-
 const BURSTS: &str = r#"
 [[burst]]
 t_inf_s = 0.5
@@ -103,9 +82,9 @@ modulation_period_s = 0.7
 #[test]
 fn same_seed_gives_identical_data_and_other_seeds_differ() {
     let s = scenario(3.0, 8, true, BURSTS);
-    let a = all_rows(&Simulation::new(&s, 11).unwrap());
-    let b = all_rows(&Simulation::new(&s, 11).unwrap());
-    let c = all_rows(&Simulation::new(&s, 12).unwrap());
+    let a = simulated_rows(&Simulation::new(&s, 11).unwrap());
+    let b = simulated_rows(&Simulation::new(&s, 11).unwrap());
+    let c = simulated_rows(&Simulation::new(&s, 12).unwrap());
     assert_eq!(a.len(), 3000 * 64);
     assert!(a == b, "same seed, same rows");
     assert!(a != c, "another seed, other rows");
@@ -132,8 +111,8 @@ fn same_seed_gives_identical_data_and_other_seeds_differ() {
 fn bursts_do_not_change_the_noise() {
     let quiet = scenario(3.0, 32, true, "");
     let busy = scenario(3.0, 32, true, BURSTS.split("[[rfi").next().unwrap());
-    let a = all_rows(&Simulation::new(&quiet, 4).unwrap());
-    let b = all_rows(&Simulation::new(&busy, 4).unwrap());
+    let a = simulated_rows(&Simulation::new(&quiet, 4).unwrap());
+    let b = simulated_rows(&Simulation::new(&busy, 4).unwrap());
     // All bursts arrive after 0.2 s; the first 100 ms are untouched.
     assert!(a[..100 * 64] == b[..100 * 64]);
     assert!(a != b);
@@ -238,7 +217,7 @@ fn plain_search_recovers_expected_snr_in_both_band_orders() {
             fluence_jy_ms: None,
         });
         let sim = Simulation::new(&with_burst, 3).unwrap();
-        let rows = all_rows(&sim);
+        let rows = simulated_rows(&sim);
         let series = dedisperse_sum(&h, &rows, b.dm, &|_, v| f64::from(v));
         let found = boxcar_snr(&series, 64).snr;
         assert!((found - 25.0).abs() < 3.0, "with noise {found}");
@@ -274,7 +253,7 @@ freq_hi_mhz = 1500.0
     assert_eq!(kinds(TruthKind::RfiImpulse), 1);
     assert_eq!(kinds(TruthKind::RfiTrainPulse), 4); // 0.25, 0.75, 1.25, 1.75 s
     assert_eq!(kinds(TruthKind::RfiNarrowband), 2);
-    let rows = all_rows(&sim);
+    let rows = simulated_rows(&sim);
 
     // The carrier's channel has a raised mean; its neighbours do not.
     let carrier = h
@@ -359,7 +338,7 @@ freq_hi_mhz = 1500.0
 fn generator_output_streams_through_memory_source_blocks() {
     let s = scenario(3.0, 8, false, BURSTS);
     let sim = Simulation::new(&s, 1).unwrap();
-    let rows = all_rows(&sim);
+    let rows = simulated_rows(&sim);
     let source = MemorySource::new(sim.header.clone(), rows.clone());
     let mut reader = BlockReader::new(source, 1000, 100).unwrap();
     let mut n = 0;

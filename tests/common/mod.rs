@@ -3,8 +3,10 @@
 //! Lorimer & Kramer 2005) with bursts from the simulator.
 #![allow(dead_code)]
 
-use burstbook::obs::{Block, Header, MemorySource, SampleSource, Site, UtcEpoch};
-use burstbook::simulate::{Burst, Spectrum, add_burst, with_expected_snr};
+use burstbook::obs::{Block, Header, MemorySource, SampleSink, SampleSource, Site, UtcEpoch};
+use burstbook::simulate::{
+    Burst, Simulation, Spectrum, add_burst, with_expected_snr, write_observation,
+};
 use rand::SeedableRng;
 use rand_distr::{Distribution, Gamma, Normal};
 
@@ -108,4 +110,29 @@ pub fn add(h: &Header, data: &mut Vec<f32>, b: &Burst) {
 /// The data as a boxed source.
 pub fn source(h: Header, data: Vec<f32>) -> Box<dyn SampleSource> {
     Box::new(MemorySource::new(h, data))
+}
+
+/// Collects written rows in memory (stands in for a file writer).
+#[derive(Default)]
+struct VecSink {
+    rows: Vec<f32>,
+}
+
+impl SampleSink for VecSink {
+    fn write_rows(&mut self, rows: &[f32]) -> burstbook::Result<()> {
+        self.rows.extend_from_slice(rows);
+        Ok(())
+    }
+    fn finish(self: Box<Self>) -> burstbook::Result<()> {
+        Ok(())
+    }
+}
+
+/// Every sample of a simulation, `[time, channel]`, as its file would hold them.
+pub fn simulated_rows(sim: &Simulation) -> Vec<f32> {
+    let mut sink = VecSink::default();
+    write_observation(sim, &mut sink).unwrap();
+    let rows = std::mem::take(&mut sink.rows);
+    Box::new(sink).finish().unwrap();
+    rows
 }
