@@ -279,3 +279,55 @@ fn a_very_bright_pulse_is_one_candidate() {
         assert_eq!(rows.len(), 1, "seed {seed}: {rows:?}");
     }
 }
+
+// A wide burst needs wide boxcars, and asking for them is one flag: the baseline
+// window follows the widest boxcar (10×) unless a configuration file sets it.
+#[test]
+fn a_wide_burst_is_found_with_only_the_width_flag() {
+    let dir = tempfile::tempdir().unwrap();
+    let file = dir.path().join("wide.json");
+    let scenario = SCENARIO
+        .replace("length_s = 12.0", "length_s = 20.0")
+        .replace("width_ms = 4.0", "width_ms = 300.0");
+    let sim = Simulation::new(&Scenario::parse(&scenario).unwrap(), 4).unwrap();
+    let mut sink = obs::create(&file, &sim.header, Container::Native).unwrap();
+    write_observation(&sim, sink.as_mut()).unwrap();
+    sink.finish().unwrap();
+    let out = dir.path().join("out");
+    let o = burstbook(&[
+        "search",
+        file.to_str().unwrap(),
+        "--dm-max",
+        "300",
+        "--max-width-ms",
+        "600",
+        "--out",
+        out.to_str().unwrap(),
+        "--no-catalogue",
+    ]);
+    let stderr = String::from_utf8_lossy(&o.stderr);
+    assert!(o.status.success(), "{stderr}");
+    let json: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("candidates.json")).unwrap())
+            .unwrap();
+    assert_eq!(json["config"]["baseline_s"], 6.0);
+    let best = json["candidates"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .max_by(|a, b| {
+            a["snr"]
+                .as_f64()
+                .unwrap()
+                .total_cmp(&b["snr"].as_f64().unwrap())
+        })
+        .expect("the wide burst is found");
+    let (t, width_ms, snr) = (
+        best["t_inf_s"].as_f64().unwrap(),
+        best["width_ms"].as_f64().unwrap(),
+        best["snr"].as_f64().unwrap(),
+    );
+    assert!((t - 4.0).abs() < 0.3, "{best}");
+    assert!((150.0..=600.0).contains(&width_ms), "{best}");
+    assert!(snr > 20.0, "{best}");
+}

@@ -41,7 +41,8 @@ pub struct Args {
     /// Detection threshold on the matched-filter S/N.
     #[arg(long)]
     pub snr: Option<f64>,
-    /// Widest boxcar in milliseconds.
+    /// Widest boxcar in milliseconds (a baseline window the configuration does not
+    /// set follows it: max(1 s, 10 × this)).
     #[arg(long)]
     pub max_width_ms: Option<f64>,
     /// Apply the zero-DM filter.
@@ -100,7 +101,7 @@ fn config(args: &Args) -> anyhow::Result<SearchConfig> {
         c.snr_threshold = v;
     }
     if let Some(v) = args.max_width_ms {
-        c.max_width_s = v * 1e-3;
+        c.set_max_width_s(v * 1e-3);
     }
     if let Some(v) = args.block_s {
         c.block_s = v;

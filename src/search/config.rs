@@ -59,6 +59,14 @@ impl Default for TriageConfig {
     }
 }
 
+/// The baseline window of the default widest boxcar (0.1 s), in seconds.
+const DEFAULT_BASELINE_S: f64 = 1.0;
+
+/// Baseline window per unit of the widest boxcar when no baseline is set: ten times
+/// keeps a pulse's own contribution to the running median below a tenth of the window
+/// (common practice), as the defaults (1 s against 0.1 s) do.
+pub const BASELINE_PER_WIDTH: f64 = 10.0;
+
 /// Everything that defines a search run.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(default, deny_unknown_fields)]
@@ -73,8 +81,15 @@ pub struct SearchConfig {
     /// Gaussian pulse at 0.933 of the best boxcar; see `search::boxcar`).
     pub width_ratio: f64,
     /// Length of the running baseline (median) window in seconds; must be well above
-    /// `max_width_s` so a pulse does not pull its own baseline.
+    /// `max_width_s` so a pulse does not pull its own baseline. Unless a
+    /// configuration file sets it, it follows the widest boxcar:
+    /// max(1 s, [`BASELINE_PER_WIDTH`] × `max_width_s`) (see [`Self::set_max_width_s`]).
     pub baseline_s: f64,
+    /// Whether `baseline_s` was set by the user (a configuration file's key) rather
+    /// than derived from `max_width_s`. Not part of the JSON or the hash: the
+    /// baseline used is.
+    #[serde(skip)]
+    pub baseline_is_set: bool,
     /// New samples per block in seconds (each block also carries the overlap).
     pub block_s: f64,
     /// Dedispersion kernel (`fast` or `reference`).
@@ -99,7 +114,8 @@ impl Default for SearchConfig {
             snr_threshold: 7.5,
             max_width_s: 0.1,
             width_ratio: std::f64::consts::SQRT_2,
-            baseline_s: 1.0,
+            baseline_s: DEFAULT_BASELINE_S,
+            baseline_is_set: false,
             block_s: 4.0,
             kernel: Kernel::default(),
             clean: CleanConfig::default(),
@@ -117,13 +133,27 @@ impl SearchConfig {
     /// Unreadable file, bad TOML, unknown keys or values out of range.
     pub fn from_toml_file(path: &std::path::Path) -> Result<Self> {
         let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
-        let config: SearchConfig =
+        let table: toml::Table =
             toml::from_str(&text).map_err(|e| Error::bad_input(path, toml_message(&text, &e)))?;
+        let mut config: SearchConfig =
+            toml::from_str(&text).map_err(|e| Error::bad_input(path, toml_message(&text, &e)))?;
+        config.baseline_is_set = table.contains_key("baseline_s");
+        config.set_max_width_s(config.max_width_s);
         config.validate().map_err(|e| match e {
             Error::Config(msg) => Error::bad_input(path, msg),
             other => other,
         })?;
         Ok(config)
+    }
+
+    /// Sets the widest boxcar, in seconds; a baseline window the user did not set
+    /// follows it (max(1 s, [`BASELINE_PER_WIDTH`] × width)), so asking for wider
+    /// boxcars needs no second setting.
+    pub fn set_max_width_s(&mut self, max_width_s: f64) {
+        self.max_width_s = max_width_s;
+        if !self.baseline_is_set && max_width_s.is_finite() {
+            self.baseline_s = DEFAULT_BASELINE_S.max(BASELINE_PER_WIDTH * max_width_s);
+        }
     }
 
     /// The configuration as compact JSON (field order fixed by the struct).
@@ -176,8 +206,8 @@ impl SearchConfig {
         if self.baseline_s.is_nan() || self.baseline_s < 2.0 * self.max_width_s {
             return bad(format!(
                 "baseline window {} s must be at least twice the widest boxcar {} s \
-                 (raise baseline_s in the configuration file, 1 s by default, \
-                 or search narrower boxcars)",
+                 (raise baseline_s in the configuration file, or leave it out to have \
+                 it follow the widest boxcar)",
                 self.baseline_s, self.max_width_s
             ));
         }
@@ -291,6 +321,33 @@ mod tests {
         let mut c = SearchConfig::default();
         c.baseline_s = c.max_width_s;
         assert!(c.validate().is_err());
+    }
+
+    // Asking for wider boxcars needs no second setting: a baseline the user did not
+    // set follows the widest boxcar; one the user set is kept, and checked.
+    #[test]
+    fn an_unset_baseline_follows_the_widest_boxcar() {
+        let mut c = SearchConfig::default();
+        c.set_max_width_s(0.8);
+        assert_eq!(c.baseline_s, 8.0);
+        assert!(c.validate().is_ok());
+        c.set_max_width_s(0.01);
+        assert_eq!(c.baseline_s, 1.0);
+
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("s.toml");
+        std::fs::write(&path, "max_width_s = 0.5\n").unwrap();
+        let c = SearchConfig::from_toml_file(&path).unwrap();
+        assert_eq!(c.baseline_s, 5.0);
+
+        std::fs::write(&path, "baseline_s = 1.5\n").unwrap();
+        let mut c = SearchConfig::from_toml_file(&path).unwrap();
+        c.set_max_width_s(0.8);
+        assert_eq!(c.baseline_s, 1.5);
+        let e = c.validate().unwrap_err().to_string();
+        assert!(e.contains("baseline window 1.5 s"), "{e}");
+        std::fs::write(&path, "baseline_s = 1.5\nmax_width_s = 0.9\n").unwrap();
+        assert!(SearchConfig::from_toml_file(&path).is_err());
     }
 
     // Every problem of a configuration file comes back on one line naming the file:
