@@ -99,12 +99,6 @@ pub fn verdict(
 ) -> (Verdict, Vec<String>) {
     let (snr, dm, expected_dm0_ratio) = (e.snr, e.dm, e.dm0_ratio);
     let mut rfi = Vec::new();
-    if f.band_fraction < config.min_band_fraction {
-        rfi.push(format!(
-            "signal in only {:.0} % of the band",
-            100.0 * f.band_fraction
-        ));
-    }
     let misfit_limit = config.max_dm_curve_misfit + 1.0 / snr.max(1.0);
     if f.dm_curve_misfit > misfit_limit {
         rfi.push(format!(
@@ -140,6 +134,18 @@ pub fn verdict(
             vec![format!(
                 "S/N {dm0_snr:.1} at DM 0 against {snr:.1} at DM {dm:.1}: not clearly dispersed (a gap of {:.1} is needed)",
                 config.min_dm0_snr_gap
+            )],
+        );
+    }
+    // A signal that passed the dispersion tests in a small part of the band may be a
+    // band-limited burst (repeating sources emit bursts tens of MHz wide) as well as
+    // interference: left for a person to judge, not thrown away.
+    if f.band_fraction < config.min_band_fraction {
+        return (
+            Verdict::Unsure,
+            vec![format!(
+                "dispersed, but in only {:.0} % of the band: a band-limited burst or interference",
+                100.0 * f.band_fraction
             )],
         );
     }
@@ -226,11 +232,19 @@ mod tests {
             ..e
         };
         assert_eq!(verdict(&good, &low, &cfg).0, Verdict::Unsure);
+        // Dispersed in a small part of the band: a band-limited burst or interference.
         let narrow = TriageFeatures {
             band_fraction: 0.05,
             ..good
         };
-        assert_eq!(verdict(&narrow, &e, &cfg).0, Verdict::Rfi);
+        let (v, reasons) = verdict(&narrow, &e, &cfg);
+        assert_eq!(v, Verdict::Unsure);
+        assert!(reasons[0].contains("5 % of the band"), "{reasons:?}");
+        let narrow_flat = TriageFeatures {
+            snr_dm0_ratio: 1.0,
+            ..narrow
+        };
+        assert_eq!(verdict(&narrow_flat, &e, &cfg).0, Verdict::Rfi);
         // A weak pulse's DM-0 S/N sits at the noise maximum, not at the smearing ratio.
         let weak = TriageFeatures {
             snr_dm0_ratio: 0.35,

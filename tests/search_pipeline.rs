@@ -262,6 +262,29 @@ fn interference_is_not_called_astrophysical() {
     assert!(others.clone().all(|c| c.verdict != Verdict::Astrophysical));
 }
 
+// A burst confined to a few tens of MHz (as bursts of repeating sources often are)
+// passes the dispersion tests but fills little of the band: it is left `unsure` for a
+// person to judge, not discarded as interference.
+#[test]
+fn a_band_limited_burst_is_unsure_not_rfi() {
+    let n = 8_000u64;
+    let h = header(N_CHAN, n, TSAMP);
+    let mut b = burst(&h, 4.0, 200.0, 4e-3, 1.0);
+    b.spectrum = burstbook::simulate::Spectrum::Gaussian {
+        centre_mhz: 1300.0,
+        fwhm_mhz: 30.0,
+    };
+    let b = burstbook::simulate::with_expected_snr(&h, &b, 25.0).unwrap();
+    let r = run(n, 8, &[b], &config());
+    let found = near(&r, b.t_inf_s);
+    assert_eq!(found.len(), 1, "{:?}", r.candidates);
+    let c = found[0];
+    assert!((c.dm - 200.0).abs() < 20.0, "{c:?}");
+    assert!(c.features.band_fraction < 0.15, "{c:?}");
+    assert_eq!(c.verdict, Verdict::Unsure, "{:?}", c.reasons);
+    assert!(c.reasons[0].contains("of the band"), "{:?}", c.reasons);
+}
+
 // With default settings a strong broadband impulse is clipped before dedispersion.
 #[test]
 fn strong_impulse_is_clipped() {

@@ -43,7 +43,8 @@ pub struct TriageConfig {
     pub min_dm0_snr_gap: f64,
     /// RMS misfit of the S/N-versus-DM curve above which the candidate is interference.
     pub max_dm_curve_misfit: f64,
-    /// Band fraction below which the signal is called narrow-band interference.
+    /// Band fraction below which a signal that passes the dispersion tests is only
+    /// `unsure`: a band-limited burst or narrow-band interference.
     pub min_band_fraction: f64,
 }
 
