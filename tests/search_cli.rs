@@ -331,3 +331,46 @@ fn a_wide_burst_is_found_with_only_the_width_flag() {
     assert!((150.0..=600.0).contains(&width_ms), "{best}");
     assert!(snr > 20.0, "{best}");
 }
+
+// Dozens of undispersed pulses (a band-limited impulse train at DM 0) make the
+// summary suggest the zero-DM filter; with the filter on they are gone, and so is
+// the note.
+#[test]
+fn many_undispersed_candidates_suggest_the_zero_dm_filter() {
+    let dir = tempfile::tempdir().unwrap();
+    let file = dir.path().join("train.json");
+    let scenario = SCENARIO.split("[[rfi.impulse]]").next().unwrap().to_owned()
+        + "[[rfi.train]]\nfirst_s = 0.3\nperiod_s = 0.1\nwidth_ms = 2.0\nsnr = 8.0\n\
+           freq_lo_mhz = 1250.0\nfreq_hi_mhz = 1450.0\n";
+    let sim = Simulation::new(&Scenario::parse(&scenario).unwrap(), 1).unwrap();
+    let mut sink = obs::create(&file, &sim.header, Container::Native).unwrap();
+    write_observation(&sim, sink.as_mut()).unwrap();
+    sink.finish().unwrap();
+    let search = |extra: &[&str]| {
+        let out = dir.path().join("out");
+        let mut args = vec![
+            "search",
+            file.to_str().unwrap(),
+            "--dm-max",
+            "300",
+            "--out",
+            out.to_str().unwrap(),
+            "--no-catalogue",
+        ];
+        args.extend_from_slice(extra);
+        let o = burstbook(&args);
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+        String::from_utf8_lossy(&o.stdout).into_owned()
+    };
+    let plain = search(&[]);
+    let note = plain
+        .lines()
+        .find(|l| l.contains("nearly as bright at DM 0"))
+        .unwrap_or_else(|| panic!("no zero-DM note: {plain}"));
+    let count: usize = note.split_whitespace().nth(1).unwrap().parse().unwrap();
+    assert!(count >= 10, "{note}");
+    assert!(note.contains("--zero-dm"), "{note}");
+    let filtered = search(&["--zero-dm"]);
+    assert!(!filtered.contains("nearly as bright at DM 0"), "{filtered}");
+    assert!(filtered.contains("1 astrophysical"), "{filtered}");
+}

@@ -248,7 +248,7 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     let json = args.out.join("candidates.json");
     output::write_csv(&csv, &files)?;
     output::write_json(&json, &files, &config)?;
-    print_summary(&files, args.top, config.plan.dm_max)?;
+    print_summary(&files, args.top, &config)?;
     say!("wrote {} and {}", csv.display(), json.display())?;
     match failed.len() {
         0 => Ok(()),
@@ -280,10 +280,15 @@ fn distinct_files(paths: &[PathBuf]) -> Vec<&PathBuf> {
         .collect()
 }
 
-/// Prints per-file totals and the `top` brightest candidates; `dm_max` is the highest
-/// DM asked for, which a short recording may not reach.
-fn print_summary(files: &[FileOutcome], top: usize, dm_max: f64) -> std::io::Result<()> {
+/// Undispersed candidates in one file from which the summary suggests the zero-DM
+/// filter: a few are ordinary, dozens mean an impulsive transmitter nearby.
+const UNDISPERSED_HINT_COUNT: usize = 10;
+
+/// Prints per-file totals and the `top` brightest candidates. `config.plan.dm_max` is
+/// the highest DM asked for, which a short recording may not reach.
+fn print_summary(files: &[FileOutcome], top: usize, config: &SearchConfig) -> std::io::Result<()> {
     use burstbook::Verdict;
+    let dm_max = config.plan.dm_max;
     let searched = files.iter().filter_map(|f| match f {
         FileOutcome::Searched(r) => Some(&**r),
         _ => None,
@@ -315,6 +320,19 @@ fn print_summary(files: &[FileOutcome], top: usize, dm_max: f64) -> std::io::Res
                 "  note: {} is shorter than every trial's sweep: nothing was searched",
                 r.file
             )?,
+        }
+        let undispersed = r
+            .candidates
+            .iter()
+            .filter(|c| c.features.snr_dm0_ratio >= config.triage.ambiguous_dm0_ratio)
+            .count();
+        if undispersed >= UNDISPERSED_HINT_COUNT && !config.clean.zero_dm {
+            say!(
+                "  note: {undispersed} candidates in {} are nearly as bright at DM 0 as at \
+                 their best DM (undispersed interference?); --zero-dm removes such signals \
+                 before dedispersion",
+                r.file
+            )?;
         }
     }
     let mut all: Vec<_> = files.iter().flat_map(FileOutcome::candidates).collect();
