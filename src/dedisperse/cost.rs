@@ -19,7 +19,8 @@ pub struct PlanCost {
     /// Scratch memory of the fast kernel (the stage-1 rows of one chunk, the
     /// kernel's own buffer size), bytes.
     pub fast_scratch_bytes: f64,
-    /// Dedispersed output, bytes per second of data (f32, all steps).
+    /// Dedispersed output, bytes per second of data (bfloat16, as the kernels store
+    /// it; all steps).
     pub output_bytes_per_s: f64,
     /// Input samples a block must carry beyond its last valid output sample.
     pub overlap_samples: usize,
@@ -50,7 +51,7 @@ impl DmPlan {
             fast += kernel.stage2_adds_per_sample() as f64 * per_s / ds;
             fast += n_chan * (tree_ds - 1.0) / tree_ds * per_s;
             scratch = scratch.max((stage1_len(&kernel) * size_of::<Bf16>()) as f64);
-            output += step.dms.len() as f64 * per_s / ds * 4.0;
+            output += step.dms.len() as f64 * per_s / ds * size_of::<Bf16>() as f64;
         }
         PlanCost {
             reference_adds_per_s: self.n_trials() as f64 * n_chan * per_s,
