@@ -164,3 +164,29 @@ fn absurd_or_negative_requests_get_one_line() {
         cli_common::assert_one_line_failure(&out, &[needle]);
     }
 }
+
+// `--average-samples` and `--average-channels` plan a file as a search averaging on
+// read sees it: a quarter of the sample rate, half the channels; a channel factor
+// that does not divide the channels is one line naming the file.
+#[test]
+fn averaging_flags_plan_the_averaged_file() {
+    let json = |args: &[&str]| -> serde_json::Value {
+        let out = plan(&[&["demo-data/demo.json", "--json"], args].concat());
+        assert_success(&out);
+        serde_json::from_slice(&out.stdout).expect("JSON")
+    };
+    let plain = json(&[]);
+    let averaged = json(&["--average-samples", "4", "--average-channels", "2"]);
+    let n_chan = |r: &serde_json::Value| r["plan"]["freqs_mhz"].as_array().unwrap().len();
+    let tsamp_s = |r: &serde_json::Value| r["plan"]["tsamp_s"].as_f64().unwrap();
+    assert_eq!(2 * n_chan(&averaged), n_chan(&plain));
+    assert_eq!(tsamp_s(&averaged), 4.0 * tsamp_s(&plain));
+
+    let out = plan(&["demo-data/demo.json", "--average-channels", "3"]);
+    assert!(!out.status.success());
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("demo.json") && err.contains("groups of 3") && err.lines().count() == 1,
+        "{err}"
+    );
+}

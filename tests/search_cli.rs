@@ -374,3 +374,78 @@ fn many_undispersed_candidates_suggest_the_zero_dm_filter() {
     assert!(!filtered.contains("nearly as bright at DM 0"), "{filtered}");
     assert!(filtered.contains("1 astrophysical"), "{filtered}");
 }
+
+// Low frequencies: every block holds the whole sweep at the input's resolution. A
+// search refused for memory fits once samples and channels are averaged as they are
+// read, and still finds the burst at its DM and time; the catalogue keeps the file's
+// own header and counts searched samples in the file's samples.
+#[test]
+fn averaging_on_read_fits_a_low_frequency_search_into_less_memory() {
+    let dir = tempfile::tempdir().unwrap();
+    let file = dir.path().join("low.json");
+    let scenario = SCENARIO
+        .replace("tsamp_s = 1e-3", "tsamp_s = 256e-6")
+        .replace("first_chan_mhz = 1593.75", "first_chan_mhz = 199.8046875")
+        .replace("chan_step_mhz = -12.5", "chan_step_mhz = -0.390625")
+        .replace("n_chan = 32", "n_chan = 256")
+        .replace("dm = 180.0", "dm = 12.0")
+        .replace("width_ms = 4.0\nsnr = 25.0", "width_ms = 20.0\nsnr = 40.0");
+    let scenario = scenario.split("[[rfi.impulse]]").next().unwrap();
+    let sim = Simulation::new(&Scenario::parse(scenario).unwrap(), 5).unwrap();
+    let mut sink = obs::create(&file, &sim.header, Container::Native).unwrap();
+    write_observation(&sim, sink.as_mut()).unwrap();
+    sink.finish().unwrap();
+    let out = dir.path().join("out");
+    let catalogue = dir.path().join("cat.sqlite");
+    let search = |extra: &[&str]| {
+        let mut args = vec![
+            "search",
+            file.to_str().unwrap(),
+            "--dm-max",
+            "15",
+            "--memory-limit-gib",
+            "0.05",
+            "--out",
+            out.to_str().unwrap(),
+            "--catalogue",
+            catalogue.to_str().unwrap(),
+        ];
+        args.extend_from_slice(extra);
+        burstbook(&args)
+    };
+    let refused = search(&[]);
+    assert_one_line_failure(&refused, &["low.json", "memory", "--average-samples"]);
+
+    let o = search(&["--average-samples", "8", "--average-channels", "2"]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let json: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("candidates.json")).unwrap())
+            .unwrap();
+    assert_eq!(json["config"]["average"]["samples"], 8);
+    let best = &json["candidates"][0];
+    assert_eq!(json["candidates"].as_array().unwrap().len(), 1, "{json}");
+    assert!((best["dm"].as_f64().unwrap() - 12.0).abs() < 0.5, "{best}");
+    // Within the pulse width, smeared to tens of ms at 100 MHz.
+    let width_s = best["width_ms"].as_f64().unwrap() / 1e3;
+    assert!(
+        (best["t_inf_s"].as_f64().unwrap() - 4.0).abs() < width_s,
+        "{best}"
+    );
+    assert!(best["snr"].as_f64().unwrap() > 25.0, "{best}");
+    assert_eq!(best["verdict"], "astrophysical");
+
+    let db = rusqlite::Connection::open(&catalogue).unwrap();
+    let (freq_lo_mhz, searched): (f64, i64) = db
+        .query_row(
+            "SELECT o.freq_lo_mhz, r.samples_searched FROM observation o \
+             JOIN search_run r ON r.observation_id = o.id",
+            [],
+            |r| Ok((r.get(0)?, r.get(1)?)),
+        )
+        .unwrap();
+    // The file's lowest channel centre, not the averaged pair's (100.390625 MHz).
+    assert_eq!(freq_lo_mhz, 199.8046875 - 255.0 * 0.390625);
+    // 12 s of 256 µs samples is 46 875; all but the sweep's share is searched.
+    assert!((20_000..=46_875).contains(&searched), "{searched}");
+    assert_eq!(searched % 8, 0, "whole averaged samples: {searched}");
+}

@@ -46,7 +46,8 @@ impl Catalogue {
             started_utc,
         );
         run.fraction_masked = Some(result.fraction_masked);
-        run.samples_searched = Some(result.samples_searched);
+        // In the recording's own samples, whatever the search averaged.
+        run.samples_searched = Some(result.samples_searched * config.average.samples as u64);
         self.record_search(obs, &run, &result.candidates)
     }
 

@@ -6,11 +6,15 @@ use std::path::PathBuf;
 
 use anyhow::{Context, bail};
 use burstbook::dedisperse::{DmPlan, PlanReport, PlanRequest, channel_centres_mhz};
+use burstbook::obs::Averaging;
 
 const EXAMPLES: &str = "\
 Examples:
   # Plan for an observation's own band and sample time
   burstbook plan demo-data/demo.json --dm-max 1500
+
+  # The same file as a search averaging 4 samples and 2 channels on read sees it
+  burstbook plan demo-data/demo.json --average-samples 4 --average-channels 2
 
   # Plan for a band given by hand: 1024 channels over 1200-1600 MHz, 64 us samples
   burstbook plan --freq-lo-mhz 1200 --freq-hi-mhz 1600 --channels 1024 --tsamp-us 64 \\
@@ -40,6 +44,12 @@ pub struct Args {
     /// Sample time in microseconds.
     #[arg(long, requires = "freq_lo_mhz")]
     pub tsamp_us: Option<f64>,
+    /// Plan for the file averaged in time by N samples, as `search --average-samples`.
+    #[arg(long, value_name = "N", requires = "file")]
+    pub average_samples: Option<usize>,
+    /// Plan for the file averaged by N adjacent channels, as `search --average-channels`.
+    #[arg(long, value_name = "N", requires = "file")]
+    pub average_channels: Option<usize>,
     /// Lowest trial DM in pc cm⁻³.
     #[arg(long, default_value_t = PlanRequest::default().dm_min)]
     pub dm_min: f64,
@@ -107,7 +117,13 @@ fn band(args: &Args) -> anyhow::Result<(Vec<f64>, f64, f64, Option<f64>)> {
     if let Some(path) = &args.file {
         let source = burstbook::obs::open(path)
             .with_context(|| format!("reading the header of {}", path.display()))?;
-        let h = source.header();
+        let averaging = Averaging {
+            samples: args.average_samples.unwrap_or(1),
+            channels: args.average_channels.unwrap_or(1),
+        };
+        let h = &averaging
+            .header(source.header())
+            .map_err(|m| anyhow::anyhow!("{}: {m}", path.display()))?;
         return Ok((
             h.freqs_mhz.clone(),
             h.chan_bw_mhz,

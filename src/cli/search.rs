@@ -16,6 +16,7 @@ use burstbook::search::{self, SearchConfig};
   burstbook search demo-data/demo.json --out results --catalogue survey.sqlite
   burstbook search demo-data/demo.json --out results --search-again
   burstbook search obs.fits --out results --threads 1     # one worker on a shared machine
+  burstbook search lowband.fits --out results --average-samples 16 --average-channels 4
 
 A file whose content the catalogue already holds a finished search of, with the same
 configuration, is not searched again: one line says so, and its candidates are taken
@@ -57,6 +58,13 @@ pub struct Args {
     /// New samples per block in seconds.
     #[arg(long)]
     pub block_s: Option<f64>,
+    /// Average N adjacent time samples as the data are read (long sweeps at low
+    /// frequencies; see `[average]` in docs/search.md).
+    #[arg(long, value_name = "N")]
+    pub average_samples: Option<usize>,
+    /// Average N adjacent channels as the data are read (N must divide the channels).
+    #[arg(long, value_name = "N")]
+    pub average_channels: Option<usize>,
     /// Memory the search may use, in GiB [default: 90 % of physical memory]. A search
     /// whose blocks and plan would need more is refused before it starts.
     #[arg(long, value_name = "GIB")]
@@ -106,6 +114,8 @@ fn config(args: &Args) -> anyhow::Result<SearchConfig> {
     if let Some(v) = args.block_s {
         c.block_s = v;
     }
+    c.average.samples = args.average_samples.unwrap_or(c.average.samples);
+    c.average.channels = args.average_channels.unwrap_or(c.average.channels);
     c.memory_limit_gib = args.memory_limit_gib.or(c.memory_limit_gib);
     c.clean.zero_dm |= args.zero_dm;
     c.clean.kurtosis &= !args.no_kurtosis;
@@ -180,6 +190,13 @@ pub fn run(args: Args) -> anyhow::Result<()> {
             files.push(FileOutcome::skipped(label, earlier));
             continue;
         }
+        let source = match config.average.wrap(source, &label) {
+            Ok(source) => source,
+            Err(e) => {
+                fail(&mut files, label, e.to_string());
+                continue;
+            }
+        };
         let bar = burstbook::progress::bar(source.header().n_samples, &label);
         let clock = std::time::Instant::now();
         let result = search::search_source_in(&mut workspace, source, &label, &config, Some(&bar));

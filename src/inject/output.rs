@@ -109,7 +109,10 @@ pub fn record(
     result: &InjectionResult,
     config: &SearchConfig,
 ) -> Result<i64> {
-    let obs = ObservationRecord::from_file(path, &result.header)?;
+    // The file's own header: `result.header` is that of the averaged recording when
+    // the search averaged.
+    let header = crate::obs::open(path)?.header().clone();
+    let obs = ObservationRecord::from_file(path, &header)?;
     let s = &result.summary;
     cat.record_completeness(
         &obs,

@@ -123,7 +123,7 @@ impl InjectionRow {
 pub struct InjectionResult {
     /// The observation, as named by the caller.
     pub file: String,
-    /// Its header.
+    /// The header of the recording as searched (averaged when the search averages).
     #[serde(skip)]
     pub header: Header,
     /// Hash of the search configuration ([`SearchConfig::hash`]).
@@ -143,7 +143,8 @@ pub struct InjectionResult {
 }
 
 /// Runs injection-recovery on the recording `open` yields (it is called once per
-/// search, so each pass streams the data afresh; nothing is written back).
+/// search, so each pass streams the data afresh; nothing is written back), averaged
+/// as `config.average` asks.
 /// `progress`, if given, counts searches (the untouched one plus one per pass).
 ///
 /// # Errors
@@ -160,6 +161,9 @@ where
 {
     config.validate()?;
     options.validate()?;
+    // Everything below, bursts included, lives on the averaged recording: a burst
+    // modelled in its wider samples and channels is the average of one modelled finely.
+    let open = || config.average.wrap(open()?, label);
     let first = open()?;
     let header = first.header().clone();
     if header.weights.iter().all(|&w| w == 0.0) {

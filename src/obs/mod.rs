@@ -4,6 +4,7 @@
 //! Add a format by writing a [`SampleSource`] (and optionally a [`SampleSink`]) in its
 //! own file and teaching [`open`] / [`create`] to recognise it.
 
+mod average;
 mod block;
 mod codec;
 pub mod fits;
@@ -13,6 +14,7 @@ pub mod native;
 mod npy;
 pub mod stats;
 
+pub use average::Averaging;
 #[cfg(test)]
 pub(crate) use block::tests::{assert_skips_match_reading, awkward_skips};
 pub use block::{

@@ -7,6 +7,7 @@ use sha2::{Digest, Sha256};
 use crate::clean::CleanConfig;
 use crate::dedisperse::{Kernel, PlanRequest};
 use crate::error::{Error, Result, toml_message};
+use crate::obs::Averaging;
 
 /// How detections are merged into candidates (see [`crate::cluster`]).
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -93,6 +94,11 @@ pub struct SearchConfig {
     pub baseline_is_set: bool,
     /// New samples per block in seconds (each block also carries the overlap).
     pub block_s: f64,
+    /// Time samples and channels averaged as the recording is read (`[average]`;
+    /// none by default). Left out of the JSON, and so of the hash, when nothing is
+    /// averaged, so configurations from before it existed keep their hashes.
+    #[serde(skip_serializing_if = "Averaging::is_none")]
+    pub average: Averaging,
     /// Dedispersion kernel (`fast` or `reference`).
     pub kernel: Kernel,
     /// Interference excision.
@@ -118,6 +124,7 @@ impl Default for SearchConfig {
             baseline_s: DEFAULT_BASELINE_S,
             baseline_is_set: false,
             block_s: 4.0,
+            average: Averaging::default(),
             kernel: Kernel::default(),
             clean: CleanConfig::default(),
             cluster: ClusterConfig::default(),
@@ -223,6 +230,7 @@ impl SearchConfig {
         {
             return bad(format!("memory limit must be positive, got {gib} GiB"));
         }
+        self.average.validate().map_err(Error::Config)?;
         self.clean.validate()?;
         self.cluster.validate()?;
         self.triage.validate()
@@ -349,6 +357,29 @@ mod tests {
         assert!(e.contains("baseline window 1.5 s"), "{e}");
         std::fs::write(&path, "baseline_s = 1.5\nmax_width_s = 0.9\n").unwrap();
         assert!(SearchConfig::from_toml_file(&path).is_err());
+    }
+
+    // Averaging is part of the configuration (and its hash) only when it averages:
+    // configurations from before it existed keep their JSON and hashes.
+    #[test]
+    fn averaging_enters_the_hash_only_when_it_averages() {
+        let plain = SearchConfig::default();
+        assert!(!plain.to_json().contains("average"), "{}", plain.to_json());
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("s.toml");
+        std::fs::write(&path, "[average]\nsamples = 8\nchannels = 2\n").unwrap();
+        let c = SearchConfig::from_toml_file(&path).unwrap();
+        assert_eq!((c.average.samples, c.average.channels), (8, 2));
+        assert!(
+            c.to_json()
+                .contains(r#""average":{"samples":8,"channels":2}"#)
+        );
+        assert_ne!(c.hash(), plain.hash());
+        let back: SearchConfig = serde_json::from_str(&plain.to_json()).unwrap();
+        assert!(back.average.is_none());
+        std::fs::write(&path, "[average]\nsamples = 0\n").unwrap();
+        let e = SearchConfig::from_toml_file(&path).unwrap_err().to_string();
+        assert!(e.contains("s.toml") && e.contains("at least 1"), "{e}");
     }
 
     // Every problem of a configuration file comes back on one line naming the file:

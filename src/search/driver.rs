@@ -82,11 +82,13 @@ pub fn search_file(
     config: &SearchConfig,
     progress: Option<&ProgressBar>,
 ) -> Result<FileResult> {
-    let source = crate::obs::open(path)?;
-    search_source(source, &path.display().to_string(), config, progress)
+    let label = path.display().to_string();
+    let source = config.average.wrap(crate::obs::open(path)?, &label)?;
+    search_source(source, &label, config, progress)
 }
 
-/// Searches any sample source; `label` names it in the candidates and in errors.
+/// Searches any sample source as it is (the caller applies `config.average`, as
+/// [`search_file`] does); `label` names it in the candidates and in errors.
 /// `progress`, if given, is set to the number of samples and advanced per block.
 ///
 /// # Errors
@@ -215,9 +217,9 @@ pub fn check_files<P: AsRef<Path>>(paths: &[P], config: &SearchConfig) -> Result
         let path = path.as_ref();
         // Opening validates the header; the file is closed again at once, so a long
         // list holds no handles.
-        let mut source = crate::obs::open(path)?;
-        let read_bytes = read_sample_bytes(&mut *source);
         let label = path.display().to_string();
+        let mut source = config.average.wrap(crate::obs::open(path)?, &label)?;
+        let read_bytes = read_sample_bytes(&mut *source);
         Searcher::new(source.header().clone(), read_bytes, config, &label)?;
     }
     Ok(())

@@ -54,7 +54,8 @@ pub fn check(
         Some(limit) if need > limit => Err(format!(
             "the search would need about {:.2} GiB of memory, more than the limit of {:.2} GiB: \
              its blocks span {:.1} s (the sweep at DM {:.1} alone is {:.1} s) and its plan has {} \
-             trial DMs; lower the highest DM, shorten the blocks, or raise --memory-limit-gib",
+             trial DMs; lower the highest DM, shorten the blocks, average samples or channels \
+             as they are read (--average-samples, --average-channels), or raise --memory-limit-gib",
             need / GIB,
             limit / GIB,
             layout.block_len as f64 * tsamp_s,

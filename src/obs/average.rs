@@ -1,0 +1,264 @@
+//! Averaging a recording as it is read: groups of adjacent time samples and of
+//! adjacent channels become one. At low frequencies a sweep lasts minutes and every
+//! search block must hold one, at the input's own resolution; where the channel
+//! smearing is tens of milliseconds anyway, averaging first cuts that memory (and the
+//! work) by the product of the factors.
+
+use serde::{Deserialize, Serialize};
+
+use super::{Header, SampleSource, fill_rows};
+use crate::error::{Error, Result};
+
+/// Averaging factors; 1 and 1 leave the recording as it is.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(default, deny_unknown_fields)]
+pub struct Averaging {
+    /// Adjacent time samples averaged into one (the sample time grows by this factor).
+    pub samples: usize,
+    /// Adjacent channels averaged into one; must divide the number of channels.
+    pub channels: usize,
+}
+
+impl Default for Averaging {
+    fn default() -> Self {
+        Averaging {
+            samples: 1,
+            channels: 1,
+        }
+    }
+}
+
+impl Averaging {
+    /// Whether nothing is averaged.
+    pub fn is_none(&self) -> bool {
+        *self == Averaging::default()
+    }
+
+    /// Checks the factors on their own.
+    ///
+    /// # Errors
+    /// A factor of 0.
+    pub fn validate(&self) -> std::result::Result<(), String> {
+        if self.samples == 0 || self.channels == 0 {
+            return Err(format!(
+                "averaging factors must be at least 1, got {} samples and {} channels",
+                self.samples, self.channels
+            ));
+        }
+        Ok(())
+    }
+
+    /// The header of the averaged recording: sample time × `samples`, the whole
+    /// groups of samples only (a last partial group is dropped), each channel group at
+    /// its mean centre frequency and `channels` times as wide, masked only when every
+    /// channel of the group is.
+    ///
+    /// # Errors
+    /// A factor of 0, or a channel factor that does not divide the channels.
+    pub fn header(&self, h: &Header) -> std::result::Result<Header, String> {
+        self.validate()?;
+        if !h.n_chan().is_multiple_of(self.channels) {
+            return Err(format!(
+                "cannot average {} channels in groups of {}: the factor must divide them",
+                h.n_chan(),
+                self.channels
+            ));
+        }
+        let mut out = h.clone();
+        out.tsamp_s = h.tsamp_s * self.samples as f64;
+        out.n_samples = h.n_samples / self.samples as u64;
+        out.chan_bw_mhz = h.chan_bw_mhz * self.channels as f64;
+        out.freqs_mhz = h
+            .freqs_mhz
+            .chunks(self.channels)
+            .map(|g| g.iter().sum::<f64>() / g.len() as f64)
+            .collect();
+        out.weights = h
+            .weights
+            .chunks(self.channels)
+            .map(|g| g.iter().sum::<f32>() / g.len() as f32)
+            .collect();
+        // Means of integers are not integers any more.
+        out.nbits = 32;
+        Ok(out)
+    }
+
+    /// `source` averaged by these factors (`source` itself when nothing is averaged);
+    /// `label` names the recording in an error.
+    ///
+    /// # Errors
+    /// As [`Self::header`], naming the recording.
+    pub fn wrap(
+        &self,
+        source: Box<dyn SampleSource>,
+        label: &str,
+    ) -> Result<Box<dyn SampleSource>> {
+        if self.is_none() {
+            return Ok(source);
+        }
+        let header = self
+            .header(source.header())
+            .map_err(|m| Error::bad_input(label, m))?;
+        // A channel of weight 0 holds no data (whatever its samples say): the group's
+        // mean is over its other channels.
+        let live: Vec<bool> = source.header().weights.iter().map(|&w| w != 0.0).collect();
+        Ok(Box::new(AveragedSource {
+            live: live.clone(),
+            live_per_group: live
+                .chunks(self.channels)
+                .map(|g| g.iter().filter(|&&l| l).count())
+                .collect(),
+            inner: source,
+            header,
+            factors: *self,
+            raw: Vec::new(),
+        }))
+    }
+}
+
+/// A [`SampleSource`] that averages another one's rows and channels.
+struct AveragedSource {
+    inner: Box<dyn SampleSource>,
+    header: Header,
+    factors: Averaging,
+    /// Whether each input channel carries data, and how many do in each group.
+    live: Vec<bool>,
+    live_per_group: Vec<usize>,
+    /// Input rows of one call.
+    raw: Vec<f32>,
+}
+
+impl SampleSource for AveragedSource {
+    fn header(&self) -> &Header {
+        &self.header
+    }
+
+    fn read_rows(&mut self, out: &mut [f32]) -> Result<usize> {
+        let (n_in, n_out) = (self.inner.header().n_chan(), self.header.n_chan());
+        let (per_row, per_chan) = (self.factors.samples, self.factors.channels);
+        let want = out.len() / n_out;
+        self.raw.resize(want * per_row * n_in, 0.0);
+        let got = fill_rows(&mut *self.inner, &mut self.raw)? / per_row;
+        for (row_out, rows_in) in out
+            .chunks_exact_mut(n_out)
+            .zip(self.raw.chunks_exact(per_row * n_in))
+            .take(got)
+        {
+            row_out.fill(0.0);
+            for row in rows_in.chunks_exact(n_in) {
+                for (k, (&x, &live)) in row.iter().zip(&self.live).enumerate() {
+                    if live {
+                        row_out[k / per_chan] += x;
+                    }
+                }
+            }
+            for (value, &n) in row_out.iter_mut().zip(&self.live_per_group) {
+                *value = if n == 0 {
+                    0.0
+                } else {
+                    *value / (n * per_row) as f32
+                };
+            }
+        }
+        Ok(got)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::obs::{MemorySource, test_header};
+
+    fn source(n_chan: usize, n_samples: usize, seed: u64) -> (Header, Vec<f32>) {
+        let h = test_header(n_chan, n_samples as u64);
+        let mut state = seed;
+        let data = (0..n_chan * n_samples)
+            .map(|_| {
+                state = state
+                    .wrapping_mul(6364136223846793005)
+                    .wrapping_add(1442695040888963407);
+                (state >> 40) as f32 / 1e4
+            })
+            .collect();
+        (h, data)
+    }
+
+    // The plain definition: every output value is the mean of its block of live input
+    // values, read in one go, against the streaming source read in awkward pieces.
+    #[test]
+    fn streaming_means_match_the_plain_block_means() {
+        let (n_chan, n_samples) = (12, 1003);
+        let (mut h, data) = source(n_chan, n_samples, 5);
+        h.weights[4] = 0.0;
+        h.weights[9] = 0.0;
+        h.weights[10] = 0.0;
+        h.weights[11] = 0.0;
+        let avg = Averaging {
+            samples: 7,
+            channels: 4,
+        };
+        let inner = Box::new(MemorySource::new(h.clone(), data.clone()));
+        let mut s = avg.wrap(inner, "test").unwrap();
+        let out_h = s.header().clone();
+        assert_eq!(out_h.n_samples, 1003 / 7);
+        assert_eq!(out_h.n_chan(), 3);
+        assert_eq!(out_h.tsamp_s, h.tsamp_s * 7.0);
+        assert_eq!(out_h.chan_bw_mhz, h.chan_bw_mhz * 4.0);
+        assert_eq!(out_h.weights, vec![1.0, 0.75, 0.25]);
+        let centre = (h.freqs_mhz[4] + h.freqs_mhz[7]) / 2.0;
+        assert!((out_h.freqs_mhz[1] - centre).abs() < 1e-9);
+
+        let mut got = Vec::new();
+        let mut buf = vec![0.0; 3 * 5];
+        loop {
+            let n = s.read_rows(&mut buf).unwrap();
+            if n == 0 {
+                break;
+            }
+            got.extend_from_slice(&buf[..n * 3]);
+        }
+        assert_eq!(got.len(), (1003 / 7) * 3);
+        for t in 0..1003 / 7 {
+            for c in 0..3 {
+                let mut sum = 0.0f64;
+                let mut n = 0;
+                for dt in 0..7 {
+                    for k in c * 4..(c + 1) * 4 {
+                        if h.weights[k] != 0.0 {
+                            sum += f64::from(data[(t * 7 + dt) * n_chan + k]);
+                            n += 1;
+                        }
+                    }
+                }
+                let expected = sum / n as f64;
+                let value = f64::from(got[t * 3 + c]);
+                assert!(
+                    (value - expected).abs() < 1e-4 * expected.abs().max(1.0),
+                    "{t} {c}"
+                );
+            }
+        }
+    }
+
+    #[test]
+    fn factors_must_fit_the_recording() {
+        let (h, data) = source(12, 10, 1);
+        let bad = Averaging {
+            samples: 2,
+            channels: 5,
+        };
+        let e = bad.header(&h).unwrap_err();
+        assert!(e.contains("12 channels in groups of 5"), "{e}");
+        let zero = Averaging {
+            samples: 0,
+            channels: 1,
+        };
+        assert!(zero.header(&h).unwrap_err().contains("at least 1"));
+        let none = Averaging::default();
+        assert!(none.is_none());
+        let s = none
+            .wrap(Box::new(MemorySource::new(h.clone(), data)), "test")
+            .unwrap();
+        assert_eq!(s.header(), &h);
+    }
+}
