@@ -117,7 +117,6 @@ impl SourceArrivals {
 /// # Errors
 /// Unknown source or an SQLite failure.
 pub fn source_fluences_jy_ms(cat: &Catalogue, source: &str) -> Result<Vec<f64>> {
-    cat.source(source)?;
     let filter = BurstFilter {
         source: Some(source.to_string()),
         ..Default::default()
