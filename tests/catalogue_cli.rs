@@ -456,3 +456,31 @@ fn an_unknown_source_is_refused_and_a_known_empty_one_lists_nothing() {
     let held = book(&db, &["bursts", "--source", "FIELD-7", "--format", "csv"]);
     assert_eq!(held.lines().count(), 2, "{held}");
 }
+
+/// RA 359.9999999° was listed as `360.000000`, outside [0, 360): it is the
+/// direction 0 and prints so, in the source list and in a burst's VOEvent.
+#[test]
+fn right_ascension_that_rounds_to_360_prints_as_zero() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("c.sqlite");
+    book(&db, &["fill-synthetic", "--source", "FIELD-7"]);
+    book(
+        &db,
+        &[
+            "source",
+            "add",
+            "FIELD-7",
+            "--ra",
+            "359.9999999",
+            "--dec",
+            "-12.5",
+        ],
+    );
+    let csv = book(&db, &["source", "list", "--format", "csv"]);
+    let row = csv.lines().find(|l| l.contains("FIELD-7")).unwrap();
+    assert!(row.contains(",0.000000,-12.500000,"), "{csv}");
+    assert!(!csv.contains("360.0"), "{csv}");
+    book(&db, &["promote", "1", "--to", "FIELD-7"]);
+    let xml = book(&db, &["voevent", "1"]);
+    assert!(xml.contains("<C1>0.000000</C1>"), "{xml}");
+}
