@@ -411,3 +411,76 @@ fn impossible_exposure_rows_are_refused_naming_file_and_line() {
     }
     assert!(std::fs::read(&db).unwrap() == before);
 }
+
+/// A mistyped `--source` used to list nothing and exit 0, as if the source had no
+/// rows; `summary` already refused it. A source held without rows still lists none.
+#[test]
+fn an_unknown_source_is_refused_and_a_known_empty_one_lists_nothing() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("c.sqlite");
+    book(&db, &["fill-synthetic", "--source", "FIELD-7"]);
+    book(&db, &["promote", "1", "--to", "FIELD-7"]);
+    let unknown = "has no source named \"FIELD-8\"";
+    for args in [
+        &["candidates", "--source", "FIELD-8"][..],
+        &["bursts", "--source", "FIELD-8"],
+        &["exposure", "export", "--source", "FIELD-8"],
+        &["label", "--source", "FIELD-8", "--label", "rfi"],
+        &["summary", "FIELD-8"],
+    ] {
+        book_fails(&db, args, &[unknown, "burstbook book source add"]);
+    }
+    book(
+        &db,
+        &["source", "add", "QUIET", "--ra", "10.5", "--dec", "-20"],
+    );
+    for (args, header) in [
+        (
+            &["candidates", "--source", "QUIET", "--format", "csv"][..],
+            "id,run_id,source",
+        ),
+        (
+            &["bursts", "--source", "QUIET", "--format", "csv"],
+            "id,candidate_id",
+        ),
+        (
+            &["exposure", "export", "--source", "QUIET"],
+            "source,start_mjd",
+        ),
+    ] {
+        let out = book(&db, args);
+        assert_eq!(out.lines().count(), 1, "{args:?}: {out}");
+        assert!(out.starts_with(header), "{args:?}: {out}");
+    }
+    // The source that has rows still lists them.
+    let held = book(&db, &["bursts", "--source", "FIELD-7", "--format", "csv"]);
+    assert_eq!(held.lines().count(), 2, "{held}");
+}
+
+/// RA 359.9999999° was listed as `360.000000`, outside [0, 360): it is the
+/// direction 0 and prints so, in the source list and in a burst's VOEvent.
+#[test]
+fn right_ascension_that_rounds_to_360_prints_as_zero() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("c.sqlite");
+    book(&db, &["fill-synthetic", "--source", "FIELD-7"]);
+    book(
+        &db,
+        &[
+            "source",
+            "add",
+            "FIELD-7",
+            "--ra",
+            "359.9999999",
+            "--dec",
+            "-12.5",
+        ],
+    );
+    let csv = book(&db, &["source", "list", "--format", "csv"]);
+    let row = csv.lines().find(|l| l.contains("FIELD-7")).unwrap();
+    assert!(row.contains(",0.000000,-12.500000,"), "{csv}");
+    assert!(!csv.contains("360.0"), "{csv}");
+    book(&db, &["promote", "1", "--to", "FIELD-7"]);
+    let xml = book(&db, &["voevent", "1"]);
+    assert!(xml.contains("<C1>0.000000</C1>"), "{xml}");
+}

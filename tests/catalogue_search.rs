@@ -229,3 +229,65 @@ fn search_without_catalogue_writes_none() {
     // Without the flag the default would be ./burstbook.sqlite in the working directory.
     assert!(!dir.path().join("burstbook.sqlite").exists());
 }
+
+/// The same samples under a second header file used to be a second observation:
+/// every candidate twice, the exposure counted twice, and so every burst promoted
+/// from both. A header that says the same is the same observation; one that says
+/// something else is refused, naming the file, the first one and what differs.
+#[test]
+fn one_recording_under_two_headers_is_one_observation() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("survey.sqlite");
+    let first = simulate(dir.path(), 1);
+    let header: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&first).unwrap()).unwrap();
+    // Another file, other bytes (pretty-printed), the same header, the same samples.
+    let copy = dir.path().join("copy.json");
+    std::fs::write(&copy, serde_json::to_string_pretty(&header).unwrap()).unwrap();
+    let mut renamed = header.clone();
+    renamed["source"] = "Quillwort Field B".into();
+    let relabelled = dir.path().join("relabelled.json");
+    std::fs::write(&relabelled, renamed.to_string()).unwrap();
+
+    run_ok(&mut search(std::slice::from_ref(&first), dir.path(), &db));
+    let once = contents(&db);
+    assert_eq!((once.0, once.1), (1, 1));
+    assert!(once.2 >= 1, "a 30-sigma burst");
+    let text = run_ok(&mut search(std::slice::from_ref(&copy), dir.path(), &db));
+    let skip = line_of(&text, &copy);
+    assert!(
+        skip.contains("skipped") && skip.contains("of this recording"),
+        "{skip}"
+    );
+    assert!(
+        skip.contains(&format!("recorded as {}", first.display())),
+        "{skip}"
+    );
+    assert_eq!(contents(&db), once);
+    // Searched again by force or with another configuration: runs of one observation.
+    let text = run_ok(search(std::slice::from_ref(&copy), dir.path(), &db).arg("--search-again"));
+    assert!(
+        line_of(&text, &copy).contains("already in catalogue"),
+        "{text}"
+    );
+    assert_eq!(contents(&db), once);
+    run_ok(search(std::slice::from_ref(&copy), dir.path(), &db).args(["--snr", "8"]));
+    assert_eq!(contents(&db).0, 1);
+
+    let before = std::fs::read(&db).unwrap();
+    let out = search(std::slice::from_ref(&relabelled), dir.path(), &db)
+        .output()
+        .unwrap();
+    cli_common::assert_one_line_failure(
+        &out,
+        &[
+            &format!(
+                "{}: holds the same samples as {}",
+                relabelled.display(),
+                first.display()
+            ),
+            "under a header that differs in source; not recorded",
+        ],
+    );
+    assert!(std::fs::read(&db).unwrap() == before, "a refusal wrote");
+}

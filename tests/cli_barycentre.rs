@@ -123,3 +123,25 @@ fn a_right_ascension_outside_a_circle_is_refused() {
     }
     assert!(!dir.path().join("out.csv").exists());
 }
+
+/// Times after the leap-second table's validity used to be warned about once,
+/// naming the first such MJD only; the warning now counts and lists the rows.
+#[test]
+fn a_warning_counts_and_lists_the_rows_that_raised_it() {
+    let dir = tempfile::tempdir().unwrap();
+    let late: String = (0..8).map(|i| format!("{}.25\n", 62_500 + i)).collect();
+    let input = format!("mjd_utc\n60000.5\n62490.5\n{late}");
+    let out = run(dir.path(), &input, &["--site", "10,45,500"]);
+    assert_success(&out);
+    let err = String::from_utf8_lossy(&out.stderr);
+    let warnings: Vec<&str> = err.lines().filter(|l| l.contains("warning")).collect();
+    assert_eq!(warnings.len(), 1, "{err}");
+    assert!(
+        warnings[0].contains(
+            "in.csv: 9 rows (lines 3, 4, 5, 6, 7 and 4 more; MJD 62490 to 62507) are after \
+             the leap-second table's validity"
+        ),
+        "{err}"
+    );
+    assert!(err.contains("10 rows written"), "{err}");
+}

@@ -269,3 +269,52 @@ fn activity_forecasts_stop_where_they_stop_meaning_anything() {
         &["--forecast 100000000 is beyond 1000 windows"],
     );
 }
+
+/// Arrivals spanning 4 s searched up to the default 10 s used to list trial periods
+/// up to 10 s, which put every arrival within one turn; the band is now cut to the
+/// span, with a note, and a band wholly beyond it is refused.
+#[test]
+fn rotation_band_is_cut_to_the_span_of_the_arrivals() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let mut csv = String::from("mjd\n");
+    for t_s in [0.0, 0.9, 1.7, 2.5, 3.1, 4.0] {
+        csv += &format!("{:.15}\n", 61000.25 + t_s / 86_400.0);
+    }
+    std::fs::write(d.join("short.csv"), csv).unwrap();
+    let search = ["period", "rotation", "--toas", "short.csv"];
+    let out = burstbook(&search, d);
+    assert_success(&out);
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(
+        text.contains("longest trial period cut from 10 s to the arrivals' span of 4.000000 s"),
+        "{text}"
+    );
+    let r = json(&burstbook(&[&search[..], &["--json"]].concat(), d));
+    assert_eq!(r["max_period_asked_s"], 10.0);
+    let span = r["span_s"].as_f64().unwrap();
+    assert!((span - 4.0).abs() < 1e-6, "{span}");
+    assert_eq!(r["config"]["max_period_s"].as_f64().unwrap(), span);
+    assert!(r["period_s"].as_f64().unwrap() <= span, "{}", r["period_s"]);
+    for c in r["candidates"].as_array().unwrap() {
+        assert!(c["period_s"].as_f64().unwrap() <= span, "{c}");
+    }
+    // An explicit longest period inside the span is searched as asked.
+    let r = json(&burstbook(
+        &[&search[..], &["--max-period-s", "2", "--json"]].concat(),
+        d,
+    ));
+    assert!(
+        r["max_period_asked_s"].is_null(),
+        "{}",
+        r["max_period_asked_s"]
+    );
+    assert_eq!(r["config"]["max_period_s"], 2.0);
+    assert_one_line_failure(
+        &burstbook(&[&search[..], &["--min-period-s", "5"]].concat(), d),
+        &[
+            "short.csv",
+            "no longer than the shortest trial period of 5 s (--min-period-s)",
+        ],
+    );
+}

@@ -362,14 +362,24 @@ fn review_with_nothing_to_review_or_a_nan_filter_stops_at_once() {
     let nothing = review_exits(&[
         arg("--catalogue"),
         db.as_os_str(),
-        arg("--source"),
-        arg("No Such"),
+        arg("--snr-min"),
+        arg("1000"),
     ]);
     cli_common::assert_success(&nothing);
     let said = String::from_utf8_lossy(&nothing.stdout);
     assert!(
         said.contains("review.sqlite: nothing to review (0 candidates match"),
         "{said}"
+    );
+    // A source the catalogue does not hold is a mistake, not an empty review.
+    cli_common::assert_one_line_failure(
+        &review_exits(&[
+            arg("--catalogue"),
+            db.as_os_str(),
+            arg("--source"),
+            arg("No Such"),
+        ]),
+        &["has no source named \"No Such\""],
     );
     cli_common::assert_one_line_failure(
         &review_exits(&[

@@ -152,7 +152,7 @@ impl Catalogue {
         let path = self.path().to_path_buf();
         self.write(|tx| {
             let e = |e| super::sql_error(&path, e);
-            let obs_id = super::record::upsert_observation(tx, obs, &header_json).map_err(e)?;
+            let obs_id = super::identity::upsert_observation(tx, &path, obs, &header_json)?;
             tx.execute(
                 "INSERT INTO injection_completeness (observation_id, config_sha256, snr50, snr90,
                      fluence50_jy_ms, fluence90_jy_ms, result_json, recorded_utc)

@@ -70,8 +70,9 @@ impl Catalogue {
     /// Exposure intervals, optionally of one source, in start order.
     ///
     /// # Errors
-    /// An SQLite failure.
+    /// A source the catalogue does not hold, or an SQLite failure.
     pub fn exposure(&self, source: Option<&str>) -> Result<Vec<ExposureInterval>> {
+        self.check_source_filter(source)?;
         let mut stmt = self
             .conn()
             .prepare(
@@ -232,7 +233,7 @@ impl Catalogue {
     /// catalogue only (an imported interval is one searched elsewhere).
     ///
     /// # Errors
-    /// A write failure or an SQLite failure.
+    /// A source the catalogue does not hold, a write failure or an SQLite failure.
     pub fn export_exposure_csv(&self, source: Option<&str>, out: impl Write) -> Result<()> {
         let mut w = csv::Writer::from_writer(out);
         w.write_record(EXPORT_COLUMNS).map_err(csv_write_error)?;

@@ -3,6 +3,7 @@
 
 use rusqlite::{OptionalExtension, params};
 
+use super::identity::find_observation;
 use super::{CandidateFilter, Catalogue, ObservationRecord, RecordOutcome, RunRecord};
 use crate::candidate::Candidate;
 use crate::error::{Error, Result};
@@ -51,25 +52,29 @@ impl Catalogue {
         self.record_search(obs, &run, &result.candidates)
     }
 
-    /// The complete run, if any, of the content hashed `content_sha256` with the
-    /// configuration hashed `config_sha256` (as [`SearchConfig::hash`] gives), with
-    /// its candidates. The catalogue holds at most one per pair.
+    /// The complete run, if any, of the recording `obs` (the same content, or the
+    /// same samples under a header that says the same) with the configuration
+    /// hashed `config_sha256` (as [`SearchConfig::hash`] gives), with its
+    /// candidates. The catalogue holds at most one per pair.
     ///
     /// # Errors
-    /// An SQLite failure.
+    /// [`Error::BadInput`] naming the file when the catalogue holds its samples
+    /// under a header that differs; an SQLite failure.
     pub fn finished_run(
         &self,
-        content_sha256: &str,
+        obs: &ObservationRecord,
         config_sha256: &str,
     ) -> Result<Option<EarlierRun>> {
+        let Some(obs_id) = find_observation(self.conn(), self.path(), obs)? else {
+            return Ok(None);
+        };
         let found = self
             .conn()
             .query_row(
                 "SELECT r.id, o.path, r.finished_utc, r.burstbook_version
                  FROM search_run r JOIN observation o ON o.id = r.observation_id
-                 WHERE o.content_sha256 = ?1 AND r.config_sha256 = ?2
-                   AND r.status = 'complete'",
-                params![content_sha256, config_sha256],
+                 WHERE o.id = ?1 AND r.config_sha256 = ?2 AND r.status = 'complete'",
+                params![obs_id, config_sha256],
                 |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?)),
             )
             .optional()
@@ -126,10 +131,7 @@ mod tests {
             panic!("{outcome:?}")
         };
         let config = config_hash(&searched.config_json).unwrap();
-        let found = cat
-            .finished_run(&obs.content_sha256, &config)
-            .unwrap()
-            .unwrap();
+        let found = cat.finished_run(&obs, &config).unwrap().unwrap();
         assert_eq!(found.run_id, run_id);
         assert_eq!(found.recorded_path, obs.path);
         assert_eq!(found.finished_utc, searched.finished_utc);
@@ -138,17 +140,9 @@ mod tests {
 
         let other_config = config_hash(&run(6.0).config_json).unwrap();
         assert_ne!(other_config, config);
-        assert!(
-            cat.finished_run(&obs.content_sha256, &other_config)
-                .unwrap()
-                .is_none()
-        );
+        assert!(cat.finished_run(&obs, &other_config).unwrap().is_none());
         let other_content = observation("A", 2);
-        assert!(
-            cat.finished_run(&other_content.content_sha256, &config)
-                .unwrap()
-                .is_none()
-        );
+        assert!(cat.finished_run(&other_content, &config).unwrap().is_none());
     }
 
     #[test]
@@ -159,7 +153,7 @@ mod tests {
         let searched = run(8.0);
         cat.record_search(&obs, &searched, &[]).unwrap();
         let config = config_hash(&searched.config_json).unwrap();
-        let found = cat.finished_run(&obs.content_sha256, &config).unwrap();
+        let found = cat.finished_run(&obs, &config).unwrap();
         assert!(found.unwrap().candidates.is_empty());
     }
 }

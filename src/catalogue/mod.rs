@@ -5,8 +5,10 @@
 //! Guarantees (see `docs/catalogue.md`):
 //! - a search run is written in one transaction, so it is either wholly present
 //!   or absent, even if the writing process is killed;
-//! - recording the same file content with the same configuration hash twice
-//!   changes nothing ([`RecordOutcome::AlreadyPresent`]);
+//! - recording the same recording (the same file content, or the same samples
+//!   under a header that says the same) with the same configuration hash twice
+//!   changes nothing ([`RecordOutcome::AlreadyPresent`]), and the same samples
+//!   under a header that says something else are refused;
 //! - several processes may write at once (WAL journal, busy timeout, and every
 //!   write transaction retried while the database is busy);
 //! - the schema lives in `migrations/`, is upgraded forward only, and a file
@@ -15,6 +17,7 @@
 mod bursts;
 mod exposure;
 mod from_search;
+mod identity;
 mod query;
 mod record;
 mod review;
@@ -29,8 +32,9 @@ pub use exposure::{
     ExposureImport, ExposureInterval, exposure_hours, merge_intervals, sweep_window,
 };
 pub use from_search::EarlierRun;
+pub use identity::content_hash;
 pub use query::{Bounds, BurstFilter, BurstRow, CandidateFilter, CandidateRow};
-pub use record::{ObservationRecord, RecordOutcome, RunRecord, config_hash, content_hash};
+pub use record::{ObservationRecord, RecordOutcome, RunRecord, config_hash};
 pub use review::{AssignTolerance, Label, Promotion};
 pub use schema::{APPLICATION_ID, SCHEMA_VERSION};
 pub use sources::SourceRecord;

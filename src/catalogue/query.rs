@@ -173,8 +173,9 @@ impl Catalogue {
     /// Candidates matching `filter`, ordered by arrival time.
     ///
     /// # Errors
-    /// An SQLite failure.
+    /// A source the catalogue does not hold, or an SQLite failure.
     pub fn candidates(&self, filter: &CandidateFilter) -> Result<Vec<CandidateRow>> {
+        self.check_source_filter(filter.source.as_deref())?;
         let (sql, values) = candidate_sql(filter);
         let mut stmt = self.conn().prepare(&sql).map_err(|e| self.err(e))?;
         let rows = stmt
@@ -217,8 +218,9 @@ impl Catalogue {
     /// Bursts matching `filter`, ordered by arrival time.
     ///
     /// # Errors
-    /// An SQLite failure.
+    /// A source the catalogue does not hold, or an SQLite failure.
     pub fn bursts(&self, filter: &BurstFilter) -> Result<Vec<BurstRow>> {
+        self.check_source_filter(filter.source.as_deref())?;
         let mut w = Where::default();
         w.push("s.name = ?", filter.source.clone().map(Value::Text));
         w.push_bounds(&filter.bounds, "b.dm", "b.snr", "b.mjd_utc");
@@ -336,11 +338,56 @@ mod tests {
 
     #[test]
     fn a_hostile_filter_value_is_data_not_sql() {
-        let (_dir, cat, _) = filled();
+        let (_dir, mut cat, _) = filled();
+        let hostile = "ALPHA' OR '1'='1";
         let f = CandidateFilter {
-            source: Some("ALPHA' OR '1'='1".into()),
+            source: Some(hostile.into()),
+            ..Default::default()
+        };
+        // Taken as a name, it names no source; held as one, it selects nothing.
+        let err = cat.candidates(&f).unwrap_err().to_string();
+        assert!(err.contains("has no source named"), "{err}");
+        let mut s = cat.source("ALPHA").unwrap();
+        s.name = hostile.into();
+        cat.upsert_source(&s).unwrap();
+        assert!(cat.candidates(&f).unwrap().is_empty());
+    }
+
+    /// A mistyped source used to select nothing, which reads as "no candidates".
+    #[test]
+    fn an_unknown_source_is_refused_and_a_known_one_without_rows_is_empty() {
+        let (_dir, mut cat, _) = filled();
+        let err = cat
+            .candidates(&CandidateFilter {
+                source: Some("ALHPA".into()),
+                ..Default::default()
+            })
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("has no source named \"ALHPA\""), "{err}");
+        let err = cat
+            .bursts(&BurstFilter {
+                source: Some("ALHPA".into()),
+                ..Default::default()
+            })
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("has no source named \"ALHPA\""), "{err}");
+        let err = cat.exposure(Some("ALHPA")).unwrap_err().to_string();
+        assert!(err.contains("has no source named \"ALHPA\""), "{err}");
+        let mut quiet = cat.source("ALPHA").unwrap();
+        quiet.name = "QUIET".into();
+        cat.upsert_source(&quiet).unwrap();
+        let f = CandidateFilter {
+            source: Some("QUIET".into()),
             ..Default::default()
         };
         assert!(cat.candidates(&f).unwrap().is_empty());
+        let b = BurstFilter {
+            source: Some("QUIET".into()),
+            ..Default::default()
+        };
+        assert!(cat.bursts(&b).unwrap().is_empty());
+        assert!(cat.exposure(Some("QUIET")).unwrap().is_empty());
     }
 }

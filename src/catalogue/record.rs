@@ -1,37 +1,43 @@
 //! Recording one search of one observation: observation, run, candidates and the
 //! exposure it adds, all in one transaction.
 
-use std::io::Read;
 use std::path::Path;
 
 use rusqlite::{OptionalExtension, Transaction, params};
 use sha2::{Digest, Sha256};
 
 use super::Catalogue;
+use super::identity::{hex, observation_hashes, upsert_observation};
 use crate::candidate::Candidate;
 use crate::error::{Error, Result};
-use crate::obs::{Container, Header};
+use crate::obs::Header;
 
 /// An observation as the catalogue knows it.
 #[derive(Debug, Clone, PartialEq)]
 pub struct ObservationRecord {
     /// Path as given when it was searched.
     pub path: String,
-    /// Hex SHA-256 of the content (see [`content_hash`]).
+    /// Hex SHA-256 of the content (see [`super::content_hash`]).
     pub content_sha256: String,
+    /// Hex SHA-256 of the samples alone: the `.npy` file of a native observation,
+    /// the `SUBINT` rows of a FITS file. One recording is one observation.
+    pub data_sha256: String,
     /// The full header.
     pub header: Header,
 }
 
 impl ObservationRecord {
-    /// Hashes the file at `path` (streaming) and keeps its header.
+    /// Hashes the file at `path` (streaming, one pass) and keeps its header.
     ///
     /// # Errors
-    /// The file (or, for native observations, its `.npy`) cannot be read.
+    /// The file (or, for native observations, its `.npy`) cannot be read, or a FITS
+    /// file cannot be parsed.
     pub fn from_file(path: &Path, header: &Header) -> Result<ObservationRecord> {
+        let (content_sha256, data_sha256) = observation_hashes(path)?;
         Ok(ObservationRecord {
             path: path.display().to_string(),
-            content_sha256: content_hash(path)?,
+            content_sha256,
+            data_sha256,
             header: header.clone(),
         })
     }
@@ -119,62 +125,11 @@ pub fn config_hash(config_json: &str) -> Result<String> {
     Ok(hex(&Sha256::digest(config_json.as_bytes())))
 }
 
-/// Hex SHA-256 of an observation's bytes, read in 1 MiB pieces.
-///
-/// For a native observation (JSON header + `.npy` samples) both files are hashed:
-/// each contributes its length as 8 little-endian bytes, then its bytes. The
-/// samples file is the header's `data` entry (relative to the header), else
-/// `NAME.npy`.
-///
-/// # Errors
-/// A file cannot be read.
-pub fn content_hash(path: &Path) -> Result<String> {
-    let mut hasher = Sha256::new();
-    match Container::detect(path) {
-        Ok(Container::Native) => {
-            hash_file(&mut hasher, path, true)?;
-            hash_file(&mut hasher, &native_data_path(path)?, true)?;
-        }
-        _ => hash_file(&mut hasher, path, false)?,
-    }
-    Ok(hex(&hasher.finalize()))
-}
-
-/// The samples file a native JSON header points at.
-fn native_data_path(header_path: &Path) -> Result<std::path::PathBuf> {
-    let text = std::fs::read_to_string(header_path).map_err(|e| Error::io(header_path, e))?;
-    let json: serde_json::Value = serde_json::from_str(&text)
-        .map_err(|e| Error::bad_input(header_path, format!("bad JSON header: {e}")))?;
-    Ok(match json.get("data").and_then(|d| d.as_str()) {
-        Some(name) => header_path.parent().unwrap_or(Path::new("")).join(name),
-        None => header_path.with_extension("npy"),
-    })
-}
-
-fn hash_file(hasher: &mut Sha256, path: &Path, length_prefix: bool) -> Result<()> {
-    let mut f = std::fs::File::open(path).map_err(|e| Error::io(path, e))?;
-    if length_prefix {
-        let len = f.metadata().map_err(|e| Error::io(path, e))?.len();
-        hasher.update(len.to_le_bytes());
-    }
-    let mut buf = vec![0u8; 1 << 20];
-    loop {
-        let n = f.read(&mut buf).map_err(|e| Error::io(path, e))?;
-        if n == 0 {
-            return Ok(());
-        }
-        hasher.update(&buf[..n]);
-    }
-}
-
-fn hex(bytes: &[u8]) -> String {
-    bytes.iter().map(|b| format!("{b:02x}")).collect()
-}
-
 impl Catalogue {
     /// Records one search of one observation in a single transaction.
     ///
-    /// If the same content was already recorded with the same configuration hash,
+    /// If the same recording (the same content, or the same samples under a header
+    /// that says the same) was already recorded with the same configuration hash,
     /// nothing is written and [`RecordOutcome::AlreadyPresent`] is returned. The
     /// observation's source is added to `source` (header position, no reference
     /// DM) if not yet known, and the searched span becomes exposure for it — unless
@@ -183,7 +138,9 @@ impl Catalogue {
     /// source's rate limits with no data behind them.
     ///
     /// # Errors
-    /// Invalid configuration JSON, or an SQLite failure (then nothing is written).
+    /// Invalid configuration JSON; [`Error::BadInput`] naming the file when the
+    /// catalogue holds its samples under a header that differs; an SQLite failure.
+    /// Then nothing is written.
     pub fn record_search(
         &mut self,
         obs: &ObservationRecord,
@@ -194,9 +151,9 @@ impl Catalogue {
         let header_json = serde_json::to_string(&obs.header)
             .map_err(|e| Error::Config(format!("header not serialisable: {e}")))?;
         let path = self.path().to_path_buf();
-        let err = move |e| super::sql_error(&path, e);
+        let err = |e| super::sql_error(&path, e);
         self.write(|tx| {
-            let obs_id = upsert_observation(tx, obs, &header_json).map_err(&err)?;
+            let obs_id = upsert_observation(tx, &path, obs, &header_json)?;
             let existing: Option<i64> = tx
                 .query_row(
                     "SELECT id FROM search_run WHERE observation_id = ?1 AND config_sha256 = ?2",
@@ -216,41 +173,6 @@ impl Catalogue {
             Ok(RecordOutcome::Inserted { run_id })
         })
     }
-}
-
-pub(super) fn upsert_observation(
-    tx: &Transaction<'_>,
-    obs: &ObservationRecord,
-    header_json: &str,
-) -> rusqlite::Result<i64> {
-    let h = &obs.header;
-    let (start_mjd, _) = obs.span_mjd();
-    tx.execute(
-        "INSERT OR IGNORE INTO observation (content_sha256, path, source_name, ra_deg, dec_deg,
-             site, start_mjd, duration_s, freq_lo_mhz, freq_hi_mhz, masked_fraction,
-             header_json, recorded_utc)
-         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13)",
-        params![
-            obs.content_sha256,
-            obs.path,
-            h.source,
-            h.ra_deg,
-            h.dec_deg,
-            h.site.name,
-            start_mjd,
-            h.duration_s(),
-            h.freq_lo_mhz(),
-            h.freq_hi_mhz(),
-            obs.masked_fraction(),
-            header_json,
-            super::now_utc(),
-        ],
-    )?;
-    tx.query_row(
-        "SELECT id FROM observation WHERE content_sha256 = ?1",
-        [&obs.content_sha256],
-        |r| r.get(0),
-    )
 }
 
 fn insert_run(
@@ -356,36 +278,6 @@ mod tests {
             config_hash(r#"{"a": 2}"#).unwrap()
         );
         assert!(config_hash("not json").is_err());
-    }
-
-    #[test]
-    fn content_hash_of_known_bytes_matches_sha256_test_vector() {
-        // FIPS 180-2 appendix B.1: SHA-256("abc").
-        let dir = tempfile::tempdir().unwrap();
-        let p = dir.path().join("x.fits");
-        std::fs::write(&p, b"abc").unwrap();
-        assert_eq!(
-            content_hash(&p).unwrap(),
-            "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad"
-        );
-    }
-
-    #[test]
-    fn native_hash_covers_the_npy() {
-        let dir = tempfile::tempdir().unwrap();
-        let j = dir.path().join("o.json");
-        std::fs::write(&j, b"{}").unwrap();
-        std::fs::write(dir.path().join("o.npy"), b"one").unwrap();
-        let h1 = content_hash(&j).unwrap();
-        std::fs::write(dir.path().join("o.npy"), b"two").unwrap();
-        assert_ne!(h1, content_hash(&j).unwrap());
-        // The header may name its samples file.
-        std::fs::write(&j, br#"{"data": "samples.npy"}"#).unwrap();
-        assert!(content_hash(&j).is_err());
-        std::fs::write(dir.path().join("samples.npy"), b"two").unwrap();
-        let h2 = content_hash(&j).unwrap();
-        std::fs::write(dir.path().join("samples.npy"), b"three").unwrap();
-        assert_ne!(h2, content_hash(&j).unwrap());
     }
 
     #[test]

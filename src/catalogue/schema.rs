@@ -14,6 +14,7 @@ pub(crate) const MIGRATIONS: &[&str] = &[
     include_str!("../../migrations/0001_core.sql"),
     include_str!("../../migrations/0002_review_and_completeness.sql"),
     include_str!("../../migrations/0003_run_statistics.sql"),
+    include_str!("../../migrations/0004_recording_identity.sql"),
 ];
 
 /// The schema version this burstbook writes.

@@ -125,6 +125,16 @@ impl Catalogue {
                 )
             })
     }
+
+    /// Refuses a filter naming a source the catalogue does not hold: a mistyped
+    /// name must be an error, not an empty answer that reads as "nothing there".
+    /// `None` (every source) passes.
+    ///
+    /// # Errors
+    /// [`Error::Catalogue`] naming the unknown source.
+    pub fn check_source_filter(&self, name: Option<&str>) -> Result<()> {
+        name.map_or(Ok(()), |n| self.source(n).map(drop))
+    }
 }
 
 #[cfg(test)]

@@ -86,7 +86,6 @@ impl Catalogue {
         snr_min: Option<f64>,
         confidence: f64,
     ) -> Result<SourceSummary> {
-        self.source(source)?;
         let bursts = self.bursts(&BurstFilter {
             source: Some(source.into()),
             bounds: Bounds {

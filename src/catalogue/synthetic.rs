@@ -40,10 +40,14 @@ pub fn observation(source: &str, seed: u64) -> ObservationRecord {
         sefd_jy: Some(20.0),
         beam: None,
     };
-    let hash = Sha256::digest(format!("synthetic observation {source} {seed}").as_bytes());
+    let hash = |what: &str| {
+        let h = Sha256::digest(format!("synthetic {what} {source} {seed}").as_bytes());
+        h.iter().map(|b| format!("{b:02x}")).collect()
+    };
     ObservationRecord {
         path: format!("synthetic/{source}-{seed}.fits"),
-        content_sha256: hash.iter().map(|b| format!("{b:02x}")).collect(),
+        content_sha256: hash("observation"),
+        data_sha256: hash("samples"),
         header,
     }
 }

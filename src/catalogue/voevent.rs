@@ -12,6 +12,7 @@ use serde::Serialize;
 
 use super::{BurstFilter, Catalogue, catalogue_error};
 use crate::error::{Error, Result};
+use crate::obs::geodesy::format_ra_deg;
 use crate::obs::{Header, UtcEpoch};
 
 /// Who publishes, and how precise the position is.
@@ -252,7 +253,7 @@ fn where_when(w: &mut W, p: &BurstPacket, opt: &VoEventOptions) -> std::io::Resu
                                     text(w, "Name1", "RA")?;
                                     text(w, "Name2", "Dec")?;
                                     w.create_element("Value2").write_inner_content(|w| {
-                                        text(w, "C1", &format!("{:.6}", p.ra_deg))?;
+                                        text(w, "C1", &format_ra_deg(p.ra_deg, 6))?;
                                         text(w, "C2", &format!("{:.6}", p.dec_deg))
                                     })?;
                                     text(

@@ -73,8 +73,8 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     };
     let bary = Barycentrer::new(&args.site, args.ra_deg, args.dec_deg, ephemeris)?;
     let summary = barycentre_csv(&bary, &args.input, &args.output)?;
-    for warning in &summary.warnings {
-        note!("burstbook: warning: {warning}");
+    for warning in summary.warnings.lines() {
+        note!("burstbook: warning: {}: {warning}", args.input.display());
     }
     note!(
         "barycentre: {} rows written to {}",

@@ -92,9 +92,9 @@ fn write_header(out: &mut String, file: &std::path::Path, container: Container, 
     row(
         "position",
         format!(
-            "RA {} ({:.6}°), Dec {} ({:.6}°)",
-            geodesy::format_sexagesimal(h.ra_deg / 15.0, 3, false),
-            h.ra_deg,
+            "RA {} ({}°), Dec {} ({:.6}°)",
+            geodesy::format_ra_hms(h.ra_deg, 3),
+            geodesy::format_ra_deg(h.ra_deg, 6),
             geodesy::format_sexagesimal(h.dec_deg, 2, true),
             h.dec_deg
         ),

@@ -172,11 +172,21 @@ pub fn run(args: Args) -> anyhow::Result<()> {
             },
             None => None,
         };
-        if let (Some(cat), Some(obs), false) = (&catalogue, &record, args.search_again)
-            && let Some(earlier) = cat.finished_run(&obs.content_sha256, &config_hash)?
-        {
+        let earlier = match (&catalogue, &record) {
+            (Some(cat), Some(obs)) => match cat.finished_run(obs, &config_hash) {
+                Ok(earlier) => earlier,
+                // The same samples under another header: refused before searching.
+                Err(e @ burstbook::Error::BadInput { .. }) => {
+                    fail(&mut files, label, e.to_string());
+                    continue;
+                }
+                Err(e) => return Err(e.into()),
+            },
+            _ => None,
+        };
+        if let (Some(cat), Some(earlier), false) = (&catalogue, earlier, args.search_again) {
             say!(
-                "{label}: skipped, the catalogue {} holds a finished search of this content \
+                "{label}: skipped, the catalogue {} holds a finished search of this recording \
                  with this configuration (run {} finished {}, candidates: {}{}); --search-again searches it anyway",
                 cat.path().display(),
                 earlier.run_id,

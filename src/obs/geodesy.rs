@@ -1,6 +1,7 @@
 //! Conversions between Earth-fixed Cartesian positions (ITRF, metres) and geodetic
 //! longitude, latitude and height on the WGS84 ellipsoid, plus the sexagesimal
-//! angle strings FITS headers use for RA and Dec.
+//! angle strings FITS headers use for RA and Dec, and the one way right ascension is
+//! printed (wrapped into [0, 360°) after rounding).
 //!
 //! Ellipsoid: a = 6378137 m, 1/f = 298.257223563 (NIMA TR8350.2, 3rd ed., 2000,
 //! "Department of Defense World Geodetic System 1984", table 3.1).
@@ -117,6 +118,28 @@ pub fn format_sexagesimal(value: f64, decimals: usize, signed: bool) -> String {
     format!("{sign}{whole:02}:{minutes:02}:{secs:0width$.decimals$}")
 }
 
+/// Right ascension `ra_deg` in degrees with `decimals` fixed decimals. An RA that
+/// rounds to 360 (359.9999999 at 6 decimals) is the direction 0 and prints as 0, as
+/// does −0: the printed value stays in the [0, 360) every reader of it checks.
+pub fn format_ra_deg(ra_deg: f64, decimals: usize) -> String {
+    let text = format!("{ra_deg:.decimals$}");
+    match text.parse::<f64>() {
+        Ok(v) if v >= 360.0 || v == 0.0 => format!("{:.decimals$}", 0.0),
+        _ => text,
+    }
+}
+
+/// Right ascension `ra_deg` as sexagesimal hours `"HH:MM:SS.fff…"` with `decimals`
+/// digits of seconds. One a hair under 360° rounds to 24:00:00, which reads back as
+/// 360°, out of range: it prints as the same direction, 00:00:00.
+pub fn format_ra_hms(ra_deg: f64, decimals: usize) -> String {
+    let text = format_sexagesimal(ra_deg / 15.0, decimals, false);
+    match text.strip_prefix("24:") {
+        Some(rest) => format!("00:{rest}"),
+        None => text,
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -165,5 +188,20 @@ mod tests {
         for junk in ["", "ab:cd", "12:61:00", "1:2:3:4", "--1"] {
             assert_eq!(parse_sexagesimal(junk), None, "{junk}");
         }
+    }
+
+    /// 359.9999999° printed as `360.000000`, outside [0, 360).
+    #[test]
+    fn right_ascension_that_rounds_to_a_full_circle_prints_as_zero() {
+        assert_eq!(format_ra_deg(359.999_999_9, 6), "0.000000");
+        assert_eq!(format_ra_deg(359.999_999_5, 6), "0.000000");
+        assert_eq!(format_ra_deg(359.999_999_4, 6), "359.999999");
+        assert_eq!(format_ra_deg(360.0 - 1e-12, 3), "0.000");
+        assert_eq!(format_ra_deg(-0.0, 6), "0.000000");
+        assert_eq!(format_ra_deg(123.25, 6), "123.250000");
+        assert_eq!(format_ra_deg(0.0, 0), "0");
+        assert_eq!(format_ra_hms(360.0 - 1e-9, 3), "00:00:00.000");
+        assert_eq!(format_ra_hms(359.999, 3), "23:59:59.760");
+        assert_eq!(format_ra_hms(187.5, 2), "12:30:00.00");
     }
 }

@@ -185,6 +185,47 @@ pub struct Header {
 }
 
 impl Header {
+    /// Names of the fields in which `self` and `other` differ, in declaration order
+    /// (empty when they are equal).
+    pub fn differing_fields(&self, other: &Header) -> Vec<&'static str> {
+        // Destructured so that a new field cannot be left out of the comparison.
+        let Header {
+            source,
+            telescope,
+            ra_deg,
+            dec_deg,
+            site,
+            start,
+            tsamp_s,
+            freqs_mhz,
+            chan_bw_mhz,
+            weights,
+            n_samples,
+            nbits,
+            sefd_jy,
+            beam,
+        } = self;
+        [
+            ("source", *source == other.source),
+            ("telescope", *telescope == other.telescope),
+            ("ra_deg", *ra_deg == other.ra_deg),
+            ("dec_deg", *dec_deg == other.dec_deg),
+            ("site", *site == other.site),
+            ("start", *start == other.start),
+            ("tsamp_s", *tsamp_s == other.tsamp_s),
+            ("channel frequencies", *freqs_mhz == other.freqs_mhz),
+            ("chan_bw_mhz", *chan_bw_mhz == other.chan_bw_mhz),
+            ("channel weights", *weights == other.weights),
+            ("n_samples", *n_samples == other.n_samples),
+            ("nbits", *nbits == other.nbits),
+            ("sefd_jy", *sefd_jy == other.sefd_jy),
+            ("beam", *beam == other.beam),
+        ]
+        .into_iter()
+        .filter_map(|(name, same)| (!same).then_some(name))
+        .collect()
+    }
+
     /// Number of channels.
     pub fn n_chan(&self) -> usize {
         self.freqs_mhz.len()

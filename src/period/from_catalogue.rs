@@ -16,13 +16,11 @@
 //! Windows carry no site, so the site of the source's first burst is used; another
 //! site changes an edge by at most an Earth radius over c (≈ 21 ms, common practice).
 
-use std::collections::BTreeSet;
-
 use super::times::{ArrivalTimes, Exposure, SECONDS_PER_DAY};
 use crate::catalogue::{BurstFilter, BurstTiming, Catalogue};
 use crate::error::{Error, Result};
 use crate::obs::UtcEpoch;
-use crate::timing::{Barycentrer, Ephemeris, TdbEpoch};
+use crate::timing::{Barycentrer, Ephemeris, TdbEpoch, WarningTally};
 
 /// Barycentric arrival times of one source's bursts.
 #[derive(Debug, Clone)]
@@ -33,7 +31,8 @@ pub struct SourceArrivals {
     pub toas: ArrivalTimes,
     /// Bursts whose TDB arrival was not stored and was computed here.
     pub computed: usize,
-    /// Warnings of the timing conversions (each text once).
+    /// Warnings of the timing conversions, one line per kind naming the bursts
+    /// that raised it ([`WarningTally::lines`]).
     pub warnings: Vec<String>,
     /// The first burst, whose site and source position convert exposure windows.
     first: BurstTiming,
@@ -55,7 +54,7 @@ impl SourceArrivals {
                 cat.path().display()
             )));
         };
-        let mut warnings = BTreeSet::new();
+        let mut warnings = WarningTally::new("burst", "id");
         let mut computed = 0;
         let mut parts = Vec::with_capacity(bursts.len());
         for b in &bursts {
@@ -65,7 +64,7 @@ impl SourceArrivals {
                     computed += 1;
                     let r = Barycentrer::new(&b.site, b.ra_deg, b.dec_deg, Ephemeris::Embedded)?
                         .convert(UtcEpoch::from_mjd_f64(b.mjd_utc))?;
-                    warnings.extend(r.warnings.iter().map(ToString::to_string));
+                    warnings.add(b.burst_id, &r.warnings);
                     (r.tdb.mjd, r.tdb.sec / SECONDS_PER_DAY)
                 }
             };
@@ -75,7 +74,7 @@ impl SourceArrivals {
             source: source.to_string(),
             toas: ArrivalTimes::from_day_fraction(&parts)?,
             computed,
-            warnings: warnings.into_iter().collect(),
+            warnings: warnings.lines(),
             first,
         })
     }
@@ -117,7 +116,6 @@ impl SourceArrivals {
 /// # Errors
 /// Unknown source or an SQLite failure.
 pub fn source_fluences_jy_ms(cat: &Catalogue, source: &str) -> Result<Vec<f64>> {
-    cat.source(source)?;
     let filter = BurstFilter {
         source: Some(source.to_string()),
         ..Default::default()

@@ -104,8 +104,12 @@ pub struct RotationCandidate {
 /// Outcome of [`search_rotation`].
 #[derive(Clone, Debug, Serialize)]
 pub struct RotationResult {
-    /// The settings used.
+    /// The settings used, the longest trial period cut to the span (see
+    /// `max_period_asked_s`).
     pub config: RotationConfig,
+    /// The longest trial period asked for, when it was longer than the arrivals'
+    /// span and the searched band was cut there.
+    pub max_period_asked_s: Option<f64>,
     /// Arrivals after merging.
     pub n_toas: usize,
     /// Span of the arrivals, s.
@@ -173,11 +177,40 @@ fn validate(cfg: &RotationConfig) -> Result<()> {
     Ok(())
 }
 
-/// Searches sorted arrival times `t_s` (s, TDB) for a rotation period.
-/// `on_progress` receives grid points done out of `grid.len` (see [`rotation_grid`]).
+/// `cfg` with its longest trial period cut to the arrivals' span `span_s`, and the
+/// longest period asked for if it was cut: over a longer period every arrival lies
+/// within one turn, where Z²ₙ and H have no chance probability (as for a stated
+/// period, [`test_period`]), so such a trial cannot be tested.
 ///
 /// # Errors
-/// [`Error::Config`] for fewer than 3 arrivals or inconsistent settings.
+/// [`Error::Config`] if not even the shortest trial period is below the span.
+fn within_span(cfg: &RotationConfig, span_s: f64) -> Result<(RotationConfig, Option<f64>)> {
+    if cfg.min_period_s >= span_s {
+        return Err(Error::Config(format!(
+            "the arrivals span {span_s} s, no longer than the shortest trial period of {} s \
+             (--min-period-s): every trial period would hold them within one turn, where \
+             Z²ₙ and H have no chance probability",
+            cfg.min_period_s
+        )));
+    }
+    if cfg.max_period_s <= span_s {
+        return Ok((cfg.clone(), None));
+    }
+    let cut = RotationConfig {
+        max_period_s: span_s,
+        ..cfg.clone()
+    };
+    Ok((cut, Some(cfg.max_period_s)))
+}
+
+/// Searches sorted arrival times `t_s` (s, TDB) for a rotation period, over trial
+/// periods from `cfg.min_period_s` to `cfg.max_period_s` or the arrivals' span,
+/// whichever is shorter. `on_progress` receives grid points done out of `grid.len`
+/// (see [`rotation_grid`]).
+///
+/// # Errors
+/// [`Error::Config`] for fewer than 3 arrivals, inconsistent settings, or arrivals
+/// spanning no more than the shortest trial period.
 pub fn search_rotation(
     t_s: &[f64],
     cfg: &RotationConfig,
@@ -187,6 +220,8 @@ pub fn search_rotation(
     validate(cfg)?;
     let toas = merged(t_s, cfg.merge_gap_s)?;
     let span_s = toas[toas.len() - 1] - toas[0];
+    let (cfg, max_period_asked_s) = within_span(cfg, span_s)?;
+    let cfg = &cfg;
     let grid = rotation_grid(&toas, cfg);
     if grid.len > MAX_TRIALS {
         return Err(Error::Config(format!(
@@ -246,6 +281,7 @@ pub fn search_rotation(
     };
     Ok(RotationResult {
         config: cfg.clone(),
+        max_period_asked_s,
         n_toas: toas.len(),
         span_s,
         grid,
@@ -341,11 +377,13 @@ fn sub_harmonic(
     })
 }
 
-/// The trial grid [`search_rotation`] scans for these (merged) arrivals.
+/// The trial grid [`search_rotation`] scans for these (merged) arrivals: its band
+/// cut to their span (a band wholly beyond it, which the search refuses, is left).
 pub fn rotation_grid(t_s: &[f64], cfg: &RotationConfig) -> FrequencyGrid {
     let span = t_s.last().unwrap_or(&0.0) - t_s.first().unwrap_or(&0.0);
+    let max_period_s = within_span(cfg, span).map_or(cfg.max_period_s, |(c, _)| c.max_period_s);
     FrequencyGrid::for_span(
-        1.0 / cfg.max_period_s,
+        1.0 / max_period_s,
         1.0 / cfg.min_period_s,
         span,
         cfg.harmonics,
@@ -597,9 +635,10 @@ mod tests {
 
     #[test]
     fn arrivals_within_one_trial_period_keep_every_pick_in_the_band() {
-        // Five arrivals within 0.81 s, searched up to 10 s: the grid step (0.21 Hz)
-        // is wider than the lowest trial frequency, and refining the peak there
-        // reached a negative frequency (a period of −2130 s was reported).
+        // Five arrivals within 0.81 s, searched up to 10 s before the band was cut
+        // to the span: the grid step (0.21 Hz) was wider than the lowest trial
+        // frequency, and refining the peak there reached a negative frequency (a
+        // period of −2130 s was reported).
         let toas = [0.0, 0.0864, 0.216, 0.69984, 0.80352];
         let cfg = RotationConfig::default();
         let r = search_rotation(&toas, &cfg, &|_| {}).unwrap();
@@ -633,6 +672,42 @@ mod tests {
             "{err}"
         );
         assert!(search_rotation(&[5.0, 5.0, 6.0], &cfg, &|_| {}).is_ok());
+    }
+
+    /// Arrivals spanning 0.8 s searched up to the default 10 s used to report a best
+    /// period of seconds: a trial period longer than the span cannot be tested.
+    #[test]
+    fn the_band_is_cut_to_the_span_and_a_band_wholly_beyond_it_is_refused() {
+        let toas = [0.0, 0.0864, 0.216, 0.69984, 0.80352];
+        let span = toas[4] - toas[0];
+        let r = search_rotation(&toas, &RotationConfig::default(), &|_| {}).unwrap();
+        assert!(r.period_s <= span, "best period {} s", r.period_s);
+        for c in &r.candidates {
+            assert!(c.period_s <= span, "{c:?}");
+        }
+        assert_eq!(r.config.max_period_s, span);
+        assert_eq!(r.max_period_asked_s, Some(10.0));
+        assert_eq!(rotation_grid(&toas, &RotationConfig::default()), r.grid);
+        // A band inside the span is searched as asked.
+        let inside = RotationConfig {
+            max_period_s: 0.5,
+            ..Default::default()
+        };
+        let r = search_rotation(&toas, &inside, &|_| {}).unwrap();
+        assert_eq!((r.config.max_period_s, r.max_period_asked_s), (0.5, None));
+        // Nothing of the band left: refused, like a stated period beyond the span.
+        for min_period_s in [span, 1.0] {
+            let beyond = RotationConfig {
+                min_period_s,
+                ..Default::default()
+            };
+            let err = search_rotation(&toas, &beyond, &|_| {}).unwrap_err();
+            assert!(
+                err.to_string()
+                    .contains("no longer than the shortest trial period"),
+                "{err}"
+            );
+        }
     }
 
     #[test]

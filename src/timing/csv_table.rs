@@ -3,7 +3,7 @@
 use std::path::Path;
 
 use super::leap::utc_day_length_s;
-use super::{Barycentrer, TdbEpoch, TimingWarning};
+use super::{Barycentrer, TdbEpoch, WarningTally};
 use crate::atomic_file::{self, AtomicFile};
 use crate::error::{Error, Result};
 use crate::obs::UtcEpoch;
@@ -13,12 +13,12 @@ use crate::units::SECONDS_PER_DAY;
 pub const MJD_UTC_COLUMN: &str = "mjd_utc";
 
 /// What [`barycentre_csv`] did.
-#[derive(Debug, Clone, Default)]
+#[derive(Debug, Clone)]
 pub struct CsvSummary {
     /// Data rows converted.
     pub rows: usize,
-    /// One example of each kind of warning met (the first row that raised it).
-    pub warnings: Vec<TimingWarning>,
+    /// Warnings met, by kind, with the rows (file line numbers) that raised them.
+    pub warnings: WarningTally,
 }
 
 /// Reads `input` (CSV with a header and a column `mjd_utc`), converts every row and
@@ -85,7 +85,10 @@ pub fn barycentre_csv(bary: &Barycentrer, input: &Path, output: &Path) -> Result
     out_headers.push_field("correction_s");
     writer.write_record(&out_headers).map_err(write_err)?;
 
-    let mut summary = CsvSummary::default();
+    let mut summary = CsvSummary {
+        rows: 0,
+        warnings: WarningTally::new("row", "line"),
+    };
     for record in reader.records() {
         let mut record = record.map_err(|e| bad(e.to_string()))?;
         let line = record.position().map_or(0, |p| p.line());
@@ -95,15 +98,7 @@ pub fn barycentre_csv(bary: &Barycentrer, input: &Path, output: &Path) -> Result
         let result = bary
             .convert(utc)
             .map_err(|e| bad(format!("line {line}: {e}")))?;
-        for w in result.warnings {
-            let seen = summary
-                .warnings
-                .iter()
-                .any(|s| std::mem::discriminant(s) == std::mem::discriminant(&w));
-            if !seen {
-                summary.warnings.push(w);
-            }
-        }
+        summary.warnings.add(line as i64, &result.warnings);
         record.push_field(&format_mjd(result.tdb, 15));
         record.push_field(&format!("{:.9}", result.correction_s));
         writer.write_record(&record).map_err(write_err)?;

@@ -21,13 +21,14 @@ pub mod ephemeris;
 pub mod geometry;
 pub mod leap;
 mod spk;
+mod warning;
 
-use std::fmt;
 use std::sync::Mutex;
 
 pub use csv_table::{CsvSummary, barycentre_csv};
 pub use ephemeris::Ephemeris;
 pub use spk::SpkEphemeris;
+pub use warning::{TimingWarning, WarningTally};
 
 use crate::error::{Error, Result};
 use crate::obs::{Site, UtcEpoch, check_sky_position};
@@ -60,40 +61,6 @@ impl TdbEpoch {
     /// Seconds from `other` to `self`.
     pub fn seconds_since(self, other: TdbEpoch) -> f64 {
         (self.mjd - other.mjd) as f64 * SECONDS_PER_DAY + (self.sec - other.sec)
-    }
-}
-
-/// Something the caller should know about a conversion that still succeeded.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub enum TimingWarning {
-    /// The UTC day lies after the leap-second table's validity date.
-    LeapTableExpired { mjd_utc: i64 },
-    /// The Earth came from the analytic `epv00` model (≤ 45 µs), not the ephemeris.
-    EarthOutsideEphemeris { mjd_tdb: f64 },
-    /// TDB − TT came from the short series (≤ 15 µs), not the ERFA table.
-    TdbOutsideTable { mjd_tdb: f64 },
-}
-
-impl fmt::Display for TimingWarning {
-    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        match self {
-            TimingWarning::LeapTableExpired { mjd_utc } => write!(
-                f,
-                "MJD {mjd_utc} is after the leap-second table's validity (MJD {}, 2027-06-28): \
-                 a leap second announced since then is missing",
-                leap::LEAP_TABLE_VALID_UNTIL_MJD
-            ),
-            TimingWarning::EarthOutsideEphemeris { mjd_tdb } => write!(
-                f,
-                "MJD {mjd_tdb:.1} is outside the ephemeris; used the analytic epv00 Earth \
-                 (errors up to ~45 µs)"
-            ),
-            TimingWarning::TdbOutsideTable { mjd_tdb } => write!(
-                f,
-                "MJD {mjd_tdb:.1} is outside the TDB-TT table; used a short series \
-                 (errors up to ~15 µs)"
-            ),
-        }
     }
 }
 

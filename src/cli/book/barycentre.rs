@@ -2,7 +2,7 @@
 
 use burstbook::catalogue::Catalogue;
 use burstbook::obs::UtcEpoch;
-use burstbook::timing::{Barycentrer, Ephemeris};
+use burstbook::timing::{Barycentrer, Ephemeris, WarningTally};
 
 /// Arguments of `book barycentre`.
 #[derive(clap::Args, Debug)]
@@ -29,15 +29,15 @@ pub fn run(cat: &mut Catalogue, a: BarycentreArgs) -> anyhow::Result<()> {
     for name in names {
         let bursts = cat.burst_timing(&name)?;
         let mut toas = Vec::with_capacity(bursts.len());
-        let mut warnings = std::collections::BTreeSet::new();
+        let mut warnings = WarningTally::new("burst", "id");
         for b in &bursts {
             let bary = Barycentrer::new(&b.site, b.ra_deg, b.dec_deg, Ephemeris::Embedded)?;
             let result = bary.convert(UtcEpoch::from_mjd_f64(b.mjd_utc))?;
-            warnings.extend(result.warnings.iter().map(ToString::to_string));
+            warnings.add(b.burst_id, &result.warnings);
             toas.push((b.burst_id, result.tdb.to_mjd_f64()));
         }
         cat.set_barycentric_toas(&toas)?;
-        for w in warnings {
+        for w in warnings.lines() {
             note!("burstbook: warning: {name}: {w}");
         }
         say!("{name}: {} barycentric TOA(s) stored", toas.len())?;

@@ -1,6 +1,7 @@
 //! `book source add|list`.
 
 use burstbook::catalogue::{Catalogue, SourceRecord};
+use burstbook::obs::geodesy::format_ra_deg;
 use clap::Subcommand;
 
 use super::output::{Format, opt, write_rows};
@@ -73,7 +74,7 @@ pub fn run(cat: &mut Catalogue, c: SourceCommand) -> anyhow::Result<()> {
                     vec![
                         s.id.to_string(),
                         s.name.clone(),
-                        format!("{:.6}", s.ra_deg),
+                        format_ra_deg(s.ra_deg, 6),
                         format!("{:.6}", s.dec_deg),
                         opt(s.dm_ref, 3),
                         s.notes.clone(),

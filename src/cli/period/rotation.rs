@@ -157,6 +157,13 @@ fn print_rotation(r: &RotationResult, toas: &ArrivalTimes) -> std::io::Result<()
         r.grid.df_hz,
         r.independent_frequencies
     )?;
+    if let Some(asked) = r.max_period_asked_s {
+        say!(
+            "  longest trial period cut from {asked} s to the arrivals' span of {:.6} s: \
+             a longer one holds them within one turn and cannot be tested",
+            r.config.max_period_s
+        )?;
+    }
     let mc_header = match r.null {
         Some(_) => format!(" {:>9} {:>9}", "MC(Z2n)", "MC(H)"),
         None => String::new(),

@@ -120,6 +120,12 @@ impl FitsReader {
         Ok(reader)
     }
 
+    /// Where the `SUBINT` rows lie in the file: the recorded samples with their
+    /// per-row columns, without any header card.
+    pub fn table_bytes(&self) -> std::ops::Range<u64> {
+        self.data_start..self.data_start + self.n_rows * self.layout.row_bytes as u64
+    }
+
     /// Fills in what only the rows tell: frequencies and weights (first row) and
     /// the true length of the last row (its `TSUBINT`). Leaves the file at row 0.
     fn complete_header(&mut self) -> Result<()> {

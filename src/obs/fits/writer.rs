@@ -10,7 +10,7 @@ use super::cards::{BLOCK, CardWriter};
 use crate::atomic_file::AtomicFile;
 use crate::error::{Error, Result};
 use crate::obs::codec::{check_complete, check_finite, check_room, check_whole_rows, quantise};
-use crate::obs::geodesy::{format_sexagesimal, geodetic_to_itrf_m};
+use crate::obs::geodesy::{format_ra_hms, format_sexagesimal, geodetic_to_itrf_m};
 use crate::obs::{Header, SampleSink};
 
 /// Samples per row the writer aims for (rows of about a million values).
@@ -248,14 +248,7 @@ fn primary_header(h: &Header) -> Vec<u8> {
     c.real("ANT_Y", y, "ITRF Y (m)");
     c.real("ANT_Z", z, "ITRF Z (m)");
     c.str("SRC_NAME", &h.source, "");
-    // An RA a hair under 360° rounds to 24:00:00, which reads back as 360°, out of
-    // range: write the same direction as 00:00:00.
-    let ra = format_sexagesimal(h.ra_deg / 15.0, 6, false);
-    let ra = match ra.strip_prefix("24:") {
-        Some(rest) => format!("00:{rest}"),
-        None => ra,
-    };
-    c.str("RA", &ra, "hh:mm:ss");
+    c.str("RA", &format_ra_hms(h.ra_deg, 6), "hh:mm:ss");
     c.str("DEC", &format_sexagesimal(h.dec_deg, 5, true), "dd:mm:ss");
     c.int("STT_IMJD", h.start.mjd, "start day (UTC MJD)");
     c.int("STT_SMJD", sec_whole as i64, "start second of day");
