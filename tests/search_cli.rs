@@ -45,10 +45,16 @@ snr = 40.0
 "#;
 
 fn simulate(path: &Path, container: Container, seed: u64) {
-    let sim = Simulation::new(&Scenario::parse(SCENARIO).unwrap(), seed).unwrap();
+    write_scenario(path, SCENARIO, container, seed);
+}
+
+/// Simulates `scenario` with `seed` into `path`; returns the simulation.
+fn write_scenario(path: &Path, scenario: &str, container: Container, seed: u64) -> Simulation {
+    let sim = Simulation::new(&Scenario::parse(scenario).unwrap(), seed).unwrap();
     let mut sink = obs::create(path, &sim.header, container).unwrap();
     write_observation(&sim, sink.as_mut()).unwrap();
     sink.finish().unwrap();
+    sim
 }
 
 #[test]
@@ -253,15 +259,12 @@ fn a_very_bright_pulse_is_one_candidate() {
     let scenario = scenario.split("[[rfi.impulse]]").next().unwrap();
     let dir = tempfile::tempdir().unwrap();
     for seed in 1..=3 {
-        let sim = Simulation::new(&Scenario::parse(scenario).unwrap(), seed).unwrap();
+        let file = dir.path().join(format!("bright{seed}.json"));
+        let sim = write_scenario(&file, scenario, Container::Native, seed);
         assert_eq!(
             (sim.header.n_chan(), sim.header.nbits, sim.pulses.len()),
             (256, 32, 1)
         );
-        let file = dir.path().join(format!("bright{seed}.json"));
-        let mut sink = obs::create(&file, &sim.header, Container::Native).unwrap();
-        write_observation(&sim, sink.as_mut()).unwrap();
-        sink.finish().unwrap();
         let out = dir.path().join(format!("out{seed}"));
         let o = burstbook(&[
             "search",
@@ -289,10 +292,7 @@ fn a_wide_burst_is_found_with_only_the_width_flag() {
     let scenario = SCENARIO
         .replace("length_s = 12.0", "length_s = 20.0")
         .replace("width_ms = 4.0", "width_ms = 300.0");
-    let sim = Simulation::new(&Scenario::parse(&scenario).unwrap(), 4).unwrap();
-    let mut sink = obs::create(&file, &sim.header, Container::Native).unwrap();
-    write_observation(&sim, sink.as_mut()).unwrap();
-    sink.finish().unwrap();
+    write_scenario(&file, &scenario, Container::Native, 4);
     let out = dir.path().join("out");
     let o = burstbook(&[
         "search",
@@ -342,10 +342,7 @@ fn many_undispersed_candidates_suggest_the_zero_dm_filter() {
     let scenario = SCENARIO.split("[[rfi.impulse]]").next().unwrap().to_owned()
         + "[[rfi.train]]\nfirst_s = 0.3\nperiod_s = 0.1\nwidth_ms = 2.0\nsnr = 8.0\n\
            freq_lo_mhz = 1250.0\nfreq_hi_mhz = 1450.0\n";
-    let sim = Simulation::new(&Scenario::parse(&scenario).unwrap(), 1).unwrap();
-    let mut sink = obs::create(&file, &sim.header, Container::Native).unwrap();
-    write_observation(&sim, sink.as_mut()).unwrap();
-    sink.finish().unwrap();
+    write_scenario(&file, &scenario, Container::Native, 1);
     let search = |extra: &[&str]| {
         let out = dir.path().join("out");
         let mut args = vec![
@@ -391,10 +388,7 @@ fn averaging_on_read_fits_a_low_frequency_search_into_less_memory() {
         .replace("dm = 180.0", "dm = 12.0")
         .replace("width_ms = 4.0\nsnr = 25.0", "width_ms = 20.0\nsnr = 40.0");
     let scenario = scenario.split("[[rfi.impulse]]").next().unwrap();
-    let sim = Simulation::new(&Scenario::parse(scenario).unwrap(), 5).unwrap();
-    let mut sink = obs::create(&file, &sim.header, Container::Native).unwrap();
-    write_observation(&sim, sink.as_mut()).unwrap();
-    sink.finish().unwrap();
+    write_scenario(&file, scenario, Container::Native, 5);
     let out = dir.path().join("out");
     let catalogue = dir.path().join("cat.sqlite");
     let search = |extra: &[&str]| {
