@@ -162,6 +162,13 @@ impl SampleSource for AveragedSource {
         }
         Ok(got)
     }
+
+    // Groups start at multiples of `samples` input rows from the start, so skipping
+    // whole groups is the inner source's own (seeking) skip.
+    fn skip_rows(&mut self, n: u64) -> Result<u64> {
+        let per_row = self.factors.samples as u64;
+        Ok(self.inner.skip_rows(n.saturating_mul(per_row))? / per_row)
+    }
 }
 
 #[cfg(test)]
@@ -238,6 +245,28 @@ mod tests {
                 );
             }
         }
+    }
+
+    // A skip lands where reading and discarding would: on the same group boundary.
+    #[test]
+    fn skipping_whole_groups_matches_reading_past_them() {
+        let (h, data) = source(6, 100, 9);
+        let avg = Averaging {
+            samples: 3,
+            channels: 2,
+        };
+        let open = || avg.wrap(Box::new(MemorySource::new(h.clone(), data.clone())), "t");
+        let (mut read, mut skipped) = (open().unwrap(), open().unwrap());
+        let mut past = vec![0.0; 3 * 5];
+        assert_eq!(read.read_rows(&mut past).unwrap(), 5);
+        assert_eq!(skipped.skip_rows(5).unwrap(), 5);
+        let (mut a, mut b) = (vec![0.0; 3 * 4], vec![0.0; 3 * 4]);
+        assert_eq!(read.read_rows(&mut a).unwrap(), 4);
+        assert_eq!(skipped.read_rows(&mut b).unwrap(), 4);
+        assert_eq!(a, b);
+        // 100 rows make 33 groups: 9 are read, 24 remain.
+        assert_eq!(skipped.skip_rows(1000).unwrap(), 24);
+        assert_eq!(skipped.read_rows(&mut b).unwrap(), 0);
     }
 
     #[test]
