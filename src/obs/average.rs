@@ -112,6 +112,7 @@ impl Averaging {
             header,
             factors: *self,
             raw: Vec::new(),
+            row_sums: Vec::new(),
         }))
     }
 }
@@ -126,6 +127,8 @@ struct AveragedSource {
     live_per_group: Vec<usize>,
     /// Input rows of one call.
     raw: Vec<f32>,
+    /// Sums over one group of input rows, per input channel.
+    row_sums: Vec<f32>,
 }
 
 impl SampleSource for AveragedSource {
@@ -144,19 +147,31 @@ impl SampleSource for AveragedSource {
             .zip(self.raw.chunks_exact(per_row * n_in))
             .take(got)
         {
-            row_out.fill(0.0);
+            // Time first, over whole rows (contiguous, so it vectorises), then each
+            // channel group's live channels.
+            let sums = &mut self.row_sums;
+            sums.clear();
+            sums.resize(n_in, 0.0);
             for row in rows_in.chunks_exact(n_in) {
-                for (k, (&x, &live)) in row.iter().zip(&self.live).enumerate() {
-                    if live {
-                        row_out[k / per_chan] += x;
-                    }
+                for (sum, &x) in sums.iter_mut().zip(row) {
+                    *sum += x;
                 }
             }
-            for (value, &n) in row_out.iter_mut().zip(&self.live_per_group) {
+            for (((value, group), live), &n) in row_out
+                .iter_mut()
+                .zip(sums.chunks_exact(per_chan))
+                .zip(self.live.chunks_exact(per_chan))
+                .zip(&self.live_per_group)
+            {
+                let total: f32 = group
+                    .iter()
+                    .zip(live)
+                    .map(|(&x, &l)| if l { x } else { 0.0 })
+                    .sum();
                 *value = if n == 0 {
                     0.0
                 } else {
-                    *value / (n * per_row) as f32
+                    total / (n * per_row) as f32
                 };
             }
         }
