@@ -114,8 +114,9 @@ fn main() {
     let mut png = Vec::new();
     for _ in 0..runs {
         let c0 = thread_cpu_ns();
-        let stretch = candidate_data::read_for(path, &cut).unwrap();
-        let input = candidate_data::normalise_for(&h, &stretch, &cut).unwrap();
+        let read =
+            candidate_data::read_for(path, &cand, candidate_data::STRETCH_BUDGET_BYTES).unwrap();
+        let input = candidate_data::normalise_for(&h, &read.stretch, &cut).unwrap();
         let c1 = thread_cpu_ns();
         let _curve = candidate_data::dm_curve(&h, &input, &cut);
         let c2 = thread_cpu_ns();

@@ -101,8 +101,9 @@ fn main() {
         let path = dir.join(name);
         write(&path, &h, container);
         let read = median_s(|| {
-            let b = candidate_data::read_for(&path, &cut).unwrap();
-            assert!(b.data.iter().all(|v| v.is_finite()));
+            let budget = candidate_data::STRETCH_BUDGET_BYTES;
+            let b = candidate_data::read_for(&path, &cand, budget).unwrap();
+            assert!(b.stretch.data.iter().all(|v| v.is_finite()));
         });
         let figure = median_s(|| {
             candidate_figure_from_file(&path, &cand, &[]).unwrap();

@@ -9,7 +9,7 @@ use super::waterfall::{self, Waterfall, Window};
 use crate::candidate::Candidate;
 use crate::dedisperse::{DmPlan, channel_delays};
 use crate::error::{Error, Result};
-use crate::obs::{Block, Header};
+use crate::obs::{Averaging, Block, Header};
 use crate::units::delay_to_infinity_s;
 
 /// Time columns in the waterfall and profile.
@@ -85,13 +85,63 @@ pub struct Panels {
     pub waterfall: Waterfall,
 }
 
-/// Reads the stretch `cut` needs from the observation at `path`.
+/// Bytes of f32 samples a figure's stretch may take before it is averaged on read.
+/// At low frequencies a sweep lasts minutes, and a stretch at the file's own
+/// resolution would need tens of GB where the search itself averaged.
+pub const STRETCH_BUDGET_BYTES: usize = 256 << 20;
+
+/// The averaging that keeps the stretch `cut` (planned on `header`) within
+/// `budget_bytes`: none when it fits; else adjacent channels down to [`MAX_BANDS`]
+/// (the most sub-bands the figure shows, so the waterfall loses nothing), then time
+/// by what is still missing.
+pub fn averaging_within(header: &Header, cut: &Cut, budget_bytes: usize) -> Averaging {
+    let n_chan = header.n_chan();
+    let bytes = |chan_groups: usize| cut.stretch_len * chan_groups * size_of::<f32>();
+    if bytes(n_chan) <= budget_bytes {
+        return Averaging::default();
+    }
+    let channels = (1..=n_chan / MAX_BANDS)
+        .rev()
+        .find(|f| n_chan.is_multiple_of(*f))
+        .unwrap_or(1);
+    Averaging {
+        samples: bytes(n_chan / channels).div_ceil(budget_bytes.max(1)),
+        channels,
+    }
+}
+
+/// What a figure of one candidate reads from its file.
+#[derive(Debug, Clone)]
+pub struct FileStretch {
+    /// The header the figure is drawn on: the averaged one, if averaged.
+    pub header: Header,
+    /// The averaging applied on read ([`averaging_within`]).
+    pub averaging: Averaging,
+    /// The cut, planned on `header`.
+    pub cut: Cut,
+    /// Its rows.
+    pub stretch: Block,
+}
+
+/// The stretch of the observation at `path` a figure of `cand` needs, averaged on
+/// read when it would exceed `budget_bytes` ([`averaging_within`]).
 ///
 /// # Errors
 /// The file cannot be opened or read.
-pub fn read_for(path: &Path, cut: &Cut) -> Result<Block> {
+pub fn read_for(path: &Path, cand: &Candidate, budget_bytes: usize) -> Result<FileStretch> {
     let source = crate::obs::open(path)?;
-    stretch::read_stretch(source, cut.window.start as u64, cut.stretch_len)
+    let file_cut = Cut::new(source.header(), cand);
+    let averaging = averaging_within(source.header(), &file_cut, budget_bytes);
+    let source = averaging.wrap(source, &path.display().to_string())?;
+    let header = source.header().clone();
+    let cut = Cut::new(&header, cand);
+    let stretch = stretch::read_stretch(source, cut.window.start as u64, cut.stretch_len)?;
+    Ok(FileStretch {
+        header,
+        averaging,
+        cut,
+        stretch,
+    })
 }
 
 /// Normalises `stretch` (which must start at `cut.window.start` and hold at least

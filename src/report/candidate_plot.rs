@@ -16,7 +16,7 @@ use super::figure::{
 };
 use crate::candidate::{Candidate, Verdict};
 use crate::error::Result;
-use crate::obs::{Block, Header};
+use crate::obs::{Averaging, Block, Header};
 
 /// Figure size in pixels.
 pub const SIZE: (u32, u32) = (1100, 780);
@@ -63,11 +63,21 @@ pub fn candidate_figure(
     let cut = Cut::new(header, cand);
     let input = candidate_data::normalise_for(header, stretch, &cut)?;
     let panels = candidate_data::panels(header, &input, &cut, cand.dm);
-    draw(header, cand, &panels, dm_curve, neighbours)
+    draw(
+        header,
+        cand,
+        &panels,
+        dm_curve,
+        neighbours,
+        Averaging::default(),
+    )
 }
 
 /// Re-reads the needed stretch of `path`, measures S/N against DM around the
-/// candidate and draws the figure: all a candidate row needs.
+/// candidate and draws the figure: all a candidate row needs. A stretch larger than
+/// [`candidate_data::STRETCH_BUDGET_BYTES`] (the minutes-long sweeps of low
+/// frequencies) is averaged as it is read, and the figure's header line shows the
+/// averaged sample time and channels.
 ///
 /// # Errors
 /// The observation cannot be opened or read.
@@ -76,13 +86,28 @@ pub fn candidate_figure_from_file(
     cand: &Candidate,
     neighbours: &[Detection],
 ) -> Result<Figure> {
-    let header = crate::obs::open(path)?.header().clone();
-    let cut = Cut::new(&header, cand);
-    let stretch = candidate_data::read_for(path, &cut)?;
-    let input = candidate_data::normalise_for(&header, &stretch, &cut)?;
-    let curve = candidate_data::dm_curve(&header, &input, &cut);
-    let panels = candidate_data::panels(&header, &input, &cut, cand.dm);
-    draw(&header, cand, &panels, Some(&curve), neighbours)
+    figure_from_file_within(path, cand, neighbours, candidate_data::STRETCH_BUDGET_BYTES)
+}
+
+fn figure_from_file_within(
+    path: &Path,
+    cand: &Candidate,
+    neighbours: &[Detection],
+    budget_bytes: usize,
+) -> Result<Figure> {
+    let read = candidate_data::read_for(path, cand, budget_bytes)?;
+    let (header, cut) = (&read.header, &read.cut);
+    let input = candidate_data::normalise_for(header, &read.stretch, cut)?;
+    let curve = candidate_data::dm_curve(header, &input, cut);
+    let panels = candidate_data::panels(header, &input, cut, cand.dm);
+    draw(
+        header,
+        cand,
+        &panels,
+        Some(&curve),
+        neighbours,
+        read.averaging,
+    )
 }
 
 fn draw(
@@ -91,13 +116,14 @@ fn draw(
     panels: &Panels,
     dm_curve: Option<&DmCurve>,
     neighbours: &[Detection],
+    averaged: Averaging,
 ) -> Result<Figure> {
     let mut fig = Figure::blank(SIZE.0, SIZE.1);
     let mut rects = BTreeMap::new();
     {
         let root = BitMapBackend::with_buffer(&mut fig.rgb, SIZE).into_drawing_area();
         let (head, body) = root.split_vertically(68);
-        draw_header(&head, header, cand)?;
+        draw_header(&head, header, cand, averaged)?;
         let (left, right) = body.split_horizontally(640);
         let (prof_area, wf_area) = left.split_vertically(190);
         let (wf_area, bar_area) = wf_area.split_horizontally(570);
@@ -116,7 +142,7 @@ fn draw(
 
 type Area<'a> = DrawingArea<BitMapBackend<'a>, Shift>;
 
-fn draw_header(area: &Area, header: &Header, c: &Candidate) -> Result<()> {
+fn draw_header(area: &Area, header: &Header, c: &Candidate, averaged: Averaging) -> Result<()> {
     let line1 = format!(
         "{}   t₀ = {:.4} s after start (MJD {:.9}, ν→∞)   DM {:.2} pc cm⁻³ [{:.1}–{:.1}]   width {:.3} ms   S/N {:.1}",
         header.source, c.t_inf_s, c.mjd_inf, c.dm, c.dm_lo, c.dm_hi, c.width_ms, c.snr
@@ -130,6 +156,12 @@ fn draw_header(area: &Area, header: &Header, c: &Candidate) -> Result<()> {
         line3 += &format!("   fluence {f:.2} Jy ms");
     }
     line3 += &format!("   {}", c.file);
+    if !averaged.is_none() {
+        line3 += &format!(
+            "   (read averaged: {} samples × {} channels, a long sweep)",
+            averaged.samples, averaged.channels
+        );
+    }
     let grey = RGBColor(90, 90, 90);
     for (line, y, style) in [
         (line1, 6, text(16)),
@@ -428,6 +460,7 @@ mod tests {
     use super::*;
     use crate::candidate::TriageFeatures;
     use crate::obs::MemorySource;
+    use crate::report::candidate_data::averaging_within;
     use crate::report::stretch::read_stretch;
     use crate::report::waterfall::tests::test_header;
     use crate::report::waterfall::tests::{Pulse, noisy_burst};
@@ -492,6 +525,64 @@ mod tests {
         0.3 * p[0] as f64 + 0.59 * p[1] as f64 + 0.11 * p[2] as f64
     }
 
+    /// Milliseconds from the top-of-band arrival to the waterfall's brightest pixel
+    /// column (mean luminance over the panel's height), on the cut planned on `h`.
+    fn brightest_waterfall_ms(fig: &Figure, h: &Header, cand: &Candidate) -> f64 {
+        let wf = fig.panels["waterfall"];
+        let col_lum = |x: i32| {
+            (wf.y0..wf.y1)
+                .map(|y| luminance(fig.pixel(x as u32, y as u32)))
+                .sum::<f64>()
+                / (wf.y1 - wf.y0) as f64
+        };
+        let best_x = (wf.x0 + 2..wf.x1 - 2)
+            .max_by(|&a, &b| col_lum(a).total_cmp(&col_lum(b)))
+            .unwrap();
+        let cut = Cut::new(h, cand);
+        let t_lo = cut.col_ms(0.0, h.tsamp_s);
+        let t_hi = cut.col_ms(128.0, h.tsamp_s);
+        t_lo + (best_x - wf.x0) as f64 / (wf.x1 - wf.x0) as f64 * (t_hi - t_lo)
+    }
+
+    /// A stretch over the budget is averaged on read: 1024 channels go down to the
+    /// 64 sub-bands the figure shows before time is averaged; within the budget
+    /// nothing is.
+    #[test]
+    fn a_stretch_over_the_budget_is_averaged_channels_first() {
+        let (_, _, cand) = burst_fixture();
+        let mut h = test_header(1024, 6000);
+        h.tsamp_s = 1e-3;
+        let cut = Cut::new(&h, &cand);
+        let bytes = cut.stretch_len * 1024 * 4;
+        assert!(averaging_within(&h, &cut, bytes).is_none());
+        let a = averaging_within(&h, &cut, bytes / 16);
+        assert_eq!((a.samples, a.channels), (1, 16));
+        let a = averaging_within(&h, &cut, bytes / 40);
+        assert_eq!((a.samples, a.channels), (3, 16));
+    }
+
+    /// The figure of a file whose stretch exceeds the budget is drawn from the
+    /// averaged recording, with the burst still where it arrived.
+    #[test]
+    fn a_figure_over_the_budget_still_shows_the_burst_in_place() {
+        let (h, data, cand) = burst_fixture();
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("long-sweep.json");
+        let mut sink = crate::obs::create(&path, &h, crate::obs::Container::Native).unwrap();
+        sink.write_rows(&data).unwrap();
+        sink.finish().unwrap();
+        let full = Cut::new(&h, &cand).stretch_len * 64 * 4;
+        let read = candidate_data::read_for(&path, &cand, full / 2).unwrap();
+        assert_eq!((read.averaging.samples, read.averaging.channels), (2, 1));
+        assert_eq!(read.header.tsamp_s, 2e-3);
+        let fig = figure_from_file_within(&path, &cand, &[], full / 2).unwrap();
+        let ms = brightest_waterfall_ms(&fig, &read.header, &cand);
+        assert!(
+            (-1.0..5.0).contains(&ms),
+            "brightest column at {ms} ms, pulse at 0–4 ms"
+        );
+    }
+
     #[test]
     fn cut_centres_the_boxcar_and_reads_enough_for_the_highest_trial() {
         let (h, _, cand) = burst_fixture();
@@ -508,25 +599,12 @@ mod tests {
         let (h, data, cand) = burst_fixture();
         let fig = render(&h, data, &cand);
         assert_eq!((fig.width, fig.height), SIZE);
-        let wf = fig.panels["waterfall"];
-        // Brightest pixel column (mean luminance over the panel's height).
-        let col_lum = |x: i32| {
-            (wf.y0..wf.y1)
-                .map(|y| luminance(fig.pixel(x as u32, y as u32)))
-                .sum::<f64>()
-                / (wf.y1 - wf.y0) as f64
-        };
-        let best_x = (wf.x0 + 2..wf.x1 - 2)
-            .max_by(|&a, &b| col_lum(a).total_cmp(&col_lum(b)))
-            .unwrap();
-        let cut = Cut::new(&h, &cand);
-        let t_lo = cut.col_ms(0.0, h.tsamp_s);
-        let t_hi = cut.col_ms(128.0, h.tsamp_s);
-        let ms = t_lo + (best_x - wf.x0) as f64 / (wf.x1 - wf.x0) as f64 * (t_hi - t_lo);
+        let ms = brightest_waterfall_ms(&fig, &h, &cand);
         assert!(
             (-0.5..4.5).contains(&ms),
             "brightest column at {ms} ms, pulse at 0–4 ms"
         );
+        let wf = fig.panels["waterfall"];
         // Masked channels 40..44 (one of the 64 sub-bands) are drawn grey.
         let band_h = (wf.y1 - wf.y0) as f64 / 64.0;
         let y = wf.y0 + (40.5 * band_h) as i32;
