@@ -419,7 +419,7 @@ fn impossible_injections_are_one_line_refusals() {
             &["--count", "5", "--memory-limit-gib", "1e-6"],
             &[
                 quiet,
-                "the search would need about",
+                "the search would need at least",
                 "more than the limit of",
             ],
         ),

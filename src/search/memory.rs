@@ -25,6 +25,17 @@ pub fn estimate_bytes(
     n_chan: usize,
     read_bytes: usize,
 ) -> f64 {
+    bytes_besides_scratch(layout, plan, n_chan, read_bytes) + plan.cost().fast_scratch_bytes
+}
+
+/// [`estimate_bytes`] without the kernel's scratch, which takes sizing every step's
+/// trees (seconds, and gigabytes, for an absurd plan).
+fn bytes_besides_scratch(
+    layout: &BlockLayout,
+    plan: &DmPlan,
+    n_chan: usize,
+    read_bytes: usize,
+) -> f64 {
     let block_values = (layout.block_len * n_chan) as f64;
     let outputs: f64 = plan
         .steps
@@ -33,7 +44,7 @@ pub fn estimate_bytes(
         .sum();
     let (f32_bytes, bf16_bytes) = (size_of::<f32>() as f64, size_of::<Bf16>() as f64);
     let reads = 2.0 * block_values * read_bytes as f64;
-    1.5 * block_values * f32_bytes + reads + outputs * bf16_bytes + plan.cost().fast_scratch_bytes
+    1.5 * block_values * f32_bytes + reads + outputs * bf16_bytes
 }
 
 /// Refuses a search needing more than `limit_bytes` (`None`: no limit).
@@ -49,10 +60,15 @@ pub fn check(
     tsamp_s: f64,
     limit_bytes: Option<f64>,
 ) -> Result<(), String> {
-    let need = estimate_bytes(layout, plan, n_chan, read_bytes);
+    // A need over the limit before the scratch is counted is refused without it.
+    let base = bytes_besides_scratch(layout, plan, n_chan, read_bytes);
+    let (need, bound) = match limit_bytes {
+        Some(limit) if base > limit => (base, "at least"),
+        _ => (base + plan.cost().fast_scratch_bytes, "about"),
+    };
     match limit_bytes {
         Some(limit) if need > limit => Err(format!(
-            "the search would need about {:.2} GiB of memory, more than the limit of {:.2} GiB: \
+            "the search would need {bound} {:.2} GiB of memory, more than the limit of {:.2} GiB: \
              its blocks span {:.1} s (the sweep at DM {:.1} alone is {:.1} s) and its plan has {} \
              trial DMs; lower the highest DM, shorten the blocks, average samples or channels \
              as they are read (--average-samples, --average-channels), or raise --memory-limit-gib",
@@ -133,11 +149,15 @@ mod tests {
         assert!(check(&l, &plan, 16, 4, 1e-3, None).is_ok());
         // Byte reads need less: a limit too small for f32 reads can do for them.
         assert!(check(&l, &plan, 16, 1, 1e-3, Some(need - 1.0)).is_ok());
-        let e = check(&l, &plan, 16, 4, 1e-3, Some(need / 2.0)).unwrap_err();
+        let base = need - plan.cost().fast_scratch_bytes;
+        let e = check(&l, &plan, 16, 4, 1e-3, Some(need - 1.0)).unwrap_err();
         assert!(
-            e.contains("--memory-limit-gib") && e.contains("DM 100.0"),
+            e.contains("--memory-limit-gib") && e.contains("DM 100.0") && e.contains("about"),
             "{e}"
         );
+        // Over the limit before the scratch: refused as a lower bound, unsized.
+        let e = check(&l, &plan, 16, 4, 1e-3, Some(base - 1.0)).unwrap_err();
+        assert!(e.contains("at least"), "{e}");
     }
 
     #[test]
