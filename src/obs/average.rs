@@ -117,6 +117,10 @@ impl Averaging {
     }
 }
 
+/// Input values (rows × channels) an [`AveragedSource`] reads per call, which bounds
+/// its buffer to 4 MiB (or one group of rows, if larger).
+const READ_CHUNK_VALUES: usize = 1 << 20;
+
 /// A [`SampleSource`] that averages another one's rows and channels.
 struct AveragedSource {
     inner: Box<dyn SampleSource>,
@@ -139,7 +143,9 @@ impl SampleSource for AveragedSource {
     fn read_rows(&mut self, out: &mut [f32]) -> Result<usize> {
         let (n_in, n_out) = (self.inner.header().n_chan(), self.header.n_chan());
         let (per_row, per_chan) = (self.factors.samples, self.factors.channels);
-        let want = out.len() / n_out;
+        // At most one chunk of input at a time: a call may ask for a whole block, and
+        // that block at the input's resolution is what averaging must not hold.
+        let want = (out.len() / n_out).min((READ_CHUNK_VALUES / (per_row * n_in)).max(1));
         self.raw.resize(want * per_row * n_in, 0.0);
         let got = fill_rows(&mut *self.inner, &mut self.raw)? / per_row;
         for (row_out, rows_in) in out
@@ -260,6 +266,25 @@ mod tests {
                 );
             }
         }
+    }
+
+    // A request for a whole block is served a chunk at a time, so the input is
+    // never held at its own resolution for more than 4 MiB; `fill_rows` still gets
+    // every row.
+    #[test]
+    fn a_large_read_holds_one_chunk_of_input() {
+        let (h, data) = source(1024, 2000, 3);
+        let avg = Averaging {
+            samples: 4,
+            channels: 8,
+        };
+        let open = || avg.wrap(Box::new(MemorySource::new(h.clone(), data.clone())), "t");
+        let mut whole = vec![0.0; 500 * 128];
+        let got = open().unwrap().read_rows(&mut whole).unwrap();
+        assert_eq!(got, READ_CHUNK_VALUES / (4 * 1024));
+        let mut filled = vec![0.0; 500 * 128];
+        assert_eq!(fill_rows(&mut *open().unwrap(), &mut filled).unwrap(), 500);
+        assert_eq!(whole[..got * 128], filled[..got * 128]);
     }
 
     // A skip lands where reading and discarding would: on the same group boundary.
