@@ -54,7 +54,8 @@ impl Averaging {
     /// channel of the group is.
     ///
     /// # Errors
-    /// A factor of 0, or a channel factor that does not divide the channels.
+    /// A factor of 0, a channel factor that does not divide the channels, or more
+    /// samples to a group than the recording has.
     pub fn header(&self, h: &Header) -> std::result::Result<Header, String> {
         self.validate()?;
         if !h.n_chan().is_multiple_of(self.channels) {
@@ -62,6 +63,12 @@ impl Averaging {
                 "cannot average {} channels in groups of {}: the factor must divide them",
                 h.n_chan(),
                 self.channels
+            ));
+        }
+        if h.n_samples < self.samples as u64 {
+            return Err(format!(
+                "cannot average {} samples: the recording has only {}",
+                self.samples, h.n_samples
             ));
         }
         let mut out = h.clone();
@@ -323,6 +330,11 @@ mod tests {
             channels: 1,
         };
         assert!(zero.header(&h).unwrap_err().contains("at least 1"));
+        let long = Averaging {
+            samples: 11,
+            channels: 1,
+        };
+        assert!(long.header(&h).unwrap_err().contains("has only 10"));
         let none = Averaging::default();
         assert!(none.is_none());
         let s = none
