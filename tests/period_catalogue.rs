@@ -95,6 +95,27 @@ fn period_commands_read_bursts_and_exposure_of_a_source() {
     assert_eq!(s["waiting"]["n_outside"], 0);
     assert!(s["power_law"]["n_tail"].as_u64().unwrap() >= 2);
 
+    // A threshold counts the bursts at or above it, as `book summary` does.
+    let summary = json(&burstbook(
+        &["book", "--catalogue", db],
+        &["summary", SOURCE, "--snr-min", "30", "--format", "json"],
+    ));
+    let strong = summary[0]["n_bursts"].as_u64().unwrap();
+    assert!(0 < strong && strong < n as u64, "{strong} of {n}");
+    let s = json(&burstbook(
+        &[
+            "period",
+            "stats",
+            "--boot",
+            "20",
+            "--json",
+            "--snr-min",
+            "30",
+        ],
+        &from_source,
+    ));
+    assert_eq!(s["waiting"]["n_bursts"], strong);
+
     // Stored TOAs are used as they are: no note once `book barycentre` has run.
     let out = burstbook(&["book", "--catalogue", db], &["barycentre", SOURCE]);
     assert!(out.status.success(), "{}", stderr(&out));

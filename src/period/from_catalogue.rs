@@ -17,7 +17,7 @@
 //! site changes an edge by at most an Earth radius over c (≈ 21 ms, common practice).
 
 use super::times::{ArrivalTimes, Exposure, SECONDS_PER_DAY};
-use crate::catalogue::{BurstFilter, BurstTiming, Catalogue};
+use crate::catalogue::{Bounds, BurstFilter, BurstTiming, Catalogue};
 use crate::error::{Error, Result};
 use crate::obs::UtcEpoch;
 use crate::timing::{Barycentrer, Ephemeris, TdbEpoch, WarningTally};
@@ -39,18 +39,26 @@ pub struct SourceArrivals {
 }
 
 impl SourceArrivals {
-    /// Reads the bursts of `source` and their barycentric TDB arrival times,
-    /// computing those not yet stored.
+    /// Reads the bursts of `source` with S/N ≥ `snr_min` (`None`: all) and their
+    /// barycentric TDB arrival times, computing those not yet stored. Pass the
+    /// threshold given to [`SourceArrivals::exposure`]: a burst weaker than it could
+    /// only be found in the sessions searched deeper, so it does not belong with
+    /// exposure counted at that depth (the rule of `book summary`).
     ///
     /// # Errors
-    /// Unknown source, a source without bursts, a failed timing conversion, or an
-    /// SQLite failure.
-    pub fn load(cat: &Catalogue, source: &str) -> Result<SourceArrivals> {
-        let bursts = cat.burst_timing(source)?;
+    /// Unknown source, a source without bursts (at that S/N), a failed timing
+    /// conversion, or an SQLite failure.
+    pub fn load(cat: &Catalogue, source: &str, snr_min: Option<f64>) -> Result<SourceArrivals> {
+        let bursts: Vec<BurstTiming> = cat
+            .burst_timing(source)?
+            .into_iter()
+            .filter(|b| snr_min.is_none_or(|s| b.snr >= s))
+            .collect();
         let Some(first) = bursts.first().cloned() else {
             return Err(Error::Config(format!(
-                "source {source:?} has no bursts in {} (promote candidates with \
+                "source {source:?} has no bursts{} in {} (promote candidates with \
                  `burstbook book promote`)",
+                snr_min.map_or(String::new(), |s| format!(" of S/N ≥ {s}")),
                 cat.path().display()
             )));
         };
@@ -111,14 +119,22 @@ impl SourceArrivals {
     }
 }
 
-/// Fluences in Jy ms of the bursts of `source` that have one (the SEFD was known).
+/// Fluences in Jy ms of the bursts of `source` with S/N ≥ `snr_min` (`None`: all)
+/// that have one (the SEFD was known).
 ///
 /// # Errors
 /// Unknown source or an SQLite failure.
-pub fn source_fluences_jy_ms(cat: &Catalogue, source: &str) -> Result<Vec<f64>> {
+pub fn source_fluences_jy_ms(
+    cat: &Catalogue,
+    source: &str,
+    snr_min: Option<f64>,
+) -> Result<Vec<f64>> {
     let filter = BurstFilter {
         source: Some(source.to_string()),
-        ..Default::default()
+        bounds: Bounds {
+            snr_min,
+            ..Default::default()
+        },
     };
     Ok(cat
         .bursts(&filter)?
@@ -164,13 +180,13 @@ mod tests {
     fn computes_missing_toas_like_the_stored_ones() {
         let dir = tempfile::tempdir().unwrap();
         let (mut cat, n) = catalogue_with_edge_bursts(dir.path());
-        let fresh = SourceArrivals::load(&cat, "SRC").unwrap();
+        let fresh = SourceArrivals::load(&cat, "SRC", None).unwrap();
         assert_eq!((fresh.toas.len(), fresh.computed), (n, n));
         // Store one value by hand; it must be used as given.
         let first_id = cat.burst_timing("SRC").unwrap()[0].burst_id;
         let stored_mjd = fresh.toas.mjd_of(fresh.toas.t_s[0]) + 1e-6;
         cat.set_barycentric_toas(&[(first_id, stored_mjd)]).unwrap();
-        let mixed = SourceArrivals::load(&cat, "SRC").unwrap();
+        let mixed = SourceArrivals::load(&cat, "SRC", None).unwrap();
         assert_eq!(mixed.computed, n - 1);
         let shift_s = mixed.toas.t_s[0] - fresh.toas.t_s[0];
         assert!((shift_s - 0.0864).abs() < 1e-3, "{shift_s}");
@@ -181,7 +197,7 @@ mod tests {
     fn bursts_at_session_edges_stay_inside_their_tdb_sessions() {
         let dir = tempfile::tempdir().unwrap();
         let (cat, n) = catalogue_with_edge_bursts(dir.path());
-        let arrivals = SourceArrivals::load(&cat, "SRC").unwrap();
+        let arrivals = SourceArrivals::load(&cat, "SRC", None).unwrap();
         let exposure = arrivals.exposure(&cat, None).unwrap();
         assert_eq!(exposure.sessions_days.len(), 2);
         let days = arrivals.toas.days();
@@ -214,12 +230,49 @@ mod tests {
         let obs = observation("EMPTY", 1);
         cat.record_search(&obs, &run(7.0), &candidates(&obs, 2, 1))
             .unwrap();
-        let e = SourceArrivals::load(&cat, "EMPTY").unwrap_err().to_string();
+        let e = SourceArrivals::load(&cat, "EMPTY", None)
+            .unwrap_err()
+            .to_string();
         assert!(e.contains("\"EMPTY\" has no bursts"), "{e}");
         let id = cat.candidates(&CandidateFilter::default()).unwrap()[0].id;
         cat.promote(id, Some("EMPTY"), TOL).unwrap();
-        let arrivals = SourceArrivals::load(&cat, "EMPTY").unwrap();
+        let arrivals = SourceArrivals::load(&cat, "EMPTY", None).unwrap();
         let e = arrivals.exposure(&cat, Some(5.0)).unwrap_err().to_string();
         assert!(e.contains("no exposure searched to S/N 5"), "{e}");
+    }
+
+    /// A threshold S counts the bursts of S/N ≥ S against the exposure searched to S,
+    /// as `book summary --snr-min` does. Weaker bursts could be found only in the
+    /// sessions searched deeper, so keeping them (as before: all 6 bursts against
+    /// exposure at S) weighted those sessions in the fold and the rates.
+    #[test]
+    fn a_threshold_keeps_the_bursts_at_or_above_it() {
+        let dir = tempfile::tempdir().unwrap();
+        let (cat, n) = catalogue_with_edge_bursts(dir.path());
+        let mut snrs: Vec<f64> = cat
+            .burst_timing("SRC")
+            .unwrap()
+            .iter()
+            .map(|b| b.snr)
+            .collect();
+        snrs.sort_by(f64::total_cmp);
+        let s = snrs[n / 2];
+        let strong = n - n / 2;
+        let arrivals = SourceArrivals::load(&cat, "SRC", Some(s)).unwrap();
+        assert_eq!(arrivals.toas.len(), strong);
+        assert_eq!(
+            cat.summary("SRC", Some(s), 0.95).unwrap().n_bursts as usize,
+            strong
+        );
+        // Every synthetic burst has a fluence.
+        assert_eq!(
+            source_fluences_jy_ms(&cat, "SRC", Some(s)).unwrap().len(),
+            strong
+        );
+        assert_eq!(source_fluences_jy_ms(&cat, "SRC", None).unwrap().len(), n);
+        let e = SourceArrivals::load(&cat, "SRC", Some(1e3))
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("\"SRC\" has no bursts of S/N ≥ 1000 in"), "{e}");
     }
 }

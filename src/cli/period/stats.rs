@@ -45,7 +45,7 @@ pub fn run(a: Args) -> anyhow::Result<()> {
             let path = Catalogue::resolve_path(a.input.catalogue.catalogue.as_deref());
             let cat = Catalogue::open_existing(&path, DEFAULT_LOCK_WAIT)?;
             let what = format!("fluence_jy_ms of {}", a.input.catalogue.describe());
-            (source_fluences_jy_ms(&cat, source)?, what)
+            (source_fluences_jy_ms(&cat, source, a.input.snr_min)?, what)
         }
         (path, _) => {
             let path = path
