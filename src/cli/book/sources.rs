@@ -54,12 +54,21 @@ pub fn run(cat: &mut Catalogue, c: SourceCommand) -> anyhow::Result<()> {
                 dm_ref: dm,
                 notes,
             };
-            let (id, new) = cat.upsert_source(&rec)?;
+            let done = cat.upsert_source(&rec)?;
             say!(
-                "{} source {} (id {id})",
-                if new { "added" } else { "updated" },
-                rec.name
+                "{} source {} (id {})",
+                if done.new { "added" } else { "updated" },
+                rec.name,
+                done.id
             )?;
+            if done.toas_cleared > 0 {
+                say!(
+                    "its position changed: {} stored barycentric TOA(s) removed \
+                     (store new ones with `burstbook book barycentre {}`)",
+                    done.toas_cleared,
+                    rec.name
+                )?;
+            }
             Ok(())
         }
         SourceCommand::List { format } => {
