@@ -63,7 +63,8 @@ pub struct SourceUpdate {
 
 impl Catalogue {
     /// Adds a source, or updates position, DM and notes of an existing one with the
-    /// same name. When the position changes, the stored barycentric TOAs of the
+    /// same name; an update without a DM (`dm_ref` `None`) or notes (empty) keeps the
+    /// stored ones, so refining a position loses nothing. When the position changes, the stored barycentric TOAs of the
     /// source's bursts are removed in the same transaction: they were computed
     /// towards the old position (0.5° moves one by up to 1.7 s), and a period search
     /// must not use them unsaid; `book barycentre` stores new ones, and until then
@@ -88,7 +89,9 @@ impl Catalogue {
                 "INSERT INTO source (name, ra_deg, dec_deg, dm_ref, notes)
                  VALUES (?1, ?2, ?3, ?4, ?5)
                  ON CONFLICT (name) DO UPDATE SET ra_deg = excluded.ra_deg,
-                     dec_deg = excluded.dec_deg, dm_ref = excluded.dm_ref, notes = excluded.notes",
+                     dec_deg = excluded.dec_deg,
+                     dm_ref = coalesce(excluded.dm_ref, dm_ref),
+                     notes = CASE excluded.notes WHEN '' THEN notes ELSE excluded.notes END",
                 params![s.name, s.ra_deg, s.dec_deg, s.dm_ref, s.notes],
             )
             .map_err(e)?;
@@ -261,5 +264,30 @@ mod tests {
         let update = cat.upsert_source(&moved).unwrap();
         assert_eq!((update.new, update.toas_cleared), (false, 3));
         assert_eq!(stored(&cat), 0);
+    }
+
+    /// Refining a position (`book source add NAME --ra … --dec …`) must not wipe what
+    /// the command did not mention: the reference DM (which sets the summary's sweep
+    /// windows and automatic promotion) and the notes were lost that way.
+    #[test]
+    fn an_update_keeps_the_dm_and_notes_it_does_not_give() {
+        let dir = tempfile::tempdir().unwrap();
+        let mut cat = Catalogue::open(&dir.path().join("c.sqlite")).unwrap();
+        let mut first = src(10.0, 20.0);
+        first.dm_ref = Some(412.7);
+        first.notes = "repeater".into();
+        cat.upsert_source(&first).unwrap();
+        cat.upsert_source(&src(10.01, 20.0)).unwrap();
+        let back = cat.source("S").unwrap();
+        assert_eq!(
+            (back.ra_deg, back.dm_ref, back.notes.as_str()),
+            (10.01, Some(412.7), "repeater")
+        );
+        let mut changed = src(10.01, 20.0);
+        changed.dm_ref = Some(413.0);
+        changed.notes = "refined".into();
+        cat.upsert_source(&changed).unwrap();
+        let back = cat.source("S").unwrap();
+        assert_eq!((back.dm_ref, back.notes.as_str()), (Some(413.0), "refined"));
     }
 }

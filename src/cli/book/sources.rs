@@ -21,11 +21,12 @@ pub enum SourceCommand {
         /// ICRS declination, degrees.
         #[arg(long, allow_hyphen_values = true)]
         dec: f64,
-        /// Reference DM, pc cm^-3 (used for automatic burst assignment).
+        /// Reference DM, pc cm^-3 (used for automatic burst assignment) [default: an
+        /// existing source keeps its own].
         #[arg(long)]
         dm: Option<f64>,
-        /// Free text.
-        #[arg(long, default_value = "")]
+        /// Free text [default: an existing source keeps its own].
+        #[arg(long, default_value = "", hide_default_value = true)]
         notes: String,
     },
     /// List sources.
