@@ -201,3 +201,38 @@ fn power_law_counts_the_fluences_it_leaves_out() {
         "{text}"
     );
 }
+
+/// A source observed without an SEFD has no fluences: `period stats --source` still
+/// gives its waiting times and says why there is no power law (it failed with
+/// `no positive values to fit` and printed nothing else).
+#[test]
+fn waiting_times_do_not_need_fluences() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("survey.sqlite");
+    let n = build_catalogue(&db, dir.path());
+    let sql = rusqlite::Connection::open(&db).unwrap();
+    sql.execute("UPDATE burst SET fluence_jy_ms = NULL", [])
+        .unwrap();
+    drop(sql);
+    let db = db.to_str().unwrap();
+    let stats = [
+        "period",
+        "stats",
+        "--boot",
+        "0",
+        "--source",
+        SOURCE,
+        "--catalogue",
+        db,
+    ];
+    let s = json(&burstbook(&stats, &["--json"]));
+    assert_eq!(s["waiting"]["n_bursts"], n);
+    assert!(s["power_law"].is_null(), "{s}");
+    let why = s["power_law_not_fitted"].as_str().unwrap();
+    assert!(why.contains("no fluence"), "{why}");
+    let out = burstbook(&stats, &[]);
+    assert!(out.status.success(), "{}", stderr(&out));
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(text.contains(&format!("{n} bursts in ")), "{text}");
+    assert!(text.contains("Power law: not fitted"), "{text}");
+}
