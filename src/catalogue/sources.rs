@@ -50,6 +50,22 @@ impl SourceRecord {
     }
 }
 
+/// A source to add or update; a `None` DM or notes keeps the stored value (none for
+/// a new source).
+#[derive(Debug, Clone, PartialEq)]
+pub struct SourceEdit {
+    /// Unique name.
+    pub name: String,
+    /// ICRS right ascension in degrees.
+    pub ra_deg: f64,
+    /// ICRS declination in degrees.
+    pub dec_deg: f64,
+    /// Reference DM in pc cm⁻³.
+    pub dm_ref: Option<f64>,
+    /// Free text.
+    pub notes: Option<String>,
+}
+
 /// What [`Catalogue::upsert_source`] did.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub struct SourceUpdate {
@@ -62,9 +78,9 @@ pub struct SourceUpdate {
 }
 
 impl Catalogue {
-    /// Adds a source, or updates position, DM and notes of an existing one with the
-    /// same name; an update without a DM (`dm_ref` `None`) or notes (empty) keeps the
-    /// stored ones, so refining a position loses nothing. When the position changes, the stored barycentric TOAs of the
+    /// Adds a source, or replaces position, DM and notes of an existing one with the
+    /// same name (see [`Catalogue::edit_source`] to keep what is not given). When the
+    /// position changes, the stored barycentric TOAs of the
     /// source's bursts are removed in the same transaction: they were computed
     /// towards the old position (0.5° moves one by up to 1.7 s), and a period search
     /// must not use them unsaid; `book barycentre` stores new ones, and until then
@@ -89,9 +105,7 @@ impl Catalogue {
                 "INSERT INTO source (name, ra_deg, dec_deg, dm_ref, notes)
                  VALUES (?1, ?2, ?3, ?4, ?5)
                  ON CONFLICT (name) DO UPDATE SET ra_deg = excluded.ra_deg,
-                     dec_deg = excluded.dec_deg,
-                     dm_ref = coalesce(excluded.dm_ref, dm_ref),
-                     notes = CASE excluded.notes WHEN '' THEN notes ELSE excluded.notes END",
+                     dec_deg = excluded.dec_deg, dm_ref = excluded.dm_ref, notes = excluded.notes",
                 params![s.name, s.ra_deg, s.dec_deg, s.dm_ref, s.notes],
             )
             .map_err(e)?;
@@ -117,6 +131,28 @@ impl Catalogue {
                 toas_cleared,
             })
         })
+    }
+
+    /// Adds or updates a source as `book source add` does: a DM or notes the edit
+    /// does not give keep their stored values, so refining a position loses nothing.
+    ///
+    /// # Errors
+    /// As [`Catalogue::upsert_source`].
+    pub fn edit_source(&mut self, edit: &SourceEdit) -> Result<SourceUpdate> {
+        let stored = self.sources()?.into_iter().find(|s| s.name == edit.name);
+        let record = SourceRecord {
+            id: 0,
+            name: edit.name.clone(),
+            ra_deg: edit.ra_deg,
+            dec_deg: edit.dec_deg,
+            dm_ref: edit.dm_ref.or(stored.as_ref().and_then(|s| s.dm_ref)),
+            notes: edit
+                .notes
+                .clone()
+                .or(stored.map(|s| s.notes))
+                .unwrap_or_default(),
+        };
+        self.upsert_source(&record)
     }
 
     /// All sources, by name.
@@ -273,21 +309,31 @@ mod tests {
     fn an_update_keeps_the_dm_and_notes_it_does_not_give() {
         let dir = tempfile::tempdir().unwrap();
         let mut cat = Catalogue::open(&dir.path().join("c.sqlite")).unwrap();
-        let mut first = src(10.0, 20.0);
-        first.dm_ref = Some(412.7);
-        first.notes = "repeater".into();
-        cat.upsert_source(&first).unwrap();
-        cat.upsert_source(&src(10.01, 20.0)).unwrap();
+        let edit = |ra: f64, dm_ref: Option<f64>, notes: Option<&str>| SourceEdit {
+            name: "S".into(),
+            ra_deg: ra,
+            dec_deg: 20.0,
+            dm_ref,
+            notes: notes.map(Into::into),
+        };
+        let added = cat.edit_source(&edit(10.0, Some(412.7), Some("repeater")));
+        assert!(added.unwrap().new);
+        cat.edit_source(&edit(10.01, None, None)).unwrap();
         let back = cat.source("S").unwrap();
         assert_eq!(
             (back.ra_deg, back.dm_ref, back.notes.as_str()),
             (10.01, Some(412.7), "repeater")
         );
-        let mut changed = src(10.01, 20.0);
-        changed.dm_ref = Some(413.0);
-        changed.notes = "refined".into();
-        cat.upsert_source(&changed).unwrap();
+        cat.edit_source(&edit(10.01, Some(413.0), Some("refined")))
+            .unwrap();
         let back = cat.source("S").unwrap();
         assert_eq!((back.dm_ref, back.notes.as_str()), (Some(413.0), "refined"));
+        let fresh = cat.edit_source(&SourceEdit {
+            name: "T".into(),
+            ..edit(1.0, None, None)
+        });
+        assert!(fresh.unwrap().new);
+        let t = cat.source("T").unwrap();
+        assert_eq!((t.dm_ref, t.notes.as_str()), (None, ""));
     }
 }

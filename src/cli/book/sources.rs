@@ -1,6 +1,6 @@
 //! `book source add|list`.
 
-use burstbook::catalogue::{Catalogue, SourceRecord};
+use burstbook::catalogue::{Catalogue, SourceEdit};
 use burstbook::obs::geodesy::format_ra_deg;
 use clap::Subcommand;
 
@@ -26,8 +26,8 @@ pub enum SourceCommand {
         #[arg(long)]
         dm: Option<f64>,
         /// Free text [default: an existing source keeps its own].
-        #[arg(long, default_value = "", hide_default_value = true)]
-        notes: String,
+        #[arg(long)]
+        notes: Option<String>,
     },
     /// List sources.
     #[command(after_help = "Example:\n  burstbook book source list --format csv")]
@@ -47,19 +47,18 @@ pub fn run(cat: &mut Catalogue, c: SourceCommand) -> anyhow::Result<()> {
             dm,
             notes,
         } => {
-            let rec = SourceRecord {
-                id: 0,
+            let edit = SourceEdit {
                 name,
                 ra_deg: ra,
                 dec_deg: dec,
                 dm_ref: dm,
                 notes,
             };
-            let done = cat.upsert_source(&rec)?;
+            let done = cat.edit_source(&edit)?;
             say!(
                 "{} source {} (id {})",
                 if done.new { "added" } else { "updated" },
-                rec.name,
+                edit.name,
                 done.id
             )?;
             if done.toas_cleared > 0 {
@@ -67,7 +66,7 @@ pub fn run(cat: &mut Catalogue, c: SourceCommand) -> anyhow::Result<()> {
                     "its position changed: {} stored barycentric TOA(s) removed \
                      (store new ones with `burstbook book barycentre {}`)",
                     done.toas_cleared,
-                    rec.name
+                    edit.name
                 )?;
             }
             Ok(())
