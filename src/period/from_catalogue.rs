@@ -55,12 +55,14 @@ impl SourceArrivals {
             .filter(|b| snr_min.is_none_or(|s| b.snr >= s))
             .collect();
         let Some(first) = bursts.first().cloned() else {
-            return Err(Error::Config(format!(
-                "source {source:?} has no bursts{} in {} (promote candidates with \
-                 `burstbook book promote`)",
-                snr_min.map_or(String::new(), |s| format!(" of S/N ≥ {s}")),
-                cat.path().display()
-            )));
+            return Err(Error::Catalogue {
+                path: cat.path().to_path_buf(),
+                msg: format!(
+                    "source {source:?} has no bursts{} (promote candidates with \
+                     `burstbook book promote`)",
+                    snr_min.map_or(String::new(), |s| format!(" of S/N ≥ {s}"))
+                ),
+            });
         };
         let mut warnings = WarningTally::new("burst", "id");
         let mut computed = 0;
@@ -96,13 +98,15 @@ impl SourceArrivals {
     pub fn exposure(&self, cat: &Catalogue, snr_min: Option<f64>) -> Result<Exposure> {
         let windows = cat.merged_exposure(&self.source, snr_min)?;
         if windows.is_empty() {
-            return Err(Error::Config(format!(
-                "source {:?} has no exposure{} in {} (import sessions with \
-                 `burstbook book exposure import`)",
-                self.source,
-                snr_min.map_or(String::new(), |s| format!(" searched to S/N {s}")),
-                cat.path().display()
-            )));
+            return Err(Error::Catalogue {
+                path: cat.path().to_path_buf(),
+                msg: format!(
+                    "source {:?} has no exposure{} (import sessions with \
+                     `burstbook book exposure import`)",
+                    self.source,
+                    snr_min.map_or(String::new(), |s| format!(" searched to S/N {s}"))
+                ),
+            });
         }
         let b = &self.first;
         let bary = Barycentrer::new(&b.site, b.ra_deg, b.dec_deg, Ephemeris::Embedded)?;
@@ -233,7 +237,11 @@ mod tests {
         let e = SourceArrivals::load(&cat, "EMPTY", None)
             .unwrap_err()
             .to_string();
-        assert!(e.contains("\"EMPTY\" has no bursts"), "{e}");
+        // A state of the catalogue, named as such: not an "invalid configuration".
+        assert!(
+            e.starts_with("catalogue ") && e.contains("\"EMPTY\" has no bursts"),
+            "{e}"
+        );
         let id = cat.candidates(&CandidateFilter::default()).unwrap()[0].id;
         cat.promote(id, Some("EMPTY"), TOL).unwrap();
         let arrivals = SourceArrivals::load(&cat, "EMPTY", None).unwrap();
@@ -273,6 +281,6 @@ mod tests {
         let e = SourceArrivals::load(&cat, "SRC", Some(1e3))
             .unwrap_err()
             .to_string();
-        assert!(e.contains("\"SRC\" has no bursts of S/N ≥ 1000 in"), "{e}");
+        assert!(e.contains("\"SRC\" has no bursts of S/N ≥ 1000"), "{e}");
     }
 }
