@@ -123,6 +123,26 @@ impl SourceArrivals {
     }
 }
 
+impl SourceArrivals {
+    /// The arrival times inside `exposure` (from [`SourceArrivals::exposure`]) and how
+    /// many lie outside it. A burst promoted from another pointing's search, or found
+    /// by a search not counted at this depth, arrived while the source was not being
+    /// searched so: like `book summary`, the periodicity tests leave it out (an
+    /// exposure-aware fold has no place for it) and say how many.
+    ///
+    /// # Errors
+    /// A time that is not finite ([`ArrivalTimes::from_seconds`]).
+    pub fn inside(&self, exposure: &Exposure) -> Result<(ArrivalTimes, usize)> {
+        let (inside, outside): (Vec<f64>, Vec<f64>) = self
+            .toas
+            .t_s
+            .iter()
+            .partition(|&&t| exposure.session_of(t / SECONDS_PER_DAY).is_some());
+        let toas = ArrivalTimes::from_seconds(self.toas.ref_mjd, inside)?;
+        Ok((toas, outside.len()))
+    }
+}
+
 /// Fluences in Jy ms of the bursts of `source` with S/N ≥ `snr_min` (`None`: all)
 /// that have one (the SEFD was known).
 ///
@@ -282,5 +302,32 @@ mod tests {
             .unwrap_err()
             .to_string();
         assert!(e.contains("\"SRC\" has no bursts of S/N ≥ 1000"), "{e}");
+    }
+
+    /// A burst promoted from another pointing's observation arrived while the source
+    /// was not being searched: `book summary` leaves it out of the rate, and the
+    /// periodicity tests leave it out of the fold and count it (activity refused the
+    /// whole source: "1 burst(s) fall outside every observing session").
+    #[test]
+    fn bursts_outside_the_exposure_are_left_out_and_counted() {
+        let dir = tempfile::tempdir().unwrap();
+        let (mut cat, n) = catalogue_with_edge_bursts(dir.path());
+        let elsewhere = observation("OTHER", 9);
+        cat.record_search(&elsewhere, &run(7.0), &candidates(&elsewhere, 1, 9))
+            .unwrap();
+        let stray = cat.candidates(&CandidateFilter::default()).unwrap();
+        let stray = stray.iter().find(|r| r.source == "OTHER").unwrap().id;
+        cat.promote(stray, Some("SRC"), TOL).unwrap();
+        let arrivals = SourceArrivals::load(&cat, "SRC", None).unwrap();
+        assert_eq!(arrivals.toas.len(), n + 1);
+        let exposure = arrivals.exposure(&cat, None).unwrap();
+        let (inside, outside) = arrivals.inside(&exposure).unwrap();
+        assert_eq!((inside.len(), outside), (n, 1));
+        assert_eq!(
+            cat.summary("SRC", None, 0.95).unwrap().n_outside_exposure,
+            1
+        );
+        let days = inside.days();
+        assert!(days.iter().all(|&t| exposure.session_of(t).is_some()));
     }
 }

@@ -134,7 +134,17 @@ impl BurstInputs {
     fn read(&self) -> anyhow::Result<(ArrivalTimes, Exposure)> {
         if let Some((cat, arrivals)) = self.catalogue.load(self.snr_min)? {
             let e = arrivals.exposure(&cat, self.snr_min)?;
-            return Ok((arrivals.toas, e));
+            let (toas, outside) = arrivals.inside(&e)?;
+            if outside > 0 {
+                note!(
+                    "burstbook: note: {outside} of {} bursts of {} arrived outside the exposure \
+                     counted (promoted from another pointing's search, or found by a search \
+                     above --snr-min); left out, as `book summary` leaves them out of the rate",
+                    arrivals.toas.len(),
+                    arrivals.source
+                );
+            }
+            return Ok((toas, e));
         }
         let t = read_arrival_csv(&self.toas, &self.column)?;
         let e = read_exposure_csv(&self.exposure, t.ref_mjd)?;
