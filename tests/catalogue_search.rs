@@ -291,3 +291,46 @@ fn one_recording_under_two_headers_is_one_observation() {
     );
     assert!(std::fs::read(&db).unwrap() == before, "a refusal wrote");
 }
+
+/// The same recording searched with two configurations holds its burst as a
+/// candidate of each run; promoting every astrophysical candidate makes one burst of
+/// it, not two (the second run averages pairs of samples, so it measures the event
+/// with another width and time).
+#[test]
+fn a_burst_found_by_two_runs_is_promoted_once() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("survey.sqlite");
+    let f1 = simulate(dir.path(), 1);
+    run_ok(&mut search(std::slice::from_ref(&f1), dir.path(), &db));
+    run_ok(search(std::slice::from_ref(&f1), dir.path(), &db).args(["--average-samples", "2"]));
+    let astrophysical = |run: i64| -> i64 {
+        Connection::open(&db)
+            .unwrap()
+            .query_row(
+                "SELECT count(*) FROM candidate WHERE run_id = ?1 AND verdict = 'astrophysical'",
+                [run],
+                |r| r.get(0),
+            )
+            .unwrap()
+    };
+    assert_eq!((astrophysical(1), astrophysical(2)), (1, 1));
+    let book = |args: &[&str]| {
+        run_ok(
+            Command::new(BIN)
+                .args(["book", "--catalogue"])
+                .arg(&db)
+                .args(args),
+        )
+    };
+    let text = book(&[
+        "promote",
+        "--verdict",
+        "astrophysical",
+        "--to",
+        "Quillwort Test Field",
+    ]);
+    assert!(text.contains("is now burst 1"), "{text}");
+    assert!(text.contains("is the event of candidate"), "{text}");
+    let bursts = book(&["bursts", "--format", "csv"]);
+    assert_eq!(bursts.lines().count(), 2, "{bursts}");
+}

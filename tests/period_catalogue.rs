@@ -95,6 +95,27 @@ fn period_commands_read_bursts_and_exposure_of_a_source() {
     assert_eq!(s["waiting"]["n_outside"], 0);
     assert!(s["power_law"]["n_tail"].as_u64().unwrap() >= 2);
 
+    // A threshold counts the bursts at or above it, as `book summary` does.
+    let summary = json(&burstbook(
+        &["book", "--catalogue", db],
+        &["summary", SOURCE, "--snr-min", "30", "--format", "json"],
+    ));
+    let strong = summary[0]["n_bursts"].as_u64().unwrap();
+    assert!(0 < strong && strong < n as u64, "{strong} of {n}");
+    let s = json(&burstbook(
+        &[
+            "period",
+            "stats",
+            "--boot",
+            "20",
+            "--json",
+            "--snr-min",
+            "30",
+        ],
+        &from_source,
+    ));
+    assert_eq!(s["waiting"]["n_bursts"], strong);
+
     // Stored TOAs are used as they are: no note once `book barycentre` has run.
     let out = burstbook(&["book", "--catalogue", db], &["barycentre", SOURCE]);
     assert!(out.status.success(), "{}", stderr(&out));
@@ -179,4 +200,39 @@ fn power_law_counts_the_fluences_it_leaves_out() {
         text.contains(" values; 2 not > 0 left out): α = "),
         "{text}"
     );
+}
+
+/// A source observed without an SEFD has no fluences: `period stats --source` still
+/// gives its waiting times and says why there is no power law (it failed with
+/// `no positive values to fit` and printed nothing else).
+#[test]
+fn waiting_times_do_not_need_fluences() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("survey.sqlite");
+    let n = build_catalogue(&db, dir.path());
+    let sql = rusqlite::Connection::open(&db).unwrap();
+    sql.execute("UPDATE burst SET fluence_jy_ms = NULL", [])
+        .unwrap();
+    drop(sql);
+    let db = db.to_str().unwrap();
+    let stats = [
+        "period",
+        "stats",
+        "--boot",
+        "0",
+        "--source",
+        SOURCE,
+        "--catalogue",
+        db,
+    ];
+    let s = json(&burstbook(&stats, &["--json"]));
+    assert_eq!(s["waiting"]["n_bursts"], n);
+    assert!(s["power_law"].is_null(), "{s}");
+    let why = s["power_law_not_fitted"].as_str().unwrap();
+    assert!(why.contains("no fluence"), "{why}");
+    let out = burstbook(&stats, &[]);
+    assert!(out.status.success(), "{}", stderr(&out));
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(text.contains(&format!("{n} bursts in ")), "{text}");
+    assert!(text.contains("Power law: not fitted"), "{text}");
 }

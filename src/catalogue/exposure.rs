@@ -235,11 +235,13 @@ impl Catalogue {
     /// # Errors
     /// A source the catalogue does not hold, a write failure or an SQLite failure.
     pub fn export_exposure_csv(&self, source: Option<&str>, out: impl Write) -> Result<()> {
+        // Read first: an unknown source is refused before anything is written.
+        let intervals = self.exposure(source)?;
         let mut w = csv::Writer::from_writer(out);
         w.write_record(EXPORT_COLUMNS).map_err(csv_write_error)?;
         // Shortest text that parses back to the same f64, so a re-import matches.
         let opt = |v: Option<f64>| v.map(|x| x.to_string()).unwrap_or_default();
-        for e in self.exposure(source)? {
+        for e in intervals {
             w.write_record([
                 e.source,
                 e.start_mjd.to_string(),
@@ -428,6 +430,22 @@ mod tests {
         let s = cat.summary("SRC-A", None, 0.95).unwrap();
         assert_eq!(format!("{:.3}", s.exposure_hours), "0.000");
         assert_eq!(s.rate_per_hour, None);
+    }
+
+    /// A mistyped source writes nothing: `export --source NAME > file.csv` used to
+    /// leave a header line on stdout before the error.
+    #[test]
+    fn exporting_an_unknown_source_writes_nothing() {
+        let (_d, cat) = cat_with_source();
+        let mut out = Vec::new();
+        let err = cat
+            .export_exposure_csv(Some("SRC-Z"), &mut out)
+            .unwrap_err();
+        assert!(
+            err.to_string().contains("has no source named \"SRC-Z\""),
+            "{err}"
+        );
+        assert!(out.is_empty(), "{:?}", String::from_utf8_lossy(&out));
     }
 
     #[test]

@@ -37,7 +37,7 @@ pub use query::{Bounds, BurstFilter, BurstRow, CandidateFilter, CandidateRow};
 pub use record::{ObservationRecord, RecordOutcome, RunRecord, config_hash};
 pub use review::{AssignTolerance, Label, Promotion};
 pub use schema::{APPLICATION_ID, SCHEMA_VERSION};
-pub use sources::SourceRecord;
+pub use sources::{SourceEdit, SourceRecord, SourceUpdate};
 
 pub use summary::{PoissonInterval, SourceSummary, poisson_interval};
 pub use voevent::{BurstPacket, VoEventOptions, mjd_to_iso, voevent_xml};

@@ -8,6 +8,7 @@ use serde::Serialize;
 
 use super::{Catalogue, SourceRecord, catalogue_error};
 use crate::error::{Error, Result};
+use crate::units::DISPERSION_CONSTANT_S_MHZ2;
 
 /// One judgement of one candidate. Labels are appended, never changed.
 #[derive(Debug, Clone, PartialEq, Serialize)]
@@ -42,6 +43,9 @@ pub struct Promotion {
     pub source: String,
     /// False when the candidate already was a burst (nothing changed).
     pub new: bool,
+    /// When the burst was promoted from another candidate: that candidate's id (the
+    /// same event found by another search run of the observation).
+    pub same_event_as: Option<i64>,
 }
 
 impl Catalogue {
@@ -112,7 +116,9 @@ impl Catalogue {
 
     /// Makes candidate `id` a burst of `source`, or, when `source` is `None`, of the
     /// single source with a reference DM that lies within `tol` of the candidate's
-    /// pointing and DM. A candidate already promoted is left as it is.
+    /// pointing and DM. A candidate already promoted is left as it is, and so is one
+    /// whose event another search run of its observation found and had promoted
+    /// (`same_event_as` names that candidate): one event, one burst.
     ///
     /// # Errors
     /// Unknown candidate or source; no source or several sources within tolerance.
@@ -146,7 +152,7 @@ impl Catalogue {
                 Some(name) => self.source(name).map(Some),
                 // A burst already stays as it is, so it needs no match (the sources
                 // may have changed since, and re-running a promotion must not fail).
-                None if existing_burst(self.conn(), id)
+                None if held_burst(self.conn(), id)
                     .map_err(|e| self.err(e))?
                     .is_some() =>
                 {
@@ -225,28 +231,60 @@ fn require_candidate(conn: &Connection, path: &Path, id: i64, then: &str) -> Res
     }
 }
 
-/// The burst id and source name of candidate `id`, if it is a burst.
-fn existing_burst(conn: &Connection, id: i64) -> rusqlite::Result<Option<(i64, String)>> {
-    conn.query_row(
-        "SELECT b.id, s.name FROM burst b JOIN source s ON s.id = b.source_id WHERE b.candidate_id = ?1",
-        [id],
-        |r| Ok((r.get(0)?, r.get(1)?)),
-    )
+/// A burst that candidate `id` already is.
+struct HeldBurst {
+    burst_id: i64,
+    source: String,
+    /// The candidate the burst was promoted from, when that is not `id` itself.
+    same_event_as: Option<i64>,
+}
+
+/// The burst of candidate `id`: its own, or that of the same event found by another
+/// search run of its observation (re-searched with another configuration). Two finds
+/// are one event when their clusters' DM ranges overlap and their arrival times at
+/// infinite frequency differ by at most half the sum of their boxcar widths plus the
+/// shift a DM difference δ can cause, k·δ/ν_lo² (docs/search.md: a DM error shifts
+/// t_inf by k·δ·⟨ν⁻²⟩). Finds of one run are distinct events, as clustering left them.
+fn held_burst(conn: &Connection, id: i64) -> rusqlite::Result<Option<HeldBurst>> {
+    conn.prepare_cached(
+        "SELECT b.id, s.name, c.id FROM candidate x
+         JOIN search_run rx ON rx.id = x.run_id
+         JOIN observation o ON o.id = rx.observation_id
+         JOIN search_run r ON r.observation_id = rx.observation_id
+         JOIN candidate c ON c.run_id = r.id
+         JOIN burst b ON b.candidate_id = c.id
+         JOIN source s ON s.id = b.source_id
+         WHERE x.id = ?1 AND (c.id = x.id OR (r.id <> rx.id
+             AND c.dm_lo <= x.dm_hi AND x.dm_lo <= c.dm_hi
+             AND abs(c.t_inf_s - x.t_inf_s) <= (c.width_ms + x.width_ms) / 2000.0
+                 + ?2 * abs(c.dm - x.dm) / (o.freq_lo_mhz * o.freq_lo_mhz)))
+         ORDER BY c.id <> x.id, abs(c.t_inf_s - x.t_inf_s) LIMIT 1",
+    )?
+    .query_row(params![id, DISPERSION_CONSTANT_S_MHZ2], |r| {
+        let candidate: i64 = r.get(2)?;
+        Ok(HeldBurst {
+            burst_id: r.get(0)?,
+            source: r.get(1)?,
+            same_event_as: (candidate != id).then_some(candidate),
+        })
+    })
     .optional()
 }
 
-/// Promotes `id` to `source`; a candidate already a burst is left as it is (`source`
-/// is `None` only for those, and bursts are never deleted).
+/// Promotes `id` to `source`; a candidate already a burst, itself or as the same
+/// event found by another run, is left as it is (`source` is `None` only for those,
+/// and bursts are never deleted).
 fn promote_in(
     tx: &Transaction<'_>,
     id: i64,
     source: Option<&SourceRecord>,
 ) -> rusqlite::Result<Promotion> {
-    if let Some((burst_id, source)) = existing_burst(tx, id)? {
+    if let Some(held) = held_burst(tx, id)? {
         return Ok(Promotion {
-            burst_id,
-            source,
+            burst_id: held.burst_id,
+            source: held.source,
             new: false,
+            same_event_as: held.same_event_as,
         });
     }
     let Some(source) = source else {
@@ -264,6 +302,7 @@ fn promote_in(
         burst_id: tx.last_insert_rowid(),
         source: source.name.clone(),
         new: true,
+        same_event_as: None,
     })
 }
 
@@ -370,5 +409,52 @@ mod tests {
         );
         assert_eq!(cat.bursts(&BurstFilter::default()).unwrap().len(), before);
         assert!(cat.promote_all(&[ids[2]], Some("FAR"), TOL).unwrap()[0].new);
+    }
+
+    /// Searching an observation again with another configuration finds its bursts
+    /// again, as candidates of a second run. Promoting those must not give each burst
+    /// a twin: the rate would count it twice and the periodicity tests would see two
+    /// arrivals 0 s apart. The second run measures the same events a little
+    /// differently (DM +0.8 moves t_inf by k·0.8/ν², 1.3–2.3 ms over 1200–1600 MHz;
+    /// Lorimer & Kramer 2005), while a DM-0 flash at the same instant is another event.
+    #[test]
+    fn a_burst_found_again_by_another_run_is_not_promoted_twice() {
+        let dir = tempfile::tempdir().unwrap();
+        let mut cat = Catalogue::open(&dir.path().join("c.sqlite")).unwrap();
+        let obs = observation("FIELD-7", 3);
+        let first = candidates(&obs, 2, 3);
+        let mut again = first.clone();
+        for c in &mut again {
+            c.dm += 0.8;
+            c.dm_lo += 0.8;
+            c.dm_hi += 0.8;
+            c.t_inf_s += 2e-3;
+            c.mjd_inf += 2e-3 / crate::units::SECONDS_PER_DAY;
+            c.width_ms *= 1.5;
+        }
+        let mut flash = first[0].clone();
+        (flash.dm, flash.dm_lo, flash.dm_hi) = (0.0, 0.0, 1.0);
+        again.push(flash);
+        cat.record_search(&obs, &run(7.0), &first).unwrap();
+        cat.record_search(&obs, &run(8.0), &again).unwrap();
+        let mut rows = cat.candidates(&CandidateFilter::default()).unwrap();
+        rows.sort_by_key(|r| r.id);
+        let ids: Vec<i64> = rows.iter().map(|r| r.id).collect();
+        assert_eq!(ids.len(), 5);
+        cat.promote_all(&ids[..2], Some("FIELD-7"), TOL).unwrap();
+        let p = cat.promote_all(&ids[2..], Some("FIELD-7"), TOL).unwrap();
+        let seen: Vec<_> = p.iter().map(|p| (p.new, p.same_event_as)).collect();
+        assert_eq!(
+            seen,
+            [(false, Some(ids[0])), (false, Some(ids[1])), (true, None)]
+        );
+        assert_eq!(cat.bursts(&BurstFilter::default()).unwrap().len(), 3);
+        // Both runs' finds promoted in one batch give one burst per event too.
+        let dir = tempfile::tempdir().unwrap();
+        let mut fresh = Catalogue::open(&dir.path().join("c.sqlite")).unwrap();
+        fresh.record_search(&obs, &run(7.0), &first).unwrap();
+        fresh.record_search(&obs, &run(8.0), &again).unwrap();
+        fresh.promote_all(&ids, Some("FIELD-7"), TOL).unwrap();
+        assert_eq!(fresh.bursts(&BurstFilter::default()).unwrap().len(), 3);
     }
 }

@@ -17,7 +17,7 @@
 //! site changes an edge by at most an Earth radius over c (≈ 21 ms, common practice).
 
 use super::times::{ArrivalTimes, Exposure, SECONDS_PER_DAY};
-use crate::catalogue::{BurstFilter, BurstTiming, Catalogue};
+use crate::catalogue::{Bounds, BurstFilter, BurstTiming, Catalogue};
 use crate::error::{Error, Result};
 use crate::obs::UtcEpoch;
 use crate::timing::{Barycentrer, Ephemeris, TdbEpoch, WarningTally};
@@ -39,20 +39,30 @@ pub struct SourceArrivals {
 }
 
 impl SourceArrivals {
-    /// Reads the bursts of `source` and their barycentric TDB arrival times,
-    /// computing those not yet stored.
+    /// Reads the bursts of `source` with S/N ≥ `snr_min` (`None`: all) and their
+    /// barycentric TDB arrival times, computing those not yet stored. Pass the
+    /// threshold given to [`SourceArrivals::exposure`]: a burst weaker than it could
+    /// only be found in the sessions searched deeper, so it does not belong with
+    /// exposure counted at that depth (the rule of `book summary`).
     ///
     /// # Errors
-    /// Unknown source, a source without bursts, a failed timing conversion, or an
-    /// SQLite failure.
-    pub fn load(cat: &Catalogue, source: &str) -> Result<SourceArrivals> {
-        let bursts = cat.burst_timing(source)?;
+    /// Unknown source, a source without bursts (at that S/N), a failed timing
+    /// conversion, or an SQLite failure.
+    pub fn load(cat: &Catalogue, source: &str, snr_min: Option<f64>) -> Result<SourceArrivals> {
+        let bursts: Vec<BurstTiming> = cat
+            .burst_timing(source)?
+            .into_iter()
+            .filter(|b| snr_min.is_none_or(|s| b.snr >= s))
+            .collect();
         let Some(first) = bursts.first().cloned() else {
-            return Err(Error::Config(format!(
-                "source {source:?} has no bursts in {} (promote candidates with \
-                 `burstbook book promote`)",
-                cat.path().display()
-            )));
+            return Err(Error::Catalogue {
+                path: cat.path().to_path_buf(),
+                msg: format!(
+                    "source {source:?} has no bursts{} (promote candidates with \
+                     `burstbook book promote`)",
+                    snr_min.map_or(String::new(), |s| format!(" of S/N ≥ {s}"))
+                ),
+            });
         };
         let mut warnings = WarningTally::new("burst", "id");
         let mut computed = 0;
@@ -88,13 +98,15 @@ impl SourceArrivals {
     pub fn exposure(&self, cat: &Catalogue, snr_min: Option<f64>) -> Result<Exposure> {
         let windows = cat.merged_exposure(&self.source, snr_min)?;
         if windows.is_empty() {
-            return Err(Error::Config(format!(
-                "source {:?} has no exposure{} in {} (import sessions with \
-                 `burstbook book exposure import`)",
-                self.source,
-                snr_min.map_or(String::new(), |s| format!(" searched to S/N {s}")),
-                cat.path().display()
-            )));
+            return Err(Error::Catalogue {
+                path: cat.path().to_path_buf(),
+                msg: format!(
+                    "source {:?} has no exposure{} (import sessions with \
+                     `burstbook book exposure import`)",
+                    self.source,
+                    snr_min.map_or(String::new(), |s| format!(" searched to S/N {s}"))
+                ),
+            });
         }
         let b = &self.first;
         let bary = Barycentrer::new(&b.site, b.ra_deg, b.dec_deg, Ephemeris::Embedded)?;
@@ -111,14 +123,42 @@ impl SourceArrivals {
     }
 }
 
-/// Fluences in Jy ms of the bursts of `source` that have one (the SEFD was known).
+impl SourceArrivals {
+    /// The arrival times inside `exposure` (from [`SourceArrivals::exposure`]) and how
+    /// many lie outside it. A burst promoted from another pointing's search, or found
+    /// by a search not counted at this depth, arrived while the source was not being
+    /// searched so: like `book summary`, the periodicity tests leave it out (an
+    /// exposure-aware fold has no place for it) and say how many.
+    ///
+    /// # Errors
+    /// A time that is not finite ([`ArrivalTimes::from_seconds`]).
+    pub fn inside(&self, exposure: &Exposure) -> Result<(ArrivalTimes, usize)> {
+        let (inside, outside): (Vec<f64>, Vec<f64>) = self
+            .toas
+            .t_s
+            .iter()
+            .partition(|&&t| exposure.session_of(t / SECONDS_PER_DAY).is_some());
+        let toas = ArrivalTimes::from_seconds(self.toas.ref_mjd, inside)?;
+        Ok((toas, outside.len()))
+    }
+}
+
+/// Fluences in Jy ms of the bursts of `source` with S/N ≥ `snr_min` (`None`: all)
+/// that have one (the SEFD was known).
 ///
 /// # Errors
 /// Unknown source or an SQLite failure.
-pub fn source_fluences_jy_ms(cat: &Catalogue, source: &str) -> Result<Vec<f64>> {
+pub fn source_fluences_jy_ms(
+    cat: &Catalogue,
+    source: &str,
+    snr_min: Option<f64>,
+) -> Result<Vec<f64>> {
     let filter = BurstFilter {
         source: Some(source.to_string()),
-        ..Default::default()
+        bounds: Bounds {
+            snr_min,
+            ..Default::default()
+        },
     };
     Ok(cat
         .bursts(&filter)?
@@ -164,13 +204,13 @@ mod tests {
     fn computes_missing_toas_like_the_stored_ones() {
         let dir = tempfile::tempdir().unwrap();
         let (mut cat, n) = catalogue_with_edge_bursts(dir.path());
-        let fresh = SourceArrivals::load(&cat, "SRC").unwrap();
+        let fresh = SourceArrivals::load(&cat, "SRC", None).unwrap();
         assert_eq!((fresh.toas.len(), fresh.computed), (n, n));
         // Store one value by hand; it must be used as given.
         let first_id = cat.burst_timing("SRC").unwrap()[0].burst_id;
         let stored_mjd = fresh.toas.mjd_of(fresh.toas.t_s[0]) + 1e-6;
         cat.set_barycentric_toas(&[(first_id, stored_mjd)]).unwrap();
-        let mixed = SourceArrivals::load(&cat, "SRC").unwrap();
+        let mixed = SourceArrivals::load(&cat, "SRC", None).unwrap();
         assert_eq!(mixed.computed, n - 1);
         let shift_s = mixed.toas.t_s[0] - fresh.toas.t_s[0];
         assert!((shift_s - 0.0864).abs() < 1e-3, "{shift_s}");
@@ -181,7 +221,7 @@ mod tests {
     fn bursts_at_session_edges_stay_inside_their_tdb_sessions() {
         let dir = tempfile::tempdir().unwrap();
         let (cat, n) = catalogue_with_edge_bursts(dir.path());
-        let arrivals = SourceArrivals::load(&cat, "SRC").unwrap();
+        let arrivals = SourceArrivals::load(&cat, "SRC", None).unwrap();
         let exposure = arrivals.exposure(&cat, None).unwrap();
         assert_eq!(exposure.sessions_days.len(), 2);
         let days = arrivals.toas.days();
@@ -214,12 +254,80 @@ mod tests {
         let obs = observation("EMPTY", 1);
         cat.record_search(&obs, &run(7.0), &candidates(&obs, 2, 1))
             .unwrap();
-        let e = SourceArrivals::load(&cat, "EMPTY").unwrap_err().to_string();
-        assert!(e.contains("\"EMPTY\" has no bursts"), "{e}");
+        let e = SourceArrivals::load(&cat, "EMPTY", None)
+            .unwrap_err()
+            .to_string();
+        // A state of the catalogue, named as such: not an "invalid configuration".
+        assert!(
+            e.starts_with("catalogue ") && e.contains("\"EMPTY\" has no bursts"),
+            "{e}"
+        );
         let id = cat.candidates(&CandidateFilter::default()).unwrap()[0].id;
         cat.promote(id, Some("EMPTY"), TOL).unwrap();
-        let arrivals = SourceArrivals::load(&cat, "EMPTY").unwrap();
+        let arrivals = SourceArrivals::load(&cat, "EMPTY", None).unwrap();
         let e = arrivals.exposure(&cat, Some(5.0)).unwrap_err().to_string();
         assert!(e.contains("no exposure searched to S/N 5"), "{e}");
+    }
+
+    /// A threshold S counts the bursts of S/N ≥ S against the exposure searched to S,
+    /// as `book summary --snr-min` does. Weaker bursts could be found only in the
+    /// sessions searched deeper, so keeping them (as before: all 6 bursts against
+    /// exposure at S) weighted those sessions in the fold and the rates.
+    #[test]
+    fn a_threshold_keeps_the_bursts_at_or_above_it() {
+        let dir = tempfile::tempdir().unwrap();
+        let (cat, n) = catalogue_with_edge_bursts(dir.path());
+        let mut snrs: Vec<f64> = cat
+            .burst_timing("SRC")
+            .unwrap()
+            .iter()
+            .map(|b| b.snr)
+            .collect();
+        snrs.sort_by(f64::total_cmp);
+        let s = snrs[n / 2];
+        let strong = n - n / 2;
+        let arrivals = SourceArrivals::load(&cat, "SRC", Some(s)).unwrap();
+        assert_eq!(arrivals.toas.len(), strong);
+        assert_eq!(
+            cat.summary("SRC", Some(s), 0.95).unwrap().n_bursts as usize,
+            strong
+        );
+        // Every synthetic burst has a fluence.
+        assert_eq!(
+            source_fluences_jy_ms(&cat, "SRC", Some(s)).unwrap().len(),
+            strong
+        );
+        assert_eq!(source_fluences_jy_ms(&cat, "SRC", None).unwrap().len(), n);
+        let e = SourceArrivals::load(&cat, "SRC", Some(1e3))
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("\"SRC\" has no bursts of S/N ≥ 1000"), "{e}");
+    }
+
+    /// A burst promoted from another pointing's observation arrived while the source
+    /// was not being searched: `book summary` leaves it out of the rate, and the
+    /// periodicity tests leave it out of the fold and count it (activity refused the
+    /// whole source: "1 burst(s) fall outside every observing session").
+    #[test]
+    fn bursts_outside_the_exposure_are_left_out_and_counted() {
+        let dir = tempfile::tempdir().unwrap();
+        let (mut cat, n) = catalogue_with_edge_bursts(dir.path());
+        let elsewhere = observation("OTHER", 9);
+        cat.record_search(&elsewhere, &run(7.0), &candidates(&elsewhere, 1, 9))
+            .unwrap();
+        let stray = cat.candidates(&CandidateFilter::default()).unwrap();
+        let stray = stray.iter().find(|r| r.source == "OTHER").unwrap().id;
+        cat.promote(stray, Some("SRC"), TOL).unwrap();
+        let arrivals = SourceArrivals::load(&cat, "SRC", None).unwrap();
+        assert_eq!(arrivals.toas.len(), n + 1);
+        let exposure = arrivals.exposure(&cat, None).unwrap();
+        let (inside, outside) = arrivals.inside(&exposure).unwrap();
+        assert_eq!((inside.len(), outside), (n, 1));
+        assert_eq!(
+            cat.summary("SRC", None, 0.95).unwrap().n_outside_exposure,
+            1
+        );
+        let days = inside.days();
+        assert!(days.iter().all(|&t| exposure.session_of(t).is_some()));
     }
 }

@@ -56,8 +56,14 @@ pub fn source_report(
         .map(|b| b.mjd_utc)
         .collect();
     let mut lead = Vec::new();
-    match activity(&sessions, &bursts) {
-        Ok(figures) => lead.extend(figures),
+    let (inside, outside) = inside_sessions(&sessions, &bursts);
+    match activity(&sessions, &inside) {
+        Ok(mut figures) => {
+            if let (1.., Some(first)) = (outside, figures.first_mut()) {
+                first.0 += &format!("; {outside} burst(s) outside every session left out");
+            }
+            lead.extend(figures)
+        }
         Err(why) if !sessions.is_empty() || !bursts.is_empty() => lead.push((
             format!(
                 "{source}: observing sessions and confirmed bursts (no activity search: {why})"
@@ -67,6 +73,21 @@ pub fn source_report(
         Err(_) => {}
     }
     Ok((sections, lead))
+}
+
+/// The bursts (UTC MJD) inside a session, and how many are not. A burst promoted from
+/// another pointing's search arrived while the source was not being searched, and an
+/// exposure-aware fold has no place for it: as `book summary` leaves it out of the
+/// rate and `period activity --source` out of the fold, the report leaves it out of
+/// the search (it refused the search over one such burst).
+fn inside_sessions(sessions_mjd: &[(f64, f64)], bursts_mjd: &[f64]) -> (Vec<f64>, usize) {
+    let inside: Vec<f64> = bursts_mjd
+        .iter()
+        .copied()
+        .filter(|t| sessions_mjd.iter().any(|&(a, b)| (a..=b).contains(t)))
+        .collect();
+    let outside = bursts_mjd.len() - inside.len();
+    (inside, outside)
 }
 
 /// Activity-cycle search (default settings) on the bursts and sessions, as figures.
@@ -88,4 +109,32 @@ fn activity(sessions_mjd: &[(f64, f64)], bursts_mjd: &[f64]) -> Result<Vec<Capti
     let t: Vec<f64> = bursts_mjd.iter().map(|&m| days(m)).collect();
     let r = search_activity(&t, &sessions, ref_mjd, &ActivityConfig::default(), &|_| {})?;
     activity_figures(&r, sessions_mjd, bursts_mjd)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Bursts in the first 3 days of a 16-day cycle, seen in 6-hour sessions every 2
+    /// days over 192 days, and one burst between sessions: the search refuses all of
+    /// them and runs on the others.
+    #[test]
+    fn a_burst_outside_every_session_is_left_out_of_the_search() {
+        let sessions: Vec<(f64, f64)> = (0..96)
+            .map(|d| 60_000.0 + 2.0 * d as f64)
+            .map(|s| (s, s + 0.25))
+            .collect();
+        let mut bursts: Vec<f64> = sessions
+            .iter()
+            .filter(|s| (s.0 - 60_000.0).rem_euclid(16.0) < 3.0)
+            .map(|s| s.0 + 0.1)
+            .collect();
+        let n = bursts.len();
+        bursts.push(60_001.0);
+        let (inside, outside) = inside_sessions(&sessions, &bursts);
+        assert_eq!((inside.len(), outside), (n, 1));
+        assert!(activity(&sessions, &bursts).is_err());
+        let figures = activity(&sessions, &inside).unwrap();
+        assert_eq!(figures.len(), 3);
+    }
 }

@@ -85,7 +85,7 @@ pub struct SearchConfig {
     /// Length of the running baseline (median) window in seconds; must be well above
     /// `max_width_s` so a pulse does not pull its own baseline. Unless a
     /// configuration file sets it, it follows the widest boxcar:
-    /// max(1 s, [`BASELINE_PER_WIDTH`] × `max_width_s`) (see [`Self::set_max_width_s`]).
+    /// max(1 s, `BASELINE_PER_WIDTH` (10) × `max_width_s`) (see [`Self::set_max_width_s`]).
     pub baseline_s: f64,
     /// Whether `baseline_s` was set by the user (a configuration file's key) rather
     /// than derived from `max_width_s`. Not part of the JSON or the hash: the
@@ -155,7 +155,7 @@ impl SearchConfig {
     }
 
     /// Sets the widest boxcar, in seconds; a baseline window the user did not set
-    /// follows it (max(1 s, [`BASELINE_PER_WIDTH`] × width)), so asking for wider
+    /// follows it (max(1 s, `BASELINE_PER_WIDTH` (10) × width)), so asking for wider
     /// boxcars needs no second setting.
     pub fn set_max_width_s(&mut self, max_width_s: f64) {
         self.max_width_s = max_width_s;

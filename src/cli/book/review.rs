@@ -127,8 +127,20 @@ pub fn promote(cat: &mut Catalogue, a: PromoteArgs) -> anyhow::Result<()> {
         dm: a.dm_tol,
     };
     for (id, p) in ids.iter().zip(cat.promote_all(&ids, a.to.as_deref(), tol)?) {
-        let what = if p.new { "is now" } else { "already was" };
-        say!("candidate {id} {what} burst {} of {}", p.burst_id, p.source)?;
+        match (p.new, p.same_event_as) {
+            (_, Some(found)) => say!(
+                "candidate {id} is the event of candidate {found}, already burst {} of {} \
+                 (found by another run of its observation); not promoted again",
+                p.burst_id,
+                p.source
+            )?,
+            (true, None) => say!("candidate {id} is now burst {} of {}", p.burst_id, p.source)?,
+            (false, None) => say!(
+                "candidate {id} already was burst {} of {}",
+                p.burst_id,
+                p.source
+            )?,
+        }
     }
     if ids.is_empty() {
         say!("no candidate matches; nothing promoted")?;

@@ -1,6 +1,6 @@
 //! `book source add|list`.
 
-use burstbook::catalogue::{Catalogue, SourceRecord};
+use burstbook::catalogue::{Catalogue, SourceEdit};
 use burstbook::obs::geodesy::format_ra_deg;
 use clap::Subcommand;
 
@@ -21,12 +21,13 @@ pub enum SourceCommand {
         /// ICRS declination, degrees.
         #[arg(long, allow_hyphen_values = true)]
         dec: f64,
-        /// Reference DM, pc cm^-3 (used for automatic burst assignment).
+        /// Reference DM, pc cm^-3 (used for automatic burst assignment) [default: an
+        /// existing source keeps its own].
         #[arg(long)]
         dm: Option<f64>,
-        /// Free text.
-        #[arg(long, default_value = "")]
-        notes: String,
+        /// Free text [default: an existing source keeps its own].
+        #[arg(long)]
+        notes: Option<String>,
     },
     /// List sources.
     #[command(after_help = "Example:\n  burstbook book source list --format csv")]
@@ -46,20 +47,28 @@ pub fn run(cat: &mut Catalogue, c: SourceCommand) -> anyhow::Result<()> {
             dm,
             notes,
         } => {
-            let rec = SourceRecord {
-                id: 0,
+            let edit = SourceEdit {
                 name,
                 ra_deg: ra,
                 dec_deg: dec,
                 dm_ref: dm,
                 notes,
             };
-            let (id, new) = cat.upsert_source(&rec)?;
+            let done = cat.edit_source(&edit)?;
             say!(
-                "{} source {} (id {id})",
-                if new { "added" } else { "updated" },
-                rec.name
+                "{} source {} (id {})",
+                if done.new { "added" } else { "updated" },
+                edit.name,
+                done.id
             )?;
+            if done.toas_cleared > 0 {
+                say!(
+                    "its position changed: {} stored barycentric TOA(s) removed \
+                     (store new ones with `burstbook book barycentre {}`)",
+                    done.toas_cleared,
+                    edit.name
+                )?;
+            }
             Ok(())
         }
         SourceCommand::List { format } => {

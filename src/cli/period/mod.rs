@@ -74,9 +74,10 @@ struct SourceInput {
 }
 
 impl SourceInput {
-    /// The catalogue and the source's arrival times, if a source was named. Notes on
-    /// stderr how many arrival times had to be converted.
-    fn load(&self) -> anyhow::Result<Option<(Catalogue, SourceArrivals)>> {
+    /// The catalogue and the arrival times of the source's bursts of S/N ≥ `snr_min`
+    /// (`None`: all), if a source was named. Notes on stderr how many arrival times
+    /// had to be converted.
+    fn load(&self, snr_min: Option<f64>) -> anyhow::Result<Option<(Catalogue, SourceArrivals)>> {
         let Some(source) = &self.source else {
             return Ok(None);
         };
@@ -84,7 +85,7 @@ impl SourceInput {
             &Catalogue::resolve_path(self.catalogue.as_deref()),
             DEFAULT_LOCK_WAIT,
         )?;
-        let arrivals = SourceArrivals::load(&cat, source)?;
+        let arrivals = SourceArrivals::load(&cat, source, snr_min)?;
         for w in &arrivals.warnings {
             note!("burstbook: warning: {source}: {w}");
         }
@@ -120,8 +121,9 @@ struct BurstInputs {
     exposure: PathBuf,
     #[command(flatten)]
     catalogue: SourceInput,
-    /// With --source: count only exposure searched at least this deep (S/N threshold
-    /// at most this) [default: all exposure].
+    /// With --source: count only bursts of at least this S/N and exposure searched at
+    /// least this deep (S/N threshold at most this), as `book summary --snr-min` does
+    /// [default: all bursts and exposure].
     #[arg(long, requires = "source", conflicts_with = "exposure")]
     snr_min: Option<f64>,
 }
@@ -130,9 +132,19 @@ impl BurstInputs {
     /// Arrival times and sessions: from the catalogue (both on barycentric TDB) with
     /// --source, else from the CSV files.
     fn read(&self) -> anyhow::Result<(ArrivalTimes, Exposure)> {
-        if let Some((cat, arrivals)) = self.catalogue.load()? {
+        if let Some((cat, arrivals)) = self.catalogue.load(self.snr_min)? {
             let e = arrivals.exposure(&cat, self.snr_min)?;
-            return Ok((arrivals.toas, e));
+            let (toas, outside) = arrivals.inside(&e)?;
+            if outside > 0 {
+                note!(
+                    "burstbook: note: {outside} of {} bursts of {} arrived outside the exposure \
+                     counted (promoted from another pointing's search, or found by a search \
+                     above --snr-min); left out, as `book summary` leaves them out of the rate",
+                    arrivals.toas.len(),
+                    arrivals.source
+                );
+            }
+            return Ok((toas, e));
         }
         let t = read_arrival_csv(&self.toas, &self.column)?;
         let e = read_exposure_csv(&self.exposure, t.ref_mjd)?;

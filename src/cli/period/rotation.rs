@@ -64,7 +64,7 @@ pub struct Args {
 }
 
 pub fn run(a: Args) -> anyhow::Result<()> {
-    let (toas, what) = match a.catalogue.load()? {
+    let (toas, what) = match a.catalogue.load(None)? {
         Some((_, arrivals)) => (arrivals.toas, a.catalogue.describe()),
         None => (
             read_arrival_csv(&a.toas, &a.column)?,

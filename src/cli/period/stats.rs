@@ -3,6 +3,7 @@
 use std::path::PathBuf;
 
 use anyhow::Context;
+use burstbook::Error;
 use burstbook::catalogue::{Catalogue, DEFAULT_LOCK_WAIT};
 use burstbook::period::from_catalogue::source_fluences_jy_ms;
 use burstbook::period::powerlaw::fit_power_law;
@@ -40,12 +41,15 @@ pub fn run(a: Args) -> anyhow::Result<()> {
     let (toas, exposure) = a.input.read()?;
     let waiting = waiting_time_stats(&toas.days(), &exposure.sessions_days)
         .with_context(|| a.input.describe())?;
+    // Fluences from the catalogue are whatever its bursts have (none without an
+    // SEFD): a fit they cannot support is reported, and the waiting times still are.
+    let from_catalogue = a.values.is_none() && a.input.catalogue.source.is_some();
     let (values, values_from) = match (&a.values, &a.input.catalogue.source) {
         (None, Some(source)) => {
             let path = Catalogue::resolve_path(a.input.catalogue.catalogue.as_deref());
             let cat = Catalogue::open_existing(&path, DEFAULT_LOCK_WAIT)?;
             let what = format!("fluence_jy_ms of {}", a.input.catalogue.describe());
-            (source_fluences_jy_ms(&cat, source)?, what)
+            (source_fluences_jy_ms(&cat, source, a.input.snr_min)?, what)
         }
         (path, _) => {
             let path = path
@@ -55,10 +59,25 @@ pub fn run(a: Args) -> anyhow::Result<()> {
             (read_positive_csv(&path, &a.value_column)?, what)
         }
     };
-    let power =
-        fit_power_law(&values, a.s_min, a.boot, a.seed).with_context(|| values_from.clone())?;
+    let (power, not_fitted) = match fit_power_law(&values, a.s_min, a.boot, a.seed) {
+        Ok(power) => (Some(power), None),
+        Err(_) if from_catalogue && values.is_empty() => (
+            None,
+            Some(format!(
+                "{values_from}: no fluence known (no SEFD in the headers of its observations)"
+            )),
+        ),
+        Err(Error::Numerical(why)) if from_catalogue => {
+            (None, Some(format!("{values_from}: {why}")))
+        }
+        Err(e) => return Err(anyhow::Error::new(e).context(values_from)),
+    };
     if a.json {
-        return print_json(&serde_json::json!({ "waiting": waiting, "power_law": power }));
+        return print_json(&serde_json::json!({
+            "waiting": waiting,
+            "power_law": power,
+            "power_law_not_fitted": not_fitted,
+        }));
     }
     let (p, w) = (&waiting.poisson, &waiting.weibull);
     say!(
@@ -89,6 +108,10 @@ pub fn run(a: Args) -> anyhow::Result<()> {
         waiting.likelihood_ratio,
         Probability(waiting.poisson_p, 3)
     )?;
+    let Some(power) = power else {
+        say!("Power law: not fitted ({})", not_fitted.unwrap_or_default())?;
+        return Ok(());
+    };
     say!(
         "Power law of {values_from}: dN/dS ∝ S^-α above S_min = {:.4} ({}; {} values{}): α = {:.3} ± {:.3} \
          (n−1 form {:.3}), cumulative γ = {:.3}, KS D = {:.3}, fit p = {}",
