@@ -29,7 +29,7 @@ pub fn source_report(
         source: Some(source.to_string()),
         ..CandidateFilter::default()
     })?;
-    let sessions = cat.merged_exposure(source, None).unwrap_or_default();
+    let sessions = cat.merged_exposure(source, None)?;
     if cands.is_empty() && sessions.is_empty() {
         return Err(Error::Catalogue {
             path: cat.path().to_path_buf(),
