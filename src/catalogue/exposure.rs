@@ -314,8 +314,20 @@ fn parse_exposure_csv(path: &Path, reader: impl Read) -> Result<Vec<(u64, Exposu
         let line = rec.position().map_or(0, |p| p.line());
         let bad =
             |msg: String| Error::bad_input(path, format!("line {line}: {msg}; nothing imported"));
-        if rows.is_empty() && rec.get(0) == Some("source") {
-            continue; // header row
+        // A header names the columns; the rows are read by position, so a header in
+        // another order would read start for end or a threshold for a limit.
+        if rows.is_empty() && rec.iter().any(|f| EXPORT_COLUMNS.contains(&f)) {
+            if rec
+                .iter()
+                .eq(EXPORT_COLUMNS.iter().take(rec.len()).copied())
+            {
+                continue;
+            }
+            return Err(bad(format!(
+                "a header {:?} must name the columns in the order {}",
+                rec.iter().collect::<Vec<_>>().join(","),
+                EXPORT_COLUMNS.join(",")
+            )));
         }
         if !(3..=EXPORT_COLUMNS.len()).contains(&rec.len()) {
             return Err(bad(format!(
@@ -446,6 +458,30 @@ mod tests {
             "{err}"
         );
         assert!(out.is_empty(), "{:?}", String::from_utf8_lossy(&out));
+    }
+
+    /// Rows are read by position: a header in another order is refused, not read
+    /// as data (its own fields are not numbers) or trusted to reorder the columns.
+    #[test]
+    fn a_header_in_another_order_is_refused() {
+        let (_d, mut cat) = cat_with_source();
+        let p = Path::new("in.csv");
+        for header in ["start_mjd,end_mjd,source", "source,end_mjd,start_mjd"] {
+            let csv = format!("{header}\nSRC-A,60000.0,60000.5\n");
+            let err = cat
+                .import_exposure_csv(p, csv.as_bytes())
+                .unwrap_err()
+                .to_string();
+            assert!(
+                err.contains("line 1") && err.contains("in the order source,start_mjd,end_mjd"),
+                "{err}"
+            );
+        }
+        let shorter = "source,start_mjd,end_mjd\nSRC-A,60000.0,60000.5\n";
+        assert_eq!(
+            cat.import_exposure_csv(p, shorter.as_bytes()).unwrap(),
+            counts(1, 0)
+        );
     }
 
     #[test]
