@@ -7,7 +7,7 @@ use anyhow::Context;
 use burstbook::period::activity::{ActivityConfig, ActivityResult, search_activity};
 use burstbook::progress;
 
-use super::{BurstInputs, Probability, create, print_json};
+use super::{BurstInputs, OnSource, Probability, create, print_json};
 
 #[derive(clap::Args, Debug)]
 pub struct Args {
@@ -90,10 +90,10 @@ pub fn run(a: Args) -> anyhow::Result<()> {
 
 fn print_activity(r: &ActivityResult) -> std::io::Result<()> {
     say!(
-        "{} bursts in {} sessions ({:.2} d on source over {:.1} d); {} trial periods",
+        "{} bursts in {} sessions ({} on source over {:.1} d); {} trial periods",
         r.n_bursts,
         r.n_sessions,
-        r.exposure_days,
+        OnSource(r.exposure_days),
         r.span_days,
         r.periodogram.period_days.len()
     )?;

@@ -28,6 +28,21 @@ impl std::fmt::Display for Probability {
     }
 }
 
+/// Time on source given in days, shown in the unit that keeps its digits: days from
+/// one day up, else hours, else seconds (sessions of seconds printed `0.00 d`).
+pub(crate) struct OnSource(pub f64);
+
+impl std::fmt::Display for OnSource {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        const HOURS_PER_DAY: f64 = 24.0;
+        match self.0 {
+            d if d >= 1.0 => write!(f, "{d:.2} d"),
+            d if d * HOURS_PER_DAY >= 1.0 => write!(f, "{:.2} h", d * HOURS_PER_DAY),
+            d => write!(f, "{:.1} s", d * burstbook::units::SECONDS_PER_DAY),
+        }
+    }
+}
+
 /// Arguments of `period`.
 #[derive(clap::Args, Debug)]
 pub struct Args {
@@ -195,4 +210,16 @@ fn create(path: &Path) -> anyhow::Result<AtomicFile> {
         });
     }
     Ok(AtomicFile::create(path)?)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::OnSource;
+
+    #[test]
+    fn time_on_source_keeps_its_digits() {
+        assert_eq!(OnSource(2.5).to_string(), "2.50 d");
+        assert_eq!(OnSource(0.125).to_string(), "3.00 h");
+        assert_eq!(OnSource(30.0 / 86_400.0).to_string(), "30.0 s");
+    }
 }

@@ -10,7 +10,7 @@ use burstbook::period::powerlaw::fit_power_law;
 use burstbook::period::times::read_positive_csv;
 use burstbook::period::waiting::waiting_time_stats;
 
-use super::{BurstInputs, Probability, print_json};
+use super::{BurstInputs, OnSource, Probability, print_json};
 
 #[derive(clap::Args, Debug)]
 pub struct Args {
@@ -81,10 +81,10 @@ pub fn run(a: Args) -> anyhow::Result<()> {
     }
     let (p, w) = (&waiting.poisson, &waiting.weibull);
     say!(
-        "{} bursts in {} sessions, {:.3} d on source ({} outside sessions ignored)",
+        "{} bursts in {} sessions, {} on source ({} outside sessions ignored)",
         waiting.n_bursts,
         waiting.n_sessions,
-        waiting.exposure_days,
+        OnSource(waiting.exposure_days),
         waiting.n_outside
     )?;
     say!(
