@@ -333,4 +333,22 @@ fn a_burst_found_by_two_runs_is_promoted_once() {
     assert!(text.contains("is the event of candidate"), "{text}");
     let bursts = book(&["bursts", "--format", "csv"]);
     assert_eq!(bursts.lines().count(), 2, "{bursts}");
+    assert!(!book(&["check"]).contains("note:"));
+
+    // A catalogue an older burstbook left: the other run's find promoted too.
+    // `book check` names the pair.
+    Connection::open(&db)
+        .unwrap()
+        .execute(
+            "INSERT INTO burst (candidate_id, source_id, mjd_utc, snr, width_ms, dm, promoted_utc)
+             SELECT id, 1, mjd_inf, snr, width_ms, dm, 'then' FROM candidate
+             WHERE verdict = 'astrophysical' AND id NOT IN (SELECT candidate_id FROM burst)",
+            [],
+        )
+        .unwrap();
+    let check = book(&["check"]);
+    assert!(
+        check.contains("note: bursts 1 and 2 are one event found by two runs"),
+        "{check}"
+    );
 }

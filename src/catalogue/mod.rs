@@ -21,6 +21,7 @@ mod identity;
 mod query;
 mod record;
 mod review;
+mod same_event;
 mod schema;
 mod sources;
 mod summary;
@@ -36,6 +37,7 @@ pub use identity::content_hash;
 pub use query::{Bounds, BurstFilter, BurstRow, CandidateFilter, CandidateRow};
 pub use record::{ObservationRecord, RecordOutcome, RunRecord, config_hash};
 pub use review::{AssignTolerance, Label, Promotion};
+pub use same_event::TwinBursts;
 pub use schema::{APPLICATION_ID, SCHEMA_VERSION};
 pub use sources::{SourceEdit, SourceRecord, SourceUpdate};
 

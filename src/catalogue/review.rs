@@ -3,9 +3,10 @@
 
 use std::path::Path;
 
-use rusqlite::{Connection, OptionalExtension, Transaction, params};
+use rusqlite::{Connection, OptionalExtension, Transaction, named_params, params};
 use serde::Serialize;
 
+use super::same_event::SAME_EVENT;
 use super::{Catalogue, SourceRecord, catalogue_error};
 use crate::error::{Error, Result};
 use crate::units::DISPERSION_CONSTANT_S_MHZ2;
@@ -240,13 +241,10 @@ struct HeldBurst {
 }
 
 /// The burst of candidate `id`: its own, or that of the same event found by another
-/// search run of its observation (re-searched with another configuration). Two finds
-/// are one event when their clusters' DM ranges overlap and their arrival times at
-/// infinite frequency differ by at most half the sum of their boxcar widths plus the
-/// shift a DM difference δ can cause, k·δ/ν_lo² (docs/search.md: a DM error shifts
-/// t_inf by k·δ·⟨ν⁻²⟩). Finds of one run are distinct events, as clustering left them.
+/// search run of its observation (re-searched with another configuration; see
+/// [`super::same_event`]).
 fn held_burst(conn: &Connection, id: i64) -> rusqlite::Result<Option<HeldBurst>> {
-    conn.prepare_cached(
+    conn.prepare_cached(&format!(
         "SELECT b.id, s.name, c.id FROM candidate x
          JOIN search_run rx ON rx.id = x.run_id
          JOIN observation o ON o.id = rx.observation_id
@@ -254,20 +252,20 @@ fn held_burst(conn: &Connection, id: i64) -> rusqlite::Result<Option<HeldBurst>>
          JOIN candidate c ON c.run_id = r.id
          JOIN burst b ON b.candidate_id = c.id
          JOIN source s ON s.id = b.source_id
-         WHERE x.id = ?1 AND (c.id = x.id OR (r.id <> rx.id
-             AND c.dm_lo <= x.dm_hi AND x.dm_lo <= c.dm_hi
-             AND abs(c.t_inf_s - x.t_inf_s) <= (c.width_ms + x.width_ms) / 2000.0
-                 + ?2 * abs(c.dm - x.dm) / (o.freq_lo_mhz * o.freq_lo_mhz)))
-         ORDER BY c.id <> x.id, abs(c.t_inf_s - x.t_inf_s) LIMIT 1",
-    )?
-    .query_row(params![id, DISPERSION_CONSTANT_S_MHZ2], |r| {
-        let candidate: i64 = r.get(2)?;
-        Ok(HeldBurst {
-            burst_id: r.get(0)?,
-            source: r.get(1)?,
-            same_event_as: (candidate != id).then_some(candidate),
-        })
-    })
+         WHERE x.id = :id AND (c.id = x.id OR (r.id <> rx.id AND {SAME_EVENT}))
+         ORDER BY c.id <> x.id, abs(c.t_inf_s - x.t_inf_s) LIMIT 1"
+    ))?
+    .query_row(
+        named_params! {":id": id, ":k": DISPERSION_CONSTANT_S_MHZ2},
+        |r| {
+            let candidate: i64 = r.get(2)?;
+            Ok(HeldBurst {
+                burst_id: r.get(0)?,
+                source: r.get(1)?,
+                same_event_as: (candidate != id).then_some(candidate),
+            })
+        },
+    )
     .optional()
 }
 

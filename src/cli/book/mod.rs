@@ -96,7 +96,8 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         Command::Barycentre(a) => barycentre::run(&mut open()?, a),
         Command::Voevent(a) => voevent::run(&open()?, a),
         Command::Check => {
-            let c = open()?.verify()?;
+            let cat = open()?;
+            let c = cat.verify()?;
             say!(
                 "{}: ok ({} observations, {} runs, {} candidates)",
                 path.display(),
@@ -104,6 +105,17 @@ pub fn run(args: Args) -> anyhow::Result<()> {
                 c.runs,
                 c.candidates
             )?;
+            for t in cat.twin_bursts()? {
+                say!(
+                    "note: bursts {} and {} are one event found by two runs of one observation \
+                     (candidates {} and {}); promoted twice by an older burstbook, they count twice \
+                     in rates and periodicity tests",
+                    t.burst_ids.0,
+                    t.burst_ids.1,
+                    t.candidate_ids.0,
+                    t.candidate_ids.1
+                )?;
+            }
             Ok(())
         }
         Command::FillSynthetic(a) => synthetic::run(&mut open()?, a),
