@@ -50,6 +50,20 @@ fn burstbook(first: &[&str], rest: &[&str]) -> Output {
     Command::new(BIN).args(first).args(rest).output().unwrap()
 }
 
+/// `period stats` of the source in catalogue `db`, without bootstrap.
+fn stats_args(db: &str) -> [&str; 8] {
+    [
+        "period",
+        "stats",
+        "--boot",
+        "0",
+        "--source",
+        SOURCE,
+        "--catalogue",
+        db,
+    ]
+}
+
 fn stderr(out: &Output) -> String {
     String::from_utf8_lossy(&out.stderr).into_owned()
 }
@@ -181,16 +195,7 @@ fn power_law_counts_the_fluences_it_leaves_out() {
     }
     drop(sql);
     let db = db.to_str().unwrap();
-    let stats = [
-        "period",
-        "stats",
-        "--boot",
-        "0",
-        "--source",
-        SOURCE,
-        "--catalogue",
-        db,
-    ];
+    let stats = stats_args(db);
     let s = json(&burstbook(&stats, &["--json"]));
     assert_eq!(s["power_law"]["n_excluded"], 2);
     let out = burstbook(&stats, &[]);
@@ -215,16 +220,7 @@ fn waiting_times_do_not_need_fluences() {
         .unwrap();
     drop(sql);
     let db = db.to_str().unwrap();
-    let stats = [
-        "period",
-        "stats",
-        "--boot",
-        "0",
-        "--source",
-        SOURCE,
-        "--catalogue",
-        db,
-    ];
+    let stats = stats_args(db);
     let s = json(&burstbook(&stats, &["--json"]));
     assert_eq!(s["waiting"]["n_bursts"], n);
     assert!(s["power_law"].is_null(), "{s}");

@@ -307,7 +307,7 @@ fn promote_in(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::catalogue::synthetic::{candidates, observation, run};
+    use crate::catalogue::synthetic::{candidates, found_again, observation, run};
     use crate::catalogue::{BurstFilter, CandidateFilter};
 
     const TOL: AssignTolerance = AssignTolerance {
@@ -413,26 +413,15 @@ mod tests {
     /// again, as candidates of a second run. Promoting those must not give each burst
     /// a twin: the rate would count it twice and the periodicity tests would see two
     /// arrivals 0 s apart. The second run measures the same events a little
-    /// differently (DM +0.8 moves t_inf by k·0.8/ν², 1.3–2.3 ms over 1200–1600 MHz;
-    /// Lorimer & Kramer 2005), while a DM-0 flash at the same instant is another event.
+    /// differently, and finds a DM-0 flash at the same instant, another event
+    /// ([`found_again`]).
     #[test]
     fn a_burst_found_again_by_another_run_is_not_promoted_twice() {
         let dir = tempfile::tempdir().unwrap();
         let mut cat = Catalogue::open(&dir.path().join("c.sqlite")).unwrap();
         let obs = observation("FIELD-7", 3);
         let first = candidates(&obs, 2, 3);
-        let mut again = first.clone();
-        for c in &mut again {
-            c.dm += 0.8;
-            c.dm_lo += 0.8;
-            c.dm_hi += 0.8;
-            c.t_inf_s += 2e-3;
-            c.mjd_inf += 2e-3 / crate::units::SECONDS_PER_DAY;
-            c.width_ms *= 1.5;
-        }
-        let mut flash = first[0].clone();
-        (flash.dm, flash.dm_lo, flash.dm_hi) = (0.0, 0.0, 1.0);
-        again.push(flash);
+        let again = found_again(&first);
         cat.record_search(&obs, &run(7.0), &first).unwrap();
         cat.record_search(&obs, &run(8.0), &again).unwrap();
         let mut rows = cat.candidates(&CandidateFilter::default()).unwrap();

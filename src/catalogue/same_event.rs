@@ -66,7 +66,7 @@ fn twins(conn: &Connection) -> rusqlite::Result<Vec<TwinBursts>> {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::catalogue::synthetic::{candidates, observation, run};
+    use crate::catalogue::synthetic::{candidates, found_again, observation, run};
     use crate::catalogue::{AssignTolerance, CandidateFilter};
 
     /// A catalogue written before promotion checked for the same event: both runs'
@@ -78,14 +78,7 @@ mod tests {
         let mut cat = Catalogue::open(&dir.path().join("c.sqlite")).unwrap();
         let obs = observation("FIELD-7", 3);
         let first = candidates(&obs, 2, 3);
-        let mut again = first.clone();
-        for c in &mut again {
-            (c.dm, c.dm_lo, c.dm_hi) = (c.dm + 0.8, c.dm_lo + 0.8, c.dm_hi + 0.8);
-            c.t_inf_s += 2e-3;
-        }
-        let mut flash = first[0].clone();
-        (flash.dm, flash.dm_lo, flash.dm_hi) = (0.0, 0.0, 1.0);
-        again.push(flash);
+        let again = found_again(&first);
         cat.record_search(&obs, &run(7.0), &first).unwrap();
         cat.record_search(&obs, &run(8.0), &again).unwrap();
         let mut ids: Vec<i64> = cat

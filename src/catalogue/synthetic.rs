@@ -52,6 +52,25 @@ pub fn observation(source: &str, seed: u64) -> ObservationRecord {
     }
 }
 
+/// `first` as another search run of the same recording finds it: each event at a
+/// DM 0.8 higher (which moves t_inf by k·0.8/ν², 1.3–2.3 ms over 1200–1600 MHz;
+/// Lorimer & Kramer 2005), 2 ms later and 1.5 times wider, plus a DM-0 flash at the
+/// first event's instant, which is another event.
+#[cfg(test)]
+pub fn found_again(first: &[Candidate]) -> Vec<Candidate> {
+    let mut again = first.to_vec();
+    for c in &mut again {
+        (c.dm, c.dm_lo, c.dm_hi) = (c.dm + 0.8, c.dm_lo + 0.8, c.dm_hi + 0.8);
+        c.t_inf_s += 2e-3;
+        c.mjd_inf += 2e-3 / crate::units::SECONDS_PER_DAY;
+        c.width_ms *= 1.5;
+    }
+    let mut flash = first[0].clone();
+    (flash.dm, flash.dm_lo, flash.dm_hi) = (0.0, 0.0, 1.0);
+    again.push(flash);
+    again
+}
+
 /// `n` seeded candidates inside `obs`, DMs in 10..1000 pc cm⁻³, S/N 6..50.
 pub fn candidates(obs: &ObservationRecord, n: usize, seed: u64) -> Vec<Candidate> {
     let mut rng = ChaCha8Rng::seed_from_u64(seed);
