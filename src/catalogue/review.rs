@@ -307,7 +307,7 @@ fn promote_in(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::catalogue::synthetic::{candidates, found_again, observation, run};
+    use crate::catalogue::synthetic::{candidates, observation, run, searched_twice};
     use crate::catalogue::{BurstFilter, CandidateFilter};
 
     const TOL: AssignTolerance = AssignTolerance {
@@ -414,19 +414,11 @@ mod tests {
     /// a twin: the rate would count it twice and the periodicity tests would see two
     /// arrivals 0 s apart. The second run measures the same events a little
     /// differently, and finds a DM-0 flash at the same instant, another event
-    /// ([`found_again`]).
+    /// (`synthetic::found_again`).
     #[test]
     fn a_burst_found_again_by_another_run_is_not_promoted_twice() {
         let dir = tempfile::tempdir().unwrap();
-        let mut cat = Catalogue::open(&dir.path().join("c.sqlite")).unwrap();
-        let obs = observation("FIELD-7", 3);
-        let first = candidates(&obs, 2, 3);
-        let again = found_again(&first);
-        cat.record_search(&obs, &run(7.0), &first).unwrap();
-        cat.record_search(&obs, &run(8.0), &again).unwrap();
-        let mut rows = cat.candidates(&CandidateFilter::default()).unwrap();
-        rows.sort_by_key(|r| r.id);
-        let ids: Vec<i64> = rows.iter().map(|r| r.id).collect();
+        let (mut cat, ids) = searched_twice(dir.path());
         assert_eq!(ids.len(), 5);
         cat.promote_all(&ids[..2], Some("FIELD-7"), TOL).unwrap();
         let p = cat.promote_all(&ids[2..], Some("FIELD-7"), TOL).unwrap();
@@ -438,9 +430,7 @@ mod tests {
         assert_eq!(cat.bursts(&BurstFilter::default()).unwrap().len(), 3);
         // Both runs' finds promoted in one batch give one burst per event too.
         let dir = tempfile::tempdir().unwrap();
-        let mut fresh = Catalogue::open(&dir.path().join("c.sqlite")).unwrap();
-        fresh.record_search(&obs, &run(7.0), &first).unwrap();
-        fresh.record_search(&obs, &run(8.0), &again).unwrap();
+        let (mut fresh, _) = searched_twice(dir.path());
         fresh.promote_all(&ids, Some("FIELD-7"), TOL).unwrap();
         assert_eq!(fresh.bursts(&BurstFilter::default()).unwrap().len(), 3);
     }

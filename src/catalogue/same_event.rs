@@ -65,9 +65,8 @@ fn twins(conn: &Connection) -> rusqlite::Result<Vec<TwinBursts>> {
 
 #[cfg(test)]
 mod tests {
-    use super::*;
-    use crate::catalogue::synthetic::{candidates, found_again, observation, run};
-    use crate::catalogue::{AssignTolerance, CandidateFilter};
+    use crate::catalogue::AssignTolerance;
+    use crate::catalogue::synthetic::searched_twice;
 
     /// A catalogue written before promotion checked for the same event: both runs'
     /// finds of two bursts are bursts. The twins are found in pairs; a DM-0 flash at
@@ -75,19 +74,7 @@ mod tests {
     #[test]
     fn bursts_promoted_twice_are_found_as_twins() {
         let dir = tempfile::tempdir().unwrap();
-        let mut cat = Catalogue::open(&dir.path().join("c.sqlite")).unwrap();
-        let obs = observation("FIELD-7", 3);
-        let first = candidates(&obs, 2, 3);
-        let again = found_again(&first);
-        cat.record_search(&obs, &run(7.0), &first).unwrap();
-        cat.record_search(&obs, &run(8.0), &again).unwrap();
-        let mut ids: Vec<i64> = cat
-            .candidates(&CandidateFilter::default())
-            .unwrap()
-            .iter()
-            .map(|r| r.id)
-            .collect();
-        ids.sort();
+        let (mut cat, ids) = searched_twice(dir.path());
         let tol = AssignTolerance {
             radius_deg: 0.5,
             dm: 5.0,

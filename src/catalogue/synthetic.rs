@@ -57,7 +57,7 @@ pub fn observation(source: &str, seed: u64) -> ObservationRecord {
 /// Lorimer & Kramer 2005), 2 ms later and 1.5 times wider, plus a DM-0 flash at the
 /// first event's instant, which is another event.
 #[cfg(test)]
-pub fn found_again(first: &[Candidate]) -> Vec<Candidate> {
+fn found_again(first: &[Candidate]) -> Vec<Candidate> {
     let mut again = first.to_vec();
     for c in &mut again {
         (c.dm, c.dm_lo, c.dm_hi) = (c.dm + 0.8, c.dm_lo + 0.8, c.dm_hi + 0.8);
@@ -69,6 +69,27 @@ pub fn found_again(first: &[Candidate]) -> Vec<Candidate> {
     (flash.dm, flash.dm_lo, flash.dm_hi) = (0.0, 0.0, 1.0);
     again.push(flash);
     again
+}
+
+/// A catalogue in `dir` holding one observation of FIELD-7 searched twice: two
+/// events, then [`found_again`]'s three finds; with the candidate ids in order (the
+/// first run's two, the second run's two, the flash).
+#[cfg(test)]
+pub fn searched_twice(dir: &std::path::Path) -> (super::Catalogue, Vec<i64>) {
+    let mut cat = super::Catalogue::open(&dir.join("c.sqlite")).unwrap();
+    let obs = observation("FIELD-7", 3);
+    let first = candidates(&obs, 2, 3);
+    cat.record_search(&obs, &run(7.0), &first).unwrap();
+    cat.record_search(&obs, &run(8.0), &found_again(&first))
+        .unwrap();
+    let mut ids: Vec<i64> = cat
+        .candidates(&super::CandidateFilter::default())
+        .unwrap()
+        .iter()
+        .map(|r| r.id)
+        .collect();
+    ids.sort();
+    (cat, ids)
 }
 
 /// `n` seeded candidates inside `obs`, DMs in 10..1000 pc cm⁻³, S/N 6..50.
