@@ -24,7 +24,7 @@ root=$(cd "$(dirname "$0")/.." && pwd)
 # and the sample time: N_CHAN=1024 TSAMP_US=64 is the reference survey.
 # Other setups (the defaults give the 1200–1600 MHz measurement):
 #   BAND_MHZ=LO:HI (1200:1600)   ASCENDING=1 (channel step > 0; default descending)
-#   NBITS=8|16|32 (8; 16 stores the 8-bit samples x64 + 1000 as uint16, native only)
+#   NBITS=8|16|32 (8; 16-bit noise has mean 3000 and σ 200)
 #   FORMAT=native|fits (native)  DM_MAX (the search's dm_max; default the top of DM_RANGE)
 #   AVERAGE_SAMPLES=N ([average] samples; 1)   MAX_WIDTH_S (0.1)
 #   SCATTER_MS=LO:HI (inject --scatter-ms, at 1 GHz; none by default)
@@ -55,8 +55,9 @@ else
     first_mhz=$(python3 -c "print($hi_mhz - $chan_mhz / 2)")
     step_mhz=-$chan_mhz
 fi
-sim_bits=$nbits
-[[ $nbits == 16 ]] && sim_bits=8
+noise_mean=96.0
+noise_sigma=12.0
+[[ $nbits == 16 ]] && noise_mean=3000.0 && noise_sigma=200.0
 if [[ $format == fits ]]; then name=quiet.fits; else name=quiet.json; fi
 
 cat > "$out/scenario.toml" <<TOML
@@ -79,9 +80,9 @@ first_chan_mhz = $first_mhz
 chan_step_mhz = $step_mhz
 n_chan = $n_chan
 [noise]
-nbits = $sim_bits
-mean = 96.0
-sigma = 12.0
+nbits = $nbits
+mean = $noise_mean
+sigma = $noise_sigma
 sefd_jy = 28.0
 TOML
 if [[ "${RFI:-0}" == 1 ]]; then
@@ -121,21 +122,6 @@ samples = $average
 TOML
 
 "$bin" simulate "$out/scenario.toml" --out "$out/$name" --format "$format"
-if [[ $nbits == 16 ]]; then
-    # the same samples as uint16 (x64 + 1000): a 16-bit native file
-    python3 - "$out/quiet.npy" <<'PY'
-import array, sys
-path = sys.argv[1]
-raw = open(path, "rb").read()
-hlen = int.from_bytes(raw[8:10], "little")
-header = raw[10:10 + hlen].decode().replace("'|u1'", "'<u2'").rstrip()
-header += " " * ((64 - (10 + len(header) + 1) % 64) % 64) + "\n"
-data = array.array("H", (v * 64 + 1000 for v in raw[10 + hlen:]))
-with open(path, "wb") as f:
-    f.write(raw[:8] + len(header).to_bytes(2, "little") + header.encode())
-    f.write(data.tobytes())
-PY
-fi
 scatter=()
 [[ -n "${SCATTER_MS:-}" ]] && scatter=(--scatter-ms "$SCATTER_MS")
 if [[ "${RFI:-0}" == 1 ]]; then
