@@ -52,7 +52,7 @@ pub fn bandpass_gains(header: &Header, spec: &BandpassSpec) -> Result<Vec<f64>> 
 }
 
 /// Converts a value to what an `nbits` file stores: 8- and 16-bit values are rounded
-/// and clipped to the digitiser range 0 to [`max_code`]; 32-bit values pass
+/// and clipped to the digitiser range 0 to 2^nbits − 1; 32-bit values pass
 /// unchanged. The rounding is done in f64, before the conversion to f32, which could
 /// otherwise move a value just below a half onto it and round it up.
 pub fn quantise(value: f64, nbits: u32) -> f32 {
