@@ -76,8 +76,10 @@ fn files_read_back_equal_to_the_generator() {
     let dir = tempfile::tempdir().unwrap();
     for (nbits, name) in [
         (8, "sim8.json"),
+        (16, "sim16.json"),
         (32, "sim32.json"),
         (8, "sim8.fits"),
+        (16, "sim16.fits"),
         (32, "sim32.fits"),
     ] {
         let text = SCENARIO.replace("NBITS", &nbits.to_string());

@@ -18,6 +18,9 @@ use crate::units::delay_between_s;
 const N_SUBBANDS: usize = 16;
 /// The DM-curve is sampled out to the DM error where the expected ratio is ≈ 0.18.
 const CURVE_MAX_ZETA: f64 = 5.0;
+/// A signal in fewer sub-bands than this (by its band fraction) may be narrower than
+/// a sub-band, which the spectrum cannot tell.
+const UNRESOLVED_SUBBANDS: f64 = 3.0;
 
 /// Everything of one processed block that feature measurement reads (`'s`: the
 /// block's dedispersed series, lent to [`NormalisedSeries`]).
@@ -84,14 +87,12 @@ impl BlockData<'_, '_> {
             .unzip()
     }
 
-    /// Peak-normalised S/N at the detected width for trial DMs near the best one,
-    /// against the Cordes & McLaughlin curve; RMS difference (0 with < 3 trials).
-    fn dm_curve_misfit(&self, d: &Detection, t0_in: usize, band: SignalBand) -> f64 {
-        let tsamp = self.header.tsamp_s;
+    /// The S/N at the detected width for the trial DMs of `d`'s plan step within
+    /// `reach` of its DM, as (DM − best DM, S/N).
+    fn dm_curve(&self, d: &Detection, t0_in: usize, reach: f64) -> Vec<(f64, f64)> {
         let step_index = self.dm_offsets.partition_point(|&o| o <= d.dm_index) - 1;
         let ds = self.series.downsample(step_index);
         let (t0, w) = (t0_in / ds, (d.width_samples / ds).max(1));
-        let reach = CURVE_MAX_ZETA / band.zeta(1.0, d.width_samples, tsamp);
         let mut scratch = Scratch::default();
         let mut points = Vec::new();
         let mut row = Vec::new();
@@ -103,15 +104,73 @@ impl BlockData<'_, '_> {
             let lo = t0.saturating_sub(shift + w);
             self.series.row_into(step_index, r, &mut row);
             let snr = best_snr_in(&row, w, lo, t0 + shift + w, &mut scratch);
-            let expected = cm03_peak_ratio(band.zeta(dm - d.dm, d.width_samples, tsamp));
-            points.push((f64::from(snr), expected));
+            points.push((dm - d.dm, f64::from(snr)));
         }
-        let peak = points.iter().map(|p| p.0).fold(0.0, f64::max);
-        if points.len() < 3 || peak <= 0.0 {
-            return 0.0;
+        points
+    }
+}
+
+/// RMS difference between the peak-normalised S/N-vs-DM `curve` and the Cordes &
+/// McLaughlin curve of a pulse `width_in` samples wide in `band`, over the trials
+/// within [`CURVE_MAX_ZETA`] of the best (0 with fewer than 3).
+fn curve_misfit(curve: &[(f64, f64)], band: SignalBand, width_in: usize, tsamp_s: f64) -> f64 {
+    let reach = CURVE_MAX_ZETA / band.zeta(1.0, width_in, tsamp_s);
+    let points: Vec<(f64, f64)> = curve
+        .iter()
+        .filter(|p| p.0.abs() <= reach)
+        .map(|&(ddm, snr)| (snr, cm03_peak_ratio(band.zeta(ddm, width_in, tsamp_s))))
+        .collect();
+    let peak = points.iter().map(|p| p.0).fold(0.0, f64::max);
+    if points.len() < 3 || peak <= 0.0 {
+        return 0.0;
+    }
+    let ss: f64 = points.iter().map(|(m, e)| (m / peak - e).powi(2)).sum();
+    (ss / points.len() as f64).sqrt()
+}
+
+/// The signal bands a pulse whose spectrum fills `fraction` of the band may have: the
+/// measured one, and when that is within [`UNRESOLVED_SUBBANDS`] sub-bands, halvings
+/// of it down to one channel (a pulse tens of MHz wide in a 4 GHz band fills a
+/// fraction of one sub-band, and its DM curve is as broad as its own bandwidth makes
+/// it).
+fn possible_bands(fraction: f64, n_sub: usize, centre_ghz: f64, h: &Header) -> Vec<SignalBand> {
+    let widest = fraction.max(1.0 / n_sub as f64) * h.bandwidth_mhz();
+    let mut bands = vec![widest];
+    if fraction * (n_sub as f64) < UNRESOLVED_SUBBANDS {
+        while bands[bands.len() - 1] / 2.0 >= h.chan_bw_mhz {
+            bands.push(bands[bands.len() - 1] / 2.0);
         }
-        let ss: f64 = points.iter().map(|(m, e)| (m / peak - e).powi(2)).sum();
-        (ss / points.len() as f64).sqrt()
+    }
+    bands
+        .into_iter()
+        .map(|bandwidth_mhz| SignalBand {
+            bandwidth_mhz,
+            centre_ghz,
+        })
+        .collect()
+}
+
+impl BlockData<'_, '_> {
+    /// The DM-curve misfit of `d` (see [`curve_misfit`]) for the one of `bands` it
+    /// fits best, and that band.
+    fn dm_curve_misfit(
+        &self,
+        d: &Detection,
+        t0_in: usize,
+        bands: &[SignalBand],
+    ) -> (f64, SignalBand) {
+        let tsamp = self.header.tsamp_s;
+        // The narrowest band has the broadest curve, so the farthest reach.
+        let reach = bands
+            .iter()
+            .map(|b| CURVE_MAX_ZETA / b.zeta(1.0, d.width_samples, tsamp))
+            .fold(0.0, f64::max);
+        let curve = self.dm_curve(d, t0_in, reach);
+        bands
+            .iter()
+            .map(|&b| (curve_misfit(&curve, b, d.width_samples, tsamp), b))
+            .min_by(|x, y| x.0.total_cmp(&y.0))
+            .expect("at least the measured band")
     }
 }
 
@@ -150,10 +209,8 @@ pub(super) fn measure(b: &BlockData<'_, '_>, d: &Detection) -> Measured {
     } else {
         0.5 * (h.freq_lo_mhz() + h.freq_hi_mhz())
     };
-    let band = SignalBand {
-        bandwidth_mhz: fraction.max(1.0 / sub_snr.len() as f64) * h.bandwidth_mhz(),
-        centre_ghz: centre_mhz / 1e3,
-    };
+    let bands = possible_bands(fraction, sub_snr.len(), centre_mhz / 1e3, h);
+    let (dm_curve_misfit, band) = b.dm_curve_misfit(d, t0, &bands);
 
     let mut scratch = Scratch::default();
     let lo = t0.saturating_sub(w);
@@ -181,7 +238,7 @@ pub(super) fn measure(b: &BlockData<'_, '_>, d: &Detection) -> Measured {
     Measured {
         features: TriageFeatures {
             snr_dm0_ratio: f64::from(snr0).max(0.0) / d.snr,
-            dm_curve_misfit: b.dm_curve_misfit(d, t0, band),
+            dm_curve_misfit,
             band_fraction: fraction,
             modulation_index: modulation_index(&unit, 1.0),
         },

@@ -51,16 +51,21 @@ pub fn bandpass_gains(header: &Header, spec: &BandpassSpec) -> Result<Vec<f64>> 
     }
 }
 
-/// Converts a value to what an `nbits` file stores: 8-bit values are rounded and
-/// clipped to the digitiser range 0–255; 32-bit values pass unchanged. The rounding
-/// is done in f64, before the conversion to f32, which could otherwise move a value
-/// just below a half onto it and round it up.
+/// Converts a value to what an `nbits` file stores: 8- and 16-bit values are rounded
+/// and clipped to the digitiser range 0 to 2^nbits − 1; 32-bit values pass
+/// unchanged. The rounding is done in f64, before the conversion to f32, which could
+/// otherwise move a value just below a half onto it and round it up.
 pub fn quantise(value: f64, nbits: u32) -> f32 {
-    if nbits == 8 {
-        value.round().clamp(0.0, 255.0) as f32
-    } else {
-        value as f32
+    match max_code(nbits) {
+        Some(max) => value.round().clamp(0.0, max) as f32,
+        None => value as f32,
     }
+}
+
+/// The largest value an unsigned integer sample of `nbits` holds (255 for 8 bits,
+/// 65535 for 16), or `None` for float samples.
+pub fn max_code(nbits: u32) -> Option<f64> {
+    (nbits < 32).then(|| ((1u64 << nbits) - 1) as f64)
 }
 
 #[cfg(test)]
@@ -98,6 +103,12 @@ mod tests {
         assert_eq!(quantise(-3.0, 8), 0.0);
         assert_eq!(quantise(300.0, 8), 255.0);
         assert_eq!(quantise(96.4, 32), 96.4);
+        // 16-bit samples: rounded and clipped to 0–65535 (common practice)
+        assert_eq!(quantise(3000.6, 16), 3001.0);
+        assert_eq!(quantise(70000.0, 16), 65535.0);
+        assert_eq!(quantise(-2.0, 16), 0.0);
+        assert_eq!(max_code(8), Some(255.0));
+        assert_eq!(max_code(32), None);
         // 2.4999999999 becomes 2.5 in f32: rounding after the conversion would give 3.
         assert_eq!(2.499_999_999_9f64 as f32, 2.5);
         assert_eq!(quantise(2.499_999_999_9, 8), 2.0);

@@ -180,14 +180,15 @@ impl Simulation {
     }
 
     /// A note in [`Simulation::notes`] if `burst`'s brightest samples exceed what
-    /// 8-bit samples hold (255, where [`super::quantise`] clips them): the file then
-    /// holds less than the truth's expected S/N, which ignores quantisation.
+    /// integer samples hold (255 for 8 bits, 65535 for 16, where [`super::quantise`]
+    /// clips them): the file then holds less than the truth's expected S/N, which
+    /// ignores quantisation.
     fn note_saturation(&mut self, what: &str, burst: &Burst) {
-        if self.header.nbits != 8 {
+        let Some(top) = super::noise::max_code(self.header.nbits) else {
             return;
-        }
+        };
         // Headroom of each channel in its own σ, from its mean to the top code.
-        let headroom = |c: usize| (255.0 - self.chan_mean[c]) / self.chan_sigma[c];
+        let headroom = |c: usize| (top - self.chan_mean[c]) / self.chan_sigma[c];
         let over: Vec<(usize, f64)> = peak_per_channel(&self.header, burst)
             .into_iter()
             .filter(|&(c, peak)| peak > headroom(c))
@@ -196,11 +197,12 @@ impl Simulation {
             return;
         };
         self.notes.push(format!(
-            "{what} (t_inf {} s, DM {}) saturates the 8-bit samples in {} of {} channels: \
-             its brightest sample is {peak:.1} σ above the mean where 255 is {:.1} σ \
+            "{what} (t_inf {} s, DM {}) saturates the {}-bit samples in {} of {} channels: \
+             its brightest sample is {peak:.1} σ above the mean where {top} is {:.1} σ \
              above it, so the file holds less than the truth's expected S/N",
             burst.t_inf_s,
             burst.dm,
+            self.header.nbits,
             over.len(),
             self.header.weights.iter().filter(|&&w| w != 0.0).count(),
             headroom(c),

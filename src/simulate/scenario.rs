@@ -77,7 +77,7 @@ pub struct BandSpec {
 #[derive(Debug, Clone, PartialEq, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct NoiseSpec {
-    /// 8 (unsigned bytes, clipped to 0–255) or 32 (float).
+    /// 8 or 16 (unsigned integers, clipped to 0–255 or 0–65535) or 32 (float).
     pub nbits: u32,
     /// Mean level where the bandpass gain is 1.
     pub mean: f64,
@@ -297,15 +297,17 @@ impl Scenario {
         }
         let n = &self.noise;
         match n.nbits {
-            8 if n.mean > 0.0 && n.mean < 255.0 => {}
-            8 => {
-                return Err(format!(
-                    "noise.mean {} must lie inside 0–255 for 8 bits",
-                    n.mean
-                ));
+            8 | 16 => {
+                let max = super::noise::max_code(n.nbits).unwrap_or(f64::INFINITY);
+                if !(n.mean > 0.0 && n.mean < max) {
+                    return Err(format!(
+                        "noise.mean {} must lie inside 0–{max} for {} bits",
+                        n.mean, n.nbits
+                    ));
+                }
             }
             32 => {}
-            other => return Err(format!("noise.nbits must be 8 or 32, got {other}")),
+            other => return Err(format!("noise.nbits must be 8, 16 or 32, got {other}")),
         }
         positive("noise.sigma", n.sigma)?;
         if let Some(s) = n.sefd_jy {
