@@ -109,12 +109,13 @@ impl Averaging {
         // A channel of weight 0 holds no data (whatever its samples say): the group's
         // mean is over its other channels.
         let live: Vec<bool> = source.header().weights.iter().map(|&w| w != 0.0).collect();
+        let live_per_group = live
+            .chunks(self.channels)
+            .map(|g| g.iter().filter(|&&l| l).count())
+            .collect();
         Ok(Box::new(AveragedSource {
-            live: live.clone(),
-            live_per_group: live
-                .chunks(self.channels)
-                .map(|g| g.iter().filter(|&&l| l).count())
-                .collect(),
+            live,
+            live_per_group,
             inner: source,
             header,
             factors: *self,
