@@ -20,24 +20,29 @@ pub struct ChannelStats {
 }
 
 impl ChannelStats {
-    /// Measures a raw block laid out `[time, channel]`.
+    /// Measures a raw block laid out `[time, channel]`: the plain statistics that
+    /// [`super::run_sums::RunSums::trimmed_stats`] reduces to without trimming.
     pub fn measure<T: Sample>(raw: ArrayView2<'_, T>) -> Self {
         let (n_time, n_chan) = raw.dim();
         let mut s1 = vec![0.0f64; n_chan];
         let mut s2 = vec![0.0f64; n_chan];
         add_power_sums(raw, &mut s1, &mut s2);
-        Self::from_sums(&s1, &s2, n_time)
+        Self::from_sums(&s1, &s2, &vec![n_time; n_chan])
     }
 
-    /// The statistics of `n` samples per channel whose sums are `s1` = Σx and
-    /// `s2` = Σx².
-    pub fn from_sums(s1: &[f64], s2: &[f64], n: usize) -> Self {
-        let n = n.max(1) as f64;
-        let mean: Vec<f64> = s1.iter().map(|s| s / n).collect();
+    /// The statistics of `n[c]` samples of each channel c whose sums are `s1` = Σx
+    /// and `s2` = Σx².
+    pub fn from_sums(s1: &[f64], s2: &[f64], n: &[usize]) -> Self {
+        let mean: Vec<f64> = s1
+            .iter()
+            .zip(n)
+            .map(|(s, &n)| s / n.max(1) as f64)
+            .collect();
         let std = s2
             .iter()
             .zip(&mean)
-            .map(|(s, m)| (s / n - m * m).max(0.0).sqrt())
+            .zip(n)
+            .map(|((s, m), &n)| (s / n.max(1) as f64 - m * m).max(0.0).sqrt())
             .collect();
         ChannelStats { mean, std }
     }

@@ -9,12 +9,9 @@
 //! thresholds are asymmetric: quantiles of the Pearson type III curve (a shifted gamma
 //! distribution) with those first three moments.
 
-use ndarray::{ArrayView2, s};
-use rayon::prelude::*;
 use statrs::distribution::{ContinuousCDF, Gamma, Normal};
 
-use super::channel_stats::{ChannelStats, add_power_sums};
-use crate::obs::Sample;
+use super::run_sums::RunSums;
 use crate::robust::median_in_place;
 
 /// Variance of SK for Gaussian noise with `m` samples and shape `nd` = N·d.
@@ -54,54 +51,17 @@ pub fn sk_thresholds(m: f64, nd: f64, tail: f64) -> (f64, f64) {
     )
 }
 
-/// Power sums of every channel over consecutive runs of `m` samples of one block.
-#[derive(Debug, Clone)]
-pub struct ChannelKurtosis {
-    m: usize,
-    n_chan: usize,
-    /// `(S₁, S₂)` per run, `[run][channel]`.
-    sums: Vec<(f64, f64)>,
+/// The spectral-kurtosis test on a block's [`RunSums`]: each whole run of M samples
+/// of a channel is one estimate.
+#[derive(Debug, Clone, Copy)]
+pub struct ChannelKurtosis<'a> {
+    runs: &'a RunSums,
 }
 
-impl ChannelKurtosis {
-    /// Measures a raw block (`[time, channel]`) in parallel over runs; a block
-    /// shorter than `m` is one run.
-    pub fn measure<T: Sample>(raw: ArrayView2<'_, T>, m: usize) -> Self {
-        let (n_time, n_chan) = raw.dim();
-        let m = m.min(n_time).max(1);
-        let n_runs = n_time / m;
-        let mut s1 = vec![0.0; n_runs * n_chan];
-        let mut s2 = vec![0.0; n_runs * n_chan];
-        s1.par_chunks_mut(n_chan.max(1))
-            .zip(s2.par_chunks_mut(n_chan.max(1)))
-            .enumerate()
-            .for_each(|(r, (s1, s2))| {
-                add_power_sums(raw.slice(s![r * m..(r + 1) * m, ..]), s1, s2);
-            });
-        let sums = s1.into_iter().zip(s2).collect();
-        ChannelKurtosis { m, n_chan, sums }
-    }
-
-    /// Each channel's mean and standard deviation over the whole of `raw`, the block
-    /// these sums were measured on: the runs' sums plus the samples after the last
-    /// run, so the block is read once for both tests.
-    pub fn channel_stats<T: Sample>(&self, raw: ArrayView2<'_, T>) -> ChannelStats {
-        let n_time = raw.nrows();
-        let mut s1 = vec![0.0; self.n_chan];
-        let mut s2 = vec![0.0; self.n_chan];
-        for run in self.sums.chunks_exact(self.n_chan.max(1)) {
-            for ((a, b), &(r1, r2)) in s1.iter_mut().zip(s2.iter_mut()).zip(run) {
-                *a += r1;
-                *b += r2;
-            }
-        }
-        let covered = self.sums.len() / self.n_chan.max(1) * self.m;
-        add_power_sums(raw.slice(s![covered.min(n_time).., ..]), &mut s1, &mut s2);
-        ChannelStats::from_sums(&s1, &s2, n_time)
-    }
-
-    fn runs(&self, c: usize) -> impl Iterator<Item = (f64, f64)> + '_ {
-        self.sums.iter().skip(c).step_by(self.n_chan).copied()
+impl<'a> ChannelKurtosis<'a> {
+    /// The test on the runs of `runs`.
+    pub fn new(runs: &'a RunSums) -> Self {
+        ChannelKurtosis { runs }
     }
 
     /// Whether channel `c` looks like detected power: in every run a positive mean at
@@ -111,8 +71,8 @@ impl ChannelKurtosis {
     /// not applied to it. (Testing only the sign let one channel in 2^runs of
     /// zero-mean noise through, and SK then masked it.)
     fn is_power(&self, c: usize) -> bool {
-        let m = self.m as f64;
-        self.runs(c).all(|(s1, s2)| {
+        let m = self.runs.m() as f64;
+        self.runs.whole_runs(c).all(|(s1, s2)| {
             let mean = s1 / m;
             mean > 0.0 && 2.0 * mean * mean >= s2 / m - mean * mean
         })
@@ -121,12 +81,12 @@ impl ChannelKurtosis {
     /// Median over power-like unmasked channels of the median over runs of mean²/variance,
     /// which equals N·d for Gamma-distributed (detected, summed) noise.
     pub fn estimate_nd(&self, mask: &[bool]) -> Option<f64> {
-        let m = self.m as f64;
+        let m = self.runs.m() as f64;
         let mut per_chan: Vec<f32> = Vec::new();
         let mut scratch = Vec::new();
-        for c in (0..self.n_chan).filter(|&c| !mask[c] && self.is_power(c)) {
+        for c in (0..self.runs.n_chan()).filter(|&c| !mask[c] && self.is_power(c)) {
             scratch.clear();
-            scratch.extend(self.runs(c).filter_map(|(s1, s2)| {
+            scratch.extend(self.runs.whole_runs(c).filter_map(|(s1, s2)| {
                 let mean = s1 / m;
                 let var = s2 / m - mean * mean;
                 (var > 0.0).then_some((mean * mean / var) as f32)
@@ -142,8 +102,8 @@ impl ChannelKurtosis {
     /// Masks unmasked power-like channels in which more than `flag_fraction` of the
     /// runs fall outside the SK thresholds. Returns the number newly masked.
     pub fn flag(&self, mask: &mut [bool], nd: Option<f64>, tail: f64, flag_fraction: f64) -> usize {
-        let m = self.m as f64;
-        if self.m < 16 {
+        let m = self.runs.m() as f64;
+        if self.runs.m() < 16 {
             return 0;
         }
         let Some(nd) = nd.or_else(|| self.estimate_nd(mask)) else {
@@ -156,7 +116,7 @@ impl ChannelKurtosis {
                 continue;
             }
             let (mut flagged, mut total) = (0usize, 0usize);
-            for (s1, s2) in self.runs(c) {
+            for (s1, s2) in self.runs.whole_runs(c) {
                 let sk = sk_estimate(s1, s2, m, nd);
                 total += 1;
                 flagged += usize::from(!(lo..=hi).contains(&sk));
@@ -228,7 +188,8 @@ mod tests {
                 p
             }
         });
-        let sk = ChannelKurtosis::measure(raw.view(), 512);
+        let runs = RunSums::measure(raw.view(), 512);
+        let sk = ChannelKurtosis::new(&runs);
         let nd = sk.estimate_nd(&[false; 32]).unwrap();
         assert!((nd - 50.0).abs() < 3.0, "estimated N·d {nd}");
         let mut mask = vec![false; n_chan];
@@ -247,39 +208,15 @@ mod tests {
         let zero_mean = Array2::from_shape_fn((2048, n_chan), |_| {
             Distribution::<f32>::sample(&rand_distr::StandardNormal, &mut rng)
         });
-        let sk = ChannelKurtosis::measure(zero_mean.view(), 512);
+        let runs = RunSums::measure(zero_mean.view(), 512);
+        let sk = ChannelKurtosis::new(&runs);
         let mut mask = vec![false; n_chan];
         assert_eq!(sk.flag(&mut mask, Some(1.0), 0.0013499, 0.25), 0);
         assert!((0..n_chan).all(|c| !sk.is_power(c)));
         // The same noise on an offset of 8σ is power-like (mean²/variance 64).
         let offset = zero_mean.mapv(|x| x + 8.0);
-        let sk = ChannelKurtosis::measure(offset.view(), 512);
+        let runs = RunSums::measure(offset.view(), 512);
+        let sk = ChannelKurtosis::new(&runs);
         assert!((0..n_chan).all(|c| sk.is_power(c)));
-    }
-
-    // The whole-block statistics derived from the run sums equal those measured
-    // directly, with a tail of samples after the last whole run and without.
-    #[test]
-    fn channel_stats_from_runs_equal_a_direct_measurement() {
-        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(5);
-        for n_time in [100usize, 1024, 1500, 3000] {
-            let raw = Array2::from_shape_fn((n_time, 7), |(_, c)| {
-                c as f32 + rng.random::<f32>() * (1.0 + c as f32)
-            });
-            let direct = ChannelStats::measure(raw.view());
-            let derived = ChannelKurtosis::measure(raw.view(), 512).channel_stats(raw.view());
-            for (a, b) in direct.mean.iter().zip(&derived.mean) {
-                assert!(
-                    (a - b).abs() < 1e-9 * (1.0 + a.abs()),
-                    "n={n_time}: {a} vs {b}"
-                );
-            }
-            for (a, b) in direct.std.iter().zip(&derived.std) {
-                assert!(
-                    (a - b).abs() < 1e-9 * (1.0 + a.abs()),
-                    "n={n_time}: {a} vs {b}"
-                );
-            }
-        }
     }
 }

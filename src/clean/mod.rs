@@ -11,6 +11,7 @@ pub mod channel_stats;
 pub mod dropout;
 pub mod impulse;
 pub mod kurtosis;
+pub mod run_sums;
 pub mod user_mask;
 pub mod zero_dm;
 
@@ -33,7 +34,8 @@ pub struct CleanConfig {
     pub stat_threshold: f64,
     /// Whether to apply the spectral-kurtosis test.
     pub kurtosis: bool,
-    /// Samples per spectral-kurtosis estimate (M).
+    /// Samples per spectral-kurtosis estimate (M), and per run of the channel
+    /// statistics' trimming.
     pub kurtosis_m: usize,
     /// N·d of the generalised estimator (raw spectra summed per sample times the shape
     /// factor); estimated from the data when absent.
@@ -114,21 +116,22 @@ impl CleanConfig {
 
 /// Flags channels of a raw block (`[time, channel]`) by their statistics and spectral
 /// kurtosis, repeating until nothing new is flagged or `max_iterations` is reached.
-/// Returns the number of channels newly masked.
+/// The statistics leave out, in each channel, the runs of `kurtosis_m` samples that
+/// one pulse of `widest_pulse` samples could touch ([`run_sums`]). Returns the number
+/// of channels newly masked.
 pub fn flag_channels<T: Sample>(
     raw: ArrayView2<'_, T>,
     mask: &mut [bool],
     config: &CleanConfig,
+    widest_pulse: usize,
 ) -> usize {
     let before = mask.iter().filter(|&&m| m).count();
-    // One pass over the block serves both tests when kurtosis is on.
+    // One pass over the block serves both tests.
+    let runs = run_sums::RunSums::measure(raw, config.kurtosis_m);
+    let stats = runs.trimmed_stats(runs.runs_touched_by(widest_pulse));
     let sk = config
         .kurtosis
-        .then(|| kurtosis::ChannelKurtosis::measure(raw, config.kurtosis_m));
-    let stats = match &sk {
-        Some(sk) => sk.channel_stats(raw),
-        None => channel_stats::ChannelStats::measure(raw),
-    };
+        .then(|| kurtosis::ChannelKurtosis::new(&runs));
     for _ in 0..config.max_iterations {
         let mut changed = channel_stats::flag_outliers(&stats, mask, config.stat_threshold);
         if let Some(sk) = &sk {

@@ -33,6 +33,9 @@ pub(super) struct ChannelBlock {
     mask: Vec<bool>,
     /// Tells low-DM pulses from impulses before clipping.
     probe: DispersionProbe,
+    /// Widest pulse searched, samples: the channel statistics leave out the runs
+    /// one such pulse could touch ([`clean::run_sums`]).
+    widest_pulse: usize,
 }
 
 /// New rows for [`ChannelBlock::append`], `[time, channel]`: decoded samples, or the
@@ -87,6 +90,7 @@ impl ChannelBlock {
             new_mask: vec![false; n_chan],
             mask: vec![false; n_chan],
             probe: DispersionProbe::none(n_chan),
+            widest_pulse: 1,
         }
     }
 
@@ -94,6 +98,15 @@ impl ChannelBlock {
     /// dispersed pulses.
     pub(super) fn with_probe(self, probe: DispersionProbe) -> Self {
         ChannelBlock { probe, ..self }
+    }
+
+    /// The block whose channel statistics spare pulses up to `samples` wide (one
+    /// sample wide without this).
+    pub(super) fn with_widest_pulse(self, samples: usize) -> Self {
+        ChannelBlock {
+            widest_pulse: samples,
+            ..self
+        }
     }
 
     /// The block's memory, for [`ChannelBlock::new`].
@@ -229,13 +242,14 @@ impl ChannelBlock {
     ) -> Vec<clean::dropout::Dropout> {
         let dropouts = clean::dropout::dropouts(raw, static_mask);
         if dropouts.is_empty() {
-            clean::flag_channels(raw, &mut self.new_mask, config);
+            clean::flag_channels(raw, &mut self.new_mask, config, self.widest_pulse);
         } else {
             let untouched = clean::dropout::untouched_rows(&dropouts, raw.nrows());
             clean::flag_channels(
                 raw.select(Axis(0), &untouched).view(),
                 &mut self.new_mask,
                 config,
+                self.widest_pulse,
             );
         }
         self.transpose_in(raw);

@@ -149,7 +149,9 @@ pub fn search_source_in(
     let h = &searcher.header;
     let probe = DispersionProbe::new(&h.freqs_mhz, h.tsamp_s);
     let buffer = std::mem::take(&mut workspace.channels);
-    let mut channels = ChannelBlock::new(buffer, h.n_chan(), g.block_len).with_probe(probe);
+    let mut channels = ChannelBlock::new(buffer, h.n_chan(), g.block_len)
+        .with_probe(probe)
+        .with_widest_pulse(g.max_width);
     std::thread::scope(|scope| -> Result<()> {
         let advance = g.block_len - g.overlap;
         let (reads, recycle) = prefetch(scope, source, g.block_len, advance);
