@@ -134,7 +134,7 @@ impl<'a> ChannelKurtosis<'a> {
 mod tests {
     use super::*;
     use ndarray::Array2;
-    use rand::{Rng, SeedableRng};
+    use rand::SeedableRng;
     use rand_distr::{Distribution, Gamma as GammaDist};
 
     // Closed-form moments (Nita & Gary 2010, MNRAS 406, L60), values recomputed here:
