@@ -437,7 +437,7 @@ fn an_unknown_source_is_refused_and_a_known_empty_one_lists_nothing() {
     for (args, header) in [
         (
             &["candidates", "--source", "QUIET", "--format", "csv"][..],
-            "id,run_id,source",
+            "id,run_id,observation_id,source",
         ),
         (
             &["bursts", "--source", "QUIET", "--format", "csv"],

@@ -147,6 +147,13 @@ fn run_ok(cmd: &mut Command) -> String {
     text
 }
 
+/// `burstbook book --catalogue DB ARGS...`, to run.
+fn book(db: &Path, args: &[&str]) -> Command {
+    let mut c = Command::new(BIN);
+    c.args(["book", "--catalogue"]).arg(db).args(args);
+    c
+}
+
 fn line_of<'a>(text: &'a str, file: &Path) -> &'a str {
     let name = file.display().to_string();
     text.lines()
@@ -314,14 +321,7 @@ fn a_burst_found_by_two_runs_is_promoted_once() {
             .unwrap()
     };
     assert_eq!((astrophysical(1), astrophysical(2)), (1, 1));
-    let book = |args: &[&str]| {
-        run_ok(
-            Command::new(BIN)
-                .args(["book", "--catalogue"])
-                .arg(&db)
-                .args(args),
-        )
-    };
+    let book = |args: &[&str]| run_ok(&mut book(&db, args));
     let text = book(&[
         "promote",
         "--verdict",
@@ -351,4 +351,161 @@ fn a_burst_found_by_two_runs_is_promoted_once() {
         check.contains("note: bursts 1 and 2 are one event found by two runs"),
         "{check}"
     );
+}
+
+/// Rows per table of the catalogue at `db`.
+fn table_counts(db: &Path) -> Vec<(String, i64)> {
+    let c = Connection::open(db).unwrap();
+    let tables: Vec<String> = c
+        .prepare("SELECT name FROM sqlite_master WHERE type = 'table' ORDER BY name")
+        .unwrap()
+        .query_map([], |r| r.get(0))
+        .unwrap()
+        .collect::<Result<_, _>>()
+        .unwrap();
+    tables
+        .into_iter()
+        .map(|t| {
+            let n = c
+                .query_row(&format!("SELECT count(*) FROM {t}"), [], |r| r.get(0))
+                .unwrap();
+            (t, n)
+        })
+        .collect()
+}
+
+/// The candidates CSV rows of observation `id` (`observation_id` is its third column).
+fn rows_of_observation(csv: &str, id: &str) -> Vec<String> {
+    csv.lines()
+        .filter(|l| l.split(',').nth(2) == Some(id))
+        .map(str::to_string)
+        .collect()
+}
+
+/// A recording first recorded under a wrong header (its start a minute off) refuses
+/// the corrected file, naming the observation and the way out; forgetting that
+/// observation (its burst too, when asked) lets the corrected file in as a new
+/// observation, and another observation's rows stay as they were.
+#[test]
+fn a_wrong_header_is_forgotten_and_the_corrected_file_recorded() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("survey.sqlite");
+    let (wrong, other) = (simulate(dir.path(), 1), simulate(dir.path(), 2));
+    let mut header: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&wrong).unwrap()).unwrap();
+    header["start_sec"] = (header["start_sec"].as_f64().unwrap() + 60.0).into();
+    let corrected = dir.path().join("corrected.json");
+    std::fs::write(&corrected, header.to_string()).unwrap();
+    run_ok(&mut search(
+        &[wrong.clone(), other.clone()],
+        dir.path(),
+        &db,
+    ));
+    run_ok(&mut book(&db, &["label", "1", "--label", "burst"]));
+    run_ok(&mut book(
+        &db,
+        &["promote", "1", "--to", "Quillwort Test Field"],
+    ));
+
+    let before = std::fs::read(&db).unwrap();
+    let out = search(std::slice::from_ref(&corrected), dir.path(), &db)
+        .output()
+        .unwrap();
+    cli_common::assert_one_line_failure(
+        &out,
+        &[
+            "(observation 1), under a header that differs in start",
+            &format!("`burstbook book --catalogue {} forget 1`", db.display()),
+        ],
+    );
+    let candidates = run_ok(&mut book(&db, &["candidates", "--format", "csv"]));
+    assert!(candidates.starts_with("id,run_id,observation_id,source,"));
+    let others = rows_of_observation(&candidates, "2");
+    assert!(!others.is_empty() && !rows_of_observation(&candidates, "1").is_empty());
+    let table = run_ok(&mut book(&db, &["candidates"]));
+    assert!(table.lines().next().unwrap().contains(" obs "), "{table}");
+
+    // Its burst is refused; a dry run counts and changes nothing; unknown ids fail.
+    let refused = book(&db, &["forget", "1"]).output().unwrap();
+    cli_common::assert_one_line_failure(
+        &refused,
+        &[
+            "observation 1 has 1 burst(s) promoted from its candidates (1 of Quillwort \
+             Test Field); nothing was removed (--with-bursts",
+        ],
+    );
+    let unknown = book(&db, &["forget", "99"]).output().unwrap();
+    cli_common::assert_one_line_failure(&unknown, &["has no observation 99; nothing was removed"]);
+    assert!(std::fs::read(&db).unwrap() == before, "a refusal wrote");
+    let counts = table_counts(&db);
+    let dry = run_ok(&mut book(
+        &db,
+        &["forget", "1", "--with-bursts", "--dry-run"],
+    ));
+    assert_eq!(table_counts(&db), counts, "a dry run changed something");
+    let first = format!(
+        "would remove observation 1: {}, start MJD 61100.",
+        wrong.display()
+    );
+    assert!(dry.starts_with(&first), "{dry}");
+    assert!(dry.ends_with("dry run: nothing was changed\n"), "{dry}");
+
+    let done = run_ok(&mut book(&db, &["forget", "1", "--with-bursts"]));
+    assert_eq!(
+        done.replace("removed", "would remove"),
+        dry.replace("dry run: nothing was changed\n", "")
+    );
+    for line in [
+        "  1 search run(s)",
+        "  1 review label(s)",
+        "  1 exposure interval(s)",
+        "  1 burst(s)",
+    ] {
+        assert!(done.contains(&format!("{line}\n")), "{line} in {done}");
+    }
+    let gone: std::collections::HashMap<String, i64> = counts
+        .iter()
+        .zip(table_counts(&db))
+        .map(|((table, was), (_, now))| (table.clone(), was - now))
+        .collect();
+    let n_candidates = gone["candidate"];
+    assert!(
+        done.contains(&format!("  {n_candidates} candidate(s)\n")),
+        "{done}"
+    );
+    let expected = [
+        ("burst", 1),
+        ("exposure", 1),
+        ("injection_completeness", 0),
+        ("observation", 1),
+        ("review_label", 1),
+        ("search_run", 1),
+        ("source", 0),
+    ];
+    for (table, n) in expected {
+        assert_eq!(gone[table], n, "{table}");
+    }
+    assert_eq!(gone.len(), expected.len() + 1, "{gone:?}");
+    let after = run_ok(&mut book(&db, &["candidates", "--format", "csv"]));
+    assert_eq!(rows_of_observation(&after, "2"), others);
+    assert_eq!(
+        after.lines().count(),
+        others.len() + 1,
+        "only observation 2's rows"
+    );
+    run_ok(&mut book(&db, &["check"]));
+
+    // The corrected file is now a new observation.
+    let text = run_ok(&mut search(
+        std::slice::from_ref(&corrected),
+        dir.path(),
+        &db,
+    ));
+    assert!(
+        line_of(&text, &corrected).contains("recorded in catalogue"),
+        "{text}"
+    );
+    assert_eq!(contents(&db).0, 2);
+    let check = run_ok(&mut book(&db, &["check"]));
+    assert!(check.contains(": ok (2 observations, 2 runs,"), "{check}");
 }

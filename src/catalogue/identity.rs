@@ -5,7 +5,9 @@
 //! `.npy`, a FITS file whose header cards were edited) is the same observation if
 //! it says the same; if it says something else (another start, source, band …) it
 //! is refused naming what differs: recording it again would count the recording's
-//! exposure twice and give every burst in it a twin.
+//! exposure twice and give every burst in it a twin. If the recorded header was the
+//! wrong one, [`super::forget`] removes its observation so the corrected file can be
+//! recorded.
 
 use std::io::Read;
 use std::ops::Range;
@@ -188,9 +190,12 @@ pub(super) fn find_observation(
             "holds the same samples as {held_path}, in the catalogue {} since {recorded} \
              (observation {id}), under a header that differs in {}; not recorded, as one \
              recording counted twice doubles its exposure and its bursts (make the headers \
-             agree, or leave this file out of the catalogue)",
+             agree, leave this file out of the catalogue, or, if the recorded header was \
+             wrong, remove observation {id} with `burstbook book --catalogue {} forget {id}` \
+             and search again)",
             catalogue.display(),
-            differ.join(", ")
+            differ.join(", "),
+            catalogue.display()
         ),
     ))
 }

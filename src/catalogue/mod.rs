@@ -8,7 +8,8 @@
 //! - recording the same recording (the same file content, or the same samples
 //!   under a header that says the same) with the same configuration hash twice
 //!   changes nothing ([`RecordOutcome::AlreadyPresent`]), and the same samples
-//!   under a header that says something else are refused;
+//!   under a header that says something else are refused, until the observation
+//!   recorded first is forgotten ([`Catalogue::forget_observation`]);
 //! - several processes may write at once (WAL journal, busy timeout, and every
 //!   write transaction retried while the database is busy);
 //! - the schema lives in `migrations/`, is upgraded forward only, and a file
@@ -16,6 +17,7 @@
 
 mod bursts;
 mod exposure;
+mod forget;
 mod from_search;
 mod identity;
 mod query;
@@ -32,6 +34,7 @@ pub use bursts::{BurstTiming, CompletenessRecord};
 pub use exposure::{
     ExposureImport, ExposureInterval, exposure_hours, merge_intervals, sweep_window,
 };
+pub use forget::{ForgetOptions, Forgotten};
 pub use from_search::EarlierRun;
 pub use identity::content_hash;
 pub use query::{Bounds, BurstFilter, BurstRow, CandidateFilter, CandidateRow};

@@ -47,6 +47,8 @@ pub struct CandidateRow {
     pub id: i64,
     /// The search run that found it.
     pub run_id: i64,
+    /// The observation that run searched (the id `book forget` takes).
+    pub observation_id: i64,
     /// Source name from the observation header.
     pub source: String,
     /// Newest review label, if any.
@@ -155,7 +157,7 @@ fn candidate_sql(filter: &CandidateFilter) -> (String, Vec<Value>) {
     }
     let limit = filter.limit.map_or(-1, |n| n as i64);
     let sql = format!(
-        "SELECT c.id, c.run_id, o.source_name, {LATEST_LABEL}, b.id,
+        "SELECT c.id, c.run_id, r.observation_id, o.source_name, {LATEST_LABEL}, b.id,
                 c.file, c.t_inf_s, c.mjd_inf, c.dm, c.dm_lo, c.dm_hi, c.width_ms, c.snr,
                 c.cluster_size, c.verdict, c.reasons_json, c.snr_dm0_ratio,
                 c.dm_curve_misfit, c.band_fraction, c.modulation_index, c.fluence_jy_ms
@@ -180,33 +182,34 @@ impl Catalogue {
         let mut stmt = self.conn().prepare(&sql).map_err(|e| self.err(e))?;
         let rows = stmt
             .query_map(rusqlite::params_from_iter(values.iter()), |r| {
-                let verdict: String = r.get(14)?;
-                let reasons: String = r.get(15)?;
+                let verdict: String = r.get(15)?;
+                let reasons: String = r.get(16)?;
                 Ok(CandidateRow {
                     id: r.get(0)?,
                     run_id: r.get(1)?,
-                    source: r.get(2)?,
-                    label: r.get(3)?,
-                    burst_id: r.get(4)?,
+                    observation_id: r.get(2)?,
+                    source: r.get(3)?,
+                    label: r.get(4)?,
+                    burst_id: r.get(5)?,
                     candidate: Candidate {
-                        file: r.get(5)?,
-                        t_inf_s: r.get(6)?,
-                        mjd_inf: r.get(7)?,
-                        dm: r.get(8)?,
-                        dm_lo: r.get(9)?,
-                        dm_hi: r.get(10)?,
-                        width_ms: r.get(11)?,
-                        snr: r.get(12)?,
-                        cluster_size: r.get::<_, i64>(13)? as usize,
+                        file: r.get(6)?,
+                        t_inf_s: r.get(7)?,
+                        mjd_inf: r.get(8)?,
+                        dm: r.get(9)?,
+                        dm_lo: r.get(10)?,
+                        dm_hi: r.get(11)?,
+                        width_ms: r.get(12)?,
+                        snr: r.get(13)?,
+                        cluster_size: r.get::<_, i64>(14)? as usize,
                         verdict: Verdict::parse(&verdict).unwrap_or(Verdict::Unsure),
                         reasons: serde_json::from_str(&reasons).unwrap_or_default(),
                         features: TriageFeatures {
-                            snr_dm0_ratio: r.get(16)?,
-                            dm_curve_misfit: r.get(17)?,
-                            band_fraction: r.get(18)?,
-                            modulation_index: r.get(19)?,
+                            snr_dm0_ratio: r.get(17)?,
+                            dm_curve_misfit: r.get(18)?,
+                            band_fraction: r.get(19)?,
+                            modulation_index: r.get(20)?,
                         },
-                        fluence_jy_ms: r.get(20)?,
+                        fluence_jy_ms: r.get(21)?,
                     },
                 })
             })

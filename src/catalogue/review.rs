@@ -270,8 +270,8 @@ fn held_burst(conn: &Connection, id: i64) -> rusqlite::Result<Option<HeldBurst>>
 }
 
 /// Promotes `id` to `source`; a candidate already a burst, itself or as the same
-/// event found by another run, is left as it is (`source` is `None` only for those,
-/// and bursts are never deleted).
+/// event found by another run, is left as it is (`source` is `None` only for those;
+/// a burst is deleted only with its observation, and so with the candidate).
 fn promote_in(
     tx: &Transaction<'_>,
     id: i64,

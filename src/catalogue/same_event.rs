@@ -32,7 +32,7 @@ pub struct TwinBursts {
 impl Catalogue {
     /// Pairs of bursts that are one event found by two search runs of an
     /// observation: promoted twice by a burstbook that did not yet check (a burst
-    /// is never deleted, so they stay until someone decides).
+    /// is deleted only with its observation, so they stay until someone decides).
     ///
     /// # Errors
     /// An SQLite failure.

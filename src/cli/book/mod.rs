@@ -3,6 +3,7 @@
 mod barycentre;
 mod exposure;
 pub mod flags;
+mod forget;
 mod output;
 mod query;
 mod review;
@@ -25,7 +26,8 @@ Examples:
   burstbook book label 12 15 --label astrophysical --comment 'clear sweep'
   burstbook book promote --label-is astrophysical
   burstbook book summary FIELD-7 --snr-min 8
-  burstbook book voevent 3 --out burst-3.xml")]
+  burstbook book voevent 3 --out burst-3.xml
+  burstbook book forget 3 --dry-run")]
 pub struct Args {
     /// Catalogue file [default: $BURSTBOOK_CATALOGUE, else ./burstbook.sqlite].
     #[arg(long, global = true, value_name = "PATH")]
@@ -64,6 +66,9 @@ enum Command {
     Check,
     /// Write one burst as a VOEvent 2.0 XML packet.
     Voevent(voevent::VoeventArgs),
+    /// Remove an observation recorded under a wrong header, with its runs,
+    /// candidates, labels and exposure.
+    Forget(forget::ForgetArgs),
     /// Fill the catalogue with invented searches (for crash, concurrency and speed tests).
     #[command(hide = true)]
     FillSynthetic(synthetic::FillArgs),
@@ -95,6 +100,7 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         Command::Summary(a) => summary::run(&open()?, a),
         Command::Barycentre(a) => barycentre::run(&mut open()?, a),
         Command::Voevent(a) => voevent::run(&open()?, a),
+        Command::Forget(a) => forget::run(&mut open()?, a),
         Command::Check => {
             let cat = open()?;
             let c = cat.verify()?;

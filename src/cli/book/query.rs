@@ -110,10 +110,17 @@ pub struct CandidatesArgs {
 }
 
 const CANDIDATE_TABLE: &[&str] = &[
-    "id", "source", "mjd_inf", "dm", "snr", "width_ms", "verdict", "label", "burst",
+    "id", "obs", "source", "mjd_inf", "dm", "snr", "width_ms", "verdict", "label", "burst",
 ];
 /// Catalogue columns in front of the search's own `candidates.csv` columns.
-const CANDIDATE_KEYS: [&str; 5] = ["id", "run_id", "source", "label", "burst_id"];
+const CANDIDATE_KEYS: [&str; 6] = [
+    "id",
+    "run_id",
+    "observation_id",
+    "source",
+    "label",
+    "burst_id",
+];
 
 pub fn candidates(cat: &Catalogue, a: CandidatesArgs) -> anyhow::Result<()> {
     let mut filter = a.filter.to_filter(&[])?;
@@ -124,6 +131,7 @@ pub fn candidates(cat: &Catalogue, a: CandidatesArgs) -> anyhow::Result<()> {
             return write_rows(out, a.format, CANDIDATE_TABLE, &rows, |r| {
                 vec![
                     r.id.to_string(),
+                    r.observation_id.to_string(),
                     r.source.clone(),
                     format!("{:.8}", r.candidate.mjd_inf),
                     format!("{:.2}", r.candidate.dm),
@@ -140,6 +148,7 @@ pub fn candidates(cat: &Catalogue, a: CandidatesArgs) -> anyhow::Result<()> {
             let mut cells = vec![
                 r.id.to_string(),
                 r.run_id.to_string(),
+                r.observation_id.to_string(),
                 r.source.clone(),
                 r.label.clone().unwrap_or_default(),
                 r.burst_id.map(|b| b.to_string()).unwrap_or_default(),
