@@ -75,18 +75,31 @@ impl Matcher {
         below.max(above)
     }
 
-    fn coincide(&self, c: &Candidate, t_inf_s: f64, dm: f64, width_s: f64) -> bool {
+    /// How far `c` is from an event at (`t_inf_s`, `dm`) of ideal boxcar `width_s`,
+    /// in units of the tolerances: `None` beyond them, else the DM distance over the
+    /// DM slack plus the time distance over the time tolerance.
+    fn distance(&self, c: &Candidate, t_inf_s: f64, dm: f64, width_s: f64) -> Option<f64> {
         let slack = DM_STEPS * self.dm_step(dm);
         let dm_ok = dm >= c.dm_lo - slack && dm <= c.dm_hi + slack;
         let t_tol = 0.5 * (c.width_ms * 1e-3 + width_s)
             + delay_to_infinity_s((c.dm - dm).abs(), self.freq_lo_mhz)
             + 2.0 * self.tsamp_s;
-        dm_ok && (c.t_inf_s - t_inf_s).abs() <= t_tol
+        let dt = (c.t_inf_s - t_inf_s).abs();
+        (dm_ok && dt <= t_tol)
+            .then(|| (c.dm - dm).abs() / slack.max(f64::MIN_POSITIVE) + dt / t_tol)
+    }
+
+    fn coincide(&self, c: &Candidate, t_inf_s: f64, dm: f64, width_s: f64) -> bool {
+        self.distance(c, t_inf_s, dm, width_s).is_some()
+    }
+
+    fn target_distance(&self, c: &Candidate, target: &Target) -> Option<f64> {
+        self.distance(c, target.burst.t_inf_s, target.burst.dm, target.width_s)
     }
 
     /// Whether `c` matches the injected `target`.
     pub fn matches(&self, c: &Candidate, target: &Target) -> bool {
-        self.coincide(c, target.burst.t_inf_s, target.burst.dm, target.width_s)
+        self.target_distance(c, target).is_some()
     }
 
     /// Whether `c` coincides with a candidate `o` of the untouched data.
@@ -95,28 +108,33 @@ impl Matcher {
             || self.coincide(o, c.t_inf_s, c.dm, c.width_ms * 1e-3)
     }
 
-    /// For each target, the brightest candidate of `found` that matches it and is
-    /// not an event of the untouched data (`original`).
+    /// For each target, the brightest candidate of `found` that matches it, is not an
+    /// event of the untouched data (`original`), and is not nearer another target
+    /// it matches: one candidate recovers at most one burst. (Two bright bursts
+    /// clustered into one candidate had both counted as found.)
     pub fn recover<'a>(
         &self,
         targets: &[Target],
         found: &'a [Candidate],
         original: &[Candidate],
     ) -> Vec<Option<&'a Candidate>> {
-        let fresh: Vec<&Candidate> = found
+        let mut best: Vec<Option<&'a Candidate>> = vec![None; targets.len()];
+        let fresh = found
             .iter()
-            .filter(|c| !original.iter().any(|o| self.same_event(c, o)))
-            .collect();
-        targets
-            .iter()
-            .map(|t| {
-                fresh
-                    .iter()
-                    .copied()
-                    .filter(|c| self.matches(c, t))
-                    .max_by(|a, b| a.snr.total_cmp(&b.snr))
-            })
-            .collect()
+            .filter(|c| !original.iter().any(|o| self.same_event(c, o)));
+        for c in fresh {
+            let owner = targets
+                .iter()
+                .enumerate()
+                .filter_map(|(i, t)| Some((i, self.target_distance(c, t)?)))
+                .min_by(|a, b| a.1.total_cmp(&b.1));
+            if let Some((i, _)) = owner
+                && best[i].is_none_or(|b| c.snr > b.snr)
+            {
+                best[i] = Some(c);
+            }
+        }
+        best
     }
 }
 
@@ -191,5 +209,27 @@ mod tests {
             got[1].is_none(),
             "the untouched data's own event is not a recovery"
         );
+    }
+
+    // Two bursts that one candidate matches (their events clustered into one): the
+    // candidate recovers only the burst it is nearer; the other is missed unless
+    // another candidate matches it.
+    #[test]
+    fn one_candidate_recovers_one_burst() {
+        let header = crate::simulate::test_header(16, 10_000);
+        let plan = DmPlan::uniform(header.freqs_mhz.clone(), 25.0, 64e-6, 0.0, 100.0, 51);
+        let m = Matcher::new(&plan, &header);
+        let mut wide = cand(0.3, 52.0, 20.0);
+        (wide.dm_lo, wide.dm_hi) = (40.0, 60.0);
+        let targets = [target(0.3, 45.0), target(0.3, 51.0)];
+        assert!(targets.iter().all(|t| m.matches(&wide, t)));
+        let got = m.recover(&targets, std::slice::from_ref(&wide), &[]);
+        assert!(got[0].is_none());
+        assert_eq!(got[1].unwrap().snr, 20.0);
+        // A fainter candidate near the first burst recovers it.
+        let found = [wide.clone(), cand(0.3, 45.0, 9.0)];
+        let got = m.recover(&targets, &found, &[]);
+        let snrs: Vec<_> = got.iter().map(|c| c.map(|c| c.snr)).collect();
+        assert_eq!(snrs, [Some(9.0), Some(20.0)]);
     }
 }
