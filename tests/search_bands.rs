@@ -218,3 +218,31 @@ fn a_bright_narrow_band_burst_keeps_its_channels() {
         }
     }
 }
+
+// The other side of sparing short transients: an undispersed pulse 1.5 MHz wide at
+// 1.4 GHz (radar-like interference, far narrower than 1 % of its frequency) still
+// gets its channel masked for the read. Spared like a narrow-band burst, it came
+// through as 30 candidates across DMs 180–1980.
+#[test]
+fn a_narrow_band_interference_pulse_is_masked() {
+    let h = header_band(256, 48_000, 64e-6, 1200.0, 1600.0);
+    let shape = Burst {
+        t_inf_s: 1.0,
+        dm: 0.0,
+        width_s: 0.5e-3,
+        scatter_1ghz_s: 0.0,
+        spectrum: Spectrum::Gaussian {
+            centre_mhz: 1400.7,
+            fwhm_mhz: 1.5,
+        },
+        amplitude: 1.0,
+    };
+    let x = with_expected_snr(&h, &shape, 40.0).unwrap();
+    let mut config = SearchConfig::default();
+    config.plan.dm_max = 2000.0;
+    let mut data = noise(&h, 5);
+    add(&h, &mut data, &x);
+    let r = search_source(source(h.clone(), data), "radar", &config, None).unwrap();
+    assert!(r.candidates.is_empty(), "{:#?}", r.candidates);
+    assert!(r.fraction_masked > 0.0);
+}

@@ -123,18 +123,27 @@ pub(crate) fn byte_power_sums(raw: ArrayView2<'_, u8>, s1: &mut [f64], s2: &mut 
 /// Masks channels whose mean or standard deviation is an outlier; also masks channels
 /// with zero variance (dead). Returns the number newly masked.
 pub fn flag_outliers(stats: &ChannelStats, mask: &mut [bool], threshold: f64) -> usize {
-    let mut flags = outliers(&stats.mean, mask, threshold);
-    for (f, o) in flags.iter_mut().zip(outliers(&stats.std, mask, threshold)) {
-        *f |= o;
-    }
+    let flags = outlier_flags(stats, mask, threshold);
     let mut newly = 0;
-    for ((m, f), &sd) in mask.iter_mut().zip(flags).zip(&stats.std) {
-        if !*m && (f || sd == 0.0) {
+    for (m, f) in mask.iter_mut().zip(flags) {
+        if f {
             *m = true;
             newly += 1;
         }
     }
     newly
+}
+
+/// The unmasked channels [`flag_outliers`] would mask, `true` at each.
+pub fn outlier_flags(stats: &ChannelStats, mask: &[bool], threshold: f64) -> Vec<bool> {
+    let mut flags = outliers(&stats.mean, mask, threshold);
+    for (f, o) in flags.iter_mut().zip(outliers(&stats.std, mask, threshold)) {
+        *f |= o;
+    }
+    for ((f, &m), &sd) in flags.iter_mut().zip(mask).zip(&stats.std) {
+        *f = !m && (*f || sd == 0.0);
+    }
+    flags
 }
 
 /// Half-width in channels of the neighbourhood used to predict a channel.

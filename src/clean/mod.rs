@@ -12,6 +12,7 @@ pub mod dropout;
 pub mod impulse;
 pub mod kurtosis;
 pub mod run_sums;
+pub mod transients;
 pub mod user_mask;
 pub mod zero_dm;
 
@@ -114,26 +115,57 @@ impl CleanConfig {
     }
 }
 
+/// What the channel statistics take from the search beyond its configuration.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Sparing {
+    /// Widest pulse searched, samples: each channel's statistics leave out the runs
+    /// one such pulse can touch ([`run_sums`]).
+    pub widest_pulse: usize,
+    /// For each channel, the channels either side whose transients it must share to
+    /// be spared ([`transients::neighbourhoods`]); 0 spares every short transient.
+    pub neighbourhoods: Vec<usize>,
+}
+
+impl Sparing {
+    /// Pulses up to `widest_pulse` samples, in a band of `freqs_mhz`.
+    pub fn new(freqs_mhz: &[f64], widest_pulse: usize) -> Self {
+        Sparing {
+            widest_pulse,
+            neighbourhoods: transients::neighbourhoods(freqs_mhz),
+        }
+    }
+}
+
 /// Flags channels of a raw block (`[time, channel]`) by their statistics and spectral
 /// kurtosis, repeating until nothing new is flagged or `max_iterations` is reached.
 /// The statistics leave out, in each channel, the runs of `kurtosis_m` samples that
-/// one pulse of `widest_pulse` samples could touch ([`run_sums`]). Returns the number
-/// of channels newly masked.
+/// one pulse of `sparing.widest_pulse` samples could touch ([`run_sums`]); a channel
+/// that stands out only for such a pulse is masked when the pulse is narrow-band
+/// ([`transients`]). Returns the number of channels newly masked.
 pub fn flag_channels<T: Sample>(
     raw: ArrayView2<'_, T>,
     mask: &mut [bool],
     config: &CleanConfig,
-    widest_pulse: usize,
+    sparing: &Sparing,
 ) -> usize {
     let before = mask.iter().filter(|&&m| m).count();
     // One pass over the block serves both tests.
     let runs = run_sums::RunSums::measure(raw, config.kurtosis_m);
-    let stats = runs.trimmed_stats(runs.runs_touched_by(widest_pulse));
+    let plain = runs.trimmed_stats(0);
+    let stats = runs.trimmed_stats(runs.runs_touched_by(sparing.widest_pulse));
     let sk = config
         .kurtosis
         .then(|| kurtosis::ChannelKurtosis::new(&runs));
     for _ in 0..config.max_iterations {
-        let mut changed = channel_stats::flag_outliers(&stats, mask, config.stat_threshold);
+        let threshold = config.stat_threshold;
+        let mut changed = channel_stats::flag_outliers(&stats, mask, threshold);
+        changed += transients::mask_narrow_transients(
+            &plain,
+            &stats,
+            mask,
+            threshold,
+            &sparing.neighbourhoods,
+        );
         if let Some(sk) = &sk {
             changed += sk.flag(
                 mask,

@@ -33,9 +33,8 @@ pub(super) struct ChannelBlock {
     mask: Vec<bool>,
     /// Tells low-DM pulses from impulses before clipping.
     probe: DispersionProbe,
-    /// Widest pulse searched, samples: the channel statistics leave out the runs
-    /// one such pulse could touch ([`clean::run_sums`]).
-    widest_pulse: usize,
+    /// What the channel statistics spare ([`clean::Sparing`]).
+    sparing: clean::Sparing,
 }
 
 /// New rows for [`ChannelBlock::append`], `[time, channel]`: decoded samples, or the
@@ -90,7 +89,10 @@ impl ChannelBlock {
             new_mask: vec![false; n_chan],
             mask: vec![false; n_chan],
             probe: DispersionProbe::none(n_chan),
-            widest_pulse: 1,
+            sparing: clean::Sparing {
+                widest_pulse: 1,
+                neighbourhoods: vec![0; n_chan],
+            },
         }
     }
 
@@ -100,13 +102,10 @@ impl ChannelBlock {
         ChannelBlock { probe, ..self }
     }
 
-    /// The block whose channel statistics spare pulses up to `samples` wide (one
-    /// sample wide without this).
-    pub(super) fn with_widest_pulse(self, samples: usize) -> Self {
-        ChannelBlock {
-            widest_pulse: samples,
-            ..self
-        }
+    /// The block whose channel statistics spare pulses as `sparing` says (without
+    /// this: pulses of one sample, whatever their bandwidth).
+    pub(super) fn with_sparing(self, sparing: clean::Sparing) -> Self {
+        ChannelBlock { sparing, ..self }
     }
 
     /// The block's memory, for [`ChannelBlock::new`].
@@ -242,14 +241,14 @@ impl ChannelBlock {
     ) -> Vec<clean::dropout::Dropout> {
         let dropouts = clean::dropout::dropouts(raw, static_mask);
         if dropouts.is_empty() {
-            clean::flag_channels(raw, &mut self.new_mask, config, self.widest_pulse);
+            clean::flag_channels(raw, &mut self.new_mask, config, &self.sparing);
         } else {
             let untouched = clean::dropout::untouched_rows(&dropouts, raw.nrows());
             clean::flag_channels(
                 raw.select(Axis(0), &untouched).view(),
                 &mut self.new_mask,
                 config,
-                self.widest_pulse,
+                &self.sparing,
             );
         }
         self.transpose_in(raw);

@@ -21,7 +21,7 @@ use super::memory;
 use super::normalise::{NormalisedSeries, SERIES_SIGMA_VALUES, normalise_series};
 use super::trials::{self, TrialCount};
 use crate::candidate::Candidate;
-use crate::clean::{self, impulse::DispersionProbe, user_mask::static_mask};
+use crate::clean::{self, Sparing, impulse::DispersionProbe, user_mask::static_mask};
 use crate::cluster::{Cluster, Detection, Sweep, friends_of_friends, merge_dispersion_tails};
 use crate::dedisperse::{self, DmPlan, Extent, FastDedisperser, Kernel, bf16};
 use crate::error::{Error, Result};
@@ -151,7 +151,7 @@ pub fn search_source_in(
     let buffer = std::mem::take(&mut workspace.channels);
     let mut channels = ChannelBlock::new(buffer, h.n_chan(), g.block_len)
         .with_probe(probe)
-        .with_widest_pulse(g.max_width);
+        .with_sparing(Sparing::new(&h.freqs_mhz, g.max_width));
     std::thread::scope(|scope| -> Result<()> {
         let advance = g.block_len - g.overlap;
         let (reads, recycle) = prefetch(scope, source, g.block_len, advance);
