@@ -210,6 +210,21 @@ impl Catalogue {
         }
     }
 
+    /// Runs `work` as [`Catalogue::write`] does or, for a dry run, in one read
+    /// snapshot that is rolled back when done, so a dry run sees exactly what the
+    /// write would (`work` itself leaves out its changes when it is a dry run).
+    pub(crate) fn write_unless_dry_run<T>(
+        &mut self,
+        dry_run: bool,
+        work: impl Fn(&Connection) -> Result<T>,
+    ) -> Result<T> {
+        if dry_run {
+            let snapshot = self.conn.unchecked_transaction().map_err(|e| self.err(e))?;
+            return work(&snapshot);
+        }
+        self.write(|tx| work(tx))
+    }
+
     /// SQLite's `PRAGMA quick_check` (every page and record well formed; indexes
     /// are not compared with their tables, which `book check` does): reads the whole
     /// file once, changes nothing.
