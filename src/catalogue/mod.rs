@@ -16,6 +16,7 @@
 //!   written by a newer burstbook is refused.
 
 mod bursts;
+mod demote;
 mod exposure;
 mod forget;
 mod from_search;
@@ -31,6 +32,7 @@ pub mod synthetic;
 mod voevent;
 
 pub use bursts::{BurstTiming, CompletenessRecord};
+pub use demote::{DEMOTED, DemoteOptions, Demotion};
 pub use exposure::{
     ExposureImport, ExposureInterval, exposure_hours, merge_intervals, sweep_window,
 };
