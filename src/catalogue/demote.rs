@@ -347,6 +347,10 @@ mod tests {
         assert_eq!(cat.label_history(ids[0]).unwrap(), now);
         assert_eq!(row_counts(&cat), [2, 1, 1, 6, 1, 3, 5, 0]);
         assert_whole(&cat);
+        // The newest burst's id, taken back, is not given again.
+        cat.demote(&[again.burst_id], REAL).unwrap();
+        let next = cat.promote(ids[3], Some("OTHER"), TOL).unwrap();
+        assert_eq!(next.burst_id, again.burst_id + 1);
     }
 
     /// An unknown id anywhere in the list, a missing reason or a failure part-way

@@ -36,11 +36,14 @@ pub fn assert_one_line_failure(out: &Output, needles: &[&str]) {
     }
 }
 
-/// Rows per table of the catalogue at `db`.
+/// Rows per table of the catalogue at `db`, SQLite's own tables left out.
 pub fn table_counts(db: &std::path::Path) -> Vec<(String, i64)> {
     let c = rusqlite::Connection::open(db).unwrap();
     let tables: Vec<String> = c
-        .prepare("SELECT name FROM sqlite_master WHERE type = 'table' ORDER BY name")
+        .prepare(
+            "SELECT name FROM sqlite_master WHERE type = 'table' AND name NOT LIKE 'sqlite_%'
+             ORDER BY name",
+        )
         .unwrap()
         .query_map([], |r| r.get(0))
         .unwrap()
