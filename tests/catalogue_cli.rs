@@ -374,6 +374,162 @@ fn bad_flag_values_and_unknown_ids_are_refused_in_one_line() {
     );
 }
 
+/// A burst taken back leaves its candidate and review history, adds a "demoted"
+/// label saying what it was and why, and stays out of the source's bursts,
+/// summary and promotions by label; by id it is promoted again. A dry run, an
+/// unknown id anywhere in the list and a missing reason change nothing.
+#[test]
+fn a_burst_taken_back_keeps_its_candidate_and_a_trace() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("c.sqlite");
+    book(
+        &db,
+        &[
+            "fill-synthetic",
+            "--source",
+            "FIELD-7",
+            "--observations",
+            "2",
+            "--candidates",
+            "5",
+        ],
+    );
+    book(
+        &db,
+        &["source", "add", "OTHER", "--ra", "10", "--dec", "20"],
+    );
+    book(
+        &db,
+        &[
+            "label",
+            "1",
+            "2",
+            "3",
+            "--label",
+            "burst",
+            "--reviewer",
+            "ana",
+        ],
+    );
+    book(&db, &["promote", "1", "2", "--to", "FIELD-7"]);
+    book(&db, &["promote", "3", "--to", "OTHER"]);
+    book(&db, &["barycentre", "FIELD-7"]);
+    let n_bursts = |source: &str| {
+        let s = json(&book(&db, &["summary", source, "--format", "json"]));
+        s[0]["n_bursts"].as_u64().unwrap()
+    };
+    assert_eq!((n_bursts("FIELD-7"), n_bursts("OTHER")), (2, 1));
+    let burst_1 = json(&book(&db, &["bursts", "--format", "json"]))
+        .into_iter()
+        .find(|b| b["id"] == 1)
+        .unwrap();
+    let counts = cli_common::table_counts(&db);
+    let before = std::fs::read(&db).unwrap();
+
+    let why = [
+        "--comment",
+        "satellite on second look",
+        "--reviewer",
+        "cleo",
+    ];
+    let dry = book(&db, &[&["demote", "1", "--dry-run"][..], &why].concat());
+    let what = format!(
+        "burst 1 of FIELD-7: candidate 1, MJD {:.8}, DM {:.2}, with its barycentric TOA\n",
+        burst_1["mjd_utc"].as_f64().unwrap(),
+        burst_1["dm"].as_f64().unwrap()
+    );
+    assert_eq!(
+        dry,
+        format!(
+            "would demote {what}  would label \"demoted\": candidate 1\n\
+             dry run: nothing was changed\n"
+        )
+    );
+    for (args, needle) in [
+        (
+            &["demote", "2", "99", "1", "98"][..],
+            "has no bursts 99, 98; nothing was demoted",
+        ),
+        (
+            &["demote", "99", "--dry-run"],
+            "has no burst 99; nothing was demoted",
+        ),
+    ] {
+        book_fails(&db, &[args, &why].concat(), &[needle]);
+    }
+    book_fails(
+        &db,
+        &["demote", "1", "--comment", ""],
+        &["a demotion needs a comment saying why"],
+    );
+    assert!(
+        std::fs::read(&db).unwrap() == before,
+        "a refusal or dry run wrote"
+    );
+
+    let done = book(&db, &[&["demote", "1"][..], &why].concat());
+    assert_eq!(
+        done,
+        format!("demoted {what}  labelled \"demoted\": candidate 1\n")
+    );
+    let change: Vec<(String, i64)> = counts
+        .iter()
+        .zip(cli_common::table_counts(&db))
+        .map(|((table, was), (_, now))| (table.clone(), now - was))
+        .filter(|(_, n)| *n != 0)
+        .collect();
+    assert_eq!(
+        change,
+        [("burst".to_string(), -1), ("review_label".to_string(), 1)]
+    );
+    let history = json(&book(&db, &["history", "1", "--format", "json"]));
+    assert_eq!(history.len(), 2);
+    assert_eq!(
+        (
+            &history[0]["label"],
+            &history[1]["label"],
+            &history[1]["reviewer"]
+        ),
+        (&"burst".into(), &"demoted".into(), &"cleo".into())
+    );
+    let trace = history[1]["comment"].as_str().unwrap();
+    assert!(
+        trace.starts_with("was burst 1 of FIELD-7, promoted ")
+            && trace.ends_with(": satellite on second look"),
+        "{trace}"
+    );
+    let demoted = json(&book(
+        &db,
+        &["candidates", "--label-is", "demoted", "--format", "json"],
+    ));
+    assert_eq!(demoted.len(), 1);
+    assert_eq!(
+        (&demoted[0]["id"], &demoted[0]["burst_id"]),
+        (&1.into(), &serde_json::Value::Null)
+    );
+    let ids: Vec<i64> = json(&book(&db, &["bursts", "--format", "json"]))
+        .iter()
+        .map(|b| b["id"].as_i64().unwrap())
+        .collect();
+    assert_eq!(ids.len(), 2);
+    assert!(!ids.contains(&1));
+    assert_eq!((n_bursts("FIELD-7"), n_bursts("OTHER")), (1, 1));
+    assert!(book(&db, &["check"]).contains("ok (2 observations, 2 runs, 10 candidates)"));
+
+    // Promoting by label passes it by; by id it goes to the right source.
+    let by_label = book(&db, &["promote", "--label-is", "burst", "--to", "FIELD-7"]);
+    assert!(!by_label.contains("candidate 1 "), "{by_label}");
+    assert_eq!(n_bursts("FIELD-7"), 1);
+    let again = book(&db, &["promote", "1", "--to", "OTHER"]);
+    assert_eq!(again, "candidate 1 is now burst 4 of OTHER\n");
+    assert_eq!((n_bursts("FIELD-7"), n_bursts("OTHER")), (1, 2));
+    assert_eq!(
+        json(&book(&db, &["history", "1", "--format", "json"])),
+        history
+    );
+    book(&db, &["check"]);
+}
+
 /// Impossible exposure (a threshold or limit not above 0, an MJD far outside any
 /// observing era) used to import and then swamp the summary.
 #[test]

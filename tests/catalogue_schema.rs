@@ -5,8 +5,8 @@ use std::path::Path;
 use std::process::Command;
 
 use burstbook::catalogue::{
-    APPLICATION_ID, AssignTolerance, BurstFilter, CandidateFilter, Catalogue, SCHEMA_VERSION,
-    VoEventOptions, synthetic, voevent_xml,
+    APPLICATION_ID, AssignTolerance, BurstFilter, CandidateFilter, Catalogue, DemoteOptions,
+    SCHEMA_VERSION, VoEventOptions, synthetic, voevent_xml,
 };
 use rusqlite::Connection;
 
@@ -95,6 +95,18 @@ fn upgrading_a_version_one_catalogue_keeps_every_row() {
     let s = cat.summary("OLD-1", Some(8.0), 0.95).unwrap();
     assert_eq!(s.n_bursts, 1);
     assert!((s.exposure_hours - 0.5).abs() < 1e-4);
+    // A burst taken back keeps its id to itself (version 5): the next one is 2.
+    let how = DemoteOptions {
+        reviewer: "tester",
+        comment: "after upgrade",
+        dry_run: false,
+    };
+    cat.demote(&[1], how).unwrap();
+    let tol = AssignTolerance {
+        radius_deg: 1.0,
+        dm: 1.0,
+    };
+    assert_eq!(cat.promote(2, Some("OLD-1"), tol).unwrap().burst_id, 2);
     drop(cat);
     // Opening again changes nothing.
     let once = dump(&db);

@@ -2,7 +2,7 @@
 //! killed part-way through its files and then run again.
 
 mod cli_common;
-use cli_common::assert_success;
+use cli_common::{assert_success, table_counts};
 
 use std::io::{BufRead, BufReader};
 use std::path::{Path, PathBuf};
@@ -302,7 +302,8 @@ fn one_recording_under_two_headers_is_one_observation() {
 /// The same recording searched with two configurations holds its burst as a
 /// candidate of each run; promoting every astrophysical candidate makes one burst of
 /// it, not two (the second run averages pairs of samples, so it measures the event
-/// with another width and time).
+/// with another width and time). Taking that burst back takes the event back: both
+/// finds are labelled, and either can be promoted again.
 #[test]
 fn a_burst_found_by_two_runs_is_promoted_once() {
     let dir = tempfile::tempdir().unwrap();
@@ -351,27 +352,42 @@ fn a_burst_found_by_two_runs_is_promoted_once() {
         check.contains("note: bursts 1 and 2 are one event found by two runs"),
         "{check}"
     );
-}
+    let found_by: Vec<String> = book(&["bursts", "--format", "csv"])
+        .lines()
+        .skip(1)
+        .map(|l| l.split(',').nth(1).unwrap().to_string())
+        .collect();
 
-/// Rows per table of the catalogue at `db`.
-fn table_counts(db: &Path) -> Vec<(String, i64)> {
-    let c = Connection::open(db).unwrap();
-    let tables: Vec<String> = c
-        .prepare("SELECT name FROM sqlite_master WHERE type = 'table' ORDER BY name")
-        .unwrap()
-        .query_map([], |r| r.get(0))
-        .unwrap()
-        .collect::<Result<_, _>>()
-        .unwrap();
-    tables
-        .into_iter()
-        .map(|t| {
-            let n = c
-                .query_row(&format!("SELECT count(*) FROM {t}"), [], |r| r.get(0))
-                .unwrap();
-            (t, n)
-        })
-        .collect()
+    // The twin taken back alone: its pair is a burst, so only its own find is
+    // labelled, and the note is gone.
+    let text = book(&["demote", "2", "--comment", "promoted twice"]);
+    assert!(
+        text.ends_with(&format!(
+            "  labelled \"demoted\": candidate {}\n",
+            found_by[1]
+        )),
+        "{text}"
+    );
+    assert!(!book(&["check"]).contains("note:"));
+    // The event taken back: the other run's find is labelled with it.
+    let text = book(&["demote", "1", "--comment", "interference after all"]);
+    assert!(
+        text.ends_with(&format!(
+            "  labelled \"demoted\": candidate {} and {} (its event, found by another run)\n",
+            found_by[0], found_by[1]
+        )),
+        "{text}"
+    );
+    assert_eq!(book(&["bursts", "--format", "csv"]).lines().count(), 1);
+    let history = book(&["history", &found_by[1], "--format", "csv"]);
+    assert_eq!(history.lines().count(), 3, "{history}");
+    assert!(history.contains("the event of burst 1 of Quillwort Test Field"));
+    // Either find can be promoted again, once.
+    let text = book(&["promote", &found_by[1], "--to", "Quillwort Test Field"]);
+    assert!(text.contains("is now burst"), "{text}");
+    let text = book(&["promote", &found_by[0], "--to", "Quillwort Test Field"]);
+    assert!(text.contains("not promoted again"), "{text}");
+    assert!(!book(&["check"]).contains("note:"));
 }
 
 /// The candidates CSV rows of observation `id` (`observation_id` is its third column).

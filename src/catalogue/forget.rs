@@ -124,15 +124,7 @@ impl Catalogue {
                 rows(conn, how.dry_run, "source", ITS_OWN_SOURCE, source).map_err(sql)? > 0;
             Ok(gone)
         };
-        if how.dry_run {
-            // One snapshot for every count; rolled back when dropped.
-            let snapshot = self
-                .conn()
-                .unchecked_transaction()
-                .map_err(|e| self.err(e))?;
-            return forget(&snapshot);
-        }
-        self.write(|tx| forget(tx))
+        self.write_unless_dry_run(how.dry_run, forget)
     }
 }
 
@@ -223,22 +215,13 @@ fn refusal(id: i64, bursts: &[SourceBursts]) -> String {
 mod tests {
     use super::*;
     use crate::catalogue::synthetic::{
-        candidates, fluence_completeness, observation, run, searched_twice,
+        assert_whole, candidates, fluence_completeness, observation, row_counts, run,
+        searched_twice,
     };
     use crate::catalogue::{
         AssignTolerance, BurstFilter, CandidateFilter, RecordOutcome, SourceEdit,
     };
 
-    const TABLES: [&str; 8] = [
-        "source",
-        "observation",
-        "search_run",
-        "candidate",
-        "exposure",
-        "burst",
-        "review_label",
-        "injection_completeness",
-    ];
     const TOL: AssignTolerance = AssignTolerance {
         radius_deg: 0.5,
         dm: 5.0,
@@ -251,29 +234,6 @@ mod tests {
         with_bursts: false,
         dry_run: true,
     };
-
-    /// Rows per table, in [`TABLES`] order.
-    fn counts(cat: &Catalogue) -> Vec<i64> {
-        TABLES
-            .iter()
-            .map(|t| {
-                let sql = format!("SELECT count(*) FROM {t}");
-                cat.conn().query_row(&sql, [], |r| r.get(0)).unwrap()
-            })
-            .collect()
-    }
-
-    /// Sound, every run whole, and no row pointing at a missing one.
-    fn assert_whole(cat: &Catalogue) {
-        cat.verify().unwrap();
-        let dangling: i64 = cat
-            .conn()
-            .query_row("SELECT count(*) FROM pragma_foreign_key_check", [], |r| {
-                r.get(0)
-            })
-            .unwrap();
-        assert_eq!(dangling, 0);
-    }
 
     fn ids_of(cat: &Catalogue, source: &str) -> Vec<i64> {
         let only = CandidateFilter {
@@ -341,12 +301,12 @@ mod tests {
     fn forgetting_removes_the_observations_rows_and_nothing_else() {
         let dir = tempfile::tempdir().unwrap();
         let mut cat = two_observations(dir.path());
-        let before = counts(&cat);
+        let before = row_counts(&cat);
         assert_eq!(before, [2, 2, 3, 12, 4, 1, 5, 1]);
         let kept = field_9(&cat);
 
         let counted = cat.forget_observation(1, DRY).unwrap();
-        assert_eq!(counts(&cat), before, "a dry run changed something");
+        assert_eq!(row_counts(&cat), before, "a dry run changed something");
         let gone = cat.forget_observation(1, REAL).unwrap();
         assert_eq!(gone, counted, "the dry run counts what goes");
         let wrong = observation("WRONG", 1);
@@ -367,7 +327,7 @@ mod tests {
                 source_removed: true,
             }
         );
-        assert_eq!(counts(&cat), [1, 1, 1, 4, 2, 1, 1, 0]);
+        assert_eq!(row_counts(&cat), [1, 1, 1, 4, 2, 1, 1, 0]);
         assert_eq!(field_9(&cat), kept);
         assert_whole(&cat);
         // Gone is gone: a second time it is unknown.
@@ -384,7 +344,7 @@ mod tests {
     fn a_forget_that_fails_part_way_removes_nothing() {
         let dir = tempfile::tempdir().unwrap();
         let mut cat = two_observations(dir.path());
-        let before = counts(&cat);
+        let before = row_counts(&cat);
         cat.conn()
             .execute_batch(
                 "CREATE TRIGGER keep_runs BEFORE DELETE ON search_run
@@ -393,7 +353,7 @@ mod tests {
             .unwrap();
         let err = cat.forget_observation(1, REAL).unwrap_err().to_string();
         assert!(err.contains("runs are kept"), "{err}");
-        assert_eq!(counts(&cat), before);
+        assert_eq!(row_counts(&cat), before);
         for unknown in [0, 3, -1] {
             let err = cat.forget_observation(unknown, REAL).unwrap_err();
             assert!(
@@ -401,7 +361,7 @@ mod tests {
                     .contains(&format!("has no observation {unknown};"))
             );
         }
-        assert_eq!(counts(&cat), before);
+        assert_eq!(row_counts(&cat), before);
     }
 
     /// Bursts are the fruit of a review: forgetting their observation is refused
@@ -432,7 +392,7 @@ mod tests {
             TOL,
         );
         let kept = kept.unwrap().burst_id;
-        let before = counts(&cat);
+        let before = row_counts(&cat);
         assert_eq!(before, [2, 2, 3, 7, 3, 4, 0, 0]);
 
         for how in [REAL, DRY] {
@@ -445,7 +405,7 @@ mod tests {
                 ),
                 "{err}"
             );
-            assert_eq!(counts(&cat), before);
+            assert_eq!(row_counts(&cat), before);
         }
         let with_bursts = ForgetOptions {
             with_bursts: true,
@@ -453,7 +413,7 @@ mod tests {
         };
         let counted = cat.forget_observation(1, with_bursts).unwrap();
         assert_eq!((counted.bursts, counted.toas), (3, 1));
-        assert_eq!(counts(&cat), before);
+        assert_eq!(row_counts(&cat), before);
         let gone = cat
             .forget_observation(
                 1,
@@ -473,7 +433,7 @@ mod tests {
             .map(|b| b.id)
             .collect();
         assert_eq!(left, [kept]);
-        assert_eq!(counts(&cat), [2, 1, 1, 2, 1, 1, 0, 0]);
+        assert_eq!(row_counts(&cat), [2, 1, 1, 2, 1, 1, 0, 0]);
         assert_whole(&cat);
     }
 

@@ -16,6 +16,7 @@
 //!   written by a newer burstbook is refused.
 
 mod bursts;
+mod demote;
 mod exposure;
 mod forget;
 mod from_search;
@@ -31,6 +32,7 @@ pub mod synthetic;
 mod voevent;
 
 pub use bursts::{BurstTiming, CompletenessRecord};
+pub use demote::{DEMOTED, DemoteOptions, Demotion};
 pub use exposure::{
     ExposureImport, ExposureInterval, exposure_hours, merge_intervals, sweep_window,
 };
@@ -208,6 +210,21 @@ impl Catalogue {
                 other => return other,
             }
         }
+    }
+
+    /// Runs `work` as [`Catalogue::write`] does or, for a dry run, in one read
+    /// snapshot that is rolled back when done, so a dry run sees exactly what the
+    /// write would (`work` itself leaves out its changes when it is a dry run).
+    pub(crate) fn write_unless_dry_run<T>(
+        &mut self,
+        dry_run: bool,
+        work: impl Fn(&Connection) -> Result<T>,
+    ) -> Result<T> {
+        if dry_run {
+            let snapshot = self.conn.unchecked_transaction().map_err(|e| self.err(e))?;
+            return work(&snapshot);
+        }
+        self.write(|tx| work(tx))
     }
 
     /// SQLite's `PRAGMA quick_check` (every page and record well formed; indexes

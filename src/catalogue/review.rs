@@ -70,18 +70,17 @@ impl Catalogue {
         let path = self.path().to_path_buf();
         let now = super::now_utc();
         self.write(|tx| {
-            let mut insert = tx
-                .prepare_cached(
-                    "INSERT INTO review_label (candidate_id, label, reviewer, labelled_utc, comment)
-                     VALUES (?1, ?2, ?3, ?4, ?5)",
-                )
-                .map_err(|e| super::sql_error(&path, e))?;
             let mut done = std::collections::HashSet::new();
             for &id in ids.iter().filter(|&&id| done.insert(id)) {
                 require_candidate(tx, &path, id, "; nothing labelled")?;
-                insert
-                    .execute(params![id, label, reviewer, now, comment])
-                    .map_err(|e| super::sql_error(&path, e))?;
+                let entry = Label {
+                    candidate_id: id,
+                    label: label.into(),
+                    reviewer: reviewer.into(),
+                    labelled_utc: now.clone(),
+                    comment: comment.into(),
+                };
+                append_label(tx, &entry).map_err(|e| super::sql_error(&path, e))?;
             }
             Ok(done.len())
         })
@@ -166,9 +165,12 @@ impl Catalogue {
         self.write(|tx| {
             ids.iter()
                 .zip(&chosen)
-                .map(|(&id, src)| promote_in(tx, id, src.as_ref()))
-                .collect::<rusqlite::Result<Vec<_>>>()
-                .map_err(|e| super::sql_error(&path, e))
+                .map(|(&id, src)| {
+                    promote_in(tx, id, src.as_ref())
+                        .map_err(|e| super::sql_error(&path, e))?
+                        .ok_or_else(|| catalogue_error(&path, changed_meanwhile(id)))
+                })
+                .collect()
         })
     }
 
@@ -213,6 +215,31 @@ impl Catalogue {
             )),
         }
     }
+}
+
+/// Appends `entry` to its candidate's review history (the candidate must exist).
+pub(super) fn append_label(conn: &Connection, entry: &Label) -> rusqlite::Result<()> {
+    conn.prepare_cached(
+        "INSERT INTO review_label (candidate_id, label, reviewer, labelled_utc, comment)
+         VALUES (?1, ?2, ?3, ?4, ?5)",
+    )?
+    .execute(params![
+        entry.candidate_id,
+        entry.label,
+        entry.reviewer,
+        entry.labelled_utc,
+        entry.comment
+    ])
+    .map(drop)
+}
+
+/// Why candidate `id` could not be promoted after all: another process demoted its
+/// burst or forgot it between choosing its source and writing.
+fn changed_meanwhile(id: i64) -> String {
+    format!(
+        "candidate {id} changed while being promoted (its burst taken back, or its \
+         observation forgotten, by another process); nothing promoted, promote again"
+    )
 }
 
 /// Refuses an `id` that is not a candidate of the catalogue at `path`; `then` ends
@@ -270,38 +297,36 @@ fn held_burst(conn: &Connection, id: i64) -> rusqlite::Result<Option<HeldBurst>>
 }
 
 /// Promotes `id` to `source`; a candidate already a burst, itself or as the same
-/// event found by another run, is left as it is (`source` is `None` only for those;
-/// a burst is deleted only with its observation, and so with the candidate).
+/// event found by another run, is left as it is. `None` when that cannot be done
+/// because the candidate changed since `source` was chosen, before the write: its
+/// burst taken back (`source` is `None` only for a burst) or the candidate forgotten.
 fn promote_in(
     tx: &Transaction<'_>,
     id: i64,
     source: Option<&SourceRecord>,
-) -> rusqlite::Result<Promotion> {
+) -> rusqlite::Result<Option<Promotion>> {
     if let Some(held) = held_burst(tx, id)? {
-        return Ok(Promotion {
+        return Ok(Some(Promotion {
             burst_id: held.burst_id,
             source: held.source,
             new: false,
             same_event_as: held.same_event_as,
-        });
+        }));
     }
     let Some(source) = source else {
-        return Err(rusqlite::Error::QueryReturnedNoRows);
+        return Ok(None);
     };
     let n = tx.execute(
         "INSERT INTO burst (candidate_id, source_id, mjd_utc, snr, width_ms, dm, fluence_jy_ms, promoted_utc)
          SELECT id, ?2, mjd_inf, snr, width_ms, dm, fluence_jy_ms, ?3 FROM candidate WHERE id = ?1",
         params![id, source.id, super::now_utc()],
     )?;
-    if n == 0 {
-        return Err(rusqlite::Error::QueryReturnedNoRows);
-    }
-    Ok(Promotion {
+    Ok((n > 0).then(|| Promotion {
         burst_id: tx.last_insert_rowid(),
         source: source.name.clone(),
         new: true,
         same_event_as: None,
-    })
+    }))
 }
 
 #[cfg(test)]

@@ -20,6 +20,13 @@ pub(super) const SAME_EVENT: &str = "c.dm_lo <= x.dm_hi AND x.dm_lo <= c.dm_hi
     AND abs(c.t_inf_s - x.t_inf_s) <= (c.width_ms + x.width_ms) / 2000.0
         + :k * abs(c.dm - x.dm) / (o.freq_lo_mhz * o.freq_lo_mhz)";
 
+/// From candidate `c` (joined already) to the finds `x` of the other search runs
+/// of its observation `o`, for [`SAME_EVENT`] to pair.
+const FINDS_OF_OTHER_RUNS: &str = "JOIN search_run rc ON rc.id = c.run_id
+    JOIN observation o ON o.id = rc.observation_id
+    JOIN search_run rx ON rx.observation_id = o.id AND rx.id <> rc.id
+    JOIN candidate x ON x.run_id = rx.id";
+
 /// Two bursts that are one event (see the module docs).
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub struct TwinBursts {
@@ -31,8 +38,8 @@ pub struct TwinBursts {
 
 impl Catalogue {
     /// Pairs of bursts that are one event found by two search runs of an
-    /// observation: promoted twice by a burstbook that did not yet check (a burst
-    /// is deleted only with its observation, so they stay until someone decides).
+    /// observation: promoted twice by a burstbook that did not yet check (they stay
+    /// until someone takes one back, [`Catalogue::demote`]).
     ///
     /// # Errors
     /// An SQLite failure.
@@ -45,10 +52,7 @@ fn twins(conn: &Connection) -> rusqlite::Result<Vec<TwinBursts>> {
     let sql = format!(
         "SELECT bc.id, bx.id, c.id, x.id FROM burst bc
          JOIN candidate c ON c.id = bc.candidate_id
-         JOIN search_run rc ON rc.id = c.run_id
-         JOIN observation o ON o.id = rc.observation_id
-         JOIN search_run rx ON rx.observation_id = o.id AND rx.id <> rc.id
-         JOIN candidate x ON x.run_id = rx.id
+         {FINDS_OF_OTHER_RUNS}
          JOIN burst bx ON bx.candidate_id = x.id AND bx.id > bc.id
          WHERE {SAME_EVENT}
          ORDER BY bc.id, bx.id"
@@ -60,6 +64,21 @@ fn twins(conn: &Connection) -> rusqlite::Result<Vec<TwinBursts>> {
             candidate_ids: (r.get(2)?, r.get(3)?),
         })
     })?;
+    rows.collect()
+}
+
+/// The candidates of other search runs of candidate `id`'s observation that are
+/// its event, by id.
+pub(super) fn same_event_as(conn: &Connection, id: i64) -> rusqlite::Result<Vec<i64>> {
+    let sql = format!(
+        "SELECT x.id FROM candidate c {FINDS_OF_OTHER_RUNS}
+         WHERE c.id = :id AND {SAME_EVENT} ORDER BY x.id"
+    );
+    let mut stmt = conn.prepare_cached(&sql)?;
+    let rows = stmt.query_map(
+        named_params! {":id": id, ":k": DISPERSION_CONSTANT_S_MHZ2},
+        |r| r.get(0),
+    )?;
     rows.collect()
 }
 

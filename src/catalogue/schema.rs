@@ -15,6 +15,7 @@ pub(crate) const MIGRATIONS: &[&str] = &[
     include_str!("../../migrations/0002_review_and_completeness.sql"),
     include_str!("../../migrations/0003_run_statistics.sql"),
     include_str!("../../migrations/0004_recording_identity.sql"),
+    include_str!("../../migrations/0005_burst_ids_never_reused.sql"),
 ];
 
 /// The schema version this burstbook writes.
@@ -90,8 +91,8 @@ fn columns(conn: &Connection) -> rusqlite::Result<Vec<(String, String)>> {
 
 /// Refuses a catalogue lacking a table or column that its recorded schema `version`
 /// has: the expected ones come from the migrations up to `version`, applied to an
-/// empty in-memory database. Migrations only ever add, so a catalogue that another
-/// process upgrades meanwhile still has them all.
+/// empty in-memory database. Migrations only ever add (a table rebuilt keeps its
+/// columns), so a catalogue that another process upgrades meanwhile still has them all.
 fn check_tables(cat: &Catalogue, version: i64) -> Result<()> {
     let reference = Connection::open_in_memory().map_err(|e| cat.err(e))?;
     for sql in MIGRATIONS.iter().take(version.max(0) as usize) {

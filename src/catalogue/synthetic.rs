@@ -92,6 +92,45 @@ pub fn searched_twice(dir: &std::path::Path) -> (super::Catalogue, Vec<i64>) {
     (cat, ids)
 }
 
+/// The catalogue's tables, in the order of [`row_counts`].
+#[cfg(test)]
+pub const TABLES: [&str; 8] = [
+    "source",
+    "observation",
+    "search_run",
+    "candidate",
+    "exposure",
+    "burst",
+    "review_label",
+    "injection_completeness",
+];
+
+/// Rows per table, in [`TABLES`] order.
+#[cfg(test)]
+pub fn row_counts(cat: &super::Catalogue) -> Vec<i64> {
+    TABLES
+        .iter()
+        .map(|t| {
+            let sql = format!("SELECT count(*) FROM {t}");
+            cat.conn().query_row(&sql, [], |r| r.get(0)).unwrap()
+        })
+        .collect()
+}
+
+/// Asserts the catalogue sound, every run whole, and no row pointing at a
+/// missing one.
+#[cfg(test)]
+pub fn assert_whole(cat: &super::Catalogue) {
+    cat.verify().unwrap();
+    let dangling: i64 = cat
+        .conn()
+        .query_row("SELECT count(*) FROM pragma_foreign_key_check", [], |r| {
+            r.get(0)
+        })
+        .unwrap();
+    assert_eq!(dangling, 0);
+}
+
 /// `n` seeded candidates inside `obs`, DMs in 10..1000 pc cm⁻³, S/N 6..50.
 pub fn candidates(obs: &ObservationRecord, n: usize, seed: u64) -> Vec<Candidate> {
     let mut rng = ChaCha8Rng::seed_from_u64(seed);

@@ -1,4 +1,5 @@
-//! Helpers shared by the end-to-end tests: run the real binary and check how it fails.
+//! Helpers shared by the end-to-end tests: run the real binary, check how it fails,
+//! count what a catalogue holds.
 // Each test crate includes this module and uses its own subset of it.
 #![allow(dead_code)]
 
@@ -33,4 +34,28 @@ pub fn assert_one_line_failure(out: &Output, needles: &[&str]) {
     for needle in needles {
         assert!(err.contains(needle), "expected {needle:?} in {err}");
     }
+}
+
+/// Rows per table of the catalogue at `db`, SQLite's own tables left out.
+pub fn table_counts(db: &std::path::Path) -> Vec<(String, i64)> {
+    let c = rusqlite::Connection::open(db).unwrap();
+    let tables: Vec<String> = c
+        .prepare(
+            "SELECT name FROM sqlite_master WHERE type = 'table' AND name NOT LIKE 'sqlite_%'
+             ORDER BY name",
+        )
+        .unwrap()
+        .query_map([], |r| r.get(0))
+        .unwrap()
+        .collect::<Result<_, _>>()
+        .unwrap();
+    tables
+        .into_iter()
+        .map(|t| {
+            let n = c
+                .query_row(&format!("SELECT count(*) FROM {t}"), [], |r| r.get(0))
+                .unwrap();
+            (t, n)
+        })
+        .collect()
 }

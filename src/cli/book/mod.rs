@@ -1,6 +1,7 @@
 //! `burstbook book ...`: the burst catalogue from the command line.
 
 mod barycentre;
+mod demote;
 mod exposure;
 pub mod flags;
 mod forget;
@@ -25,6 +26,7 @@ Examples:
   burstbook book candidates --source FIELD-7 --dm-min 300 --dm-max 400 --snr-min 8
   burstbook book label 12 15 --label astrophysical --comment 'clear sweep'
   burstbook book promote --label-is astrophysical
+  burstbook book demote 4 --comment 'satellite on second look'
   burstbook book summary FIELD-7 --snr-min 8
   burstbook book voevent 3 --out burst-3.xml
   burstbook book forget 3 --dry-run")]
@@ -51,6 +53,8 @@ enum Command {
     History(review::HistoryArgs),
     /// Promote candidates to bursts of a source (by hand or by position and DM).
     Promote(review::PromoteArgs),
+    /// Take bursts promoted by mistake back, keeping their candidates and a trace.
+    Demote(demote::DemoteArgs),
     /// Add, update or list sources.
     #[command(subcommand)]
     Source(sources::SourceCommand),
@@ -95,6 +99,7 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         Command::Label(a) => review::label(&mut open()?, a),
         Command::History(a) => review::history(&open()?, a),
         Command::Promote(a) => review::promote(&mut open()?, a),
+        Command::Demote(a) => demote::run(&mut open()?, a),
         Command::Source(c) => sources::run(&mut open()?, c),
         Command::Exposure(c) => exposure::run(&mut open()?, c),
         Command::Summary(a) => summary::run(&open()?, a),
@@ -115,7 +120,7 @@ pub fn run(args: Args) -> anyhow::Result<()> {
                 say!(
                     "note: bursts {} and {} are one event found by two runs of one observation \
                      (candidates {} and {}); promoted twice by an older burstbook, they count twice \
-                     in rates and periodicity tests",
+                     in rates and periodicity tests (`book demote` takes one back)",
                     t.burst_ids.0,
                     t.burst_ids.1,
                     t.candidate_ids.0,

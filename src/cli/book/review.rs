@@ -22,6 +22,13 @@ fn select(cat: &Catalogue, ids: &[i64], filter: &FilterArgs) -> anyhow::Result<V
         .collect())
 }
 
+/// The reviewer given, else `$USER`, else `unknown`.
+pub(super) fn reviewer(given: Option<String>) -> String {
+    given
+        .or_else(|| std::env::var("USER").ok())
+        .unwrap_or_else(|| "unknown".into())
+}
+
 /// Arguments of `book label`.
 #[derive(clap::Args, Debug)]
 #[command(after_help = "\
@@ -46,11 +53,7 @@ pub struct LabelArgs {
 
 pub fn label(cat: &mut Catalogue, a: LabelArgs) -> anyhow::Result<()> {
     let ids = select(cat, &a.ids, &a.filter)?;
-    let reviewer = a
-        .reviewer
-        .or_else(|| std::env::var("USER").ok())
-        .unwrap_or_else(|| "unknown".into());
-    let n = cat.label(&ids, &a.label, &reviewer, &a.comment)?;
+    let n = cat.label(&ids, &a.label, &reviewer(a.reviewer), &a.comment)?;
     say!("labelled {n} candidate(s) {:?}", a.label)?;
     Ok(())
 }
