@@ -187,7 +187,7 @@ fn refusal(unknown: &[i64]) -> String {
 mod tests {
     use super::*;
     use crate::catalogue::synthetic::{
-        assert_whole, candidates, observation, row_counts, run, searched_twice,
+        assert_whole, candidate_ids, candidates, observation, row_counts, run, searched_twice,
     };
     use crate::catalogue::{AssignTolerance, BurstFilter, CandidateFilter, SourceEdit};
 
@@ -261,14 +261,7 @@ mod tests {
             label: Some(label.into()),
             ..Default::default()
         };
-        let mut ids: Vec<i64> = cat
-            .candidates(&only)
-            .unwrap()
-            .iter()
-            .map(|r| r.id)
-            .collect();
-        ids.sort();
-        ids
+        candidate_ids(cat, &only)
     }
 
     fn n_bursts(cat: &Catalogue, source: &str) -> u64 {

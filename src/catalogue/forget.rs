@@ -215,8 +215,8 @@ fn refusal(id: i64, bursts: &[SourceBursts]) -> String {
 mod tests {
     use super::*;
     use crate::catalogue::synthetic::{
-        assert_whole, candidates, fluence_completeness, observation, row_counts, run,
-        searched_twice,
+        assert_whole, candidate_ids, candidates, fluence_completeness, observation, row_counts,
+        run, searched_twice,
     };
     use crate::catalogue::{
         AssignTolerance, BurstFilter, CandidateFilter, RecordOutcome, SourceEdit,
@@ -240,14 +240,7 @@ mod tests {
             source: Some(source.into()),
             ..Default::default()
         };
-        let mut ids: Vec<i64> = cat
-            .candidates(&only)
-            .unwrap()
-            .iter()
-            .map(|r| r.id)
-            .collect();
-        ids.sort();
-        ids
+        candidate_ids(cat, &only)
     }
 
     /// Observation 1 ("WRONG", a mistyped source) searched twice, labelled and

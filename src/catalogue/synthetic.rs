@@ -92,6 +92,19 @@ pub fn searched_twice(dir: &std::path::Path) -> (super::Catalogue, Vec<i64>) {
     (cat, ids)
 }
 
+/// The ids of the candidates `filter` selects, ascending.
+#[cfg(test)]
+pub fn candidate_ids(cat: &super::Catalogue, filter: &super::CandidateFilter) -> Vec<i64> {
+    let mut ids: Vec<i64> = cat
+        .candidates(filter)
+        .unwrap()
+        .iter()
+        .map(|r| r.id)
+        .collect();
+    ids.sort();
+    ids
+}
+
 /// The catalogue's tables, in the order of [`row_counts`].
 #[cfg(test)]
 pub const TABLES: [&str; 8] = [
