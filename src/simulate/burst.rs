@@ -212,13 +212,14 @@ impl ChannelModel {
     /// `first_sample ..` into `out[i * stride]`, for `out.len() / stride` samples
     /// (rounded up). Each sample gets the mean of the signal over its duration.
     ///
-    /// Sample i gets Σ_k [F(e_{i+1} − a_k) − F(e_i − a_k)] for sample edges e and
-    /// sub-frequency arrivals a_k. Once e_i is in every sub-frequency's exponential
-    /// tail, where 1 − F(x) = R(x) = exp(σ²/2τ² − x/τ), that is
-    /// (1 − e^{−T/τ})·Σ_k R(e_i − a_k): the previous sample's value times e^{−T/τ}.
-    /// So the tail, many scattering times long, costs one multiply per sample
-    /// instead of an erfc and an exp per sample and sub-frequency; only the samples
-    /// before it are summed edge by edge.
+    /// Sub-frequency k, arriving at a_k, gives sample i F(e_{i+1} − a_k) − F(e_i − a_k)
+    /// for sample edges e. Once e_i is in its exponential tail, where 1 − F(x) =
+    /// R(x) = exp(σ²/2τ² − x/τ), that is (1 − e^{−T/τ})·R(e_i − a_k): the previous
+    /// sample's value times e^{−T/τ}. So each sub-frequency is differenced edge by
+    /// edge only up to its tail, where it leaves R at that sample, and one pass
+    /// over the samples carries all the tails on with a multiply each: the tail,
+    /// many scattering times long, no longer costs an erfc and an exp per sample and
+    /// sub-frequency, nor does the rest of the sweep after a sub-frequency's pulse.
     pub(crate) fn add_into(
         &self,
         tsamp_s: f64,
@@ -232,17 +233,23 @@ impl ChannelModel {
         }
         let n = out.len().div_ceil(stride);
         let mut acc = vec![0.0f64; n];
+        let tail_start = self.shape.exp_tail_start_s();
+        // Remainders R left by the sub-frequencies whose tails start at each sample.
+        let mut tails = vec![0.0f64; if tail_start.is_some() { n } else { 0 }];
         let edge_s = |i: usize| (first_sample + i as i64) as f64 * tsamp_s;
         let index = |sample: i64| (sample - first_sample).clamp(0, n as i64) as usize;
-        // The first sample whose leading edge is in every sub-frequency's tail.
-        let tail_first = self.shape.exp_tail_start_s().map_or(n, |x| {
-            index(((self.arrival_range_s().1 + x) / tsamp_s).ceil() as i64)
-        });
         let (lo, hi) = self.shape.support_s();
         for &a in &self.arrivals_s {
             let i0 = index(((a + lo) / tsamp_s).floor() as i64);
             // Past its support this sub-frequency adds (almost exactly) nothing.
-            let i1 = index(((a + hi) / tsamp_s).ceil() as i64 + 1).min(tail_first);
+            let mut i1 = index(((a + hi) / tsamp_s).ceil() as i64 + 1);
+            if let Some(x) = tail_start {
+                let j = index(((a + x) / tsamp_s).ceil() as i64);
+                if j < i1 {
+                    tails[j] += self.shape.tail_remainder(edge_s(j) - a);
+                    i1 = j;
+                }
+            }
             let mut prev = self.shape.cdf(edge_s(i0) - a);
             for (i, v) in acc.iter_mut().enumerate().take(i1).skip(i0) {
                 let next = self.shape.cdf(edge_s(i + 1) - a);
@@ -250,19 +257,13 @@ impl ChannelModel {
                 prev = next;
             }
         }
-        if tail_first < n {
-            let tau = self.shape.tau_s;
-            let start = edge_s(tail_first);
-            let remainder: f64 = self
-                .arrivals_s
-                .iter()
-                .map(|&a| self.shape.tail_remainder(start - a))
-                .sum();
-            let ratio = (-tsamp_s / tau).exp();
-            let mut level = -(-tsamp_s / tau).exp_m1() * remainder;
-            for v in &mut acc[tail_first..] {
-                *v += level;
-                level *= ratio;
+        if !tails.is_empty() {
+            let ratio = (-tsamp_s / self.shape.tau_s).exp();
+            let loss = -(-tsamp_s / self.shape.tau_s).exp_m1();
+            let mut remainder = 0.0;
+            for (v, &r) in acc.iter_mut().zip(&tails) {
+                remainder = remainder * ratio + r;
+                *v += loss * remainder;
             }
         }
         let w = self.weight * scale;

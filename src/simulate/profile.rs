@@ -87,11 +87,15 @@ impl Emg {
     /// function is a pure exponential, F(x) = 1 − [`Emg::tail_remainder`], to double
     /// precision; `None` without scattering.
     ///
-    /// From x = 8σ + σ²/τ on, both Φ(x/σ) and Φ(x/σ − σ/τ) of the Grushka (1972)
-    /// form differ from 1 by less than Φ(−8) ≈ 6e-16.
+    /// In the Grushka (1972) form 1 − F(x) = Q(x/σ) + R(x)·Φ(u), with Q = 1 − Φ,
+    /// u = x/σ − σ/τ and R(x) = exp(−σ²/2τ² − uσ/τ) once x = σ(u + σ/τ) is
+    /// substituted. So R(x) is off by Q(x/σ) − R(x)·Q(u), and for u ≥ 0 the normal
+    /// tail bound Q(u) ≤ ½·exp(−u²/2) (common practice) puts both terms under
+    /// ½·exp(−x²/2σ²). From x = max(9σ, σ²/τ) on (u ≥ 0 and x ≥ 9σ) that is
+    /// < 3e-18.
     pub fn exp_tail_start_s(&self) -> Option<f64> {
         let (s, t) = (self.sigma_s, self.tau_s);
-        (t > 0.0).then(|| 8.0 * s + s * s / t)
+        (t > 0.0).then(|| (9.0 * s).max(s * s / t))
     }
 
     /// 1 − F(x) = exp(σ²/2τ² − x/τ), the area still to come at `x_s` seconds after
@@ -207,7 +211,14 @@ mod tests {
     // with or without a Gaussian core, however wide the Gaussian against τ.
     #[test]
     fn exponential_tail_matches_cdf() {
-        for &(s, t) in &[(1.0, 1.0), (1.0, 0.05), (0.2, 3.0), (0.0, 2.0), (3.0, 0.1)] {
+        for &(s, t) in &[
+            (1.0, 1.0),
+            (1.0, 0.05),
+            (1.0, 0.3),
+            (0.2, 3.0),
+            (0.0, 2.0),
+            (3.0, 0.1),
+        ] {
             let p = Emg {
                 sigma_s: s,
                 tau_s: t,
