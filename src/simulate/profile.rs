@@ -89,10 +89,10 @@ impl Emg {
     ///
     /// In the Grushka (1972) form 1 − F(x) = Q(x/σ) + R(x)·Φ(u), with Q = 1 − Φ,
     /// u = x/σ − σ/τ and R(x) = exp(−σ²/2τ² − uσ/τ) once x = σ(u + σ/τ) is
-    /// substituted. So R(x) is off by Q(x/σ) − R(x)·Q(u), and for u ≥ 0 the normal
+    /// substituted. So R(x) is off by R(x)·Q(u) − Q(x/σ), and for u ≥ 0 the normal
     /// tail bound Q(u) ≤ ½·exp(−u²/2) (common practice) puts both terms under
     /// ½·exp(−x²/2σ²). From x = max(9σ, σ²/τ) on (u ≥ 0 and x ≥ 9σ) that is
-    /// < 3e-18.
+    /// < 3e-18. Without the Gaussian (σ = 0) the pulse is exponential from 0 on.
     pub fn exp_tail_start_s(&self) -> Option<f64> {
         let (s, t) = (self.sigma_s, self.tau_s);
         (t > 0.0).then(|| (9.0 * s).max(s * s / t))
