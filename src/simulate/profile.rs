@@ -83,6 +83,28 @@ impl Emg {
         }
     }
 
+    /// Time in seconds after the Gaussian's centre from which the distribution
+    /// function is a pure exponential, F(x) = 1 − [`Emg::tail_remainder`], to double
+    /// precision; `None` without scattering.
+    ///
+    /// In the Grushka (1972) form 1 − F(x) = Q(x/σ) + R(x)·Φ(u), with Q = 1 − Φ,
+    /// u = x/σ − σ/τ and R(x) = exp(−σ²/2τ² − uσ/τ) once x = σ(u + σ/τ) is
+    /// substituted. So R(x) is off by R(x)·Q(u) − Q(x/σ), and for u ≥ 0 the normal
+    /// tail bound Q(u) ≤ ½·exp(−u²/2) (common practice) puts both terms under
+    /// ½·exp(−x²/2σ²). From x = max(9σ, σ²/τ) on (u ≥ 0 and x ≥ 9σ) that is
+    /// < 3e-18. Without the Gaussian (σ = 0) the pulse is exponential from 0 on.
+    pub fn exp_tail_start_s(&self) -> Option<f64> {
+        let (s, t) = (self.sigma_s, self.tau_s);
+        (t > 0.0).then(|| (9.0 * s).max(s * s / t))
+    }
+
+    /// 1 − F(x) = exp(σ²/2τ² − x/τ), the area still to come at `x_s` seconds after
+    /// the Gaussian's centre, valid from [`Emg::exp_tail_start_s`] on (there x/τ ≥
+    /// σ²/τ², so the exponent is ≤ −σ²/2τ²: no overflow).
+    pub fn tail_remainder(&self, x_s: f64) -> f64 {
+        (0.5 * (self.sigma_s / self.tau_s).powi(2) - x_s / self.tau_s).exp()
+    }
+
     /// Times in seconds, relative to the Gaussian's centre, outside which the pulse
     /// carries less than about 1e-10 of its area on either side.
     pub fn support_s(&self) -> (f64, f64) {
@@ -183,6 +205,39 @@ mod tests {
             );
             assert!(p.cdf(lo) < 1e-9 && p.cdf(hi) > 1.0 - 1e-9);
         }
+    }
+
+    // Past its start the exponential tail gives the distribution function itself,
+    // with or without a Gaussian core, however wide the Gaussian against τ.
+    #[test]
+    fn exponential_tail_matches_cdf() {
+        for &(s, t) in &[
+            (1.0, 1.0),
+            (1.0, 0.05),
+            (1.0, 0.3),
+            (0.2, 3.0),
+            (0.0, 2.0),
+            (3.0, 0.1),
+        ] {
+            let p = Emg {
+                sigma_s: s,
+                tau_s: t,
+            };
+            let x0 = p.exp_tail_start_s().unwrap();
+            for k in 0..50 {
+                let x = x0 + k as f64 * 0.1 * t;
+                let (cdf, tail) = (p.cdf(x), 1.0 - p.tail_remainder(x));
+                assert!(
+                    (cdf - tail).abs() < 2e-15,
+                    "σ={s} τ={t} x={x}: {cdf} vs {tail}"
+                );
+            }
+        }
+        let gauss = Emg {
+            sigma_s: 1.0,
+            tau_s: 0.0,
+        };
+        assert_eq!(gauss.exp_tail_start_s(), None);
     }
 
     #[test]
