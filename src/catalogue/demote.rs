@@ -222,13 +222,7 @@ mod tests {
             notes: None,
         })
         .unwrap();
-        let mut ids: Vec<i64> = cat
-            .candidates(&CandidateFilter::default())
-            .unwrap()
-            .iter()
-            .map(|r| r.id)
-            .collect();
-        ids.sort();
+        let ids = candidate_ids(&cat, &CandidateFilter::default());
         cat.label(&ids[..3], "burst", "ana", "clear sweep").unwrap();
         cat.label(&ids[..1], "astrophysical", "ben", "").unwrap();
         let mut bursts: Vec<i64> = cat
