@@ -40,12 +40,13 @@ pub fn neighbourhoods(freqs_mhz: &[f64]) -> Vec<usize> {
 }
 
 /// Masks the unmasked channels that carry a transient and stand out on their
-/// whole-read statistics (`plain`) by more than `threshold` but not on their
-/// `trimmed` ones, unless at least half of the unmasked channels within
-/// `half_window[c]` of channel c share it: carry at least a quarter of channel c's
-/// transient power, so that the test measures the transient's bandwidth at half its
-/// amplitude (for a smooth spectrum), however bright it is. Returns how many it
-/// masked.
+/// whole-read statistics (`plain`) by more than `threshold`, unless at least half
+/// of the unmasked channels within `half_window[c]` of channel c share it: carry at
+/// least a quarter of channel c's transient power, so that the test measures the
+/// transient's bandwidth at half its amplitude (for a smooth spectrum), however
+/// bright it is. Call it once the channels standing out on their `trimmed`
+/// statistics are masked, so that what stands out here stands out only for a
+/// short transient. Returns how many it masked.
 pub fn mask_narrow_transients(
     plain: &ChannelStats,
     trimmed: &ChannelStats,
@@ -53,11 +54,7 @@ pub fn mask_narrow_transients(
     threshold: f64,
     half_window: &[usize],
 ) -> usize {
-    let transient: Vec<bool> = outlier_flags(plain, mask, threshold)
-        .into_iter()
-        .zip(outlier_flags(trimmed, mask, threshold))
-        .map(|(p, t)| p && !t)
-        .collect();
+    let transient = outlier_flags(plain, mask, threshold);
     if !transient.contains(&true) {
         return 0;
     }
@@ -119,6 +116,7 @@ fn transient_power(
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::clean::channel_stats::flag_outliers;
     use crate::clean::run_sums::RunSums;
     use ndarray::Array2;
     use rand::SeedableRng;
@@ -153,10 +151,12 @@ mod tests {
     fn masked_by_transients(raw: &Array2<f32>) -> Vec<usize> {
         let runs = RunSums::measure(raw.view(), 512);
         let freqs: Vec<f64> = (0..128).map(|c| 1400.0 - 1.5625 * c as f64).collect();
+        let trimmed = runs.trimmed_stats(runs.runs_touched_by(12));
         let mut mask = vec![false; 128];
+        flag_outliers(&trimmed, &mut mask, 5.0);
         mask_narrow_transients(
             &runs.trimmed_stats(0),
-            &runs.trimmed_stats(runs.runs_touched_by(12)),
+            &trimmed,
             &mut mask,
             5.0,
             &neighbourhoods(&freqs),
