@@ -149,21 +149,33 @@ fn high_band_256() -> (Header, SearchConfig) {
     (header_band(256, 48_000, 64e-6, 4000.0, 8000.0), config)
 }
 
-/// A burst at 1 s confined to ~100 MHz of a 4 GHz band (seven 15.6 MHz channels, less
-/// than one of the sixteen sub-bands triage measures the spectrum in).
-fn narrow_band_burst(h: &Header, snr: f64) -> Burst {
+/// A pulse at 1 s with a Gaussian spectrum, scaled to expected S/N `snr`.
+fn gaussian_spectrum_pulse(
+    h: &Header,
+    dm: f64,
+    width_s: f64,
+    centre_mhz: f64,
+    fwhm_mhz: f64,
+    snr: f64,
+) -> Burst {
     let shape = Burst {
         t_inf_s: 1.0,
-        dm: 1526.0,
-        width_s: 0.9e-3,
+        dm,
+        width_s,
         scatter_1ghz_s: 0.0,
         spectrum: Spectrum::Gaussian {
-            centre_mhz: 7017.0,
-            fwhm_mhz: 103.0,
+            centre_mhz,
+            fwhm_mhz,
         },
         amplitude: 1.0,
     };
     with_expected_snr(h, &shape, snr).unwrap()
+}
+
+/// A burst at 1 s confined to ~100 MHz of a 4 GHz band (seven 15.6 MHz channels, less
+/// than one of the sixteen sub-bands triage measures the spectrum in).
+fn narrow_band_burst(h: &Header, snr: f64) -> Burst {
+    gaussian_spectrum_pulse(h, 1526.0, 0.9e-3, 7017.0, 103.0, snr)
 }
 
 /// The brightest candidate within 0.5 s of `x`'s arrival in noise of `seed`.
@@ -226,18 +238,7 @@ fn a_bright_narrow_band_burst_keeps_its_channels() {
 #[test]
 fn a_narrow_band_interference_pulse_is_masked() {
     let h = header_band(256, 48_000, 64e-6, 1200.0, 1600.0);
-    let shape = Burst {
-        t_inf_s: 1.0,
-        dm: 0.0,
-        width_s: 0.5e-3,
-        scatter_1ghz_s: 0.0,
-        spectrum: Spectrum::Gaussian {
-            centre_mhz: 1400.7,
-            fwhm_mhz: 1.5,
-        },
-        amplitude: 1.0,
-    };
-    let x = with_expected_snr(&h, &shape, 40.0).unwrap();
+    let x = gaussian_spectrum_pulse(&h, 0.0, 0.5e-3, 1400.7, 1.5, 40.0);
     let mut config = SearchConfig::default();
     config.plan.dm_max = 2000.0;
     let mut data = noise(&h, 5);
