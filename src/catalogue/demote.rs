@@ -187,9 +187,10 @@ fn refusal(unknown: &[i64]) -> String {
 mod tests {
     use super::*;
     use crate::catalogue::synthetic::{
-        assert_whole, candidate_ids, candidates, observation, row_counts, run, searched_twice,
+        add_other_source, assert_whole, candidate_ids, candidates, observation, row_counts, run,
+        searched_twice,
     };
-    use crate::catalogue::{AssignTolerance, BurstFilter, CandidateFilter, SourceEdit};
+    use crate::catalogue::{AssignTolerance, BurstFilter, CandidateFilter};
 
     const TOL: AssignTolerance = AssignTolerance {
         radius_deg: 0.5,
@@ -214,14 +215,7 @@ mod tests {
         let obs = observation("FIELD-7", 1);
         cat.record_search(&obs, &run(7.0), &candidates(&obs, 6, 1))
             .unwrap();
-        cat.edit_source(&SourceEdit {
-            name: "OTHER".into(),
-            ra_deg: 10.0,
-            dec_deg: 20.0,
-            dm_ref: None,
-            notes: None,
-        })
-        .unwrap();
+        add_other_source(&mut cat);
         let ids = candidate_ids(&cat, &CandidateFilter::default());
         cat.label(&ids[..3], "burst", "ana", "clear sweep").unwrap();
         cat.label(&ids[..1], "astrophysical", "ben", "").unwrap();

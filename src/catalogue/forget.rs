@@ -215,8 +215,8 @@ fn refusal(id: i64, bursts: &[SourceBursts]) -> String {
 mod tests {
     use super::*;
     use crate::catalogue::synthetic::{
-        assert_whole, candidate_ids, candidates, fluence_completeness, observation, row_counts,
-        run, searched_twice,
+        add_other_source, assert_whole, candidate_ids, candidates, fluence_completeness,
+        observation, row_counts, run, searched_twice,
     };
     use crate::catalogue::{
         AssignTolerance, BurstFilter, CandidateFilter, RecordOutcome, SourceEdit,
@@ -364,14 +364,7 @@ mod tests {
     fn bursts_are_removed_only_when_asked_for() {
         let dir = tempfile::tempdir().unwrap();
         let (mut cat, ids) = searched_twice(dir.path());
-        cat.edit_source(&SourceEdit {
-            name: "OTHER".into(),
-            ra_deg: 10.0,
-            dec_deg: 20.0,
-            dm_ref: None,
-            notes: None,
-        })
-        .unwrap();
+        add_other_source(&mut cat);
         cat.promote_all(&ids[..2], Some("FIELD-7"), TOL).unwrap();
         let flash = cat.promote(ids[4], Some("OTHER"), TOL).unwrap();
         cat.set_barycentric_toas(&[(flash.burst_id, 60003.5)])

@@ -92,6 +92,20 @@ pub fn searched_twice(dir: &std::path::Path) -> (super::Catalogue, Vec<i64>) {
     (cat, ids)
 }
 
+/// Adds source "OTHER" at RA 10°, Dec 20°, with no DM or notes: a second source
+/// for tests that promote to two.
+#[cfg(test)]
+pub fn add_other_source(cat: &mut super::Catalogue) {
+    cat.edit_source(&super::SourceEdit {
+        name: "OTHER".into(),
+        ra_deg: 10.0,
+        dec_deg: 20.0,
+        dm_ref: None,
+        notes: None,
+    })
+    .unwrap();
+}
+
 /// The ids of the candidates `filter` selects, ascending.
 #[cfg(test)]
 pub fn candidate_ids(cat: &super::Catalogue, filter: &super::CandidateFilter) -> Vec<i64> {
