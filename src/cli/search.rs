@@ -17,6 +17,11 @@ use burstbook::search::{self, SearchConfig};
   burstbook search demo-data/demo.json --out results --search-again
   burstbook search obs.fits --out results --threads 1     # one worker on a shared machine
   burstbook search lowband.fits --out results --average-samples 16 --average-channels 4
+  burstbook search night/part-*.fits --out results   # consecutive files are read on into
+
+A file that another one listed continues (the same set-up, starting where it ends) is
+searched on into that file's first seconds, so a burst whose sweep crosses from one
+file into the next is found, and reported once, by the file it starts in.
 
 A file whose content the catalogue already holds a finished search of, with the same
 configuration, is not searched again: one line says so, and its candidates are taken
@@ -82,6 +87,12 @@ pub struct Args {
     /// Candidates listed in the terminal summary.
     #[arg(long, default_value_t = 10)]
     pub top: usize,
+    /// Search each file on its own. By default a file that another one listed
+    /// continues (the same set-up, starting where it ends) is read on into that one's
+    /// first seconds, so bursts whose sweep crosses from one file into the next are
+    /// found.
+    #[arg(long)]
+    pub no_join: bool,
 }
 
 fn parse_range(s: &str) -> Result<[f64; 2], String> {
@@ -128,7 +139,11 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     let config = config(&args)?;
     let paths = distinct_files(&args.files);
     // Every file checked before any is searched, or a bad one stops the run late.
-    search::check_files(&paths, &config)?;
+    let headers = search::check_files(&paths, &config)?;
+    let continuations = match args.no_join {
+        true => vec![None; paths.len()],
+        false => continuations(&headers),
+    };
     std::fs::create_dir_all(&args.out)
         .with_context(|| format!("cannot create output directory {}", args.out.display()))?;
     // Opened first, so a bad catalogue stops us before hours of searching.
@@ -151,7 +166,7 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         }
         files.push(FileOutcome::Failed { file, error });
     };
-    for path in paths {
+    for (path, next) in paths.iter().zip(continuations) {
         let started_utc = burstbook::catalogue::now_utc();
         let label = path.display().to_string();
         let source = match burstbook::obs::open(path) {
@@ -207,9 +222,14 @@ pub fn run(args: Args) -> anyhow::Result<()> {
                 continue;
             }
         };
+        let next_label = next.map(|j| paths[j].display().to_string());
+        let next = next_label
+            .as_deref()
+            .and_then(|next| open_continuation(next, &label, &config));
         let bar = burstbook::progress::bar(source.header().n_samples, &label);
         let clock = std::time::Instant::now();
-        let result = search::search_source_in(&mut workspace, source, &label, &config, Some(&bar));
+        let result =
+            search::search_run_on_in(&mut workspace, source, next, &label, &config, Some(&bar));
         bar.finish_and_clear();
         let result = match result {
             Ok(result) => result,
@@ -219,6 +239,13 @@ pub fn run(args: Args) -> anyhow::Result<()> {
             }
         };
         let wall_s = clock.elapsed().as_secs_f64();
+        if let (Some(next), true) = (&next_label, result.run_on_samples > 0) {
+            say!(
+                "{label}: read on {:.2} s into {next}, which continues it, so that sweeps \
+                 crossing into it were searched",
+                result.run_on_samples as f64 * result.header.tsamp_s
+            )?;
+        }
         if result.fraction_masked >= 1.0 {
             note!(
                 "{label}: every channel was masked throughout (flagged, --mask-mhz or zero \
@@ -286,6 +313,42 @@ pub fn run(args: Args) -> anyhow::Result<()> {
             failed.iter().map(|f| f.0).collect::<Vec<_>>().join(", "),
             json.display()
         ),
+    }
+}
+
+/// For each recording, the index of another that continues it
+/// ([`burstbook::obs::Header::is_continued_by`]): the next one listed if it does, else
+/// the first that does.
+fn continuations(headers: &[burstbook::obs::Header]) -> Vec<Option<usize>> {
+    (0..headers.len())
+        .map(|i| {
+            let continues = |&j: &usize| headers[i].is_continued_by(&headers[j]);
+            std::iter::once(i + 1)
+                .filter(|&j| j < headers.len())
+                .chain(0..headers.len())
+                .filter(|&j| j != i)
+                .find(continues)
+        })
+        .collect()
+}
+
+/// Opens `next` to read on into it from the search of `label`; a file that cannot be
+/// opened now gets a note, and `label` is searched on its own.
+fn open_continuation(
+    next: &str,
+    label: &str,
+    config: &SearchConfig,
+) -> Option<Box<dyn burstbook::obs::SampleSource>> {
+    let opened = burstbook::obs::open(std::path::Path::new(next))
+        .and_then(|source| config.average.wrap(source, next));
+    match opened {
+        Ok(source) => Some(source),
+        Err(e) => {
+            note!(
+                "{label}: searched on its own, as {next}, which continues it, cannot be read: {e}"
+            );
+            None
+        }
     }
 }
 

@@ -35,6 +35,17 @@ pub struct Site {
     pub height_m: f64,
 }
 
+/// Seconds from `a` to `b`, when they lie on the same or on adjacent UTC days (a leap
+/// second ending the earlier day counted); `None` further apart.
+fn seconds_between(a: UtcEpoch, b: UtcEpoch) -> Option<f64> {
+    match b.mjd - a.mjd {
+        0 => Some(b.sec - a.sec),
+        1 => Some(utc_day_length_s(a.mjd) - a.sec + b.sec),
+        -1 => Some(-(utc_day_length_s(b.mjd) - b.sec + a.sec)),
+        _ => None,
+    }
+}
+
 /// A UTC instant kept as an integer MJD plus seconds into that UTC day, so no
 /// precision is lost to a floating-point MJD (1 µs is 1.2e-11 of a day).
 #[derive(Debug, Clone, Copy, PartialEq, PartialOrd, Serialize, Deserialize)]
@@ -262,6 +273,19 @@ impl Header {
     /// UTC epoch of sample `index` (its leading edge).
     pub fn epoch_of_sample(&self, index: f64) -> UtcEpoch {
         self.start.plus_seconds(index * self.tsamp_s)
+    }
+
+    /// Whether `next` continues this recording, as consecutive files of one long
+    /// recording do: every field but the start and the length the same, and `next`
+    /// starting where this one ends, to within half a sample.
+    pub fn is_continued_by(&self, next: &Header) -> bool {
+        let same_setup = self
+            .differing_fields(next)
+            .into_iter()
+            .all(|field| field == "start" || field == "n_samples");
+        let end = self.epoch_of_sample(self.n_samples as f64);
+        same_setup
+            && seconds_between(end, next.start).is_some_and(|gap| gap.abs() <= 0.5 * self.tsamp_s)
     }
 
     /// Checks the invariants every reader and writer relies on.
@@ -542,5 +566,49 @@ mod bound_tests {
         assert!(UtcEpoch::checked_start(100_000, 0.0, ["d", "s"]).is_ok());
         let msg = UtcEpoch::checked_start(60_000, 1e9, ["day", "start_sec"]).unwrap_err();
         assert!(msg.starts_with("start_sec = 1e9 is not"), "{msg}");
+    }
+
+    // A file continues another when it starts where the other ends (half a sample of
+    // slack), across a day boundary and a leap second too, and nothing else changed.
+    #[test]
+    fn a_recording_is_continued_by_the_file_that_starts_where_it_ends() {
+        let a = test_header(8, 1000);
+        let next = |offset_samples: f64| {
+            let mut b = a.clone();
+            b.start = a.epoch_of_sample(1000.0 + offset_samples);
+            b.n_samples = 77;
+            b
+        };
+        assert!(a.is_continued_by(&next(0.0)));
+        assert!(a.is_continued_by(&next(0.4)));
+        assert!(a.is_continued_by(&next(-0.4)));
+        assert!(
+            !a.is_continued_by(&next(0.6)),
+            "a gap of more than half a sample"
+        );
+        assert!(!a.is_continued_by(&next(-1.0)), "an overlap");
+        assert!(!a.is_continued_by(&a), "the same start");
+        let changed: [fn(&mut Header); 4] = [
+            |h| h.tsamp_s *= 2.0,
+            |h| h.source = "OTHER".into(),
+            |h| h.weights[3] = 0.0,
+            |h| h.nbits = 8,
+        ];
+        for change in changed {
+            let mut b = next(0.0);
+            change(&mut b);
+            assert!(!a.is_continued_by(&b), "{b:?}");
+        }
+        // Across the leap second that closed 2016-12-31 (MJD 57753, 86401 s long): a
+        // file ending at midnight is continued by one starting 0.2 ms before it, at
+        // 23:59:60.9998, which a day of 86400 s would put a second later.
+        let mut before_leap = test_header(8, 2000);
+        before_leap.tsamp_s = 1e-3;
+        before_leap.start = UtcEpoch::new(57_753, 86_399.0);
+        let mut after = before_leap.clone();
+        after.start = UtcEpoch::new(57_753, 86_400.999_8);
+        assert!(before_leap.is_continued_by(&after));
+        after.start = UtcEpoch::new(57_753, 86_399.999_8);
+        assert!(!before_leap.is_continued_by(&after));
     }
 }

@@ -12,6 +12,7 @@ pub mod geodesy;
 mod header;
 pub mod native;
 mod npy;
+mod run_on;
 pub mod stats;
 
 pub use average::Averaging;
@@ -25,6 +26,7 @@ pub(crate) use header::RADIO_WINDOW_MHZ;
 #[cfg(test)]
 pub(crate) use header::tests::{band, test_header};
 pub use header::{Header, Site, UtcEpoch, check_sky_position};
+pub use run_on::RunOn;
 
 use std::path::Path;
 

@@ -25,7 +25,7 @@ use crate::clean::{self, Sparing, impulse::DispersionProbe, user_mask::static_ma
 use crate::cluster::{Cluster, Detection, Sweep, friends_of_friends, merge_dispersion_tails};
 use crate::dedisperse::{self, DmPlan, Extent, FastDedisperser, Kernel, bf16};
 use crate::error::{Error, Result};
-use crate::obs::{Header, SampleSource};
+use crate::obs::{Header, RunOn, SampleSource};
 use crate::triage;
 use crate::units::delay_to_infinity_s;
 
@@ -55,6 +55,10 @@ pub struct FileResult {
     /// Where the search's wall-clock time went.
     #[serde(default)]
     pub seconds: StageSeconds,
+    /// Samples of the recording that continues this one, read on into so that sweeps
+    /// crossing the boundary were searched ([`search_run_on_in`]); 0 if none.
+    #[serde(default)]
+    pub run_on_samples: u64,
 }
 
 impl FileResult {
@@ -62,7 +66,7 @@ impl FileResult {
     /// plan's highest when the recording is shorter than that DM's sweep. `None` if
     /// the recording is too short for any trial.
     pub fn highest_dm_searched(&self) -> Option<f64> {
-        let n = usize::try_from(self.header.n_samples).unwrap_or(usize::MAX);
+        let n = usize::try_from(self.header.n_samples + self.run_on_samples).unwrap_or(usize::MAX);
         let plan = &self.plan;
         plan.steps
             .iter()
@@ -123,7 +127,30 @@ pub struct Workspace {
 /// As [`search_source`].
 pub fn search_source_in(
     workspace: &mut Workspace,
+    source: Box<dyn SampleSource>,
+    label: &str,
+    config: &SearchConfig,
+    progress: Option<&ProgressBar>,
+) -> Result<FileResult> {
+    search_run_on_in(workspace, source, None, label, config, progress)
+}
+
+/// [`search_source_in`], reading on into the first block overlap of `next`, the
+/// recording that continues this one ([`crate::obs::Header::is_continued_by`]), if
+/// given: every boxcar start of this recording is then searched at every trial DM,
+/// including bursts whose sweep ends in `next`. The events are this recording's
+/// alone (their boxcar starts in it), so a search of `next` reports none of them
+/// again. The candidates, exposure and `header` are this recording's;
+/// `fraction_masked` includes the rows read on into.
+///
+/// # Errors
+/// As [`search_source`], and [`Error::Config`] if `next` does not continue `source`.
+/// A read error in `next` ends the rows read on into instead (its own search reports
+/// it).
+pub fn search_run_on_in(
+    workspace: &mut Workspace,
     mut source: Box<dyn SampleSource>,
+    mut next: Option<Box<dyn SampleSource>>,
     label: &str,
     config: &SearchConfig,
     progress: Option<&ProgressBar>,
@@ -131,14 +158,27 @@ pub fn search_source_in(
     config.validate()?;
     let header = source.header().clone();
     header.validate().map_err(|m| Error::bad_input(label, m))?;
-    let read_bytes = read_sample_bytes(&mut *source);
+    // Byte reads only if both recordings have them (see `RunOn`).
+    let read_bytes = std::iter::once(&mut source)
+        .chain(next.as_mut())
+        .map(|s| read_sample_bytes(&mut **s))
+        .max()
+        .unwrap_or(size_of::<f32>());
     let mut searcher = Searcher::new(header, read_bytes, config, label)?;
+    let source = match next {
+        Some(next) => {
+            let run_on = RunOn::new(source, next, searcher.layout.overlap as u64)?;
+            searcher.run_on_samples = run_on.extra_rows();
+            Box::new(run_on)
+        }
+        None => source,
+    };
     if config.kernel == Kernel::Fast {
         let kept = workspace.fast.take().filter(|k| k.plan() == &searcher.plan);
         searcher.fast = Some(kept.unwrap_or_else(|| FastDedisperser::new(&searcher.plan)));
     }
     let g = searcher.layout.clone();
-    let n_samples = searcher.header.n_samples;
+    let n_samples = source.header().n_samples;
     if let Some(pb) = progress {
         pb.set_length(n_samples);
     }
@@ -207,14 +247,16 @@ pub fn block_layout(header: &Header, config: &SearchConfig) -> Result<BlockLayou
 }
 
 /// Opens each recording and checks it could be searched with `config` (its header,
-/// the plan for it, the memory that needs) without reading a sample. A search of many
-/// files runs this first: a bad file late in the list then stops it before any is
-/// searched, not after hours spent on the files before it.
+/// the plan for it, the memory that needs) without reading a sample, and returns the
+/// headers the search will see (after `config.average`). A search of many files runs
+/// this first: a bad file late in the list then stops it before any is searched, not
+/// after hours spent on the files before it.
 ///
 /// # Errors
 /// The first file that cannot be opened or searched, named, or an invalid configuration.
-pub fn check_files<P: AsRef<Path>>(paths: &[P], config: &SearchConfig) -> Result<()> {
+pub fn check_files<P: AsRef<Path>>(paths: &[P], config: &SearchConfig) -> Result<Vec<Header>> {
     config.validate()?;
+    let mut headers = Vec::with_capacity(paths.len());
     for path in paths {
         let path = path.as_ref();
         // Opening validates the header; the file is closed again at once, so a long
@@ -223,8 +265,9 @@ pub fn check_files<P: AsRef<Path>>(paths: &[P], config: &SearchConfig) -> Result
         let mut source = config.average.wrap(crate::obs::open(path)?, &label)?;
         let read_bytes = read_sample_bytes(&mut *source);
         Searcher::new(source.header().clone(), read_bytes, config, &label)?;
+        headers.push(source.header().clone());
     }
-    Ok(())
+    Ok(headers)
 }
 
 struct Searcher<'a> {
@@ -244,6 +287,8 @@ struct Searcher<'a> {
     /// The fast kernel, kept across blocks (it reuses its trees); `None` runs the
     /// reference kernel.
     fast: Option<FastDedisperser>,
+    /// Rows of the next recording read on into after `header.n_samples`.
+    run_on_samples: u64,
 }
 
 impl<'a> Searcher<'a> {
@@ -342,6 +387,7 @@ impl<'a> Searcher<'a> {
             layout,
             sweep,
             fast: None,
+            run_on_samples: 0,
         })
     }
 
@@ -375,6 +421,8 @@ impl<'a> Searcher<'a> {
             None => dedisperse::reference::dedisperse_over(norm, &self.plan, extent),
         };
         let (own_lo, own_hi) = g.owned_range(start, n_time, first, last);
+        // Boxcars starting in the rows read on into belong to the next recording.
+        let own_hi = own_hi.min(self.header.n_samples);
         // Boxcar starts tested, relative to the block start (see the module docs).
         let tested = own_lo.saturating_sub(start + g.margin as u64) as usize
             ..own_hi.saturating_add(g.margin as u64).saturating_sub(start) as usize;
@@ -588,6 +636,7 @@ impl<'a> Searcher<'a> {
             trials,
             layout: self.layout,
             seconds: totals.seconds,
+            run_on_samples: self.run_on_samples,
         }
     }
 }

@@ -54,6 +54,9 @@ pub struct FileSummary<'a> {
     pub expected_false_alarms: f64,
     /// Candidates found.
     pub n_candidates: usize,
+    /// Seconds of the file that continues this one read on into, so that sweeps
+    /// crossing into it were searched (0: none).
+    pub run_on_s: f64,
 }
 
 impl<'a> From<&'a FileResult> for FileSummary<'a> {
@@ -66,6 +69,7 @@ impl<'a> From<&'a FileResult> for FileSummary<'a> {
             effective_trials: r.trials.effective_trials,
             expected_false_alarms: r.trials.expected_false_alarms,
             n_candidates: r.candidates.len(),
+            run_on_s: r.run_on_samples as f64 * r.header.tsamp_s,
         }
     }
 }

@@ -1,0 +1,231 @@
+//! Consecutive files of one recording: a burst whose sweep crosses from one file into
+//! the next is found by reading on into the next file, and reported once, by the file
+//! its boxcar starts in.
+
+mod cli_common;
+mod common;
+
+use std::path::Path;
+
+use burstbook::obs::{self, Container, Header};
+use burstbook::search::{FileResult, SearchConfig, Workspace, search_run_on_in, search_source};
+use burstbook::simulate::{Burst, expected_snr};
+use burstbook::{Candidate, Verdict};
+use cli_common::{assert_success, burstbook};
+use common::{K_HANDBOOK_S_MHZ2, add, burst, header, noise, source};
+
+const N_CHAN: usize = 32;
+const TSAMP: f64 = 1e-3;
+/// Samples of the whole recording, and of its first file.
+const N: u64 = 12_000;
+const N_FIRST: u64 = 6_000;
+
+fn config() -> SearchConfig {
+    let mut c = SearchConfig::default();
+    c.plan.dm_max = 300.0;
+    c
+}
+
+/// A burst of `dm` whose top channel sees it `top_sample` samples into the recording.
+fn burst_at_top(h: &Header, top_sample: f64, dm: f64, snr: f64) -> Burst {
+    let to_top = K_HANDBOOK_S_MHZ2 * dm / h.freqs_mhz[0].powi(2);
+    burst(h, top_sample * TSAMP - to_top, dm, 4e-3, snr)
+}
+
+/// The recording's two files: headers and samples.
+fn split(whole: &Header, data: &[f32]) -> [(Header, Vec<f32>); 2] {
+    let mut first = whole.clone();
+    first.n_samples = N_FIRST;
+    let mut second = whole.clone();
+    second.start = whole.epoch_of_sample(N_FIRST as f64);
+    second.n_samples = N - N_FIRST;
+    let cut = N_FIRST as usize * N_CHAN;
+    [
+        (first, data[..cut].to_vec()),
+        (second, data[cut..].to_vec()),
+    ]
+}
+
+/// The candidates within 20 ms of `t_inf_s` with a DM within 10 % of `dm`.
+fn found(r: &FileResult, t_inf_s: f64, dm: f64) -> Vec<&Candidate> {
+    r.candidates
+        .iter()
+        .filter(|c| (c.t_inf_s - t_inf_s).abs() < 0.02 && (c.dm - dm).abs() < 0.1 * dm)
+        .collect()
+}
+
+// A burst at DM 250 whose sweep (0.32 s) starts 0.1 s before the first file ends is
+// missed by that file alone and found, at its expected S/N, when the search reads on
+// into the second; a burst that starts inside the second file, within the rows read
+// on into, is the second's, not reported by the first. The first file is then searched at every trial DM to its
+// last sample.
+#[test]
+fn a_sweep_crossing_into_the_next_file_is_found_once() {
+    let whole = header(N_CHAN, N, TSAMP);
+    let crossing = burst_at_top(&whole, N_FIRST as f64 - 100.0, 250.0, 20.0);
+    // Clear of the crossing sweep, which ends 0.22 s into the second file.
+    let after_cut = burst_at_top(&whole, N_FIRST as f64 + 400.0, 150.0, 20.0);
+    let mut data = noise(&whole, 41);
+    for b in [&crossing, &after_cut] {
+        add(&whole, &mut data, b);
+    }
+    let expected = expected_snr(&whole, &crossing);
+    let [(h1, d1), (h2, d2)] = split(&whole, &data);
+    let c = config();
+
+    let alone = search_source(source(h1.clone(), d1.clone()), "first", &c, None).unwrap();
+    assert!(
+        found(&alone, crossing.t_inf_s, crossing.dm).is_empty(),
+        "{:#?}",
+        alone.candidates
+    );
+    assert!(
+        alone.samples_searched < N_FIRST - 250,
+        "{}",
+        alone.samples_searched
+    );
+
+    let next = source(h2.clone(), d2.clone());
+    let joined = search_run_on_in(
+        &mut Workspace::default(),
+        source(h1.clone(), d1),
+        Some(next),
+        "first",
+        &c,
+        None,
+    )
+    .unwrap();
+    let hits = found(&joined, crossing.t_inf_s, crossing.dm);
+    assert_eq!(hits.len(), 1, "{:#?}", joined.candidates);
+    assert!(
+        hits[0].snr > 0.85 * expected - 2.0,
+        "S/N {} of {expected}",
+        hits[0].snr
+    );
+    assert_eq!(
+        hits[0].verdict,
+        Verdict::Astrophysical,
+        "{:?}",
+        hits[0].reasons
+    );
+    assert!(
+        joined
+            .candidates
+            .iter()
+            .all(|c| c.t_inf_s < N_FIRST as f64 * TSAMP)
+    );
+    assert_eq!(joined.samples_searched, N_FIRST);
+    assert_eq!(joined.run_on_samples, joined.layout.overlap as u64);
+    assert_eq!(joined.header, h1);
+    assert_eq!(joined.highest_dm_searched(), Some(joined.plan.max_dm()));
+
+    // The second file, searched from its own start, has the other burst.
+    let second = search_source(source(h2, d2), "second", &c, None).unwrap();
+    let t_in_second = after_cut.t_inf_s - N_FIRST as f64 * TSAMP;
+    assert_eq!(
+        found(&second, t_in_second, after_cut.dm).len(),
+        1,
+        "{:#?}",
+        second.candidates
+    );
+    assert!(found(&joined, after_cut.t_inf_s, after_cut.dm).is_empty());
+
+    // As found in the recording searched whole.
+    let all = search_source(source(whole, data), "whole", &c, None).unwrap();
+    let in_whole = found(&all, crossing.t_inf_s, crossing.dm);
+    assert_eq!(in_whole.len(), 1, "{:#?}", all.candidates);
+    assert!((in_whole[0].snr - hits[0].snr).abs() < 0.1 * in_whole[0].snr);
+}
+
+/// Writes the two files of a recording (8-bit native) with a burst crossing the cut
+/// into `dir`; returns their paths and the burst's DM.
+fn write_consecutive_files(dir: &Path) -> ([std::path::PathBuf; 2], f64) {
+    let whole = header(N_CHAN, N, TSAMP);
+    let crossing = burst_at_top(&whole, N_FIRST as f64 - 100.0, 250.0, 25.0);
+    let mut data = noise(&whole, 43);
+    add(&whole, &mut data, &crossing);
+    let paths = ["a.json", "b.json"].map(|name| dir.join(name));
+    for (path, (mut h, rows)) in paths.iter().zip(split(&whole, &data)) {
+        // 8-bit samples (mean 96, σ 12), read as bytes, as survey files are.
+        h.nbits = 8;
+        let bytes: Vec<f32> = rows
+            .iter()
+            .map(|&x| (96.0 + 12.0 * (x - 1.0) * 7.07).round())
+            .collect();
+        let mut sink = obs::create(path, &h, Container::Native).unwrap();
+        sink.write_rows(&bytes).unwrap();
+        sink.finish().unwrap();
+    }
+    (paths, crossing.dm)
+}
+
+/// The DMs of the candidates of `file` in the CSV at `out`.
+fn candidate_dms(out: &Path, file: &str) -> Vec<f64> {
+    let csv = std::fs::read_to_string(out.join("candidates.csv")).unwrap();
+    let mut lines = csv.lines();
+    let columns: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let col = |name: &str| columns.iter().position(|&c| c == name).unwrap();
+    let (file_col, dm_col) = (col("file"), col("dm"));
+    lines
+        .map(|l| l.split(',').collect::<Vec<_>>())
+        .filter(|f| f[file_col].ends_with(file))
+        .map(|f| f[dm_col].parse().unwrap())
+        .collect()
+}
+
+// From the command line: two consecutive files, given in either order, are joined and
+// the crossing burst is a candidate of the first; `--no-join` searches each alone and
+// misses it.
+#[test]
+fn the_command_joins_consecutive_files_unless_told_not_to() {
+    let dir = tempfile::tempdir().unwrap();
+    let ([a, b], dm) = write_consecutive_files(dir.path());
+    let near = |dms: &[f64]| dms.iter().filter(|&&d| (d - dm).abs() < 0.1 * dm).count();
+    for (k, files) in [[&b, &a], [&a, &b]].iter().enumerate() {
+        let out = dir.path().join(format!("joined{k}"));
+        let run = burstbook(&[
+            "search".as_ref(),
+            files[0].as_os_str(),
+            files[1].as_os_str(),
+            "--out".as_ref(),
+            out.as_os_str(),
+            "--no-catalogue".as_ref(),
+            "--dm-max".as_ref(),
+            "300".as_ref(),
+        ]);
+        assert_success(&run);
+        let stdout = String::from_utf8_lossy(&run.stdout);
+        assert!(
+            stdout.contains("read on") && stdout.contains("b.json"),
+            "{stdout}"
+        );
+        assert_eq!(near(&candidate_dms(&out, "a.json")), 1, "{stdout}");
+        let json: serde_json::Value =
+            serde_json::from_str(&std::fs::read_to_string(out.join("candidates.json")).unwrap())
+                .unwrap();
+        let run_on_s = |name: &str| {
+            let files = json["files"].as_array().unwrap();
+            let f = files
+                .iter()
+                .find(|f| f["file"].as_str().unwrap().ends_with(name));
+            f.unwrap()["run_on_s"].as_f64().unwrap()
+        };
+        assert!(run_on_s("a.json") > 0.3, "{json}");
+        assert_eq!(run_on_s("b.json"), 0.0);
+    }
+    let out = dir.path().join("apart");
+    let run = burstbook(&[
+        "search".as_ref(),
+        a.as_os_str(),
+        b.as_os_str(),
+        "--out".as_ref(),
+        out.as_os_str(),
+        "--no-catalogue".as_ref(),
+        "--dm-max".as_ref(),
+        "300".as_ref(),
+        "--no-join".as_ref(),
+    ]);
+    assert_success(&run);
+    assert!(!String::from_utf8_lossy(&run.stdout).contains("read on"));
+    assert_eq!(near(&candidate_dms(&out, "a.json")), 0);
+}
