@@ -11,6 +11,8 @@
 # files are deleted on exit. Run it once on a quiet machine; it prints the load.
 # SMEARING_FRACTION sets [plan] smearing_fraction of part 1 (default 0.5, the
 # search's default; 1 is the cheapest plan, at some S/N of narrow bursts).
+# CONSECUTIVE=1 also times the three files as consecutive parts of one recording,
+# joined (the default) and with --no-join.
 # Usage: scripts/bench-survey.sh [LENGTH_S] [SHORT_S]
 set -euo pipefail
 cd "$(dirname "$0")/.."
@@ -124,6 +126,31 @@ read -r wall rss user sys < <(timed three $bin search "$work/long.json" "$work/m
 echo "three ${length_s} s files in one search: wall ${wall} s, real-time factor" \
   "$(echo "scale=3; 3 * ${length_s} / ${wall}" | bc), peak RSS ${rss} KiB," \
   "CPU ${user} s user + ${sys} s system"
+# CONSECUTIVE=1: the same three files as consecutive parts of one recording (headers
+# starting where the one before ends), searched joined (the default: each file reads
+# on into the next) and with --no-join: what reading on costs.
+if [[ "${CONSECUTIVE:-0}" == 1 ]]; then
+  for k in 1 2; do
+    seed=$((7 + k))
+    python3 -c 'import json, sys
+h = json.load(open(sys.argv[1]))
+h["start_sec"] += float(sys.argv[2])
+h["data"] = sys.argv[3]
+json.dump(h, open(sys.argv[4], "w"))' "$work/long.json" "$(echo "$k * $length_s" | bc)" \
+      "more$seed.npy" "$work/next$k.json"
+  done
+  for join in "" --no-join; do
+    evict_then_read "$work/long.npy"
+    cat "$work/more8.npy" "$work/more9.npy" > /dev/null
+    read -r wall rss user sys < <(timed consecutive $bin search "$work/long.json" \
+      "$work/next1.json" "$work/next2.json" --out "$work/out-consecutive" \
+      --config "$work/survey.toml" --dm-min 0 --dm-max 2000 --max-width-ms 50 \
+      --no-catalogue $join)
+    echo "three consecutive ${length_s} s files, ${join:-joined}: wall ${wall} s," \
+      "real-time factor $(echo "scale=3; 3 * ${length_s} / ${wall}" | bc)," \
+      "CPU ${user} s user + ${sys} s system"
+  done
+fi
 rm -f "$work"/more*.npy
 if (( short_s > 0 )); then
   for kernel in fast reference; do
