@@ -153,6 +153,30 @@ mod tests {
         assert!(matches!(RunOn::new(first, late, 3), Err(Error::Config(_))));
     }
 
+    /// A recording whose every read fails.
+    struct Unreadable(Header);
+
+    impl SampleSource for Unreadable {
+        fn header(&self) -> &Header {
+            &self.0
+        }
+        fn read_rows(&mut self, _: &mut [f32]) -> Result<usize> {
+            Err(Error::bad_input("next.fits", "truncated"))
+        }
+    }
+
+    // A next recording that cannot be read ends the rows after the first one's; its
+    // own search reports the error.
+    #[test]
+    fn an_unreadable_next_recording_ends_the_rows() {
+        let (first, next) = pair(5, 7);
+        let broken = Box::new(Unreadable(next.header().clone()));
+        let mut run_on = RunOn::new(first, broken, 4).unwrap();
+        let mut buf = vec![0.0; 20 * 3];
+        assert_eq!(fill_rows(&mut run_on, &mut buf).unwrap(), 5);
+        assert_eq!(run_on.read_rows(&mut buf).unwrap(), 0);
+    }
+
     // 8-bit files give byte reads, run on as the f32 reads are; a source without
     // them turns them off.
     #[test]
