@@ -114,6 +114,11 @@ fn chromium() -> Option<PathBuf> {
 #[test]
 fn keyboard_review_in_headless_chromium_records_labels() {
     let Some(chromium) = chromium() else {
+        // CI installs chromium and playwright-core (.ci/run): missing there, a failure.
+        assert!(
+            std::env::var_os("CI").is_none(),
+            "chromium is not installed (Debian packages `chromium`, or set CHROMIUM)"
+        );
         eprintln!(
             "\n!!!!!!!! SKIPPED keyboard_review_in_headless_chromium_records_labels: no chromium \
              (install Debian packages `chromium` and `chromium-driver`, or set CHROMIUM) !!!!!!!!\n"
@@ -122,8 +127,7 @@ fn keyboard_review_in_headless_chromium_records_labels() {
     };
     let browser_dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/browser");
     if !browser_dir.join("node_modules/playwright-core").is_dir() {
-        // CI installs it (.ci/run), so there a missing driver is a failure; on a
-        // developer's machine the suite still runs, and says loudly what it skipped.
+        // On a developer's machine the suite still runs, and says loudly what it skipped.
         assert!(
             std::env::var_os("CI").is_none(),
             "chromium is present but playwright-core is not installed: run `npm ci --prefix tests/browser`"
