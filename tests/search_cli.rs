@@ -189,7 +189,10 @@ fn bad_input_fails_with_one_line_naming_the_file() {
         "--no-catalogue",
     ]);
     assert!(!o.status.success());
-    assert!(String::from_utf8_lossy(&o.stderr).contains("DM range"));
+    assert!(
+        String::from_utf8_lossy(&o.stderr)
+            .contains("DM range 50..10 (dm_min..dm_max, flags --dm-min/--dm-max)")
+    );
 
     // A search beyond its memory limit is refused up front, naming the file.
     let fine = dir.path().join("fine.json");

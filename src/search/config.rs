@@ -189,7 +189,8 @@ impl SearchConfig {
         let bad = |m: String| Err(Error::Config(m));
         if !(p.dm_min >= 0.0 && p.dm_max >= p.dm_min && p.dm_max.is_finite()) {
             return bad(format!(
-                "DM range {}..{} must satisfy 0 <= min <= max",
+                "DM range {}..{} (dm_min..dm_max, flags --dm-min/--dm-max) must satisfy \
+                 0 <= min <= max",
                 p.dm_min, p.dm_max
             ));
         }
