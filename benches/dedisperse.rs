@@ -6,6 +6,8 @@
 //! threads in the steady state of a search (buffers reused from a first block), and for the reference kernel timed on every 50th trial DM of the same
 //! plan and scaled by the trial count (its cost per trial does not depend on the
 //! step's downsampling: every trial sums n_chan input samples per input sample).
+//! `cargo bench --bench dedisperse -- per-step` adds each plan step's time alone
+//! (and skips the reference too).
 //! `cargo bench --bench dedisperse -- fast-only` skips the reference, which takes
 //! minutes.
 
@@ -106,7 +108,38 @@ fn main() {
         );
     }
 
-    if std::env::args().any(|a| a == "fast-only") {
+    if std::env::args().any(|a| a == "per-step") {
+        // Each step as a plan of its own (its halvings of the block included), two
+        // threads, best of two blocks after one untimed.
+        for (i, step) in plan.steps.iter().enumerate() {
+            let one = DmPlan {
+                steps: vec![step.clone()],
+                ..plan.clone()
+            };
+            let mut kernel = FastDedisperser::new(&one);
+            let warm_up = kernel.dedisperse(input.view());
+            kernel.recycle(warm_up);
+            let (mut best, mut best_cpu) = (f64::INFINITY, f64::INFINITY);
+            for _ in 0..2 {
+                let (start, cpu) = (Instant::now(), cpu_seconds());
+                let out = kernel.dedisperse(input.view());
+                best = best.min(start.elapsed().as_secs_f64());
+                best_cpu = best_cpu.min(cpu_seconds() - cpu);
+                kernel.recycle(std::hint::black_box(out));
+            }
+            println!(
+                "step {i} (DM {:.1}-{:.1}, {} trials, downsample {}): {best:.3} s wall, \
+                 {best_cpu:.2} CPU s per block; model {:.2e} adds per s of data",
+                step.dms[0],
+                step.dms[step.dms.len() - 1],
+                step.dms.len(),
+                step.downsample,
+                one.cost().fast_adds_per_s
+            );
+        }
+    }
+
+    if std::env::args().any(|a| a.ends_with("-only") || a == "per-step") {
         return;
     }
     let subset = DmPlan {
