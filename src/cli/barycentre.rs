@@ -77,8 +77,9 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         note!("burstbook: warning: {}: {warning}", args.input.display());
     }
     note!(
-        "barycentre: {} rows written to {}",
+        "barycentre: {} row{} written to {}",
         summary.rows,
+        if summary.rows == 1 { "" } else { "s" },
         args.output.display()
     );
     Ok(())

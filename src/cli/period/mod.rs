@@ -14,16 +14,21 @@ use burstbook::catalogue::{Catalogue, DEFAULT_LOCK_WAIT};
 use burstbook::period::from_catalogue::SourceArrivals;
 use burstbook::period::times::{ArrivalTimes, Exposure, read_arrival_csv, read_exposure_csv};
 
-/// A probability (`.0`) in e-notation with `.1` digits after the point; below
-/// 1e-300, where the tail functions underflow to 0, as "<1e-300" rather than a false
-/// exact zero.
+/// A probability (`.0`) with `.1 + 1` significant digits: from 0.001 up as a decimal
+/// (`0.0698`, `1.00`), below in e-notation (`4.13e-203`); below 1e-300, where the
+/// tail functions underflow to 0, as "<1e-300" rather than a false exact zero.
 pub(crate) struct Probability(pub f64, pub usize);
 
 impl std::fmt::Display for Probability {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
         match self.0 {
             p if p < 1e-300 => f.pad("<1e-300"),
-            p => f.pad(&format!("{p:.*e}", self.1)),
+            p if p < 1e-3 || !p.is_finite() => f.pad(&format!("{p:.*e}", self.1)),
+            p => {
+                // Digits after the point: `.1` past the first significant one.
+                let leading_zeros = (-p.log10().floor()).max(0.0) as usize;
+                f.pad(&format!("{p:.*}", self.1 + leading_zeros))
+            }
         }
     }
 }
@@ -214,12 +219,25 @@ fn create(path: &Path) -> anyhow::Result<AtomicFile> {
 
 #[cfg(test)]
 mod tests {
-    use super::OnSource;
+    use super::{OnSource, Probability};
 
     #[test]
     fn time_on_source_keeps_its_digits() {
         assert_eq!(OnSource(2.5).to_string(), "2.50 d");
         assert_eq!(OnSource(0.125).to_string(), "3.00 h");
         assert_eq!(OnSource(30.0 / 86_400.0).to_string(), "30.0 s");
+    }
+
+    #[test]
+    fn probabilities_read_as_decimals_down_to_a_thousandth() {
+        let shown = |p: f64| format!("{}", Probability(p, 2));
+        assert_eq!(shown(1.0), "1.00");
+        assert_eq!(shown(0.5), "0.500");
+        assert_eq!(shown(0.0698), "0.0698");
+        assert_eq!(shown(0.001), "0.00100");
+        assert_eq!(shown(9.99e-4), "9.99e-4");
+        assert_eq!(shown(4.132e-203), "4.13e-203");
+        assert_eq!(shown(0.0), "<1e-300");
+        assert_eq!(format!("{:>8}", Probability(0.25, 1)), "    0.25");
     }
 }
