@@ -53,16 +53,15 @@ impl RunOn {
         self.header.n_samples - self.first.header().n_samples
     }
 
-    /// Reads with `read_first` until `first` ends, then at most the remaining extra
-    /// rows with `read_next`, which ends the rows on an error.
+    /// Reads with `read` from `first` until it ends, then at most the remaining extra
+    /// rows from `next`, where an error ends the rows.
     fn read_with<T>(
         &mut self,
         out: &mut [T],
-        read_first: impl FnOnce(&mut dyn SampleSource, &mut [T]) -> Result<usize>,
-        read_next: impl FnOnce(&mut dyn SampleSource, &mut [T]) -> Result<usize>,
+        read: impl Fn(&mut dyn SampleSource, &mut [T]) -> Result<usize>,
     ) -> Result<usize> {
         if !self.in_next {
-            let got = read_first(&mut *self.first, out)?;
+            let got = read(&mut *self.first, out)?;
             if got > 0 {
                 return Ok(got);
             }
@@ -70,7 +69,7 @@ impl RunOn {
         }
         let n_chan = self.header.n_chan();
         let want = (out.len() / n_chan).min(usize::try_from(self.extra).unwrap_or(usize::MAX));
-        let got = read_next(&mut *self.next, &mut out[..want * n_chan]).unwrap_or(0);
+        let got = read(&mut *self.next, &mut out[..want * n_chan]).unwrap_or(0);
         // After an error or the end of `next`, nothing more.
         self.extra = if got == 0 { 0 } else { self.extra - got as u64 };
         Ok(got)
@@ -83,7 +82,7 @@ impl SampleSource for RunOn {
     }
 
     fn read_rows(&mut self, out: &mut [f32]) -> Result<usize> {
-        self.read_with(out, |s, out| s.read_rows(out), |s, out| s.read_rows(out))
+        self.read_with(out, |s, out| s.read_rows(out))
     }
 
     fn byte_rows(&mut self) -> Option<&mut dyn ByteRows> {
@@ -96,11 +95,10 @@ impl SampleSource for RunOn {
 
 impl ByteRows for RunOn {
     fn read_byte_rows(&mut self, out: &mut [u8]) -> Result<usize> {
-        let read = |s: &mut dyn SampleSource, out: &mut [u8]| match s.byte_rows() {
+        self.read_with(out, |s, out| match s.byte_rows() {
             Some(b) => b.read_byte_rows(out),
             None => Err(Error::Config("byte reads of a source that has none".into())),
-        };
-        self.read_with(out, read, read)
+        })
     }
 }
 
