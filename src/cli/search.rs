@@ -166,14 +166,7 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         }
         files.push(FileOutcome::Failed { file, error });
     };
-    // A file read on into another is searched before it, so that the other can leave
-    // it the events both saw (`search::drop_repeats_across_cut`); `done[k]` is the
-    // file of `files[k]`, and `files` is put back in the order given at the end.
-    let previous = previous_files(&continuations);
-    let mut done = Vec::with_capacity(paths.len());
-    for i in previous_first(&previous) {
-        let (path, next) = (paths[i], continuations[i]);
-        done.push(i);
+    for (path, next) in paths.iter().zip(continuations) {
         let started_utc = burstbook::catalogue::now_utc();
         let label = path.display().to_string();
         let source = match burstbook::obs::open(path) {
@@ -238,7 +231,7 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         let result =
             search::search_run_on_in(&mut workspace, source, next, &label, &config, Some(&bar));
         bar.finish_and_clear();
-        let mut result = match result {
+        let result = match result {
             Ok(result) => result,
             Err(e) => {
                 fail(&mut files, label, e.to_string());
@@ -246,17 +239,6 @@ pub fn run(args: Args) -> anyhow::Result<()> {
             }
         };
         let wall_s = clock.elapsed().as_secs_f64();
-        if let Some(p) = previous[i] {
-            let earlier = &files[done.iter().position(|&j| j == p).unwrap_or(usize::MAX)];
-            let n = search::drop_repeats_across_cut(earlier.candidates(), &headers[p], &mut result);
-            if n > 0 {
-                say!(
-                    "{label}: {n} candidate(s) near its start left to {}, whose search read on \
-                     into it and saw them whole",
-                    paths[p].display()
-                )?;
-            }
-        }
         if let (Some(next), true) = (&next_label, result.run_on_samples > 0) {
             say!(
                 "{label}: read on {:.2} s into {next}, which continues it, so that sweeps \
@@ -301,9 +283,6 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         )?;
         files.push(FileOutcome::Searched(Box::new(result)));
     }
-    let mut in_order: Vec<(usize, FileOutcome)> = done.into_iter().zip(files).collect();
-    in_order.sort_by_key(|&(i, _)| i);
-    let files: Vec<FileOutcome> = in_order.into_iter().map(|(_, f)| f).collect();
     let failed: Vec<(&str, &str)> = files
         .iter()
         .filter_map(|f| match f {
@@ -351,41 +330,6 @@ fn continuations(headers: &[burstbook::obs::Header]) -> Vec<Option<usize>> {
                 .find(continues)
         })
         .collect()
-}
-
-/// For each recording, the one read on into it, if any (the inverse of
-/// [`continuations`]).
-fn previous_files(continuations: &[Option<usize>]) -> Vec<Option<usize>> {
-    let mut previous = vec![None; continuations.len()];
-    for (i, next) in continuations.iter().enumerate() {
-        if let Some(&j) = next.as_ref() {
-            previous[j].get_or_insert(i);
-        }
-    }
-    previous
-}
-
-/// The order to search in: the order given, except that a recording read on into
-/// another comes before it.
-fn previous_first(previous: &[Option<usize>]) -> Vec<usize> {
-    let mut order = Vec::with_capacity(previous.len());
-    let mut placed = vec![false; previous.len()];
-    for i in 0..previous.len() {
-        // The chain of recordings before `i` not yet placed, earliest last.
-        let mut chain = vec![i];
-        let mut at = i;
-        while let Some(p) = previous[at].filter(|&p| !placed[p] && !chain.contains(&p)) {
-            chain.push(p);
-            at = p;
-        }
-        for j in chain.into_iter().rev() {
-            if !placed[j] {
-                placed[j] = true;
-                order.push(j);
-            }
-        }
-    }
-    order
 }
 
 /// Opens `next` to read on into it from the search of `label`; a file that cannot be
@@ -506,20 +450,4 @@ fn print_summary(files: &[FileOutcome], top: usize, config: &SearchConfig) -> st
         )?;
     }
     Ok(())
-}
-
-#[cfg(test)]
-mod tests {
-    use super::{previous_files, previous_first};
-
-    // Files 3 → 1 → 0 are consecutive (3 is read on into 1, 1 into 0), 2 stands
-    // alone: each comes after the one read on into it, the rest as given.
-    #[test]
-    fn a_file_is_searched_after_the_one_read_on_into_it() {
-        let continuations = [None, Some(0), None, Some(1)];
-        let previous = previous_files(&continuations);
-        assert_eq!(previous, [Some(1), Some(3), None, None]);
-        assert_eq!(previous_first(&previous), [3, 1, 0, 2]);
-        assert_eq!(previous_first(&[None, None]), [0, 1]);
-    }
 }

@@ -367,7 +367,13 @@ impl<'a> Searcher<'a> {
                 Some(o)
             })
             .collect();
-        let sweep = sweep_of(&header);
+        let k = crate::units::DISPERSION_CONSTANT_S_MHZ2;
+        let inv_f2 = |f: f64| k / (f * f);
+        let sweep = Sweep {
+            tsamp_s: header.tsamp_s,
+            top_s_per_dm: inv_f2(header.freq_hi_mhz()),
+            band_s_per_dm: inv_f2(header.freq_lo_mhz()) - inv_f2(header.freq_hi_mhz()),
+        };
         let static_mask = static_mask(&header.freqs_mhz, &header.weights, &config.clean.masks_mhz);
         Ok(Searcher {
             label,
@@ -633,48 +639,6 @@ impl<'a> Searcher<'a> {
             run_on_samples: self.run_on_samples,
         }
     }
-}
-
-/// The dispersion sweep of recordings with `header`'s band and sampling.
-fn sweep_of(header: &Header) -> Sweep {
-    let k = crate::units::DISPERSION_CONSTANT_S_MHZ2;
-    let inv_f2 = |f: f64| k / (f * f);
-    Sweep {
-        tsamp_s: header.tsamp_s,
-        top_s_per_dm: inv_f2(header.freq_hi_mhz()),
-        band_s_per_dm: inv_f2(header.freq_lo_mhz()) - inv_f2(header.freq_hi_mhz()),
-    }
-}
-
-/// Drops from `later`, the search of the recording that continues the one whose
-/// candidates are `earlier` (with `earlier_header`), each candidate that repeats one
-/// of `earlier`'s across the cut: one on the bow-tie ([`Sweep::on_bow_tie`]) of a
-/// candidate of `earlier` at least as bright. The search of `earlier`, read on into
-/// `later`, saw such an event whole, where `later`, searched from its own first
-/// sample, sees only the part of its sweep after the cut (at a DM and start a little
-/// off, so that it falls in `later`'s own boxcar starts). Returns how many were
-/// dropped.
-pub fn drop_repeats_across_cut(
-    earlier: &[Candidate],
-    earlier_header: &Header,
-    later: &mut FileResult,
-) -> usize {
-    let sweep = sweep_of(earlier_header);
-    let offset_s = earlier_header.duration_s();
-    let event = |c: &Candidate, shift_s: f64| crate::cluster::Event {
-        t_inf_s: c.t_inf_s + shift_s,
-        dm: c.dm,
-        width_s: c.width_ms * 1e-3,
-        snr: c.snr,
-    };
-    let before = later.candidates.len();
-    later.candidates.retain(|c| {
-        let repeat = event(c, offset_s);
-        !earlier
-            .iter()
-            .any(|p| p.snr >= c.snr && sweep.on_bow_tie(&event(p, 0.0), &repeat, 0.0))
-    });
-    before - later.candidates.len()
 }
 
 /// Seconds since `clock`, which is reset to now.
