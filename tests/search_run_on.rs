@@ -229,3 +229,40 @@ fn the_command_joins_consecutive_files_unless_told_not_to() {
     assert!(!String::from_utf8_lossy(&run.stdout).contains("read on"));
     assert_eq!(near(&candidate_dms(&out, "a.json")), 0);
 }
+
+// A burst whose sweep starts at the cut, or a few samples either side of it, is
+// reported by exactly one of the two files, as the file it starts in, at the S/N
+// and DM the whole recording gives it: the later file, searched from its own first
+// sample, must not report the part of the sweep that falls in it as a second
+// candidate.
+#[test]
+fn a_burst_at_the_cut_is_reported_by_one_file_only() {
+    let whole = header(N_CHAN, N, TSAMP);
+    let c = config();
+    for (k, offset) in [-3.0, -1.0, 0.0, 1.0, 3.0].into_iter().enumerate() {
+        let b = burst_at_top(&whole, N_FIRST as f64 + offset, 250.0, 25.0);
+        let mut data = noise(&whole, 50 + k as u64);
+        add(&whole, &mut data, &b);
+        let [(h1, d1), (h2, d2)] = split(&whole, &data);
+        let first = search_run_on_in(
+            &mut Workspace::default(),
+            source(h1, d1),
+            Some(source(h2.clone(), d2.clone())),
+            "first",
+            &c,
+            None,
+        )
+        .unwrap();
+        let second = search_source(source(h2, d2), "second", &c, None).unwrap();
+        let t_in_second = b.t_inf_s - N_FIRST as f64 * TSAMP;
+        let hits: Vec<&Candidate> = found(&first, b.t_inf_s, b.dm)
+            .into_iter()
+            .chain(found(&second, t_in_second, b.dm))
+            .collect();
+        assert_eq!(
+            hits.len(),
+            1,
+            "top-channel arrival {offset} samples after the cut: {hits:#?}"
+        );
+    }
+}
