@@ -266,3 +266,37 @@ fn a_burst_at_the_cut_is_reported_by_one_file_only() {
         );
     }
 }
+
+// A file searched on its own into a catalogue (its successor not yet written, as
+// when a survey searches each file as it arrives), then listed again with the file
+// that continues it: the crossing burst is found then. The earlier search did not
+// read on, so it is not the search that joining makes, and skipping the first file
+// as already searched loses the burst for good.
+#[test]
+fn a_file_searched_alone_is_joined_when_its_successor_comes() {
+    let dir = tempfile::tempdir().unwrap();
+    let ([a, b], dm) = write_consecutive_files(dir.path());
+    let catalogue = dir.path().join("survey.sqlite");
+    let search = |files: &[&Path], out: &Path| {
+        let mut args: Vec<&std::ffi::OsStr> = vec!["search".as_ref()];
+        args.extend(files.iter().map(|f| f.as_os_str()));
+        args.extend::<[&std::ffi::OsStr; 5]>([
+            "--out".as_ref(),
+            out.as_os_str(),
+            "--catalogue".as_ref(),
+            catalogue.as_os_str(),
+            "--dm-max".as_ref(),
+        ]);
+        args.push("300".as_ref());
+        let run = burstbook(&args);
+        assert_success(&run);
+        String::from_utf8_lossy(&run.stdout).into_owned()
+    };
+    let near = |dms: &[f64]| dms.iter().filter(|&&d| (d - dm).abs() < 0.1 * dm).count();
+    let alone = dir.path().join("alone");
+    search(&[&a], &alone);
+    assert_eq!(near(&candidate_dms(&alone, "a.json")), 0);
+    let joined = dir.path().join("joined");
+    let stdout = search(&[&a, &b], &joined);
+    assert_eq!(near(&candidate_dms(&joined, "a.json")), 1, "{stdout}");
+}
