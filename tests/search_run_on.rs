@@ -300,3 +300,51 @@ fn a_file_searched_alone_is_joined_when_its_successor_comes() {
     let stdout = search(&[&a, &b], &joined);
     assert_eq!(near(&candidate_dms(&joined, "a.json")), 1, "{stdout}");
 }
+
+/// A recording that continues another but whose every read fails (a sample that is
+/// not finite, a disk error).
+struct Unreadable(Header);
+
+impl obs::SampleSource for Unreadable {
+    fn header(&self) -> &Header {
+        &self.0
+    }
+    fn read_rows(&mut self, _: &mut [f32]) -> burstbook::Result<usize> {
+        Err(burstbook::Error::bad_input("second", "sample 0 is NaN"))
+    }
+}
+
+// When the next file cannot be read, the first is searched as on its own, to its
+// last sample, even when its last block ends exactly where the file does (the block
+// then looks like one more is to come, and none does); and it is not said to have
+// read on into the next.
+#[test]
+fn an_unreadable_next_file_leaves_the_first_searched_to_its_end() {
+    let whole = header(N_CHAN, N, TSAMP);
+    // A burst in the first file's last block, all of its sweep in that file.
+    let tail = burst_at_top(&whole, N_FIRST as f64 - 100.0, 50.0, 20.0);
+    let mut data = noise(&whole, 47);
+    add(&whole, &mut data, &tail);
+    let [(h1, d1), (h2, _)] = split(&whole, &data);
+    let mut c = config();
+    let overlap = burstbook::search::block_layout(&h1, &c).unwrap().overlap as u64;
+    // Blocks of `N_FIRST - overlap` new rows: the second block ends at the file's end.
+    let advance = N_FIRST - overlap;
+    assert!(advance >= overlap, "overlap {overlap}");
+    c.block_s = (advance as f64 - 0.5) * TSAMP;
+    let alone = search_source(source(h1.clone(), d1.clone()), "first", &c, None).unwrap();
+    let joined = search_run_on_in(
+        &mut Workspace::default(),
+        source(h1, d1),
+        Some(Box::new(Unreadable(h2))),
+        "first",
+        &c,
+        None,
+    )
+    .unwrap();
+    assert_eq!(found(&alone, tail.t_inf_s, tail.dm).len(), 1);
+    assert_eq!(joined.samples_searched, alone.samples_searched);
+    assert_eq!(joined.trials, alone.trials);
+    assert_eq!(joined.candidates, alone.candidates);
+    assert_eq!(joined.run_on_samples, 0);
+}

@@ -183,6 +183,7 @@ pub fn search_run_on_in(
         pb.set_length(n_samples);
     }
     let mut totals = Totals::default();
+    let mut rows_read = 0;
     // Candidates of one block can only repeat those within one overlap before them.
     let recent_s = g.overlap as f64 * searcher.header.tsamp_s
         + searcher.plan.max_dm() * searcher.sweep.top_s_per_dm;
@@ -197,8 +198,25 @@ pub fn search_run_on_in(
         let (reads, recycle) = prefetch(scope, source, g.block_len, advance);
         let mut first = true;
         let mut clock = Instant::now();
+        // Of the block searched last, unless it was the last one: whether it was the
+        // first, and the end of the boxcar starts it owned.
+        let mut open_end: Option<(bool, u64)> = None;
         for read in reads {
-            let Some(read) = read? else { break };
+            let Some(read) = read? else {
+                // The rows ended exactly where a block did, before the header's length:
+                // a recording read on into one that gave no rows. That block is
+                // searched again as the last one, for the boxcar starts it left to a
+                // block that never came.
+                if let Some((was_first, from)) = open_end {
+                    let none = Appended {
+                        new_samples: 0,
+                        masked_fraction: 0.0,
+                    };
+                    let outcome = searcher.block(&channels, was_first, true, none, from);
+                    totals.add(outcome, &searcher.sweep, recent_s);
+                }
+                break;
+            };
             let reading = lap(&mut clock);
             let asked = if first { g.block_len } else { advance };
             let end = read.start_sample + read.n_time() as u64;
@@ -216,10 +234,13 @@ pub fn search_run_on_in(
             // The reader may have ended already; then the buffer is simply dropped.
             let _ = recycle.send(read.rows);
             let cleaning = lap(&mut clock);
-            let mut outcome = searcher.block(&channels, first, last, appended);
+            let mut outcome = searcher.block(&channels, first, last, appended, 0);
             outcome.seconds.reading = reading;
             outcome.seconds.cleaning = cleaning;
             totals.add(outcome, &searcher.sweep, recent_s);
+            rows_read = end;
+            let (start, n_time) = (channels.start_sample(), channels.n_time());
+            open_end = (!last).then(|| (first, g.owned_range(start, n_time, first, false).1));
             first = false;
             if let Some(pb) = progress {
                 pb.set_position(end);
@@ -231,6 +252,8 @@ pub fn search_run_on_in(
         }
         Ok(())
     })?;
+    // Only the rows of the next recording that could be read were read on into.
+    searcher.run_on_samples = rows_read.saturating_sub(searcher.header.n_samples);
     workspace.fast = searcher.fast.take().or(workspace.fast.take());
     workspace.channels = channels.into_buffer();
     Ok(searcher.finish(totals))
@@ -391,13 +414,15 @@ impl<'a> Searcher<'a> {
         })
     }
 
-    /// Searches the block in `channels`, whose last rows were just `appended`.
+    /// Searches the block in `channels`, whose last rows were just `appended`, for
+    /// the boxcar starts it owns from sample `from` on.
     fn block(
         &mut self,
         channels: &ChannelBlock,
         first: bool,
         last: bool,
         appended: Appended,
+        from: u64,
     ) -> BlockOutcome {
         let g = &self.layout;
         let (start, n_time) = (channels.start_sample(), channels.n_time());
@@ -421,6 +446,7 @@ impl<'a> Searcher<'a> {
             None => dedisperse::reference::dedisperse_over(norm, &self.plan, extent),
         };
         let (own_lo, own_hi) = g.owned_range(start, n_time, first, last);
+        let own_lo = own_lo.max(from);
         // Boxcars starting in the rows read on into belong to the next recording.
         let own_hi = own_hi.min(self.header.n_samples);
         // Boxcar starts tested, relative to the block start (see the module docs).
