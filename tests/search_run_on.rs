@@ -348,3 +348,50 @@ fn an_unreadable_next_file_leaves_the_first_searched_to_its_end() {
     assert_eq!(joined.candidates, alone.candidates);
     assert_eq!(joined.run_on_samples, 0);
 }
+
+// A file shorter than the rows read on into (a recording interrupted and resumed, a
+// short file between two long ones) is read through into the file after it: a burst
+// whose sweep starts in the first file and crosses the short one into the third is
+// found by the first, once, as in the recording searched whole.
+#[test]
+fn a_short_file_is_read_through_into_the_one_after_it() {
+    let dir = tempfile::tempdir().unwrap();
+    let whole = header(N_CHAN, N, TSAMP);
+    // The sweep at DM 250 lasts 0.32 s; the middle file holds 0.05 s.
+    let crossing = burst_at_top(&whole, N_FIRST as f64 - 100.0, 250.0, 25.0);
+    let mut data = noise(&whole, 44);
+    add(&whole, &mut data, &crossing);
+    let cuts = [0, N_FIRST, N_FIRST + 50, N];
+    let paths: Vec<_> = ["a.json", "b.json", "c.json"]
+        .iter()
+        .map(|name| dir.path().join(name))
+        .collect();
+    for (k, path) in paths.iter().enumerate() {
+        let mut h = whole.clone();
+        h.start = whole.epoch_of_sample(cuts[k] as f64);
+        h.n_samples = cuts[k + 1] - cuts[k];
+        let rows = &data[cuts[k] as usize * N_CHAN..cuts[k + 1] as usize * N_CHAN];
+        let mut sink = obs::create(path, &h, Container::Native).unwrap();
+        sink.write_rows(rows).unwrap();
+        sink.finish().unwrap();
+    }
+    let out = dir.path().join("out");
+    let mut args: Vec<&std::ffi::OsStr> = vec!["search".as_ref()];
+    args.extend(paths.iter().map(|p| p.as_os_str()));
+    args.extend::<[&std::ffi::OsStr; 5]>([
+        "--out".as_ref(),
+        out.as_os_str(),
+        "--no-catalogue".as_ref(),
+        "--dm-max".as_ref(),
+        "300".as_ref(),
+    ]);
+    let run = burstbook(&args);
+    assert_success(&run);
+    let stdout = String::from_utf8_lossy(&run.stdout);
+    let dm = crossing.dm;
+    let near = |dms: &[f64]| dms.iter().filter(|&&d| (d - dm).abs() < 0.1 * dm).count();
+    assert_eq!(near(&candidate_dms(&out, "a.json")), 1, "{stdout}");
+    assert_eq!(near(&candidate_dms(&out, "b.json")), 0, "{stdout}");
+    assert_eq!(near(&candidate_dms(&out, "c.json")), 0, "{stdout}");
+    assert!(stdout.contains("through"), "{stdout}");
+}

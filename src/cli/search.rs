@@ -166,7 +166,7 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         }
         files.push(FileOutcome::Failed { file, error });
     };
-    for (path, next) in paths.iter().zip(continuations) {
+    for (i, path) in paths.iter().enumerate() {
         let started_utc = burstbook::catalogue::now_utc();
         let label = path.display().to_string();
         let source = match burstbook::obs::open(path) {
@@ -222,10 +222,11 @@ pub fn run(args: Args) -> anyhow::Result<()> {
                 continue;
             }
         };
-        let next_label = next.map(|j| paths[j].display().to_string());
-        let next = next_label
-            .as_deref()
-            .and_then(|next| open_continuation(next, &label, &config));
+        let next_labels: Vec<String> = run_on_chain(i, &headers, &continuations, &config)
+            .into_iter()
+            .map(|j| paths[j].display().to_string())
+            .collect();
+        let next = open_run_on(&next_labels, &label, &config);
         let bar = burstbook::progress::bar(source.header().n_samples, &label);
         let clock = std::time::Instant::now();
         let result =
@@ -239,12 +240,32 @@ pub fn run(args: Args) -> anyhow::Result<()> {
             }
         };
         let wall_s = clock.elapsed().as_secs_f64();
-        if let (Some(next), true) = (&next_label, result.run_on_samples > 0) {
-            say!(
-                "{label}: read on {:.2} s into {next}, which continues it, so that sweeps \
-                 crossing into it were searched",
-                result.run_on_samples as f64 * result.header.tsamp_s
-            )?;
+        if result.run_on_samples > 0 {
+            // The files the rows read on into reached.
+            let mut left = result.run_on_samples;
+            let reached: Vec<&str> = next_labels
+                .iter()
+                .zip(run_on_chain(i, &headers, &continuations, &config))
+                .take_while(|&(_, j)| {
+                    let reached = left > 0;
+                    left = left.saturating_sub(headers[j].n_samples);
+                    reached
+                })
+                .map(|(next, _)| next.as_str())
+                .collect();
+            let run_on_s = result.run_on_samples as f64 * result.header.tsamp_s;
+            match &reached[..] {
+                [.., last] if reached.len() > 1 => say!(
+                    "{label}: read on {run_on_s:.2} s through {} into {last}, which continue \
+                     it one after another, so that sweeps crossing into them were searched",
+                    reached[..reached.len() - 1].join(", ")
+                )?,
+                _ => say!(
+                    "{label}: read on {run_on_s:.2} s into {}, which continues it, so that \
+                     sweeps crossing into it were searched",
+                    reached.join("")
+                )?,
+            }
         }
         if result.fraction_masked >= 1.0 {
             note!(
@@ -330,6 +351,75 @@ fn continuations(headers: &[burstbook::obs::Header]) -> Vec<Option<usize>> {
                 .find(continues)
         })
         .collect()
+}
+
+/// The files the search of file `i` reads on into: the one that continues it, then,
+/// while they hold fewer samples than the search's block overlap, the one that
+/// continues the last of them (a file shorter than the overlap is read through into
+/// the next, or a sweep crossing it would be cut short).
+fn run_on_chain(
+    i: usize,
+    headers: &[burstbook::obs::Header],
+    continuations: &[Option<usize>],
+    config: &SearchConfig,
+) -> Vec<usize> {
+    let overlap = search::block_layout(&headers[i], config).map_or(0, |g| g.overlap as u64);
+    let mut chain = Vec::new();
+    let mut reach = 0;
+    let mut at = continuations[i];
+    while let Some(j) = at {
+        if (reach >= overlap && !chain.is_empty()) || j == i || chain.contains(&j) {
+            break;
+        }
+        chain.push(j);
+        reach += headers[j].n_samples;
+        at = continuations[j];
+    }
+    chain
+}
+
+/// The files of `next` (each continuing the one before) opened and read on into one
+/// another, for the search of `label` to read on into; the chain stops before a file
+/// that cannot be opened (with a note), and `None` if the first cannot be.
+fn open_run_on(
+    next: &[String],
+    label: &str,
+    config: &SearchConfig,
+) -> Option<Box<dyn burstbook::obs::SampleSource>> {
+    let mut opened = Vec::new();
+    for (k, path) in next.iter().enumerate() {
+        if k == 0 {
+            match open_continuation(path, label, config) {
+                Some(source) => opened.push(source),
+                None => return None,
+            }
+            continue;
+        }
+        let source = burstbook::obs::open(std::path::Path::new(path))
+            .and_then(|source| config.average.wrap(source, path));
+        match source {
+            Ok(source) => opened.push(source),
+            Err(e) => {
+                note!(
+                    "{label}: read on only as far as the end of {}, as {path}, which \
+                     continues it, cannot be read: {e}",
+                    next[k - 1]
+                );
+                break;
+            }
+        }
+    }
+    let mut run_on: Option<Box<dyn burstbook::obs::SampleSource>> = None;
+    for source in opened.into_iter().rev() {
+        run_on = Some(match run_on {
+            None => source,
+            Some(rest) => {
+                let extra = rest.header().n_samples;
+                Box::new(burstbook::obs::RunOn::new(source, rest, extra).ok()?)
+            }
+        });
+    }
+    run_on
 }
 
 /// Opens `next` to read on into it from the search of `label`; a file that cannot be
