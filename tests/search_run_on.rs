@@ -395,3 +395,49 @@ fn a_short_file_is_read_through_into_the_one_after_it() {
     assert_eq!(near(&candidate_dms(&out, "c.json")), 0, "{stdout}");
     assert!(stdout.contains("through"), "{stdout}");
 }
+
+// A file shorter than a sweep at the highest DM (0.2 s here, the sweep at DM 250
+// lasting 0.32 s), read on into a long one, is searched at every trial DM: a burst
+// starting in it is found by it, as in the recording searched whole. Its plan was
+// cut to the DMs whose sweep fits in the short file alone, though the rows read on
+// into hold the rest of the sweep.
+#[test]
+fn a_short_file_read_on_into_a_long_one_is_searched_at_every_dm() {
+    let whole = header(N_CHAN, N, TSAMP);
+    let (lo, hi) = (N_FIRST - 200, N_FIRST);
+    let b = burst_at_top(&whole, lo as f64 + 100.0, 250.0, 25.0);
+    let mut data = noise(&whole, 45);
+    add(&whole, &mut data, &b);
+    let part = |from: u64, to: u64| {
+        let mut h = whole.clone();
+        h.start = whole.epoch_of_sample(from as f64);
+        h.n_samples = to - from;
+        let rows = data[from as usize * N_CHAN..to as usize * N_CHAN].to_vec();
+        source(h, rows)
+    };
+    let c = config();
+    let all = search_source(source(whole.clone(), data.clone()), "whole", &c, None).unwrap();
+    assert_eq!(
+        found(&all, b.t_inf_s, b.dm).len(),
+        1,
+        "{:#?}",
+        all.candidates
+    );
+    let short = search_run_on_in(
+        &mut Workspace::default(),
+        part(lo, hi),
+        Some(part(hi, N)),
+        "short",
+        &c,
+        None,
+    )
+    .unwrap();
+    let t_in_short = b.t_inf_s - lo as f64 * TSAMP;
+    assert_eq!(
+        found(&short, t_in_short, b.dm).len(),
+        1,
+        "highest DM searched {:?}: {:#?}",
+        short.highest_dm_searched(),
+        short.candidates
+    );
+}
