@@ -441,3 +441,66 @@ fn a_short_file_read_on_into_a_long_one_is_searched_at_every_dm() {
         short.candidates
     );
 }
+
+// With --average-samples, consecutive files whose first is not a whole number of
+// averaged samples long (12 samples over a multiple of 16 here) are still joined: the
+// crossing burst, found in the recording searched whole with the same averaging, is
+// found. The averaged first file ends up to a group early (its last partial group
+// dropped), and more than half an averaged sample before the next file starts, so it
+// is no longer seen as continued and each file was searched alone.
+#[test]
+fn averaged_files_are_joined_whatever_the_first_length() {
+    let dir = tempfile::tempdir().unwrap();
+    let whole = header(N_CHAN, N, TSAMP);
+    let cut = N_FIRST + 12;
+    let crossing = burst_at_top(&whole, cut as f64 - 100.0, 250.0, 40.0);
+    let mut data = noise(&whole, 46);
+    add(&whole, &mut data, &crossing);
+    let cuts = [0, cut, N];
+    let paths: Vec<_> = ["a.json", "b.json", "whole.json"]
+        .iter()
+        .map(|name| dir.path().join(name))
+        .collect();
+    for (k, path) in paths.iter().enumerate() {
+        let (from, to) = if k == 2 {
+            (0, N)
+        } else {
+            (cuts[k], cuts[k + 1])
+        };
+        let mut h = whole.clone();
+        h.start = whole.epoch_of_sample(from as f64);
+        h.n_samples = to - from;
+        let mut sink = obs::create(path, &h, Container::Native).unwrap();
+        sink.write_rows(&data[from as usize * N_CHAN..to as usize * N_CHAN])
+            .unwrap();
+        sink.finish().unwrap();
+    }
+    let search = |files: &[&std::path::PathBuf], out: &Path| {
+        let mut args: Vec<&std::ffi::OsStr> = vec!["search".as_ref()];
+        args.extend(files.iter().map(|p| p.as_os_str()));
+        args.extend::<[&std::ffi::OsStr; 7]>([
+            "--out".as_ref(),
+            out.as_os_str(),
+            "--no-catalogue".as_ref(),
+            "--dm-max".as_ref(),
+            "300".as_ref(),
+            "--average-samples".as_ref(),
+            "16".as_ref(),
+        ]);
+        let run = burstbook(&args);
+        assert_success(&run);
+        String::from_utf8_lossy(&run.stdout).into_owned()
+    };
+    let dm = crossing.dm;
+    let near = |dms: &[f64]| dms.iter().filter(|&&d| (d - dm).abs() < 0.2 * dm).count();
+    let out_whole = dir.path().join("out-whole");
+    let stdout = search(&[&paths[2]], &out_whole);
+    assert_eq!(
+        near(&candidate_dms(&out_whole, "whole.json")),
+        1,
+        "{stdout}"
+    );
+    let out = dir.path().join("out");
+    let stdout = search(&[&paths[0], &paths[1]], &out);
+    assert_eq!(near(&candidate_dms(&out, "a.json")), 1, "{stdout}");
+}
