@@ -279,13 +279,14 @@ impl Header {
     /// recording do: every field but the start and the length the same, and `next`
     /// starting where this one ends, to within half a sample.
     pub fn is_continued_by(&self, next: &Header) -> bool {
-        let same_setup = self
-            .differing_fields(next)
-            .into_iter()
-            .all(|field| field == "start" || field == "n_samples");
+        // The start first: it rules out nearly every pair of a long list at once, and
+        // comparing every field (channel by channel) costs a microsecond.
         let end = self.epoch_of_sample(self.n_samples as f64);
-        same_setup
-            && seconds_between(end, next.start).is_some_and(|gap| gap.abs() <= 0.5 * self.tsamp_s)
+        seconds_between(end, next.start).is_some_and(|gap| gap.abs() <= 0.5 * self.tsamp_s)
+            && self
+                .differing_fields(next)
+                .into_iter()
+                .all(|field| field == "start" || field == "n_samples")
     }
 
     /// Checks the invariants every reader and writer relies on.
