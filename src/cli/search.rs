@@ -144,6 +144,10 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         true => vec![None; paths.len()],
         false => continuations(&headers),
     };
+    // For each file, the files its search reads on into.
+    let chains: Vec<Vec<usize>> = (0..paths.len())
+        .map(|i| run_on_chain(i, &headers, &continuations, &config))
+        .collect();
     std::fs::create_dir_all(&args.out)
         .with_context(|| format!("cannot create output directory {}", args.out.display()))?;
     // Opened first, so a bad catalogue stops us before hours of searching.
@@ -166,7 +170,11 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         }
         files.push(FileOutcome::Failed { file, error });
     };
-    for (i, path) in paths.iter().enumerate() {
+    // A file after the files it continues, so that it can leave out the pulses they
+    // found across the cut.
+    let order = search_order(&continuations);
+    for &i in &order {
+        let path = paths[i];
         let started_utc = burstbook::catalogue::now_utc();
         let label = path.display().to_string();
         let source = match burstbook::obs::open(path) {
@@ -222,9 +230,9 @@ pub fn run(args: Args) -> anyhow::Result<()> {
                 continue;
             }
         };
-        let next_labels: Vec<String> = run_on_chain(i, &headers, &continuations, &config)
-            .into_iter()
-            .map(|j| paths[j].display().to_string())
+        let next_labels: Vec<String> = chains[i]
+            .iter()
+            .map(|&j| paths[j].display().to_string())
             .collect();
         let next = open_run_on(&next_labels, &label, &config);
         let bar = burstbook::progress::bar(source.header().n_samples, &label);
@@ -232,21 +240,40 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         let result =
             search::search_run_on_in(&mut workspace, source, next, &label, &config, Some(&bar));
         bar.finish_and_clear();
-        let result = match result {
+        let mut result = match result {
             Ok(result) => result,
             Err(e) => {
                 fail(&mut files, label, e.to_string());
                 continue;
             }
         };
+        // Each outcome so far is that of the file at its place in `order`.
+        for (p, offset_s) in read_on_from(i, &headers, &chains) {
+            let Some(at) = order[..files.len()].iter().position(|&j| j == p) else {
+                continue;
+            };
+            let repeats = search::drop_repeats_across_cut(
+                &result.header,
+                files[at].candidates(),
+                offset_s,
+                &mut result.candidates,
+            );
+            if repeats > 0 {
+                say!(
+                    "{label}: {repeats} candidate(s) near its start left out, the same \
+                     pulses as found by {}, which it continues, across the cut",
+                    paths[p].display()
+                )?;
+            }
+        }
         let wall_s = clock.elapsed().as_secs_f64();
         if result.run_on_samples > 0 {
             // The files the rows read on into reached.
             let mut left = result.run_on_samples;
             let reached: Vec<&str> = next_labels
                 .iter()
-                .zip(run_on_chain(i, &headers, &continuations, &config))
-                .take_while(|&(_, j)| {
+                .zip(&chains[i])
+                .take_while(|&(_, &j)| {
                     let reached = left > 0;
                     left = left.saturating_sub(headers[j].n_samples);
                     reached
@@ -353,6 +380,63 @@ fn continuations(headers: &[burstbook::obs::Header]) -> Vec<Option<usize>> {
         .collect()
 }
 
+/// The order to search the files in: as listed, but each after the file it
+/// continues.
+fn search_order(continuations: &[Option<usize>]) -> Vec<usize> {
+    let mut before: Vec<Vec<usize>> = vec![Vec::new(); continuations.len()];
+    for (p, next) in continuations.iter().enumerate() {
+        if let Some(i) = *next {
+            before[i].push(p);
+        }
+    }
+    let mut order = Vec::with_capacity(continuations.len());
+    let mut placed = vec![false; continuations.len()];
+    for i in 0..continuations.len() {
+        // The files before `i`, back to the first of the recording, then `i`.
+        let mut stack = vec![(i, false)];
+        while let Some((j, ready)) = stack.pop() {
+            if placed[j] {
+                continue;
+            }
+            if ready {
+                placed[j] = true;
+                order.push(j);
+                continue;
+            }
+            stack.push((j, true));
+            stack.extend(
+                before[j]
+                    .iter()
+                    .filter(|&&p| !placed[p])
+                    .map(|&p| (p, false)),
+            );
+        }
+    }
+    order
+}
+
+/// The files whose search reads on into file `i`, with the seconds from the start
+/// of each to the start of `i`.
+fn read_on_from(
+    i: usize,
+    headers: &[burstbook::obs::Header],
+    chains: &[Vec<usize>],
+) -> Vec<(usize, f64)> {
+    chains
+        .iter()
+        .enumerate()
+        .filter(|&(p, _)| p != i)
+        .filter_map(|(p, chain)| {
+            let at = chain.iter().position(|&j| j == i)?;
+            let offset_s = std::iter::once(p)
+                .chain(chain[..at].iter().copied())
+                .map(|j| headers[j].duration_s())
+                .sum();
+            Some((p, offset_s))
+        })
+        .collect()
+}
+
 /// The files the search of file `i` reads on into: the one that continues it, then,
 /// while they hold fewer samples than the search's block overlap, the one that
 /// continues the last of them (a file shorter than the overlap is read through into
@@ -363,6 +447,9 @@ fn run_on_chain(
     continuations: &[Option<usize>],
     config: &SearchConfig,
 ) -> Vec<usize> {
+    if continuations[i].is_none() {
+        return Vec::new();
+    }
     let overlap = search::block_layout(&headers[i], config).map_or(0, |g| g.overlap as u64);
     let mut chain = Vec::new();
     let mut reach = 0;

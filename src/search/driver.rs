@@ -259,6 +259,45 @@ pub fn search_run_on_in(
     Ok(searcher.finish(totals))
 }
 
+/// Removes from `later`, the candidates of a recording that continues one whose
+/// candidates are `earlier` and which starts `offset_s` after that one, those that
+/// repeat a candidate of `earlier` across the cut, and returns how many. A pulse near
+/// the cut is found whole by the earlier recording, which reads on into the later one,
+/// and again, cut short, by the later one, which starts at its own first sample and so
+/// cannot see that the pulse's best boxcar starts before it: a later candidate on the
+/// bow-tie of an earlier one ([`Sweep::on_bow_tie`], as repeats between the blocks
+/// of one recording are found), or the other way round, is the same pulse, and the
+/// earlier recording's candidate stands for it. `header` is the later recording's.
+pub fn drop_repeats_across_cut(
+    header: &Header,
+    earlier: &[Candidate],
+    offset_s: f64,
+    later: &mut Vec<Candidate>,
+) -> usize {
+    let k = crate::units::DISPERSION_CONSTANT_S_MHZ2;
+    let inv_f2 = |f: f64| k / (f * f);
+    let sweep = Sweep {
+        tsamp_s: header.tsamp_s,
+        top_s_per_dm: inv_f2(header.freq_hi_mhz()),
+        band_s_per_dm: inv_f2(header.freq_lo_mhz()) - inv_f2(header.freq_hi_mhz()),
+    };
+    let event = |c: &Candidate, shift_s: f64| crate::cluster::Event {
+        t_inf_s: c.t_inf_s + shift_s,
+        dm: c.dm,
+        width_s: c.width_ms * 1e-3,
+        snr: c.snr,
+    };
+    let before = later.len();
+    later.retain(|l| {
+        let l = event(l, offset_s);
+        !earlier.iter().any(|e| {
+            let e = event(e, 0.0);
+            sweep.on_bow_tie(&e, &l, 0.0) || sweep.on_bow_tie(&l, &e, 0.0)
+        })
+    });
+    before - later.len()
+}
+
 /// The block layout a search of a recording with `header` would use.
 ///
 /// # Errors
