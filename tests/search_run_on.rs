@@ -560,3 +560,39 @@ fn the_command_reports_a_burst_at_the_cut_once() {
     assert_eq!((in_a, in_b), (1, 0), "{stdout}");
     assert!(stdout.contains("left out"), "{stdout}");
 }
+
+// A file that starts where another ends but is not joined to it (here its header
+// names another source) gets a note naming the field, on standard error: the sweep
+// crossing between them is missed, and the user should know why.
+#[test]
+fn a_file_following_another_but_not_joined_gets_a_note() {
+    let dir = tempfile::tempdir().unwrap();
+    let ([a, b], _) = write_consecutive_files(dir.path());
+    let mut json: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&b).unwrap()).unwrap();
+    json["source"] = "ANOTHER FIELD".into();
+    std::fs::write(&b, json.to_string()).unwrap();
+    let out = dir.path().join("out");
+    let run = burstbook(&[
+        "search".as_ref(),
+        a.as_os_str(),
+        b.as_os_str(),
+        "--out".as_ref(),
+        out.as_os_str(),
+        "--no-catalogue".as_ref(),
+        "--dm-max".as_ref(),
+        "300".as_ref(),
+    ]);
+    assert_success(&run);
+    let stderr = String::from_utf8_lossy(&run.stderr);
+    let notes: Vec<&str> = stderr
+        .lines()
+        .filter(|l| l.contains("not joined"))
+        .collect();
+    assert_eq!(notes.len(), 1, "{stderr}");
+    assert!(
+        notes[0].contains("b.json") && notes[0].contains("a.json") && notes[0].contains("source"),
+        "{stderr}"
+    );
+    assert!(!String::from_utf8_lossy(&run.stdout).contains("read on"));
+}

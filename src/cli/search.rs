@@ -142,7 +142,11 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     let headers = search::check_files(&paths, &config)?;
     let continuations = match args.no_join {
         true => vec![None; paths.len()],
-        false => continuations(&headers),
+        false => {
+            let continuations = continuations(&headers);
+            note_near_misses(&paths, &headers, &continuations);
+            continuations
+        }
     };
     // For each file, the files its search reads on into.
     let chains: Vec<Vec<usize>> = (0..paths.len())
@@ -378,6 +382,50 @@ fn continuations(headers: &[burstbook::obs::Header]) -> Vec<Option<usize>> {
                 .find(continues)
         })
         .collect()
+}
+
+/// A note for each file that starts within a sample of where another listed file
+/// ends, yet does not continue it (a header field differs, or the gap is over half
+/// a sample, as when averaging drops a last partial group of samples): the two are
+/// searched apart, and a sweep crossing from one into the other is missed.
+fn note_near_misses(
+    paths: &[&PathBuf],
+    headers: &[burstbook::obs::Header],
+    continuations: &[Option<usize>],
+) {
+    let continued: std::collections::HashSet<usize> =
+        continuations.iter().flatten().copied().collect();
+    for (i, h) in headers.iter().enumerate() {
+        if continuations[i].is_some() {
+            continue;
+        }
+        for (j, next) in headers.iter().enumerate() {
+            let Some(gap_s) = h.seconds_to(next) else {
+                continue;
+            };
+            if j == i || continued.contains(&j) || gap_s.abs() > h.tsamp_s {
+                continue;
+            }
+            let fields: Vec<&str> = h
+                .differing_fields(next)
+                .into_iter()
+                .filter(|&f| f != "start" && f != "n_samples")
+                .collect();
+            let why = match fields.is_empty() {
+                true => format!(
+                    "it starts {:.2} samples after that one ends, over half a sample",
+                    gap_s / h.tsamp_s
+                ),
+                false => format!("their headers differ in {}", fields.join(", ")),
+            };
+            note!(
+                "{}: not joined to {}, which it follows, as {why}: each is searched on its \
+                 own, and a sweep crossing from one into the other is missed",
+                paths[j].display(),
+                paths[i].display()
+            );
+        }
+    }
 }
 
 /// The order to search the files in: as listed, but each after the file it
