@@ -8,7 +8,9 @@ mod common;
 use std::path::Path;
 
 use burstbook::obs::{self, Container, Header};
-use burstbook::search::{FileResult, SearchConfig, Workspace, search_run_on_in, search_source};
+use burstbook::search::{
+    FileResult, SearchConfig, Workspace, drop_repeats_across_cut, search_run_on_in, search_source,
+};
 use burstbook::simulate::{Burst, expected_snr};
 use burstbook::{Candidate, Verdict};
 use cli_common::{assert_success, burstbook};
@@ -140,9 +142,19 @@ fn a_sweep_crossing_into_the_next_file_is_found_once() {
 /// Writes the two files of a recording (8-bit native) with a burst crossing the cut
 /// into `dir`; returns their paths and the burst's DM.
 fn write_consecutive_files(dir: &Path) -> ([std::path::PathBuf; 2], f64) {
+    write_consecutive_files_at(dir, N_FIRST as f64 - 100.0, 43)
+}
+
+/// [`write_consecutive_files`] with the burst reaching the top channel at
+/// `top_sample` of the recording, and noise of `seed`.
+fn write_consecutive_files_at(
+    dir: &Path,
+    top_sample: f64,
+    seed: u64,
+) -> ([std::path::PathBuf; 2], f64) {
     let whole = header(N_CHAN, N, TSAMP);
-    let crossing = burst_at_top(&whole, N_FIRST as f64 - 100.0, 250.0, 25.0);
-    let mut data = noise(&whole, 43);
+    let crossing = burst_at_top(&whole, top_sample, 250.0, 25.0);
+    let mut data = noise(&whole, seed);
     add(&whole, &mut data, &crossing);
     let paths = ["a.json", "b.json"].map(|name| dir.join(name));
     for (path, (mut h, rows)) in paths.iter().zip(split(&whole, &data)) {
@@ -228,4 +240,359 @@ fn the_command_joins_consecutive_files_unless_told_not_to() {
     assert_success(&run);
     assert!(!String::from_utf8_lossy(&run.stdout).contains("read on"));
     assert_eq!(near(&candidate_dms(&out, "a.json")), 0);
+}
+
+// A burst whose sweep starts at the cut, or a few samples either side of it, is
+// reported by exactly one of the two files, at the S/N the whole recording gives it:
+// the later file, searched from its own first sample, finds the part of the sweep
+// that falls in it (at a DM a few percent low, and S/N 22 against 25 at one sample
+// after the cut), which `drop_repeats_across_cut` leaves out as the pulse the earlier
+// file found whole; nothing else is left out.
+#[test]
+fn a_burst_at_the_cut_is_reported_by_one_file_only() {
+    let whole = header(N_CHAN, N, TSAMP);
+    let c = config();
+    for (k, offset) in [-3.0, -1.0, 0.0, 1.0, 3.0].into_iter().enumerate() {
+        let b = burst_at_top(&whole, N_FIRST as f64 + offset, 250.0, 25.0);
+        let mut data = noise(&whole, 50 + k as u64);
+        add(&whole, &mut data, &b);
+        let [(h1, d1), (h2, d2)] = split(&whole, &data);
+        let first = search_run_on_in(
+            &mut Workspace::default(),
+            source(h1, d1),
+            Some(source(h2.clone(), d2.clone())),
+            "first",
+            &c,
+            None,
+        )
+        .unwrap();
+        let mut second = search_source(source(h2, d2), "second", &c, None).unwrap();
+        let before = second.candidates.len();
+        let left_out = drop_repeats_across_cut(
+            &second.header,
+            &first.candidates,
+            N_FIRST as f64 * TSAMP,
+            &mut second.candidates,
+        );
+        assert_eq!(second.candidates.len() + left_out, before);
+        let t_in_second = b.t_inf_s - N_FIRST as f64 * TSAMP;
+        let hits: Vec<&Candidate> = found(&first, b.t_inf_s, b.dm)
+            .into_iter()
+            .chain(found(&second, t_in_second, b.dm))
+            .collect();
+        assert_eq!(
+            hits.len(),
+            1,
+            "top-channel arrival {offset} samples after the cut: {hits:#?}"
+        );
+        assert!(
+            hits[0].snr > 0.85 * expected_snr(&whole, &b) - 2.0,
+            "{hits:#?}"
+        );
+        // Only candidates at the cut are left out.
+        assert!(left_out <= 1, "{left_out}");
+    }
+}
+
+// A file searched on its own into a catalogue (its successor not yet written, as
+// when a survey searches each file as it arrives), then listed again with the file
+// that continues it: the crossing burst is found then. The earlier search did not
+// read on, so it is not the search that joining makes, and skipping the first file
+// as already searched loses the burst for good.
+#[test]
+fn a_file_searched_alone_is_joined_when_its_successor_comes() {
+    let dir = tempfile::tempdir().unwrap();
+    let ([a, b], dm) = write_consecutive_files(dir.path());
+    let catalogue = dir.path().join("survey.sqlite");
+    let search = |files: &[&Path], out: &Path| {
+        let mut args: Vec<&std::ffi::OsStr> = vec!["search".as_ref()];
+        args.extend(files.iter().map(|f| f.as_os_str()));
+        args.extend::<[&std::ffi::OsStr; 5]>([
+            "--out".as_ref(),
+            out.as_os_str(),
+            "--catalogue".as_ref(),
+            catalogue.as_os_str(),
+            "--dm-max".as_ref(),
+        ]);
+        args.push("300".as_ref());
+        let run = burstbook(&args);
+        assert_success(&run);
+        String::from_utf8_lossy(&run.stdout).into_owned()
+    };
+    let near = |dms: &[f64]| dms.iter().filter(|&&d| (d - dm).abs() < 0.1 * dm).count();
+    let alone = dir.path().join("alone");
+    search(&[&a], &alone);
+    assert_eq!(near(&candidate_dms(&alone, "a.json")), 0);
+    let joined = dir.path().join("joined");
+    let stdout = search(&[&a, &b], &joined);
+    assert_eq!(near(&candidate_dms(&joined, "a.json")), 1, "{stdout}");
+}
+
+/// A recording that continues another but whose every read fails (a sample that is
+/// not finite, a disk error).
+struct Unreadable(Header);
+
+impl obs::SampleSource for Unreadable {
+    fn header(&self) -> &Header {
+        &self.0
+    }
+    fn read_rows(&mut self, _: &mut [f32]) -> burstbook::Result<usize> {
+        Err(burstbook::Error::bad_input("second", "sample 0 is NaN"))
+    }
+}
+
+// When the next file cannot be read, the first is searched as on its own, to its
+// last sample, even when its last block ends exactly where the file does (the block
+// then looks like one more is to come, and none does); and it is not said to have
+// read on into the next.
+#[test]
+fn an_unreadable_next_file_leaves_the_first_searched_to_its_end() {
+    let whole = header(N_CHAN, N, TSAMP);
+    // A burst in the first file's last block, all of its sweep in that file.
+    let tail = burst_at_top(&whole, N_FIRST as f64 - 100.0, 50.0, 20.0);
+    let mut data = noise(&whole, 47);
+    add(&whole, &mut data, &tail);
+    let [(h1, d1), (h2, _)] = split(&whole, &data);
+    let mut c = config();
+    let overlap = burstbook::search::block_layout(&h1, &c).unwrap().overlap as u64;
+    // Blocks of `N_FIRST - overlap` new rows: the second block ends at the file's end.
+    let advance = N_FIRST - overlap;
+    assert!(advance >= overlap, "overlap {overlap}");
+    c.block_s = (advance as f64 - 0.5) * TSAMP;
+    let alone = search_source(source(h1.clone(), d1.clone()), "first", &c, None).unwrap();
+    let joined = search_run_on_in(
+        &mut Workspace::default(),
+        source(h1, d1),
+        Some(Box::new(Unreadable(h2))),
+        "first",
+        &c,
+        None,
+    )
+    .unwrap();
+    assert_eq!(found(&alone, tail.t_inf_s, tail.dm).len(), 1);
+    assert_eq!(joined.samples_searched, alone.samples_searched);
+    assert_eq!(joined.trials, alone.trials);
+    assert_eq!(joined.candidates, alone.candidates);
+    assert_eq!(joined.run_on_samples, 0);
+}
+
+// A file shorter than the rows read on into (a recording interrupted and resumed, a
+// short file between two long ones) is read through into the file after it: a burst
+// whose sweep starts in the first file and crosses the short one into the third is
+// found by the first, once, as in the recording searched whole.
+#[test]
+fn a_short_file_is_read_through_into_the_one_after_it() {
+    let dir = tempfile::tempdir().unwrap();
+    let whole = header(N_CHAN, N, TSAMP);
+    // The sweep at DM 250 lasts 0.32 s; the middle file holds 0.05 s.
+    let crossing = burst_at_top(&whole, N_FIRST as f64 - 100.0, 250.0, 25.0);
+    let mut data = noise(&whole, 44);
+    add(&whole, &mut data, &crossing);
+    let cuts = [0, N_FIRST, N_FIRST + 50, N];
+    let paths: Vec<_> = ["a.json", "b.json", "c.json"]
+        .iter()
+        .map(|name| dir.path().join(name))
+        .collect();
+    for (k, path) in paths.iter().enumerate() {
+        let mut h = whole.clone();
+        h.start = whole.epoch_of_sample(cuts[k] as f64);
+        h.n_samples = cuts[k + 1] - cuts[k];
+        let rows = &data[cuts[k] as usize * N_CHAN..cuts[k + 1] as usize * N_CHAN];
+        let mut sink = obs::create(path, &h, Container::Native).unwrap();
+        sink.write_rows(rows).unwrap();
+        sink.finish().unwrap();
+    }
+    let out = dir.path().join("out");
+    let mut args: Vec<&std::ffi::OsStr> = vec!["search".as_ref()];
+    args.extend(paths.iter().map(|p| p.as_os_str()));
+    args.extend::<[&std::ffi::OsStr; 5]>([
+        "--out".as_ref(),
+        out.as_os_str(),
+        "--no-catalogue".as_ref(),
+        "--dm-max".as_ref(),
+        "300".as_ref(),
+    ]);
+    let run = burstbook(&args);
+    assert_success(&run);
+    let stdout = String::from_utf8_lossy(&run.stdout);
+    let dm = crossing.dm;
+    let near = |dms: &[f64]| dms.iter().filter(|&&d| (d - dm).abs() < 0.1 * dm).count();
+    assert_eq!(near(&candidate_dms(&out, "a.json")), 1, "{stdout}");
+    assert_eq!(near(&candidate_dms(&out, "b.json")), 0, "{stdout}");
+    assert_eq!(near(&candidate_dms(&out, "c.json")), 0, "{stdout}");
+    assert!(stdout.contains("through"), "{stdout}");
+}
+
+// A file shorter than a sweep at the highest DM (0.2 s here, the sweep at DM 250
+// lasting 0.32 s), read on into a long one, is searched at every trial DM: a burst
+// starting in it is found by it, as in the recording searched whole. Its plan was
+// cut to the DMs whose sweep fits in the short file alone, though the rows read on
+// into hold the rest of the sweep.
+#[test]
+fn a_short_file_read_on_into_a_long_one_is_searched_at_every_dm() {
+    let whole = header(N_CHAN, N, TSAMP);
+    let (lo, hi) = (N_FIRST - 200, N_FIRST);
+    let b = burst_at_top(&whole, lo as f64 + 100.0, 250.0, 25.0);
+    let mut data = noise(&whole, 45);
+    add(&whole, &mut data, &b);
+    let part = |from: u64, to: u64| {
+        let mut h = whole.clone();
+        h.start = whole.epoch_of_sample(from as f64);
+        h.n_samples = to - from;
+        let rows = data[from as usize * N_CHAN..to as usize * N_CHAN].to_vec();
+        source(h, rows)
+    };
+    let c = config();
+    let all = search_source(source(whole.clone(), data.clone()), "whole", &c, None).unwrap();
+    assert_eq!(
+        found(&all, b.t_inf_s, b.dm).len(),
+        1,
+        "{:#?}",
+        all.candidates
+    );
+    let short = search_run_on_in(
+        &mut Workspace::default(),
+        part(lo, hi),
+        Some(part(hi, N)),
+        "short",
+        &c,
+        None,
+    )
+    .unwrap();
+    let t_in_short = b.t_inf_s - lo as f64 * TSAMP;
+    assert_eq!(
+        found(&short, t_in_short, b.dm).len(),
+        1,
+        "highest DM searched {:?}: {:#?}",
+        short.highest_dm_searched(),
+        short.candidates
+    );
+}
+
+// With --average-samples, consecutive files whose first is not a whole number of
+// averaged samples long (12 samples over a multiple of 16 here) are still joined: the
+// crossing burst, found in the recording searched whole with the same averaging, is
+// found. The averaged first file ends up to a group early (its last partial group
+// dropped), and more than half an averaged sample before the next file starts, so it
+// is no longer seen as continued and each file was searched alone.
+#[test]
+fn averaged_files_are_joined_whatever_the_first_length() {
+    let dir = tempfile::tempdir().unwrap();
+    let whole = header(N_CHAN, N, TSAMP);
+    let cut = N_FIRST + 12;
+    let crossing = burst_at_top(&whole, cut as f64 - 100.0, 250.0, 40.0);
+    let mut data = noise(&whole, 46);
+    add(&whole, &mut data, &crossing);
+    let cuts = [0, cut, N];
+    let paths: Vec<_> = ["a.json", "b.json", "whole.json"]
+        .iter()
+        .map(|name| dir.path().join(name))
+        .collect();
+    for (k, path) in paths.iter().enumerate() {
+        let (from, to) = if k == 2 {
+            (0, N)
+        } else {
+            (cuts[k], cuts[k + 1])
+        };
+        let mut h = whole.clone();
+        h.start = whole.epoch_of_sample(from as f64);
+        h.n_samples = to - from;
+        let mut sink = obs::create(path, &h, Container::Native).unwrap();
+        sink.write_rows(&data[from as usize * N_CHAN..to as usize * N_CHAN])
+            .unwrap();
+        sink.finish().unwrap();
+    }
+    let search = |files: &[&std::path::PathBuf], out: &Path| {
+        let mut args: Vec<&std::ffi::OsStr> = vec!["search".as_ref()];
+        args.extend(files.iter().map(|p| p.as_os_str()));
+        args.extend::<[&std::ffi::OsStr; 7]>([
+            "--out".as_ref(),
+            out.as_os_str(),
+            "--no-catalogue".as_ref(),
+            "--dm-max".as_ref(),
+            "300".as_ref(),
+            "--average-samples".as_ref(),
+            "16".as_ref(),
+        ]);
+        let run = burstbook(&args);
+        assert_success(&run);
+        String::from_utf8_lossy(&run.stdout).into_owned()
+    };
+    let dm = crossing.dm;
+    let near = |dms: &[f64]| dms.iter().filter(|&&d| (d - dm).abs() < 0.2 * dm).count();
+    let out_whole = dir.path().join("out-whole");
+    let stdout = search(&[&paths[2]], &out_whole);
+    assert_eq!(
+        near(&candidate_dms(&out_whole, "whole.json")),
+        1,
+        "{stdout}"
+    );
+    let out = dir.path().join("out");
+    let stdout = search(&[&paths[0], &paths[1]], &out);
+    assert_eq!(near(&candidate_dms(&out, "a.json")), 1, "{stdout}");
+}
+
+// From the command line, with the files listed latest first: a burst reaching the top
+// channel a sample after the cut is reported once, by the first file, and a line
+// says the second file left out its repeat.
+#[test]
+fn the_command_reports_a_burst_at_the_cut_once() {
+    let dir = tempfile::tempdir().unwrap();
+    let ([a, b], dm) = write_consecutive_files_at(dir.path(), N_FIRST as f64 + 1.0, 53);
+    let out = dir.path().join("out");
+    let run = burstbook(&[
+        "search".as_ref(),
+        b.as_os_str(),
+        a.as_os_str(),
+        "--out".as_ref(),
+        out.as_os_str(),
+        "--no-catalogue".as_ref(),
+        "--dm-max".as_ref(),
+        "300".as_ref(),
+    ]);
+    assert_success(&run);
+    let stdout = String::from_utf8_lossy(&run.stdout);
+    let near = |dms: &[f64]| dms.iter().filter(|&&d| (d - dm).abs() < 0.1 * dm).count();
+    let (in_a, in_b) = (
+        near(&candidate_dms(&out, "a.json")),
+        near(&candidate_dms(&out, "b.json")),
+    );
+    assert_eq!((in_a, in_b), (1, 0), "{stdout}");
+    assert!(stdout.contains("left out"), "{stdout}");
+}
+
+// A file that starts where another ends but is not joined to it (here its header
+// names another source) gets a note naming the field, on standard error: the sweep
+// crossing between them is missed, and the user should know why.
+#[test]
+fn a_file_following_another_but_not_joined_gets_a_note() {
+    let dir = tempfile::tempdir().unwrap();
+    let ([a, b], _) = write_consecutive_files(dir.path());
+    let mut json: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&b).unwrap()).unwrap();
+    json["source"] = "ANOTHER FIELD".into();
+    std::fs::write(&b, json.to_string()).unwrap();
+    let out = dir.path().join("out");
+    let run = burstbook(&[
+        "search".as_ref(),
+        a.as_os_str(),
+        b.as_os_str(),
+        "--out".as_ref(),
+        out.as_os_str(),
+        "--no-catalogue".as_ref(),
+        "--dm-max".as_ref(),
+        "300".as_ref(),
+    ]);
+    assert_success(&run);
+    let stderr = String::from_utf8_lossy(&run.stderr);
+    let notes: Vec<&str> = stderr
+        .lines()
+        .filter(|l| l.contains("not joined"))
+        .collect();
+    assert_eq!(notes.len(), 1, "{stderr}");
+    assert!(
+        notes[0].contains("b.json") && notes[0].contains("a.json") && notes[0].contains("source"),
+        "{stderr}"
+    );
+    assert!(!String::from_utf8_lossy(&run.stdout).contains("read on"));
 }

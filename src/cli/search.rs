@@ -142,8 +142,16 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     let headers = search::check_files(&paths, &config)?;
     let continuations = match args.no_join {
         true => vec![None; paths.len()],
-        false => continuations(&headers),
+        false => {
+            let continuations = continuations(&headers);
+            note_near_misses(&paths, &headers, &continuations);
+            continuations
+        }
     };
+    // For each file, the files its search reads on into.
+    let chains: Vec<Vec<usize>> = (0..paths.len())
+        .map(|i| run_on_chain(i, &headers, &continuations, &config))
+        .collect();
     std::fs::create_dir_all(&args.out)
         .with_context(|| format!("cannot create output directory {}", args.out.display()))?;
     // Opened first, so a bad catalogue stops us before hours of searching.
@@ -166,7 +174,11 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         }
         files.push(FileOutcome::Failed { file, error });
     };
-    for (path, next) in paths.iter().zip(continuations) {
+    // A file after the files it continues, so that it can leave out the pulses they
+    // found across the cut.
+    let order = search_order(&continuations);
+    for &i in &order {
+        let path = paths[i];
         let started_utc = burstbook::catalogue::now_utc();
         let label = path.display().to_string();
         let source = match burstbook::obs::open(path) {
@@ -222,29 +234,69 @@ pub fn run(args: Args) -> anyhow::Result<()> {
                 continue;
             }
         };
-        let next_label = next.map(|j| paths[j].display().to_string());
-        let next = next_label
-            .as_deref()
-            .and_then(|next| open_continuation(next, &label, &config));
+        let next_labels: Vec<String> = chains[i]
+            .iter()
+            .map(|&j| paths[j].display().to_string())
+            .collect();
+        let next = open_run_on(&next_labels, &label, &config);
         let bar = burstbook::progress::bar(source.header().n_samples, &label);
         let clock = std::time::Instant::now();
         let result =
             search::search_run_on_in(&mut workspace, source, next, &label, &config, Some(&bar));
         bar.finish_and_clear();
-        let result = match result {
+        let mut result = match result {
             Ok(result) => result,
             Err(e) => {
                 fail(&mut files, label, e.to_string());
                 continue;
             }
         };
+        // Each outcome so far is that of the file at its place in `order`.
+        for (p, offset_s) in read_on_from(i, &headers, &chains) {
+            let Some(at) = order[..files.len()].iter().position(|&j| j == p) else {
+                continue;
+            };
+            let repeats = search::drop_repeats_across_cut(
+                &result.header,
+                files[at].candidates(),
+                offset_s,
+                &mut result.candidates,
+            );
+            if repeats > 0 {
+                say!(
+                    "{label}: {repeats} candidate(s) near its start left out, the same \
+                     pulses as found by {}, which it continues, across the cut",
+                    paths[p].display()
+                )?;
+            }
+        }
         let wall_s = clock.elapsed().as_secs_f64();
-        if let (Some(next), true) = (&next_label, result.run_on_samples > 0) {
-            say!(
-                "{label}: read on {:.2} s into {next}, which continues it, so that sweeps \
-                 crossing into it were searched",
-                result.run_on_samples as f64 * result.header.tsamp_s
-            )?;
+        if result.run_on_samples > 0 {
+            // The files the rows read on into reached.
+            let mut left = result.run_on_samples;
+            let reached: Vec<&str> = next_labels
+                .iter()
+                .zip(&chains[i])
+                .take_while(|&(_, &j)| {
+                    let reached = left > 0;
+                    left = left.saturating_sub(headers[j].n_samples);
+                    reached
+                })
+                .map(|(next, _)| next.as_str())
+                .collect();
+            let run_on_s = result.run_on_samples as f64 * result.header.tsamp_s;
+            match &reached[..] {
+                [.., last] if reached.len() > 1 => say!(
+                    "{label}: read on {run_on_s:.2} s through {} into {last}, which continue \
+                     it one after another, so that sweeps crossing into them were searched",
+                    reached[..reached.len() - 1].join(", ")
+                )?,
+                _ => say!(
+                    "{label}: read on {run_on_s:.2} s into {}, which continues it, so that \
+                     sweeps crossing into it were searched",
+                    reached.join("")
+                )?,
+            }
         }
         if result.fraction_masked >= 1.0 {
             note!(
@@ -330,6 +382,179 @@ fn continuations(headers: &[burstbook::obs::Header]) -> Vec<Option<usize>> {
                 .find(continues)
         })
         .collect()
+}
+
+/// A note for each file that starts within a sample of where another listed file
+/// ends, yet does not continue it (a header field differs, or the gap is over half
+/// a sample, as when averaging drops a last partial group of samples): the two are
+/// searched apart, and a sweep crossing from one into the other is missed.
+fn note_near_misses(
+    paths: &[&PathBuf],
+    headers: &[burstbook::obs::Header],
+    continuations: &[Option<usize>],
+) {
+    let continued: std::collections::HashSet<usize> =
+        continuations.iter().flatten().copied().collect();
+    for (i, h) in headers.iter().enumerate() {
+        if continuations[i].is_some() {
+            continue;
+        }
+        for (j, next) in headers.iter().enumerate() {
+            let Some(gap_s) = h.seconds_to(next) else {
+                continue;
+            };
+            if j == i || continued.contains(&j) || gap_s.abs() > h.tsamp_s {
+                continue;
+            }
+            let fields: Vec<&str> = h
+                .differing_fields(next)
+                .into_iter()
+                .filter(|&f| f != "start" && f != "n_samples")
+                .collect();
+            let why = match fields.is_empty() {
+                true => format!(
+                    "it starts {:.2} samples after that one ends, over half a sample",
+                    gap_s / h.tsamp_s
+                ),
+                false => format!("their headers differ in {}", fields.join(", ")),
+            };
+            note!(
+                "{}: not joined to {}, which it follows, as {why}: each is searched on its \
+                 own, and a sweep crossing from one into the other is missed",
+                paths[j].display(),
+                paths[i].display()
+            );
+        }
+    }
+}
+
+/// The order to search the files in: as listed, but each after the file it
+/// continues.
+fn search_order(continuations: &[Option<usize>]) -> Vec<usize> {
+    let mut before: Vec<Vec<usize>> = vec![Vec::new(); continuations.len()];
+    for (p, next) in continuations.iter().enumerate() {
+        if let Some(i) = *next {
+            before[i].push(p);
+        }
+    }
+    let mut order = Vec::with_capacity(continuations.len());
+    let mut placed = vec![false; continuations.len()];
+    for i in 0..continuations.len() {
+        // The files before `i`, back to the first of the recording, then `i`.
+        let mut stack = vec![(i, false)];
+        while let Some((j, ready)) = stack.pop() {
+            if placed[j] {
+                continue;
+            }
+            if ready {
+                placed[j] = true;
+                order.push(j);
+                continue;
+            }
+            stack.push((j, true));
+            stack.extend(
+                before[j]
+                    .iter()
+                    .filter(|&&p| !placed[p])
+                    .map(|&p| (p, false)),
+            );
+        }
+    }
+    order
+}
+
+/// The files whose search reads on into file `i`, with the seconds from the start
+/// of each to the start of `i`.
+fn read_on_from(
+    i: usize,
+    headers: &[burstbook::obs::Header],
+    chains: &[Vec<usize>],
+) -> Vec<(usize, f64)> {
+    chains
+        .iter()
+        .enumerate()
+        .filter(|&(p, _)| p != i)
+        .filter_map(|(p, chain)| {
+            let at = chain.iter().position(|&j| j == i)?;
+            let offset_s = std::iter::once(p)
+                .chain(chain[..at].iter().copied())
+                .map(|j| headers[j].duration_s())
+                .sum();
+            Some((p, offset_s))
+        })
+        .collect()
+}
+
+/// The files the search of file `i` reads on into: the one that continues it, then,
+/// while they hold fewer samples than the search's block overlap, the one that
+/// continues the last of them (a file shorter than the overlap is read through into
+/// the next, or a sweep crossing it would be cut short).
+fn run_on_chain(
+    i: usize,
+    headers: &[burstbook::obs::Header],
+    continuations: &[Option<usize>],
+    config: &SearchConfig,
+) -> Vec<usize> {
+    if continuations[i].is_none() {
+        return Vec::new();
+    }
+    let overlap = search::block_layout(&headers[i], config).map_or(0, |g| g.overlap as u64);
+    let mut chain = Vec::new();
+    let mut reach = 0;
+    let mut at = continuations[i];
+    while let Some(j) = at {
+        if (reach >= overlap && !chain.is_empty()) || j == i || chain.contains(&j) {
+            break;
+        }
+        chain.push(j);
+        reach += headers[j].n_samples;
+        at = continuations[j];
+    }
+    chain
+}
+
+/// The files of `next` (each continuing the one before) opened and read on into one
+/// another, for the search of `label` to read on into; the chain stops before a file
+/// that cannot be opened (with a note), and `None` if the first cannot be.
+fn open_run_on(
+    next: &[String],
+    label: &str,
+    config: &SearchConfig,
+) -> Option<Box<dyn burstbook::obs::SampleSource>> {
+    let mut opened = Vec::new();
+    for (k, path) in next.iter().enumerate() {
+        if k == 0 {
+            match open_continuation(path, label, config) {
+                Some(source) => opened.push(source),
+                None => return None,
+            }
+            continue;
+        }
+        let source = burstbook::obs::open(std::path::Path::new(path))
+            .and_then(|source| config.average.wrap(source, path));
+        match source {
+            Ok(source) => opened.push(source),
+            Err(e) => {
+                note!(
+                    "{label}: read on only as far as the end of {}, as {path}, which \
+                     continues it, cannot be read: {e}",
+                    next[k - 1]
+                );
+                break;
+            }
+        }
+    }
+    let mut run_on: Option<Box<dyn burstbook::obs::SampleSource>> = None;
+    for source in opened.into_iter().rev() {
+        run_on = Some(match run_on {
+            None => source,
+            Some(rest) => {
+                let extra = rest.header().n_samples;
+                Box::new(burstbook::obs::RunOn::new(source, rest, extra).ok()?)
+            }
+        });
+    }
+    run_on
 }
 
 /// Opens `next` to read on into it from the search of `label`; a file that cannot be

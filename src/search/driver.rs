@@ -183,6 +183,7 @@ pub fn search_run_on_in(
         pb.set_length(n_samples);
     }
     let mut totals = Totals::default();
+    let mut rows_read = 0;
     // Candidates of one block can only repeat those within one overlap before them.
     let recent_s = g.overlap as f64 * searcher.header.tsamp_s
         + searcher.plan.max_dm() * searcher.sweep.top_s_per_dm;
@@ -197,8 +198,25 @@ pub fn search_run_on_in(
         let (reads, recycle) = prefetch(scope, source, g.block_len, advance);
         let mut first = true;
         let mut clock = Instant::now();
+        // Of the block searched last, unless it was the last one: whether it was the
+        // first, and the end of the boxcar starts it owned.
+        let mut open_end: Option<(bool, u64)> = None;
         for read in reads {
-            let Some(read) = read? else { break };
+            let Some(read) = read? else {
+                // The rows ended exactly where a block did, before the header's length:
+                // a recording read on into one that gave no rows. That block is
+                // searched again as the last one, for the boxcar starts it left to a
+                // block that never came.
+                if let Some((was_first, from)) = open_end {
+                    let none = Appended {
+                        new_samples: 0,
+                        masked_fraction: 0.0,
+                    };
+                    let outcome = searcher.block(&channels, was_first, true, none, from);
+                    totals.add(outcome, &searcher.sweep, recent_s);
+                }
+                break;
+            };
             let reading = lap(&mut clock);
             let asked = if first { g.block_len } else { advance };
             let end = read.start_sample + read.n_time() as u64;
@@ -216,10 +234,13 @@ pub fn search_run_on_in(
             // The reader may have ended already; then the buffer is simply dropped.
             let _ = recycle.send(read.rows);
             let cleaning = lap(&mut clock);
-            let mut outcome = searcher.block(&channels, first, last, appended);
+            let mut outcome = searcher.block(&channels, first, last, appended, 0);
             outcome.seconds.reading = reading;
             outcome.seconds.cleaning = cleaning;
             totals.add(outcome, &searcher.sweep, recent_s);
+            rows_read = end;
+            let (start, n_time) = (channels.start_sample(), channels.n_time());
+            open_end = (!last).then(|| (first, g.owned_range(start, n_time, first, false).1));
             first = false;
             if let Some(pb) = progress {
                 pb.set_position(end);
@@ -231,9 +252,50 @@ pub fn search_run_on_in(
         }
         Ok(())
     })?;
+    // Only the rows of the next recording that could be read were read on into.
+    searcher.run_on_samples = rows_read.saturating_sub(searcher.header.n_samples);
     workspace.fast = searcher.fast.take().or(workspace.fast.take());
     workspace.channels = channels.into_buffer();
     Ok(searcher.finish(totals))
+}
+
+/// Removes from `later`, the candidates of a recording that continues one whose
+/// candidates are `earlier` and which starts `offset_s` after that one, those that
+/// repeat a candidate of `earlier` across the cut, and returns how many. A pulse near
+/// the cut is found whole by the earlier recording, which reads on into the later one,
+/// and again, cut short, by the later one, which starts at its own first sample and so
+/// cannot see that the pulse's best boxcar starts before it: a later candidate on the
+/// bow-tie of an earlier one ([`Sweep::on_bow_tie`], as repeats between the blocks
+/// of one recording are found), or the other way round, is the same pulse, and the
+/// earlier recording's candidate stands for it. `header` is the later recording's.
+pub fn drop_repeats_across_cut(
+    header: &Header,
+    earlier: &[Candidate],
+    offset_s: f64,
+    later: &mut Vec<Candidate>,
+) -> usize {
+    let k = crate::units::DISPERSION_CONSTANT_S_MHZ2;
+    let inv_f2 = |f: f64| k / (f * f);
+    let sweep = Sweep {
+        tsamp_s: header.tsamp_s,
+        top_s_per_dm: inv_f2(header.freq_hi_mhz()),
+        band_s_per_dm: inv_f2(header.freq_lo_mhz()) - inv_f2(header.freq_hi_mhz()),
+    };
+    let event = |c: &Candidate, shift_s: f64| crate::cluster::Event {
+        t_inf_s: c.t_inf_s + shift_s,
+        dm: c.dm,
+        width_s: c.width_ms * 1e-3,
+        snr: c.snr,
+    };
+    let before = later.len();
+    later.retain(|l| {
+        let l = event(l, offset_s);
+        !earlier.iter().any(|e| {
+            let e = event(e, 0.0);
+            sweep.on_bow_tie(&e, &l, 0.0) || sweep.on_bow_tie(&l, &e, 0.0)
+        })
+    });
+    before - later.len()
 }
 
 /// The block layout a search of a recording with `header` would use.
@@ -391,13 +453,15 @@ impl<'a> Searcher<'a> {
         })
     }
 
-    /// Searches the block in `channels`, whose last rows were just `appended`.
+    /// Searches the block in `channels`, whose last rows were just `appended`, for
+    /// the boxcar starts it owns from sample `from` on.
     fn block(
         &mut self,
         channels: &ChannelBlock,
         first: bool,
         last: bool,
         appended: Appended,
+        from: u64,
     ) -> BlockOutcome {
         let g = &self.layout;
         let (start, n_time) = (channels.start_sample(), channels.n_time());
@@ -421,6 +485,7 @@ impl<'a> Searcher<'a> {
             None => dedisperse::reference::dedisperse_over(norm, &self.plan, extent),
         };
         let (own_lo, own_hi) = g.owned_range(start, n_time, first, last);
+        let own_lo = own_lo.max(from);
         // Boxcars starting in the rows read on into belong to the next recording.
         let own_hi = own_hi.min(self.header.n_samples);
         // Boxcar starts tested, relative to the block start (see the module docs).
