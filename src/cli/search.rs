@@ -224,6 +224,15 @@ pub fn run(args: Args) -> anyhow::Result<()> {
                     false => format!(", recorded as {}", earlier.recorded_path),
                 },
             )?;
+            if let Some(&next) = chains[i].first() {
+                // The catalogue does not record whether that search read on.
+                note!(
+                    "{label}: if that search did not read on into {}, which continues it, a \
+                     sweep crossing into it was missed; `book forget` its observation and \
+                     search both again to join them",
+                    paths[next].display()
+                );
+            }
             files.push(FileOutcome::skipped(label, earlier));
             continue;
         }

@@ -164,7 +164,10 @@ pub fn search_run_on_in(
         .map(|s| read_sample_bytes(&mut **s))
         .max()
         .unwrap_or(size_of::<f32>());
-    let mut searcher = Searcher::new(header, read_bytes, config, label)?;
+    // The rows read on into hold the rest of the sweeps starting in this recording,
+    // so trials whose sweep outlasts it alone are searched too.
+    let sweep_room_s = header.duration_s() + next.as_ref().map_or(0.0, |n| n.header().duration_s());
+    let mut searcher = Searcher::new(header, read_bytes, sweep_room_s, config, label)?;
     let source = match next {
         Some(next) => {
             let run_on = RunOn::new(source, next, searcher.layout.overlap as u64)?;
@@ -305,7 +308,8 @@ pub fn drop_repeats_across_cut(
 pub fn block_layout(header: &Header, config: &SearchConfig) -> Result<BlockLayout> {
     config.validate()?;
     // Reads of f32, the larger kind: a layout allowed for them is allowed for any.
-    Ok(Searcher::new(header.clone(), size_of::<f32>(), config, "")?.layout)
+    let room_s = header.duration_s();
+    Ok(Searcher::new(header.clone(), size_of::<f32>(), room_s, config, "")?.layout)
 }
 
 /// Opens each recording and checks it could be searched with `config` (its header,
@@ -326,7 +330,8 @@ pub fn check_files<P: AsRef<Path>>(paths: &[P], config: &SearchConfig) -> Result
         let label = path.display().to_string();
         let mut source = config.average.wrap(crate::obs::open(path)?, &label)?;
         let read_bytes = read_sample_bytes(&mut *source);
-        Searcher::new(source.header().clone(), read_bytes, config, &label)?;
+        let room_s = source.header().duration_s();
+        Searcher::new(source.header().clone(), read_bytes, room_s, config, &label)?;
         headers.push(source.header().clone());
     }
     Ok(headers)
@@ -355,17 +360,18 @@ struct Searcher<'a> {
 
 impl<'a> Searcher<'a> {
     /// The search of a recording with `header` read `read_bytes` bytes per sample
-    /// (see [`read_sample_bytes`]), once its memory need is checked.
+    /// (see [`read_sample_bytes`]), once its memory need is checked. `sweep_room_s`
+    /// is the data a sweep starting in it can reach: its duration, and that of any
+    /// recording read on into.
     fn new(
         header: Header,
         read_bytes: usize,
+        sweep_room_s: f64,
         config: &'a SearchConfig,
         label: &'a str,
     ) -> Result<Self> {
-        // Trials whose sweep outlasts the recording could search nothing.
-        let request = config
-            .plan
-            .within_sweep(&header.freqs_mhz, header.duration_s());
+        // Trials whose sweep outlasts the data could search nothing.
+        let request = config.plan.within_sweep(&header.freqs_mhz, sweep_room_s);
         let plan = DmPlan::build(
             &header.freqs_mhz,
             header.chan_bw_mhz,
