@@ -143,14 +143,14 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     let continuations = match args.no_join {
         true => vec![None; paths.len()],
         false => {
-            let continuations = continuations(&headers);
+            let continuations = search::join::continuations(&headers);
             note_near_misses(&paths, &headers, &continuations);
             continuations
         }
     };
     // For each file, the files its search reads on into.
     let chains: Vec<Vec<usize>> = (0..paths.len())
-        .map(|i| run_on_chain(i, &headers, &continuations, &config))
+        .map(|i| search::join::run_on_chain(i, &headers, &continuations, &config))
         .collect();
     std::fs::create_dir_all(&args.out)
         .with_context(|| format!("cannot create output directory {}", args.out.display()))?;
@@ -176,7 +176,7 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     };
     // A file after the files it continues, so that it can leave out the pulses they
     // found across the cut.
-    let order = search_order(&continuations);
+    let order = search::join::search_order(&continuations);
     for &i in &order {
         let path = paths[i];
         let started_utc = burstbook::catalogue::now_utc();
@@ -261,7 +261,7 @@ pub fn run(args: Args) -> anyhow::Result<()> {
             }
         };
         // Each outcome so far is that of the file at its place in `order`.
-        for (p, offset_s) in read_on_from(i, &headers, &chains) {
+        for (p, offset_s) in search::join::read_on_from(i, &headers, &chains) {
             let Some(at) = order[..files.len()].iter().position(|&j| j == p) else {
                 continue;
             };
@@ -377,149 +377,21 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     }
 }
 
-/// For each recording, the index of another that continues it
-/// ([`burstbook::obs::Header::is_continued_by`]): the next one listed if it does, else
-/// the first that does.
-fn continuations(headers: &[burstbook::obs::Header]) -> Vec<Option<usize>> {
-    (0..headers.len())
-        .map(|i| {
-            let continues = |&j: &usize| headers[i].is_continued_by(&headers[j]);
-            std::iter::once(i + 1)
-                .filter(|&j| j < headers.len())
-                .chain(0..headers.len())
-                .filter(|&j| j != i)
-                .find(continues)
-        })
-        .collect()
-}
-
 /// A note for each file that starts within a sample of where another listed file
-/// ends, yet does not continue it (a header field differs, or the gap is over half
-/// a sample, as when averaging drops a last partial group of samples): the two are
-/// searched apart, and a sweep crossing from one into the other is missed.
+/// ends yet is not joined to it ([`search::join::near_misses`]).
 fn note_near_misses(
     paths: &[&PathBuf],
     headers: &[burstbook::obs::Header],
     continuations: &[Option<usize>],
 ) {
-    let continued: std::collections::HashSet<usize> =
-        continuations.iter().flatten().copied().collect();
-    for (i, h) in headers.iter().enumerate() {
-        if continuations[i].is_some() {
-            continue;
-        }
-        for (j, next) in headers.iter().enumerate() {
-            let Some(gap_s) = h.seconds_to(next) else {
-                continue;
-            };
-            if j == i || continued.contains(&j) || gap_s.abs() > h.tsamp_s {
-                continue;
-            }
-            let fields: Vec<&str> = h
-                .differing_fields(next)
-                .into_iter()
-                .filter(|&f| f != "start" && f != "n_samples")
-                .collect();
-            let why = match fields.is_empty() {
-                true => format!(
-                    "it starts {:.2} samples after that one ends, over half a sample",
-                    gap_s / h.tsamp_s
-                ),
-                false => format!("their headers differ in {}", fields.join(", ")),
-            };
-            note!(
-                "{}: not joined to {}, which it follows, as {why}: each is searched on its \
-                 own, and a sweep crossing from one into the other is missed",
-                paths[j].display(),
-                paths[i].display()
-            );
-        }
+    for (i, j, why) in search::join::near_misses(headers, continuations) {
+        note!(
+            "{}: not joined to {}, which it follows, as {why}: each is searched on its \
+             own, and a sweep crossing from one into the other is missed",
+            paths[j].display(),
+            paths[i].display()
+        );
     }
-}
-
-/// The order to search the files in: as listed, but each after the file it
-/// continues.
-fn search_order(continuations: &[Option<usize>]) -> Vec<usize> {
-    let mut before: Vec<Vec<usize>> = vec![Vec::new(); continuations.len()];
-    for (p, next) in continuations.iter().enumerate() {
-        if let Some(i) = *next {
-            before[i].push(p);
-        }
-    }
-    let mut order = Vec::with_capacity(continuations.len());
-    let mut placed = vec![false; continuations.len()];
-    for i in 0..continuations.len() {
-        // The files before `i`, back to the first of the recording, then `i`.
-        let mut stack = vec![(i, false)];
-        while let Some((j, ready)) = stack.pop() {
-            if placed[j] {
-                continue;
-            }
-            if ready {
-                placed[j] = true;
-                order.push(j);
-                continue;
-            }
-            stack.push((j, true));
-            stack.extend(
-                before[j]
-                    .iter()
-                    .filter(|&&p| !placed[p])
-                    .map(|&p| (p, false)),
-            );
-        }
-    }
-    order
-}
-
-/// The files whose search reads on into file `i`, with the seconds from the start
-/// of each to the start of `i`.
-fn read_on_from(
-    i: usize,
-    headers: &[burstbook::obs::Header],
-    chains: &[Vec<usize>],
-) -> Vec<(usize, f64)> {
-    chains
-        .iter()
-        .enumerate()
-        .filter(|&(p, _)| p != i)
-        .filter_map(|(p, chain)| {
-            let at = chain.iter().position(|&j| j == i)?;
-            let offset_s = std::iter::once(p)
-                .chain(chain[..at].iter().copied())
-                .map(|j| headers[j].duration_s())
-                .sum();
-            Some((p, offset_s))
-        })
-        .collect()
-}
-
-/// The files the search of file `i` reads on into: the one that continues it, then,
-/// while they hold fewer samples than the search's block overlap, the one that
-/// continues the last of them (a file shorter than the overlap is read through into
-/// the next, or a sweep crossing it would be cut short).
-fn run_on_chain(
-    i: usize,
-    headers: &[burstbook::obs::Header],
-    continuations: &[Option<usize>],
-    config: &SearchConfig,
-) -> Vec<usize> {
-    if continuations[i].is_none() {
-        return Vec::new();
-    }
-    let overlap = search::block_layout(&headers[i], config).map_or(0, |g| g.overlap as u64);
-    let mut chain = Vec::new();
-    let mut reach = 0;
-    let mut at = continuations[i];
-    while let Some(j) = at {
-        if (reach >= overlap && !chain.is_empty()) || j == i || chain.contains(&j) {
-            break;
-        }
-        chain.push(j);
-        reach += headers[j].n_samples;
-        at = continuations[j];
-    }
-    chain
 }
 
 /// The files of `next` (each continuing the one before) opened and read on into one

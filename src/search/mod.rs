@@ -14,6 +14,7 @@ mod config;
 mod driver;
 mod features;
 pub mod fluence;
+pub mod join;
 pub mod memory;
 pub mod normalise;
 pub mod output;
