@@ -171,6 +171,21 @@ fn write_consecutive_files_at(
     (paths, crossing.dm)
 }
 
+/// `burstbook search FILES --out OUT --no-catalogue --dm-max 300 EXTRA...`.
+fn search_cli(files: &[&Path], out: &Path, extra: &[&str]) -> std::process::Output {
+    let mut args: Vec<&std::ffi::OsStr> = vec!["search".as_ref()];
+    args.extend(files.iter().map(|f| f.as_os_str()));
+    args.extend::<[&std::ffi::OsStr; 5]>([
+        "--out".as_ref(),
+        out.as_os_str(),
+        "--no-catalogue".as_ref(),
+        "--dm-max".as_ref(),
+        "300".as_ref(),
+    ]);
+    args.extend(extra.iter().map(std::ffi::OsStr::new));
+    burstbook(&args)
+}
+
 /// The DMs of the candidates of `file` in the CSV at `out`.
 fn candidate_dms(out: &Path, file: &str) -> Vec<f64> {
     let csv = std::fs::read_to_string(out.join("candidates.csv")).unwrap();
@@ -195,16 +210,7 @@ fn the_command_joins_consecutive_files_unless_told_not_to() {
     let near = |dms: &[f64]| dms.iter().filter(|&&d| (d - dm).abs() < 0.1 * dm).count();
     for (k, files) in [[&b, &a], [&a, &b]].iter().enumerate() {
         let out = dir.path().join(format!("joined{k}"));
-        let run = burstbook(&[
-            "search".as_ref(),
-            files[0].as_os_str(),
-            files[1].as_os_str(),
-            "--out".as_ref(),
-            out.as_os_str(),
-            "--no-catalogue".as_ref(),
-            "--dm-max".as_ref(),
-            "300".as_ref(),
-        ]);
+        let run = search_cli(&[files[0], files[1]], &out, &[]);
         assert_success(&run);
         let stdout = String::from_utf8_lossy(&run.stdout);
         assert!(
@@ -226,17 +232,7 @@ fn the_command_joins_consecutive_files_unless_told_not_to() {
         assert_eq!(run_on_s("b.json"), 0.0);
     }
     let out = dir.path().join("apart");
-    let run = burstbook(&[
-        "search".as_ref(),
-        a.as_os_str(),
-        b.as_os_str(),
-        "--out".as_ref(),
-        out.as_os_str(),
-        "--no-catalogue".as_ref(),
-        "--dm-max".as_ref(),
-        "300".as_ref(),
-        "--no-join".as_ref(),
-    ]);
+    let run = search_cli(&[&a, &b], &out, &["--no-join"]);
     assert_success(&run);
     assert!(!String::from_utf8_lossy(&run.stdout).contains("read on"));
     assert_eq!(near(&candidate_dms(&out, "a.json")), 0);
@@ -583,16 +579,7 @@ fn the_command_reports_a_burst_at_the_cut_once() {
     let dir = tempfile::tempdir().unwrap();
     let ([a, b], dm) = write_consecutive_files_at(dir.path(), N_FIRST as f64 + 1.0, 53);
     let out = dir.path().join("out");
-    let run = burstbook(&[
-        "search".as_ref(),
-        b.as_os_str(),
-        a.as_os_str(),
-        "--out".as_ref(),
-        out.as_os_str(),
-        "--no-catalogue".as_ref(),
-        "--dm-max".as_ref(),
-        "300".as_ref(),
-    ]);
+    let run = search_cli(&[&b, &a], &out, &[]);
     assert_success(&run);
     let stdout = String::from_utf8_lossy(&run.stdout);
     let near = |dms: &[f64]| dms.iter().filter(|&&d| (d - dm).abs() < 0.1 * dm).count();
@@ -616,16 +603,7 @@ fn a_file_following_another_but_not_joined_gets_a_note() {
     json["source"] = "ANOTHER FIELD".into();
     std::fs::write(&b, json.to_string()).unwrap();
     let out = dir.path().join("out");
-    let run = burstbook(&[
-        "search".as_ref(),
-        a.as_os_str(),
-        b.as_os_str(),
-        "--out".as_ref(),
-        out.as_os_str(),
-        "--no-catalogue".as_ref(),
-        "--dm-max".as_ref(),
-        "300".as_ref(),
-    ]);
+    let run = search_cli(&[&a, &b], &out, &[]);
     assert_success(&run);
     let stderr = String::from_utf8_lossy(&run.stderr);
     let notes: Vec<&str> = stderr

@@ -277,13 +277,7 @@ pub fn drop_repeats_across_cut(
     offset_s: f64,
     later: &mut Vec<Candidate>,
 ) -> usize {
-    let k = crate::units::DISPERSION_CONSTANT_S_MHZ2;
-    let inv_f2 = |f: f64| k / (f * f);
-    let sweep = Sweep {
-        tsamp_s: header.tsamp_s,
-        top_s_per_dm: inv_f2(header.freq_hi_mhz()),
-        band_s_per_dm: inv_f2(header.freq_lo_mhz()) - inv_f2(header.freq_hi_mhz()),
-    };
+    let sweep = sweep_of(header);
     let event = |c: &Candidate, shift_s: f64| crate::cluster::Event {
         t_inf_s: c.t_inf_s + shift_s,
         dm: c.dm,
@@ -435,13 +429,7 @@ impl<'a> Searcher<'a> {
                 Some(o)
             })
             .collect();
-        let k = crate::units::DISPERSION_CONSTANT_S_MHZ2;
-        let inv_f2 = |f: f64| k / (f * f);
-        let sweep = Sweep {
-            tsamp_s: header.tsamp_s,
-            top_s_per_dm: inv_f2(header.freq_hi_mhz()),
-            band_s_per_dm: inv_f2(header.freq_lo_mhz()) - inv_f2(header.freq_hi_mhz()),
-        };
+        let sweep = sweep_of(&header);
         let static_mask = static_mask(&header.freqs_mhz, &header.weights, &config.clean.masks_mhz);
         Ok(Searcher {
             label,
@@ -709,6 +697,17 @@ impl<'a> Searcher<'a> {
             seconds: totals.seconds,
             run_on_samples: self.run_on_samples,
         }
+    }
+}
+
+/// The dispersion sweep of recordings with `header`'s band and sampling.
+fn sweep_of(header: &Header) -> Sweep {
+    let k = crate::units::DISPERSION_CONSTANT_S_MHZ2;
+    let inv_f2 = |f: f64| k / (f * f);
+    Sweep {
+        tsamp_s: header.tsamp_s,
+        top_s_per_dm: inv_f2(header.freq_hi_mhz()),
+        band_s_per_dm: inv_f2(header.freq_lo_mhz()) - inv_f2(header.freq_hi_mhz()),
     }
 }
 
