@@ -7,7 +7,7 @@ mod common;
 
 use std::path::Path;
 
-use burstbook::obs::{self, Container, Header};
+use burstbook::obs::{self, Container, Header, SampleSource};
 use burstbook::search::{
     FileResult, SearchConfig, Workspace, drop_repeats_across_cut, search_run_on_in, search_source,
 };
@@ -46,6 +46,17 @@ fn split(whole: &Header, data: &[f32]) -> [(Header, Vec<f32>); 2] {
         (first, data[..cut].to_vec()),
         (second, data[cut..].to_vec()),
     ]
+}
+
+/// Samples `from..to` of the recording `whole` holding `data`, as a file of their own.
+fn part_of(whole: &Header, data: &[f32], from: u64, to: u64) -> Box<dyn SampleSource> {
+    let mut h = whole.clone();
+    h.start = whole.epoch_of_sample(from as f64);
+    h.n_samples = to - from;
+    source(
+        h,
+        data[from as usize * N_CHAN..to as usize * N_CHAN].to_vec(),
+    )
 }
 
 /// The candidates within 20 ms of `t_inf_s` with a DM within 10 % of `dm`.
@@ -435,16 +446,8 @@ fn a_short_file_is_read_through_into_the_one_after_it() {
         sink.finish().unwrap();
     }
     let out = dir.path().join("out");
-    let mut args: Vec<&std::ffi::OsStr> = vec!["search".as_ref()];
-    args.extend(paths.iter().map(|p| p.as_os_str()));
-    args.extend::<[&std::ffi::OsStr; 5]>([
-        "--out".as_ref(),
-        out.as_os_str(),
-        "--no-catalogue".as_ref(),
-        "--dm-max".as_ref(),
-        "300".as_ref(),
-    ]);
-    let run = burstbook(&args);
+    let files: Vec<&Path> = paths.iter().map(|p| p.as_path()).collect();
+    let run = search_cli(&files, &out, &[]);
     assert_success(&run);
     let stdout = String::from_utf8_lossy(&run.stdout);
     let dm = crossing.dm;
@@ -471,13 +474,7 @@ fn a_short_file_read_on_into_a_long_one_is_searched_at_every_dm() {
     let b = burst_at_top(&whole, lo as f64 + 100.0, 250.0, 25.0);
     let mut data = noise(&whole, 45);
     add(&whole, &mut data, &b);
-    let part = |from: u64, to: u64| {
-        let mut h = whole.clone();
-        h.start = whole.epoch_of_sample(from as f64);
-        h.n_samples = to - from;
-        let rows = data[from as usize * N_CHAN..to as usize * N_CHAN].to_vec();
-        source(h, rows)
-    };
+    let part = |from: u64, to: u64| part_of(&whole, &data, from, to);
     let c = config();
     let all = search_source(source(whole.clone(), data.clone()), "whole", &c, None).unwrap();
     assert_eq!(
@@ -625,15 +622,7 @@ fn a_file_following_another_but_not_joined_gets_a_note() {
 fn a_short_file_read_on_into_a_long_one_is_planned_to_every_dm() {
     let whole = header(N_CHAN, N, TSAMP);
     let data = noise(&whole, 46);
-    let part = |from: u64, to: u64| {
-        let mut h = whole.clone();
-        h.start = whole.epoch_of_sample(from as f64);
-        h.n_samples = to - from;
-        source(
-            h,
-            data[from as usize * N_CHAN..to as usize * N_CHAN].to_vec(),
-        )
-    };
+    let part = |from: u64, to: u64| part_of(&whole, &data, from, to);
     let c = config();
     let alone = search_source(part(N_FIRST - 200, N_FIRST), "short", &c, None).unwrap();
     assert!(alone.plan.max_dm() < 200.0, "{}", alone.plan.max_dm());
