@@ -404,18 +404,18 @@ fn open_run_on(
 ) -> Option<Box<dyn burstbook::obs::SampleSource>> {
     let mut opened = Vec::new();
     for (k, path) in next.iter().enumerate() {
-        if k == 0 {
-            match open_continuation(path, label, config) {
-                Some(source) => opened.push(source),
-                None => return None,
-            }
-            continue;
-        }
         let source = burstbook::obs::open(std::path::Path::new(path))
             .and_then(|source| config.average.wrap(source, path));
-        match source {
-            Ok(source) => opened.push(source),
-            Err(e) => {
+        match (source, k) {
+            (Ok(source), _) => opened.push(source),
+            (Err(e), 0) => {
+                note!(
+                    "{label}: searched on its own, as {path}, which continues it, cannot be \
+                     read: {e}"
+                );
+                return None;
+            }
+            (Err(e), _) => {
                 note!(
                     "{label}: read on only as far as the end of {}, as {path}, which \
                      continues it, cannot be read: {e}",
@@ -436,26 +436,6 @@ fn open_run_on(
         });
     }
     run_on
-}
-
-/// Opens `next` to read on into it from the search of `label`; a file that cannot be
-/// opened now gets a note, and `label` is searched on its own.
-fn open_continuation(
-    next: &str,
-    label: &str,
-    config: &SearchConfig,
-) -> Option<Box<dyn burstbook::obs::SampleSource>> {
-    let opened = burstbook::obs::open(std::path::Path::new(next))
-        .and_then(|source| config.average.wrap(source, next));
-    match opened {
-        Ok(source) => Some(source),
-        Err(e) => {
-            note!(
-                "{label}: searched on its own, as {next}, which continues it, cannot be read: {e}"
-            );
-            None
-        }
-    }
 }
 
 /// `paths` without the repeats of a file named twice (by the same or another path
