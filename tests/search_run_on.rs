@@ -639,3 +639,47 @@ fn a_short_file_read_on_into_a_long_one_is_planned_to_every_dm() {
     assert_eq!(short.highest_dm_searched(), Some(c.plan.dm_max));
     assert_eq!(short.samples_searched, 200);
 }
+
+// The rule that leaves a repeat across the cut out: a later candidate on the bow-tie
+// of an earlier one is dropped when it is no brighter, and kept when it is brighter
+// (then the earlier may be its echo, and a burst must not be lost for it).
+#[test]
+fn only_a_repeat_no_brighter_than_the_earlier_candidate_is_dropped() {
+    let whole = header(N_CHAN, N, TSAMP);
+    let crossing = burst_at_top(&whole, N_FIRST as f64 - 100.0, 250.0, 20.0);
+    let mut data = noise(&whole, 47);
+    add(&whole, &mut data, &crossing);
+    let [(h1, d1), (h2, d2)] = split(&whole, &data);
+    let c = config();
+    let first = search_run_on_in(
+        &mut Workspace::default(),
+        source(h1.clone(), d1),
+        Some(source(h2.clone(), d2)),
+        "first",
+        &c,
+        None,
+    )
+    .unwrap();
+    let earlier = found(&first, crossing.t_inf_s, crossing.dm);
+    assert_eq!(earlier.len(), 1, "{:#?}", first.candidates);
+    let offset_s = h1.duration_s();
+    // The same pulse as the later file would time it, fainter or brighter.
+    let seen_later = |snr_factor: f64| {
+        let mut c = earlier[0].clone();
+        c.t_inf_s -= offset_s;
+        c.snr *= snr_factor;
+        vec![c]
+    };
+    let mut fainter = seen_later(0.9);
+    assert_eq!(
+        drop_repeats_across_cut(&h2, &first.candidates, offset_s, &mut fainter),
+        1
+    );
+    assert!(fainter.is_empty());
+    let mut brighter = seen_later(1.2);
+    assert_eq!(
+        drop_repeats_across_cut(&h2, &first.candidates, offset_s, &mut brighter),
+        0
+    );
+    assert_eq!(brighter.len(), 1);
+}

@@ -268,9 +268,11 @@ pub fn search_run_on_in(
 /// the cut is found whole by the earlier recording, which reads on into the later one,
 /// and again, cut short, by the later one, which starts at its own first sample and so
 /// cannot see that the pulse's best boxcar starts before it: a later candidate on the
-/// bow-tie of an earlier one ([`Sweep::on_bow_tie`], as repeats between the blocks
-/// of one recording are found), or the other way round, is the same pulse, and the
-/// earlier recording's candidate stands for it. `header` is the later recording's.
+/// bow-tie of an earlier one at least as bright ([`Sweep::on_bow_tie`], as repeats
+/// between the blocks of one recording are found) is the same pulse, and the earlier
+/// recording's candidate stands for it. A later candidate brighter than the earlier
+/// one is kept: the earlier may be its echo, and a burst is not to be lost for it.
+/// `header` is the later recording's.
 pub fn drop_repeats_across_cut(
     header: &Header,
     earlier: &[Candidate],
@@ -289,7 +291,7 @@ pub fn drop_repeats_across_cut(
         let l = event(l, offset_s);
         !earlier.iter().any(|e| {
             let e = event(e, 0.0);
-            sweep.on_bow_tie(&e, &l, 0.0) || sweep.on_bow_tie(&l, &e, 0.0)
+            e.snr >= l.snr && sweep.on_bow_tie(&e, &l, 0.0)
         })
     });
     before - later.len()
