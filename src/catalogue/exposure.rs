@@ -45,17 +45,26 @@ pub fn merge_intervals(mut spans: Vec<(f64, f64)>) -> Vec<(f64, f64)> {
 }
 
 /// The arrival times at infinite frequency (UTC MJD) of the bursts at `dm`
-/// (pc cm⁻³) whose whole sweep over channels `freq_lo_mhz..=freq_hi_mhz` lies in a
-/// recording spanning `[start_mjd, end_mjd)`: the span moved earlier by the delay to
-/// the top channel and shortened by the sweep across the band. Empty (end ≤ start,
-/// dropped when merged) for a recording shorter than the sweep.
+/// (pc cm⁻³) whose whole sweep over channels `freq_lo_mhz..=freq_hi_mhz` a search
+/// of a recording spanning `[start_mjd, end_mjd)` covered, when it read on
+/// `run_on_s` seconds into the recording that continues it: the span moved earlier
+/// by the delay to the top channel, and shortened by the sweep across the band less
+/// what the reading on covered. A search owns the bursts reaching its top channel
+/// before its end, so one that read on through the whole sweep ends where the next
+/// recording's window starts. Empty (end ≤ start, dropped when merged) for a
+/// recording searched alone that is shorter than the sweep.
 pub fn sweep_window(
     (start_mjd, end_mjd): (f64, f64),
     dm: f64,
     (freq_lo_mhz, freq_hi_mhz): (f64, f64),
+    run_on_s: f64,
 ) -> (f64, f64) {
     let days = |f| delay_to_infinity_s(dm, f) / SECONDS_PER_DAY;
-    (start_mjd - days(freq_hi_mhz), end_mjd - days(freq_lo_mhz))
+    let sweep_end = end_mjd + run_on_s / SECONDS_PER_DAY - days(freq_lo_mhz);
+    (
+        start_mjd - days(freq_hi_mhz),
+        sweep_end.min(end_mjd - days(freq_hi_mhz)),
+    )
 }
 
 /// Total hours covered by merged MJD intervals (0 for none: a float `sum` of nothing
@@ -113,7 +122,8 @@ impl Catalogue {
         let mut stmt = self
             .conn()
             .prepare(
-                "SELECT e.start_mjd, e.end_mjd, e.snr_threshold, s.dm_ref, o.freq_lo_mhz, o.freq_hi_mhz
+                "SELECT e.start_mjd, e.end_mjd, e.snr_threshold, s.dm_ref, o.freq_lo_mhz, o.freq_hi_mhz,
+                     coalesce(r.run_on_s, 0)
                  FROM exposure e JOIN source s ON s.id = e.source_id
                  LEFT JOIN search_run r ON r.id = e.run_id
                  LEFT JOIN observation o ON o.id = r.observation_id
@@ -126,9 +136,10 @@ impl Catalogue {
                 let threshold: Option<f64> = r.get(2)?;
                 let dm: Option<f64> = r.get(3)?;
                 let band = r.get::<_, Option<f64>>(4)?.zip(r.get::<_, Option<f64>>(5)?);
+                let run_on_s: f64 = r.get(6)?;
                 let window = dm
                     .zip(band)
-                    .map_or(span, |(dm, b)| sweep_window(span, dm, b));
+                    .map_or(span, |(dm, b)| sweep_window(span, dm, b, run_on_s));
                 Ok((window, threshold))
             })
             .map_err(|e| self.err(e))?;
@@ -553,10 +564,48 @@ mod tests {
         assert_eq!(merged, vec![(start, end), (60010.0, 60010.5)]);
     }
 
+    // Consecutive recordings of a source at DM 500 (the delays above: a sweep of
+    // 1.433085 − 0.813489 = 0.619596 s across the band). Searched alone, the first
+    // leaves a gap of one sweep before the next one's window: the bursts crossing
+    // from one into the other, which neither search found whole. Read on through the
+    // sweep, its window ends where the next one's starts; read on 0.25 s, the gap
+    // shrinks by as much.
+    #[test]
+    fn a_run_that_read_on_covers_the_sweeps_crossing_into_the_next_recording() {
+        use crate::catalogue::synthetic::{observation, run};
+        for (run_on_s, gap_s) in [(0.0, 0.619_596), (0.25, 0.369_596), (2.0, 0.0)] {
+            let (_d, mut cat) = cat_with_source();
+            let mut source = cat.source("SRC-A").unwrap();
+            source.dm_ref = Some(500.0);
+            cat.upsert_source(&source).unwrap();
+            let first = observation("SRC-A", 3);
+            let mut next = observation("SRC-A", 4);
+            next.header.start = first.header.start.plus_seconds(first.header.duration_s());
+            let mut searched = run(7.0);
+            searched.run_on_s = Some(run_on_s);
+            cat.record_search(&first, &searched, &[]).unwrap();
+            cat.record_search(&next, &run(7.0), &[]).unwrap();
+            let merged = cat.merged_exposure("SRC-A", None).unwrap();
+            match gap_s {
+                0.0 => assert_eq!(merged.len(), 1, "{merged:?}"),
+                _ => {
+                    assert_eq!(merged.len(), 2, "{merged:?}");
+                    let gap = (merged[1].0 - merged[0].1) * 86_400.0;
+                    assert!((gap - gap_s).abs() < 1e-5, "{run_on_s}: {gap}");
+                }
+            }
+        }
+    }
+
     #[test]
     fn a_recording_shorter_than_the_sweep_has_no_window() {
         // 0.5 s against a sweep of 0.630 s over 1200–1600 MHz at DM 500.
-        let w = sweep_window((60000.0, 60000.0 + 0.5 / 86_400.0), 500.0, (1200.0, 1600.0));
+        let w = sweep_window(
+            (60000.0, 60000.0 + 0.5 / 86_400.0),
+            500.0,
+            (1200.0, 1600.0),
+            0.0,
+        );
         assert!(w.1 <= w.0, "{w:?}");
         assert!(merge_intervals(vec![w]).is_empty());
     }

@@ -22,6 +22,9 @@ pub struct EarlierRun {
     pub burstbook_version: String,
     /// Its candidates, in time order.
     pub candidates: Vec<Candidate>,
+    /// Seconds it read on into the recording that continues its observation (0 if
+    /// none); `None` for a run recorded before that was kept.
+    pub run_on_s: Option<f64>,
 }
 
 impl Catalogue {
@@ -49,6 +52,7 @@ impl Catalogue {
         run.fraction_masked = Some(result.fraction_masked);
         // In the recording's own samples, whatever the search averaged.
         run.samples_searched = Some(result.samples_searched * config.average.samples as u64);
+        run.run_on_s = Some(result.run_on_samples as f64 * result.header.tsamp_s);
         self.record_search(obs, &run, &result.candidates)
     }
 
@@ -71,15 +75,15 @@ impl Catalogue {
         let found = self
             .conn()
             .query_row(
-                "SELECT r.id, o.path, r.finished_utc, r.burstbook_version
+                "SELECT r.id, o.path, r.finished_utc, r.burstbook_version, r.run_on_s
                  FROM search_run r JOIN observation o ON o.id = r.observation_id
                  WHERE o.id = ?1 AND r.config_sha256 = ?2 AND r.status = 'complete'",
                 params![obs_id, config_sha256],
-                |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?)),
+                |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?, r.get(4)?)),
             )
             .optional()
             .map_err(|e| self.err(e))?;
-        let Some((run_id, recorded_path, finished_utc, burstbook_version)) = found else {
+        let Some((run_id, recorded_path, finished_utc, burstbook_version, run_on_s)) = found else {
             return Ok(None);
         };
         let ids = self
@@ -109,6 +113,7 @@ impl Catalogue {
             finished_utc,
             burstbook_version,
             candidates,
+            run_on_s,
         }))
     }
 }

@@ -16,6 +16,7 @@
 //!   written by a newer burstbook is refused.
 
 mod bursts;
+mod complete_run;
 mod demote;
 mod exposure;
 mod forget;
@@ -32,6 +33,7 @@ pub mod synthetic;
 mod voevent;
 
 pub use bursts::{BurstTiming, CompletenessRecord};
+pub use complete_run::Completion;
 pub use demote::{DEMOTED, DemoteOptions, Demotion};
 pub use exposure::{
     ExposureImport, ExposureInterval, exposure_hours, merge_intervals, sweep_window,

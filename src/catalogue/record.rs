@@ -7,6 +7,7 @@ use rusqlite::{OptionalExtension, Transaction, params};
 use sha2::{Digest, Sha256};
 
 use super::Catalogue;
+use super::complete_run::{Completion, complete_run};
 use super::identity::{hex, observation_hashes, upsert_observation};
 use crate::candidate::Candidate;
 use crate::error::{Error, Result};
@@ -80,6 +81,9 @@ pub struct RunRecord {
     pub fraction_masked: Option<f64>,
     /// Time samples whose boxcars were searched, if known.
     pub samples_searched: Option<u64>,
+    /// Seconds the run read on into the recording that continues its observation
+    /// (0 if none), if known.
+    pub run_on_s: Option<f64>,
 }
 
 impl RunRecord {
@@ -99,6 +103,7 @@ impl RunRecord {
             finished_utc: super::now_utc(),
             fraction_masked: None,
             samples_searched: None,
+            run_on_s: None,
         }
     }
 }
@@ -110,6 +115,10 @@ pub enum RecordOutcome {
     Inserted { run_id: i64 },
     /// This content was already searched with this configuration; nothing written.
     AlreadyPresent { run_id: i64 },
+    /// This content was searched with this configuration before, reading on less
+    /// far into the recording that continues it: that run was completed with this
+    /// one's finds (see [`Completion`]).
+    Completed { run_id: i64, completion: Completion },
 }
 
 /// Hex SHA-256 of a configuration's JSON text, exactly as given. Pass
@@ -130,7 +139,10 @@ impl Catalogue {
     ///
     /// If the same recording (the same content, or the same samples under a header
     /// that says the same) was already recorded with the same configuration hash,
-    /// nothing is written and [`RecordOutcome::AlreadyPresent`] is returned. The
+    /// nothing is written and [`RecordOutcome::AlreadyPresent`] is returned — unless
+    /// `run` read on further into the recording that continues it
+    /// (`run.run_on_s`): then the held run is completed with these candidates
+    /// ([`RecordOutcome::Completed`]; added finds, none lost). The
     /// observation's source is added to `source` (header position, no reference
     /// DM) if not yet known, and the searched span becomes exposure for it — unless
     /// the run masked everything (`fraction_masked` 1): a dead receiver or a mask
@@ -163,7 +175,13 @@ impl Catalogue {
                 .optional()
                 .map_err(&err)?;
             if let Some(run_id) = existing {
-                return Ok(RecordOutcome::AlreadyPresent { run_id });
+                let reach = run.run_on_s.unwrap_or(0.0);
+                return Ok(
+                    match complete_run(tx, run_id, reach, candidates).map_err(&err)? {
+                        Some(completion) => RecordOutcome::Completed { run_id, completion },
+                        None => RecordOutcome::AlreadyPresent { run_id },
+                    },
+                );
             }
             let run_id =
                 insert_run(tx, obs_id, &config_sha, run, candidates.len()).map_err(&err)?;
@@ -185,8 +203,8 @@ fn insert_run(
     tx.execute(
         "INSERT INTO search_run (observation_id, config_sha256, burstbook_version, config_json,
              dm_plan_json, snr_threshold, started_utc, finished_utc, status, n_candidates,
-             fraction_masked, samples_searched)
-         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, 'complete', ?9, ?10, ?11)",
+             fraction_masked, samples_searched, run_on_s)
+         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, 'complete', ?9, ?10, ?11, ?12)",
         params![
             obs_id,
             config_sha,
@@ -199,15 +217,16 @@ fn insert_run(
             n_candidates as i64,
             run.fraction_masked,
             run.samples_searched.map(|n| n as i64),
+            run.run_on_s,
         ],
     )?;
     Ok(tx.last_insert_rowid())
 }
 
-fn insert_candidates(
+pub(super) fn insert_candidates<'a>(
     tx: &Transaction<'_>,
     run_id: i64,
-    candidates: &[Candidate],
+    candidates: impl IntoIterator<Item = &'a Candidate>,
 ) -> rusqlite::Result<()> {
     let mut stmt = tx.prepare_cached(
         "INSERT INTO candidate (run_id, file, t_inf_s, mjd_inf, dm, dm_lo, dm_hi, width_ms, snr,

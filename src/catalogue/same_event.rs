@@ -10,6 +10,7 @@
 use rusqlite::{Connection, named_params};
 
 use super::Catalogue;
+use crate::candidate::Candidate;
 use crate::error::Result;
 use crate::units::DISPERSION_CONSTANT_S_MHZ2;
 
@@ -77,6 +78,32 @@ pub(super) fn same_event_as(conn: &Connection, id: i64) -> rusqlite::Result<Vec<
     let mut stmt = conn.prepare_cached(&sql)?;
     let rows = stmt.query_map(
         named_params! {":id": id, ":k": DISPERSION_CONSTANT_S_MHZ2},
+        |r| r.get(0),
+    )?;
+    rows.collect()
+}
+
+/// The candidates of run `run_id` that are the event of `c` (a find of another
+/// search of the same recording, not yet recorded), by id.
+pub(super) fn held_finds_of_event(
+    conn: &Connection,
+    run_id: i64,
+    c: &Candidate,
+) -> rusqlite::Result<Vec<i64>> {
+    let sql = format!(
+        "WITH c (t_inf_s, dm, dm_lo, dm_hi, width_ms) AS
+             (VALUES (:t_inf_s, :dm, :dm_lo, :dm_hi, :width_ms))
+         SELECT x.id FROM c, candidate x
+             JOIN search_run r ON r.id = x.run_id
+             JOIN observation o ON o.id = r.observation_id
+         WHERE x.run_id = :run AND {SAME_EVENT} ORDER BY x.id"
+    );
+    let mut stmt = conn.prepare_cached(&sql)?;
+    let rows = stmt.query_map(
+        named_params! {
+            ":t_inf_s": c.t_inf_s, ":dm": c.dm, ":dm_lo": c.dm_lo, ":dm_hi": c.dm_hi,
+            ":width_ms": c.width_ms, ":run": run_id, ":k": DISPERSION_CONSTANT_S_MHZ2,
+        },
         |r| r.get(0),
     )?;
     rows.collect()

@@ -16,6 +16,7 @@ pub(crate) const MIGRATIONS: &[&str] = &[
     include_str!("../../migrations/0003_run_statistics.sql"),
     include_str!("../../migrations/0004_recording_identity.sql"),
     include_str!("../../migrations/0005_burst_ids_never_reused.sql"),
+    include_str!("../../migrations/0006_run_read_on.sql"),
 ];
 
 /// The schema version this burstbook writes.

@@ -211,30 +211,42 @@ pub fn run(args: Args) -> anyhow::Result<()> {
             },
             _ => None,
         };
-        if let (Some(cat), Some(earlier), false) = (&catalogue, earlier, args.search_again) {
-            say!(
-                "{label}: skipped, the catalogue {} holds a finished search of this recording \
-                 with this configuration (run {} finished {}, candidates: {}{}); --search-again searches it anyway",
-                cat.path().display(),
-                earlier.run_id,
-                earlier.finished_utc,
-                earlier.candidates.len(),
-                match earlier.recorded_path == label {
-                    true => String::new(),
-                    false => format!(", recorded as {}", earlier.recorded_path),
-                },
-            )?;
-            if let Some(&next) = chains[i].first() {
-                // The catalogue does not record whether that search read on.
-                note!(
-                    "{label}: if that search did not read on into {}, which continues it, a \
-                     sweep crossing into it was missed; `book forget` its observation and \
-                     search both again to join them",
-                    paths[next].display()
-                );
+        // A search that did not read on into the file that continues it (or is not
+        // known to have) missed the sweeps crossing into it: searched again, joined,
+        // it completes that run.
+        let completes = match (&earlier, chains[i].first()) {
+            (Some(earlier), Some(_)) => earlier.run_on_s.is_none_or(|s| s <= 0.0),
+            _ => false,
+        };
+        if let (Some(cat), Some(earlier)) = (&catalogue, earlier) {
+            if completes {
+                say!(
+                    "{label}: searched again, reading on into {}, which continues it: its \
+                     search in catalogue {} (run {}) {}",
+                    paths[chains[i][0]].display(),
+                    cat.path().display(),
+                    earlier.run_id,
+                    match earlier.run_on_s {
+                        Some(_) => "did not",
+                        None => "is not known to have",
+                    }
+                )?;
+            } else if !args.search_again {
+                say!(
+                    "{label}: skipped, the catalogue {} holds a finished search of this recording \
+                     with this configuration (run {} finished {}, candidates: {}{}); --search-again searches it anyway",
+                    cat.path().display(),
+                    earlier.run_id,
+                    earlier.finished_utc,
+                    earlier.candidates.len(),
+                    match earlier.recorded_path == label {
+                        true => String::new(),
+                        false => format!(", recorded as {}", earlier.recorded_path),
+                    },
+                )?;
+                files.push(FileOutcome::skipped(label, earlier));
+                continue;
             }
-            files.push(FileOutcome::skipped(label, earlier));
-            continue;
         }
         let source = match config.average.wrap(source, &label) {
             Ok(source) => source,
@@ -324,6 +336,18 @@ pub fn run(args: Args) -> anyhow::Result<()> {
                     "{label}: already in catalogue {} as run {run_id}, which is kept \
                      (this search is in the outputs only)",
                     cat.path().display()
+                )?,
+                RecordOutcome::Completed { run_id, completion } => say!(
+                    "{label}: run {run_id} in catalogue {} completed: {} candidate(s) added{}",
+                    cat.path().display(),
+                    completion.added,
+                    match completion.replaced {
+                        0 => String::new(),
+                        n => format!(
+                            ", in place of {n} it had found from part of their sweep \
+                             (none reviewed or promoted)"
+                        ),
+                    }
                 )?,
             }
         }

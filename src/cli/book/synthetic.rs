@@ -30,6 +30,7 @@ pub fn run(cat: &mut Catalogue, a: FillArgs) -> anyhow::Result<()> {
         let what = match cat.record_search(&obs, &synthetic::run(7.0), &cands)? {
             RecordOutcome::Inserted { .. } => "inserted",
             RecordOutcome::AlreadyPresent { .. } => "present",
+            RecordOutcome::Completed { .. } => "completed",
         };
         writeln!(out, "{seed} {what}")?;
         out.flush()?;
