@@ -444,15 +444,13 @@ fn a_short_file_is_read_through_into_the_one_after_it() {
 }
 
 // A file shorter than a sweep at the highest DM (0.2 s here, the sweep at DM 250
-// lasting 0.32 s), read on into a long one, is searched at every trial DM: a burst
-// starting in it is found by it, as in the recording searched whole. Its plan was
-// cut to the DMs whose sweep fits in the short file alone, though the rows read on
-// into hold the rest of the sweep.
+// lasting 0.32 s), read on into a long one, is searched at every trial DM and as a
+// longer file is: a burst starting in it is found by it with the S/N, DM and verdict
+// the recording searched whole gives. Its one block used to end 0.5 s after its
+// start, too few samples to normalise the series and measure the noise of wide
+// boxcars: the burst came out at 32 ms and DM 238, called rfi. It now reads on until
+// a block is full.
 #[test]
-#[ignore = "open: the 0.2 s file is now planned and searched to DM 300 \
-            (a_short_file_read_on_into_a_long_one_is_planned_to_every_dm), but its one short \
-            block finds the burst at 32 ms and DM 238, called rfi: too few samples for the \
-            series normalisation and the noise of wide boxcars"]
 fn a_short_file_read_on_into_a_long_one_is_searched_at_every_dm() {
     let whole = header(N_CHAN, N, TSAMP);
     let (lo, hi) = (N_FIRST - 200, N_FIRST);
@@ -462,12 +460,8 @@ fn a_short_file_read_on_into_a_long_one_is_searched_at_every_dm() {
     let part = |from: u64, to: u64| part_of(&whole, &data, from, to);
     let c = config();
     let all = search_source(source(whole.clone(), data.clone()), "whole", &c, None).unwrap();
-    assert_eq!(
-        found(&all, b.t_inf_s, b.dm).len(),
-        1,
-        "{:#?}",
-        all.candidates
-    );
+    let in_whole = found(&all, b.t_inf_s, b.dm);
+    assert_eq!(in_whole.len(), 1, "{:#?}", all.candidates);
     let short = search_run_on_in(
         &mut Workspace::default(),
         part(lo, hi),
@@ -478,13 +472,18 @@ fn a_short_file_read_on_into_a_long_one_is_searched_at_every_dm() {
     )
     .unwrap();
     let t_in_short = b.t_inf_s - lo as f64 * TSAMP;
+    let in_short = found(&short, t_in_short, b.dm);
     assert_eq!(
-        found(&short, t_in_short, b.dm).len(),
+        in_short.len(),
         1,
         "highest DM searched {:?}: {:#?}",
         short.highest_dm_searched(),
         short.candidates
     );
+    let (s, w) = (in_short[0], in_whole[0]);
+    assert!((s.snr / w.snr - 1.0).abs() < 0.1, "{s:#?} {w:#?}");
+    assert_eq!(s.verdict, w.verdict, "{s:#?} {w:#?}");
+    assert!((s.dm - w.dm).abs() < 0.03 * w.dm, "{s:#?} {w:#?}");
 }
 
 // With --average-samples, consecutive files whose first is not a whole number of

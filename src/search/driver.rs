@@ -170,7 +170,12 @@ pub fn search_run_on_in(
     let mut searcher = Searcher::new(header, read_bytes, sweep_room_s, config, label)?;
     let source = match next {
         Some(next) => {
-            let run_on = RunOn::new(source, next, searcher.layout.overlap as u64)?;
+            // A recording shorter than a block reads on until one is full, so that
+            // its series are normalised, and the noise of wide boxcars measured, on
+            // as many samples as in a longer recording.
+            let g = &searcher.layout;
+            let fill = (g.block_len as u64).saturating_sub(searcher.header.n_samples);
+            let run_on = RunOn::new(source, next, fill.max(g.overlap as u64))?;
             searcher.run_on_samples = run_on.extra_rows();
             Box::new(run_on)
         }
@@ -400,10 +405,12 @@ impl<'a> Searcher<'a> {
         let max_delay = plan.max_delay_samples();
         let margin = max_width + 2 * max_ds;
         let overlap = max_delay + max_width + 2 * margin;
-        // New rows per block, never more than the recording holds: a longer block
-        // would only allocate memory no read can fill (`--block-s 1e6` aborted).
+        // New rows per block, never more than the recording holds with the rows it
+        // may read on into: a longer block would only allocate memory no read can
+        // fill (`--block-s 1e6` aborted).
         let wanted = (config.block_s / header.tsamp_s).ceil();
-        let advance = (wanted.min(header.n_samples.max(1) as f64) as usize).max(overlap);
+        let room = (sweep_room_s / header.tsamp_s).round().max(1.0);
+        let advance = (wanted.min(room) as usize).max(overlap);
         let layout = BlockLayout {
             max_delay,
             max_width,
