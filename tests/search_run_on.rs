@@ -163,19 +163,36 @@ fn write_consecutive_files_at(
     top_sample: f64,
     seed: u64,
 ) -> ([std::path::PathBuf; 2], f64) {
+    write_consecutive_files_as(dir, top_sample, seed, [Container::Native; 2])
+}
+
+/// [`write_consecutive_files_at`] in the given containers (`a.json` or `a.fits`,
+/// then `b…`).
+fn write_consecutive_files_as(
+    dir: &Path,
+    top_sample: f64,
+    seed: u64,
+    containers: [Container; 2],
+) -> ([std::path::PathBuf; 2], f64) {
     let whole = header(N_CHAN, N, TSAMP);
     let crossing = burst_at_top(&whole, top_sample, 250.0, 25.0);
     let mut data = noise(&whole, seed);
     add(&whole, &mut data, &crossing);
-    let paths = ["a.json", "b.json"].map(|name| dir.join(name));
-    for (path, (mut h, rows)) in paths.iter().zip(split(&whole, &data)) {
+    let paths = [("a", containers[0]), ("b", containers[1])].map(|(name, c)| {
+        dir.join(match c {
+            Container::Native => format!("{name}.json"),
+            Container::Fits => format!("{name}.fits"),
+        })
+    });
+    for ((path, container), (mut h, rows)) in paths.iter().zip(containers).zip(split(&whole, &data))
+    {
         // 8-bit samples (mean 96, σ 12), read as bytes, as survey files are.
         h.nbits = 8;
         let bytes: Vec<f32> = rows
             .iter()
             .map(|&x| (96.0 + 12.0 * (x - 1.0) * 7.07).round())
             .collect();
-        let mut sink = obs::create(path, &h, Container::Native).unwrap();
+        let mut sink = obs::create(path, &h, container).unwrap();
         sink.write_rows(&bytes).unwrap();
         sink.finish().unwrap();
     }
@@ -597,6 +614,32 @@ fn a_file_following_another_but_not_joined_gets_a_note() {
         "{stderr}"
     );
     assert!(!String::from_utf8_lossy(&run.stdout).contains("read on"));
+}
+
+// A recording written partly as native files and partly as FITS (a change of
+// recorder, or files converted one by one) is still joined: FITS keeps the site as
+// Earth-fixed metres, and its round trip moves the longitude and latitude by about
+// 1e-9°, a tenth of a millimetre, which must not count as another site.
+#[test]
+fn a_native_file_continued_by_a_fits_file_is_joined() {
+    let dir = tempfile::tempdir().unwrap();
+    let ([a, b], dm) = write_consecutive_files_as(
+        dir.path(),
+        N_FIRST as f64 - 100.0,
+        43,
+        [Container::Native, Container::Fits],
+    );
+    let out = dir.path().join("out");
+    let run = search_cli(&[&a, &b], &out, &[]);
+    assert_success(&run);
+    let stdout = String::from_utf8_lossy(&run.stdout);
+    assert!(
+        stdout.contains("read on"),
+        "{stdout}{}",
+        String::from_utf8_lossy(&run.stderr)
+    );
+    let near = |dms: &[f64]| dms.iter().filter(|&&d| (d - dm).abs() < 0.1 * dm).count();
+    assert_eq!(near(&candidate_dms(&out, "a.json")), 1, "{stdout}");
 }
 
 // A file shorter than the sweep at the highest DM, read on into a long one, is planned

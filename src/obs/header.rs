@@ -35,6 +35,28 @@ pub struct Site {
     pub height_m: f64,
 }
 
+/// Farthest apart, in metres, two positions of one site may be given: a FITS file
+/// keeps the site as Earth-fixed metres, whose round trip moves a geodetic position
+/// by about 1e-9° (0.1 mm). A centimetre is far below what matters for arrival
+/// times (3 cm is 0.1 ns).
+const SAME_PLACE_M: f64 = 0.01;
+
+impl Site {
+    /// Whether `other` is this site: a position within [`SAME_PLACE_M`], whatever
+    /// the names (free text; a FITS file names its site after the telescope).
+    pub fn is_same_place(&self, other: &Site) -> bool {
+        let xyz = |s: &Site| super::geodesy::geodetic_to_itrf_m(s.lon_deg, s.lat_deg, s.height_m);
+        let (a, b) = (xyz(self), xyz(other));
+        let distance_m = a
+            .iter()
+            .zip(&b)
+            .map(|(p, q)| (p - q).powi(2))
+            .sum::<f64>()
+            .sqrt();
+        distance_m <= SAME_PLACE_M
+    }
+}
+
 /// Seconds from `a` to `b`, when they lie on the same or on adjacent UTC days (a leap
 /// second ending the earlier day counted); `None` further apart.
 fn seconds_between(a: UtcEpoch, b: UtcEpoch) -> Option<f64> {
@@ -283,17 +305,32 @@ impl Header {
     }
 
     /// Whether `next` continues this recording, as consecutive files of one long
-    /// recording do: every field but the start and the length the same, and `next`
-    /// starting where this one ends, to within half a sample.
+    /// recording do: no [`Self::fields_breaking_continuity`], and `next` starting
+    /// where this one ends, to within half a sample.
     pub fn is_continued_by(&self, next: &Header) -> bool {
         // The start first: it rules out nearly every pair of a long list at once, and
         // comparing every field (channel by channel) costs a microsecond.
         self.seconds_to(next)
             .is_some_and(|gap| gap.abs() <= 0.5 * self.tsamp_s)
-            && self
-                .differing_fields(next)
-                .into_iter()
-                .all(|field| field == "start" || field == "n_samples")
+            && self.fields_breaking_continuity(next).is_empty()
+    }
+
+    /// The fields in which `next` differs from this recording so that it cannot
+    /// continue it: every field but the start and the length, except the site when
+    /// it is the same place ([`Site::is_same_place`]: the formats keep a position to
+    /// different precision) and an SEFD only one of them knows (a FITS file has no
+    /// keyword for it).
+    pub fn fields_breaking_continuity(&self, next: &Header) -> Vec<&'static str> {
+        let (sefd, other_sefd) = (self.sefd_jy, next.sefd_jy);
+        self.differing_fields(next)
+            .into_iter()
+            .filter(|&field| match field {
+                "start" | "n_samples" => false,
+                "site" => !self.site.is_same_place(&next.site),
+                "sefd_jy" => sefd.is_some() && other_sefd.is_some(),
+                _ => true,
+            })
+            .collect()
     }
 
     /// Checks the invariants every reader and writer relies on.
@@ -618,5 +655,38 @@ mod bound_tests {
         assert!(before_leap.is_continued_by(&after));
         after.start = UtcEpoch::new(57_753, 86_399.999_8);
         assert!(!before_leap.is_continued_by(&after));
+    }
+
+    // One site given to different precision, or under another name, is one site; a
+    // site moved by a few centimetres is another. An SEFD that only one file knows
+    // does not break a recording (FITS has no keyword for it); two that differ do.
+    #[test]
+    fn the_site_to_a_centimetre_and_an_unknown_sefd_keep_a_recording_whole() {
+        let mut a = test_header(8, 1000);
+        a.sefd_jy = Some(20.0);
+        let mut b = a.clone();
+        b.start = a.epoch_of_sample(1000.0);
+        // 1e-9° of latitude is 0.11 mm on the ground; 1e-6° is 11 cm.
+        b.site.lat_deg += 1e-9;
+        b.site.lon_deg -= 1e-9;
+        b.sefd_jy = None;
+        b.site.name = "the telescope's name".into();
+        assert!(a.is_continued_by(&b));
+        assert!(b.is_continued_by(&Header {
+            start: b.epoch_of_sample(1000.0),
+            ..a.clone()
+        }));
+        let moved = |h: &mut Header| h.site.lat_deg += 1e-6;
+        let recalibrated = |h: &mut Header| h.sefd_jy = Some(25.0);
+        for (change, field) in [
+            (moved as fn(&mut Header), "site"),
+            (recalibrated, "sefd_jy"),
+        ] {
+            let mut c = b.clone();
+            c.sefd_jy = Some(20.0);
+            change(&mut c);
+            assert!(!a.is_continued_by(&c), "{c:?}");
+            assert_eq!(a.fields_breaking_continuity(&c), [field]);
+        }
     }
 }

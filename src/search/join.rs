@@ -125,11 +125,7 @@ pub fn near_misses(
             if j == i || continued.contains(&j) || gap_s.abs() > h.tsamp_s {
                 continue;
             }
-            let fields: Vec<&str> = h
-                .differing_fields(next)
-                .into_iter()
-                .filter(|&f| f != "start" && f != "n_samples")
-                .collect();
+            let fields = h.fields_breaking_continuity(next);
             let why = match fields.is_empty() {
                 true => format!(
                     "it starts {:.2} samples after that one ends, over half a sample",
