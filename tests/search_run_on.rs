@@ -373,6 +373,58 @@ fn a_file_searched_alone_is_joined_when_its_successor_comes() {
     assert_eq!(near(&catalogued()), 1, "{stdout}");
 }
 
+// Each file searched alone as it arrived, then both listed: the first is searched
+// again, reading on, and finds the pulse crossing the cut whole; the second, skipped
+// as already searched, held that pulse again, found from the part of its sweep after
+// the cut. That repeat is taken out of its catalogue run and the outputs, so the
+// pulse is catalogued once.
+#[test]
+fn a_repeat_recorded_before_the_file_it_continues_was_joined_is_taken_out() {
+    let dir = tempfile::tempdir().unwrap();
+    let ([a, b], dm) = write_consecutive_files_at(dir.path(), N_FIRST as f64 - 3.0, 54);
+    let catalogue = dir.path().join("survey.sqlite");
+    let search = |files: &[&Path], out: &str| {
+        let out = dir.path().join(out);
+        let mut args: Vec<&std::ffi::OsStr> = vec!["search".as_ref()];
+        args.extend(files.iter().map(|f| f.as_os_str()));
+        args.extend::<[&std::ffi::OsStr; 6]>([
+            "--out".as_ref(),
+            out.as_os_str(),
+            "--catalogue".as_ref(),
+            catalogue.as_os_str(),
+            "--dm-max".as_ref(),
+            "300".as_ref(),
+        ]);
+        let run = burstbook(&args);
+        assert_success(&run);
+        (out, String::from_utf8_lossy(&run.stdout).into_owned())
+    };
+    let near = |dms: &[f64]| dms.iter().filter(|&&d| (d - dm).abs() < 0.1 * dm).count();
+    let catalogued = || {
+        let conn = rusqlite::Connection::open(&catalogue).unwrap();
+        let mut stmt = conn.prepare("SELECT dm FROM candidate").unwrap();
+        let dms: Vec<f64> = stmt
+            .query_map([], |r| r.get(0))
+            .unwrap()
+            .map(Result::unwrap)
+            .collect();
+        near(&dms)
+    };
+    search(&[&a], "first");
+    let (out, stdout) = search(&[&b], "second");
+    assert_eq!(near(&candidate_dms(&out, "b.json")), 1, "{stdout}");
+    assert_eq!(catalogued(), 1);
+    let (out, stdout) = search(&[&a, &b], "both");
+    assert!(stdout.contains("taken out of run"), "{stdout}");
+    assert_eq!(near(&candidate_dms(&out, "a.json")), 1, "{stdout}");
+    assert_eq!(near(&candidate_dms(&out, "b.json")), 0, "{stdout}");
+    assert_eq!(catalogued(), 1, "{stdout}");
+    // Listed again: both skipped, nothing more taken out.
+    let (_, stdout) = search(&[&a, &b], "again");
+    assert!(!stdout.contains("taken out"), "{stdout}");
+    assert_eq!(catalogued(), 1, "{stdout}");
+}
+
 /// A recording that continues another but whose every read fails (a sample that is
 /// not finite, a disk error).
 struct Unreadable(Header);

@@ -1,14 +1,19 @@
-//! Completing a search run when its recording is searched again with the same
-//! configuration but reading on further into the recording that continues it
-//! (consecutive files are joined: docs/search.md, "Consecutive files"). The earlier
-//! run could not search the sweeps crossing into the next file; the new one did,
-//! and elsewhere finds exactly what the earlier one found.
+//! Keeping the runs of consecutive files whole and without repeats when one is
+//! searched after the other (consecutive files are joined: docs/search.md,
+//! "Consecutive files"). A run is completed when its recording is searched again
+//! with the same configuration but reading on further into the recording that
+//! continues it: the earlier run could not search the sweeps crossing into the next
+//! file; the new one did, and elsewhere finds exactly what the earlier one found.
+//! The next file's run, if recorded before, may hold such a pulse again, found from
+//! the part of its sweep after the cut: that repeat is taken out.
 
 use rusqlite::{Transaction, params};
 
+use super::Catalogue;
 use super::record::insert_candidates;
 use super::same_event::held_finds_of_event;
 use crate::candidate::Candidate;
+use crate::error::Result;
 
 /// What completing a run changed.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -94,26 +99,82 @@ pub(super) fn complete_run(
 }
 
 fn fate(tx: &Transaction<'_>, run_id: i64, c: &Candidate) -> rusqlite::Result<Fate> {
-    let held_exactly: bool = tx.query_row(
-        "SELECT EXISTS (SELECT 1 FROM candidate WHERE run_id = ?1
-             AND t_inf_s = ?2 AND dm = ?3 AND width_ms = ?4 AND snr = ?5)",
-        params![run_id, c.t_inf_s, c.dm, c.width_ms, c.snr],
-        |r| r.get(0),
-    )?;
-    if held_exactly {
+    if held_exactly(tx, run_id, c)?.is_some() {
         return Ok(Fate::Held);
     }
     let earlier = held_finds_of_event(tx, run_id, c)?;
-    let mut judged = tx.prepare_cached(
-        "SELECT EXISTS (SELECT 1 FROM review_label WHERE candidate_id = ?1)
-             OR EXISTS (SELECT 1 FROM burst WHERE candidate_id = ?1)",
-    )?;
     for &id in &earlier {
-        if judged.query_row([id], |r| r.get::<_, bool>(0))? {
+        if is_judged(tx, id)? {
             return Ok(Fate::Judged);
         }
     }
     Ok(Fate::Added(earlier))
+}
+
+/// The id of the candidate of run `run_id` that is `c` exactly, if any.
+fn held_exactly(tx: &Transaction<'_>, run_id: i64, c: &Candidate) -> rusqlite::Result<Option<i64>> {
+    use rusqlite::OptionalExtension;
+    tx.prepare_cached(
+        "SELECT id FROM candidate WHERE run_id = ?1
+             AND t_inf_s = ?2 AND dm = ?3 AND width_ms = ?4 AND snr = ?5",
+    )?
+    .query_row(params![run_id, c.t_inf_s, c.dm, c.width_ms, c.snr], |r| {
+        r.get(0)
+    })
+    .optional()
+}
+
+/// Whether someone reviewed candidate `id` or promoted it to a burst.
+fn is_judged(tx: &Transaction<'_>, id: i64) -> rusqlite::Result<bool> {
+    tx.prepare_cached(
+        "SELECT EXISTS (SELECT 1 FROM review_label WHERE candidate_id = ?1)
+             OR EXISTS (SELECT 1 FROM burst WHERE candidate_id = ?1)",
+    )?
+    .query_row([id], |r| r.get(0))
+}
+
+impl Catalogue {
+    /// Takes `repeats` out of run `run_id`, in one transaction, and returns those
+    /// taken out: the finds of a recording that repeat a pulse the recording it
+    /// continues found whole, across the cut (`search::drop_repeats_across_cut`),
+    /// when that one was searched, reading on, after this run was recorded. A
+    /// repeat someone reviewed or promoted stays, as does one the run does not
+    /// hold exactly.
+    ///
+    /// # Errors
+    /// An SQLite failure (then nothing changed).
+    pub fn take_out_repeats(
+        &mut self,
+        run_id: i64,
+        repeats: &[Candidate],
+    ) -> Result<Vec<Candidate>> {
+        let path = self.path().to_path_buf();
+        self.write(|tx| take_out(tx, run_id, repeats).map_err(|e| super::sql_error(&path, e)))
+    }
+}
+
+fn take_out(
+    tx: &Transaction<'_>,
+    run_id: i64,
+    repeats: &[Candidate],
+) -> rusqlite::Result<Vec<Candidate>> {
+    let mut taken = Vec::new();
+    for c in repeats {
+        let Some(id) = held_exactly(tx, run_id, c)? else {
+            continue;
+        };
+        if !is_judged(tx, id)? {
+            tx.execute("DELETE FROM candidate WHERE id = ?1", [id])?;
+            taken.push(c.clone());
+        }
+    }
+    tx.execute(
+        "UPDATE search_run
+         SET n_candidates = (SELECT count(*) FROM candidate WHERE run_id = ?1)
+         WHERE id = ?1",
+        [run_id],
+    )?;
+    Ok(taken)
 }
 
 #[cfg(test)]
@@ -235,6 +296,28 @@ mod tests {
         let ids = candidate_ids(&cat, &CandidateFilter::default());
         assert_eq!(ids.len(), 5);
         assert!(ids.contains(&part));
+        assert_whole(&cat);
+    }
+
+    // Repeats are taken out of the run, except one someone reviewed and one the run
+    // does not hold exactly; the run's count follows.
+    #[test]
+    fn repeats_are_taken_out_unless_judged() {
+        let dir = tempfile::tempdir().unwrap();
+        let mut cat = Catalogue::open(&dir.path().join("c.sqlite")).unwrap();
+        let (obs, earlier, _) = searches();
+        let RecordOutcome::Inserted { run_id } = record(&mut cat, &obs, &earlier, Some(0.0)) else {
+            panic!("not inserted")
+        };
+        let ids = held(&cat);
+        cat.label(&[ids[1].0], "burst", "tester", "").unwrap();
+        let mut not_held = earlier[2].clone();
+        not_held.snr += 1.0;
+        let repeats = [earlier[0].clone(), earlier[1].clone(), not_held];
+        let taken = cat.take_out_repeats(run_id, &repeats).unwrap();
+        assert_eq!(taken, [earlier[0].clone()]);
+        let left: Vec<i64> = held(&cat).iter().map(|h| h.0).collect();
+        assert_eq!(left, [ids[1].0, ids[2].0, ids[3].0]);
         assert_whole(&cat);
     }
 }

@@ -244,6 +244,38 @@ pub fn run(args: Args) -> anyhow::Result<()> {
                         false => format!(", recorded as {}", earlier.recorded_path),
                     },
                 )?;
+                let mut earlier = earlier;
+                let cuts = Cuts {
+                    headers: &headers,
+                    chains: &chains,
+                    order: &order,
+                };
+                let found = cuts.repeats(i, &headers[i], &mut earlier.candidates, &files);
+                if !found.is_empty() {
+                    // The file it continues was searched since, reading on: its
+                    // finds across the cut are whole, and this run's are repeats.
+                    let (run_id, repeats) = (earlier.run_id, found.into_iter().flat_map(|f| f.1));
+                    let repeats: Vec<_> = repeats.collect();
+                    let cat = catalogue.as_mut().expect("a run comes from a catalogue");
+                    let taken = cat.take_out_repeats(run_id, &repeats)?;
+                    say!(
+                        "{label}: {} of its candidate(s) near its start taken out of run {run_id} \
+                         in catalogue {}: the same pulses as found whole, across the cut, by the \
+                         file it continues{}",
+                        taken.len(),
+                        cat.path().display(),
+                        match repeats.len() - taken.len() {
+                            0 => String::new(),
+                            n => format!(" ({n} reviewed or promoted, kept)"),
+                        }
+                    )?;
+                    // Those kept stay in the outputs, as in the catalogue.
+                    let kept = repeats.into_iter().filter(|r| !taken.contains(r));
+                    earlier.candidates.extend(kept);
+                    earlier
+                        .candidates
+                        .sort_by(|a, b| a.t_inf_s.total_cmp(&b.t_inf_s));
+                }
                 files.push(FileOutcome::skipped(label, earlier));
                 continue;
             }
@@ -272,24 +304,18 @@ pub fn run(args: Args) -> anyhow::Result<()> {
                 continue;
             }
         };
-        // Each outcome so far is that of the file at its place in `order`.
-        for (p, offset_s) in search::join::read_on_from(i, &headers, &chains) {
-            let Some(at) = order[..files.len()].iter().position(|&j| j == p) else {
-                continue;
-            };
-            let repeats = search::drop_repeats_across_cut(
-                &result.header,
-                files[at].candidates(),
-                offset_s,
-                &mut result.candidates,
-            );
-            if repeats > 0 {
-                say!(
-                    "{label}: {repeats} candidate(s) near its start left out, the same \
-                     pulses as found by {}, which it continues, across the cut",
-                    paths[p].display()
-                )?;
-            }
+        let cuts = Cuts {
+            headers: &headers,
+            chains: &chains,
+            order: &order,
+        };
+        for (p, repeats) in cuts.repeats(i, &result.header, &mut result.candidates, &files) {
+            say!(
+                "{label}: {} candidate(s) near its start left out, the same pulses as found \
+                 by {}, which it continues, across the cut",
+                repeats.len(),
+                paths[p].display()
+            )?;
         }
         let wall_s = clock.elapsed().as_secs_f64();
         if result.run_on_samples > 0 {
@@ -398,6 +424,45 @@ pub fn run(args: Args) -> anyhow::Result<()> {
             failed.iter().map(|f| f.0).collect::<Vec<_>>().join(", "),
             json.display()
         ),
+    }
+}
+
+/// How the listed files continue one another, for leaving out repeats across cuts.
+struct Cuts<'a> {
+    headers: &'a [burstbook::obs::Header],
+    chains: &'a [Vec<usize>],
+    /// The order files are searched in; the outcomes so far are of its first ones.
+    order: &'a [usize],
+}
+
+impl Cuts<'_> {
+    /// Removes from `candidates`, those of file `i` as searched with `header`, the
+    /// repeats of pulses found whole across the cut by the files it continues
+    /// (`files`, the outcomes so far), and returns them with the file that found
+    /// each pulse.
+    fn repeats(
+        &self,
+        i: usize,
+        header: &burstbook::obs::Header,
+        candidates: &mut Vec<burstbook::Candidate>,
+        files: &[FileOutcome],
+    ) -> Vec<(usize, Vec<burstbook::Candidate>)> {
+        let mut found = Vec::new();
+        for (p, offset_s) in search::join::read_on_from(i, self.headers, self.chains) {
+            let Some(at) = self.order[..files.len()].iter().position(|&j| j == p) else {
+                continue;
+            };
+            let before = candidates.clone();
+            search::drop_repeats_across_cut(header, files[at].candidates(), offset_s, candidates);
+            let repeats: Vec<_> = before
+                .into_iter()
+                .filter(|c| !candidates.contains(c))
+                .collect();
+            if !repeats.is_empty() {
+                found.push((p, repeats));
+            }
+        }
+        found
     }
 }
 
