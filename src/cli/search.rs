@@ -218,7 +218,7 @@ pub fn run(args: Args) -> anyhow::Result<()> {
             (Some(earlier), Some(_)) => earlier.run_on_s.is_none_or(|s| s <= 0.0),
             _ => false,
         };
-        if let (Some(cat), Some(earlier)) = (&catalogue, earlier) {
+        if let (Some(cat), Some(earlier)) = (catalogue.as_mut(), earlier) {
             if completes {
                 say!(
                     "{label}: searched again, reading on into {}, which continues it: its \
@@ -256,7 +256,6 @@ pub fn run(args: Args) -> anyhow::Result<()> {
                     // finds across the cut are whole, and this run's are repeats.
                     let (run_id, repeats) = (earlier.run_id, found.into_iter().flat_map(|f| f.1));
                     let repeats: Vec<_> = repeats.collect();
-                    let cat = catalogue.as_mut().expect("a run comes from a catalogue");
                     let taken = cat.take_out_repeats(run_id, &repeats)?;
                     say!(
                         "{label}: {} of its candidate(s) near its start taken out of run {run_id} \
