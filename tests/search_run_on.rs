@@ -767,4 +767,7 @@ fn only_a_repeat_no_brighter_than_the_earlier_candidate_is_dropped() {
     };
     assert_eq!(left_out_of_brighter_copy(boxcar_start_s + 16.0 * TSAMP), 1);
     assert_eq!(left_out_of_brighter_copy(boxcar_start_s), 0);
+    // An end at the cut to rounding (as the end of whole groups may be) shares nothing.
+    let rounded_up = boxcar_start_s * (1.0 + 2.0 * f64::EPSILON);
+    assert_eq!(left_out_of_brighter_copy(rounded_up), 0);
 }

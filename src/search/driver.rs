@@ -339,13 +339,15 @@ pub fn drop_repeats_across_cut(
     let start_s = |l: &crate::cluster::Event| {
         l.t_inf_s + delay_to_infinity_s(l.dm, header.freq_hi_mhz()) - 0.5 * l.width_s
     };
-    // Half a sample of slack: a boxcar at the later recording's first sample starts
-    // at `offset_s`, to rounding.
+    // The stretch both searched, if the earlier recording's last group runs past the
+    // cut (beyond rounding); from half a sample before the later one's start, where a
+    // boxcar at its first sample starts, to rounding.
+    let shared = earlier_end_s - offset_s > 1e-6 * header.tsamp_s;
     let both_searched = offset_s - 0.5 * header.tsamp_s..earlier_end_s;
     let before = later.len();
     later.retain(|l| {
         let l = event(l, offset_s);
-        let seen_by_both = both_searched.contains(&start_s(&l));
+        let seen_by_both = shared && both_searched.contains(&start_s(&l));
         !earlier.iter().any(|e| {
             let e = event(e, 0.0);
             (e.snr >= l.snr && sweep.on_bow_tie(&e, &l, 0.0))
