@@ -306,6 +306,36 @@ fn a_burst_at_the_cut_is_reported_by_one_file_only() {
     }
 }
 
+// With --average-samples 16, a file of 10 samples between two long ones (shorter than
+// one group, so refused on its own) is joined: the first file reads through it into
+// the third, and the burst crossing all three cuts is reported once, by the first.
+#[test]
+fn averaged_files_are_joined_through_a_file_shorter_than_a_group() {
+    let dir = tempfile::tempdir().unwrap();
+    let whole = header(N_CHAN, N, TSAMP);
+    let crossing = burst_at_top(&whole, N_FIRST as f64 - 100.0, 250.0, 40.0);
+    let mut data = noise(&whole, 48);
+    add(&whole, &mut data, &crossing);
+    let cuts = [0, N_FIRST + 12, N_FIRST + 22, N];
+    let names = ["a.json", "b.json", "c.json"];
+    let paths: Vec<_> = (0..3)
+        .map(|k| write_part(dir.path(), names[k], (&whole, &data), cuts[k], cuts[k + 1]))
+        .collect();
+    let out = dir.path().join("out");
+    let files: Vec<&Path> = paths.iter().map(|p| p.as_path()).collect();
+    let run = search_cli(&files, &out, &["--average-samples", "16"]);
+    assert_success(&run);
+    let stdout = String::from_utf8_lossy(&run.stdout);
+    assert!(
+        stdout.contains("a.json: read on") && stdout.contains("through"),
+        "{stdout}"
+    );
+    let dm = crossing.dm;
+    let near = |dms: &[f64]| dms.iter().filter(|&&d| (d - dm).abs() < 0.2 * dm).count();
+    let found_in = names.map(|name| near(&candidate_dms(&out, name)));
+    assert_eq!(found_in, [1, 0, 0], "{stdout}");
+}
+
 // With averaging (16 samples) and a first file 12 samples over whole groups, a burst
 // at the cut, or a few samples either side of it, is reported by exactly one file,
 // at the S/N of the recording searched whole with that averaging. The first file owns
