@@ -12,6 +12,7 @@ use burstbook::search::{
     FileResult, SearchConfig, Workspace, drop_repeats_across_cut, search_run_on_in, search_source,
 };
 use burstbook::simulate::{Burst, expected_snr};
+use burstbook::units::delay_to_infinity_s;
 use burstbook::{Candidate, Verdict};
 use cli_common::{assert_success, burstbook};
 use common::{K_HANDBOOK_S_MHZ2, add, burst, header, noise, source};
@@ -59,11 +60,36 @@ fn part_of(whole: &Header, data: &[f32], from: u64, to: u64) -> Box<dyn SampleSo
     )
 }
 
+/// Samples `from..to` of the recording `whole` holding `data`, written as the native
+/// file `name` in `dir`; returns its path.
+fn write_part(
+    dir: &Path,
+    name: &str,
+    (whole, data): (&Header, &[f32]),
+    from: u64,
+    to: u64,
+) -> std::path::PathBuf {
+    let path = dir.join(name);
+    let mut h = whole.clone();
+    h.start = whole.epoch_of_sample(from as f64);
+    h.n_samples = to - from;
+    let mut sink = obs::create(&path, &h, Container::Native).unwrap();
+    sink.write_rows(&data[from as usize * N_CHAN..to as usize * N_CHAN])
+        .unwrap();
+    sink.finish().unwrap();
+    path
+}
+
 /// The candidates within 20 ms of `t_inf_s` with a DM within 10 % of `dm`.
 fn found(r: &FileResult, t_inf_s: f64, dm: f64) -> Vec<&Candidate> {
+    found_within(r, t_inf_s, dm, 0.02)
+}
+
+/// [`found`] within `within_s` of `t_inf_s` (averaged samples time a burst coarser).
+fn found_within(r: &FileResult, t_inf_s: f64, dm: f64, within_s: f64) -> Vec<&Candidate> {
     r.candidates
         .iter()
-        .filter(|c| (c.t_inf_s - t_inf_s).abs() < 0.02 && (c.dm - dm).abs() < 0.1 * dm)
+        .filter(|c| (c.t_inf_s - t_inf_s).abs() < within_s && (c.dm - dm).abs() < 0.1 * dm)
         .collect()
 }
 
@@ -228,6 +254,18 @@ fn candidate_dms(out: &Path, file: &str) -> Vec<f64> {
         .collect()
 }
 
+/// `run_on_s` of `file` in the candidates.json at `out`.
+fn run_on_s(out: &Path, file: &str) -> f64 {
+    let json: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("candidates.json")).unwrap())
+            .unwrap();
+    let files = json["files"].as_array().unwrap();
+    let f = files
+        .iter()
+        .find(|f| f["file"].as_str().unwrap().ends_with(file));
+    f.unwrap()["run_on_s"].as_f64().unwrap()
+}
+
 // From the command line: two consecutive files, given in either order, are joined and
 // the crossing burst is a candidate of the first; `--no-join` searches each alone and
 // misses it.
@@ -246,18 +284,8 @@ fn the_command_joins_consecutive_files_unless_told_not_to() {
             "{stdout}"
         );
         assert_eq!(near(&candidate_dms(&out, "a.json")), 1, "{stdout}");
-        let json: serde_json::Value =
-            serde_json::from_str(&std::fs::read_to_string(out.join("candidates.json")).unwrap())
-                .unwrap();
-        let run_on_s = |name: &str| {
-            let files = json["files"].as_array().unwrap();
-            let f = files
-                .iter()
-                .find(|f| f["file"].as_str().unwrap().ends_with(name));
-            f.unwrap()["run_on_s"].as_f64().unwrap()
-        };
-        assert!(run_on_s("a.json") > 0.3, "{json}");
-        assert_eq!(run_on_s("b.json"), 0.0);
+        assert!(run_on_s(&out, "a.json") > 0.3);
+        assert_eq!(run_on_s(&out, "b.json"), 0.0);
     }
     let out = dir.path().join("apart");
     let run = search_cli(&[&a, &b], &out, &["--no-join"]);
@@ -280,30 +308,7 @@ fn a_burst_at_the_cut_is_reported_by_one_file_only() {
         let b = burst_at_top(&whole, N_FIRST as f64 + offset, 250.0, 25.0);
         let mut data = noise(&whole, 50 + k as u64);
         add(&whole, &mut data, &b);
-        let [(h1, d1), (h2, d2)] = split(&whole, &data);
-        let first = search_run_on_in(
-            &mut Workspace::default(),
-            source(h1, d1),
-            Some(source(h2.clone(), d2.clone())),
-            "first",
-            &c,
-            None,
-        )
-        .unwrap();
-        let mut second = search_source(source(h2, d2), "second", &c, None).unwrap();
-        let before = second.candidates.len();
-        let left_out = drop_repeats_across_cut(
-            &second.header,
-            &first.candidates,
-            N_FIRST as f64 * TSAMP,
-            &mut second.candidates,
-        );
-        assert_eq!(second.candidates.len() + left_out, before);
-        let t_in_second = b.t_inf_s - N_FIRST as f64 * TSAMP;
-        let hits: Vec<&Candidate> = found(&first, b.t_inf_s, b.dm)
-            .into_iter()
-            .chain(found(&second, t_in_second, b.dm))
-            .collect();
+        let (hits, left_out) = reports_across_cut(&whole, &data, N_FIRST, &b, &c, 0.02);
         assert_eq!(
             hits.len(),
             1,
@@ -316,6 +321,124 @@ fn a_burst_at_the_cut_is_reported_by_one_file_only() {
         // Only candidates at the cut are left out.
         assert!(left_out <= 1, "{left_out}");
     }
+}
+
+// With --average-samples 16, a file of 10 samples between two long ones (shorter than
+// one group, so refused on its own) is joined: the first file reads through it into
+// the third, and the burst crossing all three cuts is reported once, by the first.
+#[test]
+fn averaged_files_are_joined_through_a_file_shorter_than_a_group() {
+    let dir = tempfile::tempdir().unwrap();
+    let whole = header(N_CHAN, N, TSAMP);
+    let crossing = burst_at_top(&whole, N_FIRST as f64 - 100.0, 250.0, 40.0);
+    let mut data = noise(&whole, 48);
+    add(&whole, &mut data, &crossing);
+    let cuts = [0, N_FIRST + 12, N_FIRST + 22, N];
+    let names = ["a.json", "b.json", "c.json"];
+    let paths: Vec<_> = (0..3)
+        .map(|k| write_part(dir.path(), names[k], (&whole, &data), cuts[k], cuts[k + 1]))
+        .collect();
+    let out = dir.path().join("out");
+    let files: Vec<&Path> = paths.iter().map(|p| p.as_path()).collect();
+    let run = search_cli(&files, &out, &["--average-samples", "16"]);
+    assert_success(&run);
+    let stdout = String::from_utf8_lossy(&run.stdout);
+    assert!(
+        stdout.contains("a.json: read on") && stdout.contains("through"),
+        "{stdout}"
+    );
+    let dm = crossing.dm;
+    let near = |dms: &[f64]| dms.iter().filter(|&&d| (d - dm).abs() < 0.2 * dm).count();
+    let found_in = names.map(|name| near(&candidate_dms(&out, name)));
+    assert_eq!(found_in, [1, 0, 0], "{stdout}");
+}
+
+// With averaging (16 samples) and a first file 12 samples over whole groups, a burst
+// at the cut, or a few samples either side of it, is reported by exactly one file,
+// at the S/N of the recording searched whole with that averaging. The first file owns
+// the group straddling the cut, which the second file's first group overlaps, so a
+// repeat is offset from the first file's candidate by a fraction of a group; it is
+// still left out.
+#[test]
+fn an_averaged_burst_at_the_cut_is_reported_by_one_file_only() {
+    let whole = header(N_CHAN, N, TSAMP);
+    let mut c = config();
+    c.average.samples = 16;
+    let cut = N_FIRST + 12;
+    for (k, offset) in [-8.0, -4.0, -2.0, 0.0, 1.0, 2.0, 3.0, 4.0, 6.0, 10.0]
+        .into_iter()
+        .enumerate()
+    {
+        let b = burst_at_top(&whole, cut as f64 + offset, 250.0, 40.0);
+        let mut data = noise(&whole, 60 + k as u64);
+        add(&whole, &mut data, &b);
+        let all = search_run_on_in(
+            &mut Workspace::default(),
+            source(whole.clone(), data.clone()),
+            None,
+            "whole",
+            &c,
+            None,
+        )
+        .unwrap();
+        // Two averaged samples: the grid times the burst to about one.
+        let within_s = 2.0 * 16.0 * TSAMP;
+        let in_whole = found_within(&all, b.t_inf_s, b.dm, within_s);
+        assert_eq!(in_whole.len(), 1, "{:#?}", all.candidates);
+        let (hits, left_out) = reports_across_cut(&whole, &data, cut, &b, &c, within_s);
+        assert_eq!(
+            hits.len(),
+            1,
+            "top-channel arrival {offset} samples after the cut: {hits:#?}"
+        );
+        assert!(
+            (hits[0].snr - in_whole[0].snr).abs() < 0.15 * in_whole[0].snr,
+            "{hits:#?} against {in_whole:#?}"
+        );
+        assert!(left_out <= 1, "{left_out}");
+    }
+}
+
+/// The candidates for burst `b` of the recording `whole` holding `data`, cut into two
+/// files at sample `cut` and searched with `c` as the command searches them: the first
+/// read on into the second, the second from its own start, less the repeats across
+/// the cut ([`drop_repeats_across_cut`]), as [`found_within`] `within_s` of the burst;
+/// and how many repeats were left out.
+fn reports_across_cut(
+    whole: &Header,
+    data: &[f32],
+    cut: u64,
+    b: &Burst,
+    c: &SearchConfig,
+    within_s: f64,
+) -> (Vec<Candidate>, usize) {
+    let part = |from: u64, to: u64| part_of(whole, data, from, to);
+    let search = |file: Box<dyn SampleSource>, next, label| {
+        search_run_on_in(&mut Workspace::default(), file, next, label, c, None).unwrap()
+    };
+    let first = search(part(0, cut), Some(part(cut, N)), "first");
+    // The groups that start in the first file, the last completed by the second.
+    assert_eq!(
+        first.header.n_samples,
+        cut.div_ceil(c.average.samples as u64)
+    );
+    let mut second = search(part(cut, N), None, "second");
+    let before = second.candidates.len();
+    let offset_s = cut as f64 * TSAMP;
+    let left_out = drop_repeats_across_cut(
+        &second.header,
+        &first.candidates,
+        offset_s,
+        first.header.duration_s(),
+        &mut second.candidates,
+    );
+    assert_eq!(second.candidates.len() + left_out, before);
+    let hits = found_within(&first, b.t_inf_s, b.dm, within_s)
+        .into_iter()
+        .chain(found_within(&second, b.t_inf_s - offset_s, b.dm, within_s))
+        .cloned()
+        .collect();
+    (hits, left_out)
 }
 
 // A file searched on its own into a catalogue (its successor not yet written, as
@@ -488,17 +611,9 @@ fn a_short_file_is_read_through_into_the_one_after_it() {
     let cuts = [0, N_FIRST, N_FIRST + 50, N];
     let paths: Vec<_> = ["a.json", "b.json", "c.json"]
         .iter()
-        .map(|name| dir.path().join(name))
+        .enumerate()
+        .map(|(k, name)| write_part(dir.path(), name, (&whole, &data), cuts[k], cuts[k + 1]))
         .collect();
-    for (k, path) in paths.iter().enumerate() {
-        let mut h = whole.clone();
-        h.start = whole.epoch_of_sample(cuts[k] as f64);
-        h.n_samples = cuts[k + 1] - cuts[k];
-        let rows = &data[cuts[k] as usize * N_CHAN..cuts[k + 1] as usize * N_CHAN];
-        let mut sink = obs::create(path, &h, Container::Native).unwrap();
-        sink.write_rows(rows).unwrap();
-        sink.finish().unwrap();
-    }
     let out = dir.path().join("out");
     let files: Vec<&Path> = paths.iter().map(|p| p.as_path()).collect();
     let run = search_cli(&files, &out, &[]);
@@ -556,15 +671,12 @@ fn a_short_file_read_on_into_a_long_one_is_searched_at_every_dm() {
 }
 
 // With --average-samples, consecutive files whose first is not a whole number of
-// averaged samples long (12 samples over a multiple of 16 here) are still joined: the
+// averaged samples long (12 samples over a multiple of 16 here) are joined: the
 // crossing burst, found in the recording searched whole with the same averaging, is
-// found. The averaged first file ends up to a group early (its last partial group
-// dropped), and more than half an averaged sample before the next file starts, so it
-// is no longer seen as continued and each file was searched alone.
+// found once, by the first file, which reads on into the second. Averaged alone, the
+// first file lost its last partial group and ended 0.75 averaged samples before the
+// second started, so the two were not joined and the burst was missed.
 #[test]
-#[ignore = "open: averaging drops the first file's last partial group, so the averaged \
-            files do not meet (a note says so); joining them needs the two files' \
-            averaging grids lined up"]
 fn averaged_files_are_joined_whatever_the_first_length() {
     let dir = tempfile::tempdir().unwrap();
     let whole = header(N_CHAN, N, TSAMP);
@@ -572,53 +684,40 @@ fn averaged_files_are_joined_whatever_the_first_length() {
     let crossing = burst_at_top(&whole, cut as f64 - 100.0, 250.0, 40.0);
     let mut data = noise(&whole, 46);
     add(&whole, &mut data, &crossing);
-    let cuts = [0, cut, N];
-    let paths: Vec<_> = ["a.json", "b.json", "whole.json"]
-        .iter()
-        .map(|name| dir.path().join(name))
-        .collect();
-    for (k, path) in paths.iter().enumerate() {
-        let (from, to) = if k == 2 {
-            (0, N)
-        } else {
-            (cuts[k], cuts[k + 1])
-        };
-        let mut h = whole.clone();
-        h.start = whole.epoch_of_sample(from as f64);
-        h.n_samples = to - from;
-        let mut sink = obs::create(path, &h, Container::Native).unwrap();
-        sink.write_rows(&data[from as usize * N_CHAN..to as usize * N_CHAN])
-            .unwrap();
-        sink.finish().unwrap();
-    }
-    let search = |files: &[&std::path::PathBuf], out: &Path| {
-        let mut args: Vec<&std::ffi::OsStr> = vec!["search".as_ref()];
-        args.extend(files.iter().map(|p| p.as_os_str()));
-        args.extend::<[&std::ffi::OsStr; 7]>([
-            "--out".as_ref(),
-            out.as_os_str(),
-            "--no-catalogue".as_ref(),
-            "--dm-max".as_ref(),
-            "300".as_ref(),
-            "--average-samples".as_ref(),
-            "16".as_ref(),
-        ]);
-        let run = burstbook(&args);
-        assert_success(&run);
-        String::from_utf8_lossy(&run.stdout).into_owned()
-    };
+    let recording = (&whole, data.as_slice());
+    let a = write_part(dir.path(), "a.json", recording, 0, cut);
+    let b = write_part(dir.path(), "b.json", recording, cut, N);
+    let all = write_part(dir.path(), "whole.json", recording, 0, N);
+    let averaging = ["--average-samples", "16"];
     let dm = crossing.dm;
     let near = |dms: &[f64]| dms.iter().filter(|&&d| (d - dm).abs() < 0.2 * dm).count();
     let out_whole = dir.path().join("out-whole");
-    let stdout = search(&[&paths[2]], &out_whole);
+    let run = search_cli(&[&all], &out_whole, &averaging);
+    assert_success(&run);
+    let stdout = String::from_utf8_lossy(&run.stdout);
     assert_eq!(
         near(&candidate_dms(&out_whole, "whole.json")),
         1,
         "{stdout}"
     );
     let out = dir.path().join("out");
-    let stdout = search(&[&paths[0], &paths[1]], &out);
+    let run = search_cli(&[&a, &b], &out, &averaging);
+    assert_success(&run);
+    let (stdout, stderr) = (
+        String::from_utf8_lossy(&run.stdout),
+        String::from_utf8_lossy(&run.stderr),
+    );
+    assert!(
+        stdout.contains("read on") && !stderr.contains("not joined"),
+        "{stderr}"
+    );
     assert_eq!(near(&candidate_dms(&out, "a.json")), 1, "{stdout}");
+    assert_eq!(near(&candidate_dms(&out, "b.json")), 0, "{stdout}");
+    // The second file's first 4 samples complete the first's last group, then whole
+    // groups are read on into.
+    let read_on = (run_on_s(&out, "a.json") / TSAMP).round() as u64;
+    assert_eq!(read_on % 16, 4, "{read_on}");
+    assert_eq!(run_on_s(&out, "b.json"), 0.0);
 }
 
 // From the command line, with the files listed latest first: a burst reaching the top
@@ -721,7 +820,9 @@ fn a_short_file_read_on_into_a_long_one_is_planned_to_every_dm() {
 
 // The rule that leaves a repeat across the cut out: a later candidate on the bow-tie
 // of an earlier one is dropped when it is no brighter, and kept when it is brighter
-// (then the earlier may be its echo, and a burst must not be lost for it).
+// (then the earlier may be its echo, and a burst must not be lost for it) unless its
+// boxcar starts where both files searched, in the earlier file's last averaged group:
+// there the later file's grid may simply catch the pulse better.
 #[test]
 fn only_a_repeat_no_brighter_than_the_earlier_candidate_is_dropped() {
     let whole = header(N_CHAN, N, TSAMP);
@@ -751,14 +852,31 @@ fn only_a_repeat_no_brighter_than_the_earlier_candidate_is_dropped() {
     };
     let mut fainter = seen_later(0.9);
     assert_eq!(
-        drop_repeats_across_cut(&h2, &first.candidates, offset_s, &mut fainter),
+        drop_repeats_across_cut(&h2, &first.candidates, offset_s, offset_s, &mut fainter),
         1
     );
     assert!(fainter.is_empty());
     let mut brighter = seen_later(1.2);
     assert_eq!(
-        drop_repeats_across_cut(&h2, &first.candidates, offset_s, &mut brighter),
+        drop_repeats_across_cut(&h2, &first.candidates, offset_s, offset_s, &mut brighter),
         0
     );
     assert_eq!(brighter.len(), 1);
+    // A later file starting where the pulse's boxcar does, with the earlier file's
+    // last group running on a group (16 samples) into it, or ending at the cut.
+    let e = earlier[0];
+    let top_s = delay_to_infinity_s(e.dm, h2.freq_hi_mhz());
+    let boxcar_start_s = e.t_inf_s + top_s - 0.5 * e.width_ms * 1e-3;
+    let left_out_of_brighter_copy = |earlier_end_s: f64| {
+        let mut c = e.clone();
+        c.t_inf_s -= boxcar_start_s;
+        c.snr *= 1.2;
+        let later = &mut vec![c];
+        drop_repeats_across_cut(&h2, &first.candidates, boxcar_start_s, earlier_end_s, later)
+    };
+    assert_eq!(left_out_of_brighter_copy(boxcar_start_s + 16.0 * TSAMP), 1);
+    assert_eq!(left_out_of_brighter_copy(boxcar_start_s), 0);
+    // An end at the cut to rounding (as the end of whole groups may be) shares nothing.
+    let rounded_up = boxcar_start_s * (1.0 + 2.0 * f64::EPSILON);
+    assert_eq!(left_out_of_brighter_copy(rounded_up), 0);
 }

@@ -50,9 +50,12 @@ impl Catalogue {
             started_utc,
         );
         run.fraction_masked = Some(result.fraction_masked);
-        // In the recording's own samples, whatever the search averaged.
-        run.samples_searched = Some(result.samples_searched * config.average.samples as u64);
-        run.run_on_s = Some(result.run_on_samples as f64 * result.header.tsamp_s);
+        run.samples_searched = Some(own_samples_searched(
+            result.samples_searched,
+            config.average.samples,
+            obs.header.n_samples,
+        ));
+        run.run_on_s = Some(result.run_on_s);
         self.record_search(obs, &run, &result.candidates)
     }
 
@@ -118,6 +121,14 @@ impl Catalogue {
     }
 }
 
+/// Samples of a recording of `n_samples` whose boxcars its search searched, given the
+/// `searched` samples that search counted averaging `per_group` of them into one. A
+/// last group completed by the recording read on into counts only for the samples of
+/// its own (that recording's exposure holds the rest), so exposures do not overlap.
+fn own_samples_searched(searched: u64, per_group: usize, n_samples: u64) -> u64 {
+    (searched * per_group as u64).min(n_samples)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -148,6 +159,17 @@ mod tests {
         assert!(cat.finished_run(&obs, &other_config).unwrap().is_none());
         let other_content = observation("A", 2);
         assert!(cat.finished_run(&other_content, &config).unwrap().is_none());
+    }
+
+    // An averaged search read on into the next recording owns the group its last
+    // samples start (376 groups of 16 for 6012 samples, or one for 10): its exposure
+    // is its own samples, not the whole groups.
+    #[test]
+    fn exposure_counts_the_recordings_own_samples() {
+        assert_eq!(own_samples_searched(376, 16, 6012), 6012);
+        assert_eq!(own_samples_searched(1, 16, 10), 10);
+        assert_eq!(own_samples_searched(370, 16, 6012), 5920);
+        assert_eq!(own_samples_searched(6012, 1, 6012), 6012);
     }
 
     #[test]

@@ -139,7 +139,7 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     let config = config(&args)?;
     let paths = distinct_files(&args.files);
     // Every file checked before any is searched, or a bad one stops the run late.
-    let headers = search::check_files(&paths, &config)?;
+    let headers = search::check_files(&paths, &config, !args.no_join)?;
     let continuations = match args.no_join {
         true => vec![None; paths.len()],
         false => {
@@ -249,8 +249,14 @@ pub fn run(args: Args) -> anyhow::Result<()> {
                     headers: &headers,
                     chains: &chains,
                     order: &order,
+                    config: &config,
                 };
-                let found = cuts.repeats(i, &headers[i], &mut earlier.candidates, &files);
+                // As searched: averaged, with the group its end falls in.
+                let searched = config.average.run_on_header(&headers[i]);
+                let found = match &searched {
+                    Ok(header) => cuts.repeats(i, header, &mut earlier.candidates, &files),
+                    Err(_) => Vec::new(),
+                };
                 if !found.is_empty() {
                     // The file it continues was searched since, reading on: its
                     // finds across the cut are whole, and this run's are repeats.
@@ -279,18 +285,11 @@ pub fn run(args: Args) -> anyhow::Result<()> {
                 continue;
             }
         }
-        let source = match config.average.wrap(source, &label) {
-            Ok(source) => source,
-            Err(e) => {
-                fail(&mut files, label, e.to_string());
-                continue;
-            }
-        };
         let next_labels: Vec<String> = chains[i]
             .iter()
             .map(|&j| paths[j].display().to_string())
             .collect();
-        let next = open_run_on(&next_labels, &label, &config);
+        let next = open_run_on(&next_labels, &label);
         let bar = burstbook::progress::bar(source.header().n_samples, &label);
         let clock = std::time::Instant::now();
         let result =
@@ -307,6 +306,7 @@ pub fn run(args: Args) -> anyhow::Result<()> {
             headers: &headers,
             chains: &chains,
             order: &order,
+            config: &config,
         };
         for (p, repeats) in cuts.repeats(i, &result.header, &mut result.candidates, &files) {
             say!(
@@ -317,20 +317,13 @@ pub fn run(args: Args) -> anyhow::Result<()> {
             )?;
         }
         let wall_s = clock.elapsed().as_secs_f64();
-        if result.run_on_samples > 0 {
-            // The files the rows read on into reached.
-            let mut left = result.run_on_samples;
+        if result.run_on_s > 0.0 {
+            let run_on_s = result.run_on_s;
             let reached: Vec<&str> = next_labels
                 .iter()
-                .zip(&chains[i])
-                .take_while(|&(_, &j)| {
-                    let reached = left > 0;
-                    left = left.saturating_sub(headers[j].n_samples);
-                    reached
-                })
-                .map(|(next, _)| next.as_str())
+                .take(search::join::reached(&chains[i], &headers, run_on_s).len())
+                .map(String::as_str)
                 .collect();
-            let run_on_s = result.run_on_samples as f64 * result.header.tsamp_s;
             match &reached[..] {
                 [.., last] if reached.len() > 1 => say!(
                     "{label}: read on {run_on_s:.2} s through {} into {last}, which continue \
@@ -428,14 +421,17 @@ pub fn run(args: Args) -> anyhow::Result<()> {
 
 /// How the listed files continue one another, for leaving out repeats across cuts.
 struct Cuts<'a> {
+    /// The files' headers as read (before averaging).
     headers: &'a [burstbook::obs::Header],
     chains: &'a [Vec<usize>],
     /// The order files are searched in; the outcomes so far are of its first ones.
     order: &'a [usize],
+    config: &'a SearchConfig,
 }
 
 impl Cuts<'_> {
-    /// Removes from `candidates`, those of file `i` as searched with `header`, the
+    /// Removes from `candidates`, those of file `i` as searched with `header` (after
+    /// averaging), the
     /// repeats of pulses found whole across the cut by the files it continues
     /// (`files`, the outcomes so far), and returns them with the file that found
     /// each pulse.
@@ -452,7 +448,14 @@ impl Cuts<'_> {
                 continue;
             };
             let before = candidates.clone();
-            search::drop_repeats_across_cut(header, files[at].candidates(), offset_s, candidates);
+            let earlier_end_s = search::join::owned_end_s(&self.headers[p], self.config);
+            search::drop_repeats_across_cut(
+                header,
+                files[at].candidates(),
+                offset_s,
+                earlier_end_s,
+                candidates,
+            );
             let repeats: Vec<_> = before
                 .into_iter()
                 .filter(|c| !candidates.contains(c))
@@ -485,16 +488,10 @@ fn note_near_misses(
 /// The files of `next` (each continuing the one before) opened and read on into one
 /// another, for the search of `label` to read on into; the chain stops before a file
 /// that cannot be opened (with a note), and `None` if the first cannot be.
-fn open_run_on(
-    next: &[String],
-    label: &str,
-    config: &SearchConfig,
-) -> Option<Box<dyn burstbook::obs::SampleSource>> {
+fn open_run_on(next: &[String], label: &str) -> Option<Box<dyn burstbook::obs::SampleSource>> {
     let mut opened = Vec::new();
     for (k, path) in next.iter().enumerate() {
-        let source = burstbook::obs::open(std::path::Path::new(path))
-            .and_then(|source| config.average.wrap(source, path));
-        match (source, k) {
+        match (burstbook::obs::open(std::path::Path::new(path)), k) {
             (Ok(source), _) => opened.push(source),
             (Err(e), 0) => {
                 note!(

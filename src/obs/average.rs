@@ -57,6 +57,39 @@ impl Averaging {
     /// A factor of 0, a channel factor that does not divide the channels, or more
     /// samples to a group than the recording has.
     pub fn header(&self, h: &Header) -> std::result::Result<Header, String> {
+        self.check_channels(h)?;
+        if h.n_samples < self.samples as u64 {
+            return Err(format!(
+                "cannot average {} samples: the recording has only {}",
+                self.samples, h.n_samples
+            ));
+        }
+        Ok(self.averaged(h, h.n_samples / self.samples as u64))
+    }
+
+    /// The header of the groups that start in a recording with header `h` when it
+    /// is read on into one that continues it ([`Header::is_continued_by`]) and the two
+    /// are averaged as one stream: every group that starts in it, a last partial one
+    /// completed by the next recording's first samples (so even a recording shorter
+    /// than one group has one).
+    ///
+    /// # Errors
+    /// A factor of 0 or a channel factor that does not divide the channels.
+    pub fn run_on_header(&self, h: &Header) -> std::result::Result<Header, String> {
+        self.check_channels(h)?;
+        Ok(self.averaged(h, h.n_samples.div_ceil(self.samples as u64)))
+    }
+
+    /// Rows of the recordings that continue one of `n_samples` rows to read on into,
+    /// so that the averaged stream holds `groups_after` groups after those that start
+    /// in it ([`Self::run_on_header`]): the first rows complete its last partial group.
+    pub fn rows_to_read_on(&self, n_samples: u64, groups_after: u64) -> u64 {
+        let per_group = self.samples as u64;
+        (n_samples.div_ceil(per_group) + groups_after) * per_group - n_samples
+    }
+
+    /// Checks the factors against the recording's channels.
+    fn check_channels(&self, h: &Header) -> std::result::Result<(), String> {
         self.validate()?;
         if !h.n_chan().is_multiple_of(self.channels) {
             return Err(format!(
@@ -65,15 +98,14 @@ impl Averaging {
                 self.channels
             ));
         }
-        if h.n_samples < self.samples as u64 {
-            return Err(format!(
-                "cannot average {} samples: the recording has only {}",
-                self.samples, h.n_samples
-            ));
-        }
+        Ok(())
+    }
+
+    /// `h` averaged by these factors, `n_groups` groups of samples long.
+    fn averaged(&self, h: &Header, n_groups: u64) -> Header {
         let mut out = h.clone();
         out.tsamp_s = h.tsamp_s * self.samples as f64;
-        out.n_samples = h.n_samples / self.samples as u64;
+        out.n_samples = n_groups;
         out.chan_bw_mhz = h.chan_bw_mhz * self.channels as f64;
         out.freqs_mhz = h
             .freqs_mhz
@@ -85,9 +117,11 @@ impl Averaging {
             .chunks(self.channels)
             .map(|g| g.iter().sum::<f32>() / g.len() as f32)
             .collect();
-        // Means of integers are not integers any more.
-        out.nbits = 32;
-        Ok(out)
+        // Means of integers are not integers any more (but nothing averaged is as read).
+        if !self.is_none() {
+            out.nbits = 32;
+        }
+        out
     }
 
     /// `source` averaged by these factors (`source` itself when nothing is averaged);
@@ -315,6 +349,49 @@ mod tests {
         // 100 rows make 33 groups: 9 are read, 24 remain.
         assert_eq!(skipped.skip_rows(1000).unwrap(), 24);
         assert_eq!(skipped.read_rows(&mut b).unwrap(), 0);
+    }
+
+    // A recording read on into the next and averaged as one stream keeps the grid of
+    // the recording averaged whole: its last partial group (here 12 samples over a
+    // multiple of 16, or a recording of 10, shorter than one group) is completed by
+    // the next one's first samples, and the groups after it are the whole's.
+    #[test]
+    fn averaging_a_run_on_continues_the_groups_across_the_cut() {
+        use crate::obs::RunOn;
+        let (whole, data) = source(4, 200, 11);
+        let avg = Averaging {
+            samples: 16,
+            channels: 2,
+        };
+        let averaged_whole = {
+            let inner = Box::new(MemorySource::new(whole.clone(), data.clone()));
+            crate::obs::read_all(&mut avg.wrap(inner, "whole").unwrap(), 7).unwrap()
+        };
+        for (cut, own_groups) in [(44, 3), (10, 1), (48, 3)] {
+            let part = |from: u64, to: u64| {
+                let mut h = whole.clone();
+                h.start = whole.epoch_of_sample(from as f64);
+                h.n_samples = to - from;
+                let rows = data[from as usize * 4..to as usize * 4].to_vec();
+                Box::new(MemorySource::new(h, rows))
+            };
+            let (first, next) = (part(0, cut), part(cut, 200));
+            let own = avg.run_on_header(first.header()).unwrap();
+            assert_eq!(own.n_samples, own_groups, "cut {cut}");
+            assert_eq!(own.tsamp_s, 16.0 * whole.tsamp_s);
+            let extra = avg.rows_to_read_on(cut, 2);
+            assert_eq!(cut + extra, (own_groups + 2) * 16, "cut {cut}");
+            let run_on = Box::new(RunOn::new(first, next, extra).unwrap());
+            let mut stream = avg.wrap(run_on, "first").unwrap();
+            assert_eq!(stream.header().n_samples, own_groups + 2);
+            let got = crate::obs::read_all(&mut stream, 3).unwrap();
+            assert_eq!(got, averaged_whole[..got.len()], "cut {cut}");
+            assert_eq!(got.len(), (own_groups as usize + 2) * 2);
+        }
+        // Averaged alone, the short recording has no whole group.
+        let mut short = whole.clone();
+        short.n_samples = 10;
+        assert!(avg.header(&short).unwrap_err().contains("has only 10"));
     }
 
     #[test]

@@ -42,7 +42,7 @@ pub struct FileResult {
     pub candidates: Vec<Candidate>,
     /// Fraction of the channel-samples masked or clipped.
     pub fraction_masked: f64,
-    /// Input samples whose boxcars were searched.
+    /// Samples (of `header`'s sampling) whose boxcars were searched.
     pub samples_searched: u64,
     /// Blocks processed.
     pub n_blocks: usize,
@@ -55,10 +55,16 @@ pub struct FileResult {
     /// Where the search's wall-clock time went.
     #[serde(default)]
     pub seconds: StageSeconds,
-    /// Samples of the recording that continues this one, read on into so that sweeps
-    /// crossing the boundary were searched ([`search_run_on_in`]); 0 if none.
+    /// Samples (of `header`'s sampling) past its own, read on into the recording that
+    /// continues this one so that sweeps crossing the boundary were searched
+    /// ([`search_run_on_in`]); 0 if none.
     #[serde(default)]
     pub run_on_samples: u64,
+    /// Seconds of the recordings that continue this one read on into, from its own
+    /// end (with averaging, the part of its last group that the next recording
+    /// completes included).
+    #[serde(default)]
+    pub run_on_s: f64,
 }
 
 impl FileResult {
@@ -127,30 +133,7 @@ pub struct Workspace {
 /// As [`search_source`].
 pub fn search_source_in(
     workspace: &mut Workspace,
-    source: Box<dyn SampleSource>,
-    label: &str,
-    config: &SearchConfig,
-    progress: Option<&ProgressBar>,
-) -> Result<FileResult> {
-    search_run_on_in(workspace, source, None, label, config, progress)
-}
-
-/// [`search_source_in`], reading on into the first block overlap of `next`, the
-/// recording that continues this one ([`crate::obs::Header::is_continued_by`]), if
-/// given: every boxcar start of this recording is then searched at every trial DM,
-/// including bursts whose sweep ends in `next`. The events are this recording's
-/// alone (their boxcar starts in it), so a search of `next` reports none of them
-/// again. The candidates, exposure and `header` are this recording's;
-/// `fraction_masked` includes the rows read on into.
-///
-/// # Errors
-/// As [`search_source`], and [`Error::Config`] if `next` does not continue `source`.
-/// A read error in `next` ends the rows read on into instead (its own search reports
-/// it).
-pub fn search_run_on_in(
-    workspace: &mut Workspace,
     mut source: Box<dyn SampleSource>,
-    mut next: Option<Box<dyn SampleSource>>,
     label: &str,
     config: &SearchConfig,
     progress: Option<&ProgressBar>,
@@ -158,29 +141,81 @@ pub fn search_run_on_in(
     config.validate()?;
     let header = source.header().clone();
     header.validate().map_err(|m| Error::bad_input(label, m))?;
+    let read_bytes = read_sample_bytes(&mut *source);
+    let room_s = header.duration_s();
+    let searcher = Searcher::new(header, read_bytes, room_s, config, label)?;
+    search_stream(workspace, searcher, source, progress)
+}
+
+/// Searches the recording `source`, as read (`config.average` is applied here),
+/// reading on into the first block overlap of `next`, the recording that continues
+/// it ([`crate::obs::Header::is_continued_by`]), if given: every boxcar start of this
+/// recording is then searched at every trial DM, including bursts whose sweep ends in
+/// `next`. The two are averaged as one stream, so this recording's groups of samples
+/// run on across the cut: its last partial group, which averaged alone it would drop,
+/// is completed by `next`'s first samples, and is its own. The events are this
+/// recording's alone (their boxcar starts in it), so a search of `next`, averaged from
+/// its own first sample, reports none of them again (but for the pulses within a group
+/// of the cut that [`drop_repeats_across_cut`] leaves out). The candidates, exposure
+/// and `header` are this recording's (averaged: the groups that start in it);
+/// `fraction_masked` includes the rows read on into.
+///
+/// # Errors
+/// As [`search_source`], [`Error::BadInput`] if `config.average` does not fit the
+/// recording, and [`Error::Config`] if `next` does not continue `source`. A read error
+/// in `next` ends the rows read on into instead (its own search reports it).
+pub fn search_run_on_in(
+    workspace: &mut Workspace,
+    mut source: Box<dyn SampleSource>,
+    next: Option<Box<dyn SampleSource>>,
+    label: &str,
+    config: &SearchConfig,
+    progress: Option<&ProgressBar>,
+) -> Result<FileResult> {
+    let average = config.average;
+    let Some(mut next) = next else {
+        let source = average.wrap(source, label)?;
+        return search_source_in(workspace, source, label, config, progress);
+    };
+    config.validate()?;
+    let first = source.header().clone();
+    let own = average
+        .run_on_header(&first)
+        .map_err(|m| Error::bad_input(label, m))?;
+    own.validate().map_err(|m| Error::bad_input(label, m))?;
     // Byte reads only if both recordings have them (see `RunOn`).
-    let read_bytes = std::iter::once(&mut source)
-        .chain(next.as_mut())
-        .map(|s| read_sample_bytes(&mut **s))
-        .max()
-        .unwrap_or(size_of::<f32>());
+    let read_bytes =
+        search_read_bytes(&mut *source, &average).max(search_read_bytes(&mut *next, &average));
     // The rows read on into hold the rest of the sweeps starting in this recording,
     // so trials whose sweep outlasts it alone are searched too.
-    let sweep_room_s = header.duration_s() + next.as_ref().map_or(0.0, |n| n.header().duration_s());
-    let mut searcher = Searcher::new(header, read_bytes, sweep_room_s, config, label)?;
-    let source = match next {
-        Some(next) => {
-            // A recording shorter than a block reads on until one is full, so that
-            // its series are normalised, and the noise of wide boxcars measured, on
-            // as many samples as in a longer recording.
-            let g = &searcher.layout;
-            let fill = (g.block_len as u64).saturating_sub(searcher.header.n_samples);
-            let run_on = RunOn::new(source, next, fill.max(g.overlap as u64))?;
-            searcher.run_on_samples = run_on.extra_rows();
-            Box::new(run_on)
-        }
-        None => source,
-    };
+    let sweep_room_s = first.duration_s() + next.header().duration_s();
+    let searcher = Searcher::new(own, read_bytes, sweep_room_s, config, label)?;
+    let extra = average.rows_to_read_on(first.n_samples, groups_to_read_on(&searcher));
+    let stream = average.wrap(Box::new(RunOn::new(source, next, extra)?), label)?;
+    let mut result = search_stream(workspace, searcher, stream, progress)?;
+    let rows_read = (result.header.n_samples + result.run_on_samples) * average.samples as u64;
+    result.run_on_s = rows_read.saturating_sub(first.n_samples) as f64 * first.tsamp_s;
+    Ok(result)
+}
+
+/// Bytes per sample a search reads from `source`, averaged by `average` (an averaged
+/// source hands out f32 only).
+fn search_read_bytes(source: &mut dyn SampleSource, average: &crate::obs::Averaging) -> usize {
+    match average.is_none() {
+        true => read_sample_bytes(source),
+        false => size_of::<f32>(),
+    }
+}
+
+/// Runs `searcher` over the rows of `source`, which may run on past the recording the
+/// searcher was made for (its header's samples are the ones it owns).
+fn search_stream(
+    workspace: &mut Workspace,
+    mut searcher: Searcher<'_>,
+    source: Box<dyn SampleSource>,
+    progress: Option<&ProgressBar>,
+) -> Result<FileResult> {
+    let config = searcher.config;
     if config.kernel == Kernel::Fast {
         let kept = workspace.fast.take().filter(|k| k.plan() == &searcher.plan);
         searcher.fast = Some(kept.unwrap_or_else(|| FastDedisperser::new(&searcher.plan)));
@@ -260,8 +295,10 @@ pub fn search_run_on_in(
         }
         Ok(())
     })?;
-    // Only the rows of the next recording that could be read were read on into.
+    // Only the rows of the next recording that could be read were read on into, and
+    // a last group that they did not complete was not searched.
     searcher.run_on_samples = rows_read.saturating_sub(searcher.header.n_samples);
+    searcher.header.n_samples = searcher.header.n_samples.min(rows_read);
     workspace.fast = searcher.fast.take().or(workspace.fast.take());
     workspace.channels = channels.into_buffer();
     Ok(searcher.finish(totals))
@@ -276,12 +313,18 @@ pub fn search_run_on_in(
 /// bow-tie of an earlier one at least as bright ([`Sweep::on_bow_tie`], as repeats
 /// between the blocks of one recording are found) is the same pulse, and the earlier
 /// recording's candidate stands for it. A later candidate brighter than the earlier
-/// one is kept: the earlier may be its echo, and a burst is not to be lost for it.
+/// one is kept (the earlier may be its echo, and a burst is not to be lost for it),
+/// unless its boxcar starts before `earlier_end_s`, the end of the samples the earlier
+/// recording owns (seconds from its start; with averaging, the end of its last group,
+/// which the later recording's first samples complete): both searches saw that
+/// stretch, each on its own grid of averaged samples, and the later grid may simply
+/// catch the pulse better, so an earlier candidate on its bow-tie is the same pulse.
 /// `header` is the later recording's.
 pub fn drop_repeats_across_cut(
     header: &Header,
     earlier: &[Candidate],
     offset_s: f64,
+    earlier_end_s: f64,
     later: &mut Vec<Candidate>,
 ) -> usize {
     let sweep = sweep_of(header);
@@ -291,12 +334,24 @@ pub fn drop_repeats_across_cut(
         width_s: c.width_ms * 1e-3,
         snr: c.snr,
     };
+    // The start of a later candidate's boxcar at the top of the band, from the
+    // earlier recording's start.
+    let start_s = |l: &crate::cluster::Event| {
+        l.t_inf_s + delay_to_infinity_s(l.dm, header.freq_hi_mhz()) - 0.5 * l.width_s
+    };
+    // The stretch both searched, if the earlier recording's last group runs past the
+    // cut (beyond rounding); from half a sample before the later one's start, where a
+    // boxcar at its first sample starts, to rounding.
+    let shared = earlier_end_s - offset_s > 1e-6 * header.tsamp_s;
+    let both_searched = offset_s - 0.5 * header.tsamp_s..earlier_end_s;
     let before = later.len();
     later.retain(|l| {
         let l = event(l, offset_s);
+        let seen_by_both = shared && both_searched.contains(&start_s(&l));
         !earlier.iter().any(|e| {
             let e = event(e, 0.0);
-            e.snr >= l.snr && sweep.on_bow_tie(&e, &l, 0.0)
+            (e.snr >= l.snr && sweep.on_bow_tie(&e, &l, 0.0))
+                || (seen_by_both && sweep.on_bow_tie(&l, &e, 0.0))
         })
     });
     before - later.len()
@@ -313,27 +368,75 @@ pub fn block_layout(header: &Header, config: &SearchConfig) -> Result<BlockLayou
     Ok(Searcher::new(header.clone(), size_of::<f32>(), room_s, config, "")?.layout)
 }
 
-/// Opens each recording and checks it could be searched with `config` (its header,
-/// the plan for it, the memory that needs) without reading a sample, and returns the
-/// headers the search will see (after `config.average`). A search of many files runs
-/// this first: a bad file late in the list then stops it before any is searched, not
-/// after hours spent on the files before it.
+/// Rows of the recordings that continue one with `header` (as read, before
+/// `config.average`) that its search reads on into, when they hold the rest of every
+/// sweep: those completing its last group of averaged samples, then
+/// [`groups_to_read_on`].
 ///
 /// # Errors
-/// The first file that cannot be opened or searched, named, or an invalid configuration.
-pub fn check_files<P: AsRef<Path>>(paths: &[P], config: &SearchConfig) -> Result<Vec<Header>> {
+/// An invalid configuration, or averaging that does not fit the recording.
+pub fn run_on_rows(header: &Header, config: &SearchConfig) -> Result<u64> {
+    let own = config
+        .average
+        .run_on_header(header)
+        .map_err(Error::Config)?;
+    let searcher = Searcher::new(own, size_of::<f32>(), f64::INFINITY, config, "")?;
+    Ok(config
+        .average
+        .rows_to_read_on(header.n_samples, groups_to_read_on(&searcher)))
+}
+
+/// Samples (averaged) past its own that `searcher`'s recording reads on into: one
+/// block overlap, or, for a recording shorter than a block, until its block is full,
+/// so that its series are normalised, and the noise of wide boxcars measured, on as
+/// many samples as in a longer recording.
+fn groups_to_read_on(searcher: &Searcher<'_>) -> u64 {
+    let g = &searcher.layout;
+    (g.block_len as u64)
+        .saturating_sub(searcher.header.n_samples)
+        .max(g.overlap as u64)
+}
+
+/// Opens each recording and checks it could be searched with `config` (its header,
+/// the plan for it, the memory that needs) without reading a sample, and returns
+/// their headers as read (before `config.average`). With `join`, a recording that
+/// another one listed continues ([`super::join::continuations`]) is checked as its
+/// search reads on into that one ([`search_run_on_in`]): averaged, it owns the group
+/// its end falls in, so one shorter than a group can be searched. A search of many
+/// files runs this first: a bad file late in the list then stops it before any is
+/// searched, not after hours spent on the files before it.
+///
+/// # Errors
+/// The first file that cannot be opened, then the first that cannot be searched,
+/// named; or an invalid configuration.
+pub fn check_files<P: AsRef<Path>>(
+    paths: &[P],
+    config: &SearchConfig,
+    join: bool,
+) -> Result<Vec<Header>> {
     config.validate()?;
     let mut headers = Vec::with_capacity(paths.len());
+    let mut read_bytes = Vec::with_capacity(paths.len());
     for path in paths {
-        let path = path.as_ref();
         // Opening validates the header; the file is closed again at once, so a long
         // list holds no handles.
-        let label = path.display().to_string();
-        let mut source = config.average.wrap(crate::obs::open(path)?, &label)?;
-        let read_bytes = read_sample_bytes(&mut *source);
-        let room_s = source.header().duration_s();
-        Searcher::new(source.header().clone(), read_bytes, room_s, config, &label)?;
+        let mut source = crate::obs::open(path.as_ref())?;
+        read_bytes.push(search_read_bytes(&mut *source, &config.average));
         headers.push(source.header().clone());
+    }
+    let continued = match join {
+        true => super::join::continuations(&headers),
+        false => vec![None; headers.len()],
+    };
+    for (k, path) in paths.iter().enumerate() {
+        let label = path.as_ref().display().to_string();
+        let own = match continued[k] {
+            Some(_) => config.average.run_on_header(&headers[k]),
+            None => config.average.header(&headers[k]),
+        }
+        .map_err(|m| Error::bad_input(&label, m))?;
+        let room_s = own.duration_s();
+        Searcher::new(own, read_bytes[k], room_s, config, &label)?;
     }
     Ok(headers)
 }
@@ -705,6 +808,8 @@ impl<'a> Searcher<'a> {
             layout: self.layout,
             seconds: totals.seconds,
             run_on_samples: self.run_on_samples,
+            // Set by the caller, which knows the recording before averaging.
+            run_on_s: 0.0,
         }
     }
 }
@@ -726,4 +831,105 @@ fn lap(clock: &mut Instant) -> f64 {
     let seconds = now.duration_since(*clock).as_secs_f64();
     *clock = now;
     seconds
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::obs::{Container, MemorySource, test_header};
+
+    /// A recording of `n` rows of 4 channels of uniform noise, and its samples.
+    fn recording(n: u64) -> (Header, Vec<f32>) {
+        let mut state = 7u64;
+        let data = (0..n * 4)
+            .map(|_| {
+                state = state
+                    .wrapping_mul(6364136223846793005)
+                    .wrapping_add(1442695040888963407);
+                (state >> 40) as f32 / (1u64 << 24) as f32
+            })
+            .collect();
+        (test_header(4, n), data)
+    }
+
+    /// Rows `from..to` of the recording `whole` holding `data`, as one of their own.
+    fn part(whole: &Header, data: &[f32], from: u64, to: u64) -> (Header, Vec<f32>) {
+        let mut h = whole.clone();
+        h.start = whole.epoch_of_sample(from as f64);
+        h.n_samples = to - from;
+        (h, data[from as usize * 4..to as usize * 4].to_vec())
+    }
+
+    fn averaging_16() -> SearchConfig {
+        let mut c = SearchConfig::default();
+        c.average.samples = 16;
+        c.plan.dm_max = 50.0;
+        c
+    }
+
+    // A first file shorter than one group of averaged samples (10 of 16), read on
+    // into the next: its search owns the one group that starts in it, completed by
+    // the next file's first 6 samples, searched at every trial DM, and reads on a
+    // block overlap past it; `run_on_s` counts the next file's samples from the cut.
+    // Alone, it holds no whole group and is refused, naming it.
+    #[test]
+    fn a_first_file_shorter_than_a_group_owns_the_group_it_starts() {
+        let c = averaging_16();
+        let (whole, data) = recording(20_000);
+        let memory = |(h, d): (Header, Vec<f32>)| -> Box<dyn SampleSource> {
+            Box::new(MemorySource::new(h, d))
+        };
+        let first = || memory(part(&whole, &data, 0, 10));
+        let next = memory(part(&whole, &data, 10, 20_000));
+        let r = search_run_on_in(
+            &mut Workspace::default(),
+            first(),
+            Some(next),
+            "a",
+            &c,
+            None,
+        )
+        .unwrap();
+        assert_eq!(r.header.n_samples, 1);
+        assert_eq!(r.header.tsamp_s, 16.0 * whole.tsamp_s);
+        assert_eq!(r.samples_searched, 1);
+        // It reads on until its block is full (one block overlap at least), or the
+        // next file, 1249 groups after the 6 rows completing the first, ends.
+        let fill = (r.layout.block_len as u64 - 1).max(r.layout.overlap as u64);
+        assert_eq!(r.run_on_samples, fill.min((19_990 - 6) / 16));
+        let next_rows = 6 + 16 * r.run_on_samples;
+        assert!((r.run_on_s - next_rows as f64 * whole.tsamp_s).abs() < 1e-12);
+        assert_eq!(r.highest_dm_searched(), Some(r.plan.max_dm()));
+        let alone = search_run_on_in(&mut Workspace::default(), first(), None, "a", &c, None);
+        match alone {
+            Err(Error::BadInput { path, msg }) => {
+                assert_eq!(path, Path::new("a"));
+                assert!(msg.contains("has only 10"), "{msg}");
+            }
+            other => panic!("{other:?}"),
+        }
+    }
+
+    // Checking files before a search: a file shorter than a group passes when the
+    // next one listed continues it and joining is on, as its search can read on to
+    // complete its group; with joining off it is refused, naming it.
+    #[test]
+    fn a_file_shorter_than_a_group_is_checked_as_joined() {
+        let dir = tempfile::tempdir().unwrap();
+        let (whole, data) = recording(5_000);
+        let paths = [("a.json", 0, 10), ("b.json", 10, 5_000)].map(|(name, from, to)| {
+            let path = dir.path().join(name);
+            let (h, rows) = part(&whole, &data, from, to);
+            let mut sink = crate::obs::create(&path, &h, Container::Native).unwrap();
+            sink.write_rows(&rows).unwrap();
+            sink.finish().unwrap();
+            path
+        });
+        let c = averaging_16();
+        let headers = check_files(&paths, &c, true).unwrap();
+        assert_eq!(headers[0].n_samples, 10);
+        assert!(headers[0].is_continued_by(&headers[1]));
+        let e = check_files(&paths, &c, false).unwrap_err().to_string();
+        assert!(e.contains("a.json") && e.contains("has only 10"), "{e}");
+    }
 }

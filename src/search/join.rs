@@ -1,6 +1,7 @@
 //! Consecutive files of one recording: which listed file continues which
-//! ([`Header::is_continued_by`]), which files a search reads on into, and the order
-//! to search them in (docs/search.md, "Consecutive files").
+//! ([`Header::is_continued_by`], on the files' own headers, before any averaging),
+//! which files a search reads on into, and the order to search them in
+//! (docs/search.md, "Consecutive files").
 
 use super::SearchConfig;
 use crate::obs::Header;
@@ -74,10 +75,21 @@ pub fn read_on_from(i: usize, headers: &[Header], chains: &[Vec<usize>]) -> Vec<
         .collect()
 }
 
+/// Seconds from the start of a file with `header` (as read) to the end of the samples
+/// its search owns when it reads on into the file that continues it: its end, or with
+/// averaging the end of its last group, which that file's first samples complete.
+pub fn owned_end_s(header: &Header, config: &SearchConfig) -> f64 {
+    config
+        .average
+        .run_on_header(header)
+        .map_or(header.duration_s(), |own| own.duration_s())
+}
+
 /// The files the search of file `i` reads on into: the one that continues it, then,
-/// while they hold fewer samples than the search's block overlap, the one that
-/// continues the last of them (a file shorter than the overlap is read through into
-/// the next, or a sweep crossing it would be cut short).
+/// while they hold fewer samples than the search reads on into ([`super::run_on_rows`]:
+/// the rest of its last averaged group, then a block overlap), the one that continues
+/// the last of them (a file shorter than that is read through into the next, or a
+/// sweep crossing it would be cut short).
 pub fn run_on_chain(
     i: usize,
     headers: &[Header],
@@ -87,12 +99,12 @@ pub fn run_on_chain(
     if continuations[i].is_none() {
         return Vec::new();
     }
-    let overlap = super::block_layout(&headers[i], config).map_or(0, |g| g.overlap as u64);
+    let wanted = super::run_on_rows(&headers[i], config).unwrap_or(0);
     let mut chain = Vec::new();
     let mut reach = 0;
     let mut at = continuations[i];
     while let Some(j) = at {
-        if (reach >= overlap && !chain.is_empty()) || j == i || chain.contains(&j) {
+        if (reach >= wanted && !chain.is_empty()) || j == i || chain.contains(&j) {
             break;
         }
         chain.push(j);
@@ -102,10 +114,25 @@ pub fn run_on_chain(
     chain
 }
 
+/// The files of `chain` (as [`run_on_chain`] gives it) that a search reading on
+/// `run_on_s` seconds past the end of its own file reached.
+pub fn reached<'a>(chain: &'a [usize], headers: &[Header], run_on_s: f64) -> &'a [usize] {
+    let mut left_s = run_on_s;
+    let n = chain
+        .iter()
+        .take_while(|&&j| {
+            let reached = left_s > 0.5 * headers[j].tsamp_s;
+            left_s -= headers[j].duration_s();
+            reached
+        })
+        .count();
+    &chain[..n]
+}
+
 /// Each pair of recordings of which the later starts within a sample of where the
 /// earlier ends yet does not continue it (a header field differs, or the gap is over
-/// half a sample, as when averaging drops a last partial group of samples): the two
-/// are searched apart, and a sweep crossing from one into the other is missed.
+/// half a sample): the two are searched apart, and a sweep crossing from one into the
+/// other is missed.
 /// Returns `(earlier, later, why)`.
 pub fn near_misses(
     headers: &[Header],
@@ -188,6 +215,44 @@ mod tests {
             assert!((offset_s - want).abs() < 1e-9, "{p}: {offset_s}");
         }
         assert!(near_misses(&headers, &next).is_empty());
+    }
+
+    // Averaged files are joined on their own headers, whatever their lengths in
+    // groups: a first file 12 samples over whole groups of 16 (averaged alone, it would
+    // end 0.75 averaged samples before the next starts), then one shorter than a group,
+    // read through into the third, as the first file's search reads on past the rest
+    // of its last group and one block overlap.
+    #[test]
+    fn averaged_files_are_joined_whatever_their_lengths_in_groups() {
+        let mut config = SearchConfig::default();
+        config.average.samples = 16;
+        let headers = consecutive(&[16 * 500 + 12, 10, 100_000]);
+        let next = continuations(&headers);
+        assert_eq!(next, [Some(1), Some(2), None]);
+        assert!(near_misses(&headers, &next).is_empty());
+        let own = config.average.run_on_header(&headers[0]).unwrap();
+        assert_eq!(own.n_samples, 501);
+        // Planned as in a long recording: the rest of its last group, then one block
+        // overlap or, if more, what fills its block.
+        let long = Header {
+            n_samples: 1 << 30,
+            ..own.clone()
+        };
+        let g = crate::search::block_layout(&long, &config).unwrap();
+        let groups = (g.block_len as u64 - 501).max(g.overlap as u64);
+        let wanted = crate::search::run_on_rows(&headers[0], &config).unwrap();
+        assert_eq!(wanted, 4 + 16 * groups);
+        assert_eq!(run_on_chain(0, &headers, &next, &config), [1, 2]);
+        // The short file's own search owns one group, the next file's first 6 rows
+        // completing it.
+        let short = crate::search::run_on_rows(&headers[1], &config).unwrap();
+        assert_eq!(short % 16, 6, "{short}");
+        assert_eq!(run_on_chain(1, &headers, &next, &config), [2]);
+        let tsamp = headers[0].tsamp_s;
+        let chain = [1, 2];
+        assert!(reached(&chain, &headers, 0.0).is_empty());
+        assert_eq!(reached(&chain, &headers, 10.0 * tsamp), [1]);
+        assert_eq!(reached(&chain, &headers, 11.0 * tsamp), [1, 2]);
     }
 
     // A file starting 0.75 samples after another ends is not joined, and said so.

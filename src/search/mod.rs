@@ -24,7 +24,7 @@ pub mod trials;
 pub use blocks::{BlockLayout, StageSeconds};
 pub use config::{ClusterConfig, SearchConfig, TriageConfig};
 pub use driver::{
-    FileResult, Workspace, block_layout, check_files, drop_repeats_across_cut, search_file,
-    search_run_on_in, search_source, search_source_in,
+    FileResult, Workspace, block_layout, check_files, drop_repeats_across_cut, run_on_rows,
+    search_file, search_run_on_in, search_source, search_source_in,
 };
 pub use trials::TrialCount;

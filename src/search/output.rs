@@ -69,7 +69,7 @@ impl<'a> From<&'a FileResult> for FileSummary<'a> {
             effective_trials: r.trials.effective_trials,
             expected_false_alarms: r.trials.expected_false_alarms,
             n_candidates: r.candidates.len(),
-            run_on_s: r.run_on_samples as f64 * r.header.tsamp_s,
+            run_on_s: r.run_on_s,
         }
     }
 }
