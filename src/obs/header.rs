@@ -42,7 +42,7 @@ pub struct Site {
 const SAME_PLACE_M: f64 = 0.01;
 
 impl Site {
-    /// Whether `other` is this site: a position within [`SAME_PLACE_M`], whatever
+    /// Whether `other` is this site: a position within 1 cm, whatever
     /// the names (free text; a FITS file names its site after the telescope).
     pub fn is_same_place(&self, other: &Site) -> bool {
         let xyz = |s: &Site| super::geodesy::geodetic_to_itrf_m(s.lon_deg, s.lat_deg, s.height_m);

@@ -370,8 +370,8 @@ pub fn block_layout(header: &Header, config: &SearchConfig) -> Result<BlockLayou
 
 /// Rows of the recordings that continue one with `header` (as read, before
 /// `config.average`) that its search reads on into, when they hold the rest of every
-/// sweep: those completing its last group of averaged samples, then
-/// [`groups_to_read_on`].
+/// sweep: those completing its last group of averaged samples, then one block
+/// overlap or, for a recording shorter than a block, until its block is full.
 ///
 /// # Errors
 /// An invalid configuration, or averaging that does not fit the recording.
