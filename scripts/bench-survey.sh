@@ -11,6 +11,8 @@
 # files are deleted on exit. Run it once on a quiet machine; it prints the load.
 # SMEARING_FRACTION sets [plan] smearing_fraction of part 1 (default 0.5, the
 # search's default; 1 is the cheapest plan, at some S/N of narrow bursts).
+# BLOCK_S sets block_s of part 1 (default 4, the search's default): longer blocks
+# search less overlap again, for more memory.
 # CONSECUTIVE=1 also times the three files as consecutive parts of one recording,
 # joined (the default) and with --no-join.
 # Usage: scripts/bench-survey.sh [LENGTH_S] [SHORT_S]
@@ -68,7 +70,8 @@ if (( short_s > 0 )); then
   $bin simulate "$work/short.toml" --out "$work/short.json" > /dev/null
 fi
 echo 'kernel = "fast"' > "$work/fast.toml"
-printf '[plan]\nsmearing_fraction = %s\n' "${SMEARING_FRACTION:-0.5}" > "$work/survey.toml"
+printf 'block_s = %s\n[plan]\nsmearing_fraction = %s\n' "${BLOCK_S:-4.0}" \
+  "${SMEARING_FRACTION:-0.5}" > "$work/survey.toml"
 echo 'kernel = "reference"' > "$work/reference.toml"
 
 # Files just written fill the page cache, and a search allocating gigabytes then
@@ -108,7 +111,7 @@ evict_then_read "$work/long.npy"
 read -r wall rss user sys < <(timed full $bin search "$work/long.json" --out "$work/out-full" \
   --config "$work/survey.toml" --dm-min 0 --dm-max 2000 --max-width-ms 50 --no-catalogue)
 echo "full search, ${length_s} s, DM 0-2000, widths to 50 ms, fast kernel," \
-  "smearing fraction ${SMEARING_FRACTION:-0.5}: wall ${wall} s," \
+  "smearing fraction ${SMEARING_FRACTION:-0.5}, ${BLOCK_S:-4} s blocks: wall ${wall} s," \
   "real-time factor $(echo "scale=3; ${length_s} / ${wall}" | bc), peak RSS ${rss} KiB," \
   "CPU ${user} s user + ${sys} s system"
 grep -i "candidates\|trials\|by stage" "$work/full.log" | head -5 || true

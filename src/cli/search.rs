@@ -3,7 +3,7 @@
 use std::path::PathBuf;
 
 use anyhow::Context;
-use burstbook::catalogue::{Catalogue, ObservationRecord, RecordOutcome};
+use burstbook::catalogue::{Catalogue, EarlierRun, ObservationRecord, RecordOutcome};
 use burstbook::search::output::{self, FileOutcome};
 use burstbook::search::{self, SearchConfig};
 
@@ -244,43 +244,13 @@ pub fn run(args: Args) -> anyhow::Result<()> {
                         false => format!(", recorded as {}", earlier.recorded_path),
                     },
                 )?;
-                let mut earlier = earlier;
                 let cuts = Cuts {
                     headers: &headers,
                     chains: &chains,
                     order: &order,
                     config: &config,
                 };
-                // As searched: averaged, with the group its end falls in.
-                let searched = config.average.run_on_header(&headers[i]);
-                let found = match &searched {
-                    Ok(header) => cuts.repeats(i, header, &mut earlier.candidates, &files),
-                    Err(_) => Vec::new(),
-                };
-                if !found.is_empty() {
-                    // The file it continues was searched since, reading on: its
-                    // finds across the cut are whole, and this run's are repeats.
-                    let (run_id, repeats) = (earlier.run_id, found.into_iter().flat_map(|f| f.1));
-                    let repeats: Vec<_> = repeats.collect();
-                    let taken = cat.take_out_repeats(run_id, &repeats)?;
-                    say!(
-                        "{label}: {} of its candidate(s) near its start taken out of run {run_id} \
-                         in catalogue {}: the same pulses as found whole, across the cut, by the \
-                         file it continues{}",
-                        taken.len(),
-                        cat.path().display(),
-                        match repeats.len() - taken.len() {
-                            0 => String::new(),
-                            n => format!(" ({n} reviewed or promoted, kept)"),
-                        }
-                    )?;
-                    // Those kept stay in the outputs, as in the catalogue.
-                    let kept = repeats.into_iter().filter(|r| !taken.contains(r));
-                    earlier.candidates.extend(kept);
-                    earlier
-                        .candidates
-                        .sort_by(|a, b| a.t_inf_s.total_cmp(&b.t_inf_s));
-                }
+                let earlier = cuts.take_out_repeats(cat, i, earlier, &files, &label)?;
                 files.push(FileOutcome::skipped(label, earlier));
                 continue;
             }
@@ -465,6 +435,49 @@ impl Cuts<'_> {
             }
         }
         found
+    }
+
+    /// The earlier run of skipped file `i` (labelled `label`) without its repeats of
+    /// pulses that the files it continues, searched since while reading on, found
+    /// whole across the cut: taken out of the run in `cat` too, unless reviewed or
+    /// promoted (those stay in both).
+    fn take_out_repeats(
+        &self,
+        cat: &mut Catalogue,
+        i: usize,
+        mut earlier: EarlierRun,
+        files: &[FileOutcome],
+        label: &str,
+    ) -> anyhow::Result<EarlierRun> {
+        // As searched: averaged, with the group its end falls in.
+        let Ok(header) = self.config.average.run_on_header(&self.headers[i]) else {
+            return Ok(earlier);
+        };
+        let found = self.repeats(i, &header, &mut earlier.candidates, files);
+        if found.is_empty() {
+            return Ok(earlier);
+        }
+        let repeats: Vec<_> = found.into_iter().flat_map(|f| f.1).collect();
+        let run_id = earlier.run_id;
+        let taken = cat.take_out_repeats(run_id, &repeats)?;
+        say!(
+            "{label}: {} of its candidate(s) near its start taken out of run {run_id} in \
+             catalogue {}: the same pulses as found whole, across the cut, by the file it \
+             continues{}",
+            taken.len(),
+            cat.path().display(),
+            match repeats.len() - taken.len() {
+                0 => String::new(),
+                n => format!(" ({n} reviewed or promoted, kept)"),
+            }
+        )?;
+        // Those kept stay in the outputs, as in the catalogue.
+        let kept = repeats.into_iter().filter(|r| !taken.contains(r));
+        earlier.candidates.extend(kept);
+        earlier
+            .candidates
+            .sort_by(|a, b| a.t_inf_s.total_cmp(&b.t_inf_s));
+        Ok(earlier)
     }
 }
 
