@@ -209,6 +209,34 @@ mod tests {
         (obs, earlier, later)
     }
 
+    /// A catalogue holding the earlier of [`searches`], recorded as having read on
+    /// `run_on_s`.
+    struct Recorded {
+        _dir: tempfile::TempDir,
+        cat: Catalogue,
+        obs: crate::catalogue::ObservationRecord,
+        earlier: Vec<Candidate>,
+        later: Vec<Candidate>,
+        run_id: i64,
+    }
+
+    fn recorded(run_on_s: Option<f64>) -> Recorded {
+        let dir = tempfile::tempdir().unwrap();
+        let mut cat = Catalogue::open(&dir.path().join("c.sqlite")).unwrap();
+        let (obs, earlier, later) = searches();
+        let RecordOutcome::Inserted { run_id } = record(&mut cat, &obs, &earlier, run_on_s) else {
+            panic!("first search not inserted")
+        };
+        Recorded {
+            _dir: dir,
+            cat,
+            obs,
+            earlier,
+            later,
+            run_id,
+        }
+    }
+
     fn record(
         cat: &mut Catalogue,
         obs: &crate::catalogue::ObservationRecord,
@@ -236,12 +264,15 @@ mod tests {
     // one, and records how far it read; the same search again changes nothing.
     #[test]
     fn a_run_searched_again_reading_on_is_completed_without_repeats() {
-        let dir = tempfile::tempdir().unwrap();
-        let mut cat = Catalogue::open(&dir.path().join("c.sqlite")).unwrap();
-        let (obs, earlier, later) = searches();
-        let RecordOutcome::Inserted { run_id } = record(&mut cat, &obs, &earlier, Some(0.0)) else {
-            panic!("first search not inserted")
-        };
+        // The directory is kept (bound) while the catalogue in it is open.
+        let Recorded {
+            _dir: _kept,
+            mut cat,
+            obs,
+            later,
+            run_id,
+            ..
+        } = recorded(Some(0.0));
         let before = held(&cat);
         let outcome = record(&mut cat, &obs, &later, Some(2.5));
         let completion = Completion {
@@ -276,10 +307,14 @@ mod tests {
     // a run recorded before reading on was kept (NULL) counts as not having read on.
     #[test]
     fn a_reviewed_find_is_kept_in_place_of_its_later_event() {
-        let dir = tempfile::tempdir().unwrap();
-        let mut cat = Catalogue::open(&dir.path().join("c.sqlite")).unwrap();
-        let (obs, earlier, later) = searches();
-        record(&mut cat, &obs, &earlier, None);
+        // The directory is kept (bound) while the catalogue in it is open.
+        let Recorded {
+            _dir: _kept,
+            mut cat,
+            obs,
+            later,
+            ..
+        } = recorded(None);
         let part = held(&cat)[3].0;
         cat.label(&[part], "burst", "tester", "").unwrap();
         let outcome = record(&mut cat, &obs, &later, Some(2.5));
@@ -303,12 +338,14 @@ mod tests {
     // does not hold exactly; the run's count follows.
     #[test]
     fn repeats_are_taken_out_unless_judged() {
-        let dir = tempfile::tempdir().unwrap();
-        let mut cat = Catalogue::open(&dir.path().join("c.sqlite")).unwrap();
-        let (obs, earlier, _) = searches();
-        let RecordOutcome::Inserted { run_id } = record(&mut cat, &obs, &earlier, Some(0.0)) else {
-            panic!("not inserted")
-        };
+        // The directory is kept (bound) while the catalogue in it is open.
+        let Recorded {
+            _dir: _kept,
+            mut cat,
+            earlier,
+            run_id,
+            ..
+        } = recorded(Some(0.0));
         let ids = held(&cat);
         cat.label(&[ids[1].0], "burst", "tester", "").unwrap();
         let mut not_held = earlier[2].clone();
