@@ -25,34 +25,10 @@ trap 'rm -rf "$work"' EXIT
 cargo build --quiet --release
 bin=target/release/burstbook
 
+source scripts/survey-setup.sh
 scenario() { # $1 = length in seconds
   local length="$1"
-  cat <<EOF
-# Invented reference survey (fictional telescope, site and source).
-seed = 7
-[observation]
-source = "Bench Field 1"
-telescope = "Saltmarsh 64 m"
-ra_deg = 210.5
-dec_deg = -20.25
-start_mjd = 61020.5
-length_s = $1
-tsamp_s = 64.0e-6
-[site]
-name = "Saltmarsh Flats"
-lon_deg = 12.5
-lat_deg = -31.0
-height_m = 300.0
-[band]
-first_chan_mhz = 1599.8046875
-chan_step_mhz = -0.390625
-n_chan = 1024
-[noise]
-nbits = 8
-mean = 96.0
-sigma = 12.0
-sefd_jy = 30.0
-EOF
+  survey_setup 7 "Bench Field 1" "$length" 30.0
   # (t_inf_s, dm, width_ms, snr); only bursts whose sweep ends inside the file.
   local b
   for b in "3.0 320.0 2.0 20.0" "12.5 850.0 5.0 15.0" "24.0 1650.0 10.0 18.0"; do

@@ -25,32 +25,9 @@ burst() { # $1 = cut (s), $2 = DM, $3 = width (ms), $4 = S/N
   t=$(echo "scale=9; $1 - 0.25 - 4148.808 * $2 / 1599.8046875^2" | bc)
   printf '[[burst]]\nt_inf_s = %s\ndm = %s\nwidth_ms = %s\nsnr = %s\n' "$t" "$2" "$3" "$4"
 }
+source scripts/survey-setup.sh
 {
-  cat <<EOF
-# Invented recording (fictional telescope, site and source).
-seed = 11
-[observation]
-source = "Bench Field 2"
-telescope = "Saltmarsh 64 m"
-ra_deg = 210.5
-dec_deg = -20.25
-start_mjd = 61020.5
-length_s = 40.0
-tsamp_s = 64.0e-6
-[site]
-name = "Saltmarsh Flats"
-lon_deg = 12.5
-lat_deg = -31.0
-height_m = 300.0
-[band]
-first_chan_mhz = 1599.8046875
-chan_step_mhz = -0.390625
-n_chan = 1024
-[noise]
-nbits = 8
-mean = 96.0
-sigma = 12.0
-EOF
+  survey_setup 11 "Bench Field 2" 40.0
   burst 10 800 2.0 15
   burst 20 1500 5.0 15
   burst 30 1900 1.0 15
