@@ -335,6 +335,59 @@ fn a_wide_burst_is_found_with_only_the_width_flag() {
     assert!(snr > 20.0, "{best}");
 }
 
+// `--smearing-fraction` sets the plan's fraction over the configuration's: the
+// cheaper plan has fewer trials and still finds the burst; a fraction of 0 is
+// refused in one line that names the setting.
+#[test]
+fn the_smearing_fraction_flag_sets_the_plan() {
+    let dir = tempfile::tempdir().unwrap();
+    let file = dir.path().join("obs.json");
+    simulate(&file, Container::Native, 5);
+    let search = |fraction: Option<&str>, out: &str| {
+        let out = dir.path().join(out);
+        let mut args = vec![
+            "search",
+            file.to_str().unwrap(),
+            "--dm-max",
+            "1000",
+            "--out",
+            out.to_str().unwrap(),
+            "--no-catalogue",
+        ];
+        if let Some(f) = fraction {
+            args.extend(["--smearing-fraction", f]);
+        }
+        (burstbook(&args), out)
+    };
+    let json = |out: &Path| -> serde_json::Value {
+        serde_json::from_str(&std::fs::read_to_string(out.join("candidates.json")).unwrap())
+            .unwrap()
+    };
+    let (o, default_out) = search(None, "default");
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let (o, coarse_out) = search(Some("1"), "coarse");
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let (default, coarse) = (json(&default_out), json(&coarse_out));
+    assert_eq!(default["config"]["plan"]["smearing_fraction"], 0.5);
+    assert_eq!(coarse["config"]["plan"]["smearing_fraction"], 1.0);
+    let trials = |j: &serde_json::Value| j["files"][0]["dm_trials"].as_u64().unwrap();
+    assert!(
+        trials(&coarse) < trials(&default),
+        "{} {}",
+        trials(&coarse),
+        trials(&default)
+    );
+    let near_burst = coarse["candidates"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|c| (c["dm"].as_f64().unwrap() - 180.0).abs() < 20.0)
+        .count();
+    assert_eq!(near_burst, 1, "{coarse}");
+    let (o, _) = search(Some("0"), "refused");
+    assert_one_line_failure(&o, &["smearing fraction"]);
+}
+
 // Dozens of undispersed pulses (a band-limited impulse train at DM 0) make the
 // summary suggest the zero-DM filter; with the filter on they are gone, and so is
 // the note.
