@@ -240,6 +240,37 @@ fn search_cli(files: &[&Path], out: &Path, extra: &[&str]) -> std::process::Outp
     burstbook(&args)
 }
 
+/// `burstbook search FILES --out OUT --catalogue CATALOGUE --dm-max 300`, which must
+/// succeed; its standard output.
+fn search_catalogued(files: &[&Path], out: &Path, catalogue: &Path) -> String {
+    let mut args: Vec<&std::ffi::OsStr> = vec!["search".as_ref()];
+    args.extend(files.iter().map(|f| f.as_os_str()));
+    args.extend::<[&std::ffi::OsStr; 6]>([
+        "--out".as_ref(),
+        out.as_os_str(),
+        "--catalogue".as_ref(),
+        catalogue.as_os_str(),
+        "--dm-max".as_ref(),
+        "300".as_ref(),
+    ]);
+    let run = burstbook(&args);
+    assert_success(&run);
+    String::from_utf8_lossy(&run.stdout).into_owned()
+}
+
+/// The DMs of the candidates the catalogue holds of files whose path ends in `file`
+/// ("" for all).
+fn catalogued_dms(catalogue: &Path, file: &str) -> Vec<f64> {
+    let conn = rusqlite::Connection::open(catalogue).unwrap();
+    let mut stmt = conn
+        .prepare("SELECT dm FROM candidate WHERE file LIKE '%' || ?1")
+        .unwrap();
+    stmt.query_map([file], |r| r.get(0))
+        .unwrap()
+        .map(Result::unwrap)
+        .collect()
+}
+
 /// The DMs of the candidates of `file` in the CSV at `out`.
 fn candidate_dms(out: &Path, file: &str) -> Vec<f64> {
     let csv = std::fs::read_to_string(out.join("candidates.csv")).unwrap();
@@ -452,34 +483,9 @@ fn a_file_searched_alone_is_joined_when_its_successor_comes() {
     let dir = tempfile::tempdir().unwrap();
     let ([a, b], dm) = write_consecutive_files(dir.path());
     let catalogue = dir.path().join("survey.sqlite");
-    let search = |files: &[&Path], out: &Path| {
-        let mut args: Vec<&std::ffi::OsStr> = vec!["search".as_ref()];
-        args.extend(files.iter().map(|f| f.as_os_str()));
-        args.extend::<[&std::ffi::OsStr; 5]>([
-            "--out".as_ref(),
-            out.as_os_str(),
-            "--catalogue".as_ref(),
-            catalogue.as_os_str(),
-            "--dm-max".as_ref(),
-        ]);
-        args.push("300".as_ref());
-        let run = burstbook(&args);
-        assert_success(&run);
-        String::from_utf8_lossy(&run.stdout).into_owned()
-    };
+    let search = |files: &[&Path], out: &Path| search_catalogued(files, out, &catalogue);
     let near = |dms: &[f64]| dms.iter().filter(|&&d| (d - dm).abs() < 0.1 * dm).count();
-    let catalogued = || {
-        let conn = rusqlite::Connection::open(&catalogue).unwrap();
-        let mut stmt = conn
-            .prepare("SELECT dm FROM candidate WHERE file LIKE '%a.json'")
-            .unwrap();
-        let dms: Vec<f64> = stmt
-            .query_map([], |r| r.get(0))
-            .unwrap()
-            .map(Result::unwrap)
-            .collect();
-        dms
-    };
+    let catalogued = || catalogued_dms(&catalogue, "a.json");
     let alone = dir.path().join("alone");
     search(&[&a], &alone);
     assert_eq!(near(&candidate_dms(&alone, "a.json")), 0);
@@ -508,31 +514,11 @@ fn a_repeat_recorded_before_the_file_it_continues_was_joined_is_taken_out() {
     let catalogue = dir.path().join("survey.sqlite");
     let search = |files: &[&Path], out: &str| {
         let out = dir.path().join(out);
-        let mut args: Vec<&std::ffi::OsStr> = vec!["search".as_ref()];
-        args.extend(files.iter().map(|f| f.as_os_str()));
-        args.extend::<[&std::ffi::OsStr; 6]>([
-            "--out".as_ref(),
-            out.as_os_str(),
-            "--catalogue".as_ref(),
-            catalogue.as_os_str(),
-            "--dm-max".as_ref(),
-            "300".as_ref(),
-        ]);
-        let run = burstbook(&args);
-        assert_success(&run);
-        (out, String::from_utf8_lossy(&run.stdout).into_owned())
+        let stdout = search_catalogued(files, &out, &catalogue);
+        (out, stdout)
     };
     let near = |dms: &[f64]| dms.iter().filter(|&&d| (d - dm).abs() < 0.1 * dm).count();
-    let catalogued = || {
-        let conn = rusqlite::Connection::open(&catalogue).unwrap();
-        let mut stmt = conn.prepare("SELECT dm FROM candidate").unwrap();
-        let dms: Vec<f64> = stmt
-            .query_map([], |r| r.get(0))
-            .unwrap()
-            .map(Result::unwrap)
-            .collect();
-        near(&dms)
-    };
+    let catalogued = || near(&catalogued_dms(&catalogue, ""));
     search(&[&a], "first");
     let (out, stdout) = search(&[&b], "second");
     assert_eq!(near(&candidate_dms(&out, "b.json")), 1, "{stdout}");
