@@ -29,6 +29,21 @@ fn config() -> SearchConfig {
     c
 }
 
+/// The test recording (noise of `seed`) holding one [`burst_at_top`] reaching the
+/// top channel at `top_sample`, with that burst.
+fn recording_with_burst(
+    top_sample: f64,
+    dm: f64,
+    snr: f64,
+    seed: u64,
+) -> (Header, Burst, Vec<f32>) {
+    let whole = header(N_CHAN, N, TSAMP);
+    let b = burst_at_top(&whole, top_sample, dm, snr);
+    let mut data = noise(&whole, seed);
+    add(&whole, &mut data, &b);
+    (whole, b, data)
+}
+
 /// A burst of `dm` whose top channel sees it `top_sample` samples into the recording.
 fn burst_at_top(h: &Header, top_sample: f64, dm: f64, snr: f64) -> Burst {
     let to_top = K_HANDBOOK_S_MHZ2 * dm / h.freqs_mhz[0].powi(2);
@@ -200,10 +215,7 @@ fn write_consecutive_files_as(
     seed: u64,
     containers: [Container; 2],
 ) -> ([std::path::PathBuf; 2], f64) {
-    let whole = header(N_CHAN, N, TSAMP);
-    let crossing = burst_at_top(&whole, top_sample, 250.0, 25.0);
-    let mut data = noise(&whole, seed);
-    add(&whole, &mut data, &crossing);
+    let (whole, crossing, data) = recording_with_burst(top_sample, 250.0, 25.0, seed);
     let paths = [("a", containers[0]), ("b", containers[1])].map(|(name, c)| {
         dir.join(match c {
             Container::Native => format!("{name}.json"),
@@ -360,10 +372,7 @@ fn a_burst_at_the_cut_is_reported_by_one_file_only() {
 #[test]
 fn averaged_files_are_joined_through_a_file_shorter_than_a_group() {
     let dir = tempfile::tempdir().unwrap();
-    let whole = header(N_CHAN, N, TSAMP);
-    let crossing = burst_at_top(&whole, N_FIRST as f64 - 100.0, 250.0, 40.0);
-    let mut data = noise(&whole, 48);
-    add(&whole, &mut data, &crossing);
+    let (whole, crossing, data) = recording_with_burst(N_FIRST as f64 - 100.0, 250.0, 40.0, 48);
     let cuts = [0, N_FIRST + 12, N_FIRST + 22, N];
     let names = ["a.json", "b.json", "c.json"];
     let paths: Vec<_> = (0..3)
@@ -553,11 +562,8 @@ impl obs::SampleSource for Unreadable {
 // read on into the next.
 #[test]
 fn an_unreadable_next_file_leaves_the_first_searched_to_its_end() {
-    let whole = header(N_CHAN, N, TSAMP);
     // A burst in the first file's last block, all of its sweep in that file.
-    let tail = burst_at_top(&whole, N_FIRST as f64 - 100.0, 50.0, 20.0);
-    let mut data = noise(&whole, 47);
-    add(&whole, &mut data, &tail);
+    let (whole, tail, data) = recording_with_burst(N_FIRST as f64 - 100.0, 50.0, 20.0, 47);
     let [(h1, d1), (h2, _)] = split(&whole, &data);
     let mut c = config();
     let overlap = burstbook::search::block_layout(&h1, &c).unwrap().overlap as u64;
@@ -589,11 +595,8 @@ fn an_unreadable_next_file_leaves_the_first_searched_to_its_end() {
 #[test]
 fn a_short_file_is_read_through_into_the_one_after_it() {
     let dir = tempfile::tempdir().unwrap();
-    let whole = header(N_CHAN, N, TSAMP);
     // The sweep at DM 250 lasts 0.32 s; the middle file holds 0.05 s.
-    let crossing = burst_at_top(&whole, N_FIRST as f64 - 100.0, 250.0, 25.0);
-    let mut data = noise(&whole, 44);
-    add(&whole, &mut data, &crossing);
+    let (whole, crossing, data) = recording_with_burst(N_FIRST as f64 - 100.0, 250.0, 25.0, 44);
     let cuts = [0, N_FIRST, N_FIRST + 50, N];
     let paths: Vec<_> = ["a.json", "b.json", "c.json"]
         .iter()
@@ -811,10 +814,7 @@ fn a_short_file_read_on_into_a_long_one_is_planned_to_every_dm() {
 // there the later file's grid may simply catch the pulse better.
 #[test]
 fn only_a_repeat_no_brighter_than_the_earlier_candidate_is_dropped() {
-    let whole = header(N_CHAN, N, TSAMP);
-    let crossing = burst_at_top(&whole, N_FIRST as f64 - 100.0, 250.0, 20.0);
-    let mut data = noise(&whole, 47);
-    add(&whole, &mut data, &crossing);
+    let (whole, crossing, data) = recording_with_burst(N_FIRST as f64 - 100.0, 250.0, 20.0, 47);
     let [(h1, d1), (h2, d2)] = split(&whole, &data);
     let c = config();
     let first = search_run_on_in(
